@@ -1,0 +1,11 @@
+/* bandlink power (placeholder until its issue lands). */
+#include "cli_common.h"
+#include "commands.h"
+
+int cmd_power(int argc, char **argv)
+{
+    (void)argc;
+    (void)argv;
+    fprintf(stderr, "bandlink: error: 'power' is not built yet\n");
+    return CLI_EXIT_FAILURE;
+}

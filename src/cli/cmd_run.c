@@ -1,0 +1,11 @@
+/* bandlink run (placeholder until its issue lands). */
+#include "cli_common.h"
+#include "commands.h"
+
+int cmd_run(int argc, char **argv)
+{
+    (void)argc;
+    (void)argv;
+    fprintf(stderr, "bandlink: error: 'run' is not built yet\n");
+    return CLI_EXIT_FAILURE;
+}

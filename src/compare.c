@@ -1,0 +1,2 @@
+/* compare: placeholder until its issue lands. */
+#include "bandlink/status.h"

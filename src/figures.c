@@ -1,0 +1,2 @@
+/* figures: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* fit: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* goodness: placeholder until its issue lands. */
+#include "bandlink/status.h"

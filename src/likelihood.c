@@ -1,0 +1,2 @@
+/* likelihood: placeholder until its issue lands. */
+#include "bandlink/status.h"

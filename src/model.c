@@ -1,0 +1,2 @@
+/* model: placeholder until its issue lands. */
+#include "bandlink/status.h"

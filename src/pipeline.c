@@ -1,0 +1,2 @@
+/* pipeline: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* power: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* report: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* results: placeholder until its issue lands. */
+#include "bandlink/status.h"

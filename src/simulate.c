@@ -1,0 +1,2 @@
+/* simulate: placeholder until its issue lands. */
+#include "bandlink/status.h"

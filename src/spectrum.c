@@ -1,0 +1,2 @@
+/* spectrum: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* study: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* svg: placeholder until its issue lands. */
+#include "bandlink/status.h"

@@ -1,0 +1,2 @@
+/* table: placeholder until its issue lands. */
+#include "bandlink/status.h"

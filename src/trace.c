@@ -1,0 +1,2 @@
+/* trace: placeholder until its issue lands. */
+#include "bandlink/status.h"

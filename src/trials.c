@@ -1,0 +1,2 @@
+/* trials: placeholder until its issue lands. */
+#include "bandlink/status.h"

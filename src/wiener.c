@@ -1,0 +1,2 @@
+/* wiener: placeholder until its issue lands. */
+#include "bandlink/status.h"
