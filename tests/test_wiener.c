@@ -154,6 +154,46 @@ static void identities(void)
     }
 }
 
+/* Small-time truncation validated in relative terms on the far-boundary corner (numerics notes 1.3:
+ * an absolute-error count, including a tightened w-dependent one in the spirit of Gondan, Blurton &
+ * Kesselmeier 2014, lost the k = -1 image there). Reference: the Navarro & Fuss (2009) image series
+ * summed over k = -30..30 in long double, far past any truncation. */
+static double brute_lo(double t, double v, double a, double w)
+{
+    long double u = (long double)t / ((long double)a * a), s = 0;
+    for (int k = -30; k <= 30; k++) {
+        long double x = w + 2.0L * k;
+        s += x * expl(-x * x / (2 * u));
+    }
+    return (double)(-(long double)v * a * w - (long double)v * v * t / 2 - 2 * logl(a) -
+                    0.5L * logl(2 * 3.14159265358979323846264338327950288L * u * u * u) + logl(s));
+}
+
+static void far_boundary_corner(void)
+{
+    double worst = 0;
+    int n = 0;
+    double ws[] = {0.962, 0.99, 0.999, 0.9999, 1 - 1e-6, 0.001, 0.01, 0.5};
+    double us[] = {0.002, 0.01, 0.05, 0.1, 0.2, 0.2499};
+    double vs[] = {-1.856, 0, 2.5};
+    for (int i = 0; i < 8; i++)
+        for (int j = 0; j < 6; j++)
+            for (int k = 0; k < 3; k++) {
+                double a = 4.316, t = us[j] * a * a;
+                bl_wiener_params p = mk(a, vs[k], 0, ws[i], 0);
+                double got = ld(&p, t, 0), want = brute_lo(t, vs[k], a, ws[i]);
+                /* relative error of the density = absolute error of its log */
+                double e = fabs(got - want);
+                if (e > worst) worst = e;
+                n++;
+            }
+    check_true(worst < 2e-10, "far-boundary corner: %d small-time densities within %.2g relative of the long-double "
+               "image sum (target 1e-10 truncation)", n, worst);
+    /* the numerics notes' example: v=-1.856, a=4.316, w=0.962, t=0.3388 (lower boundary) */
+    bl_wiener_params p = mk(4.316, -1.856, 0, 0.962, 0);
+    check_abs(ld(&p, 0.3388, 0), brute_lo(0.3388, -1.856, 4.316, 0.962), 1e-12, "numerics 1.3 corner example");
+}
+
 static void extremes_and_errors(void)
 {
     /* issue 2: t -> t0, t = 20 s, a = 0.3 and 6, v = +-8 must give finite logs */
@@ -273,6 +313,7 @@ int main(void)
     reference_cdf_and_moments();
     ez_diffusion();
     identities();
+    far_boundary_corner();
     extremes_and_errors();
     gradients();
     return harness_summary();
