@@ -150,6 +150,11 @@ def variability_case():
             check(rel(e[name], ref) < 1e-10, "drift_sd %g: density %s at rt %g vs mpmath.quad over drift" % (sv, name, e["rt"]))
         Pref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf])
         check(rel(d["p_" + name], Pref) < 1e-9, "drift_sd %g: p_%s vs mpmath.quad" % (sv, name))
+        Mref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mean_b(nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf]) / Pref
+        check(rel(d["mean_rt_" + name], Mref + t0) < 1e-9, "drift_sd %g: mean_rt_%s vs mpmath.quad" % (sv, name))
+        for p, q in list(zip(d["quantiles"]["probabilities"], d["quantiles"][name]))[::2]:
+            F = mp.quad(lambda nu: cdf_b(mp.mpf(q) - t0, nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf]) / Pref
+            check(abs(F - p) < 1e-8, "drift_sd %g: %s quantile %g at %r: mpmath CDF/P = %s" % (sv, name, p, q, mp.nstr(F, 12)))
     # start_range: integral over the uniform start
     d = predict(base + ["--start-range", repr(sz)], rts)
     for upper, name in ((1, "upper"), (0, "lower")):
