@@ -470,10 +470,12 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
     int nl = 1, nh = 1;
     lx = hx = &zero;
     lw = hw = &one;
-    if (sz > 0) blw_gauss_legendre(nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a)) > BLW_GL_MAX
-                                            ? BLW_GL_MAX
-                                            : 2 * blw_gl_nodes_start_range(sz, y / (a * a)),
-                                   &lx, &lw);
+    if (sz > 0) {
+        /* twice the density's rule: the CDF feeds quantiles, where accuracy matters more than speed */
+        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a));
+        if (nl > BLW_GL_MAX) nl = BLW_GL_MAX;
+        blw_gauss_legendre(nl, &lx, &lw);
+    }
     if (sv > 0) nh = blw_gauss_hermite(2 * blw_gh_nodes_drift_sd(sv, a, y), &hx, &hw);
     double S = 0;
     int large = y / (a * a) >= BLW_U_SWITCH;
