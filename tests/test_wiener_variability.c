@@ -8,6 +8,8 @@
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_integration.h>
 #include <math.h>
+#include <pthread.h>
+#include <string.h>
 
 static bl_wiener_params mk(double a, double v, double t0, double w, double sv, double sz, double st)
 {
@@ -334,9 +336,60 @@ static void full_gradient(void)
     check_true(zero, "rt before nondecision - range/2: log-density -inf, gradient 0");
 }
 
+/* Thread safety: the quadrature tables are built under pthread_once on first use; threads that race
+ * into the first call must see complete tables and get bit-identical results to a serial pass. */
+enum { TS_N = 400, TS_THREADS = 4 };
+static double ts_serial[TS_N][2];
+static double ts_par[TS_THREADS][TS_N][2];
+
+static void ts_params(int i, bl_wiener_params *p, double *rt)
+{
+    *p = mk(1.0 + 0.002 * i, -1 + 0.005 * i, 0.3, 0.45, 0.5 + 0.001 * i, 0.2, 0.1);
+    *rt = 0.32 + 0.004 * i;
+}
+
+static void *ts_worker(void *arg)
+{
+    int k = *(int *)arg;
+    for (int i = 0; i < TS_N; i++) {
+        bl_wiener_params p;
+        double rt, g[BL_NPARAM];
+        ts_params(i, &p, &rt);
+        bl_wiener_log_density(&p, rt, i % 2, &ts_par[k][i][0], NULL);
+        bl_wiener_log_density_grad(&p, rt, i % 2, &ts_par[k][i][1], g, NULL);
+        ts_par[k][i][1] += g[BL_START_RANGE];
+    }
+    return NULL;
+}
+
+static void thread_safety(void)
+{
+    pthread_t th[TS_THREADS];
+    int ids[TS_THREADS], started = 0;
+    for (int k = 0; k < TS_THREADS; k++) {
+        ids[k] = k;
+        if (pthread_create(&th[k], NULL, ts_worker, &ids[k]) == 0) started++;
+        else break;
+    }
+    for (int k = 0; k < started; k++) pthread_join(th[k], NULL);
+    check_true(started == TS_THREADS, "%d threads started", started);
+    for (int i = 0; i < TS_N; i++) {
+        bl_wiener_params p;
+        double rt, g[BL_NPARAM];
+        ts_params(i, &p, &rt);
+        bl_wiener_log_density(&p, rt, i % 2, &ts_serial[i][0], NULL);
+        bl_wiener_log_density_grad(&p, rt, i % 2, &ts_serial[i][1], g, NULL);
+        ts_serial[i][1] += g[BL_START_RANGE];
+    }
+    int same = 1;
+    for (int k = 0; k < started; k++) same &= memcmp(ts_par[k], ts_serial, sizeof ts_serial) == 0;
+    check_true(same, "densities and gradients from %d racing threads are bit-identical to a serial pass", started);
+}
+
 int main(void)
 {
     gsl_set_error_handler_off();
+    thread_safety(); /* first: the threads race into the table construction */
     start_range();
     nondecision_range();
     contamination();
