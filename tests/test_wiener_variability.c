@@ -3,6 +3,7 @@
  * (gsl_integration_qags/qagi) applied to the plain density; the uniform-mixture contaminant model of
  * Ratcliff & Tuerlinckx (2002, Psychon. Bull. Rev. 9:438-481); central finite differences. */
 #include "bandlink/wiener.h"
+#include "../src/wiener_internal.h" /* the node-count rule, to check it against 2n */
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>
@@ -67,6 +68,47 @@ static void start_range(void)
     gsl_integration_glfixed_table_free(tab);
     check_true(worst <= 1e-6, "start_range: node rule vs 96-node GSL Gauss-Legendre, %d points, max rel err %.2g <= 1e-6",
                n, worst);
+}
+
+/* The node-count rule n(start_range, u) against 2n nodes (numerics notes 6.7), both with GSL's tables,
+ * and the engine's density equals the n-node sum (so the rule is what the engine uses). */
+static double gl_sum(size_t n, const bl_wiener_params *q0, double w, double sz, double rt, int up)
+{
+    gsl_integration_glfixed_table *tab = gsl_integration_glfixed_table_alloc(n);
+    bl_wiener_params q = *q0;
+    double s = 0;
+    for (size_t i = 0; i < n; i++) {
+        double xi, wi;
+        gsl_integration_glfixed_point(w - sz / 2, w + sz / 2, i, &xi, &wi, tab);
+        q.value[BL_START] = xi;
+        s += wi * exp(ld(&q, rt, up));
+    }
+    gsl_integration_glfixed_table_free(tab);
+    return s / sz;
+}
+
+static void start_range_2n(void)
+{
+    double worst_2n = 0, worst_engine = 0;
+    int n = 0;
+    double as[] = {0.8, 1.5, 2.5}, vs[] = {-2, 0, 2}, szs[] = {0.1, 0.3, 0.6}, ts[] = {0.02, 0.05, 0.15, 0.3, 0.6, 1.2};
+    for (int ia = 0; ia < 3; ia++)
+        for (int iv = 0; iv < 3; iv++)
+            for (int is = 0; is < 3; is++)
+                for (int it = 0; it < 6; it++) {
+                    double a = as[ia], sz = szs[is], t = ts[it];
+                    bl_wiener_params q = mk(a, vs[iv], 0.3, 0.5, 0, 0, 0), p = q;
+                    p.value[BL_START_RANGE] = sz;
+                    size_t nr = (size_t)blw_gl_nodes_start_range(sz, t / (a * a));
+                    double f1 = gl_sum(nr, &q, 0.5, sz, 0.3 + t, 0), f2 = gl_sum(2 * nr, &q, 0.5, sz, 0.3 + t, 0);
+                    if (!(f2 > 1e-280)) continue;
+                    worst_2n = fmax(worst_2n, fabs(f1 - f2) / f2);
+                    worst_engine = fmax(worst_engine, fabs(exp(ld(&p, 0.3 + t, 0)) - f1) / f1);
+                    n++;
+                }
+    /* grid of the numerics notes' node table (a in {0.8, 1.5, 2.5}, v in {-2, 0, 2}, w = 0.5) */
+    check_true(worst_2n <= 1e-6, "start_range rule n vs 2n nodes over %d points: max rel diff %.2g <= 1e-6", n, worst_2n);
+    check_true(worst_engine <= 1e-12, "the engine's start_range density is the n-node rule (max rel diff %.2g)", worst_engine);
 }
 
 /* nondecision_range: exact CDF difference vs GSL adaptive integration of the plain density over t0'. */
@@ -391,6 +433,7 @@ int main(void)
     gsl_set_error_handler_off();
     thread_safety(); /* first: the threads race into the table construction */
     start_range();
+    start_range_2n();
     nondecision_range();
     contamination();
     drift_sd_moments();
