@@ -276,15 +276,9 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     bl_status s;
     if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
     if (sv == 0) {
-        double d3[3];
         if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
-        else s = blw_log_cdf_grad(y, v, a, w, upper, lF, d3);
-        if (dl) {
-            dl[0] = d3[0];
-            dl[1] = d3[1];
-            dl[2] = d3[2];
-            dl[3] = 0;
-        }
+        s = blw_log_cdf_grad(y, v, a, w, upper, lF, dl); /* fills dl[0..2] */
+        dl[3] = 0;
         return s;
     }
     const double *gx, *gw;
