@@ -87,10 +87,9 @@ static const double LOG_SQRT_2PI = 0.91893853320467274178;
  * at w + 2k has A^{k(k-1)/2} B^{k(k+1)/2}; so the usual case (k <= 1 plus the bound at k = 2) costs two
  * calls to exp. All factors are <= 1: nothing overflows.
  * Returns S0; fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
-static double small_time(double u, double w, double eps, int want_grad, double *Lu, double *Lw)
+static double small_time(double u, double w, double d, double eps, int want_grad, double *Lu, double *Lw)
 {
     double S0, S3 = 0, Sw = 0;
-    double d = 1 - w;
     double A, B = -1; /* B computed on first use */
     double En, Ep, Ak, Bk;
     int K;
@@ -162,11 +161,12 @@ static double small_time(double u, double w, double eps, int want_grad, double *
     return S0;
 }
 
-/* Large-time series (u >= 0.25). Sum S = sum_k k sin(k pi w) exp(-(k^2-1) q), q = pi^2 u / 2. */
-static double large_time(double u, double w, double eps, int want_grad, double *Lu, double *Lw)
+/* Large-time series (u >= 0.25). Sum S = sum_k k sin(k pi w) exp(-(k^2-1) q), q = pi^2 u / 2.
+ * wc = 1 - w, passed exactly by the caller. */
+static double large_time(double u, double w, double wc, double eps, int want_grad, double *Lu, double *Lw)
 {
     double q = 4.934802200544679309 * u; /* pi^2/2 * u */
-    double dmin = w < 0.5 ? w : 1 - w;
+    double dmin = w < 0.5 ? w : wc;
     double s1 = sin(BLW_PI * dmin), c1 = cos(BLW_PI * dmin);
     if (w > 0.5) c1 = -c1; /* cos(pi w) */
     double E = exp(-q), E2 = E * E;
@@ -210,7 +210,9 @@ static double large_time(double u, double w, double eps, int want_grad, double *
     return S;
 }
 
-double blw_log_dens_lo(double t, double v, double a, double w, double sv, double *g)
+/* wc = 1 - w given exactly (for the upper boundary it is the user's start itself), so a start within
+ * 1e-16 of a boundary keeps its relative precision. */
+static double log_dens_lo_c(double t, double v, double a, double w, double wc, double sv, double *g)
 {
     double u = t / (a * a);
     double D = 1, base;
@@ -224,13 +226,13 @@ double blw_log_dens_lo(double t, double v, double a, double w, double sv, double
     double Lu = 0, Lw = 0, lf;
     int want = g != NULL;
     if (u < BLW_U_SWITCH) {
-        double S = small_time(u, w, BL_WIENER_EPS, want, &Lu, &Lw);
+        double S = small_time(u, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
         /* log phi - 2 log a = -log sqrt(2 pi) - w^2/(2u) + log(S a / t^1.5) */
         double y = S * a / (t * sqrt(t));
         double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(S) + log(a) - 1.5 * log(t);
         lf = base - LOG_SQRT_2PI - w * w / (2 * u) + ly;
     } else {
-        double S = large_time(u, w, BL_WIENER_EPS, want, &Lu, &Lw);
+        double S = large_time(u, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
         double y = BLW_PI * S / (a * a);
         double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(BLW_PI * S) - 2 * log(a);
         lf = base - 4.934802200544679309 * u + ly;
@@ -248,10 +250,15 @@ double blw_log_dens_lo(double t, double v, double a, double w, double sv, double
     return lf;
 }
 
+double blw_log_dens_lo(double t, double v, double a, double w, double sv, double *g)
+{
+    return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+}
+
 double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g)
 {
-    if (!upper) return blw_log_dens_lo(t, v, a, w, sv, g);
-    double lf = blw_log_dens_lo(t, -v, a, 1 - w, sv, g);
+    if (!upper) return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+    double lf = log_dens_lo_c(t, -v, a, 1 - w, w, sv, g);
     if (g) {
         g[BLW_GV] = -g[BLW_GV];
         g[BLW_GW] = -g[BLW_GW];
@@ -261,17 +268,23 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
 
 /* ---- boundary probabilities and moments --------------------------------------------------------- */
 
-double blw_log_p_lo(double v, double a, double w)
+/* wc = 1 - w exactly (see log_dens_lo_c) */
+static double log_p_lo_c(double v, double a, double w, double wc)
 {
     double va = v * a;
-    if (va == 0) return log1p(-w);
-    if (va > 0) return -2 * va * w + log(-expm1(-2 * va * (1 - w))) - log(-expm1(-2 * va));
-    return log(-expm1(2 * va * (1 - w))) - log(-expm1(2 * va));
+    if (va == 0) return log(wc);
+    if (va > 0) return -2 * va * w + log(-expm1(-2 * va * wc)) - log(-expm1(-2 * va));
+    return log(-expm1(2 * va * wc)) - log(-expm1(2 * va));
+}
+
+double blw_log_p_lo(double v, double a, double w)
+{
+    return log_p_lo_c(v, a, w, 1 - w);
 }
 
 double blw_log_p(double v, double a, double w, int upper)
 {
-    return upper ? blw_log_p_lo(-v, a, 1 - w) : blw_log_p_lo(v, a, w);
+    return upper ? log_p_lo_c(-v, a, 1 - w, w) : log_p_lo_c(v, a, w, 1 - w);
 }
 
 /* h(x) = (x coth x - 1) / x^2, even, h(0) = 1/3. */
@@ -286,10 +299,22 @@ static double coth_h(double x)
 
 /* E[T | lower] = [a coth(va) - z' coth(v z')] / v with z' = a - z the distance to the upper
  * boundary, written as a^2 h(va) - z'^2 h(v z') so v -> 0 needs no special case. */
+static double mean_t_c(double v, double a, double wc)
+{
+    double zp = a * wc;
+    return a * a * coth_h(v * a) - zp * zp * coth_h(v * zp);
+}
+
 double blw_mean_t_lo(double v, double a, double w)
 {
-    double zp = a * (1 - w);
-    return a * a * coth_h(v * a) - zp * zp * coth_h(v * zp);
+    return mean_t_c(v, a, 1 - w);
+}
+
+/* E[T | upper](v, a, w) = E[T | lower](-v, a, 1 - w) and h is even: the distance to the far boundary
+ * is the start itself, passed without rounding. */
+double blw_mean_t(double v, double a, double w, int upper)
+{
+    return upper ? mean_t_c(v, a, w) : mean_t_c(v, a, 1 - w);
 }
 
 /* ---- public entry points ------------------------------------------------------------------------ */
@@ -387,7 +412,7 @@ static void moments_var(double a, double v, double w, double sv, double sz, int 
             for (int j = 0; j < nl; j++) {
                 double wj = w + 0.5 * sz * lx[j];
                 double pij = wi * lw[j] * exp(blw_log_p(vi, a, wj, upper) - ref);
-                double mij = upper ? blw_mean_t_lo(-vi, a, 1 - wj) : blw_mean_t_lo(vi, a, wj);
+                double mij = blw_mean_t(vi, a, wj, upper);
                 P += pij;
                 M += pij * mij;
             }
@@ -439,8 +464,7 @@ bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double *mean_r
     double m, pb = 0;
     double p0 = x[BL_CONTAMINATION];
     if (x[BL_DRIFT_SD] == 0 && x[BL_START_RANGE] == 0) {
-        m = upper ? blw_mean_t_lo(-x[BL_DRIFT], x[BL_THRESHOLD], 1 - x[BL_START])
-                  : blw_mean_t_lo(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START]);
+        m = blw_mean_t(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper);
         if (p0 > 0) pb = exp(blw_log_p(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper));
     } else {
         variability_moments(p, upper, &pb, &m);
