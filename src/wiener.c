@@ -87,7 +87,7 @@ static const double LOG_SQRT_2PI = 0.91893853320467274178;
  * at w + 2k has A^{k(k-1)/2} B^{k(k+1)/2}; so the usual case (k <= 1 plus the bound at k = 2) costs two
  * calls to exp. All factors are <= 1: nothing overflows.
  * Returns S0; fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
-static double small_time(double u, double w, double d, double eps, int want_grad, double *Lu, double *Lw)
+static double small_time(double u, double iu, double w, double d, double eps, int want_grad, double *Lu, double *Lw)
 {
     double S0, S3 = 0, Sw = 0;
     double A, B = -1; /* B computed on first use */
@@ -96,9 +96,9 @@ static double small_time(double u, double w, double d, double eps, int want_grad
     if (d < 1e-3) {
         /* Start near the far boundary: the k = 0 and k = -1 images cancel; pair them exactly
          * (numerics notes, section 1.3): w + (w-2)exp(-2d/u) without cancellation. */
-        double em = expm1(-2 * d / u);
+        double em = expm1(-2 * d * iu);
         A = 1 + em;
-        B = exp(-2 * (1 + w) / u);
+        B = exp(-2 * (1 + w) * iu);
         S0 = -em - d * (2 + em);
         double xn = w - 2, xp = w + 2;
         S0 += xp * B;
@@ -112,7 +112,7 @@ static double small_time(double u, double w, double d, double eps, int want_grad
         Ak = A * A;
         Bk = B * B;
     } else {
-        A = exp(-2 * d / u);
+        A = exp(-2 * d * iu);
         S0 = w;
         if (want_grad) {
             S3 = w * w * w;
@@ -137,7 +137,7 @@ static double small_time(double u, double w, double d, double eps, int want_grad
         }
         if (K > 50) break; /* unreachable for u < 0.25: En < exp(-400) by then */
         if (B < 0) {
-            B = exp(-2 * (1 + w) / u);
+            B = exp(-2 * (1 + w) * iu);
             Ep = B;
             Bk = B;
         }
@@ -167,7 +167,8 @@ static double large_time(double u, double w, double wc, double eps, int want_gra
 {
     double q = 4.934802200544679309 * u; /* pi^2/2 * u */
     double dmin = w < 0.5 ? w : wc;
-    double s1 = sin(BLW_PI * dmin), c1 = cos(BLW_PI * dmin);
+    double s1, c1;
+    blw_sincospi(dmin, &s1, &c1);
     if (w > 0.5) c1 = -c1; /* cos(pi w) */
     double E = exp(-q), E2 = E * E;
     double r = E2 * E; /* e_{k+1} / e_k, starting with k = 1 */
@@ -181,8 +182,9 @@ static double large_time(double u, double w, double wc, double eps, int want_gra
         double sX = 2 * c1 * sk - skm;
         double cX = 2 * c1 * ck - ckm;
         if (X * X * q >= 1) {
-            double b2 = (X * X + 0.5 * X * iq + 0.25 * iq * iq / X) * eX * s1;
-            if (b2 <= eps * S) {
+            /* [X^2 + X/(2q) + 1/(4 q^2 X)] e_X sin(pi w) <= eps S, multiplied through by X */
+            double b2X = (X * X * X + 0.5 * X * X * iq + 0.25 * iq * iq) * eX * s1;
+            if (b2X <= eps * S * X) {
                 if (!want_grad) break;
                 if (X * X * q >= 2) {
                     double b4 = (X * X * X * X + 0.5 * X * X * X * iq + 0.75 * X * iq * iq +
@@ -214,7 +216,8 @@ static double large_time(double u, double w, double wc, double eps, int want_gra
  * 1e-16 of a boundary keeps its relative precision. */
 static double log_dens_lo_c(double t, double v, double a, double w, double wc, double sv, double *g)
 {
-    double u = t / (a * a);
+    double a2 = a * a;
+    double u = t / a2;
     double D = 1, base;
     if (sv == 0) {
         base = -v * a * w - 0.5 * v * v * t;
@@ -226,14 +229,15 @@ static double log_dens_lo_c(double t, double v, double a, double w, double wc, d
     double Lu = 0, Lw = 0, lf;
     int want = g != NULL;
     if (u < BLW_U_SWITCH) {
-        double S = small_time(u, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
+        double iu = a2 / t;
+        double S = small_time(u, iu, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
         /* log phi - 2 log a = -log sqrt(2 pi) - w^2/(2u) + log(S a / t^1.5) */
         double y = S * a / (t * sqrt(t));
         double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(S) + log(a) - 1.5 * log(t);
-        lf = base - LOG_SQRT_2PI - w * w / (2 * u) + ly;
+        lf = base - LOG_SQRT_2PI - 0.5 * w * w * iu + ly;
     } else {
         double S = large_time(u, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
-        double y = BLW_PI * S / (a * a);
+        double y = BLW_PI * S / a2;
         double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(BLW_PI * S) - 2 * log(a);
         lf = base - 4.934802200544679309 * u + ly;
     }

@@ -114,7 +114,8 @@ static bl_status surv_large(double t, double v, double a, double w, double wc, d
 {
     double q = 4.934802200544679309 * t / (a * a);
     double dmin = w < 0.5 ? w : wc;
-    double s1 = sin(BLW_PI * dmin), c1 = cos(BLW_PI * dmin);
+    double s1, c1;
+    blw_sincospi(dmin, &s1, &c1);
     if (w > 0.5) c1 = -c1;
     double pi2 = BLW_PI * BLW_PI, a2 = a * a;
     double E = exp(-q), E2 = E * E;
