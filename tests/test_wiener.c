@@ -376,10 +376,40 @@ static void sincospi(void)
     check_true(ec < 1e-15, "cos(pi x) polynomial: max relative (absolute near 0.5) error %.2g (cosl)", ec);
 }
 
+/* The large-time series uses a fixed four terms (five for the gradient). Re-check the design bound at
+ * the series switch q = pi^2/8 (the worst case, u = 0.25): the tail after four terms, in units of
+ * sin(pi w), against 0.9 eps (S >= 0.9 sin(pi w)); and S/sin(pi w) >= 0.9 over w. Bounds from the
+ * numerics notes 1.3 (|sin k pi w| <= k sin pi w; first omitted term plus the tail integral). */
+static void large_time_terms(void)
+{
+    double q = BL_TEST_PI * BL_TEST_PI / 8, X = 5;
+    double tail = (X * X + X / (2 * q) + 1 / (4 * q * q * X)) * exp(-(X * X - 1) * q);
+    check_true(tail <= 0.9 * BL_WIENER_EPS, "large-time tail after 4 terms at u = 0.25: %.2g sin(pi w) <= 0.9 eps", tail);
+    double X6 = 6, tail4 = (pow(X6, 4) + pow(X6, 3) / (2 * q) + 0.75 * X6 / (q * q) + 0.375 / (q * q * q * X6)) *
+                           exp(-(X6 * X6 - 1) * q);
+    check_true(tail4 <= 1e-14, "gradient k^3 tail after 5 terms at u = 0.25: %.2g sin(pi w)", tail4);
+    double worst = 1;
+    for (int i = 1; i < 1000; i++) {
+        double w = i / 1000.0, S = 0;
+        for (int k = 1; k <= 30; k++) S += k * sin(k * BL_TEST_PI * w) * exp(-(k * k - 1) * q);
+        worst = fmin(worst, S / sin(BL_TEST_PI * w));
+    }
+    check_true(worst >= 0.9, "large-time sum >= 0.9 sin(pi w) at u = 0.25 for all w (min %.4f)", worst);
+    /* and the fixed-term density agrees with the long-double image sum just above the switch */
+    double werr = 0;
+    for (int i = 1; i < 200; i++) {
+        double w = i / 200.0, a = 1.7, t = 0.2500001 * a * a;
+        bl_wiener_params p = mk(a, 0.8, 0, w, 0);
+        werr = fmax(werr, fabs(ld(&p, t, 0) - brute_lo(t, 0.8, a, w)));
+    }
+    check_true(werr < 1e-10, "fixed four-term large-time density at u = 0.25: max relative error %.2g", werr);
+}
+
 int main(void)
 {
     gsl_set_error_handler_off();
     sincospi();
+    large_time_terms();
     reference_densities();
     reference_probabilities();
     reference_cdf_and_moments();
