@@ -110,8 +110,41 @@ static bl_status cdf_small(double t, double v, double a, double w, double wc, do
  * D = 1 + sv^2 t, m' = (v - sv^2 a w)/D, s' = sv/sqrt(D) and log C the density's drift_sd exponent, so
  * S = 2 pi C e^{-q} E[g(m' + s' x)], x ~ N(0,1), by Gauss-Hermite: g has poles only at nu = +-i k pi/a,
  * so the node count follows s' a. With dl != NULL: d log S / d(a, v, w, sv). */
+/* surv_large without drift_sd or derivatives: one pass, no tables. */
+static bl_status surv_plain(double t, double v, double a, double w, double wc, double *lS)
+{
+    double q = 4.934802200544679309 * t / (a * a);
+    double dmin = w < 0.5 ? w : wc;
+    double s1, c1;
+    blw_sincospi(dmin, &s1, &c1);
+    if (w > 0.5) c1 = -c1;
+    double va2 = v * v * a * a, pi2 = BLW_PI * BLW_PI;
+    double E = exp(-q), E2 = E * E, r = E2 * E;
+    double ek = 1, sk = s1, skm = 0, tc = 2 * c1;
+    double S = s1 / (va2 + pi2);
+    double iq2 = 0.5 / q;
+    for (int k = 1; k < 10000; k++) {
+        double X = k + 1;
+        double eX = ek * r;
+        r *= E2;
+        /* tail <= (sin(pi w)/pi^2) e_X (1 + 1/(2qX)); multiplied through by X */
+        if ((s1 / pi2) * eX * (X + iq2) <= CDF_EPS * S * X || eX == 0) {
+            if (!(S > 0)) return BL_ERR_NUMERIC;
+            *lS = log(2 * BLW_PI * S) - v * a * w - 0.5 * v * v * t - q;
+            return BL_OK;
+        }
+        double sX = tc * sk - skm;
+        S += X * sX * eX / (va2 + X * X * pi2);
+        skm = sk;
+        sk = sX;
+        ek = eX;
+    }
+    return BL_ERR_NUMERIC;
+}
+
 static bl_status surv_large(double t, double v, double a, double w, double wc, double sv, double *lS, double *dl)
 {
+    if (sv == 0 && !dl) return surv_plain(t, v, a, w, wc, lS);
     double q = 4.934802200544679309 * t / (a * a);
     double dmin = w < 0.5 ? w : wc;
     double s1, c1;
@@ -204,9 +237,11 @@ static bl_status surv_large(double t, double v, double a, double w, double wc, d
 }
 
 /* wc = 1 - w exactly (the user's start for the upper boundary) */
-static bl_status cdf_lo_c(double t, double v, double a, double w, double wc, double *log_cdf, double *log_surv)
+/* lP = log P_lo(v, a, w) when the caller has it, else NAN */
+static bl_status cdf_lo_c(double t, double v, double a, double w, double wc, double lP, double *log_cdf,
+                          double *log_surv)
 {
-    double lP = blw_log_p(-v, a, wc, 1); /* = log P_lo(v, a, w) with the complement kept exact */
+    if (isnan(lP)) lP = blw_log_p(-v, a, wc, 1); /* = log P_lo(v, a, w) with the complement kept exact */
     if (!(t > 0)) {
         *log_cdf = -INFINITY;
         if (log_surv) *log_surv = lP;
@@ -239,12 +274,19 @@ static bl_status cdf_lo_c(double t, double v, double a, double w, double wc, dou
 
 bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf, double *log_surv)
 {
-    return cdf_lo_c(t, v, a, w, 1 - w, log_cdf, log_surv);
+    return cdf_lo_c(t, v, a, w, 1 - w, NAN, log_cdf, log_surv);
 }
 
 bl_status blw_log_cdf(double t, double v, double a, double w, int upper, double *log_cdf, double *log_surv)
 {
-    return upper ? cdf_lo_c(t, -v, a, 1 - w, w, log_cdf, log_surv) : cdf_lo_c(t, v, a, w, 1 - w, log_cdf, log_surv);
+    return upper ? cdf_lo_c(t, -v, a, 1 - w, w, NAN, log_cdf, log_surv)
+                 : cdf_lo_c(t, v, a, w, 1 - w, NAN, log_cdf, log_surv);
+}
+
+/* log F at the boundary with log P(boundary) already known (saves the probability per call) */
+static bl_status log_cdf_lp(double t, double v, double a, double w, int upper, double lP, double *log_cdf)
+{
+    return upper ? cdf_lo_c(t, -v, a, 1 - w, w, lP, log_cdf, NULL) : cdf_lo_c(t, v, a, w, 1 - w, lP, log_cdf, NULL);
 }
 
 bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, double *log_cdf, double dl[3])
@@ -279,13 +321,13 @@ static bl_status surv_direct(double t, double v, double a, double w, double sv, 
 /* log F (surv = 0) or log S (surv = 1, large-time series; only for y/a^2 >= 0.25) at decision time y
  * for one start value, averaged over the drift_sd normal by Gauss-Hermite.
  * dl (optional) receives d log F (or log S) / d(a, v, w, sv). */
-static bl_status cdf_sv(double y, double v, double a, double w, double sv, int upper, int surv, double *lF,
-                        double dl[4])
+static bl_status cdf_sv(double y, double v, double a, double w, double sv, int upper, int surv, double lP,
+                        double *lF, double dl[4])
 {
     bl_status s;
     if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
     if (sv == 0) {
-        if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
+        if (!dl) return log_cdf_lp(y, v, a, w, upper, lP, lF);
         s = blw_log_cdf_grad(y, v, a, w, upper, lF, dl); /* fills dl[0..2] */
         dl[3] = 0;
         return s;
@@ -393,8 +435,9 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
      * P(boundary) and the survival difference keeps the digits. */
     int surv = lo / (a * a) >= BLW_U_SWITCH;
     double lFhi, lFlo = -INFINITY, dhi[4] = {0, 0, 0, 0}, dlo[4] = {0, 0, 0, 0};
-    bl_status s = cdf_sv(hi, v, a, w, sv, upper, surv, &lFhi, g ? dhi : NULL);
-    if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, surv, &lFlo, g ? dlo : NULL);
+    double lP = (!surv && sv == 0 && !g) ? blw_log_p(v, a, w, upper) : NAN;
+    bl_status s = cdf_sv(hi, v, a, w, sv, upper, surv, lP, &lFhi, g ? dhi : NULL);
+    if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, surv, lP, &lFlo, g ? dlo : NULL);
     if (s) return s;
     double ld = surv ? blw_logsubexp(lFlo, lFhi) : blw_logsubexp(lFhi, lFlo);
     /* A window much narrower than the CDF's own scale (ratio F/(F(hi) - F(lo)) > 1e3) would lose
