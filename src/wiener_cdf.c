@@ -110,8 +110,9 @@ static bl_status cdf_small(double t, double v, double a, double w, double wc, do
  * D = 1 + sv^2 t, m' = (v - sv^2 a w)/D, s' = sv/sqrt(D) and log C the density's drift_sd exponent, so
  * S = 2 pi C e^{-q} E[g(m' + s' x)], x ~ N(0,1), by Gauss-Hermite: g has poles only at nu = +-i k pi/a,
  * so the node count follows s' a. With dl != NULL: d log S / d(a, v, w, sv). */
-/* surv_large without drift_sd or derivatives: one pass, no tables. */
-static bl_status surv_plain(double t, double v, double a, double w, double wc, double *lS)
+/* surv_large without drift_sd or derivatives: one pass, no tables. The survival is
+ * 2 pi exp(*pf) * (*sum) with *pf = -v a w - v^2 t/2 - q. */
+static bl_status surv_plain_parts(double t, double v, double a, double w, double wc, double *pf, double *sum)
 {
     double q = 4.934802200544679309 * t / (a * a);
     double dmin = w < 0.5 ? w : wc;
@@ -130,7 +131,8 @@ static bl_status surv_plain(double t, double v, double a, double w, double wc, d
         /* tail <= (sin(pi w)/pi^2) e_X (1 + 1/(2qX)); multiplied through by X */
         if ((s1 / pi2) * eX * (X + iq2) <= CDF_EPS * S * X || eX == 0) {
             if (!(S > 0)) return BL_ERR_NUMERIC;
-            *lS = log(2 * BLW_PI * S) - v * a * w - 0.5 * v * v * t - q;
+            *pf = -v * a * w - 0.5 * v * v * t - q;
+            *sum = S;
             return BL_OK;
         }
         double sX = tc * sk - skm;
@@ -140,6 +142,14 @@ static bl_status surv_plain(double t, double v, double a, double w, double wc, d
         ek = eX;
     }
     return BL_ERR_NUMERIC;
+}
+
+static bl_status surv_plain(double t, double v, double a, double w, double wc, double *lS)
+{
+    double pf, sum;
+    bl_status s = surv_plain_parts(t, v, a, w, wc, &pf, &sum);
+    if (!s) *lS = log(2 * BLW_PI * sum) + pf;
+    return s;
 }
 
 static bl_status surv_large(double t, double v, double a, double w, double wc, double sv, double *lS, double *dl)
@@ -434,6 +444,19 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
     /* F(hi) - F(lo), or S(lo) - S(hi) when both ends are in the large-time range: there F is close to
      * P(boundary) and the survival difference keeps the digits. */
     int surv = lo / (a * a) >= BLW_U_SWITCH;
+    if (surv && sv == 0 && !g) {
+        /* S(lo) - S(hi) = 2 pi e^{pf_lo} [sum_lo - e^{pf_hi - pf_lo} sum_hi]: one log instead of four */
+        double vv = upper ? -v : v, ww = upper ? 1 - w : w, wc = upper ? w : 1 - w;
+        double pfl, sml, pfh, smh;
+        bl_status s = surv_plain_parts(lo, vv, a, ww, wc, &pfl, &sml);
+        if (!s) s = surv_plain_parts(hi, vv, a, ww, wc, &pfh, &smh);
+        if (s) return s;
+        double br = sml - exp(pfh - pfl) * smh;
+        if (!(br > 0)) br = 0;
+        if (br == 0 || sml > 1e3 * br) return dens_narrow_window(p, rt, w, upper, lf, g);
+        *lf = pfl + log(2 * BLW_PI * br / st);
+        return BL_OK;
+    }
     double lFhi, lFlo = -INFINITY, dhi[4] = {0, 0, 0, 0}, dlo[4] = {0, 0, 0, 0};
     double lP = (!surv && sv == 0 && !g) ? blw_log_p(v, a, w, upper) : NAN;
     bl_status s = cdf_sv(hi, v, a, w, sv, upper, surv, lP, &lFhi, g ? dhi : NULL);
@@ -477,7 +500,8 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
          * time in the window (the integrand's sharpest feature). */
         /* with nondecision_range the integrand is a CDF difference, smooth across the window:
          * half its middle sets the scale (verified to 1e-6 with tests/test_wiener_variability.c) */
-        double tmin = x[BL_NONDECISION_RANGE] > 0 ? 0.5 * (rt - t0) : rt - t0;
+        double stw = x[BL_NONDECISION_RANGE], lo = rt - t0 - 0.5 * stw, hi = rt - t0 + 0.5 * stw;
+        double tmin = stw > 0 ? (lo > 0 ? fmax(lo, fmin(stw, 0.5 * (rt - t0))) : hi) : rt - t0;
         if (!(tmin > 0)) tmin = 1e-3 * a * a;
         const double *gx, *gw;
         int n = blw_gl_nodes_start_range(sz, tmin / (a * a));
