@@ -609,6 +609,11 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
         }
+    if (s->power.clipping)
+        for (size_t k = 0; k < r->n_recordings; k++)
+            if (!strstr(r->recordings[k].format, "-bit PCM"))
+                bl_warnings_add(warn, "%s (%s) has no integer full scale, so power.artifacts.clipping does not apply to it",
+                                r->recordings[k].path, r->recordings[k].format);
     if (r->n_artifacts)
         bl_warnings_add(warn, "%zu of %zu windowed trials were flagged as artifacts and left out", r->n_artifacts, n_jobs);
 
