@@ -137,10 +137,15 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
     const char *path = r->recordings[rec].path;
     const char *part = t->participants[t->participant[first_row]];
     bl_error e = {0};
+    if (is_text_trace(path)) { /* parsed whole: let threads parse different CSV files at once */
+        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+    } else {
+        /* sf_open reports failures through a process-wide sf_strerror(NULL): one thread at a time */
 #ifdef _OPENMP
 #pragma omp critical(bl_trace_open)
 #endif
-    st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+    }
     if (st)
         return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
     const bl_trace_info *info = bl_trace_get_info(ts->trace);
