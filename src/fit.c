@@ -443,8 +443,8 @@ typedef struct {
 } start_result;
 
 /* The optimiser part: maximise from the given starts. best->coef must hold k values. */
-static void optimise(objective *o, gsl_rng *rng, int n_starts, const double *first, start_result *best,
-                     int *agreed, double *lls)
+static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only, const double *first,
+                     start_result *best, int *agreed, double *lls)
 {
     size_t k = o->k;
     gsl_vector *x0 = gsl_vector_alloc(k), *x = gsl_vector_alloc(k);
@@ -471,6 +471,24 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, const double *fir
         }
         size_t iters = 0;
         int simplex = 0;
+        if (simplex_only) {
+            double fs = run_simplex(o, x, &iters);
+            /* Restarted simplex: a fresh simplex escapes the collapsed ones of curved valleys. */
+            for (int round = 0; round < 5 && isfinite(fs); round++) {
+                double f2 = run_simplex(o, x, &iters);
+                if (!(fs - f2 > 1e-12)) break;
+                fs = f2;
+            }
+            double ll = isfinite(fs) ? -fs / o->inv_n : -INFINITY;
+            lls[s] = ll;
+            if (ll > best->ll) {
+                best->ll = ll;
+                best->iterations = iters;
+                best->used_simplex = 2;
+                for (size_t j = 0; j < k; j++) best->coef[j] = to_coef(&o->tr[j], gsl_vector_get(x, j));
+            }
+            continue;
+        }
         double f = run_bfgs(o, x, &iters);
         /* Fallback: derivative-free search when BFGS could not start or stalled far from a
          * stationary point, then BFGS again from where it ended. */
@@ -564,7 +582,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
     objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0};
     start_result best = {0, coef, 0, 0};
     int agreed = 0;
-    optimise(&o, rng, n_starts, start, &best, &agreed, lls);
+    optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
     if (!isfinite(best.ll)) {
         st = bl_error_set(err, BL_ERR_NUMERIC, "model '%s': the optimiser found no finite log-likelihood", m->name);
         goto fail;
@@ -573,7 +591,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
     res->log_likelihood = ll;
     res->parameters = k;
     res->trials = m->n;
-    res->diag.method = best.used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
+    res->diag.method = best.used_simplex == 2 ? "nmsimplex2" : best.used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
     res->diag.iterations = best.iterations;
     res->diag.starts = n_starts;
     res->diag.starts_agreed = agreed;
