@@ -316,7 +316,7 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
 
 /* Covariance = info^-1 by Cholesky; 0 when info is not positive definite. cond receives the
  * eigenvalue ratio of info (NAN when the eigenvalues fail). */
-static int invert_information(const double *info, size_t k, double *cov, double *cond)
+int bl_information_inverse(const double *info, size_t k, double *cov, double *cond)
 {
     double *tmp = malloc(k * k * sizeof *tmp), *ev = malloc(k * sizeof *ev);
     *cond = NAN;
@@ -609,7 +609,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
         /* Newton polishing with the observed information: each step is checked to raise the
          * likelihood, so it can only help. */
         for (int polish = 0; polish < 4; polish++) {
-            pd = observed_information(lik, m, coef, info) && invert_information(info, k, cov, &cond);
+            pd = observed_information(lik, m, coef, info) && bl_information_inverse(info, k, cov, &cond);
             if (!pd) break;
             double nd2 = 0;
             for (size_t i = 0; i < k; i++)
@@ -952,7 +952,8 @@ static void unit_set_free(unit_set *u)
 
 /* Build one model for every unit (pooled: one unit; separate: one per participant with trials). */
 static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
-                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_error *err)
+                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_warnings *warn,
+                             bl_error *err)
 {
     memset(u, 0, sizeof *u);
     size_t n_units = mode == BL_PARTICIPANTS_SEPARATE ? trials->n_participants : 1;
@@ -974,7 +975,11 @@ static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials,
                 use[i] = trials->participant[i] == p;
                 if (use[i] && !(trials->excluded && trials->excluded[i])) n_kept++;
             }
-            if (n_kept == 0) continue;
+            if (n_kept == 0) {
+                bl_warnings_add(warn, "model '%s': participant '%s' has no kept trials and is not fitted", spec->name,
+                                trials->participants[p]);
+                continue;
+            }
         }
         bl_model *m = NULL;
         st = bl_model_build(spec, trials, use, &m, err);
@@ -1161,7 +1166,7 @@ static bl_status permutation_tests(const bl_study *study, const bl_model_spec *s
                 goto done;
             }
             st = build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
-                             NULL, err);
+                             NULL, NULL, err);
             free(mem);
             if (st) goto done;
             double total = 0;
@@ -1261,7 +1266,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         }
         if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
         char **unit_names = NULL;
-        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names, err))) goto fail;
+        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names, warn, err))) goto fail;
         unit_set *u = &units[q];
         if (set->mode == BL_PARTICIPANTS_SEPARATE) {
             r->participants = calloc(u->n_units, sizeof *r->participants);
