@@ -694,19 +694,53 @@ done:
 
 static int default_starts(const bl_fit_options *opt) { return opt && opt->starts > 0 ? opt->starts : 3; }
 
+/* Estimates of intercept-only identity-link parameters within 1e-3 of the edge of their range
+ * (drift_sd, start_range, nondecision_range, contamination at 0; start at 0 or 1), listed into buf. */
+static int edge_estimates(const bl_model *m, const bl_fit_result *r, char *buf, size_t n)
+{
+    int found = 0;
+    buf[0] = '\0';
+    for (size_t j = 0; j < r->n_coef; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (ci->slope >= 0 || d->n_slopes || d->link != BL_LINK_IDENTITY) continue;
+        double b = r->coef[j].estimate;
+        int edge = 0;
+        switch (ci->param) {
+        case BL_DRIFT_SD:
+        case BL_START_RANGE:
+        case BL_NONDECISION_RANGE:
+        case BL_CONTAMINATION: edge = b < 1e-3; break;
+        case BL_START: edge = b < 1e-3 || b > 1 - 1e-3; break;
+        default: break;
+        }
+        if (!edge) continue;
+        size_t len = strlen(buf);
+        snprintf(buf + len, n - len, "%s%s%s%s (%.3g)", found ? ", " : "", bl_param_name(ci->param),
+                 ci->level[0] ? " " : "", ci->level, b);
+        found = 1;
+    }
+    return found;
+}
+
 static void warn_fit(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
 {
-    char who[512];
+    char who[512], edge[512];
     if (participant) snprintf(who, sizeof who, "model '%s', participant '%s'", m->name, participant);
     else snprintf(who, sizeof who, "model '%s'", m->name);
+    int at_edge = edge_estimates(m, r, edge, sizeof edge);
     if (!r->diag.hessian_positive_definite)
         bl_warnings_add(warn,
                         "%s: the observed information is not positive definite at the optimum; standard errors, "
-                        "z, p and intervals are not reported",
-                        who);
+                        "z, p and intervals are not reported%s%s",
+                        who, at_edge ? "; at the edge of their range: " : "", at_edge ? edge : "");
     else if (!r->converged)
-        bl_warnings_add(warn, "%s: did not converge (distance to the optimum %.3g standard errors, gradient %.3g)", who,
-                        r->diag.newton_decrement, r->diag.gradient_norm);
+        bl_warnings_add(warn, "%s: did not converge (distance to the optimum %.3g standard errors, gradient %.3g)%s%s",
+                        who, r->diag.newton_decrement, r->diag.gradient_norm,
+                        at_edge ? "; the maximum lies on the edge of the range of: " : "", at_edge ? edge : "");
+    else if (at_edge)
+        bl_warnings_add(warn, "%s: estimates at the edge of their range (Wald intervals unreliable there): %s", who,
+                        edge);
     if (r->diag.starts_agreed < r->diag.starts)
         bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
                         r->diag.starts_agreed, r->diag.starts);
