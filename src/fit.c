@@ -258,7 +258,7 @@ static double run_simplex(objective *o, gsl_vector *x, size_t *iterations)
     if (!s || !step) goto done;
     gsl_vector_set_all(step, 0.2);
     if (gsl_multimin_fminimizer_set(s, &fn, x, step) != GSL_SUCCESS) goto done;
-    for (size_t it = 0; it < 4000 * o->k; it++) {
+    for (size_t it = 0; it < 500 * o->k + 1000; it++) {
         (*iterations)++;
         if (gsl_multimin_fminimizer_iterate(s) != GSL_SUCCESS) break;
         if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(s), 1e-9) == GSL_SUCCESS) break;
