@@ -276,15 +276,9 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     bl_status s;
     if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
     if (sv == 0) {
-        double d3[3];
         if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
-        else s = blw_log_cdf_grad(y, v, a, w, upper, lF, d3);
-        if (dl) {
-            dl[0] = d3[0];
-            dl[1] = d3[1];
-            dl[2] = d3[2];
-            dl[3] = 0;
-        }
+        s = blw_log_cdf_grad(y, v, a, w, upper, lF, dl); /* fills dl[0..2] */
+        dl[3] = 0;
         return s;
     }
     const double *gx, *gw;
@@ -470,19 +464,33 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
     int nl = 1, nh = 1;
     lx = hx = &zero;
     lw = hw = &one;
-    if (sz > 0) blw_gauss_legendre(nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a)) > BLW_GL_MAX
-                                            ? BLW_GL_MAX
-                                            : 2 * blw_gl_nodes_start_range(sz, y / (a * a)),
-                                   &lx, &lw);
+    if (sz > 0) {
+        /* twice the density's rule: the CDF feeds quantiles, where accuracy matters more than speed */
+        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a));
+        if (nl > BLW_GL_MAX) nl = BLW_GL_MAX;
+        blw_gauss_legendre(nl, &lx, &lw);
+    }
     if (sv > 0) nh = blw_gauss_hermite(2 * blw_gh_nodes_drift_sd(sv, a, y), &hx, &hw);
     double S = 0;
-    for (int i = 0; i < nl; i++)
+    int large = y / (a * a) >= BLW_U_SWITCH;
+    for (int i = 0; i < nl; i++) {
+        double wi = w + 0.5 * sz * lx[i];
+        if (sv > 0 && large) {
+            /* F = P - S with S by the drift-shifted survival series and P by the same quadrature as
+             * bl_wiener_p_boundary, so CDF(inf) = P(boundary) exactly */
+            double lS;
+            bl_status s = surv_direct(y, v, a, wi, sv, upper, &lS, NULL);
+            if (s) return s;
+            S += lw[i] * (blw_p_var(v, a, wi, sv, 0, upper) - exp(lS));
+            continue;
+        }
         for (int j = 0; j < nh; j++) {
             double lF;
-            bl_status s = blw_log_cdf(y, v + sv * hx[j], a, w + 0.5 * sz * lx[i], upper, &lF, NULL);
+            bl_status s = blw_log_cdf(y, v + sv * hx[j], a, wi, upper, &lF, NULL);
             if (s) return s;
             S += lw[i] * hw[j] * exp(lF);
         }
+    }
     *F = S;
     return BL_OK;
 }
