@@ -32,6 +32,7 @@ struct bl_likelihood {
      * until the next probe round (a busy machine can make fork-join slower than one thread). */
     double time_par, time_ser;
     int probes_par, probes_ser, use_par, warmed;
+    size_t probe_interval; /* grows while one thread keeps winning: probing a losing mode costs */
     int force;            /* -1 choose by timing, 0 always serial, 1 always parallel */
     size_t next_probe;
 };
@@ -43,8 +44,9 @@ static double wall(void)
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
 }
 
-#define BL_LIK_PROBES 3        /* timed evaluations of each mode per probe round */
-#define BL_LIK_REPROBE 500     /* evaluations between probe rounds */
+#define BL_LIK_PROBES 2        /* timed evaluations of each mode per probe round */
+#define BL_LIK_REPROBE 64      /* evaluations between probe rounds (load can change quickly); x4 after
+                                  each round one thread wins, up to 4096 */
 
 bl_likelihood *bl_likelihood_create(const bl_model *m, int threads)
 {
@@ -55,6 +57,7 @@ bl_likelihood *bl_likelihood_create(const bl_model *m, int threads)
     w->n_blocks = (m->n + BL_LIK_BLOCK - 1) / BL_LIK_BLOCK;
     w->use_par = 1;
     w->force = -1;
+    w->probe_interval = BL_LIK_REPROBE;
     w->block_ll = malloc(w->n_blocks * sizeof *w->block_ll);
     w->block_grad = malloc(w->n_blocks * m->n_coef * sizeof *w->block_grad);
     w->block_bad = malloc(w->n_blocks * sizeof *w->block_bad);
@@ -191,9 +194,11 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
         }
         if (w->probes_par >= BL_LIK_PROBES && w->probes_ser >= BL_LIK_PROBES) {
             w->use_par = w->time_par < w->time_ser;
+            if (w->use_par) w->probe_interval = BL_LIK_REPROBE;
+            else if (w->probe_interval < 64 * BL_LIK_REPROBE) w->probe_interval *= 4;
             w->time_par = w->time_ser = 0;
             w->probes_par = w->probes_ser = 0;
-            w->next_probe = w->evaluations + BL_LIK_REPROBE;
+            w->next_probe = w->evaluations + w->probe_interval;
         }
     }
     double ll = 0;

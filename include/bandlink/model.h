@@ -81,7 +81,7 @@ typedef struct bl_likelihood bl_likelihood;
 BL_API bl_likelihood *bl_likelihood_create(const bl_model *m, int threads);
 BL_API void bl_likelihood_destroy(bl_likelihood *w);
 /* How trials are spread over threads: -1 (default) measures both ways on a few evaluations and
- * keeps the faster, re-measuring every 500 evaluations (fork-join can lose on a busy machine);
+ * keeps the faster, re-measuring every 64 evaluations (less often while one thread keeps winning) (fork-join can lose on a busy machine);
  * 0 always one thread; 1 always `threads` threads (even below 1,024 trials). Results are the same. */
 BL_API void bl_likelihood_set_parallel(bl_likelihood *w, int mode);
 /* Total log-likelihood at `coef` (n_coef values); `grad` (may be NULL) receives d/dcoef. Returns
