@@ -1278,52 +1278,100 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         goto fail;
     }
     set->n_models = n_sel;
-    size_t steps_total = n_sel, steps = 0;
     int nondecision_note = 0;
+    /* 1. Designs of every model (and participant), checked before anything is fitted. */
+    char ***unit_names = calloc(n_sel ? n_sel : 1, sizeof *unit_names);
+    if (!unit_names) goto nomem;
     for (size_t q = 0; q < n_sel; q++) {
         const bl_model_spec *spec = &study->models[sel[q]];
         bl_model_result *r = &set->models[q];
         r->mode = set->mode;
         r->nested = -1;
         r->n_rows = trials->n;
-        if (!(r->name = dup_str(spec->name)) || (spec->extends && !(r->extends = dup_str(spec->extends)))) goto nomem;
+        if (!(r->name = dup_str(spec->name)) || (spec->extends && !(r->extends = dup_str(spec->extends)))) goto nomem_names;
         r->used = calloc(trials->n ? trials->n : 1, 1);
         r->predicted = calloc(trials->n ? trials->n : 1, sizeof *r->predicted);
         r->p_upper = malloc((trials->n ? trials->n : 1) * sizeof(double));
         r->mean_rt = malloc((trials->n ? trials->n : 1) * sizeof(double));
         r->trial_log_likelihood = malloc((trials->n ? trials->n : 1) * sizeof(double));
-        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem;
+        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem_names;
         for (size_t i = 0; i < trials->n; i++) {
             r->p_upper[i] = r->mean_rt[i] = r->trial_log_likelihood[i] = NAN;
             for (int p = 0; p < BL_NPARAM; p++) r->predicted[i].value[p] = NAN;
             r->predicted[i].contamination_lo = r->predicted[i].contamination_hi = NAN;
         }
-        if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
-        char **unit_names = NULL;
-        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names, warn, err))) goto fail;
-        unit_set *u = &units[q];
+        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names[q], warn, err))) goto fail_names;
         if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-            r->participants = calloc(u->n_units, sizeof *r->participants);
-            if (!r->participants) {
-                free(unit_names);
-                goto nomem;
+            r->participants = calloc(units[q].n_units, sizeof *r->participants);
+            if (!r->participants) goto nomem_names;
+            r->n_participants = units[q].n_units;
+            for (size_t i = 0; i < units[q].n_units; i++)
+                if (!(r->participants[i].participant = dup_str(unit_names[q][i]))) goto nomem_names;
+        }
+    }
+    /* 2. The fits. Several fits (models, participants) run side by side, each on one thread, with
+     * the same results as one after the other; a single fit spreads its trials over the threads. */
+    size_t n_jobs = 0;
+    for (size_t q = 0; q < n_sel; q++) n_jobs += units[q].n_units;
+    size_t *job_q = malloc((n_jobs ? n_jobs : 1) * sizeof *job_q), *job_i = malloc((n_jobs ? n_jobs : 1) * sizeof *job_i);
+    bl_status *job_st = calloc(n_jobs ? n_jobs : 1, sizeof *job_st);
+    bl_error *job_err = calloc(n_jobs ? n_jobs : 1, sizeof *job_err);
+    if (!job_q || !job_i || !job_st || !job_err) {
+        free(job_q);
+        free(job_i);
+        free(job_st);
+        free(job_err);
+        goto nomem_names;
+    }
+    for (size_t q = 0, j = 0; q < n_sel; q++)
+        for (size_t i = 0; i < units[q].n_units; i++, j++) {
+            job_q[j] = q;
+            job_i[j] = i;
+        }
+    size_t jobs_done = 0;
+    int nt = 1;
+#ifdef _OPENMP
+    nt = opt.threads > 0 ? opt.threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (n_jobs > 1 && nt > 1)
+#endif
+    for (size_t j = 0; j < n_jobs; j++) {
+        size_t q = job_q[j], i = job_i[j];
+        bl_model_result *r = &set->models[q];
+        bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
+        char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
+        fr->participant = NULL;
+        job_st[j] = fit_core(units[q].models[i], units[q].liks[i], &opt, opt.starts, NULL, 1, fr, units[q].coef[i],
+                             &job_err[j]);
+        fr->participant = keep;
+        if (opt.progress) {
+#ifdef _OPENMP
+#pragma omp critical(bl_fit_progress)
+#endif
+            {
+                jobs_done++;
+                opt.progress(opt.progress_user, r->name, jobs_done, n_jobs);
             }
         }
+    }
+    for (size_t j = 0; j < n_jobs && !st; j++)
+        if (job_st[j]) {
+            st = job_st[j];
+            if (err) *err = job_err[j];
+        }
+    free(job_q);
+    free(job_i);
+    free(job_st);
+    free(job_err);
+    if (st) goto fail_names;
+    /* 3. In model order: warnings, predictions, totals, group summaries, permutation tests. */
+    for (size_t q = 0; q < n_sel; q++) {
+        const bl_model_spec *spec = &study->models[sel[q]];
+        bl_model_result *r = &set->models[q];
+        unit_set *u = &units[q];
         r->converged = 1;
         for (size_t i = 0; i < u->n_units; i++) {
             bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
-            st = fit_core(u->models[i], u->liks[i], &opt, opt.starts, NULL, 1, fr, u->coef[i], err);
-            if (st) {
-                free(unit_names);
-                goto fail;
-            }
-            if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-                r->n_participants = i + 1;
-                if (!(fr->participant = dup_str(unit_names[i]))) {
-                    free(unit_names);
-                    goto nomem;
-                }
-            }
             warn_fit(u->models[i], fr->participant, fr, warn);
             r->log_likelihood += fr->log_likelihood;
             r->parameters += fr->parameters;
@@ -1331,7 +1379,6 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             r->converged = r->converged && fr->converged;
             fill_predictions(r, u->models[i], u->coef[i], u->liks[i]);
         }
-        free(unit_names);
         if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
             nondecision_note = 1;
         r->aic = 2.0 * (double)r->parameters - 2.0 * r->log_likelihood;
@@ -1351,16 +1398,18 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
                 f->diag.evaluations += r->participants[i].diag.evaluations;
                 f->diag.iterations += r->participants[i].diag.iterations;
                 f->diag.seconds += r->participants[i].diag.seconds;
+                f->diag.starts += r->participants[i].diag.starts;
+                f->diag.starts_agreed += r->participants[i].diag.starts_agreed;
             }
             f->diag.hessian_positive_definite = 1;
             for (size_t i = 0; i < r->n_participants; i++)
                 f->diag.hessian_positive_definite &= r->participants[i].diag.hessian_positive_definite;
-            if ((st = group_summary(r, err))) goto fail;
+            if ((st = group_summary(r, err))) goto fail_names;
         }
-        steps++;
-        if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
-        if ((st = permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail;
+        if ((st = permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail_names;
     }
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
     if (nondecision_note)
         bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
                               "the fastest RT (see docs/models.md)");
@@ -1383,6 +1432,12 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     free(sel);
     *out = set;
     return BL_OK;
+nomem_names:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+fail_names:
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
+    goto fail;
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
 fail:
