@@ -1,5 +1,5 @@
-/* Maximum-likelihood fitting of compiled models, inference, separate-participant fits and group
- * summaries.
+/* Maximum-likelihood fitting of compiled models, inference, and the fits of a study (pooled or one
+ * per participant; group summaries and permutation tests are in compare.c).
  *
  * Optimiser: GSL's BFGS (vector_bfgs2: Fletcher, Practical Methods of Optimization, 2nd ed., 1987,
  * algorithms 2.6.2 and 2.6.4) on the analytic gradient, in an unconstrained parameterisation where one
@@ -12,9 +12,8 @@
  * observed information.
  * Inference: observed information from central differences of the analytic gradient, symmetrised,
  * inverted by Cholesky (LAPACKE dpotrf/dpotri); Wald SE, z, p and 95% intervals.
- * Group summary: one-sample t-test across participants, and the DerSimonian & Laird (1986,
- * Controlled Clinical Trials 7:177-188) random-effects estimate with its between-participant variance.
  */
+#include "fit_internal.h"
 #include "model_internal.h"
 
 #include "bandlink/fit.h"
@@ -344,7 +343,7 @@ int bl_information_inverse(const double *info, size_t k, double *cov, double *co
 
 /* ---- one fit --------------------------------------------------------------------------------- */
 
-static unsigned long mix_seed(unsigned long seed, const char *text, unsigned long extra)
+unsigned long bl_fit_mix_seed(unsigned long seed, const char *text, unsigned long extra)
 {
     /* FNV-1a over the text, folded with the seed: each model gets its own reproducible stream. */
     unsigned long long h = 1469598103934665603ULL ^ (unsigned long long)seed;
@@ -552,7 +551,7 @@ void bl_fit_result_clear(bl_fit_result *res)
 
 /* Fit with an existing likelihood workspace. With infer == 0 only the maximum is found (used by
  * permutation refits). */
-static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
+bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                           const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
 {
     double t_start = now_seconds();
@@ -567,7 +566,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     memset(res, 0, sizeof *res);
     if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !cache_x || !cache_g || !rng) goto nomem;
-    gsl_rng_set(rng, mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
+    gsl_rng_set(rng, bl_fit_mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
     if ((st = plan_fit(m, tr, start, err))) goto fail;
     if (first) {
         /* A given start (e.g. the observed fit for a permutation refit) replaces the EZ start when it
@@ -692,7 +691,7 @@ done:
     return st;
 }
 
-static int default_starts(const bl_fit_options *opt) { return opt && opt->starts > 0 ? opt->starts : 3; }
+int bl_fit_default_starts(const bl_fit_options *opt) { return opt && opt->starts > 0 ? opt->starts : 3; }
 
 /* Estimates of intercept-only identity-link parameters within 1e-3 of the edge of their range
  * (drift_sd, start_range, nondecision_range, contamination at 0; start at 0 or 1), listed into buf. */
@@ -751,7 +750,7 @@ bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const doubl
 {
     bl_likelihood *lik = bl_likelihood_create(m, opt ? opt->threads : 0);
     if (!lik) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);
-    bl_status st = fit_core(m, lik, opt, default_starts(opt), start, 1, res, NULL, err);
+    bl_status st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
     if (!st) warn_fit(m, NULL, res, warn);
     bl_likelihood_destroy(lik);
     return st;
@@ -824,154 +823,8 @@ void bl_fit_set_destroy(bl_fit_set *set)
     free(set);
 }
 
-/* Group summary over participants (separate mode). */
-static bl_status group_summary(bl_model_result *r, bl_error *err)
-{
-    size_t cap = 0;
-    for (size_t i = 0; i < r->n_participants; i++) cap += r->participants[i].n_coef;
-    r->group = calloc(cap ? cap : 1, sizeof *r->group);
-    double *y = malloc((r->n_participants + 1) * sizeof *y), *v = malloc((r->n_participants + 1) * sizeof *v);
-    if (!r->group || !y || !v) {
-        free(y);
-        free(v);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-    }
-    size_t ng = 0;
-    for (size_t i = 0; i < r->n_participants; i++)
-        for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-            const bl_coefficient *c = &r->participants[i].coef[j];
-            size_t g;
-            for (g = 0; g < ng; g++)
-                if (r->group[g].param == c->param && !strcmp(r->group[g].term, c->term) &&
-                    !strcmp(r->group[g].level, c->level))
-                    break;
-            if (g < ng) continue;
-            bl_group_coefficient *gc = &r->group[ng++];
-            gc->param = c->param;
-            gc->parameter = c->parameter;
-            gc->term = dup_str(c->term);
-            gc->level = dup_str(c->level);
-            if (!gc->term || !gc->level) {
-                free(y);
-                free(v);
-                r->n_group = ng;
-                return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-            }
-        }
-    r->n_group = ng;
-    for (size_t g = 0; g < ng; g++) {
-        bl_group_coefficient *gc = &r->group[g];
-        size_t n = 0, nw = 0;
-        double sum = 0;
-        for (size_t i = 0; i < r->n_participants; i++)
-            for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-                const bl_coefficient *c = &r->participants[i].coef[j];
-                if (c->param != gc->param || strcmp(c->term, gc->term) || strcmp(c->level, gc->level)) continue;
-                sum += c->estimate;
-                if (isfinite(c->se) && c->se > 0) {
-                    y[nw] = c->estimate;
-                    v[nw] = c->se * c->se;
-                    nw++;
-                }
-                n++;
-            }
-        gc->n = n;
-        gc->mean = sum / (double)n;
-        double ss = 0;
-        for (size_t i = 0; i < r->n_participants; i++)
-            for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-                const bl_coefficient *c = &r->participants[i].coef[j];
-                if (c->param == gc->param && !strcmp(c->term, gc->term) && !strcmp(c->level, gc->level))
-                    ss += (c->estimate - gc->mean) * (c->estimate - gc->mean);
-            }
-        gc->sd = gc->t = gc->df = gc->p_t = NAN;
-        if (n >= 2) {
-            gc->sd = sqrt(ss / (double)(n - 1));
-            gc->df = (double)(n - 1);
-            gc->t = gc->mean / (gc->sd / sqrt((double)n));
-            gc->p_t = isfinite(gc->t) ? 2 * gsl_cdf_tdist_Q(fabs(gc->t), gc->df) : NAN;
-        }
-        /* DerSimonian & Laird (1986): moment estimate of tau^2 from Cochran's Q. */
-        gc->n_with_se = nw;
-        gc->re_estimate = gc->re_se = gc->re_ci_low = gc->re_ci_high = gc->re_z = gc->re_p = NAN;
-        gc->tau2 = gc->q = NAN;
-        if (nw >= 1) {
-            double sw = 0, sw2 = 0, swy = 0;
-            for (size_t i = 0; i < nw; i++) {
-                double w = 1 / v[i];
-                sw += w;
-                sw2 += w * w;
-                swy += w * y[i];
-            }
-            double yf = swy / sw, q = 0;
-            for (size_t i = 0; i < nw; i++) q += (y[i] - yf) * (y[i] - yf) / v[i];
-            double tau2 = 0;
-            if (nw >= 2) tau2 = fmax(0.0, (q - (double)(nw - 1)) / (sw - sw2 / sw));
-            double sws = 0, swsy = 0;
-            for (size_t i = 0; i < nw; i++) {
-                double w = 1 / (v[i] + tau2);
-                sws += w;
-                swsy += w * y[i];
-            }
-            gc->q = q;
-            gc->tau2 = tau2;
-            gc->re_estimate = swsy / sws;
-            gc->re_se = sqrt(1 / sws);
-            gc->re_z = gc->re_estimate / gc->re_se;
-            gc->re_p = 2 * gsl_cdf_ugaussian_Q(fabs(gc->re_z));
-            gc->re_ci_low = gc->re_estimate - Z975 * gc->re_se;
-            gc->re_ci_high = gc->re_estimate + Z975 * gc->re_se;
-        }
-    }
-    free(y);
-    free(v);
-    /* The model-level coefficients in separate mode are the random-effects estimates. */
-    bl_fit_result *f = &r->fit;
-    f->n_coef = ng;
-    f->coef = calloc(ng ? ng : 1, sizeof *f->coef);
-    if (!f->coef) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-    for (size_t g = 0; g < ng; g++) {
-        bl_coefficient *c = &f->coef[g];
-        const bl_group_coefficient *gc = &r->group[g];
-        c->param = gc->param;
-        c->parameter = gc->parameter;
-        c->term = dup_str(gc->term);
-        c->level = dup_str(gc->level);
-        if (!c->term || !c->level) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-        c->estimate = gc->re_estimate;
-        c->se = gc->re_se;
-        c->z = gc->re_z;
-        c->p = gc->re_p;
-        c->ci_low = gc->re_ci_low;
-        c->ci_high = gc->re_ci_high;
-    }
-    return BL_OK;
-}
 
-/* A copy of a spec without slope s of parameter p (for the permutation statistic's null model).
- * Only the slopes array of that parameter is new; everything else is shared. */
-static int spec_without_slope(const bl_model_spec *spec, int p, size_t s, bl_model_spec *out, bl_slope_spec **mem)
-{
-    *out = *spec;
-    size_t n = spec->param[p].n_slopes;
-    *mem = malloc((n ? n : 1) * sizeof **mem);
-    if (!*mem) return 0;
-    size_t w = 0;
-    for (size_t i = 0; i < n; i++)
-        if (i != s) (*mem)[w++] = spec->param[p].slopes[i];
-    out->param[p].slopes = *mem;
-    out->param[p].n_slopes = w;
-    return 1;
-}
-
-typedef struct {
-    size_t n_units;
-    bl_model **models;     /* per unit */
-    bl_likelihood **liks;
-    double **coef;
-} unit_set;
-
-static void unit_set_free(unit_set *u)
+void bl_unit_set_free(bl_unit_set *u)
 {
     for (size_t i = 0; i < u->n_units; i++) {
         bl_likelihood_destroy(u->liks ? u->liks[i] : NULL);
@@ -985,8 +838,8 @@ static void unit_set_free(unit_set *u)
 }
 
 /* Build one model for every unit (pooled: one unit; separate: one per participant with trials). */
-static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
-                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_warnings *warn,
+bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
+                             const bl_fit_options *opt, bl_unit_set *u, char ***unit_names, bl_warnings *warn,
                              bl_error *err)
 {
     memset(u, 0, sizeof *u);
@@ -1039,193 +892,12 @@ static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials,
 done:
     free(use);
     if (st) {
-        unit_set_free(u);
+        bl_unit_set_free(u);
         if (unit_names) {
             free(*unit_names);
             *unit_names = NULL;
         }
     }
-    return st;
-}
-
-/* Maximum log-likelihood summed over units, refitted from warm starts without inference. */
-static bl_status refit_units(unit_set *u, const bl_fit_options *opt, double *ll_total, bl_error *err)
-{
-    double total = 0;
-    for (size_t i = 0; i < u->n_units; i++) {
-        bl_fit_result r;
-        double *c = malloc(u->models[i]->n_coef * sizeof *c);
-        if (!c) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        bl_status st = fit_core(u->models[i], u->liks[i], opt, 1, u->coef[i], 0, &r, c, err);
-        if (st) {
-            free(c);
-            return st;
-        }
-        total += r.log_likelihood;
-        bl_fit_result_clear(&r);
-        free(c);
-    }
-    *ll_total = total;
-    return BL_OK;
-}
-
-/* The refits of one slope's permutation test. Permutation b shuffles with its own generator seeded
- * from (seed, model, parameter, slope, b), so the refits can run on several threads (each with its
- * own copy of the designs and a one-thread likelihood) and still give the same count. */
-static bl_status run_permutations(const unit_set *full, size_t **cells, const bl_fit_options *opt,
-                                  const bl_model_result *r, int p, size_t s, size_t *exceed_out, bl_error *err)
-{
-    size_t n_perm = opt->permutations, exceed = 0, done_count = 0;
-    bl_status st_all = BL_OK;
-    bl_error err_all = {0};
-    int nt = 1;
-#ifdef _OPENMP
-    nt = opt->threads > 0 ? opt->threads : omp_get_max_threads();
-    if (nt < 1) nt = 1;
-    if ((size_t)nt > n_perm) nt = n_perm > 0 ? (int)n_perm : 1;
-#pragma omp parallel num_threads(nt) reduction(+ : exceed)
-#endif
-    {
-        bl_fit_options one = *opt;
-        one.threads = 1;
-        one.progress = NULL;
-        unit_set mine = {0};
-        gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-        int ok = rng != NULL;
-        mine.n_units = full->n_units;
-        mine.models = calloc(full->n_units, sizeof *mine.models);
-        mine.liks = calloc(full->n_units, sizeof *mine.liks);
-        mine.coef = calloc(full->n_units, sizeof *mine.coef);
-        ok = ok && mine.models && mine.liks && mine.coef;
-        for (size_t i = 0; ok && i < full->n_units; i++) {
-            mine.models[i] = bl_model_copy(full->models[i]);
-            mine.liks[i] = mine.models[i] ? bl_likelihood_create(mine.models[i], 1) : NULL;
-            mine.coef[i] = malloc(full->models[i]->n_coef * sizeof(double));
-            ok = mine.liks[i] && mine.coef[i];
-            if (ok) memcpy(mine.coef[i], full->coef[i], full->models[i]->n_coef * sizeof(double));
-        }
-        if (!ok) {
-#ifdef _OPENMP
-#pragma omp critical(bl_perm_error)
-#endif
-            if (!st_all) st_all = bl_error_set(&err_all, BL_ERR_NOMEM, "out of memory in the permutation test");
-        }
-#ifdef _OPENMP
-#pragma omp for schedule(dynamic, 1)
-#endif
-        for (size_t b = 0; b < n_perm; b++) {
-            if (!ok) continue;
-            bl_error e = {0};
-            bl_status st = BL_OK;
-            gsl_rng_set(rng, mix_seed(opt->seed, r->name, (unsigned long)p * 1000003UL + (unsigned long)s * 7919UL +
-                                                               (unsigned long)b * 2654435761UL));
-            for (size_t i = 0; !st && i < mine.n_units; i++)
-                st = bl_model_permute_slope(mine.models[i], p, s, cells[i], rng, &e);
-            double ll_perm = -INFINITY;
-            if (!st) st = refit_units(&mine, &one, &ll_perm, &e);
-            if (st) {
-#ifdef _OPENMP
-#pragma omp critical(bl_perm_error)
-#endif
-                if (!st_all) {
-                    st_all = st;
-                    err_all = e;
-                }
-                continue;
-            }
-            /* Ties count as reaching the observed value (a tolerance for optimiser noise). */
-            if (ll_perm >= r->log_likelihood - 1e-6) exceed++;
-            if (opt->progress) {
-#ifdef _OPENMP
-#pragma omp critical(bl_perm_progress)
-#endif
-                {
-                    done_count++;
-                    char stage[256];
-                    snprintf(stage, sizeof stage, "%s: permutations of the %s slope on '%s'", r->name,
-                             bl_param_name(p), full->models[0]->par[p].slopes[s].regressor);
-                    opt->progress(opt->progress_user, stage, done_count, n_perm);
-                }
-            }
-        }
-        gsl_rng_free(rng);
-        unit_set_free(&mine);
-    }
-    if (st_all) {
-        if (err) *err = err_all;
-        return st_all;
-    }
-    *exceed_out = exceed;
-    return BL_OK;
-}
-
-static bl_status permutation_tests(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
-                                   const bl_fit_options *opt, unit_set *full, bl_model_result *r, bl_error *err)
-{
-    size_t n_tests = 0;
-    for (int p = 0; p < BL_NPARAM; p++) n_tests += spec->param[p].is_fixed ? 0 : spec->param[p].n_slopes;
-    if (n_tests == 0 || opt->permutations == 0) return BL_OK;
-    r->permutation = calloc(n_tests, sizeof *r->permutation);
-    if (!r->permutation) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-    bl_status st = BL_OK;
-    size_t **cells = calloc(full->n_units, sizeof *cells);
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!cells || !rng) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        goto done;
-    }
-    for (size_t i = 0; i < full->n_units; i++) {
-        size_t nc;
-        if ((st = bl_model_condition_cells(full->models[i], trials, &cells[i], &nc, err))) goto done;
-    }
-    size_t t = 0;
-    for (int p = 0; p < BL_NPARAM; p++) {
-        if (spec->param[p].is_fixed) continue;
-        for (size_t s = 0; s < spec->param[p].n_slopes; s++, t++) {
-            bl_permutation_test *pt = &r->permutation[t];
-            r->n_permutation = t + 1;
-            pt->param = p;
-            pt->parameter = bl_param_name(p);
-            if (!(pt->regressor = dup_str(spec->param[p].slopes[s].regressor))) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-                goto done;
-            }
-            /* Null model: the same model without this slope. */
-            bl_model_spec reduced;
-            bl_slope_spec *mem = NULL;
-            unit_set red;
-            double ll_red = NAN;
-            if (!spec_without_slope(spec, p, s, &reduced, &mem)) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-                goto done;
-            }
-            st = build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
-                             NULL, NULL, err);
-            free(mem);
-            if (st) goto done;
-            double total = 0;
-            for (size_t i = 0; i < red.n_units && !st; i++) {
-                bl_fit_result fr;
-                st = fit_core(red.models[i], red.liks[i], opt, default_starts(opt), NULL, 0, &fr, NULL, err);
-                if (!st) total += fr.log_likelihood;
-                bl_fit_result_clear(&fr);
-            }
-            unit_set_free(&red);
-            if (st) goto done;
-            ll_red = total;
-            pt->statistic = 2 * (r->log_likelihood - ll_red);
-            size_t exceed = 0;
-            if ((st = run_permutations(full, cells, opt, r, p, s, &exceed, err))) goto done;
-            pt->permutations = opt->permutations;
-            pt->exceed = exceed;
-            pt->p = (1.0 + (double)exceed) / (1.0 + (double)opt->permutations);
-        }
-    }
-done:
-    if (cells)
-        for (size_t i = 0; i < full->n_units; i++) free(cells[i]);
-    free(cells);
-    gsl_rng_free(rng);
     return st;
 }
 
@@ -1254,7 +926,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     }
     bl_fit_set *set = calloc(1, sizeof *set);
     size_t *sel = calloc(study->n_models ? study->n_models : 1, sizeof *sel);
-    unit_set *units = calloc(study->n_models ? study->n_models : 1, sizeof *units);
+    bl_unit_set *units = calloc(study->n_models ? study->n_models : 1, sizeof *units);
     if (!set || !sel || !units) {
         free(set);
         free(sel);
@@ -1300,7 +972,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             for (int p = 0; p < BL_NPARAM; p++) r->predicted[i].value[p] = NAN;
             r->predicted[i].contamination_lo = r->predicted[i].contamination_hi = NAN;
         }
-        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names[q], warn, err))) goto fail_names;
+        if ((st = bl_build_units(spec, trials, set->mode, &opt, &units[q], &unit_names[q], warn, err))) goto fail_names;
         if (set->mode == BL_PARTICIPANTS_SEPARATE) {
             r->participants = calloc(units[q].n_units, sizeof *r->participants);
             if (!r->participants) goto nomem_names;
@@ -1341,7 +1013,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
         char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
         fr->participant = NULL;
-        job_st[j] = fit_core(units[q].models[i], units[q].liks[i], &opt, opt.starts, NULL, 1, fr, units[q].coef[i],
+        job_st[j] = bl_fit_core(units[q].models[i], units[q].liks[i], &opt, opt.starts, NULL, 1, fr, units[q].coef[i],
                              &job_err[j]);
         fr->participant = keep;
         if (opt.progress) {
@@ -1368,7 +1040,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     for (size_t q = 0; q < n_sel; q++) {
         const bl_model_spec *spec = &study->models[sel[q]];
         bl_model_result *r = &set->models[q];
-        unit_set *u = &units[q];
+        bl_unit_set *u = &units[q];
         r->converged = 1;
         for (size_t i = 0; i < u->n_units; i++) {
             bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
@@ -1404,9 +1076,9 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             f->diag.hessian_positive_definite = 1;
             for (size_t i = 0; i < r->n_participants; i++)
                 f->diag.hessian_positive_definite &= r->participants[i].diag.hessian_positive_definite;
-            if ((st = group_summary(r, err))) goto fail_names;
+            if ((st = bl_group_summary(r, err))) goto fail_names;
         }
-        if ((st = permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail_names;
+        if ((st = bl_permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail_names;
     }
     for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
     free(unit_names);
@@ -1427,7 +1099,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         r->nested = nested && set->models[b].parameters < r->parameters;
     }
     if ((st = bl_compare_models(set, err))) goto fail;
-    for (size_t q = 0; q < n_sel; q++) unit_set_free(&units[q]);
+    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
     free(units);
     free(sel);
     *out = set;
@@ -1441,7 +1113,7 @@ fail_names:
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
 fail:
-    for (size_t q = 0; q < n_sel; q++) unit_set_free(&units[q]);
+    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
     free(units);
     free(sel);
     bl_fit_set_destroy(set);
