@@ -103,6 +103,7 @@ int main(int argc, char **argv)
             for (int b = 0; b < 32; b++) xs[b] = b * r;
         }
         us_region = (now() - t0) / regions * 1e6;
+        sink += xs[31];
     }
 #endif
     printf("control: an empty 2-thread parallel region costs %.1f us (one likelihood evaluation: %.0f us of work)\n",
