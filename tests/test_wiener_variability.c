@@ -156,6 +156,20 @@ static void nondecision_range(void)
                           "nondecision_range %g (drift_sd %g): CDF difference = GSL qags over t0', rt %g %s", s[4], s[5],
                           rts[k], up ? "upper" : "lower");
             }
+    /* narrow windows (down to 1e-9 s): no digits lost to the CDF difference */
+    double sts[] = {1e-3, 1e-5, 1e-7, 1e-9};
+    for (int i = 0; i < 4; i++)
+        for (int up = 0; up < 2; up++) {
+            double st = sts[i];
+            tctx c = {mk(1.2, 1, 0.3, 0.45, i % 2 ? 0.7 : 0, 0, st), 0.33 + 0.5 * i, up};
+            gsl_function F = {over_t0, &c};
+            double r, e;
+            /* divide by the window as represented (0.3 +- st/2 rounds at 1e-17 absolute) */
+            double lo = 0.3 - st / 2, hi = 0.3 + st / 2;
+            gsl_integration_qags(&F, lo, hi, 0, 1e-13, 1000, ws, &r, &e);
+            check_rel(exp(ld(&c.p, c.rt, up)), r / (hi - lo), 1e-10, "nondecision_range %g s: density at rt %g (%s) keeps its digits",
+                      st, c.rt, up ? "upper" : "lower");
+        }
     gsl_integration_workspace_free(ws);
 }
 
@@ -328,7 +342,8 @@ static void cdf_quantiles(void)
  * central differences; tolerance 1e-5 relative (the CDF and quadrature carry ~1e-10 noise). */
 static void full_gradient(void)
 {
-    bl_wiener_params set[6];
+    bl_wiener_params set[7];
+    set[6] = mk(1.3, 0.8, 0.3, 0.5, 0.4, 0, 1e-3); /* narrow window: density average path */
     set[0] = mk(1.2, 1, 0.3, 0.45, 0, 0.3, 0);
     set[1] = mk(1.2, -1, 0.3, 0.55, 0, 0, 0.2);
     set[2] = mk(1.6, 0.7, 0.3, 0.5, 0.9, 0.2, 0.15);
@@ -344,7 +359,7 @@ static void full_gradient(void)
     double rts[] = {0.33, 0.42, 0.6, 1.1, 2.4};
     double worst = 0;
     int n = 0;
-    for (int i = 0; i < 6; i++)
+    for (int i = 0; i < 7; i++)
         for (int k = 0; k < 5; k++)
             for (int up = 0; up < 2; up++) {
                 bl_wiener_params p = set[i];
