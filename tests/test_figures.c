@@ -1,6 +1,6 @@
 /* Figures: the five files, their axis labels with units, legends, the number of series and points,
  * and determinism. XML well-formedness of the same figures is checked with python's XML 1.0 parser
- * (tests/report_reference.py). Checks of the EZ-diffusion bin estimates use the closed-form moments
+ * (tests/reference/report_reference.py). Checks of the EZ-diffusion bin estimates use the closed-form moments
  * of the Wiener first-passage time (Wagenmakers et al. 2007, eqs. 1-3: Pc, MRT and VRT for an
  * unbiased start) so that a bin generated from known parameters must return them. */
 #include "bandlink/figures.h"
