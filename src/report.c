@@ -11,6 +11,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 
 static const char CAUTION[] =
     "Research use only; not a medical device. bandlink analyses research data and its results must not be "
@@ -504,4 +505,48 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
     esc(f, CAUTION);
     fputs("</p>\n</body>\n</html>\n", f);
     return bl_outfile_commit(o, err);
+}
+
+static double now_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, const bl_study *study,
+                                  const bl_trials *trials, const bl_power_result *power, const bl_fit_set *set,
+                                  const bl_warnings *warnings, int threads, double seconds[3], bl_error *err)
+{
+    bl_goodness *g = NULL;
+    bl_figure_set *figs = NULL;
+    char *path = NULL;
+    bl_status st;
+    double t = now_seconds();
+    if (seconds) seconds[0] = seconds[1] = seconds[2] = 0;
+    if ((st = bl_goodness_compute(study, trials, set, threads, &g, err))) goto done;
+    if (!(path = bl_path_join(dir, "fit_quantiles.csv"))) goto nomem;
+    if ((st = bl_goodness_write_csv(g, path, err))) goto done;
+    free(path);
+    path = NULL;
+    if (seconds) seconds[0] = now_seconds() - t;
+    t = now_seconds();
+    if ((st = bl_figures_make(study, trials, power, set, g, &figs, err))) goto done;
+    if (!(path = bl_path_join(dir, "figures"))) goto nomem;
+    if ((st = bl_figures_write(figs, path, err))) goto done;
+    free(path);
+    path = NULL;
+    if (seconds) seconds[1] = now_seconds() - t;
+    t = now_seconds();
+    if (!(path = bl_path_join(dir, "report.html"))) goto nomem;
+    if ((st = bl_report_write(path, job, study, trials, power, set, g, figs, warnings, err))) goto done;
+    if (seconds) seconds[2] = now_seconds() - t;
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the report outputs");
+done:
+    free(path);
+    bl_figure_set_destroy(figs);
+    bl_goodness_destroy(g);
+    return st;
 }
