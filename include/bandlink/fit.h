@@ -26,7 +26,7 @@ typedef struct {
     size_t permutations;            /* refits per slope with the regressor shuffled; 0 = no test */
     const char *const *models;      /* fit only these model names (all when n_models == 0) */
     size_t n_models;
-    int starts;                     /* optimiser starts per fit; <= 0: the study's fit.starts, else 4 */
+    int starts;                     /* optimiser starts per fit; <= 0: the study's fit.starts, else 3 */
     /* Called between fits (may be NULL): stage text, steps done, steps in total. */
     void (*progress)(void *user, const char *stage, size_t done, size_t total);
     void *progress_user;
@@ -101,6 +101,8 @@ typedef struct {
 typedef struct {
     char *name;
     char *extends;                  /* NULL when the model extends none */
+    int nested;                     /* 1: nested in the model it extends (same trials, design inside
+                                       its design); 0: not nested; -1: extends none or it was not fitted */
     bl_participants_mode mode;
     /* Totals (separate: sums over participants). */
     double log_likelihood;

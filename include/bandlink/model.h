@@ -6,8 +6,7 @@
  *     eta_i = b[intercept of the level combination of `per` that trial i falls in]
  *           + sum over slopes s of b[slope s at the level combination of its `by` columns] * x_s,i
  * and the parameter is eta_i (link identity, the default) or exp(eta_i) (link log). Level
- * combinations are the ones that occur among the trials used, ordered by first appearance of each
- * column's values. Fixed parameters take their value on every trial.
+ * combinations are the ones that occur among the trials used, in order of first appearance. Fixed parameters take their value on every trial.
  *
  * Valid range. A coefficient vector is feasible when every trial's predicted parameters are valid
  * (threshold > 0, start in (0,1), nondecision >= 0, drift_sd >= 0, ...) and give every trial a
@@ -57,6 +56,12 @@ BL_API int bl_model_param_free(const bl_model *m, int param);    /* 1 when the p
 BL_API size_t bl_model_n_slopes(const bl_model *m, int param);
 /* Regressor name of slope s of a parameter. */
 BL_API const char *bl_model_slope_regressor(const bl_model *m, int param, size_t s);
+
+/* Index of the intercept coefficient of `param` that used trial k falls in (param must be free). */
+BL_API size_t bl_model_intercept_index(const bl_model *m, int param, size_t k);
+/* 1 when model a is nested in model b: same trials, and for every parameter a's design spans a
+ * subspace of b's on the same link (a fixed value counts as a constant b can take). */
+BL_API int bl_model_nested_in(const bl_model *a, const bl_model *b);
 
 /* Predicted parameters of used trial k (drift already multiplied by the trial's stimulus sign, i.e.
  * drift toward the upper boundary). Returns 1 when valid, 0 when out of range (values still set). */
