@@ -168,6 +168,7 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
         }
         t->info.is_csv = 1;
         t->info.rate = csv_rate;
+        t->info.clip_lo = t->info.clip_hi = NAN;
         snprintf(t->info.format, sizeof t->info.format, "CSV text");
         if ((st = read_csv_trace(t, err))) goto fail;
         *out = t;
@@ -193,6 +194,20 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
     t->info.channels = (size_t)si.channels;
     t->info.frames = si.frames;
     t->info.integer_pcm = is_integer_pcm(si.format);
+    t->info.clip_lo = t->info.clip_hi = NAN;
+    if (t->info.integer_pcm) {
+        int bits = 16;
+        switch (si.format & SF_FORMAT_SUBMASK) {
+        case SF_FORMAT_PCM_S8:
+        case SF_FORMAT_PCM_U8: bits = 8; break;
+        case SF_FORMAT_PCM_24: bits = 24; break;
+        case SF_FORMAT_PCM_32: bits = 32; break;
+        default: break;
+        }
+        double full = ldexp(1.0, bits - 1);
+        t->info.clip_lo = -1.0;
+        t->info.clip_hi = (full - 1.0) / full;
+    }
     describe_format(si.format, t->info.format, sizeof t->info.format);
     *out = t;
     return BL_OK;

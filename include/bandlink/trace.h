@@ -23,7 +23,9 @@ typedef struct {
     size_t channels;
     int64_t frames;         /* samples per channel */
     int is_csv;
-    int integer_pcm;        /* 1 when samples are integers normalised to +-1 (clipping is then |x| >= 1) */
+    int integer_pcm;        /* 1 when samples are integers normalised to +-1 */
+    double clip_lo, clip_hi;/* integer PCM: the normalised full-scale values (-1 and (2^(b-1)-1)/2^(b-1));
+                               NAN for float and CSV data, where full scale is unknown */
     char format[64];        /* e.g. "FLAC, 24-bit PCM", "CSV text" */
 } bl_trace_info;
 
