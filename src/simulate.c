@@ -541,7 +541,11 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
                                        "stimulus", "timing", "recording", "bursts", "truth", "study", NULL};
     bl_status st = check_keys(c, root, "", keys);
     if (st) return st;
-    if ((st = get_str(c, root, "", "name", "synthetic study", &sc->name))) return st;
+    const cJSON *nm = item(root, "name");
+    if (nm && (!cJSON_IsString(nm) || strpbrk(nm->valuestring, "\n\r")))
+        return bad(c, "name", "must be one line of text");
+    if (!(sc->name = dupstr(nm ? nm->valuestring : "synthetic study")))
+        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
     double seed;
     if ((st = get_num(c, root, "", "seed", 0, 1, 0, 4294967295.0, &seed))) return st;
     if (seed != floor(seed)) return bad(c, "seed", "%g must be a whole number", seed);
@@ -694,7 +698,7 @@ bl_status bl_scenario_parse(const char *json, const char *name, bl_scenario **ou
     *out = NULL;
     ctx c = {name ? name : "scenario", err};
     const char *end = NULL;
-    cJSON *root = cJSON_ParseWithLengthOpts(json, strlen(json), &end, 1);
+    cJSON *root = cJSON_ParseWithLengthOpts(json, strlen(json) + 1, &end, 1); /* length includes the NUL */
     if (!root) {
         size_t off = end ? (size_t)(end - json) : 0, line = 1, col = 1;
         for (size_t i = 0; i < off; i++) {
@@ -1233,7 +1237,13 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         if (st) goto done;
         if ((st = write_trials_csv(sc, tr, N, p_trials, 0.5 * (lo + hi), err))) goto done;
     }
-    if ((st = measure(p_study, opt->threads, &study, &trials, warn, err))) goto done;
+    {
+        /* Warnings of this first measurement repeat in the second one: keep those only. */
+        bl_warnings first = {0};
+        st = measure(p_study, opt->threads, &study, &trials, &first, err);
+        bl_warnings_clear(&first);
+        if (st) goto done;
+    }
     if (trials->n != N) {
         st = bl_error_set(err, BL_ERR_INTERNAL, "simulate: the study read %zu trials, %zu were written", trials->n, N);
         goto done;

@@ -51,7 +51,7 @@ h = header(r + "/power.csv")
 check(h[:2] == ["participant", "trial"] and all(c in h for c in ["theta_power", "theta", "beta_power", "beta", "artifact"])
       and all(c in h for c in ["onset", "difficulty", "context", "rt", "correct"]), "power.csv columns: %s" % h)
 check(header(r + "/comparison.csv") == ["name", "parameters", "trials", "log_likelihood", "aic", "bic", "delta_aic",
-      "delta_bic", "aic_weight", "lrt_against", "lrt_statistic", "lrt_df", "lrt_p"], "comparison.csv columns")
+      "delta_bic", "aic_weight", "lrt_against", "lrt_nested", "lrt_statistic", "lrt_df", "lrt_p"], "comparison.csv columns")
 check(header(r + "/trials.csv") == ["model", "participant", "trial", "threshold", "drift", "nondecision", "start",
       "p_upper", "mean_rt", "log_likelihood"], "trials.csv columns")
 q = header(r + "/fit_quantiles.csv")
@@ -79,10 +79,10 @@ import hashlib
 check(all(i["sha256"] == hashlib.sha256(open(i["path"], "rb").read()).hexdigest() for i in pv["inputs"]),
       "provenance SHA-256 of every input matches hashlib")
 w = pv["welch"]
-check(w["rate"] == 1000 and w["segment_samples"] == 250 and w["overlap_samples"] == 125 and w["window_samples"] == 500,
+check(w["rate"] == 1000 and w["segment_samples"] == 500 and w["overlap_samples"] == 250 and w["window_samples"] == 750,
       "provenance Welch settings: %s" % w)
 b = {x["name"]: x for x in pv["bands"]}
-check(b["theta"]["frequencies"] == [4, 8] and b["beta"]["frequencies"] == [16, 20, 24, 28],
+check(b["theta"]["frequencies"] == [4, 6, 8, 10] and b["beta"]["frequencies"] == list(range(16, 31, 2)),
       "provenance bins per band: theta %s beta %s" % (b["theta"]["frequencies"], b["beta"]["frequencies"]))
 check(pv["trials"]["total"] == 720 and pv["trials"]["kept"] + sum(pv["trials"]["excluded"].values()) == 720,
       "provenance trial counts %s" % pv["trials"])
@@ -166,7 +166,7 @@ after=$(cd "$tmp/r1" && find . -type f -exec sha256sum {} + | sort)
 [ "$before" = "$after" ] && pass "refused run left the results untouched" || fail "results changed"
 "$BANDLINK" run "$tmp/study/study.json" --out "$tmp/r1" --force --seed 8 --quiet >"$tmp/o" 2>&1; rc=$?
 [ $rc -eq 0 ] && [ ! -s "$tmp/o" ] && pass "--force --quiet: exit 0, nothing printed" || fail "--force: rc $rc $(cat "$tmp/o")"
-grep -q '"seed": 8' "$tmp/r1/fits.json" && pass "--force replaced the results" || fail "--force did not replace"
+grep -Eq '"seed":[[:space:]]*8,' "$tmp/r1/fits.json" && pass "--force replaced the results" || fail "--force did not replace"
 
 # Default output folder: the study's "output" beside the study file.
 "$BANDLINK" run "$tmp/study/study.json" --quiet --timings >"$tmp/o" 2>&1 && [ -s "$tmp/study/results/fits.json" ] \

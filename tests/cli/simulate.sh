@@ -34,7 +34,7 @@ fi
 "$BANDLINK" simulate "$scen" --out "$tmp/s3" --seed 7 --quiet && ! cmp -s "$tmp/s1/trials.csv" "$tmp/s3/trials.csv" \
     && ! cmp -s "$tmp/s1/recordings/a1.flac" "$tmp/s3/recordings/a1.flac" \
     && pass "--seed 7 gives other recordings and behaviour" || fail "--seed did not change the output"
-grep -q '"seed": 7' "$tmp/s3/truth.json" && pass "truth.json records the seed" || fail "truth.json seed"
+grep -Eq '"seed":[[:space:]]*7,' "$tmp/s3/truth.json" && pass "truth.json records the seed" || fail "truth.json seed"
 
 # No clobber without --force; --force replaces.
 before=$(cd "$tmp/s1" && find . -type f -exec sha256sum {} + | sort)
