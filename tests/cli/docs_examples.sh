@@ -4,6 +4,8 @@
 # simulated from it). Fails when an example exits non-zero.
 set -u
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
+BANDLINK=$(cd "$(dirname "$BANDLINK")" && pwd)/$(basename "$BANDLINK")
+export BANDLINK
 doc="$BL_SOURCE_ROOT/docs/cli.md"
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
