@@ -27,8 +27,33 @@ static double ln_Phi(double x)
  * F = sum_k (-1)^k [exp(-v(aw + r_k)) Phi((vt - r_k)/sqrt t) + exp(v(r_k - aw)) Phi(-(r_k + vt)/sqrt t)],
  * r_k = k a + a w (k even), (k + 1) a - a w (k odd). Terms decrease in k, so the alternating sum stops
  * at the first term below CDF_EPS times the sum. With dl != NULL also d log F / d(a, v, w). */
+/* The same series without logs of Phi: Phi from erfc directly, scaled by the exponential prefactors.
+ * Returns 0 (caller falls back to the log form) when a Phi value could underflow. */
+static int cdf_small_fast(double t, double v, double a, double w, double *lF)
+{
+    double st = sqrt(t), r0 = a * w;
+    double m = fmax(-v * (a * w + r0), v * (r0 - a * w));
+    double S = 0;
+    for (int k = 0; k < 2000; k++) {
+        double r = (k % 2 == 0) ? k * a + a * w : (k + 1) * a - a * w;
+        double y1 = (v * t - r) / st, y2 = -(r + v * t) / st;
+        if (y1 < -30 || y2 < -30) return 0;
+        double e1 = -v * (a * w + r) - m, e2 = v * (r - a * w) - m;
+        if (e1 > 700 || e2 > 700) return 0;
+        double term = 0.5 * (erfc(-y1 * BLW_SQRT1_2) * exp(e1) + erfc(-y2 * BLW_SQRT1_2) * exp(e2));
+        S += (k % 2) ? -term : term;
+        if (k >= 1 && term <= CDF_EPS * fabs(S)) {
+            if (!(S > 1e-250)) return 0;
+            *lF = m + log(S);
+            return 1;
+        }
+    }
+    return 0;
+}
+
 static bl_status cdf_small(double t, double v, double a, double w, double *lF, double *dl)
 {
+    if (!dl && cdf_small_fast(t, v, a, w, lF)) return BL_OK;
     double st = sqrt(t);
     double m = 0, S = 0, dS[3] = {0, 0, 0};
     for (int k = 0; k < 2000; k++) {
@@ -78,9 +103,11 @@ static bl_status cdf_small(double t, double v, double a, double w, double *lF, d
 }
 
 /* Large-time series for the lower-boundary survival P(T > t, lower)
- * = 2 pi exp(-vaw - v^2 t/2) sum_k k sin(k pi w) exp(-k^2 q) / (v^2 a^2 + k^2 pi^2), q = pi^2 t/(2a^2).
- * Tail after K terms <= exp(-vaw - v^2t/2) (2 sin(pi w)/pi) e^{-qX^2} (1 + 1/(2qX)), X = K + 1. */
-static bl_status surv_large(double t, double v, double a, double w, double *lS)
+ * = 2 pi exp(-vaw - v^2 t/2) sum_k k sin(k pi w) exp(-k^2 q) / (v^2 a^2 + k^2 pi^2), q = pi^2 t/(2a^2)
+ * (the Navarro-Fuss large-time density integrated term by term).
+ * Tail after K terms <= exp(-vaw - v^2t/2) (2 sin(pi w)/pi) e^{-qX^2} (1 + 1/(2qX)), X = K + 1.
+ * With dl != NULL also d log S / d(a, v, w), differentiating term by term. */
+static bl_status surv_large(double t, double v, double a, double w, double *lS, double *dl)
 {
     double q = 4.934802200544679309 * t / (a * a);
     double dmin = w < 0.5 ? w : 1 - w;
@@ -88,21 +115,45 @@ static bl_status surv_large(double t, double v, double a, double w, double *lS)
     if (w > 0.5) c1 = -c1;
     double va2 = v * v * a * a, pi2 = BLW_PI * BLW_PI;
     double E = exp(-q), E2 = E * E, r = E2 * E;
-    double ek = 1, sk = s1, skm = 0;
-    double S = s1 / (va2 + pi2);
+    double ek = 1, sk = s1, skm = 0, ck = c1, ckm = 1;
+    double den = va2 + pi2;
+    double S = s1 / den, Sa = 0, Sv = 0, Sw = 0;
+    if (dl) {
+        Sv = -S * 2 * v * a * a / den;
+        Sa = -S * 2 * v * v * a / den;
+        Sw = BLW_PI * c1 / den;
+    }
     for (int k = 1; k < 10000; k++) {
         double X = k + 1;
         double eX = ek * r;
         r *= E2;
-        double sX = 2 * c1 * sk - skm;
-        if ((s1 / pi2) * eX * (1 + 0.5 / (q * X)) <= CDF_EPS * S || eX == 0) {
+        double sX = 2 * c1 * sk - skm, cX = 2 * c1 * ck - ckm;
+        int done = (s1 / pi2) * eX * (1 + 0.5 / (q * X)) <= CDF_EPS * S || eX == 0;
+        if (done && dl) /* derivative terms carry extra factors up to X^2 (2q/a + pi + 1) */
+            done = eX == 0 || (s1 / pi2) * eX * (1 + 0.5 / (q * X)) * X * X * (1 + 2 * q / a + BLW_PI) <= CDF_EPS * S;
+        if (done) {
             if (!(S > 0)) return BL_ERR_NUMERIC;
             *lS = log(2 * BLW_PI * S) - v * a * w - 0.5 * v * v * t - q;
+            if (dl) {
+                /* log S = ... - v a w - v^2 t/2 - q + log sum; dq/da = -2q/a */
+                dl[0] = -v * w + 2 * q / a + Sa / S;
+                dl[1] = -a * w - v * t + Sv / S;
+                dl[2] = -v * a + Sw / S;
+            }
             return BL_OK;
         }
-        S += X * sX * eX / (va2 + X * X * pi2);
+        double dX = va2 + X * X * pi2;
+        double term = X * sX * eX / dX;
+        S += term;
+        if (dl) {
+            Sv += -term * 2 * v * a * a / dX;
+            Sa += term * ((X * X - 1) * 2 * q / a - 2 * v * v * a / dX);
+            Sw += X * X * BLW_PI * cX * eX / dX;
+        }
         skm = sk;
         sk = sX;
+        ckm = ck;
+        ck = cX;
         ek = eX;
     }
     return BL_ERR_NUMERIC;
@@ -123,14 +174,14 @@ bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf
         if (*log_cdf > lP) *log_cdf = lP;
         if (log_surv) {
             if (u >= 0.05) {
-                if ((s = surv_large(t, v, a, w, log_surv))) return s;
+                if ((s = surv_large(t, v, a, w, log_surv, NULL))) return s;
             } else {
                 *log_surv = blw_logsubexp(lP, *log_cdf);
             }
         }
     } else {
         double lS;
-        if ((s = surv_large(t, v, a, w, &lS))) return s;
+        if ((s = surv_large(t, v, a, w, &lS, NULL))) return s;
         if (lS > lP) lS = lP;
         *log_cdf = blw_logsubexp(lP, lS);
         if (log_surv) *log_surv = lS;
@@ -158,21 +209,38 @@ bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, do
     return s;
 }
 
+/* Survival P(T > t, boundary) by the large-time series, with d log S / d(a, v, w). */
+static bl_status surv_direct(double t, double v, double a, double w, int upper, double *lS, double dl[3])
+{
+    if (!upper) return surv_large(t, v, a, w, lS, dl);
+    bl_status s = surv_large(t, -v, a, 1 - w, lS, dl);
+    if (dl) {
+        dl[1] = -dl[1];
+        dl[2] = -dl[2];
+    }
+    return s;
+}
+
 /* ---- density with variability ------------------------------------------------------------------- */
 
-/* log F at decision time y for one start value, averaged over the drift_sd normal by Gauss-Hermite.
- * dl (optional) receives d log F / d(a, v, w, sv). */
-static bl_status cdf_sv(double y, double v, double a, double w, double sv, int upper, double *lF, double dl[4])
+/* log F (surv = 0) or log S (surv = 1, large-time series; only for y/a^2 >= 0.25) at decision time y
+ * for one start value, averaged over the drift_sd normal by Gauss-Hermite.
+ * dl (optional) receives d log F (or log S) / d(a, v, w, sv). */
+static bl_status cdf_sv(double y, double v, double a, double w, double sv, int upper, int surv, double *lF,
+                        double dl[4])
 {
     bl_status s;
     if (sv == 0) {
-        if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
         double d3[3];
-        s = blw_log_cdf_grad(y, v, a, w, upper, lF, d3);
-        dl[0] = d3[0];
-        dl[1] = d3[1];
-        dl[2] = d3[2];
-        dl[3] = 0;
+        if (surv) s = surv_direct(y, v, a, w, upper, lF, dl ? d3 : NULL);
+        else if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
+        else s = blw_log_cdf_grad(y, v, a, w, upper, lF, d3);
+        if (dl) {
+            dl[0] = d3[0];
+            dl[1] = d3[1];
+            dl[2] = d3[2];
+            dl[3] = 0;
+        }
         return s;
     }
     const double *gx, *gw;
@@ -181,7 +249,8 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     double mx = -INFINITY;
     for (int i = 0; i < n; i++) {
         double vi = v + sv * gx[i];
-        s = dl ? blw_log_cdf_grad(y, vi, a, w, upper, &lfi[i], di[i]) : blw_log_cdf(y, vi, a, w, upper, &lfi[i], NULL);
+        if (surv) s = surv_direct(y, vi, a, w, upper, &lfi[i], dl ? di[i] : NULL);
+        else s = dl ? blw_log_cdf_grad(y, vi, a, w, upper, &lfi[i], di[i]) : blw_log_cdf(y, vi, a, w, upper, &lfi[i], NULL);
         if (s) return s;
         if (lfi[i] > mx) mx = lfi[i];
     }
@@ -239,14 +308,21 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
         *lf = -INFINITY;
         return BL_OK;
     }
+    /* F(hi) - F(lo), or S(lo) - S(hi) when both ends are in the large-time range: there F is close to
+     * P(boundary) and the survival difference keeps the digits. */
+    int surv = lo / (a * a) >= BLW_U_SWITCH;
     double lFhi, lFlo = -INFINITY, dhi[4] = {0, 0, 0, 0}, dlo[4] = {0, 0, 0, 0};
-    bl_status s = cdf_sv(hi, v, a, w, sv, upper, &lFhi, g ? dhi : NULL);
-    if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, &lFlo, g ? dlo : NULL);
+    bl_status s = cdf_sv(hi, v, a, w, sv, upper, surv, &lFhi, g ? dhi : NULL);
+    if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, surv, &lFlo, g ? dlo : NULL);
     if (s) return s;
-    double ld = blw_logsubexp(lFhi, lFlo);
+    double ld = surv ? blw_logsubexp(lFlo, lFhi) : blw_logsubexp(lFhi, lFlo);
     *lf = ld - log(st);
     if (!g || ld == -INFINITY) return BL_OK;
     double rh = exp(lFhi - ld), rl = lFlo == -INFINITY ? 0 : exp(lFlo - ld);
+    if (surv) {
+        rh = -rh;
+        rl = -rl;
+    }
     static const int map[4] = {BL_THRESHOLD, BL_DRIFT, BL_START, BL_DRIFT_SD};
     for (int j = 0; j < 4; j++) g[map[j]] = rh * dhi[j] - rl * dlo[j];
     /* dF(y)/dy = f(y): d/dt0 = [f(lo) - f(hi)] / (F(hi) - F(lo)); d/dst adds the half-sum. */
@@ -263,7 +339,7 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
     if (!blw_tables_ok()) return bl_error_set(err, BL_ERR_NOMEM, "cannot build the quadrature tables");
     const double *x = p->value;
     double a = x[BL_THRESHOLD], t0 = x[BL_NONDECISION], w = x[BL_START], sz = x[BL_START_RANGE];
-    double st = x[BL_NONDECISION_RANGE], p0 = x[BL_CONTAMINATION];
+    double p0 = x[BL_CONTAMINATION];
     double lfd, gd[BL_NPARAM];
     bl_status s;
     if (sz == 0) {
@@ -271,8 +347,9 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
     } else {
         /* Gauss-Legendre over w' in [w - sz/2, w + sz/2]; node count from the earliest decision
          * time in the window (the integrand's sharpest feature). */
-        double tmin = rt - t0 - 0.5 * st;
-        if (!(tmin > 0)) tmin = rt - t0 + 0.5 * st;
+        /* with nondecision_range the integrand is a CDF difference, smooth across the window:
+         * half its middle sets the scale (verified to 1e-6 with tests/test_wiener_variability.c) */
+        double tmin = x[BL_NONDECISION_RANGE] > 0 ? 0.5 * (rt - t0) : rt - t0;
         if (!(tmin > 0)) tmin = 1e-3 * a * a;
         const double *gx, *gw;
         int n = blw_gl_nodes_start_range(sz, tmin / (a * a));
