@@ -168,29 +168,41 @@ typedef struct {
     transform *tr;
     double *coef, *grad;
     double inv_n;
+    /* The last point evaluated, with value and gradient: GSL's line search asks for f and then for
+     * the gradient at the same point, and one likelihood pass gives both. */
+    double *cache_x, *cache_g, cache_f;
+    int cache_valid;
 } objective;
 
-static void x_to_coef(const objective *o, const gsl_vector *x)
+static void evaluate_point(objective *o, const gsl_vector *x)
 {
-    for (size_t j = 0; j < o->k; j++) o->coef[j] = to_coef(&o->tr[j], gsl_vector_get(x, j));
+    int same = o->cache_valid;
+    for (size_t j = 0; same && j < o->k; j++) same = o->cache_x[j] == gsl_vector_get(x, j);
+    if (same) return;
+    for (size_t j = 0; j < o->k; j++) {
+        o->cache_x[j] = gsl_vector_get(x, j);
+        o->coef[j] = to_coef(&o->tr[j], o->cache_x[j]);
+    }
+    double ll = bl_likelihood_eval(o->lik, o->coef, o->grad);
+    o->cache_f = isfinite(ll) ? -ll * o->inv_n : GSL_POSINF;
+    for (size_t j = 0; j < o->k; j++)
+        o->cache_g[j] = isfinite(ll) ? -o->grad[j] * dcoef_dx(&o->tr[j], o->cache_x[j]) * o->inv_n : 0;
+    o->cache_valid = 1;
 }
 
 static double obj_f(const gsl_vector *x, void *params)
 {
     objective *o = params;
-    x_to_coef(o, x);
-    double ll = bl_likelihood_eval(o->lik, o->coef, NULL);
-    return isfinite(ll) ? -ll * o->inv_n : GSL_POSINF;
+    evaluate_point(o, x);
+    return o->cache_f;
 }
 
 static void obj_fdf(const gsl_vector *x, void *params, double *f, gsl_vector *g)
 {
     objective *o = params;
-    x_to_coef(o, x);
-    double ll = bl_likelihood_eval(o->lik, o->coef, o->grad);
-    *f = isfinite(ll) ? -ll * o->inv_n : GSL_POSINF;
-    for (size_t j = 0; j < o->k; j++)
-        gsl_vector_set(g, j, isfinite(ll) ? -o->grad[j] * dcoef_dx(&o->tr[j], gsl_vector_get(x, j)) * o->inv_n : 0);
+    evaluate_point(o, x);
+    *f = o->cache_f;
+    for (size_t j = 0; j < o->k; j++) gsl_vector_set(g, j, o->cache_g[j]);
 }
 
 static void obj_df(const gsl_vector *x, void *params, gsl_vector *g)
@@ -530,9 +542,10 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
     double *start = malloc(k * sizeof *start), *coef = malloc(k * sizeof *coef), *grad = malloc(k * sizeof *grad);
     double *info = NULL, *cov = NULL, *lls = calloc((size_t)n_starts + 1, sizeof *lls);
     double *wcoef = malloc(k * sizeof *wcoef), *wgrad = malloc(k * sizeof *wgrad);
+    double *cache_x = malloc(k * sizeof *cache_x), *cache_g = malloc(k * sizeof *cache_g);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     memset(res, 0, sizeof *res);
-    if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !rng) goto nomem;
+    if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !cache_x || !cache_g || !rng) goto nomem;
     gsl_rng_set(rng, mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
     if ((st = plan_fit(m, tr, start, err))) goto fail;
     if (first) {
@@ -548,7 +561,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
                           m->name);
         goto fail;
     }
-    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n};
+    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0};
     start_result best = {0, coef, 0, 0};
     int agreed = 0;
     optimise(&o, rng, n_starts, start, &best, &agreed, lls);
@@ -652,6 +665,8 @@ done:
     free(lls);
     free(wcoef);
     free(wgrad);
+    free(cache_x);
+    free(cache_g);
     gsl_rng_free(rng);
     return st;
 }

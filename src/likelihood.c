@@ -91,12 +91,10 @@ static int eval_block(const bl_model *m, const double *coef, size_t k0, size_t k
         p.contamination_lo = m->rt_lo;
         p.contamination_hi = m->rt_hi;
         if (!bl_model_params_valid(&p)) return 0;
+        /* Always the gradient routine: its value is the one the optimiser's gradient belongs to
+         * (the plain density truncates its series separately and can differ in the 11th digit). */
         double lf, gr[BL_NPARAM];
-        if (g) {
-            if (bl_wiener_log_density_grad(&p, m->rt[k], m->upper[k], &lf, gr, NULL) != BL_OK) return 0;
-        } else if (bl_wiener_log_density(&p, m->rt[k], m->upper[k], &lf, NULL) != BL_OK) {
-            return 0;
-        }
+        if (bl_wiener_log_density_grad(&p, m->rt[k], m->upper[k], &lf, gr, NULL) != BL_OK) return 0;
         if (!isfinite(lf)) return 0;
         if (trial_ll) trial_ll[k] = lf;
         ll += lf;

@@ -90,7 +90,8 @@ int main(void)
         bl_wiener_log_density(&p, t->rt[i], t->upper[i], &lf, NULL);
         want += lf;
     }
-    check_rel(ll, want, 1e-12, "total log-likelihood equals the sum of per-trial log-densities");
+    /* The engine's series tolerance is 1e-10 relative (numerics.md 1.3), so the two routines agree to that. */
+    check_rel(ll, want, 1e-10, "total log-likelihood equals the sum of per-trial log-densities");
 
     /* Predicted parameters of a trial agree with the regression too. */
     bl_wiener_params pp;
