@@ -304,6 +304,32 @@ static int rank_cmp(const void *a, const void *b)
     return p->row < q->row ? -1 : p->row > q->row;
 }
 
+/* "regressor|by1,by2": identifies a binning. Caller frees. */
+static char *binning_key(const bl_slope_spec *sl)
+{
+    size_t len = strlen(sl->regressor) + 2;
+    for (size_t i = 0; i < sl->n_by; i++) len += strlen(sl->by[i]) + 1;
+    char *key = malloc(len);
+    if (!key) return NULL;
+    strcpy(key, sl->regressor);
+    strcat(key, "|");
+    for (size_t i = 0; i < sl->n_by; i++) {
+        if (i) strcat(key, ",");
+        strcat(key, sl->by[i]);
+    }
+    return key;
+}
+
+int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope)
+{
+    char *key = binning_key(slope);
+    int found = -1;
+    for (size_t i = 0; key && i < g->n_binnings; i++)
+        if (strcmp(g->binnings[i], key) == 0) found = (int)i;
+    free(key);
+    return found;
+}
+
 static int find_col(const bl_trials *t, const char *name) { return bl_table_find(t->table, name); }
 
 /* Build condition cells and regressor bins. */
@@ -371,17 +397,8 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
             if (ps->is_fixed) continue;
             for (size_t s = 0; s < ps->n_slopes; s++) {
                 const bl_slope_spec *sl = &ps->slopes[s];
-                /* Key "regressor|by1,by2" identifies the binning. */
-                size_t len = strlen(sl->regressor) + 2;
-                for (size_t i = 0; i < sl->n_by; i++) len += strlen(sl->by[i]) + 1;
-                char *key = malloc(len);
+                char *key = binning_key(sl);
                 if (!key) goto nomem;
-                strcpy(key, sl->regressor);
-                strcat(key, "|");
-                for (size_t i = 0; i < sl->n_by; i++) {
-                    if (i) strcat(key, ",");
-                    strcat(key, sl->by[i]);
-                }
                 int dup = strlist_has(&seen_pairs, key);
                 char **nk = dup ? pair_keys : realloc(pair_keys, (n_pair_keys + 1) * sizeof *nk);
                 if (!nk || (!dup && !strlist_add(&seen_pairs, key))) {
@@ -447,6 +464,7 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
                             goto nomem;
                         }
                         ng->bin = b + 1;
+                        ng->binning = n_pair_keys - 1;
                         double sum = 0;
                         for (size_t r = r0; r < r1; r++) {
                             ng->rows[ng->n++] = items[r].row;
@@ -471,6 +489,10 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
     g->groups = gl.g;
     g->n_groups = gl.n;
     gl.g = NULL;
+    g->binnings = pair_keys;
+    g->n_binnings = n_pair_keys;
+    pair_keys = NULL;
+    n_pair_keys = 0;
     goto done;
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory building goodness-of-fit groups");
@@ -622,6 +644,8 @@ void bl_goodness_destroy(bl_goodness *g)
     if (!g) return;
     free_groups(g->groups, g->n_groups);
     free(g->rows);
+    for (size_t i = 0; i < g->n_binnings; i++) free(g->binnings[i]);
+    free(g->binnings);
     free(g);
 }
 

@@ -36,6 +36,7 @@ typedef struct {
     char *regressor;          /* NULL for a condition cell, else the binned regressor */
     int bin;                  /* 0 for a condition cell, else 1..5 (low to high regressor) */
     double regressor_low, regressor_high, regressor_mean;   /* over the bin (NAN for cells) */
+    size_t binning;           /* for bins: index into binnings (bins of one binning are contiguous) */
     size_t n;                 /* trials in the group */
     size_t *rows;             /* their table rows, in table order */
 } bl_goodness_group;
@@ -57,7 +58,12 @@ typedef struct {
     size_t n_cells;           /* groups[0 .. n_cells-1] are condition cells, the rest regressor bins */
     size_t n_rows;
     bl_goodness_row *rows;    /* model-major, then group, then upper before lower */
+    size_t n_binnings;
+    char **binnings;          /* "regressor|by1,by2" per distinct slope binning */
 } bl_goodness;
+
+/* Index of the binning used for a slope (its regressor and `by` columns), or -1. */
+BL_API int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope);
 
 /* Compute every row for every model of `set`. `threads` <= 0: OpenMP default; results do not
  * depend on it. Errors: BL_ERR_NUMERIC when a mixture quantile cannot be bracketed or solved
