@@ -32,6 +32,9 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#ifdef _OPENMP
+#include <omp.h>
+#endif
 
 /* Level combinations are labelled by joining the levels with this separator, as the fit labels them. */
 #define LEVEL_SEP ":"
@@ -1202,16 +1205,46 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         goto done;
     }
     if ((st = bl_mkdir_p(p_rec, err))) goto done;
-    for (size_t p = 0; p < sc->n_participants; p++) {
-        char name[600];
-        snprintf(name, sizeof name, "%s.%s", sc->participants[p], sc->wav ? "wav" : "flac");
-        char *path = bl_path_join(p_rec, name);
-        double secs = 0;
-        if (!path) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        else st = write_recording(sc, p, tr + p * T, T, path, seed, &secs, err);
-        free(path);
+    {
+        /* Recordings in parallel, one participant per thread: each has its own random stream, so the
+         * files do not depend on the thread count. The first failure in participant order is reported. */
+        size_t P = sc->n_participants;
+        bl_status *pst = calloc(P, sizeof *pst);
+        bl_error *perr = calloc(P, sizeof *perr);
+        double *psec = calloc(P, sizeof *psec);
+        if (!pst || !perr || !psec) {
+            free(pst);
+            free(perr);
+            free(psec);
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            goto done;
+        }
+        int nth = opt->threads > 0 ? opt->threads : 0;
+#ifdef _OPENMP
+        if (nth <= 0) nth = omp_get_max_threads();
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nth)
+#else
+        (void)nth;
+#endif
+        for (size_t p = 0; p < P; p++) {
+            char name[600];
+            snprintf(name, sizeof name, "%s.%s", sc->participants[p], sc->wav ? "wav" : "flac");
+            char *path = bl_path_join(p_rec, name);
+            if (!path) pst[p] = bl_error_set(&perr[p], BL_ERR_NOMEM, "out of memory");
+            else pst[p] = write_recording(sc, p, tr + p * T, T, path, seed, &psec[p], &perr[p]);
+            free(path);
+        }
+        for (size_t p = 0; p < P && st == BL_OK; p++) {
+            if (pst[p] != BL_OK) {
+                if (err) *err = perr[p];
+                st = pst[p];
+            }
+            seconds += psec[p];
+        }
+        free(pst);
+        free(perr);
+        free(psec);
         if (st) goto done;
-        seconds += secs;
     }
 
     /* Provisional table (every trial kept, a valid RT), so the study measures band power on exactly the
