@@ -173,6 +173,18 @@ grep -Eq '"seed":[[:space:]]*8,' "$tmp/r1/fits.json" && pass "--force replaced t
     && grep -q "^Wall time per stage" "$tmp/o" && pass "default output folder study/results; --timings with --quiet" \
     || fail "default output: $(cat "$tmp/o")"
 
+# Progress on stderr only when it is a terminal (util-linux `script` provides one), never with --quiet.
+grep -q "\[fits\]" "$tmp/err1" && fail "progress printed to a non-terminal stderr" || pass "no progress when stderr is not a terminal"
+if command -v script >/dev/null; then
+    script -qec "\"$BANDLINK\" run \"$tmp/study/study.json\" --out \"$tmp/r3\"" /dev/null >"$tmp/tty" 2>&1
+    grep -q "\[fits\]" "$tmp/tty" && grep -q "\[power\]" "$tmp/tty" && pass "progress shown on a terminal (stage names)" \
+        || fail "no progress on a terminal"
+    script -qec "\"$BANDLINK\" run \"$tmp/study/study.json\" --out \"$tmp/r4\" --quiet" /dev/null >"$tmp/tty" 2>&1
+    [ ! -s "$tmp/tty" ] && pass "--quiet on a terminal: silent" || fail "--quiet printed: $(head -c 300 "$tmp/tty")"
+else
+    echo "SKIP: no 'script' command to provide a terminal"
+fi
+
 # Usage errors.
 "$BANDLINK" run 2>"$tmp/e"; [ $? -eq 2 ] && grep -q "missing the study file" "$tmp/e" && pass "no study: exit 2" || fail "no study"
 "$BANDLINK" run "$tmp/study/study.json" --threads 0 2>"$tmp/e"; [ $? -eq 2 ] && pass "--threads 0: exit 2" || fail "--threads 0"
