@@ -385,6 +385,12 @@ static char *make_summary(const bl_fit_set *set)
     }
     if (mr->mode == BL_PARTICIPANTS_SEPARATE)
         tb_printf(&b, "  (separate fits: group random-effects estimates; per-participant values in fits.json)\n");
+    for (size_t k = 0; k < mr->n_permutation; k++) {
+        const bl_permutation_test *pt = &mr->permutation[k];
+        if (k == 0) tb_printf(&b, "Permutation tests (regressor shuffled, all levels of a slope at once):\n");
+        tb_printf(&b, "  %s ~ %s: 2 dLL = %.2f, p = %.4g (%zu of %zu refits reached it)\n", pt->parameter, pt->regressor,
+                  pt->statistic, pt->p, pt->exceed, pt->permutations);
+    }
     return tb_take(&b);
 }
 
