@@ -871,7 +871,7 @@ char *bl_study_to_json(const bl_study *s)
     cJSON *t = cJSON_AddObjectToObject(root, "trials");
     cJSON_AddStringToObject(t, "file", s->trials.file);
     cJSON_AddStringToObject(t, "participant", s->trials.participant);
-    cJSON_AddStringToObject(t, "trial", s->trials.trial);
+    if (s->trials.trial_given) cJSON_AddStringToObject(t, "trial", s->trials.trial);
     cJSON_AddStringToObject(t, "rt", s->trials.rt);
     cJSON_AddStringToObject(t, "rt_unit", s->trials.rt_in_ms ? "ms" : "s");
     cJSON_AddStringToObject(t, "response", s->trials.response);
@@ -938,7 +938,7 @@ char *bl_study_to_json(const bl_study *s)
                 for (size_t j = 0; j < ps->n_slopes; j++)
                     cJSON_AddItemToObject(so, ps->slopes[j].regressor, string_array(ps->slopes[j].by, ps->slopes[j].n_by));
             }
-            cJSON_AddStringToObject(po, "link", links[ps->link]);
+            if (ps->link != BL_LINK_DEFAULT) cJSON_AddStringToObject(po, "link", links[ps->link]);
         }
     }
     cJSON_AddStringToObject(root, "output", s->output);
