@@ -23,6 +23,7 @@ typedef struct {
     double v[3], v_slope;
     double t0;
     int stimulus;          /* 1: stimulus coding with random stimuli */
+    double v_step;         /* participant p (0-based) adds p * v_step to drift */
 } sim_truth;
 
 static const char *sim_contexts[2] __attribute__((unused)) = {"rich", "lean"};
@@ -77,7 +78,7 @@ static inline bl_trials *sim_trials(const sim_truth *tr, unsigned long seed)
         bl_wiener_params w;
         bl_wiener_params_default(&w);
         w.value[BL_THRESHOLD] = tr->a[c] + tr->a_slope[c] * theta[i];
-        double v = tr->v[d] + tr->v_slope * beta[i];
+        double v = tr->v[d] + tr->v_slope * beta[i] + (double)p * tr->v_step;
         int sign = 1;
         if (tr->stimulus) sign = gsl_rng_uniform(rng) < 0.5 ? -1 : 1;
         t->drift_sign[i] = sign;
