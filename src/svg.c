@@ -698,6 +698,14 @@ typedef struct {
     double x0, y0, x1, y1; /* plot area in pixels */
 } box_t;
 
+/* Largest font size <= the axis-label size (and >= 8) at which `s` fits in `room` pixels. */
+static int fit_font(const char *s, double room)
+{
+    int fs = FS_LABEL;
+    while (fs > 8 && text_width(s, fs) > room) fs--;
+    return fs;
+}
+
 static void render_element(FILE *f, const bl_svg_panel *p, const element *e, const scale_t *sx, const scale_t *sy,
                            box_t b)
 {
@@ -901,11 +909,16 @@ static void render_panel(FILE *f, const bl_svg *fig, int index, double ox, doubl
         const char *lab = p->ax[1].categorical ? p->ax[1].cats[i] : sy.labels[i];
         text_el(f, b.x0 - 6, map(&sy, sy.ticks[i]) + 4, FS_TICK, "end", NULL, lab);
     }
-    if (p->ax[0].label) text_el(f, (b.x0 + b.x1) / 2, oy + fig->ph - 10, FS_LABEL, "middle", NULL, p->ax[0].label);
+    if (p->ax[0].label) {
+        int fs = fit_font(p->ax[0].label, fig->pw - 8);
+        text_el(f, (b.x0 + b.x1) / 2, oy + fig->ph - 10, fs, "middle", NULL, p->ax[0].label);
+    }
     if (p->ax[1].label) {
         double x = ox + 14, y = (b.y0 + b.y1) / 2;
+        /* A long label along a short axis is set smaller rather than cut off. */
+        int fs = fit_font(p->ax[1].label, fmax(b.y1 - b.y0 + 30, 40));
         fputs("<text transform=\"translate(", f), num(f, x), fputc(',', f), num(f, y);
-        fprintf(f, ") rotate(-90)\" font-size=\"%d\" text-anchor=\"middle\">", FS_LABEL);
+        fprintf(f, ") rotate(-90)\" font-size=\"%d\" text-anchor=\"middle\">", fs);
         bl_svg_escape(f, p->ax[1].label);
         fputs("</text>\n", f);
     }
@@ -961,7 +974,11 @@ static void render_to(FILE *f, const bl_svg *fig)
     fputs("</title>\n", f);
     fputs("<rect x=\"0\" y=\"0\" width=\"", f), num(f, width), fputs("\" height=\"", f), num(f, height);
     fputs("\" fill=\"#ffffff\"/>\n", f);
-    text_el(f, (fig->cols * fig->pw) / 2, 22, FS_TITLE, "middle", "font-weight=\"bold\"", fig->title);
+    /* Centred over the panels when it fits there, else left-aligned so it is never cut off. */
+    if (text_width(fig->title, FS_TITLE) <= fig->cols * fig->pw - 16)
+        text_el(f, (fig->cols * fig->pw) / 2, 22, FS_TITLE, "middle", "font-weight=\"bold\"", fig->title);
+    else
+        text_el(f, 10, 22, FS_TITLE, NULL, "font-weight=\"bold\"", fig->title);
     for (int r = 0; r < fig->rows; r++)
         for (int c = 0; c < fig->cols; c++)
             render_panel(f, fig, r * fig->cols + c, c * fig->pw, TITLE_H + r * fig->ph);

@@ -132,7 +132,7 @@ int main(void)
         for (int k = 1; k < BL_GOODNESS_NQ; k++) check_true(q[k] > q[k - 1], "quantiles increase");
     }
     /* A boundary that is practically never reached: share ~0, quantiles NAN, no error. */
-    bl_wiener_params never = mk(3.0, 9.0, 0.2, 0.5);
+    bl_wiener_params never = mk(3.0, 12.0, 0.2, 0.5); /* P(lower) = exp(-36) ~ 2e-16 */
     check_true(bl_goodness_mixture_quantiles(&never, NULL, 1, 0, bl_goodness_probs, BL_GOODNESS_NQ, q, &share, &err) ==
                        BL_OK &&
                    share < 1e-12 && isnan(q[2]),
