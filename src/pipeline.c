@@ -17,10 +17,9 @@
 #include "bandlink/sha256.h"
 #include "bandlink/study.h"
 #include "bandlink/trials.h"
-#if __has_include("bandlink/goodness.h")
+#include "bandlink/figures.h"
 #include "bandlink/goodness.h"
-#define BL_HAVE_GOODNESS 1
-#endif
+#include "bandlink/report.h"
 
 #include <cjson/cJSON.h>
 #include <dirent.h>
@@ -526,31 +525,59 @@ static void say(const bl_run_options *opt, int stage, const char *detail, size_t
 /* Goodness of fit, figures and report (the report area's API), each timed as its own stage. */
 static bl_status run_report_stages(const bl_run_options *opt, const bl_study *study, const bl_trials *trials,
                                    const bl_power_result *pr, const bl_fit_set *set, const char *dir, double *sec,
-                                   int threads, bl_warnings *warn, bl_error *err)
+                                   int threads, unsigned long seed, const char *started, bl_warnings *warn,
+                                   bl_error *err)
 {
     bl_status st = BL_OK;
-    (void)pr;
-    (void)warn;
-    double t = now_seconds();
-#ifdef BL_HAVE_GOODNESS
     bl_goodness *g = NULL;
-    char *path = bl_path_join(dir, "fit_quantiles.csv");
+    bl_figure_set *figs = NULL;
+    char *path = NULL;
+    double t = now_seconds();
     say(opt, BL_STAGE_GOODNESS, "observed vs predicted quantiles", 0, 0);
-    if (!path) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-    st = bl_goodness_compute(study, trials, set, threads, &g, err);
-    if (!st) st = bl_goodness_write_csv(g, path, err);
+    if (!(path = bl_path_join(dir, "fit_quantiles.csv"))) goto nomem;
+    if ((st = bl_goodness_compute(study, trials, set, threads, &g, err))) goto done;
+    if ((st = bl_goodness_write_csv(g, path, err))) goto done;
     free(path);
-    bl_goodness_destroy(g);
-#else
-    (void)opt;
-    (void)study;
-    (void)trials;
-    (void)set;
-    (void)dir;
-    (void)threads;
-    (void)err;
-#endif
+    path = NULL;
     sec[BL_STAGE_GOODNESS] = now_seconds() - t;
+
+    t = now_seconds();
+    say(opt, BL_STAGE_FIGURES, "drawing", 0, 0);
+    if (!(path = bl_path_join(dir, "figures"))) goto nomem;
+    if ((st = bl_figures_make(study, trials, pr, set, g, &figs, err))) goto done;
+    if ((st = bl_figures_write(figs, path, err))) goto done;
+    free(path);
+    path = NULL;
+    sec[BL_STAGE_FIGURES] = now_seconds() - t;
+
+    t = now_seconds();
+    say(opt, BL_STAGE_REPORT, "writing report.html", 0, 0);
+    {
+        char finished[32];
+        utc_stamp(finished);
+        bl_report_job job = {0};
+        job.version = BL_VERSION_STRING;
+        job.study_path = opt->study_path;
+        job.started = started;
+        job.finished = finished;
+        job.has_seed = 1;
+        job.seed = seed;
+        job.threads = threads;
+        job.permutations = opt->permutations;
+        job.n_stages = BL_STAGE_REPORT; /* the stages done before the report */
+        job.stage_names = stage_names;
+        job.stage_seconds = sec;
+        if (!(path = bl_path_join(dir, "report.html"))) goto nomem;
+        if ((st = bl_report_write(path, &job, study, trials, pr, set, g, figs, warn, err))) goto done;
+    }
+    sec[BL_STAGE_REPORT] = now_seconds() - t;
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+done:
+    free(path);
+    bl_figure_set_destroy(figs);
+    bl_goodness_destroy(g);
     return st;
 }
 
@@ -635,7 +662,7 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
     out->stage_seconds[BL_STAGE_FITS] = now_seconds() - t;
 
     /* Goodness of fit, figures and the report: the report area's API. */
-    if ((st = run_report_stages(opt, study, trials, pr, set, dir, out->stage_seconds, threads, warn, err))) goto done;
+    if ((st = run_report_stages(opt, study, trials, pr, set, dir, out->stage_seconds, threads, seed, started, warn, err))) goto done;
 
     /* Setup also covers hashing the inputs and writing fits.json (its provenance needs the end time). */
     t = now_seconds();
