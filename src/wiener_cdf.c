@@ -103,60 +103,103 @@ static bl_status cdf_small(double t, double v, double a, double w, double *lF, d
 }
 
 /* Large-time series for the lower-boundary survival P(T > t, lower)
- * = 2 pi exp(-vaw - v^2 t/2) sum_k k sin(k pi w) exp(-k^2 q) / (v^2 a^2 + k^2 pi^2), q = pi^2 t/(2a^2)
- * (the Navarro-Fuss large-time density integrated term by term).
- * Tail after K terms <= exp(-vaw - v^2t/2) (2 sin(pi w)/pi) e^{-qX^2} (1 + 1/(2qX)), X = K + 1.
- * With dl != NULL also d log S / d(a, v, w), differentiating term by term. */
-static bl_status surv_large(double t, double v, double a, double w, double *lS, double *dl)
+ * = 2 pi exp(-vaw - v^2 t/2 - q) g(v),  g(nu) = sum_k k sin(k pi w) e^{-(k^2-1) q} / (nu^2 a^2 + k^2 pi^2),
+ * q = pi^2 t/(2a^2) (the Navarro-Fuss large-time density integrated term by term).
+ * Tail after K terms <= (sin(pi w)/pi^2) e^{-(X^2-1)q} (1 + 1/(2qX)), X = K + 1, for every nu.
+ * With drift_sd the normal drift density times exp(-nu a w - nu^2 t/2) is C N(nu; m', s'^2) with
+ * D = 1 + sv^2 t, m' = (v - sv^2 a w)/D, s' = sv/sqrt(D) and log C the density's drift_sd exponent, so
+ * S = 2 pi C e^{-q} E[g(m' + s' x)], x ~ N(0,1), by Gauss-Hermite: g has poles only at nu = +-i k pi/a,
+ * so the node count follows s' a. With dl != NULL: d log S / d(a, v, w, sv). */
+static bl_status surv_large(double t, double v, double a, double w, double sv, double *lS, double *dl)
 {
     double q = 4.934802200544679309 * t / (a * a);
     double dmin = w < 0.5 ? w : 1 - w;
     double s1 = sin(BLW_PI * dmin), c1 = cos(BLW_PI * dmin);
     if (w > 0.5) c1 = -c1;
-    double va2 = v * v * a * a, pi2 = BLW_PI * BLW_PI;
-    double E = exp(-q), E2 = E * E, r = E2 * E;
-    double ek = 1, sk = s1, skm = 0, ck = c1, ckm = 1;
-    double den = va2 + pi2;
-    double S = s1 / den, Sa = 0, Sv = 0, Sw = 0;
-    if (dl) {
-        Sv = -S * 2 * v * a * a / den;
-        Sa = -S * 2 * v * v * a / den;
-        Sw = BLW_PI * c1 / den;
+    double pi2 = BLW_PI * BLW_PI, a2 = a * a;
+    double E = exp(-q), E2 = E * E;
+    /* terms k = 1..K (nu-independent parts), K from the tail bound relative to the smallest g */
+    enum { KMAX = 400 };
+    double ke[KMAX + 1], kc[KMAX + 1];
+    double sv2 = sv * sv, D = 1 + sv2 * t;
+    double mprime = (v - sv2 * a * w) / D, sprime = sv / sqrt(D);
+    const double *gx, *gw;
+    static const double zero = 0, one = 1;
+    int n = 1;
+    gx = &zero;
+    gw = &one;
+    if (sv > 0) {
+        double sa = sprime * a;
+        n = blw_gauss_hermite(sa <= 0.5 ? 12 : sa <= 1 ? 20 : sa <= 2 ? 32 : sa <= 3 ? 48 : 64, &gx, &gw);
     }
-    for (int k = 1; k < 10000; k++) {
-        double X = k + 1;
-        double eX = ek * r;
-        r *= E2;
-        double sX = 2 * c1 * sk - skm, cX = 2 * c1 * ck - ckm;
-        int done = (s1 / pi2) * eX * (1 + 0.5 / (q * X)) <= CDF_EPS * S || eX == 0;
-        if (done && dl) /* derivative terms carry extra factors up to X^2 (2q/a + pi + 1) */
-            done = eX == 0 || (s1 / pi2) * eX * (1 + 0.5 / (q * X)) * X * X * (1 + 2 * q / a + BLW_PI) <= CDF_EPS * S;
-        if (done) {
-            if (!(S > 0)) return BL_ERR_NUMERIC;
-            *lS = log(2 * BLW_PI * S) - v * a * w - 0.5 * v * v * t - q;
+    double xmax = 0;
+    for (int i = 0; i < n; i++) xmax = fmax(xmax, fabs(gx[i]));
+    double numax = fabs(mprime) + sprime * xmax;
+    /* g(nu) >= s1 / (nu^2 a^2 + pi^2) * (1 - small): use it to bound relative tails */
+    double gmin = s1 / (numax * numax * a2 + pi2);
+    int K = 1;
+    {
+        double ek = 1, sk = s1, skm = 0, ck = c1, ckm = 1, r = E2 * E;
+        ke[1] = s1;      /* k s_k e_k */
+        kc[1] = c1;      /* k^2 c_k e_k / k = k c_k e_k */
+        for (int k = 1; k < KMAX; k++) {
+            double X = k + 1, eX = ek * r;
+            r *= E2;
+            double bound = (s1 / pi2) * eX * (1 + 0.5 / (q * X));
+            if (dl) bound *= X * X * (1 + 2 * q / a + BLW_PI + numax * numax * a2);
+            if (bound <= CDF_EPS * 0.5 * gmin * (1 - 0.5 * CDF_EPS) || eX == 0) break;
+            double sX = 2 * c1 * sk - skm, cX = 2 * c1 * ck - ckm;
+            ke[k + 1] = X * sX * eX;
+            kc[k + 1] = X * cX * eX;
+            K = k + 1;
+            skm = sk;
+            sk = sX;
+            ckm = ck;
+            ck = cX;
+            ek = eX;
+        }
+        if (K >= KMAX) return BL_ERR_NUMERIC;
+    }
+    double G = 0, Gn = 0, Gx = 0, Ga = 0, Gw = 0;
+    for (int i = 0; i < n; i++) {
+        double nu = mprime + sprime * gx[i], nu2a2 = nu * nu * a2;
+        double g = 0, gn = 0, ga = 0, gwv = 0;
+        for (int k = 1; k <= K; k++) {
+            double den = nu2a2 + k * k * pi2, term = ke[k] / den;
+            g += term;
             if (dl) {
-                /* log S = ... - v a w - v^2 t/2 - q + log sum; dq/da = -2q/a */
-                dl[0] = -v * w + 2 * q / a + Sa / S;
-                dl[1] = -a * w - v * t + Sv / S;
-                dl[2] = -v * a + Sw / S;
+                gn += -term * 2 * nu * a2 / den;
+                ga += term * ((double)(k * k - 1) * 2 * q / a - 2 * nu * nu * a / den);
+                gwv += k * BLW_PI * kc[k] / den;
             }
-            return BL_OK;
         }
-        double dX = va2 + X * X * pi2;
-        double term = X * sX * eX / dX;
-        S += term;
+        G += gw[i] * g;
         if (dl) {
-            Sv += -term * 2 * v * a * a / dX;
-            Sa += term * ((X * X - 1) * 2 * q / a - 2 * v * v * a / dX);
-            Sw += X * X * BLW_PI * cX * eX / dX;
+            Gn += gw[i] * gn;
+            Gx += gw[i] * gn * gx[i];
+            Ga += gw[i] * ga;
+            Gw += gw[i] * gwv;
         }
-        skm = sk;
-        sk = sX;
-        ckm = ck;
-        ck = cX;
-        ek = eX;
     }
-    return BL_ERR_NUMERIC;
+    if (!(G > 0)) return BL_ERR_NUMERIC;
+    double logC = sv == 0 ? -v * a * w - 0.5 * v * v * t
+                          : -0.5 * log1p(sv2 * t) + (sv2 * a2 * w * w - 2 * v * a * w - v * v * t) / (2 * D);
+    *lS = log(2 * BLW_PI * G) + logC - q;
+    if (dl) {
+        double m = a * w + v * t;
+        /* d log C (the density's drift_sd exponent, numerics notes 4) */
+        double Ca = (sv2 * a * w * w - v * w) / D, Cv = -m / D, Cw = (sv2 * a2 * w - v * a) / D,
+               Csv = sv * (m * m / (D * D) - t / D);
+        /* d m', d s' */
+        double ma = -sv2 * w / D, mv = 1 / D, mw = -sv2 * a / D;
+        double msv = -2 * sv * a * w / D - (v - sv2 * a * w) * 2 * sv * t / (D * D);
+        double ssv = 1 / (D * sqrt(D));
+        dl[0] = Ca + 2 * q / a + (Gn * ma + Ga) / G;
+        dl[1] = Cv + Gn * mv / G;
+        dl[2] = Cw + (Gn * mw + Gw) / G;
+        dl[3] = Csv + (Gn * msv + Gx * ssv) / G;
+    }
+    return BL_OK;
 }
 
 bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf, double *log_surv)
@@ -174,14 +217,14 @@ bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf
         if (*log_cdf > lP) *log_cdf = lP;
         if (log_surv) {
             if (u >= 0.05) {
-                if ((s = surv_large(t, v, a, w, log_surv, NULL))) return s;
+                if ((s = surv_large(t, v, a, w, 0, log_surv, NULL))) return s;
             } else {
                 *log_surv = blw_logsubexp(lP, *log_cdf);
             }
         }
     } else {
         double lS;
-        if ((s = surv_large(t, v, a, w, &lS, NULL))) return s;
+        if ((s = surv_large(t, v, a, w, 0, &lS, NULL))) return s;
         if (lS > lP) lS = lP;
         *log_cdf = blw_logsubexp(lP, lS);
         if (log_surv) *log_surv = lS;
@@ -209,11 +252,12 @@ bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, do
     return s;
 }
 
-/* Survival P(T > t, boundary) by the large-time series, with d log S / d(a, v, w). */
-static bl_status surv_direct(double t, double v, double a, double w, int upper, double *lS, double dl[3])
+/* Survival P(T > t, boundary) by the large-time series (drift_sd included exactly up to the
+ * Gauss-Hermite rule), with d log S / d(a, v, w, sv). */
+static bl_status surv_direct(double t, double v, double a, double w, double sv, int upper, double *lS, double dl[4])
 {
-    if (!upper) return surv_large(t, v, a, w, lS, dl);
-    bl_status s = surv_large(t, -v, a, 1 - w, lS, dl);
+    if (!upper) return surv_large(t, v, a, w, sv, lS, dl);
+    bl_status s = surv_large(t, -v, a, 1 - w, sv, lS, dl);
     if (dl) {
         dl[1] = -dl[1];
         dl[2] = -dl[2];
@@ -230,10 +274,10 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
                         double dl[4])
 {
     bl_status s;
+    if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
     if (sv == 0) {
         double d3[3];
-        if (surv) s = surv_direct(y, v, a, w, upper, lF, dl ? d3 : NULL);
-        else if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
+        if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
         else s = blw_log_cdf_grad(y, v, a, w, upper, lF, d3);
         if (dl) {
             dl[0] = d3[0];
@@ -249,8 +293,7 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     double mx = -INFINITY;
     for (int i = 0; i < n; i++) {
         double vi = v + sv * gx[i];
-        if (surv) s = surv_direct(y, vi, a, w, upper, &lfi[i], dl ? di[i] : NULL);
-        else s = dl ? blw_log_cdf_grad(y, vi, a, w, upper, &lfi[i], di[i]) : blw_log_cdf(y, vi, a, w, upper, &lfi[i], NULL);
+        s = dl ? blw_log_cdf_grad(y, vi, a, w, upper, &lfi[i], di[i]) : blw_log_cdf(y, vi, a, w, upper, &lfi[i], NULL);
         if (s) return s;
         if (lfi[i] > mx) mx = lfi[i];
     }
