@@ -3,7 +3,7 @@
  * Sources: standard error of a mean = SD / sqrt(n) (sample SD, n - 1); EZ-diffusion estimates of a
  * bin's drift, threshold and nondecision from its proportion correct and the mean and variance of
  * correct RTs: Wagenmakers, van der Maas & Grasman (2007), Psychonomic Bulletin & Review 14(1),
- * with their edge correction for a proportion correct of 1 (use 1 - 1/(2n)), and of 0 (1/(2n));
+ * with their edge correction for a proportion correct of 1 (use 1 - 1/(2n));
  * quantile-probability plots: Ratcliff & McKoon (2008), Neural Computation 20(4).
  */
 #include "bandlink/figures.h"
