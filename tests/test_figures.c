@@ -105,7 +105,7 @@ int main(void)
     /* 3. QP: one panel per model, observed points = 5 quantiles x cells x 2 responses. */
     f = find(fs, "quantile_probability.svg");
     if (f) {
-        check_true(strstr(f->svg, ">response probability<") && strstr(f->svg, ">RT quantile (s)<"), "QP axes with units");
+        check_true(strstr(f->svg, ">response probability (proportion of trials)<") && strstr(f->svg, ">RT quantile (s)<"), "QP axes with units");
         size_t pts = count_in(f->svg, "id=\"qp-p0\"", "id=\"qp-p1\"", "<circle");
         check_true(pts == 5 * 2 * g->n_cells, "observed points in panel 1: %zu", pts);
         size_t lines = count_in(f->svg, "id=\"qp-p1\"", "qp-legend", "stroke-linejoin");
