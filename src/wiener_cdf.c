@@ -476,13 +476,25 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
                                    &lx, &lw);
     if (sv > 0) nh = blw_gauss_hermite(2 * blw_gh_nodes_drift_sd(sv, a, y), &hx, &hw);
     double S = 0;
-    for (int i = 0; i < nl; i++)
+    int large = y / (a * a) >= BLW_U_SWITCH;
+    for (int i = 0; i < nl; i++) {
+        double wi = w + 0.5 * sz * lx[i];
+        if (sv > 0 && large) {
+            /* F = P - S with S by the drift-shifted survival series and P by the same quadrature as
+             * bl_wiener_p_boundary, so CDF(inf) = P(boundary) exactly */
+            double lS;
+            bl_status s = surv_direct(y, v, a, wi, sv, upper, &lS, NULL);
+            if (s) return s;
+            S += lw[i] * (blw_p_var(v, a, wi, sv, 0, upper) - exp(lS));
+            continue;
+        }
         for (int j = 0; j < nh; j++) {
             double lF;
-            bl_status s = blw_log_cdf(y, v + sv * hx[j], a, w + 0.5 * sz * lx[i], upper, &lF, NULL);
+            bl_status s = blw_log_cdf(y, v + sv * hx[j], a, wi, upper, &lF, NULL);
             if (s) return s;
             S += lw[i] * hw[j] * exp(lF);
         }
+    }
     *F = S;
     return BL_OK;
 }
@@ -539,8 +551,7 @@ bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, 
     if (!(prob > 0 && prob < 1)) return bl_error_set(err, BL_ERR_RANGE, "quantile probability must lie in (0, 1) (got %g)", prob);
     double P, m;
     const char *side = upper ? "upper" : "lower";
-    if ((s = bl_wiener_p_upper(p, &P, err))) return s;
-    if (!upper) P = 1 - P;
+    if ((s = bl_wiener_p_boundary(p, upper, &P, err))) return s;
     if (!(P > 1e-300))
         return bl_error_set(err, BL_ERR_NUMERIC, "the %s boundary has probability %g: no quantile", side, P);
     if ((s = bl_wiener_mean_rt(p, upper, &m, err))) return s;
@@ -564,7 +575,7 @@ bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, 
         double G = F - target;
         if (G < 0) lo = r;
         else hi = r;
-        if (fabs(G) <= 1e-14 * P || hi - lo <= 1e-13 * fmax(1, fabs(r))) {
+        if (fabs(G) <= 1e-14 * P || hi - lo <= 2 * DBL_EPSILON * fabs(r)) {
             *rt = r;
             return BL_OK;
         }
