@@ -374,19 +374,24 @@ static void variability_moments(const bl_wiener_params *p, int upper, double *pr
     if (mean_t) *mean_t = M / P;
 }
 
-bl_status bl_wiener_p_upper(const bl_wiener_params *p, double *p_upper, bl_error *err)
+bl_status bl_wiener_p_boundary(const bl_wiener_params *p, int upper, double *prob, bl_error *err)
 {
     bl_status s = bl_wiener_check(p, err);
     if (s) return s;
     const double *x = p->value;
-    double pu;
+    double pb;
     if (x[BL_DRIFT_SD] == 0 && x[BL_START_RANGE] == 0)
-        pu = exp(blw_log_p(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], 1));
+        pb = exp(blw_log_p(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper));
     else
-        variability_moments(p, 1, &pu, NULL);
+        variability_moments(p, upper, &pb, NULL);
     double p0 = x[BL_CONTAMINATION];
-    *p_upper = (1 - p0) * pu + 0.5 * p0;
+    *prob = (1 - p0) * pb + 0.5 * p0;
     return BL_OK;
+}
+
+bl_status bl_wiener_p_upper(const bl_wiener_params *p, double *p_upper, bl_error *err)
+{
+    return bl_wiener_p_boundary(p, 1, p_upper, err);
 }
 
 bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double *mean_rt, bl_error *err)

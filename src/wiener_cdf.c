@@ -539,8 +539,7 @@ bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, 
     if (!(prob > 0 && prob < 1)) return bl_error_set(err, BL_ERR_RANGE, "quantile probability must lie in (0, 1) (got %g)", prob);
     double P, m;
     const char *side = upper ? "upper" : "lower";
-    if ((s = bl_wiener_p_upper(p, &P, err))) return s;
-    if (!upper) P = 1 - P;
+    if ((s = bl_wiener_p_boundary(p, upper, &P, err))) return s;
     if (!(P > 1e-300))
         return bl_error_set(err, BL_ERR_NUMERIC, "the %s boundary has probability %g: no quantile", side, P);
     if ((s = bl_wiener_mean_rt(p, upper, &m, err))) return s;
@@ -564,7 +563,7 @@ bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, 
         double G = F - target;
         if (G < 0) lo = r;
         else hi = r;
-        if (fabs(G) <= 1e-14 * P || hi - lo <= 1e-13 * fmax(1, fabs(r))) {
+        if (fabs(G) <= 1e-14 * P || hi - lo <= 2 * DBL_EPSILON * fabs(r)) {
             *rt = r;
             return BL_OK;
         }

@@ -10,6 +10,8 @@
 #include <math.h>
 #include <string.h>
 
+#define BL_TEST_PI 3.14159265358979323846
+
 static bl_wiener_params mk(double a, double v, double t0, double w, double sv)
 {
     bl_wiener_params p;
@@ -154,6 +156,96 @@ static void identities(void)
     }
 }
 
+/* Small-time truncation validated in relative terms on the far-boundary corner (numerics notes 1.3:
+ * an absolute-error count, including a tightened w-dependent one in the spirit of Gondan, Blurton &
+ * Kesselmeier 2014, lost the k = -1 image there). Reference: the Navarro & Fuss (2009) image series
+ * summed over k = -30..30 in long double, far past any truncation. */
+static double brute_lo(double t, double v, double a, double w)
+{
+    long double u = (long double)t / ((long double)a * a), s = 0;
+    for (int k = -30; k <= 30; k++) {
+        long double x = w + 2.0L * k;
+        s += x * expl(-x * x / (2 * u));
+    }
+    return (double)(-(long double)v * a * w - (long double)v * v * t / 2 - 2 * logl(a) -
+                    0.5L * logl(2 * 3.14159265358979323846264338327950288L * u * u * u) + logl(s));
+}
+
+static void far_boundary_corner(void)
+{
+    double worst = 0;
+    int n = 0;
+    double ws[] = {0.962, 0.99, 0.999, 0.9999, 1 - 1e-6, 0.001, 0.01, 0.5};
+    double us[] = {0.002, 0.01, 0.05, 0.1, 0.2, 0.2499};
+    double vs[] = {-1.856, 0, 2.5};
+    for (int i = 0; i < 8; i++)
+        for (int j = 0; j < 6; j++)
+            for (int k = 0; k < 3; k++) {
+                double a = 4.316, t = us[j] * a * a;
+                bl_wiener_params p = mk(a, vs[k], 0, ws[i], 0);
+                double got = ld(&p, t, 0), want = brute_lo(t, vs[k], a, ws[i]);
+                /* relative error of the density = absolute error of its log */
+                double e = fabs(got - want);
+                if (e > worst) worst = e;
+                n++;
+            }
+    check_true(worst < 2e-10, "far-boundary corner: %d small-time densities within %.2g relative of the long-double "
+               "image sum (target 1e-10 truncation)", n, worst);
+    /* the numerics notes' example: v=-1.856, a=4.316, w=0.962, t=0.3388 (lower boundary) */
+    bl_wiener_params p = mk(4.316, -1.856, 0, 0.962, 0);
+    check_abs(ld(&p, 0.3388, 0), brute_lo(0.3388, -1.856, 4.316, 0.962), 1e-12, "numerics 1.3 corner example");
+}
+
+/* The Gondan, Blurton & Kesselmeier (2014, J. Math. Psych. 60:20-22) small-time term count, as we
+ * recall it (not checked against the paper): with u_e = min(-1, ln(2 pi u^2 eps^2)),
+ * K = ceil(max((sqrt(2u) - w)/2, (sqrt(-u (u_e - sqrt(-2 u_e - 2))) - w)/2)), images |k| <= K, for an
+ * absolute error eps on phi. Validation: it keeps its absolute promise, is accurate in relative terms
+ * away from the far boundary, and loses relative accuracy near it (the numerics notes' factor 6-13),
+ * which is why the engine truncates relative to the partial sum instead. */
+static int gbk_terms(double u, double w, double eps)
+{
+    double ue = fmin(-1, log(2 * BL_TEST_PI * u * u * eps * eps));
+    double k1 = (sqrt(2 * u) - w) / 2, k2 = (sqrt(-u * (ue - sqrt(-2 * ue - 2))) - w) / 2;
+    return (int)ceil(fmax(k1, k2));
+}
+
+static void gbk_bound(void)
+{
+    double ws[] = {0.001, 0.01, 0.1, 0.3, 0.5, 0.7, 0.9, 0.962, 0.99, 0.999};
+    double epss[] = {1e-6, 1e-10};
+    for (int e = 0; e < 2; e++) {
+        double eps = epss[e], worst_abs = 0, worst_in = 0, worst_corner = 0, worst_engine = 0;
+        for (int i = 0; i < 10; i++)
+            for (double u = 0.001; u < 0.25; u *= 1.3) {
+                double w = ws[i];
+                long double tru = 0;
+                for (int k = -30; k <= 30; k++) {
+                    long double x = w + 2.0L * k;
+                    tru += x * expl(-x * x / (2 * (long double)u));
+                }
+                tru /= sqrtl(2 * 3.14159265358979323846264338327950288L * u * u * u);
+                int K = gbk_terms(u, w, eps);
+                double g = 0;
+                for (int k = -K; k <= K; k++) g += (w + 2.0 * k) * exp(-(w + 2.0 * k) * (w + 2.0 * k) / (2 * u));
+                g /= sqrt(2 * BL_TEST_PI * u * u * u);
+                double ae = (double)fabsl(g - tru), re = (double)(fabsl(g - tru) / tru);
+                worst_abs = fmax(worst_abs, ae / eps);
+                if (w <= 0.9) worst_in = fmax(worst_in, re);
+                else worst_corner = fmax(worst_corner, re);
+                /* the engine at a = 1, v = 0 (f = phi) */
+                bl_wiener_params p = mk(1, 0, 0, w, 0);
+                worst_engine = fmax(worst_engine, fabs(ld(&p, u, 0) - (double)logl(tru)));
+            }
+        check_true(worst_abs <= 1, "GBK 2014 count (as recalled), eps %g: absolute error within eps (max %.2g eps)",
+                   eps, worst_abs);
+        check_true(worst_in <= 1e4 * eps, "GBK 2014 count, eps %g: relative error %.2g for start <= 0.9", eps, worst_in);
+        check_true(worst_corner > 0.1, "GBK 2014 count, eps %g: relative error %.3g near the far boundary (start > 0.9)",
+                   eps, worst_corner);
+        check_true(worst_engine < 2e-10, "engine's relative truncation on the same grid: max relative error %.2g",
+                   worst_engine);
+    }
+}
+
 static void extremes_and_errors(void)
 {
     /* issue 2: t -> t0, t = 20 s, a = 0.3 and 6, v = +-8 must give finite logs */
@@ -273,6 +365,8 @@ int main(void)
     reference_cdf_and_moments();
     ez_diffusion();
     identities();
+    far_boundary_corner();
+    gbk_bound();
     extremes_and_errors();
     gradients();
     return harness_summary();

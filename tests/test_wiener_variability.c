@@ -228,11 +228,20 @@ static void cdf_quantiles(void)
             check_true(ok, "set %d %s: quantiles 0.1..0.9 increase and invert the conditional CDF to 1e-10", i,
                        up ? "upper" : "lower");
         }
-    /* a boundary with probability ~0 has no quantile: BL_ERR_NUMERIC, not garbage */
+    /* a rare boundary (P ~ 3e-38) still has accurate probability and quantiles */
     bl_wiener_params p = mk(6, 8, 0.3, 0.9, 0, 0, 0);
-    double q;
+    double q, plo, F;
+    bl_wiener_p_boundary(&p, 0, &plo, NULL);
+    /* closed form e^{-2vaw} (1 - e^{-2va(1-w)}) / (1 - e^{-2va}) (Cox & Miller 1965) */
+    check_rel(plo, exp(-2 * 8 * 6 * 0.9) * (1 - exp(-2 * 8 * 6 * 0.1)) / (1 - exp(-2 * 8 * 6)), 1e-12,
+              "P(lower) ~ 3e-38 keeps its digits");
+    check_true(bl_wiener_quantile(&p, 0.5, 0, &q, NULL) == BL_OK && bl_wiener_cdf(&p, q, 0, &F, NULL) == BL_OK &&
+                   fabs(F / plo - 0.5) < 1e-10,
+               "median of the rare boundary inverts its CDF");
+    /* a boundary whose probability underflows has no quantile: BL_ERR_NUMERIC, not garbage */
+    p = mk(10, 40, 0.3, 0.9, 0, 0, 0);
     check_true(bl_wiener_quantile(&p, 0.5, 0, &q, NULL) == BL_ERR_NUMERIC,
-               "quantile of a boundary with probability ~1e-167 reports BL_ERR_NUMERIC");
+               "quantile of a boundary with probability e^-720 reports BL_ERR_NUMERIC");
 }
 
 /* Full-path gradient (start_range, nondecision_range, contamination, with and without drift_sd) vs
