@@ -26,5 +26,19 @@ grep -qF "trials       5, kept 2, excluded 3" "$tmp/out" && pass "kept/excluded 
 grep -qE "excluded +rt < keep.rt_min +1" "$tmp/out" && grep -qE "excluded +missing rt +1" "$tmp/out" \
     && grep -qE "excluded +rt > keep.rt_max +1" "$tmp/out" && pass "exclusions by reason" || bad "reasons: $(cat "$tmp/out")"
 grep -qF "recordings   none" "$tmp/out" && pass "no recordings reported" || bad "recordings line"
+# a BIDS-style events.tsv (CRLF, n/a, quoted text) as the trial table of the example recordings
+mkdir -p "$tmp/bids"
+ln -s "$ex/recordings" "$tmp/bids/recordings"
+printf 'onset\tduration\ttrial_type\tresponse_time\tanimal\tchoice\r\n' > "$tmp/bids/events.tsv"
+printf '2.6\t0.5\t"high"\t0.512\tr1\thigher\r\n4.2\t0.5\tlow\tn/a\tr1\tn/a\r\n5.8\t0.5\tlow\t0.44\tr2\tlower\r\n7.4\t0.5\thigh\t0.61\tr2\thigher\r\n' >> "$tmp/bids/events.tsv"
+cat > "$tmp/bids/study.json" <<'JSON'
+{"trials": {"file": "events.tsv", "participant": "animal", "rt": "response_time", "response": "choice",
+            "upper": ["higher"], "stimulus": "trial_type"},
+ "recordings": {"file": "recordings/{animal}.flac", "onset": "onset", "channels": ["1-2"]},
+ "power": {"window": {"from": -1, "to": 0}, "segment": 0.5, "bands": {"theta": [4, 10]}, "standardize": "none"}}
+JSON
+"$BANDLINK" check "$tmp/bids/study.json" >"$tmp/out" 2>"$tmp/err" || bad "BIDS events.tsv check: $(cat "$tmp/err")"
+grep -qF "trials       4, kept 3, excluded 1" "$tmp/out" && grep -qE "excluded +missing rt +1" "$tmp/out" \
+    && grep -qF "stimulus coding" "$tmp/out" && pass "BIDS events.tsv with n/a and CRLF" || bad "BIDS: $(cat "$tmp/out")"
 "$BANDLINK" check --help | grep -q "usage: bandlink check" && pass "--help" || bad "--help"
 exit $fail
