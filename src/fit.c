@@ -978,7 +978,13 @@ static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials,
     if (u->n_units == 0) st = bl_error_set(err, BL_ERR_MODEL, "model '%s': no trials to fit", spec->name);
 done:
     free(use);
-    if (st) unit_set_free(u);
+    if (st) {
+        unit_set_free(u);
+        if (unit_names) {
+            free(*unit_names);
+            *unit_names = NULL;
+        }
+    }
     return st;
 }
 

@@ -164,7 +164,7 @@ int main(void)
     e3.param[BL_THRESHOLD].slopes = &flat;
     st = bl_model_build(&e3, t, NULL, &m, &err);
     check_true(st == BL_ERR_MODEL && contains(err.message, "'flat-slope'") && contains(err.message, "'threshold'") &&
-                   contains(err.message, "slope 'flat' at level 'lean'") && contains(err.message, "rank-deficient"),
+                   contains(err.message, "slope 'flat' at level 'rich' is collinear with intercept at level 'rich'") && contains(err.message, "rank-deficient"),
                "constant regressor within levels: %s", err.message);
 
     /* Two collinear regressors: theta2 = 2 theta - 1 with a shared intercept. */
