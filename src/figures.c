@@ -3,7 +3,7 @@
  * Sources: standard error of a mean = SD / sqrt(n) (sample SD, n - 1); EZ-diffusion estimates of a
  * bin's drift, threshold and nondecision from its proportion correct and the mean and variance of
  * correct RTs: Wagenmakers, van der Maas & Grasman (2007), Psychonomic Bulletin & Review 14(1),
- * with their edge correction for a proportion correct of 1 (use 1 - 1/(2n)), and of 0 (1/(2n));
+ * with their edge correction for a proportion correct of 1 (use 1 - 1/(2n));
  * quantile-probability plots: Ratcliff & McKoon (2008), Neural Computation 20(4).
  */
 #include "bandlink/figures.h"
@@ -581,7 +581,7 @@ static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, ch
 static bl_svg *fig_comparison(const bl_fit_set *set, char **caption)
 {
     size_t n = set->n_models;
-    bl_svg *fig = bl_svg_create("cmp", "Model comparison", 1, 1, fmax(420, 120 + 90.0 * (double)n), 320);
+    bl_svg *fig = bl_svg_create("cmp", "Model comparison", 1, 1, fmax(420, 120 + 90.0 * (double)n), 380);
     if (!fig) return NULL;
     bl_svg_panel *p = bl_svg_panel_at(fig, 0);
     if (n == 0 || !set->comparison) {
@@ -601,7 +601,7 @@ static bl_svg *fig_comparison(const bl_fit_set *set, char **caption)
     }
     bl_svg_axis_categories(p, BL_SVG_X, labels, k);
     bl_svg_axis_label(p, BL_SVG_X, "model");
-    bl_svg_axis_label(p, BL_SVG_Y, "difference from the best model (2 \xC3\x97 log-likelihood units)");
+    bl_svg_axis_label(p, BL_SVG_Y, "\xCE\x94" "AIC, \xCE\x94" "BIC (2 \xC3\x97 log-likelihood units)");
     bl_svg_axis_include(p, BL_SVG_Y, 0);
     bl_svg_axis_include(p, BL_SVG_Y, 2);
     bl_svg_bars(p, x1, a, k, 0.38, (bl_svg_style){.color = bl_svg_color(0)});

@@ -11,6 +11,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 
 static const char CAUTION[] =
     "Research use only; not a medical device. bandlink analyses research data and its results must not be "
@@ -61,7 +62,8 @@ static const char CSS[] =
     "h3{font-size:1.05em}"
     ".caution{background:#fff4e0;border-left:5px solid #E69F00;padding:.6em 1em;margin:1em 0}"
     "table{border-collapse:collapse;margin:.6em 0;font-size:.92em}"
-    "th,td{border:1px solid #ccc;padding:.25em .6em;text-align:right}"
+    "th,td{border:1px solid #ccc;padding:.25em .6em;text-align:right}td{white-space:nowrap}"
+    ".scroll{overflow-x:auto}"
     "th{background:#f2f2f2}td.t,th.t{text-align:left}"
     "tr.best td{background:#e6f1f8;font-weight:bold}"
     "dl.kv{display:grid;grid-template-columns:max-content auto;gap:.15em 1.2em}dl.kv dt{font-weight:bold}"
@@ -178,13 +180,13 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
         bl_exclusion_count *ex = NULL;
         size_t nex = bl_trials_exclusion_counts(t, &ex);
         if (nex > 0 && ex) {
-            fputs("<h3>Excluded trials by reason</h3>\n<table><tr><th class=\"t\">reason</th><th>trials</th></tr>\n", f);
+            fputs("<h3>Excluded trials by reason</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">reason</th><th>trials</th></tr>\n", f);
             for (size_t i = 0; i < nex; i++) {
                 fputs("<tr><td class=\"t\">", f);
                 esc(f, ex[i].reason);
                 fprintf(f, "</td><td>%zu</td></tr>\n", ex[i].count);
             }
-            fputs("</table>\n", f);
+            fputs("</table></div>\n", f);
         } else {
             fputs("<p>No trial was excluded.</p>\n", f);
         }
@@ -197,7 +199,7 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
                 tot[t->participant[i]]++;
                 kept[t->participant[i]] += t->excluded[i] == NULL;
             }
-            fputs("<details><summary>Trials per participant</summary>\n<table><tr><th class=\"t\">participant</th>"
+            fputs("<details><summary>Trials per participant</summary>\n<div class=\"scroll\"><table><tr><th class=\"t\">participant</th>"
                   "<th>trials</th><th>kept</th></tr>\n",
                   f);
             for (size_t p = 0; p < t->n_participants; p++) {
@@ -205,7 +207,7 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
                 esc(f, t->participants[p]);
                 fprintf(f, "</td><td>%zu</td><td>%zu</td></tr>\n", tot[p], kept[p]);
             }
-            fputs("</table></details>\n", f);
+            fputs("</table></div></details>\n", f);
         }
         free(tot);
         free(kept);
@@ -232,7 +234,7 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
         return;
     }
     int best = bl_figures_best_model(set);
-    fputs("<table><tr><th class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
+    fputs("<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
           "<th>AIC</th><th>BIC</th><th>&#916;AIC</th><th>&#916;BIC</th><th>AIC weight</th>"
           "<th class=\"t\">LRT against</th><th>statistic</th><th>df</th><th>p</th><th>converged</th></tr>\n",
           f);
@@ -267,7 +269,7 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
         pval(f, c->lrt_p);
         fprintf(f, "</td><td>%s</td></tr>\n", set->models[m].converged ? "yes" : "<strong>no</strong>");
     }
-    fputs("</table>\n<p class=\"muted\">Highlighted: lowest AIC. &#916; = difference from the smallest value. "
+    fputs("</table></div>\n<p class=\"muted\">Highlighted: lowest AIC. &#916; = difference from the smallest value. "
           "LRT: likelihood-ratio test against the model it extends (chi-squared, df = difference in "
           "parameters).</p>\n",
           f);
@@ -275,7 +277,7 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
 
 static void coef_rows(FILE *f, const bl_coefficient *c, size_t n)
 {
-    fputs("<table><tr><th class=\"t\">parameter</th><th class=\"t\">term</th><th class=\"t\">level</th>"
+    fputs("<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th class=\"t\">term</th><th class=\"t\">level</th>"
           "<th>estimate</th><th>SE</th><th>95% CI</th><th>z</th><th>p</th></tr>\n",
           f);
     for (size_t j = 0; j < n; j++) {
@@ -299,7 +301,7 @@ static void coef_rows(FILE *f, const bl_coefficient *c, size_t n)
         pval(f, c[j].p);
         fputs("</td></tr>\n", f);
     }
-    fputs("</table>\n", f);
+    fputs("</table></div>\n", f);
 }
 
 static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set *set)
@@ -327,7 +329,7 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
         }
         fputs("</summary>\n", f);
         if (mr->mode == BL_PARTICIPANTS_SEPARATE && mr->n_group) {
-            fputs("<h3>Group summary (DerSimonian&#8211;Laird random effects)</h3>\n<table><tr>"
+            fputs("<h3>Group summary (DerSimonian&#8211;Laird random effects)</h3>\n<div class=\"scroll\"><table><tr>"
                   "<th class=\"t\">parameter</th><th class=\"t\">term</th><th class=\"t\">level</th><th>n</th>"
                   "<th>estimate</th><th>SE</th><th>95% CI</th><th>p</th><th>&#964;&#178;</th>"
                   "<th>mean of participants</th><th>SD</th><th>t-test p</th></tr>\n",
@@ -360,7 +362,7 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
                 pval(f, c->p_t);
                 fputs("</td></tr>\n", f);
             }
-            fputs("</table>\n", f);
+            fputs("</table></div>\n", f);
             for (size_t q = 0; q < mr->n_participants; q++) {
                 const bl_fit_result *pf = &mr->participants[q];
                 fputs("<h3>Participant ", f);
@@ -373,7 +375,7 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
             coef_rows(f, mr->fit.coef, mr->fit.n_coef);
         }
         if (mr->n_permutation) {
-            fputs("<h3>Permutation tests</h3>\n<table><tr><th class=\"t\">parameter</th><th class=\"t\">regressor</th>"
+            fputs("<h3>Permutation tests</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th class=\"t\">regressor</th>"
                   "<th>statistic</th><th>refits</th><th>p</th></tr>\n",
                   f);
             for (size_t j = 0; j < mr->n_permutation; j++) {
@@ -388,7 +390,7 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
                 g4(f, pt->p);
                 fputs("</td></tr>\n", f);
             }
-            fputs("</table>\n", f);
+            fputs("</table></div>\n", f);
         }
         fputs("</details>\n", f);
     }
@@ -401,7 +403,7 @@ static void goodness_section(FILE *f, const bl_fit_set *set, const bl_goodness *
     fputs("<h2 id=\"goodness\">Goodness of fit</h2>\n<p>Distance between observed and predicted RT quantiles "
           "(0.1&#8211;0.9) and choice shares, averaged over groups weighted by their responses (quantiles) or "
           "trials (shares). All numbers per group are in <code>fit_quantiles.csv</code>.</p>\n"
-          "<table><tr><th class=\"t\">model</th><th>quantiles, condition cells (ms)</th>"
+          "<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>quantiles, condition cells (ms)</th>"
           "<th>quantiles, regressor bins (ms)</th><th>shares, condition cells (% points)</th>"
           "<th>shares, regressor bins (% points)</th></tr>\n",
           f);
@@ -436,7 +438,7 @@ static void goodness_section(FILE *f, const bl_fit_set *set, const bl_goodness *
         }
         fputs("</tr>\n", f);
     }
-    fputs("</table>\n", f);
+    fputs("</table></div>\n", f);
 }
 
 static void figure_section(FILE *f, const bl_figure_set *figs)
@@ -504,4 +506,48 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
     esc(f, CAUTION);
     fputs("</p>\n</body>\n</html>\n", f);
     return bl_outfile_commit(o, err);
+}
+
+static double now_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, const bl_study *study,
+                                  const bl_trials *trials, const bl_power_result *power, const bl_fit_set *set,
+                                  const bl_warnings *warnings, int threads, double seconds[3], bl_error *err)
+{
+    bl_goodness *g = NULL;
+    bl_figure_set *figs = NULL;
+    char *path = NULL;
+    bl_status st;
+    double t = now_seconds();
+    if (seconds) seconds[0] = seconds[1] = seconds[2] = 0;
+    if ((st = bl_goodness_compute(study, trials, set, threads, &g, err))) goto done;
+    if (!(path = bl_path_join(dir, "fit_quantiles.csv"))) goto nomem;
+    if ((st = bl_goodness_write_csv(g, path, err))) goto done;
+    free(path);
+    path = NULL;
+    if (seconds) seconds[0] = now_seconds() - t;
+    t = now_seconds();
+    if ((st = bl_figures_make(study, trials, power, set, g, &figs, err))) goto done;
+    if (!(path = bl_path_join(dir, "figures"))) goto nomem;
+    if ((st = bl_figures_write(figs, path, err))) goto done;
+    free(path);
+    path = NULL;
+    if (seconds) seconds[1] = now_seconds() - t;
+    t = now_seconds();
+    if (!(path = bl_path_join(dir, "report.html"))) goto nomem;
+    if ((st = bl_report_write(path, job, study, trials, power, set, g, figs, warnings, err))) goto done;
+    if (seconds) seconds[2] = now_seconds() - t;
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the report outputs");
+done:
+    free(path);
+    bl_figure_set_destroy(figs);
+    bl_goodness_destroy(g);
+    return st;
 }

@@ -134,6 +134,28 @@ int main(void)
     free(a);
     fixture_destroy(fx);
 
+    /* The one-call entry point writes all three outputs. */
+    fx = fixture_create(11, 0);
+    bl_error e1 = {0};
+    double secs[3] = {-1, -1, -1};
+    check_true(bl_report_outputs_write(dir, NULL, &fx->study, &fx->trials, &fx->power, &fx->set, NULL, 2, secs, &e1) ==
+                   BL_OK,
+               "bl_report_outputs_write (%s)", e1.message);
+    const char *files[] = {"fit_quantiles.csv", "report.html", "figures/power_spectrum.svg",
+                           "figures/parameter_vs_regressor.svg", "figures/quantile_probability.svg",
+                           "figures/coefficients.svg", "figures/model_comparison.svg"};
+    for (int i = 0; i < 7; i++) {
+        char p[512];
+        snprintf(p, sizeof p, "%s/%s", dir, files[i]);
+        check_true(access(p, R_OK) == 0, "wrote %s", files[i]);
+        unlink(p);
+    }
+    check_true(secs[0] >= 0 && secs[1] >= 0 && secs[2] >= 0, "stage times reported");
+    char figdir[300];
+    snprintf(figdir, sizeof figdir, "%s/figures", dir);
+    rmdir(figdir);
+    fixture_destroy(fx);
+
     /* A folder that does not exist: an error naming the path, nothing written. */
     bl_error err = {0};
     check_true(bl_report_write("/nonexistent-dir-bl/report.html", NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, &err) ==
