@@ -69,6 +69,19 @@ bl_status bl_remove_tree(const char *path, bl_error *err)
     return BL_OK;
 }
 
+int bl_path_inside(const char *path, const char *folder)
+{
+    char *p = realpath(path, NULL), *f = realpath(folder, NULL);
+    int inside = 0;
+    if (p && f) {
+        size_t n = strlen(f);
+        inside = strncmp(p, f, n) == 0 && (p[n] == '\0' || p[n] == '/' || (n == 1 && f[0] == '/'));
+    }
+    free(p);
+    free(f);
+    return inside;
+}
+
 /* Split "a/b/name" into a newly allocated parent ("a/b", or "." ) and a pointer to the name. */
 static char *parent_of(const char *path, const char **name)
 {
@@ -110,14 +123,21 @@ static void remove_stale(const char *parent, const char *name)
     closedir(d);
 }
 
-bl_status bl_stage_begin(const char *target, int force, bl_stage **out, bl_error *err)
+bl_status bl_stage_begin(const char *target_in, int force, bl_stage **out, bl_error *err)
 {
     *out = NULL;
     const char *name;
-    char *parent = parent_of(target, &name);
+    char *parent = NULL;
     bl_stage *s = calloc(1, sizeof *s);
     bl_status st = BL_OK;
-    if (!parent || !s || !(s->target = dupstr(target))) {
+    if (!s || !(s->target = dupstr(target_in))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto fail;
+    }
+    /* "results/" and "results" are the same folder. */
+    for (size_t n = strlen(s->target); n > 1 && s->target[n - 1] == '/'; n--) s->target[n - 1] = '\0';
+    const char *target = s->target;
+    if (!(parent = parent_of(target, &name))) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto fail;
     }
@@ -612,7 +632,7 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
     bl_stage *stage = NULL;
     cJSON *prov = NULL;
     char *path = NULL;
-    bl_status st;
+    bl_status st = BL_OK;
 
     say(opt, BL_STAGE_SETUP, "reading the study", 0, 0);
     if ((st = bl_study_load(opt->study_path, &study, err))) goto done;
@@ -620,6 +640,28 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
     if (!target || !target[0]) {
         st = bl_error_set(err, BL_ERR_USAGE, "%s: no output folder: give --out DIR or the study's \"output\"", opt->study_path);
         goto done;
+    }
+    /* Never replace a folder that holds the inputs (e.g. --out pointing at the study's own folder). */
+    {
+        const char *inputs[3] = {opt->study_path, study->trials.file, NULL};
+        char *rec_dir = NULL;
+        if (study->has_recordings) {
+            /* The fixed part of the recordings pattern: its folder up to the first placeholder. */
+            rec_dir = strdup(study->recordings.file);
+            if (!rec_dir) goto nomem;
+            char *brace = strchr(rec_dir, '{');
+            if (brace) *brace = '\0';
+            char *slash = strrchr(rec_dir, '/');
+            if (slash) *slash = '\0';
+            else strcpy(rec_dir, ".");
+            inputs[2] = rec_dir;
+        }
+        for (int i = 0; i < 3 && st == BL_OK; i++)
+            if (inputs[i] && bl_path_inside(inputs[i], target))
+                st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the study's inputs (%s); choose another "
+                                  "output folder", target, inputs[i]);
+        free(rec_dir);
+        if (st) goto done;
     }
     /* Claim the output first, so a refused overwrite costs nothing. */
     if ((st = bl_stage_begin(target, opt->force, &stage, err))) goto done;

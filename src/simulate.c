@@ -1196,6 +1196,11 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         }
     }
 
+    if (bl_path_inside(sc->path, out_dir)) {
+        st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the scenario file %s; choose another output folder",
+                          out_dir, sc->path);
+        goto done;
+    }
     if ((st = bl_stage_begin(out_dir, opt->force, &stage, err))) goto done;
     const char *dir = bl_stage_dir(stage);
     if (!(p_rec = bl_path_join(dir, "recordings")) || !(p_trials = bl_path_join(dir, "trials.csv")) ||

@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Runs every example of docs/cli.md: each line starting with "$ bandlink" inside a ```sh block, in order,
-# in one prepared folder holding scenario.json (tests/cli/simulate_small.json) and study/ (the study
-# simulated from it). Fails when an example exits non-zero.
+# in one prepared folder holding scenario.json (tests/cli/simulate_small.json), study/ (the study
+# simulated from it) and a copy of docs/examples/ (so paths written from the source root work and
+# outputs stay out of the source tree). Fails when an example exits non-zero.
 set -u
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
 BANDLINK=$(cd "$(dirname "$BANDLINK")" && pwd)/$(basename "$BANDLINK")
@@ -10,6 +11,8 @@ doc="$BL_SOURCE_ROOT/docs/cli.md"
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 cp "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" "$tmp/scenario.json"
+mkdir -p "$tmp/docs"
+[ -d "$BL_SOURCE_ROOT/docs/examples" ] && cp -r "$BL_SOURCE_ROOT/docs/examples" "$tmp/docs/"
 "$BANDLINK" simulate "$tmp/scenario.json" --out "$tmp/study" --quiet || { echo "FAIL: preparing the folder"; exit 1; }
 
 # Extract the examples (awk: track ```sh fences).

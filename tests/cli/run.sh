@@ -185,6 +185,13 @@ else
     echo "SKIP: no 'script' command to provide a terminal"
 fi
 
+# --force never replaces a folder holding the inputs; a trailing slash names the same folder.
+"$BANDLINK" run "$tmp/study/study.json" --out "$tmp/study" --force 2>"$tmp/e"; rc=$?
+[ $rc -eq 2 ] && grep -q "holds the study's inputs" "$tmp/e" && [ -s "$tmp/study/trials.csv" ] \
+    && pass "--out at the study folder with --force: refused, inputs kept" || fail "inputs guard: rc $rc $(cat "$tmp/e")"
+"$BANDLINK" run "$tmp/study/study.json" --out "$tmp/r1/" 2>"$tmp/e"; rc=$?
+[ $rc -eq 2 ] && grep -q "already exists" "$tmp/e" && pass "trailing slash: same folder, no clobber" || fail "trailing slash: rc $rc"
+
 # Usage errors.
 "$BANDLINK" run 2>"$tmp/e"; [ $? -eq 2 ] && grep -q "missing the study file" "$tmp/e" && pass "no study: exit 2" || fail "no study"
 "$BANDLINK" run "$tmp/study/study.json" --threads 0 2>"$tmp/e"; [ $? -eq 2 ] && pass "--threads 0: exit 2" || fail "--threads 0"
