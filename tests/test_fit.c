@@ -168,6 +168,16 @@ int main(void)
     best = fmin(best, nm->fval);
     check_abs(-best, r.log_likelihood, 1e-6, "BFGS optimum = Nelder-Mead optimum in log-likelihood");
     gsl_multimin_fminimizer_free(nm);
+
+    /* bandlink's own derivative-free path (the fallback) alone reaches the same optimum. */
+    bl_fit_options sopt = opt;
+    sopt.simplex_only = 1;
+    sopt.starts = 1;
+    bl_fit_result rs;
+    check_true(bl_fit_model(m, &sopt, NULL, &rs, &warn, &err) == BL_OK && !strcmp(rs.diag.method, "nmsimplex2"),
+               "nmsimplex2-only fit runs");
+    check_abs(rs.log_likelihood, r.log_likelihood, 1e-6, "nmsimplex2 path = BFGS optimum in log-likelihood");
+    bl_fit_result_clear(&rs);
     gsl_vector_free(x);
     gsl_vector_free(step);
 

@@ -27,6 +27,7 @@ typedef struct {
     const char *const *models;      /* fit only these model names (all when n_models == 0) */
     size_t n_models;
     int starts;                     /* optimiser starts per fit; <= 0: the study's fit.starts, else 3 */
+    int simplex_only;               /* 1: Nelder-Mead (nmsimplex2) alone instead of BFGS (for checks) */
     /* Called between fits (may be NULL): stage text, steps done, steps in total. */
     void (*progress)(void *user, const char *stage, size_t done, size_t total);
     void *progress_user;
@@ -45,7 +46,8 @@ typedef struct {
 } bl_coefficient;
 
 typedef struct {
-    const char *method;             /* "bfgs2", or "bfgs2+nmsimplex2" when the fallback was used */
+    const char *method;             /* "bfgs2", "bfgs2+nmsimplex2" when the fallback was used,
+                                       "nmsimplex2" with simplex_only */
     int converged;                  /* gradient small in SE units and information positive definite */
     double gradient_norm;           /* max |d loglik / d coef| at the optimum */
     double newton_decrement;        /* sqrt(g' H^-1 g): distance to the optimum in SE units; NAN if no H */
