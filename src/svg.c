@@ -467,10 +467,13 @@ int bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double 
 
 /* ---- layout and rendering ---- */
 
+/* Ticks per axis; also the most categories an axis labels. */
+enum { MAX_TICKS = 256 };
+
 typedef struct {
     double lo, hi;         /* in transformed units (log10 for log axes) */
-    double ticks[64];
-    char labels[64][32];
+    double ticks[MAX_TICKS];
+    char labels[MAX_TICKS][32];
     int n_ticks;
     double px0, px1;       /* pixel positions of lo and hi */
 } scale_t;
@@ -563,7 +566,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
         size_t n = a->n_cats ? a->n_cats : 1;
         s->lo = -0.5;
         s->hi = (double)n - 0.5;
-        for (size_t i = 0; i < a->n_cats && i < 64; i++) {
+        for (size_t i = 0; i < a->n_cats && i < MAX_TICKS; i++) {
             s->ticks[s->n_ticks] = (double)i;
             snprintf(s->labels[s->n_ticks], sizeof s->labels[0], "%s", "");
             s->n_ticks++;
@@ -611,7 +614,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
             if ((e - (int)e0) % every != 0) continue;
             for (int m = 0; m < (use_mant ? 3 : 1); m++) {
                 double t = e + log10(mant[m]);
-                if (t < lo - 1e-9 || t > hi + 1e-9 || s->n_ticks >= 64) continue;
+                if (t < lo - 1e-9 || t > hi + 1e-9 || s->n_ticks >= MAX_TICKS) continue;
                 s->ticks[s->n_ticks] = t;
                 snprintf(s->labels[s->n_ticks], sizeof s->labels[0], "%g", mant[m] * pow(10, e));
                 s->n_ticks++;
@@ -627,7 +630,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
         if (!a->fixed) lo = wlo, hi = whi;
         else if (lo == hi) lo = wlo, hi = whi;
         double k0 = round(first / step);
-        for (int k = 0; k < count && s->n_ticks < 64; k++) {
+        for (int k = 0; k < count && s->n_ticks < MAX_TICKS; k++) {
             double t = (k0 + k) * step;
             if (t < lo - 1e-9 * step || t > hi + 1e-9 * step) continue;
             s->ticks[s->n_ticks] = t;

@@ -63,8 +63,8 @@ BL_API void bl_svg_axis_log(bl_svg_panel *p, int axis);
 BL_API void bl_svg_axis_range(bl_svg_panel *p, int axis, double lo, double hi);
 /* Make sure an automatic range includes `value` (e.g. 0 for bars). */
 BL_API void bl_svg_axis_include(bl_svg_panel *p, int axis, double value);
-/* A categorical axis: data coordinate k (0-based) is category k, shown with labels[k]. On the Y
- * axis category 0 is at the top. */
+/* A categorical axis: data coordinate k (0-based) is category k, shown with labels[k] (the first
+ * 256 are labelled). On the Y axis category 0 is at the top. */
 BL_API void bl_svg_axis_categories(bl_svg_panel *p, int axis, const char *const *labels, size_t n);
 
 /* Data elements, drawn in the order added. Arrays are copied. NAN values break a line / ribbon
