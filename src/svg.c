@@ -18,7 +18,7 @@
 enum { FS_TITLE = 15, FS_PANEL = 13, FS_LABEL = 12, FS_TICK = 11, FS_LEGEND = 12, FS_SPAN = 10 };
 static const double TITLE_H = 34, LEGEND_ROW = 18;
 
-typedef enum { EL_LINE, EL_POINTS, EL_ERRORBARS, EL_RIBBON, EL_VSPAN, EL_BARS, EL_REFLINE, EL_NOTE } el_kind;
+typedef enum { EL_LINE, EL_POINTS, EL_ERRORBARS, EL_RIBBON, EL_VSPAN, EL_BARS, EL_REFLINE, EL_NOTE, EL_TEXT } el_kind;
 
 typedef struct {
     el_kind kind;
@@ -330,6 +330,17 @@ void bl_svg_refline(bl_svg_panel *p, int axis, double value, bl_svg_style s)
     e->a = value;
 }
 
+void bl_svg_text(bl_svg_panel *p, double x, double y, double dy, const char *text, bl_svg_style s)
+{
+    element *e = add_el(p, EL_TEXT, s);
+    if (!e) return;
+    e->a = x;
+    e->b = y;
+    e->n = 0;
+    e->style.width = dy; /* reused: pixel offset */
+    e->text = dup_str(p->fig, text ? text : "");
+}
+
 void bl_svg_note(bl_svg_panel *p, const char *text)
 {
     element *e = add_el(p, EL_NOTE, (bl_svg_style){0});
@@ -544,6 +555,7 @@ static void data_extent(const bl_svg_panel *p, int axis, double *lo, double *hi)
         case EL_REFLINE:
             if (axis == e->axis) extend(lo, hi, tr(a, e->a));
             break;
+        case EL_TEXT: extend(lo, hi, tr(a, axis == BL_SVG_X ? e->a : e->b)); break;
         case EL_NOTE: break;
         }
     }
@@ -832,6 +844,14 @@ static void render_element(FILE *f, const bl_svg_panel *p, const element *e, con
     case EL_NOTE:
         text_el(f, (b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2, FS_LABEL, "middle", "fill=\"#555555\"", e->text);
         break;
+    case EL_TEXT: {
+        double x = PX(e->a), y = PY(e->b);
+        if (!isfinite(x) || !isfinite(y)) break;
+        char fill[32];
+        snprintf(fill, sizeof fill, "fill=\"%s\"", e->color);
+        text_el(f, x, y - e->style.width, FS_SPAN, "middle", fill, e->text);
+        break;
+    }
     }
 #undef PX
 #undef PY

@@ -85,6 +85,8 @@ BL_API void bl_svg_bars(bl_svg_panel *p, const double *x, const double *y, size_
                         bl_svg_style s);
 /* A reference line across the panel at `value` of `axis` (BL_SVG_X: vertical line). */
 BL_API void bl_svg_refline(bl_svg_panel *p, int axis, double value, bl_svg_style s);
+/* A short label at data point (x, y), centred, `dy` pixels above it (negative: below). */
+BL_API void bl_svg_text(bl_svg_panel *p, double x, double y, double dy, const char *text, bl_svg_style s);
 /* A centred message in the panel (e.g. "no slopes in any model"); a panel with only a note has no
  * axes. */
 BL_API void bl_svg_note(bl_svg_panel *p, const char *text);
