@@ -82,54 +82,78 @@ bl_status bl_wiener_check(const bl_wiener_params *p, bl_error *err)
 static const double LOG_SQRT_2PI = 0.91893853320467274178;
 
 /* Small-time series (u < 0.25). Sums are scaled by exp(w^2 / (2u)) so the k = 0 image is w.
- * Returns log(S0); fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
+ * Every scaled image term is a product of powers of two exponentials, A = exp(-2(1-w)/u) and
+ * B = exp(-2(1+w)/u): the image at w - 2k has exp(-2k(k-w)/u) = A^{k(k+1)/2} B^{k(k-1)/2} and the one
+ * at w + 2k has A^{k(k-1)/2} B^{k(k+1)/2}; so the usual case (k <= 1 plus the bound at k = 2) costs two
+ * calls to exp. All factors are <= 1: nothing overflows.
+ * Returns S0; fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
 static double small_time(double u, double w, double eps, int want_grad, double *Lu, double *Lw)
 {
-    double iu2 = 0.5 / u;
     double S0, S3 = 0, Sw = 0;
-    int K = 0;
     double d = 1 - w;
+    double A, B = -1; /* B computed on first use */
+    double En, Ep, Ak, Bk;
+    int K;
     if (d < 1e-3) {
         /* Start near the far boundary: the k = 0 and k = -1 images cancel; pair them exactly
          * (numerics notes, section 1.3): w + (w-2)exp(-2d/u) without cancellation. */
         double em = expm1(-2 * d / u);
+        A = 1 + em;
+        B = exp(-2 * (1 + w) / u);
         S0 = -em - d * (2 + em);
-        double E0 = 1 + em;
-        double xn = w - 2, xp = w + 2, Ep = exp(-(xp * xp - w * w) * iu2);
-        S0 += xp * Ep;
+        double xn = w - 2, xp = w + 2;
+        S0 += xp * B;
         if (want_grad) {
-            S3 = w * w * w + xn * xn * xn * E0 + xp * xp * xp * Ep;
-            Sw = (1 - w * w / u) + (1 - xn * xn / u) * E0 + (1 - xp * xp / u) * Ep;
+            S3 = w * w * w + xn * xn * xn * A + xp * xp * xp * B;
+            Sw = (1 - w * w / u) + (1 - xn * xn / u) * A + (1 - xp * xp / u) * B;
         }
         K = 1;
+        En = A * A * A * B; /* images for k = 2 */
+        Ep = A * B * B * B;
+        Ak = A * A;
+        Bk = B * B;
     } else {
+        A = exp(-2 * d / u);
         S0 = w;
         if (want_grad) {
             S3 = w * w * w;
             Sw = 1 - w * w / u;
         }
+        K = 0;
+        En = A; /* images for k = 1 (Ep once B is known) */
+        Ep = 0;
+        Ak = A;
+        Bk = 1;
     }
     for (;; K++) {
         /* Nearest omitted image is x = w - 2(K+1), at distance x0 = 2K + 2 - w >= 1 > sqrt(3u):
-         * every tail bound below is valid. Its scaled term is E. */
+         * every tail bound below is valid. Its scaled term is En. */
         double x0 = 2 * K + 2 - w;
-        double E = exp(-(x0 * x0 - w * w) * iu2);
-        if ((x0 + 0.5 * u) * E <= eps * S0) {
+        if ((x0 + 0.5 * u) * En <= eps * S0) {
             if (!want_grad) break;
             /* Weight x^3 (d/du) and x^2/u (d/dw): first omitted term plus half the tail integral. */
-            double b3 = (x0 * x0 * x0 + 0.5 * u * (x0 * x0 + 2 * u)) * E;
-            double bw = (x0 * x0 / u + 0.5 * (x0 + u / x0)) * E;
+            double b3 = (x0 * x0 * x0 + 0.5 * u * (x0 * x0 + 2 * u)) * En;
+            double bw = (x0 * x0 / u + 0.5 * (x0 + u / x0)) * En;
             if (b3 <= eps * S0 * u && bw <= eps * S0) break;
         }
-        if (K > 50) break; /* unreachable for u < 0.25: E < exp(-400) by then */
+        if (K > 50) break; /* unreachable for u < 0.25: En < exp(-400) by then */
+        if (B < 0) {
+            B = exp(-2 * (1 + w) / u);
+            Ep = B;
+            Bk = B;
+        }
         double kp = K + 1;
         double xn = w - 2 * kp, xp = w + 2 * kp;
-        double Ep = exp(-(xp * xp - w * w) * iu2);
-        S0 += xn * E + xp * Ep;
+        S0 += xn * En + xp * Ep;
         if (want_grad) {
-            S3 += xn * xn * xn * E + xp * xp * xp * Ep;
-            Sw += (1 - xn * xn / u) * E + (1 - xp * xp / u) * Ep;
+            S3 += xn * xn * xn * En + xp * xp * xp * Ep;
+            Sw += (1 - xn * xn / u) * En + (1 - xp * xp / u) * Ep;
         }
+        /* step k -> k + 1: En *= A^{k+1} B^k, Ep *= A^k B^{k+1} (Ak = A^k, Bk = B^k) */
+        En *= Ak * A * Bk;
+        Ep *= Ak * Bk * B;
+        Ak *= A;
+        Bk *= B;
     }
     if (want_grad) {
         *Lu = -1.5 / u + S3 / (2 * u * u * S0);

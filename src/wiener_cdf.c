@@ -276,15 +276,9 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     bl_status s;
     if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
     if (sv == 0) {
-        double d3[3];
         if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
-        else s = blw_log_cdf_grad(y, v, a, w, upper, lF, d3);
-        if (dl) {
-            dl[0] = d3[0];
-            dl[1] = d3[1];
-            dl[2] = d3[2];
-            dl[3] = 0;
-        }
+        s = blw_log_cdf_grad(y, v, a, w, upper, lF, dl); /* fills dl[0..2] */
+        dl[3] = 0;
         return s;
     }
     const double *gx, *gw;
@@ -316,6 +310,41 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     *lF = mx + log(S);
     if (dl)
         for (int j = 0; j < 4; j++) dl[j] = D[j] / S;
+    return BL_OK;
+}
+
+/* nondecision_range window narrow against the CDF's scale: average the density over t0' by 8-node
+ * Gauss-Legendre (weights sum to 1). Gradient by differentiating under the sum. */
+static bl_status dens_narrow_window(const bl_wiener_params *p, double rt, double w, int upper, double *lf, double *g)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], sv = x[BL_DRIFT_SD];
+    double st = x[BL_NONDECISION_RANGE];
+    const double *gx, *gw;
+    blw_gauss_legendre(8, &gx, &gw);
+    double lfi[8], gi[8][BLW_NG], mx = -INFINITY;
+    for (int i = 0; i < 8; i++) {
+        lfi[i] = blw_log_dens(rt - t0 + 0.5 * st * gx[i], v, a, w, sv, upper, g ? gi[i] : NULL);
+        if (lfi[i] > mx) mx = lfi[i];
+    }
+    double S = 0, G[BLW_NG] = {0}, Gst = 0;
+    for (int i = 0; i < 8; i++) {
+        double e = gw[i] * exp(lfi[i] - mx);
+        S += e;
+        if (g) {
+            for (int j = 0; j < BLW_NG; j++) G[j] += e * gi[i][j];
+            Gst += e * gi[i][BLW_GT] * 0.5 * gx[i];
+        }
+    }
+    *lf = mx + log(S);
+    if (g) {
+        g[BL_THRESHOLD] = G[BLW_GA] / S;
+        g[BL_DRIFT] = G[BLW_GV] / S;
+        g[BL_START] = G[BLW_GW] / S;
+        g[BL_DRIFT_SD] = G[BLW_GSV] / S;
+        g[BL_NONDECISION] = -G[BLW_GT] / S;
+        g[BL_NONDECISION_RANGE] = Gst / S;
+    }
     return BL_OK;
 }
 
@@ -359,6 +388,10 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
     if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, surv, &lFlo, g ? dlo : NULL);
     if (s) return s;
     double ld = surv ? blw_logsubexp(lFlo, lFhi) : blw_logsubexp(lFhi, lFlo);
+    /* A window much narrower than the CDF's own scale (ratio F/(F(hi) - F(lo)) > 1e3) would lose
+     * digits to the subtraction; there ln f changes by less than 1/ratio across the window, so an
+     * 8-node Gauss-Legendre average of the density itself is exact to rounding. */
+    if (lo > 0 && ld > -INFINITY && exp((surv ? lFlo : lFhi) - ld) > 1e3) return dens_narrow_window(p, rt, w, upper, lf, g);
     *lf = ld - log(st);
     if (!g || ld == -INFINITY) return BL_OK;
     double rh = exp(lFhi - ld), rl = lFlo == -INFINITY ? 0 : exp(lFlo - ld);
@@ -470,10 +503,12 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
     int nl = 1, nh = 1;
     lx = hx = &zero;
     lw = hw = &one;
-    if (sz > 0) blw_gauss_legendre(nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a)) > BLW_GL_MAX
-                                            ? BLW_GL_MAX
-                                            : 2 * blw_gl_nodes_start_range(sz, y / (a * a)),
-                                   &lx, &lw);
+    if (sz > 0) {
+        /* twice the density's rule: the CDF feeds quantiles, where accuracy matters more than speed */
+        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a));
+        if (nl > BLW_GL_MAX) nl = BLW_GL_MAX;
+        blw_gauss_legendre(nl, &lx, &lw);
+    }
     if (sv > 0) nh = blw_gauss_hermite(2 * blw_gh_nodes_drift_sd(sv, a, y), &hx, &hw);
     double S = 0;
     int large = y / (a * a) >= BLW_U_SWITCH;
