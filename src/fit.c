@@ -258,7 +258,7 @@ static double run_simplex(objective *o, gsl_vector *x, size_t *iterations)
     if (!s || !step) goto done;
     gsl_vector_set_all(step, 0.2);
     if (gsl_multimin_fminimizer_set(s, &fn, x, step) != GSL_SUCCESS) goto done;
-    for (size_t it = 0; it < 4000 * o->k; it++) {
+    for (size_t it = 0; it < 500 * o->k + 1000; it++) {
         (*iterations)++;
         if (gsl_multimin_fminimizer_iterate(s) != GSL_SUCCESS) break;
         if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(s), 1e-9) == GSL_SUCCESS) break;
@@ -316,7 +316,7 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
 
 /* Covariance = info^-1 by Cholesky; 0 when info is not positive definite. cond receives the
  * eigenvalue ratio of info (NAN when the eigenvalues fail). */
-static int invert_information(const double *info, size_t k, double *cov, double *cond)
+int bl_information_inverse(const double *info, size_t k, double *cov, double *cond)
 {
     double *tmp = malloc(k * k * sizeof *tmp), *ev = malloc(k * sizeof *ev);
     *cond = NAN;
@@ -609,7 +609,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
         /* Newton polishing with the observed information: each step is checked to raise the
          * likelihood, so it can only help. */
         for (int polish = 0; polish < 4; polish++) {
-            pd = observed_information(lik, m, coef, info) && invert_information(info, k, cov, &cond);
+            pd = observed_information(lik, m, coef, info) && bl_information_inverse(info, k, cov, &cond);
             if (!pd) break;
             double nd2 = 0;
             for (size_t i = 0; i < k; i++)
@@ -694,19 +694,53 @@ done:
 
 static int default_starts(const bl_fit_options *opt) { return opt && opt->starts > 0 ? opt->starts : 3; }
 
+/* Estimates of intercept-only identity-link parameters within 1e-3 of the edge of their range
+ * (drift_sd, start_range, nondecision_range, contamination at 0; start at 0 or 1), listed into buf. */
+static int edge_estimates(const bl_model *m, const bl_fit_result *r, char *buf, size_t n)
+{
+    int found = 0;
+    buf[0] = '\0';
+    for (size_t j = 0; j < r->n_coef; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (ci->slope >= 0 || d->n_slopes || d->link != BL_LINK_IDENTITY) continue;
+        double b = r->coef[j].estimate;
+        int edge = 0;
+        switch (ci->param) {
+        case BL_DRIFT_SD:
+        case BL_START_RANGE:
+        case BL_NONDECISION_RANGE:
+        case BL_CONTAMINATION: edge = b < 1e-3; break;
+        case BL_START: edge = b < 1e-3 || b > 1 - 1e-3; break;
+        default: break;
+        }
+        if (!edge) continue;
+        size_t len = strlen(buf);
+        snprintf(buf + len, n - len, "%s%s%s%s (%.3g)", found ? ", " : "", bl_param_name(ci->param),
+                 ci->level[0] ? " " : "", ci->level, b);
+        found = 1;
+    }
+    return found;
+}
+
 static void warn_fit(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
 {
-    char who[512];
+    char who[512], edge[512];
     if (participant) snprintf(who, sizeof who, "model '%s', participant '%s'", m->name, participant);
     else snprintf(who, sizeof who, "model '%s'", m->name);
+    int at_edge = edge_estimates(m, r, edge, sizeof edge);
     if (!r->diag.hessian_positive_definite)
         bl_warnings_add(warn,
                         "%s: the observed information is not positive definite at the optimum; standard errors, "
-                        "z, p and intervals are not reported",
-                        who);
+                        "z, p and intervals are not reported%s%s",
+                        who, at_edge ? "; at the edge of their range: " : "", at_edge ? edge : "");
     else if (!r->converged)
-        bl_warnings_add(warn, "%s: did not converge (distance to the optimum %.3g standard errors, gradient %.3g)", who,
-                        r->diag.newton_decrement, r->diag.gradient_norm);
+        bl_warnings_add(warn, "%s: did not converge (distance to the optimum %.3g standard errors, gradient %.3g)%s%s",
+                        who, r->diag.newton_decrement, r->diag.gradient_norm,
+                        at_edge ? "; the maximum lies on the edge of the range of: " : "", at_edge ? edge : "");
+    else if (at_edge)
+        bl_warnings_add(warn, "%s: estimates at the edge of their range (Wald intervals unreliable there): %s", who,
+                        edge);
     if (r->diag.starts_agreed < r->diag.starts)
         bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
                         r->diag.starts_agreed, r->diag.starts);
@@ -952,7 +986,8 @@ static void unit_set_free(unit_set *u)
 
 /* Build one model for every unit (pooled: one unit; separate: one per participant with trials). */
 static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
-                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_error *err)
+                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_warnings *warn,
+                             bl_error *err)
 {
     memset(u, 0, sizeof *u);
     size_t n_units = mode == BL_PARTICIPANTS_SEPARATE ? trials->n_participants : 1;
@@ -974,7 +1009,11 @@ static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials,
                 use[i] = trials->participant[i] == p;
                 if (use[i] && !(trials->excluded && trials->excluded[i])) n_kept++;
             }
-            if (n_kept == 0) continue;
+            if (n_kept == 0) {
+                bl_warnings_add(warn, "model '%s': participant '%s' has no kept trials and is not fitted", spec->name,
+                                trials->participants[p]);
+                continue;
+            }
         }
         bl_model *m = NULL;
         st = bl_model_build(spec, trials, use, &m, err);
@@ -1161,7 +1200,7 @@ static bl_status permutation_tests(const bl_study *study, const bl_model_spec *s
                 goto done;
             }
             st = build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
-                             NULL, err);
+                             NULL, NULL, err);
             free(mem);
             if (st) goto done;
             double total = 0;
@@ -1239,52 +1278,100 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         goto fail;
     }
     set->n_models = n_sel;
-    size_t steps_total = n_sel, steps = 0;
     int nondecision_note = 0;
+    /* 1. Designs of every model (and participant), checked before anything is fitted. */
+    char ***unit_names = calloc(n_sel ? n_sel : 1, sizeof *unit_names);
+    if (!unit_names) goto nomem;
     for (size_t q = 0; q < n_sel; q++) {
         const bl_model_spec *spec = &study->models[sel[q]];
         bl_model_result *r = &set->models[q];
         r->mode = set->mode;
         r->nested = -1;
         r->n_rows = trials->n;
-        if (!(r->name = dup_str(spec->name)) || (spec->extends && !(r->extends = dup_str(spec->extends)))) goto nomem;
+        if (!(r->name = dup_str(spec->name)) || (spec->extends && !(r->extends = dup_str(spec->extends)))) goto nomem_names;
         r->used = calloc(trials->n ? trials->n : 1, 1);
         r->predicted = calloc(trials->n ? trials->n : 1, sizeof *r->predicted);
         r->p_upper = malloc((trials->n ? trials->n : 1) * sizeof(double));
         r->mean_rt = malloc((trials->n ? trials->n : 1) * sizeof(double));
         r->trial_log_likelihood = malloc((trials->n ? trials->n : 1) * sizeof(double));
-        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem;
+        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem_names;
         for (size_t i = 0; i < trials->n; i++) {
             r->p_upper[i] = r->mean_rt[i] = r->trial_log_likelihood[i] = NAN;
             for (int p = 0; p < BL_NPARAM; p++) r->predicted[i].value[p] = NAN;
             r->predicted[i].contamination_lo = r->predicted[i].contamination_hi = NAN;
         }
-        if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
-        char **unit_names = NULL;
-        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names, err))) goto fail;
-        unit_set *u = &units[q];
+        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names[q], warn, err))) goto fail_names;
         if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-            r->participants = calloc(u->n_units, sizeof *r->participants);
-            if (!r->participants) {
-                free(unit_names);
-                goto nomem;
+            r->participants = calloc(units[q].n_units, sizeof *r->participants);
+            if (!r->participants) goto nomem_names;
+            r->n_participants = units[q].n_units;
+            for (size_t i = 0; i < units[q].n_units; i++)
+                if (!(r->participants[i].participant = dup_str(unit_names[q][i]))) goto nomem_names;
+        }
+    }
+    /* 2. The fits. Several fits (models, participants) run side by side, each on one thread, with
+     * the same results as one after the other; a single fit spreads its trials over the threads. */
+    size_t n_jobs = 0;
+    for (size_t q = 0; q < n_sel; q++) n_jobs += units[q].n_units;
+    size_t *job_q = malloc((n_jobs ? n_jobs : 1) * sizeof *job_q), *job_i = malloc((n_jobs ? n_jobs : 1) * sizeof *job_i);
+    bl_status *job_st = calloc(n_jobs ? n_jobs : 1, sizeof *job_st);
+    bl_error *job_err = calloc(n_jobs ? n_jobs : 1, sizeof *job_err);
+    if (!job_q || !job_i || !job_st || !job_err) {
+        free(job_q);
+        free(job_i);
+        free(job_st);
+        free(job_err);
+        goto nomem_names;
+    }
+    for (size_t q = 0, j = 0; q < n_sel; q++)
+        for (size_t i = 0; i < units[q].n_units; i++, j++) {
+            job_q[j] = q;
+            job_i[j] = i;
+        }
+    size_t jobs_done = 0;
+    int nt = 1;
+#ifdef _OPENMP
+    nt = opt.threads > 0 ? opt.threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (n_jobs > 1 && nt > 1)
+#endif
+    for (size_t j = 0; j < n_jobs; j++) {
+        size_t q = job_q[j], i = job_i[j];
+        bl_model_result *r = &set->models[q];
+        bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
+        char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
+        fr->participant = NULL;
+        job_st[j] = fit_core(units[q].models[i], units[q].liks[i], &opt, opt.starts, NULL, 1, fr, units[q].coef[i],
+                             &job_err[j]);
+        fr->participant = keep;
+        if (opt.progress) {
+#ifdef _OPENMP
+#pragma omp critical(bl_fit_progress)
+#endif
+            {
+                jobs_done++;
+                opt.progress(opt.progress_user, r->name, jobs_done, n_jobs);
             }
         }
+    }
+    for (size_t j = 0; j < n_jobs && !st; j++)
+        if (job_st[j]) {
+            st = job_st[j];
+            if (err) *err = job_err[j];
+        }
+    free(job_q);
+    free(job_i);
+    free(job_st);
+    free(job_err);
+    if (st) goto fail_names;
+    /* 3. In model order: warnings, predictions, totals, group summaries, permutation tests. */
+    for (size_t q = 0; q < n_sel; q++) {
+        const bl_model_spec *spec = &study->models[sel[q]];
+        bl_model_result *r = &set->models[q];
+        unit_set *u = &units[q];
         r->converged = 1;
         for (size_t i = 0; i < u->n_units; i++) {
             bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
-            st = fit_core(u->models[i], u->liks[i], &opt, opt.starts, NULL, 1, fr, u->coef[i], err);
-            if (st) {
-                free(unit_names);
-                goto fail;
-            }
-            if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-                r->n_participants = i + 1;
-                if (!(fr->participant = dup_str(unit_names[i]))) {
-                    free(unit_names);
-                    goto nomem;
-                }
-            }
             warn_fit(u->models[i], fr->participant, fr, warn);
             r->log_likelihood += fr->log_likelihood;
             r->parameters += fr->parameters;
@@ -1292,7 +1379,6 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             r->converged = r->converged && fr->converged;
             fill_predictions(r, u->models[i], u->coef[i], u->liks[i]);
         }
-        free(unit_names);
         if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
             nondecision_note = 1;
         r->aic = 2.0 * (double)r->parameters - 2.0 * r->log_likelihood;
@@ -1312,16 +1398,18 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
                 f->diag.evaluations += r->participants[i].diag.evaluations;
                 f->diag.iterations += r->participants[i].diag.iterations;
                 f->diag.seconds += r->participants[i].diag.seconds;
+                f->diag.starts += r->participants[i].diag.starts;
+                f->diag.starts_agreed += r->participants[i].diag.starts_agreed;
             }
             f->diag.hessian_positive_definite = 1;
             for (size_t i = 0; i < r->n_participants; i++)
                 f->diag.hessian_positive_definite &= r->participants[i].diag.hessian_positive_definite;
-            if ((st = group_summary(r, err))) goto fail;
+            if ((st = group_summary(r, err))) goto fail_names;
         }
-        steps++;
-        if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
-        if ((st = permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail;
+        if ((st = permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail_names;
     }
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
     if (nondecision_note)
         bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
                               "the fastest RT (see docs/models.md)");
@@ -1344,6 +1432,12 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     free(sel);
     *out = set;
     return BL_OK;
+nomem_names:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+fail_names:
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
+    goto fail;
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
 fail:

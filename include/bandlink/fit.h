@@ -168,6 +168,12 @@ BL_API void bl_fit_result_clear(bl_fit_result *res);
 BL_API bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drift, double *threshold,
                                  double *nondecision, bl_error *err);
 
+/* Covariance from an observed information matrix (k x k, row-major, symmetric) by Cholesky
+ * (LAPACKE dpotrf/dpotri). Returns 1 and fills cov when info is positive definite, else 0 (cov
+ * undefined). cond receives the ratio of its largest to smallest eigenvalue (INFINITY when not
+ * positive, NAN when the eigenvalues fail). */
+BL_API int bl_information_inverse(const double *info, size_t k, double *cov, double *cond);
+
 /* Comparison (src/compare.c): fill set->comparison from set->models. */
 BL_API bl_status bl_compare_models(bl_fit_set *set, bl_error *err);
 /* Akaike weights of n AIC values (NAN-aware). */
