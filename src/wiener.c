@@ -334,10 +334,9 @@ bl_status bl_wiener_log_density_grad(const bl_wiener_params *p, double rt, int u
  * Drift: composite Gauss-Legendre over x in [-9, 9] (nu = v + sv x, normal weight), panels no wider
  * than the distance pi/(a sv) of P's poles from the real axis; start: Gauss-Legendre, 24 nodes.
  * Not a hot path (used for predictions), so it favours accuracy (checked against GSL qagi to 1e-9). */
-static void variability_moments(const bl_wiener_params *p, int upper, double *prob, double *mean_t)
+static void moments_var(double a, double v, double w, double sv, double sz, int upper, double *prob,
+                        double *mean_t)
 {
-    const double *x = p->value;
-    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], w = x[BL_START], sv = x[BL_DRIFT_SD], sz = x[BL_START_RANGE];
     const double *gx, *gw, *lx, *lw;
     static const double one = 1, zero = 0;
     int panels = 1, ng = 1, nl = 1;
@@ -372,6 +371,20 @@ static void variability_moments(const bl_wiener_params *p, int upper, double *pr
     }
     if (prob) *prob = exp(ref) * P;
     if (mean_t) *mean_t = M / P;
+}
+
+static void variability_moments(const bl_wiener_params *p, int upper, double *prob, double *mean_t)
+{
+    const double *x = p->value;
+    moments_var(x[BL_THRESHOLD], x[BL_DRIFT], x[BL_START], x[BL_DRIFT_SD], x[BL_START_RANGE], upper, prob, mean_t);
+}
+
+double blw_p_var(double v, double a, double w, double sv, double sz, int upper)
+{
+    double P;
+    if (sv == 0 && sz == 0) return exp(blw_log_p(v, a, w, upper));
+    moments_var(a, v, w, sv, sz, upper, &P, NULL);
+    return P;
 }
 
 bl_status bl_wiener_p_boundary(const bl_wiener_params *p, int upper, double *prob, bl_error *err)

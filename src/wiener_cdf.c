@@ -476,13 +476,25 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
                                    &lx, &lw);
     if (sv > 0) nh = blw_gauss_hermite(2 * blw_gh_nodes_drift_sd(sv, a, y), &hx, &hw);
     double S = 0;
-    for (int i = 0; i < nl; i++)
+    int large = y / (a * a) >= BLW_U_SWITCH;
+    for (int i = 0; i < nl; i++) {
+        double wi = w + 0.5 * sz * lx[i];
+        if (sv > 0 && large) {
+            /* F = P - S with S by the drift-shifted survival series and P by the same quadrature as
+             * bl_wiener_p_boundary, so CDF(inf) = P(boundary) exactly */
+            double lS;
+            bl_status s = surv_direct(y, v, a, wi, sv, upper, &lS, NULL);
+            if (s) return s;
+            S += lw[i] * (blw_p_var(v, a, wi, sv, 0, upper) - exp(lS));
+            continue;
+        }
         for (int j = 0; j < nh; j++) {
             double lF;
-            bl_status s = blw_log_cdf(y, v + sv * hx[j], a, w + 0.5 * sz * lx[i], upper, &lF, NULL);
+            bl_status s = blw_log_cdf(y, v + sv * hx[j], a, wi, upper, &lF, NULL);
             if (s) return s;
             S += lw[i] * hw[j] * exp(lF);
         }
+    }
     *F = S;
     return BL_OK;
 }

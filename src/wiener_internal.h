@@ -24,6 +24,9 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
 double blw_log_p_lo(double v, double a, double w);
 double blw_log_p(double v, double a, double w, int upper);
 
+/* P(boundary) averaged over drift_sd and start_range (quadrature; exact closed form without them). */
+double blw_p_var(double v, double a, double w, double sv, double sz, int upper);
+
 /* Mean decision time conditional on the lower boundary (closed form, no variability). */
 double blw_mean_t_lo(double v, double a, double w);
 

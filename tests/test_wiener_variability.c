@@ -141,6 +141,41 @@ static void contamination(void)
     check_rel(F, 0.96 * F0 + 0.02 * 0.5, 1e-13, "contamination: CDF mixes a uniform CDF");
 }
 
+/* CDF with drift_sd at small and large times vs GSL qagi over the normal drift of the plain CDF */
+typedef struct {
+    double a, v, w, sv, y;
+    int up;
+} cctx;
+
+static double cdf_over_nu(double x, void *vp)
+{
+    cctx *c = vp;
+    bl_wiener_params q = mk(c->a, c->v + c->sv * x, 0, c->w, 0, 0, 0);
+    double F;
+    bl_wiener_cdf(&q, c->y, c->up, &F, NULL);
+    return F * exp(-0.5 * x * x) / sqrt(2 * M_PI);
+}
+
+static void drift_sd_cdf(void)
+{
+    gsl_integration_workspace *ws = gsl_integration_workspace_alloc(1000);
+    static const double set[][4] = {{1.2, 1, 0.45, 0.8}, {2, -0.5, 0.5, 2}, {0.8, 3, 0.3, 1.5}, {1.5, 0, 0.6, 3}};
+    double ys[] = {0.03, 0.1, 0.3, 0.7, 2.0};
+    for (int i = 0; i < 4; i++)
+        for (int k = 0; k < 5; k++)
+            for (int up = 0; up < 2; up++) {
+                cctx c = {set[i][0], set[i][1], set[i][2], set[i][3], ys[k], up};
+                gsl_function F = {cdf_over_nu, &c};
+                double r, e, got;
+                gsl_integration_qagi(&F, 1e-300, 1e-11, 1000, ws, &r, &e);
+                bl_wiener_params p = mk(c.a, c.v, 0, c.w, c.sv, 0, 0);
+                bl_wiener_cdf(&p, c.y, up, &got, NULL);
+                check_rel(got, r, 1e-8, "drift_sd %g: CDF at %g s (%s) = int F(nu) N(nu) (GSL qagi)", c.sv, c.y,
+                          up ? "upper" : "lower");
+            }
+    gsl_integration_workspace_free(ws);
+}
+
 /* p_upper and mean RT with drift_sd: GSL integration over the normal drift */
 typedef struct {
     double a, v, w, sv;
@@ -183,7 +218,8 @@ static void drift_sd_moments(void)
 /* CDF with variability: its derivative in rt is the density; it tends to P(boundary); quantiles invert it. */
 static void cdf_quantiles(void)
 {
-    bl_wiener_params set[5];
+    bl_wiener_params set[6];
+    set[5] = mk(2, -0.5, 0.3, 0.5, 2, 0, 0); /* wide drift_sd: P's logistic shape in the drift */
     set[0] = mk(1.2, 1, 0.3, 0.45, 0, 0, 0);
     set[1] = mk(1.2, 1, 0.3, 0.45, 1.0, 0, 0);
     set[2] = mk(1.2, 1, 0.3, 0.45, 0, 0.4, 0);
@@ -192,13 +228,13 @@ static void cdf_quantiles(void)
     set[4].value[BL_CONTAMINATION] = 0.03;
     set[4].contamination_lo = 0.2;
     set[4].contamination_hi = 3;
-    for (int i = 0; i < 5; i++)
+    for (int i = 0; i < 6; i++)
         for (int up = 0; up < 2; up++) {
             bl_wiener_params *p = &set[i];
             double rts[] = {0.36, 0.5, 0.8, 1.5};
             double worst = 0;
             for (int k = 0; k < 4; k++) {
-                double h = 1e-4, Fp, Fm;
+                double h = 1e-5, Fp, Fm; /* O(h^2 F'''/F') ~ 1e-7 even near the onset */
                 bl_wiener_cdf(p, rts[k] + h, up, &Fp, NULL);
                 bl_wiener_cdf(p, rts[k] - h, up, &Fm, NULL);
                 double f = exp(ld(p, rts[k], up));
@@ -305,6 +341,7 @@ int main(void)
     nondecision_range();
     contamination();
     drift_sd_moments();
+    drift_sd_cdf();
     cdf_quantiles();
     full_gradient();
     return harness_summary();

@@ -43,13 +43,14 @@ def f_lo(t, v, a, w):
     u = t / a**2
     pre = mp.exp(-v * a * w - v * v * t / 2) / a**2
     if u < 1:
-        s = mp.fsum((w + 2 * k) * mp.exp(-(w + 2 * k) ** 2 / (2 * u)) for k in range(-12, 13))
+        # |k| <= 8 leaves terms below exp(-(16 - 1)^2 / 2) ~ 1e-49 relative at u < 1
+        s = mp.fsum((w + 2 * k) * mp.exp(-(w + 2 * k) ** 2 / (2 * u)) for k in range(-8, 9))
         return pre * s / mp.sqrt(2 * mp.pi * u**3)
     s, k = mp.mpf(0), 1
     while True:
         term = k * mp.exp(-k * k * mp.pi**2 * u / 2) * mp.sin(k * mp.pi * w)
         s += term
-        if k > 3 and abs(term) < mp.mpf(10) ** -50 * abs(s):
+        if k > 3 and abs(term) < mp.mpf(10) ** -(mp.mp.dps + 10) * abs(s):
             break
         k += 1
     return pre * mp.pi * s
@@ -87,7 +88,7 @@ def surv_lo(t, v, a, w):
     while True:
         term = k * mp.sin(k * mp.pi * w) * mp.exp(-k * k * q) / (v * v * a * a + k * k * mp.pi**2)
         s += term
-        if k > 3 and mp.exp(-k * k * q) < mp.mpf(10) ** -45:
+        if k > 3 and mp.exp(-k * k * q) < mp.mpf(10) ** -(mp.mp.dps + 5):
             break
         k += 1
     return 2 * mp.pi * mp.exp(-v * a * w - v * v * t / 2) * s
@@ -139,6 +140,8 @@ def plain_case(a, v, t0, w, rts):
 
 
 def variability_case():
+    # integrals to ~1e-12 need no more than 20 digits
+    mp.mp.dps = 20
     a, v, t0, w, sv, sz, st = 1.2, 1.0, 0.3, 0.45, 0.8, 0.2, 0.1
     rts = [0.36, 0.5, 0.9, 1.7]
     base = ["--threshold", repr(a), "--drift", repr(v), "--nondecision", repr(t0), "--start", repr(w)]
@@ -150,6 +153,11 @@ def variability_case():
             check(rel(e[name], ref) < 1e-10, "drift_sd %g: density %s at rt %g vs mpmath.quad over drift" % (sv, name, e["rt"]))
         Pref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf])
         check(rel(d["p_" + name], Pref) < 1e-9, "drift_sd %g: p_%s vs mpmath.quad" % (sv, name))
+        Mref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mean_b(nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf]) / Pref
+        check(rel(d["mean_rt_" + name], Mref + t0) < 1e-9, "drift_sd %g: mean_rt_%s vs mpmath.quad" % (sv, name))
+        for p, q in list(zip(d["quantiles"]["probabilities"], d["quantiles"][name]))[::2]:
+            F = mp.quad(lambda nu: cdf_b(mp.mpf(q) - t0, nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf]) / Pref
+            check(abs(F - p) < 1e-8, "drift_sd %g: %s quantile %g at %r: mpmath CDF/P = %s" % (sv, name, p, q, mp.nstr(F, 12)))
     # start_range: integral over the uniform start
     d = predict(base + ["--start-range", repr(sz)], rts)
     for upper, name in ((1, "upper"), (0, "lower")):
