@@ -579,7 +579,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             failed_alloc = 1;
         }
 #ifdef _OPENMP
-#pragma omp for schedule(dynamic, 1)
+#pragma omp for schedule(static) /* contiguous blocks: each thread reads its files forward */
 #endif
         for (size_t k = 0; k < n_items; k++) {
             if (!ok) continue;

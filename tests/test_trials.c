@@ -79,6 +79,19 @@ int main(void)
         check_true(strcmp(t->trial_label[1], "11") == 0, "the table's own trial column is the label");
         bl_trials_destroy(t);
     }
+    /* warnings: repeated trial labels, more than two response values */
+    write_file("dup.csv", "rat,trial,rt,correct\nr1,1,0.5,1\nr1,1,0.6,2\nr1,2,0.5,3\nr2,1,0.5,1\n");
+    const char *dup = "{\"trials\": {\"file\": \"dup.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [1]}}";
+    bl_warnings_clear(&w);
+    if (check_true(load(dup, &t, &w, &err) == BL_OK, "table with repeated labels loads")) {
+        int saw_dup = 0, saw_vals = 0;
+        for (size_t k = 0; k < w.count; k++) {
+            saw_dup += strstr(w.items[k], "participant r1 has trial 1 twice (lines 2 and 3)") != NULL;
+            saw_vals += strstr(w.items[k], "more than two values") != NULL;
+        }
+        check_true(saw_dup == 1 && saw_vals == 1 && w.count == 2, "warned about the repeated label and the third value");
+        bl_trials_destroy(t);
+    }
     /* errors naming the culprit */
     struct {
         const char *table, *want1, *want2;
