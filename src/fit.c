@@ -30,6 +30,9 @@
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+#ifdef _OPENMP
+#include <omp.h>
+#endif
 
 #define Z975 1.959963984540054 /* standard normal 97.5% quantile */
 
@@ -313,7 +316,7 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
 
 /* Covariance = info^-1 by Cholesky; 0 when info is not positive definite. cond receives the
  * eigenvalue ratio of info (NAN when the eigenvalues fail). */
-static int invert_information(const double *info, size_t k, double *cov, double *cond)
+int bl_information_inverse(const double *info, size_t k, double *cov, double *cond)
 {
     double *tmp = malloc(k * k * sizeof *tmp), *ev = malloc(k * sizeof *ev);
     *cond = NAN;
@@ -443,8 +446,8 @@ typedef struct {
 } start_result;
 
 /* The optimiser part: maximise from the given starts. best->coef must hold k values. */
-static void optimise(objective *o, gsl_rng *rng, int n_starts, const double *first, start_result *best,
-                     int *agreed, double *lls)
+static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only, const double *first,
+                     start_result *best, int *agreed, double *lls)
 {
     size_t k = o->k;
     gsl_vector *x0 = gsl_vector_alloc(k), *x = gsl_vector_alloc(k);
@@ -471,6 +474,24 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, const double *fir
         }
         size_t iters = 0;
         int simplex = 0;
+        if (simplex_only) {
+            double fs = run_simplex(o, x, &iters);
+            /* Restarted simplex: a fresh simplex escapes the collapsed ones of curved valleys. */
+            for (int round = 0; round < 5 && isfinite(fs); round++) {
+                double f2 = run_simplex(o, x, &iters);
+                if (!(fs - f2 > 1e-12)) break;
+                fs = f2;
+            }
+            double ll = isfinite(fs) ? -fs / o->inv_n : -INFINITY;
+            lls[s] = ll;
+            if (ll > best->ll) {
+                best->ll = ll;
+                best->iterations = iters;
+                best->used_simplex = 2;
+                for (size_t j = 0; j < k; j++) best->coef[j] = to_coef(&o->tr[j], gsl_vector_get(x, j));
+            }
+            continue;
+        }
         double f = run_bfgs(o, x, &iters);
         /* Fallback: derivative-free search when BFGS could not start or stalled far from a
          * stationary point, then BFGS again from where it ended. */
@@ -564,7 +585,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
     objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0};
     start_result best = {0, coef, 0, 0};
     int agreed = 0;
-    optimise(&o, rng, n_starts, start, &best, &agreed, lls);
+    optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
     if (!isfinite(best.ll)) {
         st = bl_error_set(err, BL_ERR_NUMERIC, "model '%s': the optimiser found no finite log-likelihood", m->name);
         goto fail;
@@ -573,7 +594,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
     res->log_likelihood = ll;
     res->parameters = k;
     res->trials = m->n;
-    res->diag.method = best.used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
+    res->diag.method = best.used_simplex == 2 ? "nmsimplex2" : best.used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
     res->diag.iterations = best.iterations;
     res->diag.starts = n_starts;
     res->diag.starts_agreed = agreed;
@@ -588,7 +609,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
         /* Newton polishing with the observed information: each step is checked to raise the
          * likelihood, so it can only help. */
         for (int polish = 0; polish < 4; polish++) {
-            pd = observed_information(lik, m, coef, info) && invert_information(info, k, cov, &cond);
+            pd = observed_information(lik, m, coef, info) && bl_information_inverse(info, k, cov, &cond);
             if (!pd) break;
             double nd2 = 0;
             for (size_t i = 0; i < k; i++)
@@ -931,7 +952,8 @@ static void unit_set_free(unit_set *u)
 
 /* Build one model for every unit (pooled: one unit; separate: one per participant with trials). */
 static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
-                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_error *err)
+                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_warnings *warn,
+                             bl_error *err)
 {
     memset(u, 0, sizeof *u);
     size_t n_units = mode == BL_PARTICIPANTS_SEPARATE ? trials->n_participants : 1;
@@ -953,7 +975,11 @@ static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials,
                 use[i] = trials->participant[i] == p;
                 if (use[i] && !(trials->excluded && trials->excluded[i])) n_kept++;
             }
-            if (n_kept == 0) continue;
+            if (n_kept == 0) {
+                bl_warnings_add(warn, "model '%s': participant '%s' has no kept trials and is not fitted", spec->name,
+                                trials->participants[p]);
+                continue;
+            }
         }
         bl_model *m = NULL;
         st = bl_model_build(spec, trials, use, &m, err);
@@ -1009,9 +1035,98 @@ static bl_status refit_units(unit_set *u, const bl_fit_options *opt, double *ll_
     return BL_OK;
 }
 
+/* The refits of one slope's permutation test. Permutation b shuffles with its own generator seeded
+ * from (seed, model, parameter, slope, b), so the refits can run on several threads (each with its
+ * own copy of the designs and a one-thread likelihood) and still give the same count. */
+static bl_status run_permutations(const unit_set *full, size_t **cells, const bl_fit_options *opt,
+                                  const bl_model_result *r, int p, size_t s, size_t *exceed_out, bl_error *err)
+{
+    size_t n_perm = opt->permutations, exceed = 0, done_count = 0;
+    bl_status st_all = BL_OK;
+    bl_error err_all = {0};
+    int nt = 1;
+#ifdef _OPENMP
+    nt = opt->threads > 0 ? opt->threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+    if ((size_t)nt > n_perm) nt = n_perm > 0 ? (int)n_perm : 1;
+#pragma omp parallel num_threads(nt) reduction(+ : exceed)
+#endif
+    {
+        bl_fit_options one = *opt;
+        one.threads = 1;
+        one.progress = NULL;
+        unit_set mine = {0};
+        gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+        int ok = rng != NULL;
+        mine.n_units = full->n_units;
+        mine.models = calloc(full->n_units, sizeof *mine.models);
+        mine.liks = calloc(full->n_units, sizeof *mine.liks);
+        mine.coef = calloc(full->n_units, sizeof *mine.coef);
+        ok = ok && mine.models && mine.liks && mine.coef;
+        for (size_t i = 0; ok && i < full->n_units; i++) {
+            mine.models[i] = bl_model_copy(full->models[i]);
+            mine.liks[i] = mine.models[i] ? bl_likelihood_create(mine.models[i], 1) : NULL;
+            mine.coef[i] = malloc(full->models[i]->n_coef * sizeof(double));
+            ok = mine.liks[i] && mine.coef[i];
+            if (ok) memcpy(mine.coef[i], full->coef[i], full->models[i]->n_coef * sizeof(double));
+        }
+        if (!ok) {
+#ifdef _OPENMP
+#pragma omp critical(bl_perm_error)
+#endif
+            if (!st_all) st_all = bl_error_set(&err_all, BL_ERR_NOMEM, "out of memory in the permutation test");
+        }
+#ifdef _OPENMP
+#pragma omp for schedule(dynamic, 1)
+#endif
+        for (size_t b = 0; b < n_perm; b++) {
+            if (!ok) continue;
+            bl_error e = {0};
+            bl_status st = BL_OK;
+            gsl_rng_set(rng, mix_seed(opt->seed, r->name, (unsigned long)p * 1000003UL + (unsigned long)s * 7919UL +
+                                                               (unsigned long)b * 2654435761UL));
+            for (size_t i = 0; !st && i < mine.n_units; i++)
+                st = bl_model_permute_slope(mine.models[i], p, s, cells[i], rng, &e);
+            double ll_perm = -INFINITY;
+            if (!st) st = refit_units(&mine, &one, &ll_perm, &e);
+            if (st) {
+#ifdef _OPENMP
+#pragma omp critical(bl_perm_error)
+#endif
+                if (!st_all) {
+                    st_all = st;
+                    err_all = e;
+                }
+                continue;
+            }
+            /* Ties count as reaching the observed value (a tolerance for optimiser noise). */
+            if (ll_perm >= r->log_likelihood - 1e-6) exceed++;
+            if (opt->progress) {
+#ifdef _OPENMP
+#pragma omp critical(bl_perm_progress)
+#endif
+                {
+                    done_count++;
+                    char stage[256];
+                    snprintf(stage, sizeof stage, "%s: permutations of the %s slope on '%s'", r->name,
+                             bl_param_name(p), full->models[0]->par[p].slopes[s].regressor);
+                    opt->progress(opt->progress_user, stage, done_count, n_perm);
+                }
+            }
+        }
+        gsl_rng_free(rng);
+        unit_set_free(&mine);
+    }
+    if (st_all) {
+        if (err) *err = err_all;
+        return st_all;
+    }
+    *exceed_out = exceed;
+    return BL_OK;
+}
+
 static bl_status permutation_tests(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
-                                   const bl_fit_options *opt, unit_set *full, bl_model_result *r, size_t step0,
-                                   size_t steps_total, bl_error *err)
+                                   const bl_fit_options *opt, unit_set *full, bl_model_result *r, bl_error *err)
 {
     size_t n_tests = 0;
     for (int p = 0; p < BL_NPARAM; p++) n_tests += spec->param[p].is_fixed ? 0 : spec->param[p].n_slopes;
@@ -1051,7 +1166,7 @@ static bl_status permutation_tests(const bl_study *study, const bl_model_spec *s
                 goto done;
             }
             st = build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
-                             NULL, err);
+                             NULL, NULL, err);
             free(mem);
             if (st) goto done;
             double total = 0;
@@ -1065,20 +1180,8 @@ static bl_status permutation_tests(const bl_study *study, const bl_model_spec *s
             if (st) goto done;
             ll_red = total;
             pt->statistic = 2 * (r->log_likelihood - ll_red);
-            gsl_rng_set(rng, mix_seed(opt->seed, r->name, (unsigned long)(p * 1000 + (int)s)));
             size_t exceed = 0;
-            for (size_t b = 0; b < opt->permutations; b++) {
-                for (size_t i = 0; i < full->n_units; i++)
-                    if ((st = bl_model_permute_slope(full->models[i], p, s, cells[i], rng, err))) goto done;
-                double ll_perm = -INFINITY;
-                st = refit_units(full, opt, &ll_perm, err);
-                for (size_t i = 0; i < full->n_units; i++) bl_model_restore_slopes(full->models[i]);
-                if (st) goto done;
-                /* Ties count as reaching the observed value (a tolerance for optimiser noise). */
-                if (ll_perm >= r->log_likelihood - 1e-6) exceed++;
-                if (opt->progress && (b + 1) % 10 == 0)
-                    opt->progress(opt->progress_user, "permutations", step0 + b + 1, steps_total);
-            }
+            if ((st = run_permutations(full, cells, opt, r, p, s, &exceed, err))) goto done;
             pt->permutations = opt->permutations;
             pt->exceed = exceed;
             pt->p = (1.0 + (double)exceed) / (1.0 + (double)opt->permutations);
@@ -1141,11 +1244,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         goto fail;
     }
     set->n_models = n_sel;
-    size_t slopes_total = 0;
-    for (size_t q = 0; q < n_sel; q++)
-        for (int p = 0; p < BL_NPARAM; p++)
-            if (!study->models[sel[q]].param[p].is_fixed) slopes_total += study->models[sel[q]].param[p].n_slopes;
-    size_t steps_total = n_sel + slopes_total * opt.permutations, steps = 0;
+    size_t steps_total = n_sel, steps = 0;
     int nondecision_note = 0;
     for (size_t q = 0; q < n_sel; q++) {
         const bl_model_spec *spec = &study->models[sel[q]];
@@ -1167,7 +1266,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         }
         if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
         char **unit_names = NULL;
-        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names, err))) goto fail;
+        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names, warn, err))) goto fail;
         unit_set *u = &units[q];
         if (set->mode == BL_PARTICIPANTS_SEPARATE) {
             r->participants = calloc(u->n_units, sizeof *r->participants);
@@ -1226,8 +1325,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         }
         steps++;
         if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
-        if ((st = permutation_tests(study, spec, trials, &opt, u, r, steps, steps_total, err))) goto fail;
-        steps += 0;
+        if ((st = permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail;
     }
     if (nondecision_note)
         bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "

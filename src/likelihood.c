@@ -126,8 +126,9 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
     int nt = w->threads > 0 ? w->threads : omp_get_max_threads();
     if ((size_t)nt > nb) nt = (int)nb;
     if (nt < 1) nt = 1;
-    /* Below ~1000 trials a parallel region costs more than it saves. */
-#pragma omp parallel for schedule(static) num_threads(nt) if (nb >= 16)
+    /* Below ~1000 trials a parallel region costs more than it saves. Dynamic scheduling keeps both
+     * threads busy when one is slowed by other load; the sums stay in block order. */
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (nb >= 16)
 #endif
     for (size_t b = 0; b < nb; b++) {
         size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < m->n ? k0 + BL_LIK_BLOCK : m->n;

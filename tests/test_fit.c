@@ -43,6 +43,26 @@ int main(void)
     bl_error err = {0};
     bl_warnings warn = {0};
 
+    /* --- Information matrix inverse: 2x2 closed form [[a, b], [b, d]]^-1 = [[d, -b], [-b, a]] / (ad - b^2) --- */
+    {
+        const double info[4] = {4.0, 1.5, 1.5, 2.25};
+        double cov[4], cond;
+        check_true(bl_information_inverse(info, 2, cov, &cond) == 1, "positive definite information inverts");
+        double det = 4.0 * 2.25 - 1.5 * 1.5;
+        check_rel(cov[0], 2.25 / det, 1e-14, "inverse [0][0]");
+        check_rel(cov[1], -1.5 / det, 1e-14, "inverse [0][1]");
+        check_rel(cov[2], -1.5 / det, 1e-14, "inverse [1][0] (symmetric)");
+        check_rel(cov[3], 4.0 / det, 1e-14, "inverse [1][1]");
+        /* Eigenvalues of the symmetric 2x2: (a+d)/2 +- sqrt(((a-d)/2)^2 + b^2). */
+        double mid = (4.0 + 2.25) / 2, rad = sqrt(pow((4.0 - 2.25) / 2, 2) + 1.5 * 1.5);
+        check_rel(cond, (mid + rad) / (mid - rad), 1e-12, "condition number = eigenvalue ratio");
+        const double indef[4] = {1.0, 2.0, 2.0, 1.0}; /* eigenvalues 3 and -1 */
+        check_true(bl_information_inverse(indef, 2, cov, &cond) == 0 && isinf(cond),
+                   "indefinite information: not inverted, infinite condition number");
+        const double singular[4] = {1.0, 1.0, 1.0, 1.0};
+        check_true(bl_information_inverse(singular, 2, cov, &cond) == 0, "singular information: not inverted");
+    }
+
     /* --- EZ-diffusion inversion round trip --- */
     const double ez_cases[3][3] = {{1.5, 1.2, 0.3}, {0.4, 2.0, 0.25}, {-0.8, 1.6, 0.4}};
     for (int i = 0; i < 3; i++) {
@@ -168,6 +188,16 @@ int main(void)
     best = fmin(best, nm->fval);
     check_abs(-best, r.log_likelihood, 1e-6, "BFGS optimum = Nelder-Mead optimum in log-likelihood");
     gsl_multimin_fminimizer_free(nm);
+
+    /* bandlink's own derivative-free path (the fallback) alone reaches the same optimum. */
+    bl_fit_options sopt = opt;
+    sopt.simplex_only = 1;
+    sopt.starts = 1;
+    bl_fit_result rs;
+    check_true(bl_fit_model(m, &sopt, NULL, &rs, &warn, &err) == BL_OK && !strcmp(rs.diag.method, "nmsimplex2"),
+               "nmsimplex2-only fit runs");
+    check_abs(rs.log_likelihood, r.log_likelihood, 1e-6, "nmsimplex2 path = BFGS optimum in log-likelihood");
+    bl_fit_result_clear(&rs);
     gsl_vector_free(x);
     gsl_vector_free(step);
 

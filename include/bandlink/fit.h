@@ -27,6 +27,7 @@ typedef struct {
     const char *const *models;      /* fit only these model names (all when n_models == 0) */
     size_t n_models;
     int starts;                     /* optimiser starts per fit; <= 0: the study's fit.starts, else 3 */
+    int simplex_only;               /* 1: Nelder-Mead (nmsimplex2) alone instead of BFGS (for checks) */
     /* Called between fits (may be NULL): stage text, steps done, steps in total. */
     void (*progress)(void *user, const char *stage, size_t done, size_t total);
     void *progress_user;
@@ -45,7 +46,8 @@ typedef struct {
 } bl_coefficient;
 
 typedef struct {
-    const char *method;             /* "bfgs2", or "bfgs2+nmsimplex2" when the fallback was used */
+    const char *method;             /* "bfgs2", "bfgs2+nmsimplex2" when the fallback was used,
+                                       "nmsimplex2" with simplex_only */
     int converged;                  /* gradient small in SE units and information positive definite */
     double gradient_norm;           /* max |d loglik / d coef| at the optimum */
     double newton_decrement;        /* sqrt(g' H^-1 g): distance to the optimum in SE units; NAN if no H */
@@ -165,6 +167,12 @@ BL_API void bl_fit_result_clear(bl_fit_result *res);
  * nondecision. BL_ERR_NUMERIC when the moments admit no solution (pc of 0, 0.5 or 1, vrt <= 0). */
 BL_API bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drift, double *threshold,
                                  double *nondecision, bl_error *err);
+
+/* Covariance from an observed information matrix (k x k, row-major, symmetric) by Cholesky
+ * (LAPACKE dpotrf/dpotri). Returns 1 and fills cov when info is positive definite, else 0 (cov
+ * undefined). cond receives the ratio of its largest to smallest eigenvalue (INFINITY when not
+ * positive, NAN when the eigenvalues fail). */
+BL_API int bl_information_inverse(const double *info, size_t k, double *cov, double *cond);
 
 /* Comparison (src/compare.c): fill set->comparison from set->models. */
 BL_API bl_status bl_compare_models(bl_fit_set *set, bl_error *err);
