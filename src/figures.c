@@ -414,7 +414,7 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
     for (size_t m = 0; m < nm; m++) {
         bl_svg_panel *p = bl_svg_panel_at(fig, (int)m);
         bl_svg_panel_title(p, set->models[m].name);
-        bl_svg_axis_label(p, BL_SVG_X, "response probability");
+        bl_svg_axis_label(p, BL_SVG_X, "response probability (proportion of trials)");
         bl_svg_axis_label(p, BL_SVG_Y, "RT quantile (s)");
         bl_svg_axis_range(p, BL_SVG_X, 0, 1);
         /* Rows of this model for the condition cells: 2 per cell (upper, lower). */

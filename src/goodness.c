@@ -2,16 +2,15 @@
  * regressor bin (fit_quantiles.csv).
  *
  * Sources: Hyndman & Fan (1996) "Sample quantiles in statistical packages", The American
- * Statistician 50(4) - definition 7 for observed quantiles; Brent (1973) "Algorithms for
- * Minimization without Derivatives" via gsl_root_fsolver_brent for the mixture quantiles; Markov's
- * inequality P(RT > t) <= E[RT]/t for a guaranteed upper bracket.
+ * Statistician 50(4) - definition 7 for observed quantiles;
+ * Press, Teukolsky, Vetterling & Flannery (2007) "Numerical Recipes", 3rd ed., section 9.4 (Newton
+ * steps safeguarded by bisection, "rtsafe") for the mixture quantiles, with the mixture density as
+ * derivative; Markov's inequality P(RT > t) <= E[RT]/t for a guaranteed upper bracket.
  */
 #include "bandlink/goodness.h"
 
 #include "bandlink/output.h"
 
-#include <gsl/gsl_errno.h>
-#include <gsl/gsl_roots.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -39,24 +38,26 @@ typedef struct {
     size_t n;
     int upper;
     double target;     /* prob x sum w_i P_i */
-    bl_status st;
     bl_error *err;
 } mix_ctx;
 
-static double mix_f(double t, void *vp)
+/* f(t) = sum w_i cdf_i(t) - target and, when df != NULL, f'(t) = sum w_i density_i(t). */
+static bl_status mix_eval(const mix_ctx *c, double t, double *f, double *df)
 {
-    mix_ctx *c = vp;
-    double sum = 0;
+    double sum = 0, dsum = 0;
     for (size_t i = 0; i < c->n; i++) {
-        double v;
+        double wi = c->w ? c->w[i] : 1.0, v, ld;
         bl_status st = bl_wiener_cdf(&c->p[i], t, c->upper, &v, c->err);
-        if (st != BL_OK) {
-            if (c->st == BL_OK) c->st = st;
-            return NAN;
+        if (st != BL_OK) return st;
+        sum += wi * v;
+        if (df) {
+            if ((st = bl_wiener_log_density(&c->p[i], t, c->upper, &ld, c->err)) != BL_OK) return st;
+            dsum += wi * exp(ld);
         }
-        sum += (c->w ? c->w[i] : 1.0) * v;
     }
-    return sum - c->target;
+    *f = sum - c->target;
+    if (df) *df = dsum;
+    return BL_OK;
 }
 
 static double earliest(const bl_wiener_params *p)
@@ -66,98 +67,106 @@ static double earliest(const bl_wiener_params *p)
     return t > 0 ? t : 0;
 }
 
+enum { MAX_STEPS = 200 };
+static const double TOL = 1e-9; /* seconds */
+
+/* Root of the increasing function f in [a, b] with f(a) <= 0 <= f(b): Newton steps on the mixture
+ * density, kept inside the bracket, and bisection whenever a Newton step would leave the bracket or
+ * does not halve the previous step (Press et al. 2007, Numerical Recipes 3rd ed., section 9.4,
+ * "rtsafe"). x is the first point tried. */
+static bl_status solve(const mix_ctx *c, double a, double b, double x, double *root, bl_error *err)
+{
+    double dx_old = b - a, dx = dx_old;
+    for (int it = 0; it < MAX_STEPS; it++) {
+        double f, df;
+        bl_status st = mix_eval(c, x, &f, &df);
+        if (st != BL_OK) return st;
+        if (f == 0) {
+            *root = x;
+            return BL_OK;
+        }
+        if (f < 0) a = x;
+        else b = x;
+        /* Converged when the Newton step itself is below the tolerance. */
+        if (df > 0 && fabs(f) < TOL * df) {
+            *root = x - f / df;
+            return BL_OK;
+        }
+        double xn = (df > 0 && isfinite(df)) ? x - f / df : NAN;
+        if (!(xn > a && xn < b) || fabs(2 * f) > fabs(dx_old * df)) {
+            dx_old = dx;
+            xn = 0.5 * (a + b);
+            dx = xn - x;
+        } else {
+            dx_old = dx;
+            dx = xn - x;
+        }
+        if (fabs(dx) < TOL || b - a < TOL) {
+            *root = xn;
+            return BL_OK;
+        }
+        x = xn;
+    }
+    return bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile: no convergence in %d steps (bracket [%.17g, %.17g] s)",
+                        MAX_STEPS, a, b);
+}
+
 bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n, int upper,
                                         const double *probs, size_t k, double *q, double *share, bl_error *err)
 {
     for (size_t j = 0; j < k; j++) q[j] = NAN;
     if (share) *share = NAN;
     if (n == 0) return BL_OK;
-    double wsum = 0, psum = 0, lo = INFINITY;
+    double wsum = 0, psum = 0, lo = INFINITY, maxmean = 0;
     for (size_t i = 0; i < n; i++) {
-        double wi = w ? w[i] : 1.0, pu;
+        double wi = w ? w[i] : 1.0, pu, m;
         bl_status st = bl_wiener_p_upper(&params[i], &pu, err);
         if (st != BL_OK) return st;
+        double pb = upper ? pu : 1 - pu;
         wsum += wi;
-        psum += wi * (upper ? pu : 1 - pu);
+        psum += wi * pb;
         double e = earliest(&params[i]);
         if (e < lo) lo = e;
+        /* Largest conditional mean RT, for the Markov bracket below (components that never reach
+         * this boundary do not count). */
+        if (pb > 1e-300 && bl_wiener_mean_rt(&params[i], upper, &m, NULL) == BL_OK && isfinite(m) && m > maxmean)
+            maxmean = m;
     }
     if (share) *share = psum / wsum;
     if (!(psum / wsum >= 1e-12)) return BL_OK;
 
-    gsl_root_fsolver *s = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
-    if (!s) return bl_error_set(err, BL_ERR_NOMEM, "out of memory for the mixture quantile solver");
-    mix_ctx c = {params, w, n, upper, 0, BL_OK, err};
-    gsl_function F = {mix_f, &c};
-    bl_status st = BL_OK;
+    mix_ctx c = {params, w, n, upper, 0, err};
     for (size_t j = 0; j < k; j++) {
         double prob = probs[j];
-        if (!(prob > 0 && prob < 1)) {
-            st = bl_error_set(err, BL_ERR_RANGE, "quantile probability %g is outside (0, 1)", prob);
-            break;
-        }
+        if (!(prob > 0 && prob < 1))
+            return bl_error_set(err, BL_ERR_RANGE, "quantile probability %g is outside (0, 1)", prob);
         c.target = prob * psum;
-        /* Upper bracket from Markov's inequality applied to every component: at
-         * t = E[RT | boundary] / (1 - prob) each conditional CDF is >= prob, so the mixture is too. */
-        double hi = lo;
-        for (size_t i = 0; i < n; i++) {
-            double m, pu;
-            if (bl_wiener_p_upper(&params[i], &pu, NULL) != BL_OK || (upper ? pu : 1 - pu) < 1e-300) continue;
-            if (bl_wiener_mean_rt(&params[i], upper, &m, NULL) == BL_OK && isfinite(m) && m / (1 - prob) > hi)
-                hi = m / (1 - prob);
-        }
-        if (!(hi > lo)) hi = lo + 1;
-        double a = (j > 0 && isfinite(q[j - 1])) ? q[j - 1] : lo;
-        double fa = mix_f(a, &c), fb = mix_f(hi, &c);
-        for (int grow = 0; grow < 40 && c.st == BL_OK && fb < 0; grow++) {
-            hi = a + 2 * (hi - a);
-            fb = mix_f(hi, &c);
-        }
-        if (c.st != BL_OK) {
-            st = c.st;
-            break;
-        }
-        if (!(fa <= 0 && fb >= 0)) {
-            st = bl_error_set(err, BL_ERR_NUMERIC,
-                              "mixture quantile %g: cannot bracket the root (F-p = %g at %g s, %g at %g s)", prob, fa,
-                              a, fb, hi);
-            break;
-        }
-        if (fa == 0) {
-            q[j] = a;
-            continue;
-        }
-        if (fb == 0) {
-            q[j] = hi;
-            continue;
-        }
-        if (gsl_root_fsolver_set(s, &F, a, hi) != GSL_SUCCESS) {
-            st = c.st != BL_OK ? c.st
-                               : bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile %g: root solver refused [%g, %g]",
-                                              prob, a, hi);
-            break;
-        }
-        int status = GSL_CONTINUE, iter = 0;
-        while (status == GSL_CONTINUE && iter++ < 200) {
-            if (gsl_root_fsolver_iterate(s) != GSL_SUCCESS || c.st != BL_OK) {
-                status = GSL_EFAILED;
+        /* Bracket: nothing is below the earliest RT (or the previous, smaller quantile); by Markov's
+         * inequality every conditional CDF is >= prob at E[RT | boundary] / (1 - prob), so the
+         * mixture is too. */
+        double a = (j > 0 && isfinite(q[j - 1]) && probs[j - 1] < prob) ? q[j - 1] : lo;
+        double b = fmax(maxmean / (1 - prob), a + 4 * TOL);
+        /* Start from the previous quantile (Newton moves right from there) or the bracket's middle.
+         * F(a) < p needs no check (a is the earliest RT or a smaller quantile); F(b) >= p holds
+         * by Markov's inequality, and is checked only when the root lands on b (engine rounding). */
+        double x0 = j > 0 ? a : 0.5 * (a + b);
+        bl_status st = solve(&c, a, b, x0, &q[j], err);
+        for (int grow = 0; st == BL_OK && q[j] > b - 2 * TOL; grow++) {
+            double fb;
+            if ((st = mix_eval(&c, b, &fb, NULL)) != BL_OK) break;
+            if (fb >= 0) break;
+            if (grow == 40) {
+                st = bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile %g: cannot bracket the root (F-p = %g at %g s)",
+                                  prob, fb, b);
                 break;
             }
-            status = gsl_root_test_interval(gsl_root_fsolver_x_lower(s), gsl_root_fsolver_x_upper(s), 1e-9, 1e-12);
+            a = b;
+            b = a + 2 * (b - lo);
+            st = solve(&c, a, b, a, &q[j], err);
         }
-        if (c.st != BL_OK) {
-            st = c.st;
-            break;
-        }
-        if (status != GSL_SUCCESS) {
-            st = bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile %g: Brent's method did not converge in 200 steps",
-                              prob);
-            break;
-        }
-        q[j] = gsl_root_fsolver_root(s);
+        if (st != BL_OK) return st;
     }
-    gsl_root_fsolver_free(s);
-    return st;
+    return BL_OK;
 }
 
 /* ---- groups ---- */

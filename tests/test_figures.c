@@ -105,7 +105,7 @@ int main(void)
     /* 3. QP: one panel per model, observed points = 5 quantiles x cells x 2 responses. */
     f = find(fs, "quantile_probability.svg");
     if (f) {
-        check_true(strstr(f->svg, ">response probability<") && strstr(f->svg, ">RT quantile (s)<"), "QP axes with units");
+        check_true(strstr(f->svg, ">response probability (proportion of trials)<") && strstr(f->svg, ">RT quantile (s)<"), "QP axes with units");
         size_t pts = count_in(f->svg, "id=\"qp-p0\"", "id=\"qp-p1\"", "<circle");
         check_true(pts == 5 * 2 * g->n_cells, "observed points in panel 1: %zu", pts);
         size_t lines = count_in(f->svg, "id=\"qp-p1\"", "qp-legend", "stroke-linejoin");
@@ -160,6 +160,38 @@ int main(void)
     }
     bl_figure_set_destroy(fs3);
     bl_goodness_destroy(g);
+
+    /* Only the baseline model (no slopes): the parameter figure says so, the others still draw. */
+    fx->set.n_models = 1;
+    g = NULL;
+    fs3 = NULL;
+    check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 1, &g, &err) == BL_OK, "goodness, baseline only");
+    check_true(g && g->n_groups == g->n_cells, "no slope: no regressor bins");
+    check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs3, &err) == BL_OK,
+               "figures, baseline only");
+    if (fs3) {
+        f = find(fs3, "parameter_vs_regressor.svg");
+        check_true(f && strstr(f->svg, "the best model has no slopes"), "no-slope note");
+        f = find(fs3, "quantile_probability.svg");
+        check_true(f && count(f->svg, "<text x=") > 10 && strstr(f->svg, "qp-p0"), "QP still drawn");
+    }
+    bl_figure_set_destroy(fs3);
+    bl_goodness_destroy(g);
+    /* No model at all: every figure is a note, nothing crashes. */
+    fx->set.n_models = 0;
+    g = NULL;
+    fs3 = NULL;
+    check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 1, &g, &err) == BL_OK && g->n_rows == 0,
+               "goodness, no model: no rows");
+    check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs3, &err) == BL_OK && fs3->n == 5,
+               "figures, no model");
+    if (fs3) {
+        check_true(strstr(find(fs3, "coefficients.svg")->svg, "no fitted model") != NULL, "coefficient note");
+        check_true(strstr(find(fs3, "quantile_probability.svg")->svg, "no fitted model") != NULL, "QP note");
+    }
+    bl_figure_set_destroy(fs3);
+    bl_goodness_destroy(g);
+    fx->set.n_models = 2;
     fixture_destroy(fx);
 
     fx = fixture_create(99, 1);

@@ -12,8 +12,9 @@
  *
  * Observed quantiles: Hyndman & Fan (1996) definition 7 (linear interpolation between order
  * statistics; numpy.quantile's default). Predicted quantiles: the quantile of the mixture, over the
- * group's trials, of each trial's predicted RT distribution given the boundary, found by Brent's
- * method (GSL) on the mixture CDF built from bl_wiener_cdf. Predicted share: mean predicted
+ * group's trials, of each trial's predicted RT distribution given the boundary, found by Newton
+ * steps safeguarded by bisection on the mixture CDF built from bl_wiener_cdf (its derivative from
+ * bl_wiener_log_density). Predicted share: mean predicted
  * probability of the boundary over the group's trials.
  */
 #ifndef BL_GOODNESS_H
@@ -87,7 +88,7 @@ BL_API double bl_goodness_sample_quantile(const double *sorted, size_t n, double
  * weights w (NULL = equal), each distribution conditional on the boundary `upper`:
  *   F(t) = sum_i w_i cdf_i(t, upper) / sum_i w_i P_i(upper).
  * Also returns the mixture's boundary probability sum_i w_i P_i / sum_i w_i in *share (may be NULL).
- * Quantiles are NAN when that share is below 1e-12. Solved to 1e-9 s. */
+ * Quantiles are NAN when that share is below 1e-12. Solved to 1e-9 s (a Newton step below that). */
 BL_API bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n,
                                                int upper, const double *probs, size_t k, double *q,
                                                double *share, bl_error *err);
