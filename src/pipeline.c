@@ -1,40 +1,44 @@
 /* The whole job (`bandlink run`) and the staging folder it (and `bandlink simulate`) writes through.
  *
+ * Job: study -> trials -> band power (power.csv) -> every model fitted and compared (comparison.csv,
+ * trials.csv) -> goodness of fit (fit_quantiles.csv) -> figures/ -> report.html -> provenance with the
+ * SHA-256 of every input (FIPS 180-4, sha256.c) -> fits.json, each stage timed with a monotonic clock.
+ *
  * Staging: everything is written into a hidden temporary folder beside the target; only a complete
  * folder is moved into place. Replacing an existing folder uses renameat2(RENAME_EXCHANGE) (Linux >= 3.15)
  * so the old folder stays whole until the swap; elsewhere the old folder is renamed aside first and
  * restored if the second rename fails. A run killed part-way leaves only the hidden folder, which the
  * next run removes once its process is gone.
  */
-#define _GNU_SOURCE 1
+#define _GNU_SOURCE 1 /* renameat2, RENAME_EXCHANGE */
 #include "bandlink/pipeline.h"
 
-#include "bandlink/output.h"
-#include "bl_config.h"
+#include "bandlink/figures.h"
 #include "bandlink/fit.h"
+#include "bandlink/goodness.h"
+#include "bandlink/output.h"
 #include "bandlink/power.h"
+#include "bandlink/report.h"
 #include "bandlink/results.h"
 #include "bandlink/sha256.h"
 #include "bandlink/study.h"
 #include "bandlink/trials.h"
-#include "bandlink/figures.h"
-#include "bandlink/goodness.h"
-#include "bandlink/report.h"
+#include "bl_config.h"
 
 #include <cjson/cJSON.h>
 #include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
 #include <ftw.h>
+#include <math.h>
 #include <signal.h>
+#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
-#include <math.h>
-#include <stdarg.h>
 #ifdef _OPENMP
 #include <omp.h>
 #endif
@@ -708,6 +712,7 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
 
     /* Setup also covers hashing the inputs and writing fits.json (its provenance needs the end time). */
     t = now_seconds();
+    say(opt, BL_STAGE_SETUP, "hashing the inputs, writing fits.json", 0, 0);
     if ((st = make_provenance(opt, study, trials, pr, seed, threads, started, &prov, err))) goto done;
     out->stage_seconds[BL_STAGE_SETUP] += now_seconds() - t;
     out->total_seconds = now_seconds() - t_all;
