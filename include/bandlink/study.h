@@ -62,6 +62,8 @@ typedef struct bl_study {
         size_t n_upper;
         char *stimulus;           /* NULL = accuracy coding */
         double rt_min, rt_max;    /* keep rules; NAN when not given */
+        char *trial;              /* column with the trial's own label ("trial" by default, used when present) */
+        int trial_given;          /* the study named `trial` explicitly (then the column must exist) */
     } trials;
 
     int has_recordings;           /* the study has a "recordings" section */
@@ -92,6 +94,7 @@ typedef struct bl_study {
         double peak_to_peak;      /* artifact limit in `unit`; 0 = off */
         double flat;              /* flat if peak-to-peak below this; 0 = off */
         int clipping;             /* flag samples at the format's full scale */
+        int median;               /* average "median" (bias-corrected) instead of "mean" */
     } power;
 
     struct {

@@ -31,4 +31,12 @@ BL_API bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, b
 BL_API void bl_trials_exclude(bl_trials *t, size_t i, const char *reason);
 BL_API void bl_trials_destroy(bl_trials *t);
 
+/* Exclusion reasons with their counts, in order of first appearance (caller frees the array;
+ * the reason strings belong to the trials). Returns the number of distinct reasons. */
+typedef struct {
+    const char *reason;
+    size_t count;
+} bl_exclusion_count;
+BL_API size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out);
+
 #endif
