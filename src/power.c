@@ -137,10 +137,15 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
     const char *path = r->recordings[rec].path;
     const char *part = t->participants[t->participant[first_row]];
     bl_error e = {0};
+    if (is_text_trace(path)) { /* parsed whole: let threads parse different CSV files at once */
+        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+    } else {
+        /* sf_open reports failures through a process-wide sf_strerror(NULL): one thread at a time */
 #ifdef _OPENMP
 #pragma omp critical(bl_trace_open)
 #endif
-    st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+    }
     if (st)
         return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
     const bl_trace_info *info = bl_trace_get_info(ts->trace);
@@ -574,7 +579,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             failed_alloc = 1;
         }
 #ifdef _OPENMP
-#pragma omp for schedule(dynamic, 1)
+#pragma omp for schedule(static) /* contiguous blocks: each thread reads its files forward */
 #endif
         for (size_t k = 0; k < n_items; k++) {
             if (!ok) continue;
@@ -609,6 +614,11 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
         }
+    if (s->power.clipping)
+        for (size_t k = 0; k < r->n_recordings; k++)
+            if (!strstr(r->recordings[k].format, "-bit PCM"))
+                bl_warnings_add(warn, "%s (%s) has no integer full scale, so power.artifacts.clipping does not apply to it",
+                                r->recordings[k].path, r->recordings[k].format);
     if (r->n_artifacts)
         bl_warnings_add(warn, "%zu of %zu windowed trials were flagged as artifacts and left out", r->n_artifacts, n_jobs);
 

@@ -138,7 +138,7 @@ static int row_push(row_buf *r, const char *s, size_t len, size_t col)
     }
     char *d = malloc(len + 1);
     if (!d) return 0;
-    memcpy(d, s, len);
+    if (len) memcpy(d, s, len); /* s may be NULL for an empty quoted field */
     d[len] = '\0';
     r->col[r->n] = col;
     r->cells[r->n++] = d;

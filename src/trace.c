@@ -17,6 +17,7 @@ struct bl_trace {
     char *path;
     bl_trace_info info;
     SNDFILE *sf;
+    int64_t pos;            /* the sound file's read position (frames), -1 when unknown */
     double *csv;            /* frames x channels, interleaved (CSV traces only) */
 };
 
@@ -190,6 +191,7 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the recording holds no samples", path);
         goto fail;
     }
+    t->pos = 0;
     t->info.rate = si.samplerate;
     t->info.channels = (size_t)si.channels;
     t->info.frames = si.frames;
@@ -230,13 +232,33 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
         memcpy(buf, t->csv + (size_t)start * t->info.channels, n * t->info.channels * sizeof *buf);
         return BL_OK;
     }
-    if (sf_seek(t->sf, start, SEEK_SET) != start)
+    /* Windows usually come in increasing order. A seek in a compressed file (FLAC without a seek table)
+     * searches the stream, so a short gap ahead is cheaper to decode and discard (into buf) than to seek. */
+    int64_t gap = start - t->pos;
+    if (t->pos >= 0 && gap >= 0 && gap <= (int64_t)(4 * n + 65536)) {
+        while (gap > 0) {
+            sf_count_t step = gap < (int64_t)n ? (sf_count_t)gap : (sf_count_t)n;
+            sf_count_t got = sf_readf_double(t->sf, buf, step);
+            if (got != step) {
+                t->pos = -1;
+                return bl_error_set(err, BL_ERR_IO, "%s: read %lld of %lld samples at sample %lld; the file is truncated or "
+                                    "damaged (%s)", t->path, (long long)got, (long long)step,
+                                    (long long)(start - gap), sf_strerror(t->sf));
+            }
+            gap -= step;
+        }
+    } else if (sf_seek(t->sf, start, SEEK_SET) != start) {
+        t->pos = -1;
         return bl_error_set(err, BL_ERR_IO, "%s: cannot seek to sample %lld: %s", t->path, (long long)start,
                             sf_strerror(t->sf));
+    }
     sf_count_t got = sf_readf_double(t->sf, buf, (sf_count_t)n);
-    if (got != (sf_count_t)n)
+    if (got != (sf_count_t)n) {
+        t->pos = -1;
         return bl_error_set(err, BL_ERR_IO, "%s: read %lld of %zu samples at sample %lld; the file is truncated or damaged (%s)",
                             t->path, (long long)got, n, (long long)start, sf_strerror(t->sf));
+    }
+    t->pos = start + (int64_t)n;
     return BL_OK;
 }
 

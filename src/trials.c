@@ -97,6 +97,18 @@ size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
     return n;
 }
 
+/* qsort has no context argument in C11; loading is not done from several threads at once on one table,
+ * but keep the pointer thread-local anyway */
+static _Thread_local const bl_trials *sort_trials;
+
+static int cmp_trial(const void *a, const void *b)
+{
+    size_t i = *(const size_t *)a, j = *(const size_t *)b;
+    const bl_trials *t = sort_trials;
+    if (t->participant[i] != t->participant[j]) return t->participant[i] < t->participant[j] ? -1 : 1;
+    return strcmp(t->trial_label[i], t->trial_label[j]);
+}
+
 bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warnings *warn, bl_error *err)
 {
     *out = NULL;
@@ -223,6 +235,39 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
             if (!isnan(study->trials.rt_max) && t->rt[i] > study->trials.rt_max) bl_trials_exclude(t, i, "rt > keep.rt_max");
         }
         if (c_onset >= 0 && !tab->cols[c_onset].text[i]) bl_trials_exclude(t, i, "missing onset");
+    }
+    /* distinct response values: more than two usually means the wrong column or coding */
+    {
+        const char *seen[3];
+        size_t n_seen = 0;
+        for (size_t i = 0; i < n && n_seen < 3; i++) {
+            const char *v = resp->text[i];
+            if (!v) continue;
+            size_t k = 0;
+            while (k < n_seen && strcmp(seen[k], v) != 0) k++;
+            if (k == n_seen) seen[n_seen++] = v;
+        }
+        if (n_seen > 2)
+            bl_warnings_add(warn, "%s: column %s has more than two values (%s, %s, %s, ...); every value not listed in "
+                            "trials.upper is coded as the lower boundary", file, resp->name, seen[0], seen[1], seen[2]);
+    }
+    /* the same trial label twice within a participant makes power.csv and trials.csv ambiguous */
+    {
+        size_t *idx = malloc(n * sizeof *idx);
+        if (idx) {
+            for (size_t i = 0; i < n; i++) idx[i] = i;
+            sort_trials = t;
+            qsort(idx, n, sizeof *idx, cmp_trial);
+            size_t dup = 0;
+            for (size_t k = 1; k < n; k++)
+                if (cmp_trial(&idx[k - 1], &idx[k]) == 0 && dup++ == 0)
+                    bl_warnings_add(warn, "%s: participant %s has trial %s twice (lines %zu and %zu)", file,
+                                    t->participants[t->participant[idx[k]]], t->trial_label[idx[k]],
+                                    tab->line[idx[k - 1] < idx[k] ? idx[k - 1] : idx[k]],
+                                    tab->line[idx[k - 1] < idx[k] ? idx[k] : idx[k - 1]]);
+            if (dup > 1) bl_warnings_add(warn, "%s: %zu more repeated trial labels", file, dup - 1);
+            free(idx);
+        }
     }
     if (n_upper_rows == 0)
         bl_warnings_add(warn, "%s: no trial has a %s value listed in trials.upper, so every response is coded as the "

@@ -7,6 +7,7 @@
 #include <gsl/gsl_rng.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #ifndef M_PI
 #define M_PI 3.14159265358979323846
@@ -98,16 +99,31 @@ static void check_fixtures(const char *dir)
 int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
-    char dir[1024];
+    /* fixtures: argv[1], $BL_SOURCE_ROOT, or beside this source file; __FILE__ is relative to the build
+     * folder (where meson runs tests), so also try it relative to the folder above this executable */
+    char dir[4096] = "";
     const char *root = getenv("BL_SOURCE_ROOT");
+    char src[1024];
+    snprintf(src, sizeof src, "%s", __FILE__);
+    char *slash = strrchr(src, '/');
+    if (slash) *slash = '\0';
+    else snprintf(src, sizeof src, ".");
     if (argc > 1) snprintf(dir, sizeof dir, "%s", argv[1]);
     else if (root) snprintf(dir, sizeof dir, "%s/tests/fixtures/welch", root);
     else {
-        /* meson runs unit tests from the build folder; __FILE__ is then relative to it */
-        snprintf(dir, sizeof dir, "%s", __FILE__);
-        char *slash = strrchr(dir, '/');
-        if (slash) snprintf(slash, sizeof dir - (size_t)(slash - dir), "/fixtures/welch");
-        else snprintf(dir, sizeof dir, "fixtures/welch");
+        snprintf(dir, sizeof dir, "%s/fixtures/welch", src);
+        char exe[1024];
+        ssize_t len = readlink("/proc/self/exe", exe, sizeof exe - 1);
+        FILE *probe = fopen(dir, "r");
+        if (probe) fclose(probe);
+        else if (src[0] != '/' && len > 0) {
+            exe[len] = '\0';
+            for (int up = 0; up < 2; up++) { /* build/tests/test_spectrum -> build */
+                char *e = strrchr(exe, '/');
+                if (e) *e = '\0';
+            }
+            snprintf(dir, sizeof dir, "%s/%s/fixtures/welch", exe, src);
+        }
     }
     check_fixtures(dir);
 

@@ -54,6 +54,10 @@ int main(void)
         check_true(!t->cols[1].numeric && !t->cols[2].numeric, "inf and 0x10 make a column text");
         bl_table_destroy(t);
     }
+    /* an empty quoted field is a missing cell */
+    t = parse("a,b\n\"\",1\n", &err);
+    check_true(t && t->n_rows == 1 && t->cols[0].text[0] == NULL && t->cols[1].num[0] == 1, "\"\" is missing");
+    bl_table_destroy(t);
     /* errors */
     struct {
         const char *text, *want;

@@ -1,0 +1,261 @@
+/* Band power end to end through the library: window convention, analytic band power of a bin-centred sine
+ * behind a bipolar montage, scale and standardize, artifacts, line-noise bins, thread invariance, errors,
+ * and power.csv. Analytic values: a sine of amplitude A has power A^2/2 (Parseval; Hann main lobe +-1 bin). */
+#include "bandlink/power.h"
+#include "bandlink/study.h"
+#include "bandlink/table.h"
+#include "bandlink/trials.h"
+#include "harness.h"
+
+#include <gsl/gsl_errno.h>
+#include <sndfile.h>
+#include <stdlib.h>
+#include <string.h>
+
+#ifndef M_PI
+#define M_PI 3.14159265358979323846
+#endif
+
+enum { FS = 1000, SECONDS = 30, NTR = 12 };
+static char dir[] = "/tmp/bl_test_power_XXXXXX";
+static double amp[2][NTR];
+
+static void write_text(const char *name, const char *text)
+{
+    char p[256];
+    snprintf(p, sizeof p, "%s/%s", dir, name);
+    FILE *f = fopen(p, "w");
+    fputs(text, f);
+    fclose(f);
+}
+
+/* Participant file: channel 2 = common-mode signal, channel 1 = common + a 10 Hz sine of amplitude amp[p][k]
+ * exactly in the samples of trial k's window [s - 1000, s), s = round(onset * FS), onset = 2 k + 2.0004. */
+static void write_recording(int p, int format, const char *name)
+{
+    static double x[FS * SECONDS * 2];
+    for (size_t i = 0; i < FS * SECONDS; i++) {
+        double common = 0.3 * sin(0.0123 * (double)i) + 0.1 * cos(2 * M_PI * 50 * (double)i / FS);
+        x[2 * i] = x[2 * i + 1] = common;
+    }
+    for (int k = 0; k < NTR; k++) {
+        long s = lround((2.0 * k + 2.0004) * FS);
+        for (long i = s - FS; i < s; i++) x[2 * i] += amp[p][k] * sin(2 * M_PI * 10 * (double)(i - (s - FS)) / FS);
+        x[2 * s] += 0.5;          /* spikes just outside the window: an off-by-one would see them */
+        x[2 * (s - FS - 1)] += 0.5;
+    }
+    if (p == 0) { /* trial 4: flat; trial 5: a non-finite sample */
+        long s = lround((2.0 * 3 + 2.0004) * FS);
+        for (long i = s - FS; i < s; i++) x[2 * i] = x[2 * i + 1];
+        s = lround((2.0 * 4 + 2.0004) * FS);
+        x[2 * (s - 10)] = NAN;
+    } else { /* trial 4: a sample at full scale (clipping); trial 5: a big step (peak-to-peak) */
+        long s = lround((2.0 * 3 + 2.0004) * FS);
+        x[2 * (s - 100)] = 1.0;
+        s = lround((2.0 * 4 + 2.0004) * FS);
+        for (long i = s - 300; i < s; i++) x[2 * i] += 0.45;
+    }
+    SF_INFO si = {0};
+    si.samplerate = FS;
+    si.channels = 2;
+    si.format = format;
+    char path[256];
+    snprintf(path, sizeof path, "%s/%s", dir, name);
+    SNDFILE *f = sf_open(path, SFM_WRITE, &si);
+    sf_command(f, SFC_SET_CLIPPING, NULL, SF_TRUE);
+    sf_writef_double(f, x, FS * SECONDS);
+    sf_close(f);
+}
+
+static const char *study_json =
+    "{\"trials\": {\"file\": \"trials.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [1]},"
+    " \"recordings\": {\"file\": \"{rat}.{ext}\", \"onset\": \"onset\", \"gain\": 2, \"unit\": \"mV\", \"channels\": [\"1-2\"]},"
+    " \"power\": {\"window\": {\"from\": -1.0, \"to\": 0}, \"segment\": 0.5, \"overlap\": 0.5,"
+    "   \"bands\": {\"alpha\": [6, 14], \"line\": [40, 60]}, \"scale\": \"log10\", \"standardize\": \"participant\","
+    "   \"line_noise\": 50, \"artifacts\": {\"peak_to_peak\": 0.8, \"flat\": 1e-6, \"clipping\": true}}}";
+
+static bl_study *load_study(const char *json)
+{
+    char p[256];
+    snprintf(p, sizeof p, "%s/study.json", dir);
+    bl_study *s = NULL;
+    bl_error err = {0};
+    if (bl_study_parse(json, p, &s, &err)) printf("study: %s\n", err.message);
+    return s;
+}
+
+int main(void)
+{
+    gsl_set_error_handler_off();
+    if (!mkdtemp(dir)) return 1;
+    char rows[4096] = "rat,ext,onset,rt,correct\n";
+    for (int p = 0; p < 2; p++)
+        for (int k = 0; k < NTR; k++) {
+            amp[p][k] = 0.05 + 0.01 * k + 0.003 * p;
+            size_t l = strlen(rows);
+            snprintf(rows + l, sizeof rows - l, "%s,%s,%.4f,0.5,1\n", p ? "r2" : "r1", p ? "wav" : "w64", 2.0 * k + 2.0004);
+        }
+    write_text("trials.csv", rows);
+    write_recording(0, SF_FORMAT_W64 | SF_FORMAT_DOUBLE, "r1.w64");
+    write_recording(1, SF_FORMAT_WAV | SF_FORMAT_PCM_24, "r2.wav");
+
+    bl_error err = {0};
+    bl_warnings w = {0};
+    bl_study *s = load_study(study_json);
+    bl_trials *t = NULL;
+    bl_power_result *r = NULL;
+    if (!check_true(s && bl_trials_load(s, &t, &w, &err) == BL_OK, "study and trials load: %s", err.message)) return 1;
+    if (!check_true(bl_power_compute(s, t, 1, &r, &w, &err) == BL_OK, "power computed: %s", err.message)) return 1;
+    check_true(r->fs == FS && r->window_samples == 1000 && r->nperseg == 500 && r->noverlap == 250 && r->n_segments == 3,
+               "window 1000 samples, nperseg 500, noverlap 250, 3 segments");
+    check_rel(r->df, 2.0, 0, "df = fs / nperseg = 2 Hz");
+    check_true(r->bands[0].first_bin == 3 && r->bands[0].last_bin == 7 && r->bands[0].n_bins == 5, "alpha [6,14]: bins 3..7");
+    /* line noise 50 Hz: bins within max(2 df, 2 Hz) = 4 Hz of 50 leave the band: 46..54 Hz = 5 bins of 11 */
+    check_true(r->bands[1].n_bins == 6 && !r->bands[1].used[25] && !r->bands[1].used[23] && r->bands[1].used[22],
+               "line band [40,60] keeps 6 of 11 bins (46-54 Hz left out)");
+    /* analytic: gain 2, sine amplitude A behind 1-2 -> power (2A)^2/2 in the alpha band */
+    double worst = 0;
+    for (int p = 0; p < 2; p++)
+        for (int k = 0; k < NTR; k++) {
+            size_t i = (size_t)(p * NTR + k);
+            if (t->excluded[i]) continue;
+            double want = (2 * amp[p][k]) * (2 * amp[p][k]) / 2;
+            double rel = fabs(r->band_power[i * 2] - want) / want;
+            if (p == 0 || rel > worst) worst = fmax(worst, p == 0 ? rel : 0);
+            if (p == 1) check_rel(r->band_power[i * 2], want, 2e-4, "r2 (24-bit PCM) trial %d: alpha = (gain A)^2/2", k + 1);
+        }
+    check_abs(worst, 0, 1e-9, "r1 (64-bit float): alpha band power = (gain A)^2/2 for every kept trial (worst relative)");
+    /* artifacts */
+    check_true(t->excluded[3] && strcmp(t->excluded[3], "artifact: flat") == 0, "r1 trial 4 flat: %s", t->excluded[3] ? t->excluded[3] : "kept");
+    check_true(t->excluded[4] && strcmp(t->excluded[4], "artifact: non-finite") == 0, "r1 trial 5 NaN: %s", t->excluded[4] ? t->excluded[4] : "kept");
+    check_true(t->excluded[NTR + 3] && strcmp(t->excluded[NTR + 3], "artifact: clipping") == 0, "r2 trial 4 at full scale: %s",
+               t->excluded[NTR + 3] ? t->excluded[NTR + 3] : "kept");
+    check_true(t->excluded[NTR + 4] && strcmp(t->excluded[NTR + 4], "artifact: peak-to-peak") == 0, "r2 trial 5 step: %s",
+               t->excluded[NTR + 4] ? t->excluded[NTR + 4] : "kept");
+    check_true(r->n_artifacts == 4 && t->n_kept == 2 * NTR - 4, "4 artifacts, %d kept", 2 * NTR - 4);
+    check_true(isnan(r->psd[3 * r->n_freqs + 5]) && isnan(r->band_power[3 * 2]), "excluded trials have NAN PSD rows");
+    /* regressors: <band>_power raw, <band> = z-score of log10 within participant (sample SD) */
+    int c_raw = bl_table_find(t->table, "alpha_power"), c_z = bl_table_find(t->table, "alpha");
+    if (check_true(c_raw >= 0 && c_z >= 0, "alpha_power and alpha columns added")) {
+        for (int p = 0; p < 2; p++) {
+            double m = 0, ss = 0, zm = 0, zs = 0;
+            int n = 0;
+            for (int k = 0; k < NTR; k++) {
+                size_t i = (size_t)(p * NTR + k);
+                if (t->excluded[i]) continue;
+                m += log10(t->table->cols[c_raw].num[i]);
+                n++;
+            }
+            m /= n;
+            for (int k = 0; k < NTR; k++) {
+                size_t i = (size_t)(p * NTR + k);
+                if (t->excluded[i]) continue;
+                ss += pow(log10(t->table->cols[c_raw].num[i]) - m, 2);
+            }
+            double sd = sqrt(ss / (n - 1));
+            double dev = 0;
+            for (int k = 0; k < NTR; k++) {
+                size_t i = (size_t)(p * NTR + k);
+                if (t->excluded[i]) {
+                    dev += !isnan(t->table->cols[c_z].num[i]);
+                    continue;
+                }
+                double z = t->table->cols[c_z].num[i];
+                dev += fabs(z - (log10(t->table->cols[c_raw].num[i]) - m) / sd) > 1e-12;
+                zm += z;
+                zs += z * z;
+            }
+            check_true(dev == 0, "participant %d: alpha = (log10 power - mean) / sample SD; NAN when excluded", p + 1);
+            check_abs(zm / n, 0, 1e-12, "participant %d: z mean 0", p + 1);
+            check_rel(zs / (n - 1), 1, 1e-12, "participant %d: z sample variance 1", p + 1);
+        }
+    }
+    /* thread invariance: the same bytes with 2 threads */
+    {
+        bl_trials *t2 = NULL;
+        bl_power_result *r2 = NULL;
+        bl_trials_load(s, &t2, NULL, &err);
+        check_true(bl_power_compute(s, t2, 2, &r2, NULL, &err) == BL_OK &&
+                       memcmp(r->psd, r2->psd, t->n * r->n_freqs * sizeof(double)) == 0,
+                   "2 threads give the same PSD bytes as 1");
+        bl_power_result_destroy(r2);
+        bl_trials_destroy(t2);
+    }
+    /* power.csv */
+    char path[300];
+    snprintf(path, sizeof path, "%s/power.csv", dir);
+    if (check_true(bl_power_write_csv(s, t, r, path, &err) == BL_OK, "power.csv written: %s", err.message)) {
+        bl_table *pc = NULL;
+        check_true(bl_table_read(path, &pc, &err) == BL_OK, "power.csv reads back as a table");
+        if (pc) {
+            const char *want[] = {"participant", "trial", "rat", "ext", "onset", "rt", "correct", "alpha_power", "alpha",
+                                  "line_power", "line", "artifact"};
+            int ok = pc->n_cols == 12 && pc->n_rows == 2 * NTR;
+            for (size_t j = 0; ok && j < 12; j++) ok = strcmp(pc->cols[j].name, want[j]) == 0;
+            check_true(ok, "power.csv columns: participant, trial, table columns, <band>_power, <band>, artifact");
+            check_true(strcmp(pc->cols[1].text[13], "2") == 0 && strcmp(pc->cols[0].text[13], "r2") == 0, "trial = row number within participant");
+            check_true(pc->cols[7].num[0] == t->table->cols[c_raw].num[0], "band power written with %%.17g (exact)");
+            check_true(pc->cols[8].text[3] == NULL && strcmp(pc->cols[11].text[3], "artifact: flat") == 0,
+                       "excluded trial: NA regressor, reason in artifact");
+            check_true(pc->cols[11].text[0] == NULL, "kept trial: empty artifact");
+            bl_table_destroy(pc);
+        }
+    }
+    char *summary = bl_check_summary(s, t, r);
+    check_true(summary && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
+               "check summary names exclusions, bands and rate");
+    free(summary);
+    bl_power_result_destroy(r);
+    bl_trials_destroy(t);
+    bl_study_destroy(s);
+
+    /* errors naming participant, trial and file */
+    write_text("late.csv", "rat,ext,onset,rt,correct\nr1,w64,2.0004,0.5,1\nr1,w64,29.5,0.5,1\n");
+    char js[2048];
+    snprintf(js, sizeof js, "%s", study_json);
+    char *pos = strstr(js, "trials.csv");
+    memcpy(pos, "late.csv  ", 10);
+    memmove(pos + 8, pos + 10, strlen(pos + 10) + 1);
+    s = load_study(js);
+    bl_trials_load(s, &t, NULL, &err);
+    check_true(bl_power_compute(s, t, 1, &r, NULL, &err) == BL_OK, "window ending at the last sample is inside: %s", err.message);
+    bl_power_result_destroy(r);
+    bl_trials_destroy(t);
+    bl_study_destroy(s);
+    write_text("late.csv", "rat,ext,onset,rt,correct\nr1,w64,2.0004,0.5,1\nr1,w64,30.5,0.5,1\n");
+    s = load_study(js);
+    bl_trials_load(s, &t, NULL, &err);
+    check_true(bl_power_compute(s, t, 1, &r, NULL, &err) == BL_ERR_INPUT && strstr(err.message, "participant r1") &&
+                   strstr(err.message, "trial 2") && strstr(err.message, "r1.w64"),
+               "window beyond the end: %s", err.message);
+    bl_trials_destroy(t);
+    write_text("late.csv", "rat,ext,onset,rt,correct\nr1,w64,2.0004,0.5,1\nr3,wav,3,0.5,1\n");
+    bl_trials_load(s, &t, NULL, &err);
+    check_true(bl_power_compute(s, t, 1, &r, NULL, &err) == BL_ERR_INPUT && strstr(err.message, "participant r3") &&
+                   strstr(err.message, "r3.wav"),
+               "missing recording: %s", err.message);
+    bl_trials_destroy(t);
+    write_text("late.csv", "rat,ext,onset,rt,correct\nr1,w64,soon,0.5,1\n");
+    bl_trials_load(s, &t, NULL, &err);
+    check_true(bl_power_compute(s, t, 1, &r, NULL, &err) == BL_ERR_INPUT && strstr(err.message, "late.csv:2") &&
+                   strstr(err.message, "soon"),
+               "non-numeric onset: %s", err.message);
+    bl_trials_destroy(t);
+    bl_study_destroy(s);
+    /* a channel the file does not have */
+    snprintf(js, sizeof js, "%s", study_json);
+    pos = strstr(js, "\"1-2\"");
+    pos[3] = '3';
+    s = load_study(js);
+    bl_trials_load(s, &t, NULL, &err);
+    check_true(bl_power_compute(s, t, 1, &r, NULL, &err) == BL_ERR_INPUT && strstr(err.message, "channel 3") &&
+                   strstr(err.message, "r1.w64") && strstr(err.message, "participant r1"),
+               "missing channel: %s", err.message);
+    bl_trials_destroy(t);
+    bl_study_destroy(s);
+    bl_warnings_clear(&w);
+    char cmd[300];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
+    return harness_summary();
+}
