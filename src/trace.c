@@ -179,7 +179,14 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
     memset(&si, 0, sizeof si);
     t->sf = sf_open(path, SFM_READ, &si);
     if (!t->sf) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: cannot open the recording: %s", path, sf_strerror(NULL));
+        /* A file that is missing, unreadable or not a recording is bad input (exit 2); anything else
+         * (allocation, decoder set-up) is a failure while running (exit 1). */
+        int code = sf_error(NULL), e = errno;
+        int bad_input = code == SF_ERR_UNRECOGNISED_FORMAT || code == SF_ERR_MALFORMED_FILE ||
+                        code == SF_ERR_UNSUPPORTED_ENCODING ||
+                        (code == SF_ERR_SYSTEM && (e == ENOENT || e == EACCES || e == ENOTDIR || e == EISDIR));
+        st = bl_error_set(err, bad_input ? BL_ERR_INPUT : BL_ERR_IO, "%s: cannot open the recording: %s", path,
+                          sf_strerror(NULL));
         goto fail;
     }
     if (si.samplerate <= 0 || si.channels <= 0) {

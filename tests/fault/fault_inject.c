@@ -9,7 +9,10 @@
  * The real functions are found with dlsym(RTLD_NEXT). Counting starts only after this library's
  * constructor ran, so the dynamic loader's own allocations are not counted.
  */
+#undef _FILE_OFFSET_BITS /* define fopen and fopen64 separately */
+#ifndef _GNU_SOURCE
 #define _GNU_SOURCE
+#endif
 #include <dlfcn.h>
 #include <errno.h>
 #include <stdarg.h>
@@ -42,11 +45,20 @@ __attribute__((constructor)) static void fault_init(void)
     fault_ready = 1;
 }
 
+/* BL_FAULT_REPORT=1: print the call counts at exit, so a test can pick N inside a run's range. */
+__attribute__((destructor)) static void fault_report(void)
+{
+    const char *r = getenv("BL_FAULT_REPORT");
+    if (!r || strcmp(r, "1") != 0) return;
+    for (int k = 0; k < F_COUNT; k++) fprintf(stderr, "bl_fault %s %ld\n", fault_names[k], fault_calls[k]);
+}
+
 /* True when this call of kind k must fail. */
 static int fault_now(int k)
 {
-    if (!fault_ready || fault_at[k] <= 0) return 0;
+    if (!fault_ready) return 0;
     long c = __atomic_add_fetch(&fault_calls[k], 1, __ATOMIC_RELAXED);
+    if (fault_at[k] <= 0) return 0;
     return fault_sticky ? c >= fault_at[k] : c == fault_at[k];
 }
 
