@@ -63,6 +63,10 @@ BL_API bl_status bl_wiener_log_density_grad(const bl_wiener_params *p, double rt
 /* Probability of absorbing at the upper boundary (contamination included: half the contaminants). */
 BL_API bl_status bl_wiener_p_upper(const bl_wiener_params *p, double *p_upper, bl_error *err);
 
+/* Probability of the given boundary (upper != 0: upper), computed directly so that a tiny
+ * probability keeps its digits (1 - p_upper would round it to 0). Contamination included. */
+BL_API bl_status bl_wiener_p_boundary(const bl_wiener_params *p, int upper, double *prob, bl_error *err);
+
 /* Defective CDF: P(RT <= rt and response at the given boundary). */
 BL_API bl_status bl_wiener_cdf(const bl_wiener_params *p, double rt, int upper, double *cdf,
                                bl_error *err);

@@ -1,0 +1,159 @@
+/* Fit benchmark: a 9-coefficient regression (threshold per context with a theta slope per context,
+ * drift per difficulty with a shared beta slope, one nondecision) on 2,000 simulated trials.
+ * Prints wall time per fit, likelihood evaluations, the time per trial-density inside the fit
+ * against the engine's plain density(+gradient) cost measured in the same run, 1 vs 2 threads, and
+ * the permutation-test throughput.
+ * usage: bench-fit [PERMUTATIONS (default 100)] */
+#include "../tests/fit_testutil.h"
+#include "bandlink/fit.h"
+
+#include <gsl/gsl_errno.h>
+#include <math.h>
+#include <time.h>
+
+static double now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    size_t perms = argc > 1 ? (size_t)strtoul(argv[1], NULL, 10) : 100;
+    sim_truth tr = {.n = 2000, .n_participants = 4, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
+                    .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28};
+    bl_trials *t = sim_trials(&tr, 2024);
+    bl_model_spec s;
+    spec_default(&s, "bench");
+    bl_slope_spec as = {"theta", col_context, 1}, vs = {"beta", NULL, 0};
+    s.param[BL_THRESHOLD].per = col_context;
+    s.param[BL_THRESHOLD].n_per = 1;
+    s.param[BL_THRESHOLD].slopes = &as;
+    s.param[BL_THRESHOLD].n_slopes = 1;
+    s.param[BL_DRIFT].per = col_difficulty;
+    s.param[BL_DRIFT].n_per = 1;
+    s.param[BL_DRIFT].slopes = &vs;
+    s.param[BL_DRIFT].n_slopes = 1;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    bl_model *m = NULL;
+    if (bl_model_build(&s, t, NULL, &m, &err)) {
+        fprintf(stderr, "bench-fit: %s\n", err.message);
+        return 1;
+    }
+    size_t n = bl_model_n_trials(m);
+    printf("bench-fit: %zu trials, %zu coefficients\n", n, bl_model_n_coef(m));
+
+    /* Reference: the engine's density and density+gradient on the same trials, plain loop. */
+    bl_wiener_params *p = malloc(n * sizeof *p);
+    const double truth[9] = {1.5, 1.1, 0.25, 0.0, 2.2, 1.3, 0.6, -0.3, 0.28};
+    for (size_t k = 0; k < n; k++) bl_model_predict(m, truth, k, &p[k]);
+    double sink = 0, g[BL_NPARAM];
+    int reps = 200;
+    double t0 = now();
+    for (int r = 0; r < reps; r++)
+        for (size_t k = 0; k < n; k++) {
+            double lf;
+            bl_wiener_log_density(&p[k], t->rt[bl_model_row(m, k)], t->upper[bl_model_row(m, k)], &lf, NULL);
+            sink += lf;
+        }
+    double ns_density = (now() - t0) / (reps * (double)n) * 1e9;
+    t0 = now();
+    for (int r = 0; r < reps; r++)
+        for (size_t k = 0; k < n; k++) {
+            double lf;
+            bl_wiener_log_density_grad(&p[k], t->rt[bl_model_row(m, k)], t->upper[bl_model_row(m, k)], &lf, g, NULL);
+            sink += lf + g[0];
+        }
+    double ns_grad = (now() - t0) / (reps * (double)n) * 1e9;
+    printf("engine reference: %.1f ns per log-density, %.1f ns per log-density+gradient (checksum %.3f)\n",
+           ns_density, ns_grad, sink / 1e6);
+
+    /* One likelihood+gradient evaluation through the model, 1 and 2 threads. */
+    double ns_eval[3] = {0};
+    for (int th = 1; th <= 2; th++) {
+        bl_likelihood *w = bl_likelihood_create(m, th);
+        double gg[9];
+        int er = 300;
+        t0 = now();
+        for (int r = 0; r < er; r++) sink += bl_likelihood_eval(w, truth, gg);
+        ns_eval[th] = (now() - t0) / er / (double)n * 1e9;
+        bl_likelihood_destroy(w);
+    }
+    printf("likelihood+gradient through the design: %.1f ns per trial (1 thread, %.2fx the plain density+gradient), "
+           "%.1f ns per trial (2 threads, speed-up %.2fx)\n",
+           ns_eval[1], ns_eval[1] / ns_grad, ns_eval[2], ns_eval[1] / ns_eval[2]);
+
+    /* Whole fits: optimisation + inference, one start and three starts, 1 and 2 threads. */
+    double fit_time[3][4] = {{0}};
+    for (int th = 1; th <= 2; th++)
+        for (int starts = 1; starts <= 3; starts += 2) {
+            bl_fit_options opt;
+            bl_fit_options_default(&opt);
+            opt.threads = th;
+            opt.starts = starts;
+            int fits = 5;
+            size_t evals = 0;
+            double ll = 0;
+            int conv = 1;
+            t0 = now();
+            for (int f = 0; f < fits; f++) {
+                bl_fit_result r;
+                if (bl_fit_model(m, &opt, NULL, &r, &warn, &err)) {
+                    fprintf(stderr, "bench-fit: %s\n", err.message);
+                    return 1;
+                }
+                evals += r.diag.evaluations;
+                ll = r.log_likelihood;
+                conv = conv && r.converged;
+                bl_fit_result_clear(&r);
+            }
+            double per_fit = (now() - t0) / fits;
+            fit_time[th][starts] = per_fit;
+            double per_eval = per_fit / ((double)evals / fits);
+            printf("fit, %d thread%s, %d start%s: %.4f s per fit, %zu likelihood evaluations per fit, "
+                   "%.1f ns per trial-density inside the fit (%.2fx the plain density+gradient), LL %.6f%s\n",
+                   th, th > 1 ? "s" : "", starts, starts > 1 ? "s" : "", per_fit, evals / fits,
+                   per_eval / (double)n * 1e9, per_eval / (double)n * 1e9 / ns_grad, ll, conv ? "" : " NOT CONVERGED");
+        }
+    printf("fit speed-up, 2 threads vs 1: %.2fx (1 start), %.2fx (3 starts)\n", fit_time[1][1] / fit_time[2][1],
+           fit_time[1][3] / fit_time[2][3]);
+
+    /* Permutation throughput: refits with theta shuffled within participant x context cells. */
+    if (perms > 0) {
+        bl_study study;
+        memset(&study, 0, sizeof study);
+        study.fit.participants = BL_PARTICIPANTS_POOLED;
+        study.fit.starts = 1;
+        study.models = &s;
+        study.n_models = 1;
+        for (int th = 1; th <= 2; th++) {
+            bl_fit_options opt;
+            bl_fit_options_default(&opt);
+            opt.threads = th;
+            opt.permutations = perms;
+            opt.seed = 7;
+            bl_fit_set *set = NULL;
+            t0 = now();
+            if (bl_fit_study(&study, t, &opt, &set, &warn, &err)) {
+                fprintf(stderr, "bench-fit: %s\n", err.message);
+                return 1;
+            }
+            double el = now() - t0;
+            /* Two slopes are tested (theta on threshold, beta on drift): 2 x perms refits. */
+            double per = el / (2.0 * (double)perms);
+            printf("permutations, %d thread%s: %zu refits in %.2f s = %.4f s per refit; 1,000 permutations of one "
+                   "slope: %.1f s (p theta %.4f, p beta %.4f)\n",
+                   th, th > 1 ? "s" : "", 2 * perms, el, per, 1000 * per, set->models[0].permutation[0].p,
+                   set->models[0].permutation[1].p);
+            bl_fit_set_destroy(set);
+        }
+    }
+    free(p);
+    bl_model_destroy(m);
+    bl_trials_destroy(t);
+    bl_warnings_clear(&warn);
+    return 0;
+}

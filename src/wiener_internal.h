@@ -1,0 +1,65 @@
+/* Internal pieces of the Wiener engine shared by src/wiener*.c (not installed, not public).
+ * All functions work on the lower boundary with unit noise; the upper boundary follows from the
+ * mirror rule f_up(t | v, a, w) = f_lo(t | -v, a, 1 - w) (docs/methods.md). */
+#ifndef BL_WIENER_INTERNAL_H
+#define BL_WIENER_INTERNAL_H
+
+#include "bandlink/wiener.h"
+
+#define BLW_PI 3.14159265358979323846
+#define BLW_SQRT1_2 0.70710678118654752440
+
+/* Series switch on u = t / a^2 for the density (numerics.md, section 1.3). */
+#define BLW_U_SWITCH 0.25
+
+/* log f_lo(t | v, a, w, sv) for decision time t > 0 (closed form in sv). When g != NULL it receives
+ * the partial derivatives of log f_lo with respect to a, v, w, t, sv (in that order). */
+enum { BLW_GA = 0, BLW_GV, BLW_GW, BLW_GT, BLW_GSV, BLW_NG };
+double blw_log_dens_lo(double t, double v, double a, double w, double sv, double *g);
+
+/* Same for a boundary (upper != 0: upper), derivatives mirrored back. */
+double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g);
+
+/* log P(lower) and log P(boundary) without variability; stable for any v*a. */
+double blw_log_p_lo(double v, double a, double w);
+double blw_log_p(double v, double a, double w, int upper);
+
+/* P(boundary) averaged over drift_sd and start_range (quadrature; exact closed form without them). */
+double blw_p_var(double v, double a, double w, double sv, double sz, int upper);
+
+/* Mean decision time conditional on the lower boundary (closed form, no variability). */
+double blw_mean_t_lo(double v, double a, double w);
+
+/* Defective CDF of the decision time at the lower boundary, no variability, in logs:
+ * *log_cdf = log P(T <= t, lower), *log_surv = log P(T > t, lower) (may be NULL).
+ * Returns BL_OK or BL_ERR_NUMERIC when a series fails to converge. */
+bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf, double *log_surv);
+bl_status blw_log_cdf(double t, double v, double a, double w, int upper, double *log_cdf,
+                      double *log_surv);
+
+/* Small-time CDF series with the relative derivatives d log F / d(a, v, w) in dl[0..2]. */
+bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, double *log_cdf,
+                           double dl[3]);
+
+/* Quadrature rules, built once (thread-safe) and never freed.
+ * Gauss-Legendre on [-1, 1] with weights summing to 1 (so sums are averages), n in 1..BLW_GL_MAX;
+ * Gauss-Hermite for the standard normal (weights sum to 1), n one of the sizes below. */
+#define BLW_GL_MAX 64
+void blw_gauss_legendre(int n, const double **x, const double **wt);
+int blw_gauss_hermite(int n, const double **x, const double **wt); /* returns the n actually used */
+/* 1 when the tables were built (0 only after an allocation failure). */
+int blw_tables_ok(void);
+
+/* Node counts chosen from the parameters (docs/methods.md explains how they were verified). */
+int blw_gl_nodes_start_range(double sz, double u);
+int blw_gh_nodes_drift_sd(double sv, double a, double t);
+
+/* log(exp(x) + exp(y)) and log(exp(x) - exp(y)) for x >= y. */
+double blw_logaddexp(double x, double y);
+double blw_logsubexp(double x, double y);
+
+/* Full log-density (every parameter) and, when grad != NULL, its gradient; parameters already checked. */
+bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld,
+                               double *grad, bl_error *err);
+
+#endif

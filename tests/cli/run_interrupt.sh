@@ -1,0 +1,43 @@
+#!/usr/bin/env bash
+# An interrupted run (SIGKILL mid-way through a --force replacement) leaves the earlier results exactly
+# as they were; the next run cleans up the leftover staging folder.
+set -u
+: "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+fails=0
+pass() { echo "PASS: $*"; }
+fail() { echo "FAIL: $*"; fails=$((fails + 1)); }
+
+"$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out "$tmp/study" --quiet || { echo "FAIL: simulate"; exit 1; }
+"$BANDLINK" run "$tmp/study/study.json" --out "$tmp/res" --quiet || { echo "FAIL: first run"; exit 1; }
+before=$(cd "$tmp/res" && find . -type f -exec sha256sum {} + | sort)
+
+# A slower run (permutation refits) replacing the results, killed once its staging folder exists.
+killed=0
+for attempt in 1 2 3; do
+    "$BANDLINK" run "$tmp/study/study.json" --out "$tmp/res" --force --permutations 200 --threads 1 --quiet &
+    pid=$!
+    for _ in $(seq 1 400); do
+        if ls -a "$tmp" | grep -q "^\.res\.partial-$pid-" && [ -e "$(ls -d "$tmp"/.res.partial-$pid-*)/power.csv" ]; then
+            kill -9 $pid 2>/dev/null && killed=1
+            break
+        fi
+        kill -0 $pid 2>/dev/null || break
+        sleep 0.05
+    done
+    wait $pid 2>/dev/null
+    [ $killed -eq 1 ] && break
+done
+[ $killed -eq 1 ] && pass "run killed (SIGKILL) after it had written power.csv into its staging folder" \
+    || fail "could not catch the run mid-way"
+after=$(cd "$tmp/res" && find . -type f -exec sha256sum {} + | sort)
+[ "$before" = "$after" ] && pass "earlier results intact after the kill" || fail "earlier results changed"
+ls -a "$tmp" | grep -q "^\.res\.partial-" && pass "the killed run's staging folder is hidden beside the results" \
+    || fail "no staging folder seen"
+
+# The next run removes the stale staging folder (its process is gone) and completes.
+"$BANDLINK" run "$tmp/study/study.json" --out "$tmp/res" --force --quiet && pass "next run succeeds" || fail "next run"
+ls -a "$tmp" | grep -q "^\.res\.partial-" && fail "stale staging folder not cleaned up" || pass "stale staging folder removed"
+echo "$fails failed"
+[ $fails -eq 0 ]

@@ -1,0 +1,186 @@
+#!/usr/bin/env python3
+"""Live high-precision check of `bandlink predict --json` against mpmath (40 digits).
+
+Reference formulas, evaluated independently here:
+- first-passage density: Navarro & Fuss (2009, J. Math. Psych. 53:222-230) small-time image series
+  (u < 1) and large-time Fourier series (u >= 1), each summed far past double precision;
+- boundary probability: gambler's-ruin closed form (Cox & Miller 1965);
+- mean decision time: [a coth(va) - z coth(vz)] / v (Laplace transform of the first-passage time);
+- CDF: the large-time series integrated term by term, checked at the returned quantiles;
+- drift_sd, start_range, nondecision_range: mpmath.quad over the normal drift, the uniform start and
+  the uniform non-decision time of the plain density.
+Exits 77 (meson "skipped") when mpmath is not installed.
+"""
+import json
+import os
+import subprocess
+import sys
+
+try:
+    import mpmath as mp
+except ImportError:
+    print("mpmath not installed: skipped")
+    sys.exit(77)
+
+mp.mp.dps = 40
+BANDLINK = os.environ.get("BANDLINK", "build/bandlink")
+failures = 0
+checks = 0
+
+
+def check(ok, msg):
+    global failures, checks
+    checks += 1
+    print(("PASS: " if ok else "FAIL: ") + msg)
+    if not ok:
+        failures += 1
+
+
+def f_lo(t, v, a, w):
+    t, v, a, w = mp.mpf(t), mp.mpf(v), mp.mpf(a), mp.mpf(w)
+    if t <= 0:
+        return mp.mpf(0)
+    u = t / a**2
+    pre = mp.exp(-v * a * w - v * v * t / 2) / a**2
+    if u < 1:
+        # |k| <= 8 leaves terms below exp(-(16 - 1)^2 / 2) ~ 1e-49 relative at u < 1
+        s = mp.fsum((w + 2 * k) * mp.exp(-(w + 2 * k) ** 2 / (2 * u)) for k in range(-8, 9))
+        return pre * s / mp.sqrt(2 * mp.pi * u**3)
+    s, k = mp.mpf(0), 1
+    while True:
+        term = k * mp.exp(-k * k * mp.pi**2 * u / 2) * mp.sin(k * mp.pi * w)
+        s += term
+        if k > 3 and abs(term) < mp.mpf(10) ** -(mp.mp.dps + 10) * abs(s):
+            break
+        k += 1
+    return pre * mp.pi * s
+
+
+def f_b(t, v, a, w, upper):
+    return f_lo(t, -v, a, 1 - w) if upper else f_lo(t, v, a, w)
+
+
+def p_lo(v, a, w):
+    v, a, w = mp.mpf(v), mp.mpf(a), mp.mpf(w)
+    if v == 0:
+        return 1 - w
+    return (mp.exp(-2 * v * a * w) - mp.exp(-2 * v * a)) / (1 - mp.exp(-2 * v * a))
+
+
+def p_b(v, a, w, upper):
+    return p_lo(-v, a, 1 - w) if upper else p_lo(v, a, w)
+
+
+def mean_b(v, a, w, upper):
+    v, a, w = mp.mpf(v), mp.mpf(a), mp.mpf(w)
+    z = a * w if upper else a * (1 - w)
+    vv = v if upper else -v
+    if vv == 0:
+        return (a * a - z * z) / 3
+    return (a * mp.coth(vv * a) - z * mp.coth(vv * z)) / vv
+
+
+def surv_lo(t, v, a, w):
+    """P(T > t, lower): the large-time series integrated term by term."""
+    t, v, a, w = mp.mpf(t), mp.mpf(v), mp.mpf(a), mp.mpf(w)
+    q = mp.pi**2 * t / (2 * a * a)
+    s, k = mp.mpf(0), 1
+    while True:
+        term = k * mp.sin(k * mp.pi * w) * mp.exp(-k * k * q) / (v * v * a * a + k * k * mp.pi**2)
+        s += term
+        if k > 3 and mp.exp(-k * k * q) < mp.mpf(10) ** -(mp.mp.dps + 5):
+            break
+        k += 1
+    return 2 * mp.pi * mp.exp(-v * a * w - v * v * t / 2) * s
+
+
+def cdf_b(t, v, a, w, upper):
+    if t <= 0:
+        return mp.mpf(0)
+    if upper:
+        v, w = -v, 1 - w
+    return p_lo(v, a, w) - surv_lo(t, v, a, w)
+
+
+def predict(args, rts):
+    cmd = [BANDLINK, "predict"] + args + ["--rt", ",".join(repr(r) for r in rts), "--json"]
+    res = subprocess.run(cmd, capture_output=True, text=True)
+    if res.returncode != 0:
+        raise SystemExit("bandlink predict failed: %s\n%s" % (" ".join(cmd), res.stderr))
+    return json.loads(res.stdout)
+
+
+def rel(x, y):
+    x, y = mp.mpf(x), mp.mpf(y)
+    return abs(x - y) / abs(y) if y != 0 else abs(x)
+
+
+def plain_case(a, v, t0, w, rts):
+    d = predict(["--threshold", repr(a), "--drift", repr(v), "--nondecision", repr(t0), "--start", repr(w)], rts)
+    for upper, name in ((1, "upper"), (0, "lower")):
+        P = p_b(v, a, w, upper)
+        check(rel(d["p_" + name], P) < 1e-13, "a=%g v=%g w=%g: p_%s %r vs mpmath %s" % (a, v, w, name, d["p_" + name], mp.nstr(P, 17)))
+        m = mean_b(v, a, w, upper) + t0
+        check(rel(d["mean_rt_" + name], m) < 1e-12, "a=%g v=%g w=%g: mean_rt_%s vs mpmath" % (a, v, w, name))
+        for e in d["density"]:
+            ref = f_b(e["rt"] - t0, v, a, w, upper)
+            if ref < mp.mpf(10) ** -300:
+                check(e[name] < 1e-290, "density ~0 at rt %g" % e["rt"])
+                continue
+            # series truncated at 1e-10 relative to the partial sum (numerics notes 1.3)
+            check(rel(e[name], ref) < 2e-10, "a=%g v=%g w=%g: density %s at rt %g: %r vs mpmath %s" % (a, v, w, name, e["rt"], e[name], mp.nstr(ref, 17)))
+        for p, q in zip(d["quantiles"]["probabilities"], d["quantiles"][name]):
+            # an RT in double carries ~1e-16 relative resolution: accept p anywhere between the CDF
+            # at q -+ 4 ulp (matters only for decision times far below t0), plus 1e-10
+            qm, qp = mp.mpf(q) * (1 - mp.mpf(4e-16)), mp.mpf(q) * (1 + mp.mpf(4e-16))
+            Fm = cdf_b(qm - t0, v, a, w, upper) / P
+            Fp = cdf_b(qp - t0, v, a, w, upper) / P
+            F = cdf_b(mp.mpf(q) - t0, v, a, w, upper) / P
+            check(Fm - 1e-10 <= p <= Fp + 1e-10, "a=%g v=%g w=%g: %s quantile %g at %r: mpmath CDF/P = %s" % (a, v, w, name, p, q, mp.nstr(F, 14)))
+
+
+def variability_case():
+    # integrals to ~1e-12 need no more than 20 digits
+    mp.mp.dps = 20
+    a, v, t0, w, sv, sz, st = 1.2, 1.0, 0.3, 0.45, 0.8, 0.2, 0.1
+    rts = [0.36, 0.5, 0.9, 1.7]
+    base = ["--threshold", repr(a), "--drift", repr(v), "--nondecision", repr(t0), "--start", repr(w)]
+    # drift_sd: integral over the normal drift
+    d = predict(base + ["--drift-sd", repr(sv)], rts)
+    for upper, name in ((1, "upper"), (0, "lower")):
+        for e in d["density"]:
+            ref = mp.quad(lambda nu: f_b(e["rt"] - t0, nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf])
+            check(rel(e[name], ref) < 1e-10, "drift_sd %g: density %s at rt %g vs mpmath.quad over drift" % (sv, name, e["rt"]))
+        Pref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf])
+        check(rel(d["p_" + name], Pref) < 1e-9, "drift_sd %g: p_%s vs mpmath.quad" % (sv, name))
+        Mref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mean_b(nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf]) / Pref
+        check(rel(d["mean_rt_" + name], Mref + t0) < 1e-9, "drift_sd %g: mean_rt_%s vs mpmath.quad" % (sv, name))
+        for p, q in list(zip(d["quantiles"]["probabilities"], d["quantiles"][name]))[::2]:
+            F = mp.quad(lambda nu: cdf_b(mp.mpf(q) - t0, nu, a, w, upper) * mp.npdf(nu, v, sv), [-mp.inf, v, mp.inf]) / Pref
+            check(abs(F - p) < 1e-8, "drift_sd %g: %s quantile %g at %r: mpmath CDF/P = %s" % (sv, name, p, q, mp.nstr(F, 12)))
+    # start_range: integral over the uniform start
+    d = predict(base + ["--start-range", repr(sz)], rts)
+    for upper, name in ((1, "upper"), (0, "lower")):
+        for e in d["density"]:
+            ref = mp.quad(lambda ww: f_b(e["rt"] - t0, v, a, ww, upper), [w - sz / 2, w + sz / 2]) / sz
+            check(rel(e[name], ref) < 1e-6, "start_range %g: density %s at rt %g vs mpmath.quad over start" % (sz, name, e["rt"]))
+    # nondecision_range: integral over the uniform non-decision time
+    d = predict(base + ["--nondecision-range", repr(st)], rts)
+    for upper, name in ((1, "upper"), (0, "lower")):
+        for e in d["density"]:
+            hi = min(t0 + st / 2, e["rt"])
+            lo = t0 - st / 2
+            ref = mp.quad(lambda tt: f_b(e["rt"] - tt, v, a, w, upper), [lo, hi]) / st if hi > lo else mp.mpf(0)
+            check(rel(e[name], ref) < 1e-9, "nondecision_range %g: density %s at rt %g vs mpmath.quad over t0" % (st, name, e["rt"]))
+
+
+plain_case(1.0, 1.0, 0.0, 0.5, [0.05, 0.35, 1.0, 3.0])
+plain_case(2.0, -1.5, 0.2, 0.3, [0.25, 0.6, 1.1, 4.0])
+plain_case(1.5, 2.0, 0.3, 0.6, [0.31, 0.35, 0.8, 2.5])
+plain_case(0.6, 0.0, 0.25, 0.5, [0.27, 0.4, 1.5])
+plain_case(4.0, -6.0, 0.1, 0.9, [0.15, 0.6, 2.0])
+plain_case(2.5, 4.0, 0.2, 0.15, [0.22, 0.5, 1.2, 6.0])
+plain_case(1.1, 0.7, 0.3, 0.999, [0.302, 0.35, 0.7, 1.5])
+variability_case()
+print("%d checks passed, %d failed" % (checks - failures, failures))
+sys.exit(1 if failures else 0)

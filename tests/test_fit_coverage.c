@@ -1,0 +1,90 @@
+/* Slow statistical check (suite 'slow'): coverage of the 95% Wald intervals over 300 datasets drawn
+ * with the engine's exact sampler from a known 9-coefficient regression (numerics.md 6.10). Each
+ * coefficient's coverage count must lie inside the central 99.9% range of Binomial(300, 0.95)
+ * (limits from gsl_cdf_binomial_P), and the count over all coefficients inside the 99.9% range of
+ * Binomial(2700, 0.95). Also the likelihood-ratio test of a true-zero slope: its rejection rate at
+ * 5% within the 99.9% range of Binomial(300, 0.05) (Wilks 1938). */
+#include "bandlink/fit.h"
+#include "fit_testutil.h"
+#include "harness.h"
+
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_errno.h>
+#include <math.h>
+
+/* Central (1 - alpha) range of Binomial(n, p): smallest lo with P(X < lo) <= alpha/2 ... */
+static void binom_range(unsigned n, double p, double alpha, unsigned *lo, unsigned *hi)
+{
+    *lo = 0;
+    while (*lo < n && gsl_cdf_binomial_P(*lo, p, n) < alpha / 2) (*lo)++;
+    *hi = n;
+    while (*hi > 0 && gsl_cdf_binomial_Q(*hi - 1, p, n) < alpha / 2) (*hi)--;
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    unsigned reps = argc > 1 ? (unsigned)atoi(argv[1]) : 300;
+    const double truth[9] = {1.5, 1.1, 0.25, 0.0, 2.2, 1.3, 0.6, -0.3, 0.28};
+    unsigned cover[9] = {0}, conv = 0, reject_null = 0;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    for (unsigned r = 0; r < reps; r++) {
+        sim_truth tr = {.n = 1000, .n_participants = 2, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
+                        .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28};
+        bl_trials *t = sim_trials(&tr, 5000 + r);
+        bl_model_spec s;
+        spec_default(&s, "coverage");
+        bl_slope_spec as = {"theta", col_context, 1}, vs = {"beta", NULL, 0};
+        s.param[BL_THRESHOLD].per = col_context;
+        s.param[BL_THRESHOLD].n_per = 1;
+        s.param[BL_THRESHOLD].slopes = &as;
+        s.param[BL_THRESHOLD].n_slopes = 1;
+        s.param[BL_DRIFT].per = col_difficulty;
+        s.param[BL_DRIFT].n_per = 1;
+        s.param[BL_DRIFT].slopes = &vs;
+        s.param[BL_DRIFT].n_slopes = 1;
+        bl_model *m = NULL;
+        if (bl_model_build(&s, t, NULL, &m, &err)) {
+            check_true(0, "dataset %u: %s", r, err.message);
+            bl_trials_destroy(t);
+            continue;
+        }
+        bl_fit_options opt;
+        bl_fit_options_default(&opt);
+        opt.threads = 1;
+        opt.starts = 1;
+        bl_fit_result res;
+        if (bl_fit_model(m, &opt, NULL, &res, &warn, &err) == BL_OK) {
+            conv += res.converged;
+            for (int j = 0; j < 9; j++)
+                cover[j] += res.coef[j].ci_low <= truth[j] && truth[j] <= res.coef[j].ci_high;
+            reject_null += res.coef[3].p < 0.05;
+            bl_fit_result_clear(&res);
+        }
+        bl_model_destroy(m);
+        bl_trials_destroy(t);
+        bl_warnings_clear(&warn);
+    }
+    unsigned lo, hi, total = 0;
+    binom_range(reps, 0.95, 0.001, &lo, &hi);
+    check_true(conv == reps, "every fit converged (%u of %u)", conv, reps);
+    const char *names[9] = {"threshold rich", "threshold lean", "theta slope rich", "theta slope lean",
+                            "drift easy",     "drift medium",   "drift hard",       "beta slope",
+                            "nondecision"};
+    for (int j = 0; j < 9; j++) {
+        check_true(cover[j] >= lo && cover[j] <= hi, "%s: 95%% interval covered the truth %u of %u times (99.9%% "
+                   "binomial range %u-%u)", names[j], cover[j], reps, lo, hi);
+        total += cover[j];
+    }
+    unsigned tlo, thi;
+    binom_range(9 * reps, 0.95, 0.001, &tlo, &thi);
+    check_true(total >= tlo && total <= thi, "all coefficients: covered %u of %u (range %u-%u)", total, 9 * reps,
+               tlo, thi);
+    unsigned nlo, nhi;
+    binom_range(reps, 0.05, 0.001, &nlo, &nhi);
+    check_true(reject_null >= nlo && reject_null <= nhi,
+               "true-zero slope: Wald test rejects at 5%% in %u of %u datasets (range %u-%u)", reject_null, reps, nlo,
+               nhi);
+    return harness_summary();
+}

@@ -1,0 +1,322 @@
+/* Goodness of fit: sample quantiles, mixture quantiles, choice shares, groups and the CSV.
+ * Outside references: numpy.quantile (values below were produced by numpy 1.24.2, default method
+ * "linear" = Hyndman & Fan 1996 definition 7); GSL adaptive quadrature (gsl_integration_qags) of
+ * the Wiener densities; the closed-form absorption probability of a Wiener process with drift
+ * (Cox & Miller 1965, "The Theory of Stochastic Processes", section 5.7):
+ *   P(upper) = (1 - exp(-2 v a w)) / (1 - exp(-2 v a)), s = 1. */
+#include "bandlink/goodness.h"
+#include "harness.h"
+
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_integration.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+static double p_upper_closed(double a, double v, double w)
+{
+    if (v == 0) return w;
+    return -expm1(-2 * v * a * w) / -expm1(-2 * v * a);
+}
+
+typedef struct {
+    const bl_wiener_params *p;
+    int upper;
+} dens_ctx;
+
+static double dens(double t, void *vp)
+{
+    dens_ctx *c = vp;
+    double ld;
+    if (bl_wiener_log_density(c->p, t, c->upper, &ld, NULL) != BL_OK) return NAN;
+    return exp(ld);
+}
+
+/* P(RT <= q, boundary) by GSL quadrature of the density. */
+static double cdf_quad(const bl_wiener_params *p, int upper, double q)
+{
+    gsl_integration_workspace *ws = gsl_integration_workspace_alloc(2000);
+    dens_ctx c = {p, upper};
+    gsl_function F = {dens, &c};
+    double r = NAN, e;
+    double t0 = p->value[BL_NONDECISION] - p->value[BL_NONDECISION_RANGE] / 2;
+    if (q > t0 && gsl_integration_qags(&F, t0, q, 1e-13, 1e-10, 2000, ws, &r, &e) != GSL_SUCCESS) r = NAN;
+    if (q <= t0) r = 0;
+    gsl_integration_workspace_free(ws);
+    return r;
+}
+
+static bl_wiener_params mk(double a, double v, double t0, double w)
+{
+    bl_wiener_params p;
+    bl_wiener_params_default(&p);
+    p.value[BL_THRESHOLD] = a;
+    p.value[BL_DRIFT] = v;
+    p.value[BL_NONDECISION] = t0;
+    p.value[BL_START] = w;
+    return p;
+}
+
+static char *read_file(const char *path)
+{
+    FILE *f = fopen(path, "rb");
+    if (!f) return NULL;
+    fseek(f, 0, SEEK_END);
+    long n = ftell(f);
+    fseek(f, 0, SEEK_SET);
+    char *b = malloc((size_t)n + 1);
+    if (b && fread(b, 1, (size_t)n, f) != (size_t)n) n = 0;
+    if (b) b[n] = 0;
+    fclose(f);
+    return b;
+}
+
+int main(void)
+{
+    gsl_set_error_handler_off();
+    bl_error err = {0};
+
+    /* numpy.quantile(x, p) for these 12 values (numpy 1.24.2, method "linear"). */
+    double x[12] = {0.512, 0.387, 0.941, 0.455, 0.623, 0.701, 0.398, 1.204, 0.566, 0.489, 0.833, 0.4717};
+    for (int i = 1; i < 12; i++)
+        for (int j = i; j > 0 && x[j - 1] > x[j]; j--) {
+            double t = x[j];
+            x[j] = x[j - 1];
+            x[j - 1] = t;
+        }
+    const double np_p[6] = {0.1, 0.3, 0.5, 0.7, 0.9, 0.25};
+    const double np_q[6] = {0.4037, 0.47689, 0.5389999999999999, 0.6775999999999999, 0.9302, 0.467525};
+    for (int i = 0; i < 6; i++)
+        check_rel(bl_goodness_sample_quantile(x, 12, np_p[i]), np_q[i], 1e-14, "numpy.quantile at %g", np_p[i]);
+    check_rel(bl_goodness_sample_quantile((double[]){0.7}, 1, 0.3), 0.7, 0, "numpy.quantile of one value");
+    check_rel(bl_goodness_sample_quantile((double[]){0.3, 0.9}, 2, 0.1), 0.36, 1e-14, "numpy.quantile of two values");
+    check_true(isnan(bl_goodness_sample_quantile(x, 0, 0.5)), "no values: NAN");
+
+    /* A one-component mixture is the component itself: equals bl_wiener_quantile. */
+    bl_wiener_params p1 = mk(1.37, 0.83, 0.291, 0.46);
+    double q[BL_GOODNESS_NQ], share;
+    for (int upper = 0; upper <= 1; upper++) {
+        check_true(bl_goodness_mixture_quantiles(&p1, NULL, 1, upper, bl_goodness_probs, BL_GOODNESS_NQ, q, &share,
+                                                 &err) == BL_OK,
+                   "single mixture solves (%s)", err.message);
+        for (int k = 0; k < BL_GOODNESS_NQ; k++) {
+            double want;
+            check_true(bl_wiener_quantile(&p1, bl_goodness_probs[k], upper, &want, &err) == BL_OK, "engine quantile");
+            check_abs(q[k], want, 2e-8, "single-trial mixture quantile %g (%s) = bl_wiener_quantile",
+                      bl_goodness_probs[k], upper ? "upper" : "lower");
+        }
+        double pu = p_upper_closed(1.37, 0.83, 0.46);
+        check_rel(share, upper ? pu : 1 - pu, 1e-9, "share = closed-form absorption probability (%s)",
+                  upper ? "upper" : "lower");
+    }
+
+    /* Two components with weights 3:1; quantile q of the mixture must satisfy
+     * sum w_i int_0^q f_i / sum w_i P_i = p, the integrals by GSL quadrature. */
+    bl_wiener_params two[2] = {mk(0.94, 1.71, 0.215, 0.5), mk(1.83, -0.42, 0.377, 0.58)};
+    double w2[2] = {3, 1};
+    for (int upper = 0; upper <= 1; upper++) {
+        check_true(bl_goodness_mixture_quantiles(two, w2, 2, upper, bl_goodness_probs, BL_GOODNESS_NQ, q, &share,
+                                                 &err) == BL_OK,
+                   "two-component mixture solves (%s)", err.message);
+        double P[2] = {p_upper_closed(0.94, 1.71, 0.5), p_upper_closed(1.83, -0.42, 0.58)};
+        if (!upper) P[0] = 1 - P[0], P[1] = 1 - P[1];
+        double psum = w2[0] * P[0] + w2[1] * P[1];
+        check_rel(share, psum / 4, 1e-9, "mixture share = weighted closed-form P (%s)", upper ? "upper" : "lower");
+        for (int k = 0; k < BL_GOODNESS_NQ; k++) {
+            double F = (w2[0] * cdf_quad(&two[0], upper, q[k]) + w2[1] * cdf_quad(&two[1], upper, q[k])) / psum;
+            check_abs(F, bl_goodness_probs[k], 1e-7, "mixture CDF by quadrature at q%g (%s)",
+                      bl_goodness_probs[k] * 100, upper ? "upper" : "lower");
+        }
+        for (int k = 1; k < BL_GOODNESS_NQ; k++) check_true(q[k] > q[k - 1], "quantiles increase");
+    }
+    /* A boundary that is practically never reached: share ~0, quantiles NAN, no error. */
+    bl_wiener_params never = mk(3.0, 12.0, 0.2, 0.5); /* P(lower) = exp(-36) ~ 2e-16 */
+    check_true(bl_goodness_mixture_quantiles(&never, NULL, 1, 0, bl_goodness_probs, BL_GOODNESS_NQ, q, &share, &err) ==
+                       BL_OK &&
+                   share < 1e-12 && isnan(q[2]),
+               "unreachable boundary gives NAN quantiles");
+    check_true(bl_goodness_mixture_quantiles(&p1, NULL, 1, 1, (double[]){1.5}, 1, q, NULL, &err) == BL_ERR_RANGE,
+               "probability outside (0,1) refused");
+
+    /* ---- groups and rows on a simulated data set with known truth ---- */
+    enum { N = 600 };
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 20261202);
+    bl_table *tab = bl_table_create(N);
+    const char *ctx[N], *anim[N];
+    double theta[N];
+    bl_trials tr = {0};
+    tr.table = tab;
+    tr.n = N;
+    tr.rt = calloc(N, sizeof *tr.rt);
+    tr.upper = calloc(N, sizeof *tr.upper);
+    tr.excluded = calloc(N, sizeof *tr.excluded);
+    bl_wiener_params *truth = calloc(N, sizeof *truth), *base = calloc(N, sizeof *base);
+    int sample_fail = 0;
+    unsigned char *used = calloc(N, 1);
+    for (int i = 0; i < N; i++) {
+        int rich = (i / 3) % 2 == 0;
+        ctx[i] = rich ? "rich" : "lean";
+        anim[i] = (i % 2) ? "r1" : "r2";
+        theta[i] = gsl_ran_gaussian(rng, 1.0);
+        truth[i] = mk(rich ? 1.3 + 0.25 * theta[i] : 1.1, 1.2, 0.25, 0.5);
+        base[i] = mk(rich ? 1.3 : 1.1, 1.2, 0.25, 0.5);
+        if (bl_wiener_sample(&truth[i], rng, &tr.upper[i], &tr.rt[i], &err) != BL_OK) sample_fail++;
+        used[i] = 1;
+    }
+    check_true(sample_fail == 0, "engine sampler drew every trial");
+    tr.excluded[7] = "rt_min";
+    tr.excluded[100] = "artifact: flat";
+    used[7] = used[100] = 0;
+    tr.n_kept = N - 2;
+    bl_table_add_text(tab, "context", ctx, &err);
+    bl_table_add_text(tab, "animal", anim, &err);
+    bl_table_add_numeric(tab, "theta", theta, &err);
+
+    bl_study st = {0};
+    st.trials.participant = "animal";
+    char *per_ctx[2] = {"context", "animal"};
+    char *by_ctx[1] = {"context"};
+    bl_slope_spec slope = {"theta", by_ctx, 1};
+    bl_model_spec specs[2] = {{0}};
+    specs[0].name = "baseline";
+    specs[0].param[BL_THRESHOLD].per = per_ctx;
+    specs[0].param[BL_THRESHOLD].n_per = 2;
+    specs[1].name = "theta-threshold";
+    specs[1].param[BL_THRESHOLD].per = per_ctx;
+    specs[1].param[BL_THRESHOLD].n_per = 1;
+    specs[1].param[BL_THRESHOLD].slopes = &slope;
+    specs[1].param[BL_THRESHOLD].n_slopes = 1;
+    specs[0].param[BL_START].is_fixed = specs[1].param[BL_START].is_fixed = 1;
+    st.models = specs;
+    st.n_models = 2;
+
+    bl_model_result mr[2] = {{0}};
+    mr[0].name = "baseline";
+    mr[1].name = "theta-threshold";
+    mr[0].n_rows = mr[1].n_rows = N;
+    mr[0].used = mr[1].used = used;
+    mr[0].predicted = base;
+    mr[1].predicted = truth;
+    bl_fit_set set = {0};
+    set.n_models = 2;
+    set.models = mr;
+
+    bl_goodness *g = NULL;
+    check_true(bl_goodness_compute(&st, &tr, &set, 1, &g, &err) == BL_OK, "compute (%s)", err.message);
+    if (g) {
+        check_true(g->n_cells == 2, "two condition cells (participant column left out): %zu", g->n_cells);
+        check_true(strcmp(g->groups[0].condition, "context=rich") == 0 && strcmp(g->groups[1].condition, "context=lean") == 0,
+                   "cells in order of first appearance");
+        check_true(g->n_groups == 2 + 10, "10 bins: theta quintiles within each context (%zu groups)", g->n_groups);
+        check_true(g->n_rows == 2 * 12 * 2, "rows = models x groups x 2 boundaries");
+        size_t ncell = g->groups[0].n + g->groups[1].n;
+        check_true(ncell == N - 2, "excluded trials left out (%zu)", ncell);
+        size_t total_bins = 0;
+        for (size_t gi = 2; gi < g->n_groups; gi++) {
+            const bl_goodness_group *gr = &g->groups[gi];
+            const bl_goodness_group *cell = strcmp(gr->condition, "context=rich") == 0 ? &g->groups[0] : &g->groups[1];
+            total_bins += gr->n;
+            check_true(gr->n * 5 >= cell->n - 5 && gr->n * 5 <= cell->n + 5, "bin %s/%d holds a fifth (%zu of %zu)",
+                       gr->condition, gr->bin, gr->n, cell->n);
+            if (gr->bin > 1)
+                check_true(gr->regressor_low >= g->groups[gi - 1].regressor_high, "bins ordered by regressor");
+            int inside = 1;
+            for (size_t i = 0; i < gr->n; i++)
+                inside &= theta[gr->rows[i]] >= gr->regressor_low && theta[gr->rows[i]] <= gr->regressor_high;
+            check_true(inside, "trials of bin %s/%d inside its regressor range", gr->condition, gr->bin);
+        }
+        check_true(total_bins == N - 2, "bins partition the kept trials");
+
+        for (size_t r = 0; r < g->n_rows; r++) {
+            const bl_goodness_row *row = &g->rows[r];
+            const bl_goodness_group *gr = &g->groups[row->group];
+            size_t nup = 0;
+            for (size_t i = 0; i < gr->n; i++) nup += tr.upper[gr->rows[i]] != 0;
+            size_t want = row->upper ? nup : gr->n - nup;
+            if (row->responses != want || row->trials != gr->n) {
+                check_true(0, "row %zu counts", r);
+                break;
+            }
+            if (r == g->n_rows - 1) check_true(1, "every row counts its trials and responses");
+        }
+        /* Baseline, cell rich: one parameter set -> predicted quantiles = engine quantiles, share = closed form. */
+        const bl_goodness_row *b0 = &g->rows[0];
+        check_true(b0->model == 0 && b0->group == 0 && b0->upper == 1, "first row: baseline, rich, upper");
+        bl_wiener_params pr = mk(1.3, 1.2, 0.25, 0.5);
+        for (int k = 0; k < BL_GOODNESS_NQ; k++) {
+            double want;
+            bl_wiener_quantile(&pr, bl_goodness_probs[k], 1, &want, &err);
+            check_abs(b0->predicted_q[k], want, 2e-8, "baseline rich q%g = engine quantile", bl_goodness_probs[k] * 100);
+        }
+        check_rel(b0->predicted_share, p_upper_closed(1.3, 1.2, 0.5), 1e-9, "baseline share = closed form");
+        /* The data were drawn from the theta model: its predictions match the observed quantiles of
+         * the rich bins within sampling error (about 120 trials per bin: SE of a median ~0.03 s). */
+        int worst_ok = 1;
+        for (size_t r = 0; r < g->n_rows; r++) {
+            const bl_goodness_row *row = &g->rows[r];
+            if (row->model != 1 || !row->upper || row->responses < 60) continue;
+            if (fabs(row->observed_q[2] - row->predicted_q[2]) > 0.09) worst_ok = 0;
+            if (fabs(row->observed_share - row->predicted_share) > 0.12) worst_ok = 0;
+        }
+        check_true(worst_ok, "true model: observed and predicted medians/shares agree within sampling error");
+        /* Top theta bin in rich: higher threshold -> slower median than the bottom bin (truth). */
+        const bl_goodness_row *lo_b = NULL, *hi_b = NULL;
+        for (size_t r = 0; r < g->n_rows; r++) {
+            const bl_goodness_row *row = &g->rows[r];
+            const bl_goodness_group *gr = &g->groups[row->group];
+            if (row->model == 1 && row->upper && gr->regressor && strcmp(gr->condition, "context=rich") == 0) {
+                if (gr->bin == 1) lo_b = row;
+                if (gr->bin == 5) hi_b = row;
+            }
+        }
+        check_true(lo_b && hi_b && hi_b->predicted_q[2] > lo_b->predicted_q[2] + 0.05 &&
+                       hi_b->observed_q[2] > lo_b->observed_q[2],
+                   "theta bins show the slower RTs the slope implies");
+
+        /* CSV: header, row count, deterministic across thread counts. */
+        char dir[] = "/tmp/bl_test_goodness_XXXXXX";
+        check_true(mkdtemp(dir) != NULL, "temp folder");
+        char p1path[256], p2path[256];
+        snprintf(p1path, sizeof p1path, "%s/a.csv", dir);
+        snprintf(p2path, sizeof p2path, "%s/b.csv", dir);
+        check_true(bl_goodness_write_csv(g, p1path, &err) == BL_OK, "write csv");
+        bl_goodness *g2 = NULL;
+        check_true(bl_goodness_compute(&st, &tr, &set, 2, &g2, &err) == BL_OK, "compute with 2 threads");
+        if (g2) check_true(bl_goodness_write_csv(g2, p2path, &err) == BL_OK, "write csv (2 threads)");
+        char *a = read_file(p1path), *b = read_file(p2path);
+        check_true(a && b && strcmp(a, b) == 0, "same bytes for 1 and 2 threads");
+        if (a) {
+            const char *hdr = "model,condition,regressor,bin,regressor_low,regressor_high,regressor_mean,boundary,trials,"
+                              "responses,observed_share,predicted_share,observed_q10,predicted_q10,observed_q30,"
+                              "predicted_q30,observed_q50,predicted_q50,observed_q70,predicted_q70,observed_q90,"
+                              "predicted_q90\n";
+            check_true(strncmp(a, hdr, strlen(hdr)) == 0, "CSV header");
+            size_t lines = 0;
+            for (char *c = a; *c; c++) lines += *c == '\n';
+            check_true(lines == 1 + g->n_rows, "one line per row (%zu)", lines);
+            check_true(strstr(a, "\nbaseline,context=rich,NA,NA,NA,NA,NA,upper,") != NULL, "cell row format");
+            check_true(strstr(a, "\ntheta-threshold,context=lean,theta,5,") != NULL, "bin row format");
+        }
+        free(a);
+        free(b);
+        unlink(p1path);
+        unlink(p2path);
+        rmdir(dir);
+        bl_goodness_destroy(g2);
+    }
+    bl_goodness_destroy(g);
+    bl_goodness_destroy(NULL);
+
+    bl_table_destroy(tab);
+    free(tr.rt);
+    free(tr.upper);
+    free(tr.excluded);
+    free(truth);
+    free(base);
+    free(used);
+    gsl_rng_free(rng);
+    return harness_summary();
+}
