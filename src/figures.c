@@ -607,6 +607,13 @@ static bl_svg *fig_comparison(const bl_fit_set *set, char **caption)
     bl_svg_bars(p, x1, a, k, 0.38, (bl_svg_style){.color = bl_svg_color(0)});
     bl_svg_bars(p, x2, b, k, 0.38, (bl_svg_style){.color = bl_svg_color(1)});
     bl_svg_refline(p, BL_SVG_Y, 0, (bl_svg_style){.color = "#333333", .width = 1});
+    /* A best model has bars of height 0: say so where the bars would be. */
+    for (size_t m = 0; m < k; m++) {
+        int ba = a[m] == 0, bb = b[m] == 0;
+        if (ba || bb)
+            bl_svg_text(p, (double)m, 0, 6, ba && bb ? "best by AIC and BIC" : ba ? "best by AIC" : "best by BIC",
+                        (bl_svg_style){.color = "#333333"});
+    }
     bl_svg_legend(fig, "\xCE\x94" "AIC", BL_SVG_KEY_BOX, (bl_svg_style){.color = bl_svg_color(0), .opacity = 1});
     bl_svg_legend(fig, "\xCE\x94" "BIC", BL_SVG_KEY_BOX, (bl_svg_style){.color = bl_svg_color(1), .opacity = 1});
     *caption = xprintf("AIC and BIC of each model minus the smallest value over the models (%zu); the best model "

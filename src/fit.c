@@ -1,5 +1,5 @@
-/* Maximum-likelihood fitting of compiled models, inference, separate-participant fits and group
- * summaries.
+/* Maximum-likelihood fitting of compiled models, inference, and the fits of a study (pooled or one
+ * per participant; group summaries and permutation tests are in compare.c).
  *
  * Optimiser: GSL's BFGS (vector_bfgs2: Fletcher, Practical Methods of Optimization, 2nd ed., 1987,
  * algorithms 2.6.2 and 2.6.4) on the analytic gradient, in an unconstrained parameterisation where one
@@ -12,9 +12,8 @@
  * observed information.
  * Inference: observed information from central differences of the analytic gradient, symmetrised,
  * inverted by Cholesky (LAPACKE dpotrf/dpotri); Wald SE, z, p and 95% intervals.
- * Group summary: one-sample t-test across participants, and the DerSimonian & Laird (1986,
- * Controlled Clinical Trials 7:177-188) random-effects estimate with its between-participant variance.
  */
+#include "fit_internal.h"
 #include "model_internal.h"
 
 #include "bandlink/fit.h"
@@ -258,7 +257,7 @@ static double run_simplex(objective *o, gsl_vector *x, size_t *iterations)
     if (!s || !step) goto done;
     gsl_vector_set_all(step, 0.2);
     if (gsl_multimin_fminimizer_set(s, &fn, x, step) != GSL_SUCCESS) goto done;
-    for (size_t it = 0; it < 4000 * o->k; it++) {
+    for (size_t it = 0; it < 500 * o->k + 1000; it++) {
         (*iterations)++;
         if (gsl_multimin_fminimizer_iterate(s) != GSL_SUCCESS) break;
         if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(s), 1e-9) == GSL_SUCCESS) break;
@@ -344,7 +343,7 @@ int bl_information_inverse(const double *info, size_t k, double *cov, double *co
 
 /* ---- one fit --------------------------------------------------------------------------------- */
 
-static unsigned long mix_seed(unsigned long seed, const char *text, unsigned long extra)
+unsigned long bl_fit_mix_seed(unsigned long seed, const char *text, unsigned long extra)
 {
     /* FNV-1a over the text, folded with the seed: each model gets its own reproducible stream. */
     unsigned long long h = 1469598103934665603ULL ^ (unsigned long long)seed;
@@ -552,7 +551,7 @@ void bl_fit_result_clear(bl_fit_result *res)
 
 /* Fit with an existing likelihood workspace. With infer == 0 only the maximum is found (used by
  * permutation refits). */
-static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
+bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                           const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
 {
     double t_start = now_seconds();
@@ -567,7 +566,7 @@ static bl_status fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_op
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     memset(res, 0, sizeof *res);
     if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !cache_x || !cache_g || !rng) goto nomem;
-    gsl_rng_set(rng, mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
+    gsl_rng_set(rng, bl_fit_mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
     if ((st = plan_fit(m, tr, start, err))) goto fail;
     if (first) {
         /* A given start (e.g. the observed fit for a permutation refit) replaces the EZ start when it
@@ -692,21 +691,55 @@ done:
     return st;
 }
 
-static int default_starts(const bl_fit_options *opt) { return opt && opt->starts > 0 ? opt->starts : 3; }
+int bl_fit_default_starts(const bl_fit_options *opt) { return opt && opt->starts > 0 ? opt->starts : 3; }
+
+/* Estimates of intercept-only identity-link parameters within 1e-3 of the edge of their range
+ * (drift_sd, start_range, nondecision_range, contamination at 0; start at 0 or 1), listed into buf. */
+static int edge_estimates(const bl_model *m, const bl_fit_result *r, char *buf, size_t n)
+{
+    int found = 0;
+    buf[0] = '\0';
+    for (size_t j = 0; j < r->n_coef; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (ci->slope >= 0 || d->n_slopes || d->link != BL_LINK_IDENTITY) continue;
+        double b = r->coef[j].estimate;
+        int edge = 0;
+        switch (ci->param) {
+        case BL_DRIFT_SD:
+        case BL_START_RANGE:
+        case BL_NONDECISION_RANGE:
+        case BL_CONTAMINATION: edge = b < 1e-3; break;
+        case BL_START: edge = b < 1e-3 || b > 1 - 1e-3; break;
+        default: break;
+        }
+        if (!edge) continue;
+        size_t len = strlen(buf);
+        snprintf(buf + len, n - len, "%s%s%s%s (%.3g)", found ? ", " : "", bl_param_name(ci->param),
+                 ci->level[0] ? " " : "", ci->level, b);
+        found = 1;
+    }
+    return found;
+}
 
 static void warn_fit(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
 {
-    char who[512];
+    char who[512], edge[512];
     if (participant) snprintf(who, sizeof who, "model '%s', participant '%s'", m->name, participant);
     else snprintf(who, sizeof who, "model '%s'", m->name);
+    int at_edge = edge_estimates(m, r, edge, sizeof edge);
     if (!r->diag.hessian_positive_definite)
         bl_warnings_add(warn,
                         "%s: the observed information is not positive definite at the optimum; standard errors, "
-                        "z, p and intervals are not reported",
-                        who);
+                        "z, p and intervals are not reported%s%s",
+                        who, at_edge ? "; at the edge of their range: " : "", at_edge ? edge : "");
     else if (!r->converged)
-        bl_warnings_add(warn, "%s: did not converge (distance to the optimum %.3g standard errors, gradient %.3g)", who,
-                        r->diag.newton_decrement, r->diag.gradient_norm);
+        bl_warnings_add(warn, "%s: did not converge (distance to the optimum %.3g standard errors, gradient %.3g)%s%s",
+                        who, r->diag.newton_decrement, r->diag.gradient_norm,
+                        at_edge ? "; the maximum lies on the edge of the range of: " : "", at_edge ? edge : "");
+    else if (at_edge)
+        bl_warnings_add(warn, "%s: estimates at the edge of their range (Wald intervals unreliable there): %s", who,
+                        edge);
     if (r->diag.starts_agreed < r->diag.starts)
         bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
                         r->diag.starts_agreed, r->diag.starts);
@@ -716,8 +749,9 @@ bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const doubl
                        bl_warnings *warn, bl_error *err)
 {
     bl_likelihood *lik = bl_likelihood_create(m, opt ? opt->threads : 0);
+    if (lik && opt && opt->parallel_trials) bl_likelihood_set_parallel(lik, opt->parallel_trials > 0);
     if (!lik) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);
-    bl_status st = fit_core(m, lik, opt, default_starts(opt), start, 1, res, NULL, err);
+    bl_status st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
     if (!st) warn_fit(m, NULL, res, warn);
     bl_likelihood_destroy(lik);
     return st;
@@ -790,154 +824,8 @@ void bl_fit_set_destroy(bl_fit_set *set)
     free(set);
 }
 
-/* Group summary over participants (separate mode). */
-static bl_status group_summary(bl_model_result *r, bl_error *err)
-{
-    size_t cap = 0;
-    for (size_t i = 0; i < r->n_participants; i++) cap += r->participants[i].n_coef;
-    r->group = calloc(cap ? cap : 1, sizeof *r->group);
-    double *y = malloc((r->n_participants + 1) * sizeof *y), *v = malloc((r->n_participants + 1) * sizeof *v);
-    if (!r->group || !y || !v) {
-        free(y);
-        free(v);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-    }
-    size_t ng = 0;
-    for (size_t i = 0; i < r->n_participants; i++)
-        for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-            const bl_coefficient *c = &r->participants[i].coef[j];
-            size_t g;
-            for (g = 0; g < ng; g++)
-                if (r->group[g].param == c->param && !strcmp(r->group[g].term, c->term) &&
-                    !strcmp(r->group[g].level, c->level))
-                    break;
-            if (g < ng) continue;
-            bl_group_coefficient *gc = &r->group[ng++];
-            gc->param = c->param;
-            gc->parameter = c->parameter;
-            gc->term = dup_str(c->term);
-            gc->level = dup_str(c->level);
-            if (!gc->term || !gc->level) {
-                free(y);
-                free(v);
-                r->n_group = ng;
-                return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-            }
-        }
-    r->n_group = ng;
-    for (size_t g = 0; g < ng; g++) {
-        bl_group_coefficient *gc = &r->group[g];
-        size_t n = 0, nw = 0;
-        double sum = 0;
-        for (size_t i = 0; i < r->n_participants; i++)
-            for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-                const bl_coefficient *c = &r->participants[i].coef[j];
-                if (c->param != gc->param || strcmp(c->term, gc->term) || strcmp(c->level, gc->level)) continue;
-                sum += c->estimate;
-                if (isfinite(c->se) && c->se > 0) {
-                    y[nw] = c->estimate;
-                    v[nw] = c->se * c->se;
-                    nw++;
-                }
-                n++;
-            }
-        gc->n = n;
-        gc->mean = sum / (double)n;
-        double ss = 0;
-        for (size_t i = 0; i < r->n_participants; i++)
-            for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-                const bl_coefficient *c = &r->participants[i].coef[j];
-                if (c->param == gc->param && !strcmp(c->term, gc->term) && !strcmp(c->level, gc->level))
-                    ss += (c->estimate - gc->mean) * (c->estimate - gc->mean);
-            }
-        gc->sd = gc->t = gc->df = gc->p_t = NAN;
-        if (n >= 2) {
-            gc->sd = sqrt(ss / (double)(n - 1));
-            gc->df = (double)(n - 1);
-            gc->t = gc->mean / (gc->sd / sqrt((double)n));
-            gc->p_t = isfinite(gc->t) ? 2 * gsl_cdf_tdist_Q(fabs(gc->t), gc->df) : NAN;
-        }
-        /* DerSimonian & Laird (1986): moment estimate of tau^2 from Cochran's Q. */
-        gc->n_with_se = nw;
-        gc->re_estimate = gc->re_se = gc->re_ci_low = gc->re_ci_high = gc->re_z = gc->re_p = NAN;
-        gc->tau2 = gc->q = NAN;
-        if (nw >= 1) {
-            double sw = 0, sw2 = 0, swy = 0;
-            for (size_t i = 0; i < nw; i++) {
-                double w = 1 / v[i];
-                sw += w;
-                sw2 += w * w;
-                swy += w * y[i];
-            }
-            double yf = swy / sw, q = 0;
-            for (size_t i = 0; i < nw; i++) q += (y[i] - yf) * (y[i] - yf) / v[i];
-            double tau2 = 0;
-            if (nw >= 2) tau2 = fmax(0.0, (q - (double)(nw - 1)) / (sw - sw2 / sw));
-            double sws = 0, swsy = 0;
-            for (size_t i = 0; i < nw; i++) {
-                double w = 1 / (v[i] + tau2);
-                sws += w;
-                swsy += w * y[i];
-            }
-            gc->q = q;
-            gc->tau2 = tau2;
-            gc->re_estimate = swsy / sws;
-            gc->re_se = sqrt(1 / sws);
-            gc->re_z = gc->re_estimate / gc->re_se;
-            gc->re_p = 2 * gsl_cdf_ugaussian_Q(fabs(gc->re_z));
-            gc->re_ci_low = gc->re_estimate - Z975 * gc->re_se;
-            gc->re_ci_high = gc->re_estimate + Z975 * gc->re_se;
-        }
-    }
-    free(y);
-    free(v);
-    /* The model-level coefficients in separate mode are the random-effects estimates. */
-    bl_fit_result *f = &r->fit;
-    f->n_coef = ng;
-    f->coef = calloc(ng ? ng : 1, sizeof *f->coef);
-    if (!f->coef) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-    for (size_t g = 0; g < ng; g++) {
-        bl_coefficient *c = &f->coef[g];
-        const bl_group_coefficient *gc = &r->group[g];
-        c->param = gc->param;
-        c->parameter = gc->parameter;
-        c->term = dup_str(gc->term);
-        c->level = dup_str(gc->level);
-        if (!c->term || !c->level) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-        c->estimate = gc->re_estimate;
-        c->se = gc->re_se;
-        c->z = gc->re_z;
-        c->p = gc->re_p;
-        c->ci_low = gc->re_ci_low;
-        c->ci_high = gc->re_ci_high;
-    }
-    return BL_OK;
-}
 
-/* A copy of a spec without slope s of parameter p (for the permutation statistic's null model).
- * Only the slopes array of that parameter is new; everything else is shared. */
-static int spec_without_slope(const bl_model_spec *spec, int p, size_t s, bl_model_spec *out, bl_slope_spec **mem)
-{
-    *out = *spec;
-    size_t n = spec->param[p].n_slopes;
-    *mem = malloc((n ? n : 1) * sizeof **mem);
-    if (!*mem) return 0;
-    size_t w = 0;
-    for (size_t i = 0; i < n; i++)
-        if (i != s) (*mem)[w++] = spec->param[p].slopes[i];
-    out->param[p].slopes = *mem;
-    out->param[p].n_slopes = w;
-    return 1;
-}
-
-typedef struct {
-    size_t n_units;
-    bl_model **models;     /* per unit */
-    bl_likelihood **liks;
-    double **coef;
-} unit_set;
-
-static void unit_set_free(unit_set *u)
+void bl_unit_set_free(bl_unit_set *u)
 {
     for (size_t i = 0; i < u->n_units; i++) {
         bl_likelihood_destroy(u->liks ? u->liks[i] : NULL);
@@ -951,8 +839,8 @@ static void unit_set_free(unit_set *u)
 }
 
 /* Build one model for every unit (pooled: one unit; separate: one per participant with trials). */
-static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
-                             const bl_fit_options *opt, unit_set *u, char ***unit_names, bl_warnings *warn,
+bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
+                             const bl_fit_options *opt, bl_unit_set *u, char ***unit_names, bl_warnings *warn,
                              bl_error *err)
 {
     memset(u, 0, sizeof *u);
@@ -994,6 +882,7 @@ static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials,
         size_t i = u->n_units++;
         u->models[i] = m;
         u->liks[i] = bl_likelihood_create(m, opt->threads);
+        if (u->liks[i] && opt->parallel_trials) bl_likelihood_set_parallel(u->liks[i], opt->parallel_trials > 0);
         u->coef[i] = calloc(m->n_coef, sizeof(double));
         if (!u->liks[i] || !u->coef[i]) {
             st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
@@ -1005,193 +894,12 @@ static bl_status build_units(const bl_model_spec *spec, const bl_trials *trials,
 done:
     free(use);
     if (st) {
-        unit_set_free(u);
+        bl_unit_set_free(u);
         if (unit_names) {
             free(*unit_names);
             *unit_names = NULL;
         }
     }
-    return st;
-}
-
-/* Maximum log-likelihood summed over units, refitted from warm starts without inference. */
-static bl_status refit_units(unit_set *u, const bl_fit_options *opt, double *ll_total, bl_error *err)
-{
-    double total = 0;
-    for (size_t i = 0; i < u->n_units; i++) {
-        bl_fit_result r;
-        double *c = malloc(u->models[i]->n_coef * sizeof *c);
-        if (!c) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        bl_status st = fit_core(u->models[i], u->liks[i], opt, 1, u->coef[i], 0, &r, c, err);
-        if (st) {
-            free(c);
-            return st;
-        }
-        total += r.log_likelihood;
-        bl_fit_result_clear(&r);
-        free(c);
-    }
-    *ll_total = total;
-    return BL_OK;
-}
-
-/* The refits of one slope's permutation test. Permutation b shuffles with its own generator seeded
- * from (seed, model, parameter, slope, b), so the refits can run on several threads (each with its
- * own copy of the designs and a one-thread likelihood) and still give the same count. */
-static bl_status run_permutations(const unit_set *full, size_t **cells, const bl_fit_options *opt,
-                                  const bl_model_result *r, int p, size_t s, size_t *exceed_out, bl_error *err)
-{
-    size_t n_perm = opt->permutations, exceed = 0, done_count = 0;
-    bl_status st_all = BL_OK;
-    bl_error err_all = {0};
-    int nt = 1;
-#ifdef _OPENMP
-    nt = opt->threads > 0 ? opt->threads : omp_get_max_threads();
-    if (nt < 1) nt = 1;
-    if ((size_t)nt > n_perm) nt = n_perm > 0 ? (int)n_perm : 1;
-#pragma omp parallel num_threads(nt) reduction(+ : exceed)
-#endif
-    {
-        bl_fit_options one = *opt;
-        one.threads = 1;
-        one.progress = NULL;
-        unit_set mine = {0};
-        gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-        int ok = rng != NULL;
-        mine.n_units = full->n_units;
-        mine.models = calloc(full->n_units, sizeof *mine.models);
-        mine.liks = calloc(full->n_units, sizeof *mine.liks);
-        mine.coef = calloc(full->n_units, sizeof *mine.coef);
-        ok = ok && mine.models && mine.liks && mine.coef;
-        for (size_t i = 0; ok && i < full->n_units; i++) {
-            mine.models[i] = bl_model_copy(full->models[i]);
-            mine.liks[i] = mine.models[i] ? bl_likelihood_create(mine.models[i], 1) : NULL;
-            mine.coef[i] = malloc(full->models[i]->n_coef * sizeof(double));
-            ok = mine.liks[i] && mine.coef[i];
-            if (ok) memcpy(mine.coef[i], full->coef[i], full->models[i]->n_coef * sizeof(double));
-        }
-        if (!ok) {
-#ifdef _OPENMP
-#pragma omp critical(bl_perm_error)
-#endif
-            if (!st_all) st_all = bl_error_set(&err_all, BL_ERR_NOMEM, "out of memory in the permutation test");
-        }
-#ifdef _OPENMP
-#pragma omp for schedule(dynamic, 1)
-#endif
-        for (size_t b = 0; b < n_perm; b++) {
-            if (!ok) continue;
-            bl_error e = {0};
-            bl_status st = BL_OK;
-            gsl_rng_set(rng, mix_seed(opt->seed, r->name, (unsigned long)p * 1000003UL + (unsigned long)s * 7919UL +
-                                                               (unsigned long)b * 2654435761UL));
-            for (size_t i = 0; !st && i < mine.n_units; i++)
-                st = bl_model_permute_slope(mine.models[i], p, s, cells[i], rng, &e);
-            double ll_perm = -INFINITY;
-            if (!st) st = refit_units(&mine, &one, &ll_perm, &e);
-            if (st) {
-#ifdef _OPENMP
-#pragma omp critical(bl_perm_error)
-#endif
-                if (!st_all) {
-                    st_all = st;
-                    err_all = e;
-                }
-                continue;
-            }
-            /* Ties count as reaching the observed value (a tolerance for optimiser noise). */
-            if (ll_perm >= r->log_likelihood - 1e-6) exceed++;
-            if (opt->progress) {
-#ifdef _OPENMP
-#pragma omp critical(bl_perm_progress)
-#endif
-                {
-                    done_count++;
-                    char stage[256];
-                    snprintf(stage, sizeof stage, "%s: permutations of the %s slope on '%s'", r->name,
-                             bl_param_name(p), full->models[0]->par[p].slopes[s].regressor);
-                    opt->progress(opt->progress_user, stage, done_count, n_perm);
-                }
-            }
-        }
-        gsl_rng_free(rng);
-        unit_set_free(&mine);
-    }
-    if (st_all) {
-        if (err) *err = err_all;
-        return st_all;
-    }
-    *exceed_out = exceed;
-    return BL_OK;
-}
-
-static bl_status permutation_tests(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
-                                   const bl_fit_options *opt, unit_set *full, bl_model_result *r, bl_error *err)
-{
-    size_t n_tests = 0;
-    for (int p = 0; p < BL_NPARAM; p++) n_tests += spec->param[p].is_fixed ? 0 : spec->param[p].n_slopes;
-    if (n_tests == 0 || opt->permutations == 0) return BL_OK;
-    r->permutation = calloc(n_tests, sizeof *r->permutation);
-    if (!r->permutation) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-    bl_status st = BL_OK;
-    size_t **cells = calloc(full->n_units, sizeof *cells);
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!cells || !rng) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        goto done;
-    }
-    for (size_t i = 0; i < full->n_units; i++) {
-        size_t nc;
-        if ((st = bl_model_condition_cells(full->models[i], trials, &cells[i], &nc, err))) goto done;
-    }
-    size_t t = 0;
-    for (int p = 0; p < BL_NPARAM; p++) {
-        if (spec->param[p].is_fixed) continue;
-        for (size_t s = 0; s < spec->param[p].n_slopes; s++, t++) {
-            bl_permutation_test *pt = &r->permutation[t];
-            r->n_permutation = t + 1;
-            pt->param = p;
-            pt->parameter = bl_param_name(p);
-            if (!(pt->regressor = dup_str(spec->param[p].slopes[s].regressor))) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-                goto done;
-            }
-            /* Null model: the same model without this slope. */
-            bl_model_spec reduced;
-            bl_slope_spec *mem = NULL;
-            unit_set red;
-            double ll_red = NAN;
-            if (!spec_without_slope(spec, p, s, &reduced, &mem)) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-                goto done;
-            }
-            st = build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
-                             NULL, NULL, err);
-            free(mem);
-            if (st) goto done;
-            double total = 0;
-            for (size_t i = 0; i < red.n_units && !st; i++) {
-                bl_fit_result fr;
-                st = fit_core(red.models[i], red.liks[i], opt, default_starts(opt), NULL, 0, &fr, NULL, err);
-                if (!st) total += fr.log_likelihood;
-                bl_fit_result_clear(&fr);
-            }
-            unit_set_free(&red);
-            if (st) goto done;
-            ll_red = total;
-            pt->statistic = 2 * (r->log_likelihood - ll_red);
-            size_t exceed = 0;
-            if ((st = run_permutations(full, cells, opt, r, p, s, &exceed, err))) goto done;
-            pt->permutations = opt->permutations;
-            pt->exceed = exceed;
-            pt->p = (1.0 + (double)exceed) / (1.0 + (double)opt->permutations);
-        }
-    }
-done:
-    if (cells)
-        for (size_t i = 0; i < full->n_units; i++) free(cells[i]);
-    free(cells);
-    gsl_rng_free(rng);
     return st;
 }
 
@@ -1220,7 +928,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     }
     bl_fit_set *set = calloc(1, sizeof *set);
     size_t *sel = calloc(study->n_models ? study->n_models : 1, sizeof *sel);
-    unit_set *units = calloc(study->n_models ? study->n_models : 1, sizeof *units);
+    bl_unit_set *units = calloc(study->n_models ? study->n_models : 1, sizeof *units);
     if (!set || !sel || !units) {
         free(set);
         free(sel);
@@ -1244,52 +952,100 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         goto fail;
     }
     set->n_models = n_sel;
-    size_t steps_total = n_sel, steps = 0;
     int nondecision_note = 0;
+    /* 1. Designs of every model (and participant), checked before anything is fitted. */
+    char ***unit_names = calloc(n_sel ? n_sel : 1, sizeof *unit_names);
+    if (!unit_names) goto nomem;
     for (size_t q = 0; q < n_sel; q++) {
         const bl_model_spec *spec = &study->models[sel[q]];
         bl_model_result *r = &set->models[q];
         r->mode = set->mode;
         r->nested = -1;
         r->n_rows = trials->n;
-        if (!(r->name = dup_str(spec->name)) || (spec->extends && !(r->extends = dup_str(spec->extends)))) goto nomem;
+        if (!(r->name = dup_str(spec->name)) || (spec->extends && !(r->extends = dup_str(spec->extends)))) goto nomem_names;
         r->used = calloc(trials->n ? trials->n : 1, 1);
         r->predicted = calloc(trials->n ? trials->n : 1, sizeof *r->predicted);
         r->p_upper = malloc((trials->n ? trials->n : 1) * sizeof(double));
         r->mean_rt = malloc((trials->n ? trials->n : 1) * sizeof(double));
         r->trial_log_likelihood = malloc((trials->n ? trials->n : 1) * sizeof(double));
-        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem;
+        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem_names;
         for (size_t i = 0; i < trials->n; i++) {
             r->p_upper[i] = r->mean_rt[i] = r->trial_log_likelihood[i] = NAN;
             for (int p = 0; p < BL_NPARAM; p++) r->predicted[i].value[p] = NAN;
             r->predicted[i].contamination_lo = r->predicted[i].contamination_hi = NAN;
         }
-        if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
-        char **unit_names = NULL;
-        if ((st = build_units(spec, trials, set->mode, &opt, &units[q], &unit_names, warn, err))) goto fail;
-        unit_set *u = &units[q];
+        if ((st = bl_build_units(spec, trials, set->mode, &opt, &units[q], &unit_names[q], warn, err))) goto fail_names;
         if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-            r->participants = calloc(u->n_units, sizeof *r->participants);
-            if (!r->participants) {
-                free(unit_names);
-                goto nomem;
+            r->participants = calloc(units[q].n_units, sizeof *r->participants);
+            if (!r->participants) goto nomem_names;
+            r->n_participants = units[q].n_units;
+            for (size_t i = 0; i < units[q].n_units; i++)
+                if (!(r->participants[i].participant = dup_str(unit_names[q][i]))) goto nomem_names;
+        }
+    }
+    /* 2. The fits. Several fits (models, participants) run side by side, each on one thread, with
+     * the same results as one after the other; a single fit spreads its trials over the threads. */
+    size_t n_jobs = 0;
+    for (size_t q = 0; q < n_sel; q++) n_jobs += units[q].n_units;
+    size_t *job_q = malloc((n_jobs ? n_jobs : 1) * sizeof *job_q), *job_i = malloc((n_jobs ? n_jobs : 1) * sizeof *job_i);
+    bl_status *job_st = calloc(n_jobs ? n_jobs : 1, sizeof *job_st);
+    bl_error *job_err = calloc(n_jobs ? n_jobs : 1, sizeof *job_err);
+    if (!job_q || !job_i || !job_st || !job_err) {
+        free(job_q);
+        free(job_i);
+        free(job_st);
+        free(job_err);
+        goto nomem_names;
+    }
+    for (size_t q = 0, j = 0; q < n_sel; q++)
+        for (size_t i = 0; i < units[q].n_units; i++, j++) {
+            job_q[j] = q;
+            job_i[j] = i;
+        }
+    size_t jobs_done = 0;
+    int nt = 1;
+#ifdef _OPENMP
+    nt = opt.threads > 0 ? opt.threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (n_jobs > 1 && nt > 1)
+#endif
+    for (size_t j = 0; j < n_jobs; j++) {
+        size_t q = job_q[j], i = job_i[j];
+        bl_model_result *r = &set->models[q];
+        bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
+        char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
+        fr->participant = NULL;
+        job_st[j] = bl_fit_core(units[q].models[i], units[q].liks[i], &opt, opt.starts, NULL, 1, fr, units[q].coef[i],
+                             &job_err[j]);
+        fr->participant = keep;
+        if (opt.progress) {
+#ifdef _OPENMP
+#pragma omp critical(bl_fit_progress)
+#endif
+            {
+                jobs_done++;
+                opt.progress(opt.progress_user, r->name, jobs_done, n_jobs);
             }
         }
+    }
+    for (size_t j = 0; j < n_jobs && !st; j++)
+        if (job_st[j]) {
+            st = job_st[j];
+            if (err) *err = job_err[j];
+        }
+    free(job_q);
+    free(job_i);
+    free(job_st);
+    free(job_err);
+    if (st) goto fail_names;
+    /* 3. In model order: warnings, predictions, totals, group summaries, permutation tests. */
+    for (size_t q = 0; q < n_sel; q++) {
+        const bl_model_spec *spec = &study->models[sel[q]];
+        bl_model_result *r = &set->models[q];
+        bl_unit_set *u = &units[q];
         r->converged = 1;
         for (size_t i = 0; i < u->n_units; i++) {
             bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
-            st = fit_core(u->models[i], u->liks[i], &opt, opt.starts, NULL, 1, fr, u->coef[i], err);
-            if (st) {
-                free(unit_names);
-                goto fail;
-            }
-            if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-                r->n_participants = i + 1;
-                if (!(fr->participant = dup_str(unit_names[i]))) {
-                    free(unit_names);
-                    goto nomem;
-                }
-            }
             warn_fit(u->models[i], fr->participant, fr, warn);
             r->log_likelihood += fr->log_likelihood;
             r->parameters += fr->parameters;
@@ -1297,7 +1053,6 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             r->converged = r->converged && fr->converged;
             fill_predictions(r, u->models[i], u->coef[i], u->liks[i]);
         }
-        free(unit_names);
         if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
             nondecision_note = 1;
         r->aic = 2.0 * (double)r->parameters - 2.0 * r->log_likelihood;
@@ -1317,16 +1072,18 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
                 f->diag.evaluations += r->participants[i].diag.evaluations;
                 f->diag.iterations += r->participants[i].diag.iterations;
                 f->diag.seconds += r->participants[i].diag.seconds;
+                f->diag.starts += r->participants[i].diag.starts;
+                f->diag.starts_agreed += r->participants[i].diag.starts_agreed;
             }
             f->diag.hessian_positive_definite = 1;
             for (size_t i = 0; i < r->n_participants; i++)
                 f->diag.hessian_positive_definite &= r->participants[i].diag.hessian_positive_definite;
-            if ((st = group_summary(r, err))) goto fail;
+            if ((st = bl_group_summary(r, err))) goto fail_names;
         }
-        steps++;
-        if (opt.progress) opt.progress(opt.progress_user, spec->name, steps, steps_total);
-        if ((st = permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail;
+        if ((st = bl_permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail_names;
     }
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
     if (nondecision_note)
         bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
                               "the fastest RT (see docs/models.md)");
@@ -1344,15 +1101,21 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         r->nested = nested && set->models[b].parameters < r->parameters;
     }
     if ((st = bl_compare_models(set, err))) goto fail;
-    for (size_t q = 0; q < n_sel; q++) unit_set_free(&units[q]);
+    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
     free(units);
     free(sel);
     *out = set;
     return BL_OK;
+nomem_names:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+fail_names:
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
+    goto fail;
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
 fail:
-    for (size_t q = 0; q < n_sel; q++) unit_set_free(&units[q]);
+    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
     free(units);
     free(sel);
     bl_fit_set_destroy(set);

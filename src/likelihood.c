@@ -10,6 +10,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #ifdef _OPENMP
 #include <omp.h>
 #endif
@@ -23,10 +24,31 @@ struct bl_likelihood {
     int threads;
     size_t n_blocks;
     double *block_ll;     /* n_blocks */
-    double *block_grad;   /* n_blocks x n_coef */
+    double *block_grad;   /* n_blocks rows of `stride` doubles (n_coef used) */
+    size_t stride;        /* n_coef rounded up to 64 bytes: blocks on different threads never share a
+                             cache line, which would make every gradient update ping-pong */
     int *block_bad;       /* n_blocks */
     size_t evaluations;
+    /* Parallel or serial, chosen by timing: the block sums are the same either way, so the choice
+     * changes speed only. Probes alternate both for a few evaluations, then the faster one is used
+     * until the next probe round (a busy machine can make fork-join slower than one thread). */
+    double time_par, time_ser;
+    int probes_par, probes_ser, use_par, warmed;
+    size_t probe_interval; /* grows while one thread keeps winning: probing a losing mode costs */
+    int force;            /* -1 choose by timing, 0 always serial, 1 always parallel */
+    size_t next_probe;
 };
+
+static double wall(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+#define BL_LIK_PROBES 2        /* timed evaluations of each mode per probe round */
+#define BL_LIK_REPROBE 64      /* evaluations between probe rounds (load can change quickly); x4 after
+                                  each round one thread wins, up to 4096 */
 
 bl_likelihood *bl_likelihood_create(const bl_model *m, int threads)
 {
@@ -35,8 +57,12 @@ bl_likelihood *bl_likelihood_create(const bl_model *m, int threads)
     w->m = m;
     w->threads = threads;
     w->n_blocks = (m->n + BL_LIK_BLOCK - 1) / BL_LIK_BLOCK;
+    w->use_par = 1;
+    w->force = -1;
+    w->probe_interval = BL_LIK_REPROBE;
     w->block_ll = malloc(w->n_blocks * sizeof *w->block_ll);
-    w->block_grad = malloc(w->n_blocks * m->n_coef * sizeof *w->block_grad);
+    w->stride = (m->n_coef + 7) / 8 * 8;
+    w->block_grad = aligned_alloc(64, w->n_blocks * w->stride * sizeof *w->block_grad);
     w->block_bad = malloc(w->n_blocks * sizeof *w->block_bad);
     if (!w->block_ll || !w->block_grad || !w->block_bad) {
         bl_likelihood_destroy(w);
@@ -122,18 +148,61 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
     w->evaluations++;
     for (size_t j = 0; j < nc; j++)
         if (!isfinite(coef[j])) goto infeasible;
+    int par = 0, probing = 0;
 #ifdef _OPENMP
     int nt = w->threads > 0 ? w->threads : omp_get_max_threads();
     if ((size_t)nt > nb) nt = (int)nb;
     if (nt < 1) nt = 1;
-    /* Below ~1000 trials a parallel region costs more than it saves. Dynamic scheduling keeps both
-     * threads busy when one is slowed by other load; the sums stay in block order. */
-#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (nb >= 16)
+    /* Below ~1000 trials a parallel region costs more than it saves. */
+    if (nt > 1 && w->force == 1 && !omp_in_parallel()) {
+        par = 1;
+    } else if (nt > 1 && nb >= 16 && w->force < 0 && !omp_in_parallel()) {
+        if (w->evaluations >= w->next_probe && (w->probes_par < BL_LIK_PROBES || w->probes_ser < BL_LIK_PROBES)) {
+            probing = 1;
+            par = w->probes_par <= w->probes_ser;
+        } else {
+            par = w->use_par;
+        }
+    }
 #endif
-    for (size_t b = 0; b < nb; b++) {
-        size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < m->n ? k0 + BL_LIK_BLOCK : m->n;
-        w->block_bad[b] = !eval_block(m, coef, k0, k1, &w->block_ll[b], grad ? w->block_grad + b * nc : NULL,
-                                      trial_ll);
+    double t_start = probing ? wall() : 0;
+    if (par) {
+#ifdef _OPENMP
+        /* Dynamic scheduling keeps both threads busy when one is slowed by other load; the sums
+         * stay in block order. */
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt)
+#endif
+        for (size_t b = 0; b < nb; b++) {
+            size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < m->n ? k0 + BL_LIK_BLOCK : m->n;
+            w->block_bad[b] = !eval_block(m, coef, k0, k1, &w->block_ll[b], grad ? w->block_grad + b * w->stride : NULL,
+                                          trial_ll);
+        }
+    } else {
+        for (size_t b = 0; b < nb; b++) {
+            size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < m->n ? k0 + BL_LIK_BLOCK : m->n;
+            w->block_bad[b] = !eval_block(m, coef, k0, k1, &w->block_ll[b], grad ? w->block_grad + b * w->stride : NULL,
+                                          trial_ll);
+        }
+    }
+    if (probing && par && !w->warmed) {
+        w->warmed = 1; /* the first parallel region also starts the thread pool: not timed */
+    } else if (probing) {
+        double dt = wall() - t_start;
+        if (par) {
+            w->time_par += dt;
+            w->probes_par++;
+        } else {
+            w->time_ser += dt;
+            w->probes_ser++;
+        }
+        if (w->probes_par >= BL_LIK_PROBES && w->probes_ser >= BL_LIK_PROBES) {
+            w->use_par = w->time_par < w->time_ser;
+            if (w->use_par) w->probe_interval = BL_LIK_REPROBE;
+            else if (w->probe_interval < 64 * BL_LIK_REPROBE) w->probe_interval *= 4;
+            w->time_par = w->time_ser = 0;
+            w->probes_par = w->probes_ser = 0;
+            w->next_probe = w->evaluations + w->probe_interval;
+        }
     }
     double ll = 0;
     for (size_t b = 0; b < nb; b++) {
@@ -144,7 +213,7 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
     if (grad) {
         memset(grad, 0, nc * sizeof *grad);
         for (size_t b = 0; b < nb; b++)
-            for (size_t j = 0; j < nc; j++) grad[j] += w->block_grad[b * nc + j];
+            for (size_t j = 0; j < nc; j++) grad[j] += w->block_grad[b * w->stride + j];
         for (size_t j = 0; j < nc; j++)
             if (!isfinite(grad[j])) goto infeasible;
     }
@@ -153,6 +222,8 @@ infeasible:
     if (grad) memset(grad, 0, nc * sizeof *grad);
     return -INFINITY;
 }
+
+void bl_likelihood_set_parallel(bl_likelihood *w, int mode) { w->force = mode < 0 ? -1 : mode > 0 ? 1 : 0; }
 
 double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad)
 {

@@ -18,7 +18,7 @@
 enum { FS_TITLE = 15, FS_PANEL = 13, FS_LABEL = 12, FS_TICK = 11, FS_LEGEND = 12, FS_SPAN = 10 };
 static const double TITLE_H = 34, LEGEND_ROW = 18;
 
-typedef enum { EL_LINE, EL_POINTS, EL_ERRORBARS, EL_RIBBON, EL_VSPAN, EL_BARS, EL_REFLINE, EL_NOTE } el_kind;
+typedef enum { EL_LINE, EL_POINTS, EL_ERRORBARS, EL_RIBBON, EL_VSPAN, EL_BARS, EL_REFLINE, EL_NOTE, EL_TEXT } el_kind;
 
 typedef struct {
     el_kind kind;
@@ -330,6 +330,17 @@ void bl_svg_refline(bl_svg_panel *p, int axis, double value, bl_svg_style s)
     e->a = value;
 }
 
+void bl_svg_text(bl_svg_panel *p, double x, double y, double dy, const char *text, bl_svg_style s)
+{
+    element *e = add_el(p, EL_TEXT, s);
+    if (!e) return;
+    e->a = x;
+    e->b = y;
+    e->n = 0;
+    e->style.width = dy; /* reused: pixel offset */
+    e->text = dup_str(p->fig, text ? text : "");
+}
+
 void bl_svg_note(bl_svg_panel *p, const char *text)
 {
     element *e = add_el(p, EL_NOTE, (bl_svg_style){0});
@@ -467,10 +478,13 @@ int bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double 
 
 /* ---- layout and rendering ---- */
 
+/* Ticks per axis; also the most categories an axis labels. */
+enum { MAX_TICKS = 256 };
+
 typedef struct {
     double lo, hi;         /* in transformed units (log10 for log axes) */
-    double ticks[64];
-    char labels[64][32];
+    double ticks[MAX_TICKS];
+    char labels[MAX_TICKS][32];
     int n_ticks;
     double px0, px1;       /* pixel positions of lo and hi */
 } scale_t;
@@ -541,6 +555,7 @@ static void data_extent(const bl_svg_panel *p, int axis, double *lo, double *hi)
         case EL_REFLINE:
             if (axis == e->axis) extend(lo, hi, tr(a, e->a));
             break;
+        case EL_TEXT: extend(lo, hi, tr(a, axis == BL_SVG_X ? e->a : e->b)); break;
         case EL_NOTE: break;
         }
     }
@@ -563,7 +578,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
         size_t n = a->n_cats ? a->n_cats : 1;
         s->lo = -0.5;
         s->hi = (double)n - 0.5;
-        for (size_t i = 0; i < a->n_cats && i < 64; i++) {
+        for (size_t i = 0; i < a->n_cats && i < MAX_TICKS; i++) {
             s->ticks[s->n_ticks] = (double)i;
             snprintf(s->labels[s->n_ticks], sizeof s->labels[0], "%s", "");
             s->n_ticks++;
@@ -611,7 +626,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
             if ((e - (int)e0) % every != 0) continue;
             for (int m = 0; m < (use_mant ? 3 : 1); m++) {
                 double t = e + log10(mant[m]);
-                if (t < lo - 1e-9 || t > hi + 1e-9 || s->n_ticks >= 64) continue;
+                if (t < lo - 1e-9 || t > hi + 1e-9 || s->n_ticks >= MAX_TICKS) continue;
                 s->ticks[s->n_ticks] = t;
                 snprintf(s->labels[s->n_ticks], sizeof s->labels[0], "%g", mant[m] * pow(10, e));
                 s->n_ticks++;
@@ -627,7 +642,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
         if (!a->fixed) lo = wlo, hi = whi;
         else if (lo == hi) lo = wlo, hi = whi;
         double k0 = round(first / step);
-        for (int k = 0; k < count && s->n_ticks < 64; k++) {
+        for (int k = 0; k < count && s->n_ticks < MAX_TICKS; k++) {
             double t = (k0 + k) * step;
             if (t < lo - 1e-9 * step || t > hi + 1e-9 * step) continue;
             s->ticks[s->n_ticks] = t;
@@ -829,6 +844,14 @@ static void render_element(FILE *f, const bl_svg_panel *p, const element *e, con
     case EL_NOTE:
         text_el(f, (b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2, FS_LABEL, "middle", "fill=\"#555555\"", e->text);
         break;
+    case EL_TEXT: {
+        double x = PX(e->a), y = PY(e->b);
+        if (!isfinite(x) || !isfinite(y)) break;
+        char fill[32];
+        snprintf(fill, sizeof fill, "fill=\"%s\"", e->color);
+        text_el(f, x, y - e->style.width, FS_SPAN, "middle", fill, e->text);
+        break;
+    }
     }
 #undef PX
 #undef PY

@@ -82,54 +82,77 @@ bl_status bl_wiener_check(const bl_wiener_params *p, bl_error *err)
 static const double LOG_SQRT_2PI = 0.91893853320467274178;
 
 /* Small-time series (u < 0.25). Sums are scaled by exp(w^2 / (2u)) so the k = 0 image is w.
- * Returns log(S0); fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
-static double small_time(double u, double w, double eps, int want_grad, double *Lu, double *Lw)
+ * Every scaled image term is a product of powers of two exponentials, A = exp(-2(1-w)/u) and
+ * B = exp(-2(1+w)/u): the image at w - 2k has exp(-2k(k-w)/u) = A^{k(k+1)/2} B^{k(k-1)/2} and the one
+ * at w + 2k has A^{k(k-1)/2} B^{k(k+1)/2}; so the usual case (k <= 1 plus the bound at k = 2) costs two
+ * calls to exp. All factors are <= 1: nothing overflows.
+ * Returns S0; fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
+static double small_time(double u, double w, double d, double eps, int want_grad, double *Lu, double *Lw)
 {
-    double iu2 = 0.5 / u;
     double S0, S3 = 0, Sw = 0;
-    int K = 0;
-    double d = 1 - w;
+    double A, B = -1; /* B computed on first use */
+    double En, Ep, Ak, Bk;
+    int K;
     if (d < 1e-3) {
         /* Start near the far boundary: the k = 0 and k = -1 images cancel; pair them exactly
          * (numerics notes, section 1.3): w + (w-2)exp(-2d/u) without cancellation. */
         double em = expm1(-2 * d / u);
+        A = 1 + em;
+        B = exp(-2 * (1 + w) / u);
         S0 = -em - d * (2 + em);
-        double E0 = 1 + em;
-        double xn = w - 2, xp = w + 2, Ep = exp(-(xp * xp - w * w) * iu2);
-        S0 += xp * Ep;
+        double xn = w - 2, xp = w + 2;
+        S0 += xp * B;
         if (want_grad) {
-            S3 = w * w * w + xn * xn * xn * E0 + xp * xp * xp * Ep;
-            Sw = (1 - w * w / u) + (1 - xn * xn / u) * E0 + (1 - xp * xp / u) * Ep;
+            S3 = w * w * w + xn * xn * xn * A + xp * xp * xp * B;
+            Sw = (1 - w * w / u) + (1 - xn * xn / u) * A + (1 - xp * xp / u) * B;
         }
         K = 1;
+        En = A * A * A * B; /* images for k = 2 */
+        Ep = A * B * B * B;
+        Ak = A * A;
+        Bk = B * B;
     } else {
+        A = exp(-2 * d / u);
         S0 = w;
         if (want_grad) {
             S3 = w * w * w;
             Sw = 1 - w * w / u;
         }
+        K = 0;
+        En = A; /* images for k = 1 (Ep once B is known) */
+        Ep = 0;
+        Ak = A;
+        Bk = 1;
     }
     for (;; K++) {
         /* Nearest omitted image is x = w - 2(K+1), at distance x0 = 2K + 2 - w >= 1 > sqrt(3u):
-         * every tail bound below is valid. Its scaled term is E. */
+         * every tail bound below is valid. Its scaled term is En. */
         double x0 = 2 * K + 2 - w;
-        double E = exp(-(x0 * x0 - w * w) * iu2);
-        if ((x0 + 0.5 * u) * E <= eps * S0) {
+        if ((x0 + 0.5 * u) * En <= eps * S0) {
             if (!want_grad) break;
             /* Weight x^3 (d/du) and x^2/u (d/dw): first omitted term plus half the tail integral. */
-            double b3 = (x0 * x0 * x0 + 0.5 * u * (x0 * x0 + 2 * u)) * E;
-            double bw = (x0 * x0 / u + 0.5 * (x0 + u / x0)) * E;
+            double b3 = (x0 * x0 * x0 + 0.5 * u * (x0 * x0 + 2 * u)) * En;
+            double bw = (x0 * x0 / u + 0.5 * (x0 + u / x0)) * En;
             if (b3 <= eps * S0 * u && bw <= eps * S0) break;
         }
-        if (K > 50) break; /* unreachable for u < 0.25: E < exp(-400) by then */
+        if (K > 50) break; /* unreachable for u < 0.25: En < exp(-400) by then */
+        if (B < 0) {
+            B = exp(-2 * (1 + w) / u);
+            Ep = B;
+            Bk = B;
+        }
         double kp = K + 1;
         double xn = w - 2 * kp, xp = w + 2 * kp;
-        double Ep = exp(-(xp * xp - w * w) * iu2);
-        S0 += xn * E + xp * Ep;
+        S0 += xn * En + xp * Ep;
         if (want_grad) {
-            S3 += xn * xn * xn * E + xp * xp * xp * Ep;
-            Sw += (1 - xn * xn / u) * E + (1 - xp * xp / u) * Ep;
+            S3 += xn * xn * xn * En + xp * xp * xp * Ep;
+            Sw += (1 - xn * xn / u) * En + (1 - xp * xp / u) * Ep;
         }
+        /* step k -> k + 1: En *= A^{k+1} B^k, Ep *= A^k B^{k+1} (Ak = A^k, Bk = B^k) */
+        En *= Ak * A * Bk;
+        Ep *= Ak * Bk * B;
+        Ak *= A;
+        Bk *= B;
     }
     if (want_grad) {
         *Lu = -1.5 / u + S3 / (2 * u * u * S0);
@@ -138,11 +161,12 @@ static double small_time(double u, double w, double eps, int want_grad, double *
     return S0;
 }
 
-/* Large-time series (u >= 0.25). Sum S = sum_k k sin(k pi w) exp(-(k^2-1) q), q = pi^2 u / 2. */
-static double large_time(double u, double w, double eps, int want_grad, double *Lu, double *Lw)
+/* Large-time series (u >= 0.25). Sum S = sum_k k sin(k pi w) exp(-(k^2-1) q), q = pi^2 u / 2.
+ * wc = 1 - w, passed exactly by the caller. */
+static double large_time(double u, double w, double wc, double eps, int want_grad, double *Lu, double *Lw)
 {
     double q = 4.934802200544679309 * u; /* pi^2/2 * u */
-    double dmin = w < 0.5 ? w : 1 - w;
+    double dmin = w < 0.5 ? w : wc;
     double s1 = sin(BLW_PI * dmin), c1 = cos(BLW_PI * dmin);
     if (w > 0.5) c1 = -c1; /* cos(pi w) */
     double E = exp(-q), E2 = E * E;
@@ -186,7 +210,9 @@ static double large_time(double u, double w, double eps, int want_grad, double *
     return S;
 }
 
-double blw_log_dens_lo(double t, double v, double a, double w, double sv, double *g)
+/* wc = 1 - w given exactly (for the upper boundary it is the user's start itself), so a start within
+ * 1e-16 of a boundary keeps its relative precision. */
+static double log_dens_lo_c(double t, double v, double a, double w, double wc, double sv, double *g)
 {
     double u = t / (a * a);
     double D = 1, base;
@@ -200,13 +226,13 @@ double blw_log_dens_lo(double t, double v, double a, double w, double sv, double
     double Lu = 0, Lw = 0, lf;
     int want = g != NULL;
     if (u < BLW_U_SWITCH) {
-        double S = small_time(u, w, BL_WIENER_EPS, want, &Lu, &Lw);
+        double S = small_time(u, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
         /* log phi - 2 log a = -log sqrt(2 pi) - w^2/(2u) + log(S a / t^1.5) */
         double y = S * a / (t * sqrt(t));
         double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(S) + log(a) - 1.5 * log(t);
         lf = base - LOG_SQRT_2PI - w * w / (2 * u) + ly;
     } else {
-        double S = large_time(u, w, BL_WIENER_EPS, want, &Lu, &Lw);
+        double S = large_time(u, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
         double y = BLW_PI * S / (a * a);
         double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(BLW_PI * S) - 2 * log(a);
         lf = base - 4.934802200544679309 * u + ly;
@@ -224,10 +250,15 @@ double blw_log_dens_lo(double t, double v, double a, double w, double sv, double
     return lf;
 }
 
+double blw_log_dens_lo(double t, double v, double a, double w, double sv, double *g)
+{
+    return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+}
+
 double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g)
 {
-    if (!upper) return blw_log_dens_lo(t, v, a, w, sv, g);
-    double lf = blw_log_dens_lo(t, -v, a, 1 - w, sv, g);
+    if (!upper) return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+    double lf = log_dens_lo_c(t, -v, a, 1 - w, w, sv, g);
     if (g) {
         g[BLW_GV] = -g[BLW_GV];
         g[BLW_GW] = -g[BLW_GW];
@@ -237,17 +268,23 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
 
 /* ---- boundary probabilities and moments --------------------------------------------------------- */
 
-double blw_log_p_lo(double v, double a, double w)
+/* wc = 1 - w exactly (see log_dens_lo_c) */
+static double log_p_lo_c(double v, double a, double w, double wc)
 {
     double va = v * a;
-    if (va == 0) return log1p(-w);
-    if (va > 0) return -2 * va * w + log(-expm1(-2 * va * (1 - w))) - log(-expm1(-2 * va));
-    return log(-expm1(2 * va * (1 - w))) - log(-expm1(2 * va));
+    if (va == 0) return log(wc);
+    if (va > 0) return -2 * va * w + log(-expm1(-2 * va * wc)) - log(-expm1(-2 * va));
+    return log(-expm1(2 * va * wc)) - log(-expm1(2 * va));
+}
+
+double blw_log_p_lo(double v, double a, double w)
+{
+    return log_p_lo_c(v, a, w, 1 - w);
 }
 
 double blw_log_p(double v, double a, double w, int upper)
 {
-    return upper ? blw_log_p_lo(-v, a, 1 - w) : blw_log_p_lo(v, a, w);
+    return upper ? log_p_lo_c(-v, a, 1 - w, w) : log_p_lo_c(v, a, w, 1 - w);
 }
 
 /* h(x) = (x coth x - 1) / x^2, even, h(0) = 1/3. */
@@ -262,10 +299,22 @@ static double coth_h(double x)
 
 /* E[T | lower] = [a coth(va) - z' coth(v z')] / v with z' = a - z the distance to the upper
  * boundary, written as a^2 h(va) - z'^2 h(v z') so v -> 0 needs no special case. */
+static double mean_t_c(double v, double a, double wc)
+{
+    double zp = a * wc;
+    return a * a * coth_h(v * a) - zp * zp * coth_h(v * zp);
+}
+
 double blw_mean_t_lo(double v, double a, double w)
 {
-    double zp = a * (1 - w);
-    return a * a * coth_h(v * a) - zp * zp * coth_h(v * zp);
+    return mean_t_c(v, a, 1 - w);
+}
+
+/* E[T | upper](v, a, w) = E[T | lower](-v, a, 1 - w) and h is even: the distance to the far boundary
+ * is the start itself, passed without rounding. */
+double blw_mean_t(double v, double a, double w, int upper)
+{
+    return upper ? mean_t_c(v, a, w) : mean_t_c(v, a, 1 - w);
 }
 
 /* ---- public entry points ------------------------------------------------------------------------ */
@@ -363,7 +412,7 @@ static void moments_var(double a, double v, double w, double sv, double sz, int 
             for (int j = 0; j < nl; j++) {
                 double wj = w + 0.5 * sz * lx[j];
                 double pij = wi * lw[j] * exp(blw_log_p(vi, a, wj, upper) - ref);
-                double mij = upper ? blw_mean_t_lo(-vi, a, 1 - wj) : blw_mean_t_lo(vi, a, wj);
+                double mij = blw_mean_t(vi, a, wj, upper);
                 P += pij;
                 M += pij * mij;
             }
@@ -415,8 +464,7 @@ bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double *mean_r
     double m, pb = 0;
     double p0 = x[BL_CONTAMINATION];
     if (x[BL_DRIFT_SD] == 0 && x[BL_START_RANGE] == 0) {
-        m = upper ? blw_mean_t_lo(-x[BL_DRIFT], x[BL_THRESHOLD], 1 - x[BL_START])
-                  : blw_mean_t_lo(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START]);
+        m = blw_mean_t(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper);
         if (p0 > 0) pb = exp(blw_log_p(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper));
     } else {
         variability_moments(p, upper, &pb, &m);

@@ -29,13 +29,13 @@ static double ln_Phi(double x)
  * at the first term below CDF_EPS times the sum. With dl != NULL also d log F / d(a, v, w). */
 /* The same series without logs of Phi: Phi from erfc directly, scaled by the exponential prefactors.
  * Returns 0 (caller falls back to the log form) when a Phi value could underflow. */
-static int cdf_small_fast(double t, double v, double a, double w, double *lF)
+static int cdf_small_fast(double t, double v, double a, double w, double wc, double *lF)
 {
     double st = sqrt(t), r0 = a * w;
     double m = fmax(-v * (a * w + r0), v * (r0 - a * w));
     double S = 0;
     for (int k = 0; k < 2000; k++) {
-        double r = (k % 2 == 0) ? k * a + a * w : (k + 1) * a - a * w;
+        double r = (k % 2 == 0) ? k * a + a * w : k * a + a * wc;
         double y1 = (v * t - r) / st, y2 = -(r + v * t) / st;
         if (y1 < -30 || y2 < -30) return 0;
         double e1 = -v * (a * w + r) - m, e2 = v * (r - a * w) - m;
@@ -51,9 +51,9 @@ static int cdf_small_fast(double t, double v, double a, double w, double *lF)
     return 0;
 }
 
-static bl_status cdf_small(double t, double v, double a, double w, double *lF, double *dl)
+static bl_status cdf_small(double t, double v, double a, double w, double wc, double *lF, double *dl)
 {
-    if (!dl && cdf_small_fast(t, v, a, w, lF)) return BL_OK;
+    if (!dl && cdf_small_fast(t, v, a, w, wc, lF)) return BL_OK;
     double st = sqrt(t);
     double m = 0, S = 0, dS[3] = {0, 0, 0};
     for (int k = 0; k < 2000; k++) {
@@ -63,8 +63,8 @@ static bl_status cdf_small(double t, double v, double a, double w, double *lF, d
             ra = k + w;
             rw = a;
         } else {
-            r = (k + 1) * a - a * w;
-            ra = k + 1 - w;
+            r = k * a + a * wc;
+            ra = k + wc;
             rw = -a;
         }
         double y1 = (v * t - r) / st, y2 = -(r + v * t) / st;
@@ -110,10 +110,10 @@ static bl_status cdf_small(double t, double v, double a, double w, double *lF, d
  * D = 1 + sv^2 t, m' = (v - sv^2 a w)/D, s' = sv/sqrt(D) and log C the density's drift_sd exponent, so
  * S = 2 pi C e^{-q} E[g(m' + s' x)], x ~ N(0,1), by Gauss-Hermite: g has poles only at nu = +-i k pi/a,
  * so the node count follows s' a. With dl != NULL: d log S / d(a, v, w, sv). */
-static bl_status surv_large(double t, double v, double a, double w, double sv, double *lS, double *dl)
+static bl_status surv_large(double t, double v, double a, double w, double wc, double sv, double *lS, double *dl)
 {
     double q = 4.934802200544679309 * t / (a * a);
-    double dmin = w < 0.5 ? w : 1 - w;
+    double dmin = w < 0.5 ? w : wc;
     double s1 = sin(BLW_PI * dmin), c1 = cos(BLW_PI * dmin);
     if (w > 0.5) c1 = -c1;
     double pi2 = BLW_PI * BLW_PI, a2 = a * a;
@@ -202,9 +202,10 @@ static bl_status surv_large(double t, double v, double a, double w, double sv, d
     return BL_OK;
 }
 
-bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf, double *log_surv)
+/* wc = 1 - w exactly (the user's start for the upper boundary) */
+static bl_status cdf_lo_c(double t, double v, double a, double w, double wc, double *log_cdf, double *log_surv)
 {
-    double lP = blw_log_p_lo(v, a, w);
+    double lP = blw_log_p(-v, a, wc, 1); /* = log P_lo(v, a, w) with the complement kept exact */
     if (!(t > 0)) {
         *log_cdf = -INFINITY;
         if (log_surv) *log_surv = lP;
@@ -212,19 +213,22 @@ bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf
     }
     double u = t / (a * a);
     bl_status s;
-    if (u < BLW_U_SWITCH) {
-        if ((s = cdf_small(t, v, a, w, log_cdf, NULL))) return s;
+    /* With the start within 1e-3 of the far boundary the small-time series' first two images cancel
+     * to ~wc; from u = 0.05 on the survival series is used instead (its complement F = P - S is then
+     * well conditioned). */
+    if (u < (wc < 1e-3 ? 0.05 : BLW_U_SWITCH)) {
+        if ((s = cdf_small(t, v, a, w, wc, log_cdf, NULL))) return s;
         if (*log_cdf > lP) *log_cdf = lP;
         if (log_surv) {
             if (u >= 0.05) {
-                if ((s = surv_large(t, v, a, w, 0, log_surv, NULL))) return s;
+                if ((s = surv_large(t, v, a, w, wc, 0, log_surv, NULL))) return s;
             } else {
                 *log_surv = blw_logsubexp(lP, *log_cdf);
             }
         }
     } else {
         double lS;
-        if ((s = surv_large(t, v, a, w, 0, &lS, NULL))) return s;
+        if ((s = surv_large(t, v, a, w, wc, 0, &lS, NULL))) return s;
         if (lS > lP) lS = lP;
         *log_cdf = blw_logsubexp(lP, lS);
         if (log_surv) *log_surv = lS;
@@ -232,10 +236,14 @@ bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf
     return BL_OK;
 }
 
+bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf, double *log_surv)
+{
+    return cdf_lo_c(t, v, a, w, 1 - w, log_cdf, log_surv);
+}
+
 bl_status blw_log_cdf(double t, double v, double a, double w, int upper, double *log_cdf, double *log_surv)
 {
-    return upper ? blw_log_cdf_lo(t, -v, a, 1 - w, log_cdf, log_surv)
-                 : blw_log_cdf_lo(t, v, a, w, log_cdf, log_surv);
+    return upper ? cdf_lo_c(t, -v, a, 1 - w, w, log_cdf, log_surv) : cdf_lo_c(t, v, a, w, 1 - w, log_cdf, log_surv);
 }
 
 bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, double *log_cdf, double dl[3])
@@ -245,8 +253,8 @@ bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, do
         dl[0] = dl[1] = dl[2] = 0;
         return BL_OK;
     }
-    if (!upper) return cdf_small(t, v, a, w, log_cdf, dl);
-    bl_status s = cdf_small(t, -v, a, 1 - w, log_cdf, dl);
+    if (!upper) return cdf_small(t, v, a, w, 1 - w, log_cdf, dl);
+    bl_status s = cdf_small(t, -v, a, 1 - w, w, log_cdf, dl);
     dl[1] = -dl[1];
     dl[2] = -dl[2];
     return s;
@@ -256,8 +264,8 @@ bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, do
  * Gauss-Hermite rule), with d log S / d(a, v, w, sv). */
 static bl_status surv_direct(double t, double v, double a, double w, double sv, int upper, double *lS, double dl[4])
 {
-    if (!upper) return surv_large(t, v, a, w, sv, lS, dl);
-    bl_status s = surv_large(t, -v, a, 1 - w, sv, lS, dl);
+    if (!upper) return surv_large(t, v, a, w, 1 - w, sv, lS, dl);
+    bl_status s = surv_large(t, -v, a, 1 - w, w, sv, lS, dl);
     if (dl) {
         dl[1] = -dl[1];
         dl[2] = -dl[2];
@@ -276,15 +284,9 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     bl_status s;
     if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
     if (sv == 0) {
-        double d3[3];
         if (!dl) return blw_log_cdf(y, v, a, w, upper, lF, NULL);
-        else s = blw_log_cdf_grad(y, v, a, w, upper, lF, d3);
-        if (dl) {
-            dl[0] = d3[0];
-            dl[1] = d3[1];
-            dl[2] = d3[2];
-            dl[3] = 0;
-        }
+        s = blw_log_cdf_grad(y, v, a, w, upper, lF, dl); /* fills dl[0..2] */
+        dl[3] = 0;
         return s;
     }
     const double *gx, *gw;
@@ -316,6 +318,41 @@ static bl_status cdf_sv(double y, double v, double a, double w, double sv, int u
     *lF = mx + log(S);
     if (dl)
         for (int j = 0; j < 4; j++) dl[j] = D[j] / S;
+    return BL_OK;
+}
+
+/* nondecision_range window narrow against the CDF's scale: average the density over t0' by 8-node
+ * Gauss-Legendre (weights sum to 1). Gradient by differentiating under the sum. */
+static bl_status dens_narrow_window(const bl_wiener_params *p, double rt, double w, int upper, double *lf, double *g)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], sv = x[BL_DRIFT_SD];
+    double st = x[BL_NONDECISION_RANGE];
+    const double *gx, *gw;
+    blw_gauss_legendre(8, &gx, &gw);
+    double lfi[8], gi[8][BLW_NG], mx = -INFINITY;
+    for (int i = 0; i < 8; i++) {
+        lfi[i] = blw_log_dens(rt - t0 + 0.5 * st * gx[i], v, a, w, sv, upper, g ? gi[i] : NULL);
+        if (lfi[i] > mx) mx = lfi[i];
+    }
+    double S = 0, G[BLW_NG] = {0}, Gst = 0;
+    for (int i = 0; i < 8; i++) {
+        double e = gw[i] * exp(lfi[i] - mx);
+        S += e;
+        if (g) {
+            for (int j = 0; j < BLW_NG; j++) G[j] += e * gi[i][j];
+            Gst += e * gi[i][BLW_GT] * 0.5 * gx[i];
+        }
+    }
+    *lf = mx + log(S);
+    if (g) {
+        g[BL_THRESHOLD] = G[BLW_GA] / S;
+        g[BL_DRIFT] = G[BLW_GV] / S;
+        g[BL_START] = G[BLW_GW] / S;
+        g[BL_DRIFT_SD] = G[BLW_GSV] / S;
+        g[BL_NONDECISION] = -G[BLW_GT] / S;
+        g[BL_NONDECISION_RANGE] = Gst / S;
+    }
     return BL_OK;
 }
 
@@ -359,6 +396,10 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
     if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, surv, &lFlo, g ? dlo : NULL);
     if (s) return s;
     double ld = surv ? blw_logsubexp(lFlo, lFhi) : blw_logsubexp(lFhi, lFlo);
+    /* A window much narrower than the CDF's own scale (ratio F/(F(hi) - F(lo)) > 1e3) would lose
+     * digits to the subtraction; there ln f changes by less than 1/ratio across the window, so an
+     * 8-node Gauss-Legendre average of the density itself is exact to rounding. */
+    if (lo > 0 && ld > -INFINITY && exp((surv ? lFlo : lFhi) - ld) > 1e3) return dens_narrow_window(p, rt, w, upper, lf, g);
     *lf = ld - log(st);
     if (!g || ld == -INFINITY) return BL_OK;
     double rh = exp(lFhi - ld), rl = lFlo == -INFINITY ? 0 : exp(lFlo - ld);
@@ -470,10 +511,12 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
     int nl = 1, nh = 1;
     lx = hx = &zero;
     lw = hw = &one;
-    if (sz > 0) blw_gauss_legendre(nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a)) > BLW_GL_MAX
-                                            ? BLW_GL_MAX
-                                            : 2 * blw_gl_nodes_start_range(sz, y / (a * a)),
-                                   &lx, &lw);
+    if (sz > 0) {
+        /* twice the density's rule: the CDF feeds quantiles, where accuracy matters more than speed */
+        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a));
+        if (nl > BLW_GL_MAX) nl = BLW_GL_MAX;
+        blw_gauss_legendre(nl, &lx, &lw);
+    }
     if (sv > 0) nh = blw_gauss_hermite(2 * blw_gh_nodes_drift_sd(sv, a, y), &hx, &hw);
     double S = 0;
     int large = y / (a * a) >= BLW_U_SWITCH;

@@ -29,6 +29,7 @@ double blw_p_var(double v, double a, double w, double sv, double sz, int upper);
 
 /* Mean decision time conditional on the lower boundary (closed form, no variability). */
 double blw_mean_t_lo(double v, double a, double w);
+double blw_mean_t(double v, double a, double w, int upper);
 
 /* Defective CDF of the decision time at the lower boundary, no variability, in logs:
  * *log_cdf = log P(T <= t, lower), *log_surv = log P(T > t, lower) (may be NULL).

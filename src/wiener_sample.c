@@ -12,18 +12,19 @@
 #include <gsl/gsl_randist.h>
 #include <math.h>
 
-/* Decision time at the lower boundary (mirror for the upper) for a uniform draw U in (0, 1). */
-static bl_status solve_time(double v, double a, double w, double lP, double U, double *T)
+/* Decision time at the given boundary for a uniform draw U in (0, 1). */
+static bl_status solve_time(double v, double a, double w, int up, double U, double *T)
 {
     int use_surv = U > 0.5;
+    double lP = blw_log_p(v, a, w, up);
     double target = use_surv ? log1p(-U) + lP : log(U) + lP;
-    double y = log(blw_mean_t_lo(v, a, w));
+    double y = log(blw_mean_t(v, a, w, up));
     double ylo = -INFINITY, yhi = INFINITY, step = 1;
     for (int it = 0; it < 300; it++) {
         double t = exp(y), lF, lS, G, dG;
-        bl_status s = blw_log_cdf_lo(t, v, a, w, &lF, &lS);
+        bl_status s = blw_log_cdf(t, v, a, w, up, &lF, &lS);
         if (s) return s;
-        double lf = blw_log_dens_lo(t, v, a, w, 0, NULL);
+        double lf = blw_log_dens(t, v, a, w, 0, up, NULL);
         if (use_surv) {
             G = target - lS; /* increasing in y */
             dG = exp(y + lf - lS);
@@ -74,12 +75,10 @@ bl_status bl_wiener_sample(const bl_wiener_params *p, gsl_rng *rng, int *upper, 
     if (x[BL_NONDECISION_RANGE] > 0) t0 += x[BL_NONDECISION_RANGE] * (gsl_rng_uniform(rng) - 0.5);
     int up = gsl_rng_uniform(rng) < exp(blw_log_p(v, a, w, 1));
     double U = gsl_rng_uniform_pos(rng), T;
-    if (up) {
-        v = -v;
-        w = 1 - w;
-    }
-    s = solve_time(v, a, w, blw_log_p_lo(v, a, w), U, &T);
-    if (s) return bl_error_set(err, s, "sampler: decision-time inversion did not converge (drift %g, threshold %g, start %g)", up ? -v : v, a, up ? 1 - w : w);
+    s = solve_time(v, a, w, up, U, &T);
+    if (s)
+        return bl_error_set(err, s, "sampler: decision-time inversion did not converge (drift %g, threshold %g, start %g)",
+                            v, a, w);
     *upper = up;
     *rt = t0 + T;
     return BL_OK;

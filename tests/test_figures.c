@@ -130,6 +130,7 @@ int main(void)
         check_true(bars == 4, "two bars per model (%zu)", bars);
         check_true(strstr(f->svg, "\xCE\x94" "AIC, \xCE\x94" "BIC (2 \xC3\x97 log-likelihood units)") != NULL, "axis with unit");
         check_true(strstr(f->svg, ">\xCE\x94" "AIC<") && strstr(f->svg, ">\xCE\x94" "BIC<"), "legend");
+        check_true(count(f->svg, ">best by AIC and BIC<") == 1, "best model marked once");
     }
 
     /* Written files: XML declaration + the element, in a folder created on demand. */

@@ -2,8 +2,8 @@
  * with the engine's exact sampler from a known 9-coefficient regression (numerics.md 6.10). Each
  * coefficient's coverage count must lie inside the central 99.9% range of Binomial(300, 0.95)
  * (limits from gsl_cdf_binomial_P), and the count over all coefficients inside the 99.9% range of
- * Binomial(2700, 0.95). Also the likelihood-ratio test of a true-zero slope: its rejection rate at
- * 5% within the 99.9% range of Binomial(300, 0.05) (Wilks 1938). */
+ * Binomial(2700, 0.95). Also the Wald test and the likelihood-ratio test (chi^2 with 1 df, Wilks 1938)
+ * of true-zero slopes: rejection rates at 5% within the 99.9% range of Binomial(300, 0.05). */
 #include "bandlink/fit.h"
 #include "fit_testutil.h"
 #include "harness.h"
@@ -26,7 +26,7 @@ int main(int argc, char **argv)
     gsl_set_error_handler_off();
     unsigned reps = argc > 1 ? (unsigned)atoi(argv[1]) : 300;
     const double truth[9] = {1.5, 1.1, 0.25, 0.0, 2.2, 1.3, 0.6, -0.3, 0.28};
-    unsigned cover[9] = {0}, conv = 0, reject_null = 0;
+    unsigned cover[9] = {0}, conv = 0, reject_null = 0, reject_lrt = 0, n_lrt = 0;
     bl_error err = {0};
     bl_warnings warn = {0};
     for (unsigned r = 0; r < reps; r++) {
@@ -55,11 +55,25 @@ int main(int argc, char **argv)
         opt.threads = 1;
         opt.starts = 1;
         bl_fit_result res;
+        double ll0 = NAN;
         if (bl_fit_model(m, &opt, NULL, &res, &warn, &err) == BL_OK) {
             conv += res.converged;
             for (int j = 0; j < 9; j++)
                 cover[j] += res.coef[j].ci_low <= truth[j] && truth[j] <= res.coef[j].ci_high;
             reject_null += res.coef[3].p < 0.05;
+            ll0 = res.log_likelihood;
+            bl_fit_result_clear(&res);
+        }
+        bl_model_destroy(m);
+        /* The same model plus a threshold slope on beta (truth 0): LRT with 1 df (Wilks 1938). */
+        bl_slope_spec two[2] = {{"theta", col_context, 1}, {"beta", NULL, 0}};
+        s.param[BL_THRESHOLD].slopes = two;
+        s.param[BL_THRESHOLD].n_slopes = 2;
+        m = NULL;
+        if (bl_model_build(&s, t, NULL, &m, &err) == BL_OK && bl_fit_model(m, &opt, NULL, &res, &warn, &err) == BL_OK) {
+            double lr = 2 * (res.log_likelihood - ll0);
+            n_lrt++;
+            reject_lrt += gsl_cdf_chisq_Q(fmax(lr, 0), 1) < 0.05;
             bl_fit_result_clear(&res);
         }
         bl_model_destroy(m);
@@ -86,5 +100,9 @@ int main(int argc, char **argv)
     check_true(reject_null >= nlo && reject_null <= nhi,
                "true-zero slope: Wald test rejects at 5%% in %u of %u datasets (range %u-%u)", reject_null, reps, nlo,
                nhi);
+    check_true(n_lrt == reps, "LRT fits done (%u)", n_lrt);
+    check_true(reject_lrt >= nlo && reject_lrt <= nhi,
+               "true-zero slope: LRT (chi^2, 1 df) rejects at 5%% in %u of %u datasets (range %u-%u)", reject_lrt,
+               reps, nlo, nhi);
     return harness_summary();
 }

@@ -43,6 +43,7 @@ static char *sample(void)
     bl_svg_axis_label(q, BL_SVG_Y, "delta AIC (2 x log-likelihood units)");
     bl_svg_bars(q, cx, cy, 3, 0.6, (bl_svg_style){.color = bl_svg_color(2)});
     bl_svg_refline(q, BL_SVG_Y, 0, (bl_svg_style){.color = "#000000"});
+    bl_svg_text(q, 1, 12.5, 6, "top<1>", (bl_svg_style){.color = "#333333"});
     double ex[2] = {0, 1}, ey[2] = {1, 2}, elo[2] = {0.5, 1.5}, ehi[2] = {1.5, 2.5};
     bl_svg_errorbars(q, BL_SVG_Y, ex, ey, elo, ehi, 2, (bl_svg_style){0});
     bl_svg_legend_heading(fig, "condition");
@@ -108,6 +109,7 @@ int main(void)
         check_true(strstr(a, ">theta<") != NULL, "span label");
         check_true(strstr(a, ">rich<") && strstr(a, ">lean &amp; &#39;x&#39;<"), "legend entries escaped");
         check_true(strstr(a, ">b&lt;eta&gt;<") != NULL, "category label escaped");
+        check_true(strstr(a, "fill=\"#333333\">top&lt;1&gt;</text>") != NULL, "data-space text label");
         check_true(count(a, "clip-path=\"url(#t1-c") == 2, "one clip path per panel with a figure-unique id");
         /* Log axis from 0.56 to 12 -> ticks 0.5 .. 20 in 1-2-5 steps. */
         check_true(strstr(a, ">1<") && strstr(a, ">10<") && strstr(a, ">2<") && strstr(a, ">5<"),

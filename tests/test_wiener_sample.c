@@ -107,6 +107,8 @@ int main(void)
     run("v=0 a=0.5 w=0.5", mk(0.5, 0, 0.2, 0.5), 20000, 3);
     run("v=4 a=2.5 w=0.15 (rare fast errors)", mk(2.5, 4, 0.25, 0.15), 20000, 4);
     run("v=0.5 a=4 w=0.95 (slow, biased)", mk(4, 0.5, 0.1, 0.95), 10000, 5);
+    run("v=-0.4 a=1.3 w=1e-4 (start next to the lower boundary)", mk(1.3, -0.4, 0.2, 1e-4), 10000, 9);
+    run("v=0.4 a=1.3 w=0.9999 (start next to the upper boundary)", mk(1.3, 0.4, 0.2, 0.9999), 10000, 10);
     bl_wiener_params p = mk(1.5, 1.2, 0.3, 0.45);
     p.value[BL_DRIFT_SD] = 0.8;
     run("drift_sd 0.8", p, 4000, 6);

@@ -3,11 +3,14 @@
  * (gsl_integration_qags/qagi) applied to the plain density; the uniform-mixture contaminant model of
  * Ratcliff & Tuerlinckx (2002, Psychon. Bull. Rev. 9:438-481); central finite differences. */
 #include "bandlink/wiener.h"
+#include "../src/wiener_internal.h" /* the node-count rule, to check it against 2n */
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_integration.h>
 #include <math.h>
+#include <pthread.h>
+#include <string.h>
 
 static bl_wiener_params mk(double a, double v, double t0, double w, double sv, double sz, double st)
 {
@@ -67,6 +70,47 @@ static void start_range(void)
                n, worst);
 }
 
+/* The node-count rule n(start_range, u) against 2n nodes (numerics notes 6.7), both with GSL's tables,
+ * and the engine's density equals the n-node sum (so the rule is what the engine uses). */
+static double gl_sum(size_t n, const bl_wiener_params *q0, double w, double sz, double rt, int up)
+{
+    gsl_integration_glfixed_table *tab = gsl_integration_glfixed_table_alloc(n);
+    bl_wiener_params q = *q0;
+    double s = 0;
+    for (size_t i = 0; i < n; i++) {
+        double xi, wi;
+        gsl_integration_glfixed_point(w - sz / 2, w + sz / 2, i, &xi, &wi, tab);
+        q.value[BL_START] = xi;
+        s += wi * exp(ld(&q, rt, up));
+    }
+    gsl_integration_glfixed_table_free(tab);
+    return s / sz;
+}
+
+static void start_range_2n(void)
+{
+    double worst_2n = 0, worst_engine = 0;
+    int n = 0;
+    double as[] = {0.8, 1.5, 2.5}, vs[] = {-2, 0, 2}, szs[] = {0.1, 0.3, 0.6}, ts[] = {0.02, 0.05, 0.15, 0.3, 0.6, 1.2};
+    for (int ia = 0; ia < 3; ia++)
+        for (int iv = 0; iv < 3; iv++)
+            for (int is = 0; is < 3; is++)
+                for (int it = 0; it < 6; it++) {
+                    double a = as[ia], sz = szs[is], t = ts[it];
+                    bl_wiener_params q = mk(a, vs[iv], 0.3, 0.5, 0, 0, 0), p = q;
+                    p.value[BL_START_RANGE] = sz;
+                    size_t nr = (size_t)blw_gl_nodes_start_range(sz, t / (a * a));
+                    double f1 = gl_sum(nr, &q, 0.5, sz, 0.3 + t, 0), f2 = gl_sum(2 * nr, &q, 0.5, sz, 0.3 + t, 0);
+                    if (!(f2 > 1e-280)) continue;
+                    worst_2n = fmax(worst_2n, fabs(f1 - f2) / f2);
+                    worst_engine = fmax(worst_engine, fabs(exp(ld(&p, 0.3 + t, 0)) - f1) / f1);
+                    n++;
+                }
+    /* grid of the numerics notes' node table (a in {0.8, 1.5, 2.5}, v in {-2, 0, 2}, w = 0.5) */
+    check_true(worst_2n <= 1e-6, "start_range rule n vs 2n nodes over %d points: max rel diff %.2g <= 1e-6", n, worst_2n);
+    check_true(worst_engine <= 1e-12, "the engine's start_range density is the n-node rule (max rel diff %.2g)", worst_engine);
+}
+
 /* nondecision_range: exact CDF difference vs GSL adaptive integration of the plain density over t0'. */
 typedef struct {
     bl_wiener_params p;
@@ -112,6 +156,20 @@ static void nondecision_range(void)
                           "nondecision_range %g (drift_sd %g): CDF difference = GSL qags over t0', rt %g %s", s[4], s[5],
                           rts[k], up ? "upper" : "lower");
             }
+    /* narrow windows (down to 1e-9 s): no digits lost to the CDF difference */
+    double sts[] = {1e-3, 1e-5, 1e-7, 1e-9};
+    for (int i = 0; i < 4; i++)
+        for (int up = 0; up < 2; up++) {
+            double st = sts[i];
+            tctx c = {mk(1.2, 1, 0.3, 0.45, i % 2 ? 0.7 : 0, 0, st), 0.33 + 0.5 * i, up};
+            gsl_function F = {over_t0, &c};
+            double r, e;
+            /* divide by the window as represented (0.3 +- st/2 rounds at 1e-17 absolute) */
+            double lo = 0.3 - st / 2, hi = 0.3 + st / 2;
+            gsl_integration_qags(&F, lo, hi, 0, 1e-13, 1000, ws, &r, &e);
+            check_rel(exp(ld(&c.p, c.rt, up)), r / (hi - lo), 1e-10, "nondecision_range %g s: density at rt %g (%s) keeps its digits",
+                      st, c.rt, up ? "upper" : "lower");
+        }
     gsl_integration_workspace_free(ws);
 }
 
@@ -284,7 +342,8 @@ static void cdf_quantiles(void)
  * central differences; tolerance 1e-5 relative (the CDF and quadrature carry ~1e-10 noise). */
 static void full_gradient(void)
 {
-    bl_wiener_params set[6];
+    bl_wiener_params set[7];
+    set[6] = mk(1.3, 0.8, 0.3, 0.5, 0.4, 0, 1e-3); /* narrow window: density average path */
     set[0] = mk(1.2, 1, 0.3, 0.45, 0, 0.3, 0);
     set[1] = mk(1.2, -1, 0.3, 0.55, 0, 0, 0.2);
     set[2] = mk(1.6, 0.7, 0.3, 0.5, 0.9, 0.2, 0.15);
@@ -300,7 +359,7 @@ static void full_gradient(void)
     double rts[] = {0.33, 0.42, 0.6, 1.1, 2.4};
     double worst = 0;
     int n = 0;
-    for (int i = 0; i < 6; i++)
+    for (int i = 0; i < 7; i++)
         for (int k = 0; k < 5; k++)
             for (int up = 0; up < 2; up++) {
                 bl_wiener_params p = set[i];
@@ -334,10 +393,62 @@ static void full_gradient(void)
     check_true(zero, "rt before nondecision - range/2: log-density -inf, gradient 0");
 }
 
+/* Thread safety: the quadrature tables are built under pthread_once on first use; threads that race
+ * into the first call must see complete tables and get bit-identical results to a serial pass. */
+enum { TS_N = 400, TS_THREADS = 4 };
+static double ts_serial[TS_N][2];
+static double ts_par[TS_THREADS][TS_N][2];
+
+static void ts_params(int i, bl_wiener_params *p, double *rt)
+{
+    *p = mk(1.0 + 0.002 * i, -1 + 0.005 * i, 0.3, 0.45, 0.5 + 0.001 * i, 0.2, 0.1);
+    *rt = 0.32 + 0.004 * i;
+}
+
+static void *ts_worker(void *arg)
+{
+    int k = *(int *)arg;
+    for (int i = 0; i < TS_N; i++) {
+        bl_wiener_params p;
+        double rt, g[BL_NPARAM];
+        ts_params(i, &p, &rt);
+        bl_wiener_log_density(&p, rt, i % 2, &ts_par[k][i][0], NULL);
+        bl_wiener_log_density_grad(&p, rt, i % 2, &ts_par[k][i][1], g, NULL);
+        ts_par[k][i][1] += g[BL_START_RANGE];
+    }
+    return NULL;
+}
+
+static void thread_safety(void)
+{
+    pthread_t th[TS_THREADS];
+    int ids[TS_THREADS], started = 0;
+    for (int k = 0; k < TS_THREADS; k++) {
+        ids[k] = k;
+        if (pthread_create(&th[k], NULL, ts_worker, &ids[k]) == 0) started++;
+        else break;
+    }
+    for (int k = 0; k < started; k++) pthread_join(th[k], NULL);
+    check_true(started == TS_THREADS, "%d threads started", started);
+    for (int i = 0; i < TS_N; i++) {
+        bl_wiener_params p;
+        double rt, g[BL_NPARAM];
+        ts_params(i, &p, &rt);
+        bl_wiener_log_density(&p, rt, i % 2, &ts_serial[i][0], NULL);
+        bl_wiener_log_density_grad(&p, rt, i % 2, &ts_serial[i][1], g, NULL);
+        ts_serial[i][1] += g[BL_START_RANGE];
+    }
+    int same = 1;
+    for (int k = 0; k < started; k++) same &= memcmp(ts_par[k], ts_serial, sizeof ts_serial) == 0;
+    check_true(same, "densities and gradients from %d racing threads are bit-identical to a serial pass", started);
+}
+
 int main(void)
 {
     gsl_set_error_handler_off();
+    thread_safety(); /* first: the threads race into the table construction */
     start_range();
+    start_range_2n();
     nondecision_range();
     contamination();
     drift_sd_moments();

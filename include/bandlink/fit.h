@@ -28,6 +28,8 @@ typedef struct {
     size_t n_models;
     int starts;                     /* optimiser starts per fit; <= 0: the study's fit.starts, else 3 */
     int simplex_only;               /* 1: Nelder-Mead (nmsimplex2) alone instead of BFGS (for checks) */
+    int parallel_trials;            /* a single fit's trials over threads: 0 auto (default: measured,
+                                       see bl_likelihood_set_parallel), 1 always, -1 never */
     /* Called between fits (may be NULL): stage text, steps done, steps in total. */
     void (*progress)(void *user, const char *stage, size_t done, size_t total);
     void *progress_user;

@@ -74,11 +74,16 @@ BL_API bl_status bl_model_permute_slope(bl_model *m, int param, size_t s, const 
 /* Restore all slope values to the unshuffled design. */
 BL_API void bl_model_restore_slopes(bl_model *m);
 
-/* Summed log-likelihood workspace. Trials are evaluated in fixed blocks; partial sums are added in
- * block order, so the result is bit-identical for any thread count. threads <= 0: OpenMP default. */
+/* Summed log-likelihood workspace. Trials are evaluated in fixed blocks of 64; partial sums are added
+ * in block order, so the result is bit-identical for any thread count. threads <= 0: OpenMP default.
+ * Fewer than 1,024 trials are evaluated on one thread. */
 typedef struct bl_likelihood bl_likelihood;
 BL_API bl_likelihood *bl_likelihood_create(const bl_model *m, int threads);
 BL_API void bl_likelihood_destroy(bl_likelihood *w);
+/* How trials are spread over threads: -1 (default) measures both ways on a few evaluations and
+ * keeps the faster, re-measuring every 64 evaluations (less often while one thread keeps winning) (fork-join can lose on a busy machine);
+ * 0 always one thread; 1 always `threads` threads (even below 1,024 trials). Results are the same. */
+BL_API void bl_likelihood_set_parallel(bl_likelihood *w, int mode);
 /* Total log-likelihood at `coef` (n_coef values); `grad` (may be NULL) receives d/dcoef. Returns
  * -INFINITY (gradient zeroed) when the point is infeasible. Counts evaluations. */
 BL_API double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad);

@@ -2,14 +2,15 @@
  * Owned by the fit area (src/results.c). Every file is written atomically (output.h). CSV: header
  * row, comma-separated, missing values "NA", numbers %.17g. JSON numbers that are NAN are null.
  *
- * fits.json: {"mode", "models": [{"name", "extends", "log_likelihood", "parameters", "trials",
- *   "aic", "bic", "converged", "diagnostics", "coefficients": [{"parameter", "term", "level",
- *   "estimate", "se", "ci_low", "ci_high", "z", "p"}], "permutation_tests" (when run),
- *   separate mode: "participants": [{"participant", "name", ... as above}], "group": [...]}],
- *   "warnings": [...], "provenance": {...}}
- * comparison.csv: name, parameters, trials, log_likelihood, aic, bic, delta_aic, delta_bic,
- *   aic_weight, lrt_against, lrt_statistic, lrt_df, lrt_p  (lrt_against "not nested" when the
- *   model extends one it does not nest, NA when it extends none)
+ * fits.json: {"mode", "models": [{"name", "log_likelihood", "parameters", "trials", "aic", "bic",
+ *   "converged", "diagnostics", "coefficients": [{"parameter", "term", "level", "estimate", "se",
+ *   "ci_low", "ci_high", "z", "p"}], "extends", "mode", "permutation_tests" (when run),
+ *   separate mode: "participants": [{"participant", "name", ... as above}], "group": [{"parameter",
+ *   "term", "level", "participants", "mean", "sd", "t", "df", "p", "random_effects": {...}}]}],
+ *   "permutation" (when run), "warnings": [...], "provenance": {...}}
+ * comparison.csv: name, parameters, trials, log_likelihood, aic, bic, delta_aic, delta_bic, aic_weight,
+ *   lrt_against (the model it extends, NA when none), lrt_nested ("yes", "not nested", "not fitted",
+ *   NA), lrt_statistic, lrt_df, lrt_p (NA unless nested)
  * trials.csv: model, participant, trial, threshold, drift, nondecision, start, p_upper, mean_rt,
  *   log_likelihood; one row per used trial and model, models in study order, trials in table order.
  */

@@ -63,8 +63,8 @@ BL_API void bl_svg_axis_log(bl_svg_panel *p, int axis);
 BL_API void bl_svg_axis_range(bl_svg_panel *p, int axis, double lo, double hi);
 /* Make sure an automatic range includes `value` (e.g. 0 for bars). */
 BL_API void bl_svg_axis_include(bl_svg_panel *p, int axis, double value);
-/* A categorical axis: data coordinate k (0-based) is category k, shown with labels[k]. On the Y
- * axis category 0 is at the top. */
+/* A categorical axis: data coordinate k (0-based) is category k, shown with labels[k] (the first
+ * 256 are labelled). On the Y axis category 0 is at the top. */
 BL_API void bl_svg_axis_categories(bl_svg_panel *p, int axis, const char *const *labels, size_t n);
 
 /* Data elements, drawn in the order added. Arrays are copied. NAN values break a line / ribbon
@@ -85,6 +85,8 @@ BL_API void bl_svg_bars(bl_svg_panel *p, const double *x, const double *y, size_
                         bl_svg_style s);
 /* A reference line across the panel at `value` of `axis` (BL_SVG_X: vertical line). */
 BL_API void bl_svg_refline(bl_svg_panel *p, int axis, double value, bl_svg_style s);
+/* A short label at data point (x, y), centred, `dy` pixels above it (negative: below). */
+BL_API void bl_svg_text(bl_svg_panel *p, double x, double y, double dy, const char *text, bl_svg_style s);
 /* A centred message in the panel (e.g. "no slopes in any model"); a panel with only a note has no
  * axes. */
 BL_API void bl_svg_note(bl_svg_panel *p, const char *text);

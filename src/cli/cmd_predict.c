@@ -175,21 +175,21 @@ static void print_table(const bl_wiener_params *par, const prediction *pr, const
     if (x[BL_CONTAMINATION] > 0)
         printf(", contamination %g on [%g, %g] s", x[BL_CONTAMINATION], par->contamination_lo, par->contamination_hi);
     printf("\n\n%-9s %11s %12s", "boundary", "probability", "mean RT [s]");
-    for (int k = 0; k < 5; k++) printf("  q%.1f [s]", QUANTILE_PROBS[k]);
+    for (int k = 0; k < 5; k++) printf("   q%.1f [s]", QUANTILE_PROBS[k]);
     printf("\n");
     for (int b = 1; b >= 0; b--) {
         printf("%-9s %11.6g", b ? "upper" : "lower", pr->p[b]);
-        if (pr->mean_ok[b]) printf(" %12.4f", pr->mean[b]);
+        if (pr->mean_ok[b]) printf(" %12.5g", pr->mean[b]);
         else printf(" %12s", "-");
         for (int k = 0; k < 5; k++) {
-            if (pr->q_ok[b][k]) printf(" %9.4f", pr->q[b][k]);
-            else printf(" %9s", "-");
+            if (pr->q_ok[b][k]) printf(" %10.5g", pr->q[b][k]);
+            else printf(" %10s", "-");
         }
         printf("\n");
     }
     if (nrt) {
-        printf("\n%-10s %16s %16s\n", "rt [s]", "upper [1/s]", "lower [1/s]");
-        for (size_t i = 0; i < nrt; i++) printf("%-10g %16.8g %16.8g\n", rt[i], pr->dens[1][i], pr->dens[0][i]);
+        printf("\n%-12s %14s %16s\n", "rt [s]", "upper [1/s]", "lower [1/s]");
+        for (size_t i = 0; i < nrt; i++) printf("%-12.10g %14.8g %16.8g\n", rt[i], pr->dens[1][i], pr->dens[0][i]);
     }
 }
 

@@ -123,6 +123,9 @@ check "separate mode exits 0" "[ $? -eq 0 ]"
 check "separate mode: per-animal fits and group summary" \
   "grep -q '\"participant\":[[:space:]]*\"rat3\"' sep/fits.json && grep -q '\"random_effects\"' sep/fits.json && grep -q '\"tau2\"' sep/fits.json"
 check "separate mode: 3 x 8 coefficients" "grep -q '^theta-threshold,24,750,' sep/comparison.csv"
+"$BANDLINK" fit sep.json --out sep1 --threads 1 --quiet && "$BANDLINK" fit sep.json --out sep2 --threads 2 --quiet
+check "separate mode, all models: 1 vs 2 threads give identical files" \
+  "cmp -s sep1/fits.json sep2/fits.json && cmp -s sep1/trials.csv sep2/trials.csv && cmp -s sep1/comparison.csv sep2/comparison.csv"
 
 # 7. Stimulus coding: drift toward the chosen category flips with the tone.
 "$BL_BUILD_ROOT/tests/fit_make_trials" stim.csv 300 2 5 stimulus

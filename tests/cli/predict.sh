@@ -85,6 +85,17 @@ expect2 "--contamination-range" --threshold 1 --drift 1 --nondecision 0.3 --cont
 expect2 "--drift given twice" --threshold 1 --drift 1 --drift 2 --nondecision 0.3
 expect2 "--threshold: 'inf'" --threshold inf --drift 1 --nondecision 0.3
 
+# the documented examples run (docs/cli.md, predict section)
+if [ -n "${BL_SOURCE_ROOT:-}" ]; then
+    n=0
+    while IFS= read -r line; do
+        n=$((n + 1))
+        # shellcheck disable=SC2086
+        if "$BANDLINK" ${line#\$ bandlink } >/dev/null; then ok "docs example: $line"; else bad "docs example: $line"; fi
+    done < <(sed -n '/<!-- section: predict/,/<!-- end section: predict/p' "$BL_SOURCE_ROOT/docs/cli.md" | grep '^\$ bandlink predict')
+    [ "$n" -ge 1 ] && ok "docs/cli.md has $n predict examples" || bad "no predict example in docs/cli.md"
+fi
+
 "$BANDLINK" predict --help | grep -q -- "--nondecision-range" && ok "--help lists the options" || bad "--help"
 
 echo "$pass passed, $fail failed"
