@@ -479,7 +479,7 @@ static bl_status parse_fit(ctx *c, const cJSON *o, bl_study *s)
     if ((st = get_choice(c, o, "fit", "participants", modes, 0, &tmp))) return st;
     s->fit.participants = tmp ? BL_PARTICIPANTS_SEPARATE : BL_PARTICIPANTS_POOLED;
     double starts;
-    if ((st = get_number(c, o, "fit", "starts", 1, &starts, NULL))) return st;
+    if ((st = get_number(c, o, "fit", "starts", 3, &starts, NULL))) return st;
     if (!(starts >= 1 && starts <= 1000 && starts == floor(starts)))
         return bad(c, "fit.starts", get(o, "starts"), "must be a whole number from 1 to 1000");
     s->fit.starts = (int)starts;
@@ -728,7 +728,7 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
     }
     s->recordings.rate = NAN;
     s->trials.rt_min = s->trials.rt_max = NAN;
-    s->fit.starts = 1;
+    s->fit.starts = 3;
     if (!cJSON_IsObject(root)) {
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;
