@@ -97,6 +97,9 @@ bl_status bl_compare_models(bl_fit_set *set, bl_error *err)
                 c->lrt_nested = r->nested == 1;
                 if (r->nested == 1) {
                     c->lrt_df = (double)r->parameters - (double)b->parameters;
+                }
+                /* A likelihood-ratio test needs both maxima: with either fit unconverged it stays NA. */
+                if (r->nested == 1 && r->converged && b->converged) {
                     /* The statistic is reported as found; a negative value (the bigger model fitted worse:
                      * an optimiser failure) gets p = 1. */
                     c->lrt_statistic = 2.0 * (r->log_likelihood - b->log_likelihood);

@@ -17,6 +17,7 @@
 #include "model_internal.h"
 
 #include "bandlink/fit.h"
+#include "screen.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
@@ -942,6 +943,8 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             if (!strcmp(study->models[j].name, opt.models[i])) want = 1;
         if (want) sel[n_sel++] = j;
     }
+    /* Data the model cannot use (identical RTs) stop here; data that weaken estimates get warnings. */
+    if ((st = bl_screen_trials(study, trials, sel, n_sel, warn, err))) goto fail;
     set->mode = study->fit.participants;
     set->permutations = opt.permutations;
     set->seed = opt.seed;

@@ -281,16 +281,21 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
     for (size_t k = 0; k < s->power.n_condition; k++) cond_col[k] = bl_table_find(t->table, s->power.condition[k]);
 
     /* non-positive band power cannot be log-scaled: say so per trial instead of writing -inf */
+    size_t n_zero = 0;
     for (size_t i = 0; i < n; i++) {
         if (t->excluded[i]) continue;
         for (size_t b = 0; b < nb; b++) {
             double v = r->band_power[i * nb + b];
             if (!isfinite(scaled(s->power.scale, v))) {
                 bl_trials_exclude(t, i, "zero band power");
+                n_zero++;
                 break;
             }
         }
     }
+    if (n_zero)
+        bl_warnings_add(warn, "%zu trials have zero power in a band (a silent or disconnected channel?) and were left out",
+                        n_zero);
     /* groups: participant, or participant x condition columns (by text) */
     size_t n_groups = 0;
     for (size_t i = 0; i < n; i++) {

@@ -7,6 +7,7 @@
  */
 #include "bandlink/study.h"
 #include "bandlink/trace.h"
+#include "json.h"
 
 #include <cjson/cJSON.h>
 #include <errno.h>
@@ -478,7 +479,7 @@ static bl_status parse_fit(ctx *c, const cJSON *o, bl_study *s)
     if ((st = get_choice(c, o, "fit", "participants", modes, 0, &tmp))) return st;
     s->fit.participants = tmp ? BL_PARTICIPANTS_SEPARATE : BL_PARTICIPANTS_POOLED;
     double starts;
-    if ((st = get_number(c, o, "fit", "starts", 1, &starts, NULL))) return st;
+    if ((st = get_number(c, o, "fit", "starts", 3, &starts, NULL))) return st;
     if (!(starts >= 1 && starts <= 1000 && starts == floor(starts)))
         return bad(c, "fit.starts", get(o, "starts"), "must be a whole number from 1 to 1000");
     s->fit.starts = (int)starts;
@@ -704,41 +705,14 @@ done:
 
 /* ---- entry points ---- */
 
-static void line_col(const char *json, const char *at, size_t *line, size_t *col)
-{
-    *line = 1;
-    *col = 1;
-    for (const char *p = json; p < at && *p; p++) {
-        if (*p == '\n') {
-            (*line)++;
-            *col = 1;
-        } else {
-            (*col)++;
-        }
-    }
-}
-
 bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_error *err)
 {
     *out = NULL;
     const char *name = path ? path : "study";
     ctx c = {name, err};
-    size_t len = strlen(json);
-    const char *end = NULL;
-    cJSON *root = cJSON_ParseWithLengthOpts(json, len + 1, &end, 1) /* length counts the NUL that require_null_terminated checks */;
-    if (!root) {
-        size_t line, col;
-        const char *at = end ? end : json + len;
-        line_col(json, at, &line, &col);
-        char near[24] = "";
-        size_t k = 0;
-        for (const char *p = at; *p && *p != '\n' && k < 16; p++) near[k++] = *p;
-        near[k] = '\0';
-        if (at >= json + len || !near[0])
-            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: JSON syntax error: unexpected end of file", name,
-                                line, col);
-        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: JSON syntax error near '%s'", name, line, col, near);
-    }
+    cJSON *root = NULL;
+    bl_status pst = bl_json_parse(json, name, &root, err);
+    if (pst) return pst;
     bl_status st = BL_OK;
     bl_study *s = calloc(1, sizeof *s);
     if (!s) {
@@ -754,7 +728,7 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
     }
     s->recordings.rate = NAN;
     s->trials.rt_min = s->trials.rt_max = NAN;
-    s->fit.starts = 1;
+    s->fit.starts = 3;
     if (!cJSON_IsObject(root)) {
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;

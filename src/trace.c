@@ -179,7 +179,14 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
     memset(&si, 0, sizeof si);
     t->sf = sf_open(path, SFM_READ, &si);
     if (!t->sf) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: cannot open the recording: %s", path, sf_strerror(NULL));
+        /* A file that is missing, unreadable or not a recording is bad input (exit 2); anything else
+         * (allocation, decoder set-up) is a failure while running (exit 1). */
+        int code = sf_error(NULL), e = errno;
+        int bad_input = code == SF_ERR_UNRECOGNISED_FORMAT || code == SF_ERR_MALFORMED_FILE ||
+                        code == SF_ERR_UNSUPPORTED_ENCODING ||
+                        (code == SF_ERR_SYSTEM && (e == ENOENT || e == EACCES || e == ENOTDIR || e == EISDIR));
+        st = bl_error_set(err, bad_input ? BL_ERR_INPUT : BL_ERR_IO, "%s: cannot open the recording: %s", path,
+                          sf_strerror(NULL));
         goto fail;
     }
     if (si.samplerate <= 0 || si.channels <= 0) {
@@ -189,6 +196,13 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
     }
     if (si.frames <= 0) {
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the recording holds no samples", path);
+        goto fail;
+    }
+    /* libsndfile reports SF_COUNT_MAX (or nonsense from a damaged header) when the length is unknown;
+     * windows cannot be checked against such a length, so refuse the file. */
+    if (si.frames >= INT64_MAX / 16) {
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: the recording's header gives no usable length (%lld frames)", path,
+                          (long long)si.frames);
         goto fail;
     }
     t->pos = 0;
@@ -225,8 +239,8 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
 {
     if (start < 0 || (int64_t)n > t->info.frames - start)
         return bl_error_set(err, BL_ERR_INPUT,
-                            "%s: samples %lld to %lld are outside the recording (%lld samples = %.6g s at %.10g Hz)",
-                            t->path, (long long)start, (long long)(start + (int64_t)n) - 1, (long long)t->info.frames,
+                            "%s: samples %lld to %.0f are outside the recording (%lld samples = %.6g s at %.10g Hz)",
+                            t->path, (long long)start, (double)start + (double)n - 1, (long long)t->info.frames,
                             (double)t->info.frames / t->info.rate, t->info.rate);
     if (t->csv) {
         memcpy(buf, t->csv + (size_t)start * t->info.channels, n * t->info.channels * sizeof *buf);

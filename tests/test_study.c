@@ -106,7 +106,7 @@ int main(void)
                        s->power.scale == BL_SCALE_LOG10 && s->power.standardize == BL_STANDARDIZE_PARTICIPANT &&
                        s->recordings.gain == 1 && strcmp(s->recordings.unit, "au") == 0 &&
                        s->recordings.n_channels == 1 && strcmp(s->recordings.channels[0], "1") == 0 &&
-                       s->fit.participants == BL_PARTICIPANTS_POOLED && s->fit.starts == 1 && s->n_models == 0 &&
+                       s->fit.participants == BL_PARTICIPANTS_POOLED && s->fit.starts == 3 && s->n_models == 0 &&
                        strcmp(s->output, "/data/exp/results") == 0 && strcmp(s->trials.trial, "trial") == 0 &&
                        !s->trials.trial_given && isnan(s->trials.rt_min),
                    "documented defaults filled in");

@@ -1,0 +1,69 @@
+#!/usr/bin/env bash
+# Fault injection: a failing disk, allocation, read or rename gives a clear one-line error and a non-zero
+# exit (never a crash), leaves no partial file and keeps the earlier results intact.
+# Mechanism: tests/fault/fault_inject.c loaded with LD_PRELOAD (the idea of jq's src/inject_errors.c),
+# and RLIMIT_FSIZE (`ulimit -f`, POSIX setrlimit) for a disk that fills up mid-write.
+set -u
+: "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}" "${BL_FAULT_SHIM:?}"
+if ldd "$BANDLINK" | grep -q libasan; then
+    echo "skipped: LD_PRELOAD fault injection cannot run beside AddressSanitizer"
+    exit 77
+fi
+pass=0
+fail=0
+ok() { echo "PASS: $*"; pass=$((pass + 1)); }
+bad() { echo "FAIL: $*"; fail=$((fail + 1)); }
+
+work=$(mktemp -d)
+trap 'rm -rf "$work"' EXIT
+cp -r "$BL_SOURCE_ROOT/docs/examples/power" "$work/study"
+study="$work/study/study.json"
+out="$work/out"
+
+"$BANDLINK" power "$study" --out "$out" --quiet >/dev/null 2>&1 || bad "baseline power run"
+[ -f "$out/power.csv" ] && ok "baseline power.csv written" || bad "baseline power.csv missing"
+before=$(sha256sum "$out/power.csv" | cut -d' ' -f1)
+input_sums=$(cd "$work/study" && find . -type f | sort | xargs sha256sum)
+
+# expect_failure NAME EXPECTED-EXIT-CODES COMMAND...: non-zero exit in the allowed set (never a signal),
+# one "bandlink: error:" line, earlier power.csv unchanged, no temporary file left behind.
+expect_failure() {
+    local name="$1" codes="$2"
+    shift 2
+    local err="$work/stderr"
+    "$@" >/dev/null 2>"$err"
+    local rc=$?
+    if [[ " $codes " == *" $rc "* ]]; then ok "$name: exit $rc"; else bad "$name: exit $rc (want one of $codes): $(head -3 "$err")"; fi
+    if grep -q '^bandlink: error: ' "$err"; then ok "$name: message '$(grep -m1 '^bandlink: error: ' "$err" | cut -c1-110)'"; else bad "$name: no 'bandlink: error:' line: $(head -3 "$err")"; fi
+    local now
+    now=$(sha256sum "$out/power.csv" 2>/dev/null | cut -d' ' -f1)
+    [ "$now" = "$before" ] && ok "$name: earlier power.csv intact" || bad "$name: earlier power.csv changed or lost"
+    local tmp
+    tmp=$(find "$work" -name '*.tmp.*' | head -3)
+    [ -z "$tmp" ] && ok "$name: no temporary file left" || { bad "$name: temporary files left: $tmp"; find "$work" -name '*.tmp.*' -delete; }
+}
+
+inject() { env LD_PRELOAD="$BL_FAULT_SHIM" "$@"; }
+
+expect_failure "rename fails" "1" inject BL_FAULT=rename:1 "$BANDLINK" power "$study" --out "$out" --force --quiet
+expect_failure "fsync fails" "1" inject BL_FAULT=fsync:1 "$BANDLINK" power "$study" --out "$out" --force --quiet
+expect_failure "disk full (RLIMIT_FSIZE 1 KiB)" "1" bash -c 'trap "" XFSZ; ulimit -f 1; exec "$@"' _ "$BANDLINK" power "$study" --out "$out" --force --quiet
+expect_failure "recording read fails" "1 2" inject BL_FAULT=read:3 BL_FAULT_STICKY=1 "$BANDLINK" power "$study" --out "$out" --force --quiet
+expect_failure "first fopen fails" "1 2" inject BL_FAULT=fopen:1 "$BANDLINK" power "$study" --out "$out" --force --quiet
+
+# Allocation failures at points spread over a whole run.
+total=$(inject BL_FAULT_REPORT=1 "$BANDLINK" power "$study" --out "$work/count" --quiet 2>&1 >/dev/null | sed -n 's/^bl_fault malloc //p')
+if [ -n "$total" ] && [ "$total" -gt 10 ]; then
+    ok "a power run makes $total allocations"
+    for k in $(seq 1 25); do
+        n=$(( (total * k) / 26 + 1 ))
+        expect_failure "allocation $n of $total fails" "1" inject BL_FAULT=malloc:$n "$BANDLINK" power "$study" --out "$out" --force --quiet
+    done
+else
+    bad "could not count allocations ($total)"
+fi
+
+after_inputs=$(cd "$work/study" && find . -type f | sort | xargs sha256sum)
+[ "$after_inputs" = "$input_sums" ] && ok "inputs never modified" || bad "an input file changed"
+echo "$pass passed, $fail failed"
+[ "$fail" -eq 0 ]
