@@ -7,7 +7,7 @@
  * standardize). Reference: bench_power_scipy.py doing the same per trial in Python (soundfile read of the
  * window + montage + scipy.signal.welch + band sums), and scipy.signal.welch alone on the in-memory windows
  * (per trial, and vectorised over all trials at once), on the same files in the same run.
- * usage: bench_power SCIPY_SCRIPT [PARTICIPANTS TRIALS]
+ * usage: bench-power SCIPY_SCRIPT [PARTICIPANTS TRIALS]
  */
 #include "bandlink/power.h"
 #include "bandlink/spectrum.h"
@@ -163,7 +163,7 @@ int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
     if (argc < 2) {
-        fprintf(stderr, "usage: bench_power SCIPY_SCRIPT [PARTICIPANTS TRIALS]\n");
+        fprintf(stderr, "usage: bench-power SCIPY_SCRIPT [PARTICIPANTS TRIALS]\n");
         return 2;
     }
     int np = argc > 3 ? atoi(argv[2]) : 20, nt = argc > 3 ? atoi(argv[3]) : 500;
