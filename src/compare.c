@@ -13,6 +13,7 @@
  */
 #include "fit_internal.h"
 #include "model_internal.h"
+#include "strutil.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_rng.h>
@@ -25,15 +26,6 @@
 #endif
 
 #define Z975 1.959963984540054 /* standard normal 97.5% quantile */
-
-static char *dup_str(const char *s)
-{
-    if (!s) return NULL;
-    size_t n = strlen(s) + 1;
-    char *c = malloc(n);
-    if (c) memcpy(c, s, n);
-    return c;
-}
 
 void bl_aic_weights(const double *aic, size_t n, double *weights)
 {
@@ -77,7 +69,7 @@ bl_status bl_compare_models(bl_fit_set *set, bl_error *err)
     for (size_t i = 0; i < n; i++) {
         const bl_model_result *r = &set->models[i];
         bl_comparison_row *c = &set->comparison[i];
-        if (!(c->name = dup_str(r->name))) st = BL_ERR_NOMEM;
+        if (!(c->name = bl_strdup(r->name))) st = BL_ERR_NOMEM;
         c->parameters = r->parameters;
         c->trials = r->trials;
         c->log_likelihood = r->log_likelihood;
@@ -89,7 +81,7 @@ bl_status bl_compare_models(bl_fit_set *set, bl_error *err)
         c->lrt_statistic = c->lrt_df = c->lrt_p = NAN;
         c->lrt_nested = -1;
         if (r->extends) {
-            if (!(c->lrt_against = dup_str(r->extends))) st = BL_ERR_NOMEM;
+            if (!(c->lrt_against = bl_strdup(r->extends))) st = BL_ERR_NOMEM;
             const bl_model_result *b = NULL;
             for (size_t j = 0; j < n; j++)
                 if (!strcmp(set->models[j].name, r->extends)) b = &set->models[j];
@@ -139,8 +131,8 @@ bl_status bl_group_summary(bl_model_result *r, bl_error *err)
             bl_group_coefficient *gc = &r->group[ng++];
             gc->param = c->param;
             gc->parameter = c->parameter;
-            gc->term = dup_str(c->term);
-            gc->level = dup_str(c->level);
+            gc->term = bl_strdup(c->term);
+            gc->level = bl_strdup(c->level);
             if (!gc->term || !gc->level) {
                 free(y);
                 free(v);
@@ -225,8 +217,8 @@ bl_status bl_group_summary(bl_model_result *r, bl_error *err)
         const bl_group_coefficient *gc = &r->group[g];
         c->param = gc->param;
         c->parameter = gc->parameter;
-        c->term = dup_str(gc->term);
-        c->level = dup_str(gc->level);
+        c->term = bl_strdup(gc->term);
+        c->level = bl_strdup(gc->level);
         if (!c->term || !c->level) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
         c->estimate = gc->re_estimate;
         c->se = gc->re_se;
@@ -392,7 +384,7 @@ bl_status bl_permutation_tests(const bl_study *study, const bl_model_spec *spec,
             r->n_permutation = t + 1;
             pt->param = p;
             pt->parameter = bl_param_name(p);
-            if (!(pt->regressor = dup_str(spec->param[p].slopes[s].regressor))) {
+            if (!(pt->regressor = bl_strdup(spec->param[p].slopes[s].regressor))) {
                 st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
                 goto done;
             }

@@ -10,20 +10,13 @@
 
 #include "bandlink/output.h"
 #include "bandlink/svg.h"
+#include "strutil.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 static const double PANEL_W = 380, PANEL_H = 280;
-
-static char *xstrdup(const char *s)
-{
-    size_t n = strlen(s);
-    char *d = malloc(n + 1);
-    if (d) memcpy(d, s, n + 1);
-    return d;
-}
 
 static char *xprintf(const char *fmt, ...) BL_PRINTF(1, 2);
 static char *xprintf(const char *fmt, ...)
@@ -128,7 +121,7 @@ static bl_status add_figure(bl_figure_set *fs, bl_svg *fig, const char *file, co
         return st;
     }
     it->caption = caption;
-    if (!(it->file = xstrdup(file)) || !(it->title = xstrdup(title))) {
+    if (!(it->file = bl_strdup(file)) || !(it->title = bl_strdup(title))) {
         free(it->file);
         free(it->title);
         free(it->svg);
@@ -341,7 +334,7 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
             size_t ci;
             for (ci = 0; ci < n_leg; ci++)
                 if (strcmp(legend_labels[ci], g0->condition) == 0) break;
-            if (ci == n_leg && n_leg < 64 && (legend_labels[n_leg] = xstrdup(g0->condition))) n_leg++;
+            if (ci == n_leg && n_leg < 64 && (legend_labels[n_leg] = bl_strdup(g0->condition))) n_leg++;
             const char *color = bl_svg_color((int)ci);
             /* Trials of this condition: every bin's rows. */
             size_t n = 0;
@@ -468,7 +461,7 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
 static char *coef_label(const char *term, const char *level)
 {
     if (level && *level) return xprintf("%s [%s]", term, level);
-    return xstrdup(term);
+    return bl_strdup(term);
 }
 
 static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, char **caption)

@@ -18,6 +18,7 @@
 
 #include "bandlink/fit.h"
 #include "screen.h"
+#include "strutil.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
@@ -46,15 +47,6 @@ static double now_seconds(void)
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
-}
-
-static char *dup_str(const char *s)
-{
-    if (!s) return NULL;
-    size_t n = strlen(s) + 1;
-    char *c = malloc(n);
-    if (c) memcpy(c, s, n);
-    return c;
 }
 
 void bl_fit_options_default(bl_fit_options *o)
@@ -650,8 +642,8 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         const bl_coef_info *ci = &m->coef[j];
         c->param = ci->param;
         c->parameter = bl_param_name(ci->param);
-        c->term = dup_str(ci->term);
-        c->level = dup_str(ci->level);
+        c->term = bl_strdup(ci->term);
+        c->level = bl_strdup(ci->level);
         if (!c->term || !c->level) goto nomem;
         c->estimate = coef[j];
         c->se = c->z = c->p = c->ci_low = c->ci_high = NAN;
@@ -965,7 +957,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
         r->mode = set->mode;
         r->nested = -1;
         r->n_rows = trials->n;
-        if (!(r->name = dup_str(spec->name)) || (spec->extends && !(r->extends = dup_str(spec->extends)))) goto nomem_names;
+        if (!(r->name = bl_strdup(spec->name)) || (spec->extends && !(r->extends = bl_strdup(spec->extends)))) goto nomem_names;
         r->used = calloc(trials->n ? trials->n : 1, 1);
         r->predicted = calloc(trials->n ? trials->n : 1, sizeof *r->predicted);
         r->p_upper = malloc((trials->n ? trials->n : 1) * sizeof(double));
@@ -983,7 +975,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             if (!r->participants) goto nomem_names;
             r->n_participants = units[q].n_units;
             for (size_t i = 0; i < units[q].n_units; i++)
-                if (!(r->participants[i].participant = dup_str(unit_names[q][i]))) goto nomem_names;
+                if (!(r->participants[i].participant = bl_strdup(unit_names[q][i]))) goto nomem_names;
         }
     }
     /* 2. The fits. Several fits (models, participants) run side by side, each on one thread, with

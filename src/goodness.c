@@ -10,6 +10,7 @@
 #include "bandlink/goodness.h"
 
 #include "bandlink/output.h"
+#include "strutil.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -198,18 +199,10 @@ static int strlist_add(strlist *l, const char *s)
     return 1;
 }
 
-static char *xstrdup(const char *s)
-{
-    size_t n = strlen(s);
-    char *d = malloc(n + 1);
-    if (d) memcpy(d, s, n + 1);
-    return d;
-}
-
 /* "col=value;col=value" for a row (missing values shown as NA), or "all" when ncols == 0. */
 static char *level_label(const bl_trials *t, const int *cols, size_t ncols, size_t row)
 {
-    if (ncols == 0) return xstrdup("all");
+    if (ncols == 0) return bl_strdup("all");
     size_t len = 1;
     for (size_t c = 0; c < ncols; c++) {
         const bl_column *col = &t->table->cols[cols[c]];
@@ -286,7 +279,7 @@ static bl_status split_by(const bl_trials *t, const int *cols, size_t ncols, con
             if (strcmp(out->g[gi].condition, labels[i]) == 0) break;
         if (gi == out->n) {
             bl_goodness_group *g = group_new(out);
-            if (!g || !(g->condition = xstrdup(labels[i])) || !(g->rows = malloc(n * sizeof *g->rows))) {
+            if (!g || !(g->condition = bl_strdup(labels[i])) || !(g->rows = malloc(n * sizeof *g->rows))) {
                 st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
                 goto done;
             }
@@ -467,7 +460,7 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
                         size_t r1 = (lv->n * (size_t)(b + 1) + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
                         if (r1 <= r0) continue;
                         bl_goodness_group *ng = group_new(&gl);
-                        if (!ng || !(ng->condition = xstrdup(lv->condition)) || !(ng->regressor = xstrdup(sl->regressor)) ||
+                        if (!ng || !(ng->condition = bl_strdup(lv->condition)) || !(ng->regressor = bl_strdup(sl->regressor)) ||
                             !(ng->rows = malloc((r1 - r0) * sizeof *ng->rows))) {
                             free_groups(levels.g, levels.n);
                             goto nomem;

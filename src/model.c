@@ -5,6 +5,7 @@
  * involved (Golub & Van Loan, Matrix Computations, 4th ed., 2013, sections 2.4 and 5.5).
  */
 #include "model_internal.h"
+#include "strutil.h"
 
 #include <lapacke.h>
 #include <math.h>
@@ -16,15 +17,6 @@
  * exact collinearity gives ~1e15-1e16, while real designs with centred or standardised regressors
  * stay far below. */
 #define BL_MODEL_MAX_CONDITION 1e9
-
-static char *dup_str(const char *s)
-{
-    if (!s) return NULL;
-    size_t n = strlen(s) + 1;
-    char *c = malloc(n);
-    if (c) memcpy(c, s, n);
-    return c;
-}
 
 static void free_strv(char **v, size_t n)
 {
@@ -38,7 +30,7 @@ static char **dup_strv(char *const *v, size_t n)
     char **c = calloc(n ? n : 1, sizeof *c);
     if (!c) return NULL;
     for (size_t i = 0; i < n; i++)
-        if (!(c[i] = dup_str(v[i]))) {
+        if (!(c[i] = bl_strdup(v[i]))) {
             free_strv(c, n);
             return NULL;
         }
@@ -156,7 +148,7 @@ static bl_status make_levels(const bl_model *m, const bl_trials *trials, char *c
                 if (!nn) goto fail;
                 names = nn;
             }
-            if (!(names[n_names] = dup_str(key))) goto fail;
+            if (!(names[n_names] = bl_strdup(key))) goto fail;
             n_names++;
         }
         level[k] = l;
@@ -334,7 +326,7 @@ bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, con
     char ***lev_names = NULL;
     size_t *lev_counts = NULL;
     size_t n_lev_sets = 0;
-    if (!m || !(m->name = dup_str(mname))) goto nomem;
+    if (!m || !(m->name = bl_strdup(mname))) goto nomem;
     const size_t nrow = trials->n;
     size_t n = 0;
     for (size_t i = 0; i < nrow; i++)
@@ -409,7 +401,7 @@ bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, con
         for (size_t s = 0; s < ps->n_slopes; s++) {
             const bl_slope_spec *ss = &ps->slopes[s];
             bl_slope_design *sl = &d->slopes[s];
-            if (!(sl->regressor = dup_str(ss->regressor)) || !(sl->by = dup_strv(ss->by, ss->n_by))) goto nomem;
+            if (!(sl->regressor = bl_strdup(ss->regressor)) || !(sl->by = dup_strv(ss->by, ss->n_by))) goto nomem;
             sl->n_by = ss->n_by;
             for (size_t s2 = 0; s2 < s; s2++)
                 if (strcmp(d->slopes[s2].regressor, ss->regressor) == 0) {
@@ -527,7 +519,7 @@ bl_model *bl_model_copy(const bl_model *m)
     c->rt_lo = m->rt_lo;
     c->rt_hi = m->rt_hi;
     c->n_coef = m->n_coef;
-    c->name = dup_str(m->name);
+    c->name = bl_strdup(m->name);
     c->row = dup_mem(m->row, n * sizeof *m->row);
     c->rt = dup_mem(m->rt, n * sizeof *m->rt);
     c->upper = dup_mem(m->upper, n * sizeof *m->upper);
@@ -557,7 +549,7 @@ bl_model *bl_model_copy(const bl_model *m)
             const bl_slope_design *a = &d->slopes[s];
             bl_slope_design *b = &e->slopes[s];
             *b = *a;
-            b->regressor = dup_str(a->regressor);
+            b->regressor = bl_strdup(a->regressor);
             b->by = dup_strv(a->by, a->n_by);
             b->level = dup_mem(a->level, n * sizeof *a->level);
             b->x = dup_mem(a->x, n * sizeof *a->x);

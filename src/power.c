@@ -15,6 +15,7 @@
 #include "bandlink/output.h"
 #include "bandlink/spectrum.h"
 #include "bandlink/trace.h"
+#include "strutil.h"
 
 #include <math.h>
 #include <stdarg.h>
@@ -27,14 +28,6 @@
 #endif
 
 enum { CHUNK_TRIALS = 32 };
-
-static char *dup_str(const char *s)
-{
-    size_t n = strlen(s);
-    char *d = malloc(n + 1);
-    if (d) memcpy(d, s, n + 1);
-    return d;
-}
 
 /* CSV/TSV traces are parsed whole when opened, so one thread takes all trials of such a file. */
 static int is_text_trace(const char *p)
@@ -106,8 +99,8 @@ static int add_recording(bl_power_result *r, size_t *cap, const char *path, cons
     }
     bl_power_recording *rec = &r->recordings[r->n_recordings];
     memset(rec, 0, sizeof *rec);
-    rec->path = dup_str(path);
-    rec->participant = dup_str(participant);
+    rec->path = bl_strdup(path);
+    rec->participant = bl_strdup(participant);
     if (!rec->path || !rec->participant) {
         free(rec->path);
         free(rec->participant);
@@ -410,7 +403,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     size_t n_jobs = 0, n_items = 0, rec_cap = 0;
     bl_power_result *r = calloc(1, sizeof *r);
     if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-    if (!(r->unit = dup_str(s->recordings.unit))) goto nomem;
+    if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
     if ((st = bl_montage_parse((const char *const *)s->recordings.channels, s->recordings.n_channels,
                                "recordings.channels", &m, err)))
         goto fail;
@@ -514,7 +507,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     for (size_t k = 0; k < r->n_bands; k++) {
         const bl_band_spec *bs = &s->power.bands[k];
         bl_power_band *pb = &r->bands[k];
-        if (!(pb->name = dup_str(bs->name)) || !(pb->used = calloc(r->n_freqs, 1))) goto nomem;
+        if (!(pb->name = bl_strdup(bs->name)) || !(pb->used = calloc(r->n_freqs, 1))) goto nomem;
         pb->lo = bs->lo;
         pb->hi = bs->hi;
         if (bs->hi > fs / 2) {

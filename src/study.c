@@ -8,6 +8,7 @@
 #include "bandlink/study.h"
 #include "bandlink/trace.h"
 #include "json.h"
+#include "strutil.h"
 
 #include <cjson/cJSON.h>
 #include <errno.h>
@@ -27,15 +28,6 @@ typedef struct {
     bl_error *err;
 } ctx;
 
-static char *dup_str(const char *s)
-{
-    if (!s) return NULL;
-    size_t n = strlen(s);
-    char *d = malloc(n + 1);
-    if (d) memcpy(d, s, n + 1);
-    return d;
-}
-
 static void free_strings(char **v, size_t n)
 {
     if (!v) return;
@@ -53,7 +45,7 @@ static char **copy_strings(char *const *v, size_t n, int *ok)
         return NULL;
     }
     for (size_t i = 0; i < n; i++)
-        if (!(d[i] = dup_str(v[i]))) {
+        if (!(d[i] = bl_strdup(v[i]))) {
             free_strings(d, n);
             *ok = 0;
             return NULL;
@@ -148,12 +140,12 @@ static bl_status get_string(ctx *c, const cJSON *obj, const char *path, const ch
     *out = NULL;
     if (!v) {
         if (!def) return BL_OK;
-        if (!(*out = dup_str(def))) return nomem(c);
+        if (!(*out = bl_strdup(def))) return nomem(c);
         return BL_OK;
     }
     if (!cJSON_IsString(v)) return bad(c, k, v, "must be a string");
     if (!v->valuestring[0]) return bad(c, k, v, "must not be empty");
-    if (!(*out = dup_str(v->valuestring))) return nomem(c);
+    if (!(*out = bl_strdup(v->valuestring))) return nomem(c);
     return BL_OK;
 }
 
@@ -240,7 +232,7 @@ static bl_status get_string_array(ctx *c, const cJSON *v, const char *k, int all
                 free_strings(arr, n);
                 return bad(c, kk, it, "is listed twice");
             }
-        if (!(arr[i] = dup_str(s))) {
+        if (!(arr[i] = bl_strdup(s))) {
             free_strings(arr, n);
             return nomem(c);
         }
@@ -252,7 +244,7 @@ static bl_status get_string_array(ctx *c, const cJSON *v, const char *k, int all
 
 static char *resolve_path(const char *dir, const char *p)
 {
-    if (p[0] == '/' || !dir || !dir[0] || strcmp(dir, ".") == 0) return dup_str(p);
+    if (p[0] == '/' || !dir || !dir[0] || strcmp(dir, ".") == 0) return bl_strdup(p);
     size_t nd = strlen(dir), np = strlen(p);
     char *r = malloc(nd + np + 2);
     if (!r) return NULL;
@@ -330,7 +322,7 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
     if (!(s->recordings.gain > 0)) return bad(c, "recordings.gain", get(o, "gain"), "must be > 0");
     int u;
     if ((st = get_choice(c, o, "recordings", "unit", unit_names, 5, &u))) return st;
-    if (!(s->recordings.unit = dup_str(unit_names[u]))) return nomem(c);
+    if (!(s->recordings.unit = bl_strdup(unit_names[u]))) return nomem(c);
     int has_rate;
     if ((st = get_number(c, o, "recordings", "rate", NAN, &s->recordings.rate, &has_rate))) return st;
     if (has_rate && !(s->recordings.rate > 0)) return bad(c, "recordings.rate", get(o, "rate"), "must be > 0 (Hz)");
@@ -342,7 +334,7 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
                                    &s->recordings.n_channels)))
             return st;
     } else {
-        if (!(s->recordings.channels = calloc(1, sizeof(char *))) || !(s->recordings.channels[0] = dup_str("1")))
+        if (!(s->recordings.channels = calloc(1, sizeof(char *))) || !(s->recordings.channels[0] = bl_strdup("1")))
             return nomem(c);
         s->recordings.n_channels = 1;
     }
@@ -425,7 +417,7 @@ static bl_status parse_power(ctx *c, const cJSON *o, bl_study *s)
         if (isfinite(s->recordings.rate) && hi > s->recordings.rate / 2)
             return bad(c, k, it, "hi is above the Nyquist frequency (recordings.rate / 2)");
         bl_band_spec *bs = &s->power.bands[s->power.n_bands++];
-        if (!(bs->name = dup_str(it->string))) return nomem(c);
+        if (!(bs->name = bl_strdup(it->string))) return nomem(c);
         bs->lo = lo;
         bs->hi = hi;
     }
@@ -513,7 +505,7 @@ static int param_copy(bl_param_spec *d, const bl_param_spec *src)
         if (!(d->slopes = calloc(src->n_slopes, sizeof *d->slopes))) return 0;
         for (size_t i = 0; i < src->n_slopes; i++) {
             d->n_slopes = i + 1;
-            if (!(d->slopes[i].regressor = dup_str(src->slopes[i].regressor))) return 0;
+            if (!(d->slopes[i].regressor = bl_strdup(src->slopes[i].regressor))) return 0;
             d->slopes[i].by = copy_strings(src->slopes[i].by, src->slopes[i].n_by, &ok);
             if (!ok) return 0;
             d->slopes[i].n_by = src->slopes[i].n_by;
@@ -596,7 +588,7 @@ static bl_status parse_param(ctx *c, const cJSON *v, const char *path, int which
                 if (strcmp(p->slopes[j].regressor, it->string) == 0) return bad(c, kk, it, "is given twice");
             if (!it->string[0]) return bad(c, kk, it, "a regressor name must not be empty");
             bl_slope_spec *ss = &p->slopes[p->n_slopes++];
-            if (!(ss->regressor = dup_str(it->string))) return nomem(c);
+            if (!(ss->regressor = bl_strdup(it->string))) return nomem(c);
             if ((st = get_string_array(c, it, kk, 0, 1, &ss->by, &ss->n_by))) return st;
         }
     }
@@ -719,9 +711,9 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
         cJSON_Delete(root);
         return nomem(&c);
     }
-    s->path = dup_str(name);
+    s->path = bl_strdup(name);
     const char *slash = strrchr(name, '/');
-    s->dir = slash ? strndup(name, (size_t)(slash - name) + (slash == name)) : dup_str(".");
+    s->dir = slash ? strndup(name, (size_t)(slash - name) + (slash == name)) : bl_strdup(".");
     if (!s->path || !s->dir) {
         st = nomem(&c);
         goto fail;
@@ -920,7 +912,7 @@ char *bl_study_to_json(const bl_study *s)
     cJSON_Delete(root);
     if (!txt) return NULL;
     /* cJSON_Print allocates with its hooks (malloc by default); hand back a plain malloc'd copy */
-    char *copy = dup_str(txt);
+    char *copy = bl_strdup(txt);
     cJSON_free(txt);
     return copy;
 }

@@ -1,20 +1,12 @@
 /* Column-oriented trial tables: building, lookup, destruction. (CSV/TSV reading: bl_table_read/parse.) */
 #include "bandlink/table.h"
+#include "strutil.h"
 
 #include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-
-static char *dup_string(const char *s)
-{
-    if (!s) return NULL;
-    size_t n = strlen(s);
-    char *d = malloc(n + 1);
-    if (d) memcpy(d, s, n + 1);
-    return d;
-}
 
 bl_table *bl_table_create(size_t n_rows)
 {
@@ -68,14 +60,14 @@ static bl_status table_put(bl_table *t, bl_column *c, bl_error *err)
 bl_status bl_table_add_numeric(bl_table *t, const char *name, const double *values, bl_error *err)
 {
     size_t n = t->n_rows ? t->n_rows : 1;
-    bl_column c = {dup_string(name), 1, malloc(n * sizeof(double)), calloc(n, sizeof(char *))};
+    bl_column c = {bl_strdup(name), 1, malloc(n * sizeof(double)), calloc(n, sizeof(char *))};
     if (!c.name || !c.num || !c.text) goto nomem;
     for (size_t i = 0; i < t->n_rows; i++) {
         c.num[i] = values[i];
         if (isnan(values[i])) continue;
         char buf[40];
         snprintf(buf, sizeof buf, "%.17g", values[i]);
-        if (!(c.text[i] = dup_string(buf))) goto nomem;
+        if (!(c.text[i] = bl_strdup(buf))) goto nomem;
     }
     return table_put(t, &c, err);
 nomem:
@@ -86,11 +78,11 @@ nomem:
 bl_status bl_table_add_text(bl_table *t, const char *name, const char *const *values, bl_error *err)
 {
     size_t n = t->n_rows ? t->n_rows : 1;
-    bl_column c = {dup_string(name), 0, malloc(n * sizeof(double)), calloc(n, sizeof(char *))};
+    bl_column c = {bl_strdup(name), 0, malloc(n * sizeof(double)), calloc(n, sizeof(char *))};
     if (!c.name || !c.num || !c.text) goto nomem;
     for (size_t i = 0; i < t->n_rows; i++) {
         c.num[i] = NAN;
-        if (values[i] && !(c.text[i] = dup_string(values[i]))) goto nomem;
+        if (values[i] && !(c.text[i] = bl_strdup(values[i]))) goto nomem;
     }
     return table_put(t, &c, err);
 nomem:
@@ -346,7 +338,7 @@ bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_tab
         nomem = 1;
         goto fail;
     }
-    if (!(t->path = dup_string(name)) || !(t->cols = calloc(n_cols ? n_cols : 1, sizeof *t->cols))) {
+    if (!(t->path = bl_strdup(name)) || !(t->cols = calloc(n_cols ? n_cols : 1, sizeof *t->cols))) {
         nomem = 1;
         goto fail;
     }

@@ -5,6 +5,7 @@
  * default on: integer PCM read as double is divided by 2^(bits-1)).
  */
 #include "bandlink/trace.h"
+#include "strutil.h"
 
 #include <errno.h>
 #include <math.h>
@@ -20,14 +21,6 @@ struct bl_trace {
     int64_t pos;            /* the sound file's read position (frames), -1 when unknown */
     double *csv;            /* frames x channels, interleaved (CSV traces only) */
 };
-
-static char *dup_str(const char *s)
-{
-    size_t n = strlen(s);
-    char *d = malloc(n + 1);
-    if (d) memcpy(d, s, n + 1);
-    return d;
-}
 
 static int has_csv_extension(const char *p)
 {
@@ -157,7 +150,7 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
 {
     *out = NULL;
     bl_trace *t = calloc(1, sizeof *t);
-    if (!t || !(t->path = dup_str(path))) {
+    if (!t || !(t->path = bl_strdup(path))) {
         free(t);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory opening %s", path);
     }

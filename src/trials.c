@@ -8,19 +8,12 @@
  */
 #include "bandlink/trials.h"
 #include "bandlink/study.h"
+#include "strutil.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-
-static char *dup_str(const char *s)
-{
-    size_t n = strlen(s);
-    char *d = malloc(n + 1);
-    if (d) memcpy(d, s, n + 1);
-    return d;
-}
 
 static int to_number(const char *s, double *x)
 {
@@ -186,18 +179,18 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
         size_t k = 0;
         while (k < t->n_participants && strcmp(t->participants[k], p) != 0) k++;
         if (k == t->n_participants) {
-            if (!(t->participants[k] = dup_str(p))) goto nomem;
+            if (!(t->participants[k] = bl_strdup(p))) goto nomem;
             t->n_participants++;
         }
         t->participant[i] = k;
         count[k]++;
 
         if (c_trial >= 0 && tab->cols[c_trial].text[i]) {
-            t->trial_label[i] = dup_str(tab->cols[c_trial].text[i]);
+            t->trial_label[i] = bl_strdup(tab->cols[c_trial].text[i]);
         } else {
             char buf[32];
             snprintf(buf, sizeof buf, "%zu", count[k]);
-            t->trial_label[i] = dup_str(buf);
+            t->trial_label[i] = bl_strdup(buf);
         }
         if (!t->trial_label[i]) goto nomem;
 
