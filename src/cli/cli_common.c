@@ -75,6 +75,20 @@ int cli_parse_count(const char *cmd, const char *option, const char *value, unsi
     return 1;
 }
 
+int cli_parse_threads(const char *cmd, const char *value, int missing, unsigned long *out)
+{
+    if (missing) {
+        cli_usage_error(cmd, "option --threads needs a number");
+        return 0;
+    }
+    if (!cli_parse_count(cmd, "--threads", value, out)) return 0;
+    if (*out < 1 || *out > 1024) {
+        cli_usage_error(cmd, "option --threads: '%s' must be a whole number from 1 to 1024", value);
+        return 0;
+    }
+    return 1;
+}
+
 const char *cli_option_value(int argc, char **argv, int *i, const char *name, int *missing)
 {
     size_t n = strlen(name);

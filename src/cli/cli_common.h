@@ -26,6 +26,10 @@ void cli_progress(const char *fmt, ...) BL_PRINTF(1, 2);
 int cli_parse_double(const char *cmd, const char *option, const char *value, double *out);
 int cli_parse_count(const char *cmd, const char *option, const char *value, unsigned long *out);
 
+/* --threads: a whole number from 1 to 1024. `missing` is what cli_option_value reported. On failure print a
+ * usage error naming the option and value, return 0. */
+int cli_parse_threads(const char *cmd, const char *value, int missing, unsigned long *out);
+
 /* Take the value of an option of the form "--name VALUE" or "--name=VALUE" at argv[*i].
  * Returns the value (advancing *i past it) or NULL when argv[*i] is not that option.
  * Sets *missing when the option is present without a value. */

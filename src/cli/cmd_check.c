@@ -31,10 +31,7 @@ int cmd_check(int argc, char **argv)
         } else if (strcmp(argv[i], "--quiet") == 0) {
             cli_quiet = 1;
         } else if ((v = cli_option_value(argc, argv, &i, "--threads", &missing)) || missing) {
-            if (missing) return cli_usage_error("check", "option --threads needs a number");
-            if (!cli_parse_count("check", "--threads", v, &threads)) return CLI_EXIT_USAGE;
-            if (threads == 0 || threads > 1024)
-                return cli_usage_error("check", "option --threads: '%s' must be from 1 to 1024", v);
+            if (!cli_parse_threads("check", v, missing, &threads)) return CLI_EXIT_USAGE;
         } else if (argv[i][0] == '-' && argv[i][1]) {
             return cli_usage_error("check", "unknown option '%s'", argv[i]);
         } else if (!study_path) {

@@ -116,27 +116,36 @@ int cmd_fit(int argc, char **argv)
             cli_quiet = 1;
         } else if (!strcmp(a, "--force")) {
             force = 1;
-        } else if ((v = cli_option_value(argc, argv, &i, "--model", &missing))) {
-            models[n_models++] = v;
-        } else if ((v = cli_option_value(argc, argv, &i, "--out", &missing))) {
-            out_dir = v;
-        } else if ((v = cli_option_value(argc, argv, &i, "--threads", &missing))) {
-            if (!cli_parse_count("fit", "--threads", v, &threads)) goto usage_fail;
-            if (threads > 1024) {
-                code = cli_usage_error("fit", "option --threads: '%s' is more than 1024", v);
+        } else if ((v = cli_option_value(argc, argv, &i, "--model", &missing)) || missing) {
+            if (missing) {
+                code = cli_usage_error("fit", "option %s needs a value", a);
                 goto done;
             }
-        } else if ((v = cli_option_value(argc, argv, &i, "--permutations", &missing))) {
+            models[n_models++] = v;
+        } else if ((v = cli_option_value(argc, argv, &i, "--out", &missing)) || missing) {
+            if (missing) {
+                code = cli_usage_error("fit", "option %s needs a value", a);
+                goto done;
+            }
+            out_dir = v;
+        } else if ((v = cli_option_value(argc, argv, &i, "--threads", &missing)) || missing) {
+            if (!cli_parse_threads("fit", v, missing, &threads)) goto usage_fail;
+        } else if ((v = cli_option_value(argc, argv, &i, "--permutations", &missing)) || missing) {
+            if (missing) {
+                code = cli_usage_error("fit", "option %s needs a value", a);
+                goto done;
+            }
             if (!cli_parse_count("fit", "--permutations", v, &perms)) goto usage_fail;
             if (perms > 1000000) {
                 code = cli_usage_error("fit", "option --permutations: '%s' is more than 1000000", v);
                 goto done;
             }
-        } else if ((v = cli_option_value(argc, argv, &i, "--seed", &missing))) {
+        } else if ((v = cli_option_value(argc, argv, &i, "--seed", &missing)) || missing) {
+            if (missing) {
+                code = cli_usage_error("fit", "option %s needs a value", a);
+                goto done;
+            }
             if (!cli_parse_count("fit", "--seed", v, &seed)) goto usage_fail;
-        } else if (missing) {
-            code = cli_usage_error("fit", "option %s needs a value", a);
-            goto done;
         } else if (a[0] == '-' && a[1] != '\0') {
             code = cli_usage_error("fit", "unknown option '%s'", a);
             goto done;
@@ -151,6 +160,7 @@ int cmd_fit(int argc, char **argv)
         code = cli_usage_error("fit", "missing the study file");
         goto done;
     }
+
     if (bl_study_load(study_path, &study, &err)) goto fail;
     if (bl_trials_load(study, &trials, &warn, &err)) goto fail;
     if (study->has_recordings && study->has_power && study->power.n_bands > 0) {

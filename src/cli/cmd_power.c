@@ -41,10 +41,7 @@ int cmd_power(int argc, char **argv)
             if (missing) return cli_usage_error("power", "option --out needs a folder");
             out_dir = v;
         } else if ((v = cli_option_value(argc, argv, &i, "--threads", &missing)) || missing) {
-            if (missing) return cli_usage_error("power", "option --threads needs a number");
-            if (!cli_parse_count("power", "--threads", v, &threads)) return CLI_EXIT_USAGE;
-            if (threads == 0 || threads > 1024)
-                return cli_usage_error("power", "option --threads: '%s' must be from 1 to 1024", v);
+            if (!cli_parse_threads("power", v, missing, &threads)) return CLI_EXIT_USAGE;
         } else if (argv[i][0] == '-' && argv[i][1]) {
             return cli_usage_error("power", "unknown option '%s'", argv[i]);
         } else if (!study_path) {

@@ -82,9 +82,7 @@ int cmd_run(int argc, char **argv)
             if (missing) return cli_usage_error("run", "option --out needs a folder");
             opt.out_dir = v;
         } else if ((v = cli_option_value(argc, argv, &i, "--threads", &missing)) || missing) {
-            if (missing) return cli_usage_error("run", "option --threads needs a value");
-            if (!cli_parse_count("run", "--threads", v, &x)) return CLI_EXIT_USAGE;
-            if (x < 1 || x > 1024) return cli_usage_error("run", "option --threads: '%s' is not in 1..1024", v);
+            if (!cli_parse_threads("run", v, missing, &x)) return CLI_EXIT_USAGE;
             opt.threads = (int)x;
         } else if ((v = cli_option_value(argc, argv, &i, "--seed", &missing)) || missing) {
             if (missing) return cli_usage_error("run", "option --seed needs a value");

@@ -48,9 +48,7 @@ int cmd_simulate(int argc, char **argv)
             opt.seed = s;
         } else if ((v = cli_option_value(argc, argv, &i, "--threads", &missing)) || missing) {
             unsigned long t;
-            if (missing) return cli_usage_error("simulate", "option --threads needs a value");
-            if (!cli_parse_count("simulate", "--threads", v, &t)) return CLI_EXIT_USAGE;
-            if (t < 1 || t > 1024) return cli_usage_error("simulate", "option --threads: '%s' is not in 1..1024", v);
+            if (!cli_parse_threads("simulate", v, missing, &t)) return CLI_EXIT_USAGE;
             opt.threads = (int)t;
         } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
             return cli_usage_error("simulate", "unknown option '%s'", argv[i]);
