@@ -197,6 +197,26 @@ int main(void)
                    err.message);
         bl_table_destroy(tab);
     }
+    {
+        /* A FLAC stream whose STREAMINFO gives 0 total samples, which the FLAC format specification
+         * (xiph.org, "STREAMINFO": 0 means the total is unknown) allows; libsndfile then reports
+         * SF_COUNT_MAX frames. Found by fuzzing (tests/fuzz/regressions/trace/): windows cannot be
+         * checked against such a length, so the file must be refused, not read. */
+        static const unsigned char unknown_length[] = {
+            0x66, 0x4c, 0x61, 0x43, 0x00, 0x00, 0x00, 0x22, 0x10, 0x00, 0x10, 0x00, 0x00, 0x02, 0x32,
+            0x00, 0x02, 0x34, 0x00, 0x3e, 0x83, 0x70, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+            0x00, 0x00, 0x22, 0x10, 0x00, 0x10, 0x00, 0x20, 0x00, 0x00, 0x00, 0x98};
+        char path[600];
+        snprintf(path, sizeof path, "%s/unknown_length.wav", dir); /* the name the fuzz target used */
+        FILE *f = fopen(path, "wb");
+        int wrote = f && fwrite(unknown_length, 1, sizeof unknown_length, f) == sizeof unknown_length;
+        if (f) fclose(f);
+        bl_trace *t = NULL;
+        check_true(wrote && bl_trace_open(path, 0, &t, &err) == BL_ERR_INPUT && t == NULL &&
+                       strstr(err.message, "no usable length"),
+                   "a recording without a usable length is refused: %s", err.message);
+        bl_trace_close(t);
+    }
     char cmd[600];
     snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
     if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
