@@ -18,6 +18,10 @@
 
 static const double PANEL_W = 380, PANEL_H = 280;
 
+/* Set when a label or caption could not be allocated: the figure would silently lack it, so
+ * bl_figures_make fails instead (per thread: figures are made on one thread at a time). */
+static _Thread_local int figure_text_lost;
+
 static char *xprintf(const char *fmt, ...) BL_PRINTF(1, 2);
 static char *xprintf(const char *fmt, ...)
 {
@@ -27,7 +31,10 @@ static char *xprintf(const char *fmt, ...)
     va_end(ap);
     if (n < 0) return NULL;
     char *s = malloc((size_t)n + 1);
-    if (!s) return NULL;
+    if (!s) {
+        figure_text_lost = 1;
+        return NULL;
+    }
     va_start(ap, fmt);
     vsnprintf(s, (size_t)n + 1, fmt, ap);
     va_end(ap);
@@ -627,6 +634,7 @@ bl_status bl_figures_make(const bl_study *study, const bl_trials *trials, const 
     }
     bl_status st;
     char *cap = NULL;
+    figure_text_lost = 0;
     bl_svg *f = fig_spectrum(study, power, g, &cap);
     if ((st = add_figure(fs, f, "power_spectrum.svg", "Power spectral density by condition", cap, err))) goto fail;
     cap = NULL;
@@ -641,6 +649,10 @@ bl_status bl_figures_make(const bl_study *study, const bl_trials *trials, const 
     cap = NULL;
     f = fig_comparison(set, &cap);
     if ((st = add_figure(fs, f, "model_comparison.svg", "Model comparison", cap, err))) goto fail;
+    if (figure_text_lost) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the figures' labels");
+        goto fail;
+    }
     *out = fs;
     return BL_OK;
 fail:

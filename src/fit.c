@@ -167,6 +167,7 @@ typedef struct {
      * the gradient at the same point, and one likelihood pass gives both. */
     double *cache_x, *cache_g, cache_f;
     int cache_valid;
+    int out_of_memory; /* an optimiser workspace could not be allocated: the fit must fail, not skip a start */
 } objective;
 
 static void evaluate_point(objective *o, const gsl_vector *x)
@@ -218,7 +219,10 @@ static double run_bfgs(objective *o, gsl_vector *x, size_t *iterations)
 {
     gsl_multimin_function_fdf fdf = {obj_f, obj_df, obj_fdf, o->k, o};
     gsl_multimin_fdfminimizer *s = gsl_multimin_fdfminimizer_alloc(gsl_multimin_fdfminimizer_vector_bfgs2, o->k);
-    if (!s) return GSL_POSINF;
+    if (!s) {
+        o->out_of_memory = 1;
+        return GSL_POSINF;
+    }
     double best = GSL_POSINF;
     /* Restarts reset the curvature estimate, which often gets a stalled line search moving again. */
     for (int restart = 0; restart < 3; restart++) {
@@ -247,7 +251,10 @@ static double run_simplex(objective *o, gsl_vector *x, size_t *iterations)
     gsl_multimin_fminimizer *s = gsl_multimin_fminimizer_alloc(gsl_multimin_fminimizer_nmsimplex2, o->k);
     gsl_vector *step = gsl_vector_alloc(o->k);
     double best = GSL_POSINF;
-    if (!s || !step) goto done;
+    if (!s || !step) {
+        o->out_of_memory = 1;
+        goto done;
+    }
     gsl_vector_set_all(step, 0.2);
     if (gsl_multimin_fminimizer_set(s, &fn, x, step) != GSL_SUCCESS) goto done;
     for (size_t it = 0; it < 500 * o->k + 1000; it++) {
@@ -273,8 +280,14 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
 {
     size_t k = m->n_coef;
     double *c = malloc(k * sizeof *c), *gp = malloc(k * sizeof *gp), *gm = malloc(k * sizeof *gm);
-    int ok = c && gp && gm;
-    if (ok) memcpy(c, coef, k * sizeof *c);
+    if (!c || !gp || !gm) {
+        free(c);
+        free(gp);
+        free(gm);
+        return -1; /* out of memory: the caller fails the fit rather than reporting "not positive definite" */
+    }
+    int ok = 1;
+    memcpy(c, coef, k * sizeof *c);
     for (size_t j = 0; ok && j < k; j++) {
         double scale = 1.0;
         const bl_coef_info *ci = &m->coef[j];
@@ -306,8 +319,14 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
     return ok;
 }
 
-/* Covariance = info^-1 by Cholesky; 0 when info is not positive definite. cond receives the
- * eigenvalue ratio of info (NAN when the eigenvalues fail). */
+/* LAPACKE's own workspace or transposition buffer could not be allocated. */
+static int lapacke_out_of_memory(lapack_int info)
+{
+    return info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR;
+}
+
+/* Covariance = info^-1 by Cholesky; 0 when info is not positive definite, -1 when memory ran out.
+ * cond receives the eigenvalue ratio of info (NAN when the eigenvalues fail). */
 int bl_information_inverse(const double *info, size_t k, double *cov, double *cond)
 {
     double *tmp = malloc(k * k * sizeof *tmp), *ev = malloc(k * sizeof *ev);
@@ -315,18 +334,19 @@ int bl_information_inverse(const double *info, size_t k, double *cov, double *co
     if (!tmp || !ev) {
         free(tmp);
         free(ev);
-        return 0;
+        return -1;
     }
     memcpy(tmp, info, k * k * sizeof *tmp);
-    if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'N', 'U', (lapack_int)k, tmp, (lapack_int)k, ev) == 0 && ev[0] > 0)
-        *cond = ev[k - 1] / ev[0];
-    else if (ev[0] <= 0)
-        *cond = INFINITY;
+    lapack_int ie = LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'N', 'U', (lapack_int)k, tmp, (lapack_int)k, ev);
+    if (ie == 0) *cond = ev[0] > 0 ? ev[k - 1] / ev[0] : INFINITY;
     free(tmp);
     free(ev);
+    if (lapacke_out_of_memory(ie)) return -1;
     memcpy(cov, info, k * k * sizeof *cov);
-    if (LAPACKE_dpotrf(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k) != 0) return 0;
-    if (LAPACKE_dpotri(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k) != 0) return 0;
+    lapack_int ic = LAPACKE_dpotrf(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
+    if (ic == 0) ic = LAPACKE_dpotri(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
+    if (lapacke_out_of_memory(ic)) return -1;
+    if (ic != 0) return 0;
     for (size_t i = 0; i < k; i++)
         for (size_t j = 0; j < i; j++) cov[i * k + j] = cov[j * k + i];
     for (size_t i = 0; i < k; i++)
@@ -446,7 +466,10 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
     best->ll = -INFINITY;
     best->iterations = 0;
     best->used_simplex = 0;
-    if (!x0 || !x) goto done;
+    if (!x0 || !x) {
+        o->out_of_memory = 1;
+        goto done;
+    }
     for (size_t j = 0; j < k; j++) gsl_vector_set(x0, j, to_x(&o->tr[j], first[j]));
     for (int s = 0; s < n_starts; s++) {
         gsl_vector_memcpy(x, x0);
@@ -488,6 +511,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         /* Fallback: derivative-free search when BFGS could not start or stalled far from a
          * stationary point, then BFGS again from where it ended. */
         gsl_vector *g = gsl_vector_alloc(k);
+        if (!g) o->out_of_memory = 1;
         int stalled = 1;
         if (g && isfinite(f)) {
             double fv;
@@ -497,6 +521,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         gsl_vector_free(g);
         if (stalled) {
             gsl_vector *xs = gsl_vector_alloc(k);
+            if (!xs) o->out_of_memory = 1;
             if (xs) {
                 gsl_vector_memcpy(xs, isfinite(f) ? x : x0);
                 double fs = run_simplex(o, xs, &iters);
@@ -574,10 +599,14 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
                           m->name);
         goto fail;
     }
-    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0};
+    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0};
     start_result best = {0, coef, 0, 0};
     int agreed = 0;
     optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
+    if (o.out_of_memory) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory in the optimiser", m->name);
+        goto fail;
+    }
     if (!isfinite(best.ll)) {
         st = bl_error_set(err, BL_ERR_NUMERIC, "model '%s': the optimiser found no finite log-likelihood", m->name);
         goto fail;
@@ -601,7 +630,10 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         /* Newton polishing with the observed information: each step is checked to raise the
          * likelihood, so it can only help. */
         for (int polish = 0; polish < 4; polish++) {
-            pd = observed_information(lik, m, coef, info) && bl_information_inverse(info, k, cov, &cond);
+            int oi = observed_information(lik, m, coef, info);
+            int inv = oi > 0 ? bl_information_inverse(info, k, cov, &cond) : 0;
+            if (oi < 0 || inv < 0) goto nomem;
+            pd = oi > 0 && inv > 0;
             if (!pd) break;
             double nd2 = 0;
             for (size_t i = 0; i < k; i++)
@@ -634,9 +666,9 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     res->diag.converged = res->converged;
     res->aic = 2.0 * (double)k - 2.0 * ll;
     res->bic = (double)k * log((double)m->n) - 2.0 * ll;
-    res->n_coef = k;
     res->coef = calloc(k, sizeof *res->coef);
     if (!res->coef) goto nomem;
+    res->n_coef = k; /* only now: bl_fit_result_clear walks n_coef entries */
     for (size_t j = 0; j < k; j++) {
         bl_coefficient *c = &res->coef[j];
         const bl_coef_info *ci = &m->coef[j];
@@ -1091,8 +1123,13 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
             if (!strcmp(set->models[b].name, r->extends)) break;
         if (b == n_sel) continue;
         int nested = units[q].n_units == units[b].n_units;
-        for (size_t i = 0; nested && i < units[q].n_units; i++)
+        for (size_t i = 0; nested > 0 && i < units[q].n_units; i++)
             nested = bl_model_nested_in(units[b].models[i], units[q].models[i]);
+        if (nested < 0) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking whether '%s' is nested in '%s'", r->name,
+                              r->extends);
+            goto fail;
+        }
         r->nested = nested && set->models[b].parameters < r->parameters;
     }
     if ((st = bl_compare_models(set, err))) goto fail;

@@ -1,27 +1,28 @@
-/* JSON parsing through cJSON with allocation failures told apart from syntax errors.
- * cJSON returns NULL for both; its allocator hooks (cJSON_InitHooks, process-wide) are pointed once at
- * malloc/free wrappers that raise a per-thread flag when an allocation fails. */
+/* JSON through cJSON with allocation failures made visible (see json.h). cJSON's allocator hooks
+ * (cJSON_InitHooks, process-wide) are pointed once, at start-up, at a malloc wrapper that counts
+ * failures. */
 #include "json.h"
 
-#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 
-static _Thread_local int json_alloc_failed;
-static pthread_once_t json_hooks_once = PTHREAD_ONCE_INIT;
+static unsigned long json_failures; /* updated atomically */
 
 static void *json_malloc(size_t n)
 {
     void *p = malloc(n);
-    if (!p) json_alloc_failed = 1;
+    if (!p) __atomic_add_fetch(&json_failures, 1, __ATOMIC_RELAXED);
     return p;
 }
 
-static void json_install_hooks(void)
+/* Before main: every cJSON document of the process is built with the counting allocator. */
+__attribute__((constructor)) static void json_install_hooks(void)
 {
     cJSON_Hooks hooks = {json_malloc, free};
     cJSON_InitHooks(&hooks);
 }
+
+unsigned long bl_json_alloc_failures(void) { return __atomic_load_n(&json_failures, __ATOMIC_RELAXED); }
 
 static void line_col(const char *text, const char *at, size_t *line, size_t *col)
 {
@@ -39,14 +40,13 @@ static void line_col(const char *text, const char *at, size_t *line, size_t *col
 
 bl_status bl_json_parse(const char *text, const char *name, cJSON **out, bl_error *err)
 {
-    pthread_once(&json_hooks_once, json_install_hooks);
-    json_alloc_failed = 0;
+    unsigned long failures_before = bl_json_alloc_failures();
     size_t len = strlen(text);
     const char *end = NULL;
     /* The length counts the NUL that require_null_terminated checks. */
     *out = cJSON_ParseWithLengthOpts(text, len + 1, &end, 1);
     if (*out) return BL_OK;
-    if (json_alloc_failed) return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory while reading the JSON", name);
+    if (bl_json_alloc_failures() != failures_before) return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory while reading the JSON", name);
     size_t line, col;
     const char *at = end ? end : text + len;
     line_col(text, at, &line, &col);

@@ -1,5 +1,7 @@
-/* Private: JSON parsing with messages that tell a syntax error (line:column, exit 2) from an
- * allocation failure (exit 1), which cJSON alone reports the same way (NULL). */
+/* Private: JSON through cJSON with allocation failures made visible. cJSON reports a failed
+ * allocation while parsing exactly like a syntax error (NULL), and the cJSON_Add* builders drop the
+ * item silently; its allocator hooks (installed once at start-up) count every failed allocation, so
+ * parsers tell the two apart and writers refuse to write a document that may be incomplete. */
 #ifndef BL_JSON_H
 #define BL_JSON_H
 
@@ -7,7 +9,12 @@
 
 #include <cjson/cJSON.h>
 
-/* Parse NUL-terminated `text`; `name` (a file name) is used in messages. */
+/* Parse NUL-terminated `text`; `name` (a file name) is used in messages: syntax errors give
+ * line:column (BL_ERR_INPUT), allocation failures BL_ERR_NOMEM. */
 bl_status bl_json_parse(const char *text, const char *name, cJSON **out, bl_error *err);
+
+/* Allocations that failed inside cJSON since the program started. Non-zero means a document built
+ * with cJSON may lack items: writers check it before writing (BL_ERR_NOMEM). */
+unsigned long bl_json_alloc_failures(void);
 
 #endif

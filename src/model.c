@@ -654,18 +654,26 @@ void bl_model_restore_slopes(bl_model *m)
 }
 
 /* Column space of a's design for parameter p inside b's? Least squares residual of every column of
- * X_a on X_b (LAPACKE dgels). */
+ * X_a on X_b (LAPACKE dgels). 1 yes, 0 no, -1 out of memory. */
 static int columns_inside(const bl_model *a, const bl_model *b, int p)
 {
     size_t ka, kb;
     double *Xa = param_matrix(a, p, &ka), *Xb = param_matrix(b, p, &kb);
     int inside = 0;
-    if (!Xa || !Xb || a->n != b->n || a->n < kb) goto done;
+    if (!Xa || !Xb) {
+        inside = -1;
+        goto done;
+    }
+    if (a->n != b->n || a->n < kb) goto done;
     double *B = malloc(a->n * ka * sizeof *B);
-    if (!B) goto done;
+    if (!B) {
+        inside = -1;
+        goto done;
+    }
     memcpy(B, Xa, a->n * ka * sizeof *B);
     lapack_int info = LAPACKE_dgels(LAPACK_ROW_MAJOR, 'N', (lapack_int)a->n, (lapack_int)kb, (lapack_int)ka, Xb,
                                     (lapack_int)kb, B, (lapack_int)ka);
+    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) inside = -1;
     if (info == 0) {
         inside = 1;
         for (size_t j = 0; j < ka; j++) {
@@ -698,7 +706,8 @@ int bl_model_nested_in(const bl_model *a, const bl_model *b)
             if (db->link == BL_LINK_LOG && !(da->fixed > 0)) return 0;
         } else {
             if (da->link != db->link) return 0;
-            if (!columns_inside(a, b, p)) return 0;
+            int inside = columns_inside(a, b, p);
+            if (inside <= 0) return inside;
         }
     }
     return 1;

@@ -75,8 +75,13 @@ bl_status bl_remove_tree(const char *path, bl_error *err)
 
 int bl_path_inside(const char *path, const char *folder)
 {
-    char *p = realpath(path, NULL), *f = realpath(folder, NULL);
-    int inside = 0;
+    errno = 0;
+    char *p = realpath(path, NULL);
+    int nomem = !p && errno == ENOMEM;
+    errno = 0;
+    char *f = realpath(folder, NULL);
+    nomem = nomem || (!f && errno == ENOMEM);
+    int inside = nomem ? -1 : 0;
     if (p && f) {
         size_t n = strlen(f);
         inside = strncmp(p, f, n) == 0 && (p[n] == '\0' || p[n] == '/' || (n == 1 && f[0] == '/'));
@@ -661,9 +666,13 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
             inputs[2] = rec_dir;
         }
         for (int i = 0; i < 3 && st == BL_OK; i++)
-            if (inputs[i] && bl_path_inside(inputs[i], target))
-                st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the study's inputs (%s); choose another "
-                                  "output folder", target, inputs[i]);
+            if (inputs[i]) {
+                int inside = bl_path_inside(inputs[i], target);
+                if (inside < 0) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory resolving %s", inputs[i]);
+                else if (inside)
+                    st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the study's inputs (%s); choose "
+                                      "another output folder", target, inputs[i]);
+            }
         free(rec_dir);
         if (st) goto done;
     }

@@ -3,6 +3,7 @@
 #include "bandlink/results.h"
 
 #include "bandlink/output.h"
+#include "json.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -181,7 +182,8 @@ bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const c
                                 const bl_warnings *warnings, bl_error *err)
 {
     cJSON *root = bl_results_fits_json(set, provenance, warnings);
-    char *text = root ? cJSON_Print(root) : NULL;
+    /* A failed allocation while building may have dropped an item: never write such a document. */
+    char *text = root && !bl_json_alloc_failures() ? cJSON_Print(root) : NULL;
     cJSON_Delete(root);
     if (!text) return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory building the JSON document", path);
     size_t n = strlen(text);

@@ -16,6 +16,7 @@
 #include "bandlink/output.h"
 #include "bandlink/pipeline.h"
 #include "bandlink/power.h"
+#include "json.h"
 #include "bandlink/study.h"
 #include "bandlink/trials.h"
 #include "bandlink/wiener.h"
@@ -1001,7 +1002,8 @@ static cJSON *study_json(const bl_scenario *sc)
 
 static bl_status write_json(cJSON *obj, const char *path, bl_error *err)
 {
-    char *s = obj ? cJSON_Print(obj) : NULL;
+    /* A failed allocation while building may have dropped an item: never write such a document. */
+    char *s = obj && !bl_json_alloc_failures() ? cJSON_Print(obj) : NULL;
     if (!s) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing %s", path);
     size_t n = strlen(s);
     char *t = malloc(n + 2);
@@ -1196,7 +1198,12 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         }
     }
 
-    if (bl_path_inside(sc->path, out_dir)) {
+    int inside = bl_path_inside(sc->path, out_dir);
+    if (inside < 0) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory resolving %s", sc->path);
+        goto done;
+    }
+    if (inside) {
         st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the scenario file %s; choose another output folder",
                           out_dir, sc->path);
         goto done;

@@ -908,7 +908,7 @@ char *bl_study_to_json(const bl_study *s)
         }
     }
     cJSON_AddStringToObject(root, "output", s->output);
-    char *txt = cJSON_Print(root);
+    char *txt = bl_json_alloc_failures() ? NULL : cJSON_Print(root);
     cJSON_Delete(root);
     if (!txt) return NULL;
     /* cJSON_Print allocates with its hooks (malloc by default); hand back a plain malloc'd copy */

@@ -171,8 +171,8 @@ BL_API bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drif
                                  double *nondecision, bl_error *err);
 
 /* Covariance from an observed information matrix (k x k, row-major, symmetric) by Cholesky
- * (LAPACKE dpotrf/dpotri). Returns 1 and fills cov when info is positive definite, else 0 (cov
- * undefined). cond receives the ratio of its largest to smallest eigenvalue (INFINITY when not
+ * (LAPACKE dpotrf/dpotri). Returns 1 and fills cov when info is positive definite, 0 when it is not,
+ * -1 when memory ran out (cov undefined unless 1). cond receives the ratio of its largest to smallest eigenvalue (INFINITY when not
  * positive, NAN when the eigenvalues fail). */
 BL_API int bl_information_inverse(const double *info, size_t k, double *cov, double *cond);
 

@@ -60,7 +60,8 @@ BL_API const char *bl_model_slope_regressor(const bl_model *m, int param, size_t
 /* Index of the intercept coefficient of `param` that used trial k falls in (param must be free). */
 BL_API size_t bl_model_intercept_index(const bl_model *m, int param, size_t k);
 /* 1 when model a is nested in model b: same trials, and for every parameter a's design spans a
- * subspace of b's on the same link (a fixed value counts as a constant b can take). */
+ * subspace of b's on the same link (a fixed value counts as a constant b can take); 0 when not;
+ * -1 when memory ran out. */
 BL_API int bl_model_nested_in(const bl_model *a, const bl_model *b);
 
 /* Predicted parameters of used trial k (drift already multiplied by the trial's stimulus sign, i.e.

@@ -24,7 +24,8 @@ BL_API bl_status bl_stage_commit(bl_stage *s, bl_error *err);
 /* Remove the temporary folder and free. NULL-safe. */
 BL_API void bl_stage_abort(bl_stage *s);
 /* 1 when the existing file or folder `path` is `folder` or lies inside it (symbolic links resolved);
- * 0 otherwise, or when either does not exist. Guards --force against replacing a folder holding inputs. */
+ * 0 otherwise, or when either does not exist; -1 when memory ran out. Guards --force against replacing a
+ * folder holding inputs. */
 BL_API int bl_path_inside(const char *path, const char *folder);
 /* Remove a folder tree (like rm -r). */
 BL_API bl_status bl_remove_tree(const char *path, bl_error *err);

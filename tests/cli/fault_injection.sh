@@ -23,7 +23,7 @@ out="$work/out"
 "$BANDLINK" power "$study" --out "$out" --quiet >/dev/null 2>&1 || bad "baseline power run"
 [ -f "$out/power.csv" ] && ok "baseline power.csv written" || bad "baseline power.csv missing"
 before=$(sha256sum "$out/power.csv" | cut -d' ' -f1)
-input_sums=$(cd "$work/study" && find . -type f | sort | xargs sha256sum)
+input_sums=$(cd "$work/study" && find . -type f -not -path './results-run/*' | sort | xargs sha256sum)
 
 # expect_failure NAME EXPECTED-EXIT-CODES COMMAND...: non-zero exit in the allowed set (never a signal),
 # one "bandlink: error:" line, earlier power.csv unchanged, no temporary file left behind.
@@ -63,7 +63,41 @@ else
     bad "could not count allocations ($total)"
 fi
 
-after_inputs=$(cd "$work/study" && find . -type f | sort | xargs sha256sum)
+# The whole pipeline: a failure at any point keeps the earlier results folder exactly as it was and
+# leaves no staging folder behind.
+res="$work/study/results-run"
+"$BANDLINK" run "$study" --out "$res" --quiet >/dev/null 2>&1 || bad "baseline run"
+res_sums() { (cd "$res" && find . -type f | sort | xargs sha256sum); }
+res_before=$(res_sums)
+expect_run_failure() {
+    local name="$1"
+    shift
+    local err="$work/stderr"
+    "$@" >/dev/null 2>"$err"
+    local rc=$?
+    [ "$rc" -eq 1 ] && ok "run, $name: exit 1" || bad "run, $name: exit $rc (want 1): $(head -3 "$err")"
+    grep -q '^bandlink: error: ' "$err" && ok "run, $name: one-line error" || bad "run, $name: no 'bandlink: error:' line: $(head -3 "$err")"
+    [ "$(res_sums)" = "$res_before" ] && ok "run, $name: earlier results folder intact" || bad "run, $name: earlier results changed"
+    local left
+    left=$(find "$work/study" -maxdepth 1 -name '.*partial*' | head -3)
+    [ -z "$left" ] && ok "run, $name: no staging folder left" || { bad "run, $name: staging left: $left"; rm -rf "$work"/study/.*partial*; }
+}
+# Count the calls of a run that replaces an existing folder (the path every case below takes).
+"$BANDLINK" run "$study" --out "$work/count-run" --quiet >/dev/null 2>&1
+counts=$(inject BL_FAULT_REPORT=1 "$BANDLINK" run "$study" --out "$work/count-run" --force --quiet 2>&1 >/dev/null)
+renames=$(echo "$counts" | sed -n 's/^bl_fault rename //p')
+run_mallocs=$(echo "$counts" | sed -n 's/^bl_fault malloc //p')
+for k in 1 $(( (renames + 1) / 2 )) "$renames"; do
+    expect_run_failure "rename $k of $renames fails" inject BL_FAULT=rename:$k "$BANDLINK" run "$study" --out "$res" --force --quiet
+done
+expect_run_failure "fsync fails" inject BL_FAULT=fsync:2 "$BANDLINK" run "$study" --out "$res" --force --quiet
+expect_run_failure "disk full (RLIMIT_FSIZE 4 KiB)" bash -c 'trap "" XFSZ; ulimit -f 4; exec "$@"' _ "$BANDLINK" run "$study" --out "$res" --force --quiet
+for k in $(seq 1 12); do
+    n=$(( (run_mallocs * k) / 13 + 1 ))
+    expect_run_failure "allocation $n of $run_mallocs fails" inject BL_FAULT=malloc:$n "$BANDLINK" run "$study" --out "$res" --force --quiet
+done
+
+after_inputs=$(cd "$work/study" && find . -type f -not -path './results-run/*' | sort | xargs sha256sum)
 [ "$after_inputs" = "$input_sums" ] && ok "inputs never modified" || bad "an input file changed"
 echo "$pass passed, $fail failed"
 [ "$fail" -eq 0 ]

@@ -5,7 +5,9 @@
  *   malloc   (malloc, calloc and realloc share one counter; returns NULL, errno ENOMEM)
  *   fopen    (returns NULL, errno EIO)
  *   write    (the write(2) wrapper used by libsndfile and by stdio flushes through fflush; errno ENOSPC)
- *   fsync    (errno EIO)   rename (errno EIO)   mkdir (errno EACCES)   read (errno EIO)
+ *   fsync    (errno EIO)   rename (rename and renameat2 share one counter; errno EIO)
+ *   mkdir    (errno EACCES)   read (errno EIO)
+ * BL_FAULT_TRACE=1 prints a backtrace where the failure is injected.
  * The real functions are found with dlsym(RTLD_NEXT). Counting starts only after this library's
  * constructor ran, so the dynamic loader's own allocations are not counted.
  */
@@ -14,6 +16,8 @@
 #define _GNU_SOURCE
 #endif
 #include <dlfcn.h>
+#include <execinfo.h>
+#include <fcntl.h>
 #include <errno.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -59,7 +63,14 @@ static int fault_now(int k)
     if (!fault_ready) return 0;
     long c = __atomic_add_fetch(&fault_calls[k], 1, __ATOMIC_RELAXED);
     if (fault_at[k] <= 0) return 0;
-    return fault_sticky ? c >= fault_at[k] : c == fault_at[k];
+    int fail = fault_sticky ? c >= fault_at[k] : c == fault_at[k];
+    if (fail && getenv("BL_FAULT_TRACE")) {
+        /* Where the injected failure hit (backtrace_symbols_fd does not allocate). */
+        void *frames[32];
+        int n = backtrace(frames, 32);
+        backtrace_symbols_fd(frames, n, 2);
+    }
+    return fail;
 }
 
 #define REAL(name) static __typeof__(&name) real_##name; if (!real_##name) real_##name = (__typeof__(&name))dlsym(RTLD_NEXT, #name)
@@ -179,6 +190,13 @@ int rename(const char *a, const char *b)
     REAL(rename);
     if (fault_now(F_RENAME)) { errno = EIO; return -1; }
     return real_rename(a, b);
+}
+
+int renameat2(int olddirfd, const char *a, int newdirfd, const char *b, unsigned int flags)
+{
+    REAL(renameat2);
+    if (fault_now(F_RENAME)) { errno = EIO; return -1; }
+    return real_renameat2(olddirfd, a, newdirfd, b, flags);
 }
 
 int mkdir(const char *path, mode_t mode)
