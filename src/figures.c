@@ -341,7 +341,7 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
             size_t ci;
             for (ci = 0; ci < n_leg; ci++)
                 if (strcmp(legend_labels[ci], g0->condition) == 0) break;
-            if (ci == n_leg && n_leg < 64 && (legend_labels[n_leg] = bl_strdup(g0->condition))) n_leg++;
+            if (ci == n_leg && n_leg < 64 && (legend_labels[n_leg] = xprintf("%s", g0->condition))) n_leg++;
             const char *color = bl_svg_color((int)ci);
             /* Trials of this condition: every bin's rows. */
             size_t n = 0;
@@ -468,7 +468,7 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
 static char *coef_label(const char *term, const char *level)
 {
     if (level && *level) return xprintf("%s [%s]", term, level);
-    return bl_strdup(term);
+    return xprintf("%s", term);
 }
 
 static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, char **caption)

@@ -531,6 +531,7 @@ static bl_status make_provenance(const bl_run_options *opt, const bl_study *stud
     cJSON *exo = cJSON_AddObjectToObject(tr, "excluded");
     if (!exo) goto nomem;
     size_t nex = bl_trials_exclusion_counts(trials, &ex);
+    if (nex == BL_EXCLUSION_COUNTS_NOMEM) goto nomem;
     for (size_t i = 0; i < nex; i++) cJSON_AddNumberToObject(exo, ex[i].reason, (double)ex[i].count);
     free(ex);
     free(sj);

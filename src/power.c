@@ -499,9 +499,10 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
                         (double)bl_next_fast_size(r->nperseg) / fs);
 
     /* frequency grid and bands */
-    r->n_bands = s->power.n_bands;
-    if (!(r->freq = malloc(r->n_freqs * sizeof *r->freq)) || !(r->bands = calloc(r->n_bands, sizeof *r->bands)))
+    if (!(r->freq = malloc(r->n_freqs * sizeof *r->freq)) ||
+        !(r->bands = calloc(s->power.n_bands ? s->power.n_bands : 1, sizeof *r->bands)))
         goto nomem;
+    r->n_bands = s->power.n_bands; /* only now: bl_power_result_destroy walks n_bands entries */
     for (size_t j = 0; j < r->n_freqs; j++) r->freq[j] = (double)j * r->df;
     double guard = fmax(2.0 * r->df, 2.0);
     for (size_t k = 0; k < r->n_bands; k++) {
@@ -781,7 +782,8 @@ char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_res
     sb_printf(&b, "\ntrials       %zu, kept %zu, excluded %zu\n", t->n, t->n_kept, t->n - t->n_kept);
     bl_exclusion_count *ec = NULL;
     size_t ne = bl_trials_exclusion_counts(t, &ec);
-    for (size_t k = 0; k < ne; k++) sb_printf(&b, "  excluded   %-40s %zu\n", ec[k].reason, ec[k].count);
+    if (ne == BL_EXCLUSION_COUNTS_NOMEM) b.failed = 1;
+    for (size_t k = 0; ec && k < ne; k++) sb_printf(&b, "  excluded   %-40s %zu\n", ec[k].reason, ec[k].count);
     free(ec);
     size_t n_up = 0, n_kept = 0;
     for (size_t i = 0; i < t->n; i++)

@@ -11,6 +11,10 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+
+/* Set when a section could not get the memory it needs: the page would silently lack it, so
+ * bl_report_write fails instead (per thread: a report is written on one thread). */
+static _Thread_local int report_text_lost;
 #include <time.h>
 
 static const char CAUTION[] =
@@ -179,6 +183,7 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
     if (t) {
         bl_exclusion_count *ex = NULL;
         size_t nex = bl_trials_exclusion_counts(t, &ex);
+        if (nex == BL_EXCLUSION_COUNTS_NOMEM) report_text_lost = 1;
         if (nex > 0 && ex) {
             fputs("<h3>Excluded trials by reason</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">reason</th><th>trials</th></tr>\n", f);
             for (size_t i = 0; i < nex; i++) {
@@ -193,6 +198,7 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
         free(ex);
         /* Trials per participant: kept / total. */
         size_t *tot = calloc(t->n_participants + 1, sizeof *tot), *kept = calloc(t->n_participants + 1, sizeof *kept);
+        if (!tot || !kept) report_text_lost = 1;
         if (tot && kept && t->participant) {
             for (size_t i = 0; i < t->n; i++) {
                 if (t->participant[i] >= t->n_participants) continue;
@@ -468,10 +474,14 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
                           const bl_power_result *power, const bl_fit_set *set, const bl_goodness *g,
                           const bl_figure_set *figs, const bl_warnings *warnings, bl_error *err)
 {
+    if (warnings && warnings->lost)
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory: %zu warnings could not be recorded", path,
+                            warnings->lost);
     bl_outfile *o;
     bl_status st = bl_outfile_open(path, &o, err);
     if (st != BL_OK) return st;
     FILE *f = bl_outfile_stream(o);
+    report_text_lost = 0;
     fputs("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
           "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
           "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; "
@@ -505,6 +515,10 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
           f);
     esc(f, CAUTION);
     fputs("</p>\n</body>\n</html>\n", f);
+    if (report_text_lost) {
+        bl_outfile_abort(o);
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory writing the report", path);
+    }
     return bl_outfile_commit(o, err);
 }
 

@@ -181,6 +181,9 @@ cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance, cons
 bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
                                 const bl_warnings *warnings, bl_error *err)
 {
+    if (warnings && warnings->lost)
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory: %zu warnings could not be recorded", path,
+                            warnings->lost);
     cJSON *root = bl_results_fits_json(set, provenance, warnings);
     /* A failed allocation while building may have dropped an item: never write such a document. */
     char *text = root && !bl_json_alloc_failures() ? cJSON_Print(root) : NULL;

@@ -735,7 +735,7 @@ bl_status bl_scenario_load(const char *path, bl_scenario **out, bl_error *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, BL_ERR_INPUT, "%s: cannot open the scenario: %s", path, strerror(errno));
+    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the scenario: %s", path, strerror(errno));
     size_t cap = 1 << 16, n = 0;
     char *buf = malloc(cap + 1);
     size_t k;

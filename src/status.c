@@ -1,6 +1,7 @@
 /* Status codes, error messages and warning lists. */
 #include "bandlink/status.h"
 
+#include <errno.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -36,6 +37,20 @@ int bl_status_exit_code(bl_status status)
     }
 }
 
+bl_status bl_status_from_errno(int error_number)
+{
+    switch (error_number) {
+    case ENOENT:
+    case EACCES:
+    case EISDIR:
+    case ENOTDIR:
+    case ENAMETOOLONG:
+    case ELOOP: return BL_ERR_INPUT;
+    case ENOMEM: return BL_ERR_NOMEM;
+    default: return BL_ERR_IO;
+    }
+}
+
 bl_status bl_error_setv(bl_error *err, bl_status status, const char *fmt, va_list ap)
 {
     if (err) {
@@ -63,7 +78,10 @@ void bl_warnings_add(bl_warnings *w, const char *fmt, ...)
     if (w->count == w->capacity) {
         size_t cap = w->capacity ? 2 * w->capacity : 8;
         char **items = realloc(w->items, cap * sizeof *items);
-        if (!items) return;
+        if (!items) {
+            w->lost++;
+            return;
+        }
         w->items = items;
         w->capacity = cap;
     }
@@ -73,7 +91,10 @@ void bl_warnings_add(bl_warnings *w, const char *fmt, ...)
     vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
     char *copy = malloc(strlen(buf) + 1);
-    if (!copy) return;
+    if (!copy) {
+        w->lost++;
+        return;
+    }
     strcpy(copy, buf);
     w->items[w->count++] = copy;
 }
@@ -84,5 +105,5 @@ void bl_warnings_clear(bl_warnings *w)
     for (size_t i = 0; i < w->count; i++) free(w->items[i]);
     free(w->items);
     w->items = NULL;
-    w->count = w->capacity = 0;
+    w->count = w->capacity = w->lost = 0;
 }

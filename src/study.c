@@ -774,7 +774,7 @@ bl_status bl_study_load(const char *path, bl_study **out, bl_error *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, BL_ERR_INPUT, "%s: cannot open the study file: %s", path, strerror(errno));
+    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the study file: %s", path, strerror(errno));
     char *buf = NULL;
     size_t len = 0, cap = 0;
     for (;;) {

@@ -5,12 +5,15 @@
  * (elements, escaping). Text widths are estimated as 0.6 x font size per character, the usual
  * average advance of sans-serif fonts, since no font metrics are available here.
  */
+#define _GNU_SOURCE 1 /* fopencookie */
 #include "bandlink/svg.h"
 
 #include "bandlink/output.h"
 
 #include <math.h>
 #include <stdint.h>
+#include <stdio.h>
+#include <sys/types.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -1022,28 +1025,54 @@ static void render_to(FILE *f, const bl_svg *fig)
     fputs("</svg>\n", f);
 }
 
+/* A growing memory buffer behind a FILE (fopencookie). Unlike open_memstream, whose glibc version drops
+ * text without setting the error flag when its buffer cannot grow, a failed growth is remembered here. */
+typedef struct {
+    char *buf;
+    size_t len, cap;
+    int failed;
+} render_buffer;
+
+static ssize_t render_buffer_write(void *cookie, const char *data, size_t n)
+{
+    render_buffer *b = cookie;
+    if (b->failed) return -1;
+    if (b->len + n + 1 > b->cap) {
+        size_t cap = b->cap ? b->cap : 4096;
+        while (cap < b->len + n + 1) cap *= 2;
+        char *nb = realloc(b->buf, cap);
+        if (!nb) {
+            b->failed = 1;
+            return -1;
+        }
+        b->buf = nb;
+        b->cap = cap;
+    }
+    memcpy(b->buf + b->len, data, n);
+    b->len += n;
+    b->buf[b->len] = '\0';
+    return (ssize_t)n;
+}
+
 bl_status bl_svg_render(const bl_svg *fig, char **out, size_t *size, bl_error *err)
 {
     *out = NULL;
     *size = 0;
     if (!fig) return bl_error_set(err, BL_ERR_INTERNAL, "svg: no figure to render");
     if (fig->nomem) return bl_error_set(err, BL_ERR_NOMEM, "out of memory while drawing figure '%s'", fig->id);
-    char *buf = NULL;
-    size_t len = 0;
-    FILE *f = open_memstream(&buf, &len);
+    render_buffer b = {NULL, 0, 0, 0};
+    cookie_io_functions_t io = {NULL, render_buffer_write, NULL, NULL};
+    FILE *f = fopencookie(&b, "w", io);
     if (!f) return bl_error_set(err, BL_ERR_NOMEM, "out of memory rendering figure '%s'", fig->id);
     render_to(f, fig);
-    if (ferror(f)) {
-        fclose(f);
-        free(buf);
+    int bad = ferror(f);
+    if (fclose(f) != 0) bad = 1;
+    if (bad || b.failed || !b.buf) {
+        free(b.buf);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory rendering figure '%s'", fig->id);
     }
-    if (fclose(f) != 0) {
-        free(buf);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory rendering figure '%s'", fig->id);
-    }
-    *out = buf;
-    *size = len;
+    *out = b.buf;
+    *size = b.len;
     return BL_OK;
 }
 

@@ -400,7 +400,7 @@ bl_status bl_table_read(const char *path, bl_table **out, bl_error *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, BL_ERR_INPUT, "%s: cannot open the table: %s", path, strerror(errno));
+    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the table: %s", path, strerror(errno));
     char *buf = NULL;
     size_t len = 0, cap = 0;
     for (;;) {

@@ -70,7 +70,7 @@ static int is_integer_pcm(int format)
 static bl_status read_csv_trace(bl_trace *t, bl_error *err)
 {
     FILE *f = fopen(t->path, "rb");
-    if (!f) return bl_error_set(err, BL_ERR_INPUT, "%s: cannot open the recording: %s", t->path, strerror(errno));
+    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the recording: %s", t->path, strerror(errno));
     bl_status st = BL_OK;
     char *line = NULL;
     size_t cap = 0, frames = 0, dcap = 0, lineno = 0;
@@ -175,11 +175,12 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
         /* A file that is missing, unreadable or not a recording is bad input (exit 2); anything else
          * (allocation, decoder set-up) is a failure while running (exit 1). */
         int code = sf_error(NULL), e = errno;
-        int bad_input = code == SF_ERR_UNRECOGNISED_FORMAT || code == SF_ERR_MALFORMED_FILE ||
-                        code == SF_ERR_UNSUPPORTED_ENCODING ||
-                        (code == SF_ERR_SYSTEM && (e == ENOENT || e == EACCES || e == ENOTDIR || e == EISDIR));
-        st = bl_error_set(err, bad_input ? BL_ERR_INPUT : BL_ERR_IO, "%s: cannot open the recording: %s", path,
-                          sf_strerror(NULL));
+        bl_status kind = code == SF_ERR_UNRECOGNISED_FORMAT || code == SF_ERR_MALFORMED_FILE ||
+                                 code == SF_ERR_UNSUPPORTED_ENCODING
+                             ? BL_ERR_INPUT
+                         : code == SF_ERR_SYSTEM ? bl_status_from_errno(e)
+                                                 : BL_ERR_IO;
+        st = bl_error_set(err, kind, "%s: cannot open the recording: %s", path, sf_strerror(NULL));
         goto fail;
     }
     if (si.samplerate <= 0 || si.channels <= 0) {

@@ -77,7 +77,7 @@ size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
             bl_exclusion_count *nc = realloc(c, (n + 1) * sizeof *nc);
             if (!nc) {
                 free(c);
-                return 0;
+                return BL_EXCLUSION_COUNTS_NOMEM;
             }
             c = nc;
             c[n].reason = r;

@@ -56,13 +56,20 @@ BL_API int bl_status_exit_code(bl_status status);
 BL_API bl_status bl_error_set(bl_error *err, bl_status status, const char *fmt, ...) BL_PRINTF(3, 4);
 BL_API bl_status bl_error_setv(bl_error *err, bl_status status, const char *fmt, va_list ap);
 
+/* Status for a failed attempt to open or read an input file, from its errno: the user's problem (a
+ * missing or unreadable path: BL_ERR_INPUT, exit 2) or the machine's (ENOMEM: BL_ERR_NOMEM, anything
+ * else: BL_ERR_IO, exit 1). */
+BL_API bl_status bl_status_from_errno(int error_number);
+
 /* Warnings collected during a run (shown by the CLI, written into fits.json and the report). */
 typedef struct {
     char **items;
     size_t count, capacity;
+    size_t lost;  /* warnings that could not be stored (out of memory): writers refuse to write then */
 } bl_warnings;
 
-/* Append a warning; silently ignores allocation failure (a lost warning must not fail a run). NULL-safe. */
+/* Append a warning. On allocation failure the warning is counted in `lost`, and the writers of
+ * fits.json and report.html fail rather than write an incomplete list. NULL-safe. */
 BL_API void bl_warnings_add(bl_warnings *w, const char *fmt, ...) BL_PRINTF(2, 3);
 BL_API void bl_warnings_clear(bl_warnings *w);
 

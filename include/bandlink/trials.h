@@ -32,7 +32,9 @@ BL_API void bl_trials_exclude(bl_trials *t, size_t i, const char *reason);
 BL_API void bl_trials_destroy(bl_trials *t);
 
 /* Exclusion reasons with their counts, in order of first appearance (caller frees the array;
- * the reason strings belong to the trials). Returns the number of distinct reasons. */
+ * the reason strings belong to the trials). Returns the number of distinct reasons, or
+ * BL_EXCLUSION_COUNTS_NOMEM (with *out NULL) when memory ran out. */
+#define BL_EXCLUSION_COUNTS_NOMEM ((size_t)-1)
 typedef struct {
     const char *reason;
     size_t count;

@@ -32,6 +32,7 @@ void cli_print_warnings(const bl_warnings *w)
 {
     if (cli_quiet || !w) return;
     for (size_t i = 0; i < w->count; i++) fprintf(stderr, "bandlink: warning: %s\n", w->items[i]);
+    if (w->lost) fprintf(stderr, "bandlink: warning: %zu further warnings were lost (out of memory)\n", w->lost);
 }
 
 void cli_progress(const char *fmt, ...)
