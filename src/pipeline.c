@@ -12,6 +12,7 @@
  */
 #define _GNU_SOURCE 1 /* renameat2, RENAME_EXCHANGE */
 #include "bandlink/pipeline.h"
+#include "json.h"
 
 #include "bandlink/figures.h"
 #include "bandlink/fit.h"
@@ -464,11 +465,8 @@ static bl_status make_provenance(const bl_run_options *opt, const bl_study *stud
     cJSON_AddNumberToObject(p, "seed", (double)seed);
     cJSON_AddNumberToObject(p, "threads", threads);
     cJSON_AddNumberToObject(p, "permutations", (double)opt->permutations);
-    cJSON *parsed = cJSON_Parse(sj);
-    if (!parsed) {
-        st = bl_error_set(err, BL_ERR_INTERNAL, "the parsed study does not print as valid JSON");
-        goto fail;
-    }
+    cJSON *parsed = NULL;
+    if ((st = bl_json_parse(sj, "the parsed study", &parsed, err))) goto fail;
     cJSON_AddItemToObject(p, "study", parsed);
 
     cJSON *inputs = cJSON_AddArrayToObject(p, "inputs");

@@ -701,20 +701,9 @@ bl_status bl_scenario_parse(const char *json, const char *name, bl_scenario **ou
 {
     *out = NULL;
     ctx c = {name ? name : "scenario", err};
-    const char *end = NULL;
-    cJSON *root = cJSON_ParseWithLengthOpts(json, strlen(json) + 1, &end, 1); /* length includes the NUL */
-    if (!root) {
-        size_t off = end ? (size_t)(end - json) : 0, line = 1, col = 1;
-        for (size_t i = 0; i < off; i++) {
-            if (json[i] == '\n') {
-                line++;
-                col = 1;
-            } else {
-                col++;
-            }
-        }
-        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: not valid JSON", c.file, line, col);
-    }
+    cJSON *root = NULL;
+    bl_status pst = bl_json_parse(json, c.file, &root, err);
+    if (pst) return pst;
     bl_scenario *sc = calloc(1, sizeof *sc);
     if (!sc) {
         cJSON_Delete(root);
