@@ -133,6 +133,29 @@ static void remove_stale(const char *parent, const char *name)
     closedir(d);
 }
 
+/* --force replaces only what bandlink wrote: an empty folder, or one holding a results file of run,
+ * power or simulate. Anything else (a thesis folder named by mistake) is never deleted. */
+static int replaceable_folder(const char *dir)
+{
+    static const char *const markers[] = {"fits.json", "power.csv", "truth.json"};
+    DIR *d = opendir(dir);
+    if (!d) return 0;
+    int empty = 1;
+    struct dirent *e;
+    while ((e = readdir(d)))
+        if (strcmp(e->d_name, ".") != 0 && strcmp(e->d_name, "..") != 0) empty = 0;
+    closedir(d);
+    if (empty) return 1;
+    for (size_t i = 0; i < sizeof markers / sizeof markers[0]; i++) {
+        char *p = bl_path_join(dir, markers[i]);
+        struct stat sb;
+        int found = p && stat(p, &sb) == 0 && S_ISREG(sb.st_mode);
+        free(p);
+        if (found) return 1;
+    }
+    return 0;
+}
+
 bl_status bl_stage_begin(const char *target_in, int force, bl_stage **out, bl_error *err)
 {
     *out = NULL;
@@ -164,6 +187,12 @@ bl_status bl_stage_begin(const char *target_in, int force, bl_stage **out, bl_er
         if (!force) {
             st = bl_error_set(err, BL_ERR_EXISTS, "the output folder %s already exists; use --force to replace it "
                               "(it is replaced only once the new results are complete)", target);
+            goto fail;
+        }
+        if (!replaceable_folder(target)) {
+            st = bl_error_set(err, BL_ERR_EXISTS, "the output folder %s holds files bandlink did not write (no fits.json, "
+                              "power.csv or truth.json); it is not replaced even with --force: choose another folder",
+                              target);
             goto fail;
         }
         s->replace = 1;
@@ -366,8 +395,8 @@ static char *make_summary(const bl_fit_set *set)
     size_t w = 5;
     for (size_t m = 0; m < set->n_models; m++)
         if (strlen(set->comparison[m].name) > w) w = strlen(set->comparison[m].name);
-    tb_printf(&b, "  %-*s %6s %7s %13s %12s %9s %12s %9s %7s  %s\n", (int)w, "model", "params", "trials",
-              "log_lik", "AIC", "dAIC", "BIC", "dBIC", "weight", "LRT vs extended model");
+    tb_printf(&b, "  %-*s %10s %7s %13s %12s %9s %12s %9s %7s %9s  %s\n", (int)w, "model", "parameters", "trials",
+              "log_lik", "AIC", "dAIC", "BIC", "dBIC", "weight", "converged", "LRT vs extended model");
     size_t best = 0;
     for (size_t m = 0; m < set->n_models; m++) {
         const bl_comparison_row *r = &set->comparison[m];
@@ -379,14 +408,16 @@ static char *make_summary(const bl_fit_set *set)
         fmt_num(bic, sizeof bic, r->bic, "%.2f");
         fmt_num(dbic, sizeof dbic, r->delta_bic, "%.2f");
         fmt_num(wt, sizeof wt, r->aic_weight, "%.3f");
-        if (r->lrt_nested == 1)
+        if (r->lrt_nested == 1 && !isfinite(r->lrt_p))
+            snprintf(lrt, sizeof lrt, "vs %s: not tested (a fit did not converge)", r->lrt_against);
+        else if (r->lrt_nested == 1)
             snprintf(lrt, sizeof lrt, "vs %s: chi2(%g) = %.2f, p = %.3g", r->lrt_against, r->lrt_df, r->lrt_statistic,
                      r->lrt_p);
         else if (r->lrt_nested == 0)
             snprintf(lrt, sizeof lrt, "vs %s: not nested", r->lrt_against ? r->lrt_against : "?");
         else snprintf(lrt, sizeof lrt, "-");
-        tb_printf(&b, "  %-*s %6zu %7zu %13s %12s %9s %12s %9s %7s  %s\n", (int)w, r->name, r->parameters, r->trials,
-                  ll, aic, daic, bic, dbic, wt, lrt);
+        tb_printf(&b, "  %-*s %10zu %7zu %13s %12s %9s %12s %9s %7s %9s  %s\n", (int)w, r->name, r->parameters,
+                  r->trials, ll, aic, daic, bic, dbic, wt, set->models[m].converged ? "yes" : "NO", lrt);
     }
     if (set->n_models == 0) return tb_take(&b);
     const bl_model_result *mr = &set->models[best];
@@ -403,7 +434,7 @@ static char *make_summary(const bl_fit_set *set)
         const bl_coefficient *c = &fr->coef[j];
         if (strcmp(c->term, "intercept") == 0) continue;
         char name[256], est[32], lo[32], hi[32], p[32], ci[80];
-        snprintf(name, sizeof name, "%s ~ %s%s%s%s", c->parameter, c->term, c->level[0] ? " [" : "", c->level,
+        snprintf(name, sizeof name, "%s: slope on %s%s%s%s", c->parameter, c->term, c->level[0] ? " [" : "", c->level,
                  c->level[0] ? "]" : "");
         fmt_num(est, sizeof est, c->estimate, "%.4f");
         fmt_num(lo, sizeof lo, c->ci_low, "%.4f");
@@ -417,7 +448,7 @@ static char *make_summary(const bl_fit_set *set)
     for (size_t k = 0; k < mr->n_permutation; k++) {
         const bl_permutation_test *pt = &mr->permutation[k];
         if (k == 0) tb_printf(&b, "Permutation tests (regressor shuffled, all levels of a slope at once):\n");
-        tb_printf(&b, "  %s ~ %s: 2 dLL = %.2f, p = %.4g (%zu of %zu refits reached it)\n", pt->parameter, pt->regressor,
+        tb_printf(&b, "  %s: slope on %s: 2 dLL = %.2f, p = %.4g (%zu of %zu refits reached it)\n", pt->parameter, pt->regressor,
                   pt->statistic, pt->p, pt->exceed, pt->permutations);
     }
     return tb_take(&b);

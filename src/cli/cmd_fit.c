@@ -48,18 +48,20 @@ static const char *fmt_num(char *buf, size_t n, double x, const char *f)
 static void print_summary(const bl_fit_set *set)
 {
     char b1[32], b2[32], b3[32], b4[32], b5[32];
-    printf("%-24s %6s %7s %14s %12s %9s %7s %s\n", "model", "coefs", "trials", "log_likelihood", "aic", "delta_aic",
+    printf("%-24s %10s %7s %14s %12s %9s %7s %s\n", "model", "parameters", "trials", "log_likelihood", "aic", "delta_aic",
            "weight", "converged");
     for (size_t i = 0; i < set->n_models; i++) {
         const bl_comparison_row *c = &set->comparison[i];
-        printf("%-24s %6zu %7zu %14s %12s %9s %7s %s\n", c->name, c->parameters, c->trials,
+        printf("%-24s %10zu %7zu %14s %12s %9s %7s %s\n", c->name, c->parameters, c->trials,
                fmt_num(b1, sizeof b1, c->log_likelihood, "%.3f"), fmt_num(b2, sizeof b2, c->aic, "%.2f"),
                fmt_num(b3, sizeof b3, c->delta_aic, "%.2f"), fmt_num(b4, sizeof b4, c->aic_weight, "%.3f"),
                set->models[i].converged ? "yes" : "NO");
     }
     for (size_t i = 0; i < set->n_models; i++) {
         const bl_comparison_row *c = &set->comparison[i];
-        if (c->lrt_nested == 1)
+        if (c->lrt_nested == 1 && !isfinite(c->lrt_p))
+            printf("likelihood-ratio test %s vs %s: not tested (a fit did not converge)\n", c->name, c->lrt_against);
+        else if (c->lrt_nested == 1)
             printf("likelihood-ratio test %s vs %s: chi2(%g) = %s, p = %s\n", c->name, c->lrt_against, c->lrt_df,
                    fmt_num(b1, sizeof b1, c->lrt_statistic, "%.3f"), fmt_num(b2, sizeof b2, c->lrt_p, "%.4g"));
         else if (c->lrt_nested == 0)
@@ -70,7 +72,7 @@ static void print_summary(const bl_fit_set *set)
         printf("\n%s%s\n", r->name,
                r->mode == BL_PARTICIPANTS_SEPARATE ? " (group: random-effects estimates across participants)" : "");
         printf("  %-12s %-14s %-16s %11s %10s %23s %10s\n", "parameter", "term", "level", "estimate", "se",
-               "95% interval", "p");
+               "95% CI", "p");
         for (size_t j = 0; j < r->fit.n_coef; j++) {
             const bl_coefficient *c = &r->fit.coef[j];
             char ci[64];

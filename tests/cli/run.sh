@@ -25,7 +25,7 @@ ls -a "$tmp" | grep -q partial && fail "a staging folder was left behind" || pas
 
 # Summary on stdout.
 grep -q "^Model comparison" "$tmp/out1" && grep -q "^Best model by AIC: " "$tmp/out1" \
-    && grep -q "threshold ~ theta \[rich\]" "$tmp/out1" && pass "summary: comparison table and best model's slopes" \
+    && grep -q "threshold: slope on theta \[rich\]" "$tmp/out1" && pass "summary: comparison table and best model's slopes" \
     || fail "summary: $(cat "$tmp/out1")"
 for s in power fits goodness figures report; do
     grep -Eq "^  $s +[0-9.]+ s +[0-9.]+%" "$tmp/out1" || fail "timings: no line for stage $s"
@@ -87,14 +87,14 @@ check(b["theta"]["frequencies"] == [4, 6, 8, 10] and b["beta"]["frequencies"] ==
 check(pv["trials"]["total"] == 720 and pv["trials"]["kept"] + sum(pv["trials"]["excluded"].values()) == 720,
       "provenance trial counts %s" % pv["trials"])
 
-# Recovery: the strong effect (threshold ~ theta in rich, true 0.35) inside its CI and away from 0; every
+# Recovery: the strong effect (threshold slope on theta in rich, true 0.35) inside its CI and away from 0; every
 # true coefficient within 4 SE of its estimate (a miss there has probability < 1e-4 per coefficient).
 truth = json.load(open(s + "/truth.json"))
 model = next(m for m in fits["models"] if m["name"] == truth["model"])
 est = {(c["parameter"], c["term"], c["level"]): c for c in model["coefficients"]}
 strong = est[("threshold", "theta", "rich")]
 check(strong["ci_low"] <= 0.35 <= strong["ci_high"] and strong["ci_low"] > 0,
-      "threshold ~ theta [rich]: true 0.35 inside [%.3f, %.3f], CI excludes 0" % (strong["ci_low"], strong["ci_high"]))
+      "threshold slope on theta [rich]: true 0.35 inside [%.3f, %.3f], CI excludes 0" % (strong["ci_low"], strong["ci_high"]))
 covered = 0
 for t in truth["coefficients"]:
     c = est.get((t["parameter"], t["term"], t["level"]))
@@ -198,6 +198,12 @@ fi
 "$BANDLINK" run "$tmp/nope.json" --out "$tmp/r9" 2>"$tmp/e"; rc=$?
 [ $rc -eq 2 ] && grep -q "nope.json" "$tmp/e" && [ ! -e "$tmp/r9" ] && pass "missing study: exit 2 naming it, nothing created" \
     || fail "missing study: rc $rc $(cat "$tmp/e")"
+
+# --force replaces only a folder bandlink wrote: a folder of someone's own files survives untouched.
+mkdir -p "$tmp/own" && echo "draft" >"$tmp/own/thesis.txt"
+"$BANDLINK" run "$tmp/study/study.json" --out "$tmp/own" --force --quiet 2>"$tmp/e"; rc=$?
+[ $rc -eq 2 ] && grep -q "not replaced even with --force" "$tmp/e" && [ "$(ls "$tmp/own")" = "thesis.txt" ] &&
+    pass "--force refuses a folder bandlink did not write (exit 2, its file kept)" || fail "--force on a foreign folder: rc $rc"
 
 echo "$fails failed"
 [ $fails -eq 0 ]
