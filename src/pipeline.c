@@ -326,7 +326,7 @@ static double now_seconds(void)
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
 }
 
-static void utc_stamp(char out[32])
+void bl_utc_stamp(char out[32])
 {
     struct timespec ts;
     clock_gettime(CLOCK_REALTIME, &ts);
@@ -482,9 +482,9 @@ static cJSON *input_entry(cJSON *arr, const char *role, const char *path, bl_err
 }
 
 /* The provenance record of fits.json (docs/outputs.md). */
-static bl_status make_provenance(const bl_run_options *opt, const bl_study *study, const bl_trials *trials,
-                                 const bl_power_result *pr, unsigned long seed, int threads, const char *started,
-                                 cJSON **out, bl_error *err)
+bl_status bl_provenance_create(const char *study_path, const bl_study *study, const bl_trials *trials,
+                               const bl_power_result *pr, unsigned long seed, int threads, unsigned long permutations,
+                               const char *started, cJSON **out, bl_error *err)
 {
     bl_status st = BL_OK;
     cJSON *p = cJSON_CreateObject();
@@ -495,14 +495,14 @@ static bl_status make_provenance(const bl_run_options *opt, const bl_study *stud
     cJSON_AddStringToObject(p, "started", started);
     cJSON_AddNumberToObject(p, "seed", (double)seed);
     cJSON_AddNumberToObject(p, "threads", threads);
-    cJSON_AddNumberToObject(p, "permutations", (double)opt->permutations);
+    cJSON_AddNumberToObject(p, "permutations", (double)permutations);
     cJSON *parsed = NULL;
     if ((st = bl_json_parse(sj, "the parsed study", &parsed, err))) goto fail;
     cJSON_AddItemToObject(p, "study", parsed);
 
     cJSON *inputs = cJSON_AddArrayToObject(p, "inputs");
     if (!inputs) goto nomem;
-    if (!input_entry(inputs, "study", opt->study_path, err, &st)) goto fail_or_nomem;
+    if (!input_entry(inputs, "study", study_path, err, &st)) goto fail_or_nomem;
     if (!input_entry(inputs, "trials", study->trials.file, err, &st)) goto fail_or_nomem;
     for (size_t r = 0; pr && r < pr->n_recordings; r++) {
         const bl_power_recording *rec = &pr->recordings[r];
@@ -613,7 +613,7 @@ static bl_status run_report_stages(const bl_run_options *opt, const bl_study *st
     say(opt, BL_STAGE_REPORT, "writing report.html", 0, 0);
     {
         char finished[32];
-        utc_stamp(finished);
+        bl_utc_stamp(finished);
         bl_report_job job = {0};
         job.version = BL_VERSION_STRING;
         job.study_path = opt->study_path;
@@ -656,7 +656,7 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
     memset(out, 0, sizeof *out);
     double t_all = now_seconds(), t = t_all;
     char started[32], finished[32];
-    utc_stamp(started);
+    bl_utc_stamp(started);
     unsigned long seed = opt->has_seed ? opt->seed : 1;
     int threads = opt->threads;
 #ifdef _OPENMP
@@ -752,10 +752,12 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
     /* Setup also covers hashing the inputs and writing fits.json (its provenance needs the end time). */
     t = now_seconds();
     say(opt, BL_STAGE_SETUP, "hashing the inputs, writing fits.json", 0, 0);
-    if ((st = make_provenance(opt, study, trials, pr, seed, threads, started, &prov, err))) goto done;
+    if ((st = bl_provenance_create(opt->study_path, study, trials, pr, seed, threads, opt->permutations, started, &prov,
+                                   err)))
+        goto done;
     out->stage_seconds[BL_STAGE_SETUP] += now_seconds() - t;
     out->total_seconds = now_seconds() - t_all;
-    utc_stamp(finished);
+    bl_utc_stamp(finished);
     cJSON_AddStringToObject(prov, "finished", finished);
     {
         cJSON *ss = cJSON_AddObjectToObject(prov, "stage_seconds");

@@ -5,7 +5,12 @@
 #ifndef BL_PIPELINE_H
 #define BL_PIPELINE_H
 
+#include "bandlink/power.h"
 #include "bandlink/status.h"
+#include "bandlink/study.h"
+#include "bandlink/trials.h"
+
+#include <cjson/cJSON.h>
 
 #include <stddef.h>
 
@@ -29,6 +34,17 @@ BL_API void bl_stage_abort(bl_stage *s);
 BL_API int bl_path_inside(const char *path, const char *folder);
 /* Remove a folder tree (like rm -r). */
 BL_API bl_status bl_remove_tree(const char *path, bl_error *err);
+
+
+/* The provenance record of fits.json (caller frees with cJSON_Delete): bandlink version, `started`
+ * (UTC, from bl_utc_stamp), seed, threads, permutations, the study as parsed, SHA-256 of the study file,
+ * the trial table and every recording `power` read (power may be NULL), Welch settings and the bins
+ * of each band, exclusion counts. Used by `run` and `fit` alike. */
+BL_API bl_status bl_provenance_create(const char *study_path, const bl_study *study, const bl_trials *trials,
+                                      const bl_power_result *power, unsigned long seed, int threads,
+                                      unsigned long permutations, const char *started, cJSON **out, bl_error *err);
+/* The current UTC time as "YYYY-MM-DDTHH:MM:SSZ". */
+BL_API void bl_utc_stamp(char out[32]);
 
 
 

@@ -5,6 +5,7 @@
 #include "commands.h"
 
 #include "bandlink/fit.h"
+#include "bandlink/pipeline.h"
 #include "bandlink/power.h"
 #include "bandlink/results.h"
 #include "bandlink/study.h"
@@ -163,6 +164,8 @@ int cmd_fit(int argc, char **argv)
         goto done;
     }
 
+    char started[32];
+    bl_utc_stamp(started);
     if (bl_study_load(study_path, &study, &err)) goto fail;
     if (bl_trials_load(study, &trials, &warn, &err)) goto fail;
     if (study->has_recordings && study->has_power && study->power.n_bands > 0) {
@@ -179,12 +182,12 @@ int cmd_fit(int argc, char **argv)
     opt.progress = progress;
     if (bl_fit_study(study, trials, &opt, &set, &warn, &err)) goto fail;
     cli_progress("%s", "");
-    prov = cJSON_CreateObject();
-    if (!prov || !cJSON_AddStringToObject(prov, "program", "bandlink") ||
-        !cJSON_AddStringToObject(prov, "version", BL_VERSION_STRING) ||
-        !cJSON_AddStringToObject(prov, "command", "fit") || !cJSON_AddStringToObject(prov, "study", study_path) ||
-        !cJSON_AddNumberToObject(prov, "seed", (double)seed) ||
-        !cJSON_AddNumberToObject(prov, "permutations", (double)perms)) {
+    /* The same provenance record as `bandlink run` (inputs hashed, Welch settings, exclusions). */
+    if (bl_provenance_create(study_path, study, trials, power, seed, opt.threads, perms, started, &prov, &err))
+        goto fail;
+    char finished[32];
+    bl_utc_stamp(finished);
+    if (!cJSON_AddStringToObject(prov, "command", "fit") || !cJSON_AddStringToObject(prov, "finished", finished)) {
         bl_error_set(&err, BL_ERR_NOMEM, "out of memory");
         goto fail;
     }
