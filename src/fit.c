@@ -569,6 +569,31 @@ void bl_fit_result_clear(bl_fit_result *res)
 
 /* Fit with an existing likelihood workspace. With infer == 0 only the maximum is found (used by
  * permutation refits). */
+/* The likelihood is zero at the start: name the first trial that makes it so, with its RT and the
+ * parameter values predicted for it, so the user can find a fixed value out of range or an RT the
+ * model cannot produce. */
+static bl_status explain_zero_likelihood(const bl_model *m, bl_likelihood *lik, const double *coef, bl_error *err)
+{
+    double *tll = malloc((m->n ? m->n : 1) * sizeof *tll);
+    if (!tll) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);
+    bl_likelihood_trials(lik, coef, tll);
+    size_t k = 0;
+    while (k < m->n && isfinite(tll[k])) k++;
+    free(tll);
+    if (k == m->n)
+        return bl_error_set(err, BL_ERR_MODEL, "model '%s': the likelihood is zero at the starting values", m->name);
+    bl_wiener_params p;
+    int valid = bl_model_predict(m, coef, k, &p);
+    bl_error why = {0};
+    if (!valid && bl_wiener_check(&p, &why) != BL_OK)
+        return bl_error_set(err, BL_ERR_MODEL, "model '%s': trial table row %zu: %s (check fixed values and links)", m->name,
+                            m->row[k] + 1, why.message);
+    return bl_error_set(err, BL_ERR_MODEL,
+                        "model '%s': trial table row %zu: an RT of %.6g s cannot be produced with nondecision %.6g s "
+                        "(and nondecision_range %.6g s); check fixed values, or leave such RTs out with trials.keep",
+                        m->name, m->row[k] + 1, m->rt[k], p.value[BL_NONDECISION], p.value[BL_NONDECISION_RANGE]);
+}
+
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                           const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
 {
@@ -593,10 +618,7 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         if (isfinite(ll)) memcpy(start, first, k * sizeof *start);
     }
     if (!isfinite(bl_likelihood_eval(lik, start, NULL))) {
-        st = bl_error_set(err, BL_ERR_MODEL,
-                          "model '%s': the likelihood is zero at the starting values (a fixed value out of range, or "
-                          "a trial's RT below the nondecision time)",
-                          m->name);
+        st = explain_zero_likelihood(m, lik, start, err);
         goto fail;
     }
     objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0};

@@ -72,6 +72,12 @@ copy_with_trials identical 'NR > 1 { $9 = 0.5 } { print }'
 run_case "identical RTs" 2 "identical" "$B" fit identical/study.json --out identical/out
 [ ! -e identical/out/fits.json ] && ok "identical RTs: no fits.json written" || bad "identical RTs: fits.json written"
 
+# 3b. A fixed nondecision time above the RTs: the likelihood is zero at the start; the message names the
+#     first trial that makes it so, its RT and the value.
+rm -rf fixed && cp -r base fixed
+sed -i 's/"models":\t\[{/"models":\t[{\n\t\t\t"nondecision": {"fixed": 5},/' fixed/study.json
+run_case "fixed nondecision above every RT" 2 "trial table row [0-9]+: an RT of .* nondecision 5 s" "$B" fit fixed/study.json --out fixed/out
+
 # 4. RTs below any plausible nondecision time and no rt_min rule: warning, and no NaN.
 copy_with_trials fast 'NR > 1 && NR % 10 == 0 { $9 = 0.02 } { print }'
 sed -i 's/"rt_min":[^,]*,//' fast/study.json
