@@ -741,12 +741,13 @@ bl_status bl_scenario_load(const char *path, bl_scenario **out, bl_error *err)
             cap *= 2;
         }
     }
-    int bad_read = ferror(f);
+    int bad_read = ferror(f), read_errno = errno;
     fclose(f);
     if (!buf) return bl_error_set(err, BL_ERR_NOMEM, "out of memory reading %s", path);
     if (bad_read) {
         free(buf);
-        return bl_error_set(err, BL_ERR_IO, "%s: read error", path);
+        return bl_error_set(err, bl_status_from_errno(read_errno), "%s: cannot read the scenario: %s", path,
+                            read_errno == EISDIR ? "it is a folder" : strerror(read_errno));
     }
     buf[n] = '\0';
     if (strlen(buf) != n) {

@@ -792,11 +792,12 @@ bl_status bl_study_load(const char *path, bl_study **out, bl_error *err)
         len += got;
         if (got < 4096) break;
     }
-    int rerr = ferror(f);
+    int rerr = ferror(f), rerrno = errno;
     fclose(f);
     if (rerr) {
         free(buf);
-        return bl_error_set(err, BL_ERR_IO, "%s: read error", path);
+        return bl_error_set(err, bl_status_from_errno(rerrno), "%s: cannot read the study file: %s", path,
+                            rerrno == EISDIR ? "it is a folder" : strerror(rerrno));
     }
     buf[len] = '\0';
     if (memchr(buf, '\0', len)) {

@@ -418,11 +418,12 @@ bl_status bl_table_read(const char *path, bl_table **out, bl_error *err)
         len += got;
         if (got < 65536) break;
     }
-    int rerr = ferror(f);
+    int rerr = ferror(f), rerrno = errno;
     fclose(f);
     if (rerr) {
         free(buf);
-        return bl_error_set(err, BL_ERR_IO, "%s: read error", path);
+        return bl_error_set(err, bl_status_from_errno(rerrno), "%s: cannot read the table: %s", path,
+                            rerrno == EISDIR ? "it is a folder" : strerror(rerrno));
     }
     bl_status st = bl_table_parse(buf ? buf : "", len, path, out, err);
     free(buf);

@@ -199,6 +199,9 @@ fi
 [ $rc -eq 2 ] && grep -q "nope.json" "$tmp/e" && [ ! -e "$tmp/r9" ] && pass "missing study: exit 2 naming it, nothing created" \
     || fail "missing study: rc $rc $(cat "$tmp/e")"
 
+"$BANDLINK" run "$tmp" --out "$tmp/r10" 2>"$tmp/e"; rc=$?
+[ $rc -eq 2 ] && grep -q "it is a folder" "$tmp/e" && pass "a folder given as the study file: exit 2" || fail "folder as study: rc $rc"
+
 # --force replaces only a folder bandlink wrote: a folder of someone's own files survives untouched.
 mkdir -p "$tmp/own" && echo "draft" >"$tmp/own/thesis.txt"
 "$BANDLINK" run "$tmp/study/study.json" --out "$tmp/own" --force --quiet 2>"$tmp/e"; rc=$?
