@@ -572,6 +572,12 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
         if ((st = get_num(c, pp, "participants", "count", 1, 0, 1, 1000, &count))) return st;
         if (count != floor(count)) return bad(c, "participants.count", "%g must be a whole number", count);
         if ((st = get_str(c, pp, "participants", "prefix", "p", &prefix))) return st;
+        /* The prefix becomes part of labels and file names: the same characters as labels are refused. */
+        if (strpbrk(prefix, ",\"\n\r\t:/\\{}")) {
+            st = bad(c, "participants.prefix", "'%s' contains one of , : / \\ { } a quote, tab or line break", prefix);
+            free(prefix);
+            return st;
+        }
         sc->participants = calloc((size_t)count, sizeof *sc->participants);
         if (!sc->participants) {
             free(prefix);

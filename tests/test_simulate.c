@@ -169,6 +169,7 @@ int main(void)
         expect_error(demo, "\"truth_model\": \"theta-and-beta\"", "\"truth_modl\": \"x\"", "study.truth_modl: unknown key");
         expect_error(demo, "\"prefix\": \"rat\"", "\"prefix\": \"rat\", \"labels\": [\"a\"]",
                      "participants: give either labels or count");
+        expect_error(demo, "\"prefix\": \"rat\"", "\"prefix\": \"rat/\"", "participants.prefix: 'rat/' contains one of");
         expect_error(demo, "{", "{,", "scenario.json:1:");
     }
     free(demo);
