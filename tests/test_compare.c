@@ -37,7 +37,8 @@ int main(void)
     bl_error err = {0};
     bl_warnings warn = {0};
 
-    /* Akaike weights of a hand example. */
+    /* Akaike weights of a hand example: w_i = exp(-dAIC_i/2) / sum_j exp(-dAIC_j/2) (Burnham & Anderson 2002,
+     * "Model Selection and Multimodel Inference", section 2.9; cited from memory). */
     const double aic[3] = {100, 102, 110};
     double w[3];
     bl_aic_weights(aic, 3, w);
@@ -86,6 +87,8 @@ int main(void)
     double best_aic = fmin(fmin(c[0].aic, c[1].aic), c[2].aic);
     double best_bic = fmin(fmin(c[0].bic, c[1].bic), c[2].bic);
     double wsum = 0;
+    /* The definitions: AIC = 2k - 2 ln L (Akaike 1974, IEEE Trans. Autom. Control 19:716-723);
+     * BIC = k ln n - 2 ln L (Schwarz 1978, Ann. Stat. 6:461-464), n = trials; differences to the smallest value. */
     for (int i = 0; i < 3; i++) {
         check_rel(c[i].aic, 2.0 * (double)c[i].parameters - 2 * c[i].log_likelihood, 1e-14, "%s: AIC = 2k - 2LL",
                   c[i].name);
