@@ -98,7 +98,8 @@ const char *cli_option_value(int argc, char **argv, int *i, const char *name, in
     if (strncmp(a, name, n) != 0) return NULL;
     if (a[n] == '=') return a + n + 1;
     if (a[n] != '\0') return NULL;
-    if (*i + 1 >= argc) {
+    /* "--out --quiet": the next word is another option, not this one's value. */
+    if (*i + 1 >= argc || strncmp(argv[*i + 1], "--", 2) == 0) {
         *missing = 1;
         return NULL;
     }

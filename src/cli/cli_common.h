@@ -32,7 +32,7 @@ int cli_parse_threads(const char *cmd, const char *value, int missing, unsigned 
 
 /* Take the value of an option of the form "--name VALUE" or "--name=VALUE" at argv[*i].
  * Returns the value (advancing *i past it) or NULL when argv[*i] is not that option.
- * Sets *missing when the option is present without a value. */
+ * Sets *missing when the option is present without a value (at the end, or followed by another "--" option). */
 const char *cli_option_value(int argc, char **argv, int *i, const char *name, int *missing);
 
 #endif
