@@ -124,6 +124,11 @@ int cmd_fit(int argc, char **argv)
                 code = cli_usage_error("fit", "option %s needs a value", a);
                 goto done;
             }
+            for (size_t q = 0; q < n_models; q++)
+                if (strcmp(models[q], v) == 0) {
+                    code = cli_usage_error("fit", "option --model: '%s' is given twice", v);
+                    goto done;
+                }
             models[n_models++] = v;
         } else if ((v = cli_option_value(argc, argv, &i, "--out", &missing)) || missing) {
             if (missing) {

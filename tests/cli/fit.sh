@@ -87,6 +87,10 @@ check "--model unknown: exit 2 naming it" "[ $? -eq 2 ] && grep -q \"no model 'n
 check "--threads x: exit 2" "[ $? -eq 2 ] && grep -q -- '--threads' e.txt"
 "$BANDLINK" fit --bogus study.json > /dev/null 2> e.txt
 check "unknown option: exit 2" "[ $? -eq 2 ] && grep -q -- '--bogus' e.txt"
+"$BANDLINK" fit study.json --model baseline --model baseline --out twice 2> e.txt
+check "a model named twice: exit 2" "[ $? -eq 2 ] && grep -q 'given twice' e.txt && [ ! -e twice ]"
+"$BANDLINK" fit study.json --out --quiet 2> e.txt
+check "an option where a value belongs: exit 2" "[ $? -eq 2 ] && grep -q 'needs a value' e.txt && [ ! -e ./--quiet ]"
 "$BANDLINK" fit > /dev/null 2> e.txt
 check "missing study: exit 2" "[ $? -eq 2 ]"
 "$BANDLINK" fit --help > h.txt
