@@ -130,6 +130,24 @@ static inline void spec_default(bl_model_spec *s, const char *name)
 /* Column lists are static string arrays in the tests. */
 static char *col_context[] __attribute__((unused)) = {"context"};
 static char *col_difficulty[] __attribute__((unused)) = {"difficulty"};
+
+/* The regression the fit tests, the coverage test and bench-fit share (9 coefficients): threshold per
+ * context with a theta slope per context, drift per difficulty with one shared beta slope. `slopes`
+ * (2 entries) holds the slope specs and must outlive `s`. */
+static inline void spec_regression(bl_model_spec *s, bl_slope_spec slopes[2], const char *name)
+{
+    spec_default(s, name);
+    slopes[0] = (bl_slope_spec){"theta", col_context, 1};
+    slopes[1] = (bl_slope_spec){"beta", NULL, 0};
+    s->param[BL_THRESHOLD].per = col_context;
+    s->param[BL_THRESHOLD].n_per = 1;
+    s->param[BL_THRESHOLD].slopes = &slopes[0];
+    s->param[BL_THRESHOLD].n_slopes = 1;
+    s->param[BL_DRIFT].per = col_difficulty;
+    s->param[BL_DRIFT].n_per = 1;
+    s->param[BL_DRIFT].slopes = &slopes[1];
+    s->param[BL_DRIFT].n_slopes = 1;
+}
 static char *col_participant[] __attribute__((unused)) = {"participant"};
 
 #endif

@@ -66,6 +66,25 @@ static inline int check_true(int cond, const char *fmt, ...)
     return cond != 0;
 }
 
+/* A whole file as a NUL-terminated string (caller frees); NULL when it cannot be read completely. */
+static inline char *harness_read_file(const char *path) __attribute__((unused));
+static inline char *harness_read_file(const char *path)
+{
+    FILE *f = fopen(path, "rb");
+    if (!f) return NULL;
+    fseek(f, 0, SEEK_END);
+    long n = ftell(f);
+    fseek(f, 0, SEEK_SET);
+    char *s = n >= 0 ? malloc((size_t)n + 1) : NULL;
+    if (s && fread(s, 1, (size_t)n, f) != (size_t)n) {
+        free(s);
+        s = NULL;
+    }
+    if (s) s[n] = '\0';
+    fclose(f);
+    return s;
+}
+
 /* Print the tally and return the process exit status. */
 static inline int harness_summary(void) __attribute__((unused));
 static inline int harness_summary(void)

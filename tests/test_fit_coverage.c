@@ -34,16 +34,8 @@ int main(int argc, char **argv)
                         .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28};
         bl_trials *t = sim_trials(&tr, 5000 + r);
         bl_model_spec s;
-        spec_default(&s, "coverage");
-        bl_slope_spec as = {"theta", col_context, 1}, vs = {"beta", NULL, 0};
-        s.param[BL_THRESHOLD].per = col_context;
-        s.param[BL_THRESHOLD].n_per = 1;
-        s.param[BL_THRESHOLD].slopes = &as;
-        s.param[BL_THRESHOLD].n_slopes = 1;
-        s.param[BL_DRIFT].per = col_difficulty;
-        s.param[BL_DRIFT].n_per = 1;
-        s.param[BL_DRIFT].slopes = &vs;
-        s.param[BL_DRIFT].n_slopes = 1;
+        bl_slope_spec slopes[2];
+        spec_regression(&s, slopes, "coverage");
         bl_model *m = NULL;
         if (bl_model_build(&s, t, NULL, &m, &err)) {
             check_true(0, "dataset %u: %s", r, err.message);

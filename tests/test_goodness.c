@@ -59,20 +59,6 @@ static bl_wiener_params mk(double a, double v, double t0, double w)
     return p;
 }
 
-static char *read_file(const char *path)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *b = malloc((size_t)n + 1);
-    if (b && fread(b, 1, (size_t)n, f) != (size_t)n) n = 0;
-    if (b) b[n] = 0;
-    fclose(f);
-    return b;
-}
-
 int main(void)
 {
     gsl_set_error_handler_off();
@@ -286,7 +272,7 @@ int main(void)
         bl_goodness *g2 = NULL;
         check_true(bl_goodness_compute(&st, &tr, &set, 2, &g2, &err) == BL_OK, "compute with 2 threads");
         if (g2) check_true(bl_goodness_write_csv(g2, p2path, &err) == BL_OK, "write csv (2 threads)");
-        char *a = read_file(p1path), *b = read_file(p2path);
+        char *a = harness_read_file(p1path), *b = harness_read_file(p2path);
         check_true(a && b && strcmp(a, b) == 0, "same bytes for 1 and 2 threads");
         if (a) {
             const char *hdr = "model,condition,regressor,bin,regressor_low,regressor_high,regressor_mean,boundary,trials,"

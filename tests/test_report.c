@@ -16,20 +16,6 @@ static size_t count(const char *hay, const char *needle)
     return n;
 }
 
-static char *read_file(const char *path)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *b = malloc((size_t)n + 1);
-    if (b && fread(b, 1, (size_t)n, f) != (size_t)n) n = 0;
-    if (b) b[n] = 0;
-    fclose(f);
-    return b;
-}
-
 static char *make(fixture *fx, const char *path, int with_power, const bl_warnings *w)
 {
     bl_error err = {0};
@@ -45,7 +31,7 @@ static char *make(fixture *fx, const char *path, int with_power, const bl_warnin
                          2, stages, secs};
     if (bl_report_write(path, &job, &fx->study, &fx->trials, with_power ? &fx->power : NULL, &fx->set, g, fs, w, &err) ==
         BL_OK)
-        out = read_file(path);
+        out = harness_read_file(path);
 done:
     check_true(out != NULL, "report written (%s)", err.message);
     bl_figure_set_destroy(fs);

@@ -50,23 +50,6 @@ static double spectral_slope(const double *x, size_t n, double fs, double f_lo, 
     return slope;
 }
 
-static char *read_file(const char *path)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *s = malloc((size_t)n + 1);
-    if (s && fread(s, 1, (size_t)n, f) != (size_t)n) {
-        free(s);
-        s = NULL;
-    }
-    if (s) s[n] = '\0';
-    fclose(f);
-    return s;
-}
-
 /* Replace the first occurrence of `from` by `to` (new string). */
 static char *replace(const char *s, const char *from, const char *to)
 {
@@ -147,7 +130,7 @@ int main(void)
         if (cut) snprintf(cut, sizeof path - (size_t)(cut - path), "demo/scenario.json");
         else snprintf(path, sizeof path, "demo/scenario.json");
     }
-    char *demo = read_file(path);
+    char *demo = harness_read_file(path);
     if (check_true(demo != NULL, "read %s", path)) {
         bl_scenario *sc = NULL;
         bl_status st = bl_scenario_parse(demo, path, &sc, &err);
