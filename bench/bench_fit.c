@@ -5,7 +5,7 @@
  * the permutation-test throughput.
  * usage: bench-fit [PERMUTATIONS (default 100)] */
 #include "../tests/fit_testutil.h"
-#include "bandlink/fit.h"
+#include "fit/fit.h"
 
 #include <gsl/gsl_errno.h>
 #include <math.h>

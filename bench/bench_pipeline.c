@@ -4,9 +4,9 @@
  * the time to read every input byte once (SHA-256 pass over the recordings; an I/O-bound reference).
  * Usage: bench-pipeline [--scenario PATH] [--threads N] [--repeat R]   (default: demo/scenario.json,
  * all cores, best of 1). Run from the source root or give --scenario. */
-#include "bandlink/pipeline.h"
-#include "bandlink/sha256.h"
-#include "bandlink/simulate.h"
+#include "analysis/pipeline.h"
+#include "core/sha256.h"
+#include "analysis/simulate.h"
 
 #include <gsl/gsl_errno.h>
 #include <dirent.h>

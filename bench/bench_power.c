@@ -9,11 +9,11 @@
  * (per trial, and vectorised over all trials at once), on the same files in the same run.
  * usage: bench-power SCIPY_SCRIPT [PARTICIPANTS TRIALS]
  */
-#include "bandlink/power.h"
-#include "bandlink/spectrum.h"
-#include "bandlink/trace.h"
-#include "bandlink/study.h"
-#include "bandlink/trials.h"
+#include "signal/power.h"
+#include "signal/spectrum.h"
+#include "signal/trace.h"
+#include "design/study.h"
+#include "design/trials.h"
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>

@@ -4,7 +4,7 @@
  *     mixture costs compared with solving each trial alone;
  *  2. figures + report.html vs the goodness of fit of the same invented data set (600 trials, 2 models).
  * Usage: bench-report [n]   (default n = 360, a demo-sized condition cell). */
-#include "bandlink/report.h"
+#include "report/report.h"
 #include "report_fixture.h"
 
 #include <gsl/gsl_errno.h>

@@ -4,6 +4,7 @@
  * usage: fit_make_trials OUT.csv N_PER_ANIMAL N_ANIMALS SEED [stimulus]
  * Columns: animal, trial, context, difficulty, theta, beta, rt, correct (accuracy coding) or, with
  * "stimulus", tone (high/low) and choice (high/low). */
+#include "engine/wiener_sample.h"
 #include "bandlink/wiener.h"
 
 #include <gsl/gsl_errno.h>

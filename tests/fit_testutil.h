@@ -3,10 +3,11 @@
 #ifndef BL_FIT_TESTUTIL_H
 #define BL_FIT_TESTUTIL_H
 
-#include "bandlink/model.h"
-#include "bandlink/study.h"
-#include "bandlink/table.h"
-#include "bandlink/trials.h"
+#include "engine/wiener_sample.h"
+#include "design/model.h"
+#include "design/study.h"
+#include "design/table.h"
+#include "design/trials.h"
 #include "bandlink/wiener.h"
 
 #include <gsl/gsl_randist.h>

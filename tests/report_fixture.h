@@ -4,10 +4,11 @@
 #ifndef BL_REPORT_FIXTURE_H
 #define BL_REPORT_FIXTURE_H
 
-#include "bandlink/fit.h"
-#include "bandlink/power.h"
-#include "bandlink/study.h"
-#include "bandlink/trials.h"
+#include "engine/wiener_sample.h"
+#include "fit/fit.h"
+#include "signal/power.h"
+#include "design/study.h"
+#include "design/trials.h"
 #include "bandlink/wiener.h"
 
 #include <gsl/gsl_randist.h>

@@ -3,10 +3,10 @@
  *   report_sample DIR [separate]
  * DIR/fit_quantiles.csv, the SVG files in DIR/figures, DIR/report.html, and DIR/sample_trials.csv (row, rt,
  * upper, context, theta, used) so the observed columns can be recomputed independently. */
-#include "bandlink/figures.h"
-#include "bandlink/goodness.h"
-#include "bandlink/output.h"
-#include "bandlink/report.h"
+#include "report/figures.h"
+#include "report/goodness.h"
+#include "core/output.h"
+#include "report/report.h"
 #include "report_fixture.h"
 
 #include <gsl/gsl_errno.h>

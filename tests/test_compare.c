@@ -7,8 +7,8 @@
  *    Biol. 9:39), reproducible for a seed and independent of the thread count;
  *  - fits.json keys, comparison.csv and trials.csv columns as in vocabulary.md; numbers read back
  *    exactly (%.17g); existing files kept unless forced. */
-#include "bandlink/fit.h"
-#include "bandlink/results.h"
+#include "fit/fit.h"
+#include "report/results.h"
 #include "fit_testutil.h"
 #include "harness.h"
 

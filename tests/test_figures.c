@@ -3,8 +3,8 @@
  * (tests/reference/report_reference.py). Checks of the EZ-diffusion bin estimates use the closed-form moments
  * of the Wiener first-passage time (Wagenmakers et al. 2007, eqs. 1-3: Pc, MRT and VRT for an
  * unbiased start) so that a bin generated from known parameters must return them. */
-#include "bandlink/figures.h"
-#include "bandlink/output.h"
+#include "report/figures.h"
+#include "core/output.h"
 #include "harness.h"
 #include "report_fixture.h"
 

@@ -8,7 +8,7 @@
  *    single-condition data agrees with the EZ estimates within sampling error;
  *  - separate mode: DerSimonian & Laird (1986, Controlled Clinical Trials 7:177-188) random-effects
  *    estimate recomputed here from the per-participant estimates; t-test p from gsl_cdf_tdist_Q. */
-#include "bandlink/fit.h"
+#include "fit/fit.h"
 #include "fit_testutil.h"
 #include "harness.h"
 

@@ -4,7 +4,7 @@
  * (limits from gsl_cdf_binomial_P), and the count over all coefficients inside the 99.9% range of
  * Binomial(2700, 0.95). Also the Wald test and the likelihood-ratio test (chi^2 with 1 df, Wilks 1938)
  * of true-zero slopes: rejection rates at 5% within the 99.9% range of Binomial(300, 0.05). */
-#include "bandlink/fit.h"
+#include "fit/fit.h"
 #include "fit_testutil.h"
 #include "harness.h"
 

@@ -4,7 +4,8 @@
  * the Wiener densities; the closed-form absorption probability of a Wiener process with drift
  * (Cox & Miller 1965, "The Theory of Stochastic Processes", section 5.7):
  *   P(upper) = (1 - exp(-2 v a w)) / (1 - exp(-2 v a)), s = 1. */
-#include "bandlink/goodness.h"
+#include "engine/wiener_sample.h"
+#include "report/goodness.h"
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>

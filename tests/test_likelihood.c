@@ -2,7 +2,7 @@
  * engine's per-trial log-densities with parameters computed here from the regression), analytic
  * gradient against central finite differences (numerics.md section 6.9; Nocedal & Wright 2006,
  * Numerical Optimization, section 8.1), invariance to the thread count, infeasible points. */
-#include "bandlink/model.h"
+#include "design/model.h"
 #include "fit_testutil.h"
 #include "harness.h"
 

@@ -2,7 +2,7 @@
  * rank deficiency (a column that is a linear combination of others makes X'X singular: Golub & Van
  * Loan 2013, Matrix Computations, section 5.5), nesting of designs, and permutation within cells
  * (Fisher-Yates keeps the multiset of values: Knuth, TAOCP vol. 2, 3.4.2). */
-#include "bandlink/model.h"
+#include "design/model.h"
 #include "fit_testutil.h"
 #include "harness.h"
 

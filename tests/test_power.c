@@ -1,10 +1,10 @@
 /* Band power end to end through the library: window convention, analytic band power of a bin-centred sine
  * behind a bipolar montage, scale and standardize, artifacts, line-noise bins, thread invariance, errors,
  * and power.csv. Analytic values: a sine of amplitude A has power A^2/2 (Parseval; Hann main lobe +-1 bin). */
-#include "bandlink/power.h"
-#include "bandlink/study.h"
-#include "bandlink/table.h"
-#include "bandlink/trials.h"
+#include "signal/power.h"
+#include "design/study.h"
+#include "design/table.h"
+#include "design/trials.h"
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>

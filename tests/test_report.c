@@ -2,7 +2,7 @@
  * numbers of the comparison and coefficient tables, escaping, the caution, determinism.
  * Rendering in a real browser engine is checked by tests/cli/report_chromium.sh; HTML structure by
  * python's html.parser in tests/reference/report_reference.py. */
-#include "bandlink/report.h"
+#include "report/report.h"
 #include "harness.h"
 #include "report_fixture.h"
 

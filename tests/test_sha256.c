@@ -2,7 +2,7 @@
  * intermediate values" for FIPS 180-4 (SHA256.pdf), plus splitting invariance of the streaming API.
  * The live comparison with python hashlib and coreutils sha256sum is tests/cli/sha256_live.sh,
  * which calls this program as `test_sha256 --file PATH` (prints the hex digest). */
-#include "bandlink/sha256.h"
+#include "core/sha256.h"
 #include "harness.h"
 
 #include <stdio.h>

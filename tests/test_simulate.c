@@ -3,8 +3,8 @@
  * Koenig 1995, Astron. Astrophys. 300:707), exact RMS, determinism; the scenario parser's strictness
  * (every error names the key path). The end-to-end study (files, truth on the measured regressor,
  * bipolar removal of the common mode) is tested from the CLI in tests/cli/simulate.sh. */
-#include "bandlink/simulate.h"
-#include "bandlink/spectrum.h"
+#include "analysis/simulate.h"
+#include "signal/spectrum.h"
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>

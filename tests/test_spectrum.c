@@ -1,5 +1,5 @@
 /* Welch PSD and band power: scipy.signal.welch fixtures, analytic signals, Parseval, helpers. */
-#include "bandlink/spectrum.h"
+#include "signal/spectrum.h"
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>

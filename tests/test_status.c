@@ -1,5 +1,5 @@
 /* Every status code has its own text and exit code (the libsndfile tests/error_test.c idea). */
-#include "bandlink/output.h"
+#include "core/output.h"
 #include "bandlink/status.h"
 #include "harness.h"
 

@@ -1,6 +1,6 @@
 /* Study file: every section parsed, defaults filled, extends resolved, and each bad input an error naming
  * the key path and value (contract: docs/study-file.md; JSON syntax per RFC 8259). */
-#include "bandlink/study.h"
+#include "design/study.h"
 #include "harness.h"
 
 #include <stdlib.h>

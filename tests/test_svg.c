@@ -1,6 +1,6 @@
 /* SVG plotting layer: nice ticks, palette, escaping, element counts, determinism.
  * Well-formedness against an XML 1.0 parser is checked by tests/report_xml_check.py (python). */
-#include "bandlink/svg.h"
+#include "report/svg.h"
 #include "harness.h"
 
 #include <stdlib.h>

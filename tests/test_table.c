@@ -2,7 +2,7 @@
  * naming file:line:column. Sources: RFC 4180 (2005) "Common Format and MIME Type for CSV Files"; BIDS
  * specification 1.9, "Common principles: tabular files" and "Task events" (onset, duration, trial_type,
  * response_time; n/a for missing). */
-#include "bandlink/table.h"
+#include "design/table.h"
 #include "harness.h"
 
 #include <string.h>

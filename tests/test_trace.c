@@ -1,6 +1,6 @@
 /* Recordings: libsndfile round trips (WAV float / 16 / 24-bit, FLAC 16 / 24-bit), windows read by seeking,
  * CSV traces, montages (bipolar, averaged), {column} patterns, and bad-input errors. */
-#include "bandlink/trace.h"
+#include "signal/trace.h"
 #include "harness.h"
 
 #include <sndfile.h>

@@ -1,7 +1,7 @@
 /* Trial coding: RT units, accuracy and stimulus coding, keep rules as counted exclusion reasons, trial labels,
  * and bad-input errors naming file, line and column (contract: docs/study-file.md, "trials"). */
-#include "bandlink/study.h"
-#include "bandlink/trials.h"
+#include "design/study.h"
+#include "design/trials.h"
 #include "harness.h"
 
 #include <stdlib.h>

@@ -4,7 +4,7 @@
  * at 40 digits from two independent series (Navarro & Fuss 2009 small- and large-time forms);
  * tests/reference/wiener_mpmath.py recomputes a subset live. */
 #include "bandlink/wiener.h"
-#include "../src/wiener_internal.h" /* blw_sincospi */
+#include "engine/wiener_internal.h" /* blw_sincospi */
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>

@@ -5,6 +5,7 @@
  * G(x) = P_lo - F_lo(-x) (x < 0), P_lo + F_up(x) (x >= 0) (numerics notes, section 5).
  * KS p-value: Kolmogorov limiting distribution with Stephens' (1970, J. R. Stat. Soc. B 32:115-122)
  * small-sample correction lambda = (sqrt(n) + 0.12 + 0.11/sqrt(n)) D. */
+#include "engine/wiener_sample.h"
 #include "bandlink/wiener.h"
 #include "harness.h"
 

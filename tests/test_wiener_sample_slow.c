@@ -3,6 +3,7 @@
  * upper-boundary share must match the closed form (binomial z-test). A sampler with a small bias
  * passes single tests but shifts this p-value distribution toward 0.
  * KS p-value: Kolmogorov limiting distribution with Stephens' (1970) correction. */
+#include "engine/wiener_sample.h"
 #include "bandlink/wiener.h"
 #include "harness.h"
 

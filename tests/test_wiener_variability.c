@@ -3,7 +3,7 @@
  * (gsl_integration_qags/qagi) applied to the plain density; the uniform-mixture contaminant model of
  * Ratcliff & Tuerlinckx (2002, Psychon. Bull. Rev. 9:438-481); central finite differences. */
 #include "bandlink/wiener.h"
-#include "../src/wiener_internal.h" /* the node-count rule, to check it against 2n */
+#include "engine/wiener_internal.h" /* the node-count rule, to check it against 2n */
 #include "harness.h"
 
 #include <gsl/gsl_errno.h>

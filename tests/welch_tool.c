@@ -1,6 +1,6 @@
 /* Test helper for the live scipy comparison: PSD of a raw float64 file.
  * usage: welch_tool IN.f64 FS NPERSEG NOVERLAP NFFT constant|linear|none mean|median density|spectrum OUT.f64 */
-#include "bandlink/spectrum.h"
+#include "signal/spectrum.h"
 
 #include <gsl/gsl_errno.h>
 #include <stdio.h>

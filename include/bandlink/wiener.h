@@ -15,7 +15,6 @@
 
 #include "bandlink/status.h"
 
-#include <gsl/gsl_rng.h>
 
 /* Parameter indices, in the order used by every array of parameters or gradients. */
 typedef enum {
@@ -83,11 +82,5 @@ BL_API bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double 
  * cdf(rt)/P(boundary) = prob, prob in (0, 1). BL_ERR_NUMERIC when the boundary has probability ~0. */
 BL_API bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, double *rt,
                                     bl_error *err);
-
-/* Draw one (response, rt) pair by inverting the CDF (exact up to the solver's ~1e-13 in log time);
- * variability parameters are drawn per call, contaminants uniform on [contamination_lo, hi] with a fair
- * response. Deterministic for a given rng state. */
-BL_API bl_status bl_wiener_sample(const bl_wiener_params *p, gsl_rng *rng, int *upper, double *rt,
-                                  bl_error *err);
 
 #endif

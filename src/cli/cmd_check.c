@@ -1,8 +1,8 @@
 /* bandlink check STUDY.json: validate the study, the trial table and every recording window (band power
  * is computed but not written); print a summary on stdout and warnings on stderr. */
-#include "bandlink/power.h"
-#include "bandlink/study.h"
-#include "bandlink/trials.h"
+#include "signal/power.h"
+#include "design/study.h"
+#include "design/trials.h"
 #include "cli_common.h"
 #include "commands.h"
 

@@ -4,12 +4,12 @@
 #include "cli_common.h"
 #include "commands.h"
 
-#include "bandlink/fit.h"
-#include "bandlink/pipeline.h"
-#include "bandlink/power.h"
-#include "bandlink/results.h"
-#include "bandlink/study.h"
-#include "bandlink/trials.h"
+#include "fit/fit.h"
+#include "analysis/pipeline.h"
+#include "signal/power.h"
+#include "report/results.h"
+#include "design/study.h"
+#include "design/trials.h"
 
 #include <cjson/cJSON.h>
 #include <math.h>

@@ -1,8 +1,8 @@
 /* bandlink power STUDY.json [--out DIR] [--force] [--threads N]: band power per trial -> power.csv. */
-#include "bandlink/output.h"
-#include "bandlink/power.h"
-#include "bandlink/study.h"
-#include "bandlink/trials.h"
+#include "core/output.h"
+#include "signal/power.h"
+#include "design/study.h"
+#include "design/trials.h"
 #include "cli_common.h"
 #include "commands.h"
 

@@ -1,5 +1,5 @@
 /* bandlink run STUDY.json [--out DIR] [--threads N] [--seed S] [--permutations N] [--force] [--timings] [--quiet] */
-#include "bandlink/pipeline.h"
+#include "analysis/pipeline.h"
 #include "cli_common.h"
 #include "commands.h"
 

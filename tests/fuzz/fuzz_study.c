@@ -1,5 +1,5 @@
 /* Fuzz target: the study-file parser must return a status for any bytes, never crash. */
-#include "bandlink/study.h"
+#include "design/study.h"
 
 #include <stdint.h>
 #include <stdlib.h>

@@ -1,5 +1,5 @@
 /* Fuzz target: the CSV/TSV trial-table parser must return a status for any bytes, never crash. */
-#include "bandlink/table.h"
+#include "design/table.h"
 
 #include <stddef.h>
 #include <stdint.h>

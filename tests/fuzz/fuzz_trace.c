@@ -1,7 +1,7 @@
 /* Fuzz target: the recording reader (libsndfile formats and CSV traces) must return a status for any
  * bytes, never crash. The input is written to a file in /dev/shm (memory-backed); the first byte picks
  * the reader: even = sound file (format detected from content), odd = CSV trace. */
-#include "bandlink/trace.h"
+#include "signal/trace.h"
 
 #include <stdint.h>
 #include <stdio.h>

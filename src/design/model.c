@@ -1,0 +1,764 @@
+/* Model designs: per-parameter intercepts per level combination, slopes per regressor (shared or per
+ * level combination), fixed values and links, compiled once against the trials that are fitted.
+ * Rank deficiency is found from the singular values of the column-normalised design of each parameter
+ * (LAPACKE dgesvd); the right singular vector of the smallest singular value names the coefficients
+ * involved (Golub & Van Loan, Matrix Computations, 4th ed., 2013, sections 2.4 and 5.5).
+ */
+#include "design/model_internal.h"
+#include "core/strutil.h"
+
+#include <lapacke.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* A design whose normalised columns have condition number above this is treated as rank-deficient:
+ * exact collinearity gives ~1e15-1e16, while real designs with centred or standardised regressors
+ * stay far below. */
+#define BL_MODEL_MAX_CONDITION 1e9
+
+static void free_strv(char **v, size_t n)
+{
+    if (!v) return;
+    for (size_t i = 0; i < n; i++) free(v[i]);
+    free(v);
+}
+
+static char **dup_strv(char *const *v, size_t n)
+{
+    char **c = calloc(n ? n : 1, sizeof *c);
+    if (!c) return NULL;
+    for (size_t i = 0; i < n; i++)
+        if (!(c[i] = bl_strdup(v[i]))) {
+            free_strv(c, n);
+            return NULL;
+        }
+    return c;
+}
+
+int bl_model_params_valid(const bl_wiener_params *p)
+{
+    const double *v = p->value;
+    for (int i = 0; i < BL_NPARAM; i++)
+        if (!isfinite(v[i])) return 0;
+    if (!(v[BL_THRESHOLD] > 0)) return 0;
+    if (!(v[BL_START] > 0 && v[BL_START] < 1)) return 0;
+    if (!(v[BL_NONDECISION] >= 0)) return 0;
+    if (!(v[BL_DRIFT_SD] >= 0)) return 0;
+    if (!(v[BL_START_RANGE] >= 0 && v[BL_START_RANGE] < 1)) return 0;
+    if (v[BL_START_RANGE] > 0 &&
+        !(v[BL_START] - v[BL_START_RANGE] / 2 > 0 && v[BL_START] + v[BL_START_RANGE] / 2 < 1))
+        return 0;
+    if (!(v[BL_NONDECISION_RANGE] >= 0)) return 0;
+    if (!(v[BL_NONDECISION] - v[BL_NONDECISION_RANGE] / 2 >= 0)) return 0;
+    if (!(v[BL_CONTAMINATION] >= 0 && v[BL_CONTAMINATION] < 1)) return 0;
+    return 1;
+}
+
+static void param_design_free(bl_param_design *d)
+{
+    free_strv(d->per, d->n_per);
+    free(d->level);
+    for (size_t s = 0; s < d->n_slopes; s++) {
+        bl_slope_design *sl = &d->slopes[s];
+        free(sl->regressor);
+        free_strv(sl->by, sl->n_by);
+        free(sl->level);
+        free(sl->x);
+        free(sl->x_orig);
+    }
+    free(d->slopes);
+    memset(d, 0, sizeof *d);
+}
+
+void bl_model_destroy(bl_model *m)
+{
+    if (!m) return;
+    free(m->name);
+    free(m->row);
+    free(m->rt);
+    free(m->upper);
+    free(m->sign);
+    free(m->participant);
+    for (int p = 0; p < BL_NPARAM; p++) param_design_free(&m->par[p]);
+    free_strv(m->level_text, m->n_coef);
+    free(m->coef);
+    free(m);
+}
+
+/* Level combinations of `cols` over the used trials: level index per trial, and the names
+ * ("v1:v2") in order of first appearance. On error names model, parameter and column. */
+static bl_status make_levels(const bl_model *m, const bl_trials *trials, char *const *cols, size_t n_cols,
+                             const char *param, size_t **level_out, char ***names_out, size_t *n_out,
+                             bl_error *err)
+{
+    const bl_table *t = trials->table;
+    int *ci = calloc(n_cols ? n_cols : 1, sizeof *ci);
+    size_t *level = calloc(m->n ? m->n : 1, sizeof *level);
+    char **names = NULL;
+    size_t n_names = 0, cap = 0;
+    char *key = NULL;
+    size_t key_cap = 256;
+    bl_status st = BL_ERR_NOMEM;
+    key = malloc(key_cap);
+    if (!ci || !level || !key) goto fail;
+    for (size_t c = 0; c < n_cols; c++) {
+        ci[c] = bl_table_find(t, cols[c]);
+        if (ci[c] < 0) {
+            st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': unknown column '%s' in the trial table",
+                              m->name, param, cols[c]);
+            goto fail;
+        }
+    }
+    for (size_t k = 0; k < m->n; k++) {
+        size_t row = m->row[k], len = 0;
+        key[0] = '\0';
+        for (size_t c = 0; c < n_cols; c++) {
+            const char *v = t->cols[ci[c]].text[row];
+            if (!v) {
+                st = bl_error_set(err, BL_ERR_MODEL,
+                                  "model '%s': parameter '%s': column '%s' is missing on trial %s of participant '%s'",
+                                  m->name, param, cols[c], trials->trial_label ? trials->trial_label[row] : "?",
+                                  trials->participants ? trials->participants[trials->participant[row]] : "?");
+                goto fail;
+            }
+            size_t vl = strlen(v);
+            if (len + vl + 2 > key_cap) {
+                key_cap = 2 * (len + vl + 2);
+                char *nk = realloc(key, key_cap);
+                if (!nk) goto fail;
+                key = nk;
+            }
+            if (c) key[len++] = ':';
+            memcpy(key + len, v, vl + 1);
+            len += vl;
+        }
+        size_t l = 0;
+        /* Searching from the last level found keeps sorted trial tables fast. */
+        if (k > 0 && strcmp(names[level[k - 1]], key) == 0) l = level[k - 1];
+        else {
+            for (l = 0; l < n_names; l++)
+                if (strcmp(names[l], key) == 0) break;
+        }
+        if (l == n_names) {
+            if (n_names == cap) {
+                cap = cap ? 2 * cap : 8;
+                char **nn = realloc(names, cap * sizeof *nn);
+                if (!nn) goto fail;
+                names = nn;
+            }
+            if (!(names[n_names] = bl_strdup(key))) goto fail;
+            n_names++;
+        }
+        level[k] = l;
+    }
+    free(ci);
+    free(key);
+    *level_out = level;
+    *names_out = names;
+    *n_out = n_names;
+    return BL_OK;
+fail:
+    if (st == BL_ERR_NOMEM) bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", m->name);
+    free(ci);
+    free(key);
+    free(level);
+    free_strv(names, n_names);
+    return st;
+}
+
+/* Dense design of one free parameter (n x k, row-major). Caller frees. */
+static double *param_matrix(const bl_model *m, int p, size_t *k_out)
+{
+    const bl_param_design *d = &m->par[p];
+    size_t k = d->n_levels;
+    for (size_t s = 0; s < d->n_slopes; s++) k += d->slopes[s].n_levels;
+    double *X = calloc((m->n * k) > 0 ? m->n * k : 1, sizeof *X);
+    if (!X) return NULL;
+    for (size_t i = 0; i < m->n; i++) {
+        X[i * k + d->level[i]] = 1.0;
+        size_t off = d->n_levels;
+        for (size_t s = 0; s < d->n_slopes; s++) {
+            const bl_slope_design *sl = &d->slopes[s];
+            X[i * k + off + sl->level[i]] = sl->x_orig[i];
+            off += sl->n_levels;
+        }
+    }
+    *k_out = k;
+    return X;
+}
+
+static void coef_label(const bl_model *m, size_t j, char *buf, size_t n)
+{
+    const bl_coef_info *c = &m->coef[j];
+    if (c->slope < 0)
+        snprintf(buf, n, "intercept%s%s%s", c->level[0] ? " at level '" : "", c->level, c->level[0] ? "'" : "");
+    else
+        snprintf(buf, n, "slope '%s'%s%s%s", c->term, c->level[0] ? " at level '" : "", c->level,
+                 c->level[0] ? "'" : "");
+}
+
+/* Full column rank check of one parameter's design. */
+static bl_status check_rank(const bl_model *m, int p, bl_error *err)
+{
+    const bl_param_design *d = &m->par[p];
+    const char *pname = bl_param_name(p);
+    size_t k;
+    double *X = param_matrix(m, p, &k);
+    double *s = NULL, *vt = NULL, *superb = NULL;
+    bl_status st = BL_OK;
+    if (!X) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory checking the design", m->name);
+    /* Zero columns first: the clearest message. */
+    for (size_t j = 0; j < k; j++) {
+        double ss = 0;
+        for (size_t i = 0; i < m->n; i++) ss += X[i * k + j] * X[i * k + j];
+        if (!(ss > 0)) {
+            char lab[512];
+            coef_label(m, d->first_coef + j, lab, sizeof lab);
+            st = bl_error_set(err, BL_ERR_MODEL,
+                              "model '%s': parameter '%s': %s cannot be estimated: its regressor is 0 on every "
+                              "trial there (rank-deficient design)",
+                              m->name, pname, lab);
+            goto done;
+        }
+        double inv = 1.0 / sqrt(ss);
+        for (size_t i = 0; i < m->n; i++) X[i * k + j] *= inv;
+    }
+    if (m->n < k) {
+        st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': %zu coefficients but only %zu trials",
+                          m->name, pname, k, m->n);
+        goto done;
+    }
+    s = malloc(k * sizeof *s);
+    vt = malloc(k * k * sizeof *vt);
+    superb = malloc((k > 1 ? k : 2) * sizeof *superb);
+    if (!s || !vt || !superb) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory checking the design", m->name);
+        goto done;
+    }
+    lapack_int info = LAPACKE_dgesvd(LAPACK_ROW_MAJOR, 'N', 'A', (lapack_int)m->n, (lapack_int)k, X,
+                                     (lapack_int)k, s, NULL, 1, vt, (lapack_int)k, superb);
+    if (info != 0) {
+        st = bl_error_set(err, BL_ERR_NUMERIC, "model '%s': parameter '%s': SVD of the design failed (LAPACK info %d)",
+                          m->name, pname, (int)info);
+        goto done;
+    }
+    if (s[k - 1] <= s[0] / BL_MODEL_MAX_CONDITION) {
+        /* Localise: the shortest leading set of columns that is already deficient (eigenvalues of its
+         * Gram matrix), whose null vector names exactly the coefficients involved; the last of them
+         * adds nothing to the ones before it. Falls back to the full null vector. */
+        double *G = calloc(k * k, sizeof *G), *Gj = malloc(k * k * sizeof *Gj), *ev = malloc(k * sizeof *ev);
+        const double *v = vt + (k - 1) * k;
+        size_t nv = k;
+        double *vbuf = malloc(k * sizeof *vbuf);
+        if (G && Gj && ev && vbuf) {
+            /* X was overwritten by dgesvd: rebuild the normalised design. */
+            size_t k2;
+            double *X2 = param_matrix(m, p, &k2);
+            if (X2) {
+                for (size_t j = 0; j < k; j++) {
+                    double ss = 0;
+                    for (size_t i = 0; i < m->n; i++) ss += X2[i * k + j] * X2[i * k + j];
+                    for (size_t i = 0; i < m->n; i++) X2[i * k + j] /= sqrt(ss);
+                }
+                for (size_t i = 0; i < m->n; i++)
+                    for (size_t a = 0; a < k; a++) {
+                        double xa = X2[i * k + a];
+                        if (xa == 0) continue;
+                        for (size_t b = 0; b < k; b++) G[a * k + b] += xa * X2[i * k + b];
+                    }
+                free(X2);
+                for (size_t j = 2; j <= k; j++) {
+                    for (size_t a = 0; a < j; a++)
+                        for (size_t b = 0; b < j; b++) Gj[a * j + b] = G[a * k + b];
+                    if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)j, Gj, (lapack_int)j, ev) != 0) break;
+                    if (ev[0] <= 1e-10 * ev[j - 1]) {
+                        for (size_t a = 0; a < j; a++) vbuf[a] = Gj[a * j + 0];
+                        v = vbuf;
+                        nv = j;
+                        break;
+                    }
+                }
+            }
+        }
+        double vmax = 0;
+        for (size_t j = 0; j < nv; j++) vmax = fmax(vmax, fabs(v[j]));
+        size_t last = 0;
+        for (size_t j = 0; j < nv; j++)
+            if (fabs(v[j]) > 1e-3 * vmax) last = j;
+        char lab[512], others[600] = "";
+        coef_label(m, d->first_coef + last, lab, sizeof lab);
+        size_t shown = 0;
+        for (size_t j = 0; j < nv && shown < 3; j++) {
+            if (j == last || !(fabs(v[j]) > 1e-3 * vmax)) continue;
+            char l2[256];
+            coef_label(m, d->first_coef + j, l2, sizeof l2);
+            size_t len = strlen(others);
+            snprintf(others + len, sizeof others - len, "%s%s", shown ? ", " : "", l2);
+            shown++;
+        }
+        st = bl_error_set(err, BL_ERR_MODEL,
+                          "model '%s': parameter '%s': rank-deficient design: %s is collinear with %s "
+                          "(condition number %.3g; e.g. a regressor constant within a level)",
+                          m->name, pname, lab, shown ? others : "the other coefficients",
+                          s[k - 1] > 0 ? s[0] / s[k - 1] : INFINITY);
+        free(G);
+        free(Gj);
+        free(ev);
+        free(vbuf);
+    }
+done:
+    free(X);
+    free(s);
+    free(vt);
+    free(superb);
+    return st;
+}
+
+bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use,
+                         bl_model **out, bl_error *err)
+{
+    *out = NULL;
+    const char *mname = spec->name ? spec->name : "(unnamed)";
+    bl_model *m = calloc(1, sizeof *m);
+    bl_status st = BL_ERR_NOMEM;
+    char ***lev_names = NULL;
+    size_t *lev_counts = NULL;
+    size_t n_lev_sets = 0;
+    if (!m || !(m->name = bl_strdup(mname))) goto nomem;
+    const size_t nrow = trials->n;
+    size_t n = 0;
+    for (size_t i = 0; i < nrow; i++)
+        if (!(trials->excluded && trials->excluded[i]) && (!use || use[i])) n++;
+    if (n == 0) {
+        st = bl_error_set(err, BL_ERR_MODEL, "model '%s': no trials to fit", mname);
+        goto fail;
+    }
+    m->n = n;
+    m->row = malloc(n * sizeof *m->row);
+    m->rt = malloc(n * sizeof *m->rt);
+    m->upper = malloc(n * sizeof *m->upper);
+    m->sign = malloc(n * sizeof *m->sign);
+    m->participant = malloc(n * sizeof *m->participant);
+    if (!m->row || !m->rt || !m->upper || !m->sign || !m->participant) goto nomem;
+    m->rt_lo = INFINITY;
+    m->rt_hi = -INFINITY;
+    for (size_t i = 0, k = 0; i < nrow; i++) {
+        if ((trials->excluded && trials->excluded[i]) || (use && !use[i])) continue;
+        double rt = trials->rt[i];
+        if (!isfinite(rt) || rt <= 0) {
+            st = bl_error_set(err, BL_ERR_INPUT, "model '%s': trial %s of participant '%s' has no valid RT (%g)",
+                              mname, trials->trial_label ? trials->trial_label[i] : "?",
+                              trials->participants[trials->participant[i]], rt);
+            goto fail;
+        }
+        m->row[k] = i;
+        m->rt[k] = rt;
+        m->upper[k] = trials->upper[i] ? 1 : 0;
+        m->sign[k] = trials->drift_sign ? (trials->drift_sign[i] < 0 ? -1 : 1) : 1;
+        m->participant[k] = trials->participant[i];
+        m->rt_lo = fmin(m->rt_lo, rt);
+        m->rt_hi = fmax(m->rt_hi, rt);
+        k++;
+    }
+    if (!(m->rt_hi > m->rt_lo)) m->rt_hi = m->rt_lo + 1.0;
+
+    /* Level names are kept per design part until the coefficient table is made. */
+    size_t max_sets = BL_NPARAM;
+    for (int p = 0; p < BL_NPARAM; p++) max_sets += spec->param[p].n_slopes;
+    lev_names = calloc(max_sets, sizeof *lev_names);
+    lev_counts = calloc(max_sets, sizeof *lev_counts);
+    if (!lev_names || !lev_counts) goto nomem;
+
+    size_t n_coef = 0;
+    for (int p = 0; p < BL_NPARAM; p++) {
+        const bl_param_spec *ps = &spec->param[p];
+        bl_param_design *d = &m->par[p];
+        const char *pname = bl_param_name(p);
+        d->link = ps->link == BL_LINK_LOG ? BL_LINK_LOG : BL_LINK_IDENTITY;
+        if (ps->is_fixed) {
+            d->is_free = 0;
+            d->fixed = ps->fixed;
+            if (ps->n_slopes) {
+                st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': a fixed parameter cannot have slopes",
+                                  mname, pname);
+                goto fail;
+            }
+            continue;
+        }
+        d->is_free = 1;
+        d->n_per = ps->n_per;
+        if (!(d->per = dup_strv(ps->per, ps->n_per))) goto nomem;
+        d->first_coef = n_coef;
+        st = make_levels(m, trials, ps->per, ps->n_per, pname, &d->level, &lev_names[n_lev_sets], &d->n_levels, err);
+        if (st) goto fail;
+        lev_counts[n_lev_sets++] = d->n_levels;
+        n_coef += d->n_levels;
+        d->n_slopes = ps->n_slopes;
+        d->slopes = calloc(ps->n_slopes ? ps->n_slopes : 1, sizeof *d->slopes);
+        if (!d->slopes) goto nomem;
+        for (size_t s = 0; s < ps->n_slopes; s++) {
+            const bl_slope_spec *ss = &ps->slopes[s];
+            bl_slope_design *sl = &d->slopes[s];
+            if (!(sl->regressor = bl_strdup(ss->regressor)) || !(sl->by = dup_strv(ss->by, ss->n_by))) goto nomem;
+            sl->n_by = ss->n_by;
+            for (size_t s2 = 0; s2 < s; s2++)
+                if (strcmp(d->slopes[s2].regressor, ss->regressor) == 0) {
+                    st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': regressor '%s' has two slopes",
+                                      mname, pname, ss->regressor);
+                    goto fail;
+                }
+            int c = bl_table_find(trials->table, ss->regressor);
+            if (c < 0) {
+                st = bl_error_set(err, BL_ERR_MODEL,
+                                  "model '%s': parameter '%s': unknown regressor '%s' (neither a band nor a column of "
+                                  "the trial table)",
+                                  mname, pname, ss->regressor);
+                goto fail;
+            }
+            const bl_column *col = &trials->table->cols[c];
+            sl->x = malloc(n * sizeof *sl->x);
+            sl->x_orig = malloc(n * sizeof *sl->x_orig);
+            if (!sl->x || !sl->x_orig) goto nomem;
+            double ss2 = 0;
+            for (size_t k = 0; k < n; k++) {
+                double x = col->num[m->row[k]];
+                if (!isfinite(x)) {
+                    const char *txt = col->text[m->row[k]];
+                    st = bl_error_set(err, BL_ERR_MODEL,
+                                      "model '%s': parameter '%s': regressor '%s' is %s on trial %s of participant "
+                                      "'%s' (it must be a finite number on every fitted trial)",
+                                      mname, pname, ss->regressor, txt ? "not numeric" : "missing",
+                                      trials->trial_label ? trials->trial_label[m->row[k]] : "?",
+                                      trials->participants[trials->participant[m->row[k]]]);
+                    goto fail;
+                }
+                sl->x[k] = sl->x_orig[k] = x;
+                ss2 += x * x;
+            }
+            sl->rms = sqrt(ss2 / (double)n);
+            if (!(sl->rms > 0)) sl->rms = 1.0;
+            sl->first_coef = n_coef;
+            st = make_levels(m, trials, ss->by, ss->n_by, pname, &sl->level, &lev_names[n_lev_sets], &sl->n_levels,
+                             err);
+            if (st) goto fail;
+            lev_counts[n_lev_sets++] = sl->n_levels;
+            n_coef += sl->n_levels;
+        }
+    }
+    if (n_coef == 0) {
+        st = bl_error_set(err, BL_ERR_MODEL, "model '%s': every parameter is fixed; nothing to fit", mname);
+        goto fail;
+    }
+    m->n_coef = n_coef;
+    m->coef = calloc(n_coef, sizeof *m->coef);
+    m->level_text = calloc(n_coef, sizeof *m->level_text);
+    if (!m->coef || !m->level_text) goto nomem;
+    size_t set = 0;
+    for (int p = 0; p < BL_NPARAM; p++) {
+        bl_param_design *d = &m->par[p];
+        if (!d->is_free) continue;
+        for (size_t l = 0; l < d->n_levels; l++) {
+            size_t j = d->first_coef + l;
+            m->coef[j].param = p;
+            m->coef[j].slope = -1;
+            m->coef[j].term = "intercept";
+            m->level_text[j] = lev_names[set][l];
+            lev_names[set][l] = NULL;
+            m->coef[j].level = m->level_text[j];
+        }
+        set++;
+        for (size_t s = 0; s < d->n_slopes; s++) {
+            bl_slope_design *sl = &d->slopes[s];
+            for (size_t l = 0; l < sl->n_levels; l++) {
+                size_t j = sl->first_coef + l;
+                m->coef[j].param = p;
+                m->coef[j].slope = (int)s;
+                m->coef[j].term = sl->regressor;
+                m->level_text[j] = lev_names[set][l];
+                lev_names[set][l] = NULL;
+                m->coef[j].level = m->level_text[j];
+            }
+            set++;
+        }
+    }
+    for (size_t i = 0; i < n_lev_sets; i++) free_strv(lev_names[i], lev_counts[i]);
+    free(lev_names);
+    free(lev_counts);
+    lev_names = NULL;
+    lev_counts = NULL;
+    for (int p = 0; p < BL_NPARAM; p++)
+        if (m->par[p].is_free && (st = check_rank(m, p, err))) goto fail;
+    *out = m;
+    return BL_OK;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", mname);
+fail:
+    if (lev_names)
+        for (size_t i = 0; i < n_lev_sets; i++) free_strv(lev_names[i], lev_counts[i]);
+    free(lev_names);
+    free(lev_counts);
+    bl_model_destroy(m);
+    return st;
+}
+
+static void *dup_mem(const void *p, size_t n)
+{
+    void *c = malloc(n ? n : 1);
+    if (c && n) memcpy(c, p, n);
+    return c;
+}
+
+bl_model *bl_model_copy(const bl_model *m)
+{
+    bl_model *c = calloc(1, sizeof *c);
+    if (!c) return NULL;
+    size_t n = m->n;
+    c->n = n;
+    c->rt_lo = m->rt_lo;
+    c->rt_hi = m->rt_hi;
+    c->n_coef = m->n_coef;
+    c->name = bl_strdup(m->name);
+    c->row = dup_mem(m->row, n * sizeof *m->row);
+    c->rt = dup_mem(m->rt, n * sizeof *m->rt);
+    c->upper = dup_mem(m->upper, n * sizeof *m->upper);
+    c->sign = dup_mem(m->sign, n * sizeof *m->sign);
+    c->participant = dup_mem(m->participant, n * sizeof *m->participant);
+    c->coef = dup_mem(m->coef, m->n_coef * sizeof *m->coef);
+    c->level_text = dup_strv(m->level_text, m->n_coef);
+    if (!c->name || !c->row || !c->rt || !c->upper || !c->sign || !c->participant || !c->coef || !c->level_text)
+        goto fail;
+    for (size_t j = 0; j < m->n_coef; j++) c->coef[j].level = c->level_text[j];
+    for (int p = 0; p < BL_NPARAM; p++) {
+        const bl_param_design *d = &m->par[p];
+        bl_param_design *e = &c->par[p];
+        *e = *d;
+        e->per = NULL;
+        e->level = NULL;
+        e->slopes = NULL;
+        e->n_per = 0;
+        e->n_slopes = 0;
+        if (!d->is_free) continue;
+        if (!(e->per = dup_strv(d->per, d->n_per))) goto fail;
+        e->n_per = d->n_per;
+        if (!(e->level = dup_mem(d->level, n * sizeof *d->level))) goto fail;
+        if (!(e->slopes = calloc(d->n_slopes ? d->n_slopes : 1, sizeof *e->slopes))) goto fail;
+        e->n_slopes = d->n_slopes;
+        for (size_t s = 0; s < d->n_slopes; s++) {
+            const bl_slope_design *a = &d->slopes[s];
+            bl_slope_design *b = &e->slopes[s];
+            *b = *a;
+            b->regressor = bl_strdup(a->regressor);
+            b->by = dup_strv(a->by, a->n_by);
+            b->level = dup_mem(a->level, n * sizeof *a->level);
+            b->x = dup_mem(a->x, n * sizeof *a->x);
+            b->x_orig = dup_mem(a->x_orig, n * sizeof *a->x_orig);
+            if (!b->regressor || !b->by || !b->level || !b->x || !b->x_orig) goto fail;
+        }
+    }
+    /* Coefficient terms point at the copy's own regressor names. */
+    for (size_t j = 0; j < c->n_coef; j++)
+        if (c->coef[j].slope >= 0) c->coef[j].term = c->par[c->coef[j].param].slopes[c->coef[j].slope].regressor;
+    return c;
+fail:
+    bl_model_destroy(c);
+    return NULL;
+}
+
+const char *bl_model_name(const bl_model *m) { return m->name; }
+size_t bl_model_n_coef(const bl_model *m) { return m->n_coef; }
+const bl_coef_info *bl_model_coef(const bl_model *m, size_t j) { return j < m->n_coef ? &m->coef[j] : NULL; }
+size_t bl_model_n_trials(const bl_model *m) { return m->n; }
+size_t bl_model_row(const bl_model *m, size_t k) { return m->row[k]; }
+int bl_model_link(const bl_model *m, int param) { return m->par[param].link; }
+int bl_model_param_free(const bl_model *m, int param) { return m->par[param].is_free; }
+size_t bl_model_n_slopes(const bl_model *m, int param) { return m->par[param].n_slopes; }
+const char *bl_model_slope_regressor(const bl_model *m, int param, size_t s)
+{
+    return s < m->par[param].n_slopes ? m->par[param].slopes[s].regressor : NULL;
+}
+size_t bl_model_intercept_index(const bl_model *m, int param, size_t k)
+{
+    return m->par[param].first_coef + m->par[param].level[k];
+}
+
+int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_params *p)
+{
+    for (int q = 0; q < BL_NPARAM; q++) {
+        const bl_param_design *d = &m->par[q];
+        if (!d->is_free) {
+            p->value[q] = d->fixed;
+            continue;
+        }
+        double eta = coef[d->first_coef + d->level[k]];
+        for (size_t s = 0; s < d->n_slopes; s++) {
+            const bl_slope_design *sl = &d->slopes[s];
+            eta += coef[sl->first_coef + sl->level[k]] * sl->x[k];
+        }
+        p->value[q] = d->link == BL_LINK_LOG ? exp(eta) : eta;
+    }
+    p->value[BL_DRIFT] *= m->sign[k];
+    p->contamination_lo = m->rt_lo;
+    p->contamination_hi = m->rt_hi;
+    return bl_model_params_valid(p);
+}
+
+bl_status bl_model_permute_slope(bl_model *m, int param, size_t s, const size_t *cell, gsl_rng *rng,
+                                 bl_error *err)
+{
+    if (param < 0 || param >= BL_NPARAM || s >= m->par[param].n_slopes)
+        return bl_error_set(err, BL_ERR_INTERNAL, "model '%s': no slope %zu on parameter %d", m->name, s, param);
+    bl_slope_design *sl = &m->par[param].slopes[s];
+    size_t n = m->n, n_cells = 0;
+    for (size_t k = 0; k < n; k++) n_cells = cell[k] + 1 > n_cells ? cell[k] + 1 : n_cells;
+    /* Trials grouped by cell (counting sort keeps table order inside a cell). */
+    size_t *start = calloc(n_cells + 1, sizeof *start), *idx = malloc(n * sizeof *idx);
+    if (!start || !idx) {
+        free(start);
+        free(idx);
+        return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory permuting", m->name);
+    }
+    for (size_t k = 0; k < n; k++) start[cell[k] + 1]++;
+    for (size_t c = 0; c < n_cells; c++) start[c + 1] += start[c];
+    size_t *fill = malloc((n_cells + 1) * sizeof *fill);
+    if (!fill) {
+        free(start);
+        free(idx);
+        return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory permuting", m->name);
+    }
+    memcpy(fill, start, (n_cells + 1) * sizeof *fill);
+    for (size_t k = 0; k < n; k++) idx[fill[cell[k]]++] = k;
+    for (size_t k = 0; k < n; k++) sl->x[k] = sl->x_orig[k];
+    /* Fisher-Yates within each cell (Knuth, TAOCP vol. 2, Algorithm 3.4.2 P). */
+    for (size_t c = 0; c < n_cells; c++) {
+        size_t a = start[c], len = start[c + 1] - start[c];
+        for (size_t i = len; i > 1; i--) {
+            size_t j = (size_t)gsl_rng_uniform_int(rng, (unsigned long)i);
+            double t = sl->x[idx[a + i - 1]];
+            sl->x[idx[a + i - 1]] = sl->x[idx[a + j]];
+            sl->x[idx[a + j]] = t;
+        }
+    }
+    free(start);
+    free(idx);
+    free(fill);
+    return BL_OK;
+}
+
+void bl_model_restore_slopes(bl_model *m)
+{
+    for (int p = 0; p < BL_NPARAM; p++)
+        for (size_t s = 0; s < m->par[p].n_slopes; s++)
+            memcpy(m->par[p].slopes[s].x, m->par[p].slopes[s].x_orig, m->n * sizeof(double));
+}
+
+/* Column space of a's design for parameter p inside b's? Least squares residual of every column of
+ * X_a on X_b (LAPACKE dgels). 1 yes, 0 no, -1 out of memory. */
+static int columns_inside(const bl_model *a, const bl_model *b, int p)
+{
+    size_t ka, kb;
+    double *Xa = param_matrix(a, p, &ka), *Xb = param_matrix(b, p, &kb);
+    int inside = 0;
+    if (!Xa || !Xb) {
+        inside = -1;
+        goto done;
+    }
+    if (a->n != b->n || a->n < kb) goto done;
+    double *B = malloc(a->n * ka * sizeof *B);
+    if (!B) {
+        inside = -1;
+        goto done;
+    }
+    memcpy(B, Xa, a->n * ka * sizeof *B);
+    lapack_int info = LAPACKE_dgels(LAPACK_ROW_MAJOR, 'N', (lapack_int)a->n, (lapack_int)kb, (lapack_int)ka, Xb,
+                                    (lapack_int)kb, B, (lapack_int)ka);
+    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) inside = -1;
+    if (info == 0) {
+        inside = 1;
+        for (size_t j = 0; j < ka; j++) {
+            double rss = 0, tss = 0;
+            for (size_t i = kb; i < a->n; i++) rss += B[i * ka + j] * B[i * ka + j];
+            for (size_t i = 0; i < a->n; i++) tss += Xa[i * ka + j] * Xa[i * ka + j];
+            if (rss > 1e-16 * tss) inside = 0;
+        }
+    }
+    free(B);
+done:
+    free(Xa);
+    free(Xb);
+    return inside;
+}
+
+int bl_model_nested_in(const bl_model *a, const bl_model *b)
+{
+    if (a->n != b->n) return 0;
+    for (size_t k = 0; k < a->n; k++)
+        if (a->row[k] != b->row[k]) return 0;
+    for (int p = 0; p < BL_NPARAM; p++) {
+        const bl_param_design *da = &a->par[p], *db = &b->par[p];
+        if (!da->is_free && !db->is_free) {
+            if (da->fixed != db->fixed) return 0;
+        } else if (da->is_free && !db->is_free) {
+            return 0;
+        } else if (!da->is_free && db->is_free) {
+            /* A fixed value is a constant on the link scale, which b's intercepts can take. */
+            if (db->link == BL_LINK_LOG && !(da->fixed > 0)) return 0;
+        } else {
+            if (da->link != db->link) return 0;
+            int inside = columns_inside(a, b, p);
+            if (inside <= 0) return inside;
+        }
+    }
+    return 1;
+}
+
+bl_status bl_model_condition_cells(const bl_model *m, const bl_trials *trials, size_t **cell, size_t *n_cells,
+                                   bl_error *err)
+{
+    size_t cap = 1;
+    for (int p = 0; p < BL_NPARAM; p++) {
+        cap += m->par[p].n_per;
+        for (size_t s = 0; s < m->par[p].n_slopes; s++) cap += m->par[p].slopes[s].n_by;
+    }
+    char **cols = calloc(cap, sizeof *cols);
+    if (!cols) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    size_t nc = 0;
+#define ADD_COL(name)                                                                                                  \
+    do {                                                                                                               \
+        int dup_ = 0;                                                                                                  \
+        for (size_t q_ = 0; q_ < nc; q_++)                                                                             \
+            if (strcmp(cols[q_], (name)) == 0) dup_ = 1;                                                               \
+        if (!dup_) cols[nc++] = (name);                                                                                \
+    } while (0)
+    for (int p = 0; p < BL_NPARAM; p++) {
+        for (size_t i = 0; i < m->par[p].n_per; i++) ADD_COL(m->par[p].per[i]);
+        for (size_t s = 0; s < m->par[p].n_slopes; s++)
+            for (size_t i = 0; i < m->par[p].slopes[s].n_by; i++) ADD_COL(m->par[p].slopes[s].by[i]);
+    }
+#undef ADD_COL
+    size_t *lev = NULL, n_lev = 0;
+    char **names = NULL;
+    bl_status st = make_levels(m, trials, cols, nc, "(permutation cells)", &lev, &names, &n_lev, err);
+    free(cols);
+    if (st) return st;
+    free_strv(names, n_lev);
+    /* Combine with the participant: cell = level * n_participants + participant, then renumber. */
+    size_t np = trials->n_participants ? trials->n_participants : 1;
+    size_t *map = malloc(n_lev * np * sizeof *map);
+    if (!map) {
+        free(lev);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    for (size_t i = 0; i < n_lev * np; i++) map[i] = (size_t)-1;
+    size_t next = 0;
+    for (size_t k = 0; k < m->n; k++) {
+        size_t key = lev[k] * np + m->participant[k];
+        if (map[key] == (size_t)-1) map[key] = next++;
+        lev[k] = map[key];
+    }
+    free(map);
+    *cell = lev;
+    *n_cells = next;
+    return BL_OK;
+}

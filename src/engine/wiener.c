@@ -1,0 +1,466 @@
+/* Wiener first-passage time density, its gradient, boundary probabilities and mean decision times.
+ *
+ * Sources: Navarro & Fuss (2009, J. Math. Psych. 53:222-230) large- and small-time series, summed
+ * in log space and truncated relative to the partial sum (the project's numerics notes, section 1.3;
+ * the small-time tail bound follows the w-dependent image argument of Gondan, Blurton & Kesselmeier
+ * 2014, J. Math. Psych. 60:20-22, applied relative to the sum rather than as an absolute count).
+ * Closed form in drift_sd: Blurton, Kesselmeier & Gondan (2017, J. Math. Psych. 76:7-12).
+ * Mean decision times from the Laplace transform of the first-passage time (Cox & Miller 1965);
+ * they reduce to the EZ-diffusion equations (Wagenmakers, van der Maas & Grasman 2007) at w = 1/2.
+ * Noise scale s = 1. See docs/methods.md.
+ */
+#include "engine/wiener_internal.h"
+
+#include <float.h>
+#include <math.h>
+#include <string.h>
+
+static const char *const param_names[BL_NPARAM] = {
+    "threshold", "drift", "nondecision", "start", "drift_sd", "start_range", "nondecision_range",
+    "contamination"};
+
+const char *bl_param_name(int index)
+{
+    return index >= 0 && index < BL_NPARAM ? param_names[index] : NULL;
+}
+
+int bl_param_index(const char *name)
+{
+    if (!name) return -1;
+    for (int i = 0; i < BL_NPARAM; i++)
+        if (strcmp(name, param_names[i]) == 0) return i;
+    return -1;
+}
+
+void bl_wiener_params_default(bl_wiener_params *p)
+{
+    memset(p, 0, sizeof *p);
+    p->value[BL_START] = 0.5;
+}
+
+bl_status bl_wiener_check(const bl_wiener_params *p, bl_error *err)
+{
+    const double *x = p->value;
+    for (int i = 0; i < BL_NPARAM; i++)
+        if (!isfinite(x[i]))
+            return bl_error_set(err, BL_ERR_RANGE, "%s must be a finite number (got %g)", param_names[i], x[i]);
+    if (!(x[BL_THRESHOLD] > 0))
+        return bl_error_set(err, BL_ERR_RANGE, "threshold must be > 0 (got %g)", x[BL_THRESHOLD]);
+    if (!(x[BL_NONDECISION] >= 0))
+        return bl_error_set(err, BL_ERR_RANGE, "nondecision must be >= 0 s (got %g)", x[BL_NONDECISION]);
+    if (!(x[BL_START] > 0 && x[BL_START] < 1))
+        return bl_error_set(err, BL_ERR_RANGE, "start must lie in (0, 1) (got %g)", x[BL_START]);
+    if (!(x[BL_DRIFT_SD] >= 0))
+        return bl_error_set(err, BL_ERR_RANGE, "drift_sd must be >= 0 (got %g)", x[BL_DRIFT_SD]);
+    double w = x[BL_START], sz = x[BL_START_RANGE];
+    if (!(sz >= 0 && sz < 1))
+        return bl_error_set(err, BL_ERR_RANGE, "start_range must lie in [0, 1) (got %g)", sz);
+    if (sz > 0 && !(w - sz / 2 > 0 && w + sz / 2 < 1))
+        return bl_error_set(err, BL_ERR_RANGE,
+                            "start_range %g with start %g leaves (0, 1): start +- start_range/2 must stay inside",
+                            sz, w);
+    double t0 = x[BL_NONDECISION], st = x[BL_NONDECISION_RANGE];
+    if (!(st >= 0))
+        return bl_error_set(err, BL_ERR_RANGE, "nondecision_range must be >= 0 s (got %g)", st);
+    if (st > 0 && !(t0 - st / 2 >= 0))
+        return bl_error_set(err, BL_ERR_RANGE,
+                            "nondecision_range %g exceeds twice nondecision %g (nondecision - range/2 must be >= 0)",
+                            st, t0);
+    double p0 = x[BL_CONTAMINATION];
+    if (!(p0 >= 0 && p0 < 1))
+        return bl_error_set(err, BL_ERR_RANGE, "contamination must lie in [0, 1) (got %g)", p0);
+    if (p0 > 0 && !(isfinite(p->contamination_lo) && isfinite(p->contamination_hi) &&
+                    p->contamination_lo >= 0 && p->contamination_lo < p->contamination_hi))
+        return bl_error_set(err, BL_ERR_RANGE,
+                            "contamination range [%g, %g] s must satisfy 0 <= low < high", p->contamination_lo,
+                            p->contamination_hi);
+    return BL_OK;
+}
+
+/* ---- the lower-boundary series ----------------------------------------------------------------- */
+
+static const double LOG_SQRT_2PI = 0.91893853320467274178;
+
+/* Small-time series (u < 0.25). Sums are scaled by exp(w^2 / (2u)) so the k = 0 image is w.
+ * Every scaled image term is a product of powers of two exponentials, A = exp(-2(1-w)/u) and
+ * B = exp(-2(1+w)/u): the image at w - 2k has exp(-2k(k-w)/u) = A^{k(k+1)/2} B^{k(k-1)/2} and the one
+ * at w + 2k has A^{k(k-1)/2} B^{k(k+1)/2}; so the usual case (k <= 1 plus the bound at k = 2) costs two
+ * calls to exp. All factors are <= 1: nothing overflows.
+ * Returns S0; fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
+static double small_time(double u, double iu, double w, double d, double eps, int want_grad, double *Lu, double *Lw)
+{
+    double S0, S3 = 0, Sw = 0;
+    double A, B = -1; /* B computed on first use */
+    double En, Ep, Ak, Bk;
+    int K;
+    if (d < 1e-3) {
+        /* Start near the far boundary: the k = 0 and k = -1 images cancel; pair them exactly
+         * (numerics notes, section 1.3): w + (w-2)exp(-2d/u) without cancellation. */
+        double em = expm1(-2 * d * iu);
+        A = 1 + em;
+        B = exp(-2 * (1 + w) * iu);
+        S0 = -em - d * (2 + em);
+        double xn = w - 2, xp = w + 2;
+        S0 += xp * B;
+        if (want_grad) {
+            S3 = w * w * w + xn * xn * xn * A + xp * xp * xp * B;
+            Sw = (1 - w * w / u) + (1 - xn * xn / u) * A + (1 - xp * xp / u) * B;
+        }
+        K = 1;
+        En = A * A * A * B; /* images for k = 2 */
+        Ep = A * B * B * B;
+        Ak = A * A;
+        Bk = B * B;
+    } else {
+        A = exp(-2 * d * iu);
+        S0 = w;
+        if (want_grad) {
+            S3 = w * w * w;
+            Sw = 1 - w * w / u;
+        }
+        K = 0;
+        En = A; /* images for k = 1 (Ep once B is known) */
+        Ep = 0;
+        Ak = A;
+        Bk = 1;
+    }
+    for (;; K++) {
+        /* Nearest omitted image is x = w - 2(K+1), at distance x0 = 2K + 2 - w >= 1 > sqrt(3u):
+         * every tail bound below is valid. Its scaled term is En. */
+        double x0 = 2 * K + 2 - w;
+        if ((x0 + 0.5 * u) * En <= eps * S0) {
+            if (!want_grad) break;
+            /* Weight x^3 (d/du) and x^2/u (d/dw): first omitted term plus half the tail integral. */
+            double b3 = (x0 * x0 * x0 + 0.5 * u * (x0 * x0 + 2 * u)) * En;
+            double bw = (x0 * x0 / u + 0.5 * (x0 + u / x0)) * En;
+            if (b3 <= eps * S0 * u && bw <= eps * S0) break;
+        }
+        if (K > 50) break; /* unreachable for u < 0.25: En < exp(-400) by then */
+        if (B < 0) {
+            B = exp(-2 * (1 + w) * iu);
+            Ep = B;
+            Bk = B;
+        }
+        double kp = K + 1;
+        double xn = w - 2 * kp, xp = w + 2 * kp;
+        S0 += xn * En + xp * Ep;
+        if (want_grad) {
+            S3 += xn * xn * xn * En + xp * xp * xp * Ep;
+            Sw += (1 - xn * xn / u) * En + (1 - xp * xp / u) * Ep;
+        }
+        /* step k -> k + 1: En *= A^{k+1} B^k, Ep *= A^k B^{k+1} (Ak = A^k, Bk = B^k) */
+        En *= Ak * A * Bk;
+        Ep *= Ak * Bk * B;
+        Ak *= A;
+        Bk *= B;
+    }
+    if (want_grad) {
+        *Lu = -1.5 / u + S3 / (2 * u * u * S0);
+        *Lw = Sw / S0;
+    }
+    return S0;
+}
+
+/* Large-time series (u >= 0.25). Sum S = sum_k k sin(k pi w) exp(-(k^2-1) q), q = pi^2 u / 2.
+ * wc = 1 - w, passed exactly by the caller.
+ * Term count: the tail bound of the numerics notes (1.3), [X^2 + X/(2q) + 1/(4q^2 X)] e^{-(X^2-1)q}
+ * sin(pi w) after X - 1 terms, is largest at the switch q = pi^2/8; there it is 3.8e-12 sin(pi w) for
+ * X = 5, while S >= 0.9 sin(pi w) for every w (the k >= 2 terms sum to at most 0.1 sin(pi w) in
+ * magnitude). So four terms meet the relative tolerance 1e-10 everywhere (about 4e-12), and the sum is
+ * evaluated branch-free; the gradient's k^3 and k^2 sums take a fifth term (tail < 1e-15).
+ * tests/test_wiener.c re-checks these bounds. */
+static double large_time(double u, double w, double wc, int want_grad, double *Lu, double *Lw)
+{
+    double q = 4.934802200544679309 * u; /* pi^2/2 * u */
+    double dmin = w < 0.5 ? w : wc;
+    double s1, c1;
+    blw_sincospi(dmin, &s1, &c1);
+    if (w > 0.5) c1 = -c1; /* cos(pi w) */
+    double E = exp(-q), E2 = E * E, E3 = E2 * E, E4 = E2 * E2, E8 = E4 * E4;
+    double e2 = E3, e3 = E8, e4 = E8 * E4 * E3; /* exp(-(k^2 - 1) q) */
+    double tc = 2 * c1;
+    double s2 = tc * s1, s3 = tc * s2 - s1, s4 = tc * s3 - s2; /* sin(k pi w): Chebyshev recurrence */
+    double S = s1 + 2 * s2 * e2 + 3 * s3 * e3 + 4 * s4 * e4;
+    if (want_grad) {
+        double e5 = E8 * E8 * E8, s5 = tc * s4 - s3;
+        double c2 = tc * c1 - 1, c3 = tc * c2 - c1, c4 = tc * c3 - c2, c5 = tc * c4 - c3;
+        S += 5 * s5 * e5;
+        double S3 = s1 + 8 * s2 * e2 + 27 * s3 * e3 + 64 * s4 * e4 + 125 * s5 * e5;
+        double Sc = c1 + 4 * c2 * e2 + 9 * c3 * e3 + 16 * c4 * e4 + 25 * c5 * e5;
+        *Lu = -4.934802200544679309 * S3 / S;
+        *Lw = BLW_PI * Sc / S;
+    }
+    return S;
+}
+
+/* wc = 1 - w given exactly (for the upper boundary it is the user's start itself), so a start within
+ * 1e-16 of a boundary keeps its relative precision. */
+static double log_dens_lo_c(double t, double v, double a, double w, double wc, double sv, double *g)
+{
+    double a2 = a * a;
+    double u = t / a2;
+    double D = 1, base;
+    if (sv == 0) {
+        base = -v * a * w - 0.5 * v * v * t;
+    } else {
+        double s2 = sv * sv;
+        D = 1 + s2 * t;
+        base = -0.5 * log1p(s2 * t) + (s2 * a * a * w * w - 2 * v * a * w - v * v * t) / (2 * D);
+    }
+    double Lu = 0, Lw = 0, lf;
+    int want = g != NULL;
+    if (u < BLW_U_SWITCH) {
+        double iu = a2 / t;
+        double S = small_time(u, iu, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
+        /* log phi - 2 log a = -log sqrt(2 pi) - w^2/(2u) + log(S a / t^1.5) */
+        double y = S * a / (t * sqrt(t));
+        double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(S) + log(a) - 1.5 * log(t);
+        lf = base - LOG_SQRT_2PI - 0.5 * w * w * iu + ly;
+    } else {
+        double S = large_time(u, w, wc, want, &Lu, &Lw);
+        double y = BLW_PI * S / a2;
+        double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(BLW_PI * S) - 2 * log(a);
+        lf = base - 4.934802200544679309 * u + ly;
+    }
+    if (g) {
+        double s2 = sv * sv;
+        double m = a * w + v * t;
+        g[BLW_GV] = -m / D;
+        g[BLW_GA] = (s2 * a * w * w - v * w) / D - 2 / a - (2 * t / (a * a * a)) * Lu;
+        g[BLW_GW] = (s2 * a * a * w - v * a) / D + Lw;
+        double N = s2 * a * a * w * w - 2 * v * a * w - v * v * t;
+        g[BLW_GT] = -v * v / (2 * D) - s2 * N / (2 * D * D) - s2 / (2 * D) + Lu / (a * a);
+        g[BLW_GSV] = sv * (m * m / (D * D) - t / D);
+    }
+    return lf;
+}
+
+double blw_log_dens_lo(double t, double v, double a, double w, double sv, double *g)
+{
+    return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+}
+
+double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g)
+{
+    if (!upper) return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+    double lf = log_dens_lo_c(t, -v, a, 1 - w, w, sv, g);
+    if (g) {
+        g[BLW_GV] = -g[BLW_GV];
+        g[BLW_GW] = -g[BLW_GW];
+    }
+    return lf;
+}
+
+/* ---- boundary probabilities and moments --------------------------------------------------------- */
+
+/* wc = 1 - w exactly (see log_dens_lo_c) */
+static double log_p_lo_c(double v, double a, double w, double wc)
+{
+    double va = v * a;
+    if (va == 0) return log(wc);
+    if (va > 0) return -2 * va * w + log(-expm1(-2 * va * wc)) - log(-expm1(-2 * va));
+    return log(-expm1(2 * va * wc)) - log(-expm1(2 * va));
+}
+
+double blw_log_p_lo(double v, double a, double w)
+{
+    return log_p_lo_c(v, a, w, 1 - w);
+}
+
+double blw_log_p(double v, double a, double w, int upper)
+{
+    return upper ? log_p_lo_c(-v, a, 1 - w, w) : log_p_lo_c(v, a, w, 1 - w);
+}
+
+/* h(x) = (x coth x - 1) / x^2, even, h(0) = 1/3. */
+static double coth_h(double x)
+{
+    double x2 = x * x;
+    if (fabs(x) < 0.1)
+        return 1.0 / 3 + x2 * (-1.0 / 45 + x2 * (2.0 / 945 + x2 * (-1.0 / 4725 + x2 * (2.0 / 93555))));
+    if (fabs(x) > 40) return (fabs(x) - 1) / x2;
+    return (x / tanh(x) - 1) / x2;
+}
+
+/* E[T | lower] = [a coth(va) - z' coth(v z')] / v with z' = a - z the distance to the upper
+ * boundary, written as a^2 h(va) - z'^2 h(v z') so v -> 0 needs no special case. */
+static double mean_t_c(double v, double a, double wc)
+{
+    double zp = a * wc;
+    return a * a * coth_h(v * a) - zp * zp * coth_h(v * zp);
+}
+
+double blw_mean_t_lo(double v, double a, double w)
+{
+    return mean_t_c(v, a, 1 - w);
+}
+
+/* E[T | upper](v, a, w) = E[T | lower](-v, a, 1 - w) and h is even: the distance to the far boundary
+ * is the start itself, passed without rounding. */
+double blw_mean_t(double v, double a, double w, int upper)
+{
+    return upper ? mean_t_c(v, a, w) : mean_t_c(v, a, 1 - w);
+}
+
+/* ---- public entry points ------------------------------------------------------------------------ */
+
+static inline int plain_ok(const bl_wiener_params *p)
+{
+    const double *x = p->value;
+    return x[BL_THRESHOLD] > 0 && x[BL_THRESHOLD] < INFINITY && fabs(x[BL_DRIFT]) < INFINITY &&
+           x[BL_NONDECISION] >= 0 && x[BL_NONDECISION] < INFINITY && x[BL_START] > 0 && x[BL_START] < 1 &&
+           x[BL_DRIFT_SD] >= 0 && x[BL_DRIFT_SD] < INFINITY && x[BL_START_RANGE] == 0 &&
+           x[BL_NONDECISION_RANGE] == 0 && x[BL_CONTAMINATION] == 0;
+}
+
+bl_status bl_wiener_log_density(const bl_wiener_params *p, double rt, int upper, double *log_density,
+                                bl_error *err)
+{
+    if (!isfinite(rt)) return bl_error_set(err, BL_ERR_RANGE, "response time must be finite (got %g)", rt);
+    if (plain_ok(p)) {
+        const double *x = p->value;
+        double t = rt - x[BL_NONDECISION];
+        *log_density = t > 0 ? blw_log_dens(t, x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], x[BL_DRIFT_SD],
+                                            upper, NULL)
+                             : -INFINITY;
+        return BL_OK;
+    }
+    bl_status s = bl_wiener_check(p, err);
+    if (s) return s;
+    return blw_log_density_full(p, rt, upper, log_density, NULL, err);
+}
+
+bl_status bl_wiener_log_density_grad(const bl_wiener_params *p, double rt, int upper, double *log_density,
+                                     double grad[BL_NPARAM], bl_error *err)
+{
+    if (!isfinite(rt)) return bl_error_set(err, BL_ERR_RANGE, "response time must be finite (got %g)", rt);
+    if (plain_ok(p)) {
+        const double *x = p->value;
+        double t = rt - x[BL_NONDECISION];
+        if (!(t > 0)) {
+            *log_density = -INFINITY;
+            for (int i = 0; i < BL_NPARAM; i++) grad[i] = 0;
+            return BL_OK;
+        }
+        double g[BLW_NG];
+        *log_density = blw_log_dens(t, x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], x[BL_DRIFT_SD], upper, g);
+        grad[BL_THRESHOLD] = g[BLW_GA];
+        grad[BL_DRIFT] = g[BLW_GV];
+        grad[BL_NONDECISION] = -g[BLW_GT];
+        grad[BL_START] = g[BLW_GW];
+        grad[BL_DRIFT_SD] = g[BLW_GSV];
+        /* At start_range = 0 and nondecision_range = 0 the density is even in the range to first
+         * order (f + range^2 f''/24), so the one-sided derivative is 0. */
+        grad[BL_START_RANGE] = 0;
+        grad[BL_NONDECISION_RANGE] = 0;
+        /* d/dp0 of (1-p0) f + p0 c at p0 = 0, divided by f. */
+        double lo = p->contamination_lo, hi = p->contamination_hi;
+        double c = (lo < hi && rt >= lo && rt <= hi) ? 0.5 / (hi - lo) : 0;
+        grad[BL_CONTAMINATION] = (c > 0 ? exp(log(c) - *log_density) : 0) - 1;
+        return BL_OK;
+    }
+    bl_status s = bl_wiener_check(p, err);
+    if (s) return s;
+    return blw_log_density_full(p, rt, upper, log_density, grad, err);
+}
+
+/* P(boundary) and E[T | boundary] averaged over the drift_sd normal and the start_range uniform.
+ * Drift: composite Gauss-Legendre over x in [-9, 9] (nu = v + sv x, normal weight), panels no wider
+ * than the distance pi/(a sv) of P's poles from the real axis; start: Gauss-Legendre, 24 nodes.
+ * Not a hot path (used for predictions), so it favours accuracy (checked against GSL qagi to 1e-9). */
+static void moments_var(double a, double v, double w, double sv, double sz, int upper, double *prob,
+                        double *mean_t)
+{
+    const double *gx, *gw, *lx, *lw;
+    static const double one = 1, zero = 0;
+    int panels = 1, ng = 1, nl = 1;
+    double half = 0;
+    gx = lx = &zero;
+    gw = lw = &one;
+    if (sv > 0) {
+        double width = fmin(1.5, BLW_PI / (a * sv));
+        panels = (int)ceil(18 / width);
+        if (panels > 400) panels = 400;
+        half = 9.0 / panels;
+        blw_gauss_legendre(ng = 16, &gx, &gw);
+    }
+    if (sz > 0) blw_gauss_legendre(nl = 24, &lx, &lw);
+    /* Weighted in logs relative to the plain-parameter probability so tiny probabilities work. */
+    double ref = blw_log_p(v, a, w, upper);
+    double P = 0, M = 0;
+    for (int pi = 0; pi < panels; pi++) {
+        double centre = sv > 0 ? -9 + (2 * pi + 1) * half : 0;
+        for (int i = 0; i < ng; i++) {
+            double xi = centre + half * gx[i];
+            double wi = sv > 0 ? gw[i] * 2 * half * exp(-0.5 * xi * xi) * 0.39894228040143267794 : 1;
+            double vi = v + sv * xi;
+            for (int j = 0; j < nl; j++) {
+                double wj = w + 0.5 * sz * lx[j];
+                double pij = wi * lw[j] * exp(blw_log_p(vi, a, wj, upper) - ref);
+                double mij = blw_mean_t(vi, a, wj, upper);
+                P += pij;
+                M += pij * mij;
+            }
+        }
+    }
+    if (prob) *prob = exp(ref) * P;
+    if (mean_t) *mean_t = M / P;
+}
+
+static void variability_moments(const bl_wiener_params *p, int upper, double *prob, double *mean_t)
+{
+    const double *x = p->value;
+    moments_var(x[BL_THRESHOLD], x[BL_DRIFT], x[BL_START], x[BL_DRIFT_SD], x[BL_START_RANGE], upper, prob, mean_t);
+}
+
+double blw_p_var(double v, double a, double w, double sv, double sz, int upper)
+{
+    double P;
+    if (sv == 0 && sz == 0) return exp(blw_log_p(v, a, w, upper));
+    moments_var(a, v, w, sv, sz, upper, &P, NULL);
+    return P;
+}
+
+bl_status bl_wiener_p_boundary(const bl_wiener_params *p, int upper, double *prob, bl_error *err)
+{
+    bl_status s = bl_wiener_check(p, err);
+    if (s) return s;
+    const double *x = p->value;
+    double pb;
+    if (x[BL_DRIFT_SD] == 0 && x[BL_START_RANGE] == 0)
+        pb = exp(blw_log_p(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper));
+    else
+        variability_moments(p, upper, &pb, NULL);
+    double p0 = x[BL_CONTAMINATION];
+    *prob = (1 - p0) * pb + 0.5 * p0;
+    return BL_OK;
+}
+
+bl_status bl_wiener_p_upper(const bl_wiener_params *p, double *p_upper, bl_error *err)
+{
+    return bl_wiener_p_boundary(p, 1, p_upper, err);
+}
+
+bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double *mean_rt, bl_error *err)
+{
+    bl_status s = bl_wiener_check(p, err);
+    if (s) return s;
+    const double *x = p->value;
+    double m, pb = 0;
+    double p0 = x[BL_CONTAMINATION];
+    if (x[BL_DRIFT_SD] == 0 && x[BL_START_RANGE] == 0) {
+        m = blw_mean_t(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper);
+        if (p0 > 0) pb = exp(blw_log_p(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper));
+    } else {
+        variability_moments(p, upper, &pb, &m);
+    }
+    /* Uniform nondecision variability is symmetric about nondecision: the mean is unchanged. */
+    m += x[BL_NONDECISION];
+    if (p0 > 0) {
+        double wd = (1 - p0) * pb, wc = 0.5 * p0;
+        m = (wd * m + wc * 0.5 * (p->contamination_lo + p->contamination_hi)) / (wd + wc);
+    }
+    if (!isfinite(m)) return bl_error_set(err, BL_ERR_NUMERIC, "mean response time is not finite");
+    *mean_rt = m;
+    return BL_OK;
+}

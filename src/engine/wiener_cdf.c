@@ -1,0 +1,700 @@
+/* Wiener first-passage CDF, the density with across-trial variability and contaminants, quantiles.
+ *
+ * Sources: CDF series of Blurton, Kesselmeier & Gondan (2012, J. Math. Psych. 56:470-475) (small
+ * time, here written with log Phi terms) and the term-by-term integral of the Navarro & Fuss (2009)
+ * large-time series for the survival; nondecision_range by the exact CDF difference
+ * [F(rt - t0 + st/2) - F(rt - t0 - st/2)] / st; contaminants as a uniform mixture
+ * (Ratcliff & Tuerlinckx 2002, Psychon. Bull. Rev. 9:438-481). See docs/methods.md.
+ */
+#include "engine/wiener_internal.h"
+
+#include <float.h>
+#include <math.h>
+
+static const double LOG_SQRT_2PI = 0.91893853320467274178;
+static const double CDF_EPS = 1e-13;
+
+/* log of the standard normal CDF; asymptotic series where erfc would underflow. */
+static double ln_Phi(double x)
+{
+    if (x > -35) return log(0.5 * erfc(-x * BLW_SQRT1_2));
+    double r = 1 / (x * x);
+    double s = 1 + r * (-1 + r * (3 + r * (-15 + r * (105 + r * (-945 + r * 10395)))));
+    return -0.5 * x * x - log(-x) - LOG_SQRT_2PI + log(s);
+}
+
+/* Small-time series for the lower boundary:
+ * F = sum_k (-1)^k [exp(-v(aw + r_k)) Phi((vt - r_k)/sqrt t) + exp(v(r_k - aw)) Phi(-(r_k + vt)/sqrt t)],
+ * r_k = k a + a w (k even), (k + 1) a - a w (k odd). Terms decrease in k, so the alternating sum stops
+ * at the first term below CDF_EPS times the sum. With dl != NULL also d log F / d(a, v, w). */
+/* The same series without logs of Phi: Phi from erfc directly, scaled by the exponential prefactors.
+ * Returns 0 (caller falls back to the log form) when a Phi value could underflow. */
+static int cdf_small_fast(double t, double v, double a, double w, double wc, double *lF)
+{
+    double st = sqrt(t), r0 = a * w;
+    double m = fmax(-v * (a * w + r0), v * (r0 - a * w));
+    double S = 0;
+    for (int k = 0; k < 2000; k++) {
+        double r = (k % 2 == 0) ? k * a + a * w : k * a + a * wc;
+        double y1 = (v * t - r) / st, y2 = -(r + v * t) / st;
+        if (y1 < -30 || y2 < -30) return 0;
+        double e1 = -v * (a * w + r) - m, e2 = v * (r - a * w) - m;
+        if (e1 > 700 || e2 > 700) return 0;
+        double term = 0.5 * (erfc(-y1 * BLW_SQRT1_2) * exp(e1) + erfc(-y2 * BLW_SQRT1_2) * exp(e2));
+        S += (k % 2) ? -term : term;
+        if (k >= 1 && term <= CDF_EPS * fabs(S)) {
+            if (!(S > 1e-250)) return 0;
+            *lF = m + log(S);
+            return 1;
+        }
+    }
+    return 0;
+}
+
+static bl_status cdf_small(double t, double v, double a, double w, double wc, double *lF, double *dl)
+{
+    if (!dl && cdf_small_fast(t, v, a, w, wc, lF)) return BL_OK;
+    double st = sqrt(t);
+    double m = 0, S = 0, dS[3] = {0, 0, 0};
+    for (int k = 0; k < 2000; k++) {
+        double r, ra, rw;
+        if (k % 2 == 0) {
+            r = k * a + a * w;
+            ra = k + w;
+            rw = a;
+        } else {
+            r = k * a + a * wc;
+            ra = k + wc;
+            rw = -a;
+        }
+        double y1 = (v * t - r) / st, y2 = -(r + v * t) / st;
+        double l1 = ln_Phi(y1), l2 = ln_Phi(y2);
+        double A = -v * (a * w + r) + l1, B = v * (r - a * w) + l2;
+        if (k == 0) m = A > B ? A : B;
+        double eA = exp(A - m), eB = exp(B - m);
+        double sg = (k % 2) ? -1 : 1;
+        double term = eA + eB;
+        S += sg * term;
+        int small = term <= CDF_EPS * fabs(S);
+        if (dl) {
+            /* d log Phi(y)/dy = phi(y)/Phi(y) */
+            double h1 = exp(-0.5 * y1 * y1 - LOG_SQRT_2PI - l1), h2 = exp(-0.5 * y2 * y2 - LOG_SQRT_2PI - l2);
+            double dA[3] = {-v * (w + ra) - h1 * ra / st, -(a * w + r) + h1 * st, -v * (a + rw) - h1 * rw / st};
+            double dB[3] = {v * (ra - w) - h2 * ra / st, (r - a * w) - h2 * st, v * (rw - a) - h2 * rw / st};
+            for (int i = 0; i < 3; i++) {
+                double gt = eA * dA[i] + eB * dB[i];
+                dS[i] += sg * gt;
+                if (fabs(gt) > CDF_EPS * (fabs(dS[i]) + fabs(S))) small = 0;
+            }
+        }
+        if (k >= 1 && small) {
+            if (!(S > 0)) {
+                *lF = -INFINITY;
+                if (dl) dl[0] = dl[1] = dl[2] = 0;
+                return S == 0 ? BL_OK : BL_ERR_NUMERIC;
+            }
+            *lF = m + log(S);
+            if (dl)
+                for (int i = 0; i < 3; i++) dl[i] = dS[i] / S;
+            return BL_OK;
+        }
+    }
+    return BL_ERR_NUMERIC;
+}
+
+/* Large-time series for the lower-boundary survival P(T > t, lower)
+ * = 2 pi exp(-vaw - v^2 t/2 - q) g(v),  g(nu) = sum_k k sin(k pi w) e^{-(k^2-1) q} / (nu^2 a^2 + k^2 pi^2),
+ * q = pi^2 t/(2a^2) (the Navarro-Fuss large-time density integrated term by term).
+ * Tail after K terms <= (sin(pi w)/pi^2) e^{-(X^2-1)q} (1 + 1/(2qX)), X = K + 1, for every nu.
+ * With drift_sd the normal drift density times exp(-nu a w - nu^2 t/2) is C N(nu; m', s'^2) with
+ * D = 1 + sv^2 t, m' = (v - sv^2 a w)/D, s' = sv/sqrt(D) and log C the density's drift_sd exponent, so
+ * S = 2 pi C e^{-q} E[g(m' + s' x)], x ~ N(0,1), by Gauss-Hermite: g has poles only at nu = +-i k pi/a,
+ * so the node count follows s' a. With dl != NULL: d log S / d(a, v, w, sv). */
+/* surv_large without drift_sd or derivatives: one pass, no tables. The survival is
+ * 2 pi exp(*pf) * (*sum) with *pf = -v a w - v^2 t/2 - q. */
+static bl_status surv_plain_parts(double t, double v, double a, double w, double wc, double *pf, double *sum)
+{
+    double q = 4.934802200544679309 * t / (a * a);
+    double dmin = w < 0.5 ? w : wc;
+    double s1, c1;
+    blw_sincospi(dmin, &s1, &c1);
+    if (w > 0.5) c1 = -c1;
+    double va2 = v * v * a * a, pi2 = BLW_PI * BLW_PI;
+    double E = exp(-q), E2 = E * E, r = E2 * E;
+    double ek = 1, sk = s1, skm = 0, tc = 2 * c1;
+    double S = s1 / (va2 + pi2);
+    double iq2 = 0.5 / q;
+    for (int k = 1; k < 10000; k++) {
+        double X = k + 1;
+        double eX = ek * r;
+        r *= E2;
+        /* tail <= (sin(pi w)/pi^2) e_X (1 + 1/(2qX)); multiplied through by X */
+        if ((s1 / pi2) * eX * (X + iq2) <= CDF_EPS * S * X || eX == 0) {
+            if (!(S > 0)) return BL_ERR_NUMERIC;
+            *pf = -v * a * w - 0.5 * v * v * t - q;
+            *sum = S;
+            return BL_OK;
+        }
+        double sX = tc * sk - skm;
+        S += X * sX * eX / (va2 + X * X * pi2);
+        skm = sk;
+        sk = sX;
+        ek = eX;
+    }
+    return BL_ERR_NUMERIC;
+}
+
+static bl_status surv_plain(double t, double v, double a, double w, double wc, double *lS)
+{
+    double pf, sum;
+    bl_status s = surv_plain_parts(t, v, a, w, wc, &pf, &sum);
+    if (!s) *lS = log(2 * BLW_PI * sum) + pf;
+    return s;
+}
+
+static bl_status surv_large(double t, double v, double a, double w, double wc, double sv, double *lS, double *dl)
+{
+    if (sv == 0 && !dl) return surv_plain(t, v, a, w, wc, lS);
+    double q = 4.934802200544679309 * t / (a * a);
+    double dmin = w < 0.5 ? w : wc;
+    double s1, c1;
+    blw_sincospi(dmin, &s1, &c1);
+    if (w > 0.5) c1 = -c1;
+    double pi2 = BLW_PI * BLW_PI, a2 = a * a;
+    double E = exp(-q), E2 = E * E;
+    /* terms k = 1..K (nu-independent parts), K from the tail bound relative to the smallest g */
+    enum { KMAX = 400 };
+    double ke[KMAX + 1], kc[KMAX + 1];
+    double sv2 = sv * sv, D = 1 + sv2 * t;
+    double mprime = (v - sv2 * a * w) / D, sprime = sv / sqrt(D);
+    const double *gx, *gw;
+    static const double zero = 0, one = 1;
+    int n = 1;
+    gx = &zero;
+    gw = &one;
+    if (sv > 0) {
+        double sa = sprime * a;
+        n = blw_gauss_hermite(sa <= 0.5 ? 12 : sa <= 1 ? 20 : sa <= 2 ? 32 : sa <= 3 ? 48 : 64, &gx, &gw);
+    }
+    double xmax = 0;
+    for (int i = 0; i < n; i++) xmax = fmax(xmax, fabs(gx[i]));
+    double numax = fabs(mprime) + sprime * xmax;
+    /* g(nu) >= s1 / (nu^2 a^2 + pi^2) * (1 - small): use it to bound relative tails */
+    double gmin = s1 / (numax * numax * a2 + pi2);
+    int K = 1;
+    {
+        double ek = 1, sk = s1, skm = 0, ck = c1, ckm = 1, r = E2 * E;
+        ke[1] = s1;      /* k s_k e_k */
+        kc[1] = c1;      /* k^2 c_k e_k / k = k c_k e_k */
+        for (int k = 1; k < KMAX; k++) {
+            double X = k + 1, eX = ek * r;
+            r *= E2;
+            double bound = (s1 / pi2) * eX * (1 + 0.5 / (q * X));
+            if (dl) bound *= X * X * (1 + 2 * q / a + BLW_PI + numax * numax * a2);
+            if (bound <= CDF_EPS * 0.5 * gmin * (1 - 0.5 * CDF_EPS) || eX == 0) break;
+            double sX = 2 * c1 * sk - skm, cX = 2 * c1 * ck - ckm;
+            ke[k + 1] = X * sX * eX;
+            kc[k + 1] = X * cX * eX;
+            K = k + 1;
+            skm = sk;
+            sk = sX;
+            ckm = ck;
+            ck = cX;
+            ek = eX;
+        }
+        if (K >= KMAX) return BL_ERR_NUMERIC;
+    }
+    double G = 0, Gn = 0, Gx = 0, Ga = 0, Gw = 0;
+    for (int i = 0; i < n; i++) {
+        double nu = mprime + sprime * gx[i], nu2a2 = nu * nu * a2;
+        double g = 0, gn = 0, ga = 0, gwv = 0;
+        for (int k = 1; k <= K; k++) {
+            double den = nu2a2 + k * k * pi2, term = ke[k] / den;
+            g += term;
+            if (dl) {
+                gn += -term * 2 * nu * a2 / den;
+                ga += term * ((double)(k * k - 1) * 2 * q / a - 2 * nu * nu * a / den);
+                gwv += k * BLW_PI * kc[k] / den;
+            }
+        }
+        G += gw[i] * g;
+        if (dl) {
+            Gn += gw[i] * gn;
+            Gx += gw[i] * gn * gx[i];
+            Ga += gw[i] * ga;
+            Gw += gw[i] * gwv;
+        }
+    }
+    if (!(G > 0)) return BL_ERR_NUMERIC;
+    double logC = sv == 0 ? -v * a * w - 0.5 * v * v * t
+                          : -0.5 * log1p(sv2 * t) + (sv2 * a2 * w * w - 2 * v * a * w - v * v * t) / (2 * D);
+    *lS = log(2 * BLW_PI * G) + logC - q;
+    if (dl) {
+        double m = a * w + v * t;
+        /* d log C (the density's drift_sd exponent, numerics notes 4) */
+        double Ca = (sv2 * a * w * w - v * w) / D, Cv = -m / D, Cw = (sv2 * a2 * w - v * a) / D,
+               Csv = sv * (m * m / (D * D) - t / D);
+        /* d m', d s' */
+        double ma = -sv2 * w / D, mv = 1 / D, mw = -sv2 * a / D;
+        double msv = -2 * sv * a * w / D - (v - sv2 * a * w) * 2 * sv * t / (D * D);
+        double ssv = 1 / (D * sqrt(D));
+        dl[0] = Ca + 2 * q / a + (Gn * ma + Ga) / G;
+        dl[1] = Cv + Gn * mv / G;
+        dl[2] = Cw + (Gn * mw + Gw) / G;
+        dl[3] = Csv + (Gn * msv + Gx * ssv) / G;
+    }
+    return BL_OK;
+}
+
+/* wc = 1 - w exactly (the user's start for the upper boundary) */
+/* lP = log P_lo(v, a, w) when the caller has it, else NAN */
+static bl_status cdf_lo_c(double t, double v, double a, double w, double wc, double lP, double *log_cdf,
+                          double *log_surv)
+{
+    if (isnan(lP)) lP = blw_log_p(-v, a, wc, 1); /* = log P_lo(v, a, w) with the complement kept exact */
+    if (!(t > 0)) {
+        *log_cdf = -INFINITY;
+        if (log_surv) *log_surv = lP;
+        return BL_OK;
+    }
+    double u = t / (a * a);
+    bl_status s;
+    /* With the start within 1e-3 of the far boundary the small-time series' first two images cancel
+     * to ~wc; from u = 0.05 on the survival series is used instead (its complement F = P - S is then
+     * well conditioned). */
+    if (u < (wc < 1e-3 ? 0.05 : BLW_U_SWITCH)) {
+        if ((s = cdf_small(t, v, a, w, wc, log_cdf, NULL))) return s;
+        if (*log_cdf > lP) *log_cdf = lP;
+        if (log_surv) {
+            if (u >= 0.05) {
+                if ((s = surv_large(t, v, a, w, wc, 0, log_surv, NULL))) return s;
+            } else {
+                *log_surv = blw_logsubexp(lP, *log_cdf);
+            }
+        }
+    } else {
+        double lS;
+        if ((s = surv_large(t, v, a, w, wc, 0, &lS, NULL))) return s;
+        if (lS > lP) lS = lP;
+        *log_cdf = blw_logsubexp(lP, lS);
+        if (log_surv) *log_surv = lS;
+    }
+    return BL_OK;
+}
+
+bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf, double *log_surv)
+{
+    return cdf_lo_c(t, v, a, w, 1 - w, NAN, log_cdf, log_surv);
+}
+
+bl_status blw_log_cdf(double t, double v, double a, double w, int upper, double *log_cdf, double *log_surv)
+{
+    return upper ? cdf_lo_c(t, -v, a, 1 - w, w, NAN, log_cdf, log_surv)
+                 : cdf_lo_c(t, v, a, w, 1 - w, NAN, log_cdf, log_surv);
+}
+
+/* log F at the boundary with log P(boundary) already known (saves the probability per call) */
+static bl_status log_cdf_lp(double t, double v, double a, double w, int upper, double lP, double *log_cdf)
+{
+    return upper ? cdf_lo_c(t, -v, a, 1 - w, w, lP, log_cdf, NULL) : cdf_lo_c(t, v, a, w, 1 - w, lP, log_cdf, NULL);
+}
+
+bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, double *log_cdf, double dl[3])
+{
+    if (!(t > 0)) {
+        *log_cdf = -INFINITY;
+        dl[0] = dl[1] = dl[2] = 0;
+        return BL_OK;
+    }
+    if (!upper) return cdf_small(t, v, a, w, 1 - w, log_cdf, dl);
+    bl_status s = cdf_small(t, -v, a, 1 - w, w, log_cdf, dl);
+    dl[1] = -dl[1];
+    dl[2] = -dl[2];
+    return s;
+}
+
+/* Survival P(T > t, boundary) by the large-time series (drift_sd included exactly up to the
+ * Gauss-Hermite rule), with d log S / d(a, v, w, sv). */
+static bl_status surv_direct(double t, double v, double a, double w, double sv, int upper, double *lS, double dl[4])
+{
+    if (!upper) return surv_large(t, v, a, w, 1 - w, sv, lS, dl);
+    bl_status s = surv_large(t, -v, a, 1 - w, w, sv, lS, dl);
+    if (dl) {
+        dl[1] = -dl[1];
+        dl[2] = -dl[2];
+    }
+    return s;
+}
+
+/* ---- density with variability ------------------------------------------------------------------- */
+
+/* log F (surv = 0) or log S (surv = 1, large-time series; only for y/a^2 >= 0.25) at decision time y
+ * for one start value, averaged over the drift_sd normal by Gauss-Hermite.
+ * dl (optional) receives d log F (or log S) / d(a, v, w, sv). */
+static bl_status cdf_sv(double y, double v, double a, double w, double sv, int upper, int surv, double lP,
+                        double *lF, double dl[4])
+{
+    bl_status s;
+    if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
+    if (sv == 0) {
+        if (!dl) return log_cdf_lp(y, v, a, w, upper, lP, lF);
+        s = blw_log_cdf_grad(y, v, a, w, upper, lF, dl); /* fills dl[0..2] */
+        dl[3] = 0;
+        return s;
+    }
+    const double *gx, *gw;
+    int n = blw_gauss_hermite(blw_gh_nodes_drift_sd(sv, a, y), &gx, &gw);
+    double lfi[96], di[96][3];
+    double mx = -INFINITY;
+    for (int i = 0; i < n; i++) {
+        double vi = v + sv * gx[i];
+        s = dl ? blw_log_cdf_grad(y, vi, a, w, upper, &lfi[i], di[i]) : blw_log_cdf(y, vi, a, w, upper, &lfi[i], NULL);
+        if (s) return s;
+        if (lfi[i] > mx) mx = lfi[i];
+    }
+    if (mx == -INFINITY) {
+        *lF = -INFINITY;
+        if (dl) dl[0] = dl[1] = dl[2] = dl[3] = 0;
+        return BL_OK;
+    }
+    double S = 0, D[4] = {0, 0, 0, 0};
+    for (int i = 0; i < n; i++) {
+        double e = gw[i] * exp(lfi[i] - mx);
+        S += e;
+        if (dl) {
+            D[0] += e * di[i][0];
+            D[1] += e * di[i][1];
+            D[2] += e * di[i][2];
+            D[3] += e * di[i][1] * gx[i];
+        }
+    }
+    *lF = mx + log(S);
+    if (dl)
+        for (int j = 0; j < 4; j++) dl[j] = D[j] / S;
+    return BL_OK;
+}
+
+/* nondecision_range window narrow against the CDF's scale: average the density over t0' by 8-node
+ * Gauss-Legendre (weights sum to 1). Gradient by differentiating under the sum. */
+static bl_status dens_narrow_window(const bl_wiener_params *p, double rt, double w, int upper, double *lf, double *g)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], sv = x[BL_DRIFT_SD];
+    double st = x[BL_NONDECISION_RANGE];
+    const double *gx, *gw;
+    blw_gauss_legendre(8, &gx, &gw);
+    double lfi[8], gi[8][BLW_NG], mx = -INFINITY;
+    for (int i = 0; i < 8; i++) {
+        lfi[i] = blw_log_dens(rt - t0 + 0.5 * st * gx[i], v, a, w, sv, upper, g ? gi[i] : NULL);
+        if (lfi[i] > mx) mx = lfi[i];
+    }
+    double S = 0, G[BLW_NG] = {0}, Gst = 0;
+    for (int i = 0; i < 8; i++) {
+        double e = gw[i] * exp(lfi[i] - mx);
+        S += e;
+        if (g) {
+            for (int j = 0; j < BLW_NG; j++) G[j] += e * gi[i][j];
+            Gst += e * gi[i][BLW_GT] * 0.5 * gx[i];
+        }
+    }
+    *lf = mx + log(S);
+    if (g) {
+        g[BL_THRESHOLD] = G[BLW_GA] / S;
+        g[BL_DRIFT] = G[BLW_GV] / S;
+        g[BL_START] = G[BLW_GW] / S;
+        g[BL_DRIFT_SD] = G[BLW_GSV] / S;
+        g[BL_NONDECISION] = -G[BLW_GT] / S;
+        g[BL_NONDECISION_RANGE] = Gst / S;
+    }
+    return BL_OK;
+}
+
+/* One start value: log density (no contaminants) with nondecision_range by the CDF difference.
+ * g (optional, BL_NPARAM entries) receives d log f for threshold, drift, nondecision, start,
+ * drift_sd and nondecision_range. */
+static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, int upper, double *lf, double *g)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], sv = x[BL_DRIFT_SD];
+    double st = x[BL_NONDECISION_RANGE];
+    if (g)
+        for (int i = 0; i < BL_NPARAM; i++) g[i] = 0;
+    if (st == 0) {
+        double t = rt - t0;
+        if (!(t > 0)) {
+            *lf = -INFINITY;
+            return BL_OK;
+        }
+        double g5[BLW_NG];
+        *lf = blw_log_dens(t, v, a, w, sv, upper, g ? g5 : NULL);
+        if (g) {
+            g[BL_THRESHOLD] = g5[BLW_GA];
+            g[BL_DRIFT] = g5[BLW_GV];
+            g[BL_START] = g5[BLW_GW];
+            g[BL_NONDECISION] = -g5[BLW_GT];
+            g[BL_DRIFT_SD] = g5[BLW_GSV];
+        }
+        return BL_OK;
+    }
+    double hi = rt - t0 + 0.5 * st, lo = rt - t0 - 0.5 * st;
+    if (!(hi > 0)) {
+        *lf = -INFINITY;
+        return BL_OK;
+    }
+    /* F(hi) - F(lo), or S(lo) - S(hi) when both ends are in the large-time range: there F is close to
+     * P(boundary) and the survival difference keeps the digits. */
+    int surv = lo / (a * a) >= BLW_U_SWITCH;
+    if (surv && sv == 0 && !g) {
+        /* S(lo) - S(hi) = 2 pi e^{pf_lo} [sum_lo - e^{pf_hi - pf_lo} sum_hi]: one log instead of four */
+        double vv = upper ? -v : v, ww = upper ? 1 - w : w, wc = upper ? w : 1 - w;
+        double pfl, sml, pfh, smh;
+        bl_status s = surv_plain_parts(lo, vv, a, ww, wc, &pfl, &sml);
+        if (!s) s = surv_plain_parts(hi, vv, a, ww, wc, &pfh, &smh);
+        if (s) return s;
+        double br = sml - exp(pfh - pfl) * smh;
+        if (!(br > 0)) br = 0;
+        if (br == 0 || sml > 1e3 * br) return dens_narrow_window(p, rt, w, upper, lf, g);
+        *lf = pfl + log(2 * BLW_PI * br / st);
+        return BL_OK;
+    }
+    double lFhi, lFlo = -INFINITY, dhi[4] = {0, 0, 0, 0}, dlo[4] = {0, 0, 0, 0};
+    double lP = (!surv && sv == 0 && !g) ? blw_log_p(v, a, w, upper) : NAN;
+    bl_status s = cdf_sv(hi, v, a, w, sv, upper, surv, lP, &lFhi, g ? dhi : NULL);
+    if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, surv, lP, &lFlo, g ? dlo : NULL);
+    if (s) return s;
+    double ld = surv ? blw_logsubexp(lFlo, lFhi) : blw_logsubexp(lFhi, lFlo);
+    /* A window much narrower than the CDF's own scale (ratio F/(F(hi) - F(lo)) > 1e3) would lose
+     * digits to the subtraction; there ln f changes by less than 1/ratio across the window, so an
+     * 8-node Gauss-Legendre average of the density itself is exact to rounding. */
+    if (lo > 0 && ld > -INFINITY && exp((surv ? lFlo : lFhi) - ld) > 1e3) return dens_narrow_window(p, rt, w, upper, lf, g);
+    *lf = ld - log(st);
+    if (!g || ld == -INFINITY) return BL_OK;
+    double rh = exp(lFhi - ld), rl = lFlo == -INFINITY ? 0 : exp(lFlo - ld);
+    if (surv) {
+        rh = -rh;
+        rl = -rl;
+    }
+    static const int map[4] = {BL_THRESHOLD, BL_DRIFT, BL_START, BL_DRIFT_SD};
+    for (int j = 0; j < 4; j++) g[map[j]] = rh * dhi[j] - rl * dlo[j];
+    /* dF(y)/dy = f(y): d/dt0 = [f(lo) - f(hi)] / (F(hi) - F(lo)); d/dst adds the half-sum. */
+    double fh = exp(blw_log_dens(hi, v, a, w, sv, upper, NULL) - ld);
+    double fl = lo > 0 ? exp(blw_log_dens(lo, v, a, w, sv, upper, NULL) - ld) : 0;
+    g[BL_NONDECISION] = fl - fh;
+    g[BL_NONDECISION_RANGE] = 0.5 * (fh + fl) - 1 / st;
+    return BL_OK;
+}
+
+bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld, double *grad,
+                               bl_error *err)
+{
+    if (!blw_tables_ok()) return bl_error_set(err, BL_ERR_NOMEM, "cannot build the quadrature tables");
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], t0 = x[BL_NONDECISION], w = x[BL_START], sz = x[BL_START_RANGE];
+    double p0 = x[BL_CONTAMINATION];
+    double lfd, gd[BL_NPARAM];
+    bl_status s;
+    if (sz == 0) {
+        s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);
+    } else {
+        /* Gauss-Legendre over w' in [w - sz/2, w + sz/2]; node count from the earliest decision
+         * time in the window (the integrand's sharpest feature). */
+        /* with nondecision_range the integrand is a CDF difference, smooth across the window:
+         * half its middle sets the scale (verified to 1e-6 with tests/test_wiener_variability.c) */
+        double stw = x[BL_NONDECISION_RANGE], lo = rt - t0 - 0.5 * stw, hi = rt - t0 + 0.5 * stw;
+        double tmin = stw > 0 ? (lo > 0 ? fmax(lo, fmin(stw, 0.5 * (rt - t0))) : hi) : rt - t0;
+        if (!(tmin > 0)) tmin = 1e-3 * a * a;
+        const double *gx, *gw;
+        int n = blw_gl_nodes_start_range(sz, tmin / (a * a));
+        blw_gauss_legendre(n, &gx, &gw);
+        double lfi[BLW_GL_MAX], gi[BLW_GL_MAX][BL_NPARAM];
+        double mx = -INFINITY;
+        s = BL_OK;
+        for (int i = 0; i < n && !s; i++) {
+            s = dens_one_start(p, rt, w + 0.5 * sz * gx[i], upper, &lfi[i], grad ? gi[i] : NULL);
+            if (lfi[i] > mx) mx = lfi[i];
+        }
+        if (!s) {
+            if (mx == -INFINITY) {
+                lfd = -INFINITY;
+                for (int j = 0; j < BL_NPARAM; j++) gd[j] = 0;
+            } else {
+                double S = 0, G[BL_NPARAM] = {0};
+                for (int i = 0; i < n; i++) {
+                    double e = gw[i] * exp(lfi[i] - mx);
+                    S += e;
+                    if (grad) {
+                        for (int j = 0; j < BL_NPARAM; j++) G[j] += e * gi[i][j];
+                        G[BL_START_RANGE] += e * gi[i][BL_START] * 0.5 * gx[i];
+                    }
+                }
+                lfd = mx + log(S);
+                if (grad)
+                    for (int j = 0; j < BL_NPARAM; j++) gd[j] = G[j] / S;
+            }
+        }
+    }
+    if (s) return bl_error_set(err, s, "Wiener CDF series did not converge at rt %g", rt);
+    double lo = p->contamination_lo, hi = p->contamination_hi;
+    double c = (lo < hi && rt >= lo && rt <= hi) ? 0.5 / (hi - lo) : 0;
+    if (p0 > 0) {
+        double a1 = log1p(-p0) + lfd, a2 = c > 0 ? log(p0 * c) : -INFINITY;
+        *ld = blw_logaddexp(a1, a2);
+        if (grad) {
+            if (*ld == -INFINITY) {
+                for (int j = 0; j < BL_NPARAM; j++) grad[j] = 0;
+            } else {
+                double pd = exp(a1 - *ld);
+                for (int j = 0; j < BL_NPARAM; j++) grad[j] = pd * gd[j];
+                grad[BL_CONTAMINATION] = (c > 0 ? exp(log(c) - *ld) : 0) - (lfd == -INFINITY ? 0 : exp(lfd - *ld));
+            }
+        }
+    } else {
+        *ld = lfd;
+        if (grad) {
+            if (lfd == -INFINITY) {
+                for (int j = 0; j < BL_NPARAM; j++) grad[j] = 0;
+            } else {
+                for (int j = 0; j < BL_NPARAM; j++) grad[j] = gd[j];
+                grad[BL_CONTAMINATION] = (c > 0 ? exp(log(c) - lfd) : 0) - 1;
+            }
+        }
+    }
+    if (isnan(*ld)) return bl_error_set(err, BL_ERR_NUMERIC, "log-density is not a number at rt %g", rt);
+    return BL_OK;
+}
+
+/* ---- CDF with variability ----------------------------------------------------------------------- */
+
+/* F at decision time y (no nondecision variability), averaged over drift_sd and start_range. */
+static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, double *F)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], w = x[BL_START], sv = x[BL_DRIFT_SD], sz = x[BL_START_RANGE];
+    if (!(y > 0)) {
+        *F = 0;
+        return BL_OK;
+    }
+    const double *lx, *lw, *hx, *hw;
+    static const double one = 1, zero = 0;
+    int nl = 1, nh = 1;
+    lx = hx = &zero;
+    lw = hw = &one;
+    if (sz > 0) {
+        /* twice the density's rule: the CDF feeds quantiles, where accuracy matters more than speed */
+        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a));
+        if (nl > BLW_GL_MAX) nl = BLW_GL_MAX;
+        blw_gauss_legendre(nl, &lx, &lw);
+    }
+    if (sv > 0) nh = blw_gauss_hermite(2 * blw_gh_nodes_drift_sd(sv, a, y), &hx, &hw);
+    double S = 0;
+    int large = y / (a * a) >= BLW_U_SWITCH;
+    for (int i = 0; i < nl; i++) {
+        double wi = w + 0.5 * sz * lx[i];
+        if (sv > 0 && large) {
+            /* F = P - S with S by the drift-shifted survival series and P by the same quadrature as
+             * bl_wiener_p_boundary, so CDF(inf) = P(boundary) exactly */
+            double lS;
+            bl_status s = surv_direct(y, v, a, wi, sv, upper, &lS, NULL);
+            if (s) return s;
+            S += lw[i] * (blw_p_var(v, a, wi, sv, 0, upper) - exp(lS));
+            continue;
+        }
+        for (int j = 0; j < nh; j++) {
+            double lF;
+            bl_status s = blw_log_cdf(y, v + sv * hx[j], a, wi, upper, &lF, NULL);
+            if (s) return s;
+            S += lw[i] * hw[j] * exp(lF);
+        }
+    }
+    *F = S;
+    return BL_OK;
+}
+
+static bl_status cdf_ddm(const bl_wiener_params *p, double rt, int upper, double *F)
+{
+    const double *x = p->value;
+    double t0 = x[BL_NONDECISION], st = x[BL_NONDECISION_RANGE];
+    if (st == 0) return cdf_decision(p, rt - t0, upper, F);
+    /* (1/st) * integral of F(y) over y in [rt - t0 - st/2, rt - t0 + st/2]; F = 0 for y <= 0, so the
+     * integral starts at max(lo, 0) where F is smooth (Gauss-Legendre, 48 nodes). */
+    double lo = rt - t0 - 0.5 * st, hi = rt - t0 + 0.5 * st;
+    if (!(hi > 0)) {
+        *F = 0;
+        return BL_OK;
+    }
+    if (lo < 0) lo = 0;
+    const double *gx, *gw;
+    blw_gauss_legendre(48, &gx, &gw);
+    double S = 0;
+    for (int i = 0; i < 48; i++) {
+        double Fi;
+        bl_status s = cdf_decision(p, 0.5 * (lo + hi) + 0.5 * (hi - lo) * gx[i], upper, &Fi);
+        if (s) return s;
+        S += gw[i] * Fi;
+    }
+    *F = S * (hi - lo) / st;
+    return BL_OK;
+}
+
+bl_status bl_wiener_cdf(const bl_wiener_params *p, double rt, int upper, double *cdf, bl_error *err)
+{
+    bl_status s = bl_wiener_check(p, err);
+    if (s) return s;
+    if (!isfinite(rt)) return bl_error_set(err, BL_ERR_RANGE, "response time must be finite (got %g)", rt);
+    if (!blw_tables_ok()) return bl_error_set(err, BL_ERR_NOMEM, "cannot build the quadrature tables");
+    double F;
+    if ((s = cdf_ddm(p, rt, upper, &F)))
+        return bl_error_set(err, s, "Wiener CDF series did not converge at rt %g", rt);
+    double p0 = p->value[BL_CONTAMINATION];
+    if (p0 > 0) {
+        double lo = p->contamination_lo, hi = p->contamination_hi;
+        double c = rt <= lo ? 0 : rt >= hi ? 1 : (rt - lo) / (hi - lo);
+        F = (1 - p0) * F + 0.5 * p0 * c;
+    }
+    *cdf = F;
+    return BL_OK;
+}
+
+bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, double *rt, bl_error *err)
+{
+    bl_status s = bl_wiener_check(p, err);
+    if (s) return s;
+    if (!(prob > 0 && prob < 1)) return bl_error_set(err, BL_ERR_RANGE, "quantile probability must lie in (0, 1) (got %g)", prob);
+    double P, m;
+    const char *side = upper ? "upper" : "lower";
+    if ((s = bl_wiener_p_boundary(p, upper, &P, err))) return s;
+    if (!(P > 1e-300))
+        return bl_error_set(err, BL_ERR_NUMERIC, "the %s boundary has probability %g: no quantile", side, P);
+    if ((s = bl_wiener_mean_rt(p, upper, &m, err))) return s;
+    double target = prob * P;
+    const double *x = p->value;
+    double lo = x[BL_NONDECISION] - 0.5 * x[BL_NONDECISION_RANGE];
+    if (x[BL_CONTAMINATION] > 0 && p->contamination_lo < lo) lo = p->contamination_lo;
+    /* Bracket: grow hi from the mean until the CDF passes the target. */
+    double hi = m > lo ? m : lo + 1, F;
+    for (int i = 0;; i++) {
+        if ((s = bl_wiener_cdf(p, hi, upper, &F, err))) return s;
+        if (F >= target) break;
+        if (i > 200) return bl_error_set(err, BL_ERR_NUMERIC, "cannot bracket the %s quantile %g", side, prob);
+        lo = hi;
+        hi = lo + 2 * (hi - x[BL_NONDECISION] + 0.1);
+    }
+    /* Safeguarded Newton: the density is the derivative of the CDF. */
+    double r = 0.5 * (lo + hi);
+    for (int it = 0; it < 200; it++) {
+        if ((s = bl_wiener_cdf(p, r, upper, &F, err))) return s;
+        double G = F - target;
+        if (G < 0) lo = r;
+        else hi = r;
+        if (fabs(G) <= 1e-14 * P || hi - lo <= 2 * DBL_EPSILON * fabs(r)) {
+            *rt = r;
+            return BL_OK;
+        }
+        double ld;
+        if ((s = bl_wiener_log_density(p, r, upper, &ld, err))) return s;
+        double step = ld > -700 ? G / exp(ld) : INFINITY;
+        double rn = r - step;
+        r = (rn > lo && rn < hi && isfinite(rn)) ? rn : 0.5 * (lo + hi);
+    }
+    return bl_error_set(err, BL_ERR_NUMERIC, "the %s quantile %g did not converge", side, prob);
+}

@@ -1,0 +1,1177 @@
+/* Maximum-likelihood fitting of compiled models, inference, and the fits of a study (pooled or one
+ * per participant; group summaries and permutation tests are in compare.c).
+ *
+ * Optimiser: GSL's BFGS (vector_bfgs2: Fletcher, Practical Methods of Optimization, 2nd ed., 1987,
+ * algorithms 2.6.2 and 2.6.4) on the analytic gradient, in an unconstrained parameterisation where one
+ * exists (numerics.md section 8): intercept-only parameters on the identity link are optimised as
+ * log(threshold), logit(start), nondecision = min RT of the cell * logistic(.), and so on; other
+ * coefficients are optimised directly (slopes scaled by their regressor's root mean square), with
+ * infeasible points returning +inf so the line search backs off. Starting values from EZ-diffusion
+ * per cell (Wagenmakers, van der Maas & Grasman 2007, Psychon. Bull. Rev. 14:3-22), several starts,
+ * Nelder-Mead (GSL nmsimplex2; Nelder & Mead 1965) as the fallback, then Newton polishing with the
+ * observed information.
+ * Inference: observed information from central differences of the analytic gradient, symmetrised,
+ * inverted by Cholesky (LAPACKE dpotrf/dpotri); Wald SE, z, p and 95% intervals.
+ */
+#include "fit/fit_internal.h"
+#include "design/model_internal.h"
+
+#include "fit/fit.h"
+#include "fit/screen.h"
+#include "core/strutil.h"
+
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_multimin.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <lapacke.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#ifdef _OPENMP
+#include <omp.h>
+#endif
+
+#define Z975 1.959963984540054 /* standard normal 97.5% quantile */
+
+/* Convergence: the remaining distance to the optimum, sqrt(g' I^-1 g), in standard-error units. */
+#define BL_FIT_CONVERGED_DECREMENT 1e-2
+/* Starts agree when their maxima are within this many log-likelihood units of the best. */
+#define BL_FIT_AGREE 1e-2
+
+static double now_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+void bl_fit_options_default(bl_fit_options *o)
+{
+    memset(o, 0, sizeof *o);
+    o->threads = 0;
+    o->seed = 1;
+}
+
+/* ---- EZ-diffusion ---------------------------------------------------------------------------- */
+
+bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drift, double *threshold, double *nondecision,
+                          bl_error *err)
+{
+    if (!(pc > 0 && pc < 1) || pc == 0.5 || !(vrt > 0) || !isfinite(mrt))
+        return bl_error_set(err, BL_ERR_NUMERIC,
+                            "EZ-diffusion needs 0 < proportion correct < 1, not 0.5, and a positive RT variance "
+                            "(got %g, %g)",
+                            pc, vrt);
+    /* Wagenmakers et al. (2007), eqs. 5-9, with s = 1. */
+    double L = log(pc / (1 - pc));
+    double x = L * (pc * pc * L - pc * L + pc - 0.5) / vrt;
+    double v = (pc > 0.5 ? 1.0 : -1.0) * pow(x, 0.25);
+    double a = L / v;
+    double y = -v * a;
+    double mdt = (a / (2 * v)) * (-expm1(y)) / (1 + exp(y));
+    if (!isfinite(v) || !isfinite(a) || !(a > 0) || !isfinite(mdt))
+        return bl_error_set(err, BL_ERR_NUMERIC, "EZ-diffusion has no solution for pc %g, vrt %g", pc, vrt);
+    *drift = v;
+    *threshold = a;
+    *nondecision = mrt - mdt;
+    return BL_OK;
+}
+
+typedef struct {
+    size_t n, n_correct;
+    double sum, sumsq;   /* of correct RTs */
+    double min_rt;
+} cell_stats;
+
+static void cell_add(cell_stats *c, double rt, int correct)
+{
+    c->n++;
+    if (rt < c->min_rt) c->min_rt = rt;
+    if (correct) {
+        c->n_correct++;
+        c->sum += rt;
+        c->sumsq += rt * rt;
+    }
+}
+
+/* EZ values of a cell, with the usual edge correction for all-correct cells (half a trial);
+ * 0 when it has no solution. */
+static int cell_ez(const cell_stats *c, double *v, double *a, double *t0)
+{
+    if (c->n < 3 || c->n_correct < 2) return 0;
+    double pc = (double)c->n_correct / (double)c->n;
+    if (pc >= 1) pc = 1 - 0.5 / (double)c->n;
+    if (pc == 0.5) pc = 0.5 + 0.5 / (double)c->n;
+    double m = c->sum / (double)c->n_correct;
+    double var = (c->sumsq - c->n_correct * m * m) / (double)(c->n_correct - 1);
+    return bl_ez_diffusion(pc, var, m, v, a, t0, NULL) == BL_OK;
+}
+
+/* ---- parameterisation ------------------------------------------------------------------------ */
+
+enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC };
+
+typedef struct {
+    int type;
+    double lo, hi;      /* TR_LOGISTIC: coef = lo + (hi - lo) * logistic(x) */
+    double scale;       /* TR_RAW: coef = x / scale */
+} transform;
+
+static double to_coef(const transform *t, double x)
+{
+    switch (t->type) {
+    case TR_EXP: return exp(x);
+    case TR_LOGISTIC: return t->lo + (t->hi - t->lo) / (1 + exp(-x));
+    default: return x / t->scale;
+    }
+}
+
+static double dcoef_dx(const transform *t, double x)
+{
+    switch (t->type) {
+    case TR_EXP: return exp(x);
+    case TR_LOGISTIC: {
+        double s = 1 / (1 + exp(-x));
+        return (t->hi - t->lo) * s * (1 - s);
+    }
+    default: return 1 / t->scale;
+    }
+}
+
+static double to_x(const transform *t, double c)
+{
+    switch (t->type) {
+    case TR_EXP: return c > 0 ? log(c) : -30;
+    case TR_LOGISTIC: {
+        double u = (c - t->lo) / (t->hi - t->lo);
+        if (u < 1e-12) u = 1e-12;
+        if (u > 1 - 1e-12) u = 1 - 1e-12;
+        return log(u / (1 - u));
+    }
+    default: return c * t->scale;
+    }
+}
+
+typedef struct {
+    const bl_model *m;
+    bl_likelihood *lik;
+    size_t k;
+    transform *tr;
+    double *coef, *grad;
+    double inv_n;
+    /* The last point evaluated, with value and gradient: GSL's line search asks for f and then for
+     * the gradient at the same point, and one likelihood pass gives both. */
+    double *cache_x, *cache_g, cache_f;
+    int cache_valid;
+    int out_of_memory; /* an optimiser workspace could not be allocated: the fit must fail, not skip a start */
+} objective;
+
+static void evaluate_point(objective *o, const gsl_vector *x)
+{
+    int same = o->cache_valid;
+    for (size_t j = 0; same && j < o->k; j++) same = o->cache_x[j] == gsl_vector_get(x, j);
+    if (same) return;
+    for (size_t j = 0; j < o->k; j++) {
+        o->cache_x[j] = gsl_vector_get(x, j);
+        o->coef[j] = to_coef(&o->tr[j], o->cache_x[j]);
+    }
+    double ll = bl_likelihood_eval(o->lik, o->coef, o->grad);
+    o->cache_f = isfinite(ll) ? -ll * o->inv_n : GSL_POSINF;
+    for (size_t j = 0; j < o->k; j++)
+        o->cache_g[j] = isfinite(ll) ? -o->grad[j] * dcoef_dx(&o->tr[j], o->cache_x[j]) * o->inv_n : 0;
+    o->cache_valid = 1;
+}
+
+static double obj_f(const gsl_vector *x, void *params)
+{
+    objective *o = params;
+    evaluate_point(o, x);
+    return o->cache_f;
+}
+
+static void obj_fdf(const gsl_vector *x, void *params, double *f, gsl_vector *g)
+{
+    objective *o = params;
+    evaluate_point(o, x);
+    *f = o->cache_f;
+    for (size_t j = 0; j < o->k; j++) gsl_vector_set(g, j, o->cache_g[j]);
+}
+
+static void obj_df(const gsl_vector *x, void *params, gsl_vector *g)
+{
+    double f;
+    obj_fdf(x, params, &f, g);
+}
+
+/* Nelder-Mead needs finite values to order its simplex. */
+static double obj_f_finite(const gsl_vector *x, void *params)
+{
+    double f = obj_f(x, params);
+    return isfinite(f) ? f : 1e300;
+}
+
+/* BFGS from x (updated in place). Returns the minimum found (+inf if the start is infeasible). */
+static double run_bfgs(objective *o, gsl_vector *x, size_t *iterations)
+{
+    gsl_multimin_function_fdf fdf = {obj_f, obj_df, obj_fdf, o->k, o};
+    gsl_multimin_fdfminimizer *s = gsl_multimin_fdfminimizer_alloc(gsl_multimin_fdfminimizer_vector_bfgs2, o->k);
+    if (!s) {
+        o->out_of_memory = 1;
+        return GSL_POSINF;
+    }
+    double best = GSL_POSINF;
+    /* Restarts reset the curvature estimate, which often gets a stalled line search moving again. */
+    for (int restart = 0; restart < 3; restart++) {
+        if (gsl_multimin_fdfminimizer_set(s, &fdf, x, 0.1, 0.1) != GSL_SUCCESS || !isfinite(s->f)) break;
+        double f_before = s->f;
+        for (size_t it = 0; it < 2000; it++) {
+            (*iterations)++;
+            int st = gsl_multimin_fdfminimizer_iterate(s);
+            if (st != GSL_SUCCESS) break;
+            if (gsl_multimin_test_gradient(s->gradient, 1e-9) == GSL_SUCCESS) break;
+        }
+        if (isfinite(s->f) && s->f <= best) {
+            best = s->f;
+            gsl_vector_memcpy(x, s->x);
+        }
+        if (gsl_multimin_test_gradient(s->gradient, 1e-8) == GSL_SUCCESS) break;
+        if (!(f_before - s->f > 1e-12)) break;
+    }
+    gsl_multimin_fdfminimizer_free(s);
+    return best;
+}
+
+static double run_simplex(objective *o, gsl_vector *x, size_t *iterations)
+{
+    gsl_multimin_function fn = {obj_f_finite, o->k, o};
+    gsl_multimin_fminimizer *s = gsl_multimin_fminimizer_alloc(gsl_multimin_fminimizer_nmsimplex2, o->k);
+    gsl_vector *step = gsl_vector_alloc(o->k);
+    double best = GSL_POSINF;
+    if (!s || !step) {
+        o->out_of_memory = 1;
+        goto done;
+    }
+    gsl_vector_set_all(step, 0.2);
+    if (gsl_multimin_fminimizer_set(s, &fn, x, step) != GSL_SUCCESS) goto done;
+    for (size_t it = 0; it < 500 * o->k + 1000; it++) {
+        (*iterations)++;
+        if (gsl_multimin_fminimizer_iterate(s) != GSL_SUCCESS) break;
+        if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(s), 1e-9) == GSL_SUCCESS) break;
+    }
+    if (s->fval < 1e300) {
+        best = s->fval;
+        gsl_vector_memcpy(x, s->x);
+    }
+done:
+    gsl_multimin_fminimizer_free(s);
+    gsl_vector_free(step);
+    return best;
+}
+
+/* ---- inference ------------------------------------------------------------------------------- */
+
+/* Observed information I = -H by central differences of the analytic gradient, symmetrised.
+ * Returns 0 when a step leaves the feasible region even after shrinking. */
+static int observed_information(bl_likelihood *lik, const bl_model *m, const double *coef, double *info)
+{
+    size_t k = m->n_coef;
+    double *c = malloc(k * sizeof *c), *gp = malloc(k * sizeof *gp), *gm = malloc(k * sizeof *gm);
+    if (!c || !gp || !gm) {
+        free(c);
+        free(gp);
+        free(gm);
+        return -1; /* out of memory: the caller fails the fit rather than reporting "not positive definite" */
+    }
+    int ok = 1;
+    memcpy(c, coef, k * sizeof *c);
+    for (size_t j = 0; ok && j < k; j++) {
+        double scale = 1.0;
+        const bl_coef_info *ci = &m->coef[j];
+        if (ci->slope >= 0) scale = 1.0 / m->par[ci->param].slopes[ci->slope].rms;
+        double h = 1e-5 * fmax(fabs(coef[j]), scale);
+        int done = 0;
+        for (int shrink = 0; shrink < 6 && !done; shrink++, h /= 4) {
+            c[j] = coef[j] + h;
+            double lp = bl_likelihood_eval(lik, c, gp);
+            c[j] = coef[j] - h;
+            double lm = bl_likelihood_eval(lik, c, gm);
+            c[j] = coef[j];
+            if (isfinite(lp) && isfinite(lm)) {
+                for (size_t i = 0; i < k; i++) info[i * k + j] = -(gp[i] - gm[i]) / (2 * h);
+                done = 1;
+            }
+        }
+        if (!done) ok = 0;
+    }
+    if (ok)
+        for (size_t i = 0; i < k; i++)
+            for (size_t j = i + 1; j < k; j++) {
+                double a = 0.5 * (info[i * k + j] + info[j * k + i]);
+                info[i * k + j] = info[j * k + i] = a;
+            }
+    free(c);
+    free(gp);
+    free(gm);
+    return ok;
+}
+
+/* LAPACKE's own workspace or transposition buffer could not be allocated. */
+static int lapacke_out_of_memory(lapack_int info)
+{
+    return info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR;
+}
+
+/* Covariance = info^-1 by Cholesky; 0 when info is not positive definite, -1 when memory ran out.
+ * cond receives the eigenvalue ratio of info (NAN when the eigenvalues fail). */
+int bl_information_inverse(const double *info, size_t k, double *cov, double *cond)
+{
+    double *tmp = malloc(k * k * sizeof *tmp), *ev = malloc(k * sizeof *ev);
+    *cond = NAN;
+    if (!tmp || !ev) {
+        free(tmp);
+        free(ev);
+        return -1;
+    }
+    memcpy(tmp, info, k * k * sizeof *tmp);
+    lapack_int ie = LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'N', 'U', (lapack_int)k, tmp, (lapack_int)k, ev);
+    if (ie == 0) *cond = ev[0] > 0 ? ev[k - 1] / ev[0] : INFINITY;
+    free(tmp);
+    free(ev);
+    if (lapacke_out_of_memory(ie)) return -1;
+    memcpy(cov, info, k * k * sizeof *cov);
+    lapack_int ic = LAPACKE_dpotrf(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
+    if (ic == 0) ic = LAPACKE_dpotri(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
+    if (lapacke_out_of_memory(ic)) return -1;
+    if (ic != 0) return 0;
+    for (size_t i = 0; i < k; i++)
+        for (size_t j = 0; j < i; j++) cov[i * k + j] = cov[j * k + i];
+    for (size_t i = 0; i < k; i++)
+        if (!(cov[i * k + i] > 0) || !isfinite(cov[i * k + i])) return 0;
+    return 1;
+}
+
+/* ---- one fit --------------------------------------------------------------------------------- */
+
+unsigned long bl_fit_mix_seed(unsigned long seed, const char *text, unsigned long extra)
+{
+    /* FNV-1a over the text, folded with the seed: each model gets its own reproducible stream. */
+    unsigned long long h = 1469598103934665603ULL ^ (unsigned long long)seed;
+    for (const unsigned char *p = (const unsigned char *)text; p && *p; p++) h = (h ^ *p) * 1099511628211ULL;
+    h = (h ^ extra) * 1099511628211ULL;
+    return (unsigned long)(h ^ (h >> 29));
+}
+
+/* Starting values (coefficient scale) and parameterisation. */
+static bl_status plan_fit(const bl_model *m, transform *tr, double *start, bl_error *err)
+{
+    size_t k = m->n_coef;
+    cell_stats *cs = calloc(k, sizeof *cs);
+    if (!cs) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    cell_stats all = {0, 0, 0, 0, INFINITY};
+    for (size_t j = 0; j < k; j++) cs[j].min_rt = INFINITY;
+    for (size_t t = 0; t < m->n; t++) {
+        int correct = m->upper[t] == (m->sign[t] > 0);
+        cell_add(&all, m->rt[t], correct);
+        for (int p = 0; p < BL_NPARAM; p++)
+            if (m->par[p].is_free) cell_add(&cs[bl_model_intercept_index(m, p, t)], m->rt[t], correct);
+    }
+    double v0 = 1.0, a0 = 1.5, t00 = 0.5 * all.min_rt;
+    double ve, ae, te;
+    if (cell_ez(&all, &ve, &ae, &te)) {
+        v0 = ve;
+        a0 = ae;
+        t00 = te;
+    }
+    int st_free = m->par[BL_NONDECISION_RANGE].is_free || m->par[BL_NONDECISION_RANGE].fixed > 0;
+    int p0_free = m->par[BL_CONTAMINATION].is_free || m->par[BL_CONTAMINATION].fixed > 0;
+    for (size_t j = 0; j < k; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        int log_link = d->link == BL_LINK_LOG;
+        tr[j].type = TR_RAW;
+        tr[j].scale = 1.0;
+        if (ci->slope >= 0) {
+            tr[j].scale = d->slopes[ci->slope].rms;
+            start[j] = 0;
+            continue;
+        }
+        double v = v0, a = a0, t0 = t00;
+        if (!cell_ez(&cs[j], &v, &a, &t0)) {
+            v = v0;
+            a = a0;
+            t0 = t00;
+        }
+        double minrt = cs[j].min_rt;
+        double value;
+        switch (ci->param) {
+        case BL_THRESHOLD: value = fmin(fmax(a, 0.3), 6.0); break;
+        case BL_DRIFT: value = fmin(fmax(v, -6.0), 6.0); break;
+        case BL_NONDECISION: value = fmin(fmax(t0, 0.2 * minrt), 0.8 * minrt); break;
+        case BL_START: value = 0.5; break;
+        case BL_DRIFT_SD: value = 0.5; break;
+        case BL_START_RANGE: value = 0.1; break;
+        case BL_NONDECISION_RANGE: value = 0.1 * minrt; break;
+        default: value = 0.02; break;
+        }
+        if (log_link) {
+            if (ci->param == BL_DRIFT && value <= 0) value = 0.1;
+            start[j] = log(value);
+            continue;
+        }
+        start[j] = value;
+        if (d->n_slopes) continue;
+        /* Intercept-only parameters on the identity link: an exact unconstrained parameterisation. */
+        switch (ci->param) {
+        case BL_THRESHOLD:
+        case BL_DRIFT_SD:
+        case BL_NONDECISION_RANGE: tr[j].type = TR_EXP; break;
+        case BL_START:
+        case BL_START_RANGE:
+        case BL_CONTAMINATION:
+            tr[j].type = TR_LOGISTIC;
+            tr[j].lo = 0;
+            tr[j].hi = 1;
+            break;
+        case BL_NONDECISION:
+            if (!st_free && !p0_free) {
+                tr[j].type = TR_LOGISTIC;
+                tr[j].lo = 0;
+                tr[j].hi = minrt;
+            }
+            break;
+        default: break;
+        }
+    }
+    free(cs);
+    return BL_OK;
+}
+
+typedef struct {
+    double ll;
+    double *coef;
+    size_t iterations;
+    int used_simplex;
+} start_result;
+
+/* The optimiser part: maximise from the given starts. best->coef must hold k values. */
+static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only, const double *first,
+                     start_result *best, int *agreed, double *lls)
+{
+    size_t k = o->k;
+    gsl_vector *x0 = gsl_vector_alloc(k), *x = gsl_vector_alloc(k);
+    best->ll = -INFINITY;
+    best->iterations = 0;
+    best->used_simplex = 0;
+    if (!x0 || !x) {
+        o->out_of_memory = 1;
+        goto done;
+    }
+    for (size_t j = 0; j < k; j++) gsl_vector_set(x0, j, to_x(&o->tr[j], first[j]));
+    for (int s = 0; s < n_starts; s++) {
+        gsl_vector_memcpy(x, x0);
+        if (s > 0) {
+            /* Perturbed starts on the optimiser's scale; shrink until feasible. */
+            double spread = 0.5;
+            for (int tries = 0; tries < 10; tries++, spread /= 2) {
+                for (size_t j = 0; j < k; j++) {
+                    double xj = gsl_vector_get(x0, j);
+                    double sd = o->tr[j].type == TR_RAW && o->m->coef[j].slope < 0 ? spread * fmax(fabs(xj), 0.5)
+                                                                                    : spread * 0.5;
+                    gsl_vector_set(x, j, xj + gsl_ran_gaussian(rng, sd));
+                }
+                if (isfinite(obj_f(x, o))) break;
+                gsl_vector_memcpy(x, x0);
+            }
+        }
+        size_t iters = 0;
+        int simplex = 0;
+        if (simplex_only) {
+            double fs = run_simplex(o, x, &iters);
+            /* Restarted simplex: a fresh simplex escapes the collapsed ones of curved valleys. */
+            for (int round = 0; round < 5 && isfinite(fs); round++) {
+                double f2 = run_simplex(o, x, &iters);
+                if (!(fs - f2 > 1e-12)) break;
+                fs = f2;
+            }
+            double ll = isfinite(fs) ? -fs / o->inv_n : -INFINITY;
+            lls[s] = ll;
+            if (ll > best->ll) {
+                best->ll = ll;
+                best->iterations = iters;
+                best->used_simplex = 2;
+                for (size_t j = 0; j < k; j++) best->coef[j] = to_coef(&o->tr[j], gsl_vector_get(x, j));
+            }
+            continue;
+        }
+        double f = run_bfgs(o, x, &iters);
+        /* Fallback: derivative-free search when BFGS could not start or stalled far from a
+         * stationary point, then BFGS again from where it ended. */
+        gsl_vector *g = gsl_vector_alloc(k);
+        if (!g) o->out_of_memory = 1;
+        int stalled = 1;
+        if (g && isfinite(f)) {
+            double fv;
+            obj_fdf(x, o, &fv, g);
+            stalled = gsl_multimin_test_gradient(g, 1e-5) != GSL_SUCCESS;
+        }
+        gsl_vector_free(g);
+        if (stalled) {
+            gsl_vector *xs = gsl_vector_alloc(k);
+            if (!xs) o->out_of_memory = 1;
+            if (xs) {
+                gsl_vector_memcpy(xs, isfinite(f) ? x : x0);
+                double fs = run_simplex(o, xs, &iters);
+                if (isfinite(fs)) {
+                    double fb = run_bfgs(o, xs, &iters);
+                    if (fb < fs) fs = fb;
+                }
+                if (fs < f) {
+                    f = fs;
+                    gsl_vector_memcpy(x, xs);
+                    simplex = 1;
+                }
+                gsl_vector_free(xs);
+            }
+        }
+        double ll = isfinite(f) ? -f / o->inv_n : -INFINITY;
+        lls[s] = ll;
+        if (ll > best->ll) {
+            best->ll = ll;
+            best->iterations = iters;
+            best->used_simplex = simplex;
+            for (size_t j = 0; j < k; j++) best->coef[j] = to_coef(&o->tr[j], gsl_vector_get(x, j));
+        }
+    }
+    *agreed = 0;
+    for (int s = 0; s < n_starts; s++)
+        if (isfinite(lls[s]) && best->ll - lls[s] <= BL_FIT_AGREE) (*agreed)++;
+done:
+    gsl_vector_free(x0);
+    gsl_vector_free(x);
+}
+
+void bl_fit_result_clear(bl_fit_result *res)
+{
+    if (!res) return;
+    free(res->participant);
+    for (size_t j = 0; j < res->n_coef; j++) {
+        free(res->coef[j].term);
+        free(res->coef[j].level);
+    }
+    free(res->coef);
+    free(res->covariance);
+    memset(res, 0, sizeof *res);
+}
+
+/* Fit with an existing likelihood workspace. With infer == 0 only the maximum is found (used by
+ * permutation refits). */
+/* The likelihood is zero at the start: name the first trial that makes it so, with its RT and the
+ * parameter values predicted for it, so the user can find a fixed value out of range or an RT the
+ * model cannot produce. */
+static bl_status explain_zero_likelihood(const bl_model *m, bl_likelihood *lik, const double *coef, bl_error *err)
+{
+    double *tll = malloc((m->n ? m->n : 1) * sizeof *tll);
+    if (!tll) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);
+    bl_likelihood_trials(lik, coef, tll);
+    size_t k = 0;
+    while (k < m->n && isfinite(tll[k])) k++;
+    free(tll);
+    if (k == m->n)
+        return bl_error_set(err, BL_ERR_MODEL, "model '%s': the likelihood is zero at the starting values", m->name);
+    bl_wiener_params p;
+    int valid = bl_model_predict(m, coef, k, &p);
+    bl_error why = {0};
+    if (!valid && bl_wiener_check(&p, &why) != BL_OK)
+        return bl_error_set(err, BL_ERR_MODEL, "model '%s': trial table row %zu: %s (check fixed values and links)", m->name,
+                            m->row[k] + 1, why.message);
+    return bl_error_set(err, BL_ERR_MODEL,
+                        "model '%s': trial table row %zu: an RT of %.6g s cannot be produced with nondecision %.6g s "
+                        "(and nondecision_range %.6g s); check fixed values, or leave such RTs out with trials.keep",
+                        m->name, m->row[k] + 1, m->rt[k], p.value[BL_NONDECISION], p.value[BL_NONDECISION_RANGE]);
+}
+
+bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
+                          const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
+{
+    double t_start = now_seconds();
+    size_t k = m->n_coef;
+    size_t evals0 = bl_likelihood_evaluations(lik);
+    bl_status st = BL_ERR_NOMEM;
+    transform *tr = calloc(k, sizeof *tr);
+    double *start = malloc(k * sizeof *start), *coef = malloc(k * sizeof *coef), *grad = malloc(k * sizeof *grad);
+    double *info = NULL, *cov = NULL, *lls = calloc((size_t)n_starts + 1, sizeof *lls);
+    double *wcoef = malloc(k * sizeof *wcoef), *wgrad = malloc(k * sizeof *wgrad);
+    double *cache_x = malloc(k * sizeof *cache_x), *cache_g = malloc(k * sizeof *cache_g);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    memset(res, 0, sizeof *res);
+    if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !cache_x || !cache_g || !rng) goto nomem;
+    gsl_rng_set(rng, bl_fit_mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
+    if ((st = plan_fit(m, tr, start, err))) goto fail;
+    if (first) {
+        /* A given start (e.g. the observed fit for a permutation refit) replaces the EZ start when it
+         * is feasible on these data. */
+        double ll = bl_likelihood_eval(lik, first, NULL);
+        if (isfinite(ll)) memcpy(start, first, k * sizeof *start);
+    }
+    if (!isfinite(bl_likelihood_eval(lik, start, NULL))) {
+        st = explain_zero_likelihood(m, lik, start, err);
+        goto fail;
+    }
+    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0};
+    start_result best = {0, coef, 0, 0};
+    int agreed = 0;
+    optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
+    if (o.out_of_memory) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory in the optimiser", m->name);
+        goto fail;
+    }
+    if (!isfinite(best.ll)) {
+        st = bl_error_set(err, BL_ERR_NUMERIC, "model '%s': the optimiser found no finite log-likelihood", m->name);
+        goto fail;
+    }
+    double ll = bl_likelihood_eval(lik, coef, grad);
+    res->log_likelihood = ll;
+    res->parameters = k;
+    res->trials = m->n;
+    res->diag.method = best.used_simplex == 2 ? "nmsimplex2" : best.used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
+    res->diag.iterations = best.iterations;
+    res->diag.starts = n_starts;
+    res->diag.starts_agreed = agreed;
+    res->diag.newton_decrement = NAN;
+    res->diag.condition_number = NAN;
+    if (infer) {
+        info = malloc(k * k * sizeof *info);
+        cov = malloc(k * k * sizeof *cov);
+        if (!info || !cov) goto nomem;
+        int pd = 0;
+        double cond = NAN;
+        /* Newton polishing with the observed information: each step is checked to raise the
+         * likelihood, so it can only help. */
+        for (int polish = 0; polish < 4; polish++) {
+            int oi = observed_information(lik, m, coef, info);
+            int inv = oi > 0 ? bl_information_inverse(info, k, cov, &cond) : 0;
+            if (oi < 0 || inv < 0) goto nomem;
+            pd = oi > 0 && inv > 0;
+            if (!pd) break;
+            double nd2 = 0;
+            for (size_t i = 0; i < k; i++)
+                for (size_t j = 0; j < k; j++) nd2 += grad[i] * cov[i * k + j] * grad[j];
+            res->diag.newton_decrement = sqrt(fmax(nd2, 0));
+            if (res->diag.newton_decrement < 1e-6 || polish == 3) break;
+            for (size_t i = 0; i < k; i++) {
+                double step = 0;
+                for (size_t j = 0; j < k; j++) step += cov[i * k + j] * grad[j];
+                wcoef[i] = coef[i] + step;
+            }
+            double ll2 = bl_likelihood_eval(lik, wcoef, wgrad);
+            if (!(ll2 > ll)) break;
+            ll = ll2;
+            memcpy(coef, wcoef, k * sizeof *coef);
+            memcpy(grad, wgrad, k * sizeof *grad);
+        }
+        res->log_likelihood = ll;
+        res->diag.hessian_positive_definite = pd;
+        res->diag.condition_number = cond;
+        res->converged = pd && res->diag.newton_decrement <= BL_FIT_CONVERGED_DECREMENT;
+    } else {
+        double gmax = 0;
+        for (size_t j = 0; j < k; j++) gmax = fmax(gmax, fabs(grad[j]));
+        res->converged = gmax < 1e-3 * (double)m->n;
+    }
+    double gmax = 0;
+    for (size_t j = 0; j < k; j++) gmax = fmax(gmax, fabs(grad[j]));
+    res->diag.gradient_norm = gmax;
+    res->diag.converged = res->converged;
+    res->aic = 2.0 * (double)k - 2.0 * ll;
+    res->bic = (double)k * log((double)m->n) - 2.0 * ll;
+    res->coef = calloc(k, sizeof *res->coef);
+    if (!res->coef) goto nomem;
+    res->n_coef = k; /* only now: bl_fit_result_clear walks n_coef entries */
+    for (size_t j = 0; j < k; j++) {
+        bl_coefficient *c = &res->coef[j];
+        const bl_coef_info *ci = &m->coef[j];
+        c->param = ci->param;
+        c->parameter = bl_param_name(ci->param);
+        c->term = bl_strdup(ci->term);
+        c->level = bl_strdup(ci->level);
+        if (!c->term || !c->level) goto nomem;
+        c->estimate = coef[j];
+        c->se = c->z = c->p = c->ci_low = c->ci_high = NAN;
+        if (infer && res->diag.hessian_positive_definite) {
+            c->se = sqrt(cov[j * k + j]);
+            c->z = c->estimate / c->se;
+            c->p = 2 * gsl_cdf_ugaussian_Q(fabs(c->z));
+            c->ci_low = c->estimate - Z975 * c->se;
+            c->ci_high = c->estimate + Z975 * c->se;
+        }
+    }
+    if (infer && res->diag.hessian_positive_definite) {
+        res->covariance = cov;
+        cov = NULL;
+    }
+    if (coef_out) memcpy(coef_out, coef, k * sizeof *coef_out);
+    res->diag.evaluations = bl_likelihood_evaluations(lik) - evals0;
+    res->diag.seconds = now_seconds() - t_start;
+    st = BL_OK;
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory while fitting", m->name);
+fail:
+    bl_fit_result_clear(res);
+done:
+    free(tr);
+    free(start);
+    free(coef);
+    free(grad);
+    free(info);
+    free(cov);
+    free(lls);
+    free(wcoef);
+    free(wgrad);
+    free(cache_x);
+    free(cache_g);
+    gsl_rng_free(rng);
+    return st;
+}
+
+int bl_fit_default_starts(const bl_fit_options *opt) { return opt && opt->starts > 0 ? opt->starts : 3; }
+
+/* Estimates of intercept-only identity-link parameters within 1e-3 of the edge of their range
+ * (drift_sd, start_range, nondecision_range, contamination at 0; start at 0 or 1), listed into buf. */
+static int edge_estimates(const bl_model *m, const bl_fit_result *r, char *buf, size_t n)
+{
+    int found = 0;
+    buf[0] = '\0';
+    for (size_t j = 0; j < r->n_coef; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (ci->slope >= 0 || d->n_slopes || d->link != BL_LINK_IDENTITY) continue;
+        double b = r->coef[j].estimate;
+        int edge = 0;
+        switch (ci->param) {
+        case BL_DRIFT_SD:
+        case BL_START_RANGE:
+        case BL_NONDECISION_RANGE:
+        case BL_CONTAMINATION: edge = b < 1e-3; break;
+        case BL_START: edge = b < 1e-3 || b > 1 - 1e-3; break;
+        default: break;
+        }
+        if (!edge) continue;
+        size_t len = strlen(buf);
+        snprintf(buf + len, n - len, "%s%s%s%s (%.3g)", found ? ", " : "", bl_param_name(ci->param),
+                 ci->level[0] ? " " : "", ci->level, b);
+        found = 1;
+    }
+    return found;
+}
+
+static void warn_fit(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
+{
+    char who[512], edge[512];
+    if (participant) snprintf(who, sizeof who, "model '%s', participant '%s'", m->name, participant);
+    else snprintf(who, sizeof who, "model '%s'", m->name);
+    int at_edge = edge_estimates(m, r, edge, sizeof edge);
+    if (!r->diag.hessian_positive_definite)
+        bl_warnings_add(warn,
+                        "%s: the observed information is not positive definite at the optimum; standard errors, "
+                        "z, p and intervals are not reported%s%s",
+                        who, at_edge ? "; at the edge of their range: " : "", at_edge ? edge : "");
+    else if (!r->converged)
+        bl_warnings_add(warn, "%s: did not converge (distance to the optimum %.3g standard errors, gradient %.3g)%s%s",
+                        who, r->diag.newton_decrement, r->diag.gradient_norm,
+                        at_edge ? "; the maximum lies on the edge of the range of: " : "", at_edge ? edge : "");
+    else if (at_edge)
+        bl_warnings_add(warn, "%s: estimates at the edge of their range (Wald intervals unreliable there): %s", who,
+                        edge);
+    if (r->diag.starts_agreed < r->diag.starts)
+        bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
+                        r->diag.starts_agreed, r->diag.starts);
+}
+
+bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const double *start, bl_fit_result *res,
+                       bl_warnings *warn, bl_error *err)
+{
+    bl_likelihood *lik = bl_likelihood_create(m, opt ? opt->threads : 0);
+    if (lik && opt && opt->parallel_trials) bl_likelihood_set_parallel(lik, opt->parallel_trials > 0);
+    if (!lik) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);
+    bl_status st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
+    if (!st) warn_fit(m, NULL, res, warn);
+    bl_likelihood_destroy(lik);
+    return st;
+}
+
+/* ---- study ----------------------------------------------------------------------------------- */
+
+typedef struct {
+    bl_model *model;       /* compiled design (pooled: one; separate: one per participant) */
+    double *coef;          /* its estimates */
+} unit_fit;
+
+static void fill_predictions(bl_model_result *r, const bl_model *m, const double *coef, bl_likelihood *lik)
+{
+    double *tll = malloc(m->n * sizeof *tll);
+    if (tll) bl_likelihood_trials(lik, coef, tll);
+    for (size_t k = 0; k < m->n; k++) {
+        size_t row = m->row[k];
+        bl_wiener_params p;
+        bl_model_predict(m, coef, k, &p);
+        r->used[row] = 1;
+        r->predicted[row] = p;
+        double pu = NAN, mu = NAN, ml = NAN;
+        if (bl_wiener_p_upper(&p, &pu, NULL) != BL_OK) pu = NAN;
+        double mean = NAN;
+        if (isfinite(pu)) {
+            int ok_u = pu > 1e-12 ? bl_wiener_mean_rt(&p, 1, &mu, NULL) == BL_OK : 1;
+            int ok_l = pu < 1 - 1e-12 ? bl_wiener_mean_rt(&p, 0, &ml, NULL) == BL_OK : 1;
+            if (ok_u && ok_l) mean = (pu > 1e-12 ? pu * mu : 0) + (pu < 1 - 1e-12 ? (1 - pu) * ml : 0);
+        }
+        r->p_upper[row] = pu;
+        r->mean_rt[row] = mean;
+        r->trial_log_likelihood[row] = tll ? tll[k] : NAN;
+    }
+    free(tll);
+}
+
+static void model_result_free(bl_model_result *r)
+{
+    free(r->name);
+    free(r->extends);
+    bl_fit_result_clear(&r->fit);
+    for (size_t i = 0; i < r->n_participants; i++) bl_fit_result_clear(&r->participants[i]);
+    free(r->participants);
+    for (size_t i = 0; i < r->n_group; i++) {
+        free(r->group[i].term);
+        free(r->group[i].level);
+    }
+    free(r->group);
+    for (size_t i = 0; i < r->n_permutation; i++) free(r->permutation[i].regressor);
+    free(r->permutation);
+    free(r->used);
+    free(r->predicted);
+    free(r->p_upper);
+    free(r->mean_rt);
+    free(r->trial_log_likelihood);
+}
+
+void bl_fit_set_destroy(bl_fit_set *set)
+{
+    if (!set) return;
+    for (size_t i = 0; i < set->n_models; i++) model_result_free(&set->models[i]);
+    free(set->models);
+    if (set->comparison)
+        for (size_t i = 0; i < set->n_models; i++) {
+            free(set->comparison[i].name);
+            free(set->comparison[i].lrt_against);
+        }
+    free(set->comparison);
+    free(set);
+}
+
+
+void bl_unit_set_free(bl_unit_set *u)
+{
+    for (size_t i = 0; i < u->n_units; i++) {
+        bl_likelihood_destroy(u->liks ? u->liks[i] : NULL);
+        bl_model_destroy(u->models ? u->models[i] : NULL);
+        free(u->coef ? u->coef[i] : NULL);
+    }
+    free(u->models);
+    free(u->liks);
+    free(u->coef);
+    memset(u, 0, sizeof *u);
+}
+
+/* Build one model for every unit (pooled: one unit; separate: one per participant with trials). */
+bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
+                             const bl_fit_options *opt, bl_unit_set *u, char ***unit_names, bl_warnings *warn,
+                             bl_error *err)
+{
+    memset(u, 0, sizeof *u);
+    size_t n_units = mode == BL_PARTICIPANTS_SEPARATE ? trials->n_participants : 1;
+    u->models = calloc(n_units ? n_units : 1, sizeof *u->models);
+    u->liks = calloc(n_units ? n_units : 1, sizeof *u->liks);
+    u->coef = calloc(n_units ? n_units : 1, sizeof *u->coef);
+    unsigned char *use = mode == BL_PARTICIPANTS_SEPARATE ? malloc(trials->n ? trials->n : 1) : NULL;
+    if (unit_names) *unit_names = calloc(n_units ? n_units : 1, sizeof **unit_names);
+    bl_status st = BL_OK;
+    if (!u->models || !u->liks || !u->coef || (mode == BL_PARTICIPANTS_SEPARATE && !use) ||
+        (unit_names && !*unit_names)) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
+    for (size_t p = 0; p < n_units; p++) {
+        if (use) {
+            size_t n_kept = 0;
+            for (size_t i = 0; i < trials->n; i++) {
+                use[i] = trials->participant[i] == p;
+                if (use[i] && !(trials->excluded && trials->excluded[i])) n_kept++;
+            }
+            if (n_kept == 0) {
+                bl_warnings_add(warn, "model '%s': participant '%s' has no kept trials and is not fitted", spec->name,
+                                trials->participants[p]);
+                continue;
+            }
+        }
+        bl_model *m = NULL;
+        st = bl_model_build(spec, trials, use, &m, err);
+        if (st) {
+            if (use) {
+                char msg[BL_ERROR_MESSAGE_MAX];
+                snprintf(msg, sizeof msg, "%s", err ? err->message : "");
+                bl_error_set(err, st, "participant '%s' (fitted separately): %s", trials->participants[p], msg);
+            }
+            goto done;
+        }
+        size_t i = u->n_units++;
+        u->models[i] = m;
+        u->liks[i] = bl_likelihood_create(m, opt->threads);
+        if (u->liks[i] && opt->parallel_trials) bl_likelihood_set_parallel(u->liks[i], opt->parallel_trials > 0);
+        u->coef[i] = calloc(m->n_coef, sizeof(double));
+        if (!u->liks[i] || !u->coef[i]) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            goto done;
+        }
+        if (unit_names && use) (*unit_names)[i] = trials->participants[p];
+    }
+    if (u->n_units == 0) st = bl_error_set(err, BL_ERR_MODEL, "model '%s': no trials to fit", spec->name);
+done:
+    free(use);
+    if (st) {
+        bl_unit_set_free(u);
+        if (unit_names) {
+            free(*unit_names);
+            *unit_names = NULL;
+        }
+    }
+    return st;
+}
+
+bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt_in,
+                       bl_fit_set **out, bl_warnings *warn, bl_error *err)
+{
+    *out = NULL;
+    bl_fit_options opt;
+    if (opt_in) opt = *opt_in;
+    else bl_fit_options_default(&opt);
+    if (opt.starts <= 0) opt.starts = study->fit.starts > 0 ? study->fit.starts : 3;
+    bl_status st = BL_OK;
+    for (size_t i = 0; i < opt.n_models; i++) {
+        size_t j;
+        for (j = 0; j < study->n_models; j++)
+            if (!strcmp(study->models[j].name, opt.models[i])) break;
+        if (j == study->n_models) {
+            char names[512] = "";
+            for (size_t q = 0; q < study->n_models; q++) {
+                size_t len = strlen(names);
+                snprintf(names + len, sizeof names - len, "%s'%s'", q ? ", " : "", study->models[q].name);
+            }
+            return bl_error_set(err, BL_ERR_USAGE, "--model: the study has no model '%s' (it has %s)", opt.models[i],
+                                names);
+        }
+    }
+    bl_fit_set *set = calloc(1, sizeof *set);
+    size_t *sel = calloc(study->n_models ? study->n_models : 1, sizeof *sel);
+    bl_unit_set *units = calloc(study->n_models ? study->n_models : 1, sizeof *units);
+    if (!set || !sel || !units) {
+        free(set);
+        free(sel);
+        free(units);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    size_t n_sel = 0;
+    for (size_t j = 0; j < study->n_models; j++) {
+        int want = opt.n_models == 0;
+        for (size_t i = 0; i < opt.n_models; i++)
+            if (!strcmp(study->models[j].name, opt.models[i])) want = 1;
+        if (want) sel[n_sel++] = j;
+    }
+    /* Data the model cannot use (identical RTs) stop here; data that weaken estimates get warnings. */
+    if ((st = bl_screen_trials(study, trials, sel, n_sel, warn, err))) goto fail;
+    set->mode = study->fit.participants;
+    set->permutations = opt.permutations;
+    set->seed = opt.seed;
+    set->threads = opt.threads;
+    set->models = calloc(n_sel ? n_sel : 1, sizeof *set->models);
+    if (!set->models) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto fail;
+    }
+    set->n_models = n_sel;
+    int nondecision_note = 0;
+    /* 1. Designs of every model (and participant), checked before anything is fitted. */
+    char ***unit_names = calloc(n_sel ? n_sel : 1, sizeof *unit_names);
+    if (!unit_names) goto nomem;
+    for (size_t q = 0; q < n_sel; q++) {
+        const bl_model_spec *spec = &study->models[sel[q]];
+        bl_model_result *r = &set->models[q];
+        r->mode = set->mode;
+        r->nested = -1;
+        r->n_rows = trials->n;
+        if (!(r->name = bl_strdup(spec->name)) || (spec->extends && !(r->extends = bl_strdup(spec->extends)))) goto nomem_names;
+        r->used = calloc(trials->n ? trials->n : 1, 1);
+        r->predicted = calloc(trials->n ? trials->n : 1, sizeof *r->predicted);
+        r->p_upper = malloc((trials->n ? trials->n : 1) * sizeof(double));
+        r->mean_rt = malloc((trials->n ? trials->n : 1) * sizeof(double));
+        r->trial_log_likelihood = malloc((trials->n ? trials->n : 1) * sizeof(double));
+        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem_names;
+        for (size_t i = 0; i < trials->n; i++) {
+            r->p_upper[i] = r->mean_rt[i] = r->trial_log_likelihood[i] = NAN;
+            for (int p = 0; p < BL_NPARAM; p++) r->predicted[i].value[p] = NAN;
+            r->predicted[i].contamination_lo = r->predicted[i].contamination_hi = NAN;
+        }
+        if ((st = bl_build_units(spec, trials, set->mode, &opt, &units[q], &unit_names[q], warn, err))) goto fail_names;
+        if (set->mode == BL_PARTICIPANTS_SEPARATE) {
+            r->participants = calloc(units[q].n_units, sizeof *r->participants);
+            if (!r->participants) goto nomem_names;
+            r->n_participants = units[q].n_units;
+            for (size_t i = 0; i < units[q].n_units; i++)
+                if (!(r->participants[i].participant = bl_strdup(unit_names[q][i]))) goto nomem_names;
+        }
+    }
+    /* 2. The fits. Several fits (models, participants) run side by side, each on one thread, with
+     * the same results as one after the other; a single fit spreads its trials over the threads. */
+    size_t n_jobs = 0;
+    for (size_t q = 0; q < n_sel; q++) n_jobs += units[q].n_units;
+    size_t *job_q = malloc((n_jobs ? n_jobs : 1) * sizeof *job_q), *job_i = malloc((n_jobs ? n_jobs : 1) * sizeof *job_i);
+    bl_status *job_st = calloc(n_jobs ? n_jobs : 1, sizeof *job_st);
+    bl_error *job_err = calloc(n_jobs ? n_jobs : 1, sizeof *job_err);
+    if (!job_q || !job_i || !job_st || !job_err) {
+        free(job_q);
+        free(job_i);
+        free(job_st);
+        free(job_err);
+        goto nomem_names;
+    }
+    for (size_t q = 0, j = 0; q < n_sel; q++)
+        for (size_t i = 0; i < units[q].n_units; i++, j++) {
+            job_q[j] = q;
+            job_i[j] = i;
+        }
+    size_t jobs_done = 0;
+    int nt = 1;
+#ifdef _OPENMP
+    nt = opt.threads > 0 ? opt.threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (n_jobs > 1 && nt > 1)
+#endif
+    for (size_t j = 0; j < n_jobs; j++) {
+        size_t q = job_q[j], i = job_i[j];
+        bl_model_result *r = &set->models[q];
+        bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
+        char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
+        fr->participant = NULL;
+        job_st[j] = bl_fit_core(units[q].models[i], units[q].liks[i], &opt, opt.starts, NULL, 1, fr, units[q].coef[i],
+                             &job_err[j]);
+        fr->participant = keep;
+        if (opt.progress) {
+#ifdef _OPENMP
+#pragma omp critical(bl_fit_progress)
+#endif
+            {
+                jobs_done++;
+                opt.progress(opt.progress_user, r->name, jobs_done, n_jobs);
+            }
+        }
+    }
+    for (size_t j = 0; j < n_jobs && !st; j++)
+        if (job_st[j]) {
+            st = job_st[j];
+            if (err) *err = job_err[j];
+        }
+    free(job_q);
+    free(job_i);
+    free(job_st);
+    free(job_err);
+    if (st) goto fail_names;
+    /* 3. In model order: warnings, predictions, totals, group summaries, permutation tests. */
+    for (size_t q = 0; q < n_sel; q++) {
+        const bl_model_spec *spec = &study->models[sel[q]];
+        bl_model_result *r = &set->models[q];
+        bl_unit_set *u = &units[q];
+        r->converged = 1;
+        for (size_t i = 0; i < u->n_units; i++) {
+            bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
+            warn_fit(u->models[i], fr->participant, fr, warn);
+            r->log_likelihood += fr->log_likelihood;
+            r->parameters += fr->parameters;
+            r->trials += fr->trials;
+            r->converged = r->converged && fr->converged;
+            fill_predictions(r, u->models[i], u->coef[i], u->liks[i]);
+        }
+        if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
+            nondecision_note = 1;
+        r->aic = 2.0 * (double)r->parameters - 2.0 * r->log_likelihood;
+        r->bic = (double)r->parameters * log((double)r->trials) - 2.0 * r->log_likelihood;
+        if (set->mode == BL_PARTICIPANTS_SEPARATE) {
+            bl_fit_result *f = &r->fit;
+            f->log_likelihood = r->log_likelihood;
+            f->parameters = r->parameters;
+            f->trials = r->trials;
+            f->aic = r->aic;
+            f->bic = r->bic;
+            f->converged = r->converged;
+            f->diag.method = r->participants[0].diag.method;
+            f->diag.converged = r->converged;
+            f->diag.newton_decrement = f->diag.condition_number = f->diag.gradient_norm = NAN;
+            for (size_t i = 0; i < r->n_participants; i++) {
+                f->diag.evaluations += r->participants[i].diag.evaluations;
+                f->diag.iterations += r->participants[i].diag.iterations;
+                f->diag.seconds += r->participants[i].diag.seconds;
+                f->diag.starts += r->participants[i].diag.starts;
+                f->diag.starts_agreed += r->participants[i].diag.starts_agreed;
+            }
+            f->diag.hessian_positive_definite = 1;
+            for (size_t i = 0; i < r->n_participants; i++)
+                f->diag.hessian_positive_definite &= r->participants[i].diag.hessian_positive_definite;
+            if ((st = bl_group_summary(r, err))) goto fail_names;
+        }
+        if ((st = bl_permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail_names;
+    }
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
+    if (nondecision_note)
+        bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
+                              "the fastest RT (see docs/models.md)");
+    /* Nesting for the likelihood-ratio test: the base model must be fitted, and nested unit by unit. */
+    for (size_t q = 0; q < n_sel; q++) {
+        bl_model_result *r = &set->models[q];
+        if (!r->extends) continue;
+        size_t b;
+        for (b = 0; b < n_sel; b++)
+            if (!strcmp(set->models[b].name, r->extends)) break;
+        if (b == n_sel) continue;
+        int nested = units[q].n_units == units[b].n_units;
+        for (size_t i = 0; nested > 0 && i < units[q].n_units; i++)
+            nested = bl_model_nested_in(units[b].models[i], units[q].models[i]);
+        if (nested < 0) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking whether '%s' is nested in '%s'", r->name,
+                              r->extends);
+            goto fail;
+        }
+        r->nested = nested && set->models[b].parameters < r->parameters;
+    }
+    if ((st = bl_compare_models(set, err))) goto fail;
+    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
+    free(units);
+    free(sel);
+    *out = set;
+    return BL_OK;
+nomem_names:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+fail_names:
+    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
+    free(unit_names);
+    goto fail;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+fail:
+    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
+    free(units);
+    free(sel);
+    bl_fit_set_destroy(set);
+    return st;
+}

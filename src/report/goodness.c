@@ -1,0 +1,717 @@
+/* Goodness of fit: observed vs predicted RT quantiles and choice shares by condition cell and by
+ * regressor bin (fit_quantiles.csv).
+ *
+ * Sources: Hyndman & Fan (1996) "Sample quantiles in statistical packages", The American
+ * Statistician 50(4) - definition 7 for observed quantiles;
+ * Press, Teukolsky, Vetterling & Flannery (2007) "Numerical Recipes", 3rd ed., section 9.4 (Newton
+ * steps safeguarded by bisection, "rtsafe") for the mixture quantiles, with the mixture density as
+ * derivative; Markov's inequality P(RT > t) <= E[RT]/t for a guaranteed upper bracket.
+ */
+#include "report/goodness.h"
+
+#include "core/output.h"
+#include "core/strutil.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#ifdef _OPENMP
+#include <omp.h>
+#endif
+
+const double bl_goodness_probs[BL_GOODNESS_NQ] = {0.1, 0.3, 0.5, 0.7, 0.9};
+
+double bl_goodness_sample_quantile(const double *sorted, size_t n, double prob)
+{
+    if (n == 0 || !(prob >= 0 && prob <= 1)) return NAN;
+    double h = (double)(n - 1) * prob;
+    size_t lo = (size_t)floor(h);
+    if (lo >= n - 1) return sorted[n - 1];
+    return sorted[lo] + (h - (double)lo) * (sorted[lo + 1] - sorted[lo]);
+}
+
+/* ---- mixture quantiles ---- */
+
+typedef struct {
+    const bl_wiener_params *p;
+    const double *w;
+    size_t n;
+    int upper;
+    double target;     /* prob x sum w_i P_i */
+    bl_error *err;
+} mix_ctx;
+
+/* f(t) = sum w_i cdf_i(t) - target and, when df != NULL, f'(t) = sum w_i density_i(t). */
+static bl_status mix_eval(const mix_ctx *c, double t, double *f, double *df)
+{
+    double sum = 0, dsum = 0;
+    for (size_t i = 0; i < c->n; i++) {
+        double wi = c->w ? c->w[i] : 1.0, v, ld;
+        bl_status st = bl_wiener_cdf(&c->p[i], t, c->upper, &v, c->err);
+        if (st != BL_OK) return st;
+        sum += wi * v;
+        if (df) {
+            if ((st = bl_wiener_log_density(&c->p[i], t, c->upper, &ld, c->err)) != BL_OK) return st;
+            dsum += wi * exp(ld);
+        }
+    }
+    *f = sum - c->target;
+    if (df) *df = dsum;
+    return BL_OK;
+}
+
+static double earliest(const bl_wiener_params *p)
+{
+    double t = p->value[BL_NONDECISION] - p->value[BL_NONDECISION_RANGE] / 2;
+    if (p->value[BL_CONTAMINATION] > 0 && p->contamination_lo < t) t = p->contamination_lo;
+    return t > 0 ? t : 0;
+}
+
+enum { MAX_STEPS = 200 };
+static const double TOL = 1e-9; /* seconds */
+
+/* Root of the increasing function f in [a, b] with f(a) <= 0 <= f(b): Newton steps on the mixture
+ * density, kept inside the bracket, and bisection whenever a Newton step would leave the bracket or
+ * does not halve the previous step (Press et al. 2007, Numerical Recipes 3rd ed., section 9.4,
+ * "rtsafe"). x is the first point tried. */
+static bl_status solve(const mix_ctx *c, double a, double b, double x, double *root, bl_error *err)
+{
+    double dx_old = b - a, dx = dx_old;
+    for (int it = 0; it < MAX_STEPS; it++) {
+        double f, df;
+        bl_status st = mix_eval(c, x, &f, &df);
+        if (st != BL_OK) return st;
+        if (f == 0) {
+            *root = x;
+            return BL_OK;
+        }
+        if (f < 0) a = x;
+        else b = x;
+        /* Converged when the Newton step itself is below the tolerance. */
+        if (df > 0 && fabs(f) < TOL * df) {
+            *root = x - f / df;
+            return BL_OK;
+        }
+        double xn = (df > 0 && isfinite(df)) ? x - f / df : NAN;
+        if (!(xn > a && xn < b) || fabs(2 * f) > fabs(dx_old * df)) {
+            dx_old = dx;
+            xn = 0.5 * (a + b);
+            dx = xn - x;
+        } else {
+            dx_old = dx;
+            dx = xn - x;
+        }
+        if (fabs(dx) < TOL || b - a < TOL) {
+            *root = xn;
+            return BL_OK;
+        }
+        x = xn;
+    }
+    return bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile: no convergence in %d steps (bracket [%.17g, %.17g] s)",
+                        MAX_STEPS, a, b);
+}
+
+bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n, int upper,
+                                        const double *probs, size_t k, double *q, double *share, bl_error *err)
+{
+    for (size_t j = 0; j < k; j++) q[j] = NAN;
+    if (share) *share = NAN;
+    if (n == 0) return BL_OK;
+    double wsum = 0, psum = 0, lo = INFINITY, maxmean = 0;
+    for (size_t i = 0; i < n; i++) {
+        double wi = w ? w[i] : 1.0, pu, m;
+        bl_status st = bl_wiener_p_upper(&params[i], &pu, err);
+        if (st != BL_OK) return st;
+        double pb = upper ? pu : 1 - pu;
+        wsum += wi;
+        psum += wi * pb;
+        double e = earliest(&params[i]);
+        if (e < lo) lo = e;
+        /* Largest conditional mean RT, for the Markov bracket below (components that never reach
+         * this boundary do not count). */
+        if (pb > 1e-300 && bl_wiener_mean_rt(&params[i], upper, &m, NULL) == BL_OK && isfinite(m) && m > maxmean)
+            maxmean = m;
+    }
+    if (share) *share = psum / wsum;
+    if (!(psum / wsum >= 1e-12)) return BL_OK;
+
+    mix_ctx c = {params, w, n, upper, 0, err};
+    for (size_t j = 0; j < k; j++) {
+        double prob = probs[j];
+        if (!(prob > 0 && prob < 1))
+            return bl_error_set(err, BL_ERR_RANGE, "quantile probability %g is outside (0, 1)", prob);
+        c.target = prob * psum;
+        /* Bracket: nothing is below the earliest RT (or the previous, smaller quantile); by Markov's
+         * inequality every conditional CDF is >= prob at E[RT | boundary] / (1 - prob), so the
+         * mixture is too. */
+        double a = (j > 0 && isfinite(q[j - 1]) && probs[j - 1] < prob) ? q[j - 1] : lo;
+        double b = fmax(maxmean / (1 - prob), a + 4 * TOL);
+        /* Start from the previous quantile (Newton moves right from there) or the bracket's middle.
+         * F(a) < p needs no check (a is the earliest RT or a smaller quantile); F(b) >= p holds
+         * by Markov's inequality, and is checked only when the root lands on b (engine rounding). */
+        double x0 = j > 0 ? a : 0.5 * (a + b);
+        bl_status st = solve(&c, a, b, x0, &q[j], err);
+        for (int grow = 0; st == BL_OK && q[j] > b - 2 * TOL; grow++) {
+            double fb;
+            if ((st = mix_eval(&c, b, &fb, NULL)) != BL_OK) break;
+            if (fb >= 0) break;
+            if (grow == 40) {
+                st = bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile %g: cannot bracket the root (F-p = %g at %g s)",
+                                  prob, fb, b);
+                break;
+            }
+            a = b;
+            b = a + 2 * (b - lo);
+            st = solve(&c, a, b, a, &q[j], err);
+        }
+        if (st != BL_OK) return st;
+    }
+    return BL_OK;
+}
+
+/* ---- groups ---- */
+
+typedef struct {
+    char **names;
+    size_t n, cap;
+} strlist;
+
+static int strlist_has(const strlist *l, const char *s)
+{
+    for (size_t i = 0; i < l->n; i++)
+        if (strcmp(l->names[i], s) == 0) return 1;
+    return 0;
+}
+
+/* Adds a borrowed pointer (no copy). */
+static int strlist_add(strlist *l, const char *s)
+{
+    if (strlist_has(l, s)) return 1;
+    if (l->n == l->cap) {
+        size_t cap = l->cap ? 2 * l->cap : 8;
+        char **n = realloc(l->names, cap * sizeof *n);
+        if (!n) return 0;
+        l->names = n;
+        l->cap = cap;
+    }
+    l->names[l->n++] = (char *)s;
+    return 1;
+}
+
+/* "col=value;col=value" for a row (missing values shown as NA), or "all" when ncols == 0. */
+static char *level_label(const bl_trials *t, const int *cols, size_t ncols, size_t row)
+{
+    if (ncols == 0) return bl_strdup("all");
+    size_t len = 1;
+    for (size_t c = 0; c < ncols; c++) {
+        const bl_column *col = &t->table->cols[cols[c]];
+        const char *v = col->text[row] ? col->text[row] : "NA";
+        len += strlen(col->name) + strlen(v) + 2;
+    }
+    char *s = malloc(len);
+    if (!s) return NULL;
+    s[0] = 0;
+    for (size_t c = 0; c < ncols; c++) {
+        const bl_column *col = &t->table->cols[cols[c]];
+        if (c) strcat(s, ";");
+        strcat(s, col->name);
+        strcat(s, "=");
+        strcat(s, col->text[row] ? col->text[row] : "NA");
+    }
+    return s;
+}
+
+static const bl_model_spec *find_spec(const bl_study *study, const char *name)
+{
+    for (size_t i = 0; i < study->n_models; i++)
+        if (strcmp(study->models[i].name, name) == 0) return &study->models[i];
+    return NULL;
+}
+
+static void free_groups(bl_goodness_group *g, size_t n)
+{
+    for (size_t i = 0; i < n; i++) {
+        free(g[i].condition);
+        free(g[i].regressor);
+        free(g[i].rows);
+    }
+    free(g);
+}
+
+typedef struct {
+    bl_goodness_group *g;
+    size_t n, cap;
+} grouplist;
+
+static bl_goodness_group *group_new(grouplist *l)
+{
+    if (l->n == l->cap) {
+        size_t cap = l->cap ? 2 * l->cap : 16;
+        bl_goodness_group *n = realloc(l->g, cap * sizeof *n);
+        if (!n) return NULL;
+        l->g = n;
+        l->cap = cap;
+    }
+    bl_goodness_group *g = &l->g[l->n++];
+    memset(g, 0, sizeof *g);
+    g->regressor_low = g->regressor_high = g->regressor_mean = NAN;
+    return g;
+}
+
+/* Split `rows` (n, table order) into groups by the level label of `cols`; appends groups to `out`
+ * in order of first appearance. `rows_of` receives, per new group, its rows. */
+static bl_status split_by(const bl_trials *t, const int *cols, size_t ncols, const size_t *rows, size_t n,
+                          grouplist *out, size_t *first_new, bl_error *err)
+{
+    *first_new = out->n;
+    char **labels = calloc(n ? n : 1, sizeof *labels);
+    if (!labels) return bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
+    bl_status st = BL_OK;
+    for (size_t i = 0; i < n; i++)
+        if (!(labels[i] = level_label(t, cols, ncols, rows[i]))) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
+            goto done;
+        }
+    for (size_t i = 0; i < n; i++) {
+        size_t gi;
+        for (gi = *first_new; gi < out->n; gi++)
+            if (strcmp(out->g[gi].condition, labels[i]) == 0) break;
+        if (gi == out->n) {
+            bl_goodness_group *g = group_new(out);
+            if (!g || !(g->condition = bl_strdup(labels[i])) || !(g->rows = malloc(n * sizeof *g->rows))) {
+                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
+                goto done;
+            }
+        }
+        out->g[gi].rows[out->g[gi].n++] = rows[i];
+    }
+done:
+    for (size_t i = 0; i < n; i++) free(labels[i]);
+    free(labels);
+    return st;
+}
+
+typedef struct {
+    const double *x;
+    size_t row;
+} rank_item;
+
+static int rank_cmp(const void *a, const void *b)
+{
+    const rank_item *p = a, *q = b;
+    double u = p->x[p->row], v = q->x[q->row];
+    if (u < v) return -1;
+    if (u > v) return 1;
+    return p->row < q->row ? -1 : p->row > q->row;
+}
+
+/* "regressor|by1,by2": identifies a binning. Caller frees. */
+static char *binning_key(const bl_slope_spec *sl)
+{
+    size_t len = strlen(sl->regressor) + 2;
+    for (size_t i = 0; i < sl->n_by; i++) len += strlen(sl->by[i]) + 1;
+    char *key = malloc(len);
+    if (!key) return NULL;
+    strcpy(key, sl->regressor);
+    strcat(key, "|");
+    for (size_t i = 0; i < sl->n_by; i++) {
+        if (i) strcat(key, ",");
+        strcat(key, sl->by[i]);
+    }
+    return key;
+}
+
+int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope)
+{
+    char *key = binning_key(slope);
+    int found = -1;
+    for (size_t i = 0; key && i < g->n_binnings; i++)
+        if (strcmp(g->binnings[i], key) == 0) found = (int)i;
+    free(key);
+    return found;
+}
+
+static int find_col(const bl_trials *t, const char *name) { return bl_table_find(t->table, name); }
+
+/* Build condition cells and regressor bins. */
+static bl_status build_groups(const bl_study *study, const bl_trials *t, const bl_fit_set *set, bl_goodness *g,
+                              bl_error *err)
+{
+    bl_status st = BL_OK;
+    grouplist gl = {0};
+    strlist cell_cols = {0}, seen_pairs = {0};
+    int *cols = NULL;
+    size_t *rows = NULL, nrows = 0;
+    rank_item *items = NULL;
+    char **pair_keys = NULL;
+    size_t n_pair_keys = 0;
+
+    /* Trials used by every model. */
+    rows = malloc((t->n ? t->n : 1) * sizeof *rows);
+    if (!rows) goto nomem;
+    for (size_t r = 0; r < t->n; r++) {
+        int ok = !t->excluded[r] && isfinite(t->rt[r]);
+        for (size_t m = 0; ok && m < set->n_models; m++)
+            ok = set->models[m].used && r < set->models[m].n_rows && set->models[m].used[r];
+        if (ok) rows[nrows++] = r;
+    }
+
+    /* Columns that define condition cells. */
+    for (size_t m = 0; m < set->n_models; m++) {
+        const bl_model_spec *sp = find_spec(study, set->models[m].name);
+        if (!sp) continue;
+        for (int p = 0; p < BL_NPARAM; p++) {
+            const bl_param_spec *ps = &sp->param[p];
+            if (ps->is_fixed) continue;
+            for (size_t i = 0; i < ps->n_per; i++)
+                if (strcmp(ps->per[i], study->trials.participant) != 0 && !strlist_add(&cell_cols, ps->per[i])) goto nomem;
+            for (size_t s = 0; s < ps->n_slopes; s++)
+                for (size_t i = 0; i < ps->slopes[s].n_by; i++)
+                    if (strcmp(ps->slopes[s].by[i], study->trials.participant) != 0 &&
+                        !strlist_add(&cell_cols, ps->slopes[s].by[i]))
+                        goto nomem;
+        }
+    }
+    if (study->trials.stimulus && !strlist_add(&cell_cols, study->trials.stimulus)) goto nomem;
+    cols = malloc((cell_cols.n + 1) * sizeof *cols);
+    if (!cols) goto nomem;
+    for (size_t i = 0; i < cell_cols.n; i++) {
+        cols[i] = find_col(t, cell_cols.names[i]);
+        if (cols[i] < 0) {
+            st = bl_error_set(err, BL_ERR_INPUT, "%s: no column '%s' for the goodness-of-fit cells",
+                              t->table->path ? t->table->path : "trials", cell_cols.names[i]);
+            goto fail;
+        }
+    }
+    size_t first;
+    if ((st = split_by(t, cols, cell_cols.n, rows, nrows, &gl, &first, err)) != BL_OK) goto fail;
+    g->n_cells = gl.n;
+
+    /* Regressor bins per distinct (regressor, by columns). */
+    items = malloc((nrows ? nrows : 1) * sizeof *items);
+    if (!items) goto nomem;
+    for (size_t m = 0; m < set->n_models; m++) {
+        const bl_model_spec *sp = find_spec(study, set->models[m].name);
+        if (!sp) continue;
+        for (int p = 0; p < BL_NPARAM; p++) {
+            const bl_param_spec *ps = &sp->param[p];
+            if (ps->is_fixed) continue;
+            for (size_t s = 0; s < ps->n_slopes; s++) {
+                const bl_slope_spec *sl = &ps->slopes[s];
+                char *key = binning_key(sl);
+                if (!key) goto nomem;
+                int dup = strlist_has(&seen_pairs, key);
+                char **nk = dup ? pair_keys : realloc(pair_keys, (n_pair_keys + 1) * sizeof *nk);
+                if (!nk || (!dup && !strlist_add(&seen_pairs, key))) {
+                    free(key);
+                    goto nomem;
+                }
+                if (dup) {
+                    free(key);
+                    continue;
+                }
+                pair_keys = nk;
+                pair_keys[n_pair_keys++] = key;
+
+                int rc = find_col(t, sl->regressor);
+                if (rc < 0 || !t->table->cols[rc].numeric) {
+                    st = bl_error_set(err, BL_ERR_INPUT, "goodness of fit: regressor '%s' is not a numeric column",
+                                      sl->regressor);
+                    goto fail;
+                }
+                const double *x = t->table->cols[rc].num;
+                int *bcols = malloc((sl->n_by + 1) * sizeof *bcols);
+                if (!bcols) goto nomem;
+                size_t nb = 0;
+                for (size_t i = 0; i < sl->n_by; i++) {
+                    if (strcmp(sl->by[i], study->trials.participant) == 0) continue;
+                    bcols[nb] = find_col(t, sl->by[i]);
+                    if (bcols[nb] < 0) {
+                        free(bcols);
+                        st = bl_error_set(err, BL_ERR_INPUT, "goodness of fit: no column '%s'", sl->by[i]);
+                        goto fail;
+                    }
+                    nb++;
+                }
+                /* Rows with a finite regressor value. */
+                size_t *rr = malloc((nrows ? nrows : 1) * sizeof *rr), nr = 0;
+                if (!rr) {
+                    free(bcols);
+                    goto nomem;
+                }
+                for (size_t i = 0; i < nrows; i++)
+                    if (isfinite(x[rows[i]])) rr[nr++] = rows[i];
+                grouplist levels = {0};
+                st = split_by(t, bcols, nb, rr, nr, &levels, &first, err);
+                free(bcols);
+                free(rr);
+                if (st != BL_OK) {
+                    free_groups(levels.g, levels.n);
+                    goto fail;
+                }
+                for (size_t L = 0; L < levels.n; L++) {
+                    bl_goodness_group *lv = &levels.g[L];
+                    for (size_t i = 0; i < lv->n; i++) items[i] = (rank_item){x, lv->rows[i]};
+                    qsort(items, lv->n, sizeof *items, rank_cmp);
+                    for (int b = 0; b < BL_GOODNESS_NBINS; b++) {
+                        /* Rank r goes to bin floor(5 r / n). */
+                        size_t r0 = (lv->n * (size_t)b + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
+                        size_t r1 = (lv->n * (size_t)(b + 1) + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
+                        if (r1 <= r0) continue;
+                        bl_goodness_group *ng = group_new(&gl);
+                        if (!ng || !(ng->condition = bl_strdup(lv->condition)) || !(ng->regressor = bl_strdup(sl->regressor)) ||
+                            !(ng->rows = malloc((r1 - r0) * sizeof *ng->rows))) {
+                            free_groups(levels.g, levels.n);
+                            goto nomem;
+                        }
+                        ng->bin = b + 1;
+                        ng->binning = n_pair_keys - 1;
+                        double sum = 0;
+                        for (size_t r = r0; r < r1; r++) {
+                            ng->rows[ng->n++] = items[r].row;
+                            sum += x[items[r].row];
+                        }
+                        ng->regressor_low = x[items[r0].row];
+                        ng->regressor_high = x[items[r1 - 1].row];
+                        ng->regressor_mean = sum / (double)(r1 - r0);
+                        /* Table order within the bin. */
+                        for (size_t i = 1; i < ng->n; i++)
+                            for (size_t j = i; j > 0 && ng->rows[j - 1] > ng->rows[j]; j--) {
+                                size_t tmp = ng->rows[j];
+                                ng->rows[j] = ng->rows[j - 1];
+                                ng->rows[j - 1] = tmp;
+                            }
+                    }
+                }
+                free_groups(levels.g, levels.n);
+            }
+        }
+    }
+    g->groups = gl.g;
+    g->n_groups = gl.n;
+    gl.g = NULL;
+    g->binnings = pair_keys;
+    g->n_binnings = n_pair_keys;
+    pair_keys = NULL;
+    n_pair_keys = 0;
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory building goodness-of-fit groups");
+fail:
+    free_groups(gl.g, gl.n);
+done:
+    free(cell_cols.names);
+    free(seen_pairs.names);
+    for (size_t i = 0; i < n_pair_keys; i++) free(pair_keys[i]);
+    free(pair_keys);
+    free(cols);
+    free(rows);
+    free(items);
+    return st;
+}
+
+/* ---- rows ---- */
+
+static int cmp_double(const void *a, const void *b)
+{
+    double u = *(const double *)a, v = *(const double *)b;
+    return (u > v) - (u < v);
+}
+
+static int cmp_params(const void *a, const void *b)
+{
+    const bl_wiener_params *p = a, *q = b;
+    for (int i = 0; i < BL_NPARAM; i++)
+        if (p->value[i] != q->value[i]) return p->value[i] < q->value[i] ? -1 : 1;
+    if (p->contamination_lo != q->contamination_lo) return p->contamination_lo < q->contamination_lo ? -1 : 1;
+    if (p->contamination_hi != q->contamination_hi) return p->contamination_hi < q->contamination_hi ? -1 : 1;
+    return 0;
+}
+
+/* Fill the two rows (upper, lower) of one model and group. `par`/`w` are scratch of size group n. */
+static bl_status fill_rows(const bl_trials *t, const bl_model_result *mr, const bl_goodness_group *gr,
+                           bl_goodness_row *rows, bl_wiener_params *par, double *w, double *rts, bl_error *err)
+{
+    /* Distinct parameter sets with their counts: baseline-style models collapse to one per cell. */
+    for (size_t i = 0; i < gr->n; i++) par[i] = mr->predicted[gr->rows[i]];
+    qsort(par, gr->n, sizeof *par, cmp_params);
+    size_t nu = 0;
+    for (size_t i = 0; i < gr->n; i++) {
+        if (nu > 0 && cmp_params(&par[nu - 1], &par[i]) == 0) {
+            w[nu - 1] += 1;
+            continue;
+        }
+        par[nu] = par[i];
+        w[nu++] = 1;
+    }
+    for (int b = 0; b < 2; b++) {
+        bl_goodness_row *row = &rows[b];
+        int upper = b == 0;
+        row->upper = upper;
+        row->trials = gr->n;
+        size_t nr = 0;
+        for (size_t i = 0; i < gr->n; i++)
+            if ((t->upper[gr->rows[i]] != 0) == upper) rts[nr++] = t->rt[gr->rows[i]];
+        qsort(rts, nr, sizeof *rts, cmp_double);
+        row->responses = nr;
+        row->observed_share = gr->n ? (double)nr / (double)gr->n : NAN;
+        for (int k = 0; k < BL_GOODNESS_NQ; k++)
+            row->observed_q[k] = bl_goodness_sample_quantile(rts, nr, bl_goodness_probs[k]);
+        bl_status st = bl_goodness_mixture_quantiles(par, w, nu, upper, bl_goodness_probs, BL_GOODNESS_NQ,
+                                                     row->predicted_q, &row->predicted_share, err);
+        if (st != BL_OK) return st;
+    }
+    return BL_OK;
+}
+
+bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, const bl_fit_set *set, int threads,
+                              bl_goodness **out, bl_error *err)
+{
+    *out = NULL;
+    bl_goodness *g = calloc(1, sizeof *g);
+    if (!g) return bl_error_set(err, BL_ERR_NOMEM, "out of memory for goodness of fit");
+    g->set = set;
+    bl_status st = build_groups(study, trials, set, g, err);
+    if (st != BL_OK) {
+        free(g);
+        return st;
+    }
+    size_t ntask = set->n_models * g->n_groups;
+    g->n_rows = 2 * ntask;
+    g->rows = calloc(g->n_rows ? g->n_rows : 1, sizeof *g->rows);
+    bl_status *task_st = calloc(ntask ? ntask : 1, sizeof *task_st);
+    bl_error *task_err = calloc(ntask ? ntask : 1, sizeof *task_err);
+    size_t maxn = 1;
+    for (size_t i = 0; i < g->n_groups; i++)
+        if (g->groups[i].n > maxn) maxn = g->groups[i].n;
+    if (!g->rows || !task_st || !task_err) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for goodness of fit");
+        goto done;
+    }
+    int nomem = 0;
+#ifdef _OPENMP
+    if (threads <= 0) threads = omp_get_max_threads();
+#pragma omp parallel num_threads(threads) reduction(| : nomem)
+#else
+    (void)threads;
+#endif
+    {
+        /* Per-thread scratch, reused across tasks. */
+        bl_wiener_params *par = malloc(maxn * sizeof *par);
+        double *w = malloc(maxn * sizeof *w), *rts = malloc(maxn * sizeof *rts);
+        if (!par || !w || !rts) nomem = 1;
+#ifdef _OPENMP
+#pragma omp for schedule(dynamic, 1)
+#endif
+        for (size_t task = 0; task < ntask; task++) {
+            if (!par || !w || !rts) continue;
+            size_t m = task / g->n_groups, gi = task % g->n_groups;
+            bl_goodness_row *rows = &g->rows[2 * task];
+            rows[0].model = rows[1].model = m;
+            rows[0].group = rows[1].group = gi;
+            task_st[task] = fill_rows(trials, &set->models[m], &g->groups[gi], rows, par, w, rts, &task_err[task]);
+        }
+        free(par);
+        free(w);
+        free(rts);
+    }
+    if (nomem) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for goodness of fit");
+        goto done;
+    }
+    /* Report the first failure in task order, whatever the thread count. */
+    for (size_t task = 0; task < ntask; task++)
+        if (task_st[task] != BL_OK) {
+            size_t m = task / g->n_groups, gi = task % g->n_groups;
+            const bl_goodness_group *gr = &g->groups[gi];
+            st = bl_error_set(err, task_st[task], "goodness of fit, model '%s', %s%s%s%s: %s", set->models[m].name,
+                              gr->condition, gr->regressor ? ", " : "", gr->regressor ? gr->regressor : "",
+                              gr->regressor ? " bin" : "", task_err[task].message);
+            break;
+        }
+done:
+    free(task_st);
+    free(task_err);
+    if (st != BL_OK) {
+        bl_goodness_destroy(g);
+        return st;
+    }
+    *out = g;
+    return BL_OK;
+}
+
+void bl_goodness_destroy(bl_goodness *g)
+{
+    if (!g) return;
+    free_groups(g->groups, g->n_groups);
+    free(g->rows);
+    for (size_t i = 0; i < g->n_binnings; i++) free(g->binnings[i]);
+    free(g->binnings);
+    free(g);
+}
+
+/* ---- CSV ---- */
+
+static void csv_num(FILE *f, double v)
+{
+    if (isfinite(v)) fprintf(f, ",%.17g", v);
+    else fputs(",NA", f);
+}
+
+/* A text field, quoted when it holds a comma, quote or line break (RFC 4180). */
+static void csv_text(FILE *f, const char *s, int lead_comma)
+{
+    if (lead_comma) fputc(',', f);
+    if (!s) {
+        fputs("NA", f);
+        return;
+    }
+    if (!strpbrk(s, ",\"\r\n")) {
+        fputs(s, f);
+        return;
+    }
+    fputc('"', f);
+    for (; *s; s++) {
+        if (*s == '"') fputc('"', f);
+        fputc(*s, f);
+    }
+    fputc('"', f);
+}
+
+bl_status bl_goodness_write_csv(const bl_goodness *g, const char *path, bl_error *err)
+{
+    bl_outfile *o;
+    bl_status st = bl_outfile_open(path, &o, err);
+    if (st != BL_OK) return st;
+    FILE *f = bl_outfile_stream(o);
+    fputs("model,condition,regressor,bin,regressor_low,regressor_high,regressor_mean,boundary,trials,responses,"
+          "observed_share,predicted_share",
+          f);
+    for (int k = 0; k < BL_GOODNESS_NQ; k++) {
+        int pc = (int)lround(bl_goodness_probs[k] * 100);
+        fprintf(f, ",observed_q%d,predicted_q%d", pc, pc);
+    }
+    fputc('\n', f);
+    for (size_t i = 0; i < g->n_rows; i++) {
+        const bl_goodness_row *r = &g->rows[i];
+        const bl_goodness_group *gr = &g->groups[r->group];
+        csv_text(f, g->set->models[r->model].name, 0);
+        csv_text(f, gr->condition, 1);
+        csv_text(f, gr->regressor, 1);
+        if (gr->bin) fprintf(f, ",%d", gr->bin);
+        else fputs(",NA", f);
+        csv_num(f, gr->regressor_low);
+        csv_num(f, gr->regressor_high);
+        csv_num(f, gr->regressor_mean);
+        fprintf(f, ",%s,%zu,%zu", r->upper ? "upper" : "lower", r->trials, r->responses);
+        csv_num(f, r->observed_share);
+        csv_num(f, r->predicted_share);
+        for (int k = 0; k < BL_GOODNESS_NQ; k++) {
+            csv_num(f, r->observed_q[k]);
+            csv_num(f, r->predicted_q[k]);
+        }
+        fputc('\n', f);
+    }
+    return bl_outfile_commit(o, err);
+}

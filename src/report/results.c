@@ -1,0 +1,327 @@
+/* Writers for fits.json, comparison.csv and trials.csv (vocabulary.md), atomic via output.h.
+ * CSV follows RFC 4180 quoting; numbers are printed with %.17g so they read back exactly. */
+#include "report/results.h"
+
+#include "core/output.h"
+#include "core/json.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+static cJSON *num_or_null(double x) { return isfinite(x) ? cJSON_CreateNumber(x) : cJSON_CreateNull(); }
+
+static int add(cJSON *obj, const char *key, cJSON *item)
+{
+    if (!item) return 0;
+    if (!cJSON_AddItemToObject(obj, key, item)) {
+        cJSON_Delete(item);
+        return 0;
+    }
+    return 1;
+}
+
+static int add_num(cJSON *o, const char *k, double x) { return add(o, k, num_or_null(x)); }
+static int add_str(cJSON *o, const char *k, const char *s)
+{
+    return add(o, k, s ? cJSON_CreateString(s) : cJSON_CreateNull());
+}
+static int add_bool(cJSON *o, const char *k, int b) { return add(o, k, cJSON_CreateBool(b != 0)); }
+
+static cJSON *diagnostics_json(const bl_fit_diagnostics *d)
+{
+    cJSON *o = cJSON_CreateObject();
+    if (!o) return NULL;
+    int ok = add_str(o, "method", d->method ? d->method : "bfgs2") && add_bool(o, "converged", d->converged) &&
+             add_num(o, "gradient_norm", d->gradient_norm) && add_num(o, "newton_decrement", d->newton_decrement) &&
+             add_num(o, "iterations", (double)d->iterations) && add_num(o, "evaluations", (double)d->evaluations) &&
+             add_num(o, "starts", d->starts) && add_num(o, "starts_agreed", d->starts_agreed) &&
+             add_bool(o, "hessian_positive_definite", d->hessian_positive_definite) &&
+             add_num(o, "condition_number", d->condition_number);
+    if (!ok) {
+        cJSON_Delete(o);
+        return NULL;
+    }
+    return o;
+}
+
+static cJSON *coefficients_json(const bl_fit_result *f)
+{
+    cJSON *a = cJSON_CreateArray();
+    if (!a) return NULL;
+    for (size_t j = 0; j < f->n_coef; j++) {
+        const bl_coefficient *c = &f->coef[j];
+        cJSON *o = cJSON_CreateObject();
+        if (!o || !cJSON_AddItemToArray(a, o)) {
+            cJSON_Delete(o);
+            cJSON_Delete(a);
+            return NULL;
+        }
+        int ok = add_str(o, "parameter", c->parameter) && add_str(o, "term", c->term) &&
+                 add_str(o, "level", c->level) && add_num(o, "estimate", c->estimate) && add_num(o, "se", c->se) &&
+                 add_num(o, "ci_low", c->ci_low) && add_num(o, "ci_high", c->ci_high) && add_num(o, "z", c->z) &&
+                 add_num(o, "p", c->p);
+        if (!ok) {
+            cJSON_Delete(a);
+            return NULL;
+        }
+    }
+    return a;
+}
+
+/* The keys every fit carries (vocabulary.md), for a model or one participant. */
+static int fit_fields(cJSON *o, const char *name, const bl_fit_result *f, double ll, size_t k, size_t n, double aic,
+                      double bic, int converged)
+{
+    return add_str(o, "name", name) && add_num(o, "log_likelihood", ll) && add_num(o, "parameters", (double)k) &&
+           add_num(o, "trials", (double)n) && add_num(o, "aic", aic) && add_num(o, "bic", bic) &&
+           add_bool(o, "converged", converged) && add(o, "diagnostics", diagnostics_json(&f->diag)) &&
+           add(o, "coefficients", coefficients_json(f));
+}
+
+static cJSON *model_json(const bl_model_result *r)
+{
+    cJSON *o = cJSON_CreateObject();
+    if (!o) return NULL;
+    int ok = fit_fields(o, r->name, &r->fit, r->log_likelihood, r->parameters, r->trials, r->aic, r->bic,
+                        r->converged) &&
+             add_str(o, "extends", r->extends) &&
+             add_str(o, "mode", r->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled");
+    if (ok && r->mode == BL_PARTICIPANTS_SEPARATE) {
+        cJSON *parts = cJSON_CreateArray();
+        ok = add(o, "participants", parts);
+        for (size_t i = 0; ok && i < r->n_participants; i++) {
+            const bl_fit_result *f = &r->participants[i];
+            cJSON *p = cJSON_CreateObject();
+            ok = p && cJSON_AddItemToArray(parts, p);
+            if (!ok) {
+                cJSON_Delete(p);
+                break;
+            }
+            ok = add_str(p, "participant", f->participant) &&
+                 fit_fields(p, r->name, f, f->log_likelihood, f->parameters, f->trials, f->aic, f->bic, f->converged);
+        }
+        cJSON *grp = cJSON_CreateArray();
+        ok = ok && add(o, "group", grp);
+        for (size_t g = 0; ok && g < r->n_group; g++) {
+            const bl_group_coefficient *c = &r->group[g];
+            cJSON *e = cJSON_CreateObject(), *re = cJSON_CreateObject();
+            ok = e && re && cJSON_AddItemToArray(grp, e);
+            if (!ok) {
+                cJSON_Delete(e);
+                cJSON_Delete(re);
+                break;
+            }
+            ok = add_str(e, "parameter", c->parameter) && add_str(e, "term", c->term) &&
+                 add_str(e, "level", c->level) && add_num(e, "participants", (double)c->n) &&
+                 add_num(e, "mean", c->mean) && add_num(e, "sd", c->sd) && add_num(e, "t", c->t) &&
+                 add_num(e, "df", c->df) && add_num(e, "p", c->p_t);
+            ok = add(e, "random_effects", re) && ok;
+            ok = ok && add_num(re, "estimate", c->re_estimate) && add_num(re, "se", c->re_se) &&
+                 add_num(re, "ci_low", c->re_ci_low) && add_num(re, "ci_high", c->re_ci_high) &&
+                 add_num(re, "z", c->re_z) && add_num(re, "p", c->re_p) && add_num(re, "tau2", c->tau2) &&
+                 add_num(re, "q", c->q) && add_num(re, "participants", (double)c->n_with_se);
+        }
+    }
+    if (ok && r->n_permutation) {
+        cJSON *perm = cJSON_CreateArray();
+        ok = add(o, "permutation_tests", perm);
+        for (size_t i = 0; ok && i < r->n_permutation; i++) {
+            const bl_permutation_test *t = &r->permutation[i];
+            cJSON *e = cJSON_CreateObject();
+            ok = e && cJSON_AddItemToArray(perm, e);
+            if (!ok) {
+                cJSON_Delete(e);
+                break;
+            }
+            ok = add_str(e, "parameter", t->parameter) && add_str(e, "term", t->regressor) &&
+                 add_num(e, "statistic", t->statistic) && add_num(e, "permutations", (double)t->permutations) &&
+                 add_num(e, "exceed", (double)t->exceed) && add_num(e, "p", t->p);
+        }
+    }
+    if (!ok) {
+        cJSON_Delete(o);
+        return NULL;
+    }
+    return o;
+}
+
+cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance, const bl_warnings *warnings)
+{
+    cJSON *root = cJSON_CreateObject(), *models = cJSON_CreateArray(), *warn = cJSON_CreateArray();
+    int ok = root && add(root, "mode", cJSON_CreateString(set->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled"));
+    ok = ok && add(root, "models", models);
+    if (!ok) cJSON_Delete(models);
+    for (size_t i = 0; ok && i < set->n_models; i++) {
+        cJSON *m = model_json(&set->models[i]);
+        ok = m && cJSON_AddItemToArray(models, m);
+        if (!ok) cJSON_Delete(m);
+    }
+    if (ok && set->permutations) {
+        cJSON *p = cJSON_CreateObject();
+        ok = add(root, "permutation", p) && add_num(p, "permutations", (double)set->permutations) &&
+             add_num(p, "seed", (double)set->seed);
+    }
+    ok = ok && add(root, "warnings", warn);
+    if (!ok && warn && !root) cJSON_Delete(warn);
+    for (size_t i = 0; ok && warnings && i < warnings->count; i++) {
+        cJSON *s = cJSON_CreateString(warnings->items[i]);
+        ok = s && cJSON_AddItemToArray(warn, s);
+        if (!ok) cJSON_Delete(s);
+    }
+    if (ok) ok = add(root, "provenance", provenance ? cJSON_Duplicate(provenance, 1) : cJSON_CreateObject());
+    if (!ok) {
+        cJSON_Delete(root);
+        return NULL;
+    }
+    return root;
+}
+
+bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
+                                const bl_warnings *warnings, bl_error *err)
+{
+    if (warnings && warnings->lost)
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory: %zu warnings could not be recorded", path,
+                            warnings->lost);
+    cJSON *root = bl_results_fits_json(set, provenance, warnings);
+    /* A failed allocation while building may have dropped an item: never write such a document. */
+    char *text = root && !bl_json_alloc_failures() ? cJSON_Print(root) : NULL;
+    cJSON_Delete(root);
+    if (!text) return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory building the JSON document", path);
+    size_t n = strlen(text);
+    char *buf = malloc(n + 2);
+    if (!buf) {
+        cJSON_free(text);
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", path);
+    }
+    memcpy(buf, text, n);
+    buf[n] = '\n';
+    cJSON_free(text);
+    bl_status st = bl_write_file_atomic(path, buf, n + 1, err);
+    free(buf);
+    return st;
+}
+
+/* ---- CSV ------------------------------------------------------------------------------------- */
+
+static void csv_text(FILE *f, const char *s)
+{
+    if (!s) {
+        fputs("NA", f);
+        return;
+    }
+    if (strpbrk(s, ",\"\r\n") == NULL) {
+        fputs(s, f);
+        return;
+    }
+    fputc('"', f);
+    for (const char *c = s; *c; c++) {
+        if (*c == '"') fputc('"', f);
+        fputc(*c, f);
+    }
+    fputc('"', f);
+}
+
+static void csv_num(FILE *f, double x)
+{
+    if (isfinite(x)) fprintf(f, "%.17g", x);
+    else fputs("NA", f);
+}
+
+bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, bl_error *err)
+{
+    bl_outfile *of;
+    bl_status st = bl_outfile_open(path, &of, err);
+    if (st) return st;
+    FILE *f = bl_outfile_stream(of);
+    fputs("name,parameters,trials,log_likelihood,aic,bic,delta_aic,delta_bic,aic_weight,lrt_against,lrt_nested,"
+          "lrt_statistic,lrt_df,lrt_p\n",
+          f);
+    for (size_t i = 0; i < set->n_models && set->comparison; i++) {
+        const bl_comparison_row *c = &set->comparison[i];
+        csv_text(f, c->name);
+        fprintf(f, ",%zu,%zu,", c->parameters, c->trials);
+        csv_num(f, c->log_likelihood);
+        fputc(',', f);
+        csv_num(f, c->aic);
+        fputc(',', f);
+        csv_num(f, c->bic);
+        fputc(',', f);
+        csv_num(f, c->delta_aic);
+        fputc(',', f);
+        csv_num(f, c->delta_bic);
+        fputc(',', f);
+        csv_num(f, c->aic_weight);
+        fputc(',', f);
+        csv_text(f, c->lrt_against);
+        fputc(',', f);
+        fputs(c->lrt_nested == 1 ? "yes" : c->lrt_nested == 0 ? "not nested" : c->lrt_against ? "not fitted" : "NA", f);
+        fputc(',', f);
+        csv_num(f, c->lrt_statistic);
+        fputc(',', f);
+        csv_num(f, c->lrt_df);
+        fputc(',', f);
+        csv_num(f, c->lrt_p);
+        fputc('\n', f);
+    }
+    return bl_outfile_commit(of, err);
+}
+
+bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_trials *trials, bl_error *err)
+{
+    bl_outfile *of;
+    bl_status st = bl_outfile_open(path, &of, err);
+    if (st) return st;
+    FILE *f = bl_outfile_stream(of);
+    fputs("model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,log_likelihood\n", f);
+    for (size_t m = 0; m < set->n_models; m++) {
+        const bl_model_result *r = &set->models[m];
+        for (size_t i = 0; i < r->n_rows && i < trials->n; i++) {
+            if (!r->used[i]) continue;
+            const bl_wiener_params *p = &r->predicted[i];
+            csv_text(f, r->name);
+            fputc(',', f);
+            csv_text(f, trials->participants ? trials->participants[trials->participant[i]] : NULL);
+            fputc(',', f);
+            csv_text(f, trials->trial_label ? trials->trial_label[i] : NULL);
+            const double v[] = {p->value[BL_THRESHOLD], p->value[BL_DRIFT], p->value[BL_NONDECISION],
+                                p->value[BL_START],     r->p_upper[i],      r->mean_rt[i],
+                                r->trial_log_likelihood[i]};
+            for (size_t j = 0; j < sizeof v / sizeof v[0]; j++) {
+                fputc(',', f);
+                csv_num(f, v[j]);
+            }
+            fputc('\n', f);
+        }
+    }
+    return bl_outfile_commit(of, err);
+}
+
+bl_status bl_results_write_all(const char *dir, const bl_fit_set *set, const bl_trials *trials,
+                               const cJSON *provenance, const bl_warnings *warnings, int force, bl_error *err)
+{
+    static const char *names[] = {"fits.json", "comparison.csv", "trials.csv"};
+    char *path[3] = {NULL, NULL, NULL};
+    bl_status st = bl_mkdir_p(dir, err);
+    if (st) return st;
+    for (int i = 0; i < 3; i++)
+        if (!(path[i] = bl_path_join(dir, names[i]))) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            goto done;
+        }
+    if (!force)
+        for (int i = 0; i < 3; i++) {
+            struct stat sb;
+            if (stat(path[i], &sb) == 0) {
+                st = bl_error_set(err, BL_ERR_EXISTS, "%s exists (use --force to replace it)", path[i]);
+                goto done;
+            }
+        }
+    if ((st = bl_results_write_fits(path[0], set, provenance, warnings, err))) goto done;
+    if ((st = bl_results_write_comparison(path[1], set, err))) goto done;
+    st = bl_results_write_trials(path[2], set, trials, err);
+done:
+    for (int i = 0; i < 3; i++) free(path[i]);
+    return st;
+}

@@ -1,0 +1,837 @@
+/* Band power per trial: windows from the recordings, Welch PSD, band sums, artifact flags, scale and
+ * standardize, and power.csv.
+ *
+ * Conventions: docs/study-file.md ("power") and the shared signal conventions: window = [s + round(from*fs),
+ * s + round(to*fs)) with s = round(onset*fs) (round = half away from zero, C99 llround); Welch as
+ * scipy.signal.welch (spectrum.c); band power by the rectangle rule over the closed band, DC excluded;
+ * line-noise bins within max(2 df, 2 Hz) of each harmonic left out; z-scores with the n-1 sample SD.
+ *
+ * Parallelism: trials are grouped by recording and cut into chunks; each thread owns its file handle,
+ * buffers and Welch workspace (the plan is shared read-only). Every result is written to its own trial
+ * row and errors are reported for the first failing chunk in a fixed order, so output is identical for
+ * any thread count.
+ */
+#include "signal/power.h"
+#include "core/output.h"
+#include "signal/spectrum.h"
+#include "signal/trace.h"
+#include "core/strutil.h"
+
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#ifdef _OPENMP
+#include <omp.h>
+#endif
+
+enum { CHUNK_TRIALS = 32 };
+
+/* CSV/TSV traces are parsed whole when opened, so one thread takes all trials of such a file. */
+static int is_text_trace(const char *p)
+{
+    const char *dot = strrchr(p, '.');
+    if (!dot || strchr(dot, '/')) return 0;
+    return strcmp(dot, ".csv") == 0 || strcmp(dot, ".tsv") == 0 || strcmp(dot, ".txt") == 0 ||
+           strcmp(dot, ".CSV") == 0 || strcmp(dot, ".TSV") == 0 || strcmp(dot, ".TXT") == 0;
+}
+
+typedef struct {
+    size_t row;        /* trial index */
+    size_t rec;        /* recording index */
+    int64_t start;     /* first sample of the window (may be outside the recording: checked when read) */
+} job;
+
+typedef struct {
+    size_t rec, begin, end;  /* jobs[begin..end) */
+    bl_status status;
+    bl_error err;
+} item;
+
+static int job_cmp(const void *a, const void *b)
+{
+    const job *x = a, *y = b;
+    if (x->rec != y->rec) return x->rec < y->rec ? -1 : 1;
+    if (x->start != y->start) return x->start < y->start ? -1 : 1;
+    return x->row < y->row ? -1 : x->row > y->row;
+}
+
+void bl_power_result_destroy(bl_power_result *r)
+{
+    if (!r) return;
+    for (size_t b = 0; b < r->n_bands; b++) {
+        free(r->bands[b].name);
+        free(r->bands[b].used);
+    }
+    free(r->bands);
+    for (size_t i = 0; i < r->n_recordings; i++) {
+        free(r->recordings[i].path);
+        free(r->recordings[i].participant);
+    }
+    free(r->recordings);
+    free(r->freq);
+    free(r->psd);
+    free(r->band_power);
+    free(r->unit);
+    free(r);
+}
+
+static int add_recording(bl_power_result *r, size_t *cap, const char *path, const char *participant, size_t *index)
+{
+    /* trials usually come grouped by file: look at the last one first */
+    if (r->n_recordings && strcmp(r->recordings[r->n_recordings - 1].path, path) == 0) {
+        *index = r->n_recordings - 1;
+        return 1;
+    }
+    for (size_t i = 0; i < r->n_recordings; i++)
+        if (strcmp(r->recordings[i].path, path) == 0) {
+            *index = i;
+            return 1;
+        }
+    if (r->n_recordings == *cap) {
+        size_t nc = *cap ? 2 * *cap : 16;
+        bl_power_recording *nr = realloc(r->recordings, nc * sizeof *nr);
+        if (!nr) return 0;
+        r->recordings = nr;
+        *cap = nc;
+    }
+    bl_power_recording *rec = &r->recordings[r->n_recordings];
+    memset(rec, 0, sizeof *rec);
+    rec->path = bl_strdup(path);
+    rec->participant = bl_strdup(participant);
+    if (!rec->path || !rec->participant) {
+        free(rec->path);
+        free(rec->participant);
+        return 0;
+    }
+    *index = r->n_recordings++;
+    return 1;
+}
+
+/* Per-thread state. */
+typedef struct {
+    bl_trace *trace;
+    size_t rec;              /* recording the trace belongs to, or SIZE_MAX */
+    double *raw;             /* window_samples x channels */
+    size_t raw_cap;          /* doubles */
+    double *x;               /* window_samples */
+    bl_welch_work *work;
+} thread_state;
+
+static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_result *r, const bl_trials *t,
+                                const bl_montage *m, size_t rec, size_t first_row, bl_error *err)
+{
+    bl_status st = BL_OK;
+    bl_trace_close(ts->trace);
+    ts->trace = NULL;
+    ts->rec = SIZE_MAX;
+    const char *path = r->recordings[rec].path;
+    const char *part = t->participants[t->participant[first_row]];
+    bl_error e = {0};
+    if (is_text_trace(path)) { /* parsed whole: let threads parse different CSV files at once */
+        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+    } else {
+        /* sf_open reports failures through a process-wide sf_strerror(NULL): one thread at a time */
+#ifdef _OPENMP
+#pragma omp critical(bl_trace_open)
+#endif
+        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+    }
+    if (st)
+        return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
+    const bl_trace_info *info = bl_trace_get_info(ts->trace);
+    if (fabs(info->rate - r->fs) > 1e-9 * r->fs)
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "participant %s: %s is sampled at %.10g Hz, but the study uses %.10g Hz%s", part, path,
+                            info->rate, r->fs,
+                            isfinite(s->recordings.rate) ? " (recordings.rate)" : " (the rate of the first recording)");
+    if ((size_t)bl_montage_max_channel(m) > info->channels)
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "participant %s, trial %s: %s has %zu channel%s, but recordings.channels uses channel %d",
+                            part, t->trial_label[first_row], path, info->channels, info->channels == 1 ? "" : "s",
+                            bl_montage_max_channel(m));
+    size_t need = r->window_samples * info->channels;
+    if (need > ts->raw_cap) {
+        double *nr = realloc(ts->raw, need * sizeof *nr);
+        if (!nr) return bl_error_set(err, BL_ERR_NOMEM, "out of memory for a window of %s", path);
+        ts->raw = nr;
+        ts->raw_cap = need;
+    }
+    ts->rec = rec;
+    return BL_OK;
+}
+
+/* Artifact reason for a window, or NULL. `raw` holds every channel; only the montage's channels count
+ * for clipping. */
+static const char *artifact(const bl_study *s, const bl_trace_info *info, const bl_montage *m, const double *raw,
+                            const double *x, size_t n)
+{
+    double lo = INFINITY, hi = -INFINITY;
+    for (size_t i = 0; i < n; i++) {
+        if (!isfinite(x[i])) return "artifact: non-finite";
+        if (x[i] < lo) lo = x[i];
+        if (x[i] > hi) hi = x[i];
+    }
+    if (s->power.clipping && info->integer_pcm) {
+        size_t ch = info->channels;
+        for (size_t i = 0; i < n; i++)
+            for (size_t k = 0; k < m->n; k++) {
+                double a = raw[i * ch + (size_t)m->pos[k]];
+                if (a <= info->clip_lo || a >= info->clip_hi) return "artifact: clipping";
+                if (m->neg[k] >= 0) {
+                    double b = raw[i * ch + (size_t)m->neg[k]];
+                    if (b <= info->clip_lo || b >= info->clip_hi) return "artifact: clipping";
+                }
+            }
+    }
+    if (s->power.flat > 0 && hi - lo < s->power.flat) return "artifact: flat";
+    if (s->power.peak_to_peak > 0 && hi - lo > s->power.peak_to_peak) return "artifact: peak-to-peak";
+    return NULL;
+}
+
+static void process_item(const bl_study *s, bl_power_result *r, const bl_trials *t, const bl_montage *m,
+                         const bl_welch_plan *plan, const job *jobs, item *it, thread_state *ts, const char **reason)
+{
+    if (ts->rec != it->rec) {
+        it->status = open_recording(ts, s, r, t, m, it->rec, jobs[it->begin].row, &it->err);
+        if (it->status) return;
+    }
+    const bl_trace_info *info = bl_trace_get_info(ts->trace);
+    if (it->begin == 0 || jobs[it->begin - 1].rec != it->rec) { /* first chunk of this recording: describe it */
+        bl_power_recording *rec = &r->recordings[it->rec];
+        rec->rate = info->rate;
+        rec->channels = info->channels;
+        rec->frames = info->frames;
+        snprintf(rec->format, sizeof rec->format, "%s", info->format);
+    }
+    size_t L = r->window_samples, nf = r->n_freqs;
+    for (size_t k = it->begin; k < it->end; k++) {
+        size_t row = jobs[k].row;
+        int64_t start = jobs[k].start;
+        const char *part = t->participants[t->participant[row]];
+        if (start < 0 || start + (int64_t)L > info->frames) {
+            it->status = bl_error_set(&it->err, BL_ERR_INPUT,
+                                      "participant %s, trial %s (%s line %zu): the window, samples %lld to %lld "
+                                      "(%.6g s to %.6g s), is outside %s, which holds %lld samples (%.6g s)",
+                                      part, t->trial_label[row], t->table->path ? t->table->path : "trials",
+                                      t->table->line[row], (long long)start, (long long)(start + (int64_t)L) - 1,
+                                      (double)start / r->fs, (double)(start + (int64_t)L) / r->fs,
+                                      r->recordings[it->rec].path, (long long)info->frames,
+                                      (double)info->frames / r->fs);
+            return;
+        }
+        bl_error e = {0};
+        if ((it->status = bl_trace_read(ts->trace, start, L, ts->raw, &e))) {
+            bl_error_set(&it->err, it->status, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
+            return;
+        }
+        bl_montage_apply(m, ts->raw, L, info->channels, s->recordings.gain, ts->x);
+        double *psd = r->psd + row * nf;
+        const char *why = artifact(s, info, m, ts->raw, ts->x, L);
+        if (why) {
+            reason[row] = why;
+            continue;
+        }
+        if ((it->status = bl_welch_compute(plan, ts->work, ts->x, L, psd, &e))) {
+            bl_error_set(&it->err, it->status, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
+            return;
+        }
+        for (size_t b = 0; b < r->n_bands; b++) {
+            const bl_power_band *band = &r->bands[b];
+            r->band_power[row * r->n_bands + b] = bl_band_power(psd, r->df, band->first_bin, band->last_bin, band->used);
+        }
+    }
+}
+
+static double scaled(bl_scale sc, double v)
+{
+    switch (sc) {
+    case BL_SCALE_LOG10: return log10(v);
+    case BL_SCALE_DB: return 10.0 * log10(v);
+    default: return v;
+    }
+}
+
+/* z-score each band's scaled values within groups, over kept trials; adds the table columns. */
+static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result *r, bl_warnings *warn,
+                                bl_error *err)
+{
+    size_t n = t->n, nb = r->n_bands;
+    bl_status st = BL_OK;
+    double *val = malloc(n * sizeof *val);
+    double *raw = malloc(n * sizeof *raw);
+    size_t *group = malloc(n * sizeof *group);
+    size_t *first_of_group = malloc(n * sizeof *first_of_group);
+    double *sum = calloc(n, sizeof *sum), *sum2 = calloc(n, sizeof *sum2);
+    size_t *cnt = calloc(n, sizeof *cnt);
+    int *cond_col = calloc(s->power.n_condition + 1, sizeof *cond_col);
+    if (!val || !raw || !group || !first_of_group || !sum || !sum2 || !cnt || !cond_col) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory standardizing band power");
+        goto done;
+    }
+    for (size_t k = 0; k < s->power.n_condition; k++) cond_col[k] = bl_table_find(t->table, s->power.condition[k]);
+
+    /* non-positive band power cannot be log-scaled: say so per trial instead of writing -inf */
+    size_t n_zero = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (t->excluded[i]) continue;
+        for (size_t b = 0; b < nb; b++) {
+            double v = r->band_power[i * nb + b];
+            if (!isfinite(scaled(s->power.scale, v))) {
+                bl_trials_exclude(t, i, "zero band power");
+                n_zero++;
+                break;
+            }
+        }
+    }
+    if (n_zero)
+        bl_warnings_add(warn, "%zu trials have zero power in a band (a silent or disconnected channel?) and were left out",
+                        n_zero);
+    /* groups: participant, or participant x condition columns (by text) */
+    size_t n_groups = 0;
+    for (size_t i = 0; i < n; i++) {
+        size_t g = 0;
+        if (s->power.standardize == BL_STANDARDIZE_NONE) {
+            group[i] = 0;
+            n_groups = 1;
+            continue;
+        }
+        for (g = 0; g < n_groups; g++) {
+            size_t j = first_of_group[g];
+            if (t->participant[j] != t->participant[i]) continue;
+            int same = 1;
+            if (s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION)
+                for (size_t k = 0; k < s->power.n_condition && same; k++) {
+                    const char *a = t->table->cols[cond_col[k]].text[i], *b = t->table->cols[cond_col[k]].text[j];
+                    same = (!a && !b) || (a && b && strcmp(a, b) == 0);
+                }
+            if (same) break;
+        }
+        if (g == n_groups) first_of_group[n_groups++] = i;
+        group[i] = g;
+    }
+    if (s->power.standardize != BL_STANDARDIZE_NONE) {
+        /* a group needs two kept trials for a sample SD */
+        for (size_t i = 0; i < n; i++) cnt[group[i]] += !t->excluded[i];
+        for (size_t i = 0; i < n; i++)
+            if (!t->excluded[i] && cnt[group[i]] < 2) {
+                bl_trials_exclude(t, i, "standardize: only trial of its group");
+                bl_warnings_add(warn, "participant %s, trial %s: the only kept trial of its standardize group; left out",
+                                t->participants[t->participant[i]], t->trial_label[i]);
+            }
+    }
+    for (size_t b = 0; b < nb; b++) {
+        const char *name = r->bands[b].name;
+        memset(sum, 0, n_groups * sizeof *sum);
+        memset(sum2, 0, n_groups * sizeof *sum2);
+        memset(cnt, 0, n_groups * sizeof *cnt);
+        for (size_t i = 0; i < n; i++) {
+            raw[i] = r->band_power[i * nb + b];
+            val[i] = NAN;
+            if (t->excluded[i]) continue;
+            val[i] = scaled(s->power.scale, raw[i]);
+            sum[group[i]] += val[i];
+            cnt[group[i]]++;
+        }
+        if (s->power.standardize != BL_STANDARDIZE_NONE) {
+            for (size_t g = 0; g < n_groups; g++) sum[g] = cnt[g] ? sum[g] / (double)cnt[g] : NAN;
+            for (size_t i = 0; i < n; i++)
+                if (!t->excluded[i]) sum2[group[i]] += (val[i] - sum[group[i]]) * (val[i] - sum[group[i]]);
+            for (size_t g = 0; g < n_groups; g++) {
+                double sd = cnt[g] > 1 ? sqrt(sum2[g] / (double)(cnt[g] - 1)) : NAN;
+                if (cnt[g] > 1 && !(sd > 0)) {
+                    size_t j = first_of_group[g];
+                    st = bl_error_set(err, BL_ERR_INPUT,
+                                      "band %s: every kept trial of participant %s%s has the same power; it cannot be "
+                                      "standardized", name, t->participants[t->participant[j]],
+                                      s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION ? " (in one condition)" : "");
+                    goto done;
+                }
+                sum2[g] = sd;
+            }
+            for (size_t i = 0; i < n; i++)
+                if (!t->excluded[i]) val[i] = (val[i] - sum[group[i]]) / sum2[group[i]];
+        }
+        char col[300];
+        snprintf(col, sizeof col, "%s_power", name);
+        if ((st = bl_table_add_numeric(t->table, col, raw, err))) goto done;
+        if ((st = bl_table_add_numeric(t->table, name, val, err))) goto done;
+    }
+done:
+    free(val);
+    free(raw);
+    free(group);
+    free(first_of_group);
+    free(sum);
+    free(sum2);
+    free(cnt);
+    free(cond_col);
+    return st;
+}
+
+static bl_status parse_onset(const bl_trials *t, int col, size_t i, const char *key, double *out, bl_error *err)
+{
+    const char *txt = t->table->cols[col].text[i];
+    if (!txt)
+        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (%s) is missing", t->table->path ? t->table->path : "trials",
+                            t->table->line[i], t->table->cols[col].name, key);
+    char *end;
+    double x = strtod(txt, &end);
+    while (*end == ' ') end++;
+    if (end == txt || *end || !isfinite(x))
+        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, %s): '%s' is not a number of seconds",
+                            t->table->path ? t->table->path : "trials", t->table->line[i], t->table->cols[col].name,
+                            col + 1, key, txt);
+    *out = x;
+    return BL_OK;
+}
+
+bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_power_result **out, bl_warnings *warn,
+                           bl_error *err)
+{
+    *out = NULL;
+    if (!s->has_power || !s->has_recordings)
+        return bl_error_set(err, BL_ERR_INPUT, "%s: the study has no \"recordings\" and \"power\" sections", s->path);
+    bl_status st = BL_OK;
+    bl_montage *m = NULL;
+    bl_welch_plan *plan = NULL;
+    job *jobs = NULL;
+    item *items = NULL;
+    const char **reason = NULL;
+    size_t n_jobs = 0, n_items = 0, rec_cap = 0;
+    bl_power_result *r = calloc(1, sizeof *r);
+    if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
+    if ((st = bl_montage_parse((const char *const *)s->recordings.channels, s->recordings.n_channels,
+                               "recordings.channels", &m, err)))
+        goto fail;
+    int c_onset = bl_table_find(t->table, s->recordings.onset);
+    if (c_onset < 0) {
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: column \"%s\" (recordings.onset) is not in the trial table",
+                          t->table->path, s->recordings.onset);
+        goto fail;
+    }
+    size_t n = t->n;
+    r->n_trials = n;
+    jobs = malloc((n ? n : 1) * sizeof *jobs);
+    reason = calloc(n ? n : 1, sizeof *reason);
+    if (!jobs || !reason) goto nomem;
+
+    /* alignment time and recording of each kept trial */
+    double *align = malloc((n ? n : 1) * sizeof *align);
+    if (!align) goto nomem;
+    for (size_t i = 0; i < n; i++) {
+        if (t->excluded[i]) continue;
+        double onset = 0;
+        if ((st = parse_onset(t, c_onset, i, "recordings.onset", &onset, err))) {
+            free(align);
+            goto fail;
+        }
+        align[i] = onset + (s->power.align == BL_ALIGN_RESPONSE ? t->rt[i] : 0.0);
+        char *path = NULL;
+        if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &path, err))) {
+            free(align);
+            goto fail;
+        }
+        size_t rec;
+        int ok = add_recording(r, &rec_cap, path, t->participants[t->participant[i]], &rec);
+        free(path);
+        if (!ok) {
+            free(align);
+            goto nomem;
+        }
+        r->recordings[rec].n_trials++;
+        jobs[n_jobs].row = i;
+        jobs[n_jobs].rec = rec;
+        n_jobs++;
+    }
+
+    /* sampling rate: the study's, or the first recording's */
+    if (isfinite(s->recordings.rate)) {
+        r->fs = s->recordings.rate;
+    } else if (n_jobs) {
+        bl_trace *tr = NULL;
+        bl_error e = {0};
+        size_t row = jobs[0].row;
+        if ((st = bl_trace_open(r->recordings[0].path, NAN, &tr, &e))) {
+            bl_error_set(err, st, "participant %s, trial %s: %s", t->participants[t->participant[row]],
+                         t->trial_label[row], e.message);
+            free(align);
+            goto fail;
+        }
+        r->fs = bl_trace_get_info(tr)->rate;
+        bl_trace_close(tr);
+    } else {
+        free(align);
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: no trial is left to window (every trial is excluded)", t->table->path);
+        goto fail;
+    }
+    double fs = r->fs;
+    long long a = llround(s->power.from * fs), b = llround(s->power.to * fs);
+    r->window_samples = b > a ? (size_t)(b - a) : 0;
+    r->nperseg = (size_t)llround(s->power.segment * fs);
+    if (r->nperseg > r->window_samples && r->nperseg <= r->window_samples + 1) r->nperseg = r->window_samples;
+    if (r->window_samples < 2 || r->nperseg < 2) {
+        free(align);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: key \"power.segment\": %.6g s is %zu samples at %.10g Hz (window %zu samples); at least 2 "
+                          "are needed", s->path, s->power.segment, r->nperseg, fs, r->window_samples);
+        goto fail;
+    }
+    r->noverlap = (size_t)llround(s->power.overlap * (double)r->nperseg);
+    if (r->noverlap >= r->nperseg) r->noverlap = r->nperseg - 1;
+    r->nfft = r->nperseg;
+    for (size_t k = 0; k < n_jobs; k++) jobs[k].start = llround(align[jobs[k].row] * fs) + a;
+    free(align);
+
+    if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, (bl_welch_detrend)s->power.detrend,
+                                   s->power.median ? BL_WELCH_MEDIAN : BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, err)))
+        goto fail;
+    r->df = bl_welch_df(plan);
+    r->n_freqs = bl_welch_n_freqs(plan);
+    r->n_segments = bl_welch_n_segments(plan, r->window_samples);
+    size_t lpf = bl_largest_prime_factor(r->nperseg);
+    if (lpf > 7)
+        bl_warnings_add(warn, "segment length %zu samples has the prime factor %zu, which makes the FFT slow; %zu samples "
+                        "(power.segment = %.10g s) would be fast", r->nperseg, lpf, bl_next_fast_size(r->nperseg),
+                        (double)bl_next_fast_size(r->nperseg) / fs);
+
+    /* frequency grid and bands */
+    if (!(r->freq = malloc(r->n_freqs * sizeof *r->freq)) ||
+        !(r->bands = calloc(s->power.n_bands ? s->power.n_bands : 1, sizeof *r->bands)))
+        goto nomem;
+    r->n_bands = s->power.n_bands; /* only now: bl_power_result_destroy walks n_bands entries */
+    for (size_t j = 0; j < r->n_freqs; j++) r->freq[j] = (double)j * r->df;
+    double guard = fmax(2.0 * r->df, 2.0);
+    for (size_t k = 0; k < r->n_bands; k++) {
+        const bl_band_spec *bs = &s->power.bands[k];
+        bl_power_band *pb = &r->bands[k];
+        if (!(pb->name = bl_strdup(bs->name)) || !(pb->used = calloc(r->n_freqs, 1))) goto nomem;
+        pb->lo = bs->lo;
+        pb->hi = bs->hi;
+        if (bs->hi > fs / 2) {
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "%s: key \"power.bands.%s\": the band [%.10g, %.10g] Hz reaches above the Nyquist "
+                              "frequency %.10g Hz of the recordings", s->path, bs->name, bs->lo, bs->hi, fs / 2);
+            goto fail;
+        }
+        bl_band_bins(r->df, r->n_freqs, bs->lo, bs->hi, &pb->first_bin, &pb->last_bin);
+        for (size_t j = pb->first_bin; j <= pb->last_bin && pb->first_bin <= pb->last_bin; j++) {
+            int keep = 1;
+            if (s->power.line_noise > 0)
+                for (double h = s->power.line_noise; h <= fs / 2 + guard; h += s->power.line_noise)
+                    if (fabs(r->freq[j] - h) <= guard) keep = 0;
+            pb->used[j] = (unsigned char)keep;
+            pb->n_bins += (size_t)keep;
+        }
+        if (pb->n_bins == 0) {
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "%s: key \"power.bands.%s\": no frequency bin in [%.10g, %.10g] Hz at a resolution of "
+                              "%.6g Hz%s; widen the band or lengthen power.segment", s->path, bs->name, bs->lo, bs->hi,
+                              r->df, s->power.line_noise > 0 ? " (after leaving out line-noise bins)" : "");
+            goto fail;
+        }
+        if (pb->n_bins < 2)
+            bl_warnings_add(warn, "band %s [%g, %g] Hz holds only %zu frequency bin at %.6g Hz resolution; lengthen "
+                            "power.segment for a steadier estimate", bs->name, bs->lo, bs->hi, pb->n_bins, r->df);
+        if (s->power.detrend != BL_DETREND_NONE && (double)pb->first_bin < 2.0)
+            bl_warnings_add(warn, "band %s starts at bin %zu (%.6g Hz), below 2 x the resolution %.6g Hz, where "
+                            "detrending biases the PSD low", bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
+    }
+    if (!(r->psd = malloc((n ? n : 1) * r->n_freqs * sizeof *r->psd)) ||
+        !(r->band_power = malloc((n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power)))
+        goto nomem;
+    for (size_t k = 0; k < n * r->n_freqs; k++) r->psd[k] = NAN;
+    for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = NAN;
+
+    /* work items: chunks of trials of one recording, in a fixed order */
+    qsort(jobs, n_jobs, sizeof *jobs, job_cmp);
+    if (!(items = calloc(n_jobs ? n_jobs : 1, sizeof *items))) goto nomem;
+    for (size_t k = 0; k < n_jobs;) {
+        size_t e = k;
+        int csv = is_text_trace(r->recordings[jobs[k].rec].path);
+        while (e < n_jobs && jobs[e].rec == jobs[k].rec && (csv || e - k < CHUNK_TRIALS)) e++;
+        items[n_items].rec = jobs[k].rec;
+        items[n_items].begin = k;
+        items[n_items].end = e;
+        n_items++;
+        k = e;
+    }
+
+    int failed_alloc = 0;
+    int nt = threads > 0 ? threads : 1;
+#ifdef _OPENMP
+    if (threads <= 0) nt = omp_get_max_threads();
+#pragma omp parallel num_threads(nt)
+#endif
+    {
+        thread_state ts = {NULL, SIZE_MAX, NULL, 0, NULL, NULL};
+        bl_error e = {0};
+        ts.x = malloc(r->window_samples * sizeof *ts.x);
+        int ok = ts.x && bl_welch_work_create(plan, r->window_samples, &ts.work, &e) == BL_OK;
+        if (!ok) {
+#ifdef _OPENMP
+#pragma omp atomic write
+#endif
+            failed_alloc = 1;
+        }
+#ifdef _OPENMP
+#pragma omp for schedule(static) /* contiguous blocks: each thread reads its files forward */
+#endif
+        for (size_t k = 0; k < n_items; k++) {
+            if (!ok) continue;
+            process_item(s, r, t, m, plan, jobs, &items[k], &ts, reason);
+        }
+        bl_trace_close(ts.trace);
+        free(ts.raw);
+        free(ts.x);
+        bl_welch_work_destroy(ts.work);
+    }
+    (void)nt;
+    if (failed_alloc) goto nomem;
+    for (size_t k = 0; k < n_items; k++)
+        if (items[k].status) {
+            st = bl_error_set(err, items[k].status, "%s", items[k].err.message);
+            goto fail;
+        }
+    for (size_t i = 0; i < n; i++)
+        if (reason[i]) {
+            bl_trials_exclude(t, i, reason[i]);
+            r->n_artifacts++;
+        }
+    /* excluded trials keep NAN rows */
+    for (size_t i = 0; i < n; i++)
+        if (t->excluded[i]) {
+            for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
+            for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
+        }
+    if ((st = add_regressors(s, t, r, warn, err))) goto fail;
+    for (size_t i = 0; i < n; i++)
+        if (t->excluded[i]) {
+            for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
+            for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
+        }
+    if (s->power.clipping)
+        for (size_t k = 0; k < r->n_recordings; k++)
+            if (!strstr(r->recordings[k].format, "-bit PCM"))
+                bl_warnings_add(warn, "%s (%s) has no integer full scale, so power.artifacts.clipping does not apply to it",
+                                r->recordings[k].path, r->recordings[k].format);
+    if (r->n_artifacts)
+        bl_warnings_add(warn, "%zu of %zu windowed trials were flagged as artifacts and left out", r->n_artifacts, n_jobs);
+
+    free(items);
+    free(jobs);
+    free(reason);
+    bl_montage_destroy(m);
+    bl_welch_plan_destroy(plan);
+    *out = r;
+    return BL_OK;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
+fail:
+    free(items);
+    free(jobs);
+    free(reason);
+    bl_montage_destroy(m);
+    bl_welch_plan_destroy(plan);
+    bl_power_result_destroy(r);
+    return st;
+}
+
+/* ---- power.csv ---- */
+
+static void put_field(FILE *f, const char *s)
+{
+    if (!s) {
+        fputs("NA", f);
+        return;
+    }
+    if (!strpbrk(s, ",\"\r\n")) {
+        fputs(s, f);
+        return;
+    }
+    fputc('"', f);
+    for (const char *p = s; *p; p++) {
+        if (*p == '"') fputc('"', f);
+        fputc(*p, f);
+    }
+    fputc('"', f);
+}
+
+static void put_number(FILE *f, double x)
+{
+    if (isfinite(x)) fprintf(f, "%.17g", x);
+    else fputs("NA", f);
+}
+
+bl_status bl_power_write_csv(const bl_study *s, const bl_trials *t, const bl_power_result *r, const char *path,
+                             bl_error *err)
+{
+    bl_outfile *of = NULL;
+    bl_status st = bl_outfile_open(path, &of, err);
+    if (st) return st;
+    FILE *f = bl_outfile_stream(of);
+    /* the trial file's own columns: everything but the band columns added by power */
+    size_t nb = r ? r->n_bands : 0;
+    size_t n_cols = t->table->n_cols;
+    int *skip = calloc(n_cols ? n_cols : 1, sizeof *skip);
+    if (!skip) {
+        bl_outfile_abort(of);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing %s", path);
+    }
+    for (size_t j = 0; j < n_cols; j++) {
+        const char *name = t->table->cols[j].name;
+        for (size_t b = 0; b < nb; b++) {
+            char pn[300];
+            snprintf(pn, sizeof pn, "%s_power", r->bands[b].name);
+            if (strcmp(name, r->bands[b].name) == 0 || strcmp(name, pn) == 0) skip[j] = 1;
+        }
+        /* the leading participant/trial columns already carry these */
+        if (strcmp(name, "participant") == 0 && strcmp(s->trials.participant, "participant") == 0) skip[j] = 1;
+        if (strcmp(name, "trial") == 0 && s->trials.trial && strcmp(s->trials.trial, "trial") == 0) skip[j] = 1;
+    }
+    fputs("participant,trial", f);
+    for (size_t j = 0; j < n_cols; j++)
+        if (!skip[j]) {
+            fputc(',', f);
+            put_field(f, t->table->cols[j].name);
+        }
+    for (size_t b = 0; b < nb; b++) {
+        fputc(',', f);
+        fprintf(f, "%s_power,", r->bands[b].name);
+        put_field(f, r->bands[b].name);
+    }
+    fputs(",artifact\n", f);
+    for (size_t i = 0; i < t->n; i++) {
+        put_field(f, t->participants[t->participant[i]]);
+        fputc(',', f);
+        put_field(f, t->trial_label[i]);
+        for (size_t j = 0; j < n_cols; j++)
+            if (!skip[j]) {
+                fputc(',', f);
+                put_field(f, t->table->cols[j].text[i]);
+            }
+        for (size_t b = 0; b < nb; b++) {
+            int c_raw, c_val;
+            char pn[300];
+            snprintf(pn, sizeof pn, "%s_power", r->bands[b].name);
+            c_raw = bl_table_find(t->table, pn);
+            c_val = bl_table_find(t->table, r->bands[b].name);
+            fputc(',', f);
+            put_number(f, c_raw >= 0 ? t->table->cols[c_raw].num[i] : NAN);
+            fputc(',', f);
+            put_number(f, c_val >= 0 ? t->table->cols[c_val].num[i] : NAN);
+        }
+        fputc(',', f);
+        if (t->excluded[i]) put_field(f, t->excluded[i]);
+        fputc('\n', f);
+    }
+    free(skip);
+    return bl_outfile_commit(of, err);
+}
+
+/* ---- check summary ---- */
+
+typedef struct {
+    char *buf;
+    size_t len, cap;
+    int failed;
+} sbuf;
+
+static void sb_printf(sbuf *b, const char *fmt, ...) BL_PRINTF(2, 3);
+static void sb_printf(sbuf *b, const char *fmt, ...)
+{
+    if (b->failed) return;
+    for (;;) {
+        va_list ap;
+        va_start(ap, fmt);
+        int need = vsnprintf(b->buf ? b->buf + b->len : NULL, b->buf ? b->cap - b->len : 0, fmt, ap);
+        va_end(ap);
+        if (need < 0) {
+            b->failed = 1;
+            return;
+        }
+        if (b->buf && b->len + (size_t)need < b->cap) {
+            b->len += (size_t)need;
+            return;
+        }
+        size_t cap = (b->cap + (size_t)need + 1) * 2;
+        char *nb = realloc(b->buf, cap);
+        if (!nb) {
+            b->failed = 1;
+            return;
+        }
+        b->buf = nb;
+        b->cap = cap;
+    }
+}
+
+char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_result *r)
+{
+    sbuf b = {0};
+    static const char *const scales[] = {"linear", "log10", "db"};
+    static const char *const stds[] = {"none", "participant", "participant_condition"};
+    static const char *const detrends[] = {"mean", "linear", "none"};
+    sb_printf(&b, "study        %s\n", s->path);
+    sb_printf(&b, "trial table  %s\n", s->trials.file);
+    sb_printf(&b, "participants %zu:", t->n_participants);
+    for (size_t p = 0; p < t->n_participants && p < 20; p++) sb_printf(&b, " %s", t->participants[p]);
+    if (t->n_participants > 20) sb_printf(&b, " ...");
+    sb_printf(&b, "\ntrials       %zu, kept %zu, excluded %zu\n", t->n, t->n_kept, t->n - t->n_kept);
+    bl_exclusion_count *ec = NULL;
+    size_t ne = bl_trials_exclusion_counts(t, &ec);
+    if (ne == BL_EXCLUSION_COUNTS_NOMEM) b.failed = 1;
+    for (size_t k = 0; ec && k < ne; k++) sb_printf(&b, "  excluded   %-40s %zu\n", ec[k].reason, ec[k].count);
+    free(ec);
+    size_t n_up = 0, n_kept = 0;
+    for (size_t i = 0; i < t->n; i++)
+        if (!t->excluded[i]) {
+            n_kept++;
+            n_up += (size_t)t->upper[i];
+        }
+    sb_printf(&b, "responses    %zu upper, %zu lower (kept trials; %s coding)\n", n_up, n_kept - n_up,
+              s->trials.stimulus ? "stimulus" : "accuracy");
+    if (r) {
+        sb_printf(&b, "recordings   %zu file%s, %.10g Hz, channels", r->n_recordings, r->n_recordings == 1 ? "" : "s", r->fs);
+        for (size_t c = 0; c < s->recordings.n_channels; c++)
+            sb_printf(&b, "%s%s", c ? ", " : " ", s->recordings.channels[c]);
+        sb_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "", s->recordings.gain,
+                  s->recordings.unit);
+        for (size_t k = 0; k < r->n_recordings && k < 50; k++) {
+            const bl_power_recording *rec = &r->recordings[k];
+            sb_printf(&b, "  %s: participant %s, %.10g Hz, %zu channel%s, %.6g s, %s, %zu trials\n", rec->path,
+                      rec->participant, rec->rate, rec->channels, rec->channels == 1 ? "" : "s",
+                      rec->rate > 0 ? (double)rec->frames / rec->rate : 0.0, rec->format, rec->n_trials);
+        }
+        if (r->n_recordings > 50) sb_printf(&b, "  ... %zu more\n", r->n_recordings - 50);
+        sb_printf(&b, "window       %.6g s to %.6g s from the %s, %zu samples\n", s->power.from, s->power.to,
+                  s->power.align == BL_ALIGN_RESPONSE ? "response" : "onset", r->window_samples);
+        sb_printf(&b, "welch        hann, segment %zu samples, overlap %zu, %zu segment%s, detrend %s, %s average\n",
+                  r->nperseg, r->noverlap, r->n_segments, r->n_segments == 1 ? "" : "s", detrends[s->power.detrend],
+                  s->power.median ? "median" : "mean");
+        sb_printf(&b, "resolution   %.6g Hz (%zu bins, 0 to %.6g Hz)\n", r->df, r->n_freqs, r->freq[r->n_freqs - 1]);
+        for (size_t k = 0; k < r->n_bands; k++) {
+            const bl_power_band *pb = &r->bands[k];
+            sb_printf(&b, "  band %-12s [%g, %g] Hz: %zu bins (%.6g to %.6g Hz)%s\n", pb->name, pb->lo, pb->hi, pb->n_bins,
+                      r->freq[pb->first_bin], r->freq[pb->last_bin],
+                      pb->n_bins < pb->last_bin - pb->first_bin + 1 ? ", line-noise bins left out" : "");
+        }
+        sb_printf(&b, "regressors   scale %s, standardize %s\n", scales[s->power.scale], stds[s->power.standardize]);
+        sb_printf(&b, "artifacts    %zu trial%s flagged\n", r->n_artifacts, r->n_artifacts == 1 ? "" : "s");
+    } else {
+        sb_printf(&b, "recordings   none (band regressors, if any, come from trial-table columns)\n");
+    }
+    sb_printf(&b, "models       %zu", s->n_models);
+    for (size_t k = 0; k < s->n_models; k++) sb_printf(&b, "%s%s", k ? ", " : ": ", s->models[k].name);
+    sb_printf(&b, "\nfit          participants %s, %d start%s\n",
+              s->fit.participants == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled", s->fit.starts,
+              s->fit.starts == 1 ? "" : "s");
+    sb_printf(&b, "output       %s\n", s->output);
+    if (b.failed) {
+        free(b.buf);
+        return NULL;
+    }
+    return b.buf;
+}
