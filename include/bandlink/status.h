@@ -23,6 +23,10 @@
 #define BL_PRINTF(fmt, args)
 #endif
 
+#ifdef __cplusplus
+extern "C" {
+#endif
+
 typedef enum {
     BL_OK = 0,
     BL_ERR_USAGE,       /* bad command-line use: unknown option, missing argument */
@@ -73,4 +77,7 @@ typedef struct {
 BL_API void bl_warnings_add(bl_warnings *w, const char *fmt, ...) BL_PRINTF(2, 3);
 BL_API void bl_warnings_clear(bl_warnings *w);
 
+#ifdef __cplusplus
+}
+#endif
 #endif

@@ -15,6 +15,10 @@
 
 #include "bandlink/status.h"
 
+#ifdef __cplusplus
+extern "C" {
+#endif
+
 
 /* Parameter indices, in the order used by every array of parameters or gradients. */
 typedef enum {
@@ -83,4 +87,7 @@ BL_API bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double 
 BL_API bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, double *rt,
                                     bl_error *err);
 
+#ifdef __cplusplus
+}
+#endif
 #endif

@@ -15,7 +15,7 @@
 #include "analysis/simulate.h"
 
 #include "core/output.h"
-#include "analysis/pipeline.h"
+#include "analysis/analysis_internal.h"
 #include "signal/power.h"
 #include "core/json.h"
 #include "design/study.h"
@@ -1137,14 +1137,16 @@ static const double *regressor(const bl_trials *t, const char *name)
     return c < 0 || !t->table->cols[c].numeric ? NULL : t->table->cols[c].num;
 }
 
-static bl_status measure(const char *study_path, int threads, bl_study **study, bl_trials **trials,
-                         bl_warnings *warn, bl_error *err)
+/* The study's own band power on the written recordings, through the analysis handle every command uses. */
+static bl_status measure(const char *study_path, int threads, bl_analysis **out, bl_warnings *warn, bl_error *err)
 {
-    bl_power_result *pr = NULL;
-    bl_status st = bl_study_load(study_path, study, err);
-    if (!st) st = bl_trials_load(*study, trials, warn, err);
-    if (!st) st = bl_power_compute(*study, *trials, threads, &pr, warn, err);
-    bl_power_result_destroy(pr);
+    bl_analysis_options o;
+    bl_analysis_options_default(&o);
+    o.threads = threads;
+    bl_status st = bl_analysis_open(study_path, &o, out, err);
+    if (!st) st = bl_analysis_power(*out, err);
+    const bl_warnings *w = *out ? bl_analysis_warnings(*out) : NULL;
+    for (size_t k = 0; w && warn && k < w->count; k++) bl_warnings_add(warn, "%s", w->items[k]);
     return st;
 }
 
@@ -1161,9 +1163,8 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
     size_t *levels = calloc(N * (sc->n_factors ? sc->n_factors : 1), sizeof *levels);
     size_t *order = malloc(T * sizeof *order);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    bl_stage *stage = NULL;
-    bl_study *study = NULL, *study2 = NULL;
-    bl_trials *trials = NULL, *trials2 = NULL;
+    bl_results_folder *stage = NULL;
+    bl_analysis *first = NULL, *second = NULL;
     char *p_rec = NULL, *p_trials = NULL, *p_study = NULL, *p_truth = NULL, *p_tt = NULL;
     cJSON *sj = NULL, *tj = NULL;
     bl_status st = BL_OK;
@@ -1195,18 +1196,10 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         }
     }
 
-    int inside = bl_path_inside(sc->path, out_dir);
-    if (inside < 0) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory resolving %s", sc->path);
-        goto done;
-    }
-    if (inside) {
-        st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the scenario file %s; choose another output folder",
-                          out_dir, sc->path);
-        goto done;
-    }
-    if ((st = bl_stage_begin(out_dir, opt->force, &stage, err))) goto done;
-    const char *dir = bl_stage_dir(stage);
+    const char *inputs[1] = {sc->path};
+    if ((st = bl_results_folder_check(out_dir, opt->force, inputs, 1, err))) goto done;
+    if ((st = bl_results_folder_begin(out_dir, opt->force, "simulate", &stage, err))) goto done;
+    const char *dir = bl_results_folder_dir(stage);
     if (!(p_rec = bl_path_join(dir, "recordings")) || !(p_trials = bl_path_join(dir, "trials.csv")) ||
         !(p_study = bl_path_join(dir, "study.json")) || !(p_truth = bl_path_join(dir, "truth.json")) ||
         !(p_tt = bl_path_join(dir, "truth_trials.csv"))) {
@@ -1281,11 +1274,9 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
     }
     {
         /* Warnings of this first measurement repeat in the second one: keep those only. */
-        bl_warnings first = {0};
-        st = measure(p_study, opt->threads, &study, &trials, &first, err);
-        bl_warnings_clear(&first);
-        if (st) goto done;
+        if ((st = measure(p_study, opt->threads, &first, NULL, err))) goto done;
     }
+    const bl_trials *trials = first->trials;
     if (trials->n != N) {
         st = bl_error_set(err, BL_ERR_INTERNAL, "simulate: the study read %zu trials, %zu were written", trials->n, N);
         goto done;
@@ -1333,7 +1324,8 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
 
     /* Measure again from the final table: keep rules on the drawn RTs may exclude trials, which shifts the
      * standardised regressors a little; record by how much, so the truth's footing is explicit. */
-    if ((st = measure(p_study, opt->threads, &study2, &trials2, warn, err))) goto done;
+    if ((st = measure(p_study, opt->threads, &second, warn, err))) goto done;
+    const bl_trials *trials2 = second->trials;
     double shift = 0;
     for (int p = 0; p < BL_NPARAM; p++)
         for (size_t s = 0; s < sc->truth[p].n_slopes; s++) {
@@ -1347,12 +1339,12 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         bl_warnings_add(warn, "%zu of %zu simulated trials are excluded by the study's keep rules or artifact checks; "
                         "the standardised regressors moved by up to %.3g (truth.json: regressor_shift_max)",
                         excluded, N, shift);
-    if (!(tj = truth_json(sc, study2, seed, N, excluded, shift))) {
+    if (!(tj = truth_json(sc, second->study, seed, N, excluded, shift))) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
     if ((st = write_json(tj, p_truth, err)) || (st = write_truth_trials(sc, tr, N, p_tt, err))) goto done;
-    st = bl_stage_commit(stage, err);
+    st = bl_results_folder_commit(stage, err);
     stage = NULL;
     if (st) goto done;
     if (summary) {
@@ -1365,11 +1357,9 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         summary->seed = seed;
     }
 done:
-    bl_stage_abort(stage);
-    bl_trials_destroy(trials);
-    bl_trials_destroy(trials2);
-    bl_study_destroy(study);
-    bl_study_destroy(study2);
+    bl_results_folder_abort(stage);
+    bl_analysis_close(first);
+    bl_analysis_close(second);
     cJSON_Delete(sj);
     cJSON_Delete(tj);
     free(p_rec);

@@ -1,5 +1,5 @@
 /* bandlink simulate SCENARIO.json --out DIR [--seed S] [--threads N] [--force] */
-#include "analysis/simulate.h"
+#include "bandlink/simulate.h"
 #include "cli_common.h"
 #include "commands.h"
 

@@ -45,7 +45,7 @@ bl_status bl_outfile_open(const char *path, bl_outfile **out, bl_error *err)
         bl_outfile_abort(f);
         return bl_error_set(err, BL_ERR_IO, "%s: cannot create a temporary file: %s", path, strerror(e));
     }
-    fchmod(fd, 0644);
+    fchmod(fd, bl_creation_mode(0666)); /* mkstemp makes 0600; follow the umask */
     f->stream = fdopen(fd, "w");
     if (!f->stream) {
         int e = errno;
@@ -113,7 +113,7 @@ bl_status bl_mkdir_p(const char *path, bl_error *err)
         if (p[i] != '/' && p[i] != '\0') continue;
         char c = p[i];
         p[i] = '\0';
-        if (mkdir(p, 0755) != 0 && errno != EEXIST) {
+        if (mkdir(p, 0777) != 0 && errno != EEXIST) {
             int e = errno;
             bl_error_set(err, BL_ERR_IO, "%s: cannot create folder: %s", p, strerror(e));
             free(p);

@@ -848,7 +848,10 @@ static void model_result_free(bl_model_result *r)
         free(r->group[i].level);
     }
     free(r->group);
-    for (size_t i = 0; i < r->n_permutation; i++) free(r->permutation[i].regressor);
+    for (size_t i = 0; i < r->n_permutation; i++) {
+        free(r->permutation[i].regressor);
+        free(r->permutation[i].level);
+    }
     free(r->permutation);
     free(r->used);
     free(r->predicted);

@@ -96,6 +96,7 @@ typedef struct {
     int param;
     const char *parameter;
     char *regressor;
+    char *level;                    /* the slope's level ("rich"); "" when the test covers every level */
     double statistic;               /* 2 (LL_model - LL_model without this slope) */
     size_t permutations;            /* refits done */
     size_t exceed;                  /* refits whose log-likelihood reached the observed one */

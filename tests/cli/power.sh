@@ -19,7 +19,7 @@ head -1 "$tmp/a/power.csv" | grep -qx 'participant,trial,rat,onset,rt,correct,di
 
 "$BANDLINK" power "$ex/study.json" --out "$tmp/a" >/dev/null 2>"$tmp/err"
 rc=$?
-[ $rc -eq 2 ] && grep -q "power.csv exists; use --force" "$tmp/err" && pass "existing power.csv kept without --force (exit 2)" \
+[ $rc -eq 2 ] && grep -q "already exists; use --force" "$tmp/err" && pass "existing power.csv kept without --force (exit 2)" \
     || bad "overwrite guard: exit $rc, $(cat "$tmp/err")"
 cp "$tmp/a/power.csv" "$tmp/first.csv"
 "$BANDLINK" power "$ex/study.json" --out "$tmp/a" --force --threads 2 --quiet 2>"$tmp/err" && [ ! -s "$tmp/err" ] \
