@@ -17,8 +17,9 @@ static void help(FILE *out)
             "  --out DIR      folder to create (required); an existing folder needs --force\n"
             "  --seed S       random seed (default: the scenario's \"seed\")\n"
             "  --threads N    threads for measuring band power (default: all cores)\n"
-            "  --force        replace DIR, only once the new study is complete\n"
-            "  --quiet        no warnings or summary\n\n"
+            "  --force        replace DIR (only a folder bandlink wrote), once the new study is complete\n"
+            "  --quiet        no warnings or summary\n"
+            "  --help         this text\n\n"
             "The scenario keys are described in docs/simulate.md; 'bash demo/run' uses demo/scenario.json.\n");
 }
 

@@ -113,7 +113,7 @@ static void job_section(FILE *f, const bl_report_job *job, const bl_study *study
         kv(f, "models", b);
     }
     if (job && job->n_stages && job->stage_names && job->stage_seconds) {
-        fputs("<dt>wall time per stage</dt><dd>", f);
+        fputs("<dt>wall time per step (before the report)</dt><dd>", f);
         for (size_t i = 0; i < job->n_stages; i++) {
             if (i) fputs(", ", f);
             esc(f, job->stage_names[i]);
