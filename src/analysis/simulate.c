@@ -540,22 +540,10 @@ static bl_status parse_recording(ctx *c, bl_scenario *sc, const cJSON *r)
     return BL_OK;
 }
 
-static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
+/* "participants": labels, or a count with a prefix. */
+static bl_status parse_participants(ctx *c, bl_scenario *sc, const cJSON *root)
 {
-    static const char *const keys[] = {"name", "seed", "participants", "trials_per_participant", "conditions",
-                                       "stimulus", "timing", "recording", "bursts", "truth", "study", NULL};
-    bl_status st = check_keys(c, root, "", keys);
-    if (st) return st;
-    const cJSON *nm = item(root, "name");
-    if (nm && (!cJSON_IsString(nm) || strpbrk(nm->valuestring, "\n\r")))
-        return bad(c, "name", "must be one line of text");
-    if (!(sc->name = dupstr(nm ? nm->valuestring : "synthetic study")))
-        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
-    double seed;
-    if ((st = get_num(c, root, "", "seed", 0, 1, 0, 4294967295.0, &seed))) return st;
-    if (seed != floor(seed)) return bad(c, "seed", "%g must be a whole number", seed);
-    sc->seed = (unsigned long)seed;
-
+    bl_status st = BL_OK;
     const cJSON *pp = item(root, "participants");
     if (!pp) return bad(c, "participants", "required key is missing");
     static const char *const pkeys[] = {"column", "labels", "count", "prefix", NULL};
@@ -592,11 +580,13 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
         }
         free(prefix);
     }
-    double tpp;
-    if ((st = get_num(c, root, "", "trials_per_participant", 1, 0, 1, 1e6, &tpp))) return st;
-    if (tpp != floor(tpp)) return bad(c, "trials_per_participant", "%g must be a whole number", tpp);
-    sc->trials_per_participant = (size_t)tpp;
+    return st;
+}
 
+/* "conditions": {column: [levels]}. */
+static bl_status parse_conditions(ctx *c, bl_scenario *sc, const cJSON *root)
+{
+    bl_status st = BL_OK;
     const cJSON *cond = item(root, "conditions");
     if (cond) {
         if (!cJSON_IsObject(cond)) return bad(c, "conditions", "must be an object {column: [levels]}");
@@ -612,6 +602,13 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
         }
     }
 
+    return st;
+}
+
+/* "stimulus": its column, two levels and the choice column. */
+static bl_status parse_stimulus(ctx *c, bl_scenario *sc, const cJSON *root)
+{
+    bl_status st = BL_OK;
     const cJSON *stim = item(root, "stimulus");
     if (!stim) return bad(c, "stimulus", "required key is missing");
     static const char *const skeys[] = {"column", "levels", "choice_column", NULL};
@@ -636,6 +633,13 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
         }
     }
 
+    return st;
+}
+
+/* "timing": first onset, interval between onsets, tail after the last trial. */
+static bl_status parse_timing(ctx *c, bl_scenario *sc, const cJSON *root)
+{
+    bl_status st = BL_OK;
     const cJSON *tm = item(root, "timing");
     if (!tm) return bad(c, "timing", "required key is missing");
     static const char *const tkeys[] = {"first_onset", "interval", "tail", NULL};
@@ -654,6 +658,75 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
         return bad(c, "timing.interval", "[%g, %g] must satisfy 0 < shortest <= longest", sc->interval_lo,
                    sc->interval_hi);
 
+    return st;
+}
+
+/* "study": the keep rules, power, fit and models copied into study.json. */
+static bl_status parse_study_block(ctx *c, bl_scenario *sc, const cJSON *root)
+{
+    bl_status st = BL_OK;
+    const cJSON *sd = item(root, "study");
+    if (!sd) return bad(c, "study", "required key is missing");
+    static const char *const dkeys[] = {"keep", "power", "fit", "models", "truth_model", NULL};
+    if ((st = check_keys(c, sd, "study", dkeys))) return st;
+    if (item(sd, "keep") && !(sc->keep = cJSON_Duplicate(item(sd, "keep"), 1)))
+        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
+    if (!item(sd, "power")) return bad(c, "study.power", "required key is missing");
+    if (!item(sd, "models")) return bad(c, "study.models", "required key is missing");
+    if (!(sc->power = cJSON_Duplicate(item(sd, "power"), 1)) || !(sc->models = cJSON_Duplicate(item(sd, "models"), 1)))
+        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
+    if (item(sd, "fit") && !(sc->fit = cJSON_Duplicate(item(sd, "fit"), 1)))
+        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
+    if ((st = get_str(c, sd, "study", "truth_model", NULL, &sc->truth_model))) return st;
+
+    return st;
+}
+
+/* Names used as trial-table columns must be distinct. */
+static bl_status check_columns_distinct(ctx *c, const bl_scenario *sc)
+{
+    const char *cols[64];
+    size_t nc = 0;
+    cols[nc++] = sc->participant_column;
+    cols[nc++] = "trial";
+    cols[nc++] = "onset";
+    cols[nc++] = "correct";
+    cols[nc++] = "rt";
+    cols[nc++] = sc->stimulus_column;
+    cols[nc++] = sc->choice_column;
+    for (size_t i = 0; i < sc->n_factors && nc < 64; i++) cols[nc++] = sc->factors[i].name;
+    for (size_t i = 0; i < nc; i++)
+        for (size_t j = 0; j < i; j++)
+            if (strcmp(cols[i], cols[j]) == 0)
+                return bad(c, "conditions", "the trial-table column '%s' would appear twice", cols[i]);
+    return BL_OK;
+}
+
+static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
+{
+    static const char *const keys[] = {"name", "seed", "participants", "trials_per_participant", "conditions",
+                                       "stimulus", "timing", "recording", "bursts", "truth", "study", NULL};
+    bl_status st = check_keys(c, root, "", keys);
+    if (st) return st;
+    const cJSON *nm = item(root, "name");
+    if (nm && (!cJSON_IsString(nm) || strpbrk(nm->valuestring, "\n\r")))
+        return bad(c, "name", "must be one line of text");
+    if (!(sc->name = dupstr(nm ? nm->valuestring : "synthetic study")))
+        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
+    double seed;
+    if ((st = get_num(c, root, "", "seed", 0, 1, 0, 4294967295.0, &seed))) return st;
+    if (seed != floor(seed)) return bad(c, "seed", "%g must be a whole number", seed);
+    sc->seed = (unsigned long)seed;
+
+    if ((st = parse_participants(c, sc, root))) return st;
+    double tpp;
+    if ((st = get_num(c, root, "", "trials_per_participant", 1, 0, 1, 1e6, &tpp))) return st;
+    if (tpp != floor(tpp)) return bad(c, "trials_per_participant", "%g must be a whole number", tpp);
+    sc->trials_per_participant = (size_t)tpp;
+
+    if ((st = parse_conditions(c, sc, root))) return st;
+    if ((st = parse_stimulus(c, sc, root))) return st;
+    if ((st = parse_timing(c, sc, root))) return st;
     const cJSON *rec = item(root, "recording");
     if (!rec) return bad(c, "recording", "required key is missing");
     if ((st = parse_recording(c, sc, rec))) return st;
@@ -672,36 +745,8 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
     if (!tr) return bad(c, "truth", "required key is missing");
     if ((st = parse_truth(c, sc, tr))) return st;
 
-    const cJSON *sd = item(root, "study");
-    if (!sd) return bad(c, "study", "required key is missing");
-    static const char *const dkeys[] = {"keep", "power", "fit", "models", "truth_model", NULL};
-    if ((st = check_keys(c, sd, "study", dkeys))) return st;
-    if (item(sd, "keep") && !(sc->keep = cJSON_Duplicate(item(sd, "keep"), 1)))
-        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
-    if (!item(sd, "power")) return bad(c, "study.power", "required key is missing");
-    if (!item(sd, "models")) return bad(c, "study.models", "required key is missing");
-    if (!(sc->power = cJSON_Duplicate(item(sd, "power"), 1)) || !(sc->models = cJSON_Duplicate(item(sd, "models"), 1)))
-        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
-    if (item(sd, "fit") && !(sc->fit = cJSON_Duplicate(item(sd, "fit"), 1)))
-        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
-    if ((st = get_str(c, sd, "study", "truth_model", NULL, &sc->truth_model))) return st;
-
-    /* Names used as trial-table columns must be distinct. */
-    const char *cols[64];
-    size_t nc = 0;
-    cols[nc++] = sc->participant_column;
-    cols[nc++] = "trial";
-    cols[nc++] = "onset";
-    cols[nc++] = "correct";
-    cols[nc++] = "rt";
-    cols[nc++] = sc->stimulus_column;
-    cols[nc++] = sc->choice_column;
-    for (size_t i = 0; i < sc->n_factors && nc < 64; i++) cols[nc++] = sc->factors[i].name;
-    for (size_t i = 0; i < nc; i++)
-        for (size_t j = 0; j < i; j++)
-            if (strcmp(cols[i], cols[j]) == 0)
-                return bad(c, "conditions", "the trial-table column '%s' would appear twice", cols[i]);
-    return BL_OK;
+    if ((st = parse_study_block(c, sc, root))) return st;
+    return check_columns_distinct(c, sc);
 }
 
 bl_status bl_scenario_parse(const char *json, const char *name, bl_scenario **out, bl_error *err)
@@ -1150,32 +1195,12 @@ static bl_status measure(const char *study_path, int threads, bl_analysis **out,
     return st;
 }
 
-bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl_simulate_options *opt,
-                            bl_simulate_summary *summary, bl_warnings *warn, bl_error *err)
+/* Schedule: each participant gets the condition combinations in turn, shuffled; a random stimulus; onsets
+ * separated by uniform intervals. */
+static void schedule_trials(const bl_scenario *sc, gsl_rng *rng, trial_rec *tr, size_t *levels, size_t *order)
 {
-    bl_simulate_options defaults = {0};
-    if (!opt) opt = &defaults;
-    unsigned long seed = opt->has_seed ? opt->seed : sc->seed;
-    size_t T = sc->trials_per_participant, N = sc->n_participants * T;
-    size_t K = 1;
+    size_t T = sc->trials_per_participant, K = 1, nf = sc->n_factors ? sc->n_factors : 1;
     for (size_t k = 0; k < sc->n_factors; k++) K *= sc->factors[k].n_levels;
-    trial_rec *tr = calloc(N, sizeof *tr);
-    size_t *levels = calloc(N * (sc->n_factors ? sc->n_factors : 1), sizeof *levels);
-    size_t *order = malloc(T * sizeof *order);
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    bl_results_folder *stage = NULL;
-    bl_analysis *first = NULL, *second = NULL;
-    char *p_rec = NULL, *p_trials = NULL, *p_study = NULL, *p_truth = NULL, *p_tt = NULL;
-    cJSON *sj = NULL, *tj = NULL;
-    bl_status st = BL_OK;
-    double seconds = 0;
-    if (!tr || !levels || !order || !rng) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for %zu trials", N);
-        goto done;
-    }
-    /* Schedule: each participant gets the condition combinations in turn, shuffled; a random stimulus;
-     * onsets separated by uniform intervals. */
-    gsl_rng_set(rng, seed);
     for (size_t p = 0; p < sc->n_participants; p++) {
         for (size_t i = 0; i < T; i++) order[i] = i % K;
         gsl_ran_shuffle(rng, order, T, sizeof *order);
@@ -1184,7 +1209,7 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
             trial_rec *t = &tr[p * T + i];
             t->participant = p;
             t->trial = i + 1;
-            t->level = levels + (p * T + i) * (sc->n_factors ? sc->n_factors : 1);
+            t->level = levels + (p * T + i) * nf;
             size_t rem = order[i];
             for (size_t k = sc->n_factors; k-- > 0;) {
                 t->level[k] = rem % sc->factors[k].n_levels;
@@ -1195,98 +1220,86 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
             onset += sc->interval_lo + (sc->interval_hi - sc->interval_lo) * gsl_rng_uniform(rng);
         }
     }
+}
 
-    const char *inputs[1] = {sc->path};
-    if ((st = bl_results_folder_check(out_dir, opt->force, inputs, 1, err))) goto done;
-    if ((st = bl_results_folder_begin(out_dir, opt->force, "simulate", &stage, err))) goto done;
-    const char *dir = bl_results_folder_dir(stage);
-    if (!(p_rec = bl_path_join(dir, "recordings")) || !(p_trials = bl_path_join(dir, "trials.csv")) ||
-        !(p_study = bl_path_join(dir, "study.json")) || !(p_truth = bl_path_join(dir, "truth.json")) ||
-        !(p_tt = bl_path_join(dir, "truth_trials.csv"))) {
+/* Recordings in parallel, one participant per thread: each has its own random stream, so the files do not
+ * depend on the thread count. The first failure in participant order is reported. */
+static bl_status write_recordings(const bl_scenario *sc, const trial_rec *tr, const char *rec_dir,
+                                  unsigned long seed, int threads, double *seconds, bl_error *err)
+{
+    size_t P = sc->n_participants, T = sc->trials_per_participant;
+    bl_status *pst = calloc(P, sizeof *pst), st = BL_OK;
+    bl_error *perr = calloc(P, sizeof *perr);
+    double *psec = calloc(P, sizeof *psec);
+    if (!pst || !perr || !psec) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
-    if ((st = bl_mkdir_p(p_rec, err))) goto done;
-    {
-        /* Recordings in parallel, one participant per thread: each has its own random stream, so the
-         * files do not depend on the thread count. The first failure in participant order is reported. */
-        size_t P = sc->n_participants;
-        bl_status *pst = calloc(P, sizeof *pst);
-        bl_error *perr = calloc(P, sizeof *perr);
-        double *psec = calloc(P, sizeof *psec);
-        if (!pst || !perr || !psec) {
-            free(pst);
-            free(perr);
-            free(psec);
-            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-            goto done;
-        }
-        int nth = opt->threads > 0 ? opt->threads : 0;
+    int nth = threads > 0 ? threads : 0;
 #ifdef _OPENMP
-        if (nth <= 0) nth = omp_get_max_threads();
+    if (nth <= 0) nth = omp_get_max_threads();
 #pragma omp parallel for schedule(dynamic, 1) num_threads(nth)
 #else
-        (void)nth;
+    (void)nth;
 #endif
-        for (size_t p = 0; p < P; p++) {
-            char name[600];
-            snprintf(name, sizeof name, "%s.%s", sc->participants[p], sc->wav ? "wav" : "flac");
-            char *path = bl_path_join(p_rec, name);
-            if (!path) pst[p] = bl_error_set(&perr[p], BL_ERR_NOMEM, "out of memory");
-            else pst[p] = write_recording(sc, p, tr + p * T, T, path, seed, &psec[p], &perr[p]);
-            free(path);
-        }
-        for (size_t p = 0; p < P && st == BL_OK; p++) {
-            if (pst[p] != BL_OK) {
-                if (err) *err = perr[p];
-                st = pst[p];
-            }
-            seconds += psec[p];
-        }
-        free(pst);
-        free(perr);
-        free(psec);
-        if (st) goto done;
+    for (size_t p = 0; p < P; p++) {
+        char name[600];
+        snprintf(name, sizeof name, "%s.%s", sc->participants[p], sc->wav ? "wav" : "flac");
+        char *path = bl_path_join(rec_dir, name);
+        if (!path) pst[p] = bl_error_set(&perr[p], BL_ERR_NOMEM, "out of memory");
+        else pst[p] = write_recording(sc, p, tr + p * T, T, path, seed, &psec[p], &perr[p]);
+        free(path);
     }
+    *seconds = 0;
+    for (size_t p = 0; p < P && st == BL_OK; p++) {
+        if (pst[p] != BL_OK) {
+            if (err) *err = perr[p];
+            st = pst[p];
+        }
+        *seconds += psec[p];
+    }
+done:
+    free(pst);
+    free(perr);
+    free(psec);
+    return st;
+}
 
-    /* Provisional table (every trial kept, a valid RT), so the study measures band power on exactly the
-     * recordings and windows it will analyse. */
-    if (!(sj = study_json(sc))) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        goto done;
+/* study.json, and a provisional trial table (every trial kept, one valid RT) so that the study measures
+ * band power on exactly the recordings and windows it will analyse. */
+static bl_status write_provisional_study(const bl_scenario *sc, const trial_rec *tr, const char *p_study,
+                                         const char *p_trials, bl_error *err)
+{
+    size_t N = sc->n_participants * sc->trials_per_participant;
+    cJSON *sj = study_json(sc);
+    if (!sj) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    bl_status st = write_json(sj, p_study, err);
+    cJSON_Delete(sj);
+    if (st) return st;
+    /* Parse first to learn the keep rules, then pick a provisional RT inside them. */
+    bl_study *probe = NULL;
+    if ((st = bl_study_load(p_study, &probe, err))) {
+        char msg[BL_ERROR_MESSAGE_MAX];
+        snprintf(msg, sizeof msg, "%s", err ? err->message : "");
+        return bl_error_set(err, st, "%s: the study built from study.keep/power/fit/models is invalid: %s", sc->path,
+                            msg);
     }
-    if ((st = write_json(sj, p_study, err))) goto done;
-    {
-        /* Parse first to learn the keep rules, then pick a provisional RT inside them. */
-        bl_study *probe = NULL;
-        if ((st = bl_study_load(p_study, &probe, err))) {
-            char msg[BL_ERROR_MESSAGE_MAX];
-            snprintf(msg, sizeof msg, "%s", err ? err->message : "");
-            st = bl_error_set(err, st, "%s: the study built from study.keep/power/fit/models is invalid: %s", sc->path, msg);
-            goto done;
-        }
-        st = check_truth_model(sc, probe, err);
-        double lo = isnan(probe->trials.rt_min) ? 0 : probe->trials.rt_min;
-        double hi = isnan(probe->trials.rt_max) ? 2 * lo + 2 : probe->trials.rt_max;
-        bl_study_destroy(probe);
-        if (st) goto done;
-        if ((st = write_trials_csv(sc, tr, N, p_trials, 0.5 * (lo + hi), err))) goto done;
-    }
-    {
-        /* Warnings of this first measurement repeat in the second one: keep those only. */
-        if ((st = measure(p_study, opt->threads, &first, NULL, err))) goto done;
-    }
-    const bl_trials *trials = first->trials;
-    if (trials->n != N) {
-        st = bl_error_set(err, BL_ERR_INTERNAL, "simulate: the study read %zu trials, %zu were written", trials->n, N);
-        goto done;
-    }
+    st = check_truth_model(sc, probe, err);
+    double lo = isnan(probe->trials.rt_min) ? 0 : probe->trials.rt_min;
+    double hi = isnan(probe->trials.rt_max) ? 2 * lo + 2 : probe->trials.rt_max;
+    bl_study_destroy(probe);
+    if (!st) st = write_trials_csv(sc, tr, N, p_trials, 0.5 * (lo + hi), err);
+    return st;
+}
 
-    /* Behaviour: the true parameters of each trial from its measured regressors, then one draw of the exact
-     * sampler. Trials the study excludes (e.g. an artifact) get regressor 0. */
-    gsl_rng_set(rng, seed ^ 0x9e3779b9UL);
-    size_t n_upper = 0;
-    double sum_rt = 0;
+/* Behaviour: the true parameters of each trial from its measured regressors, then one draw of the exact
+ * sampler. Trials the study excludes (e.g. an artifact) get regressor 0. */
+static bl_status draw_behaviour(const bl_scenario *sc, const bl_trials *trials, gsl_rng *rng, trial_rec *tr,
+                                size_t *n_upper, double *sum_rt, bl_error *err)
+{
+    size_t N = sc->n_participants * sc->trials_per_participant;
+    *n_upper = 0;
+    *sum_rt = 0;
     for (size_t i = 0; i < N; i++) {
         trial_rec *t = &tr[i];
         bl_wiener_params wp;
@@ -1298,11 +1311,10 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
             for (size_t s = 0; s < tp->n_slopes; s++) {
                 const truth_slope *ts = &tp->slopes[s];
                 const double *x = regressor(trials, ts->regressor);
-                if (!x) {
-                    st = bl_error_set(err, BL_ERR_INPUT, "%s: truth.%s.slopes.%s: the study has no numeric regressor of "
-                                      "that name (bands: study.power.bands)", sc->path, bl_param_name(p), ts->regressor);
-                    goto done;
-                }
+                if (!x)
+                    return bl_error_set(err, BL_ERR_INPUT, "%s: truth.%s.slopes.%s: the study has no numeric regressor "
+                                        "of that name (bands: study.power.bands)", sc->path, bl_param_name(p),
+                                        ts->regressor);
                 double xi = isfinite(x[i]) ? x[i] : 0.0;
                 v += ts->values[combo_index(sc, ts->by, ts->n_by, t->level)] * xi;
             }
@@ -1310,31 +1322,85 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         }
         for (int p = 0; p < BL_NPARAM; p++) t->param[p] = wp.value[p];
         bl_error perr = {0};
-        if (bl_wiener_check(&wp, &perr) != BL_OK) {
-            st = bl_error_set(err, BL_ERR_RANGE, "%s: truth gives invalid parameters for %s trial %zu: %s; make the slopes "
-                              "smaller or the intercepts larger", sc->path, sc->participants[t->participant], t->trial,
-                              perr.message);
-            goto done;
-        }
-        if ((st = bl_wiener_sample(&wp, rng, &t->upper, &t->rt, err))) goto done;
-        n_upper += (size_t)t->upper;
-        sum_rt += t->rt;
+        if (bl_wiener_check(&wp, &perr) != BL_OK)
+            return bl_error_set(err, BL_ERR_RANGE, "%s: truth gives invalid parameters for %s trial %zu: %s; make the "
+                                "slopes smaller or the intercepts larger", sc->path, sc->participants[t->participant],
+                                t->trial, perr.message);
+        bl_status st = bl_wiener_sample(&wp, rng, &t->upper, &t->rt, err);
+        if (st) return st;
+        *n_upper += (size_t)t->upper;
+        *sum_rt += t->rt;
     }
-    if ((st = write_trials_csv(sc, tr, N, p_trials, 0, err))) goto done;
+    return BL_OK;
+}
 
-    /* Measure again from the final table: keep rules on the drawn RTs may exclude trials, which shifts the
-     * standardised regressors a little; record by how much, so the truth's footing is explicit. */
-    if ((st = measure(p_study, opt->threads, &second, warn, err))) goto done;
-    const bl_trials *trials2 = second->trials;
+/* Largest change of a truth regressor between the provisional and the final measurement: keep rules on
+ * the drawn RTs may exclude trials, which shifts the standardised regressors a little. */
+static double regressor_shift(const bl_scenario *sc, const bl_trials *before, const bl_trials *after)
+{
+    size_t N = sc->n_participants * sc->trials_per_participant;
     double shift = 0;
     for (int p = 0; p < BL_NPARAM; p++)
         for (size_t s = 0; s < sc->truth[p].n_slopes; s++) {
             const char *name = sc->truth[p].slopes[s].regressor;
-            const double *a = regressor(trials, name), *b = regressor(trials2, name);
+            const double *a = regressor(before, name), *b = regressor(after, name);
             for (size_t i = 0; a && b && i < N; i++)
                 if (isfinite(a[i]) && isfinite(b[i]) && fabs(a[i] - b[i]) > shift) shift = fabs(a[i] - b[i]);
         }
-    size_t excluded = N - trials2->n_kept;
+    return shift;
+}
+
+bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl_simulate_options *opt,
+                            bl_simulate_summary *summary, bl_warnings *warn, bl_error *err)
+{
+    bl_simulate_options defaults = {0};
+    if (!opt) opt = &defaults;
+    unsigned long seed = opt->has_seed ? opt->seed : sc->seed;
+    size_t T = sc->trials_per_participant, N = sc->n_participants * T;
+    trial_rec *tr = calloc(N, sizeof *tr);
+    size_t *levels = calloc(N * (sc->n_factors ? sc->n_factors : 1), sizeof *levels);
+    size_t *order = malloc(T * sizeof *order);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    bl_results_folder *stage = NULL;
+    bl_analysis *first = NULL, *second = NULL;
+    char *p_rec = NULL, *p_trials = NULL, *p_study = NULL, *p_truth = NULL, *p_tt = NULL;
+    cJSON *tj = NULL;
+    bl_status st = BL_OK;
+    double seconds = 0, sum_rt = 0;
+    size_t n_upper = 0;
+    const char *inputs[1] = {sc->path};
+    if (!tr || !levels || !order || !rng) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for %zu trials", N);
+        goto done;
+    }
+    gsl_rng_set(rng, seed);
+    schedule_trials(sc, rng, tr, levels, order);
+    if ((st = bl_results_folder_check(out_dir, opt->force, inputs, 1, err))) goto done;
+    if ((st = bl_results_folder_begin(out_dir, opt->force, "simulate", &stage, err))) goto done;
+    const char *dir = bl_results_folder_dir(stage);
+    if (!(p_rec = bl_path_join(dir, "recordings")) || !(p_trials = bl_path_join(dir, "trials.csv")) ||
+        !(p_study = bl_path_join(dir, "study.json")) || !(p_truth = bl_path_join(dir, "truth.json")) ||
+        !(p_tt = bl_path_join(dir, "truth_trials.csv"))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
+    if ((st = bl_mkdir_p(p_rec, err))) goto done;
+    if ((st = write_recordings(sc, tr, p_rec, seed, opt->threads, &seconds, err))) goto done;
+    if ((st = write_provisional_study(sc, tr, p_study, p_trials, err))) goto done;
+    /* Warnings of this first measurement repeat in the second one: keep those only. */
+    if ((st = measure(p_study, opt->threads, &first, NULL, err))) goto done;
+    if (first->trials->n != N) {
+        st = bl_error_set(err, BL_ERR_INTERNAL, "simulate: the study read %zu trials, %zu were written",
+                          first->trials->n, N);
+        goto done;
+    }
+    gsl_rng_set(rng, seed ^ 0x9e3779b9UL);
+    if ((st = draw_behaviour(sc, first->trials, rng, tr, &n_upper, &sum_rt, err))) goto done;
+    if ((st = write_trials_csv(sc, tr, N, p_trials, 0, err))) goto done;
+    /* Measure again from the final table, and record how far the regressors moved (truth.json). */
+    if ((st = measure(p_study, opt->threads, &second, warn, err))) goto done;
+    double shift = regressor_shift(sc, first->trials, second->trials);
+    size_t excluded = N - second->trials->n_kept;
     if (excluded > 0)
         bl_warnings_add(warn, "%zu of %zu simulated trials are excluded by the study's keep rules or artifact checks; "
                         "the standardised regressors moved by up to %.3g (truth.json: regressor_shift_max)",
@@ -1360,16 +1426,15 @@ done:
     bl_results_folder_abort(stage);
     bl_analysis_close(first);
     bl_analysis_close(second);
-    cJSON_Delete(sj);
     cJSON_Delete(tj);
     free(p_rec);
     free(p_trials);
     free(p_study);
     free(p_truth);
     free(p_tt);
-    gsl_rng_free(rng);
-    free(order);
-    free(levels);
     free(tr);
+    free(levels);
+    free(order);
+    gsl_rng_free(rng);
     return st;
 }
