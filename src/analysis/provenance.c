@@ -7,12 +7,43 @@
 #include "core/sha256.h"
 #include "bl_config.h"
 
+#include "core/strutil.h"
+
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 static const char *detrend_name(bl_detrend d)
 {
     return d == BL_DETREND_LINEAR ? "linear" : d == BL_DETREND_NONE ? "none" : "mean";
+}
+
+/* `path` made absolute (not resolved: a recordings pattern keeps its placeholders), so the record reads the
+ * same from the results folder or anywhere else. Caller frees; NULL when memory ran out. */
+static char *absolute_path(const char *path)
+{
+    if (path[0] == '/') return bl_strdup(path);
+    char *cwd = getcwd(NULL, 0);
+    if (!cwd) return NULL;
+    while (path[0] == '.' && path[1] == '/') path += 2;
+    size_t n = strlen(cwd) + strlen(path) + 2;
+    char *p = malloc(n);
+    if (p) snprintf(p, n, "%s/%s", cwd, path);
+    free(cwd);
+    return p;
+}
+
+/* Replace the string at obj[key] (when it is one) by its absolute form; 0 when memory ran out. */
+static int absolute_key(cJSON *obj, const char *key)
+{
+    cJSON *it = obj ? cJSON_GetObjectItemCaseSensitive(obj, key) : NULL;
+    if (!cJSON_IsString(it)) return 1;
+    char *abs = absolute_path(it->valuestring);
+    cJSON *rep = abs ? cJSON_CreateString(abs) : NULL;
+    free(abs);
+    if (!rep) return 0;
+    return cJSON_ReplaceItemInObjectCaseSensitive(obj, key, rep) ? 1 : (cJSON_Delete(rep), 0);
 }
 
 static cJSON *input_entry(cJSON *arr, const char *role, const char *path, bl_error *err, bl_status *st)
@@ -21,11 +52,14 @@ static cJSON *input_entry(cJSON *arr, const char *role, const char *path, bl_err
     if ((*st = bl_sha256_file(path, hex, err)) != BL_OK) return NULL;
     cJSON *o = cJSON_CreateObject();
     if (!o) return NULL;
-    if (!cJSON_AddStringToObject(o, "role", role) || !cJSON_AddStringToObject(o, "path", path) ||
+    char *abs = absolute_path(path);
+    if (!abs || !cJSON_AddStringToObject(o, "role", role) || !cJSON_AddStringToObject(o, "path", abs) ||
         !cJSON_AddStringToObject(o, "sha256", hex) || !cJSON_AddItemToArray(arr, o)) {
+        free(abs);
         cJSON_Delete(o);
         return NULL; /* *st stays BL_OK: the caller reports out of memory */
     }
+    free(abs);
     return o;
 }
 
@@ -46,7 +80,10 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
     if (!cJSON_AddNumberToObject(p, "permutations", (double)permutations)) goto nomem;
     cJSON *parsed = NULL;
     if ((st = bl_json_parse(sj, "the parsed study", &parsed, err))) goto fail;
-    if (!cJSON_AddItemToObject(p, "study", parsed)) {
+    /* Paths absolute, so the recorded study parses again from the results folder (docs/outputs.md). */
+    if (!absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "trials"), "file") ||
+        !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "recordings"), "file") ||
+        !absolute_key(parsed, "output") || !cJSON_AddItemToObject(p, "study", parsed)) {
         cJSON_Delete(parsed);
         goto nomem;
     }

@@ -77,5 +77,15 @@ new=$(cd "$tmp/full" && find . -type f | sort | xargs sha256sum)
     && pass "fit --force on a full disk: exit $rc, the old results byte-identical, no staging folder left" \
     || fail "full disk: rc $rc, changed: $([ "$old" = "$new" ] && echo no || echo yes)"
 
+# 6. The provenance records absolute paths, so the study it records parses again from anywhere.
+"$BANDLINK" fit "$ex/study.json" --out "$tmp/prov" --quiet || fail "fit for provenance"
+python3 -c 'import json,sys; json.dump(json.load(open(sys.argv[1]))["study"], open(sys.argv[2], "w"))' \
+    "$tmp/prov/provenance.json" "$tmp/prov-study.json"
+(cd / && "$BANDLINK" check "$tmp/prov-study.json" >"$tmp/o" 2>"$tmp/e"); rc=$?
+[ $rc -eq 0 ] && grep -q "trials       48, kept 48" "$tmp/o" \
+    && pass "the study recorded in provenance.json parses again from another folder" || fail "provenance study: rc $rc $(cat "$tmp/e")"
+python3 -c 'import json,sys; p=json.load(open(sys.argv[1])); sys.exit(0 if all(i["path"].startswith("/") for i in p["inputs"]) else 1)' \
+    "$tmp/prov/provenance.json" && pass "every input path in the provenance is absolute" || fail "relative input paths"
+
 echo "$passes passed, $fails failed"
 [ $fails -eq 0 ]
