@@ -3,6 +3,7 @@
 #define BL_ANALYSIS_INTERNAL_H
 
 #include "bandlink/analysis.h"
+#include "analysis/input_hashes.h"
 #include "design/study.h"
 #include "design/trials.h"
 #include "fit/fit.h"
@@ -23,6 +24,7 @@ struct bl_analysis {
     bl_warnings warnings;
     double seconds[BL_STEP_COUNT];
     char *fit_summary, *check_summary, *power_summary, *timings;
+    bl_input_hashes *hashes;  /* the inputs being hashed in the background, once their list is known */
 };
 
 #endif

@@ -46,10 +46,13 @@ static int absolute_key(cJSON *obj, const char *key)
     return cJSON_ReplaceItemInObjectCaseSensitive(obj, key, rep) ? 1 : (cJSON_Delete(rep), 0);
 }
 
-static cJSON *input_entry(cJSON *arr, const char *role, const char *path, bl_error *err, bl_status *st)
+/* One inputs[] entry; its digest from `known` (hashed beforehand) or computed now. */
+static cJSON *input_entry(cJSON *arr, const char *role, const char *path, const char *known, bl_error *err,
+                          bl_status *st)
 {
     char hex[BL_SHA256_HEX_SIZE];
-    if ((*st = bl_sha256_file(path, hex, err)) != BL_OK) return NULL;
+    if (known) memcpy(hex, known, BL_SHA256_HEX_SIZE);
+    else if ((*st = bl_sha256_file(path, hex, err)) != BL_OK) return NULL;
     cJSON *o = cJSON_CreateObject();
     if (!o) return NULL;
     char *abs = absolute_path(path);
@@ -66,7 +69,8 @@ static cJSON *input_entry(cJSON *arr, const char *role, const char *path, bl_err
 /* The provenance record of fits.json (docs/outputs.md). */
 bl_status bl_provenance_create(const char *study_path, const bl_study *study, const bl_trials *trials,
                                const bl_power_result *pr, unsigned long seed, int threads, unsigned long permutations,
-                               const char *started, cJSON **out, bl_error *err)
+                               const char *started, const char (*hashes)[BL_SHA256_HEX_SIZE], cJSON **out,
+                               bl_error *err)
 {
     bl_status st = BL_OK;
     cJSON *p = cJSON_CreateObject();
@@ -90,11 +94,11 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
 
     cJSON *inputs = cJSON_AddArrayToObject(p, "inputs");
     if (!inputs) goto nomem;
-    if (!input_entry(inputs, "study", study_path, err, &st)) goto fail_or_nomem;
-    if (!input_entry(inputs, "trials", study->trials.file, err, &st)) goto fail_or_nomem;
+    if (!input_entry(inputs, "study", study_path, hashes ? hashes[0] : NULL, err, &st)) goto fail_or_nomem;
+    if (!input_entry(inputs, "trials", study->trials.file, hashes ? hashes[1] : NULL, err, &st)) goto fail_or_nomem;
     for (size_t r = 0; pr && r < pr->n_recordings; r++) {
         const bl_power_recording *rec = &pr->recordings[r];
-        cJSON *o = input_entry(inputs, "recording", rec->path, err, &st);
+        cJSON *o = input_entry(inputs, "recording", rec->path, hashes ? hashes[2 + r] : NULL, err, &st);
         if (!o) goto fail_or_nomem;
         if (!cJSON_AddStringToObject(o, "participant", rec->participant ? rec->participant : "")) goto nomem;
         if (!cJSON_AddStringToObject(o, "format", rec->format)) goto nomem;
