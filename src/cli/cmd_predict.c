@@ -412,7 +412,9 @@ static void from_table(const from_options *o, const bl_prediction *pr)
     for (size_t i = 0; i < o->n_at; i++) printf("%s %s = %s", i ? "," : "", o->at[i].name, o->at[i].value);
     if (!o->n_at) printf(" every trial (the model uses no regressor or condition)");
     printf("\nnoise s = 1; 95%% intervals by the delta method%s\n\n",
-           pr->has_covariance ? "" : " (not available: fits.json has no covariance for this fit)");
+           pr->has_covariance  ? ""
+           : pr->group_summary ? " (not available for the group summary of a separate fit: use --participant)"
+                               : " (not available: fits.json has no covariance for this fit)");
     printf("%-18s %12s %12s %-26s %s\n", "parameter", "value", "se", "95% interval", "link");
     for (int p = 0; p < BL_NPARAM; p++) {
         const bl_predicted *x = &pr->param[p];

@@ -681,6 +681,7 @@ bl_status bl_prediction_compute(const bl_fitted_models *fm, const bl_prediction_
     const bl_prediction_setting *ss = stim ? setting(req, stim) : NULL;
     if (ss && !names_contain(fm->study->trials.upper, fm->study->trials.n_upper, ss->value)) out->drift_sign = -1;
     out->has_covariance = e->cov != NULL;
+    out->group_summary = !m->pooled && !req->participant;
     size_t k = e->n_coef;
     double *drow = calloc(BL_NPARAM * (k ? k : 1), sizeof *drow);
     if (!drow) return bl_error_set(err, BL_ERR_NOMEM, "out of memory predicting model '%s'", m->name);

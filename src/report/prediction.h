@@ -72,6 +72,7 @@ typedef struct {
     int link[BL_NPARAM];                /* bl_link: BL_LINK_IDENTITY or BL_LINK_LOG; BL_LINK_DEFAULT when fixed */
     int drift_sign;                     /* -1 for a stimulus of the lower category (stimulus coding), else 1 */
     int has_covariance;                 /* 0: intervals are NAN (no covariance in fits.json) */
+    int group_summary;                  /* 1: the model-level coefficients of a separate fit (no covariance) */
     bl_predicted p_upper, p_lower;
     bl_predicted mean_rt_upper, mean_rt_lower;   /* seconds, nondecision included; NAN for P = 0 */
     bl_predicted mean_rt;               /* over both responses: P(upper) mean_upper + P(lower) mean_lower */
