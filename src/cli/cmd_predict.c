@@ -429,7 +429,7 @@ static void from_table(const from_options *o, const bl_prediction *pr)
         print_interval(x, "[%.6g, %.6g]");
         printf(" %s\n", pr->link[p] == BL_LINK_LOG ? "log" : "identity");
     }
-    printf("\n%-9s %11s %-24s %12s %-26s", "boundary", "probability", " 95% interval", "mean RT [s]", "95% interval");
+    printf("\n%-9s %11s %-24s %12s %-26s", "boundary", "probability", "95% interval", "mean RT [s]", "95% interval");
     for (int k = 0; k < BL_PREDICTION_NQ; k++) printf("   q%.1f [s]", bl_prediction_quantile_probs[k]);
     printf("\n");
     for (int b = 1; b >= 0; b--) {
