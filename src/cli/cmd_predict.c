@@ -360,14 +360,12 @@ static int add_item(cJSON *o, const char *key, cJSON *item)
 static int from_json(const from_options *o, const bl_prediction *pr)
 {
     static const char *const links[] = {"fixed", "identity", "log"};
-    cJSON *root = cJSON_CreateObject(), *at = cJSON_CreateObject(), *pars = cJSON_CreateObject();
+    cJSON *root = cJSON_CreateObject(), *at = NULL, *pars = NULL;
     int ok = root && add_item(root, "model", cJSON_CreateString(o->model)) &&
              add_item(root, "participant", o->participant ? cJSON_CreateString(o->participant) : cJSON_CreateNull()) &&
-             add_item(root, "at", at);
-    if (!ok && at && !cJSON_IsObject(cJSON_GetObjectItem(root, "at"))) cJSON_Delete(at);
+             (at = cJSON_AddObjectToObject(root, "at")) != NULL;
     for (size_t i = 0; ok && i < o->n_at; i++) ok = add_item(at, o->at[i].name, cJSON_CreateString(o->at[i].value));
-    ok = ok && add_item(root, "parameters", pars);
-    if (!ok && pars && root && !cJSON_GetObjectItem(root, "parameters")) cJSON_Delete(pars);
+    ok = ok && (pars = cJSON_AddObjectToObject(root, "parameters")) != NULL;
     for (int p = 0; ok && p < BL_NPARAM; p++) {
         cJSON *e = predicted_json(&pr->param[p]);
         ok = add_item(pars, bl_param_name(p), e) && add_item(e, "link", cJSON_CreateString(links[pr->link[p]]));

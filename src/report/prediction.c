@@ -269,8 +269,10 @@ fail:
 bl_status bl_fitted_models_load(const char *path, bl_fitted_models **out, bl_error *err)
 {
     *out = NULL;
+    errno = 0;
     FILE *f = fopen(path, "rb");
     if (!f) return bl_error_set(err, bl_status_from_errno(errno), "cannot open %s: %s", path, strerror(errno));
+    errno = 0;
     size_t cap = 1 << 16, n = 0;
     char *buf = malloc(cap);
     while (buf) {
@@ -285,12 +287,13 @@ bl_status bl_fitted_models_load(const char *path, bl_fitted_models **out, bl_err
         buf = nb;
         cap *= 2;
     }
-    int rerr = ferror(f);
+    int rerr = ferror(f) ? (errno ? errno : EIO) : 0;
     fclose(f);
     if (!buf) return bl_error_set(err, BL_ERR_NOMEM, "out of memory reading %s", path);
     if (rerr) {
         free(buf);
-        return bl_error_set(err, BL_ERR_IO, "cannot read %s", path);
+        /* A folder given for the file is the user's mistake (exit 2); a failing disk is not. */
+        return bl_error_set(err, bl_status_from_errno(rerr), "cannot read %s: %s", path, strerror(rerr));
     }
     buf[n] = '\0';
     if (strlen(buf) != n) {
