@@ -170,9 +170,71 @@ static void check_whole(void)
     bl_warnings_clear(&warn);
 }
 
+/* A separate fit: participants' own coefficients and covariance; the model level has none. The
+ * model frees the contamination, whose RT range fits.json does not keep. */
+static const char *SEPARATE =
+    "{\"mode\": \"separate\", \"models\": [{\"name\": \"c\", \"mode\": \"separate\", \"coefficients\": ["
+    "{\"parameter\": \"threshold\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 0.2},"
+    "{\"parameter\": \"drift\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 1.0},"
+    "{\"parameter\": \"nondecision\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 0.3},"
+    "{\"parameter\": \"contamination\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 0.02}],"
+    "\"covariance\": null, \"participants\": [{\"participant\": \"p1\", \"coefficients\": ["
+    "{\"parameter\": \"threshold\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 0.25},"
+    "{\"parameter\": \"drift\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 1.2},"
+    "{\"parameter\": \"nondecision\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 0.31},"
+    "{\"parameter\": \"contamination\", \"term\": \"intercept\", \"level\": \"\", \"estimate\": 0.03}],"
+    "\"covariance\": [[0.01, 0, 0, 0], [0, 0.02, 0, 0], [0, 0, 0.0001, 0], [0, 0, 0, 0.0004]]}]}],"
+    "\"provenance\": {\"study\": {\"trials\": {\"file\": \"t.csv\", \"participant\": \"animal\", \"rt\": \"rt\","
+    " \"response\": \"correct\", \"upper\": [\"1\"]}, \"fit\": {\"participants\": \"separate\"},"
+    "\"models\": [{\"name\": \"c\", \"threshold\": {\"link\": \"log\"}, \"contamination\": {}}]}}}";
+
+static void check_separate(void)
+{
+    bl_fitted_models *fm = NULL;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    if (!check_true(bl_fitted_models_parse(SEPARATE, "sep.json", &fm, &err) == BL_OK, "parse a separate fit (%s)",
+                    err.message))
+        return;
+    bl_prediction_request req = {"c", "p1", NULL, 0, 0, 0, 0};
+    bl_prediction pr;
+    check_true(bl_prediction_compute(fm, &req, &pr, &warn, &err) == BL_ERR_USAGE && strstr(err.message, "contamination"),
+               "contamination > 0 without its RT range is named (%s)", err.message);
+    req.has_contamination_range = 1;
+    req.contamination_lo = 0.2;
+    req.contamination_hi = 3.0;
+    err = (bl_error){0};
+    if (check_true(bl_prediction_compute(fm, &req, &pr, &warn, &err) == BL_OK, "participant p1 (%s)", err.message)) {
+        /* Log link: threshold = exp(0.25), se = exp(0.25) sqrt(0.01) (closed form of the delta method). */
+        check_rel(pr.param[BL_THRESHOLD].value, exp(0.25), 1e-15, "participant's own log-link threshold");
+        check_rel(pr.param[BL_THRESHOLD].se, exp(0.25) * 0.1, 1e-14, "its se = exp(eta) sqrt(S_aa)");
+        check_rel(pr.param[BL_CONTAMINATION].se, 0.02, 1e-14, "contamination se = sqrt(S_pp)");
+        /* Contaminants answer either way with probability 1/2 (Ratcliff & Tuerlinckx 2002):
+         * P(upper) = (1 - p0) / (1 + exp(-v a)) + p0 / 2 at start 1/2, so dP/dp0 = 1/2 - 1/(1 + exp(-v a)). */
+        double a = exp(0.25), v = 1.2, p0 = 0.03, L = 1 / (1 + exp(-v * a));
+        check_rel(pr.p_upper.value, (1 - p0) * L + p0 / 2, 1e-13, "P(upper) with contamination");
+        double dLa = v * L * (1 - L), dLv = a * L * (1 - L);
+        double j[4] = {(1 - p0) * dLa * a, (1 - p0) * dLv, 0, 0.5 - L};
+        const double S[16] = {0.01, 0, 0, 0, 0, 0.02, 0, 0, 0, 0, 0.0001, 0, 0, 0, 0, 0.0004};
+        check_rel(pr.p_upper.se, bl_prediction_delta_se(j, S, 4), 1e-6,
+                  "P(upper) se through a log link and the contamination (analytic chain rule)");
+    }
+    req.participant = NULL;
+    check_true(bl_prediction_compute(fm, &req, &pr, &warn, &err) == BL_OK && pr.group_summary && !pr.has_covariance &&
+                   isnan(pr.p_upper.se) && pr.param[BL_DRIFT].value == 1.0,
+               "model level of a separate fit: group coefficients, no intervals");
+    req.participant = "p9";
+    check_true(bl_prediction_compute(fm, &req, &pr, &warn, &err) == BL_ERR_USAGE && strstr(err.message, "'p9'") &&
+                   strstr(err.message, "participants: p1"),
+               "unknown participant lists the participants (%s)", err.message);
+    bl_fitted_models_destroy(fm);
+    bl_warnings_clear(&warn);
+}
+
 int main(void)
 {
     check_linear();
     check_whole();
+    check_separate();
     return harness_summary();
 }
