@@ -70,6 +70,32 @@ static cJSON *coefficients_json(const bl_fit_result *f)
     return a;
 }
 
+/* The coefficient covariance (n_coef rows of n_coef numbers, coefficient order), or null when the
+ * observed information was not positive definite or there is none (the group summary of separate fits). */
+static cJSON *covariance_json(const bl_fit_result *f)
+{
+    if (!f->covariance || f->n_coef == 0) return cJSON_CreateNull();
+    cJSON *rows = cJSON_CreateArray();
+    if (!rows) return NULL;
+    for (size_t i = 0; i < f->n_coef; i++) {
+        cJSON *row = cJSON_CreateArray();
+        if (!row || !cJSON_AddItemToArray(rows, row)) {
+            cJSON_Delete(row);
+            cJSON_Delete(rows);
+            return NULL;
+        }
+        for (size_t j = 0; j < f->n_coef; j++) {
+            cJSON *x = num_or_null(f->covariance[i * f->n_coef + j]);
+            if (!x || !cJSON_AddItemToArray(row, x)) {
+                cJSON_Delete(x);
+                cJSON_Delete(rows);
+                return NULL;
+            }
+        }
+    }
+    return rows;
+}
+
 /* The keys every fit carries (vocabulary.md), for a model or one participant. */
 static int fit_fields(cJSON *o, const char *name, const bl_fit_result *f, double ll, size_t k, size_t n, double aic,
                       double bic, int converged)
@@ -77,7 +103,7 @@ static int fit_fields(cJSON *o, const char *name, const bl_fit_result *f, double
     return add_str(o, "name", name) && add_num(o, "log_likelihood", ll) && add_num(o, "parameters", (double)k) &&
            add_num(o, "trials", (double)n) && add_num(o, "aic", aic) && add_num(o, "bic", bic) &&
            add_bool(o, "converged", converged) && add(o, "diagnostics", diagnostics_json(&f->diag)) &&
-           add(o, "coefficients", coefficients_json(f));
+           add(o, "coefficients", coefficients_json(f)) && add(o, "covariance", covariance_json(f));
 }
 
 static cJSON *model_json(const bl_model_result *r)

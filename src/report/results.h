@@ -4,7 +4,8 @@
  *
  * fits.json: {"mode", "models": [{"name", "log_likelihood", "parameters", "trials", "aic", "bic",
  *   "converged", "diagnostics", "coefficients": [{"parameter", "term", "level", "estimate", "se",
- *   "ci_low", "ci_high", "z", "p"}], "extends", "mode", "permutation_tests" (when run),
+ *   "ci_low", "ci_high", "z", "p"}], "covariance" (n_coef x n_coef rows in coefficient order, or null),
+ *   "extends", "mode", "permutation_tests" (when run),
  *   separate mode: "participants": [{"participant", "name", ... as above}], "group": [{"parameter",
  *   "term", "level", "participants", "mean", "sd", "t", "df", "p", "random_effects": {...}}]}],
  *   "permutation" (when run), "warnings": [...], "provenance": {...}}
