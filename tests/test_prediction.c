@@ -4,7 +4,7 @@
  * Sources named beside each check. The fits.json below is invented (coefficients and covariance
  * chosen by hand); every expected value is computed here from the closed forms. */
 #include "harness.h"
-#include "report/prediction.h"
+#include "bandlink/prediction.h"
 
 #include <math.h>
 #include <string.h>
@@ -21,23 +21,25 @@ static void check_linear(void)
     const double x = 1.7, g[2] = {1, x};
     bl_predicted p;
     /* Identity link: value = b0 + b1 x, se = sqrt(g' S g) (delta method with h' = 1). */
-    bl_prediction_linear(BL_LINK_IDENTITY, b, S, 2, g, 1.0, &p);
+    bl_prediction_linear(BL_PREDICTION_LINK_IDENTITY, b, S, 2, g, 1.0, &p);
     check_rel(p.value, 0.4 + 0.15 * x, 1e-15, "identity link: value = b0 + b1 x");
     check_rel(p.se, sqrt(quad2(g, S)), 1e-14, "identity link: se = sqrt(g'Sg)");
     check_rel(p.ci_high - p.ci_low, 2 * 1.959963984540054 * sqrt(quad2(g, S)), 1e-13,
               "95%% interval width = 2 z_.975 se (z from the normal quantile, e.g. scipy.stats.norm.ppf(0.975))");
     /* Log link: value = exp(eta), se = exp(eta) sqrt(g' S g) (delta method, h' = exp). */
-    bl_prediction_linear(BL_LINK_LOG, b, S, 2, g, 1.0, &p);
+    bl_prediction_linear(BL_PREDICTION_LINK_LOG, b, S, 2, g, 1.0, &p);
     double eta = 0.4 + 0.15 * x;
     check_rel(p.value, exp(eta), 1e-15, "log link: value = exp(b0 + b1 x)");
     check_rel(p.se, exp(eta) * sqrt(quad2(g, S)), 1e-14, "log link: se = exp(eta) sqrt(g'Sg)");
-    check_abs(p.ci_low, exp(eta) - 1.959963984540054 * exp(eta) * sqrt(quad2(g, S)), 1e-14, "log link: interval low");
+    check_rel(p.ci_low, exp(eta - 1.959963984540054 * sqrt(quad2(g, S))), 1e-14,
+              "log link: interval low = exp(eta - z se_eta) (the link-scale Wald interval transformed)");
+    check_true(p.ci_low > 0, "log link: the interval stays positive");
     /* Sign -1 (drift of a lower-category stimulus): value flips, se does not. */
-    bl_prediction_linear(BL_LINK_IDENTITY, b, S, 2, g, -1.0, &p);
+    bl_prediction_linear(BL_PREDICTION_LINK_IDENTITY, b, S, 2, g, -1.0, &p);
     check_rel(p.value, -(0.4 + 0.15 * x), 1e-15, "sign -1 flips the value");
     check_rel(p.se, sqrt(quad2(g, S)), 1e-14, "sign -1 keeps the se");
     /* No covariance: se and interval NAN. */
-    bl_prediction_linear(BL_LINK_IDENTITY, b, NULL, 2, g, 1.0, &p);
+    bl_prediction_linear(BL_PREDICTION_LINK_IDENTITY, b, NULL, 2, g, 1.0, &p);
     check_true(isnan(p.se) && isnan(p.ci_low) && isnan(p.ci_high), "no covariance: se and interval are NAN");
     const double Snan[4] = {NAN, 0, 0, 1};
     check_true(isnan(bl_prediction_delta_se(g, Snan, 2)), "a NAN covariance entry gives a NAN se");
@@ -103,7 +105,7 @@ static void check_whole(void)
     check_rel(pr.param[BL_DRIFT].se, sqrt(0.01 + 2 * theta * 0.002 + theta * theta * 0.006), 1e-14,
               "drift se = sqrt(S_vv + 2x S_vb + x^2 S_bb)");
     check_rel(pr.param[BL_THRESHOLD].se, sqrt(0.004), 1e-14, "threshold se = sqrt(S_rich,rich)");
-    check_true(pr.link[BL_START] == BL_LINK_DEFAULT && pr.param[BL_START].value == 0.5 && pr.param[BL_START].se == 0,
+    check_true(pr.link[BL_START] == BL_PREDICTION_LINK_FIXED && pr.param[BL_START].value == 0.5 && pr.param[BL_START].se == 0,
                "start is fixed at 0.5 with se 0");
     /* P(upper) at w = 1/2 is 1 / (1 + exp(-v a)) (Wagenmakers, van der Maas & Grasman 2007, EZ eq. for
      * Pc with s = 1); dP/da = v P(1-P), dP/dv = a P(1-P). */

@@ -6,7 +6,7 @@
 #include "bandlink/wiener.h"
 #include "cli_common.h"
 #include "commands.h"
-#include "report/prediction.h"
+#include "bandlink/prediction.h"
 
 #include <cJSON.h>
 #include <errno.h>
@@ -416,16 +416,16 @@ static void from_table(const from_options *o, const bl_prediction *pr)
     printf("%-18s %12s %12s %-26s %s\n", "parameter", "value", "se", "95% interval", "link");
     for (int p = 0; p < BL_NPARAM; p++) {
         const bl_predicted *x = &pr->param[p];
-        if (pr->link[p] == BL_LINK_DEFAULT && x->value == 0 && p >= BL_DRIFT_SD) continue; /* fixed at 0 */
+        if (pr->link[p] == BL_PREDICTION_LINK_FIXED && x->value == 0 && p >= BL_DRIFT_SD) continue; /* fixed at 0 */
         printf("%-18s %12.6g", bl_param_name(p), x->value);
-        if (pr->link[p] == BL_LINK_DEFAULT) {
+        if (pr->link[p] == BL_PREDICTION_LINK_FIXED) {
             printf(" %12s %-26s fixed\n", "-", "-");
             continue;
         }
         if (isfinite(x->se)) printf(" %12.4g", x->se);
         else printf(" %12s", "-");
         print_interval(x, "[%.6g, %.6g]");
-        printf(" %s\n", pr->link[p] == BL_LINK_LOG ? "log" : "identity");
+        printf(" %s\n", pr->link[p] == BL_PREDICTION_LINK_LOG ? "log" : "identity");
     }
     printf("\n%-9s %11s %-24s %12s %-26s", "boundary", "probability", "95% interval", "mean RT [s]", "95% interval");
     for (int k = 0; k < BL_PREDICTION_NQ; k++) printf("   q%.1f [s]", bl_prediction_quantile_probs[k]);

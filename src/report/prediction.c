@@ -1,5 +1,5 @@
 /* Predictions of a fitted model from fits.json, with delta-method intervals (prediction.h). */
-#include "report/prediction.h"
+#include "bandlink/prediction.h"
 
 #include "core/json.h"
 #include "core/strutil.h"
@@ -11,6 +11,10 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+
+/* The public link codes are the study's own. */
+_Static_assert(BL_PREDICTION_LINK_FIXED == (int)BL_LINK_DEFAULT && BL_PREDICTION_LINK_IDENTITY == (int)BL_LINK_IDENTITY &&
+                   BL_PREDICTION_LINK_LOG == (int)BL_LINK_LOG, "link codes");
 
 const double bl_prediction_quantile_probs[BL_PREDICTION_NQ] = {0.1, 0.3, 0.5, 0.7, 0.9};
 
@@ -326,10 +330,19 @@ void bl_prediction_linear(int link, const double *coef, const double *cov, size_
         if (row[j] != 0) eta += row[j] * coef[j];
     double h = link == BL_LINK_LOG ? exp(eta) : eta;
     double dh = link == BL_LINK_LOG ? h : 1.0; /* d h / d eta */
+    double se_eta = cov ? bl_prediction_delta_se(row, cov, k) : NAN;
     out->value = sign * h;
-    out->se = cov ? fabs(dh) * bl_prediction_delta_se(row, cov, k) : NAN;
-    out->ci_low = out->value - BL_PREDICTION_Z975 * out->se;
-    out->ci_high = out->value + BL_PREDICTION_Z975 * out->se;
+    out->se = fabs(dh) * se_eta;
+    if (link == BL_LINK_LOG) {
+        /* The interval of eta mapped through exp: it stays on the positive side, as the parameter does
+         * (the Wald interval of the link scale, as fits.json reports it, transformed). */
+        double a = sign * exp(eta - BL_PREDICTION_Z975 * se_eta), b = sign * exp(eta + BL_PREDICTION_Z975 * se_eta);
+        out->ci_low = a < b ? a : b;
+        out->ci_high = a < b ? b : a;
+    } else {
+        out->ci_low = out->value - BL_PREDICTION_Z975 * out->se;
+        out->ci_high = out->value + BL_PREDICTION_Z975 * out->se;
+    }
 }
 
 /* ---- the request: names, values, levels ------------------------------------------------------ */

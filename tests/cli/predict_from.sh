@@ -101,7 +101,8 @@ for name, p in pred["parameters"].items():
         S = np.array(fit["covariance"], dtype=float)
         gv = np.array(g)
         se = (want if log else 1.0) * math.sqrt(gv @ S @ gv)
-        ok = abs(p["se"] - se) <= 1e-10 * se and abs(p["ci_high"] - (want + 1.959963984540054 * se)) <= 1e-10 * max(1, abs(want))
+        hi = math.exp(eta + 1.959963984540054 * math.sqrt(gv @ S @ gv)) if log else want + 1.959963984540054 * se
+        ok = abs(p["se"] - se) <= 1e-10 * se and abs(p["ci_high"] - hi) <= 1e-10 * max(1, abs(hi))
         print(("PASS" if ok else "FAIL") + ": (b) %s se = %s sqrt(g'Sg) = %.12g (got %.12g, numpy)" % (name, "exp(eta)" if log else "1 *", se, p["se"]))
         bad += not ok
 sys.exit(1 if bad else 0)

@@ -9,27 +9,35 @@
  * regressor x of the chosen level) and coefficients b with covariance S:
  *     eta = g'b,  value = sign * h(eta)   (h = identity or exp; sign -1 only for the drift of a
  *                                          stimulus of the lower category under stimulus coding)
- *     se  = |h'(eta)| sqrt(g' S g),  95% interval value -+ 1.959964 se          (delta method)
+ *     se  = |h'(eta)| sqrt(g' S g)                                               (delta method)
+ *     95% interval: value -+ 1.959964 se (identity link); exp(eta -+ 1.959964 sqrt(g'Sg)) for the log link,
+ *     which stays positive like the parameter
  * Derived quantities f (P(upper), P(lower), mean RTs) use the chain rule with a numerical gradient:
  *     se(f) = sqrt(J S J'),  J_j = sum_p df/dparam_p * dparam_p/db_j,
  * df/dparam_p by central differences of the engine (one-sided at the edge of a parameter's range).
  * Source: the delta method (e.g. Casella & Berger 2002, Statistical Inference, 2nd ed., Thm 5.5.24).
  */
-#ifndef BL_PREDICTION_H
-#define BL_PREDICTION_H
+#ifndef BANDLINK_PREDICTION_H
+#define BANDLINK_PREDICTION_H
 
 #include "bandlink/status.h"
 #include "bandlink/wiener.h"
-#include "design/study.h"
 
 #include <stddef.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
 
 /* Normal quantile for 95% two-sided intervals (as in fits.json). */
 #define BL_PREDICTION_Z975 1.959963984540054
 
 enum { BL_PREDICTION_NQ = 5 };
 /* RT quantile probabilities of the prediction: 0.1 0.3 0.5 0.7 0.9. */
-extern const double bl_prediction_quantile_probs[BL_PREDICTION_NQ];
+BL_API extern const double bl_prediction_quantile_probs[BL_PREDICTION_NQ];
+
+/* How a parameter was predicted (bl_prediction.link). */
+enum { BL_PREDICTION_LINK_FIXED = 0, BL_PREDICTION_LINK_IDENTITY = 1, BL_PREDICTION_LINK_LOG = 2 };
 
 typedef struct bl_fitted_models bl_fitted_models;
 
@@ -69,7 +77,7 @@ typedef struct {
 typedef struct {
     bl_wiener_params params;            /* the predicted parameter set (drift toward the upper boundary) */
     bl_predicted param[BL_NPARAM];
-    int link[BL_NPARAM];                /* bl_link: BL_LINK_IDENTITY or BL_LINK_LOG; BL_LINK_DEFAULT when fixed */
+    int link[BL_NPARAM];                /* BL_PREDICTION_LINK_*: identity, log, or fixed */
     int drift_sign;                     /* -1 for a stimulus of the lower category (stimulus coding), else 1 */
     int has_covariance;                 /* 0: intervals are NAN (no covariance in fits.json) */
     int group_summary;                  /* 1: the model-level coefficients of a separate fit (no covariance) */
@@ -90,9 +98,12 @@ BL_API bl_status bl_prediction_compute(const bl_fitted_models *fm, const bl_pred
 
 /* One parameter from its design row (k coefficients): value = sign h(row'coef), se and interval by
  * the delta method with covariance `cov` (k x k row-major; NULL: se and interval NAN). */
-BL_API void bl_prediction_linear(int link, const double *coef, const double *cov, size_t k, const double *row,
+BL_API void bl_prediction_linear(int link /* BL_PREDICTION_LINK_* */, const double *coef, const double *cov, size_t k, const double *row,
                                  double sign, bl_predicted *out);
 /* sqrt(j' cov j) for a gradient j of k values (cov k x k row-major); NAN when any term is not finite. */
 BL_API double bl_prediction_delta_se(const double *j, const double *cov, size_t k);
 
+#ifdef __cplusplus
+}
+#endif
 #endif
