@@ -149,11 +149,11 @@ int main(void)
     check_true(mkdtemp(dir) != NULL, "temporary folder");
     cJSON *prov = cJSON_CreateObject();
     cJSON_AddStringToObject(prov, "command", "test");
-    check_true(bl_results_write_all(dir, set, t, prov, &warn, 0, &err) == BL_OK, "write results (%s)", err.message);
-    check_true(bl_results_write_all(dir, set, t, prov, &warn, 0, &err) == BL_ERR_EXISTS &&
+    check_true(bl_results_write_all(dir, set, NULL, t, prov, &warn, 0, &err) == BL_OK, "write results (%s)", err.message);
+    check_true(bl_results_write_all(dir, set, NULL, t, prov, &warn, 0, &err) == BL_ERR_EXISTS &&
                    strstr(err.message, "fits.json") != NULL,
                "existing results are kept without force: %s", err.message);
-    check_true(bl_results_write_all(dir, set, t, prov, &warn, 1, &err) == BL_OK, "force replaces them");
+    check_true(bl_results_write_all(dir, set, NULL, t, prov, &warn, 1, &err) == BL_OK, "force replaces them");
 
     char path[512];
     snprintf(path, sizeof path, "%s/fits.json", dir);

@@ -740,7 +740,7 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
         if ((st = bl_results_write_comparison(path, set, err))) goto done;
         free(path);
         if (!(path = bl_path_join(dir, "trials.csv"))) goto nomem;
-        if ((st = bl_results_write_trials(path, set, trials, err))) goto done;
+        if ((st = bl_results_write_trials(path, set, study, trials, err))) goto done;
         free(path);
         path = NULL;
     }

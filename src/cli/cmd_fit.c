@@ -201,7 +201,7 @@ int cmd_fit(int argc, char **argv)
         bl_error_set(&err, BL_ERR_USAGE, "%s: the study names no \"output\" folder; give --out DIR", study_path);
         goto fail;
     }
-    if (bl_results_write_all(dir, set, trials, prov, &warn, force, &err)) goto fail;
+    if (bl_results_write_all(dir, set, study, trials, prov, &warn, force, &err)) goto fail;
     cli_print_warnings(&warn);
     if (!cli_quiet) {
         print_summary(set);
