@@ -70,6 +70,10 @@ static const char CSS[] =
     ".scroll{overflow-x:auto}"
     "th{background:#f2f2f2}td.t,th.t{text-align:left}"
     "tr.best td{background:#e6f1f8;font-weight:bold}"
+    /* long model names wrap (at hyphens too) so the comparison table fits a 1300 px window */
+    "table.cmp td.t{white-space:normal;overflow-wrap:anywhere;min-width:9em;max-width:16em}"
+    "table.cmp td,table.cmp th{padding:.25em .45em}"
+    "table.cmp th{font-size:.95em}"
     "dl.kv{display:grid;grid-template-columns:max-content auto;gap:.15em 1.2em}dl.kv dt{font-weight:bold}"
     "dl.kv dd{margin:0}"
     "figure{margin:1.2em 0;overflow-x:auto}figure svg{max-width:100%;height:auto}"
@@ -240,7 +244,7 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
         return;
     }
     int best = bl_figures_best_model(set);
-    fputs("<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
+    fputs("<div class=\"scroll\"><table class=\"cmp\"><tr><th class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
           "<th>AIC</th><th>BIC</th><th>&#916;AIC</th><th>&#916;BIC</th><th>AIC weight</th>"
           "<th class=\"t\">LRT against</th><th>statistic</th><th>df</th><th>p</th><th>converged</th></tr>\n",
           f);
