@@ -410,13 +410,18 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
 static void goodness_section(FILE *f, const bl_fit_set *set, const bl_goodness *g)
 {
     if (!set || !g) return;
-    fputs("<h2 id=\"goodness\">Goodness of fit</h2>\n<p>Distance between observed and predicted RT quantiles "
-          "(0.1&#8211;0.9) and choice shares, averaged over groups weighted by their responses (quantiles) or "
-          "trials (shares). All numbers per group are in <code>fit_quantiles.csv</code>.</p>\n"
-          "<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>quantiles, condition cells (ms)</th>"
-          "<th>quantiles, regressor bins (ms)</th><th>shares, condition cells (% points)</th>"
-          "<th>shares, regressor bins (% points)</th></tr>\n",
-          f);
+    /* with stimulus coding the rows are correct and error responses, so the share is accuracy */
+    const char *share = g->accuracy ? "accuracy" : "shares";
+    fprintf(f, "<h2 id=\"goodness\">Goodness of fit</h2>\n<p>Distance between observed and predicted RT quantiles "
+            "(0.1&#8211;0.9) and %s, averaged over groups weighted by their responses (quantiles) or "
+            "trials (%s).%s All numbers per group are in <code>fit_quantiles.csv</code>.</p>\n"
+            "<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>quantiles, condition cells (ms)</th>"
+            "<th>quantiles, regressor bins (ms)</th><th>%s, condition cells (%% points)</th>"
+            "<th>%s, regressor bins (%% points)</th></tr>\n",
+            g->accuracy ? "accuracy (share of correct responses)" : "choice shares", share,
+            g->accuracy ? " The study codes responses by stimulus, so quantiles are of correct and of error responses."
+                        : "",
+            share, share);
     for (size_t m = 0; m < set->n_models; m++) {
         double qs[2] = {0, 0}, qw[2] = {0, 0}, ss[2] = {0, 0}, sw[2] = {0, 0};
         for (size_t r = 0; r < g->n_rows; r++) {
