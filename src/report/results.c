@@ -298,12 +298,14 @@ static size_t trials_extra_cols(const bl_study *s, const bl_fit_set *set, const 
                     const bl_param_spec *ps = &s->models[k].param[p];
                     if (ps->is_fixed) continue;
                     for (size_t i = 0; pass == 0 && i < ps->n_per; i++)
-                        if (strcmp(ps->per[i], s->trials.participant) != 0) trials_add_col(t, ps->per[i], cols, &n, cap);
+                        if (strcmp(ps->per[i], s->trials.participant) != 0)
+                            trials_add_col(t, ps->per[i], cols, &n, cap);
                     for (size_t j = 0; j < ps->n_slopes; j++) {
                         const bl_slope_spec *sl = &ps->slopes[j];
                         if (pass == 1) trials_add_col(t, sl->regressor, cols, &n, cap);
                         for (size_t i = 0; pass == 0 && i < sl->n_by; i++)
-                            if (strcmp(sl->by[i], s->trials.participant) != 0) trials_add_col(t, sl->by[i], cols, &n, cap);
+                            if (strcmp(sl->by[i], s->trials.participant) != 0)
+                                trials_add_col(t, sl->by[i], cols, &n, cap);
                     }
                 }
             }
@@ -362,7 +364,8 @@ bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const
 }
 
 bl_status bl_results_write_all(const char *dir, const bl_fit_set *set, const bl_study *study,
-                               const bl_trials *trials, const cJSON *provenance, const bl_warnings *warnings, int force, bl_error *err)
+                               const bl_trials *trials, const cJSON *provenance, const bl_warnings *warnings,
+                               int force, bl_error *err)
 {
     static const char *names[] = {"fits.json", "comparison.csv", "trials.csv"};
     char *path[3] = {NULL, NULL, NULL};

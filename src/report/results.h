@@ -41,7 +41,8 @@ BL_API bl_status bl_results_write_trials(const char *path, const bl_fit_set *set
 /* All three into folder `dir` (created if missing). Existing files are replaced only with
  * force != 0, else BL_ERR_EXISTS naming the file. */
 BL_API bl_status bl_results_write_all(const char *dir, const bl_fit_set *set, const bl_study *study,
-                                      const bl_trials *trials, const cJSON *provenance, const bl_warnings *warnings, int force,
+                                      const bl_trials *trials, const cJSON *provenance,
+                                      const bl_warnings *warnings, int force,
                                       bl_error *err);
 
 #endif

@@ -73,8 +73,7 @@ void bl_power_result_destroy(bl_power_result *r)
     free(r->recordings);
     free(r->freq);
     free(r->psd);
-    free(r->band_power);
-    free(r->artifact_power);
+    free(r->band_power); /* artifact_power lives in the same block */
     free(r->unit);
     free(r);
 }
@@ -574,9 +573,10 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
                             "detrending biases the PSD low", bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
     }
     if (!(r->psd = malloc((n ? n : 1) * r->n_freqs * sizeof *r->psd)) ||
-        !(r->band_power = malloc((n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power)) ||
-        !(r->artifact_power = malloc((n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->artifact_power)))
+        !(r->band_power = malloc(2 * (n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power)))
         goto nomem;
+    /* the second half of the block: flagged trials' power, which the regressors never see */
+    r->artifact_power = r->band_power + (n ? n : 1) * (r->n_bands ? r->n_bands : 1);
     for (size_t k = 0; k < n * r->n_freqs; k++) r->psd[k] = NAN;
     for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = r->artifact_power[k] = NAN;
 

@@ -49,7 +49,8 @@ typedef struct {
     double *psd;                 /* n_trials x n_freqs, row-major, unit^2/Hz; NAN rows for excluded trials */
     double *band_power;          /* n_trials x n_bands, raw unit^2; NAN for excluded trials */
     double *artifact_power;      /* n_trials x n_bands, raw unit^2 of artifact-flagged trials (NAN for the
-                                    rest and for non-finite windows); written to power.csv only */
+                                    rest and for non-finite windows); written to power.csv only. Points
+                                    into band_power's allocation (not freed on its own) */
     size_t n_window_confounds;   /* windows that reach before the onset (aligned to the response) or past
                                     the response (aligned to the onset) */
     size_t n_recordings;
