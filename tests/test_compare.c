@@ -149,11 +149,18 @@ int main(void)
     check_true(mkdtemp(dir) != NULL, "temporary folder");
     cJSON *prov = cJSON_CreateObject();
     cJSON_AddStringToObject(prov, "command", "test");
-    check_true(bl_results_write_all(dir, set, t, prov, &warn, 0, &err) == BL_OK, "write results (%s)", err.message);
-    check_true(bl_results_write_all(dir, set, t, prov, &warn, 0, &err) == BL_ERR_EXISTS &&
-                   strstr(err.message, "fits.json") != NULL,
-               "existing results are kept without force: %s", err.message);
-    check_true(bl_results_write_all(dir, set, t, prov, &warn, 1, &err) == BL_OK, "force replaces them");
+    {
+        /* The three writers one by one (the results folder's overwrite policy is tested in
+         * tests/cli/output_safety.sh). */
+        char pf[600], pc[600], pt[600];
+        snprintf(pf, sizeof pf, "%s/fits.json", dir);
+        snprintf(pc, sizeof pc, "%s/comparison.csv", dir);
+        snprintf(pt, sizeof pt, "%s/trials.csv", dir);
+        check_true(bl_results_write_fits(pf, set, prov, &warn, &err) == BL_OK &&
+                       bl_results_write_comparison(pc, set, &err) == BL_OK &&
+                       bl_results_write_trials(pt, set, NULL, t, &err) == BL_OK,
+                   "write results (%s)", err.message);
+    }
 
     char path[512];
     snprintf(path, sizeof path, "%s/fits.json", dir);

@@ -198,9 +198,40 @@ int main(void)
             check_true(pc->cols[8].text[3] == NULL && strcmp(pc->cols[11].text[3], "artifact: flat") == 0,
                        "excluded trial: NA regressor, reason in artifact");
             check_true(pc->cols[11].text[0] == NULL, "kept trial: empty artifact");
+            /* Artifact-flagged trials keep their raw band power beside the flag; the regressor stays NA.
+             * Flat trial (r1 trial 4): the bipolar signal is exactly 0, so its power is 0. Clipping trial
+             * (r2 trial 4): the sine (power P = (gain A)^2/2, Parseval as above) plus an impulse of height
+             * d <= 2 (1 + 0.4 + A) at one sample. sqrt(band power) is a norm of the windowed DFT bins
+             * (mean detrending only touches bins 0 and 1 under a Hann window), so by Minkowski's
+             * inequality sqrt(P_clip) lies within sqrt(P) +- sqrt(P_imp), where the impulse's band
+             * power is at most 5 bins x df x 2 d^2 x (sum over <= 2 segments of w^2 <= 1) / (fs sum w^2 K),
+             * with sum w^2 = 3/8 nperseg for the periodic Hann window. Non-finite: NA. */
+            check_true(pc->cols[7].text[3] && pc->cols[7].num[3] == 0 && pc->cols[8].text[3] == NULL,
+                       "flat trial: alpha_power 0 kept beside the flag, alpha NA (%s)",
+                       pc->cols[7].text[3] ? pc->cols[7].text[3] : "NA");
+            double a_clip = 2 * amp[1][3], d_max = 2 * (1 + 0.4 + amp[1][3]);
+            double p_imp = 5 * 2.0 * 2 * d_max * d_max * 2 / (FS * (3.0 / 8 * 500) * 3);
+            check_true(pc->cols[7].text[NTR + 3] != NULL && pc->cols[8].text[NTR + 3] == NULL &&
+                           strcmp(pc->cols[11].text[NTR + 3], "artifact: clipping") == 0,
+                       "clipping trial: raw alpha_power written, regressor NA");
+            if (pc->cols[7].text[NTR + 3])
+                check_abs(sqrt(pc->cols[7].num[NTR + 3]), a_clip / sqrt(2), sqrt(p_imp),
+                          "clipping trial: sqrt(raw alpha_power) within sqrt((gain A)^2/2) +- sqrt(impulse bound)");
+            check_true(pc->cols[7].text[NTR + 4] != NULL && pc->cols[9].text[NTR + 4] != NULL &&
+                           pc->cols[10].text[NTR + 4] == NULL,
+                       "peak-to-peak trial: raw power of both bands kept, regressors NA");
+            check_true(pc->cols[7].text[4] == NULL && pc->cols[9].text[4] == NULL,
+                       "non-finite trial: no band power (NA)");
+            check_true(isnan(r->band_power[(NTR + 3) * 2]) && isfinite(r->artifact_power[(NTR + 3) * 2]) &&
+                           isnan(r->artifact_power[0]),
+                       "band_power stays NAN for flagged trials; artifact_power holds only theirs");
             bl_table_destroy(pc);
         }
     }
+    int confound_warned = 0;
+    for (size_t k = 0; k < w.count; k++) confound_warned |= strstr(w.items[k], "power.window") != NULL;
+    check_true(!confound_warned && r->n_window_confounds == 0,
+               "onset-aligned window ending at the onset: no RT-position warning");
     char *summary = bl_check_summary(s, t, r);
     check_true(summary && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
                "check summary names exclusions, bands and rate");
@@ -254,6 +285,53 @@ int main(void)
     bl_trials_destroy(t);
     bl_study_destroy(s);
     bl_warnings_clear(&w);
+
+    /* Windows whose position depends on the RT: r1 only, RT 0.2 s on trials 1-3, 0.5 s on the rest.
+     * Onset-aligned [-1, 0.3) s reaches past the response when rt < 0.3: trials 1-3, 3 of 12 = 25.0%.
+     * Response-aligned [-0.4, 0) s begins before the onset when rt - 0.4 < 0: again trials 1-3.
+     * Response-aligned [-0.1, 0) s never does. Counts by hand from the table. */
+    {
+        char tab[2048] = "rat,ext,onset,rt,correct\n";
+        for (int k = 0; k < NTR; k++) {
+            size_t l = strlen(tab);
+            snprintf(tab + l, sizeof tab - l, "r1,w64,%.4f,%s,1\n", 2.0 * k + 2.0004, k < 3 ? "0.2" : "0.5");
+        }
+        write_text("conf.csv", tab);
+        const char *windows[] = {"\"from\": -1.0, \"to\": 0.3", "\"align\": \"response\", \"from\": -0.4, \"to\": 0",
+                                 "\"align\": \"response\", \"from\": -0.1, \"to\": 0"};
+        const char *want[] = {"reaches past the response in 25.0% of windows (3 of 12",
+                              "begins before the stimulus onset in 25.0% of windows (3 of 12", NULL};
+        for (int c = 0; c < 3; c++) {
+            char cj[2048];
+            snprintf(cj, sizeof cj,
+                     "{\"trials\": {\"file\": \"conf.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": "
+                     "\"correct\", \"upper\": [1]}, \"recordings\": {\"file\": \"{rat}.{ext}\", \"onset\": \"onset\", "
+                     "\"channels\": [\"1-2\"]}, \"power\": {\"window\": {%s}, \"segment\": 0.1, "
+                     "\"bands\": {\"alpha\": [6, 14]}, \"standardize\": \"none\"}}",
+                     windows[c]);
+            bl_warnings cw = {0};
+            s = load_study(cj);
+            t = NULL;
+            r = NULL;
+            if (s && bl_trials_load(s, &t, &cw, &err) == BL_OK && bl_power_compute(s, t, 1, &r, &cw, &err) == BL_OK) {
+                const char *hit = NULL;
+                for (size_t k = 0; k < cw.count; k++)
+                    if (strstr(cw.items[k], "power.window")) hit = cw.items[k];
+                if (want[c])
+                    check_true(hit && strstr(hit, want[c]) && strstr(hit, "docs/study-file.md") &&
+                                   r->n_window_confounds == 3,
+                               "window %d: warning with share and count: %s", c + 1, hit ? hit : "none");
+                else
+                    check_true(!hit && r->n_window_confounds == 0, "window %d (within the RT): no warning", c + 1);
+            } else {
+                check_true(0, "window %d: power computed: %s", c + 1, err.message);
+            }
+            bl_power_result_destroy(r);
+            bl_trials_destroy(t);
+            bl_study_destroy(s);
+            bl_warnings_clear(&cw);
+        }
+    }
     char cmd[300];
     snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
     if (system(cmd) != 0) printf("note: could not remove %s\n", dir);

@@ -207,7 +207,7 @@ static bl_status write_fit_tables(const bl_analysis *a, const char *dir, bl_erro
         char *path = bl_path_join(dir, names[i]);
         if (!path) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         st = i == 0 ? bl_results_write_comparison(path, a->fits, err)
-                    : bl_results_write_trials(path, a->fits, a->trials, err);
+                    : bl_results_write_trials(path, a->fits, a->study, a->trials, err);
         free(path);
     }
     return st;

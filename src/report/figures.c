@@ -390,6 +390,68 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
 
 /* ---- 3. quantile-probability ---- */
 
+/* Cells numbered 1..n by the reference model's predicted share of the upper (or correct) response,
+ * so numbers run left to right on the right half of every panel; rank[c] is cell c's number - 1. */
+static void qp_cell_ranks(const bl_goodness *g, size_t ref_model, size_t *order, size_t *rank)
+{
+    const bl_goodness_row *rows0 = &g->rows[ref_model * 2 * g->n_groups];
+    size_t nc = g->n_cells;
+    for (size_t c = 0; c < nc; c++) order[c] = c;
+    for (size_t i = 1; i < nc; i++) /* stable insertion by predicted share; NAN last */
+        for (size_t j = i; j > 0; j--) {
+            double a = rows0[2 * order[j - 1]].predicted_share, b = rows0[2 * order[j]].predicted_share;
+            if (!(isnan(a) || a > b)) break;
+            if (isnan(a) && isnan(b)) break;
+            size_t tmp = order[j];
+            order[j] = order[j - 1];
+            order[j - 1] = tmp;
+        }
+    for (size_t k = 0; k < nc; k++) rank[order[k]] = k;
+}
+
+/* One model's panel: predicted lines (one per quantile, through the cells in order of predicted
+ * probability), observed points, and each observed column's cell number above its 0.9 quantile. */
+static void qp_panel(bl_svg_panel *p, const bl_goodness *g, size_t m, const size_t *rank, int numbered, double *px,
+                     double *py, size_t *ord)
+{
+    size_t npts = 2 * g->n_cells;
+    const bl_goodness_row *rows0 = &g->rows[m * 2 * g->n_groups];
+    for (int k = 0; k < BL_GOODNESS_NQ; k++) {
+        const char *color = bl_svg_color(k);
+        size_t n = 0;
+        for (size_t i = 0; i < npts; i++)
+            if (isfinite(rows0[i].predicted_q[k]) && isfinite(rows0[i].predicted_share)) ord[n++] = i;
+        for (size_t i = 1; i < n; i++)
+            for (size_t j = i; j > 0 && rows0[ord[j - 1]].predicted_share > rows0[ord[j]].predicted_share; j--) {
+                size_t tmp = ord[j];
+                ord[j] = ord[j - 1];
+                ord[j - 1] = tmp;
+            }
+        for (size_t i = 0; i < n; i++) {
+            px[i] = rows0[ord[i]].predicted_share;
+            py[i] = rows0[ord[i]].predicted_q[k];
+        }
+        bl_svg_line(p, px, py, n, (bl_svg_style){.color = color, .width = 1.5});
+        n = 0;
+        for (size_t i = 0; i < npts; i++)
+            if (rows0[i].responses > 0) {
+                px[n] = rows0[i].observed_share;
+                py[n++] = rows0[i].observed_q[k];
+            }
+        bl_svg_points(p, px, py, n, (bl_svg_style){.color = color, .size = 3.2});
+    }
+    if (!numbered) return;
+    for (size_t i = 0; i < npts; i++) {
+        if (rows0[i].responses == 0) continue;
+        char lab[32];
+        size_t r = rank[i / 2];
+        snprintf(lab, sizeof lab, "%zu", r + 1);
+        /* neighbours in rank alternate between two heights so close columns stay legible */
+        bl_svg_text(p, rows0[i].observed_share, rows0[i].observed_q[BL_GOODNESS_NQ - 1], r % 2 ? 18 : 8, lab,
+                    (bl_svg_style){.color = "#444444"});
+    }
+}
+
 static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **caption)
 {
     size_t nm = set->n_models;
@@ -399,51 +461,35 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
         *caption = xprintf("No fitted model.");
         return fig;
     }
-    int cols = nm < 3 ? (int)nm : 3, rows = (int)((nm + (size_t)cols - 1) / (size_t)cols);
+    /* Many cells: wider, taller panels and fewer per row, so the columns of points spread out. */
+    size_t nc = g->n_cells;
+    int many = nc >= 8;
+    int cols = nm < (many ? 2u : 3u) ? (int)nm : (many ? 2 : 3), rows = (int)((nm + (size_t)cols - 1) / (size_t)cols);
     bl_svg *fig = bl_svg_create("qp", "Quantile-probability plot: observed vs predicted RT quantiles", rows, cols,
-                                PANEL_W, PANEL_H + 20);
+                                many ? 1.5 * PANEL_W : PANEL_W, many ? PANEL_H + 80 : PANEL_H + 20);
     if (!fig) return NULL;
-    size_t npts = 2 * g->n_cells;
+    size_t npts = 2 * nc;
     double *px = malloc((npts + 1) * sizeof *px), *py = malloc((npts + 1) * sizeof *py);
-    size_t *ord = malloc((npts + 1) * sizeof *ord);
-    if (!px || !py || !ord) {
-        free(px), free(py), free(ord);
+    size_t *ord = malloc((npts + 1) * sizeof *ord), *cell_order = malloc((nc + 1) * sizeof *cell_order);
+    size_t *rank = malloc((nc + 1) * sizeof *rank);
+    if (!px || !py || !ord || !cell_order || !rank) {
+        free(px), free(py), free(ord), free(cell_order), free(rank);
         bl_svg_destroy(fig);
         return NULL;
     }
+    int best = bl_figures_best_model(set);
+    qp_cell_ranks(g, best >= 0 ? (size_t)best : 0, cell_order, rank);
+    int numbered = nc > 1;
+    const char *xlab = g->accuracy ? "probability of a correct or error response (proportion of trials)"
+                                   : "response probability (proportion of trials)";
     for (size_t m = 0; m < nm; m++) {
         bl_svg_panel *p = bl_svg_panel_at(fig, (int)m);
         bl_svg_panel_title(p, set->models[m].name);
-        bl_svg_axis_label(p, BL_SVG_X, "response probability (proportion of trials)");
+        bl_svg_axis_label(p, BL_SVG_X, xlab);
         bl_svg_axis_label(p, BL_SVG_Y, "RT quantile (s)");
         bl_svg_axis_range(p, BL_SVG_X, 0, 1);
-        /* Rows of this model for the condition cells: 2 per cell (upper, lower). */
-        const bl_goodness_row *rows0 = &g->rows[m * 2 * g->n_groups];
-        for (int k = 0; k < BL_GOODNESS_NQ; k++) {
-            const char *color = bl_svg_color(k);
-            /* Predicted: a line through the cells sorted by predicted probability. */
-            size_t n = 0;
-            for (size_t i = 0; i < npts; i++)
-                if (isfinite(rows0[i].predicted_q[k]) && isfinite(rows0[i].predicted_share)) ord[n++] = i;
-            for (size_t i = 1; i < n; i++)
-                for (size_t j = i; j > 0 && rows0[ord[j - 1]].predicted_share > rows0[ord[j]].predicted_share; j--) {
-                    size_t tmp = ord[j];
-                    ord[j] = ord[j - 1];
-                    ord[j - 1] = tmp;
-                }
-            for (size_t i = 0; i < n; i++) {
-                px[i] = rows0[ord[i]].predicted_share;
-                py[i] = rows0[ord[i]].predicted_q[k];
-            }
-            bl_svg_line(p, px, py, n, (bl_svg_style){.color = color, .width = 1.5});
-            n = 0;
-            for (size_t i = 0; i < npts; i++)
-                if (rows0[i].responses > 0) {
-                    px[n] = rows0[i].observed_share;
-                    py[n++] = rows0[i].observed_q[k];
-                }
-            bl_svg_points(p, px, py, n, (bl_svg_style){.color = color, .size = 3.2});
-        }
+        if (g->accuracy) bl_svg_refline(p, BL_SVG_X, 0.5, (bl_svg_style){.color = "#bbbbbb", .width = 1, .dashed = 1});
+        qp_panel(p, g, m, rank, numbered, px, py, ord);
     }
     bl_svg_legend_heading(fig, "RT quantile");
     for (int k = 0; k < BL_GOODNESS_NQ; k++) {
@@ -454,12 +500,31 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
     bl_svg_legend_heading(fig, "marks");
     bl_svg_legend(fig, "observed", BL_SVG_KEY_POINT, (bl_svg_style){.color = "#666666"});
     bl_svg_legend(fig, "predicted", BL_SVG_KEY_LINE, (bl_svg_style){.color = "#666666"});
-    free(px), free(py), free(ord);
-    *caption = xprintf("For each condition cell (%zu) and each response (upper and lower boundary), the 0.1, 0.3, "
-                       "0.5, 0.7 and 0.9 RT quantiles are plotted against the probability of that response: points "
-                       "are observed, lines are the model's predictions (quantiles of the mixture of the cell's "
-                       "trial-wise predicted distributions). Numbers in fit_quantiles.csv.",
-                       g->n_cells);
+    if (numbered) {
+        bl_svg_legend_heading(fig, g->accuracy ? "cells (numbered by predicted accuracy)"
+                                               : "cells (numbered by predicted upper share)");
+        for (size_t k = 0; k < nc; k++) {
+            const bl_goodness_group *cell = &g->groups[cell_order[k]];
+            char *lab = xprintf("%zu  %s (%zu trials)", k + 1, cell->condition, cell->n);
+            bl_svg_legend(fig, lab ? lab : cell->condition, BL_SVG_KEY_NONE, (bl_svg_style){0});
+            free(lab);
+        }
+    }
+    free(px), free(py), free(ord), free(cell_order), free(rank);
+    if (g->accuracy)
+        *caption = xprintf("For each condition cell (%zu) and each response (correct and error: the study codes "
+                           "responses by stimulus, so the boundaries are response categories), the 0.1, 0.3, 0.5, 0.7 "
+                           "and 0.9 RT quantiles are plotted against the probability of that response: correct "
+                           "responses right of 0.5, errors left. Points are observed, lines are the model's "
+                           "predictions (quantiles of the mixture of the cell's trial-wise predicted distributions); "
+                           "numbers name the cells (legend). Numbers in fit_quantiles.csv.",
+                           nc);
+    else
+        *caption = xprintf("For each condition cell (%zu) and each response (upper and lower boundary), the 0.1, 0.3, "
+                           "0.5, 0.7 and 0.9 RT quantiles are plotted against the probability of that response: points "
+                           "are observed, lines are the model's predictions (quantiles of the mixture of the cell's "
+                           "trial-wise predicted distributions)%s. Numbers in fit_quantiles.csv.",
+                           nc, nc > 1 ? "; numbers name the cells (legend)" : "");
     return fig;
 }
 

@@ -529,12 +529,34 @@ static int cmp_params(const void *a, const void *b)
     return 0;
 }
 
-/* Fill the two rows (upper, lower) of one model and group. `par`/`w` are scratch of size group n. */
-static bl_status fill_rows(const bl_trials *t, const bl_model_result *mr, const bl_goodness_group *gr,
+/* With stimulus coding, is trial `row`'s response the one its stimulus calls for? (Its drift sign
+ * says which boundary that is.) */
+static int answered_correctly(const bl_trials *t, size_t row)
+{
+    return (t->upper[row] != 0) == (t->drift_sign[row] > 0);
+}
+
+/* The same trial seen from its correct response: a trial whose stimulus points to the lower boundary
+ * is mirrored (drift -> -drift, start -> 1 - start), so that its upper boundary is the correct one.
+ * Mirror rule f_lower(t | v, w) = f_upper(t | -v, 1 - w) (Navarro & Fuss 2009, J. Math. Psych. 53; the contaminant
+ * splits evenly between the boundaries, so it is unchanged). */
+static void toward_correct(const bl_trials *t, const bl_goodness_group *gr, bl_wiener_params *par)
+{
+    for (size_t i = 0; i < gr->n; i++)
+        if (t->drift_sign[gr->rows[i]] < 0) {
+            par[i].value[BL_DRIFT] = -par[i].value[BL_DRIFT];
+            par[i].value[BL_START] = 1 - par[i].value[BL_START];
+        }
+}
+
+/* Fill the two rows (upper, lower; with `accuracy`: correct, error) of one model and group.
+ * `par`/`w` are scratch of size group n. */
+static bl_status fill_rows(const bl_trials *t, const bl_model_result *mr, const bl_goodness_group *gr, int accuracy,
                            bl_goodness_row *rows, bl_wiener_params *par, double *w, double *rts, bl_error *err)
 {
     /* Distinct parameter sets with their counts: baseline-style models collapse to one per cell. */
     for (size_t i = 0; i < gr->n; i++) par[i] = mr->predicted[gr->rows[i]];
+    if (accuracy) toward_correct(t, gr, par);
     qsort(par, gr->n, sizeof *par, cmp_params);
     size_t nu = 0;
     for (size_t i = 0; i < gr->n; i++) {
@@ -552,7 +574,8 @@ static bl_status fill_rows(const bl_trials *t, const bl_model_result *mr, const 
         row->trials = gr->n;
         size_t nr = 0;
         for (size_t i = 0; i < gr->n; i++)
-            if ((t->upper[gr->rows[i]] != 0) == upper) rts[nr++] = t->rt[gr->rows[i]];
+            if ((accuracy ? answered_correctly(t, gr->rows[i]) : t->upper[gr->rows[i]] != 0) == upper)
+                rts[nr++] = t->rt[gr->rows[i]];
         qsort(rts, nr, sizeof *rts, cmp_double);
         row->responses = nr;
         row->observed_share = gr->n ? (double)nr / (double)gr->n : NAN;
@@ -572,6 +595,7 @@ bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, co
     bl_goodness *g = calloc(1, sizeof *g);
     if (!g) return bl_error_set(err, BL_ERR_NOMEM, "out of memory for goodness of fit");
     g->set = set;
+    g->accuracy = study->trials.stimulus != NULL && trials->drift_sign != NULL;
     bl_status st = build_groups(study, trials, set, g, err);
     if (st != BL_OK) {
         free(g);
@@ -610,7 +634,8 @@ bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, co
             bl_goodness_row *rows = &g->rows[2 * task];
             rows[0].model = rows[1].model = m;
             rows[0].group = rows[1].group = gi;
-            task_st[task] = fill_rows(trials, &set->models[m], &g->groups[gi], rows, par, w, rts, &task_err[task]);
+            task_st[task] = fill_rows(trials, &set->models[m], &g->groups[gi], g->accuracy, rows, par, w, rts,
+                                      &task_err[task]);
         }
         free(par);
         free(w);
@@ -652,6 +677,12 @@ void bl_goodness_destroy(bl_goodness *g)
 }
 
 /* ---- CSV ---- */
+
+const char *bl_goodness_response_name(const bl_goodness *g, int upper)
+{
+    if (g && g->accuracy) return upper ? "correct" : "error";
+    return upper ? "upper" : "lower";
+}
 
 static void csv_num(FILE *f, double v)
 {
@@ -704,7 +735,7 @@ bl_status bl_goodness_write_csv(const bl_goodness *g, const char *path, bl_error
         csv_num(f, gr->regressor_low);
         csv_num(f, gr->regressor_high);
         csv_num(f, gr->regressor_mean);
-        fprintf(f, ",%s,%zu,%zu", r->upper ? "upper" : "lower", r->trials, r->responses);
+        fprintf(f, ",%s,%zu,%zu", bl_goodness_response_name(g, r->upper), r->trials, r->responses);
         csv_num(f, r->observed_share);
         csv_num(f, r->predicted_share);
         for (int k = 0; k < BL_GOODNESS_NQ; k++) {

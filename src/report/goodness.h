@@ -10,6 +10,11 @@
  *    of the regressor (quintiles; ties broken by table order).
  * A group holds the kept trials that every fitted model used.
  *
+ * With stimulus coding the boundaries are response categories and a group usually mixes both
+ * stimuli, so upper/lower shares say little (near 0.5); the rows are then correct and error
+ * responses instead: a trial's predicted distribution is taken at the boundary its stimulus calls
+ * for (the parameters mirrored when that is the lower one), and the correct row's share is accuracy.
+ *
  * Observed quantiles: Hyndman & Fan (1996) definition 7 (linear interpolation between order
  * statistics; numpy.quantile's default). Predicted quantiles: the quantile of the mixture, over the
  * group's trials, of each trial's predicted RT distribution given the boundary, found by Newton
@@ -45,7 +50,7 @@ typedef struct {
 typedef struct {
     size_t model;             /* index into the fit set's models */
     size_t group;             /* index into groups */
-    int upper;                /* 1 upper boundary, 0 lower */
+    int upper;                /* 1 upper boundary, 0 lower (accuracy: 1 correct, 0 error) */
     size_t trials, responses; /* trials in the group; of them, responses at this boundary */
     double observed_share, predicted_share;
     double observed_q[BL_GOODNESS_NQ];    /* seconds; NAN when responses == 0 */
@@ -61,7 +66,12 @@ typedef struct {
     bl_goodness_row *rows;    /* model-major, then group, then upper before lower */
     size_t n_binnings;
     char **binnings;          /* "regressor|by1,by2" per distinct slope binning */
+    int accuracy;             /* 1 with stimulus coding: rows are correct and error responses instead of
+                                 upper and lower boundary, so the share of the correct row is accuracy */
 } bl_goodness;
+
+/* The `boundary` value of fit_quantiles.csv: "upper"/"lower", or "correct"/"error" when g->accuracy. */
+BL_API const char *bl_goodness_response_name(const bl_goodness *g, int upper);
 
 /* Index of the binning used for a slope (its regressor and `by` columns), or -1. */
 BL_API int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope);

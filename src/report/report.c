@@ -70,6 +70,10 @@ static const char CSS[] =
     ".scroll{overflow-x:auto}"
     "th{background:#f2f2f2}td.t,th.t{text-align:left}"
     "tr.best td{background:#e6f1f8;font-weight:bold}"
+    /* long model names wrap (at hyphens too) so the comparison table fits a 1300 px window */
+    "table.cmp td.t{white-space:normal;overflow-wrap:anywhere;min-width:9em;max-width:16em}"
+    "table.cmp td,table.cmp th{padding:.25em .45em}"
+    "table.cmp th{font-size:.95em}"
     "dl.kv{display:grid;grid-template-columns:max-content auto;gap:.15em 1.2em}dl.kv dt{font-weight:bold}"
     "dl.kv dd{margin:0}"
     "figure{margin:1.2em 0;overflow-x:auto}figure svg{max-width:100%;height:auto}"
@@ -240,7 +244,7 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
         return;
     }
     int best = bl_figures_best_model(set);
-    fputs("<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
+    fputs("<div class=\"scroll\"><table class=\"cmp\"><tr><th class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
           "<th>AIC</th><th>BIC</th><th>&#916;AIC</th><th>&#916;BIC</th><th>AIC weight</th>"
           "<th class=\"t\">LRT against</th><th>statistic</th><th>df</th><th>p</th><th>converged</th></tr>\n",
           f);
@@ -406,13 +410,18 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
 static void goodness_section(FILE *f, const bl_fit_set *set, const bl_goodness *g)
 {
     if (!set || !g) return;
-    fputs("<h2 id=\"goodness\">Goodness of fit</h2>\n<p>Distance between observed and predicted RT quantiles "
-          "(0.1&#8211;0.9) and choice shares, averaged over groups weighted by their responses (quantiles) or "
-          "trials (shares). All numbers per group are in <code>fit_quantiles.csv</code>.</p>\n"
-          "<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>quantiles, condition cells (ms)</th>"
-          "<th>quantiles, regressor bins (ms)</th><th>shares, condition cells (% points)</th>"
-          "<th>shares, regressor bins (% points)</th></tr>\n",
-          f);
+    /* with stimulus coding the rows are correct and error responses, so the share is accuracy */
+    const char *share = g->accuracy ? "accuracy" : "shares";
+    fprintf(f, "<h2 id=\"goodness\">Goodness of fit</h2>\n<p>Distance between observed and predicted RT quantiles "
+            "(0.1&#8211;0.9) and %s, averaged over groups weighted by their responses (quantiles) or "
+            "trials (%s).%s All numbers per group are in <code>fit_quantiles.csv</code>.</p>\n"
+            "<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>quantiles, condition cells (ms)</th>"
+            "<th>quantiles, regressor bins (ms)</th><th>%s, condition cells (%% points)</th>"
+            "<th>%s, regressor bins (%% points)</th></tr>\n",
+            g->accuracy ? "accuracy (share of correct responses)" : "choice shares", share,
+            g->accuracy ? " The study codes responses by stimulus, so quantiles are of correct and of error responses."
+                        : "",
+            share, share);
     for (size_t m = 0; m < set->n_models; m++) {
         double qs[2] = {0, 0}, qw[2] = {0, 0}, ss[2] = {0, 0}, sw[2] = {0, 0};
         for (size_t r = 0; r < g->n_rows; r++) {

@@ -8,7 +8,6 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 static cJSON *num_or_null(double x) { return isfinite(x) ? cJSON_CreateNumber(x) : cJSON_CreateNull(); }
 
@@ -294,13 +293,72 @@ bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, b
     return bl_outfile_commit(of, err);
 }
 
-bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_trials *trials, bl_error *err)
+/* Trial-table columns carried into trials.csv: the condition columns of the fitted models (`per` and
+ * slope `by`, participant column left out, stimulus column added with stimulus coding), then their
+ * slope regressors, each once in order of first appearance. Names equal to a fixed column are left
+ * out (they would make the header ambiguous). cols[] receives table indices; returns the count. */
+static const char *const trials_fixed_cols[] = {"model", "participant", "trial", "threshold", "drift", "nondecision",
+                                                "start", "p_upper", "mean_rt", "log_likelihood"};
+
+static void trials_add_col(const bl_trials *t, const char *name, int *cols, size_t *n, size_t cap)
 {
+    for (size_t k = 0; k < sizeof trials_fixed_cols / sizeof *trials_fixed_cols; k++)
+        if (strcmp(name, trials_fixed_cols[k]) == 0) return;
+    int c = bl_table_find(t->table, name);
+    if (c < 0 || *n == cap) return;
+    for (size_t k = 0; k < *n; k++)
+        if (cols[k] == c) return;
+    cols[(*n)++] = c;
+}
+
+static size_t trials_extra_cols(const bl_study *s, const bl_fit_set *set, const bl_trials *t, int *cols, size_t cap)
+{
+    size_t n = 0;
+    if (!s || !t->table) return 0;
+    for (int pass = 0; pass < 2; pass++) { /* conditions first, then regressors */
+        for (size_t m = 0; m < set->n_models; m++)
+            for (size_t k = 0; k < s->n_models; k++) {
+                if (strcmp(s->models[k].name, set->models[m].name) != 0) continue;
+                for (int p = 0; p < BL_NPARAM; p++) {
+                    const bl_param_spec *ps = &s->models[k].param[p];
+                    if (ps->is_fixed) continue;
+                    for (size_t i = 0; pass == 0 && i < ps->n_per; i++)
+                        if (strcmp(ps->per[i], s->trials.participant) != 0)
+                            trials_add_col(t, ps->per[i], cols, &n, cap);
+                    for (size_t j = 0; j < ps->n_slopes; j++) {
+                        const bl_slope_spec *sl = &ps->slopes[j];
+                        if (pass == 1) trials_add_col(t, sl->regressor, cols, &n, cap);
+                        for (size_t i = 0; pass == 0 && i < sl->n_by; i++)
+                            if (strcmp(sl->by[i], s->trials.participant) != 0)
+                                trials_add_col(t, sl->by[i], cols, &n, cap);
+                    }
+                }
+            }
+        if (pass == 0 && s->trials.stimulus) trials_add_col(t, s->trials.stimulus, cols, &n, cap);
+    }
+    return n;
+}
+
+bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_study *study,
+                                  const bl_trials *trials, bl_error *err)
+{
+    size_t cap = trials->table ? trials->table->n_cols : 0;
+    int *extra = malloc((cap ? cap : 1) * sizeof *extra);
+    if (!extra) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing %s", path);
+    size_t n_extra = trials_extra_cols(study, set, trials, extra, cap);
     bl_outfile *of;
     bl_status st = bl_outfile_open(path, &of, err);
-    if (st) return st;
+    if (st) {
+        free(extra);
+        return st;
+    }
     FILE *f = bl_outfile_stream(of);
-    fputs("model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,log_likelihood\n", f);
+    fputs("model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,log_likelihood", f);
+    for (size_t k = 0; k < n_extra; k++) {
+        fputc(',', f);
+        csv_text(f, trials->table->cols[extra[k]].name);
+    }
+    fputc('\n', f);
     for (size_t m = 0; m < set->n_models; m++) {
         const bl_model_result *r = &set->models[m];
         for (size_t i = 0; i < r->n_rows && i < trials->n; i++) {
@@ -318,36 +376,14 @@ bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const
                 fputc(',', f);
                 csv_num(f, v[j]);
             }
+            /* as the table holds them: conditions as read, band regressors %.17g after scale/standardize */
+            for (size_t k = 0; k < n_extra; k++) {
+                fputc(',', f);
+                csv_text(f, trials->table->cols[extra[k]].text[i]);
+            }
             fputc('\n', f);
         }
     }
+    free(extra);
     return bl_outfile_commit(of, err);
-}
-
-bl_status bl_results_write_all(const char *dir, const bl_fit_set *set, const bl_trials *trials,
-                               const cJSON *provenance, const bl_warnings *warnings, int force, bl_error *err)
-{
-    static const char *names[] = {"fits.json", "comparison.csv", "trials.csv"};
-    char *path[3] = {NULL, NULL, NULL};
-    bl_status st = bl_mkdir_p(dir, err);
-    if (st) return st;
-    for (int i = 0; i < 3; i++)
-        if (!(path[i] = bl_path_join(dir, names[i]))) {
-            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-            goto done;
-        }
-    if (!force)
-        for (int i = 0; i < 3; i++) {
-            struct stat sb;
-            if (stat(path[i], &sb) == 0) {
-                st = bl_error_set(err, BL_ERR_EXISTS, "%s exists (use --force to replace it)", path[i]);
-                goto done;
-            }
-        }
-    if ((st = bl_results_write_fits(path[0], set, provenance, warnings, err))) goto done;
-    if ((st = bl_results_write_comparison(path[1], set, err))) goto done;
-    st = bl_results_write_trials(path[2], set, trials, err);
-done:
-    for (int i = 0; i < 3; i++) free(path[i]);
-    return st;
 }

@@ -13,7 +13,11 @@
  *   lrt_against (the model it extends, NA when none), lrt_nested ("yes", "not nested", "not fitted",
  *   NA), lrt_statistic, lrt_df, lrt_p (NA unless nested)
  * trials.csv: model, participant, trial, threshold, drift, nondecision, start, p_upper, mean_rt,
- *   log_likelihood; one row per used trial and model, models in study order, trials in table order.
+ *   log_likelihood, then the trial's condition columns (the fitted models' `per` and slope `by`
+ *   columns, participant left out, plus the stimulus column with stimulus coding) and regressor
+ *   columns (the slopes' regressors), each once in order of first appearance, values as the trial
+ *   table holds them (band regressors after scale and standardize). One row per used trial and
+ *   model, models in study order, trials in table order. `study` may be NULL (no extra columns).
  */
 #ifndef BL_RESULTS_H
 #define BL_RESULTS_H
@@ -32,13 +36,8 @@ BL_API cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenanc
 BL_API bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
                                        const bl_warnings *warnings, bl_error *err);
 BL_API bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, bl_error *err);
-BL_API bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_trials *trials,
-                                         bl_error *err);
+BL_API bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_study *study,
+                                         const bl_trials *trials, bl_error *err);
 
-/* All three into folder `dir` (created if missing). Existing files are replaced only with
- * force != 0, else BL_ERR_EXISTS naming the file. */
-BL_API bl_status bl_results_write_all(const char *dir, const bl_fit_set *set, const bl_trials *trials,
-                                      const cJSON *provenance, const bl_warnings *warnings, int force,
-                                      bl_error *err);
 
 #endif

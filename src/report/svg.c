@@ -975,13 +975,84 @@ static void render_key(FILE *f, const legend_t *l, double x, double y)
     }
 }
 
+/* The legend column is at most LEGEND_TEXT_W pixels of text wide; longer labels wrap onto more rows
+ * (never cut), preferring a break after ';', ',' or at a space. */
+static const double LEGEND_TEXT_W = 320, LEGEND_KEY_W = 30;
+
+static size_t legend_room_chars(const legend_t *l)
+{
+    double room = LEGEND_TEXT_W - (l->heading ? 0 : LEGEND_KEY_W);
+    size_t n = (size_t)(room / text_width("x", FS_LEGEND));
+    return n > 8 ? n : 8;
+}
+
+/* Bytes of the next line of `s` holding at most `max_chars` characters (whole UTF-8 sequences). */
+static size_t legend_next_line(const char *s, size_t max_chars)
+{
+    size_t chars = 0, i = 0, brk = 0;
+    while (s[i]) {
+        size_t next = i + 1;
+        while (((unsigned char)s[next] & 0xC0) == 0x80) next++;
+        if (chars == max_chars) return brk ? brk : i;
+        if (s[i] == ';' || s[i] == ',') brk = next;
+        else if (s[i] == ' ' && i > 0) brk = i;
+        chars++;
+        i = next;
+    }
+    return i;
+}
+
+static size_t legend_rows(const legend_t *l)
+{
+    size_t rows = 0, max = legend_room_chars(l);
+    const char *s = l->label ? l->label : "";
+    do {
+        s += legend_next_line(s, max);
+        while (*s == ' ') s++;
+        rows++;
+    } while (*s);
+    return rows;
+}
+
 static double legend_width(const bl_svg *fig)
 {
     if (fig->n_legend == 0) return 0;
     double w = 0;
-    for (size_t i = 0; i < fig->n_legend; i++)
-        w = fmax(w, text_width(fig->legend[i].label, FS_LEGEND) + (fig->legend[i].heading ? 0 : 30));
-    return fmin(w, 320) + 24;
+    for (size_t i = 0; i < fig->n_legend; i++) {
+        const legend_t *l = &fig->legend[i];
+        double key = l->heading ? 0 : LEGEND_KEY_W;
+        w = fmax(w, fmin(text_width(l->label, FS_LEGEND), LEGEND_TEXT_W - key) + key);
+    }
+    return w + 24;
+}
+
+static size_t legend_total_rows(const bl_svg *fig)
+{
+    size_t n = 0;
+    for (size_t i = 0; i < fig->n_legend; i++) n += legend_rows(&fig->legend[i]);
+    return n;
+}
+
+/* One legend entry's text from (x, y), wrapped; returns the rows used. */
+static size_t render_legend_text(FILE *f, const legend_t *l, double x, double y)
+{
+    size_t rows = 0, max = legend_room_chars(l);
+    const char *s = l->label ? l->label : "";
+    do {
+        size_t len = legend_next_line(s, max);
+        char *line = malloc(len + 1);
+        if (line) {
+            memcpy(line, s, len);
+            line[len] = 0;
+        }
+        text_el(f, x, y + LEGEND_ROW * (double)rows + 4, FS_LEGEND, NULL, l->heading ? "font-weight=\"bold\"" : NULL,
+                line ? line : "");
+        free(line);
+        s += len;
+        while (*s == ' ') s++;
+        rows++;
+    } while (*s);
+    return rows;
 }
 
 static void render_to(FILE *f, const bl_svg *fig)
@@ -989,7 +1060,7 @@ static void render_to(FILE *f, const bl_svg *fig)
     double lw = legend_width(fig);
     double width = fig->cols * fig->pw + lw;
     double height = TITLE_H + fig->rows * fig->ph;
-    double lh = TITLE_H + 14 + LEGEND_ROW * (double)fig->n_legend + 10;
+    double lh = TITLE_H + 14 + LEGEND_ROW * (double)legend_total_rows(fig) + 10;
     if (lh > height) height = lh;
     fputs("<svg xmlns=\"http://www.w3.org/2000/svg\" version=\"1.1\" width=\"", f);
     num(f, width), fputs("\" height=\"", f), num(f, height), fputs("\" viewBox=\"0 0 ", f);
@@ -1011,14 +1082,10 @@ static void render_to(FILE *f, const bl_svg *fig)
     if (fig->n_legend) {
         double x = fig->cols * fig->pw + 8, y = TITLE_H + 14;
         fprintf(f, "<g id=\"%s-legend\">\n", fig->id);
-        for (size_t i = 0; i < fig->n_legend; i++, y += LEGEND_ROW) {
+        for (size_t i = 0; i < fig->n_legend; i++) {
             const legend_t *l = &fig->legend[i];
-            if (l->heading) {
-                text_el(f, x, y + 4, FS_LEGEND, NULL, "font-weight=\"bold\"", l->label);
-                continue;
-            }
-            render_key(f, l, x, y);
-            text_el(f, x + 30, y + 4, FS_LEGEND, NULL, NULL, l->label);
+            if (!l->heading && l->key != BL_SVG_KEY_NONE) render_key(f, l, x, y);
+            y += LEGEND_ROW * (double)render_legend_text(f, l, l->heading ? x : x + LEGEND_KEY_W, y);
         }
         fputs("</g>\n", f);
     }

@@ -91,8 +91,10 @@ BL_API void bl_svg_text(bl_svg_panel *p, double x, double y, double dy, const ch
  * axes. */
 BL_API void bl_svg_note(bl_svg_panel *p, const char *text);
 
-typedef enum { BL_SVG_KEY_LINE = 0, BL_SVG_KEY_POINT, BL_SVG_KEY_LINE_POINT, BL_SVG_KEY_BOX } bl_svg_key;
-/* A legend entry (shown in the legend column, in the order added). */
+typedef enum { BL_SVG_KEY_LINE = 0, BL_SVG_KEY_POINT, BL_SVG_KEY_LINE_POINT, BL_SVG_KEY_BOX, BL_SVG_KEY_NONE } bl_svg_key;
+/* A legend entry (shown in the legend column, in the order added; BL_SVG_KEY_NONE: text only,
+ * aligned with the other entries). Labels wider than the legend column (320 px of text) wrap onto
+ * more rows, breaking after ';' or ',' or at a space when they can; nothing is cut. */
 BL_API void bl_svg_legend(bl_svg *fig, const char *label, bl_svg_key key, bl_svg_style s);
 /* A legend heading (bold, no key). */
 BL_API void bl_svg_legend_heading(bl_svg *fig, const char *text);

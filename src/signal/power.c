@@ -73,7 +73,7 @@ void bl_power_result_destroy(bl_power_result *r)
     free(r->recordings);
     free(r->freq);
     free(r->psd);
-    free(r->band_power);
+    free(r->band_power); /* artifact_power lives in the same block */
     free(r->unit);
     free(r);
 }
@@ -230,17 +230,17 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
         bl_montage_apply(m, ts->raw, L, info->channels, s->recordings.gain, ts->x);
         double *psd = r->psd + row * nf;
         const char *why = artifact(s, info, m, ts->raw, ts->x, L);
-        if (why) {
-            reason[row] = why;
-            continue;
-        }
+        if (why) reason[row] = why;
+        if (why && strcmp(why, "artifact: non-finite") == 0) continue;
         if ((it->status = bl_welch_compute(plan, ts->work, ts->x, L, psd, &e))) {
             bl_error_set(&it->err, it->status, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
             return;
         }
+        /* a flagged trial's power is kept apart: power.csv shows it, the regressors never see it */
+        double *dest = why ? r->artifact_power : r->band_power;
         for (size_t b = 0; b < r->n_bands; b++) {
             const bl_power_band *band = &r->bands[b];
-            r->band_power[row * r->n_bands + b] = bl_band_power(psd, r->df, band->first_bin, band->last_bin, band->used);
+            dest[row * r->n_bands + b] = bl_band_power(psd, r->df, band->first_bin, band->last_bin, band->used);
         }
     }
 }
@@ -388,6 +388,37 @@ static bl_status parse_onset(const bl_trials *t, int col, size_t i, const char *
     return BL_OK;
 }
 
+/* A window whose place depends on the RT makes power depend on the RT: aligned to the response, a
+ * window that starts before the stimulus onset covers more pre-stimulus signal the faster the
+ * response; aligned to the onset, a window that ends after the response holds response-related
+ * signal only on fast trials. Either way power correlates with RT and can fake threshold or drift
+ * slopes (docs/study-file.md, "Windows and response times"). Counts the windows and warns. */
+static void warn_window_confound(const bl_study *s, const bl_trials *t, const job *jobs, size_t n_jobs,
+                                 bl_power_result *r, bl_warnings *warn)
+{
+    int to_response = s->power.align == BL_ALIGN_RESPONSE;
+    size_t count = 0;
+    for (size_t k = 0; k < n_jobs; k++) {
+        double rt = t->rt[jobs[k].row];
+        if (!isfinite(rt)) continue;
+        /* window relative to the onset: [from, to) + rt when aligned to the response */
+        if (to_response ? rt + s->power.from < 0 : s->power.to > rt) count++;
+    }
+    r->n_window_confounds = count;
+    if (!count) return;
+    if (to_response)
+        bl_warnings_add(warn, "power.window (aligned to the response, from %.6g s) begins before the stimulus onset in "
+                        "%.1f%% of windows (%zu of %zu, every RT below %.6g s): window position follows RT, so band power "
+                        "can follow RT and fake threshold or drift slopes; see docs/study-file.md, \"Windows and response "
+                        "times\"", s->power.from, 100.0 * (double)count / (double)n_jobs, count, n_jobs, -s->power.from);
+    else
+        bl_warnings_add(warn, "power.window (aligned to the onset, to %.6g s) reaches past the response in %.1f%% of "
+                        "windows (%zu of %zu, every RT below %.6g s): the window then holds response-related signal on "
+                        "fast trials only, so band power can follow RT and fake threshold or drift slopes; see "
+                        "docs/study-file.md, \"Windows and response times\"", s->power.to,
+                        100.0 * (double)count / (double)n_jobs, count, n_jobs, s->power.to);
+}
+
 bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_power_result **out, bl_warnings *warn,
                            bl_error *err)
 {
@@ -485,6 +516,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     r->nfft = r->nperseg;
     for (size_t k = 0; k < n_jobs; k++) jobs[k].start = llround(align[jobs[k].row] * fs) + a;
     free(align);
+    warn_window_confound(s, t, jobs, n_jobs, r, warn);
 
     if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, (bl_welch_detrend)s->power.detrend,
                                    s->power.median ? BL_WELCH_MEDIAN : BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, err)))
@@ -541,10 +573,12 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
                             "detrending biases the PSD low", bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
     }
     if (!(r->psd = malloc((n ? n : 1) * r->n_freqs * sizeof *r->psd)) ||
-        !(r->band_power = malloc((n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power)))
+        !(r->band_power = malloc(2 * (n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power)))
         goto nomem;
+    /* the second half of the block: flagged trials' power, which the regressors never see */
+    r->artifact_power = r->band_power + (n ? n : 1) * (r->n_bands ? r->n_bands : 1);
     for (size_t k = 0; k < n * r->n_freqs; k++) r->psd[k] = NAN;
-    for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = NAN;
+    for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = r->artifact_power[k] = NAN;
 
     /* work items: chunks of trials of one recording, in a fixed order */
     qsort(jobs, n_jobs, sizeof *jobs, job_cmp);
@@ -719,8 +753,10 @@ bl_status bl_power_write_csv(const bl_study *s, const bl_trials *t, const bl_pow
             snprintf(pn, sizeof pn, "%s_power", r->bands[b].name);
             c_raw = bl_table_find(t->table, pn);
             c_val = bl_table_find(t->table, r->bands[b].name);
+            double raw = c_raw >= 0 ? t->table->cols[c_raw].num[i] : NAN;
+            if (!isfinite(raw) && r->artifact_power) raw = r->artifact_power[i * nb + b];
             fputc(',', f);
-            put_number(f, c_raw >= 0 ? t->table->cols[c_raw].num[i] : NAN);
+            put_number(f, raw);
             fputc(',', f);
             put_number(f, c_val >= 0 ? t->table->cols[c_val].num[i] : NAN);
         }

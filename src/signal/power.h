@@ -48,6 +48,11 @@ typedef struct {
     size_t n_trials;             /* = trials->n */
     double *psd;                 /* n_trials x n_freqs, row-major, unit^2/Hz; NAN rows for excluded trials */
     double *band_power;          /* n_trials x n_bands, raw unit^2; NAN for excluded trials */
+    double *artifact_power;      /* n_trials x n_bands, raw unit^2 of artifact-flagged trials (NAN for the
+                                    rest and for non-finite windows); written to power.csv only. Points
+                                    into band_power's allocation (not freed on its own) */
+    size_t n_window_confounds;   /* windows that reach before the onset (aligned to the response) or past
+                                    the response (aligned to the onset) */
     size_t n_recordings;
     bl_power_recording *recordings;
     char *unit;                  /* the study's unit; PSD is unit^2/Hz, band power unit^2 */
@@ -64,7 +69,8 @@ BL_API bl_status bl_power_compute(const bl_study *study, bl_trials *trials, int 
 BL_API void bl_power_result_destroy(bl_power_result *r);
 
 /* Write power.csv (columns: participant, trial, the trial table's columns, <band>_power and <band>
- * per band, artifact). Atomic. Missing values "NA", numbers %.17g. */
+ * per band, artifact). Atomic. Missing values "NA", numbers %.17g. An artifact-flagged trial keeps
+ * its raw <band>_power (from artifact_power); its regressor <band> is NA. */
 BL_API bl_status bl_power_write_csv(const bl_study *study, const bl_trials *trials,
                                     const bl_power_result *result, const char *path, bl_error *err);
 

@@ -44,7 +44,7 @@ check "theta-threshold is nested in baseline, df 2" "grep -q '^theta-threshold,8
 check "drift-by-animal is not nested" "grep -q '^drift-by-animal,.*,baseline,not nested,NA,NA,NA$' results/comparison.csv"
 check "trials.csv: header + 3 x 750 rows" "[ \$(wc -l < results/trials.csv) -eq 2251 ]"
 check "trials.csv header" \
-  "head -1 results/trials.csv | grep -qx 'model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,log_likelihood'"
+  "head -1 results/trials.csv | grep -qx 'model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,log_likelihood,context,difficulty,theta'"
 check "summary names the models" "grep -q 'theta-threshold' out.txt && grep -Eq '^  theta-threshold .* vs baseline: chi2' out.txt"
 check "fits.json has coefficients with CIs" "grep -q '\"ci_low\"' results/fits.json && grep -q '\"term\":[[:space:]]*\"theta\"' results/fits.json"
 if [ -x /usr/bin/python3 ]; then

@@ -53,7 +53,7 @@ check(h[:2] == ["participant", "trial"] and all(c in h for c in ["theta_power", 
 check(header(r + "/comparison.csv") == ["name", "parameters", "trials", "log_likelihood", "aic", "bic", "delta_aic",
       "delta_bic", "aic_weight", "lrt_against", "lrt_nested", "lrt_statistic", "lrt_df", "lrt_p"], "comparison.csv columns")
 check(header(r + "/trials.csv") == ["model", "participant", "trial", "threshold", "drift", "nondecision", "start",
-      "p_upper", "mean_rt", "log_likelihood"], "trials.csv columns")
+      "p_upper", "mean_rt", "log_likelihood", "context", "difficulty", "theta", "beta"], "trials.csv columns")
 q = header(r + "/fit_quantiles.csv")
 want_q = ["model", "condition", "regressor", "bin", "regressor_low", "regressor_high", "regressor_mean", "boundary",
           "trials", "responses", "observed_share", "predicted_share"]

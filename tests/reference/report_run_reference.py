@@ -7,7 +7,8 @@ report area's files on real pipeline output.
   regressors) and trials.csv (which trials each model used, their predicted p_upper):
   trials, responses and observed share by counting; observed quantiles by numpy.quantile (default
   'linear' = Hyndman & Fan 1996 definition 7); regressor quintiles by a stable numpy argsort split
-  into 5 equal-count groups; predicted_share as the mean of trials.csv's p_upper.
+  into 5 equal-count groups; predicted_share as the mean of trials.csv's p_upper (with stimulus
+  coding: of each trial's probability of the response its stimulus calls for, rows correct/error).
 Environment: BANDLINK (the binary), BL_SOURCE_ROOT. Exit 77 when numpy is missing.
 """
 import csv
@@ -79,6 +80,10 @@ def main():
         scale = 0.001 if tr.get("rt_unit") == "ms" else 1.0
         rt = np.array([float(r[tr["rt"]]) * scale if r[tr["rt"]] not in ("", "NA") else np.nan for r in power])
         upper = np.array([r[tr["response"]] in tr["upper"] for r in power])
+        # Stimulus coding: rows are correct / error responses; a trial is correct when its response
+        # category is the one its stimulus calls for (docs/report.md).
+        stim = tr.get("stimulus")
+        toward_upper = np.array([r[stim] in tr["upper"] for r in power]) if stim else np.ones(len(power), bool)
         used, pup = {}, {}
         for r in csv.DictReader(open(os.path.join(res, "trials.csv"))):
             i = key[(r["participant"], r["trial"])]
@@ -106,11 +111,15 @@ def main():
         bad = []
         for r in rows:
             g = members(r["condition"], r["regressor"], r["bin"])
-            want_up = r["boundary"] == "upper"
-            resp = np.array([rt[i] for i in g if upper[i] == want_up])
+            want_up = r["boundary"] in ("upper", "correct")
+            check_coding = r["boundary"] in (("correct", "error") if stim else ("upper", "lower"))
+            if not check_coding:
+                bad.append("boundary %s under %s coding" % (r["boundary"], "stimulus" if stim else "accuracy"))
+            hit = (lambda i: upper[i] == toward_upper[i]) if stim else (lambda i: upper[i])
+            resp = np.array([rt[i] for i in g if hit(i) == want_up])
             ok = int(r["trials"]) == len(g) and int(r["responses"]) == len(resp)
             ok = ok and close(float(r["observed_share"]), len(resp) / len(g))
-            ps = np.mean([pup[(r["model"], i)] for i in g])
+            ps = np.mean([pup[(r["model"], i)] if toward_upper[i] else 1 - pup[(r["model"], i)] for i in g])
             ok = ok and close(float(r["predicted_share"]), ps if want_up else 1 - ps, 1e-9)
             for p in (10, 30, 50, 70, 90):
                 got = r["observed_q%d" % p]
