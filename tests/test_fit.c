@@ -425,9 +425,15 @@ int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
     static const harness_case cases[] = {
-        HARNESS_ENTRY(information_inverse), HARNESS_ENTRY(ez_round_trip),       HARNESS_ENTRY(ez_agreement),
-        HARNESS_ENTRY(regression_recovery), HARNESS_ENTRY(nelder_mead_optimum), HARNESS_ENTRY(warm_starts),
-        HARNESS_ENTRY(thread_invariance),   HARNESS_ENTRY(separate_mode),       HARNESS_ENTRY(separate_heterogeneous),
+        HARNESS_ENTRY(information_inverse),
+        HARNESS_ENTRY(ez_round_trip),
+        HARNESS_ENTRY(ez_agreement),
+        HARNESS_ENTRY(regression_recovery),
+        HARNESS_ENTRY(nelder_mead_optimum),
+        HARNESS_ENTRY(warm_starts),
+        HARNESS_ENTRY(thread_invariance),
+        HARNESS_ENTRY(separate_mode),
+        HARNESS_ENTRY(separate_heterogeneous),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }
