@@ -1,6 +1,6 @@
 /* Test harness for the C unit tests (tests/test_*.c).
  *
- * A test program is a set of named cases, each runnable alone:
+ * A test program is a list of named cases, each runnable alone:
  *
  *     HARNESS_CASE(inverse_2x2)
  *     {
@@ -9,7 +9,10 @@
  *
  *     int main(int argc, char **argv)
  *     {
- *         static const harness_case cases[] = {HARNESS_ENTRY(inverse_2x2), HARNESS_ENTRY(ez_round_trip)};
+ *         static const harness_case cases[] = {
+ *             HARNESS_ENTRY(inverse_2x2),
+ *             HARNESS_ENTRY(ez_round_trip),
+ *         };
  *         return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
  *     }
  *
@@ -20,7 +23,8 @@
  *
  * A case the list forgets is an unused static function: -Werror stops the build, so no case is silently skipped.
  * Work shared by several cases (an expensive fit, say) goes in a static function that computes it once and
- * caches it; free it with atexit() so ASan sees no leak. A case never depends on another having run.
+ * caches it (see the fixtures of test_fit.c, test_power.c); free it with atexit() so ASan sees no leak. A case
+ * never depends on another having run. A new program: tests/test_NAME.c plus 'NAME' in tests/meson.build.
  *
  * Checks (each prints one PASS/FAIL line; name the outside source of the expected value in a comment beside it):
  *     check_rel(got, want, tol, fmt, ...)    |got - want| <= tol * |want| (or got == want, infinities included)
@@ -30,8 +34,9 @@
  *     check_true(cond, fmt, ...)             a condition
  * A failing check also prints file:line, the expressions, the values and the tolerance. Every check returns 1
  * when it passed, so a case can stop early: `if (!check_true(p != NULL, "allocated")) return;`.
- * The last line is "N checks passed, M failed" followed by the failed cases; exit 1 on any failure, 2 on bad usage.
- * Programs not yet split into cases call the checks from main and end with `return harness_summary();`. */
+ * The last line is "N checks passed, M failed", then one line per failed case with the command that reruns it;
+ * exit 1 on any failure, 2 on bad usage. harness_summary() prints that tally for a program without cases.
+ * tests/harness_demo.c shows every check failing (tests/cli/harness_selftest.sh runs it). */
 #ifndef BL_TEST_HARNESS_H
 #define BL_TEST_HARNESS_H
 
@@ -63,9 +68,8 @@ static inline int harness_record(int ok, const char *file, int line, const char 
     return ok;
 }
 
-#define check_rel(got, want, tol, ...)                                                                             \
-    harness_check_rel(__FILE__, __LINE__, "check_rel(" #got ", " #want ", " #tol ")", (got), (want), (tol),         \
-                      __VA_ARGS__)
+#define check_rel(got, want, tol, ...)                                                                                 \
+    harness_check_rel(__FILE__, __LINE__, "check_rel(" #got ", " #want ", " #tol ")", (got), (want), (tol), __VA_ARGS__)
 static inline int harness_check_rel(const char *file, int line, const char *expr, double got, double want, double tol,
                                     const char *fmt, ...) HARNESS_PRINTF(7, 8);
 static inline int harness_check_rel(const char *file, int line, const char *expr, double got, double want, double tol,
@@ -82,9 +86,8 @@ static inline int harness_check_rel(const char *file, int line, const char *expr
     return ok;
 }
 
-#define check_abs(got, want, tol, ...)                                                                             \
-    harness_check_abs(__FILE__, __LINE__, "check_abs(" #got ", " #want ", " #tol ")", (got), (want), (tol),         \
-                      __VA_ARGS__)
+#define check_abs(got, want, tol, ...)                                                                                 \
+    harness_check_abs(__FILE__, __LINE__, "check_abs(" #got ", " #want ", " #tol ")", (got), (want), (tol), __VA_ARGS__)
 static inline int harness_check_abs(const char *file, int line, const char *expr, double got, double want, double tol,
                                     const char *fmt, ...) HARNESS_PRINTF(7, 8);
 static inline int harness_check_abs(const char *file, int line, const char *expr, double got, double want, double tol,
@@ -100,8 +103,8 @@ static inline int harness_check_abs(const char *file, int line, const char *expr
     return ok;
 }
 
-#define check_int(got, want, ...)                                                                                  \
-    harness_check_int(__FILE__, __LINE__, "check_int(" #got ", " #want ")", (long long)(got), (long long)(want),    \
+#define check_int(got, want, ...)                                                                                      \
+    harness_check_int(__FILE__, __LINE__, "check_int(" #got ", " #want ")", (long long)(got), (long long)(want),       \
                       __VA_ARGS__)
 static inline int harness_check_int(const char *file, int line, const char *expr, long long got, long long want,
                                     const char *fmt, ...) HARNESS_PRINTF(6, 7);
@@ -117,7 +120,7 @@ static inline int harness_check_int(const char *file, int line, const char *expr
     return got == want;
 }
 
-#define check_str(got, want, ...)                                                                                  \
+#define check_str(got, want, ...)                                                                                      \
     harness_check_str(__FILE__, __LINE__, "check_str(" #got ", " #want ")", (got), (want), __VA_ARGS__)
 static inline int harness_check_str(const char *file, int line, const char *expr, const char *got, const char *want,
                                     const char *fmt, ...) HARNESS_PRINTF(6, 7);
@@ -181,7 +184,9 @@ typedef struct {
 } harness_case;
 
 #define HARNESS_CASE(name) static void harness_case_##name(void)
+/* clang-format off */
 #define HARNESS_ENTRY(name) {#name, harness_case_##name}
+/* clang-format on */
 #define HARNESS_COUNT(cases) (sizeof(cases) / sizeof((cases)[0]))
 
 static inline int harness_usage(const char *prog, int status) HARNESS_UNUSED;

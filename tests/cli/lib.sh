@@ -19,7 +19,9 @@
 #   finish                        print "N passed, N failed"; exit 1 on any failure (or when nothing was checked)
 #   $tmp                          a fresh temporary directory, removed when the script exits
 # LINE is where the script called the helper (for a helper inside one of the script's own functions, the line
-# in that function, then "from LINE" in the script body).
+# in that function, then "from LINE" in the script body). The counts live in this shell: a pass/fail inside a
+# pipeline (`cmd | while read ...; do pass ...; done`) runs in a subshell and is lost; loop with
+# `while ...; done < <(cmd)` instead. A new script: tests/cli/NAME.sh plus 'NAME' in a list of tests/meson.build.
 
 bl_passed=0
 bl_failed=0
