@@ -31,12 +31,8 @@ static char *slurp(const char *path)
     return b;
 }
 
-int main(void)
+HARNESS_CASE(akaike_weights_hand_example)
 {
-    gsl_set_error_handler_off();
-    bl_error err = {0};
-    bl_warnings warn = {0};
-
     /* Akaike weights of a hand example: w_i = exp(-dAIC_i/2) / sum_j exp(-dAIC_j/2) (Burnham & Anderson 2002,
      * "Model Selection and Multimodel Inference", section 2.9; cited from memory). */
     const double aic[3] = {100, 102, 110};
@@ -46,12 +42,52 @@ int main(void)
     check_rel(w[0], 1 / z, 1e-15, "Akaike weight of the best model");
     check_rel(w[1], exp(-1) / z, 1e-15, "Akaike weight dAIC = 2");
     check_rel(w[2], exp(-5) / z, 1e-15, "Akaike weight dAIC = 10");
+}
 
+/* Three models (baseline, theta-threshold with the true slope, drift-by-participant) fitted once to simulated
+ * trials with 19 permutations, seed 5, 2 threads; freed at exit. */
+static bl_trials *t;
+static bl_model_spec models[3];
+static bl_slope_spec ts = {"theta", col_context, 1};
+static bl_fit_set *set;
+
+static void fixture_free(void)
+{
+    bl_fit_set_destroy(set);
+    bl_trials_destroy(t);
+}
+
+static bl_study fixture_study(bl_model_spec *study_models, size_t n)
+{
+    bl_study study;
+    memset(&study, 0, sizeof study);
+    study.fit.participants = BL_PARTICIPANTS_POOLED;
+    study.fit.starts = 2;
+    study.models = study_models;
+    study.n_models = n;
+    return study;
+}
+
+static void fixture_options(bl_fit_options *opt)
+{
+    bl_fit_options_default(opt);
+    opt->permutations = 19;
+    opt->seed = 5;
+    opt->threads = 2;
+}
+
+static int fixture(void)
+{
+    static int tried;
+    if (tried) return set != NULL;
+    tried = 1;
+    bl_error err = {0};
+    bl_warnings warn = {0};
     sim_truth tr = {.n = 2000, .n_participants = 2, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
                     .v = {2.0, 1.2, 0.6}, .v_slope = 0, .t0 = 0.3};
-    bl_trials *t = sim_trials(&tr, 1234);
+    t = sim_trials(&tr, 1234);
+    atexit(fixture_free);
 
-    bl_model_spec models[3];
     spec_default(&models[0], "baseline");
     models[0].param[BL_THRESHOLD].per = col_context;
     models[0].param[BL_THRESHOLD].n_per = 1;
@@ -60,7 +96,6 @@ int main(void)
     models[1] = models[0];
     models[1].name = "theta-threshold";
     models[1].extends = "baseline";
-    bl_slope_spec ts = {"theta", col_context, 1};
     models[1].param[BL_THRESHOLD].slopes = &ts;
     models[1].param[BL_THRESHOLD].n_slopes = 1;
     models[2] = models[0];
@@ -68,21 +103,18 @@ int main(void)
     models[2].extends = "baseline";
     models[2].param[BL_DRIFT].per = col_participant;
 
-    bl_study study;
-    memset(&study, 0, sizeof study);
-    study.fit.participants = BL_PARTICIPANTS_POOLED;
-    study.fit.starts = 2;
-    study.models = models;
-    study.n_models = 3;
-
+    bl_study study = fixture_study(models, 3);
     bl_fit_options opt;
-    bl_fit_options_default(&opt);
-    opt.permutations = 19;
-    opt.seed = 5;
-    opt.threads = 2;
-    bl_fit_set *set = NULL;
-    check_true(bl_fit_study(&study, t, &opt, &set, &warn, &err) == BL_OK, "study fit (%s)", err.message);
-    check_true(set->n_models == 3, "3 models");
+    fixture_options(&opt);
+    int ok = check_true(bl_fit_study(&study, t, &opt, &set, &warn, &err) == BL_OK, "study fit (%s)", err.message) &&
+             check_true(set->n_models == 3, "3 models");
+    bl_warnings_clear(&warn);
+    return ok;
+}
+
+HARNESS_CASE(information_criteria)
+{
+    if (!fixture()) return;
     const bl_comparison_row *c = set->comparison;
     double best_aic = fmin(fmin(c[0].aic, c[1].aic), c[2].aic);
     double best_bic = fmin(fmin(c[0].bic, c[1].bic), c[2].bic);
@@ -103,8 +135,13 @@ int main(void)
     check_rel(wsum, 1, 1e-14, "weights sum to 1");
     check_true(c[0].parameters == 6 && c[1].parameters == 8 && c[2].parameters == 5, "coefficient counts 6, 8, 5");
     check_true(c[1].delta_aic == 0, "the model with the true slope has the best AIC");
+}
 
-    /* LRT theta-threshold vs baseline. */
+/* LRT theta-threshold vs baseline. */
+HARNESS_CASE(likelihood_ratio_tests)
+{
+    if (!fixture()) return;
+    const bl_comparison_row *c = set->comparison;
     check_true(c[0].lrt_nested == -1 && c[0].lrt_against == NULL && isnan(c[0].lrt_p), "baseline extends nothing");
     check_true(c[1].lrt_nested == 1 && !strcmp(c[1].lrt_against, "baseline"), "theta-threshold is nested");
     check_rel(c[1].lrt_statistic, 2 * (c[1].log_likelihood - c[0].log_likelihood), 1e-14, "LR statistic = 2 dLL");
@@ -113,7 +150,12 @@ int main(void)
     check_true(c[1].lrt_p < 1e-6, "the true slope is detected (p %.3g)", c[1].lrt_p);
     check_true(c[2].lrt_nested == 0 && isnan(c[2].lrt_statistic) && isnan(c[2].lrt_p),
                "drift per participant instead of difficulty: not nested");
+}
 
+HARNESS_CASE(permutation_test)
+{
+    if (!fixture()) return;
+    const bl_comparison_row *c = set->comparison;
     /* Permutation test of the theta slope: its statistic is the LRT against the model without it
      * (= baseline), and no shuffled regressor reaches the observed fit. */
     const bl_model_result *r1 = &set->models[1];
@@ -122,7 +164,15 @@ int main(void)
     check_true(r1->permutation[0].permutations == 19 && r1->permutation[0].exceed == 0, "no permutation reached it");
     check_rel(r1->permutation[0].p, 1.0 / 20.0, 1e-15, "permutation p = 1/(B+1)");
     check_true(set->models[0].n_permutation == 0, "no slopes, no permutation test");
+}
 
+HARNESS_CASE(null_slope_permutation)
+{
+    if (!fixture()) return;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    bl_fit_options opt;
+    fixture_options(&opt);
     /* Null slope: beta has no effect on threshold; reproducible for a seed, same for 1 thread. */
     bl_model_spec nullm = models[0];
     nullm.name = "beta-threshold";
@@ -131,8 +181,7 @@ int main(void)
     nullm.param[BL_THRESHOLD].slopes = &bs;
     nullm.param[BL_THRESHOLD].n_slopes = 1;
     bl_model_spec two[2] = {models[0], nullm};
-    study.models = two;
-    study.n_models = 2;
+    bl_study study = fixture_study(two, 2);
     bl_fit_set *s1 = NULL, *s2 = NULL;
     bl_fit_study(&study, t, &opt, &s1, &warn, &err);
     opt.threads = 1;
@@ -143,7 +192,14 @@ int main(void)
     check_rel(p1->p, (1.0 + (double)p1->exceed) / 20.0, 1e-15, "p = (1 + exceed)/(1 + B)");
     bl_fit_set_destroy(s1);
     bl_fit_set_destroy(s2);
+    bl_warnings_clear(&warn);
+}
 
+HARNESS_CASE(result_files)
+{
+    if (!fixture()) return;
+    bl_error err = {0};
+    bl_warnings warn = {0};
     /* --- result files --- */
     char dir[] = "/tmp/bl_test_compare_XXXXXX";
     check_true(mkdtemp(dir) != NULL, "temporary folder");
@@ -220,8 +276,19 @@ int main(void)
     }
     check_true(rmdir(dir) == 0, "no temporary files left behind");
     cJSON_Delete(prov);
-    bl_fit_set_destroy(set);
-    bl_trials_destroy(t);
     bl_warnings_clear(&warn);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(akaike_weights_hand_example),
+        HARNESS_ENTRY(information_criteria),
+        HARNESS_ENTRY(likelihood_ratio_tests),
+        HARNESS_ENTRY(permutation_test),
+        HARNESS_ENTRY(null_slope_permutation),
+        HARNESS_ENTRY(result_files),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

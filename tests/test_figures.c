@@ -57,21 +57,42 @@ static void balanced(const bl_figure *f)
     check_true(!strstr(s, "nan") && !strstr(s, "inf\""), "%s: no NaN/inf coordinates", f->file);
 }
 
-int main(void)
+static const char *names[5] = {"power_spectrum.svg", "parameter_vs_regressor.svg", "quantile_probability.svg",
+                               "coefficients.svg", "model_comparison.svg"};
+
+/* The pooled fixture (seed 20261202), its goodness of fit with 2 threads, and its figures made twice; computed
+ * once by the first case that asks, freed at exit. */
+static fixture *fx;
+static bl_goodness *g;
+static bl_figure_set *fs, *fs2;
+
+static void figures_free(void)
 {
-    gsl_set_error_handler_off();
+    bl_figure_set_destroy(fs);
+    bl_figure_set_destroy(fs2);
+    bl_goodness_destroy(g);
+    fixture_destroy(fx);
+}
+
+static int figures(void)
+{
+    static int tried;
+    if (tried) return fs && fs2;
+    tried = 1;
     bl_error err = {0};
-    fixture *fx = fixture_create(20261202, 0);
-    bl_goodness *g = NULL;
+    fx = fixture_create(20261202, 0);
+    atexit(figures_free);
     check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 2, &g, &err) == BL_OK, "goodness (%s)", err.message);
-    bl_figure_set *fs = NULL, *fs2 = NULL;
     check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs, &err) == BL_OK, "figures (%s)",
                err.message);
     check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs2, &err) == BL_OK, "figures again");
-    if (!fs || !fs2) return harness_summary();
+    return fs && fs2;
+}
+
+HARNESS_CASE(five_figures)
+{
+    if (!figures()) return;
     check_true(fs->n == 5, "five figures");
-    const char *names[5] = {"power_spectrum.svg", "parameter_vs_regressor.svg", "quantile_probability.svg",
-                            "coefficients.svg", "model_comparison.svg"};
     for (int i = 0; i < 5; i++) check_true(find(fs, names[i]) != NULL, "figure %s", names[i]);
     for (size_t i = 0; i < fs->n; i++) {
         balanced(&fs->items[i]);
@@ -79,7 +100,11 @@ int main(void)
         check_true(fs->items[i].size == fs2->items[i].size && memcmp(fs->items[i].svg, fs2->items[i].svg, fs->items[i].size) == 0,
                    "%s: same input, same bytes", fs->items[i].file);
     }
+}
 
+HARNESS_CASE(spectrum)
+{
+    if (!figures()) return;
     /* 1. Spectrum: one mean line and one SE band per condition cell, bands shaded and named, log axis. */
     const bl_figure *f = find(fs, "power_spectrum.svg");
     if (f) {
@@ -90,6 +115,12 @@ int main(void)
         check_true(strstr(f->svg, "context=rich (") && strstr(f->svg, "context=lean ("), "legend names the cells");
         check_true(strstr(f->svg, ">10<") && strstr(f->svg, ">1<"), "log axis labelled by decades");
     }
+}
+
+HARNESS_CASE(parameter_vs_regressor)
+{
+    if (!figures()) return;
+    const bl_figure *f;
     /* 2. Predicted vs regressor: one panel (theta on threshold), a point per used trial, 5 bins per context. */
     f = find(fs, "parameter_vs_regressor.svg");
     if (f) {
@@ -102,6 +133,12 @@ int main(void)
         check_true(diamonds == 10, "5 observed bin estimates per context (%zu)", diamonds);
         check_true(strstr(f->svg, ">context=rich<") && strstr(f->svg, ">observed, per regressor quintile<"), "legend");
     }
+}
+
+HARNESS_CASE(quantile_probability)
+{
+    if (!figures()) return;
+    const bl_figure *f;
     /* 3. QP: one panel per model, observed points = 5 quantiles x cells x 2 responses. */
     f = find(fs, "quantile_probability.svg");
     if (f) {
@@ -113,6 +150,12 @@ int main(void)
         check_true(strstr(f->svg, ">baseline<") && strstr(f->svg, ">theta-threshold<"), "panel titles name the models");
         check_true(strstr(f->svg, ">0.1<") && strstr(f->svg, ">0.9<") && strstr(f->svg, ">observed<"), "legend");
     }
+}
+
+HARNESS_CASE(coefficients)
+{
+    if (!figures()) return;
+    const bl_figure *f;
     /* 4. Coefficients of the best model (theta-threshold): 5 squares + legend key. */
     f = find(fs, "coefficients.svg");
     if (f) {
@@ -123,6 +166,12 @@ int main(void)
                    "coefficient axis with unit");
         check_true(strstr(f->svg, ">95% Wald interval<") != NULL, "legend");
     }
+}
+
+HARNESS_CASE(model_comparison)
+{
+    if (!figures()) return;
+    const bl_figure *f;
     /* 5. Comparison: 2 bars per model. */
     f = find(fs, "model_comparison.svg");
     if (f) {
@@ -132,7 +181,12 @@ int main(void)
         check_true(strstr(f->svg, ">\xCE\x94" "AIC<") && strstr(f->svg, ">\xCE\x94" "BIC<"), "legend");
         check_true(count(f->svg, ">best by AIC and BIC<") == 1, "best model marked once");
     }
+}
 
+HARNESS_CASE(written_files)
+{
+    if (!figures()) return;
+    bl_error err = {0};
     /* Written files: XML declaration + the element, in a folder created on demand. */
     char dir[] = "/tmp/bl_test_figures_XXXXXX";
     check_true(mkdtemp(dir) != NULL, "temp folder");
@@ -149,9 +203,13 @@ int main(void)
     rmdir(sub);
     rmdir(dir);
     free(sub);
-    bl_figure_set_destroy(fs);
-    bl_figure_set_destroy(fs2);
+}
 
+HARNESS_CASE(without_recordings)
+{
+    if (!figures()) return;
+    bl_error err = {0};
+    const bl_figure *f;
     /* Without recordings the spectrum figure says so; separate mode shows participants. */
     bl_figure_set *fs3 = NULL;
     check_true(bl_figures_make(&fx->study, &fx->trials, NULL, &fx->set, g, &fs3, &err) == BL_OK, "figures without power");
@@ -160,11 +218,18 @@ int main(void)
         check_true(f && strstr(f->svg, "no recordings") && !strstr(f->svg, "clipPath"), "spectrum note without recordings");
     }
     bl_figure_set_destroy(fs3);
-    bl_goodness_destroy(g);
+}
 
+HARNESS_CASE(baseline_only_and_no_model)
+{
+    if (!figures()) return;
+    bl_error err = {0};
+    const bl_figure *f;
+    bl_figure_set *fs3;
+    bl_goodness *g = NULL;
+    size_t n_models = fx->set.n_models;
     /* Only the baseline model (no slopes): the parameter figure says so, the others still draw. */
     fx->set.n_models = 1;
-    g = NULL;
     fs3 = NULL;
     check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 1, &g, &err) == BL_OK, "goodness, baseline only");
     check_true(g && g->n_groups == g->n_cells, "no slope: no regressor bins");
@@ -192,11 +257,16 @@ int main(void)
     }
     bl_figure_set_destroy(fs3);
     bl_goodness_destroy(g);
-    fx->set.n_models = 2;
-    fixture_destroy(fx);
+    fx->set.n_models = n_models;
+}
 
-    fx = fixture_create(99, 1);
-    g = NULL;
+HARNESS_CASE(separate_mode)
+{
+    bl_error err = {0};
+    const bl_figure *f;
+    bl_figure_set *fs;
+    fixture *fx = fixture_create(99, 1);
+    bl_goodness *g = NULL;
     check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 1, &g, &err) == BL_OK, "goodness, separate");
     fs = NULL;
     check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs, &err) == BL_OK, "figures, separate");
@@ -211,5 +281,22 @@ int main(void)
     bl_goodness_destroy(g);
     fixture_destroy(fx);
     bl_figure_set_destroy(NULL);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(five_figures),
+        HARNESS_ENTRY(spectrum),
+        HARNESS_ENTRY(parameter_vs_regressor),
+        HARNESS_ENTRY(quantile_probability),
+        HARNESS_ENTRY(coefficients),
+        HARNESS_ENTRY(model_comparison),
+        HARNESS_ENTRY(written_files),
+        HARNESS_ENTRY(without_recordings),
+        HARNESS_ENTRY(baseline_only_and_no_model),
+        HARNESS_ENTRY(separate_mode),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

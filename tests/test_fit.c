@@ -37,13 +37,9 @@ static double nm_f(const gsl_vector *x, void *p)
     return isfinite(ll) ? -ll : 1e300;
 }
 
-int main(void)
+/* Information matrix inverse: 2x2 closed form [[a, b], [b, d]]^-1 = [[d, -b], [-b, a]] / (ad - b^2). */
+HARNESS_CASE(information_inverse)
 {
-    gsl_set_error_handler_off();
-    bl_error err = {0};
-    bl_warnings warn = {0};
-
-    /* --- Information matrix inverse: 2x2 closed form [[a, b], [b, d]]^-1 = [[d, -b], [-b, a]] / (ad - b^2) --- */
     {
         const double info[4] = {4.0, 1.5, 1.5, 2.25};
         double cov[4], cond;
@@ -62,8 +58,12 @@ int main(void)
         const double singular[4] = {1.0, 1.0, 1.0, 1.0};
         check_true(bl_information_inverse(singular, 2, cov, &cond) == 0, "singular information: not inverted");
     }
+}
 
-    /* --- EZ-diffusion inversion round trip --- */
+/* EZ-diffusion inversion round trip. */
+HARNESS_CASE(ez_round_trip)
+{
+    bl_error err = {0};
     const double ez_cases[3][3] = {{1.5, 1.2, 0.3}, {0.4, 2.0, 0.25}, {-0.8, 1.6, 0.4}};
     for (int i = 0; i < 3; i++) {
         double pc, mdt, vrt, v, a, t0;
@@ -76,8 +76,13 @@ int main(void)
     double dv, da, dt;
     check_true(bl_ez_diffusion(1.0, 0.1, 0.5, &dv, &da, &dt, &err) == BL_ERR_NUMERIC, "EZ rejects pc = 1");
     check_true(bl_ez_diffusion(0.5, 0.1, 0.5, &dv, &da, &dt, &err) == BL_ERR_NUMERIC, "EZ rejects pc = 0.5");
+}
 
-    /* --- EZ agreement: one condition, no slopes --- */
+/* EZ agreement: one condition, no slopes. */
+HARNESS_CASE(ez_agreement)
+{
+    bl_error err = {0};
+    bl_warnings warn = {0};
     {
         sim_truth tr = {.n = 3000, .n_participants = 1, .a = {1.3, 1.3}, .a_slope = {0, 0},
                         .v = {1.4, 1.4, 1.4}, .v_slope = 0, .t0 = 0.32};
@@ -121,22 +126,62 @@ int main(void)
         bl_model_destroy(m);
         bl_trials_destroy(t);
     }
+    bl_warnings_clear(&warn);
+}
 
-    /* --- Recovery of a regression, and BFGS vs Nelder-Mead --- */
-    sim_truth tr = {.n = 4000, .n_participants = 4, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
-                    .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28, .stimulus = 1};
-    bl_trials *t = sim_trials(&tr, 77);
+/* Recovery of a regression: the trials, model and 2-thread, 3-start fit shared by the cases below,
+ * computed once by the first case that asks. */
+static struct {
+    bl_trials *t;
     bl_model_spec s;
     bl_slope_spec slopes[2];
-    spec_regression(&s, slopes, "regression");
-    bl_model *m = NULL;
-    check_true(bl_model_build(&s, t, NULL, &m, &err) == BL_OK, "regression model builds");
+    bl_model *m;
     bl_fit_options opt;
-    bl_fit_options_default(&opt);
-    opt.threads = 2;
-    opt.starts = 3;
     bl_fit_result r;
-    check_true(bl_fit_model(m, &opt, NULL, &r, &warn, &err) == BL_OK, "regression fit runs (%s)", err.message);
+    int tried, fitted;
+} reg;
+
+static void regression_free(void)
+{
+    if (reg.fitted) bl_fit_result_clear(&reg.r);
+    bl_model_destroy(reg.m);
+    bl_trials_destroy(reg.t);
+}
+
+static bl_trials *regression_trials(void)
+{
+    if (!reg.t) {
+        sim_truth tr = {.n = 4000, .n_participants = 4, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
+                        .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28, .stimulus = 1};
+        reg.t = sim_trials(&tr, 77);
+        atexit(regression_free);
+    }
+    return reg.t;
+}
+
+static int regression_fit(void)
+{
+    if (reg.tried) return reg.fitted;
+    reg.tried = 1;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    spec_regression(&reg.s, reg.slopes, "regression");
+    if (!check_true(bl_model_build(&reg.s, regression_trials(), NULL, &reg.m, &err) == BL_OK,
+                    "regression model builds"))
+        return 0;
+    bl_fit_options_default(&reg.opt);
+    reg.opt.threads = 2;
+    reg.opt.starts = 3;
+    reg.fitted = bl_fit_model(reg.m, &reg.opt, NULL, &reg.r, &warn, &err) == BL_OK;
+    check_true(reg.fitted, "regression fit runs (%s)", err.message);
+    bl_warnings_clear(&warn);
+    return reg.fitted;
+}
+
+HARNESS_CASE(regression_recovery)
+{
+    if (!regression_fit()) return;
+    const bl_fit_result r = reg.r;
     check_true(r.converged, "converged (newton decrement %.3g, gradient %.3g)", r.diag.newton_decrement,
                r.diag.gradient_norm);
     check_true(r.diag.starts == 3 && r.diag.starts_agreed == 3, "all 3 starts agree (%d)", r.diag.starts_agreed);
@@ -153,8 +198,16 @@ int main(void)
                   "Wald p from the normal upper tail");
     }
     check_true(r.coef[8].se < 0.01, "nondecision se is small (%.4g)", r.coef[8].se);
+}
 
-    /* Independent optimiser: Nelder-Mead on the coefficients, started away from the optimum. */
+/* Independent optimiser: Nelder-Mead on the coefficients, started away from the optimum. */
+HARNESS_CASE(nelder_mead_optimum)
+{
+    if (!regression_fit()) return;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    bl_model *m = reg.m;
+    const bl_fit_result r = reg.r;
     bl_likelihood *w = bl_likelihood_create(m, 2);
     nm_ctx c = {w};
     gsl_multimin_function fn = {nm_f, 9, &c};
@@ -182,7 +235,7 @@ int main(void)
     gsl_multimin_fminimizer_free(nm);
 
     /* bandlink's own derivative-free path (the fallback) alone reaches the same optimum. */
-    bl_fit_options sopt = opt;
+    bl_fit_options sopt = reg.opt;
     sopt.simplex_only = 1;
     sopt.starts = 1;
     bl_fit_result rs;
@@ -192,7 +245,19 @@ int main(void)
     bl_fit_result_clear(&rs);
     gsl_vector_free(x);
     gsl_vector_free(step);
+    bl_likelihood_destroy(w);
+    bl_warnings_clear(&warn);
+}
 
+/* Warm starts: the same optimum from an infeasible and from a poor start. */
+HARNESS_CASE(warm_starts)
+{
+    if (!regression_fit()) return;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    bl_model *m = reg.m;
+    const bl_fit_result r = reg.r;
+    bl_fit_options opt = reg.opt;
     /* Warm start far off (slope large, infeasible for some trials) still converges to the same point. */
     double far[9] = {1.5, 1.1, 3.0, 0.0, 2.2, 1.3, 0.6, -0.3, 0.28};
     bl_fit_result r2;
@@ -207,26 +272,37 @@ int main(void)
     check_true(r3.converged, "converged from a poor start");
     bl_fit_result_clear(&r2);
     bl_fit_result_clear(&r3);
+    bl_warnings_clear(&warn);
+}
 
-    /* Thread-count invariance of the whole fit. */
+/* Thread-count invariance of the whole fit. */
+HARNESS_CASE(thread_invariance)
+{
+    if (!regression_fit()) return;
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    const bl_fit_result r = reg.r;
+    bl_fit_options opt = reg.opt;
     opt.threads = 1;
     opt.starts = 3;
     bl_fit_result r1;
-    bl_fit_model(m, &opt, NULL, &r1, &warn, &err);
+    bl_fit_model(reg.m, &opt, NULL, &r1, &warn, &err);
     double dmax = 0;
     for (int j = 0; j < 9; j++) dmax = fmax(dmax, fabs(r1.coef[j].estimate - r.coef[j].estimate));
     check_abs(r1.log_likelihood, r.log_likelihood, 1e-12 * fabs(r.log_likelihood), "1 vs 2 threads: same optimum");
     check_abs(dmax, 0, 1e-12, "1 vs 2 threads: same estimates");
     bl_fit_result_clear(&r1);
-    bl_fit_result_clear(&r);
-    bl_likelihood_destroy(w);
-    bl_model_destroy(m);
+    bl_warnings_clear(&warn);
+}
 
-    /* --- Separate mode through bl_fit_study: per-participant fits and the group summary --- */
-    bl_model_spec sep;
+/* The separate-mode study of the cases below: drift with a slope on beta, 2 starts. */
+static bl_model_spec sep;
+static bl_slope_spec sep_slope = {"beta", NULL, 0};
+
+static bl_study separate_study(void)
+{
     spec_default(&sep, "separate");
-    bl_slope_spec vs2 = {"beta", NULL, 0};
-    sep.param[BL_DRIFT].slopes = &vs2;
+    sep.param[BL_DRIFT].slopes = &sep_slope;
     sep.param[BL_DRIFT].n_slopes = 1;
     bl_study study;
     memset(&study, 0, sizeof study);
@@ -234,6 +310,17 @@ int main(void)
     study.fit.starts = 2;
     study.models = &sep;
     study.n_models = 1;
+    return study;
+}
+
+/* Separate mode through bl_fit_study: per-participant fits and the group summary. */
+HARNESS_CASE(separate_mode)
+{
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    bl_trials *t = regression_trials();
+    bl_study study = separate_study();
+    bl_fit_options opt;
     bl_fit_set *set = NULL;
     bl_fit_options_default(&opt);
     check_true(bl_fit_study(&study, t, &opt, &set, &warn, &err) == BL_OK, "separate-mode study fit (%s)", err.message);
@@ -288,16 +375,23 @@ int main(void)
     check_true(mr->p_upper[0] > 0 && mr->p_upper[0] < 1 && mr->mean_rt[0] > mr->predicted[0].value[BL_NONDECISION],
                "p_upper in (0,1), mean RT above nondecision");
     bl_fit_set_destroy(set);
-
     bl_warnings_clear(&warn);
-    bl_trials_destroy(t);
+}
 
-    /* Participants that differ in drift (0.6 apart): tau^2 > 0. */
+/* Participants that differ in drift (0.6 apart): tau^2 > 0. */
+HARNESS_CASE(separate_heterogeneous)
+{
+    bl_error err = {0};
+    bl_warnings warn = {0};
+    bl_study study = separate_study();
+    bl_fit_options opt;
+    bl_fit_set *set = NULL;
+    bl_fit_options_default(&opt);
     sim_truth tr2 = {.n = 2400, .n_participants = 4, .a = {1.2, 1.2}, .a_slope = {0, 0}, .v = {1.0, 1.0, 1.0},
                      .v_slope = -0.3, .t0 = 0.3, .v_step = 0.6};
-    t = sim_trials(&tr2, 99);
+    bl_trials *t = sim_trials(&tr2, 99);
     check_true(bl_fit_study(&study, t, &opt, &set, &warn, &err) == BL_OK, "separate fit, heterogeneous drift");
-    mr = &set->models[0];
+    const bl_model_result *mr = &set->models[0];
     check_true(mr->group[1].tau2 > 0.05, "drift intercept: between-participant variance found (tau^2 %.3g; truth "
                "var of 1.0, 1.6, 2.2, 2.8 = 0.6)", mr->group[1].tau2);
     check_abs(mr->group[1].mean, 1.9, 0.2, "drift intercept: mean across participants near 1.9");
@@ -325,5 +419,21 @@ int main(void)
     bl_fit_set_destroy(set);
     bl_trials_destroy(t);
     bl_warnings_clear(&warn);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(information_inverse),
+        HARNESS_ENTRY(ez_round_trip),
+        HARNESS_ENTRY(ez_agreement),
+        HARNESS_ENTRY(regression_recovery),
+        HARNESS_ENTRY(nelder_mead_optimum),
+        HARNESS_ENTRY(warm_starts),
+        HARNESS_ENTRY(thread_invariance),
+        HARNESS_ENTRY(separate_mode),
+        HARNESS_ENTRY(separate_heterogeneous),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

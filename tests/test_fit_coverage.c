@@ -21,12 +21,16 @@ static void binom_range(unsigned n, double p, double alpha, unsigned *lo, unsign
     while (*hi > 0 && gsl_cdf_binomial_Q(*hi - 1, p, n) < alpha / 2) (*hi)--;
 }
 
-int main(int argc, char **argv)
+/* The Monte-Carlo run every case reads: reps data sets, each fitted with and without a null slope; done once. */
+static unsigned reps = 300;
+static unsigned cover[9], conv, reject_null, reject_lrt, n_lrt;
+
+static void simulate_and_fit(void)
 {
-    gsl_set_error_handler_off();
-    unsigned reps = argc > 1 ? (unsigned)atoi(argv[1]) : 300;
+    static int done;
+    if (done) return;
+    done = 1;
     const double truth[9] = {1.5, 1.1, 0.25, 0.0, 2.2, 1.3, 0.6, -0.3, 0.28};
-    unsigned cover[9] = {0}, conv = 0, reject_null = 0, reject_lrt = 0, n_lrt = 0;
     bl_error err = {0};
     bl_warnings warn = {0};
     for (unsigned r = 0; r < reps; r++) {
@@ -72,9 +76,19 @@ int main(int argc, char **argv)
         bl_trials_destroy(t);
         bl_warnings_clear(&warn);
     }
+}
+
+HARNESS_CASE(convergence)
+{
+    simulate_and_fit();
+    check_true(conv == reps, "every fit converged (%u of %u)", conv, reps);
+}
+
+HARNESS_CASE(wald_interval_coverage)
+{
+    simulate_and_fit();
     unsigned lo, hi, total = 0;
     binom_range(reps, 0.95, 0.001, &lo, &hi);
-    check_true(conv == reps, "every fit converged (%u of %u)", conv, reps);
     const char *names[9] = {"threshold rich", "threshold lean", "theta slope rich", "theta slope lean",
                             "drift easy",     "drift medium",   "drift hard",       "beta slope",
                             "nondecision"};
@@ -87,6 +101,11 @@ int main(int argc, char **argv)
     binom_range(9 * reps, 0.95, 0.001, &tlo, &thi);
     check_true(total >= tlo && total <= thi, "all coefficients: covered %u of %u (range %u-%u)", total, 9 * reps,
                tlo, thi);
+}
+
+HARNESS_CASE(null_slope_rejection_rates)
+{
+    simulate_and_fit();
     unsigned nlo, nhi;
     binom_range(reps, 0.05, 0.001, &nlo, &nhi);
     check_true(reject_null >= nlo && reject_null <= nhi,
@@ -96,5 +115,22 @@ int main(int argc, char **argv)
     check_true(reject_lrt >= nlo && reject_lrt <= nhi,
                "true-zero slope: LRT (chi^2, 1 df) rejects at 5%% in %u of %u datasets (range %u-%u)", reject_lrt,
                reps, nlo, nhi);
-    return harness_summary();
+}
+
+/* Usage: test_fit_coverage [REPS] [--list] [--case NAME]...   (REPS data sets, default 300) */
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    if (argc > 1 && argv[1][0] != '-') {
+        reps = (unsigned)atoi(argv[1]);
+        argv[1] = argv[0];
+        argv++;
+        argc--;
+    }
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(convergence),
+        HARNESS_ENTRY(wald_interval_coverage),
+        HARNESS_ENTRY(null_slope_rejection_rates),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

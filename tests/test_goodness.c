@@ -60,11 +60,8 @@ static bl_wiener_params mk(double a, double v, double t0, double w)
     return p;
 }
 
-int main(void)
+HARNESS_CASE(sample_quantiles_numpy)
 {
-    gsl_set_error_handler_off();
-    bl_error err = {0};
-
     /* numpy.quantile(x, p) for these 12 values (numpy 1.24.2, method "linear"). */
     double x[12] = {0.512, 0.387, 0.941, 0.455, 0.623, 0.701, 0.398, 1.204, 0.566, 0.489, 0.833, 0.4717};
     for (int i = 1; i < 12; i++)
@@ -80,7 +77,11 @@ int main(void)
     check_rel(bl_goodness_sample_quantile((double[]){0.7}, 1, 0.3), 0.7, 0, "numpy.quantile of one value");
     check_rel(bl_goodness_sample_quantile((double[]){0.3, 0.9}, 2, 0.1), 0.36, 1e-14, "numpy.quantile of two values");
     check_true(isnan(bl_goodness_sample_quantile(x, 0, 0.5)), "no values: NAN");
+}
 
+HARNESS_CASE(one_component_mixture)
+{
+    bl_error err = {0};
     /* A one-component mixture is the component itself: equals bl_wiener_quantile. */
     bl_wiener_params p1 = mk(1.37, 0.83, 0.291, 0.46);
     double q[BL_GOODNESS_NQ], share;
@@ -98,7 +99,12 @@ int main(void)
         check_rel(share, upper ? pu : 1 - pu, 1e-9, "share = closed-form absorption probability (%s)",
                   upper ? "upper" : "lower");
     }
+}
 
+HARNESS_CASE(two_component_mixture)
+{
+    bl_error err = {0};
+    double q[BL_GOODNESS_NQ], share;
     /* Two components with weights 3:1; quantile q of the mixture must satisfy
      * sum w_i int_0^q f_i / sum w_i P_i = p, the integrals by GSL quadrature. */
     bl_wiener_params two[2] = {mk(0.94, 1.71, 0.215, 0.5), mk(1.83, -0.42, 0.377, 0.58)};
@@ -118,6 +124,13 @@ int main(void)
         }
         for (int k = 1; k < BL_GOODNESS_NQ; k++) check_true(q[k] > q[k - 1], "quantiles increase");
     }
+}
+
+HARNESS_CASE(unreachable_boundary_and_bad_probability)
+{
+    bl_error err = {0};
+    double q[BL_GOODNESS_NQ], share;
+    bl_wiener_params p1 = mk(1.37, 0.83, 0.291, 0.46);
     /* A boundary that is practically never reached: share ~0, quantiles NAN, no error. */
     bl_wiener_params never = mk(3.0, 12.0, 0.2, 0.5); /* P(lower) = exp(-36) ~ 2e-16 */
     check_true(bl_goodness_mixture_quantiles(&never, NULL, 1, 0, bl_goodness_probs, BL_GOODNESS_NQ, q, &share, &err) ==
@@ -126,8 +139,12 @@ int main(void)
                "unreachable boundary gives NAN quantiles");
     check_true(bl_goodness_mixture_quantiles(&p1, NULL, 1, 1, (double[]){1.5}, 1, q, NULL, &err) == BL_ERR_RANGE,
                "probability outside (0,1) refused");
+}
 
-    /* ---- groups and rows on a simulated data set with known truth ---- */
+/* Groups and rows on a simulated data set with known truth. */
+HARNESS_CASE(groups_and_rows)
+{
+    bl_error err = {0};
     enum { N = 600 };
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, 20261202);
@@ -305,5 +322,17 @@ int main(void)
     free(base);
     free(used);
     gsl_rng_free(rng);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(sample_quantiles_numpy),
+        HARNESS_ENTRY(one_component_mixture),
+        HARNESS_ENTRY(two_component_mixture),
+        HARNESS_ENTRY(unreachable_boundary_and_bad_probability),
+        HARNESS_ENTRY(groups_and_rows),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

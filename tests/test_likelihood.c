@@ -54,21 +54,38 @@ static void check_gradient(bl_likelihood *w, const double *coef, size_t k, const
     free(c);
 }
 
-int main(void)
+/* The trials and the identity-link regression model every case uses, built once; freed at exit. */
+static bl_trials *t;
+static bl_model *m;
+static bl_slope_spec fx_as, fx_vs;
+static bl_model_spec fx_spec;
+static const double coef[9] = {1.37, 1.05, 0.15, 0.03, 1.8, 1.1, 0.45, -0.15, 0.27};
+
+static void fixture_free(void)
 {
-    gsl_set_error_handler_off();
+    bl_model_destroy(m);
+    bl_trials_destroy(t);
+}
+
+static int fixture(void)
+{
+    static int tried;
+    if (tried) return m != NULL;
+    tried = 1;
     sim_truth tr = {.n = 600, .n_participants = 2, .a = {1.4, 1.0}, .a_slope = {0.2, 0.0},
                     .v = {2.0, 1.2, 0.5}, .v_slope = -0.2, .t0 = 0.3, .stimulus = 1};
-    bl_trials *t = sim_trials(&tr, 11);
-    bl_slope_spec as, vs;
-    bl_model_spec spec = regression_spec(&as, &vs, 0);
-    bl_model *m = NULL;
+    t = sim_trials(&tr, 11);
+    atexit(fixture_free);
+    fx_spec = regression_spec(&fx_as, &fx_vs, 0);
     bl_error err = {0};
-    check_true(bl_model_build(&spec, t, NULL, &m, &err) == BL_OK, "model builds (%s)", err.message);
+    if (!check_true(bl_model_build(&fx_spec, t, NULL, &m, &err) == BL_OK, "model builds (%s)", err.message)) return 0;
     size_t k = bl_model_n_coef(m);
-    check_true(k == 9, "9 coefficients (got %zu)", k);
-    const double coef[9] = {1.37, 1.05, 0.15, 0.03, 1.8, 1.1, 0.45, -0.15, 0.27};
+    return check_true(k == 9, "9 coefficients (got %zu)", k);
+}
 
+HARNESS_CASE(value_gradient_and_count)
+{
+    if (!fixture()) return;
     /* Value: the definition, computed here trial by trial from the regression and the engine's
      * log-density, with drift multiplied by the stimulus sign (stimulus coding). */
     bl_likelihood *w1 = bl_likelihood_create(m, 1);
@@ -93,7 +110,18 @@ int main(void)
     /* The engine's series tolerance is 1e-10 relative (numerics.md 1.3), so the two routines agree to that. */
     check_rel(ll, want, 1e-10, "total log-likelihood equals the sum of per-trial log-densities");
 
-    /* Predicted parameters of a trial agree with the regression too. */
+    check_gradient(w1, coef, bl_model_n_coef(m), "identity link");
+    /* 1 evaluation above and 19 in check_gradient. */
+    check_true(bl_likelihood_evaluations(w1) >= 20, "evaluations are counted (%zu)", bl_likelihood_evaluations(w1));
+    bl_likelihood_destroy(w1);
+}
+
+/* Predicted parameters of a trial agree with the regression too. */
+HARNESS_CASE(predicted_parameters)
+{
+    if (!fixture()) return;
+    const bl_table *tab = t->table;
+    int c_beta = bl_table_find(tab, "beta");
     bl_wiener_params pp;
     int valid = bl_model_predict(m, coef, 5, &pp);
     size_t row5 = bl_model_row(m, 5);
@@ -102,12 +130,14 @@ int main(void)
     check_rel(fabs(pp.value[BL_DRIFT]),
               fabs(coef[4 + (int)((row5 / 2) % 3)] + coef[7] * tab->cols[c_beta].num[row5]), 1e-14,
               "predicted drift magnitude (trial 5)");
+}
 
-    check_gradient(w1, coef, k, "identity link");
-
-    /* Thread-count invariance: the fixed block reduction gives the same bits. */
+/* Thread-count invariance: the fixed block reduction gives the same bits. */
+HARNESS_CASE(thread_invariance)
+{
+    if (!fixture()) return;
     double g1[9], g2[9], g3[9];
-    bl_likelihood *w2 = bl_likelihood_create(m, 2), *w3 = bl_likelihood_create(m, 3);
+    bl_likelihood *w1 = bl_likelihood_create(m, 1), *w2 = bl_likelihood_create(m, 2), *w3 = bl_likelihood_create(m, 3);
     /* Force the parallel path (600 trials would otherwise run on one thread). */
     bl_likelihood_set_parallel(w2, 1);
     bl_likelihood_set_parallel(w3, 1);
@@ -118,8 +148,16 @@ int main(void)
     double gd = 0;
     for (int j = 0; j < 9; j++) gd = fmax(gd, fmax(fabs(g2[j] - g1[j]), fabs(g3[j] - g1[j])));
     check_abs(gd, 0, 1e-12, "1 vs 2 vs 3 threads: same gradient");
+    bl_likelihood_destroy(w1);
+    bl_likelihood_destroy(w2);
+    bl_likelihood_destroy(w3);
+}
 
-    /* Infeasible points: a negative threshold on some trials, nondecision above the fastest RT. */
+/* Infeasible points: a negative threshold on some trials, nondecision above the fastest RT. */
+HARNESS_CASE(infeasible_points)
+{
+    if (!fixture()) return;
+    bl_likelihood *w1 = bl_likelihood_create(m, 1);
     double bad[9];
     memcpy(bad, coef, sizeof bad);
     bad[2] = 3.0; /* theta slope 3 at rich: threshold < 0 when theta < -0.46 */
@@ -135,16 +173,29 @@ int main(void)
     check_true(bl_likelihood_eval(w1, bad, gb) == -INFINITY, "nondecision above the fastest RT: -inf");
     bad[8] = NAN;
     check_true(bl_likelihood_eval(w1, bad, gb) == -INFINITY, "NaN coefficient: -inf");
+    bl_likelihood_destroy(w1);
+}
 
-    /* Per-trial values sum to the total. */
+/* Per-trial values sum to the total. */
+HARNESS_CASE(per_trial_sum)
+{
+    if (!fixture()) return;
+    bl_likelihood *w1 = bl_likelihood_create(m, 1);
     double *tll = malloc(t->n * sizeof *tll);
     double tot = bl_likelihood_trials(w1, coef, tll), s = 0;
     for (size_t i = 0; i < t->n; i++) s += tll[i];
     check_rel(s, tot, 1e-12, "per-trial log-likelihoods sum to the total");
     free(tll);
-    check_true(bl_likelihood_evaluations(w1) >= 20, "evaluations are counted (%zu)", bl_likelihood_evaluations(w1));
+    bl_likelihood_destroy(w1);
+}
 
-    /* Log link on threshold: chain-rule factor theta. */
+/* Log link on threshold: chain-rule factor theta. */
+HARNESS_CASE(log_link)
+{
+    if (!fixture()) return;
+    bl_error err = {0};
+    const bl_table *tab = t->table;
+    int c_theta = bl_table_find(tab, "theta");
     bl_slope_spec as2, vs2;
     bl_model_spec spec2 = regression_spec(&as2, &vs2, 1);
     bl_model *m2 = NULL;
@@ -156,10 +207,18 @@ int main(void)
     bl_model_predict(m2, coefl, 0, &pl);
     check_rel(pl.value[BL_THRESHOLD], exp(coefl[0] + coefl[2] * tab->cols[c_theta].num[bl_model_row(m2, 0)]), 1e-14,
               "log link: threshold = exp(linear predictor)");
+    bl_likelihood_destroy(wl);
+    bl_model_destroy(m2);
+}
 
-    /* Variability parameters free: the gradient still matches (drift_sd enters through the engine's
-     * closed form). */
-    bl_model_spec spec3 = spec2;
+/* Variability parameters free: the gradient still matches (drift_sd enters through the engine's
+ * closed form). */
+HARNESS_CASE(free_start_and_drift_sd)
+{
+    if (!fixture()) return;
+    bl_error err = {0};
+    bl_slope_spec as2, vs2;
+    bl_model_spec spec3 = regression_spec(&as2, &vs2, 1);
     spec3.param[BL_DRIFT_SD].is_fixed = 0;
     spec3.param[BL_START].is_fixed = 0;
     bl_model *m3 = NULL;
@@ -169,15 +228,21 @@ int main(void)
     const double coef3[11] = {log(1.37), log(1.05), 0.1, 0.02, 1.8, 1.1, 0.45, -0.15, 0.27, 0.47, 0.6};
     check_true(bl_model_n_coef(m3) == 11, "11 coefficients");
     check_gradient(w4, coef3, 11, "free start and drift_sd");
-
-    bl_likelihood_destroy(w1);
-    bl_likelihood_destroy(w2);
-    bl_likelihood_destroy(w3);
     bl_likelihood_destroy(w4);
-    bl_likelihood_destroy(wl);
-    bl_model_destroy(m);
-    bl_model_destroy(m2);
     bl_model_destroy(m3);
-    bl_trials_destroy(t);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(value_gradient_and_count),
+        HARNESS_ENTRY(predicted_parameters),
+        HARNESS_ENTRY(thread_invariance),
+        HARNESS_ENTRY(infeasible_points),
+        HARNESS_ENTRY(per_trial_sum),
+        HARNESS_ENTRY(log_link),
+        HARNESS_ENTRY(free_start_and_drift_sd),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -11,9 +11,14 @@
 
 static int contains(const char *hay, const char *needle) { return strstr(hay, needle) != NULL; }
 
-int main(void)
+/* The trials every case uses, made once: simulated, plus theta2 and gap (below); freed at exit. */
+static bl_trials *shared_trials;
+
+static void trials_free(void) { bl_trials_destroy(shared_trials); }
+
+static bl_trials *trials(void)
 {
-    gsl_set_error_handler_off();
+    if (shared_trials) return shared_trials;
     sim_truth tr = {.n = 240, .n_participants = 3, .a = {1.4, 1.0}, .a_slope = {0.2, 0.0},
                     .v = {2.0, 1.2, 0.5}, .v_slope = -0.2, .t0 = 0.3};
     bl_trials *t = sim_trials(&tr, 5);
@@ -28,11 +33,41 @@ int main(void)
     bl_table_add_numeric(t->table, "gap", gap, NULL);
     free(th2);
     free(gap);
+    shared_trials = t;
+    atexit(trials_free);
+    return t;
+}
 
+/* The per-level model: threshold per context with a theta slope per context, drift per context x difficulty. */
+static bl_slope_spec per_level_slope = {"theta", col_context, 1};
+static char *per_level_drift[] = {"context", "difficulty"};
+
+static void per_level_spec(bl_model_spec *s)
+{
+    spec_default(s, "plain");
+    s->param[BL_THRESHOLD].per = col_context;
+    s->param[BL_THRESHOLD].n_per = 1;
+    s->param[BL_THRESHOLD].slopes = &per_level_slope;
+    s->param[BL_THRESHOLD].n_slopes = 1;
+    s->param[BL_DRIFT].per = per_level_drift;
+    s->param[BL_DRIFT].n_per = 2;
+}
+
+static bl_model *per_level_model(bl_model_spec *s)
+{
     bl_error err = {0};
     bl_model *m = NULL;
+    per_level_spec(s);
+    check_true(bl_model_build(s, trials(), NULL, &m, &err) == BL_OK, "per-level model builds (%s)", err.message);
+    return m;
+}
 
-    /* Defaults: threshold, drift, nondecision one coefficient each. */
+/* Defaults: threshold, drift, nondecision one coefficient each. */
+HARNESS_CASE(default_model)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model *m = NULL;
     bl_model_spec s;
     spec_default(&s, "plain");
     check_true(bl_model_build(&s, t, NULL, &m, &err) == BL_OK, "default model builds");
@@ -44,17 +79,14 @@ int main(void)
                "single intercept: term 'intercept', empty level");
     check_true(bl_model_n_trials(m) == t->n, "every kept trial is used");
     bl_model_destroy(m);
+}
 
-    /* Per-level intercepts and per-level slopes; levels in order of first appearance. */
-    bl_slope_spec sl = {"theta", col_context, 1};
-    s.param[BL_THRESHOLD].per = col_context;
-    s.param[BL_THRESHOLD].n_per = 1;
-    s.param[BL_THRESHOLD].slopes = &sl;
-    s.param[BL_THRESHOLD].n_slopes = 1;
-    char *two[] = {"context", "difficulty"};
-    s.param[BL_DRIFT].per = two;
-    s.param[BL_DRIFT].n_per = 2;
-    check_true(bl_model_build(&s, t, NULL, &m, &err) == BL_OK, "per-level model builds (%s)", err.message);
+/* Per-level intercepts and per-level slopes; levels in order of first appearance. */
+HARNESS_CASE(per_level_model)
+{
+    bl_model_spec s;
+    bl_model *m = per_level_model(&s);
+    if (!m) return;
     check_true(bl_model_n_coef(m) == 2 + 2 + 6 + 1, "2 + 2 + 6 + 1 coefficients (got %zu)", bl_model_n_coef(m));
     check_true(!strcmp(bl_model_coef(m, 0)->level, "rich") && !strcmp(bl_model_coef(m, 1)->level, "lean"),
                "threshold levels rich, lean");
@@ -64,8 +96,16 @@ int main(void)
     check_true(!strcmp(bl_model_coef(m, 4)->level, "rich:easy") && !strcmp(bl_model_coef(m, 5)->level, "lean:easy"),
                "level combinations joined with ':' (got %s, %s)", bl_model_coef(m, 4)->level,
                bl_model_coef(m, 5)->level);
+    bl_model_destroy(m);
+}
 
-    /* Selecting trials: excluded rows and `use` flags are left out. */
+/* Selecting trials: excluded rows and `use` flags are left out. */
+HARNESS_CASE(trial_selection)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model_spec s;
+    per_level_spec(&s);
     unsigned char *use = calloc(t->n, 1);
     for (size_t i = 0; i < t->n; i++) use[i] = t->participant[i] == 1;
     t->excluded[t->n / 3 + 1] = "test";
@@ -76,8 +116,16 @@ int main(void)
     t->excluded[t->n / 3 + 1] = NULL;
     bl_model_destroy(mp);
     free(use);
+}
 
-    /* Copy and permutation within cells keep the values of each cell. */
+/* Copy and permutation within cells keep the values of each cell. */
+HARNESS_CASE(copy_and_permutation)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model_spec s;
+    bl_model *m = per_level_model(&s);
+    if (!m) return;
     bl_model *mc = bl_model_copy(m);
     check_true(mc != NULL && bl_model_n_coef(mc) == bl_model_n_coef(m), "copy");
     size_t *cell = malloc(t->n * sizeof *cell);
@@ -113,8 +161,17 @@ int main(void)
     gsl_rng_free(rng);
     free(cell);
     bl_model_destroy(mc);
+    bl_model_destroy(m);
+}
 
-    /* Nesting: the default model is nested in the per-level model, not the other way round. */
+/* Nesting: the default model is nested in the per-level model, not the other way round. */
+HARNESS_CASE(nesting)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model_spec s;
+    bl_model *m = per_level_model(&s);
+    if (!m) return;
     bl_model_spec s0;
     spec_default(&s0, "plain");
     bl_model *m0 = NULL;
@@ -137,8 +194,16 @@ int main(void)
     bl_model_destroy(m1);
     bl_model_destroy(m2);
     bl_model_destroy(m);
+}
 
-    /* Errors name the model, the parameter and the culprit. */
+/* Errors name the model, the parameter and the culprit. */
+HARNESS_CASE(unknown_regressor_or_column)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model *m = NULL;
+    bl_model_spec s;
+    per_level_spec(&s);
     bl_model_spec e = s;
     bl_slope_spec bad = {"thetaa", col_context, 1};
     e.name = "typo";
@@ -156,7 +221,18 @@ int main(void)
     st = bl_model_build(&e2, t, NULL, &m, &err);
     check_true(st == BL_ERR_MODEL && contains(err.message, "'drift'") && contains(err.message, "'reward'"),
                "unknown column: %s", err.message);
+}
 
+/* Rank deficiency: constant within levels, collinear, no information at a level. */
+HARNESS_CASE(rank_deficiency)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model *m = NULL;
+    bl_status st;
+    bl_model_spec s;
+    per_level_spec(&s);
+    int ct = bl_table_find(t->table, "theta");
     /* A slope on a regressor constant within each level duplicates that level's intercept. */
     bl_model_spec e3 = s;
     bl_slope_spec flat = {"flat", col_context, 1};
@@ -181,7 +257,7 @@ int main(void)
     /* A slope for a level where the regressor is always 0 cannot be estimated. */
     double *z = malloc(t->n * sizeof *z);
     for (size_t i = 0; i < t->n; i++) z[i] = (i % 2) ? 0.0 : t->table->cols[ct].num[i];
-    bl_table_add_numeric(t->table, "rich_only", z, NULL);
+    if (bl_table_find(t->table, "rich_only") < 0) bl_table_add_numeric(t->table, "rich_only", z, NULL);
     free(z);
     bl_model_spec e5 = s;
     bl_slope_spec ro = {"rich_only", col_context, 1};
@@ -189,7 +265,14 @@ int main(void)
     st = bl_model_build(&e5, t, NULL, &m, &err);
     check_true(st == BL_ERR_MODEL && contains(err.message, "slope 'rich_only' at level 'lean'"),
                "slope at a level with no information: %s", err.message);
+}
 
+HARNESS_CASE(missing_regressor_value)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model *m = NULL;
+    bl_status st;
     /* A regressor missing on a fitted trial is an error; excluding that trial resolves it. */
     bl_model_spec e6;
     spec_default(&e6, "gappy");
@@ -205,7 +288,14 @@ int main(void)
     check_true(st == BL_OK, "the same model builds once that trial is excluded");
     bl_model_destroy(m);
     t->excluded[2] = NULL;
+}
 
+HARNESS_CASE(text_column_regressor)
+{
+    bl_trials *t = trials();
+    bl_error err = {0};
+    bl_model *m = NULL;
+    bl_status st;
     /* Text column as a regressor. */
     bl_model_spec e7;
     spec_default(&e7, "text");
@@ -215,7 +305,21 @@ int main(void)
     st = bl_model_build(&e7, t, NULL, &m, &err);
     check_true(st == BL_ERR_MODEL && contains(err.message, "'context'") && contains(err.message, "not numeric"),
                "text column as regressor: %s", err.message);
+}
 
-    bl_trials_destroy(t);
-    return harness_summary();
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(default_model),
+        HARNESS_ENTRY(per_level_model),
+        HARNESS_ENTRY(trial_selection),
+        HARNESS_ENTRY(copy_and_permutation),
+        HARNESS_ENTRY(nesting),
+        HARNESS_ENTRY(unknown_regressor_or_column),
+        HARNESS_ENTRY(rank_deficiency),
+        HARNESS_ENTRY(missing_regressor_value),
+        HARNESS_ENTRY(text_column_regressor),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

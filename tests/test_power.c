@@ -84,10 +84,31 @@ static bl_study *load_study(const char *json)
     return s;
 }
 
-int main(void)
+/* The study every case uses: two recordings and their trial table in a fresh folder, loaded, and band power
+ * computed with 1 thread, once; freed (and the folder removed) at exit. */
+static struct {
+    int ready;
+    bl_study *s;
+    bl_trials *t;
+    bl_power_result *r;
+    bl_warnings w; /* the fixture's warnings, kept for the cases that check them */
+} fx;
+
+static void fixture_free(void)
 {
-    gsl_set_error_handler_off();
-    if (!mkdtemp(dir)) return 1;
+    bl_power_result_destroy(fx.r);
+    bl_warnings_clear(&fx.w);
+    bl_trials_destroy(fx.t);
+    bl_study_destroy(fx.s);
+    char cmd[300];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
+}
+
+static int write_fixture_files(void)
+{
+    if (!check_true(mkdtemp(dir) != NULL, "temporary folder %s", dir)) return 0;
+    atexit(fixture_free);
     char rows[4096] = "rat,ext,onset,rt,correct\n";
     for (int p = 0; p < 2; p++)
         for (int k = 0; k < NTR; k++) {
@@ -98,14 +119,29 @@ int main(void)
     write_text("trials.csv", rows);
     write_recording(0, SF_FORMAT_W64 | SF_FORMAT_DOUBLE, "r1.w64");
     write_recording(1, SF_FORMAT_WAV | SF_FORMAT_PCM_24, "r2.wav");
+    return 1;
+}
 
+static int fixture(void)
+{
+    if (fx.ready) return fx.ready > 0;
+    fx.ready = -1;
+    if (!write_fixture_files()) return 0;
     bl_error err = {0};
-    bl_warnings w = {0};
-    bl_study *s = load_study(study_json);
-    bl_trials *t = NULL;
-    bl_power_result *r = NULL;
-    if (!check_true(s && bl_trials_load(s, &t, &w, &err) == BL_OK, "study and trials load: %s", err.message)) return 1;
-    if (!check_true(bl_power_compute(s, t, 1, &r, &w, &err) == BL_OK, "power computed: %s", err.message)) return 1;
+    fx.s = load_study(study_json);
+    int ok = check_true(fx.s && bl_trials_load(fx.s, &fx.t, &fx.w, &err) == BL_OK, "study and trials load: %s",
+                        err.message) &&
+             check_true(bl_power_compute(fx.s, fx.t, 1, &fx.r, &fx.w, &err) == BL_OK, "power computed: %s",
+                        err.message);
+    if (ok) fx.ready = 1;
+    return ok;
+}
+
+/* Window convention, frequency resolution, band bins and line-noise bins. */
+HARNESS_CASE(window_and_bins)
+{
+    if (!fixture()) return;
+    const bl_power_result *r = fx.r;
     check_true(r->fs == FS && r->window_samples == 1000 && r->nperseg == 500 && r->noverlap == 250 && r->n_segments == 3,
                "window 1000 samples, nperseg 500, noverlap 250, 3 segments");
     check_rel(r->df, 2.0, 0, "df = fs / nperseg = 2 Hz");
@@ -113,6 +149,13 @@ int main(void)
     /* line noise 50 Hz: bins within max(2 df, 2 Hz) = 4 Hz of 50 leave the band: 46..54 Hz = 5 bins of 11 */
     check_true(r->bands[1].n_bins == 6 && !r->bands[1].used[25] && !r->bands[1].used[23] && r->bands[1].used[22],
                "line band [40,60] keeps 6 of 11 bins (46-54 Hz left out)");
+}
+
+HARNESS_CASE(analytic_band_power)
+{
+    if (!fixture()) return;
+    const bl_trials *t = fx.t;
+    const bl_power_result *r = fx.r;
     /* analytic: gain 2, sine amplitude A behind 1-2 -> power (2A)^2/2 in the alpha band */
     double worst = 0;
     for (int p = 0; p < 2; p++)
@@ -125,6 +168,13 @@ int main(void)
             if (p == 1) check_rel(r->band_power[i * 2], want, 2e-4, "r2 (24-bit PCM) trial %d: alpha = (gain A)^2/2", k + 1);
         }
     check_abs(worst, 0, 1e-9, "r1 (64-bit float): alpha band power = (gain A)^2/2 for every kept trial (worst relative)");
+}
+
+HARNESS_CASE(artifacts)
+{
+    if (!fixture()) return;
+    const bl_trials *t = fx.t;
+    const bl_power_result *r = fx.r;
     /* artifacts */
     check_true(t->excluded[3] && strcmp(t->excluded[3], "artifact: flat") == 0, "r1 trial 4 flat: %s", t->excluded[3] ? t->excluded[3] : "kept");
     check_true(t->excluded[4] && strcmp(t->excluded[4], "artifact: non-finite") == 0, "r1 trial 5 NaN: %s", t->excluded[4] ? t->excluded[4] : "kept");
@@ -134,6 +184,12 @@ int main(void)
                t->excluded[NTR + 4] ? t->excluded[NTR + 4] : "kept");
     check_true(r->n_artifacts == 4 && t->n_kept == 2 * NTR - 4, "4 artifacts, %d kept", 2 * NTR - 4);
     check_true(isnan(r->psd[3 * r->n_freqs + 5]) && isnan(r->band_power[3 * 2]), "excluded trials have NAN PSD rows");
+}
+
+HARNESS_CASE(standardized_regressors)
+{
+    if (!fixture()) return;
+    const bl_trials *t = fx.t;
     /* regressors: <band>_power raw, <band> = z-score of log10 within participant (sample SD) */
     int c_raw = bl_table_find(t->table, "alpha_power"), c_z = bl_table_find(t->table, "alpha");
     if (check_true(c_raw >= 0 && c_z >= 0, "alpha_power and alpha columns added")) {
@@ -170,7 +226,16 @@ int main(void)
             check_rel(zs / (n - 1), 1, 1e-12, "participant %d: z sample variance 1", p + 1);
         }
     }
-    /* thread invariance: the same bytes with 2 threads */
+}
+
+/* Thread invariance: the same bytes with 2 threads. */
+HARNESS_CASE(thread_invariance)
+{
+    if (!fixture()) return;
+    bl_error err = {0};
+    const bl_study *s = fx.s;
+    const bl_trials *t = fx.t;
+    const bl_power_result *r = fx.r;
     {
         bl_trials *t2 = NULL;
         bl_power_result *r2 = NULL;
@@ -181,6 +246,16 @@ int main(void)
         bl_power_result_destroy(r2);
         bl_trials_destroy(t2);
     }
+}
+
+HARNESS_CASE(power_csv_and_summary)
+{
+    if (!fixture()) return;
+    bl_error err = {0};
+    const bl_study *s = fx.s;
+    const bl_trials *t = fx.t;
+    const bl_power_result *r = fx.r;
+    int c_raw = bl_table_find(t->table, "alpha_power");
     /* power.csv */
     char path[300];
     snprintf(path, sizeof path, "%s/power.csv", dir);
@@ -229,18 +304,24 @@ int main(void)
         }
     }
     int confound_warned = 0;
-    for (size_t k = 0; k < w.count; k++) confound_warned |= strstr(w.items[k], "power.window") != NULL;
+    for (size_t k = 0; k < fx.w.count; k++) confound_warned |= strstr(fx.w.items[k], "power.window") != NULL;
     check_true(!confound_warned && r->n_window_confounds == 0,
                "onset-aligned window ending at the onset: no RT-position warning");
     char *summary = bl_check_summary(s, t, r);
     check_true(summary && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
                "check summary names exclusions, bands and rate");
     free(summary);
-    bl_power_result_destroy(r);
-    bl_trials_destroy(t);
-    bl_study_destroy(s);
+}
 
-    /* errors naming participant, trial and file */
+/* Errors naming participant, trial and file. */
+HARNESS_CASE(errors)
+{
+    if (!fixture()) return;
+    bl_error err = {0};
+    bl_warnings w = {0};
+    bl_study *s;
+    bl_trials *t = NULL;
+    bl_power_result *r = NULL;
     write_text("late.csv", "rat,ext,onset,rt,correct\nr1,w64,2.0004,0.5,1\nr1,w64,29.5,0.5,1\n");
     char js[2048];
     snprintf(js, sizeof js, "%s", study_json);
@@ -285,7 +366,12 @@ int main(void)
     bl_trials_destroy(t);
     bl_study_destroy(s);
     bl_warnings_clear(&w);
+}
 
+/* Windows whose position depends on the RT are reported (the share and count of such windows). */
+HARNESS_CASE(window_confounds)
+{
+    if (!fixture()) return;
     /* Windows whose position depends on the RT: r1 only, RT 0.2 s on trials 1-3, 0.5 s on the rest.
      * Onset-aligned [-1, 0.3) s reaches past the response when rt < 0.3: trials 1-3, 3 of 12 = 25.0%.
      * Response-aligned [-0.4, 0) s begins before the onset when rt - 0.4 < 0: again trials 1-3.
@@ -310,9 +396,10 @@ int main(void)
                      "\"bands\": {\"alpha\": [6, 14]}, \"standardize\": \"none\"}}",
                      windows[c]);
             bl_warnings cw = {0};
-            s = load_study(cj);
-            t = NULL;
-            r = NULL;
+            bl_study *s = load_study(cj);
+            bl_trials *t = NULL;
+            bl_power_result *r = NULL;
+            bl_error err = {0};
             if (s && bl_trials_load(s, &t, &cw, &err) == BL_OK && bl_power_compute(s, t, 1, &r, &cw, &err) == BL_OK) {
                 const char *hit = NULL;
                 for (size_t k = 0; k < cw.count; k++)
@@ -332,8 +419,20 @@ int main(void)
             bl_warnings_clear(&cw);
         }
     }
-    char cmd[300];
-    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
-    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(window_and_bins),
+        HARNESS_ENTRY(analytic_band_power),
+        HARNESS_ENTRY(artifacts),
+        HARNESS_ENTRY(standardized_regressors),
+        HARNESS_ENTRY(thread_invariance),
+        HARNESS_ENTRY(power_csv_and_summary),
+        HARNESS_ENTRY(errors),
+        HARNESS_ENTRY(window_confounds),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -39,15 +39,33 @@ done:
     return out;
 }
 
-int main(void)
-{
-    gsl_set_error_handler_off();
-    char dir[] = "/tmp/bl_test_report_XXXXXX";
-    check_true(mkdtemp(dir) != NULL, "temp folder");
-    char path[256], path2[256];
-    snprintf(path, sizeof path, "%s/report.html", dir);
-    snprintf(path2, sizeof path2, "%s/again.html", dir);
+/* The scratch folder (report.html and again.html in it), made on first use and removed at exit. */
+static char dir[] = "/tmp/bl_test_report_XXXXXX";
+static char path[256], path2[256];
 
+static void scratch_free(void)
+{
+    char cmd[300];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
+}
+
+static int scratch(void)
+{
+    static int state;
+    if (!state) {
+        state = mkdtemp(dir) ? 1 : -1;
+        if (state > 0) atexit(scratch_free);
+        check_true(state > 0, "temp folder");
+        snprintf(path, sizeof path, "%s/report.html", dir);
+        snprintf(path2, sizeof path2, "%s/again.html", dir);
+    }
+    return state > 0;
+}
+
+HARNESS_CASE(full_report)
+{
+    if (!scratch()) return;
     fixture *fx = fixture_create(20261202, 0);
     bl_warnings w = {0};
     bl_warnings_add(&w, "participant r2: 41%% of trials excluded <check> & \"fix\"");
@@ -99,19 +117,29 @@ int main(void)
     free(a);
     free(b);
     bl_warnings_clear(&w);
+    fixture_destroy(fx);
+}
 
-    /* No warnings, no recordings. */
-    a = make(fx, path, 0, NULL);
+/* No warnings, no recordings. */
+HARNESS_CASE(no_warnings_no_recordings)
+{
+    if (!scratch()) return;
+    fixture *fx = fixture_create(20261202, 0);
+    char *a = make(fx, path, 0, NULL);
     if (a) {
         check_true(strstr(a, "<h3>Warnings</h3>\n<p>None.</p>") != NULL, "no warnings said so");
         check_true(!strstr(a, "Welch settings"), "no Welch settings without recordings");
     }
     free(a);
     fixture_destroy(fx);
+}
 
-    /* Separate mode: group table and per-participant tables. */
-    fx = fixture_create(5, 1);
-    a = make(fx, path, 1, NULL);
+/* Separate mode: group table and per-participant tables. */
+HARNESS_CASE(separate_mode)
+{
+    if (!scratch()) return;
+    fixture *fx = fixture_create(5, 1);
+    char *a = make(fx, path, 1, NULL);
     if (a) {
         check_true(strstr(a, "Group summary (DerSimonian&#8211;Laird random effects)") != NULL, "group table");
         check_true(strstr(a, "<h3>Participant r1</h3>") && strstr(a, "<h3>Participant r2</h3>"), "participant tables");
@@ -119,9 +147,13 @@ int main(void)
     }
     free(a);
     fixture_destroy(fx);
+}
 
-    /* The one-call entry point writes all three outputs. */
-    fx = fixture_create(11, 0);
+/* The one-call entry point writes all three outputs. */
+HARNESS_CASE(outputs_write)
+{
+    if (!scratch()) return;
+    fixture *fx = fixture_create(11, 0);
     bl_error e1 = {0};
     double secs[3] = {-1, -1, -1};
     check_true(bl_report_outputs_write(dir, NULL, &fx->study, &fx->trials, &fx->power, &fx->set, NULL, 2, secs, &e1) ==
@@ -141,7 +173,10 @@ int main(void)
     snprintf(figdir, sizeof figdir, "%s/figures", dir);
     rmdir(figdir);
     fixture_destroy(fx);
+}
 
+HARNESS_CASE(unwritable_path_and_caution)
+{
     /* A folder that does not exist: an error naming the path, nothing written. */
     bl_error err = {0};
     check_true(bl_report_write("/nonexistent-dir-bl/report.html", NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, &err) ==
@@ -149,8 +184,17 @@ int main(void)
                    strstr(err.message, "/nonexistent-dir-bl/report.html"),
                "unwritable path: I/O error naming it (%s)", err.message);
     check_true(strstr(bl_report_caution(), "not a medical device") != NULL, "caution text");
-    unlink(path);
-    unlink(path2);
-    rmdir(dir);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(full_report),
+        HARNESS_ENTRY(no_warnings_no_recordings),
+        HARNESS_ENTRY(separate_mode),
+        HARNESS_ENTRY(outputs_write),
+        HARNESS_ENTRY(unwritable_path_and_caution),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -77,16 +77,34 @@ static void expect_error(const char *base, const char *from, const char *to, con
     free(s);
 }
 
-int main(void)
-{
-    gsl_set_error_handler_off();
-    const double fs = 1000.0;
-    const size_t n = 200000;
-    double *x = malloc(n * sizeof *x), *y = malloc(n * sizeof *y);
-    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
-    bl_error err = {0};
-    if (!x || !y || !r) return 1;
+/* Buffers and generator of the noise cases: two signals of 200 s at 1000 Hz; freed at exit. */
+static const double fs = 1000.0;
+static const size_t n = 200000;
+static double *x, *y;
+static gsl_rng *r;
 
+static void noise_free(void)
+{
+    free(x);
+    free(y);
+    gsl_rng_free(r);
+}
+
+static int noise_buffers(void)
+{
+    if (!x) {
+        x = malloc(n * sizeof *x);
+        y = malloc(n * sizeof *y);
+        r = gsl_rng_alloc(gsl_rng_mt19937);
+        atexit(noise_free);
+    }
+    return check_true(x && y && r, "noise buffers allocated");
+}
+
+HARNESS_CASE(coloured_noise_spectra)
+{
+    if (!noise_buffers()) return;
+    bl_error err = {0};
     const double alphas[] = {0.0, 1.0, 2.0};
     for (size_t a = 0; a < 3; a++) {
         gsl_rng_set(r, 11 + a);
@@ -103,11 +121,22 @@ int main(void)
         double s = spectral_slope(x, n, fs, 2.0, 200.0);
         check_abs(s, -alphas[a], 0.08, "alpha %g: log-log PSD slope over 2-200 Hz", alphas[a]);
     }
+}
+
+HARNESS_CASE(flat_below_the_corner)
+{
+    if (!noise_buffers()) return;
+    bl_error err = {0};
     /* Flat below the corner: with corner 20 Hz, the slope over 1..15 Hz is ~0. */
     gsl_rng_set(r, 5);
     bl_simulate_colored_noise(x, n, fs, 2.0, 20.0, 1.0, r, &err);
     check_abs(spectral_slope(x, n, fs, 1.0, 15.0), 0.0, 0.15, "alpha 2, corner 20 Hz: flat below the corner");
+}
 
+HARNESS_CASE(seeds)
+{
+    if (!noise_buffers()) return;
+    bl_error err = {0};
     /* Same seed, same samples; another seed, other samples. */
     gsl_rng_set(r, 99);
     bl_simulate_colored_noise(x, 5000, fs, 1.0, 1.0, 1.0, r, &err);
@@ -117,7 +146,11 @@ int main(void)
     gsl_rng_set(r, 100);
     bl_simulate_colored_noise(y, 5000, fs, 1.0, 1.0, 1.0, r, &err);
     check_true(memcmp(x, y, 5000 * sizeof *x) != 0, "other seed: different noise");
+}
 
+HARNESS_CASE(scenario_parsing)
+{
+    bl_error err = {0};
     /* Scenario parsing: the demo scenario is valid; edits produce errors naming the key path. */
     const char *root = getenv("BL_SOURCE_ROOT");
     char path[4096];
@@ -156,8 +189,16 @@ int main(void)
         expect_error(demo, "{", "{,", "scenario.json:1:");
     }
     free(demo);
-    gsl_rng_free(r);
-    free(x);
-    free(y);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(coloured_noise_spectra),
+        HARNESS_ENTRY(flat_below_the_corner),
+        HARNESS_ENTRY(seeds),
+        HARNESS_ENTRY(scenario_parsing),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -65,7 +65,7 @@ static void check_fixtures(const char *dir)
         if (sscanf(line, "%63s %zu %lf %zu %zu %zu %15s %15s %15s", name, &n, &fs, &nperseg, &noverlap, &nfft, det, avg,
                    sc) != 9)
             continue;
-        size_t nx, np, nf;
+        size_t nx = 0, np = 0, nf;
         snprintf(path, sizeof path, "%s/%s.x.f64", dir, name);
         double *x = read_f64(path, &nx);
         snprintf(path, sizeof path, "%s/%s.psd.f64", dir, name);
@@ -96,11 +96,14 @@ static void check_fixtures(const char *dir)
     check_true(cases >= 12, "%d scipy fixtures checked", cases);
 }
 
-int main(int argc, char **argv)
+/* The scipy fixture folder: argv[1], $BL_SOURCE_ROOT, or beside this source file; __FILE__ is relative to the
+ * build folder (where meson runs tests), so also try it relative to the folder above this executable. */
+static char *fixture_dir;
+
+static void fixture_dir_free(void) { free(fixture_dir); }
+
+static void find_fixture_dir(int argc, char **argv)
 {
-    gsl_set_error_handler_off();
-    /* fixtures: argv[1], $BL_SOURCE_ROOT, or beside this source file; __FILE__ is relative to the build
-     * folder (where meson runs tests), so also try it relative to the folder above this executable */
     char dir[4096] = "";
     const char *root = getenv("BL_SOURCE_ROOT");
     char src[1024];
@@ -125,8 +128,14 @@ int main(int argc, char **argv)
             snprintf(dir, sizeof dir, "%s/%s/fixtures/welch", exe, src);
         }
     }
-    check_fixtures(dir);
+    fixture_dir = strdup(dir);
+    atexit(fixture_dir_free);
+}
 
+HARNESS_CASE(scipy_fixtures) { check_fixtures(fixture_dir); }
+
+HARNESS_CASE(bin_centred_sine)
+{
     /* Analytic: A sin at a bin centre has total power A^2/2 (Parseval; the shared signal notes, table
      * "Analytic checks", observed 4.5000 with scipy 1.10.1). A = 3, fs = 1000, nperseg 1000 (df 1 Hz), 50 Hz. */
     {
@@ -146,6 +155,10 @@ int main(int argc, char **argv)
         free(p);
         free(x);
     }
+}
+
+HARNESS_CASE(white_noise_and_parseval)
+{
     /* White noise of variance s^2 has one-sided density 2 s^2 / fs (the shared signal notes: 0.015988 vs
      * 0.016 observed with scipy for its sigma^2 = 8). Here s = 2, fs = 1000: 0.008. */
     {
@@ -183,6 +196,10 @@ int main(int argc, char **argv)
         free(x);
         gsl_rng_free(rng);
     }
+}
+
+HARNESS_CASE(band_bins)
+{
     /* Band bins: closed band, DC never counts, edges on bins kept (shared signal conventions). */
     {
         size_t a, b, c;
@@ -198,12 +215,20 @@ int main(int argc, char **argv)
         double psd[6] = {100, 1, 2, 3, 4, 5};
         check_rel(bl_band_power(psd, 0.5, 1, 4, mask), 0.5 * (1 + 3 + 4), 1e-15, "masked bins leave the band sum");
     }
+}
+
+HARNESS_CASE(fft_sizes)
+{
     /* Helpers: factorisation facts (arithmetic). */
     check_true(bl_largest_prime_factor(1024) == 2 && bl_largest_prime_factor(1000) == 5 &&
                    bl_largest_prime_factor(4099) == 4099 && bl_largest_prime_factor(1029) == 7,
                "largest prime factor of 1024, 1000, 4099 (prime), 1029 = 3*7^3");
     check_true(bl_next_fast_size(4099) == 4320 && bl_next_fast_size(257) == 270 && bl_next_fast_size(500) == 500,
                "next 2-3-5 size: 4099 -> 4320, 257 -> 270, 500 stays");
+}
+
+HARNESS_CASE(bad_settings)
+{
     /* Bad settings are errors, not crashes */
     {
         bl_welch_plan *p = NULL;
@@ -221,5 +246,26 @@ int main(int argc, char **argv)
         bl_welch_work_destroy(w);
         bl_welch_plan_destroy(p);
     }
-    return harness_summary();
+}
+
+/* Usage: test_spectrum [FIXTURE_DIR] [--list] [--case NAME]... */
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    int fixture_arg = argc > 1 && argv[1][0] != '-';
+    find_fixture_dir(fixture_arg ? 2 : 1, argv);
+    if (fixture_arg) {
+        argv[1] = argv[0];
+        argv++;
+        argc--;
+    }
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(scipy_fixtures),
+        HARNESS_ENTRY(bin_centred_sine),
+        HARNESS_ENTRY(white_noise_and_parseval),
+        HARNESS_ENTRY(band_bins),
+        HARNESS_ENTRY(fft_sizes),
+        HARNESS_ENTRY(bad_settings),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -6,7 +6,7 @@
 #include <string.h>
 #include <unistd.h>
 
-int main(void)
+HARNESS_CASE(status_texts_and_exit_codes)
 {
     for (int s = 0; s < BL_STATUS_COUNT; s++) {
         check_true(strcmp(bl_strerror((bl_status)s), "unknown status") != 0, "status %d has a text", s);
@@ -17,11 +17,18 @@ int main(void)
     check_true(bl_status_exit_code(BL_OK) == 0, "ok exits 0");
     check_true(bl_status_exit_code(BL_ERR_INPUT) == 2, "bad input exits 2");
     check_true(bl_status_exit_code(BL_ERR_IO) == 1, "io failure exits 1");
+}
 
+HARNESS_CASE(one_line_messages)
+{
     bl_error err = {0};
     bl_error_set(&err, BL_ERR_INPUT, "trials.csv:%d:%d: line\nbreak", 3, 4);
     check_true(err.status == BL_ERR_INPUT && strchr(err.message, '\n') == NULL, "messages stay on one line");
+}
 
+HARNESS_CASE(atomic_write)
+{
+    bl_error err = {0};
     /* Atomic write: the target appears whole, no temporary file is left behind. */
     char dir[] = "/tmp/bl_test_status_XXXXXX";
     check_true(mkdtemp(dir) != NULL, "temporary folder");
@@ -38,5 +45,14 @@ int main(void)
     check_true(rmdir(dir) == 0, "no temporary file left behind");
     free(path);
     free(sub);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(status_texts_and_exit_codes),
+        HARNESS_ENTRY(one_line_messages),
+        HARNESS_ENTRY(atomic_write),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -26,10 +26,10 @@ static void expect_error(const char *json, const char *want1, const char *want2)
     bl_study_destroy(s);
 }
 
-int main(void)
+/* The full example of the vocabulary contract. */
+HARNESS_CASE(full_example)
 {
     bl_error err = {0};
-    /* the full example of the vocabulary contract */
     const char *full =
         "{\n"
         "  \"trials\": {\"file\": \"trials.csv\", \"participant\": \"animal\", \"rt\": \"rt\", \"rt_unit\": \"ms\",\n"
@@ -99,8 +99,13 @@ int main(void)
         free(json);
         bl_study_destroy(s);
     }
-    /* defaults of a minimal study */
-    s = parse("{" TRIALS "," REC "," POW "}", &err);
+}
+
+/* Defaults of a minimal study. */
+HARNESS_CASE(minimal_defaults)
+{
+    bl_error err = {0};
+    bl_study *s = parse("{" TRIALS "," REC "," POW "}", &err);
     if (check_true(s != NULL, "minimal study parses: %s", err.message)) {
         check_true(s->power.segment == 0.5 && s->power.overlap == 0.5 && s->power.detrend == BL_DETREND_MEAN &&
                        s->power.scale == BL_SCALE_LOG10 && s->power.standardize == BL_STANDARDIZE_PARTICIPANT &&
@@ -112,11 +117,19 @@ int main(void)
                    "documented defaults filled in");
         bl_study_destroy(s);
     }
-    /* syntax errors: line and column */
+}
+
+/* Syntax errors: line and column. */
+HARNESS_CASE(syntax_errors)
+{
     expect_error("{\n  \"trials\": {\"file\": 1,}\n}", "study.json:2:", "JSON syntax error");
     expect_error("{\"trials\": ", "study.json:1:", "end of file");
     expect_error("[1, 2]", "must be a JSON object", NULL);
-    /* structure errors: key path and value */
+}
+
+/* Structure errors in models and fit: key path and value. */
+HARNESS_CASE(model_errors)
+{
     expect_error("{" TRIALS ", \"model\": []}", "unknown key \"model\"", NULL);
     expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"threshold\": {\"slope\": {}}}]}",
                  "unknown key \"models[0].threshold.slope\"", "slopes");
@@ -136,6 +149,11 @@ int main(void)
                  "models[0].drift.slopes.theta", "\"ctx\"");
     expect_error("{" TRIALS ", \"fit\": {\"participants\": \"pool\"}}", "fit.participants", "\"pool\"");
     expect_error("{" TRIALS ", \"fit\": {\"starts\": 0}}", "fit.starts", NULL);
+}
+
+/* Structure errors in trials: key path and value. */
+HARNESS_CASE(trials_errors)
+{
     expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"c\"}}",
                  "trials.upper", "required");
     expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": 3, \"response\": \"c\", \"upper\": [1]}}",
@@ -144,6 +162,11 @@ int main(void)
                  "trials.rt_unit", "\"sec\"");
     expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"c\", \"upper\": [1], \"keep\": {\"rt_min\": 2, \"rt_max\": 1}}}",
                  "trials.keep.rt_max", NULL);
+}
+
+/* Structure errors in recordings and power: key path and value. */
+HARNESS_CASE(recordings_and_power_errors)
+{
     expect_error("{" TRIALS "," REC "}", "\"power\"", "required");
     expect_error("{" TRIALS "," POW "}", "\"recordings\"", "required");
     expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.flac\", \"onset\": \"onset\", \"unit\": \"volts\"}," POW "}",
@@ -174,9 +197,28 @@ int main(void)
                  "power.artifacts.clip", NULL);
     expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"bands\": {\"the ta\": [4, 8]}}}",
                  "power.bands.the ta", NULL);
+}
+
+/* A key given twice, a study file that does not exist. */
+HARNESS_CASE(duplicate_key_and_missing_file)
+{
+    bl_error err = {0};
     expect_error("{" TRIALS ", \"trials\": {}}", "appears twice", NULL);
     bl_study *x = NULL;
     check_true(bl_study_load("/nonexistent/study.json", &x, &err) == BL_ERR_INPUT && strstr(err.message, "/nonexistent/study.json"),
                "missing study file named: %s", err.message);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(full_example),
+        HARNESS_ENTRY(minimal_defaults),
+        HARNESS_ENTRY(syntax_errors),
+        HARNESS_ENTRY(model_errors),
+        HARNESS_ENTRY(trials_errors),
+        HARNESS_ENTRY(recordings_and_power_errors),
+        HARNESS_ENTRY(duplicate_key_and_missing_file),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -55,12 +55,20 @@ static void fill(bl_fit_set *set, bl_model_result *m, bl_comparison_row *r, cons
     }
 }
 
-int main(void)
+static bl_fit_set set;
+static bl_model_result m[2];
+static bl_comparison_row r[2];
+static bl_coefficient c[2];
+
+static void coefficients(void)
 {
-    bl_fit_set set;
-    bl_model_result m[2];
-    bl_comparison_row r[2];
-    bl_coefficient c[2] = {slope("threshold", "theta", "rich", 0.25), slope("drift", "beta", "", -0.2)};
+    c[0] = slope("threshold", "theta", "rich", 0.25);
+    c[1] = slope("drift", "beta", "", -0.2);
+}
+
+HARNESS_CASE(aic_and_bic_disagree)
+{
+    coefficients();
 
     /* AIC and BIC disagree: one extra parameter gaining 1.5 log-likelihood units on 1000 trials lowers AIC by
      * 1 but raises BIC by ln(1000) - 3 = 3.9. */
@@ -74,31 +82,57 @@ int main(void)
     check_true(s && strstr(s, "threshold: slope on theta [rich]") && strstr(s, "drift: slope on beta"),
                "the slopes of both the best and the competing model are printed");
     free(s);
+}
 
+HARNESS_CASE(clear_winner)
+{
+    coefficients();
+    size_t k1[2] = {5, 6};
     /* A clear winner by both criteria (ΔAIC = 2*20 - 2 = 38): no competitor. */
     double ll2[2] = {-500, -480};
     fill(&set, m, r, ll2, k1, 1000, c);
-    s = bl_summary_fits(&set);
+    char *s = bl_summary_fits(&set);
     check_true(s && strstr(s, "Best model by AIC: large") && !strstr(s, "Competing model"),
                "a clear winner by AIC and BIC: no competing model");
     free(s);
+}
 
+HARNESS_CASE(close_call)
+{
+    coefficients();
     /* Same size, ΔAIC = 1 < 2 and BIC agrees: the runner-up is reported as within 2 AIC units (Burnham &
      * Anderson 2002: models within 2 AIC units have substantial support; common practice). */
     double ll3[2] = {-500, -499.5};
     size_t k3[2] = {6, 6};
     fill(&set, m, r, ll3, k3, 1000, c);
-    s = bl_summary_fits(&set);
+    char *s = bl_summary_fits(&set);
     check_true(s && strstr(s, "Competing model: small") && strstr(s, "within 2 AIC units"),
                "dAIC < 2 with BIC agreeing: the runner-up is shown as a close call");
     free(s);
+}
 
+HARNESS_CASE(no_finite_aic)
+{
+    coefficients();
+    double ll[2] = {-500, -499.5};
+    size_t k[2] = {6, 6};
+    fill(&set, m, r, ll, k, 1000, c);
     /* No finite AIC (both fits failed): said plainly, no best model. */
     r[0].aic = r[1].aic = NAN;
     r[0].bic = r[1].bic = NAN;
-    s = bl_summary_fits(&set);
+    char *s = bl_summary_fits(&set);
     check_true(s && strstr(s, "No model has a finite AIC") && !strstr(s, "Best model"),
                "no finite AIC: no best model is named");
     free(s);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(aic_and_bic_disagree),
+        HARNESS_ENTRY(clear_winner),
+        HARNESS_ENTRY(close_call),
+        HARNESS_ENTRY(no_finite_aic),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -14,7 +14,7 @@ static bl_table *parse(const char *text, bl_error *err)
     return t;
 }
 
-int main(void)
+HARNESS_CASE(bids_events_tsv)
 {
     bl_error err = {0};
     /* BIDS events.tsv (columns and n/a as in the BIDS task-events example) */
@@ -32,6 +32,12 @@ int main(void)
         check_true(t->line[0] == 2 && t->line[2] == 4, "source lines recorded");
         bl_table_destroy(t);
     }
+}
+
+HARNESS_CASE(rfc4180_quoting)
+{
+    bl_error err = {0};
+    bl_table *t;
     /* RFC 4180: quoted fields with the delimiter, doubled quotes and a line break; CRLF; BOM */
     t = parse("\xef\xbb\xbf" "name,\"note\",x\r\n"
               "a,\"one, two\",1\r\n"
@@ -47,6 +53,12 @@ int main(void)
         check_true(t->cols[2].numeric && isnan(t->cols[2].num[2]), "NA is missing in a numeric column");
         bl_table_destroy(t);
     }
+}
+
+HARNESS_CASE(numbers_and_missing_cells)
+{
+    bl_error err = {0};
+    bl_table *t;
     /* numbers: only plain decimals; "inf", "nan", hex are text */
     t = parse("a,b,c\n1e3,inf,0x10\n-2.5,1,3\n", &err);
     if (check_true(t != NULL, "parses")) {
@@ -58,6 +70,12 @@ int main(void)
     t = parse("a,b\n\"\",1\n", &err);
     check_true(t && t->n_rows == 1 && t->cols[0].text[0] == NULL && t->cols[1].num[0] == 1, "\"\" is missing");
     bl_table_destroy(t);
+}
+
+HARNESS_CASE(errors)
+{
+    bl_error err = {0};
+    bl_table *t;
     /* errors */
     struct {
         const char *text, *want;
@@ -83,5 +101,15 @@ int main(void)
     t = parse("a,b\n", &err);
     check_true(t && t->n_rows == 0 && t->n_cols == 2, "header-only table has 0 rows");
     bl_table_destroy(t);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(bids_events_tsv),
+        HARNESS_ENTRY(rfc4180_quoting),
+        HARNESS_ENTRY(numbers_and_missing_cells),
+        HARNESS_ENTRY(errors),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

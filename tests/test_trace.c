@@ -72,10 +72,34 @@ static void round_trip(const char *dir, const char *name, int format, int bits)
     bl_trace_close(t);
 }
 
-int main(void)
+/* A scratch folder for the cases, made on first use and removed at exit. */
+static char dir[] = "/tmp/bl_test_trace_XXXXXX";
+
+static void scratch_free(void)
 {
-    char dir[] = "/tmp/bl_test_trace_XXXXXX";
-    if (!mkdtemp(dir)) return 1;
+    char cmd[600];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
+}
+
+static int scratch(void)
+{
+    static int state;
+    if (!state) {
+        state = mkdtemp(dir) ? 1 : -1;
+        if (state > 0) atexit(scratch_free);
+        check_true(state > 0, "temporary folder %s", dir);
+    }
+    return state > 0;
+}
+
+/* The five sound files (written and read back, with their checks) once. */
+static int round_trip_files(void)
+{
+    static int done;
+    if (!scratch()) return 0;
+    if (done) return 1;
+    done = 1;
     /* three channels: a 10 Hz sine, a 37 Hz cosine, and noise-like values, inside +-0.9 */
     for (size_t i = 0; i < FRAMES; i++) {
         double t = (double)i / 2000.0;
@@ -88,7 +112,15 @@ int main(void)
     round_trip(dir, "pcm24.wav", SF_FORMAT_WAV | SF_FORMAT_PCM_24, 24);
     round_trip(dir, "pcm16.flac", SF_FORMAT_FLAC | SF_FORMAT_PCM_16, 16);
     round_trip(dir, "pcm24.flac", SF_FORMAT_FLAC | SF_FORMAT_PCM_24, 24);
+    return 1;
+}
 
+HARNESS_CASE(round_trips) { round_trip_files(); }
+
+/* Missing, unreadable and truncated files. */
+HARNESS_CASE(bad_files)
+{
+    if (!round_trip_files()) return;
     bl_error err = {0};
     bl_trace *t = NULL;
     char path[512];
@@ -123,7 +155,11 @@ int main(void)
     } else {
         check_true(strstr(err.message, "cut.wav") != NULL, "truncated WAV refused at open: %s", err.message);
     }
+}
 
+HARNESS_CASE(montage)
+{
+    bl_error err = {0};
     /* bipolar montage removes an injected common-mode signal exactly (difference of identical doubles) */
     {
         static double x[1000 * 2], out[1000];
@@ -153,7 +189,16 @@ int main(void)
                            strstr(err.message, "recordings.channels[0]"),
                        "channel \"%s\" rejected: %s", bad[k], err.message);
     }
-    /* CSV trace: header row, one column per channel, rate from the study */
+}
+
+/* CSV trace: header row, one column per channel, rate from the study. */
+HARNESS_CASE(csv_trace)
+{
+    if (!scratch()) return;
+    bl_error err = {0};
+    bl_trace *t = NULL;
+    char path[512];
+    FILE *f;
     {
         snprintf(path, sizeof path, "%s/trace.csv", dir);
         f = fopen(path, "w");
@@ -178,7 +223,12 @@ int main(void)
         check_true(bl_trace_open(path, 100, &t, &err) == BL_ERR_INPUT && strstr(err.message, "bad.tsv:3:3"),
                    "non-numeric CSV sample names file:line:column: %s", err.message);
     }
-    /* {column} patterns */
+}
+
+/* {column} patterns. */
+HARNESS_CASE(file_patterns)
+{
+    bl_error err = {0};
     {
         bl_table *tab = bl_table_create(2);
         const char *animal[] = {"r1", NULL}, *sess[] = {"2", "3"};
@@ -197,6 +247,12 @@ int main(void)
                    err.message);
         bl_table_destroy(tab);
     }
+}
+
+HARNESS_CASE(unknown_length_flac)
+{
+    if (!scratch()) return;
+    bl_error err = {0};
     {
         /* A FLAC stream whose STREAMINFO gives 0 total samples, which the FLAC format specification
          * (xiph.org, "STREAMINFO": 0 means the total is unknown) allows; libsndfile then reports
@@ -217,8 +273,17 @@ int main(void)
                    "a recording without a usable length is refused: %s", err.message);
         bl_trace_close(t);
     }
-    char cmd[600];
-    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
-    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(round_trips),
+        HARNESS_ENTRY(bad_files),
+        HARNESS_ENTRY(montage),
+        HARNESS_ENTRY(csv_trace),
+        HARNESS_ENTRY(file_patterns),
+        HARNESS_ENTRY(unknown_length_flac),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

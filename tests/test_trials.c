@@ -30,9 +30,30 @@ static bl_status load(const char *study_json, bl_trials **t, bl_warnings *w, bl_
     return st;
 }
 
-int main(void)
+static void scratch_free(void)
 {
-    if (!mkdtemp(dir)) return 1;
+    char cmd[300];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
+}
+
+/* The scratch folder of the trial tables, made on first use and removed at exit. */
+static int scratch(void)
+{
+    static int state;
+    if (!state) {
+        state = mkdtemp(dir) ? 1 : -1;
+        if (state > 0) atexit(scratch_free);
+        check_true(state > 0, "temporary folder %s", dir);
+    }
+    return state > 0;
+}
+
+static void write_acc_csv(void) { write_file("acc.csv", "rat,trial,rt,correct\nr1,10,0.5,1.0\nr1,11,0.6,0\nr2,10,0.7,1\n"); }
+
+HARNESS_CASE(bids_events_stimulus_coding)
+{
+    if (!scratch()) return;
     bl_error err = {0};
     bl_warnings w = {0};
     bl_trials *t = NULL;
@@ -70,8 +91,17 @@ int main(void)
         check_true(t->n_kept == 2 && strcmp(t->excluded[0], "artifact: flat") == 0, "first reason wins, n_kept updated");
         bl_trials_destroy(t);
     }
+    bl_warnings_clear(&w);
+}
+
+HARNESS_CASE(accuracy_coding)
+{
+    if (!scratch()) return;
+    bl_error err = {0};
+    bl_warnings w = {0};
+    bl_trials *t = NULL;
     /* accuracy coding with numeric values, own trial column, CSV */
-    write_file("acc.csv", "rat,trial,rt,correct\nr1,10,0.5,1.0\nr1,11,0.6,0\nr2,10,0.7,1\n");
+    write_acc_csv();
     const char *acc = "{\"trials\": {\"file\": \"acc.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [1]}}";
     if (check_true(load(acc, &t, &w, &err) == BL_OK, "accuracy-coded CSV loads: %s", err.message)) {
         check_true(t->upper[0] == 1 && t->upper[1] == 0 && t->upper[2] == 1, "\"1.0\" matches upper [1] numerically");
@@ -79,6 +109,15 @@ int main(void)
         check_true(strcmp(t->trial_label[1], "11") == 0, "the table's own trial column is the label");
         bl_trials_destroy(t);
     }
+    bl_warnings_clear(&w);
+}
+
+HARNESS_CASE(warnings)
+{
+    if (!scratch()) return;
+    bl_error err = {0};
+    bl_warnings w = {0};
+    bl_trials *t = NULL;
     /* warnings: repeated trial labels, more than two response values */
     write_file("dup.csv", "rat,trial,rt,correct\nr1,1,0.5,1\nr1,1,0.6,2\nr1,2,0.5,3\nr2,1,0.5,1\n");
     const char *dup = "{\"trials\": {\"file\": \"dup.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [1]}}";
@@ -92,6 +131,15 @@ int main(void)
         check_true(saw_dup == 1 && saw_vals == 1 && w.count == 2, "warned about the repeated label and the third value");
         bl_trials_destroy(t);
     }
+    bl_warnings_clear(&w);
+}
+
+HARNESS_CASE(errors_name_the_culprit)
+{
+    if (!scratch()) return;
+    bl_error err = {0};
+    bl_warnings w = {0};
+    bl_trials *t = NULL;
     /* errors naming the culprit */
     struct {
         const char *table, *want1, *want2;
@@ -110,6 +158,16 @@ int main(void)
                    "bad trial table %zu: %s", k, err.message);
         bl_trials_destroy(t);
     }
+    bl_warnings_clear(&w);
+}
+
+HARNESS_CASE(band_and_onset_columns)
+{
+    if (!scratch()) return;
+    bl_error err = {0};
+    bl_warnings w = {0};
+    bl_trials *t = NULL;
+    write_acc_csv();
     /* a band whose name is already a column */
     write_file("bad.csv", "rat,rt,correct,onset,theta\nr1,0.5,1,1,3\n");
     const char *clash = "{\"trials\": {\"file\": \"bad.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [1]},"
@@ -123,8 +181,16 @@ int main(void)
     check_true(load(noonset, &t, &w, &err) == BL_ERR_INPUT && strstr(err.message, "recordings.onset"),
                "missing onset column: %s", err.message);
     bl_warnings_clear(&w);
-    char cmd[300];
-    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
-    if (system(cmd) != 0) printf("note: could not remove %s\n", dir);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(bids_events_stimulus_coding),
+        HARNESS_ENTRY(accuracy_coding),
+        HARNESS_ENTRY(warnings),
+        HARNESS_ENTRY(errors_name_the_culprit),
+        HARNESS_ENTRY(band_and_onset_columns),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -33,7 +33,7 @@ static double ld(const bl_wiener_params *p, double rt, int up)
     return x;
 }
 
-static void reference_densities(void)
+HARNESS_CASE(reference_densities)
 {
     /* numerics notes 6.1 (mpmath, 40 digits): t, v, a, w, sv, ln f_lo, ln f_up */
     static const double ref[][7] = {
@@ -61,7 +61,7 @@ static void reference_densities(void)
     check_true(ld(&p, 0.3, 0) == -INFINITY && ld(&p, 0.1, 1) == -INFINITY, "rt <= nondecision gives -inf");
 }
 
-static void reference_probabilities(void)
+HARNESS_CASE(reference_probabilities)
 {
     /* numerics notes 6.2: P_lo closed form (Cox & Miller 1965 gambler's-ruin probability) */
     static const double ref[][4] = {{1, 1, 0.5, 0.2689414213699951},
@@ -86,7 +86,7 @@ static void reference_probabilities(void)
     check_rel(pu2, 0.37, 1e-10, "drift 1e-12: P_up ~ start");
 }
 
-static void reference_cdf_and_moments(void)
+HARNESS_CASE(reference_cdf_and_moments)
 {
     /* numerics notes 6.3: F_lo (small and large forms agree) */
     static const double ref[][5] = {{0.35, 1, 1, 0.5, 0.2166160740499516},
@@ -123,7 +123,7 @@ static void reference_cdf_and_moments(void)
 /* EZ-diffusion (Wagenmakers, van der Maas & Grasman 2007, Psychon. Bull. Rev. 14:3-22), noise s = 1,
  * w = 1/2: Pc = 1/(1+e^y), MDT = (a/(2v)) (1-e^y)/(1+e^y), y = -va. The mean decision time is the
  * same for both boundaries at w = 1/2. */
-static void ez_diffusion(void)
+HARNESS_CASE(ez_diffusion)
 {
     static const double av[][2] = {{1.0, 1.0}, {2.2, 0.4}, {0.8, -2.5}, {3.0, 3.0}, {1.5, 1e-4}};
     for (int i = 0; i < 5; i++) {
@@ -142,7 +142,7 @@ static void ez_diffusion(void)
 
 /* Identities (numerics notes 6.6): at w = 1/2, ln f_up - ln f_lo = v a for every t (mirror rule of
  * Navarro & Fuss 2009); series switch continuity at u = 0.25. */
-static void identities(void)
+HARNESS_CASE(identities)
 {
     bl_wiener_params p = mk(1.7, 0.83, 0, 0.5, 0);
     for (double t = 0.01; t < 8; t *= 1.9)
@@ -172,7 +172,7 @@ static double brute_lo(double t, double v, double a, double w)
                     0.5L * logl(2 * 3.14159265358979323846264338327950288L * u * u * u) + logl(s));
 }
 
-static void far_boundary_corner(void)
+HARNESS_CASE(far_boundary_corner)
 {
     double worst = 0;
     int n = 0;
@@ -210,7 +210,7 @@ static int gbk_terms(double u, double w, double eps)
     return (int)ceil(fmax(k1, k2));
 }
 
-static void gbk_bound(void)
+HARNESS_CASE(gbk_bound)
 {
     double ws[] = {0.001, 0.01, 0.1, 0.3, 0.5, 0.7, 0.9, 0.962, 0.99, 0.999};
     double epss[] = {1e-6, 1e-10};
@@ -247,7 +247,7 @@ static void gbk_bound(void)
     }
 }
 
-static void extremes_and_errors(void)
+HARNESS_CASE(extremes_and_errors)
 {
     /* issue 2: t -> t0, t = 20 s, a = 0.3 and 6, v = +-8 must give finite logs */
     double as[] = {0.3, 1, 6}, vs[] = {-8, 0, 8}, ts[] = {1e-6, 1e-3, 0.05, 1, 20}, ws[] = {1e-6, 0.5, 1 - 1e-6};
@@ -307,7 +307,7 @@ static void extremes_and_errors(void)
 
 /* Gradients: numerics notes 6.5 reference values and central finite differences (numerics 6.9,
  * h = 1e-5 max(1,|theta|), 1e-6 relative) across the small/large-time switch. */
-static void gradients(void)
+HARNESS_CASE(gradients)
 {
     bl_wiener_params p = mk(1, 1, 0, 0.5, 0);
     double g[BL_NPARAM], l;
@@ -360,7 +360,7 @@ static void gradients(void)
 
 /* The engine's sin(pi x), cos(pi x) polynomials against glibc's sin/cos (accurate to < 1 ulp) evaluated
  * in long double, on x in (0, 0.5]. */
-static void sincospi(void)
+HARNESS_CASE(sincospi)
 {
     double es = 0, ec = 0;
     for (int i = 1; i <= 100000; i++) {
@@ -380,7 +380,7 @@ static void sincospi(void)
  * the series switch q = pi^2/8 (the worst case, u = 0.25): the tail after four terms, in units of
  * sin(pi w), against 0.9 eps (S >= 0.9 sin(pi w)); and S/sin(pi w) >= 0.9 over w. Bounds from the
  * numerics notes 1.3 (|sin k pi w| <= k sin pi w; first omitted term plus the tail integral). */
-static void large_time_terms(void)
+HARNESS_CASE(large_time_terms)
 {
     double q = BL_TEST_PI * BL_TEST_PI / 8, X = 5;
     double tail = (X * X + X / (2 * q) + 1 / (4 * q * q * X)) * exp(-(X * X - 1) * q);
@@ -405,19 +405,21 @@ static void large_time_terms(void)
     check_true(werr < 1e-10, "fixed four-term large-time density at u = 0.25: max relative error %.2g", werr);
 }
 
-int main(void)
+int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
-    sincospi();
-    large_time_terms();
-    reference_densities();
-    reference_probabilities();
-    reference_cdf_and_moments();
-    ez_diffusion();
-    identities();
-    far_boundary_corner();
-    gbk_bound();
-    extremes_and_errors();
-    gradients();
-    return harness_summary();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(sincospi),
+        HARNESS_ENTRY(large_time_terms),
+        HARNESS_ENTRY(reference_densities),
+        HARNESS_ENTRY(reference_probabilities),
+        HARNESS_ENTRY(reference_cdf_and_moments),
+        HARNESS_ENTRY(ez_diffusion),
+        HARNESS_ENTRY(identities),
+        HARNESS_ENTRY(far_boundary_corner),
+        HARNESS_ENTRY(gbk_bound),
+        HARNESS_ENTRY(extremes_and_errors),
+        HARNESS_ENTRY(gradients),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

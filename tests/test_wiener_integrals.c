@@ -71,7 +71,7 @@ static bl_wiener_params mk(double a, double v, double w)
     return p;
 }
 
-static void probability_and_moments(void)
+HARNESS_CASE(probability_and_moments)
 {
     static const double set[][3] = {{1, 1, 0.5}, {2, -1.5, 0.3}, {1.5, 2, 0.6}, {0.5, 0, 0.5},
                                     {4, -6, 0.9}, {1.2, 0.3, 0.05}, {3, 0.8, 0.97}, {0.3, 8, 0.5}};
@@ -122,7 +122,7 @@ static double over_nu(double nu, void *vp)
     return exp(l - 0.5 * zz * zz) / (sv * sqrt(2 * M_PI));
 }
 
-static void drift_sd(void)
+HARNESS_CASE(drift_sd)
 {
     static const double set[][5] = {{1, 1, 0.5, 0.5, 0.6}, {1.5, 1, 0.4, 1.2, 0.95}, {2, -2, 0.3, 2.5, 0.45},
                                     {0.8, 0.5, 0.7, 0.3, 3.0}, {1.2, 3, 0.5, 1, 0.22}};
@@ -190,7 +190,7 @@ static void cn_solve(double a, double v, double w, int J, int nt, double tmax, c
     free(dp);
 }
 
-static void crank_nicolson(void)
+HARNESS_CASE(crank_nicolson)
 {
     /* start on a grid node: w J integer for J = 200, 400, 800 */
     static const double set[][3] = {{1, 1, 0.5}, {2, -1.5, 0.3}, {1.2, 0.5, 0.35}};
@@ -242,11 +242,13 @@ static void crank_nicolson(void)
     }
 }
 
-int main(void)
+int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
-    probability_and_moments();
-    drift_sd();
-    crank_nicolson();
-    return harness_summary();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(probability_and_moments),
+        HARNESS_ENTRY(drift_sd),
+        HARNESS_ENTRY(crank_nicolson),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -100,9 +100,8 @@ static bl_wiener_params mk(double a, double v, double t0, double w)
     return p;
 }
 
-int main(void)
+HARNESS_CASE(fixed_parameters)
 {
-    gsl_set_error_handler_off();
     run("v=1 a=1.2 w=0.4 (numerics 5 example)", mk(1.2, 1, 0, 0.4), 20000, 1);
     run("v=-2 a=2 w=0.6 t0=0.3", mk(2, -2, 0.3, 0.6), 20000, 2);
     run("v=0 a=0.5 w=0.5", mk(0.5, 0, 0.2, 0.5), 20000, 3);
@@ -110,6 +109,10 @@ int main(void)
     run("v=0.5 a=4 w=0.95 (slow, biased)", mk(4, 0.5, 0.1, 0.95), 10000, 5);
     run("v=-0.4 a=1.3 w=1e-4 (start next to the lower boundary)", mk(1.3, -0.4, 0.2, 1e-4), 10000, 9);
     run("v=0.4 a=1.3 w=0.9999 (start next to the upper boundary)", mk(1.3, 0.4, 0.2, 0.9999), 10000, 10);
+}
+
+HARNESS_CASE(variability_parameters)
+{
     bl_wiener_params p = mk(1.5, 1.2, 0.3, 0.45);
     p.value[BL_DRIFT_SD] = 0.8;
     run("drift_sd 0.8", p, 4000, 6);
@@ -122,7 +125,14 @@ int main(void)
     p.contamination_lo = 0.2;
     p.contamination_hi = 2.5;
     run("contamination 0.05 on [0.2, 2.5]", p, 4000, 8);
+}
 
+HARNESS_CASE(same_seed_same_draws)
+{
+    bl_wiener_params p = mk(1.5, 1.2, 0.3, 0.45);
+    p.value[BL_CONTAMINATION] = 0.05;
+    p.contamination_lo = 0.2;
+    p.contamination_hi = 2.5;
     /* same seed -> same draws */
     gsl_rng *r1 = gsl_rng_alloc(gsl_rng_mt19937), *r2 = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(r1, 42);
@@ -139,5 +149,15 @@ int main(void)
     check_true(same, "same seed gives bit-identical draws");
     gsl_rng_free(r1);
     gsl_rng_free(r2);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(fixed_parameters),
+        HARNESS_ENTRY(variability_parameters),
+        HARNESS_ENTRY(same_seed_same_draws),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

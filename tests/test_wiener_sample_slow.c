@@ -82,9 +82,8 @@ static void run(const char *label, bl_wiener_params p)
     check_true(fabs(z) < 4, "%s: pooled upper share %.5f vs %.5f (z = %.2f)", label, nup / n, pu, z);
 }
 
-int main(void)
+HARNESS_CASE(positive_drift)
 {
-    gsl_set_error_handler_off();
     bl_wiener_params p;
     bl_wiener_params_default(&p);
     p.value[BL_THRESHOLD] = 1.2;
@@ -92,9 +91,25 @@ int main(void)
     p.value[BL_START] = 0.4;
     p.value[BL_NONDECISION] = 0.3;
     run("v=1 a=1.2 w=0.4", p);
+}
+
+HARNESS_CASE(negative_drift_wide_threshold)
+{
+    bl_wiener_params p;
+    bl_wiener_params_default(&p);
+    p.value[BL_NONDECISION] = 0.3;
     p.value[BL_THRESHOLD] = 2.5;
     p.value[BL_DRIFT] = -3;
     p.value[BL_START] = 0.7;
     run("v=-3 a=2.5 w=0.7", p);
-    return harness_summary();
+}
+
+int main(int argc, char **argv)
+{
+    gsl_set_error_handler_off();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(positive_drift),
+        HARNESS_ENTRY(negative_drift_wide_threshold),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -35,7 +35,7 @@ static double ld(const bl_wiener_params *p, double rt, int up)
 
 /* start_range: the engine's node rule vs a 96-node Gauss-Legendre reference from GSL (1e-6 relative,
  * the issue's target), and against 2n nodes through the public density with half the range twice. */
-static void start_range(void)
+HARNESS_CASE(start_range)
 {
     gsl_integration_glfixed_table *tab = gsl_integration_glfixed_table_alloc(96);
     double worst = 0;
@@ -90,7 +90,7 @@ static double gl_sum(size_t n, const bl_wiener_params *q0, double w, double sz, 
     return s / sz;
 }
 
-static void start_range_2n(void)
+HARNESS_CASE(start_range_2n)
 {
     double worst_2n = 0, worst_engine = 0;
     int n = 0;
@@ -130,7 +130,7 @@ static double over_t0(double t0, void *vp)
     return exp(ld(&q, c->rt, c->up));
 }
 
-static void nondecision_range(void)
+HARNESS_CASE(nondecision_range)
 {
     gsl_integration_workspace *ws = gsl_integration_workspace_alloc(1000);
     static const double set[][6] = {{1.2, 1, 0.3, 0.45, 0.2, 0}, {1.2, 1, 0.3, 0.45, 0.2, 0.8},
@@ -177,7 +177,7 @@ static void nondecision_range(void)
 }
 
 /* contaminants: (1 - p0) f + p0 / (2 (hi - lo)) on [lo, hi] (Ratcliff & Tuerlinckx 2002) */
-static void contamination(void)
+HARNESS_CASE(contamination)
 {
     bl_wiener_params p = mk(1.3, 1.1, 0.3, 0.5, 0, 0, 0), q = p;
     p.value[BL_CONTAMINATION] = 0.04;
@@ -217,7 +217,7 @@ static double cdf_over_nu(double x, void *vp)
     return F * exp(-0.5 * x * x) / sqrt(2 * M_PI);
 }
 
-static void drift_sd_cdf(void)
+HARNESS_CASE(drift_sd_cdf)
 {
     gsl_integration_workspace *ws = gsl_integration_workspace_alloc(1000);
     static const double set[][4] = {{1.2, 1, 0.45, 0.8}, {2, -0.5, 0.5, 2}, {0.8, 3, 0.3, 1.5}, {1.5, 0, 0.6, 3}};
@@ -255,7 +255,7 @@ static double over_nu(double x, void *vp)
     return pu * m * dens;
 }
 
-static void drift_sd_moments(void)
+HARNESS_CASE(drift_sd_moments)
 {
     gsl_integration_workspace *ws = gsl_integration_workspace_alloc(1000);
     static const double set[][4] = {{1.2, 1, 0.45, 0.8}, {2, -0.5, 0.5, 2}, {0.8, 3, 0.3, 1.5}};
@@ -277,7 +277,7 @@ static void drift_sd_moments(void)
 }
 
 /* CDF with variability: its derivative in rt is the density; it tends to P(boundary); quantiles invert it. */
-static void cdf_quantiles(void)
+HARNESS_CASE(cdf_quantiles)
 {
     bl_wiener_params set[6];
     set[5] = mk(2, -0.5, 0.3, 0.5, 2, 0, 0); /* wide drift_sd: P's logistic shape in the drift */
@@ -343,7 +343,7 @@ static void cdf_quantiles(void)
 
 /* Full-path gradient (start_range, nondecision_range, contamination, with and without drift_sd) vs
  * central differences; tolerance 1e-5 relative (the CDF and quadrature carry ~1e-10 noise). */
-static void full_gradient(void)
+HARNESS_CASE(full_gradient)
 {
     bl_wiener_params set[7];
     set[6] = mk(1.3, 0.8, 0.3, 0.5, 0.4, 0, 1e-3); /* narrow window: density average path */
@@ -422,7 +422,7 @@ static void *ts_worker(void *arg)
     return NULL;
 }
 
-static void thread_safety(void)
+HARNESS_CASE(thread_safety)
 {
     pthread_t th[TS_THREADS];
     int ids[TS_THREADS], started = 0;
@@ -446,17 +446,19 @@ static void thread_safety(void)
     check_true(same, "densities and gradients from %d racing threads are bit-identical to a serial pass", started);
 }
 
-int main(void)
+int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
-    thread_safety(); /* first: the threads race into the table construction */
-    start_range();
-    start_range_2n();
-    nondecision_range();
-    contamination();
-    drift_sd_moments();
-    drift_sd_cdf();
-    cdf_quantiles();
-    full_gradient();
-    return harness_summary();
+    static const harness_case cases[] = {
+        HARNESS_ENTRY(thread_safety), /* first: its threads race into the table construction */
+        HARNESS_ENTRY(start_range),
+        HARNESS_ENTRY(start_range_2n),
+        HARNESS_ENTRY(nondecision_range),
+        HARNESS_ENTRY(contamination),
+        HARNESS_ENTRY(drift_sd_moments),
+        HARNESS_ENTRY(drift_sd_cdf),
+        HARNESS_ENTRY(cdf_quantiles),
+        HARNESS_ENTRY(full_gradient),
+    };
+    return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -4,33 +4,29 @@
 # Data: a small study made by `bandlink simulate`, then altered per case with awk and, for recordings,
 # python3-soundfile (libsndfile) — the recording cases are skipped without it.
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
 B="$BANDLINK"
 PY=/usr/bin/python3
-pass=0
-fail=0
-ok() { echo "PASS: $*"; pass=$((pass + 1)); }
-bad() { echo "FAIL: $*"; fail=$((fail + 1)); }
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
+work=$tmp
 cd "$work"
 
-"$B" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out base --quiet || { bad "simulate base study"; echo "$pass passed, $fail failed"; exit 1; }
+"$B" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out base --quiet || bail "simulate base study"
 
 # clean_outputs DIR: every CSV field finite or NA; every JSON file strict JSON (no NaN/Infinity tokens).
 clean_outputs() {
     local dir="$1" name="$2"
     local hits
     hits=$(grep -HEio '(^|,)"?(-?nan|-?inf|-?infinity)"?(,|$)' "$dir"/*.csv 2>/dev/null | head -3)
-    [ -z "$hits" ] && ok "$name: no NaN/Inf in CSV outputs" || bad "$name: NaN/Inf in outputs: $hits"
+    [ -z "$hits" ] && pass "$name: no NaN/Inf in CSV outputs" || fail "$name: NaN/Inf in outputs: $hits"
     if [ -x "$PY" ]; then
         for j in "$dir"/*.json; do
             [ -f "$j" ] || continue
             # Python's json module with parse_constant raising: NaN/Infinity are not JSON (RFC 8259).
             if "$PY" -c 'import json,sys; json.load(open(sys.argv[1]), parse_constant=lambda c: (_ for _ in ()).throw(ValueError(c)))' "$j" 2>/dev/null; then
-                ok "$name: $(basename "$j") is strict JSON (RFC 8259, python json)"
+                pass "$name: $(basename "$j") is strict JSON (RFC 8259, python json)"
             else
-                bad "$name: $(basename "$j") is not strict JSON"
+                fail "$name: $(basename "$j") is not strict JSON"
             fi
         done
     fi
@@ -42,13 +38,13 @@ run_case() {
     shift 3
     "$@" >"$work/out.txt" 2>"$work/err.txt"
     local rc=$?
-    [ "$rc" -eq "$want" ] && ok "$name: exit $rc" || bad "$name: exit $rc, want $want: $(head -c 300 "$work/err.txt")"
+    [ "$rc" -eq "$want" ] && pass "$name: exit $rc" || fail "$name: exit $rc, want $want: $(head -c 300 "$work/err.txt")"
     if [ -z "$pattern" ]; then
         :
     elif grep -Eq "$pattern" "$work/err.txt"; then
-        ok "$name: says '$(grep -Em1 "$pattern" "$work/err.txt" | cut -c1-140)'"
+        pass "$name: says '$(grep -Em1 "$pattern" "$work/err.txt" | cut -c1-140)'"
     else
-        bad "$name: stderr lacks /$pattern/: $(head -c 300 "$work/err.txt")"
+        fail "$name: stderr lacks /$pattern/: $(head -c 300 "$work/err.txt")"
     fi
 }
 
@@ -70,7 +66,7 @@ run_case "one trial for two parameters" 2 "model 'theta-and-beta'.*parameter 'th
 # 3. Identical RTs: the likelihood is unbounded (threshold -> 0), so this is an error, not a fit.
 copy_with_trials identical 'NR > 1 { $9 = 0.5 } { print }'
 run_case "identical RTs" 2 "identical" "$B" fit identical/study.json --out identical/out
-[ ! -e identical/out/fits.json ] && ok "identical RTs: no fits.json written" || bad "identical RTs: fits.json written"
+[ ! -e identical/out/fits.json ] && pass "identical RTs: no fits.json written" || fail "identical RTs: fits.json written"
 
 # 3b. A fixed nondecision time above the RTs: the likelihood is zero at the start; the message names the
 #     first trial that makes it so, its RT and the value.
@@ -113,7 +109,7 @@ if [ -x "$PY" ] && "$PY" -c 'import soundfile, numpy' 2>/dev/null; then
     "$PY" -c 'import soundfile as sf; x, fs = sf.read("silent/recordings/a1.flac"); x[:] = 0; sf.write("silent/recordings/a1.flac", x, fs, subtype="PCM_24")'
     run_case "silent recording" 0 "warning: .*(zero|flat|excluded|left out)" "$B" run silent/study.json --out silent/out
     n=$(grep -c 'zero band power\|artifact: flat' silent/out/power.csv)
-    [ "$n" -eq 240 ] && ok "silent recording: all 240 trials of a1 excluded with a reason" || bad "silent recording: $n trials flagged"
+    [ "$n" -eq 240 ] && pass "silent recording: all 240 trials of a1 excluded with a reason" || fail "silent recording: $n trials flagged"
     clean_outputs silent/out "silent recording"
 
     # 8. NaN and Inf samples (float WAV): the windows holding them are flagged "artifact: non-finite".
@@ -132,11 +128,10 @@ json.dump(s, open('nonfinite/study.json', 'w'))
 PYEOF
     run_case "NaN/Inf samples" 0 "warning: .*artifact" "$B" run nonfinite/study.json --out nonfinite/out
     n=$(grep -c 'artifact: non-finite' nonfinite/out/power.csv)
-    [ "$n" -gt 0 ] && ok "NaN/Inf samples: $n trials flagged 'artifact: non-finite'" || bad "NaN/Inf samples: nothing flagged"
+    [ "$n" -gt 0 ] && pass "NaN/Inf samples: $n trials flagged 'artifact: non-finite'" || fail "NaN/Inf samples: nothing flagged"
     clean_outputs nonfinite/out "non-finite samples"
 else
     echo "recording cases skipped: python3-soundfile (libsndfile) or numpy missing"
 fi
 
-echo "$pass passed, $fail failed"
-[ "$fail" -eq 0 ]
+finish

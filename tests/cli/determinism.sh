@@ -3,20 +3,20 @@
 # same seed (permutation tests included), apart from the clock times and the recorded thread count.
 # The comparison of fits.json uses python's json module (RFC 8259 parser) to drop the time fields.
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
 PY=/usr/bin/python3
-[ -x "$PY" ] || { echo "skipped: /usr/bin/python3 missing"; exit 77; }
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
+[ -x "$PY" ] || skip "/usr/bin/python3 missing"
+work=$tmp
 cd "$work"
-"$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out study --quiet || { echo "FAIL: simulate"; echo "0 passed, 1 failed"; exit 1; }
+"$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out study --quiet || bail "simulate"
 for r in t1a:1 t1b:1 t2:2; do
     name=${r%%:*}
     threads=${r##*:}
     "$BANDLINK" run study/study.json --out "$name" --threads "$threads" --seed 11 --permutations 12 --quiet ||
-        { echo "FAIL: run $name"; echo "0 passed, 1 failed"; exit 1; }
+        bail "run $name"
 done
-"$PY" - t1a t1b t2 <<'PY'
+tally "$PY" - t1a t1b t2 <<'PY'
 import json, os, re, sys
 TIMES = {"started", "finished", "stage_seconds", "seconds", "threads"}
 def strip(o):
@@ -44,6 +44,6 @@ for other, what in ((sys.argv[2], "a repeated run with the same seed"), (sys.arg
         ok = same(base, other, f)
         print("%s: %s gives identical %s" % ("PASS" if ok else "FAIL", what, f))
         passed += ok; failed += not ok
-print("%d passed, %d failed" % (passed, failed))
 sys.exit(1 if failed else 0)
 PY
+finish

@@ -3,11 +3,7 @@
 # folder where docs/ points at the source tree's docs/, and compares their output with the lines shown
 # under them (and the check summary block with the real summary).
 set -u
-fail=0
-pass() { echo "PASS: $*"; }
-bad() { echo "FAIL: $*"; fail=1; }
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
+. "$(dirname "$0")/lib.sh"
 ln -s "$BL_SOURCE_ROOT/docs" "$tmp/docs"
 doc="$BL_SOURCE_ROOT/docs/cli.md"
 n=0
@@ -22,8 +18,8 @@ for sec in power check; do
         n=$((n + 1))
         local got rc
         got=$(cd "$tmp" && eval "\"\$BANDLINK\" ${cmd#bandlink }" 2>"$tmp/err"); rc=$?
-        if [ $rc -ne 0 ]; then bad "docs example '$cmd' exit $rc: $(cat "$tmp/err")"
-        elif [ -n "$expect" ] && [ "$got" != "$expect" ]; then bad "docs example '$cmd' printed '$got', docs show '$expect'"
+        if [ $rc -ne 0 ]; then fail "docs example '$cmd' exit $rc: $(cat "$tmp/err")"
+        elif [ -n "$expect" ] && [ "$got" != "$expect" ]; then fail "docs example '$cmd' printed '$got', docs show '$expect'"
         else pass "docs example '$cmd'"; fi
     }
     while IFS= read -r line; do
@@ -37,6 +33,6 @@ done
 # the check summary shown in the docs is what check prints
 want=$(sed -n '/<!-- section: check/,/<!-- end section: check/p' "$doc" | sed -n '/^study        /,/^warnings/p')
 got=$(cd "$tmp" && "$BANDLINK" check docs/examples/power/study.json 2>/dev/null)
-[ -n "$want" ] && [ "$want" = "$got" ] && pass "check summary in docs/cli.md matches" || bad "check summary in docs differs: $got"
-[ $n -ge 3 ] && pass "$n docs examples run" || bad "only $n docs examples found"
-exit $fail
+[ -n "$want" ] && [ "$want" = "$got" ] && pass "check summary in docs/cli.md matches" || fail "check summary in docs differs: $got"
+[ $n -ge 3 ] && pass "$n docs examples run" || fail "only $n docs examples found"
+finish

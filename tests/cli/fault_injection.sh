@@ -4,24 +4,19 @@
 # Mechanism: tests/fault/fault_inject.c loaded with LD_PRELOAD (the idea of jq's src/inject_errors.c),
 # and RLIMIT_FSIZE (`ulimit -f`, POSIX setrlimit) for a disk that fills up mid-write.
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}" "${BL_FAULT_SHIM:?}"
 if ldd "$BANDLINK" | grep -q libasan; then
-    echo "skipped: LD_PRELOAD fault injection cannot run beside AddressSanitizer"
-    exit 77
+    skip "LD_PRELOAD fault injection cannot run beside AddressSanitizer"
 fi
-pass=0
-fail=0
-ok() { echo "PASS: $*"; pass=$((pass + 1)); }
-bad() { echo "FAIL: $*"; fail=$((fail + 1)); }
 
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
+work=$tmp
 cp -r "$BL_SOURCE_ROOT/docs/examples/power" "$work/study"
 study="$work/study/study.json"
 out="$work/out"
 
-"$BANDLINK" power "$study" --out "$out" --quiet >/dev/null 2>&1 || bad "baseline power run"
-[ -f "$out/power.csv" ] && ok "baseline power.csv written" || bad "baseline power.csv missing"
+"$BANDLINK" power "$study" --out "$out" --quiet >/dev/null 2>&1 || fail "baseline power run"
+[ -f "$out/power.csv" ] && pass "baseline power.csv written" || fail "baseline power.csv missing"
 before=$(sha256sum "$out/power.csv" | cut -d' ' -f1)
 input_sums=$(cd "$work/study" && find . -type f -not -path './results-run/*' | sort | xargs sha256sum)
 
@@ -33,14 +28,14 @@ expect_failure() {
     local err="$work/stderr"
     "$@" >/dev/null 2>"$err"
     local rc=$?
-    if [[ " $codes " == *" $rc "* ]]; then ok "$name: exit $rc"; else bad "$name: exit $rc (want one of $codes): $(head -3 "$err")"; fi
-    if grep -q '^bandlink: error: ' "$err"; then ok "$name: message '$(grep -m1 '^bandlink: error: ' "$err" | cut -c1-110)'"; else bad "$name: no 'bandlink: error:' line: $(head -3 "$err")"; fi
+    if [[ " $codes " == *" $rc "* ]]; then pass "$name: exit $rc"; else fail "$name: exit $rc (want one of $codes): $(head -3 "$err")"; fi
+    if grep -q '^bandlink: error: ' "$err"; then pass "$name: message '$(grep -m1 '^bandlink: error: ' "$err" | cut -c1-110)'"; else fail "$name: no 'bandlink: error:' line: $(head -3 "$err")"; fi
     local now
     now=$(sha256sum "$out/power.csv" 2>/dev/null | cut -d' ' -f1)
-    [ "$now" = "$before" ] && ok "$name: earlier power.csv intact" || bad "$name: earlier power.csv changed or lost"
-    local tmp
-    tmp=$(find "$work" -name '*.tmp.*' | head -3)
-    [ -z "$tmp" ] && ok "$name: no temporary file left" || { bad "$name: temporary files left: $tmp"; find "$work" -name '*.tmp.*' -delete; }
+    [ "$now" = "$before" ] && pass "$name: earlier power.csv intact" || fail "$name: earlier power.csv changed or lost"
+    local left
+    left=$(find "$work" -name '*.tmp.*' | head -3)
+    [ -z "$left" ] && pass "$name: no temporary file left" || { fail "$name: temporary files left: $left"; find "$work" -name '*.tmp.*' -delete; }
 }
 
 inject() { env LD_PRELOAD="$BL_FAULT_SHIM" "$@"; }
@@ -54,19 +49,19 @@ expect_failure "first fopen fails" "1 2" inject BL_FAULT=fopen:1 "$BANDLINK" pow
 # Allocation failures at points spread over a whole run.
 total=$(inject BL_FAULT_REPORT=1 "$BANDLINK" power "$study" --out "$work/count" --quiet 2>&1 >/dev/null | sed -n 's/^bl_fault malloc //p')
 if [ -n "$total" ] && [ "$total" -gt 10 ]; then
-    ok "a power run makes $total allocations"
+    pass "a power run makes $total allocations"
     for k in $(seq 1 25); do
         n=$(( (total * k) / 26 + 1 ))
         expect_failure "allocation $n of $total fails" "1" inject BL_FAULT=malloc:$n "$BANDLINK" power "$study" --out "$out" --force --quiet
     done
 else
-    bad "could not count allocations ($total)"
+    fail "could not count allocations ($total)"
 fi
 
 # The whole pipeline: a failure at any point keeps the earlier results folder exactly as it was and
 # leaves no staging folder behind.
 res="$work/study/results-run"
-"$BANDLINK" run "$study" --out "$res" --quiet >/dev/null 2>&1 || bad "baseline run"
+"$BANDLINK" run "$study" --out "$res" --quiet >/dev/null 2>&1 || fail "baseline run"
 res_sums() { (cd "$res" && find . -type f | sort | xargs sha256sum); }
 res_before=$(res_sums)
 expect_run_failure() {
@@ -75,12 +70,12 @@ expect_run_failure() {
     local err="$work/stderr"
     "$@" >/dev/null 2>"$err"
     local rc=$?
-    [ "$rc" -eq 1 ] && ok "run, $name: exit 1" || bad "run, $name: exit $rc (want 1): $(head -3 "$err")"
-    grep -q '^bandlink: error: ' "$err" && ok "run, $name: one-line error" || bad "run, $name: no 'bandlink: error:' line: $(head -3 "$err")"
-    [ "$(res_sums)" = "$res_before" ] && ok "run, $name: earlier results folder intact" || bad "run, $name: earlier results changed"
+    [ "$rc" -eq 1 ] && pass "run, $name: exit 1" || fail "run, $name: exit $rc (want 1): $(head -3 "$err")"
+    grep -q '^bandlink: error: ' "$err" && pass "run, $name: one-line error" || fail "run, $name: no 'bandlink: error:' line: $(head -3 "$err")"
+    [ "$(res_sums)" = "$res_before" ] && pass "run, $name: earlier results folder intact" || fail "run, $name: earlier results changed"
     local left
     left=$(find "$work/study" -maxdepth 1 -name '.*partial*' | head -3)
-    [ -z "$left" ] && ok "run, $name: no staging folder left" || { bad "run, $name: staging left: $left"; rm -rf "$work"/study/.*partial*; }
+    [ -z "$left" ] && pass "run, $name: no staging folder left" || { fail "run, $name: staging left: $left"; rm -rf "$work"/study/.*partial*; }
 }
 # Count the calls of a run that replaces an existing folder (the path every case below takes).
 "$BANDLINK" run "$study" --out "$work/count-run" --quiet >/dev/null 2>&1
@@ -98,6 +93,5 @@ for k in $(seq 1 12); do
 done
 
 after_inputs=$(cd "$work/study" && find . -type f -not -path './results-run/*' | sort | xargs sha256sum)
-[ "$after_inputs" = "$input_sums" ] && ok "inputs never modified" || bad "an input file changed"
-echo "$pass passed, $fail failed"
-[ "$fail" -eq 0 ]
+[ "$after_inputs" = "$input_sums" ] && pass "inputs never modified" || fail "an input file changed"
+finish

@@ -4,12 +4,12 @@
 # file: libsndfile reads its holes as zeros, so it costs no disk), and the peak resident sizes
 # (getrusage RUSAGE_CHILDREN ru_maxrss, POSIX) must differ by less than 16 MiB.
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}"
 PY=/usr/bin/python3
-"$PY" -c 'import numpy' 2>/dev/null || { echo "skipped: python3-numpy missing"; exit 77; }
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-"$PY" - "$BANDLINK" "$work" <<'PY'
+"$PY" -c 'import numpy' 2>/dev/null || skip "python3-numpy missing"
+work=$tmp
+tally "$PY" - "$BANDLINK" "$work" <<'PY'
 import json, os, resource, struct, subprocess, sys
 import numpy as np
 
@@ -81,3 +81,4 @@ print("%s: peak memory independent of recording length (difference %.1f MiB, lim
       ("PASS" if ok else "FAIL", (long_kib - small_kib) / 1024))
 sys.exit(0 if ok else 1)
 PY
+finish

@@ -3,13 +3,7 @@
 # not write, never through a symbolic link, checked before any work, and with the user's umask.
 # Every case here once lost or misplaced a user's data (or would have): each check names what it guards.
 set -u
-: "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
-tmp=$(mktemp -d)
-trap 'chmod -R u+w "$tmp" 2>/dev/null; rm -rf "$tmp"' EXIT
-fails=0
-passes=0
-pass() { echo "PASS: $*"; passes=$((passes + 1)); }
-fail() { echo "FAIL: $*"; fails=$((fails + 1)); }
+. "$(dirname "$0")/lib.sh"
 
 cp -r "$BL_SOURCE_ROOT/docs/examples/power" "$tmp/ex"
 ex="$tmp/ex"
@@ -87,5 +81,4 @@ python3 -c 'import json,sys; json.dump(json.load(open(sys.argv[1]))["study"], op
 python3 -c 'import json,sys; p=json.load(open(sys.argv[1])); sys.exit(0 if all(i["path"].startswith("/") for i in p["inputs"]) else 1)' \
     "$tmp/prov/provenance.json" && pass "every input path in the provenance is absolute" || fail "relative input paths"
 
-echo "$passes passed, $fails failed"
-[ $fails -eq 0 ]
+finish

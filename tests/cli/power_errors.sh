@@ -2,11 +2,7 @@
 # Every bad input to bandlink power / check: exit 2 and a one-line message naming the culprit
 # (file, line/column or key, and the value). Nothing is written on failure.
 set -u
-fail=0
-pass() { echo "PASS: $*"; }
-bad() { echo "FAIL: $*"; fail=1; }
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
+. "$(dirname "$0")/lib.sh"
 ex="$BL_SOURCE_ROOT/docs/examples/power"
 
 # expect CMD STUDY_JSON TRIALS_CSV PATTERN...: writes the case into a fresh folder (recordings linked from the example)
@@ -28,7 +24,7 @@ expect() {
     [ "$(grep -c 'bandlink: error:' "$d/err")" -eq 1 ] || ok=0
     for p in "$@"; do grep -qF -- "$p" "$d/err" || ok=0; done
     [ ! -e "$d/out/power.csv" ] || ok=0
-    if [ $ok -eq 1 ]; then pass "case $n ($cmd): $msg"; else bad "case $n ($cmd) exit $rc, wanted [$*]: $msg"; fi
+    if [ $ok -eq 1 ]; then pass "case $n ($cmd): $msg"; else fail "case $n ($cmd) exit $rc, wanted [$*]: $msg"; fi
 }
 S=$(cat "$ex/study.json")
 sub() { printf '%s' "$S" | sed "$1"; }
@@ -63,6 +59,6 @@ expect check "$(sub 's/"output"/"outputs"/')" - 'unknown key "outputs"'
 expect check "$(printf '{\n  "trials": {"file": "trials.csv",,}\n}')" - 'study.json:2:' 'JSON syntax error'
 expect check '{"trials": {"file": "nothere.csv", "participant": "rat", "rt": "rt", "response": "correct", "upper": [1]}}' - 'nothere.csv'
 "$BANDLINK" check "$tmp/none.json" 2>"$tmp/err"; rc=$?
-[ $rc -eq 2 ] && grep -qF "none.json" "$tmp/err" && pass "missing study file: $(cat "$tmp/err")" || bad "missing study file: $rc $(cat "$tmp/err")"
+[ $rc -eq 2 ] && grep -qF "none.json" "$tmp/err" && pass "missing study file: $(cat "$tmp/err")" || fail "missing study file: $rc $(cat "$tmp/err")"
 echo "$n cases"
-exit $fail
+finish

@@ -5,15 +5,12 @@
 # Wagenmakers, van der Maas & Grasman 2007); mean decision time there is (a/(2v)) tanh(va/2)
 # = 0.2310585786300049 (same source).
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}"
-fail=0
-pass=0
-ok() { pass=$((pass + 1)); echo "PASS: $1"; }
-bad() { fail=$((fail + 1)); echo "FAIL: $1"; }
 PY=python3
 [ -x /usr/bin/python3 ] && PY=/usr/bin/python3
 
-out=$("$BANDLINK" predict --threshold 1 --drift 1 --nondecision 0.3 --rt 0.5,0.35,1.2,0.2 --json) && ok "predict --json exits 0" || bad "predict --json exits 0"
+out=$("$BANDLINK" predict --threshold 1 --drift 1 --nondecision 0.3 --rt 0.5,0.35,1.2,0.2 --json) && pass "predict --json exits 0" || fail "predict --json exits 0"
 echo "$out" | "$PY" -c '
 import json, math, sys
 d = json.load(sys.stdin)
@@ -38,7 +35,7 @@ for e in d["density"]:
     else:
         # at w = 1/2: f_up / f_lo = exp(v a) (Navarro & Fuss 2009 mirror rule)
         assert abs(e["upper"] / e["lower"] - math.e) < 1e-12
-' && ok "JSON keys, order and values" || bad "JSON keys, order and values"
+' && pass "JSON keys, order and values" || fail "JSON keys, order and values"
 
 # numerics notes 6.1: ln f_lo(0.35 | v=1, a=1, w=.5) = -1.2574538785445 (mpmath, 40 digits)
 "$BANDLINK" predict --threshold 1 --drift 1 --nondecision 0 --rt 0.35 --json | "$PY" -c '
@@ -46,30 +43,30 @@ import json, math, sys
 d = json.load(sys.stdin)
 assert abs(math.log(d["density"][0]["lower"]) + 1.2574538785445) < 1e-12
 assert abs(math.log(d["density"][0]["upper"]) + 0.25745387854453) < 1e-12
-' && ok "density matches the mpmath reference value" || bad "density matches the mpmath reference value"
+' && pass "density matches the mpmath reference value" || fail "density matches the mpmath reference value"
 
 # variability options and contamination are accepted and change the answer
 a=$("$BANDLINK" predict --threshold 1.2 --drift 1 --nondecision 0.3 --start 0.45 --drift-sd 0.8 --start-range 0.2 \
     --nondecision-range 0.1 --contamination 0.02 --contamination-range 0.2,3 --rt 0.6 --json) \
-    && ok "all variability options run" || bad "all variability options run"
+    && pass "all variability options run" || fail "all variability options run"
 echo "$a" | "$PY" -c '
 import json, sys
 d = json.load(sys.stdin)
 assert 0 < d["p_upper"] < 1 and d["density"][0]["upper"] > 0
-' && ok "variability output is sane" || bad "variability output is sane"
+' && pass "variability output is sane" || fail "variability output is sane"
 
 # human-readable table
 t=$("$BANDLINK" predict --threshold 1 --drift 1 --nondecision 0.3 --rt 0.5)
 echo "$t" | grep -q "^boundary *probability" && echo "$t" | grep -q "^upper " && echo "$t" | grep -q "^0.5 " \
-    && ok "table output" || bad "table output: $t"
+    && pass "table output" || fail "table output: $t"
 
 # bad input: exit 2, message names the option or parameter and the value
 expect2() {
     local want="$1"; shift
     local err code
     err=$("$BANDLINK" predict "$@" 2>&1 >/dev/null); code=$?
-    if [ "$code" -eq 2 ] && echo "$err" | grep -q -- "$want"; then ok "exit 2 naming '$want' for: $*"
-    else bad "expected exit 2 naming '$want' for: $* (got $code: $err)"; fi
+    if [ "$code" -eq 2 ] && echo "$err" | grep -q -- "$want"; then pass "exit 2 naming '$want' for: $*"
+    else fail "expected exit 2 naming '$want' for: $* (got $code: $err)"; fi
 }
 expect2 "--drift: 'abc'" --threshold 1 --drift abc --nondecision 0.3
 expect2 "threshold must be > 0 (got -1)" --threshold -1 --drift 1 --nondecision 0.3
@@ -91,12 +88,11 @@ if [ -n "${BL_SOURCE_ROOT:-}" ]; then
     while IFS= read -r line; do
         n=$((n + 1))
         # shellcheck disable=SC2086
-        if "$BANDLINK" ${line#\$ bandlink } >/dev/null; then ok "docs example: $line"; else bad "docs example: $line"; fi
+        if "$BANDLINK" ${line#\$ bandlink } >/dev/null; then pass "docs example: $line"; else fail "docs example: $line"; fi
     done < <(sed -n '/<!-- section: predict/,/<!-- end section: predict/p' "$BL_SOURCE_ROOT/docs/cli.md" | grep '^\$ bandlink predict')
-    [ "$n" -ge 1 ] && ok "docs/cli.md has $n predict examples" || bad "no predict example in docs/cli.md"
+    [ "$n" -ge 1 ] && pass "docs/cli.md has $n predict examples" || fail "no predict example in docs/cli.md"
 fi
 
-"$BANDLINK" predict --help | grep -q -- "--nondecision-range" && ok "--help lists the options" || bad "--help"
+"$BANDLINK" predict --help | grep -q -- "--nondecision-range" && pass "--help lists the options" || fail "--help"
 
-echo "$pass passed, $fail failed"
-[ "$fail" -eq 0 ]
+finish

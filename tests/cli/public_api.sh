@@ -3,16 +3,10 @@
 # pkg-config, its headers compiled alone as C11 and as C++ (extern "C"), a program linked against the
 # shared library runs a whole analysis, and the shared library exports only bl_* symbols.
 set -u
-: "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}" "${BL_BUILD_ROOT:?}"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-fails=0
-passes=0
-pass() { echo "PASS: $*"; passes=$((passes + 1)); }
-fail() { echo "FAIL: $*"; fails=$((fails + 1)); }
+. "$(dirname "$0")/lib.sh"
 
 meson install -C "$BL_BUILD_ROOT" --destdir "$tmp/root" --no-rebuild >"$tmp/install.log" 2>&1 \
-    || { echo "FAIL: meson install: $(tail -3 "$tmp/install.log")"; echo "0 passed, 1 failed"; exit 1; }
+    || bail "meson install: $(tail -3 "$tmp/install.log")"
 prefix=$(meson introspect "$BL_BUILD_ROOT" --buildoptions | python3 -c \
     'import json,sys; print([o["value"] for o in json.load(sys.stdin) if o["name"]=="prefix"][0])')
 root="$tmp/root$prefix"
@@ -72,5 +66,4 @@ if cc -std=c11 -Wall -Werror $cflags "$tmp/prog.c" -o "$tmp/prog" $libs 2>"$tmp/
 else
     fail "link: $(head -5 "$tmp/e")"
 fi
-echo "$passes passed, $fails failed"
-[ $fails -eq 0 ]
+finish

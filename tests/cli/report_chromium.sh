@@ -3,27 +3,23 @@
 # holds the five inline figures and the caution, and a screenshot is produced.
 # Usage: report_chromium.sh REPORT_SAMPLE_PROGRAM. Skipped (77) when /usr/bin/chromium is absent.
 set -u
+. "$(dirname "$0")/lib.sh"
 chromium=/usr/bin/chromium
-[ -x "$chromium" ] || { echo "chromium not installed: skipped"; exit 77; }
+[ -x "$chromium" ] || skip "chromium not installed"
 sample="$1"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-fail=0
-pass() { echo "PASS: $1"; }
-bad() { echo "FAIL: $1"; fail=1; }
 
-"$sample" "$tmp/out" || { echo "FAIL: sample program"; exit 1; }
+"$sample" "$tmp/out" || bail "sample program"
 flags=(--headless --no-sandbox --disable-gpu --disable-quic --no-first-run --disable-background-networking
        --disable-component-update --disable-sync --hide-scrollbars)
 
 timeout 120 "$chromium" "${flags[@]}" --user-data-dir="$tmp/profile1" --dump-dom "file://$tmp/out/report.html" \
     >"$tmp/dom.html" 2>"$tmp/dom.err"
-[ -s "$tmp/dom.html" ] && pass "chromium dumped the DOM" || bad "chromium produced no DOM ($(tail -3 "$tmp/dom.err"))"
+[ -s "$tmp/dom.html" ] && pass "chromium dumped the DOM" || fail "chromium produced no DOM ($(tail -3 "$tmp/dom.err"))"
 n=$(grep -o '<svg xmlns' "$tmp/dom.html" | wc -l)
-[ "$n" -eq 5 ] && pass "DOM has 5 inline svg figures" || bad "DOM has $n inline svg figures"
-grep -q 'Research use only; not a medical device.' "$tmp/dom.html" && pass "caution in the DOM" || bad "caution missing"
-grep -q '<h2 id="comparison">Model comparison</h2>' "$tmp/dom.html" && pass "sections in the DOM" || bad "sections missing"
-! grep -q '<parsererror' "$tmp/dom.html" && pass "no parser error" || bad "parser error in the DOM"
+[ "$n" -eq 5 ] && pass "DOM has 5 inline svg figures" || fail "DOM has $n inline svg figures"
+grep -q 'Research use only; not a medical device.' "$tmp/dom.html" && pass "caution in the DOM" || fail "caution missing"
+grep -q '<h2 id="comparison">Model comparison</h2>' "$tmp/dom.html" && pass "sections in the DOM" || fail "sections missing"
+! grep -q '<parsererror' "$tmp/dom.html" && pass "no parser error" || fail "parser error in the DOM"
 
 timeout 120 "$chromium" "${flags[@]}" --user-data-dir="$tmp/profile2" --window-size=1250,4000 \
     --screenshot="$tmp/shot.png" "file://$tmp/out/report.html" >/dev/null 2>"$tmp/shot.err"
@@ -31,8 +27,8 @@ if [ -s "$tmp/shot.png" ] && [ "$(head -c 8 "$tmp/shot.png" | od -An -tx1 | tr -
     pass "screenshot is a PNG"
     size=$(stat -c %s "$tmp/shot.png")
     # A blank 1250x4000 page compresses to a few kB; text, tables and five figures give far more.
-    [ "$size" -gt 100000 ] && pass "screenshot has content ($size bytes)" || bad "screenshot nearly empty ($size bytes)"
+    [ "$size" -gt 100000 ] && pass "screenshot has content ($size bytes)" || fail "screenshot nearly empty ($size bytes)"
 else
-    bad "no screenshot ($(tail -3 "$tmp/shot.err"))"
+    fail "no screenshot ($(tail -3 "$tmp/shot.err"))"
 fi
-exit $fail
+finish

@@ -3,19 +3,15 @@
 # recovered within the confidence intervals, the truth sitting on the measured regressor, byte-identical
 # outputs for the same seed (apart from times), no-clobber and --force, the summary and --quiet.
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-fails=0
-pass() { echo "PASS: $*"; }
-fail() { echo "FAIL: $*"; fails=$((fails + 1)); }
 py=/usr/bin/python3
 [ -x "$py" ] || py=$(command -v python3)
 
 "$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out "$tmp/study" --quiet \
-    || { echo "FAIL: simulate"; exit 1; }
+    || bail "simulate"
 "$BANDLINK" run "$tmp/study/study.json" --out "$tmp/r1" --threads 2 --seed 7 >"$tmp/out1" 2>"$tmp/err1"; rc=$?
-[ $rc -eq 0 ] && pass "run exits 0" || { fail "run failed ($rc): $(cat "$tmp/err1")"; echo "$fails failed"; exit 1; }
+[ $rc -eq 0 ] && pass "run exits 0" || bail "run failed ($rc): $(cat "$tmp/err1")"
 for f in power.csv fits.json comparison.csv trials.csv fit_quantiles.csv report.html; do
     [ -s "$tmp/r1/$f" ] && pass "$f written" || fail "$f missing"
 done
@@ -33,7 +29,7 @@ done
 grep -q "report: $tmp/r1/report.html" "$tmp/out1" && pass "summary names the report" || fail "report path not printed"
 
 # Columns and keys (docs/outputs.md) and the truth.
-"$py" - "$tmp/r1" "$tmp/study" <<'PY'
+tally "$py" - "$tmp/r1" "$tmp/study" <<'PY'
 import csv, json, math, sys
 r, s = sys.argv[1], sys.argv[2]
 ok = True
@@ -124,11 +120,10 @@ else:
     print("SKIP: keep rules excluded trials; regressor shift %g" % truth["regressor_shift_max"])
 sys.exit(0 if ok else 1)
 PY
-[ $? -eq 0 ] || fails=$((fails + 1))
 
 # Same inputs and seed: byte-identical outputs apart from the times.
 "$BANDLINK" run "$tmp/study/study.json" --out "$tmp/r2" --threads 2 --seed 7 --quiet || fail "second run"
-"$py" - "$tmp/r1" "$tmp/r2" <<'PY'
+tally "$py" - "$tmp/r1" "$tmp/r2" <<'PY'
 import json, os, re, sys
 a, b = sys.argv[1], sys.argv[2]
 ok = True
@@ -155,7 +150,6 @@ for f in files:
     ok = ok and same
 sys.exit(0 if ok else 1)
 PY
-[ $? -eq 0 ] || fails=$((fails + 1))
 
 # No clobber without --force (exit 2 naming the folder, nothing touched); --force replaces.
 before=$(cd "$tmp/r1" && find . -type f -exec sha256sum {} + | sort)
@@ -208,5 +202,4 @@ mkdir -p "$tmp/own" && echo "draft" >"$tmp/own/thesis.txt"
 [ $rc -eq 2 ] && grep -q "not replaced even with --force" "$tmp/e" && [ "$(ls "$tmp/own")" = "thesis.txt" ] &&
     pass "--force refuses a folder bandlink did not write (exit 2, its file kept)" || fail "--force on a foreign folder: rc $rc"
 
-echo "$fails failed"
-[ $fails -eq 0 ]
+finish

@@ -4,17 +4,16 @@
 # definition of a confidence interval), and the estimates should be unbiased within Monte-Carlo error.
 # Usage: run_coverage.sh [SEEDS]   (default 60)
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
 seeds=${1:-60}
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
 py=/usr/bin/python3
-[ -x "$py" ] || exit 77
+[ -x "$py" ] || skip "/usr/bin/python3 missing"
 for s in $(seq 1 "$seeds"); do
     "$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out "$tmp/s$s" --seed "$s" --quiet --threads 2 \
-        && "$BANDLINK" run "$tmp/s$s/study.json" --out "$tmp/r$s" --quiet --threads 2 || { echo "FAIL: seed $s"; exit 1; }
+        && "$BANDLINK" run "$tmp/s$s/study.json" --out "$tmp/r$s" --quiet --threads 2 || bail "seed $s"
 done
-"$py" - "$tmp" "$seeds" <<'PY'
+tally "$py" - "$tmp" "$seeds" <<'PY'
 import json, math, sys
 d, n = sys.argv[1], int(sys.argv[2])
 cover, total, missing, ok = 0, 0, 0, True
@@ -50,3 +49,4 @@ for k, z in per.items():
     ok = ok and good
 sys.exit(0 if ok else 1)
 PY
+finish

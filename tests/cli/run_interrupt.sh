@@ -2,15 +2,11 @@
 # An interrupted run (SIGKILL mid-way through a --force replacement) leaves the earlier results exactly
 # as they were; the next run cleans up the leftover staging folder.
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-fails=0
-pass() { echo "PASS: $*"; }
-fail() { echo "FAIL: $*"; fails=$((fails + 1)); }
 
-"$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out "$tmp/study" --quiet || { echo "FAIL: simulate"; exit 1; }
-"$BANDLINK" run "$tmp/study/study.json" --out "$tmp/res" --quiet || { echo "FAIL: first run"; exit 1; }
+"$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out "$tmp/study" --quiet || bail "simulate"
+"$BANDLINK" run "$tmp/study/study.json" --out "$tmp/res" --quiet || bail "first run"
 before=$(cd "$tmp/res" && find . -type f -exec sha256sum {} + | sort)
 
 # A slower run (permutation refits) replacing the results, killed once its staging folder exists.
@@ -39,5 +35,4 @@ ls -a "$tmp" | grep -q "^\.res\.partial-" && pass "the killed run's staging fold
 # The next run removes the stale staging folder (its process is gone) and completes.
 "$BANDLINK" run "$tmp/study/study.json" --out "$tmp/res" --force --quiet && pass "next run succeeds" || fail "next run"
 ls -a "$tmp" | grep -q "^\.res\.partial-" && fail "stale staging folder not cleaned up" || pass "stale staging folder removed"
-echo "$fails failed"
-[ $fails -eq 0 ]
+finish

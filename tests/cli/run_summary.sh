@@ -3,13 +3,7 @@
 # the terminal (setup included, which holds the hashing of the inputs), and every command's --help lists
 # each option the command accepts.
 set -u
-: "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-fails=0
-passes=0
-pass() { echo "PASS: $*"; passes=$((passes + 1)); }
-fail() { echo "FAIL: $*"; fails=$((fails + 1)); }
+. "$(dirname "$0")/lib.sh"
 
 "$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out "$tmp/study" --quiet || fail "simulate"
 "$BANDLINK" run "$tmp/study/study.json" --out "$tmp/r" >"$tmp/out" 2>/dev/null || fail "run"
@@ -37,5 +31,4 @@ done
 # An option a command does not take is refused (exit 2), so the lists above are complete.
 "$BANDLINK" check "$tmp/study/study.json" --out x 2>"$tmp/e"; rc=$?
 [ $rc -eq 2 ] && grep -q "unknown option '--out'" "$tmp/e" && pass "check refuses --out (exit 2)" || fail "check --out: rc $rc"
-echo "$passes passed, $fails failed"
-[ $fails -eq 0 ]
+finish

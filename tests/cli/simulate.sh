@@ -3,16 +3,12 @@
 # no-clobber/--force, strict scenario errors, WAV output, and (with python3-soundfile/scipy) the signal
 # itself: 24-bit at 1000 Hz, a mains line in each contact that the bipolar difference removes.
 set -u
+. "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
-tmp=$(mktemp -d)
-trap 'rm -rf "$tmp"' EXIT
-fails=0
-pass() { echo "PASS: $*"; }
-fail() { echo "FAIL: $*"; fails=$((fails + 1)); }
 scen="$BL_SOURCE_ROOT/tests/cli/simulate_small.json"
 
 "$BANDLINK" simulate "$scen" --out "$tmp/s1" --threads 2 >"$tmp/out1" 2>"$tmp/err1" && pass "simulate exits 0" \
-    || { fail "simulate failed: $(cat "$tmp/err1")"; echo "$fails failed"; exit 1; }
+    || bail "simulate failed: $(cat "$tmp/err1")"
 for f in study.json trials.csv truth.json truth_trials.csv recordings/a1.flac recordings/a2.flac recordings/a3.flac; do
     [ -s "$tmp/s1/$f" ] && pass "file $f written" || fail "file $f missing"
 done
@@ -76,7 +72,7 @@ cmp -s "$tmp/w/trials.csv" "$tmp/s2/trials.csv" && pass "WAV and FLAC (both 24-b
 # The signal (python3 with soundfile + scipy; skipped otherwise).
 py=/usr/bin/python3
 if [ -x "$py" ] && "$py" -c "import soundfile, scipy.signal, numpy" 2>/dev/null; then
-    "$py" - "$tmp/s2" <<'PY'
+    tally "$py" - "$tmp/s2" <<'PY'
 import json, sys
 import numpy as np, soundfile as sf
 from scipy.signal import welch
@@ -110,10 +106,8 @@ check(co.get(("threshold", "theta", "rich")) == 0.35 and co.get(("drift", "beta"
       and co.get(("nondecision", "intercept", "")) == 0.25, "truth.json: coefficients on the fitted terms and levels")
 sys.exit(0 if ok else 1)
 PY
-    [ $? -eq 0 ] || fails=$((fails + 1))
 else
     echo "SKIP: python3 soundfile/scipy not installed; signal checks skipped"
 fi
 
-echo "$fails failed"
-[ $fails -eq 0 ]
+finish
