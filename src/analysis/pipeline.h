@@ -20,31 +20,31 @@ typedef struct bl_stage bl_stage;
 /* Prepare to (re)create folder `target`. When it exists and force == 0: BL_ERR_EXISTS naming it.
  * Creates the parent folder and a hidden temporary folder beside the target (".<name>.partial-<pid>-XXXXXX");
  * leftovers of killed runs (whose process is gone) are removed first. */
-BL_API bl_status bl_stage_begin(const char *target, int force, bl_stage **out, bl_error *err);
+bl_status bl_stage_begin(const char *target, int force, bl_stage **out, bl_error *err);
 /* The temporary folder to write into. */
-BL_API const char *bl_stage_dir(const bl_stage *s);
+const char *bl_stage_dir(const bl_stage *s);
 /* Move the finished folder into place (replacing the old one atomically where the system allows, else
  * old -> aside, new -> target, old removed), free the stage. On failure the old folder is kept. */
-BL_API bl_status bl_stage_commit(bl_stage *s, bl_error *err);
+bl_status bl_stage_commit(bl_stage *s, bl_error *err);
 /* Remove the temporary folder and free. NULL-safe. */
-BL_API void bl_stage_abort(bl_stage *s);
+void bl_stage_abort(bl_stage *s);
 /* 1 when the existing file or folder `path` is `folder` or lies inside it (symbolic links resolved);
  * 0 otherwise, or when either does not exist; -1 when memory ran out. Guards --force against replacing a
  * folder holding inputs. */
-BL_API int bl_path_inside(const char *path, const char *folder);
+int bl_path_inside(const char *path, const char *folder);
 /* Remove a folder tree (like rm -r). */
-BL_API bl_status bl_remove_tree(const char *path, bl_error *err);
+bl_status bl_remove_tree(const char *path, bl_error *err);
 
 
 /* The provenance record of fits.json (caller frees with cJSON_Delete): bandlink version, `started`
  * (UTC, from bl_utc_stamp), seed, threads, permutations, the study as parsed, SHA-256 of the study file,
  * the trial table and every recording `power` read (power may be NULL), Welch settings and the bins
  * of each band, exclusion counts. Used by `run` and `fit` alike. */
-BL_API bl_status bl_provenance_create(const char *study_path, const bl_study *study, const bl_trials *trials,
-                                      const bl_power_result *power, unsigned long seed, int threads,
-                                      unsigned long permutations, const char *started, cJSON **out, bl_error *err);
+bl_status bl_provenance_create(const char *study_path, const bl_study *study, const bl_trials *trials,
+                               const bl_power_result *power, unsigned long seed, int threads,
+                               unsigned long permutations, const char *started, cJSON **out, bl_error *err);
 /* The current UTC time as "YYYY-MM-DDTHH:MM:SSZ". */
-BL_API void bl_utc_stamp(char out[32]);
+void bl_utc_stamp(char out[32]);
 
 
 
@@ -61,7 +61,7 @@ typedef enum {
 } bl_stage_id;
 
 /* Stage name as shown to users ("power", "fits", ...). */
-BL_API const char *bl_stage_name(int stage);
+const char *bl_stage_name(int stage);
 
 typedef struct {
     const char *study_path;
@@ -77,7 +77,7 @@ typedef struct {
     void *progress_user;
 } bl_run_options;
 
-BL_API void bl_run_options_default(bl_run_options *o);
+void bl_run_options_default(bl_run_options *o);
 
 typedef struct {
     char *out_dir;                          /* the results folder written */
@@ -91,6 +91,6 @@ typedef struct {
 /* Run the whole job. On success the results folder holds power.csv, fits.json (with provenance),
  * comparison.csv, trials.csv, fit_quantiles.csv, figures/ and report.html (docs/outputs.md). On failure
  * nothing is moved into place and an existing results folder is untouched. */
-BL_API bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *warn, bl_error *err);
-BL_API void bl_run_result_clear(bl_run_result *r);
+bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *warn, bl_error *err);
+void bl_run_result_clear(bl_run_result *r);
 #endif

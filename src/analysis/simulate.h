@@ -26,11 +26,11 @@
 typedef struct bl_scenario bl_scenario;
 
 /* Read and validate a scenario; errors name the file and the key path (e.g. "bursts.theta.amplitude"). */
-BL_API bl_status bl_scenario_load(const char *path, bl_scenario **out, bl_error *err);
-BL_API bl_status bl_scenario_parse(const char *json, const char *name, bl_scenario **out, bl_error *err);
-BL_API void bl_scenario_destroy(bl_scenario *sc);
+bl_status bl_scenario_load(const char *path, bl_scenario **out, bl_error *err);
+bl_status bl_scenario_parse(const char *json, const char *name, bl_scenario **out, bl_error *err);
+void bl_scenario_destroy(bl_scenario *sc);
 /* The scenario's own seed (its "seed" key, default 1). */
-BL_API unsigned long bl_scenario_seed(const bl_scenario *sc);
+unsigned long bl_scenario_seed(const bl_scenario *sc);
 
 typedef struct {
     int has_seed;              /* use `seed` instead of the scenario's */
@@ -50,12 +50,12 @@ typedef struct {
 
 /* Write the synthetic study into folder `out_dir` (created through a temporary folder beside it and
  * renamed at the end; an existing folder is an error unless opt->force). summary may be NULL. */
-BL_API bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl_simulate_options *opt,
-                                   bl_simulate_summary *summary, bl_warnings *warn, bl_error *err);
+bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl_simulate_options *opt,
+                            bl_simulate_summary *summary, bl_warnings *warn, bl_error *err);
 
 /* Fill x[0..n) with Gaussian noise shaped to a power spectrum proportional to 1/f^exponent above
  * `corner` Hz (flat below), scaled to the given RMS. fs in Hz. Uses one FFT of a fast size >= n. */
-BL_API bl_status bl_simulate_colored_noise(double *x, size_t n, double fs, double exponent, double corner,
-                                           double rms, gsl_rng *rng, bl_error *err);
+bl_status bl_simulate_colored_noise(double *x, size_t n, double fs, double exponent, double corner,
+                                    double rms, gsl_rng *rng, bl_error *err);
 
 #endif

@@ -10,20 +10,20 @@
 typedef struct bl_outfile bl_outfile;
 
 /* Open a temporary file in the folder of `path` (which must exist). */
-BL_API bl_status bl_outfile_open(const char *path, bl_outfile **out, bl_error *err);
+bl_status bl_outfile_open(const char *path, bl_outfile **out, bl_error *err);
 /* The stream to write into. */
-BL_API FILE *bl_outfile_stream(bl_outfile *f);
+FILE *bl_outfile_stream(bl_outfile *f);
 /* Flush, fsync, check for write errors, rename to the target; always frees `f`. On failure the
  * temporary file is removed and the target is untouched. */
-BL_API bl_status bl_outfile_commit(bl_outfile *f, bl_error *err);
+bl_status bl_outfile_commit(bl_outfile *f, bl_error *err);
 /* Discard: remove the temporary file and free. NULL-safe. */
-BL_API void bl_outfile_abort(bl_outfile *f);
+void bl_outfile_abort(bl_outfile *f);
 
 /* Write a whole buffer atomically. */
-BL_API bl_status bl_write_file_atomic(const char *path, const void *data, size_t size, bl_error *err);
+bl_status bl_write_file_atomic(const char *path, const void *data, size_t size, bl_error *err);
 /* Create a folder and its parents (like mkdir -p). */
-BL_API bl_status bl_mkdir_p(const char *path, bl_error *err);
+bl_status bl_mkdir_p(const char *path, bl_error *err);
 /* Join a folder and a name into a new string (caller frees). NULL on allocation failure. */
-BL_API char *bl_path_join(const char *dir, const char *name);
+char *bl_path_join(const char *dir, const char *name);
 
 #endif

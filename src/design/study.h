@@ -108,10 +108,10 @@ typedef struct bl_study {
     char *output;                 /* resolved results folder */
 } bl_study;
 
-BL_API bl_status bl_study_load(const char *path, bl_study **out, bl_error *err);
-BL_API bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_error *err);
+bl_status bl_study_load(const char *path, bl_study **out, bl_error *err);
+bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_error *err);
 /* The study as parsed, defaults filled in, as a JSON string (caller frees with free()). */
-BL_API char *bl_study_to_json(const bl_study *study);
-BL_API void bl_study_destroy(bl_study *study);
+char *bl_study_to_json(const bl_study *study);
+void bl_study_destroy(bl_study *study);
 
 #endif

@@ -24,12 +24,12 @@ typedef struct bl_trials {
 
 /* Read and code the trial table of a study. Exclusions (keep rules) are applied as reasons, never
  * by dropping rows. */
-BL_API bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warnings *warn,
-                                bl_error *err);
+bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warnings *warn,
+                         bl_error *err);
 /* Mark trial i as excluded with a reason (a string that outlives the trials, e.g. a literal).
  * Keeps n_kept up to date; the first reason wins. */
-BL_API void bl_trials_exclude(bl_trials *t, size_t i, const char *reason);
-BL_API void bl_trials_destroy(bl_trials *t);
+void bl_trials_exclude(bl_trials *t, size_t i, const char *reason);
+void bl_trials_destroy(bl_trials *t);
 
 /* Exclusion reasons with their counts, in order of first appearance (caller frees the array;
  * the reason strings belong to the trials). Returns the number of distinct reasons, or
@@ -39,6 +39,6 @@ typedef struct {
     const char *reason;
     size_t count;
 } bl_exclusion_count;
-BL_API size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out);
+size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out);
 
 #endif
