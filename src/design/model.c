@@ -654,63 +654,64 @@ void bl_model_restore_slopes(bl_model *m)
 }
 
 /* Column space of a's design for parameter p inside b's? Least squares residual of every column of
- * X_a on X_b (LAPACKE dgels). 1 yes, 0 no, -1 out of memory. */
-static int columns_inside(const bl_model *a, const bl_model *b, int p)
+ * X_a on X_b (LAPACKE dgels). *inside: 1 yes, 0 no. BL_ERR_NOMEM when memory ran out. */
+static bl_status columns_inside(const bl_model *a, const bl_model *b, int p, int *inside, bl_error *err)
 {
     size_t ka, kb;
-    double *Xa = param_matrix(a, p, &ka), *Xb = param_matrix(b, p, &kb);
-    int inside = 0;
-    if (!Xa || !Xb) {
-        inside = -1;
-        goto done;
-    }
+    double *Xa = param_matrix(a, p, &ka), *Xb = param_matrix(b, p, &kb), *B = NULL;
+    bl_status st = BL_OK;
+    *inside = 0;
+    if (!Xa || !Xb) goto nomem;
     if (a->n != b->n || a->n < kb) goto done;
-    double *B = malloc(a->n * ka * sizeof *B);
-    if (!B) {
-        inside = -1;
-        goto done;
-    }
+    if (!(B = malloc(a->n * ka * sizeof *B))) goto nomem;
     memcpy(B, Xa, a->n * ka * sizeof *B);
     lapack_int info = LAPACKE_dgels(LAPACK_ROW_MAJOR, 'N', (lapack_int)a->n, (lapack_int)kb, (lapack_int)ka, Xb,
                                     (lapack_int)kb, B, (lapack_int)ka);
-    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) inside = -1;
+    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) goto nomem;
     if (info == 0) {
-        inside = 1;
+        *inside = 1;
         for (size_t j = 0; j < ka; j++) {
             double rss = 0, tss = 0;
             for (size_t i = kb; i < a->n; i++) rss += B[i * ka + j] * B[i * ka + j];
             for (size_t i = 0; i < a->n; i++) tss += Xa[i * ka + j] * Xa[i * ka + j];
-            if (rss > 1e-16 * tss) inside = 0;
+            if (rss > 1e-16 * tss) *inside = 0;
         }
     }
-    free(B);
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking whether model '%s' is nested in '%s' (%s)", a->name,
+                      b->name, bl_param_name(p));
 done:
+    free(B);
     free(Xa);
     free(Xb);
-    return inside;
+    return st;
 }
 
-int bl_model_nested_in(const bl_model *a, const bl_model *b)
+bl_status bl_model_nested_in(const bl_model *a, const bl_model *b, int *nested, bl_error *err)
 {
-    if (a->n != b->n) return 0;
+    *nested = 0;
+    if (a->n != b->n) return BL_OK;
     for (size_t k = 0; k < a->n; k++)
-        if (a->row[k] != b->row[k]) return 0;
+        if (a->row[k] != b->row[k]) return BL_OK;
     for (int p = 0; p < BL_NPARAM; p++) {
         const bl_param_design *da = &a->par[p], *db = &b->par[p];
         if (!da->is_free && !db->is_free) {
-            if (da->fixed != db->fixed) return 0;
+            if (da->fixed != db->fixed) return BL_OK;
         } else if (da->is_free && !db->is_free) {
-            return 0;
+            return BL_OK;
         } else if (!da->is_free && db->is_free) {
             /* A fixed value is a constant on the link scale, which b's intercepts can take. */
-            if (db->link == BL_LINK_LOG && !(da->fixed > 0)) return 0;
+            if (db->link == BL_LINK_LOG && !(da->fixed > 0)) return BL_OK;
         } else {
-            if (da->link != db->link) return 0;
-            int inside = columns_inside(a, b, p);
-            if (inside <= 0) return inside;
+            if (da->link != db->link) return BL_OK;
+            int inside = 0;
+            bl_status st = columns_inside(a, b, p, &inside, err);
+            if (st || !inside) return st;
         }
     }
-    return 1;
+    *nested = 1;
+    return BL_OK;
 }
 
 bl_status bl_model_condition_cells(const bl_model *m, const bl_trials *trials, size_t **cell, size_t *n_cells,

@@ -60,10 +60,10 @@ const char *bl_model_slope_regressor(const bl_model *m, int param, size_t s);
 
 /* Index of the intercept coefficient of `param` that used trial k falls in (param must be free). */
 size_t bl_model_intercept_index(const bl_model *m, int param, size_t k);
-/* 1 when model a is nested in model b: same trials, and for every parameter a's design spans a
- * subspace of b's on the same link (a fixed value counts as a constant b can take); 0 when not;
- * -1 when memory ran out. */
-int bl_model_nested_in(const bl_model *a, const bl_model *b);
+/* *nested = 1 when model a is nested in model b: same trials, and for every parameter a's design
+ * spans a subspace of b's on the same link (a fixed value counts as a constant b can take); 0 when
+ * not. BL_ERR_NOMEM when memory ran out (*nested 0). */
+bl_status bl_model_nested_in(const bl_model *a, const bl_model *b, int *nested, bl_error *err);
 
 /* Predicted parameters of used trial k (drift already multiplied by the trial's stimulus sign, i.e.
  * drift toward the upper boundary). Returns 1 when valid, 0 when out of range (values still set). */

@@ -51,7 +51,7 @@ bl_status bl_compare_models(bl_fit_set *set, bl_error *err)
         free(set->comparison);
     }
     set->comparison = calloc(n ? n : 1, sizeof *set->comparison);
-    double *aic = malloc((n ? n : 1) * sizeof *aic), *w = malloc((n ? n : 1) * sizeof *w);
+    double *aic = calloc(n ? n : 1, sizeof *aic), *w = malloc((n ? n : 1) * sizeof *w);
     if (!set->comparison || !aic || !w) {
         free(aic);
         free(w);
