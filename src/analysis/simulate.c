@@ -13,6 +13,7 @@
  */
 #include "engine/wiener_sample.h"
 #include "analysis/simulate.h"
+#include "core/gsl_guard.h"
 
 #include "core/output.h"
 #include "analysis/pipeline.h"
@@ -783,6 +784,7 @@ static size_t fast_size(size_t n)
 bl_status bl_simulate_colored_noise(double *x, size_t n, double fs, double exponent, double corner, double rms,
                                     gsl_rng *rng, bl_error *err)
 {
+    bl_gsl_guard();
     if (n == 0) return BL_OK;
     if (!(fs > 0) || !(corner > 0) || !(rms >= 0) || !isfinite(exponent))
         return bl_error_set(err, BL_ERR_RANGE, "coloured noise: invalid settings (fs %g, corner %g, rms %g)", fs, corner, rms);
@@ -1151,6 +1153,7 @@ static bl_status measure(const char *study_path, int threads, bl_study **study, 
 bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl_simulate_options *opt,
                             bl_simulate_summary *summary, bl_warnings *warn, bl_error *err)
 {
+    bl_gsl_guard();
     bl_simulate_options defaults = {0};
     if (!opt) opt = &defaults;
     unsigned long seed = opt->has_seed ? opt->seed : sc->seed;

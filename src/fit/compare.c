@@ -12,6 +12,7 @@
  * Clinical Trials 7:177-188) random-effects estimate with its between-participant variance.
  */
 #include "fit/fit_internal.h"
+#include "core/gsl_guard.h"
 #include "design/model_internal.h"
 #include "core/strutil.h"
 
@@ -360,6 +361,7 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
 bl_status bl_permutation_tests(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
                                    const bl_fit_options *opt, bl_unit_set *full, bl_model_result *r, bl_error *err)
 {
+    bl_gsl_guard();
     size_t n_tests = 0;
     for (int p = 0; p < BL_NPARAM; p++) n_tests += spec->param[p].is_fixed ? 0 : spec->param[p].n_slopes;
     if (n_tests == 0 || opt->permutations == 0) return BL_OK;

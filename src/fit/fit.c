@@ -20,6 +20,7 @@
 #include "fit/fit.h"
 #include "fit/screen.h"
 #include "core/strutil.h"
+#include "core/gsl_guard.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
@@ -796,6 +797,7 @@ void bl_fit_warn(const bl_model *m, const char *participant, const bl_fit_result
 bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const double *start, bl_fit_result *res,
                        bl_warnings *warn, bl_error *err)
 {
+    bl_gsl_guard();
     bl_likelihood *lik = bl_likelihood_create(m, opt ? opt->threads : 0);
     if (lik && opt && opt->parallel_trials) bl_likelihood_set_parallel(lik, opt->parallel_trials > 0);
     if (!lik) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);

@@ -11,6 +11,7 @@
 #include "fit/fit.h"
 #include "fit/screen.h"
 #include "core/strutil.h"
+#include "core/gsl_guard.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -345,6 +346,7 @@ static bl_status mark_nesting(study_fit *sf, bl_error *err)
 bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt,
                        bl_fit_set **out, bl_warnings *warn, bl_error *err)
 {
+    bl_gsl_guard();
     *out = NULL;
     bl_status st = opt ? check_model_names(study, opt, err) : BL_OK;
     if (st) return st;

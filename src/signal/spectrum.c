@@ -8,6 +8,7 @@
  */
 #include "signal/spectrum.h"
 
+#include "core/gsl_guard.h"
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fft_real.h>
 #include <math.h>
@@ -36,6 +37,7 @@ struct bl_welch_work {
 bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_t nfft, bl_welch_detrend detrend,
                                bl_welch_average average, bl_welch_scaling scaling, bl_welch_plan **out, bl_error *err)
 {
+    bl_gsl_guard();
     *out = NULL;
     if (nfft == 0) nfft = nperseg;
     if (!(fs > 0) || !isfinite(fs)) return bl_error_set(err, BL_ERR_INPUT, "Welch: sampling rate %g is not > 0", fs);
@@ -91,6 +93,7 @@ size_t bl_welch_n_segments(const bl_welch_plan *p, size_t n)
 
 bl_status bl_welch_work_create(const bl_welch_plan *p, size_t max_n, bl_welch_work **out, bl_error *err)
 {
+    bl_gsl_guard();
     *out = NULL;
     bl_welch_work *w = calloc(1, sizeof *w);
     if (!w) return bl_error_set(err, BL_ERR_NOMEM, "out of memory for a Welch workspace");
