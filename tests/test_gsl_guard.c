@@ -31,7 +31,7 @@ static int child(int install_host_handler)
     if (install_host_handler) gsl_set_error_handler(host_handler);
     bl_welch_plan *plan = NULL;
     bl_error err = {0};
-    bl_status st = bl_welch_plan_create(1000.0, 2, 0, huge_nfft, BL_WELCH_DETREND_CONSTANT, BL_WELCH_MEAN,
+    bl_status st = bl_welch_plan_create(1000.0, 2, 0, huge_nfft, BL_DETREND_MEAN, BL_WELCH_MEAN,
                                         BL_WELCH_DENSITY, &plan, &err);
     bl_welch_plan_destroy(plan);
     if (st != BL_ERR_NOMEM) return 10;

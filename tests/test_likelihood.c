@@ -109,8 +109,8 @@ int main(void)
     double g1[9], g2[9], g3[9];
     bl_likelihood *w2 = bl_likelihood_create(m, 2), *w3 = bl_likelihood_create(m, 3);
     /* Force the parallel path (600 trials would otherwise run on one thread). */
-    bl_likelihood_set_parallel(w2, 1);
-    bl_likelihood_set_parallel(w3, 1);
+    bl_likelihood_set_parallel(w2, BL_PARALLEL_SPLIT);
+    bl_likelihood_set_parallel(w3, BL_PARALLEL_SPLIT);
     double l1 = bl_likelihood_eval(w1, coef, g1), l2 = bl_likelihood_eval(w2, coef, g2),
            l3 = bl_likelihood_eval(w3, coef, g3);
     check_abs(l2, l1, 1e-12 * fabs(l1), "1 vs 2 threads: same log-likelihood");

@@ -571,14 +571,14 @@ size_t bl_model_n_coef(const bl_model *m) { return m->n_coef; }
 const bl_coef_info *bl_model_coef(const bl_model *m, size_t j) { return j < m->n_coef ? &m->coef[j] : NULL; }
 size_t bl_model_n_trials(const bl_model *m) { return m->n; }
 size_t bl_model_row(const bl_model *m, size_t k) { return m->row[k]; }
-int bl_model_link(const bl_model *m, int param) { return m->par[param].link; }
-int bl_model_param_free(const bl_model *m, int param) { return m->par[param].is_free; }
-size_t bl_model_n_slopes(const bl_model *m, int param) { return m->par[param].n_slopes; }
-const char *bl_model_slope_regressor(const bl_model *m, int param, size_t s)
+int bl_model_link(const bl_model *m, bl_param param) { return m->par[param].link; }
+int bl_model_param_free(const bl_model *m, bl_param param) { return m->par[param].is_free; }
+size_t bl_model_n_slopes(const bl_model *m, bl_param param) { return m->par[param].n_slopes; }
+const char *bl_model_slope_regressor(const bl_model *m, bl_param param, size_t s)
 {
     return s < m->par[param].n_slopes ? m->par[param].slopes[s].regressor : NULL;
 }
-size_t bl_model_intercept_index(const bl_model *m, int param, size_t k)
+size_t bl_model_intercept_index(const bl_model *m, bl_param param, size_t k)
 {
     return m->par[param].first_coef + m->par[param].level[k];
 }
@@ -604,10 +604,10 @@ int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_
     return bl_model_params_valid(p);
 }
 
-bl_status bl_model_permute_slope(bl_model *m, int param, size_t s, const size_t *cell, gsl_rng *rng,
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, gsl_rng *rng,
                                  bl_error *err)
 {
-    if (param < 0 || param >= BL_NPARAM || s >= m->par[param].n_slopes)
+    if ((unsigned)param >= BL_NPARAM || s >= m->par[param].n_slopes)
         return bl_error_set(err, BL_ERR_INTERNAL, "model '%s': no slope %zu on parameter %d", m->name, s, param);
     bl_slope_design *sl = &m->par[param].slopes[s];
     size_t n = m->n, n_cells = 0;

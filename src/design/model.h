@@ -30,7 +30,7 @@
 typedef struct bl_model bl_model;
 
 typedef struct {
-    int param;            /* bl_param index */
+    bl_param param;
     int slope;            /* -1 for an intercept, else the index of the slope within the parameter */
     const char *term;     /* "intercept" or the regressor name */
     const char *level;    /* "rich", "rich:easy" (values of the columns joined by ':'), "" when single */
@@ -52,14 +52,14 @@ const bl_coef_info *bl_model_coef(const bl_model *m, size_t j);
 size_t bl_model_n_trials(const bl_model *m);
 /* Table row of used trial k. */
 size_t bl_model_row(const bl_model *m, size_t k);
-int bl_model_link(const bl_model *m, int param);          /* BL_LINK_IDENTITY or BL_LINK_LOG */
-int bl_model_param_free(const bl_model *m, int param);    /* 1 when the parameter has coefficients */
-size_t bl_model_n_slopes(const bl_model *m, int param);
+int bl_model_link(const bl_model *m, bl_param param);          /* BL_LINK_IDENTITY or BL_LINK_LOG */
+int bl_model_param_free(const bl_model *m, bl_param param);    /* 1 when the parameter has coefficients */
+size_t bl_model_n_slopes(const bl_model *m, bl_param param);
 /* Regressor name of slope s of a parameter. */
-const char *bl_model_slope_regressor(const bl_model *m, int param, size_t s);
+const char *bl_model_slope_regressor(const bl_model *m, bl_param param, size_t s);
 
 /* Index of the intercept coefficient of `param` that used trial k falls in (param must be free). */
-size_t bl_model_intercept_index(const bl_model *m, int param, size_t k);
+size_t bl_model_intercept_index(const bl_model *m, bl_param param, size_t k);
 /* *nested = 1 when model a is nested in model b: same trials, and for every parameter a's design
  * spans a subspace of b's on the same link (a fixed value counts as a constant b can take); 0 when
  * not. BL_ERR_NOMEM when memory ran out (*nested 0). */
@@ -71,7 +71,7 @@ int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_
 
 /* Permutation support: shuffle the values of slope s of `param` among used trials within the cells
  * given by cell[k] (k = used trial), with a Fisher-Yates shuffle per cell driven by `rng`. */
-bl_status bl_model_permute_slope(bl_model *m, int param, size_t s, const size_t *cell,
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell,
                                  gsl_rng *rng, bl_error *err);
 /* Restore all slope values to the unshuffled design. */
 void bl_model_restore_slopes(bl_model *m);
@@ -82,10 +82,15 @@ void bl_model_restore_slopes(bl_model *m);
 typedef struct bl_likelihood bl_likelihood;
 bl_likelihood *bl_likelihood_create(const bl_model *m, int threads);
 void bl_likelihood_destroy(bl_likelihood *w);
-/* How trials are spread over threads: -1 (default) measures both ways on a few evaluations and
- * keeps the faster, re-measuring every 64 evaluations (less often while one thread keeps winning) (fork-join can lose on a busy machine);
- * 0 always one thread; 1 always `threads` threads (even below 1,024 trials). Results are the same. */
-void bl_likelihood_set_parallel(bl_likelihood *w, int mode);
+/* How one likelihood's trials are spread over threads (the one encoding of this choice, used by the
+ * workspace and by bl_fit_options.parallel_trials). Results are the same bytes in every mode.
+ * AUTO (the default, 0): measure both ways on a few evaluations and keep the faster, re-measuring
+ *   every 64 evaluations (less often while one thread keeps winning): fork-join can lose on a busy
+ *   machine; fewer than 1,024 trials stay on one thread.
+ * SPLIT: always `threads` threads (even below 1,024 trials).
+ * UNSPLIT: always one thread. */
+typedef enum { BL_PARALLEL_AUTO = 0, BL_PARALLEL_SPLIT, BL_PARALLEL_UNSPLIT } bl_parallel_mode;
+void bl_likelihood_set_parallel(bl_likelihood *w, bl_parallel_mode mode);
 /* Total log-likelihood at `coef` (n_coef values); `grad` (may be NULL) receives d/dcoef. Returns
  * -INFINITY (gradient zeroed) when the point is infeasible. Counts evaluations. */
 double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad);

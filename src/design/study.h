@@ -7,6 +7,7 @@
 
 #include "bandlink/status.h"
 #include "bandlink/wiener.h"
+#include "signal/spectrum.h" /* bl_detrend */
 
 #include <stddef.h>
 
@@ -45,7 +46,6 @@ typedef struct {
 typedef enum { BL_SCALE_LINEAR = 0, BL_SCALE_LOG10, BL_SCALE_DB } bl_scale;
 typedef enum { BL_STANDARDIZE_NONE = 0, BL_STANDARDIZE_PARTICIPANT, BL_STANDARDIZE_PARTICIPANT_CONDITION } bl_standardize;
 typedef enum { BL_ALIGN_ONSET = 0, BL_ALIGN_RESPONSE } bl_align;
-typedef enum { BL_DETREND_MEAN = 0, BL_DETREND_LINEAR, BL_DETREND_NONE } bl_detrend;
 typedef enum { BL_PARTICIPANTS_POOLED = 0, BL_PARTICIPANTS_SEPARATE } bl_participants_mode;
 
 typedef struct bl_study {

@@ -28,8 +28,8 @@ typedef struct {
     size_t n_models;
     int starts;                     /* optimiser starts per fit; <= 0: the study's fit.starts, else 3 */
     int simplex_only;               /* 1: Nelder-Mead (nmsimplex2) alone instead of BFGS (for checks) */
-    int parallel_trials;            /* a single fit's trials over threads: 0 auto (default: measured,
-                                       see bl_likelihood_set_parallel), 1 always, -1 never */
+    bl_parallel_mode parallel_trials; /* a single fit's trials over threads (default AUTO: measured;
+                                       see bl_likelihood_set_parallel) */
     /* Called between fits (may be NULL): stage text, steps done, steps in total. */
     void (*progress)(void *user, const char *stage, size_t done, size_t total);
     void *progress_user;
@@ -38,7 +38,7 @@ typedef struct {
 void bl_fit_options_default(bl_fit_options *o);
 
 typedef struct {
-    int param;                      /* bl_param index */
+    bl_param param;
     const char *parameter;          /* "threshold", ... (static) */
     char *term;                     /* "intercept" or the regressor name */
     char *level;                    /* "rich", "rich:easy", "" for a single coefficient */
@@ -78,7 +78,7 @@ typedef struct {
 
 /* Group summary of one coefficient across participants (separate mode). */
 typedef struct {
-    int param;
+    bl_param param;
     const char *parameter;
     char *term, *level;
     size_t n;                       /* participants that have this coefficient */
@@ -93,7 +93,7 @@ typedef struct {
 
 /* Permutation test of one slope (all its levels at once). */
 typedef struct {
-    int param;
+    bl_param param;
     const char *parameter;
     char *regressor;
     double statistic;               /* 2 (LL_model - LL_model without this slope) */

@@ -49,7 +49,7 @@ int bl_figures_best_model(const bl_fit_set *set)
     return best;
 }
 
-const char *bl_figures_param_unit(int param)
+const char *bl_figures_param_unit(bl_param param)
 {
     switch (param) {
     case BL_THRESHOLD: return "threshold (evidence units, s = 1)";
@@ -484,8 +484,9 @@ static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, ch
     const bl_fit_result *fr = &mr->fit;
     int separate = mr->mode == BL_PARTICIPANTS_SEPARATE && mr->n_participants > 0;
     /* One panel per parameter that has coefficients. */
-    int params[BL_NPARAM], np = 0;
-    for (int p = 0; p < BL_NPARAM; p++)
+    bl_param params[BL_NPARAM];
+    int np = 0;
+    for (bl_param p = 0; p < BL_NPARAM; p++)
         for (size_t j = 0; j < fr->n_coef; j++)
             if (fr->coef[j].param == p) {
                 params[np++] = p;
@@ -504,7 +505,7 @@ static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, ch
     free(title);
     if (!fig) return NULL;
     for (int i = 0; i < np; i++) {
-        int param = params[i];
+        bl_param param = params[i];
         bl_svg_panel *p = bl_svg_panel_at(fig, i);
         size_t nc = 0;
         const char *labels[256];

@@ -46,6 +46,6 @@ void bl_figure_set_destroy(bl_figure_set *figs);
 int bl_figures_best_model(const bl_fit_set *set);
 
 /* Axis text for a parameter, with its unit, e.g. "threshold (evidence units, s = 1)". */
-const char *bl_figures_param_unit(int param);
+const char *bl_figures_param_unit(bl_param param);
 
 #endif

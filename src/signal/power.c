@@ -486,7 +486,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     for (size_t k = 0; k < n_jobs; k++) jobs[k].start = llround(align[jobs[k].row] * fs) + a;
     free(align);
 
-    if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, (bl_welch_detrend)s->power.detrend,
+    if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, s->power.detrend,
                                    s->power.median ? BL_WELCH_MEDIAN : BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, err)))
         goto fail;
     r->df = bl_welch_df(plan);

@@ -16,7 +16,9 @@
 
 #include <stddef.h>
 
-typedef enum { BL_WELCH_DETREND_CONSTANT = 0, BL_WELCH_DETREND_LINEAR, BL_WELCH_DETREND_NONE } bl_welch_detrend;
+/* What each segment loses before the taper: its mean (scipy's detrend='constant'), its least-squares
+ * line, or nothing. The one detrend type of the library: the study file's power.detrend holds it too. */
+typedef enum { BL_DETREND_MEAN = 0, BL_DETREND_LINEAR, BL_DETREND_NONE } bl_detrend;
 typedef enum { BL_WELCH_MEAN = 0, BL_WELCH_MEDIAN } bl_welch_average;
 typedef enum { BL_WELCH_DENSITY = 0, BL_WELCH_SPECTRUM } bl_welch_scaling;
 
@@ -25,7 +27,7 @@ typedef struct bl_welch_work bl_welch_work;
 
 /* fs > 0 [Hz]; 1 <= nperseg; noverlap < nperseg; nfft >= nperseg (0 = nperseg). */
 bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_t nfft,
-                               bl_welch_detrend detrend, bl_welch_average average,
+                               bl_detrend detrend, bl_welch_average average,
                                bl_welch_scaling scaling, bl_welch_plan **out, bl_error *err);
 void bl_welch_plan_destroy(bl_welch_plan *p);
 /* Number of one-sided frequencies, nfft/2 + 1. */
