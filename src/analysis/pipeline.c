@@ -126,8 +126,8 @@ static void remove_stale(const char *parent, const char *name)
         long pid = strtol(e->d_name + np, NULL, 10);
         if (pid <= 0 || pid == (long)getpid()) continue;
         if (kill((pid_t)pid, 0) == 0 || errno == EPERM) continue; /* still running */
-        char *p = bl_path_join(parent, e->d_name);
-        if (p) bl_remove_tree(p, NULL);
+        char *p = NULL;
+        if (bl_path_join(parent, e->d_name, &p, NULL) == BL_OK) bl_remove_tree(p, NULL);
         free(p);
     }
     closedir(d);
@@ -147,9 +147,9 @@ static int replaceable_folder(const char *dir)
     closedir(d);
     if (empty) return 1;
     for (size_t i = 0; i < sizeof markers / sizeof markers[0]; i++) {
-        char *p = bl_path_join(dir, markers[i]);
+        char *p = NULL;
         struct stat sb;
-        int found = p && stat(p, &sb) == 0 && S_ISREG(sb.st_mode);
+        int found = bl_path_join(dir, markers[i], &p, NULL) == BL_OK && stat(p, &sb) == 0 && S_ISREG(sb.st_mode);
         free(p);
         if (found) return 1;
     }
@@ -593,7 +593,7 @@ static bl_status run_report_stages(const bl_run_options *opt, const bl_study *st
     char *path = NULL;
     double t = now_seconds();
     say(opt, BL_STAGE_GOODNESS, "observed vs predicted quantiles", 0, 0);
-    if (!(path = bl_path_join(dir, "fit_quantiles.csv"))) goto nomem;
+    if (bl_path_join(dir, "fit_quantiles.csv", &path, NULL)) goto nomem;
     if ((st = bl_goodness_compute(study, trials, set, threads, &g, err))) goto done;
     if ((st = bl_goodness_write_csv(g, path, err))) goto done;
     free(path);
@@ -602,7 +602,7 @@ static bl_status run_report_stages(const bl_run_options *opt, const bl_study *st
 
     t = now_seconds();
     say(opt, BL_STAGE_FIGURES, "drawing", 0, 0);
-    if (!(path = bl_path_join(dir, "figures"))) goto nomem;
+    if (bl_path_join(dir, "figures", &path, NULL)) goto nomem;
     if ((st = bl_figures_make(study, trials, pr, set, g, &figs, err))) goto done;
     if ((st = bl_figures_write(figs, path, err))) goto done;
     free(path);
@@ -626,7 +626,7 @@ static bl_status run_report_stages(const bl_run_options *opt, const bl_study *st
         job.n_stages = BL_STAGE_REPORT; /* the stages done before the report */
         job.stage_names = stage_names;
         job.stage_seconds = sec;
-        if (!(path = bl_path_join(dir, "report.html"))) goto nomem;
+        if (bl_path_join(dir, "report.html", &path, NULL)) goto nomem;
         if ((st = bl_report_write(path, &job, study, trials, pr, set, g, figs, warn, err))) goto done;
     }
     sec[BL_STAGE_REPORT] = now_seconds() - t;
@@ -717,7 +717,7 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
     if (study->has_recordings && study->has_power) {
         say(opt, BL_STAGE_POWER, "band power", 0, trials->n);
         if ((st = bl_power_compute(study, trials, threads, &pr, warn, err))) goto done;
-        if (!(path = bl_path_join(dir, "power.csv"))) goto nomem;
+        if (bl_path_join(dir, "power.csv", &path, NULL)) goto nomem;
         if ((st = bl_power_write_csv(study, trials, pr, path, err))) goto done;
         free(path);
         path = NULL;
@@ -736,10 +736,10 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
         fo.progress = fit_progress;
         fo.progress_user = &pc;
         if ((st = bl_fit_study(study, trials, &fo, &set, warn, err))) goto done;
-        if (!(path = bl_path_join(dir, "comparison.csv"))) goto nomem;
+        if (bl_path_join(dir, "comparison.csv", &path, NULL)) goto nomem;
         if ((st = bl_results_write_comparison(path, set, err))) goto done;
         free(path);
-        if (!(path = bl_path_join(dir, "trials.csv"))) goto nomem;
+        if (bl_path_join(dir, "trials.csv", &path, NULL)) goto nomem;
         if ((st = bl_results_write_trials(path, set, trials, err))) goto done;
         free(path);
         path = NULL;
@@ -763,7 +763,7 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
         cJSON *ss = cJSON_AddObjectToObject(prov, "stage_seconds");
         for (int s = 0; ss && s < BL_STAGE_COUNT; s++) cJSON_AddNumberToObject(ss, stage_names[s], out->stage_seconds[s]);
     }
-    if (!(path = bl_path_join(dir, "fits.json"))) goto nomem;
+    if (bl_path_join(dir, "fits.json", &path, NULL)) goto nomem;
     if ((st = bl_results_write_fits(path, set, prov, warn, err))) goto done;
     if ((st = bl_stage_commit(stage, err))) {
         stage = NULL;

@@ -1210,9 +1210,9 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
     }
     if ((st = bl_stage_begin(out_dir, opt->force, &stage, err))) goto done;
     const char *dir = bl_stage_dir(stage);
-    if (!(p_rec = bl_path_join(dir, "recordings")) || !(p_trials = bl_path_join(dir, "trials.csv")) ||
-        !(p_study = bl_path_join(dir, "study.json")) || !(p_truth = bl_path_join(dir, "truth.json")) ||
-        !(p_tt = bl_path_join(dir, "truth_trials.csv"))) {
+    if (bl_path_join(dir, "recordings", &p_rec, NULL) || bl_path_join(dir, "trials.csv", &p_trials, NULL) ||
+        bl_path_join(dir, "study.json", &p_study, NULL) || bl_path_join(dir, "truth.json", &p_truth, NULL) ||
+        bl_path_join(dir, "truth_trials.csv", &p_tt, NULL)) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
@@ -1241,9 +1241,9 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         for (size_t p = 0; p < P; p++) {
             char name[600];
             snprintf(name, sizeof name, "%s.%s", sc->participants[p], sc->wav ? "wav" : "flac");
-            char *path = bl_path_join(p_rec, name);
-            if (!path) pst[p] = bl_error_set(&perr[p], BL_ERR_NOMEM, "out of memory");
-            else pst[p] = write_recording(sc, p, tr + p * T, T, path, seed, &psec[p], &perr[p]);
+            char *path = NULL;
+            pst[p] = bl_path_join(p_rec, name, &path, &perr[p]);
+            if (pst[p] == BL_OK) pst[p] = write_recording(sc, p, tr + p * T, T, path, seed, &psec[p], &perr[p]);
             free(path);
         }
         for (size_t p = 0; p < P && st == BL_OK; p++) {

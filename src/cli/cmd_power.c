@@ -66,7 +66,7 @@ int cmd_power(int argc, char **argv)
         goto fail;
     }
     const char *dir = out_dir ? out_dir : study->output;
-    if (!(path = bl_path_join(dir, "power.csv"))) {
+    if (bl_path_join(dir, "power.csv", &path, NULL)) {
         bl_error_set(&err, BL_ERR_NOMEM, "out of memory");
         goto fail;
     }

@@ -667,7 +667,8 @@ bl_status bl_figures_write(const bl_figure_set *figs, const char *dir, bl_error 
     if (st != BL_OK) return st;
     static const char decl[] = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
     for (size_t i = 0; i < figs->n; i++) {
-        char *path = bl_path_join(dir, figs->items[i].file);
+        char *path = NULL;
+        bl_path_join(dir, figs->items[i].file, &path, NULL);
         char *buf = malloc(sizeof decl - 1 + figs->items[i].size);
         if (!path || !buf) {
             free(path), free(buf);

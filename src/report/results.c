@@ -306,7 +306,7 @@ bl_status bl_results_write_all(const char *dir, const bl_fit_set *set, const bl_
     bl_status st = bl_mkdir_p(dir, err);
     if (st) return st;
     for (int i = 0; i < 3; i++)
-        if (!(path[i] = bl_path_join(dir, names[i]))) {
+        if (bl_path_join(dir, names[i], &path[i], NULL)) {
             st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
             goto done;
         }
