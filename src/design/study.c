@@ -826,15 +826,16 @@ static cJSON *num_or_null(double x)
     return isfinite(x) ? cJSON_CreateNumber(x) : cJSON_CreateNull();
 }
 
-char *bl_study_to_json(const bl_study *s)
+bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
 {
+    *out = NULL;
     static const char *const aligns[] = {"onset", "response"};
     static const char *const detrends[] = {"mean", "linear", "none"};
     static const char *const scales[] = {"linear", "log10", "db"};
     static const char *const stds[] = {"none", "participant", "participant_condition"};
     static const char *const links[] = {"default", "identity", "log"};
     cJSON *root = cJSON_CreateObject();
-    if (!root) return NULL;
+    if (!root) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the study as JSON");
     cJSON *t = cJSON_AddObjectToObject(root, "trials");
     cJSON_AddStringToObject(t, "file", s->trials.file);
     cJSON_AddStringToObject(t, "participant", s->trials.participant);
@@ -911,11 +912,11 @@ char *bl_study_to_json(const bl_study *s)
     cJSON_AddStringToObject(root, "output", s->output);
     char *txt = bl_json_alloc_failures() ? NULL : cJSON_Print(root);
     cJSON_Delete(root);
-    if (!txt) return NULL;
     /* cJSON_Print allocates with its hooks (malloc by default); hand back a plain malloc'd copy */
-    char *copy = bl_strdup(txt);
+    *out = txt ? bl_strdup(txt) : NULL;
     cJSON_free(txt);
-    return copy;
+    if (!*out) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the study as JSON");
+    return BL_OK;
 }
 
 void bl_study_destroy(bl_study *s)

@@ -110,8 +110,9 @@ typedef struct bl_study {
 
 bl_status bl_study_load(const char *path, bl_study **out, bl_error *err);
 bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_error *err);
-/* The study as parsed, defaults filled in, as a JSON string (caller frees with free()). */
-char *bl_study_to_json(const bl_study *study);
+/* The study as parsed, defaults filled in, as a JSON string *out (caller frees with free()).
+ * BL_ERR_NOMEM (*out NULL) when memory ran out. */
+bl_status bl_study_to_json(const bl_study *study, char **out, bl_error *err);
 void bl_study_destroy(bl_study *study);
 
 #endif

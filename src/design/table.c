@@ -8,17 +8,18 @@
 #include <stdlib.h>
 #include <string.h>
 
-bl_table *bl_table_create(size_t n_rows)
+bl_status bl_table_create(size_t n_rows, bl_table **out, bl_error *err)
 {
     bl_table *t = calloc(1, sizeof *t);
-    if (!t) return NULL;
-    t->n_rows = n_rows;
-    t->line = calloc(n_rows ? n_rows : 1, sizeof *t->line);
-    if (!t->line) {
+    if (t) t->line = calloc(n_rows ? n_rows : 1, sizeof *t->line);
+    if (!t || !t->line) {
         free(t);
-        return NULL;
+        *out = NULL;
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory for a table of %zu rows", n_rows);
     }
-    return t;
+    t->n_rows = n_rows;
+    *out = t;
+    return BL_OK;
 }
 
 int bl_table_find(const bl_table *t, const char *name)
@@ -334,7 +335,7 @@ bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_tab
         r.n = 0;
     }
 
-    if (!(t = bl_table_create(n_rows))) {
+    if (bl_table_create(n_rows, &t, NULL)) {
         nomem = 1;
         goto fail;
     }

@@ -29,8 +29,8 @@ bl_status bl_table_read(const char *path, bl_table **out, bl_error *err);
 /* Parse from memory (the same rules; `name` is used in messages). */
 bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_table **out,
                          bl_error *err);
-/* An empty table with n_rows rows and no columns. */
-bl_table *bl_table_create(size_t n_rows);
+/* An empty table with n_rows rows and no columns (BL_ERR_NOMEM when memory ran out, *out NULL). */
+bl_status bl_table_create(size_t n_rows, bl_table **out, bl_error *err);
 /* Column index by name, or -1. */
 int bl_table_find(const bl_table *t, const char *name);
 /* Append a numeric column (values copied; text made with %.17g, NULL for NAN). Replaces a column

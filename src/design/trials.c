@@ -63,9 +63,10 @@ void bl_trials_exclude(bl_trials *t, size_t i, const char *reason)
     t->n_kept--;
 }
 
-size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
+bl_status bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out, size_t *n_out, bl_error *err)
 {
     *out = NULL;
+    *n_out = 0;
     size_t n = 0;
     bl_exclusion_count *c = NULL;
     for (size_t i = 0; i < t->n; i++) {
@@ -77,7 +78,7 @@ size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
             bl_exclusion_count *nc = realloc(c, (n + 1) * sizeof *nc);
             if (!nc) {
                 free(c);
-                return BL_EXCLUSION_COUNTS_NOMEM;
+                return bl_error_set(err, BL_ERR_NOMEM, "out of memory counting exclusion reasons");
             }
             c = nc;
             c[n].reason = r;
@@ -87,7 +88,8 @@ size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
         c[k].count++;
     }
     *out = c;
-    return n;
+    *n_out = n;
+    return BL_OK;
 }
 
 /* qsort has no context argument in C11; loading is not done from several threads at once on one table,

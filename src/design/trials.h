@@ -31,14 +31,13 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
 void bl_trials_exclude(bl_trials *t, size_t i, const char *reason);
 void bl_trials_destroy(bl_trials *t);
 
-/* Exclusion reasons with their counts, in order of first appearance (caller frees the array;
- * the reason strings belong to the trials). Returns the number of distinct reasons, or
- * BL_EXCLUSION_COUNTS_NOMEM (with *out NULL) when memory ran out. */
-#define BL_EXCLUSION_COUNTS_NOMEM ((size_t)-1)
+/* Exclusion reasons with their counts, in order of first appearance: *n distinct reasons in *out
+ * (caller frees the array; the reason strings belong to the trials). BL_ERR_NOMEM (*out NULL, *n 0)
+ * when memory ran out. */
 typedef struct {
     const char *reason;
     size_t count;
 } bl_exclusion_count;
-size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out);
+bl_status bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out, size_t *n, bl_error *err);
 
 #endif

@@ -277,8 +277,10 @@ done:
 /* ---- inference ------------------------------------------------------------------------------- */
 
 /* Observed information I = -H by central differences of the analytic gradient, symmetrised.
- * Returns 0 when a step leaves the feasible region even after shrinking. */
-static int observed_information(bl_likelihood *lik, const bl_model *m, const double *coef, double *info)
+ * *found = 0 when a step leaves the feasible region even after shrinking. BL_ERR_NOMEM when memory
+ * ran out: the caller fails the fit rather than report "not positive definite". */
+static bl_status observed_information(bl_likelihood *lik, const bl_model *m, const double *coef, double *info,
+                                      int *found, bl_error *err)
 {
     size_t k = m->n_coef;
     double *c = malloc(k * sizeof *c), *gp = malloc(k * sizeof *gp), *gm = malloc(k * sizeof *gm);
@@ -286,7 +288,8 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
         free(c);
         free(gp);
         free(gm);
-        return -1; /* out of memory: the caller fails the fit rather than reporting "not positive definite" */
+        *found = 0;
+        return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the observed information", m->name);
     }
     int ok = 1;
     memcpy(c, coef, k * sizeof *c);
@@ -318,7 +321,8 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
     free(c);
     free(gp);
     free(gm);
-    return ok;
+    *found = ok;
+    return BL_OK;
 }
 
 /* LAPACKE's own workspace or transposition buffer could not be allocated. */
@@ -327,33 +331,37 @@ static int lapacke_out_of_memory(lapack_int info)
     return info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR;
 }
 
-/* Covariance = info^-1 by Cholesky; 0 when info is not positive definite, -1 when memory ran out.
- * cond receives the eigenvalue ratio of info (NAN when the eigenvalues fail). */
-int bl_information_inverse(const double *info, size_t k, double *cov, double *cond)
+/* Covariance = info^-1 by Cholesky (see fit.h). */
+bl_status bl_information_inverse(const double *info, size_t k, double *cov, double *cond, int *positive_definite,
+                                 bl_error *err)
 {
     double *tmp = malloc(k * k * sizeof *tmp), *ev = malloc(k * sizeof *ev);
     *cond = NAN;
+    *positive_definite = 0;
     if (!tmp || !ev) {
         free(tmp);
         free(ev);
-        return -1;
+        goto nomem;
     }
     memcpy(tmp, info, k * k * sizeof *tmp);
     lapack_int ie = LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'N', 'U', (lapack_int)k, tmp, (lapack_int)k, ev);
     if (ie == 0) *cond = ev[0] > 0 ? ev[k - 1] / ev[0] : INFINITY;
     free(tmp);
     free(ev);
-    if (lapacke_out_of_memory(ie)) return -1;
+    if (lapacke_out_of_memory(ie)) goto nomem;
     memcpy(cov, info, k * k * sizeof *cov);
     lapack_int ic = LAPACKE_dpotrf(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
     if (ic == 0) ic = LAPACKE_dpotri(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
-    if (lapacke_out_of_memory(ic)) return -1;
-    if (ic != 0) return 0;
+    if (lapacke_out_of_memory(ic)) goto nomem;
+    if (ic != 0) return BL_OK;
     for (size_t i = 0; i < k; i++)
         for (size_t j = 0; j < i; j++) cov[i * k + j] = cov[j * k + i];
     for (size_t i = 0; i < k; i++)
-        if (!(cov[i * k + i] > 0) || !isfinite(cov[i * k + i])) return 0;
-    return 1;
+        if (!(cov[i * k + i] > 0) || !isfinite(cov[i * k + i])) return BL_OK;
+    *positive_definite = 1;
+    return BL_OK;
+nomem:
+    return bl_error_set(err, BL_ERR_NOMEM, "out of memory inverting a %zu x %zu information matrix", k, k);
 }
 
 /* ---- one fit --------------------------------------------------------------------------------- */
@@ -654,10 +662,10 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         /* Newton polishing with the observed information: each step is checked to raise the
          * likelihood, so it can only help. */
         for (int polish = 0; polish < 4; polish++) {
-            int oi = observed_information(lik, m, coef, info);
-            int inv = oi > 0 ? bl_information_inverse(info, k, cov, &cond) : 0;
-            if (oi < 0 || inv < 0) goto nomem;
-            pd = oi > 0 && inv > 0;
+            int oi = 0, inv = 0;
+            if ((st = observed_information(lik, m, coef, info, &oi, err))) goto fail;
+            if (oi && (st = bl_information_inverse(info, k, cov, &cond, &inv, err))) goto fail;
+            pd = oi && inv;
             if (!pd) break;
             double nd2 = 0;
             for (size_t i = 0; i < k; i++)

@@ -171,10 +171,11 @@ bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drift, doub
                           double *nondecision, bl_error *err);
 
 /* Covariance from an observed information matrix (k x k, row-major, symmetric) by Cholesky
- * (LAPACKE dpotrf/dpotri). Returns 1 and fills cov when info is positive definite, 0 when it is not,
- * -1 when memory ran out (cov undefined unless 1). cond receives the ratio of its largest to smallest eigenvalue (INFINITY when not
- * positive, NAN when the eigenvalues fail). */
-int bl_information_inverse(const double *info, size_t k, double *cov, double *cond);
+ * (LAPACKE dpotrf/dpotri). *positive_definite = 1 and cov filled when info is positive definite, 0
+ * when it is not (cov undefined then). cond receives the ratio of its largest to smallest eigenvalue
+ * (INFINITY when not positive, NAN when the eigenvalues fail). BL_ERR_NOMEM when memory ran out. */
+bl_status bl_information_inverse(const double *info, size_t k, double *cov, double *cond, int *positive_definite,
+                                 bl_error *err);
 
 /* Comparison (src/compare.c): fill set->comparison from set->models. */
 bl_status bl_compare_models(bl_fit_set *set, bl_error *err);

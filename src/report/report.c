@@ -182,8 +182,8 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
     fputs("</dl>\n", f);
     if (t) {
         bl_exclusion_count *ex = NULL;
-        size_t nex = bl_trials_exclusion_counts(t, &ex);
-        if (nex == BL_EXCLUSION_COUNTS_NOMEM) report_text_lost = 1;
+        size_t nex = 0;
+        if (bl_trials_exclusion_counts(t, &ex, &nex, NULL)) report_text_lost = 1;
         if (nex > 0 && ex) {
             fputs("<h3>Excluded trials by reason</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">reason</th><th>trials</th></tr>\n", f);
             for (size_t i = 0; i < nex; i++) {

@@ -781,8 +781,8 @@ char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_res
     if (t->n_participants > 20) sb_printf(&b, " ...");
     sb_printf(&b, "\ntrials       %zu, kept %zu, excluded %zu\n", t->n, t->n_kept, t->n - t->n_kept);
     bl_exclusion_count *ec = NULL;
-    size_t ne = bl_trials_exclusion_counts(t, &ec);
-    if (ne == BL_EXCLUSION_COUNTS_NOMEM) b.failed = 1;
+    size_t ne = 0;
+    if (bl_trials_exclusion_counts(t, &ec, &ne, NULL)) b.failed = 1;
     for (size_t k = 0; ec && k < ne; k++) sb_printf(&b, "  excluded   %-40s %zu\n", ec[k].reason, ec[k].count);
     free(ec);
     size_t n_up = 0, n_kept = 0;
