@@ -163,7 +163,8 @@ int main(void)
     check_true(r.coef[8].se < 0.01, "nondecision se is small (%.4g)", r.coef[8].se);
 
     /* Independent optimiser: Nelder-Mead on the coefficients, started away from the optimum. */
-    bl_likelihood *w = bl_likelihood_create(m, 2);
+    bl_likelihood *w = NULL;
+    bl_likelihood_create(m, 2, &w, &err);
     nm_ctx c = {w};
     gsl_multimin_function fn = {nm_f, 9, &c};
     gsl_multimin_fminimizer *nm = gsl_multimin_fminimizer_alloc(gsl_multimin_fminimizer_nmsimplex2, 9);

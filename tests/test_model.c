@@ -86,8 +86,8 @@ int main(void)
     free(use);
 
     /* Copy and permutation within cells keep the values of each cell. */
-    bl_model *mc = bl_model_copy(m);
-    check_true(mc != NULL && bl_model_n_coef(mc) == bl_model_n_coef(m), "copy");
+    bl_model *mc = NULL;
+    check_true(bl_model_copy(m, &mc, &err) == BL_OK && bl_model_n_coef(mc) == bl_model_n_coef(m), "copy");
     size_t *cell = malloc(t->n * sizeof *cell);
     /* Cells: participant x context (the model's condition columns). */
     for (size_t k = 0; k < t->n; k++) cell[k] = 2 * t->participant[bl_model_row(mc, k)] + bl_model_row(mc, k) % 2;

@@ -510,10 +510,11 @@ static void *dup_mem(const void *p, size_t n)
     return c;
 }
 
-bl_model *bl_model_copy(const bl_model *m)
+bl_status bl_model_copy(const bl_model *m, bl_model **out, bl_error *err)
 {
+    *out = NULL;
     bl_model *c = calloc(1, sizeof *c);
-    if (!c) return NULL;
+    if (!c) goto fail;
     size_t n = m->n;
     c->n = n;
     c->rt_lo = m->rt_lo;
@@ -560,10 +561,11 @@ bl_model *bl_model_copy(const bl_model *m)
     /* Coefficient terms point at the copy's own regressor names. */
     for (size_t j = 0; j < c->n_coef; j++)
         if (c->coef[j].slope >= 0) c->coef[j].term = c->par[c->coef[j].param].slopes[c->coef[j].slope].regressor;
-    return c;
+    *out = c;
+    return BL_OK;
 fail:
     bl_model_destroy(c);
-    return NULL;
+    return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory copying the design", m->name);
 }
 
 const char *bl_model_name(const bl_model *m) { return m->name; }

@@ -43,8 +43,8 @@ typedef struct {
 bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials,
                          const unsigned char *use, bl_model **out, bl_error *err);
 void bl_model_destroy(bl_model *m);
-/* A deep copy (for permutation refits). NULL on allocation failure. */
-bl_model *bl_model_copy(const bl_model *m);
+/* A deep copy (for permutation refits). BL_ERR_NOMEM (*out NULL) when memory ran out. */
+bl_status bl_model_copy(const bl_model *m, bl_model **out, bl_error *err);
 
 const char *bl_model_name(const bl_model *m);
 size_t bl_model_n_coef(const bl_model *m);
@@ -80,7 +80,8 @@ void bl_model_restore_slopes(bl_model *m);
  * in block order, so the result is bit-identical for any thread count. threads <= 0: OpenMP default.
  * Fewer than 1,024 trials are evaluated on one thread. */
 typedef struct bl_likelihood bl_likelihood;
-bl_likelihood *bl_likelihood_create(const bl_model *m, int threads);
+/* BL_ERR_NOMEM (*out NULL) when memory ran out. The workspace keeps a pointer to `m`. */
+bl_status bl_likelihood_create(const bl_model *m, int threads, bl_likelihood **out, bl_error *err);
 void bl_likelihood_destroy(bl_likelihood *w);
 /* How one likelihood's trials are spread over threads (the one encoding of this choice, used by the
  * workspace and by bl_fit_options.parallel_trials). Results are the same bytes in every mode.

@@ -297,10 +297,10 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
         mine.coef = calloc(full->n_units, sizeof *mine.coef);
         ok = ok && mine.models && mine.liks && mine.coef;
         for (size_t i = 0; ok && i < full->n_units; i++) {
-            mine.models[i] = bl_model_copy(full->models[i]);
-            mine.liks[i] = mine.models[i] ? bl_likelihood_create(mine.models[i], 1) : NULL;
+            ok = bl_model_copy(full->models[i], &mine.models[i], NULL) == BL_OK &&
+                 bl_likelihood_create(mine.models[i], 1, &mine.liks[i], NULL) == BL_OK;
             mine.coef[i] = malloc(full->models[i]->n_coef * sizeof(double));
-            ok = mine.liks[i] && mine.coef[i];
+            ok = ok && mine.coef[i];
             if (ok) memcpy(mine.coef[i], full->coef[i], full->models[i]->n_coef * sizeof(double));
         }
         if (!ok) {

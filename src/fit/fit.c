@@ -806,10 +806,11 @@ bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const doubl
                        bl_warnings *warn, bl_error *err)
 {
     bl_gsl_guard();
-    bl_likelihood *lik = bl_likelihood_create(m, opt ? opt->threads : 0);
-    if (lik && opt) bl_likelihood_set_parallel(lik, opt->parallel_trials);
-    if (!lik) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);
-    bl_status st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
+    bl_likelihood *lik = NULL;
+    bl_status st = bl_likelihood_create(m, opt ? opt->threads : 0, &lik, err);
+    if (st) return st;
+    if (opt) bl_likelihood_set_parallel(lik, opt->parallel_trials);
+    st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
     if (!st) bl_fit_warn(m, NULL, res, warn);
     bl_likelihood_destroy(lik);
     return st;
@@ -871,10 +872,10 @@ bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_
         }
         size_t i = u->n_units++;
         u->models[i] = m;
-        u->liks[i] = bl_likelihood_create(m, opt->threads);
-        if (u->liks[i]) bl_likelihood_set_parallel(u->liks[i], opt->parallel_trials);
+        if ((st = bl_likelihood_create(m, opt->threads, &u->liks[i], err))) goto done;
+        bl_likelihood_set_parallel(u->liks[i], opt->parallel_trials);
         u->coef[i] = calloc(m->n_coef, sizeof(double));
-        if (!u->liks[i] || !u->coef[i]) {
+        if (!u->coef[i]) {
             st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
             goto done;
         }

@@ -50,10 +50,11 @@ static double wall(void)
 #define BL_LIK_REPROBE 64      /* evaluations between probe rounds (load can change quickly); x4 after
                                   each round one thread wins, up to 4096 */
 
-bl_likelihood *bl_likelihood_create(const bl_model *m, int threads)
+bl_status bl_likelihood_create(const bl_model *m, int threads, bl_likelihood **out, bl_error *err)
 {
+    *out = NULL;
     bl_likelihood *w = calloc(1, sizeof *w);
-    if (!w) return NULL;
+    if (!w) goto nomem;
     w->m = m;
     w->threads = threads;
     w->n_blocks = (m->n + BL_LIK_BLOCK - 1) / BL_LIK_BLOCK;
@@ -64,11 +65,12 @@ bl_likelihood *bl_likelihood_create(const bl_model *m, int threads)
     w->stride = (m->n_coef + 7) / 8 * 8;
     w->block_grad = aligned_alloc(64, w->n_blocks * w->stride * sizeof *w->block_grad);
     w->block_bad = malloc(w->n_blocks * sizeof *w->block_bad);
-    if (!w->block_ll || !w->block_grad || !w->block_bad) {
-        bl_likelihood_destroy(w);
-        return NULL;
-    }
-    return w;
+    if (!w->block_ll || !w->block_grad || !w->block_bad) goto nomem;
+    *out = w;
+    return BL_OK;
+nomem:
+    bl_likelihood_destroy(w);
+    return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the likelihood workspace", m->name);
 }
 
 void bl_likelihood_destroy(bl_likelihood *w)
