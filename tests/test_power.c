@@ -201,8 +201,8 @@ int main(void)
             bl_table_destroy(pc);
         }
     }
-    char *summary = bl_check_summary(s, t, r);
-    check_true(summary && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
+    char *summary = NULL;
+    check_true(bl_check_summary(s, t, r, &summary, &err) == BL_OK && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
                "check summary names exclusions, bands and rate");
     free(summary);
     bl_power_result_destroy(r);

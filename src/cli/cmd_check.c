@@ -51,11 +51,8 @@ int cmd_check(int argc, char **argv)
     if (bl_study_load(study_path, &study, &err)) goto fail;
     if (bl_trials_load(study, &trials, &warn, &err)) goto fail;
     if (study->has_power && bl_power_compute(study, trials, (int)threads, &res, &warn, &err)) goto fail;
-    char *summary = bl_check_summary(study, trials, res);
-    if (!summary) {
-        bl_error_set(&err, BL_ERR_NOMEM, "out of memory");
-        goto fail;
-    }
+    char *summary = NULL;
+    if (bl_check_summary(study, trials, res, &summary, &err)) goto fail;
     if (!cli_quiet) fputs(summary, stdout);
     free(summary);
     if (!cli_quiet) printf("warnings     %zu\n", warn.count);

@@ -768,8 +768,9 @@ static void sb_printf(sbuf *b, const char *fmt, ...)
     }
 }
 
-char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_result *r)
+bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_result *r, char **out, bl_error *err)
 {
+    *out = NULL;
     sbuf b = {0};
     static const char *const scales[] = {"linear", "log10", "db"};
     static const char *const stds[] = {"none", "participant", "participant_condition"};
@@ -831,7 +832,8 @@ char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_res
     sb_printf(&b, "output       %s\n", s->output);
     if (b.failed) {
         free(b.buf);
-        return NULL;
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the check summary");
     }
-    return b.buf;
+    *out = b.buf;
+    return BL_OK;
 }

@@ -70,8 +70,9 @@ bl_status bl_power_write_csv(const bl_study *study, const bl_trials *trials,
 
 /* Human-readable summary for `bandlink check`: participants, trials kept/excluded by reason,
  * recordings (rate, channels, duration, format), Welch settings, frequency resolution and bins per band.
- * result may be NULL (study without recordings). Caller frees. NULL on allocation failure. */
-char *bl_check_summary(const bl_study *study, const bl_trials *trials,
-                       const bl_power_result *result);
+ * result may be NULL (study without recordings). Caller frees *out. BL_ERR_NOMEM (*out NULL) when memory
+ * ran out. */
+bl_status bl_check_summary(const bl_study *study, const bl_trials *trials, const bl_power_result *result,
+                           char **out, bl_error *err);
 
 #endif
