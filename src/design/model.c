@@ -568,18 +568,11 @@ fail:
     return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory copying the design", m->name);
 }
 
-const char *bl_model_name(const bl_model *m) { return m->name; }
 size_t bl_model_n_coef(const bl_model *m) { return m->n_coef; }
 const bl_coef_info *bl_model_coef(const bl_model *m, size_t j) { return j < m->n_coef ? &m->coef[j] : NULL; }
 size_t bl_model_n_trials(const bl_model *m) { return m->n; }
 size_t bl_model_row(const bl_model *m, size_t k) { return m->row[k]; }
-int bl_model_link(const bl_model *m, bl_param param) { return m->par[param].link; }
 int bl_model_param_free(const bl_model *m, bl_param param) { return m->par[param].is_free; }
-size_t bl_model_n_slopes(const bl_model *m, bl_param param) { return m->par[param].n_slopes; }
-const char *bl_model_slope_regressor(const bl_model *m, bl_param param, size_t s)
-{
-    return s < m->par[param].n_slopes ? m->par[param].slopes[s].regressor : NULL;
-}
 size_t bl_model_intercept_index(const bl_model *m, bl_param param, size_t k)
 {
     return m->par[param].first_coef + m->par[param].level[k];

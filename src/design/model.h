@@ -46,17 +46,12 @@ void bl_model_destroy(bl_model *m);
 /* A deep copy (for permutation refits). BL_ERR_NOMEM (*out NULL) when memory ran out. */
 bl_status bl_model_copy(const bl_model *m, bl_model **out, bl_error *err);
 
-const char *bl_model_name(const bl_model *m);
 size_t bl_model_n_coef(const bl_model *m);
 const bl_coef_info *bl_model_coef(const bl_model *m, size_t j);
 size_t bl_model_n_trials(const bl_model *m);
 /* Table row of used trial k. */
 size_t bl_model_row(const bl_model *m, size_t k);
-int bl_model_link(const bl_model *m, bl_param param);          /* BL_LINK_IDENTITY or BL_LINK_LOG */
 int bl_model_param_free(const bl_model *m, bl_param param);    /* 1 when the parameter has coefficients */
-size_t bl_model_n_slopes(const bl_model *m, bl_param param);
-/* Regressor name of slope s of a parameter. */
-const char *bl_model_slope_regressor(const bl_model *m, bl_param param, size_t s);
 
 /* Index of the intercept coefficient of `param` that used trial k falls in (param must be free). */
 size_t bl_model_intercept_index(const bl_model *m, bl_param param, size_t k);
@@ -98,7 +93,5 @@ double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad);
 /* Per-trial log-likelihood (n_trials values) at `coef`; returns the total (or -INFINITY). */
 double bl_likelihood_trials(bl_likelihood *w, const double *coef, double *trial_ll);
 size_t bl_likelihood_evaluations(const bl_likelihood *w);
-/* The model the workspace evaluates (the workspace sees later permutations of its slopes). */
-const bl_model *bl_likelihood_model(const bl_likelihood *w);
 
 #endif

@@ -83,7 +83,6 @@ void bl_likelihood_destroy(bl_likelihood *w)
 }
 
 size_t bl_likelihood_evaluations(const bl_likelihood *w) { return w->evaluations; }
-const bl_model *bl_likelihood_model(const bl_likelihood *w) { return w->m; }
 
 /* One block: trials [k0, k1). Returns 0 when a trial is infeasible. */
 static int eval_block(const bl_model *m, const double *coef, size_t k0, size_t k1, double *ll_out, double *g,

@@ -49,7 +49,8 @@ int bl_figures_best_model(const bl_fit_set *set)
     return best;
 }
 
-const char *bl_figures_param_unit(bl_param param)
+/* Axis text for a parameter, with its unit, e.g. "threshold (evidence units, s = 1)". */
+static const char *bl_figures_param_unit(bl_param param)
 {
     switch (param) {
     case BL_THRESHOLD: return "threshold (evidence units, s = 1)";

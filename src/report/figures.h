@@ -45,7 +45,5 @@ void bl_figure_set_destroy(bl_figure_set *figs);
 /* Index of the model with the lowest AIC (ties: the first), or -1 when none has a finite AIC. */
 int bl_figures_best_model(const bl_fit_set *set);
 
-/* Axis text for a parameter, with its unit, e.g. "threshold (evidence units, s = 1)". */
-const char *bl_figures_param_unit(bl_param param);
 
 #endif

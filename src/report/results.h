@@ -23,11 +23,6 @@
 
 #include <cjson/cJSON.h>
 
-/* The fits.json document (caller frees with cJSON_Delete). `provenance` (may be NULL) is copied
- * in under "provenance"; `warnings` (may be NULL) under "warnings". NULL on allocation failure. */
-cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance,
-                            const bl_warnings *warnings);
-
 bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
                                 const bl_warnings *warnings, bl_error *err);
 bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, bl_error *err);

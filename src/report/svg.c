@@ -1075,23 +1075,3 @@ bl_status bl_svg_render(const bl_svg *fig, char **out, size_t *size, bl_error *e
     *size = b.len;
     return BL_OK;
 }
-
-bl_status bl_svg_write(const bl_svg *fig, const char *path, bl_error *err)
-{
-    char *svg = NULL;
-    size_t n = 0;
-    bl_status st = bl_svg_render(fig, &svg, &n, err);
-    if (st != BL_OK) return st;
-    static const char decl[] = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
-    char *all = malloc(sizeof decl - 1 + n);
-    if (!all) {
-        free(svg);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing %s", path);
-    }
-    memcpy(all, decl, sizeof decl - 1);
-    memcpy(all + sizeof decl - 1, svg, n);
-    st = bl_write_file_atomic(path, all, sizeof decl - 1 + n, err);
-    free(all);
-    free(svg);
-    return st;
-}

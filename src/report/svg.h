@@ -9,7 +9,7 @@
  * "Nice numbers for graph labels", Graphics Gems I.
  *
  * Ownership: a figure owns its panels and copies every array and string it is given.
- * Allocation failures are sticky: drawing calls return nothing, and bl_svg_render()/bl_svg_write()
+ * Allocation failures are sticky: drawing calls return nothing, and bl_svg_render()
  * report BL_ERR_NOMEM, so callers need not check each call.
  */
 #ifndef BL_SVG_H
@@ -100,8 +100,6 @@ void bl_svg_legend_heading(bl_svg *fig, const char *text);
 /* Render as one <svg> element (no XML declaration, so it can be inlined in HTML). Caller frees
  * *out. BL_ERR_NOMEM when any earlier call ran out of memory. */
 bl_status bl_svg_render(const bl_svg *fig, char **out, size_t *size, bl_error *err);
-/* Write a standalone .svg file (XML declaration + the element) atomically. */
-bl_status bl_svg_write(const bl_svg *fig, const char *path, bl_error *err);
 
 /* Append `text` to `f` with XML escaping (&, <, >, ", ') and invalid UTF-8 or control characters
  * replaced by U+FFFD. Shared with the HTML report. */

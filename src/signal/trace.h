@@ -33,7 +33,6 @@ typedef struct {
  * .tsv or .txt) and ignored otherwise. Errors name the file. */
 bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_error *err);
 const bl_trace_info *bl_trace_get_info(const bl_trace *t);
-const char *bl_trace_path(const bl_trace *t);
 /* Read frames [start, start + n) of every channel, interleaved, into buf (n * channels doubles).
  * BL_ERR_INPUT when the range leaves the recording; BL_ERR_IO when fewer frames come back. */
 bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err);
