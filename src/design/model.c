@@ -316,43 +316,36 @@ done:
     return st;
 }
 
-bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use,
-                         bl_model **out, bl_error *err)
+static bl_status design_nomem(const bl_model *m, bl_error *err)
 {
-    *out = NULL;
-    const char *mname = spec->name ? spec->name : "(unnamed)";
-    bl_model *m = calloc(1, sizeof *m);
-    bl_status st = BL_ERR_NOMEM;
-    char ***lev_names = NULL;
-    size_t *lev_counts = NULL;
-    size_t n_lev_sets = 0;
-    if (!m || !(m->name = bl_strdup(mname))) goto nomem;
+    return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", m->name);
+}
+
+/* The trials the model fits (kept, and selected by `use`): rows, RTs, choices, signs, participants,
+ * and the observed RT range. Every fitted trial must have a valid RT. */
+static bl_status select_trials(bl_model *m, const bl_trials *trials, const unsigned char *use, bl_error *err)
+{
     const size_t nrow = trials->n;
     size_t n = 0;
     for (size_t i = 0; i < nrow; i++)
         if (!(trials->excluded && trials->excluded[i]) && (!use || use[i])) n++;
-    if (n == 0) {
-        st = bl_error_set(err, BL_ERR_MODEL, "model '%s': no trials to fit", mname);
-        goto fail;
-    }
+    if (n == 0) return bl_error_set(err, BL_ERR_MODEL, "model '%s': no trials to fit", m->name);
     m->n = n;
     m->row = malloc(n * sizeof *m->row);
     m->rt = malloc(n * sizeof *m->rt);
     m->upper = malloc(n * sizeof *m->upper);
     m->sign = malloc(n * sizeof *m->sign);
     m->participant = malloc(n * sizeof *m->participant);
-    if (!m->row || !m->rt || !m->upper || !m->sign || !m->participant) goto nomem;
+    if (!m->row || !m->rt || !m->upper || !m->sign || !m->participant) return design_nomem(m, err);
     m->rt_lo = INFINITY;
     m->rt_hi = -INFINITY;
     for (size_t i = 0, k = 0; i < nrow; i++) {
         if ((trials->excluded && trials->excluded[i]) || (use && !use[i])) continue;
         double rt = trials->rt[i];
-        if (!isfinite(rt) || rt <= 0) {
-            st = bl_error_set(err, BL_ERR_INPUT, "model '%s': trial %s of participant '%s' has no valid RT (%g)",
-                              mname, trials->trial_label ? trials->trial_label[i] : "?",
-                              trials->participants[trials->participant[i]], rt);
-            goto fail;
-        }
+        if (!isfinite(rt) || rt <= 0)
+            return bl_error_set(err, BL_ERR_INPUT, "model '%s': trial %s of participant '%s' has no valid RT (%g)",
+                                m->name, trials->trial_label ? trials->trial_label[i] : "?",
+                                trials->participants[trials->participant[i]], rt);
         m->row[k] = i;
         m->rt[k] = rt;
         m->upper[k] = trials->upper[i] ? 1 : 0;
@@ -363,142 +356,179 @@ bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, con
         k++;
     }
     if (!(m->rt_hi > m->rt_lo)) m->rt_hi = m->rt_lo + 1.0;
+    return BL_OK;
+}
 
-    /* Level names are kept per design part until the coefficient table is made. */
-    size_t max_sets = BL_NPARAM;
-    for (int p = 0; p < BL_NPARAM; p++) max_sets += spec->param[p].n_slopes;
-    lev_names = calloc(max_sets, sizeof *lev_names);
-    lev_counts = calloc(max_sets, sizeof *lev_counts);
-    if (!lev_names || !lev_counts) goto nomem;
+/* Level names of each design part (a parameter's intercepts, then each of its slopes), kept until the
+ * coefficient table takes them over. */
+typedef struct {
+    char ***names;
+    size_t *counts;
+    size_t n;
+} level_sets;
 
-    size_t n_coef = 0;
-    for (int p = 0; p < BL_NPARAM; p++) {
-        const bl_param_spec *ps = &spec->param[p];
-        bl_param_design *d = &m->par[p];
-        const char *pname = bl_param_name(p);
-        d->link = ps->link == BL_LINK_LOG ? BL_LINK_LOG : BL_LINK_IDENTITY;
-        if (ps->is_fixed) {
-            d->is_free = 0;
-            d->fixed = ps->fixed;
-            if (ps->n_slopes) {
-                st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': a fixed parameter cannot have slopes",
-                                  mname, pname);
-                goto fail;
-            }
-            continue;
+static void level_sets_free(level_sets *ls)
+{
+    if (ls->names)
+        for (size_t i = 0; i < ls->n; i++) free_strv(ls->names[i], ls->counts[i]);
+    free(ls->names);
+    free(ls->counts);
+    memset(ls, 0, sizeof *ls);
+}
+
+/* The values of one slope's regressor on the fitted trials (a finite number on every one), and
+ * their root mean square for the optimiser's scaling. */
+static bl_status slope_values(bl_model *m, const bl_trials *trials, const bl_slope_spec *ss, const char *pname,
+                              bl_slope_design *sl, bl_error *err)
+{
+    int c = bl_table_find(trials->table, ss->regressor);
+    if (c < 0)
+        return bl_error_set(err, BL_ERR_MODEL,
+                            "model '%s': parameter '%s': unknown regressor '%s' (neither a band nor a column of "
+                            "the trial table)",
+                            m->name, pname, ss->regressor);
+    const bl_column *col = &trials->table->cols[c];
+    size_t n = m->n;
+    sl->x = malloc(n * sizeof *sl->x);
+    sl->x_orig = malloc(n * sizeof *sl->x_orig);
+    if (!sl->x || !sl->x_orig) return design_nomem(m, err);
+    double ss2 = 0;
+    for (size_t k = 0; k < n; k++) {
+        double x = col->num[m->row[k]];
+        if (!isfinite(x)) {
+            const char *txt = col->text[m->row[k]];
+            return bl_error_set(err, BL_ERR_MODEL,
+                                "model '%s': parameter '%s': regressor '%s' is %s on trial %s of participant "
+                                "'%s' (it must be a finite number on every fitted trial)",
+                                m->name, pname, ss->regressor, txt ? "not numeric" : "missing",
+                                trials->trial_label ? trials->trial_label[m->row[k]] : "?",
+                                trials->participants[trials->participant[m->row[k]]]);
         }
-        d->is_free = 1;
-        d->n_per = ps->n_per;
-        if (!(d->per = dup_strv(ps->per, ps->n_per))) goto nomem;
-        d->first_coef = n_coef;
-        st = make_levels(m, trials, ps->per, ps->n_per, pname, &d->level, &lev_names[n_lev_sets], &d->n_levels, err);
-        if (st) goto fail;
-        lev_counts[n_lev_sets++] = d->n_levels;
-        n_coef += d->n_levels;
-        d->n_slopes = ps->n_slopes;
-        d->slopes = calloc(ps->n_slopes ? ps->n_slopes : 1, sizeof *d->slopes);
-        if (!d->slopes) goto nomem;
-        for (size_t s = 0; s < ps->n_slopes; s++) {
-            const bl_slope_spec *ss = &ps->slopes[s];
+        sl->x[k] = sl->x_orig[k] = x;
+        ss2 += x * x;
+    }
+    sl->rms = sqrt(ss2 / (double)n);
+    if (!(sl->rms > 0)) sl->rms = 1.0;
+    return BL_OK;
+}
+
+/* The design of parameter p: fixed, or free with its intercept levels and its slopes. Coefficients
+ * are numbered from *n_coef on, which is advanced past them. */
+static bl_status param_design(bl_model *m, const bl_trials *trials, const bl_param_spec *ps, bl_param p,
+                              level_sets *ls, size_t *n_coef, bl_error *err)
+{
+    bl_param_design *d = &m->par[p];
+    const char *pname = bl_param_name(p);
+    d->link = ps->link == BL_LINK_LOG ? BL_LINK_LOG : BL_LINK_IDENTITY;
+    if (ps->is_fixed) {
+        d->is_free = 0;
+        d->fixed = ps->fixed;
+        if (ps->n_slopes)
+            return bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': a fixed parameter cannot have slopes",
+                                m->name, pname);
+        return BL_OK;
+    }
+    d->is_free = 1;
+    d->n_per = ps->n_per;
+    if (!(d->per = dup_strv(ps->per, ps->n_per))) return design_nomem(m, err);
+    d->first_coef = *n_coef;
+    bl_status st = make_levels(m, trials, ps->per, ps->n_per, pname, &d->level, &ls->names[ls->n], &d->n_levels, err);
+    if (st) return st;
+    ls->counts[ls->n++] = d->n_levels;
+    *n_coef += d->n_levels;
+    d->n_slopes = ps->n_slopes;
+    d->slopes = calloc(ps->n_slopes ? ps->n_slopes : 1, sizeof *d->slopes);
+    if (!d->slopes) return design_nomem(m, err);
+    for (size_t s = 0; s < ps->n_slopes; s++) {
+        const bl_slope_spec *ss = &ps->slopes[s];
+        bl_slope_design *sl = &d->slopes[s];
+        if (!(sl->regressor = bl_strdup(ss->regressor)) || !(sl->by = dup_strv(ss->by, ss->n_by)))
+            return design_nomem(m, err);
+        sl->n_by = ss->n_by;
+        for (size_t s2 = 0; s2 < s; s2++)
+            if (strcmp(d->slopes[s2].regressor, ss->regressor) == 0)
+                return bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': regressor '%s' has two slopes",
+                                    m->name, pname, ss->regressor);
+        if ((st = slope_values(m, trials, ss, pname, sl, err))) return st;
+        sl->first_coef = *n_coef;
+        st = make_levels(m, trials, ss->by, ss->n_by, pname, &sl->level, &ls->names[ls->n], &sl->n_levels, err);
+        if (st) return st;
+        ls->counts[ls->n++] = sl->n_levels;
+        *n_coef += sl->n_levels;
+    }
+    return BL_OK;
+}
+
+/* One coefficient's entry in the table; its level text is taken over from the level set. */
+static void coef_entry(bl_model *m, size_t j, bl_param p, int slope, const char *term, char **level)
+{
+    m->coef[j].param = p;
+    m->coef[j].slope = slope;
+    m->coef[j].term = term;
+    m->level_text[j] = *level;
+    *level = NULL;
+    m->coef[j].level = m->level_text[j];
+}
+
+/* The coefficient table (numbering: see model.h), in the order the level sets were made. */
+static bl_status coef_table(bl_model *m, size_t n_coef, level_sets *ls, bl_error *err)
+{
+    m->n_coef = n_coef;
+    m->coef = calloc(n_coef, sizeof *m->coef);
+    m->level_text = calloc(n_coef, sizeof *m->level_text);
+    if (!m->coef || !m->level_text) return design_nomem(m, err);
+    size_t set = 0;
+    for (bl_param p = 0; p < BL_NPARAM; p++) {
+        bl_param_design *d = &m->par[p];
+        if (!d->is_free) continue;
+        for (size_t l = 0; l < d->n_levels; l++)
+            coef_entry(m, d->first_coef + l, p, -1, "intercept", &ls->names[set][l]);
+        set++;
+        for (size_t s = 0; s < d->n_slopes; s++, set++) {
             bl_slope_design *sl = &d->slopes[s];
-            if (!(sl->regressor = bl_strdup(ss->regressor)) || !(sl->by = dup_strv(ss->by, ss->n_by))) goto nomem;
-            sl->n_by = ss->n_by;
-            for (size_t s2 = 0; s2 < s; s2++)
-                if (strcmp(d->slopes[s2].regressor, ss->regressor) == 0) {
-                    st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': regressor '%s' has two slopes",
-                                      mname, pname, ss->regressor);
-                    goto fail;
-                }
-            int c = bl_table_find(trials->table, ss->regressor);
-            if (c < 0) {
-                st = bl_error_set(err, BL_ERR_MODEL,
-                                  "model '%s': parameter '%s': unknown regressor '%s' (neither a band nor a column of "
-                                  "the trial table)",
-                                  mname, pname, ss->regressor);
-                goto fail;
-            }
-            const bl_column *col = &trials->table->cols[c];
-            sl->x = malloc(n * sizeof *sl->x);
-            sl->x_orig = malloc(n * sizeof *sl->x_orig);
-            if (!sl->x || !sl->x_orig) goto nomem;
-            double ss2 = 0;
-            for (size_t k = 0; k < n; k++) {
-                double x = col->num[m->row[k]];
-                if (!isfinite(x)) {
-                    const char *txt = col->text[m->row[k]];
-                    st = bl_error_set(err, BL_ERR_MODEL,
-                                      "model '%s': parameter '%s': regressor '%s' is %s on trial %s of participant "
-                                      "'%s' (it must be a finite number on every fitted trial)",
-                                      mname, pname, ss->regressor, txt ? "not numeric" : "missing",
-                                      trials->trial_label ? trials->trial_label[m->row[k]] : "?",
-                                      trials->participants[trials->participant[m->row[k]]]);
-                    goto fail;
-                }
-                sl->x[k] = sl->x_orig[k] = x;
-                ss2 += x * x;
-            }
-            sl->rms = sqrt(ss2 / (double)n);
-            if (!(sl->rms > 0)) sl->rms = 1.0;
-            sl->first_coef = n_coef;
-            st = make_levels(m, trials, ss->by, ss->n_by, pname, &sl->level, &lev_names[n_lev_sets], &sl->n_levels,
-                             err);
-            if (st) goto fail;
-            lev_counts[n_lev_sets++] = sl->n_levels;
-            n_coef += sl->n_levels;
+            for (size_t l = 0; l < sl->n_levels; l++)
+                coef_entry(m, sl->first_coef + l, p, (int)s, sl->regressor, &ls->names[set][l]);
         }
     }
+    return BL_OK;
+}
+
+bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use,
+                         bl_model **out, bl_error *err)
+{
+    *out = NULL;
+    const char *mname = spec->name ? spec->name : "(unnamed)";
+    level_sets ls = {0};
+    bl_model *m = calloc(1, sizeof *m);
+    bl_status st = BL_OK;
+    if (!m || !(m->name = bl_strdup(mname))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", mname);
+        goto fail;
+    }
+    if ((st = select_trials(m, trials, use, err))) goto fail;
+    size_t max_sets = BL_NPARAM;
+    for (int p = 0; p < BL_NPARAM; p++) max_sets += spec->param[p].n_slopes;
+    ls.names = calloc(max_sets, sizeof *ls.names);
+    ls.counts = calloc(max_sets, sizeof *ls.counts);
+    if (!ls.names || !ls.counts) {
+        st = design_nomem(m, err);
+        goto fail;
+    }
+    size_t n_coef = 0;
+    for (bl_param p = 0; p < BL_NPARAM; p++)
+        if ((st = param_design(m, trials, &spec->param[p], p, &ls, &n_coef, err))) goto fail;
     if (n_coef == 0) {
         st = bl_error_set(err, BL_ERR_MODEL, "model '%s': every parameter is fixed; nothing to fit", mname);
         goto fail;
     }
-    m->n_coef = n_coef;
-    m->coef = calloc(n_coef, sizeof *m->coef);
-    m->level_text = calloc(n_coef, sizeof *m->level_text);
-    if (!m->coef || !m->level_text) goto nomem;
-    size_t set = 0;
-    for (int p = 0; p < BL_NPARAM; p++) {
-        bl_param_design *d = &m->par[p];
-        if (!d->is_free) continue;
-        for (size_t l = 0; l < d->n_levels; l++) {
-            size_t j = d->first_coef + l;
-            m->coef[j].param = p;
-            m->coef[j].slope = -1;
-            m->coef[j].term = "intercept";
-            m->level_text[j] = lev_names[set][l];
-            lev_names[set][l] = NULL;
-            m->coef[j].level = m->level_text[j];
-        }
-        set++;
-        for (size_t s = 0; s < d->n_slopes; s++) {
-            bl_slope_design *sl = &d->slopes[s];
-            for (size_t l = 0; l < sl->n_levels; l++) {
-                size_t j = sl->first_coef + l;
-                m->coef[j].param = p;
-                m->coef[j].slope = (int)s;
-                m->coef[j].term = sl->regressor;
-                m->level_text[j] = lev_names[set][l];
-                lev_names[set][l] = NULL;
-                m->coef[j].level = m->level_text[j];
-            }
-            set++;
-        }
-    }
-    for (size_t i = 0; i < n_lev_sets; i++) free_strv(lev_names[i], lev_counts[i]);
-    free(lev_names);
-    free(lev_counts);
-    lev_names = NULL;
-    lev_counts = NULL;
-    for (int p = 0; p < BL_NPARAM; p++)
+    if ((st = coef_table(m, n_coef, &ls, err))) goto fail;
+    level_sets_free(&ls);
+    for (bl_param p = 0; p < BL_NPARAM; p++)
         if (m->par[p].is_free && (st = check_rank(m, p, err))) goto fail;
     *out = m;
     return BL_OK;
-nomem:
-    st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", mname);
 fail:
-    if (lev_names)
-        for (size_t i = 0; i < n_lev_sets; i++) free_strv(lev_names[i], lev_counts[i]);
-    free(lev_names);
-    free(lev_counts);
+    level_sets_free(&ls);
     bl_model_destroy(m);
     return st;
 }
