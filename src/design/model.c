@@ -239,6 +239,11 @@ static bl_status check_rank(const bl_model *m, int p, bl_error *err)
     }
     lapack_int info = LAPACKE_dgesvd(LAPACK_ROW_MAJOR, 'N', 'A', (lapack_int)m->n, (lapack_int)k, X,
                                      (lapack_int)k, s, NULL, 1, vt, (lapack_int)k, superb);
+    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': parameter '%s': out of memory checking the rank of the design",
+                          m->name, pname);
+        goto done;
+    }
     if (info != 0) {
         st = bl_error_set(err, BL_ERR_NUMERIC, "model '%s': parameter '%s': SVD of the design failed (LAPACK info %d)",
                           m->name, pname, (int)info);
@@ -436,9 +441,9 @@ static bl_status param_design(bl_model *m, const bl_trials *trials, const bl_par
     if (st) return st;
     ls->counts[ls->n++] = d->n_levels;
     *n_coef += d->n_levels;
-    d->n_slopes = ps->n_slopes;
     d->slopes = calloc(ps->n_slopes ? ps->n_slopes : 1, sizeof *d->slopes);
     if (!d->slopes) return design_nomem(m, err);
+    d->n_slopes = ps->n_slopes; /* only now: param_design_free walks n_slopes entries */
     for (size_t s = 0; s < ps->n_slopes; s++) {
         const bl_slope_spec *ss = &ps->slopes[s];
         bl_slope_design *sl = &d->slopes[s];

@@ -834,6 +834,9 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
     static const char *const scales[] = {"linear", "log10", "db"};
     static const char *const stds[] = {"none", "participant", "participant_condition"};
     static const char *const links[] = {"default", "identity", "log"};
+    /* Failures counted while this document is built (not since the program started: one earlier
+     * transient failure must not make every later call fail). */
+    unsigned long failures_before = bl_json_alloc_failures();
     cJSON *root = cJSON_CreateObject();
     if (!root) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the study as JSON");
     cJSON *t = cJSON_AddObjectToObject(root, "trials");
@@ -910,7 +913,7 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
         }
     }
     cJSON_AddStringToObject(root, "output", s->output);
-    char *txt = bl_json_alloc_failures() ? NULL : cJSON_Print(root);
+    char *txt = bl_json_alloc_failures() != failures_before ? NULL : cJSON_Print(root);
     cJSON_Delete(root);
     /* cJSON_Print allocates with its hooks (malloc by default); hand back a plain malloc'd copy */
     *out = txt ? bl_strdup(txt) : NULL;
