@@ -199,6 +199,74 @@ static void coef_label(const bl_model *m, size_t j, char *buf, size_t n)
                  c->level[0] ? "'" : "");
 }
 
+/* A rank-deficient design of parameter p: name the coefficients involved. The shortest leading set
+ * of columns that is already deficient (eigenvalues of its Gram matrix) has a null vector naming
+ * exactly them, and the last of them adds nothing to the ones before it; without it, the null
+ * vector of the whole design (last row of vt, k x k) is used. */
+static bl_status report_collinearity(const bl_model *m, int p, size_t k, const double *vt, double cond, bl_error *err)
+{
+    const bl_param_design *d = &m->par[p];
+    double *G = calloc(k * k, sizeof *G), *Gj = malloc(k * k * sizeof *Gj), *ev = malloc(k * sizeof *ev);
+    const double *v = vt + (k - 1) * k;
+    size_t nv = k;
+    double *vbuf = malloc(k * sizeof *vbuf);
+    if (G && Gj && ev && vbuf) {
+        /* X was overwritten by dgesvd: rebuild the normalised design. */
+        size_t k2;
+        double *X2 = param_matrix(m, p, &k2);
+        if (X2) {
+            for (size_t j = 0; j < k; j++) {
+                double ss = 0;
+                for (size_t i = 0; i < m->n; i++) ss += X2[i * k + j] * X2[i * k + j];
+                for (size_t i = 0; i < m->n; i++) X2[i * k + j] /= sqrt(ss);
+            }
+            for (size_t i = 0; i < m->n; i++)
+                for (size_t a = 0; a < k; a++) {
+                    double xa = X2[i * k + a];
+                    if (xa == 0) continue;
+                    for (size_t b = 0; b < k; b++) G[a * k + b] += xa * X2[i * k + b];
+                }
+            free(X2);
+            for (size_t j = 2; j <= k; j++) {
+                for (size_t a = 0; a < j; a++)
+                    for (size_t b = 0; b < j; b++) Gj[a * j + b] = G[a * k + b];
+                if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)j, Gj, (lapack_int)j, ev) != 0) break;
+                if (ev[0] <= 1e-10 * ev[j - 1]) {
+                    for (size_t a = 0; a < j; a++) vbuf[a] = Gj[a * j + 0];
+                    v = vbuf;
+                    nv = j;
+                    break;
+                }
+            }
+        }
+    }
+    double vmax = 0;
+    for (size_t j = 0; j < nv; j++) vmax = fmax(vmax, fabs(v[j]));
+    size_t last = 0;
+    for (size_t j = 0; j < nv; j++)
+        if (fabs(v[j]) > 1e-3 * vmax) last = j;
+    char lab[512], others[600] = "";
+    coef_label(m, d->first_coef + last, lab, sizeof lab);
+    size_t shown = 0;
+    for (size_t j = 0; j < nv && shown < 3; j++) {
+        if (j == last || !(fabs(v[j]) > 1e-3 * vmax)) continue;
+        char l2[256];
+        coef_label(m, d->first_coef + j, l2, sizeof l2);
+        size_t len = strlen(others);
+        snprintf(others + len, sizeof others - len, "%s%s", shown ? ", " : "", l2);
+        shown++;
+    }
+    free(G);
+    free(Gj);
+    free(ev);
+    bl_status st = bl_error_set(err, BL_ERR_MODEL,
+                                "model '%s': parameter '%s': rank-deficient design: %s is collinear with %s "
+                                "(condition number %.3g; e.g. a regressor constant within a level)",
+                                m->name, bl_param_name(p), lab, shown ? others : "the other coefficients", cond);
+    free(vbuf); /* v may point into it until the message is made */
+    return st;
+}
+
 /* Full column rank check of one parameter's design. */
 static bl_status check_rank(const bl_model *m, int p, bl_error *err)
 {
@@ -249,70 +317,8 @@ static bl_status check_rank(const bl_model *m, int p, bl_error *err)
                           m->name, pname, (int)info);
         goto done;
     }
-    if (s[k - 1] <= s[0] / BL_MODEL_MAX_CONDITION) {
-        /* Localise: the shortest leading set of columns that is already deficient (eigenvalues of its
-         * Gram matrix), whose null vector names exactly the coefficients involved; the last of them
-         * adds nothing to the ones before it. Falls back to the full null vector. */
-        double *G = calloc(k * k, sizeof *G), *Gj = malloc(k * k * sizeof *Gj), *ev = malloc(k * sizeof *ev);
-        const double *v = vt + (k - 1) * k;
-        size_t nv = k;
-        double *vbuf = malloc(k * sizeof *vbuf);
-        if (G && Gj && ev && vbuf) {
-            /* X was overwritten by dgesvd: rebuild the normalised design. */
-            size_t k2;
-            double *X2 = param_matrix(m, p, &k2);
-            if (X2) {
-                for (size_t j = 0; j < k; j++) {
-                    double ss = 0;
-                    for (size_t i = 0; i < m->n; i++) ss += X2[i * k + j] * X2[i * k + j];
-                    for (size_t i = 0; i < m->n; i++) X2[i * k + j] /= sqrt(ss);
-                }
-                for (size_t i = 0; i < m->n; i++)
-                    for (size_t a = 0; a < k; a++) {
-                        double xa = X2[i * k + a];
-                        if (xa == 0) continue;
-                        for (size_t b = 0; b < k; b++) G[a * k + b] += xa * X2[i * k + b];
-                    }
-                free(X2);
-                for (size_t j = 2; j <= k; j++) {
-                    for (size_t a = 0; a < j; a++)
-                        for (size_t b = 0; b < j; b++) Gj[a * j + b] = G[a * k + b];
-                    if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)j, Gj, (lapack_int)j, ev) != 0) break;
-                    if (ev[0] <= 1e-10 * ev[j - 1]) {
-                        for (size_t a = 0; a < j; a++) vbuf[a] = Gj[a * j + 0];
-                        v = vbuf;
-                        nv = j;
-                        break;
-                    }
-                }
-            }
-        }
-        double vmax = 0;
-        for (size_t j = 0; j < nv; j++) vmax = fmax(vmax, fabs(v[j]));
-        size_t last = 0;
-        for (size_t j = 0; j < nv; j++)
-            if (fabs(v[j]) > 1e-3 * vmax) last = j;
-        char lab[512], others[600] = "";
-        coef_label(m, d->first_coef + last, lab, sizeof lab);
-        size_t shown = 0;
-        for (size_t j = 0; j < nv && shown < 3; j++) {
-            if (j == last || !(fabs(v[j]) > 1e-3 * vmax)) continue;
-            char l2[256];
-            coef_label(m, d->first_coef + j, l2, sizeof l2);
-            size_t len = strlen(others);
-            snprintf(others + len, sizeof others - len, "%s%s", shown ? ", " : "", l2);
-            shown++;
-        }
-        st = bl_error_set(err, BL_ERR_MODEL,
-                          "model '%s': parameter '%s': rank-deficient design: %s is collinear with %s "
-                          "(condition number %.3g; e.g. a regressor constant within a level)",
-                          m->name, pname, lab, shown ? others : "the other coefficients",
-                          s[k - 1] > 0 ? s[0] / s[k - 1] : INFINITY);
-        free(G);
-        free(Gj);
-        free(ev);
-        free(vbuf);
-    }
+    if (s[k - 1] <= s[0] / BL_MODEL_MAX_CONDITION)
+        st = report_collinearity(m, p, k, vt, s[k - 1] > 0 ? s[0] / s[k - 1] : INFINITY, err);
 done:
     free(X);
     free(s);
