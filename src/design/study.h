@@ -7,7 +7,6 @@
 
 #include "bandlink/status.h"
 #include "bandlink/wiener.h"
-#include "signal/spectrum.h" /* bl_detrend */
 
 #include <stddef.h>
 
@@ -46,6 +45,9 @@ typedef struct {
 typedef enum { BL_SCALE_LINEAR = 0, BL_SCALE_LOG10, BL_SCALE_DB } bl_scale;
 typedef enum { BL_STANDARDIZE_NONE = 0, BL_STANDARDIZE_PARTICIPANT, BL_STANDARDIZE_PARTICIPANT_CONDITION } bl_standardize;
 typedef enum { BL_ALIGN_ONSET = 0, BL_ALIGN_RESPONSE } bl_align;
+/* What each Welch segment loses before the taper: its mean (scipy's detrend='constant'), its
+ * least-squares line, or nothing. The one detrend type: spectrum.h takes it as it is. */
+typedef enum { BL_DETREND_MEAN = 0, BL_DETREND_LINEAR, BL_DETREND_NONE } bl_detrend;
 typedef enum { BL_PARTICIPANTS_POOLED = 0, BL_PARTICIPANTS_SEPARATE } bl_participants_mode;
 
 typedef struct bl_study {

@@ -13,12 +13,10 @@
 #define BL_SPECTRUM_H
 
 #include "bandlink/status.h"
+#include "design/study.h" /* bl_detrend: the one detrend type, chosen in the study file */
 
 #include <stddef.h>
 
-/* What each segment loses before the taper: its mean (scipy's detrend='constant'), its least-squares
- * line, or nothing. The one detrend type of the library: the study file's power.detrend holds it too. */
-typedef enum { BL_DETREND_MEAN = 0, BL_DETREND_LINEAR, BL_DETREND_NONE } bl_detrend;
 typedef enum { BL_WELCH_MEAN = 0, BL_WELCH_MEDIAN } bl_welch_average;
 typedef enum { BL_WELCH_DENSITY = 0, BL_WELCH_SPECTRUM } bl_welch_scaling;
 
