@@ -74,7 +74,7 @@ bl_status bl_remove_tree(const char *path, bl_error *err)
     return BL_OK;
 }
 
-int bl_path_inside(const char *path, const char *folder)
+bl_status bl_path_inside(const char *path, const char *folder, int *inside, bl_error *err)
 {
     errno = 0;
     char *p = realpath(path, NULL);
@@ -82,14 +82,15 @@ int bl_path_inside(const char *path, const char *folder)
     errno = 0;
     char *f = realpath(folder, NULL);
     nomem = nomem || (!f && errno == ENOMEM);
-    int inside = nomem ? -1 : 0;
+    *inside = 0;
     if (p && f) {
         size_t n = strlen(f);
-        inside = strncmp(p, f, n) == 0 && (p[n] == '\0' || p[n] == '/' || (n == 1 && f[0] == '/'));
+        *inside = strncmp(p, f, n) == 0 && (p[n] == '\0' || p[n] == '/' || (n == 1 && f[0] == '/'));
     }
     free(p);
     free(f);
-    return inside;
+    if (nomem) return bl_error_set(err, BL_ERR_NOMEM, "out of memory resolving %s and %s", path, folder);
+    return BL_OK;
 }
 
 /* Split "a/b/name" into a newly allocated parent ("a/b", or "." ) and a pointer to the name. */
@@ -698,9 +699,9 @@ bl_status bl_run(const bl_run_options *opt, bl_run_result *out, bl_warnings *war
         }
         for (int i = 0; i < 3 && st == BL_OK; i++)
             if (inputs[i]) {
-                int inside = bl_path_inside(inputs[i], target);
-                if (inside < 0) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory resolving %s", inputs[i]);
-                else if (inside)
+                int inside = 0;
+                if ((st = bl_path_inside(inputs[i], target, &inside, err))) break;
+                if (inside)
                     st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the study's inputs (%s); choose "
                                       "another output folder", target, inputs[i]);
             }

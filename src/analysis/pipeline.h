@@ -28,10 +28,10 @@ const char *bl_stage_dir(const bl_stage *s);
 bl_status bl_stage_commit(bl_stage *s, bl_error *err);
 /* Remove the temporary folder and free. NULL-safe. */
 void bl_stage_abort(bl_stage *s);
-/* 1 when the existing file or folder `path` is `folder` or lies inside it (symbolic links resolved);
- * 0 otherwise, or when either does not exist; -1 when memory ran out. Guards --force against replacing a
- * folder holding inputs. */
-int bl_path_inside(const char *path, const char *folder);
+/* *inside = 1 when the existing file or folder `path` is `folder` or lies inside it (symbolic links
+ * resolved); 0 otherwise, or when either does not exist. BL_ERR_NOMEM when memory ran out. Guards
+ * --force against replacing a folder holding inputs. */
+bl_status bl_path_inside(const char *path, const char *folder, int *inside, bl_error *err);
 /* Remove a folder tree (like rm -r). */
 bl_status bl_remove_tree(const char *path, bl_error *err);
 

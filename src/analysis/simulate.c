@@ -1198,11 +1198,8 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         }
     }
 
-    int inside = bl_path_inside(sc->path, out_dir);
-    if (inside < 0) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory resolving %s", sc->path);
-        goto done;
-    }
+    int inside = 0;
+    if ((st = bl_path_inside(sc->path, out_dir, &inside, err))) goto done;
     if (inside) {
         st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds the scenario file %s; choose another output folder",
                           out_dir, sc->path);
