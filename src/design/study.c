@@ -491,7 +491,8 @@ static void param_free(bl_param_spec *p)
     memset(p, 0, sizeof *p);
 }
 
-static int param_copy(bl_param_spec *d, const bl_param_spec *src)
+/* A deep copy of a parameter spec (for `extends`); partial copies are freed by param_free. */
+static bl_status param_copy(ctx *c, bl_param_spec *d, const bl_param_spec *src)
 {
     int ok;
     *d = *src;
@@ -499,19 +500,19 @@ static int param_copy(bl_param_spec *d, const bl_param_spec *src)
     d->slopes = NULL;
     d->n_per = d->n_slopes = 0;
     d->per = copy_strings(src->per, src->n_per, &ok);
-    if (!ok) return 0;
+    if (!ok) return nomem(c);
     d->n_per = src->n_per;
     if (src->n_slopes) {
-        if (!(d->slopes = calloc(src->n_slopes, sizeof *d->slopes))) return 0;
+        if (!(d->slopes = calloc(src->n_slopes, sizeof *d->slopes))) return nomem(c);
         for (size_t i = 0; i < src->n_slopes; i++) {
             d->n_slopes = i + 1;
-            if (!(d->slopes[i].regressor = bl_strdup(src->slopes[i].regressor))) return 0;
+            if (!(d->slopes[i].regressor = bl_strdup(src->slopes[i].regressor))) return nomem(c);
             d->slopes[i].by = copy_strings(src->slopes[i].by, src->slopes[i].n_by, &ok);
-            if (!ok) return 0;
+            if (!ok) return nomem(c);
             d->slopes[i].n_by = src->slopes[i].n_by;
         }
     }
-    return 1;
+    return BL_OK;
 }
 
 static void param_default(bl_param_spec *p, int which)
@@ -632,7 +633,7 @@ static bl_status resolve_model(ctx *c, bl_study *s, model_job *jobs, size_t i)
         if ((st = resolve_model(c, s, jobs, b))) return st;
         for (int p = 0; p < BL_NPARAM; p++) {
             param_free(&m->param[p]);
-            if (!param_copy(&m->param[p], &s->models[b].param[p])) return nomem(c);
+            if ((st = param_copy(c, &m->param[p], &s->models[b].param[p]))) return st;
         }
     } else {
         for (int p = 0; p < BL_NPARAM; p++) param_default(&m->param[p], p);

@@ -255,18 +255,19 @@ bl_status bl_group_summary(bl_model_result *r, bl_error *err)
 
 /* A copy of a spec without slope s of parameter p (for the permutation statistic's null model).
  * Only the slopes array of that parameter is new; everything else is shared. */
-static int spec_without_slope(const bl_model_spec *spec, int p, size_t s, bl_model_spec *out, bl_slope_spec **mem)
+static bl_status spec_without_slope(const bl_model_spec *spec, int p, size_t s, bl_model_spec *out,
+                                    bl_slope_spec **mem, bl_error *err)
 {
     *out = *spec;
     size_t n = spec->param[p].n_slopes;
     *mem = malloc((n ? n : 1) * sizeof **mem);
-    if (!*mem) return 0;
+    if (!*mem) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the permutation test", spec->name);
     size_t w = 0;
     for (size_t i = 0; i < n; i++)
         if (i != s) (*mem)[w++] = spec->param[p].slopes[i];
     out->param[p].slopes = *mem;
     out->param[p].n_slopes = w;
-    return 1;
+    return BL_OK;
 }
 
 /* Maximum log-likelihood summed over units, refitted from warm starts without inference. */
@@ -417,10 +418,7 @@ bl_status bl_permutation_tests(const bl_study *study, const bl_model_spec *spec,
             bl_slope_spec *mem = NULL;
             bl_unit_set red;
             double ll_red = NAN;
-            if (!spec_without_slope(spec, p, s, &reduced, &mem)) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-                goto done;
-            }
+            if ((st = spec_without_slope(spec, p, s, &reduced, &mem, err))) goto done;
             st = bl_build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
                              NULL, NULL, err);
             free(mem);
