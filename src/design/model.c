@@ -169,7 +169,7 @@ fail:
 }
 
 /* Dense design of one free parameter (n x k, row-major). Caller frees. */
-static double *param_matrix(const bl_model *m, int p, size_t *k_out)
+static double *param_matrix(const bl_model *m, bl_param p, size_t *k_out)
 {
     const bl_param_design *d = &m->par[p];
     size_t k = d->n_levels;
@@ -203,7 +203,7 @@ static void coef_label(const bl_model *m, size_t j, char *buf, size_t n)
  * of columns that is already deficient (eigenvalues of its Gram matrix) has a null vector naming
  * exactly them, and the last of them adds nothing to the ones before it; without it, the null
  * vector of the whole design (last row of vt, k x k) is used. */
-static bl_status report_collinearity(const bl_model *m, int p, size_t k, const double *vt, double cond, bl_error *err)
+static bl_status report_collinearity(const bl_model *m, bl_param p, size_t k, const double *vt, double cond, bl_error *err)
 {
     const bl_param_design *d = &m->par[p];
     double *G = calloc(k * k, sizeof *G), *Gj = malloc(k * k * sizeof *Gj), *ev = malloc(k * sizeof *ev);
@@ -268,7 +268,7 @@ static bl_status report_collinearity(const bl_model *m, int p, size_t k, const d
 }
 
 /* Full column rank check of one parameter's design. */
-static bl_status check_rank(const bl_model *m, int p, bl_error *err)
+static bl_status check_rank(const bl_model *m, bl_param p, bl_error *err)
 {
     const bl_param_design *d = &m->par[p];
     const char *pname = bl_param_name(p);
@@ -691,7 +691,7 @@ void bl_model_restore_slopes(bl_model *m)
 
 /* Column space of a's design for parameter p inside b's? Least squares residual of every column of
  * X_a on X_b (LAPACKE dgels). *inside: 1 yes, 0 no. BL_ERR_NOMEM when memory ran out. */
-static bl_status columns_inside(const bl_model *a, const bl_model *b, int p, int *inside, bl_error *err)
+static bl_status columns_inside(const bl_model *a, const bl_model *b, bl_param p, int *inside, bl_error *err)
 {
     size_t ka, kb;
     double *Xa = param_matrix(a, p, &ka), *Xb = param_matrix(b, p, &kb), *B = NULL;

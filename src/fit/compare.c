@@ -255,7 +255,7 @@ bl_status bl_group_summary(bl_model_result *r, bl_error *err)
 
 /* A copy of a spec without slope s of parameter p (for the permutation statistic's null model).
  * Only the slopes array of that parameter is new; everything else is shared. */
-static bl_status spec_without_slope(const bl_model_spec *spec, int p, size_t s, bl_model_spec *out,
+static bl_status spec_without_slope(const bl_model_spec *spec, bl_param p, size_t s, bl_model_spec *out,
                                     bl_slope_spec **mem, bl_error *err)
 {
     *out = *spec;
@@ -295,7 +295,7 @@ static bl_status refit_units(bl_unit_set *u, const bl_fit_options *opt, double *
  * from (seed, model, parameter, slope, b), so the refits can run on several threads (each with its
  * own copy of the designs and a one-thread likelihood) and still give the same count. */
 static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const bl_fit_options *opt,
-                                  const bl_model_result *r, int p, size_t s, size_t *exceed_out, bl_error *err)
+                                  const bl_model_result *r, bl_param p, size_t s, size_t *exceed_out, bl_error *err)
 {
     size_t n_perm = opt->permutations, exceed = 0, done_count = 0;
     bl_status st_all = BL_OK;

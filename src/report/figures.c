@@ -233,7 +233,7 @@ static bl_svg *fig_spectrum(const bl_study *study, const bl_power_result *pr, co
 /* ---- 2. predicted parameter vs regressor ---- */
 
 typedef struct {
-    int param;
+    bl_param param;
     const bl_slope_spec *slope;
 } slope_ref;
 
