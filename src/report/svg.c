@@ -460,9 +460,11 @@ static double nicenum(double x, int rnd)
     return nf * pow(10, e);
 }
 
-int bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count)
+bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count,
+                            bl_error *err)
 {
-    if (!isfinite(*lo) || !isfinite(*hi) || *lo > *hi || target < 2) return 0;
+    if (!isfinite(*lo) || !isfinite(*hi) || *lo > *hi || target < 2)
+        return bl_error_set(err, BL_ERR_RANGE, "svg: no ticks for the range [%g, %g] with %d ticks", *lo, *hi, target);
     if (*lo == *hi) {
         double w = *lo != 0 ? fabs(*lo) * 0.1 : 1;
         *lo -= w;
@@ -476,7 +478,7 @@ int bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double 
     *count = (int)(k1 - k0) + 1;
     *lo = k0 * d;
     *hi = k1 * d;
-    return 1;
+    return BL_OK;
 }
 
 /* ---- layout and rendering ---- */
@@ -639,7 +641,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
         double first, step;
         int count;
         double wlo = lo, whi = hi;
-        if (!bl_svg_nice_ticks(&wlo, &whi, 6, &first, &step, &count)) {
+        if (bl_svg_nice_ticks(&wlo, &whi, 6, &first, &step, &count, NULL)) {
             wlo = 0, whi = 1, first = 0, step = 0.2, count = 6;
         }
         if (!a->fixed) lo = wlo, hi = whi;

@@ -107,7 +107,8 @@ void bl_svg_escape(FILE *f, const char *text);
 
 /* Nice ticks for [lo, hi] (Heckbert 1990): about `target` ticks at steps 1, 2 or 5 x 10^k.
  * Fills *first, *step and *count (ticks first + k*step, k < count), and widens *lo and *hi to tick
- * values. Returns 0 on bad input (non-finite, lo > hi). */
-int bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count);
+ * values. BL_ERR_RANGE on bad input (non-finite, lo > hi, target < 2). */
+bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count,
+                            bl_error *err);
 
 #endif
