@@ -107,8 +107,9 @@ int main(int argc, char **argv)
     /* One likelihood+gradient evaluation through the model, 1 and 2 threads. */
     double ns_eval[3] = {0};
     for (int th = 1; th <= 2; th++) {
-        bl_likelihood *w = bl_likelihood_create(m, th);
-        bl_likelihood_set_parallel(w, th > 1); /* forced: measure the parallel path itself */
+        bl_likelihood *w = NULL;
+        if (bl_likelihood_create(m, th, &w, &err)) return 1;
+        bl_likelihood_set_parallel(w, th > 1 ? BL_PARALLEL_SPLIT : BL_PARALLEL_UNSPLIT); /* forced: the parallel path itself */
         double gg[9];
         int er = 300;
         t0 = now();
@@ -129,7 +130,7 @@ int main(int argc, char **argv)
             bl_fit_options opt;
             bl_fit_options_default(&opt);
             opt.threads = mode == 0 ? 1 : 2;
-            opt.parallel_trials = mode == 1 ? 1 : 0;
+            opt.parallel_trials = mode == 1 ? BL_PARALLEL_SPLIT : BL_PARALLEL_AUTO;
             opt.starts = starts;
             int fits = 5;
             size_t evals = 0;

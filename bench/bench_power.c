@@ -135,7 +135,7 @@ static double welch_only(const char *dir, int np, int nt)
     bl_montage_destroy(m);
     bl_welch_plan *plan = NULL;
     bl_welch_work *work = NULL;
-    bl_welch_plan_create(2000, 1000, 500, 0, BL_WELCH_DETREND_CONSTANT, BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, &err);
+    bl_welch_plan_create(2000, 1000, 500, 0, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, &err);
     bl_welch_work_create(plan, L, &work, &err);
     double psd[501], lo[4] = {4, 8, 15, 30}, hi[4] = {10, 13, 30, 80}, sink = 0, best = INFINITY;
     for (int rep = 0; rep < 3; rep++) {

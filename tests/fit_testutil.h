@@ -46,7 +46,7 @@ static inline bl_trials *sim_trials(const sim_truth *tr, unsigned long seed)
     gsl_rng_set(rng, seed);
     bl_trials *t = calloc(1, sizeof *t);
     t->n = n;
-    t->table = bl_table_create(n);
+    bl_table_create(n, &t->table, NULL);
     t->rt = malloc(n * sizeof *t->rt);
     t->upper = malloc(n * sizeof *t->upper);
     t->drift_sign = malloc(n * sizeof *t->drift_sign);

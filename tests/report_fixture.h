@@ -111,7 +111,7 @@ static fixture *fixture_create(unsigned long seed, int separate)
     /* Trials. */
     bl_trials *t = &fx->trials;
     t->n = FX_N;
-    t->table = bl_table_create(FX_N);
+    bl_table_create(FX_N, &t->table, NULL);
     t->rt = calloc(FX_N, sizeof *t->rt);
     t->upper = calloc(FX_N, sizeof *t->upper);
     t->drift_sign = calloc(FX_N, sizeof *t->drift_sign);

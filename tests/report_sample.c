@@ -30,20 +30,20 @@ int main(int argc, char **argv)
     bl_warnings warn = {0};
     bl_warnings_add(&warn, "model 'theta-threshold': <an invented warning & its escaping>");
     if (bl_mkdir_p(dir, &err) || bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 0, &g, &err)) goto done;
-    if (!(p = bl_path_join(dir, "fit_quantiles.csv")) || bl_goodness_write_csv(g, p, &err)) goto done;
+    if (bl_path_join(dir, "fit_quantiles.csv", &p, NULL) || bl_goodness_write_csv(g, p, &err)) goto done;
     free(p);
     if (bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs, &err)) goto done;
-    if (!(p = bl_path_join(dir, "figures")) || bl_figures_write(fs, p, &err)) goto done;
+    if (bl_path_join(dir, "figures", &p, NULL) || bl_figures_write(fs, p, &err)) goto done;
     free(p);
     const char *stages[3] = {"power", "fits", "goodness"};
     double secs[3] = {0.5, 2.25, 0.125};
     bl_report_job job = {"0.1.0", "fixture/study.json", "2026-12-02T00:00:00Z", "2026-12-02T00:00:03Z", 1, 7, 2, 0,
                          3, stages, secs};
-    if (!(p = bl_path_join(dir, "report.html")) ||
+    if (bl_path_join(dir, "report.html", &p, NULL) ||
         bl_report_write(p, &job, &fx->study, &fx->trials, &fx->power, &fx->set, g, fs, &warn, &err))
         goto done;
     free(p);
-    if (!(p = bl_path_join(dir, "sample_trials.csv"))) goto done;
+    if (bl_path_join(dir, "sample_trials.csv", &p, NULL)) goto done;
     FILE *f = fopen(p, "w");
     if (!f) goto done;
     fprintf(f, "row,rt,upper,context,theta,used\n");

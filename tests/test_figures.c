@@ -190,11 +190,12 @@ HARNESS_CASE(written_files)
     /* Written files: XML declaration + the element, in a folder created on demand. */
     char dir[] = "/tmp/bl_test_figures_XXXXXX";
     check_true(mkdtemp(dir) != NULL, "temp folder");
-    char *sub = bl_path_join(dir, "figures");
+    char *sub = NULL;
+    check_true(bl_path_join(dir, "figures", &sub, &err) == BL_OK, "figures folder path");
     check_true(bl_figures_write(fs, sub, &err) == BL_OK, "write figures (%s)", err.message);
     for (int i = 0; i < 5; i++) {
-        char *p = bl_path_join(sub, names[i]);
-        char *head = read_head(p);
+        char *p = NULL;
+        char *head = bl_path_join(sub, names[i], &p, &err) == BL_OK ? read_head(p) : NULL;
         check_true(head && strncmp(head, "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<svg", 43) == 0, "%s written", names[i]);
         free(head);
         unlink(p);

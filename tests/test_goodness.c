@@ -148,7 +148,8 @@ HARNESS_CASE(groups_and_rows)
     enum { N = 600 };
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, 20261202);
-    bl_table *tab = bl_table_create(N);
+    bl_table *tab = NULL;
+    bl_table_create(N, &tab, NULL);
     const char *ctx[N], *anim[N];
     double theta[N];
     bl_trials tr = {0};

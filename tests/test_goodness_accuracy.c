@@ -82,7 +82,8 @@ int main(void)
     /* Trials: tone higher/lower (drift sign +1/-1), difficulty easy/hard, context rich/lean, theta
      * raising the threshold; start 0.42 (biased toward the lower boundary) so that mirroring the start
      * matters. 2 x 2 x 2 = 8 condition cells. */
-    bl_table *tab = bl_table_create(N);
+    bl_table *tab = NULL;
+    bl_table_create(N, &tab, NULL);
     const char *tone[N], *diff[N], *ctx[N];
     double theta[N];
     bl_trials tr = {0};

@@ -88,7 +88,9 @@ HARNESS_CASE(value_gradient_and_count)
     if (!fixture()) return;
     /* Value: the definition, computed here trial by trial from the regression and the engine's
      * log-density, with drift multiplied by the stimulus sign (stimulus coding). */
-    bl_likelihood *w1 = bl_likelihood_create(m, 1);
+    bl_error err = {0};
+    bl_likelihood *w1 = NULL;
+    check_true(bl_likelihood_create(m, 1, &w1, &err) == BL_OK, "likelihood workspace");
     double ll = bl_likelihood_eval(w1, coef, NULL);
     const bl_table *tab = t->table;
     int c_theta = bl_table_find(tab, "theta"), c_beta = bl_table_find(tab, "beta");
@@ -137,10 +139,14 @@ HARNESS_CASE(thread_invariance)
 {
     if (!fixture()) return;
     double g1[9], g2[9], g3[9];
-    bl_likelihood *w1 = bl_likelihood_create(m, 1), *w2 = bl_likelihood_create(m, 2), *w3 = bl_likelihood_create(m, 3);
+    bl_error err = {0};
+    bl_likelihood *w1 = NULL, *w2 = NULL, *w3 = NULL;
+    bl_likelihood_create(m, 1, &w1, &err);
+    bl_likelihood_create(m, 2, &w2, &err);
+    bl_likelihood_create(m, 3, &w3, &err);
     /* Force the parallel path (600 trials would otherwise run on one thread). */
-    bl_likelihood_set_parallel(w2, 1);
-    bl_likelihood_set_parallel(w3, 1);
+    bl_likelihood_set_parallel(w2, BL_PARALLEL_SPLIT);
+    bl_likelihood_set_parallel(w3, BL_PARALLEL_SPLIT);
     double l1 = bl_likelihood_eval(w1, coef, g1), l2 = bl_likelihood_eval(w2, coef, g2),
            l3 = bl_likelihood_eval(w3, coef, g3);
     check_abs(l2, l1, 1e-12 * fabs(l1), "1 vs 2 threads: same log-likelihood");
@@ -157,7 +163,8 @@ HARNESS_CASE(thread_invariance)
 HARNESS_CASE(infeasible_points)
 {
     if (!fixture()) return;
-    bl_likelihood *w1 = bl_likelihood_create(m, 1);
+    bl_likelihood *w1 = NULL;
+    if (!check_true(bl_likelihood_create(m, 1, &w1, NULL) == BL_OK, "likelihood workspace")) return;
     double bad[9];
     memcpy(bad, coef, sizeof bad);
     bad[2] = 3.0; /* theta slope 3 at rich: threshold < 0 when theta < -0.46 */
@@ -180,7 +187,8 @@ HARNESS_CASE(infeasible_points)
 HARNESS_CASE(per_trial_sum)
 {
     if (!fixture()) return;
-    bl_likelihood *w1 = bl_likelihood_create(m, 1);
+    bl_likelihood *w1 = NULL;
+    if (!check_true(bl_likelihood_create(m, 1, &w1, NULL) == BL_OK, "likelihood workspace")) return;
     double *tll = malloc(t->n * sizeof *tll);
     double tot = bl_likelihood_trials(w1, coef, tll), s = 0;
     for (size_t i = 0; i < t->n; i++) s += tll[i];
@@ -200,7 +208,8 @@ HARNESS_CASE(log_link)
     bl_model_spec spec2 = regression_spec(&as2, &vs2, 1);
     bl_model *m2 = NULL;
     check_true(bl_model_build(&spec2, t, NULL, &m2, &err) == BL_OK, "log-link model builds");
-    bl_likelihood *wl = bl_likelihood_create(m2, 2);
+    bl_likelihood *wl = NULL;
+    bl_likelihood_create(m2, 2, &wl, &err);
     const double coefl[9] = {log(1.37), log(1.05), 0.1, 0.02, 1.8, 1.1, 0.45, -0.15, 0.27};
     check_gradient(wl, coefl, 9, "log link");
     bl_wiener_params pl;
@@ -223,7 +232,8 @@ HARNESS_CASE(free_start_and_drift_sd)
     spec3.param[BL_START].is_fixed = 0;
     bl_model *m3 = NULL;
     check_true(bl_model_build(&spec3, t, NULL, &m3, &err) == BL_OK, "model with free start and drift_sd builds");
-    bl_likelihood *w4 = bl_likelihood_create(m3, 1);
+    bl_likelihood *w4 = NULL;
+    bl_likelihood_create(m3, 1, &w4, &err);
     /* Order: threshold(4), drift(4), nondecision, start, drift_sd. */
     const double coef3[11] = {log(1.37), log(1.05), 0.1, 0.02, 1.8, 1.1, 0.45, -0.15, 0.27, 0.47, 0.6};
     check_true(bl_model_n_coef(m3) == 11, "11 coefficients");

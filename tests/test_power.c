@@ -307,8 +307,8 @@ HARNESS_CASE(power_csv_and_summary)
     for (size_t k = 0; k < fx.w.count; k++) confound_warned |= strstr(fx.w.items[k], "power.window") != NULL;
     check_true(!confound_warned && r->n_window_confounds == 0,
                "onset-aligned window ending at the onset: no RT-position warning");
-    char *summary = bl_check_summary(s, t, r);
-    check_true(summary && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
+    char *summary = NULL;
+    check_true(bl_check_summary(s, t, r, &summary, &err) == BL_OK && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
                "check summary names exclusions, bands and rate");
     free(summary);
 }

@@ -22,7 +22,7 @@ static double spectral_slope(const double *x, size_t n, double fs, double f_lo, 
     bl_welch_work *work = NULL;
     bl_error err = {0};
     size_t nper = 2000;
-    if (bl_welch_plan_create(fs, nper, nper / 2, 0, BL_WELCH_DETREND_CONSTANT, BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan,
+    if (bl_welch_plan_create(fs, nper, nper / 2, 0, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan,
                              &err) != BL_OK ||
         bl_welch_work_create(plan, n, &work, &err) != BL_OK)
         return NAN;

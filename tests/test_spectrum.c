@@ -27,7 +27,7 @@ static double *read_f64(const char *path, size_t *n)
 }
 
 static double *welch(const double *x, size_t n, double fs, size_t nperseg, size_t noverlap, size_t nfft,
-                     bl_welch_detrend d, bl_welch_average a, bl_welch_scaling s, size_t *nf)
+                     bl_detrend d, bl_welch_average a, bl_welch_scaling s, size_t *nf)
 {
     bl_welch_plan *p = NULL;
     bl_welch_work *w = NULL;
@@ -71,8 +71,8 @@ static void check_fixtures(const char *dir)
         snprintf(path, sizeof path, "%s/%s.psd.f64", dir, name);
         double *want = read_f64(path, &np);
         if (!check_true(x && want && nx == n, "fixture %s: input and expected PSD read", name)) continue;
-        bl_welch_detrend d = strcmp(det, "constant") == 0 ? BL_WELCH_DETREND_CONSTANT
-                             : strcmp(det, "linear") == 0 ? BL_WELCH_DETREND_LINEAR : BL_WELCH_DETREND_NONE;
+        bl_detrend d = strcmp(det, "constant") == 0 ? BL_DETREND_MEAN
+                             : strcmp(det, "linear") == 0 ? BL_DETREND_LINEAR : BL_DETREND_NONE;
         double *got = welch(x, n, fs, nperseg, noverlap, nfft, d, strcmp(avg, "median") == 0 ? BL_WELCH_MEDIAN : BL_WELCH_MEAN,
                             strcmp(sc, "spectrum") == 0 ? BL_WELCH_SPECTRUM : BL_WELCH_DENSITY, &nf);
         check_true(nf == np, "fixture %s: %zu frequencies like scipy (%zu)", name, nf, np);
@@ -142,7 +142,7 @@ HARNESS_CASE(bin_centred_sine)
         size_t n = 4000, nf;
         double *x = malloc(n * sizeof *x);
         for (size_t i = 0; i < n; i++) x[i] = 3.0 * sin(2 * M_PI * 50.0 * (double)i / 1000.0);
-        double *p = welch(x, n, 1000, 1000, 500, 0, BL_WELCH_DETREND_CONSTANT, BL_WELCH_MEAN, BL_WELCH_DENSITY, &nf);
+        double *p = welch(x, n, 1000, 1000, 500, 0, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_DENSITY, &nf);
         double total = bl_band_power(p, 1.0, 1, nf - 1, NULL);
         check_rel(total, 4.5, 1e-9, "bin-centred sine A=3: total power = A^2/2 = 4.5");
         size_t a, b;
@@ -150,7 +150,7 @@ HARNESS_CASE(bin_centred_sine)
         check_rel(bl_band_power(p, 1.0, a, b, NULL), 4.5, 1e-9, "band [48, 52] Hz holds the whole sine (Hann main lobe is +-1 bin)");
         free(p);
         /* spectrum scaling: the peak equals A^2/2 for a bin-centred sine (same table, 4.5000) */
-        p = welch(x, n, 1000, 1000, 500, 0, BL_WELCH_DETREND_CONSTANT, BL_WELCH_MEAN, BL_WELCH_SPECTRUM, &nf);
+        p = welch(x, n, 1000, 1000, 500, 0, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_SPECTRUM, &nf);
         check_rel(p[50], 4.5, 1e-9, "spectrum scaling: peak at 50 Hz = A^2/2");
         free(p);
         free(x);
@@ -170,7 +170,7 @@ HARNESS_CASE(white_noise_and_parseval)
         for (size_t i = 0; i < n; i++) x[i] = gsl_ran_gaussian(rng, 2.0);
         for (size_t i = 0; i < n; i++) var += x[i] * x[i];
         var /= (double)n;
-        double *p = welch(x, n, 1000, 256, 128, 0, BL_WELCH_DETREND_NONE, BL_WELCH_MEAN, BL_WELCH_DENSITY, &nf);
+        double *p = welch(x, n, 1000, 256, 128, 0, BL_DETREND_NONE, BL_WELCH_MEAN, BL_WELCH_DENSITY, &nf);
         double mean = 0;
         for (size_t j = 1; j + 1 < nf; j++) mean += p[j];
         mean /= (double)(nf - 2);

@@ -32,8 +32,14 @@ HARNESS_CASE(atomic_write)
     /* Atomic write: the target appears whole, no temporary file is left behind. */
     char dir[] = "/tmp/bl_test_status_XXXXXX";
     check_true(mkdtemp(dir) != NULL, "temporary folder");
-    char *path = bl_path_join(dir, "sub/x.txt");
-    char *sub = bl_path_join(dir, "sub");
+    char *path = NULL, *sub = NULL;
+    check_true(bl_path_join(dir, "sub/x.txt", &path, &err) == BL_OK && bl_path_join(dir, "sub", &sub, &err) == BL_OK,
+               "paths joined");
+    /* POSIX path syntax (IEEE Std 1003.1, "Pathname"): one slash between folder and name. */
+    char *joined = NULL;
+    check_true(bl_path_join("a/", "b", &joined, &err) == BL_OK && strcmp(joined, "a/b") == 0,
+               "a folder ending in '/' gets no second slash (%s)", joined ? joined : "NULL");
+    free(joined);
     check_true(bl_mkdir_p(sub, &err) == BL_OK, "mkdir -p");
     check_true(bl_write_file_atomic(path, "hello\n", 6, &err) == BL_OK, "atomic write");
     FILE *f = fopen(path, "r");

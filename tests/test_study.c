@@ -83,16 +83,16 @@ HARNESS_CASE(full_example)
         check_true(m->param[BL_START].named && !m->param[BL_START].is_fixed, "start: {} makes it free");
         check_true(m->param[BL_DRIFT_SD].is_fixed && m->param[BL_DRIFT_SD].fixed == 0.3, "drift_sd fixed 0.3");
         check_true(b->param[BL_THRESHOLD].n_slopes == 0, "the base model is unchanged");
-        char *json = bl_study_to_json(s);
+        char *json = NULL;
         bl_study *again = NULL;
-        check_true(json && bl_study_parse(json, "/data/exp/study.json", &again, &err) == BL_OK,
+        check_true(bl_study_to_json(s, &json, &err) == BL_OK && bl_study_parse(json, "/data/exp/study.json", &again, &err) == BL_OK,
                    "the provenance JSON parses again as a study: %s", err.message);
         if (again) {
             check_true(again->n_models == 2 && again->models[1].param[BL_THRESHOLD].n_slopes == 1 &&
                            again->power.median && again->fit.starts == 4,
                        "round trip keeps models and settings");
-            char *json2 = bl_study_to_json(again);
-            check_true(json2 && strcmp(json, json2) == 0, "provenance JSON is a fixed point");
+            char *json2 = NULL;
+            check_true(bl_study_to_json(again, &json2, &err) == BL_OK && strcmp(json, json2) == 0, "provenance JSON is a fixed point");
             free(json2);
         }
         bl_study_destroy(again);

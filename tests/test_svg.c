@@ -65,7 +65,7 @@ HARNESS_CASE(nice_ticks)
      * data from 105 to 543 with about 5 ticks gives 100..600 in steps of 100 (value from memory). */
     double lo = 105, hi = 543, first, step;
     int n;
-    check_true(bl_svg_nice_ticks(&lo, &hi, 5, &first, &step, &n), "nice ticks succeed");
+    check_true(bl_svg_nice_ticks(&lo, &hi, 5, &first, &step, &n, NULL) == BL_OK, "nice ticks succeed");
     check_abs(lo, 100, 1e-12, "Heckbert example: lower tick");
     check_abs(hi, 600, 1e-12, "Heckbert example: upper tick");
     check_abs(step, 100, 1e-12, "Heckbert example: step");
@@ -74,13 +74,16 @@ HARNESS_CASE(nice_ticks)
     double ranges[][2] = {{0.013, 0.097}, {-3.7, 12.2}, {0, 1}, {1234, 98765}, {-0.5, -0.1}, {2.5, 2.5}};
     for (size_t i = 0; i < sizeof ranges / sizeof ranges[0]; i++) {
         double a = ranges[i][0], b = ranges[i][1];
-        check_true(bl_svg_nice_ticks(&a, &b, 6, &first, &step, &n), "ticks for [%g, %g]", ranges[i][0], ranges[i][1]);
+        check_true(bl_svg_nice_ticks(&a, &b, 6, &first, &step, &n, NULL) == BL_OK, "ticks for [%g, %g]", ranges[i][0], ranges[i][1]);
         double m = step / pow(10, floor(log10(step) + 1e-12));
         check_true(fabs(m - 1) < 1e-9 || fabs(m - 2) < 1e-9 || fabs(m - 5) < 1e-9, "step %g is 1/2/5 x 10^k", step);
         check_true(a <= ranges[i][0] && b >= ranges[i][1], "range [%g, %g] covers the data", a, b);
         check_true(n >= 2 && n <= 12, "tick count %d is readable", n);
     }
-    check_true(!bl_svg_nice_ticks(&(double){NAN}, &(double){1}, 5, &first, &step, &n), "NaN range is refused");
+    bl_error tick_err = {0};
+    check_true(bl_svg_nice_ticks(&(double){NAN}, &(double){1}, 5, &first, &step, &n, &tick_err) == BL_ERR_RANGE &&
+                   strstr(tick_err.message, "nan") != NULL,
+               "NaN range is refused with a message naming it (%s)", tick_err.message);
 }
 
 HARNESS_CASE(okabe_ito_palette)

@@ -230,7 +230,8 @@ HARNESS_CASE(file_patterns)
 {
     bl_error err = {0};
     {
-        bl_table *tab = bl_table_create(2);
+        bl_table *tab = NULL;
+        check_true(bl_table_create(2, &tab, &err) == BL_OK, "empty table of 2 rows");
         const char *animal[] = {"r1", NULL}, *sess[] = {"2", "3"};
         bl_table_add_text(tab, "animal", animal, &err);
         bl_table_add_text(tab, "session", sess, &err);

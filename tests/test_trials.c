@@ -83,8 +83,8 @@ HARNESS_CASE(bids_events_stimulus_coding)
                        strcmp(t->trial_label[5], "3") == 0,
                    "no trial column: labels are row numbers within participant");
         bl_exclusion_count *c = NULL;
-        size_t n = bl_trials_exclusion_counts(t, &c);
-        check_true(n == 3 && c[0].count == 1 && strcmp(c[1].reason, "rt < keep.rt_min") == 0, "3 reasons counted");
+        size_t n = 0;
+        check_true(bl_trials_exclusion_counts(t, &c, &n, &err) == BL_OK && n == 3 && c[0].count == 1 && strcmp(c[1].reason, "rt < keep.rt_min") == 0, "3 reasons counted");
         free(c);
         bl_trials_exclude(t, 0, "artifact: flat");
         bl_trials_exclude(t, 0, "artifact: clipping");

@@ -22,8 +22,8 @@ int main(int argc, char **argv)
     double *x = malloc(n * sizeof *x + 8);
     if (fread(x, sizeof *x, n, f) != n) return 2;
     fclose(f);
-    bl_welch_detrend d = strcmp(argv[6], "constant") == 0 ? BL_WELCH_DETREND_CONSTANT
-                         : strcmp(argv[6], "linear") == 0 ? BL_WELCH_DETREND_LINEAR : BL_WELCH_DETREND_NONE;
+    bl_detrend d = strcmp(argv[6], "constant") == 0 ? BL_DETREND_MEAN
+                         : strcmp(argv[6], "linear") == 0 ? BL_DETREND_LINEAR : BL_DETREND_NONE;
     bl_welch_plan *p = NULL;
     bl_welch_work *w = NULL;
     bl_error err = {0};

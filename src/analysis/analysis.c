@@ -17,6 +17,13 @@
 #include <omp.h>
 #endif
 
+/* A joined path, or NULL when memory ran out (the caller reports it where it checks). */
+static char *joined(const char *dir, const char *name)
+{
+    char *p = NULL;
+    return bl_path_join(dir, name, &p, NULL) == BL_OK ? p : NULL;
+}
+
 static const char *const step_names[BL_STEP_COUNT] = {"setup", "power", "fits", "goodness", "figures", "report"};
 
 const char *bl_step_name(bl_step step)
@@ -192,7 +199,7 @@ bl_status bl_analysis_fit(bl_analysis *a, bl_error *err)
 
 static bl_status write_power(const bl_analysis *a, const char *dir, bl_error *err)
 {
-    char *path = bl_path_join(dir, "power.csv");
+    char *path = joined(dir, "power.csv");
     if (!path) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     bl_status st = bl_power_write_csv(a->study, a->trials, a->power, path, err);
     free(path);
@@ -204,7 +211,7 @@ static bl_status write_fit_tables(const bl_analysis *a, const char *dir, bl_erro
     static const char *const names[2] = {"comparison.csv", "trials.csv"};
     bl_status st = BL_OK;
     for (int i = 0; i < 2 && !st; i++) {
-        char *path = bl_path_join(dir, names[i]);
+        char *path = joined(dir, names[i]);
         if (!path) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         st = i == 0 ? bl_results_write_comparison(path, a->fits, err)
                     : bl_results_write_trials(path, a->fits, a->study, a->trials, err);
@@ -267,11 +274,11 @@ static bl_status provenance_finish(bl_analysis *a, cJSON *prov, const char *dir,
     for (int s = 0; s < BL_STEP_COUNT; s++)
         if (!cJSON_AddNumberToObject(ss, step_names[s], a->seconds[s])) goto nomem;
     if ((outputs & BL_OUTPUT_FITS) && a->fits) {
-        if (!(path = bl_path_join(dir, "fits.json"))) goto nomem;
+        if (!(path = joined(dir, "fits.json"))) goto nomem;
         if ((st = bl_results_write_fits(path, a->fits, prov, &a->warnings, err))) goto done;
         free(path);
     }
-    if (!(path = bl_path_join(dir, "provenance.json")) || !(text = cJSON_Print(prov))) goto nomem;
+    if (!(path = joined(dir, "provenance.json")) || !(text = cJSON_Print(prov))) goto nomem;
     size_t n = strlen(text);
     text[n] = '\n'; /* cJSON_Print's terminator becomes the final newline */
     st = bl_write_file_atomic(path, text, n + 1, err);
@@ -325,7 +332,8 @@ const char *bl_analysis_fit_summary(bl_analysis *a)
 
 const char *bl_analysis_check_summary(bl_analysis *a)
 {
-    if (!a->check_summary) a->check_summary = bl_check_summary(a->study, a->trials, a->power);
+    if (!a->check_summary && bl_check_summary(a->study, a->trials, a->power, &a->check_summary, NULL) != BL_OK)
+        a->check_summary = NULL;
     return a->check_summary;
 }
 

@@ -74,9 +74,10 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
 {
     bl_status st = BL_OK;
     cJSON *p = cJSON_CreateObject();
-    char *sj = bl_study_to_json(study);
+    char *sj = NULL;
     bl_exclusion_count *ex = NULL;
-    if (!p || !sj) goto nomem;
+    if (!p) goto nomem;
+    if ((st = bl_study_to_json(study, &sj, err))) goto fail;
     if (!cJSON_AddStringToObject(p, "bandlink_version", BL_VERSION_STRING)) goto nomem;
     if (!cJSON_AddStringToObject(p, "started", started)) goto nomem;
     if (!cJSON_AddNumberToObject(p, "seed", (double)seed)) goto nomem;
@@ -157,8 +158,8 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
     if (!cJSON_AddNumberToObject(tr, "participants", (double)trials->n_participants)) goto nomem;
     cJSON *exo = cJSON_AddObjectToObject(tr, "excluded");
     if (!exo) goto nomem;
-    size_t nex = bl_trials_exclusion_counts(trials, &ex);
-    if (nex == BL_EXCLUSION_COUNTS_NOMEM) goto nomem;
+    size_t nex = 0;
+    if ((st = bl_trials_exclusion_counts(trials, &ex, &nex, err))) goto fail;
     for (size_t i = 0; i < nex; i++)
         if (!cJSON_AddNumberToObject(exo, ex[i].reason, (double)ex[i].count)) goto nomem;
     free(ex);

@@ -12,6 +12,7 @@
  * with gain = full_scale.
  */
 #include "engine/wiener_sample.h"
+#include "core/gsl_guard.h"
 #include "analysis/simulate.h"
 
 #include "core/output.h"
@@ -828,6 +829,7 @@ static size_t fast_size(size_t n)
 bl_status bl_simulate_colored_noise(double *x, size_t n, double fs, double exponent, double corner, double rms,
                                     gsl_rng *rng, bl_error *err)
 {
+    bl_gsl_guard();
     if (n == 0) return BL_OK;
     if (!(fs > 0) || !(corner > 0) || !(rms >= 0) || !isfinite(exponent))
         return bl_error_set(err, BL_ERR_RANGE, "coloured noise: invalid settings (fs %g, corner %g, rms %g)", fs, corner, rms);
@@ -1245,9 +1247,9 @@ static bl_status write_recordings(const bl_scenario *sc, const trial_rec *tr, co
     for (size_t p = 0; p < P; p++) {
         char name[600];
         snprintf(name, sizeof name, "%s.%s", sc->participants[p], sc->wav ? "wav" : "flac");
-        char *path = bl_path_join(rec_dir, name);
-        if (!path) pst[p] = bl_error_set(&perr[p], BL_ERR_NOMEM, "out of memory");
-        else pst[p] = write_recording(sc, p, tr + p * T, T, path, seed, &psec[p], &perr[p]);
+        char *path = NULL;
+        pst[p] = bl_path_join(rec_dir, name, &path, &perr[p]);
+        if (pst[p] == BL_OK) pst[p] = write_recording(sc, p, tr + p * T, T, path, seed, &psec[p], &perr[p]);
         free(path);
     }
     *seconds = 0;
@@ -1353,6 +1355,7 @@ static double regressor_shift(const bl_scenario *sc, const bl_trials *before, co
 bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl_simulate_options *opt,
                             bl_simulate_summary *summary, bl_warnings *warn, bl_error *err)
 {
+    bl_gsl_guard();
     bl_simulate_options defaults = {0};
     if (!opt) opt = &defaults;
     unsigned long seed = opt->has_seed ? opt->seed : sc->seed;
@@ -1378,9 +1381,9 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
     if ((st = bl_results_folder_check(out_dir, opt->force, inputs, 1, err))) goto done;
     if ((st = bl_results_folder_begin(out_dir, opt->force, "simulate", &stage, err))) goto done;
     const char *dir = bl_results_folder_dir(stage);
-    if (!(p_rec = bl_path_join(dir, "recordings")) || !(p_trials = bl_path_join(dir, "trials.csv")) ||
-        !(p_study = bl_path_join(dir, "study.json")) || !(p_truth = bl_path_join(dir, "truth.json")) ||
-        !(p_tt = bl_path_join(dir, "truth_trials.csv"))) {
+    if (bl_path_join(dir, "recordings", &p_rec, NULL) || bl_path_join(dir, "trials.csv", &p_trials, NULL) ||
+        bl_path_join(dir, "study.json", &p_study, NULL) || bl_path_join(dir, "truth.json", &p_truth, NULL) ||
+        bl_path_join(dir, "truth_trials.csv", &p_tt, NULL)) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }

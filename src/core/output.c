@@ -14,16 +14,17 @@ struct bl_outfile {
     char *temp;
 };
 
-char *bl_path_join(const char *dir, const char *name)
+bl_status bl_path_join(const char *dir, const char *name, char **out, bl_error *err)
 {
     size_t nd = strlen(dir), nn = strlen(name);
     int slash = nd > 0 && dir[nd - 1] != '/';
     char *p = malloc(nd + nn + 2);
-    if (!p) return NULL;
+    *out = p;
+    if (!p) return bl_error_set(err, BL_ERR_NOMEM, "out of memory joining %s and %s", dir, name);
     memcpy(p, dir, nd);
     if (slash) p[nd++] = '/';
     memcpy(p + nd, name, nn + 1);
-    return p;
+    return BL_OK;
 }
 
 bl_status bl_outfile_open(const char *path, bl_outfile **out, bl_error *err)

@@ -26,9 +26,9 @@ void bl_outfile_abort(bl_outfile *f);
 bl_status bl_write_file_atomic(const char *path, const void *data, size_t size, bl_error *err);
 /* Create a folder and its parents (like mkdir -p). */
 bl_status bl_mkdir_p(const char *path, bl_error *err);
-/* Join a folder and a name into a new string (caller frees). NULL on allocation failure. */
-char *bl_path_join(const char *dir, const char *name);
-
+/* Join a folder and a name into a new string *out (caller frees). BL_ERR_NOMEM (*out NULL) when
+ * memory ran out. */
+bl_status bl_path_join(const char *dir, const char *name, char **out, bl_error *err);
 
 /* ---- Results folders: build a folder completely, then move it into place. ---- */
 

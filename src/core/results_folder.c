@@ -26,6 +26,13 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+/* A joined path, or NULL when memory ran out (the caller reports it where it checks). */
+static char *joined(const char *dir, const char *name)
+{
+    char *p = NULL;
+    return bl_path_join(dir, name, &p, NULL) == BL_OK ? p : NULL;
+}
+
 struct bl_results_folder {
     char *target;
     char *temp;
@@ -102,7 +109,7 @@ static void remove_stale(const char *parent, const char *name)
         long pid = strtol(e->d_name + np, NULL, 10);
         if (pid <= 0 || pid == (long)getpid()) continue;
         if (kill((pid_t)pid, 0) == 0 || errno == EPERM) continue; /* still running */
-        char *p = bl_path_join(parent, e->d_name);
+        char *p = joined(parent, e->d_name);
         if (p) bl_remove_tree(p, NULL);
         free(p);
     }
@@ -147,7 +154,7 @@ static int entries_has(const entry_list *l, const char *rel)
 /* Read the marker of `dir`: 1 and the list when present and well-formed, 0 when absent, -1 on NOMEM. */
 static int marker_read(const char *dir, entry_list *l)
 {
-    char *path = bl_path_join(dir, BL_RESULTS_MARKER);
+    char *path = joined(dir, BL_RESULTS_MARKER);
     if (!path) return -1;
     FILE *f = fopen(path, "r");
     free(path);
@@ -199,7 +206,7 @@ static int check_owned(const char *dir, const char *rel, const entry_list *l, ch
         if (!strcmp(e->d_name, ".") || !strcmp(e->d_name, "..")) continue;
         if (!rel[0] && !strcmp(e->d_name, BL_RESULTS_MARKER)) continue;
         size_t n = strlen(rel) + strlen(e->d_name) + 2;
-        char *r = malloc(n), *full = bl_path_join(dir, e->d_name);
+        char *r = malloc(n), *full = joined(dir, e->d_name);
         struct stat sb;
         if (!r || !full) {
             result = -1;
@@ -231,7 +238,7 @@ static int list_written(const char *dir, const char *rel, entry_list *l)
     while (rc == 0 && (e = readdir(d))) {
         if (!strcmp(e->d_name, ".") || !strcmp(e->d_name, "..")) continue;
         size_t n = strlen(rel) + strlen(e->d_name) + 2;
-        char *r = malloc(n), *full = bl_path_join(dir, e->d_name);
+        char *r = malloc(n), *full = joined(dir, e->d_name);
         struct stat sb;
         if (!r || !full || lstat(full, &sb) != 0) {
             rc = -1;
@@ -239,7 +246,7 @@ static int list_written(const char *dir, const char *rel, entry_list *l)
             snprintf(r, n, "%s%s/", rel, e->d_name);
             rc = entries_add(l, r);
             /* A nested results folder keeps its own marker. */
-            char *m = rc == 0 ? bl_path_join(full, BL_RESULTS_MARKER) : NULL;
+            char *m = rc == 0 ? joined(full, BL_RESULTS_MARKER) : NULL;
             if (rc == 0 && !m) rc = -1;
             if (rc == 0 && access(m, F_OK) != 0) rc = list_written(full, r, l);
             free(m);
@@ -260,7 +267,7 @@ static bl_status marker_write(const char *dir, const char *command, bl_error *er
 {
     entry_list l = {0};
     bl_outfile *o = NULL;
-    char *path = bl_path_join(dir, BL_RESULTS_MARKER);
+    char *path = joined(dir, BL_RESULTS_MARKER);
     bl_status st;
     if (!path || list_written(dir, "", &l) != 0) {
         st = bl_error_set(err, BL_ERR_NOMEM, "%s: cannot list the results written", dir);

@@ -17,13 +17,13 @@ typedef struct {
     size_t used;              /* bytes in block */
 } bl_sha256;
 
-BL_API void bl_sha256_init(bl_sha256 *ctx);
-BL_API void bl_sha256_update(bl_sha256 *ctx, const void *data, size_t size);
+void bl_sha256_init(bl_sha256 *ctx);
+void bl_sha256_update(bl_sha256 *ctx, const void *data, size_t size);
 /* Finish and write the 32-byte digest; the context must be re-initialised before reuse. */
-BL_API void bl_sha256_final(bl_sha256 *ctx, unsigned char digest[BL_SHA256_DIGEST_SIZE]);
+void bl_sha256_final(bl_sha256 *ctx, unsigned char digest[BL_SHA256_DIGEST_SIZE]);
 /* Digest of a buffer as 64 lowercase hex digits. */
-BL_API void bl_sha256_hex(const void *data, size_t size, char hex[BL_SHA256_HEX_SIZE]);
+void bl_sha256_hex(const void *data, size_t size, char hex[BL_SHA256_HEX_SIZE]);
 /* Digest of a whole file as 64 lowercase hex digits; BL_ERR_IO naming the file when it cannot be read. */
-BL_API bl_status bl_sha256_file(const char *path, char hex[BL_SHA256_HEX_SIZE], bl_error *err);
+bl_status bl_sha256_file(const char *path, char hex[BL_SHA256_HEX_SIZE], bl_error *err);
 
 #endif

@@ -169,7 +169,7 @@ fail:
 }
 
 /* Dense design of one free parameter (n x k, row-major). Caller frees. */
-static double *param_matrix(const bl_model *m, int p, size_t *k_out)
+static double *param_matrix(const bl_model *m, bl_param p, size_t *k_out)
 {
     const bl_param_design *d = &m->par[p];
     size_t k = d->n_levels;
@@ -199,8 +199,76 @@ static void coef_label(const bl_model *m, size_t j, char *buf, size_t n)
                  c->level[0] ? "'" : "");
 }
 
+/* A rank-deficient design of parameter p: name the coefficients involved. The shortest leading set
+ * of columns that is already deficient (eigenvalues of its Gram matrix) has a null vector naming
+ * exactly them, and the last of them adds nothing to the ones before it; without it, the null
+ * vector of the whole design (last row of vt, k x k) is used. */
+static bl_status report_collinearity(const bl_model *m, bl_param p, size_t k, const double *vt, double cond, bl_error *err)
+{
+    const bl_param_design *d = &m->par[p];
+    double *G = calloc(k * k, sizeof *G), *Gj = malloc(k * k * sizeof *Gj), *ev = malloc(k * sizeof *ev);
+    const double *v = vt + (k - 1) * k;
+    size_t nv = k;
+    double *vbuf = malloc(k * sizeof *vbuf);
+    if (G && Gj && ev && vbuf) {
+        /* X was overwritten by dgesvd: rebuild the normalised design. */
+        size_t k2;
+        double *X2 = param_matrix(m, p, &k2);
+        if (X2) {
+            for (size_t j = 0; j < k; j++) {
+                double ss = 0;
+                for (size_t i = 0; i < m->n; i++) ss += X2[i * k + j] * X2[i * k + j];
+                for (size_t i = 0; i < m->n; i++) X2[i * k + j] /= sqrt(ss);
+            }
+            for (size_t i = 0; i < m->n; i++)
+                for (size_t a = 0; a < k; a++) {
+                    double xa = X2[i * k + a];
+                    if (xa == 0) continue;
+                    for (size_t b = 0; b < k; b++) G[a * k + b] += xa * X2[i * k + b];
+                }
+            free(X2);
+            for (size_t j = 2; j <= k; j++) {
+                for (size_t a = 0; a < j; a++)
+                    for (size_t b = 0; b < j; b++) Gj[a * j + b] = G[a * k + b];
+                if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)j, Gj, (lapack_int)j, ev) != 0) break;
+                if (ev[0] <= 1e-10 * ev[j - 1]) {
+                    for (size_t a = 0; a < j; a++) vbuf[a] = Gj[a * j + 0];
+                    v = vbuf;
+                    nv = j;
+                    break;
+                }
+            }
+        }
+    }
+    double vmax = 0;
+    for (size_t j = 0; j < nv; j++) vmax = fmax(vmax, fabs(v[j]));
+    size_t last = 0;
+    for (size_t j = 0; j < nv; j++)
+        if (fabs(v[j]) > 1e-3 * vmax) last = j;
+    char lab[512], others[600] = "";
+    coef_label(m, d->first_coef + last, lab, sizeof lab);
+    size_t shown = 0;
+    for (size_t j = 0; j < nv && shown < 3; j++) {
+        if (j == last || !(fabs(v[j]) > 1e-3 * vmax)) continue;
+        char l2[256];
+        coef_label(m, d->first_coef + j, l2, sizeof l2);
+        size_t len = strlen(others);
+        snprintf(others + len, sizeof others - len, "%s%s", shown ? ", " : "", l2);
+        shown++;
+    }
+    free(G);
+    free(Gj);
+    free(ev);
+    bl_status st = bl_error_set(err, BL_ERR_MODEL,
+                                "model '%s': parameter '%s': rank-deficient design: %s is collinear with %s "
+                                "(condition number %.3g; e.g. a regressor constant within a level)",
+                                m->name, bl_param_name(p), lab, shown ? others : "the other coefficients", cond);
+    free(vbuf); /* v may point into it until the message is made */
+    return st;
+}
+
 /* Full column rank check of one parameter's design. */
-static bl_status check_rank(const bl_model *m, int p, bl_error *err)
+static bl_status check_rank(const bl_model *m, bl_param p, bl_error *err)
 {
     const bl_param_design *d = &m->par[p];
     const char *pname = bl_param_name(p);
@@ -239,75 +307,18 @@ static bl_status check_rank(const bl_model *m, int p, bl_error *err)
     }
     lapack_int info = LAPACKE_dgesvd(LAPACK_ROW_MAJOR, 'N', 'A', (lapack_int)m->n, (lapack_int)k, X,
                                      (lapack_int)k, s, NULL, 1, vt, (lapack_int)k, superb);
+    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': parameter '%s': out of memory checking the rank of the design",
+                          m->name, pname);
+        goto done;
+    }
     if (info != 0) {
         st = bl_error_set(err, BL_ERR_NUMERIC, "model '%s': parameter '%s': SVD of the design failed (LAPACK info %d)",
                           m->name, pname, (int)info);
         goto done;
     }
-    if (s[k - 1] <= s[0] / BL_MODEL_MAX_CONDITION) {
-        /* Localise: the shortest leading set of columns that is already deficient (eigenvalues of its
-         * Gram matrix), whose null vector names exactly the coefficients involved; the last of them
-         * adds nothing to the ones before it. Falls back to the full null vector. */
-        double *G = calloc(k * k, sizeof *G), *Gj = malloc(k * k * sizeof *Gj), *ev = malloc(k * sizeof *ev);
-        const double *v = vt + (k - 1) * k;
-        size_t nv = k;
-        double *vbuf = malloc(k * sizeof *vbuf);
-        if (G && Gj && ev && vbuf) {
-            /* X was overwritten by dgesvd: rebuild the normalised design. */
-            size_t k2;
-            double *X2 = param_matrix(m, p, &k2);
-            if (X2) {
-                for (size_t j = 0; j < k; j++) {
-                    double ss = 0;
-                    for (size_t i = 0; i < m->n; i++) ss += X2[i * k + j] * X2[i * k + j];
-                    for (size_t i = 0; i < m->n; i++) X2[i * k + j] /= sqrt(ss);
-                }
-                for (size_t i = 0; i < m->n; i++)
-                    for (size_t a = 0; a < k; a++) {
-                        double xa = X2[i * k + a];
-                        if (xa == 0) continue;
-                        for (size_t b = 0; b < k; b++) G[a * k + b] += xa * X2[i * k + b];
-                    }
-                free(X2);
-                for (size_t j = 2; j <= k; j++) {
-                    for (size_t a = 0; a < j; a++)
-                        for (size_t b = 0; b < j; b++) Gj[a * j + b] = G[a * k + b];
-                    if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)j, Gj, (lapack_int)j, ev) != 0) break;
-                    if (ev[0] <= 1e-10 * ev[j - 1]) {
-                        for (size_t a = 0; a < j; a++) vbuf[a] = Gj[a * j + 0];
-                        v = vbuf;
-                        nv = j;
-                        break;
-                    }
-                }
-            }
-        }
-        double vmax = 0;
-        for (size_t j = 0; j < nv; j++) vmax = fmax(vmax, fabs(v[j]));
-        size_t last = 0;
-        for (size_t j = 0; j < nv; j++)
-            if (fabs(v[j]) > 1e-3 * vmax) last = j;
-        char lab[512], others[600] = "";
-        coef_label(m, d->first_coef + last, lab, sizeof lab);
-        size_t shown = 0;
-        for (size_t j = 0; j < nv && shown < 3; j++) {
-            if (j == last || !(fabs(v[j]) > 1e-3 * vmax)) continue;
-            char l2[256];
-            coef_label(m, d->first_coef + j, l2, sizeof l2);
-            size_t len = strlen(others);
-            snprintf(others + len, sizeof others - len, "%s%s", shown ? ", " : "", l2);
-            shown++;
-        }
-        st = bl_error_set(err, BL_ERR_MODEL,
-                          "model '%s': parameter '%s': rank-deficient design: %s is collinear with %s "
-                          "(condition number %.3g; e.g. a regressor constant within a level)",
-                          m->name, pname, lab, shown ? others : "the other coefficients",
-                          s[k - 1] > 0 ? s[0] / s[k - 1] : INFINITY);
-        free(G);
-        free(Gj);
-        free(ev);
-        free(vbuf);
-    }
+    if (s[k - 1] <= s[0] / BL_MODEL_MAX_CONDITION)
+        st = report_collinearity(m, p, k, vt, s[k - 1] > 0 ? s[0] / s[k - 1] : INFINITY, err);
 done:
     free(X);
     free(s);
@@ -316,43 +327,36 @@ done:
     return st;
 }
 
-bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use,
-                         bl_model **out, bl_error *err)
+static bl_status design_nomem(const bl_model *m, bl_error *err)
 {
-    *out = NULL;
-    const char *mname = spec->name ? spec->name : "(unnamed)";
-    bl_model *m = calloc(1, sizeof *m);
-    bl_status st = BL_ERR_NOMEM;
-    char ***lev_names = NULL;
-    size_t *lev_counts = NULL;
-    size_t n_lev_sets = 0;
-    if (!m || !(m->name = bl_strdup(mname))) goto nomem;
+    return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", m->name);
+}
+
+/* The trials the model fits (kept, and selected by `use`): rows, RTs, choices, signs, participants,
+ * and the observed RT range. Every fitted trial must have a valid RT. */
+static bl_status select_trials(bl_model *m, const bl_trials *trials, const unsigned char *use, bl_error *err)
+{
     const size_t nrow = trials->n;
     size_t n = 0;
     for (size_t i = 0; i < nrow; i++)
         if (!(trials->excluded && trials->excluded[i]) && (!use || use[i])) n++;
-    if (n == 0) {
-        st = bl_error_set(err, BL_ERR_MODEL, "model '%s': no trials to fit", mname);
-        goto fail;
-    }
+    if (n == 0) return bl_error_set(err, BL_ERR_MODEL, "model '%s': no trials to fit", m->name);
     m->n = n;
     m->row = malloc(n * sizeof *m->row);
     m->rt = malloc(n * sizeof *m->rt);
     m->upper = malloc(n * sizeof *m->upper);
     m->sign = malloc(n * sizeof *m->sign);
     m->participant = malloc(n * sizeof *m->participant);
-    if (!m->row || !m->rt || !m->upper || !m->sign || !m->participant) goto nomem;
+    if (!m->row || !m->rt || !m->upper || !m->sign || !m->participant) return design_nomem(m, err);
     m->rt_lo = INFINITY;
     m->rt_hi = -INFINITY;
     for (size_t i = 0, k = 0; i < nrow; i++) {
         if ((trials->excluded && trials->excluded[i]) || (use && !use[i])) continue;
         double rt = trials->rt[i];
-        if (!isfinite(rt) || rt <= 0) {
-            st = bl_error_set(err, BL_ERR_INPUT, "model '%s': trial %s of participant '%s' has no valid RT (%g)",
-                              mname, trials->trial_label ? trials->trial_label[i] : "?",
-                              trials->participants[trials->participant[i]], rt);
-            goto fail;
-        }
+        if (!isfinite(rt) || rt <= 0)
+            return bl_error_set(err, BL_ERR_INPUT, "model '%s': trial %s of participant '%s' has no valid RT (%g)",
+                                m->name, trials->trial_label ? trials->trial_label[i] : "?",
+                                trials->participants[trials->participant[i]], rt);
         m->row[k] = i;
         m->rt[k] = rt;
         m->upper[k] = trials->upper[i] ? 1 : 0;
@@ -363,142 +367,179 @@ bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, con
         k++;
     }
     if (!(m->rt_hi > m->rt_lo)) m->rt_hi = m->rt_lo + 1.0;
+    return BL_OK;
+}
 
-    /* Level names are kept per design part until the coefficient table is made. */
-    size_t max_sets = BL_NPARAM;
-    for (int p = 0; p < BL_NPARAM; p++) max_sets += spec->param[p].n_slopes;
-    lev_names = calloc(max_sets, sizeof *lev_names);
-    lev_counts = calloc(max_sets, sizeof *lev_counts);
-    if (!lev_names || !lev_counts) goto nomem;
+/* Level names of each design part (a parameter's intercepts, then each of its slopes), kept until the
+ * coefficient table takes them over. */
+typedef struct {
+    char ***names;
+    size_t *counts;
+    size_t n;
+} level_sets;
 
-    size_t n_coef = 0;
-    for (int p = 0; p < BL_NPARAM; p++) {
-        const bl_param_spec *ps = &spec->param[p];
-        bl_param_design *d = &m->par[p];
-        const char *pname = bl_param_name(p);
-        d->link = ps->link == BL_LINK_LOG ? BL_LINK_LOG : BL_LINK_IDENTITY;
-        if (ps->is_fixed) {
-            d->is_free = 0;
-            d->fixed = ps->fixed;
-            if (ps->n_slopes) {
-                st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': a fixed parameter cannot have slopes",
-                                  mname, pname);
-                goto fail;
-            }
-            continue;
+static void level_sets_free(level_sets *ls)
+{
+    if (ls->names)
+        for (size_t i = 0; i < ls->n; i++) free_strv(ls->names[i], ls->counts[i]);
+    free(ls->names);
+    free(ls->counts);
+    memset(ls, 0, sizeof *ls);
+}
+
+/* The values of one slope's regressor on the fitted trials (a finite number on every one), and
+ * their root mean square for the optimiser's scaling. */
+static bl_status slope_values(bl_model *m, const bl_trials *trials, const bl_slope_spec *ss, const char *pname,
+                              bl_slope_design *sl, bl_error *err)
+{
+    int c = bl_table_find(trials->table, ss->regressor);
+    if (c < 0)
+        return bl_error_set(err, BL_ERR_MODEL,
+                            "model '%s': parameter '%s': unknown regressor '%s' (neither a band nor a column of "
+                            "the trial table)",
+                            m->name, pname, ss->regressor);
+    const bl_column *col = &trials->table->cols[c];
+    size_t n = m->n;
+    sl->x = malloc(n * sizeof *sl->x);
+    sl->x_orig = malloc(n * sizeof *sl->x_orig);
+    if (!sl->x || !sl->x_orig) return design_nomem(m, err);
+    double ss2 = 0;
+    for (size_t k = 0; k < n; k++) {
+        double x = col->num[m->row[k]];
+        if (!isfinite(x)) {
+            const char *txt = col->text[m->row[k]];
+            return bl_error_set(err, BL_ERR_MODEL,
+                                "model '%s': parameter '%s': regressor '%s' is %s on trial %s of participant "
+                                "'%s' (it must be a finite number on every fitted trial)",
+                                m->name, pname, ss->regressor, txt ? "not numeric" : "missing",
+                                trials->trial_label ? trials->trial_label[m->row[k]] : "?",
+                                trials->participants[trials->participant[m->row[k]]]);
         }
-        d->is_free = 1;
-        d->n_per = ps->n_per;
-        if (!(d->per = dup_strv(ps->per, ps->n_per))) goto nomem;
-        d->first_coef = n_coef;
-        st = make_levels(m, trials, ps->per, ps->n_per, pname, &d->level, &lev_names[n_lev_sets], &d->n_levels, err);
-        if (st) goto fail;
-        lev_counts[n_lev_sets++] = d->n_levels;
-        n_coef += d->n_levels;
-        d->n_slopes = ps->n_slopes;
-        d->slopes = calloc(ps->n_slopes ? ps->n_slopes : 1, sizeof *d->slopes);
-        if (!d->slopes) goto nomem;
-        for (size_t s = 0; s < ps->n_slopes; s++) {
-            const bl_slope_spec *ss = &ps->slopes[s];
+        sl->x[k] = sl->x_orig[k] = x;
+        ss2 += x * x;
+    }
+    sl->rms = sqrt(ss2 / (double)n);
+    if (!(sl->rms > 0)) sl->rms = 1.0;
+    return BL_OK;
+}
+
+/* The design of parameter p: fixed, or free with its intercept levels and its slopes. Coefficients
+ * are numbered from *n_coef on, which is advanced past them. */
+static bl_status param_design(bl_model *m, const bl_trials *trials, const bl_param_spec *ps, bl_param p,
+                              level_sets *ls, size_t *n_coef, bl_error *err)
+{
+    bl_param_design *d = &m->par[p];
+    const char *pname = bl_param_name(p);
+    d->link = ps->link == BL_LINK_LOG ? BL_LINK_LOG : BL_LINK_IDENTITY;
+    if (ps->is_fixed) {
+        d->is_free = 0;
+        d->fixed = ps->fixed;
+        if (ps->n_slopes)
+            return bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': a fixed parameter cannot have slopes",
+                                m->name, pname);
+        return BL_OK;
+    }
+    d->is_free = 1;
+    d->n_per = ps->n_per;
+    if (!(d->per = dup_strv(ps->per, ps->n_per))) return design_nomem(m, err);
+    d->first_coef = *n_coef;
+    bl_status st = make_levels(m, trials, ps->per, ps->n_per, pname, &d->level, &ls->names[ls->n], &d->n_levels, err);
+    if (st) return st;
+    ls->counts[ls->n++] = d->n_levels;
+    *n_coef += d->n_levels;
+    d->slopes = calloc(ps->n_slopes ? ps->n_slopes : 1, sizeof *d->slopes);
+    if (!d->slopes) return design_nomem(m, err);
+    d->n_slopes = ps->n_slopes; /* only now: param_design_free walks n_slopes entries */
+    for (size_t s = 0; s < ps->n_slopes; s++) {
+        const bl_slope_spec *ss = &ps->slopes[s];
+        bl_slope_design *sl = &d->slopes[s];
+        if (!(sl->regressor = bl_strdup(ss->regressor)) || !(sl->by = dup_strv(ss->by, ss->n_by)))
+            return design_nomem(m, err);
+        sl->n_by = ss->n_by;
+        for (size_t s2 = 0; s2 < s; s2++)
+            if (strcmp(d->slopes[s2].regressor, ss->regressor) == 0)
+                return bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': regressor '%s' has two slopes",
+                                    m->name, pname, ss->regressor);
+        if ((st = slope_values(m, trials, ss, pname, sl, err))) return st;
+        sl->first_coef = *n_coef;
+        st = make_levels(m, trials, ss->by, ss->n_by, pname, &sl->level, &ls->names[ls->n], &sl->n_levels, err);
+        if (st) return st;
+        ls->counts[ls->n++] = sl->n_levels;
+        *n_coef += sl->n_levels;
+    }
+    return BL_OK;
+}
+
+/* One coefficient's entry in the table; its level text is taken over from the level set. */
+static void coef_entry(bl_model *m, size_t j, bl_param p, int slope, const char *term, char **level)
+{
+    m->coef[j].param = p;
+    m->coef[j].slope = slope;
+    m->coef[j].term = term;
+    m->level_text[j] = *level;
+    *level = NULL;
+    m->coef[j].level = m->level_text[j];
+}
+
+/* The coefficient table (numbering: see model.h), in the order the level sets were made. */
+static bl_status coef_table(bl_model *m, size_t n_coef, level_sets *ls, bl_error *err)
+{
+    m->n_coef = n_coef;
+    m->coef = calloc(n_coef, sizeof *m->coef);
+    m->level_text = calloc(n_coef, sizeof *m->level_text);
+    if (!m->coef || !m->level_text) return design_nomem(m, err);
+    size_t set = 0;
+    for (bl_param p = 0; p < BL_NPARAM; p++) {
+        bl_param_design *d = &m->par[p];
+        if (!d->is_free) continue;
+        for (size_t l = 0; l < d->n_levels; l++)
+            coef_entry(m, d->first_coef + l, p, -1, "intercept", &ls->names[set][l]);
+        set++;
+        for (size_t s = 0; s < d->n_slopes; s++, set++) {
             bl_slope_design *sl = &d->slopes[s];
-            if (!(sl->regressor = bl_strdup(ss->regressor)) || !(sl->by = dup_strv(ss->by, ss->n_by))) goto nomem;
-            sl->n_by = ss->n_by;
-            for (size_t s2 = 0; s2 < s; s2++)
-                if (strcmp(d->slopes[s2].regressor, ss->regressor) == 0) {
-                    st = bl_error_set(err, BL_ERR_MODEL, "model '%s': parameter '%s': regressor '%s' has two slopes",
-                                      mname, pname, ss->regressor);
-                    goto fail;
-                }
-            int c = bl_table_find(trials->table, ss->regressor);
-            if (c < 0) {
-                st = bl_error_set(err, BL_ERR_MODEL,
-                                  "model '%s': parameter '%s': unknown regressor '%s' (neither a band nor a column of "
-                                  "the trial table)",
-                                  mname, pname, ss->regressor);
-                goto fail;
-            }
-            const bl_column *col = &trials->table->cols[c];
-            sl->x = malloc(n * sizeof *sl->x);
-            sl->x_orig = malloc(n * sizeof *sl->x_orig);
-            if (!sl->x || !sl->x_orig) goto nomem;
-            double ss2 = 0;
-            for (size_t k = 0; k < n; k++) {
-                double x = col->num[m->row[k]];
-                if (!isfinite(x)) {
-                    const char *txt = col->text[m->row[k]];
-                    st = bl_error_set(err, BL_ERR_MODEL,
-                                      "model '%s': parameter '%s': regressor '%s' is %s on trial %s of participant "
-                                      "'%s' (it must be a finite number on every fitted trial)",
-                                      mname, pname, ss->regressor, txt ? "not numeric" : "missing",
-                                      trials->trial_label ? trials->trial_label[m->row[k]] : "?",
-                                      trials->participants[trials->participant[m->row[k]]]);
-                    goto fail;
-                }
-                sl->x[k] = sl->x_orig[k] = x;
-                ss2 += x * x;
-            }
-            sl->rms = sqrt(ss2 / (double)n);
-            if (!(sl->rms > 0)) sl->rms = 1.0;
-            sl->first_coef = n_coef;
-            st = make_levels(m, trials, ss->by, ss->n_by, pname, &sl->level, &lev_names[n_lev_sets], &sl->n_levels,
-                             err);
-            if (st) goto fail;
-            lev_counts[n_lev_sets++] = sl->n_levels;
-            n_coef += sl->n_levels;
+            for (size_t l = 0; l < sl->n_levels; l++)
+                coef_entry(m, sl->first_coef + l, p, (int)s, sl->regressor, &ls->names[set][l]);
         }
     }
+    return BL_OK;
+}
+
+bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use,
+                         bl_model **out, bl_error *err)
+{
+    *out = NULL;
+    const char *mname = spec->name ? spec->name : "(unnamed)";
+    level_sets ls = {0};
+    bl_model *m = calloc(1, sizeof *m);
+    bl_status st = BL_OK;
+    if (!m || !(m->name = bl_strdup(mname))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", mname);
+        goto fail;
+    }
+    if ((st = select_trials(m, trials, use, err))) goto fail;
+    size_t max_sets = BL_NPARAM;
+    for (int p = 0; p < BL_NPARAM; p++) max_sets += spec->param[p].n_slopes;
+    ls.names = calloc(max_sets, sizeof *ls.names);
+    ls.counts = calloc(max_sets, sizeof *ls.counts);
+    if (!ls.names || !ls.counts) {
+        st = design_nomem(m, err);
+        goto fail;
+    }
+    size_t n_coef = 0;
+    for (bl_param p = 0; p < BL_NPARAM; p++)
+        if ((st = param_design(m, trials, &spec->param[p], p, &ls, &n_coef, err))) goto fail;
     if (n_coef == 0) {
         st = bl_error_set(err, BL_ERR_MODEL, "model '%s': every parameter is fixed; nothing to fit", mname);
         goto fail;
     }
-    m->n_coef = n_coef;
-    m->coef = calloc(n_coef, sizeof *m->coef);
-    m->level_text = calloc(n_coef, sizeof *m->level_text);
-    if (!m->coef || !m->level_text) goto nomem;
-    size_t set = 0;
-    for (int p = 0; p < BL_NPARAM; p++) {
-        bl_param_design *d = &m->par[p];
-        if (!d->is_free) continue;
-        for (size_t l = 0; l < d->n_levels; l++) {
-            size_t j = d->first_coef + l;
-            m->coef[j].param = p;
-            m->coef[j].slope = -1;
-            m->coef[j].term = "intercept";
-            m->level_text[j] = lev_names[set][l];
-            lev_names[set][l] = NULL;
-            m->coef[j].level = m->level_text[j];
-        }
-        set++;
-        for (size_t s = 0; s < d->n_slopes; s++) {
-            bl_slope_design *sl = &d->slopes[s];
-            for (size_t l = 0; l < sl->n_levels; l++) {
-                size_t j = sl->first_coef + l;
-                m->coef[j].param = p;
-                m->coef[j].slope = (int)s;
-                m->coef[j].term = sl->regressor;
-                m->level_text[j] = lev_names[set][l];
-                lev_names[set][l] = NULL;
-                m->coef[j].level = m->level_text[j];
-            }
-            set++;
-        }
-    }
-    for (size_t i = 0; i < n_lev_sets; i++) free_strv(lev_names[i], lev_counts[i]);
-    free(lev_names);
-    free(lev_counts);
-    lev_names = NULL;
-    lev_counts = NULL;
-    for (int p = 0; p < BL_NPARAM; p++)
+    if ((st = coef_table(m, n_coef, &ls, err))) goto fail;
+    level_sets_free(&ls);
+    for (bl_param p = 0; p < BL_NPARAM; p++)
         if (m->par[p].is_free && (st = check_rank(m, p, err))) goto fail;
     *out = m;
     return BL_OK;
-nomem:
-    st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", mname);
 fail:
-    if (lev_names)
-        for (size_t i = 0; i < n_lev_sets; i++) free_strv(lev_names[i], lev_counts[i]);
-    free(lev_names);
-    free(lev_counts);
+    level_sets_free(&ls);
     bl_model_destroy(m);
     return st;
 }
@@ -510,10 +551,11 @@ static void *dup_mem(const void *p, size_t n)
     return c;
 }
 
-bl_model *bl_model_copy(const bl_model *m)
+bl_status bl_model_copy(const bl_model *m, bl_model **out, bl_error *err)
 {
+    *out = NULL;
     bl_model *c = calloc(1, sizeof *c);
-    if (!c) return NULL;
+    if (!c) goto fail;
     size_t n = m->n;
     c->n = n;
     c->rt_lo = m->rt_lo;
@@ -560,25 +602,19 @@ bl_model *bl_model_copy(const bl_model *m)
     /* Coefficient terms point at the copy's own regressor names. */
     for (size_t j = 0; j < c->n_coef; j++)
         if (c->coef[j].slope >= 0) c->coef[j].term = c->par[c->coef[j].param].slopes[c->coef[j].slope].regressor;
-    return c;
+    *out = c;
+    return BL_OK;
 fail:
     bl_model_destroy(c);
-    return NULL;
+    return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory copying the design", m->name);
 }
 
-const char *bl_model_name(const bl_model *m) { return m->name; }
 size_t bl_model_n_coef(const bl_model *m) { return m->n_coef; }
 const bl_coef_info *bl_model_coef(const bl_model *m, size_t j) { return j < m->n_coef ? &m->coef[j] : NULL; }
 size_t bl_model_n_trials(const bl_model *m) { return m->n; }
 size_t bl_model_row(const bl_model *m, size_t k) { return m->row[k]; }
-int bl_model_link(const bl_model *m, int param) { return m->par[param].link; }
-int bl_model_param_free(const bl_model *m, int param) { return m->par[param].is_free; }
-size_t bl_model_n_slopes(const bl_model *m, int param) { return m->par[param].n_slopes; }
-const char *bl_model_slope_regressor(const bl_model *m, int param, size_t s)
-{
-    return s < m->par[param].n_slopes ? m->par[param].slopes[s].regressor : NULL;
-}
-size_t bl_model_intercept_index(const bl_model *m, int param, size_t k)
+int bl_model_param_free(const bl_model *m, bl_param param) { return m->par[param].is_free; }
+size_t bl_model_intercept_index(const bl_model *m, bl_param param, size_t k)
 {
     return m->par[param].first_coef + m->par[param].level[k];
 }
@@ -604,10 +640,10 @@ int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_
     return bl_model_params_valid(p);
 }
 
-bl_status bl_model_permute_slope(bl_model *m, int param, size_t s, const size_t *cell, gsl_rng *rng,
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, gsl_rng *rng,
                                  bl_error *err)
 {
-    if (param < 0 || param >= BL_NPARAM || s >= m->par[param].n_slopes)
+    if ((unsigned)param >= BL_NPARAM || s >= m->par[param].n_slopes)
         return bl_error_set(err, BL_ERR_INTERNAL, "model '%s': no slope %zu on parameter %d", m->name, s, param);
     bl_slope_design *sl = &m->par[param].slopes[s];
     size_t n = m->n, n_cells = 0;
@@ -654,63 +690,64 @@ void bl_model_restore_slopes(bl_model *m)
 }
 
 /* Column space of a's design for parameter p inside b's? Least squares residual of every column of
- * X_a on X_b (LAPACKE dgels). 1 yes, 0 no, -1 out of memory. */
-static int columns_inside(const bl_model *a, const bl_model *b, int p)
+ * X_a on X_b (LAPACKE dgels). *inside: 1 yes, 0 no. BL_ERR_NOMEM when memory ran out. */
+static bl_status columns_inside(const bl_model *a, const bl_model *b, bl_param p, int *inside, bl_error *err)
 {
     size_t ka, kb;
-    double *Xa = param_matrix(a, p, &ka), *Xb = param_matrix(b, p, &kb);
-    int inside = 0;
-    if (!Xa || !Xb) {
-        inside = -1;
-        goto done;
-    }
+    double *Xa = param_matrix(a, p, &ka), *Xb = param_matrix(b, p, &kb), *B = NULL;
+    bl_status st = BL_OK;
+    *inside = 0;
+    if (!Xa || !Xb) goto nomem;
     if (a->n != b->n || a->n < kb) goto done;
-    double *B = malloc(a->n * ka * sizeof *B);
-    if (!B) {
-        inside = -1;
-        goto done;
-    }
+    if (!(B = malloc(a->n * ka * sizeof *B))) goto nomem;
     memcpy(B, Xa, a->n * ka * sizeof *B);
     lapack_int info = LAPACKE_dgels(LAPACK_ROW_MAJOR, 'N', (lapack_int)a->n, (lapack_int)kb, (lapack_int)ka, Xb,
                                     (lapack_int)kb, B, (lapack_int)ka);
-    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) inside = -1;
+    if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) goto nomem;
     if (info == 0) {
-        inside = 1;
+        *inside = 1;
         for (size_t j = 0; j < ka; j++) {
             double rss = 0, tss = 0;
             for (size_t i = kb; i < a->n; i++) rss += B[i * ka + j] * B[i * ka + j];
             for (size_t i = 0; i < a->n; i++) tss += Xa[i * ka + j] * Xa[i * ka + j];
-            if (rss > 1e-16 * tss) inside = 0;
+            if (rss > 1e-16 * tss) *inside = 0;
         }
     }
-    free(B);
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking whether model '%s' is nested in '%s' (%s)", a->name,
+                      b->name, bl_param_name(p));
 done:
+    free(B);
     free(Xa);
     free(Xb);
-    return inside;
+    return st;
 }
 
-int bl_model_nested_in(const bl_model *a, const bl_model *b)
+bl_status bl_model_nested_in(const bl_model *a, const bl_model *b, int *nested, bl_error *err)
 {
-    if (a->n != b->n) return 0;
+    *nested = 0;
+    if (a->n != b->n) return BL_OK;
     for (size_t k = 0; k < a->n; k++)
-        if (a->row[k] != b->row[k]) return 0;
+        if (a->row[k] != b->row[k]) return BL_OK;
     for (int p = 0; p < BL_NPARAM; p++) {
         const bl_param_design *da = &a->par[p], *db = &b->par[p];
         if (!da->is_free && !db->is_free) {
-            if (da->fixed != db->fixed) return 0;
+            if (da->fixed != db->fixed) return BL_OK;
         } else if (da->is_free && !db->is_free) {
-            return 0;
+            return BL_OK;
         } else if (!da->is_free && db->is_free) {
             /* A fixed value is a constant on the link scale, which b's intercepts can take. */
-            if (db->link == BL_LINK_LOG && !(da->fixed > 0)) return 0;
+            if (db->link == BL_LINK_LOG && !(da->fixed > 0)) return BL_OK;
         } else {
-            if (da->link != db->link) return 0;
-            int inside = columns_inside(a, b, p);
-            if (inside <= 0) return inside;
+            if (da->link != db->link) return BL_OK;
+            int inside = 0;
+            bl_status st = columns_inside(a, b, p, &inside, err);
+            if (st || !inside) return st;
         }
     }
-    return 1;
+    *nested = 1;
+    return BL_OK;
 }
 
 bl_status bl_model_condition_cells(const bl_model *m, const bl_trials *trials, size_t **cell, size_t *n_cells,

@@ -30,7 +30,7 @@
 typedef struct bl_model bl_model;
 
 typedef struct {
-    int param;            /* bl_param index */
+    bl_param param;
     int slope;            /* -1 for an intercept, else the index of the slope within the parameter */
     const char *term;     /* "intercept" or the regressor name */
     const char *level;    /* "rich", "rich:easy" (values of the columns joined by ':'), "" when single */
@@ -40,59 +40,58 @@ typedef struct {
  * kept ones (NULL: every kept trial). Errors (BL_ERR_MODEL, message naming the model, the parameter
  * and the level or name): unknown regressor or column, a regressor missing or not numeric on a used
  * trial, no trials, a rank-deficient or collinear design (singular value test by LAPACKE SVD). */
-BL_API bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials,
-                                const unsigned char *use, bl_model **out, bl_error *err);
-BL_API void bl_model_destroy(bl_model *m);
-/* A deep copy (for permutation refits). NULL on allocation failure. */
-BL_API bl_model *bl_model_copy(const bl_model *m);
+bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials,
+                         const unsigned char *use, bl_model **out, bl_error *err);
+void bl_model_destroy(bl_model *m);
+/* A deep copy (for permutation refits). BL_ERR_NOMEM (*out NULL) when memory ran out. */
+bl_status bl_model_copy(const bl_model *m, bl_model **out, bl_error *err);
 
-BL_API const char *bl_model_name(const bl_model *m);
-BL_API size_t bl_model_n_coef(const bl_model *m);
-BL_API const bl_coef_info *bl_model_coef(const bl_model *m, size_t j);
-BL_API size_t bl_model_n_trials(const bl_model *m);
+size_t bl_model_n_coef(const bl_model *m);
+const bl_coef_info *bl_model_coef(const bl_model *m, size_t j);
+size_t bl_model_n_trials(const bl_model *m);
 /* Table row of used trial k. */
-BL_API size_t bl_model_row(const bl_model *m, size_t k);
-BL_API int bl_model_link(const bl_model *m, int param);          /* BL_LINK_IDENTITY or BL_LINK_LOG */
-BL_API int bl_model_param_free(const bl_model *m, int param);    /* 1 when the parameter has coefficients */
-BL_API size_t bl_model_n_slopes(const bl_model *m, int param);
-/* Regressor name of slope s of a parameter. */
-BL_API const char *bl_model_slope_regressor(const bl_model *m, int param, size_t s);
+size_t bl_model_row(const bl_model *m, size_t k);
+int bl_model_param_free(const bl_model *m, bl_param param);    /* 1 when the parameter has coefficients */
 
 /* Index of the intercept coefficient of `param` that used trial k falls in (param must be free). */
-BL_API size_t bl_model_intercept_index(const bl_model *m, int param, size_t k);
-/* 1 when model a is nested in model b: same trials, and for every parameter a's design spans a
- * subspace of b's on the same link (a fixed value counts as a constant b can take); 0 when not;
- * -1 when memory ran out. */
-BL_API int bl_model_nested_in(const bl_model *a, const bl_model *b);
+size_t bl_model_intercept_index(const bl_model *m, bl_param param, size_t k);
+/* *nested = 1 when model a is nested in model b: same trials, and for every parameter a's design
+ * spans a subspace of b's on the same link (a fixed value counts as a constant b can take); 0 when
+ * not. BL_ERR_NOMEM when memory ran out (*nested 0). */
+bl_status bl_model_nested_in(const bl_model *a, const bl_model *b, int *nested, bl_error *err);
 
 /* Predicted parameters of used trial k (drift already multiplied by the trial's stimulus sign, i.e.
  * drift toward the upper boundary). Returns 1 when valid, 0 when out of range (values still set). */
-BL_API int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_params *p);
+int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_params *p);
 
 /* Permutation support: shuffle the values of slope s of `param` among used trials within the cells
  * given by cell[k] (k = used trial), with a Fisher-Yates shuffle per cell driven by `rng`. */
-BL_API bl_status bl_model_permute_slope(bl_model *m, int param, size_t s, const size_t *cell,
-                                        gsl_rng *rng, bl_error *err);
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell,
+                                 gsl_rng *rng, bl_error *err);
 /* Restore all slope values to the unshuffled design. */
-BL_API void bl_model_restore_slopes(bl_model *m);
+void bl_model_restore_slopes(bl_model *m);
 
 /* Summed log-likelihood workspace. Trials are evaluated in fixed blocks of 64; partial sums are added
  * in block order, so the result is bit-identical for any thread count. threads <= 0: OpenMP default.
  * Fewer than 1,024 trials are evaluated on one thread. */
 typedef struct bl_likelihood bl_likelihood;
-BL_API bl_likelihood *bl_likelihood_create(const bl_model *m, int threads);
-BL_API void bl_likelihood_destroy(bl_likelihood *w);
-/* How trials are spread over threads: -1 (default) measures both ways on a few evaluations and
- * keeps the faster, re-measuring every 64 evaluations (less often while one thread keeps winning) (fork-join can lose on a busy machine);
- * 0 always one thread; 1 always `threads` threads (even below 1,024 trials). Results are the same. */
-BL_API void bl_likelihood_set_parallel(bl_likelihood *w, int mode);
+/* BL_ERR_NOMEM (*out NULL) when memory ran out. The workspace keeps a pointer to `m`. */
+bl_status bl_likelihood_create(const bl_model *m, int threads, bl_likelihood **out, bl_error *err);
+void bl_likelihood_destroy(bl_likelihood *w);
+/* How one likelihood's trials are spread over threads (the one encoding of this choice, used by the
+ * workspace and by bl_fit_options.parallel_trials). Results are the same bytes in every mode.
+ * AUTO (the default, 0): measure both ways on a few evaluations and keep the faster, re-measuring
+ *   every 64 evaluations (less often while one thread keeps winning): fork-join can lose on a busy
+ *   machine; fewer than 1,024 trials stay on one thread.
+ * SPLIT: always `threads` threads (even below 1,024 trials).
+ * UNSPLIT: always one thread. */
+typedef enum { BL_PARALLEL_AUTO = 0, BL_PARALLEL_SPLIT, BL_PARALLEL_UNSPLIT } bl_parallel_mode;
+void bl_likelihood_set_parallel(bl_likelihood *w, bl_parallel_mode mode);
 /* Total log-likelihood at `coef` (n_coef values); `grad` (may be NULL) receives d/dcoef. Returns
  * -INFINITY (gradient zeroed) when the point is infeasible. Counts evaluations. */
-BL_API double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad);
+double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad);
 /* Per-trial log-likelihood (n_trials values) at `coef`; returns the total (or -INFINITY). */
-BL_API double bl_likelihood_trials(bl_likelihood *w, const double *coef, double *trial_ll);
-BL_API size_t bl_likelihood_evaluations(const bl_likelihood *w);
-/* The model the workspace evaluates (the workspace sees later permutations of its slopes). */
-BL_API const bl_model *bl_likelihood_model(const bl_likelihood *w);
+double bl_likelihood_trials(bl_likelihood *w, const double *coef, double *trial_ll);
+size_t bl_likelihood_evaluations(const bl_likelihood *w);
 
 #endif

@@ -491,7 +491,8 @@ static void param_free(bl_param_spec *p)
     memset(p, 0, sizeof *p);
 }
 
-static int param_copy(bl_param_spec *d, const bl_param_spec *src)
+/* A deep copy of a parameter spec (for `extends`); partial copies are freed by param_free. */
+static bl_status param_copy(ctx *c, bl_param_spec *d, const bl_param_spec *src)
 {
     int ok;
     *d = *src;
@@ -499,19 +500,19 @@ static int param_copy(bl_param_spec *d, const bl_param_spec *src)
     d->slopes = NULL;
     d->n_per = d->n_slopes = 0;
     d->per = copy_strings(src->per, src->n_per, &ok);
-    if (!ok) return 0;
+    if (!ok) return nomem(c);
     d->n_per = src->n_per;
     if (src->n_slopes) {
-        if (!(d->slopes = calloc(src->n_slopes, sizeof *d->slopes))) return 0;
+        if (!(d->slopes = calloc(src->n_slopes, sizeof *d->slopes))) return nomem(c);
         for (size_t i = 0; i < src->n_slopes; i++) {
             d->n_slopes = i + 1;
-            if (!(d->slopes[i].regressor = bl_strdup(src->slopes[i].regressor))) return 0;
+            if (!(d->slopes[i].regressor = bl_strdup(src->slopes[i].regressor))) return nomem(c);
             d->slopes[i].by = copy_strings(src->slopes[i].by, src->slopes[i].n_by, &ok);
-            if (!ok) return 0;
+            if (!ok) return nomem(c);
             d->slopes[i].n_by = src->slopes[i].n_by;
         }
     }
-    return 1;
+    return BL_OK;
 }
 
 static void param_default(bl_param_spec *p, int which)
@@ -632,7 +633,7 @@ static bl_status resolve_model(ctx *c, bl_study *s, model_job *jobs, size_t i)
         if ((st = resolve_model(c, s, jobs, b))) return st;
         for (int p = 0; p < BL_NPARAM; p++) {
             param_free(&m->param[p]);
-            if (!param_copy(&m->param[p], &s->models[b].param[p])) return nomem(c);
+            if ((st = param_copy(c, &m->param[p], &s->models[b].param[p]))) return st;
         }
     } else {
         for (int p = 0; p < BL_NPARAM; p++) param_default(&m->param[p], p);
@@ -826,15 +827,19 @@ static cJSON *num_or_null(double x)
     return isfinite(x) ? cJSON_CreateNumber(x) : cJSON_CreateNull();
 }
 
-char *bl_study_to_json(const bl_study *s)
+bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
 {
+    *out = NULL;
     static const char *const aligns[] = {"onset", "response"};
     static const char *const detrends[] = {"mean", "linear", "none"};
     static const char *const scales[] = {"linear", "log10", "db"};
     static const char *const stds[] = {"none", "participant", "participant_condition"};
     static const char *const links[] = {"default", "identity", "log"};
+    /* Failures counted while this document is built (not since the program started: one earlier
+     * transient failure must not make every later call fail). */
+    unsigned long failures_before = bl_json_alloc_failures();
     cJSON *root = cJSON_CreateObject();
-    if (!root) return NULL;
+    if (!root) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the study as JSON");
     cJSON *t = cJSON_AddObjectToObject(root, "trials");
     cJSON_AddStringToObject(t, "file", s->trials.file);
     cJSON_AddStringToObject(t, "participant", s->trials.participant);
@@ -909,13 +914,13 @@ char *bl_study_to_json(const bl_study *s)
         }
     }
     cJSON_AddStringToObject(root, "output", s->output);
-    char *txt = bl_json_alloc_failures() ? NULL : cJSON_Print(root);
+    char *txt = bl_json_alloc_failures() != failures_before ? NULL : cJSON_Print(root);
     cJSON_Delete(root);
-    if (!txt) return NULL;
     /* cJSON_Print allocates with its hooks (malloc by default); hand back a plain malloc'd copy */
-    char *copy = bl_strdup(txt);
+    *out = txt ? bl_strdup(txt) : NULL;
     cJSON_free(txt);
-    return copy;
+    if (!*out) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the study as JSON");
+    return BL_OK;
 }
 
 void bl_study_destroy(bl_study *s)

@@ -45,6 +45,8 @@ typedef struct {
 typedef enum { BL_SCALE_LINEAR = 0, BL_SCALE_LOG10, BL_SCALE_DB } bl_scale;
 typedef enum { BL_STANDARDIZE_NONE = 0, BL_STANDARDIZE_PARTICIPANT, BL_STANDARDIZE_PARTICIPANT_CONDITION } bl_standardize;
 typedef enum { BL_ALIGN_ONSET = 0, BL_ALIGN_RESPONSE } bl_align;
+/* What each Welch segment loses before the taper: its mean (scipy's detrend='constant'), its
+ * least-squares line, or nothing. The one detrend type: spectrum.h takes it as it is. */
 typedef enum { BL_DETREND_MEAN = 0, BL_DETREND_LINEAR, BL_DETREND_NONE } bl_detrend;
 typedef enum { BL_PARTICIPANTS_POOLED = 0, BL_PARTICIPANTS_SEPARATE } bl_participants_mode;
 
@@ -108,10 +110,11 @@ typedef struct bl_study {
     char *output;                 /* resolved results folder */
 } bl_study;
 
-BL_API bl_status bl_study_load(const char *path, bl_study **out, bl_error *err);
-BL_API bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_error *err);
-/* The study as parsed, defaults filled in, as a JSON string (caller frees with free()). */
-BL_API char *bl_study_to_json(const bl_study *study);
-BL_API void bl_study_destroy(bl_study *study);
+bl_status bl_study_load(const char *path, bl_study **out, bl_error *err);
+bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_error *err);
+/* The study as parsed, defaults filled in, as a JSON string *out (caller frees with free()).
+ * BL_ERR_NOMEM (*out NULL) when memory ran out. */
+bl_status bl_study_to_json(const bl_study *study, char **out, bl_error *err);
+void bl_study_destroy(bl_study *study);
 
 #endif

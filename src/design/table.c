@@ -8,17 +8,18 @@
 #include <stdlib.h>
 #include <string.h>
 
-bl_table *bl_table_create(size_t n_rows)
+bl_status bl_table_create(size_t n_rows, bl_table **out, bl_error *err)
 {
     bl_table *t = calloc(1, sizeof *t);
-    if (!t) return NULL;
-    t->n_rows = n_rows;
-    t->line = calloc(n_rows ? n_rows : 1, sizeof *t->line);
-    if (!t->line) {
+    if (t) t->line = calloc(n_rows ? n_rows : 1, sizeof *t->line);
+    if (!t || !t->line) {
         free(t);
-        return NULL;
+        *out = NULL;
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory for a table of %zu rows", n_rows);
     }
-    return t;
+    t->n_rows = n_rows;
+    *out = t;
+    return BL_OK;
 }
 
 int bl_table_find(const bl_table *t, const char *name)
@@ -143,82 +144,200 @@ static void row_clear(row_buf *r)
     r->n = 0;
 }
 
-/* Read one record starting at *pos. Returns 1 with a record, 0 at end of data, -1 on error. */
-static int read_record(const char *d, size_t size, size_t *pos, size_t *line, char delim, row_buf *r,
-                       char **scratch, size_t *scratch_cap, const char *name, bl_error *err, int *nomem)
+/* The state of one table being read: the input, the record being read, and the cells read so far
+ * (row-major, moved into columns at the end). */
+typedef struct {
+    const char *data, *name;
+    size_t size, pos, line;
+    char delim;
+    row_buf r;
+    char *scratch;                 /* a quoted field as unquoted */
+    size_t scratch_cap;
+    char **names;                  /* header */
+    size_t n_cols;
+    char **cells;
+    size_t n_rows, cap_rows;
+    size_t *lines;                 /* source line of each row */
+} table_reader;
+
+static bl_status reader_nomem(const table_reader *tr, bl_error *err)
 {
-    size_t p = *pos;
-    if (p >= size) return 0;
-    size_t line_start = p;
-    size_t rec_line = *line;
+    return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory reading the table", tr->name);
+}
+
+static void reader_free(table_reader *tr)
+{
+    row_clear(&tr->r);
+    free(tr->r.cells);
+    free(tr->r.col);
+    free(tr->scratch);
+    if (tr->names)
+        for (size_t j = 0; j < tr->n_cols; j++) free(tr->names[j]);
+    free(tr->names);
+    if (tr->cells)
+        for (size_t k = 0; k < tr->n_rows * tr->n_cols; k++) free(tr->cells[k]);
+    free(tr->cells);
+    free(tr->lines);
+}
+
+/* One quoted field starting at the quote at *p, unquoted into the scratch buffer and pushed. */
+static bl_status read_quoted(table_reader *tr, size_t *p, size_t *line_start, size_t col, bl_error *err)
+{
+    const char *d = tr->data;
+    size_t size = tr->size, qline = tr->line, len = 0;
+    (*p)++;
     for (;;) {
-        size_t len = 0;
-        size_t col = p - line_start + 1;
-        if (p < size && d[p] == '"') {
-            size_t qline = *line, qcol = col;
-            p++;
-            for (;;) {
-                if (p >= size) {
-                    bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: quoted field is never closed", name, qline, qcol);
-                    return -1;
-                }
-                char ch = d[p];
-                if (ch == '"') {
-                    if (p + 1 < size && d[p + 1] == '"') {
-                        p += 2;
-                        ch = '"';
-                    } else {
-                        p++;
-                        break;
-                    }
-                } else {
-                    if (ch == '\n') {
-                        (*line)++;
-                        line_start = p + 1;
-                    }
-                    p++;
-                }
-                if (len + 1 >= *scratch_cap) {
-                    size_t cap = *scratch_cap ? 2 * *scratch_cap : 256;
-                    char *s = realloc(*scratch, cap);
-                    if (!s) {
-                        *nomem = 1;
-                        return -1;
-                    }
-                    *scratch = s;
-                    *scratch_cap = cap;
-                }
-                (*scratch)[len++] = ch;
-            }
-            if (p < size && d[p] != delim && d[p] != '\n' && d[p] != '\r') {
-                bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: unexpected text after a closing quote", name, *line,
-                             p - line_start + 1);
-                return -1;
-            }
-            if (!row_push(r, *scratch, len, qcol)) {
-                *nomem = 1;
-                return -1;
+        if (*p >= size)
+            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: quoted field is never closed", tr->name, qline, col);
+        char ch = d[*p];
+        if (ch == '"') {
+            if (*p + 1 < size && d[*p + 1] == '"') {
+                *p += 2;
+            } else {
+                (*p)++;
+                break;
             }
         } else {
-            size_t start = p;
-            while (p < size && d[p] != delim && d[p] != '\n' && d[p] != '\r') p++;
-            if (!row_push(r, d + start, p - start, col)) {
-                *nomem = 1;
-                return -1;
+            if (ch == '\n') {
+                tr->line++;
+                *line_start = *p + 1;
             }
+            (*p)++;
         }
-        if (p < size && d[p] == delim) {
+        if (len + 1 >= tr->scratch_cap) {
+            size_t cap = tr->scratch_cap ? 2 * tr->scratch_cap : 256;
+            char *s = realloc(tr->scratch, cap);
+            if (!s) return reader_nomem(tr, err);
+            tr->scratch = s;
+            tr->scratch_cap = cap;
+        }
+        tr->scratch[len++] = ch;
+    }
+    if (*p < size && d[*p] != tr->delim && d[*p] != '\n' && d[*p] != '\r')
+        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: unexpected text after a closing quote", tr->name, tr->line,
+                            *p - *line_start + 1);
+    if (!row_push(&tr->r, tr->scratch, len, col)) return reader_nomem(tr, err);
+    return BL_OK;
+}
+
+/* Read one record at tr->pos into tr->r: *got = 1 with a record, 0 at the end of the data. */
+static bl_status read_record(table_reader *tr, int *got, bl_error *err)
+{
+    const char *d = tr->data;
+    size_t size = tr->size, p = tr->pos;
+    *got = 0;
+    if (p >= size) return BL_OK;
+    size_t line_start = p;
+    for (;;) {
+        size_t col = p - line_start + 1;
+        if (p < size && d[p] == '"') {
+            bl_status st = read_quoted(tr, &p, &line_start, col, err);
+            if (st) return st;
+        } else {
+            size_t start = p;
+            while (p < size && d[p] != tr->delim && d[p] != '\n' && d[p] != '\r') p++;
+            if (!row_push(&tr->r, d + start, p - start, col)) return reader_nomem(tr, err);
+        }
+        if (p < size && d[p] == tr->delim) {
             p++;
             continue;
         }
         if (p < size && d[p] == '\r') p++;
         if (p < size && d[p] == '\n') p++;
-        (*line)++;
+        tr->line++;
         break;
     }
-    (void)rec_line;
-    *pos = p;
-    return 1;
+    tr->pos = p;
+    *got = 1;
+    return BL_OK;
+}
+
+static void skip_blank_lines(table_reader *tr)
+{
+    while (tr->pos < tr->size && (tr->data[tr->pos] == '\n' || tr->data[tr->pos] == '\r')) {
+        if (tr->data[tr->pos] == '\n') tr->line++;
+        tr->pos++;
+    }
+}
+
+/* The header: named, distinct columns (trailing spaces dropped). The delimiter is a tab when the
+ * header line has one, else a comma. */
+static bl_status read_header(table_reader *tr, bl_error *err)
+{
+    if (tr->size >= 3 && (unsigned char)tr->data[0] == 0xEF && (unsigned char)tr->data[1] == 0xBB &&
+        (unsigned char)tr->data[2] == 0xBF)
+        tr->pos = 3;
+    if (memchr(tr->data, '\0', tr->size))
+        return bl_error_set(err, BL_ERR_INPUT, "%s: not a text table (contains a NUL byte)", tr->name);
+    skip_blank_lines(tr);
+    if (tr->pos >= tr->size) return bl_error_set(err, BL_ERR_INPUT, "%s: the table is empty (no header row)", tr->name);
+    tr->delim = ',';
+    for (size_t p = tr->pos; p < tr->size && tr->data[p] != '\n'; p++)
+        if (tr->data[p] == '\t') {
+            tr->delim = '\t';
+            break;
+        }
+    size_t header_line = tr->line;
+    int got = 0;
+    bl_status st = read_record(tr, &got, err);
+    if (st) return st;
+    row_buf *r = &tr->r;
+    for (size_t j = 0; j < r->n; j++) {
+        char *c = r->cells[j];
+        size_t l = strlen(c);
+        while (l && (c[l - 1] == ' ')) c[--l] = '\0';
+        if (!c[0])
+            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: header column %zu has no name", tr->name, header_line,
+                                r->col[j], j + 1);
+        for (size_t k = 0; k < j; k++)
+            if (strcmp(r->cells[k], c) == 0)
+                return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: column name \"%s\" appears twice in the header",
+                                    tr->name, header_line, r->col[j], c);
+    }
+    tr->n_cols = r->n;
+    tr->names = r->cells;
+    r->cells = NULL;
+    free(r->col);
+    r->col = NULL;
+    r->n = r->cap = 0;
+    return BL_OK;
+}
+
+/* Every record after the header, as many fields as the header; missing cells become NULL. */
+static bl_status read_rows(table_reader *tr, bl_error *err)
+{
+    size_t n_cols = tr->n_cols;
+    for (;;) {
+        skip_blank_lines(tr);
+        size_t rec_line = tr->line;
+        int got = 0;
+        bl_status st = read_record(tr, &got, err);
+        if (st) return st;
+        if (!got) return BL_OK;
+        if (tr->r.n != n_cols)
+            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: expected %zu fields (as in the header), found %zu", tr->name,
+                                rec_line, n_cols, tr->r.n);
+        if (tr->n_rows == tr->cap_rows) {
+            size_t cap = tr->cap_rows ? 2 * tr->cap_rows : 256;
+            char **nc = realloc(tr->cells, cap * n_cols * sizeof *nc);
+            if (!nc) return reader_nomem(tr, err);
+            tr->cells = nc;
+            size_t *nl = realloc(tr->lines, cap * sizeof *nl);
+            if (!nl) return reader_nomem(tr, err);
+            tr->lines = nl;
+            tr->cap_rows = cap;
+        }
+        for (size_t j = 0; j < n_cols; j++) {
+            char *c = tr->r.cells[j];
+            if (is_missing(c)) {
+                free(c);
+                c = NULL;
+            }
+            tr->cells[tr->n_rows * n_cols + j] = c;
+        }
+        tr->lines[tr->n_rows++] = rec_line;
+        tr->r.n = 0;
+    }
 }
 
 static int parse_number(const char *s, double *out)
@@ -236,129 +355,28 @@ static int parse_number(const char *s, double *out)
     return 1;
 }
 
-bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_table **out, bl_error *err)
+/* The cells read, moved into columns; a column is numeric when every present cell is a number. */
+static bl_status make_columns(table_reader *tr, bl_table **out, bl_error *err)
 {
-    *out = NULL;
-    size_t pos = 0, line = 1;
-    if (size >= 3 && (unsigned char)data[0] == 0xEF && (unsigned char)data[1] == 0xBB &&
-        (unsigned char)data[2] == 0xBF)
-        pos = 3;
-    if (memchr(data, '\0', size))
-        return bl_error_set(err, BL_ERR_INPUT, "%s: not a text table (contains a NUL byte)", name);
-    /* skip blank lines before the header */
-    while (pos < size && (data[pos] == '\n' || data[pos] == '\r')) {
-        if (data[pos] == '\n') line++;
-        pos++;
-    }
-    if (pos >= size) return bl_error_set(err, BL_ERR_INPUT, "%s: the table is empty (no header row)", name);
-    char delim = ',';
-    for (size_t p = pos; p < size && data[p] != '\n'; p++)
-        if (data[p] == '\t') {
-            delim = '\t';
-            break;
-        }
-
-    bl_status st = BL_OK;
-    row_buf r = {0};
-    char *scratch = NULL;
-    size_t scratch_cap = 0;
-    int nomem = 0;
+    size_t n_rows = tr->n_rows, n_cols = tr->n_cols;
     bl_table *t = NULL;
-    char **names = NULL;
-    size_t n_cols = 0;
-    /* cells stored row-major while reading, then moved into columns */
-    char **cells = NULL;
-    size_t n_rows = 0, cap_rows = 0;
-    size_t *lines = NULL;
-
-    size_t header_line = line;
-    if (read_record(data, size, &pos, &line, delim, &r, &scratch, &scratch_cap, name, err, &nomem) < 0) goto fail;
-    n_cols = r.n;
-    for (size_t j = 0; j < n_cols; j++) {
-        char *c = r.cells[j];
-        size_t l = strlen(c);
-        while (l && (c[l - 1] == ' ')) c[--l] = '\0';
-        if (!c[0]) {
-            st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: header column %zu has no name", name, header_line,
-                              r.col[j], j + 1);
-            goto fail_set;
-        }
-        for (size_t k = 0; k < j; k++)
-            if (strcmp(r.cells[k], c) == 0) {
-                st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: column name \"%s\" appears twice in the header",
-                                  name, header_line, r.col[j], c);
-                goto fail_set;
-            }
-    }
-    names = r.cells;
-    r.cells = NULL;
-    free(r.col);
-    r.col = NULL;
-    r.n = r.cap = 0;
-
-    for (;;) {
-        /* skip blank lines */
-        while (pos < size && (data[pos] == '\n' || data[pos] == '\r')) {
-            if (data[pos] == '\n') line++;
-            pos++;
-        }
-        size_t rec_line = line;
-        int got = read_record(data, size, &pos, &line, delim, &r, &scratch, &scratch_cap, name, err, &nomem);
-        if (got < 0) goto fail;
-        if (got == 0) break;
-        if (r.n != n_cols) {
-            st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: expected %zu fields (as in the header), found %zu", name,
-                              rec_line, n_cols, r.n);
-            goto fail_set;
-        }
-        if (n_rows == cap_rows) {
-            cap_rows = cap_rows ? 2 * cap_rows : 256;
-            char **nc = realloc(cells, cap_rows * n_cols * sizeof *nc);
-            size_t *nl = nc ? realloc(lines, cap_rows * sizeof *nl) : NULL;
-            if (nc) cells = nc;
-            if (!nc || !nl) {
-                nomem = 1;
-                goto fail;
-            }
-            lines = nl;
-        }
-        for (size_t j = 0; j < n_cols; j++) {
-            char *c = r.cells[j];
-            if (is_missing(c)) {
-                free(c);
-                c = NULL;
-            }
-            cells[n_rows * n_cols + j] = c;
-        }
-        lines[n_rows++] = rec_line;
-        r.n = 0;
-    }
-
-    if (!(t = bl_table_create(n_rows))) {
-        nomem = 1;
-        goto fail;
-    }
-    if (!(t->path = bl_strdup(name)) || !(t->cols = calloc(n_cols ? n_cols : 1, sizeof *t->cols))) {
-        nomem = 1;
-        goto fail;
-    }
-    for (size_t i = 0; i < n_rows; i++) t->line[i] = lines[i];
+    if (bl_table_create(n_rows, &t, NULL) || !(t->path = bl_strdup(tr->name)) ||
+        !(t->cols = calloc(n_cols ? n_cols : 1, sizeof *t->cols)))
+        goto nomem;
+    for (size_t i = 0; i < n_rows; i++) t->line[i] = tr->lines[i];
     for (size_t j = 0; j < n_cols; j++) {
         bl_column *c = &t->cols[j];
         t->n_cols = j + 1;
-        c->name = names[j];
-        names[j] = NULL;
+        c->name = tr->names[j];
+        tr->names[j] = NULL;
         c->num = malloc((n_rows ? n_rows : 1) * sizeof *c->num);
         c->text = calloc(n_rows ? n_rows : 1, sizeof *c->text);
-        if (!c->num || !c->text) {
-            nomem = 1;
-            goto fail;
-        }
+        if (!c->num || !c->text) goto nomem;
         c->numeric = 1;
         size_t present = 0;
         for (size_t i = 0; i < n_rows; i++) {
-            c->text[i] = cells[i * n_cols + j];
-            cells[i * n_cols + j] = NULL;
+            c->text[i] = tr->cells[i * n_cols + j];
+            tr->cells[i * n_cols + j] = NULL;
             c->num[i] = NAN;
             if (!c->text[i]) continue;
             present++;
@@ -368,32 +386,22 @@ bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_tab
             for (size_t i = 0; i < n_rows; i++) c->num[i] = NAN;
         if (present == 0) c->numeric = 0;
     }
-    free(names);
-    free(cells);
-    free(lines);
-    free(scratch);
-    free(r.cells);
-    free(r.col);
     *out = t;
     return BL_OK;
-
-fail:
-    if (nomem) st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory reading the table", name);
-    else st = err ? err->status : BL_ERR_INPUT;
-fail_set:
-    row_clear(&r);
-    free(r.cells);
-    free(r.col);
-    free(scratch);
-    if (names)
-        for (size_t j = 0; j < n_cols; j++) free(names[j]);
-    free(names);
-    if (cells)
-        for (size_t k = 0; k < n_rows * n_cols; k++) free(cells[k]);
-    free(cells);
-    free(lines);
+nomem:
     bl_table_destroy(t);
-    return st ? st : BL_ERR_INPUT;
+    return reader_nomem(tr, err);
+}
+
+bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_table **out, bl_error *err)
+{
+    *out = NULL;
+    table_reader tr = {.data = data, .name = name, .size = size, .line = 1};
+    bl_status st = read_header(&tr, err);
+    if (!st) st = read_rows(&tr, err);
+    if (!st) st = make_columns(&tr, out, err);
+    reader_free(&tr);
+    return st;
 }
 
 bl_status bl_table_read(const char *path, bl_table **out, bl_error *err)

@@ -63,9 +63,10 @@ void bl_trials_exclude(bl_trials *t, size_t i, const char *reason)
     t->n_kept--;
 }
 
-size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
+bl_status bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out, size_t *n_out, bl_error *err)
 {
     *out = NULL;
+    *n_out = 0;
     size_t n = 0;
     bl_exclusion_count *c = NULL;
     for (size_t i = 0; i < t->n; i++) {
@@ -77,7 +78,7 @@ size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
             bl_exclusion_count *nc = realloc(c, (n + 1) * sizeof *nc);
             if (!nc) {
                 free(c);
-                return BL_EXCLUSION_COUNTS_NOMEM;
+                return bl_error_set(err, BL_ERR_NOMEM, "out of memory counting exclusion reasons");
             }
             c = nc;
             c[n].reason = r;
@@ -87,7 +88,8 @@ size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
         c[k].count++;
     }
     *out = c;
-    return n;
+    *n_out = n;
+    return BL_OK;
 }
 
 /* qsort has no context argument in C11; loading is not done from several threads at once on one table,
@@ -100,6 +102,176 @@ static int cmp_trial(const void *a, const void *b)
     const bl_trials *t = sort_trials;
     if (t->participant[i] != t->participant[j]) return t->participant[i] < t->participant[j] ? -1 : 1;
     return strcmp(t->trial_label[i], t->trial_label[j]);
+}
+
+/* Column indices of the trial table that the study names (-1: not used). */
+typedef struct {
+    int part, rt, resp, stim, trial, onset;
+} trial_columns;
+
+/* Every column the study names must exist, and no band may write over a column of the table. */
+static bl_status find_columns(const struct bl_study *study, const bl_table *tab, trial_columns *c, bl_error *err)
+{
+    bl_status st;
+    int dummy;
+    c->stim = c->trial = c->onset = -1;
+    if ((st = need_column(tab, study->trials.participant, "trials.participant", &c->part, err))) return st;
+    if ((st = need_column(tab, study->trials.rt, "trials.rt", &c->rt, err))) return st;
+    if ((st = need_column(tab, study->trials.response, "trials.response", &c->resp, err))) return st;
+    if (study->trials.stimulus && (st = need_column(tab, study->trials.stimulus, "trials.stimulus", &c->stim, err)))
+        return st;
+    if (study->trials.trial_given) {
+        if ((st = need_column(tab, study->trials.trial, "trials.trial", &c->trial, err))) return st;
+    } else if (study->trials.trial) {
+        c->trial = bl_table_find(tab, study->trials.trial);
+    }
+    if (study->has_recordings && (st = need_column(tab, study->recordings.onset, "recordings.onset", &c->onset, err)))
+        return st;
+    for (size_t k = 0; k < study->power.n_condition; k++)
+        if ((st = need_column(tab, study->power.condition[k], "power.condition", &dummy, err))) return st;
+    for (size_t b = 0; study->has_power && b < study->power.n_bands; b++) {
+        const char *bn = study->power.bands[b].name;
+        char pn[300];
+        snprintf(pn, sizeof pn, "%s_power", bn);
+        if (bl_table_find(tab, bn) >= 0 || bl_table_find(tab, pn) >= 0)
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s:1: the table already has a column \"%s\" or \"%s\", which band \"%s\" "
+                                "(power.bands.%s) would write; rename the band or the column",
+                                tab->path, bn, pn, bn, bn);
+    }
+    return BL_OK;
+}
+
+/* Participant index and trial label of row i (count[k]: rows of participant k so far). */
+static bl_status code_participant(bl_trials *t, const trial_columns *c, size_t i, size_t *count, bl_error *err)
+{
+    const bl_table *tab = t->table;
+    const bl_column *part = &tab->cols[c->part];
+    const char *p = part->text[i];
+    if (!p)
+        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.participant) is missing",
+                            tab->path, tab->line[i], part->name, c->part + 1);
+    size_t k = 0;
+    while (k < t->n_participants && strcmp(t->participants[k], p) != 0) k++;
+    if (k == t->n_participants) {
+        if (!(t->participants[k] = bl_strdup(p))) return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
+        t->n_participants++;
+    }
+    t->participant[i] = k;
+    count[k]++;
+    if (c->trial >= 0 && tab->cols[c->trial].text[i]) {
+        t->trial_label[i] = bl_strdup(tab->cols[c->trial].text[i]);
+    } else {
+        char buf[32];
+        snprintf(buf, sizeof buf, "%zu", count[k]);
+        t->trial_label[i] = bl_strdup(buf);
+    }
+    if (!t->trial_label[i]) return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
+    return BL_OK;
+}
+
+/* RT (seconds), choice, stimulus sign and exclusion reasons of row i. */
+static bl_status code_response(const struct bl_study *study, bl_trials *t, const trial_columns *c, size_t i,
+                               size_t *n_upper_rows, bl_error *err)
+{
+    const bl_table *tab = t->table;
+    const bl_column *rtc = &tab->cols[c->rt], *resp = &tab->cols[c->resp];
+    t->drift_sign[i] = 1;
+    t->rt[i] = NAN;
+    const char *r = rtc->text[i];
+    if (!r) {
+        bl_trials_exclude(t, i, "missing rt");
+    } else {
+        double x;
+        if (!to_number(r, &x))
+            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.rt): '%s' is not a number",
+                                tab->path, tab->line[i], rtc->name, c->rt + 1, r);
+        if (x < 0)
+            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.rt): negative response time %s",
+                                tab->path, tab->line[i], rtc->name, c->rt + 1, r);
+        t->rt[i] = study->trials.rt_in_ms ? x / 1000.0 : x;
+    }
+    const char *v = resp->text[i];
+    if (!v) {
+        bl_trials_exclude(t, i, "missing response");
+    } else {
+        t->upper[i] = value_in(v, study->trials.upper, study->trials.n_upper);
+        *n_upper_rows += (size_t)t->upper[i];
+    }
+    if (c->stim >= 0) {
+        const char *s = tab->cols[c->stim].text[i];
+        if (!s) bl_trials_exclude(t, i, "missing stimulus");
+        else t->drift_sign[i] = value_in(s, study->trials.upper, study->trials.n_upper) ? 1 : -1;
+    }
+    if (!isnan(t->rt[i])) {
+        if (!isnan(study->trials.rt_min) && t->rt[i] < study->trials.rt_min) bl_trials_exclude(t, i, "rt < keep.rt_min");
+        if (!isnan(study->trials.rt_max) && t->rt[i] > study->trials.rt_max) bl_trials_exclude(t, i, "rt > keep.rt_max");
+    }
+    if (c->onset >= 0 && !tab->cols[c->onset].text[i]) bl_trials_exclude(t, i, "missing onset");
+    return BL_OK;
+}
+
+/* More than two distinct response values usually means the wrong column or coding. */
+static void warn_response_values(const bl_table *tab, const bl_column *resp, bl_warnings *warn)
+{
+    const char *seen[3];
+    size_t n_seen = 0;
+    for (size_t i = 0; i < tab->n_rows && n_seen < 3; i++) {
+        const char *v = resp->text[i];
+        if (!v) continue;
+        size_t k = 0;
+        while (k < n_seen && strcmp(seen[k], v) != 0) k++;
+        if (k == n_seen) seen[n_seen++] = v;
+    }
+    if (n_seen > 2)
+        bl_warnings_add(warn, "%s: column %s has more than two values (%s, %s, %s, ...); every value not listed in "
+                        "trials.upper is coded as the lower boundary", tab->path, resp->name, seen[0], seen[1], seen[2]);
+}
+
+/* The same trial label twice within a participant makes power.csv and trials.csv ambiguous. */
+static void warn_repeated_labels(const bl_trials *t, bl_warnings *warn)
+{
+    const bl_table *tab = t->table;
+    size_t n = t->n;
+    size_t *idx = malloc(n * sizeof *idx);
+    if (!idx) return;
+    for (size_t i = 0; i < n; i++) idx[i] = i;
+    sort_trials = t;
+    qsort(idx, n, sizeof *idx, cmp_trial);
+    size_t dup = 0;
+    for (size_t k = 1; k < n; k++)
+        if (cmp_trial(&idx[k - 1], &idx[k]) == 0 && dup++ == 0)
+            bl_warnings_add(warn, "%s: participant %s has trial %s twice (lines %zu and %zu)", tab->path,
+                            t->participants[t->participant[idx[k]]], t->trial_label[idx[k]],
+                            tab->line[idx[k - 1] < idx[k] ? idx[k - 1] : idx[k]],
+                            tab->line[idx[k - 1] < idx[k] ? idx[k] : idx[k - 1]]);
+    if (dup > 1) bl_warnings_add(warn, "%s: %zu more repeated trial labels", tab->path, dup - 1);
+    free(idx);
+}
+
+/* The trials around a read table (which they own from then on, even on failure), arrays allocated. */
+static bl_status trials_alloc(bl_table *tab, bl_trials **out, bl_error *err)
+{
+    size_t n = tab->n_rows;
+    bl_trials *t = calloc(1, sizeof *t);
+    *out = t;
+    if (!t) {
+        bl_table_destroy(tab);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
+    }
+    t->table = tab;
+    t->n = t->n_kept = n;
+    t->rt = malloc(n * sizeof *t->rt);
+    t->upper = calloc(n, sizeof *t->upper);
+    t->drift_sign = malloc(n * sizeof *t->drift_sign);
+    t->participant = calloc(n, sizeof *t->participant);
+    t->participants = calloc(n, sizeof *t->participants);
+    t->trial_label = calloc(n, sizeof *t->trial_label);
+    t->excluded = calloc(n, sizeof *t->excluded);
+    if (!t->rt || !t->upper || !t->drift_sign || !t->participant || !t->participants || !t->trial_label ||
+        !t->excluded)
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
+    return BL_OK;
 }
 
 bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warnings *warn, bl_error *err)
@@ -115,153 +287,22 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
         return st;
     }
     size_t n = tab->n_rows;
-    bl_trials *t = calloc(1, sizeof *t);
-    if (!t) {
-        bl_table_destroy(tab);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
-    }
-    t->table = tab;
-    t->n = t->n_kept = n;
-    t->rt = malloc(n * sizeof *t->rt);
-    t->upper = calloc(n, sizeof *t->upper);
-    t->drift_sign = malloc(n * sizeof *t->drift_sign);
-    t->participant = calloc(n, sizeof *t->participant);
-    t->participants = calloc(n, sizeof *t->participants);
-    t->trial_label = calloc(n, sizeof *t->trial_label);
-    t->excluded = calloc(n, sizeof *t->excluded);
-    size_t *count = calloc(n, sizeof *count);
-    if (!t->rt || !t->upper || !t->drift_sign || !t->participant || !t->participants || !t->trial_label ||
-        !t->excluded || !count)
-        goto nomem;
-
-    int c_part, c_rt, c_resp, c_stim = -1, c_trial = -1, c_onset = -1, dummy;
-    if ((st = need_column(tab, study->trials.participant, "trials.participant", &c_part, err))) goto fail;
-    if ((st = need_column(tab, study->trials.rt, "trials.rt", &c_rt, err))) goto fail;
-    if ((st = need_column(tab, study->trials.response, "trials.response", &c_resp, err))) goto fail;
-    if (study->trials.stimulus &&
-        (st = need_column(tab, study->trials.stimulus, "trials.stimulus", &c_stim, err)))
+    bl_trials *t = NULL;
+    size_t *count = NULL;
+    trial_columns c;
+    if ((st = trials_alloc(tab, &t, err))) goto fail;
+    if (!(count = calloc(n, sizeof *count))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
         goto fail;
-    if (study->trials.trial_given) {
-        if ((st = need_column(tab, study->trials.trial, "trials.trial", &c_trial, err))) goto fail;
-    } else if (study->trials.trial) {
-        c_trial = bl_table_find(tab, study->trials.trial);
     }
-    if (study->has_recordings &&
-        (st = need_column(tab, study->recordings.onset, "recordings.onset", &c_onset, err)))
-        goto fail;
-    for (size_t k = 0; k < study->power.n_condition; k++)
-        if ((st = need_column(tab, study->power.condition[k], "power.condition", &dummy, err))) goto fail;
-    if (study->has_power)
-        for (size_t b = 0; b < study->power.n_bands; b++) {
-            const char *bn = study->power.bands[b].name;
-            char pn[300];
-            snprintf(pn, sizeof pn, "%s_power", bn);
-            if (bl_table_find(tab, bn) >= 0 || bl_table_find(tab, pn) >= 0) {
-                st = bl_error_set(err, BL_ERR_INPUT,
-                                  "%s:1: the table already has a column \"%s\" or \"%s\", which band \"%s\" "
-                                  "(power.bands.%s) would write; rename the band or the column",
-                                  file, bn, pn, bn, bn);
-                goto fail;
-            }
-        }
-
-    const bl_column *part = &tab->cols[c_part], *rtc = &tab->cols[c_rt], *resp = &tab->cols[c_resp];
+    if ((st = find_columns(study, tab, &c, err))) goto fail;
     size_t n_upper_rows = 0;
-    for (size_t i = 0; i < n; i++) {
-        t->drift_sign[i] = 1;
-        t->rt[i] = NAN;
-        const char *p = part->text[i];
-        if (!p) {
-            st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.participant) is missing",
-                              file, tab->line[i], part->name, c_part + 1);
+    for (size_t i = 0; i < n; i++)
+        if ((st = code_participant(t, &c, i, count, err)) || (st = code_response(study, t, &c, i, &n_upper_rows, err)))
             goto fail;
-        }
-        size_t k = 0;
-        while (k < t->n_participants && strcmp(t->participants[k], p) != 0) k++;
-        if (k == t->n_participants) {
-            if (!(t->participants[k] = bl_strdup(p))) goto nomem;
-            t->n_participants++;
-        }
-        t->participant[i] = k;
-        count[k]++;
-
-        if (c_trial >= 0 && tab->cols[c_trial].text[i]) {
-            t->trial_label[i] = bl_strdup(tab->cols[c_trial].text[i]);
-        } else {
-            char buf[32];
-            snprintf(buf, sizeof buf, "%zu", count[k]);
-            t->trial_label[i] = bl_strdup(buf);
-        }
-        if (!t->trial_label[i]) goto nomem;
-
-        const char *r = rtc->text[i];
-        if (!r) {
-            bl_trials_exclude(t, i, "missing rt");
-        } else {
-            double x;
-            if (!to_number(r, &x)) {
-                st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.rt): '%s' is not a number",
-                                  file, tab->line[i], rtc->name, c_rt + 1, r);
-                goto fail;
-            }
-            if (x < 0) {
-                st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.rt): negative response time %s",
-                                  file, tab->line[i], rtc->name, c_rt + 1, r);
-                goto fail;
-            }
-            t->rt[i] = study->trials.rt_in_ms ? x / 1000.0 : x;
-        }
-        const char *v = resp->text[i];
-        if (!v) {
-            bl_trials_exclude(t, i, "missing response");
-        } else {
-            t->upper[i] = value_in(v, study->trials.upper, study->trials.n_upper);
-            n_upper_rows += (size_t)t->upper[i];
-        }
-        if (c_stim >= 0) {
-            const char *s = tab->cols[c_stim].text[i];
-            if (!s) bl_trials_exclude(t, i, "missing stimulus");
-            else t->drift_sign[i] = value_in(s, study->trials.upper, study->trials.n_upper) ? 1 : -1;
-        }
-        if (!isnan(t->rt[i])) {
-            if (!isnan(study->trials.rt_min) && t->rt[i] < study->trials.rt_min) bl_trials_exclude(t, i, "rt < keep.rt_min");
-            if (!isnan(study->trials.rt_max) && t->rt[i] > study->trials.rt_max) bl_trials_exclude(t, i, "rt > keep.rt_max");
-        }
-        if (c_onset >= 0 && !tab->cols[c_onset].text[i]) bl_trials_exclude(t, i, "missing onset");
-    }
-    /* distinct response values: more than two usually means the wrong column or coding */
-    {
-        const char *seen[3];
-        size_t n_seen = 0;
-        for (size_t i = 0; i < n && n_seen < 3; i++) {
-            const char *v = resp->text[i];
-            if (!v) continue;
-            size_t k = 0;
-            while (k < n_seen && strcmp(seen[k], v) != 0) k++;
-            if (k == n_seen) seen[n_seen++] = v;
-        }
-        if (n_seen > 2)
-            bl_warnings_add(warn, "%s: column %s has more than two values (%s, %s, %s, ...); every value not listed in "
-                            "trials.upper is coded as the lower boundary", file, resp->name, seen[0], seen[1], seen[2]);
-    }
-    /* the same trial label twice within a participant makes power.csv and trials.csv ambiguous */
-    {
-        size_t *idx = malloc(n * sizeof *idx);
-        if (idx) {
-            for (size_t i = 0; i < n; i++) idx[i] = i;
-            sort_trials = t;
-            qsort(idx, n, sizeof *idx, cmp_trial);
-            size_t dup = 0;
-            for (size_t k = 1; k < n; k++)
-                if (cmp_trial(&idx[k - 1], &idx[k]) == 0 && dup++ == 0)
-                    bl_warnings_add(warn, "%s: participant %s has trial %s twice (lines %zu and %zu)", file,
-                                    t->participants[t->participant[idx[k]]], t->trial_label[idx[k]],
-                                    tab->line[idx[k - 1] < idx[k] ? idx[k - 1] : idx[k]],
-                                    tab->line[idx[k - 1] < idx[k] ? idx[k] : idx[k - 1]]);
-            if (dup > 1) bl_warnings_add(warn, "%s: %zu more repeated trial labels", file, dup - 1);
-            free(idx);
-        }
-    }
+    const bl_column *resp = &tab->cols[c.resp];
+    warn_response_values(tab, resp, warn);
+    warn_repeated_labels(t, warn);
     if (n_upper_rows == 0)
         bl_warnings_add(warn, "%s: no trial has a %s value listed in trials.upper, so every response is coded as the "
                         "lower boundary", file, resp->name);
@@ -270,8 +311,6 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
     free(count);
     *out = t;
     return BL_OK;
-nomem:
-    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
 fail:
     free(count);
     bl_trials_destroy(t);

@@ -24,21 +24,20 @@ typedef struct bl_trials {
 
 /* Read and code the trial table of a study. Exclusions (keep rules) are applied as reasons, never
  * by dropping rows. */
-BL_API bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warnings *warn,
-                                bl_error *err);
+bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warnings *warn,
+                         bl_error *err);
 /* Mark trial i as excluded with a reason (a string that outlives the trials, e.g. a literal).
  * Keeps n_kept up to date; the first reason wins. */
-BL_API void bl_trials_exclude(bl_trials *t, size_t i, const char *reason);
-BL_API void bl_trials_destroy(bl_trials *t);
+void bl_trials_exclude(bl_trials *t, size_t i, const char *reason);
+void bl_trials_destroy(bl_trials *t);
 
-/* Exclusion reasons with their counts, in order of first appearance (caller frees the array;
- * the reason strings belong to the trials). Returns the number of distinct reasons, or
- * BL_EXCLUSION_COUNTS_NOMEM (with *out NULL) when memory ran out. */
-#define BL_EXCLUSION_COUNTS_NOMEM ((size_t)-1)
+/* Exclusion reasons with their counts, in order of first appearance: *n distinct reasons in *out
+ * (caller frees the array; the reason strings belong to the trials). BL_ERR_NOMEM (*out NULL, *n 0)
+ * when memory ran out. */
 typedef struct {
     const char *reason;
     size_t count;
 } bl_exclusion_count;
-BL_API size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out);
+bl_status bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out, size_t *n, bl_error *err);
 
 #endif

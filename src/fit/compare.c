@@ -12,6 +12,7 @@
  * Clinical Trials 7:177-188) random-effects estimate with its between-participant variance.
  */
 #include "fit/fit_internal.h"
+#include "core/gsl_guard.h"
 #include "design/model_internal.h"
 #include "core/strutil.h"
 
@@ -51,7 +52,7 @@ bl_status bl_compare_models(bl_fit_set *set, bl_error *err)
         free(set->comparison);
     }
     set->comparison = calloc(n ? n : 1, sizeof *set->comparison);
-    double *aic = malloc((n ? n : 1) * sizeof *aic), *w = malloc((n ? n : 1) * sizeof *w);
+    double *aic = calloc(n ? n : 1, sizeof *aic), *w = malloc((n ? n : 1) * sizeof *w);
     if (!set->comparison || !aic || !w) {
         free(aic);
         free(w);
@@ -106,112 +107,113 @@ bl_status bl_compare_models(bl_fit_set *set, bl_error *err)
     return BL_OK;
 }
 
-/* Group summary over participants (separate mode). */
-bl_status bl_group_summary(bl_model_result *r, bl_error *err)
+static int same_term(const bl_coefficient *c, const bl_group_coefficient *gc)
+{
+    return c->param == gc->param && !strcmp(c->term, gc->term) && !strcmp(c->level, gc->level);
+}
+
+/* The distinct coefficients (parameter, term, level) over all participants, in order of first appearance. */
+static bl_status collect_group_terms(bl_model_result *r, bl_error *err)
 {
     size_t cap = 0;
     for (size_t i = 0; i < r->n_participants; i++) cap += r->participants[i].n_coef;
     r->group = calloc(cap ? cap : 1, sizeof *r->group);
-    double *y = malloc((r->n_participants + 1) * sizeof *y), *v = malloc((r->n_participants + 1) * sizeof *v);
-    if (!r->group || !y || !v) {
-        free(y);
-        free(v);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-    }
-    size_t ng = 0;
+    if (!r->group) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
     for (size_t i = 0; i < r->n_participants; i++)
         for (size_t j = 0; j < r->participants[i].n_coef; j++) {
             const bl_coefficient *c = &r->participants[i].coef[j];
-            size_t g;
-            for (g = 0; g < ng; g++)
-                if (r->group[g].param == c->param && !strcmp(r->group[g].term, c->term) &&
-                    !strcmp(r->group[g].level, c->level))
-                    break;
-            if (g < ng) continue;
-            bl_group_coefficient *gc = &r->group[ng++];
+            size_t g = 0;
+            while (g < r->n_group && !same_term(c, &r->group[g])) g++;
+            if (g < r->n_group) continue;
+            bl_group_coefficient *gc = &r->group[r->n_group++];
             gc->param = c->param;
             gc->parameter = c->parameter;
             gc->term = bl_strdup(c->term);
             gc->level = bl_strdup(c->level);
-            if (!gc->term || !gc->level) {
-                free(y);
-                free(v);
-                r->n_group = ng;
-                return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
-            }
+            if (!gc->term || !gc->level) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
         }
-    r->n_group = ng;
-    for (size_t g = 0; g < ng; g++) {
-        bl_group_coefficient *gc = &r->group[g];
-        size_t n = 0, nw = 0;
-        double sum = 0;
-        for (size_t i = 0; i < r->n_participants; i++)
-            for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-                const bl_coefficient *c = &r->participants[i].coef[j];
-                if (c->param != gc->param || strcmp(c->term, gc->term) || strcmp(c->level, gc->level)) continue;
-                sum += c->estimate;
-                if (isfinite(c->se) && c->se > 0) {
-                    y[nw] = c->estimate;
-                    v[nw] = c->se * c->se;
-                    nw++;
-                }
-                n++;
+    return BL_OK;
+}
+
+/* Mean, SD and one-sample t-test of one coefficient over participants; the estimates with a
+ * standard error go into y[] and their variances into v[] (*nw of them) for the random-effects model. */
+static void group_t_test(const bl_model_result *r, bl_group_coefficient *gc, double *y, double *v, size_t *nw)
+{
+    size_t n = 0;
+    double sum = 0;
+    *nw = 0;
+    for (size_t i = 0; i < r->n_participants; i++)
+        for (size_t j = 0; j < r->participants[i].n_coef; j++) {
+            const bl_coefficient *c = &r->participants[i].coef[j];
+            if (!same_term(c, gc)) continue;
+            sum += c->estimate;
+            if (isfinite(c->se) && c->se > 0) {
+                y[*nw] = c->estimate;
+                v[*nw] = c->se * c->se;
+                (*nw)++;
             }
-        gc->n = n;
-        gc->mean = sum / (double)n;
-        double ss = 0;
-        for (size_t i = 0; i < r->n_participants; i++)
-            for (size_t j = 0; j < r->participants[i].n_coef; j++) {
-                const bl_coefficient *c = &r->participants[i].coef[j];
-                if (c->param == gc->param && !strcmp(c->term, gc->term) && !strcmp(c->level, gc->level))
-                    ss += (c->estimate - gc->mean) * (c->estimate - gc->mean);
-            }
-        gc->sd = gc->t = gc->df = gc->p_t = NAN;
-        if (n >= 2) {
-            gc->sd = sqrt(ss / (double)(n - 1));
-            gc->df = (double)(n - 1);
-            gc->t = gc->mean / (gc->sd / sqrt((double)n));
-            gc->p_t = isfinite(gc->t) ? 2 * gsl_cdf_tdist_Q(fabs(gc->t), gc->df) : NAN;
+            n++;
         }
-        /* DerSimonian & Laird (1986): moment estimate of tau^2 from Cochran's Q. */
-        gc->n_with_se = nw;
-        gc->re_estimate = gc->re_se = gc->re_ci_low = gc->re_ci_high = gc->re_z = gc->re_p = NAN;
-        gc->tau2 = gc->q = NAN;
-        if (nw >= 1) {
-            double sw = 0, sw2 = 0, swy = 0;
-            for (size_t i = 0; i < nw; i++) {
-                double w = 1 / v[i];
-                sw += w;
-                sw2 += w * w;
-                swy += w * y[i];
-            }
-            double yf = swy / sw, q = 0;
-            for (size_t i = 0; i < nw; i++) q += (y[i] - yf) * (y[i] - yf) / v[i];
-            double tau2 = 0;
-            if (nw >= 2) tau2 = fmax(0.0, (q - (double)(nw - 1)) / (sw - sw2 / sw));
-            double sws = 0, swsy = 0;
-            for (size_t i = 0; i < nw; i++) {
-                double w = 1 / (v[i] + tau2);
-                sws += w;
-                swsy += w * y[i];
-            }
-            gc->q = q;
-            gc->tau2 = tau2;
-            gc->re_estimate = swsy / sws;
-            gc->re_se = sqrt(1 / sws);
-            gc->re_z = gc->re_estimate / gc->re_se;
-            gc->re_p = 2 * gsl_cdf_ugaussian_Q(fabs(gc->re_z));
-            gc->re_ci_low = gc->re_estimate - Z975 * gc->re_se;
-            gc->re_ci_high = gc->re_estimate + Z975 * gc->re_se;
+    gc->n = n;
+    gc->mean = sum / (double)n;
+    double ss = 0;
+    for (size_t i = 0; i < r->n_participants; i++)
+        for (size_t j = 0; j < r->participants[i].n_coef; j++) {
+            const bl_coefficient *c = &r->participants[i].coef[j];
+            if (same_term(c, gc)) ss += (c->estimate - gc->mean) * (c->estimate - gc->mean);
         }
+    gc->sd = gc->t = gc->df = gc->p_t = NAN;
+    if (n >= 2) {
+        gc->sd = sqrt(ss / (double)(n - 1));
+        gc->df = (double)(n - 1);
+        gc->t = gc->mean / (gc->sd / sqrt((double)n));
+        gc->p_t = isfinite(gc->t) ? 2 * gsl_cdf_tdist_Q(fabs(gc->t), gc->df) : NAN;
     }
-    free(y);
-    free(v);
-    /* The model-level coefficients in separate mode are the random-effects estimates. */
+}
+
+/* DerSimonian & Laird (1986): moment estimate of tau^2 from Cochran's Q, then the random-effects
+ * estimate of nw estimates y[] with variances v[]. */
+static void dersimonian_laird(bl_group_coefficient *gc, const double *y, const double *v, size_t nw)
+{
+    gc->n_with_se = nw;
+    gc->re_estimate = gc->re_se = gc->re_ci_low = gc->re_ci_high = gc->re_z = gc->re_p = NAN;
+    gc->tau2 = gc->q = NAN;
+    if (nw < 1) return;
+    double sw = 0, sw2 = 0, swy = 0;
+    for (size_t i = 0; i < nw; i++) {
+        double w = 1 / v[i];
+        sw += w;
+        sw2 += w * w;
+        swy += w * y[i];
+    }
+    double yf = swy / sw, q = 0;
+    for (size_t i = 0; i < nw; i++) q += (y[i] - yf) * (y[i] - yf) / v[i];
+    double tau2 = 0;
+    if (nw >= 2) tau2 = fmax(0.0, (q - (double)(nw - 1)) / (sw - sw2 / sw));
+    double sws = 0, swsy = 0;
+    for (size_t i = 0; i < nw; i++) {
+        double w = 1 / (v[i] + tau2);
+        sws += w;
+        swsy += w * y[i];
+    }
+    gc->q = q;
+    gc->tau2 = tau2;
+    gc->re_estimate = swsy / sws;
+    gc->re_se = sqrt(1 / sws);
+    gc->re_z = gc->re_estimate / gc->re_se;
+    gc->re_p = 2 * gsl_cdf_ugaussian_Q(fabs(gc->re_z));
+    gc->re_ci_low = gc->re_estimate - Z975 * gc->re_se;
+    gc->re_ci_high = gc->re_estimate + Z975 * gc->re_se;
+}
+
+/* The model-level coefficients in separate mode are the random-effects estimates. */
+static bl_status group_as_model_coefficients(bl_model_result *r, bl_error *err)
+{
     bl_fit_result *f = &r->fit;
-    f->n_coef = ng;
+    size_t ng = r->n_group;
     f->coef = calloc(ng ? ng : 1, sizeof *f->coef);
     if (!f->coef) return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
+    f->n_coef = ng; /* only now: bl_fit_result_clear walks n_coef entries */
     for (size_t g = 0; g < ng; g++) {
         bl_coefficient *c = &f->coef[g];
         const bl_group_coefficient *gc = &r->group[g];
@@ -230,20 +232,42 @@ bl_status bl_group_summary(bl_model_result *r, bl_error *err)
     return BL_OK;
 }
 
+/* Group summary over participants (separate mode). */
+bl_status bl_group_summary(bl_model_result *r, bl_error *err)
+{
+    bl_status st = collect_group_terms(r, err);
+    if (st) return st;
+    double *y = malloc((r->n_participants + 1) * sizeof *y), *v = malloc((r->n_participants + 1) * sizeof *v);
+    if (!y || !v) {
+        free(y);
+        free(v);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory in the group summary");
+    }
+    for (size_t g = 0; g < r->n_group; g++) {
+        size_t nw = 0;
+        group_t_test(r, &r->group[g], y, v, &nw);
+        dersimonian_laird(&r->group[g], y, v, nw);
+    }
+    free(y);
+    free(v);
+    return group_as_model_coefficients(r, err);
+}
+
 /* A copy of a spec without slope s of parameter p (for the permutation statistic's null model).
  * Only the slopes array of that parameter is new; everything else is shared. */
-static int spec_without_slope(const bl_model_spec *spec, int p, size_t s, bl_model_spec *out, bl_slope_spec **mem)
+static bl_status spec_without_slope(const bl_model_spec *spec, bl_param p, size_t s, bl_model_spec *out,
+                                    bl_slope_spec **mem, bl_error *err)
 {
     *out = *spec;
     size_t n = spec->param[p].n_slopes;
     *mem = malloc((n ? n : 1) * sizeof **mem);
-    if (!*mem) return 0;
+    if (!*mem) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the permutation test", spec->name);
     size_t w = 0;
     for (size_t i = 0; i < n; i++)
         if (i != s) (*mem)[w++] = spec->param[p].slopes[i];
     out->param[p].slopes = *mem;
     out->param[p].n_slopes = w;
-    return 1;
+    return BL_OK;
 }
 
 /* Maximum log-likelihood summed over units, refitted from warm starts without inference. */
@@ -271,7 +295,7 @@ static bl_status refit_units(bl_unit_set *u, const bl_fit_options *opt, double *
  * from (seed, model, parameter, slope, b), so the refits can run on several threads (each with its
  * own copy of the designs and a one-thread likelihood) and still give the same count. */
 static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const bl_fit_options *opt,
-                                  const bl_model_result *r, int p, size_t s, size_t *exceed_out, bl_error *err)
+                                  const bl_model_result *r, bl_param p, size_t s, size_t *exceed_out, bl_error *err)
 {
     size_t n_perm = opt->permutations, exceed = 0, done_count = 0;
     bl_status st_all = BL_OK;
@@ -296,10 +320,10 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
         mine.coef = calloc(full->n_units, sizeof *mine.coef);
         ok = ok && mine.models && mine.liks && mine.coef;
         for (size_t i = 0; ok && i < full->n_units; i++) {
-            mine.models[i] = bl_model_copy(full->models[i]);
-            mine.liks[i] = mine.models[i] ? bl_likelihood_create(mine.models[i], 1) : NULL;
+            ok = bl_model_copy(full->models[i], &mine.models[i], NULL) == BL_OK &&
+                 bl_likelihood_create(mine.models[i], 1, &mine.liks[i], NULL) == BL_OK;
             mine.coef[i] = malloc(full->models[i]->n_coef * sizeof(double));
-            ok = mine.liks[i] && mine.coef[i];
+            ok = ok && mine.coef[i];
             if (ok) memcpy(mine.coef[i], full->coef[i], full->models[i]->n_coef * sizeof(double));
         }
         if (!ok) {
@@ -360,6 +384,7 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
 bl_status bl_permutation_tests(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
                                    const bl_fit_options *opt, bl_unit_set *full, bl_model_result *r, bl_error *err)
 {
+    bl_gsl_guard();
     size_t n_tests = 0;
     for (int p = 0; p < BL_NPARAM; p++) n_tests += spec->param[p].is_fixed ? 0 : spec->param[p].n_slopes;
     if (n_tests == 0 || opt->permutations == 0) return BL_OK;
@@ -393,10 +418,7 @@ bl_status bl_permutation_tests(const bl_study *study, const bl_model_spec *spec,
             bl_slope_spec *mem = NULL;
             bl_unit_set red;
             double ll_red = NAN;
-            if (!spec_without_slope(spec, p, s, &reduced, &mem)) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-                goto done;
-            }
+            if ((st = spec_without_slope(spec, p, s, &reduced, &mem, err))) goto done;
             st = bl_build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
                              NULL, NULL, err);
             free(mem);

@@ -1,5 +1,6 @@
-/* Maximum-likelihood fitting of compiled models, inference, and the fits of a study (pooled or one
- * per participant; group summaries and permutation tests are in compare.c).
+/* Maximum-likelihood fitting of one compiled model, and inference. The fits of a whole study are
+ * ordered by fit_study.c; group summaries and permutation tests are in compare.c. This file calls
+ * neither of them.
  *
  * Optimiser: GSL's BFGS (vector_bfgs2: Fletcher, Practical Methods of Optimization, 2nd ed., 1987,
  * algorithms 2.6.2 and 2.6.4) on the analytic gradient, in an unconstrained parameterisation where one
@@ -19,6 +20,7 @@
 #include "fit/fit.h"
 #include "fit/screen.h"
 #include "core/strutil.h"
+#include "core/gsl_guard.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
@@ -275,8 +277,10 @@ done:
 /* ---- inference ------------------------------------------------------------------------------- */
 
 /* Observed information I = -H by central differences of the analytic gradient, symmetrised.
- * Returns 0 when a step leaves the feasible region even after shrinking. */
-static int observed_information(bl_likelihood *lik, const bl_model *m, const double *coef, double *info)
+ * *found = 0 when a step leaves the feasible region even after shrinking. BL_ERR_NOMEM when memory
+ * ran out: the caller fails the fit rather than report "not positive definite". */
+static bl_status observed_information(bl_likelihood *lik, const bl_model *m, const double *coef, double *info,
+                                      int *found, bl_error *err)
 {
     size_t k = m->n_coef;
     double *c = malloc(k * sizeof *c), *gp = malloc(k * sizeof *gp), *gm = malloc(k * sizeof *gm);
@@ -284,7 +288,8 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
         free(c);
         free(gp);
         free(gm);
-        return -1; /* out of memory: the caller fails the fit rather than reporting "not positive definite" */
+        *found = 0;
+        return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the observed information", m->name);
     }
     int ok = 1;
     memcpy(c, coef, k * sizeof *c);
@@ -316,7 +321,8 @@ static int observed_information(bl_likelihood *lik, const bl_model *m, const dou
     free(c);
     free(gp);
     free(gm);
-    return ok;
+    *found = ok;
+    return BL_OK;
 }
 
 /* LAPACKE's own workspace or transposition buffer could not be allocated. */
@@ -325,33 +331,37 @@ static int lapacke_out_of_memory(lapack_int info)
     return info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR;
 }
 
-/* Covariance = info^-1 by Cholesky; 0 when info is not positive definite, -1 when memory ran out.
- * cond receives the eigenvalue ratio of info (NAN when the eigenvalues fail). */
-int bl_information_inverse(const double *info, size_t k, double *cov, double *cond)
+/* Covariance = info^-1 by Cholesky (see fit.h). */
+bl_status bl_information_inverse(const double *info, size_t k, double *cov, double *cond, int *positive_definite,
+                                 bl_error *err)
 {
     double *tmp = malloc(k * k * sizeof *tmp), *ev = malloc(k * sizeof *ev);
     *cond = NAN;
+    *positive_definite = 0;
     if (!tmp || !ev) {
         free(tmp);
         free(ev);
-        return -1;
+        goto nomem;
     }
     memcpy(tmp, info, k * k * sizeof *tmp);
     lapack_int ie = LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'N', 'U', (lapack_int)k, tmp, (lapack_int)k, ev);
     if (ie == 0) *cond = ev[0] > 0 ? ev[k - 1] / ev[0] : INFINITY;
     free(tmp);
     free(ev);
-    if (lapacke_out_of_memory(ie)) return -1;
+    if (lapacke_out_of_memory(ie)) goto nomem;
     memcpy(cov, info, k * k * sizeof *cov);
     lapack_int ic = LAPACKE_dpotrf(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
     if (ic == 0) ic = LAPACKE_dpotri(LAPACK_ROW_MAJOR, 'U', (lapack_int)k, cov, (lapack_int)k);
-    if (lapacke_out_of_memory(ic)) return -1;
-    if (ic != 0) return 0;
+    if (lapacke_out_of_memory(ic)) goto nomem;
+    if (ic != 0) return BL_OK;
     for (size_t i = 0; i < k; i++)
         for (size_t j = 0; j < i; j++) cov[i * k + j] = cov[j * k + i];
     for (size_t i = 0; i < k; i++)
-        if (!(cov[i * k + i] > 0) || !isfinite(cov[i * k + i])) return 0;
-    return 1;
+        if (!(cov[i * k + i] > 0) || !isfinite(cov[i * k + i])) return BL_OK;
+    *positive_definite = 1;
+    return BL_OK;
+nomem:
+    return bl_error_set(err, BL_ERR_NOMEM, "out of memory inverting a %zu x %zu information matrix", k, k);
 }
 
 /* ---- one fit --------------------------------------------------------------------------------- */
@@ -652,10 +662,10 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         /* Newton polishing with the observed information: each step is checked to raise the
          * likelihood, so it can only help. */
         for (int polish = 0; polish < 4; polish++) {
-            int oi = observed_information(lik, m, coef, info);
-            int inv = oi > 0 ? bl_information_inverse(info, k, cov, &cond) : 0;
-            if (oi < 0 || inv < 0) goto nomem;
-            pd = oi > 0 && inv > 0;
+            int oi = 0, inv = 0;
+            if ((st = observed_information(lik, m, coef, info, &oi, err))) goto fail;
+            if (oi && (st = bl_information_inverse(info, k, cov, &cond, &inv, err))) goto fail;
+            pd = oi && inv;
             if (!pd) break;
             double nd2 = 0;
             for (size_t i = 0; i < k; i++)
@@ -769,7 +779,7 @@ static int edge_estimates(const bl_model *m, const bl_fit_result *r, char *buf, 
     return found;
 }
 
-static void warn_fit(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
+void bl_fit_warn(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
 {
     char who[512], edge[512];
     if (participant) snprintf(who, sizeof who, "model '%s', participant '%s'", m->name, participant);
@@ -795,85 +805,16 @@ static void warn_fit(const bl_model *m, const char *participant, const bl_fit_re
 bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const double *start, bl_fit_result *res,
                        bl_warnings *warn, bl_error *err)
 {
-    bl_likelihood *lik = bl_likelihood_create(m, opt ? opt->threads : 0);
-    if (lik && opt && opt->parallel_trials) bl_likelihood_set_parallel(lik, opt->parallel_trials > 0);
-    if (!lik) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory", m->name);
-    bl_status st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
-    if (!st) warn_fit(m, NULL, res, warn);
+    bl_gsl_guard();
+    bl_likelihood *lik = NULL;
+    bl_status st = bl_likelihood_create(m, opt ? opt->threads : 0, &lik, err);
+    if (st) return st;
+    if (opt) bl_likelihood_set_parallel(lik, opt->parallel_trials);
+    st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
+    if (!st) bl_fit_warn(m, NULL, res, warn);
     bl_likelihood_destroy(lik);
     return st;
 }
-
-/* ---- study ----------------------------------------------------------------------------------- */
-
-typedef struct {
-    bl_model *model;       /* compiled design (pooled: one; separate: one per participant) */
-    double *coef;          /* its estimates */
-} unit_fit;
-
-static void fill_predictions(bl_model_result *r, const bl_model *m, const double *coef, bl_likelihood *lik)
-{
-    double *tll = malloc(m->n * sizeof *tll);
-    if (tll) bl_likelihood_trials(lik, coef, tll);
-    for (size_t k = 0; k < m->n; k++) {
-        size_t row = m->row[k];
-        bl_wiener_params p;
-        bl_model_predict(m, coef, k, &p);
-        r->used[row] = 1;
-        r->predicted[row] = p;
-        double pu = NAN, mu = NAN, ml = NAN;
-        if (bl_wiener_p_upper(&p, &pu, NULL) != BL_OK) pu = NAN;
-        double mean = NAN;
-        if (isfinite(pu)) {
-            int ok_u = pu > 1e-12 ? bl_wiener_mean_rt(&p, 1, &mu, NULL) == BL_OK : 1;
-            int ok_l = pu < 1 - 1e-12 ? bl_wiener_mean_rt(&p, 0, &ml, NULL) == BL_OK : 1;
-            if (ok_u && ok_l) mean = (pu > 1e-12 ? pu * mu : 0) + (pu < 1 - 1e-12 ? (1 - pu) * ml : 0);
-        }
-        r->p_upper[row] = pu;
-        r->mean_rt[row] = mean;
-        r->trial_log_likelihood[row] = tll ? tll[k] : NAN;
-    }
-    free(tll);
-}
-
-static void model_result_free(bl_model_result *r)
-{
-    free(r->name);
-    free(r->extends);
-    bl_fit_result_clear(&r->fit);
-    for (size_t i = 0; i < r->n_participants; i++) bl_fit_result_clear(&r->participants[i]);
-    free(r->participants);
-    for (size_t i = 0; i < r->n_group; i++) {
-        free(r->group[i].term);
-        free(r->group[i].level);
-    }
-    free(r->group);
-    for (size_t i = 0; i < r->n_permutation; i++) {
-        free(r->permutation[i].regressor);
-        free(r->permutation[i].level);
-    }
-    free(r->permutation);
-    free(r->used);
-    free(r->predicted);
-    free(r->p_upper);
-    free(r->mean_rt);
-    free(r->trial_log_likelihood);
-}
-
-void bl_fit_set_destroy(bl_fit_set *set)
-{
-    if (!set) return;
-    for (size_t i = 0; i < set->n_models; i++) model_result_free(&set->models[i]);
-    free(set->models);
-    if (set->comparison)
-        for (size_t i = 0; i < set->n_models; i++) {
-            free(set->comparison[i].name);
-            free(set->comparison[i].lrt_against);
-        }
-    free(set->comparison);
-    free(set);
-}
-
 
 void bl_unit_set_free(bl_unit_set *u)
 {
@@ -931,10 +872,10 @@ bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_
         }
         size_t i = u->n_units++;
         u->models[i] = m;
-        u->liks[i] = bl_likelihood_create(m, opt->threads);
-        if (u->liks[i] && opt->parallel_trials) bl_likelihood_set_parallel(u->liks[i], opt->parallel_trials > 0);
+        if ((st = bl_likelihood_create(m, opt->threads, &u->liks[i], err))) goto done;
+        bl_likelihood_set_parallel(u->liks[i], opt->parallel_trials);
         u->coef[i] = calloc(m->n_coef, sizeof(double));
-        if (!u->liks[i] || !u->coef[i]) {
+        if (!u->coef[i]) {
             st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
             goto done;
         }
@@ -950,231 +891,5 @@ done:
             *unit_names = NULL;
         }
     }
-    return st;
-}
-
-bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt_in,
-                       bl_fit_set **out, bl_warnings *warn, bl_error *err)
-{
-    *out = NULL;
-    bl_fit_options opt;
-    if (opt_in) opt = *opt_in;
-    else bl_fit_options_default(&opt);
-    if (opt.starts <= 0) opt.starts = study->fit.starts > 0 ? study->fit.starts : 3;
-    bl_status st = BL_OK;
-    for (size_t i = 0; i < opt.n_models; i++) {
-        size_t j;
-        for (j = 0; j < study->n_models; j++)
-            if (!strcmp(study->models[j].name, opt.models[i])) break;
-        if (j == study->n_models) {
-            char names[512] = "";
-            for (size_t q = 0; q < study->n_models; q++) {
-                size_t len = strlen(names);
-                snprintf(names + len, sizeof names - len, "%s'%s'", q ? ", " : "", study->models[q].name);
-            }
-            return bl_error_set(err, BL_ERR_USAGE, "--model: the study has no model '%s' (it has %s)", opt.models[i],
-                                names);
-        }
-    }
-    bl_fit_set *set = calloc(1, sizeof *set);
-    size_t *sel = calloc(study->n_models ? study->n_models : 1, sizeof *sel);
-    bl_unit_set *units = calloc(study->n_models ? study->n_models : 1, sizeof *units);
-    if (!set || !sel || !units) {
-        free(set);
-        free(sel);
-        free(units);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-    }
-    size_t n_sel = 0;
-    for (size_t j = 0; j < study->n_models; j++) {
-        int want = opt.n_models == 0;
-        for (size_t i = 0; i < opt.n_models; i++)
-            if (!strcmp(study->models[j].name, opt.models[i])) want = 1;
-        if (want) sel[n_sel++] = j;
-    }
-    /* Data the model cannot use (identical RTs) stop here; data that weaken estimates get warnings. */
-    if ((st = bl_screen_trials(study, trials, sel, n_sel, warn, err))) goto fail;
-    set->mode = study->fit.participants;
-    set->permutations = opt.permutations;
-    set->seed = opt.seed;
-    set->threads = opt.threads;
-    set->models = calloc(n_sel ? n_sel : 1, sizeof *set->models);
-    if (!set->models) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        goto fail;
-    }
-    set->n_models = n_sel;
-    int nondecision_note = 0;
-    /* 1. Designs of every model (and participant), checked before anything is fitted. */
-    char ***unit_names = calloc(n_sel ? n_sel : 1, sizeof *unit_names);
-    if (!unit_names) goto nomem;
-    for (size_t q = 0; q < n_sel; q++) {
-        const bl_model_spec *spec = &study->models[sel[q]];
-        bl_model_result *r = &set->models[q];
-        r->mode = set->mode;
-        r->nested = -1;
-        r->n_rows = trials->n;
-        if (!(r->name = bl_strdup(spec->name)) || (spec->extends && !(r->extends = bl_strdup(spec->extends)))) goto nomem_names;
-        r->used = calloc(trials->n ? trials->n : 1, 1);
-        r->predicted = calloc(trials->n ? trials->n : 1, sizeof *r->predicted);
-        r->p_upper = malloc((trials->n ? trials->n : 1) * sizeof(double));
-        r->mean_rt = malloc((trials->n ? trials->n : 1) * sizeof(double));
-        r->trial_log_likelihood = malloc((trials->n ? trials->n : 1) * sizeof(double));
-        if (!r->used || !r->predicted || !r->p_upper || !r->mean_rt || !r->trial_log_likelihood) goto nomem_names;
-        for (size_t i = 0; i < trials->n; i++) {
-            r->p_upper[i] = r->mean_rt[i] = r->trial_log_likelihood[i] = NAN;
-            for (int p = 0; p < BL_NPARAM; p++) r->predicted[i].value[p] = NAN;
-            r->predicted[i].contamination_lo = r->predicted[i].contamination_hi = NAN;
-        }
-        if ((st = bl_build_units(spec, trials, set->mode, &opt, &units[q], &unit_names[q], warn, err))) goto fail_names;
-        if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-            r->participants = calloc(units[q].n_units, sizeof *r->participants);
-            if (!r->participants) goto nomem_names;
-            r->n_participants = units[q].n_units;
-            for (size_t i = 0; i < units[q].n_units; i++)
-                if (!(r->participants[i].participant = bl_strdup(unit_names[q][i]))) goto nomem_names;
-        }
-    }
-    /* 2. The fits. Several fits (models, participants) run side by side, each on one thread, with
-     * the same results as one after the other; a single fit spreads its trials over the threads. */
-    size_t n_jobs = 0;
-    for (size_t q = 0; q < n_sel; q++) n_jobs += units[q].n_units;
-    size_t *job_q = malloc((n_jobs ? n_jobs : 1) * sizeof *job_q), *job_i = malloc((n_jobs ? n_jobs : 1) * sizeof *job_i);
-    bl_status *job_st = calloc(n_jobs ? n_jobs : 1, sizeof *job_st);
-    bl_error *job_err = calloc(n_jobs ? n_jobs : 1, sizeof *job_err);
-    if (!job_q || !job_i || !job_st || !job_err) {
-        free(job_q);
-        free(job_i);
-        free(job_st);
-        free(job_err);
-        goto nomem_names;
-    }
-    for (size_t q = 0, j = 0; q < n_sel; q++)
-        for (size_t i = 0; i < units[q].n_units; i++, j++) {
-            job_q[j] = q;
-            job_i[j] = i;
-        }
-    size_t jobs_done = 0;
-    int nt = 1;
-#ifdef _OPENMP
-    nt = opt.threads > 0 ? opt.threads : omp_get_max_threads();
-    if (nt < 1) nt = 1;
-#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (n_jobs > 1 && nt > 1)
-#endif
-    for (size_t j = 0; j < n_jobs; j++) {
-        size_t q = job_q[j], i = job_i[j];
-        bl_model_result *r = &set->models[q];
-        bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
-        char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
-        fr->participant = NULL;
-        job_st[j] = bl_fit_core(units[q].models[i], units[q].liks[i], &opt, opt.starts, NULL, 1, fr, units[q].coef[i],
-                             &job_err[j]);
-        fr->participant = keep;
-        if (opt.progress) {
-#ifdef _OPENMP
-#pragma omp critical(bl_fit_progress)
-#endif
-            {
-                jobs_done++;
-                opt.progress(opt.progress_user, r->name, jobs_done, n_jobs);
-            }
-        }
-    }
-    for (size_t j = 0; j < n_jobs && !st; j++)
-        if (job_st[j]) {
-            st = job_st[j];
-            if (err) *err = job_err[j];
-        }
-    free(job_q);
-    free(job_i);
-    free(job_st);
-    free(job_err);
-    if (st) goto fail_names;
-    /* 3. In model order: warnings, predictions, totals, group summaries, permutation tests. */
-    for (size_t q = 0; q < n_sel; q++) {
-        const bl_model_spec *spec = &study->models[sel[q]];
-        bl_model_result *r = &set->models[q];
-        bl_unit_set *u = &units[q];
-        r->converged = 1;
-        for (size_t i = 0; i < u->n_units; i++) {
-            bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
-            warn_fit(u->models[i], fr->participant, fr, warn);
-            r->log_likelihood += fr->log_likelihood;
-            r->parameters += fr->parameters;
-            r->trials += fr->trials;
-            r->converged = r->converged && fr->converged;
-            fill_predictions(r, u->models[i], u->coef[i], u->liks[i]);
-        }
-        if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
-            nondecision_note = 1;
-        r->aic = 2.0 * (double)r->parameters - 2.0 * r->log_likelihood;
-        r->bic = (double)r->parameters * log((double)r->trials) - 2.0 * r->log_likelihood;
-        if (set->mode == BL_PARTICIPANTS_SEPARATE) {
-            bl_fit_result *f = &r->fit;
-            f->log_likelihood = r->log_likelihood;
-            f->parameters = r->parameters;
-            f->trials = r->trials;
-            f->aic = r->aic;
-            f->bic = r->bic;
-            f->converged = r->converged;
-            f->diag.method = r->participants[0].diag.method;
-            f->diag.converged = r->converged;
-            f->diag.newton_decrement = f->diag.condition_number = f->diag.gradient_norm = NAN;
-            for (size_t i = 0; i < r->n_participants; i++) {
-                f->diag.evaluations += r->participants[i].diag.evaluations;
-                f->diag.iterations += r->participants[i].diag.iterations;
-                f->diag.seconds += r->participants[i].diag.seconds;
-                f->diag.starts += r->participants[i].diag.starts;
-                f->diag.starts_agreed += r->participants[i].diag.starts_agreed;
-            }
-            f->diag.hessian_positive_definite = 1;
-            for (size_t i = 0; i < r->n_participants; i++)
-                f->diag.hessian_positive_definite &= r->participants[i].diag.hessian_positive_definite;
-            if ((st = bl_group_summary(r, err))) goto fail_names;
-        }
-        if ((st = bl_permutation_tests(study, spec, trials, &opt, u, r, err))) goto fail_names;
-    }
-    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
-    free(unit_names);
-    if (nondecision_note)
-        bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
-                              "the fastest RT (see docs/models.md)");
-    /* Nesting for the likelihood-ratio test: the base model must be fitted, and nested unit by unit. */
-    for (size_t q = 0; q < n_sel; q++) {
-        bl_model_result *r = &set->models[q];
-        if (!r->extends) continue;
-        size_t b;
-        for (b = 0; b < n_sel; b++)
-            if (!strcmp(set->models[b].name, r->extends)) break;
-        if (b == n_sel) continue;
-        int nested = units[q].n_units == units[b].n_units;
-        for (size_t i = 0; nested > 0 && i < units[q].n_units; i++)
-            nested = bl_model_nested_in(units[b].models[i], units[q].models[i]);
-        if (nested < 0) {
-            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking whether '%s' is nested in '%s'", r->name,
-                              r->extends);
-            goto fail;
-        }
-        r->nested = nested && set->models[b].parameters < r->parameters;
-    }
-    if ((st = bl_compare_models(set, err))) goto fail;
-    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
-    free(units);
-    free(sel);
-    *out = set;
-    return BL_OK;
-nomem_names:
-    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-fail_names:
-    for (size_t q = 0; q < n_sel; q++) free(unit_names[q]);
-    free(unit_names);
-    goto fail;
-nomem:
-    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-fail:
-    for (size_t q = 0; q < n_sel; q++) bl_unit_set_free(&units[q]);
-    free(units);
-    free(sel);
-    bl_fit_set_destroy(set);
     return st;
 }

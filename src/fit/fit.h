@@ -28,17 +28,17 @@ typedef struct {
     size_t n_models;
     int starts;                     /* optimiser starts per fit; <= 0: the study's fit.starts, else 3 */
     int simplex_only;               /* 1: Nelder-Mead (nmsimplex2) alone instead of BFGS (for checks) */
-    int parallel_trials;            /* a single fit's trials over threads: 0 auto (default: measured,
-                                       see bl_likelihood_set_parallel), 1 always, -1 never */
+    bl_parallel_mode parallel_trials; /* a single fit's trials over threads (default AUTO: measured;
+                                       see bl_likelihood_set_parallel) */
     /* Called between fits (may be NULL): stage text, steps done, steps in total. */
     void (*progress)(void *user, const char *stage, size_t done, size_t total);
     void *progress_user;
 } bl_fit_options;
 
-BL_API void bl_fit_options_default(bl_fit_options *o);
+void bl_fit_options_default(bl_fit_options *o);
 
 typedef struct {
-    int param;                      /* bl_param index */
+    bl_param param;
     const char *parameter;          /* "threshold", ... (static) */
     char *term;                     /* "intercept" or the regressor name */
     char *level;                    /* "rich", "rich:easy", "" for a single coefficient */
@@ -78,7 +78,7 @@ typedef struct {
 
 /* Group summary of one coefficient across participants (separate mode). */
 typedef struct {
-    int param;
+    bl_param param;
     const char *parameter;
     char *term, *level;
     size_t n;                       /* participants that have this coefficient */
@@ -93,7 +93,7 @@ typedef struct {
 
 /* Permutation test of one slope (all its levels at once). */
 typedef struct {
-    int param;
+    bl_param param;
     const char *parameter;
     char *regressor;
     char *level;                    /* the slope's level ("rich"); "" when the test covers every level */
@@ -155,31 +155,32 @@ typedef struct {
  * that cannot be built (BL_ERR_MODEL, naming model, parameter, level), an unknown model name in
  * options (BL_ERR_USAGE). Non-convergence is not an error: it is reported in the diagnostics and
  * as a warning. */
-BL_API bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt,
-                              bl_fit_set **out, bl_warnings *warn, bl_error *err);
-BL_API void bl_fit_set_destroy(bl_fit_set *set);
+bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt,
+                       bl_fit_set **out, bl_warnings *warn, bl_error *err);
+void bl_fit_set_destroy(bl_fit_set *set);
 
 /* Lower-level: fit one compiled model (maximum likelihood + inference). `start` (may be NULL)
  * gives a starting coefficient vector tried first. Fills `res` (free with bl_fit_result_clear). */
-BL_API bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const double *start,
-                              bl_fit_result *res, bl_warnings *warn, bl_error *err);
-BL_API void bl_fit_result_clear(bl_fit_result *res);
+bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const double *start,
+                       bl_fit_result *res, bl_warnings *warn, bl_error *err);
+void bl_fit_result_clear(bl_fit_result *res);
 
 /* EZ-diffusion (Wagenmakers, van der Maas & Grasman 2007) with noise s = 1: from the proportion
  * correct pc, the variance vrt [s^2] and mean mrt [s] of correct RTs, give drift, threshold and
  * nondecision. BL_ERR_NUMERIC when the moments admit no solution (pc of 0, 0.5 or 1, vrt <= 0). */
-BL_API bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drift, double *threshold,
-                                 double *nondecision, bl_error *err);
+bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drift, double *threshold,
+                          double *nondecision, bl_error *err);
 
 /* Covariance from an observed information matrix (k x k, row-major, symmetric) by Cholesky
- * (LAPACKE dpotrf/dpotri). Returns 1 and fills cov when info is positive definite, 0 when it is not,
- * -1 when memory ran out (cov undefined unless 1). cond receives the ratio of its largest to smallest eigenvalue (INFINITY when not
- * positive, NAN when the eigenvalues fail). */
-BL_API int bl_information_inverse(const double *info, size_t k, double *cov, double *cond);
+ * (LAPACKE dpotrf/dpotri). *positive_definite = 1 and cov filled when info is positive definite, 0
+ * when it is not (cov undefined then). cond receives the ratio of its largest to smallest eigenvalue
+ * (INFINITY when not positive, NAN when the eigenvalues fail). BL_ERR_NOMEM when memory ran out. */
+bl_status bl_information_inverse(const double *info, size_t k, double *cov, double *cond, int *positive_definite,
+                                 bl_error *err);
 
 /* Comparison (src/compare.c): fill set->comparison from set->models. */
-BL_API bl_status bl_compare_models(bl_fit_set *set, bl_error *err);
+bl_status bl_compare_models(bl_fit_set *set, bl_error *err);
 /* Akaike weights of n AIC values (NAN-aware). */
-BL_API void bl_aic_weights(const double *aic, size_t n, double *weights);
+void bl_aic_weights(const double *aic, size_t n, double *weights);
 
 #endif

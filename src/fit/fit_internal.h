@@ -1,5 +1,6 @@
-/* Private interface between fit.c (optimiser, study fits) and compare.c (group summaries,
- * permutation tests). Fit area. */
+/* Private interface of the fit area: fit.c (one design fitted: optimiser, inference, units) is
+ * called by compare.c (group summaries, permutation refits) and fit_study.c (a study's fits, in
+ * order); fit_study.c calls compare.c. No file calls back up this chain. */
 #ifndef BL_FIT_INTERNAL_H
 #define BL_FIT_INTERNAL_H
 
@@ -25,6 +26,9 @@ bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                       const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err);
 int bl_fit_default_starts(const bl_fit_options *opt);
+/* Warnings for one finished fit: information not positive definite, not converged, estimates at the
+ * edge of their range, starts that disagree. participant may be NULL (pooled). */
+void bl_fit_warn(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn);
 /* A reproducible seed from the user's seed, a text and a number (FNV-1a). */
 unsigned long bl_fit_mix_seed(unsigned long seed, const char *text, unsigned long extra);
 

@@ -35,7 +35,7 @@ struct bl_likelihood {
     double time_par, time_ser;
     int probes_par, probes_ser, use_par, warmed;
     size_t probe_interval; /* grows while one thread keeps winning: probing a losing mode costs */
-    int force;            /* -1 choose by timing, 0 always serial, 1 always parallel */
+    bl_parallel_mode parallel;
     size_t next_probe;
 };
 
@@ -50,25 +50,27 @@ static double wall(void)
 #define BL_LIK_REPROBE 64      /* evaluations between probe rounds (load can change quickly); x4 after
                                   each round one thread wins, up to 4096 */
 
-bl_likelihood *bl_likelihood_create(const bl_model *m, int threads)
+bl_status bl_likelihood_create(const bl_model *m, int threads, bl_likelihood **out, bl_error *err)
 {
+    *out = NULL;
     bl_likelihood *w = calloc(1, sizeof *w);
-    if (!w) return NULL;
+    if (!w) goto nomem;
     w->m = m;
     w->threads = threads;
     w->n_blocks = (m->n + BL_LIK_BLOCK - 1) / BL_LIK_BLOCK;
     w->use_par = 1;
-    w->force = -1;
+    w->parallel = BL_PARALLEL_AUTO;
     w->probe_interval = BL_LIK_REPROBE;
     w->block_ll = malloc(w->n_blocks * sizeof *w->block_ll);
     w->stride = (m->n_coef + 7) / 8 * 8;
     w->block_grad = aligned_alloc(64, w->n_blocks * w->stride * sizeof *w->block_grad);
     w->block_bad = malloc(w->n_blocks * sizeof *w->block_bad);
-    if (!w->block_ll || !w->block_grad || !w->block_bad) {
-        bl_likelihood_destroy(w);
-        return NULL;
-    }
-    return w;
+    if (!w->block_ll || !w->block_grad || !w->block_bad) goto nomem;
+    *out = w;
+    return BL_OK;
+nomem:
+    bl_likelihood_destroy(w);
+    return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the likelihood workspace", m->name);
 }
 
 void bl_likelihood_destroy(bl_likelihood *w)
@@ -81,7 +83,6 @@ void bl_likelihood_destroy(bl_likelihood *w)
 }
 
 size_t bl_likelihood_evaluations(const bl_likelihood *w) { return w->evaluations; }
-const bl_model *bl_likelihood_model(const bl_likelihood *w) { return w->m; }
 
 /* One block: trials [k0, k1). Returns 0 when a trial is infeasible. */
 static int eval_block(const bl_model *m, const double *coef, size_t k0, size_t k1, double *ll_out, double *g,
@@ -154,9 +155,9 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
     if ((size_t)nt > nb) nt = (int)nb;
     if (nt < 1) nt = 1;
     /* Below ~1000 trials a parallel region costs more than it saves. */
-    if (nt > 1 && w->force == 1 && !omp_in_parallel()) {
+    if (nt > 1 && w->parallel == BL_PARALLEL_SPLIT && !omp_in_parallel()) {
         par = 1;
-    } else if (nt > 1 && nb >= 16 && w->force < 0 && !omp_in_parallel()) {
+    } else if (nt > 1 && nb >= 16 && w->parallel == BL_PARALLEL_AUTO && !omp_in_parallel()) {
         if (w->evaluations >= w->next_probe && (w->probes_par < BL_LIK_PROBES || w->probes_ser < BL_LIK_PROBES)) {
             probing = 1;
             par = w->probes_par <= w->probes_ser;
@@ -223,7 +224,7 @@ infeasible:
     return -INFINITY;
 }
 
-void bl_likelihood_set_parallel(bl_likelihood *w, int mode) { w->force = mode < 0 ? -1 : mode > 0 ? 1 : 0; }
+void bl_likelihood_set_parallel(bl_likelihood *w, bl_parallel_mode mode) { w->parallel = mode; }
 
 double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad)
 {

@@ -49,7 +49,8 @@ int bl_figures_best_model(const bl_fit_set *set)
     return best;
 }
 
-const char *bl_figures_param_unit(int param)
+/* Axis text for a parameter, with its unit, e.g. "threshold (evidence units, s = 1)". */
+static const char *bl_figures_param_unit(bl_param param)
 {
     switch (param) {
     case BL_THRESHOLD: return "threshold (evidence units, s = 1)";
@@ -232,7 +233,7 @@ static bl_svg *fig_spectrum(const bl_study *study, const bl_power_result *pr, co
 /* ---- 2. predicted parameter vs regressor ---- */
 
 typedef struct {
-    int param;
+    bl_param param;
     const bl_slope_spec *slope;
 } slope_ref;
 
@@ -549,8 +550,9 @@ static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, ch
     const bl_fit_result *fr = &mr->fit;
     int separate = mr->mode == BL_PARTICIPANTS_SEPARATE && mr->n_participants > 0;
     /* One panel per parameter that has coefficients. */
-    int params[BL_NPARAM], np = 0;
-    for (int p = 0; p < BL_NPARAM; p++)
+    bl_param params[BL_NPARAM];
+    int np = 0;
+    for (bl_param p = 0; p < BL_NPARAM; p++)
         for (size_t j = 0; j < fr->n_coef; j++)
             if (fr->coef[j].param == p) {
                 params[np++] = p;
@@ -569,7 +571,7 @@ static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, ch
     free(title);
     if (!fig) return NULL;
     for (int i = 0; i < np; i++) {
-        int param = params[i];
+        bl_param param = params[i];
         bl_svg_panel *p = bl_svg_panel_at(fig, i);
         size_t nc = 0;
         const char *labels[256];
@@ -731,7 +733,8 @@ bl_status bl_figures_write(const bl_figure_set *figs, const char *dir, bl_error 
     if (st != BL_OK) return st;
     static const char decl[] = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
     for (size_t i = 0; i < figs->n; i++) {
-        char *path = bl_path_join(dir, figs->items[i].file);
+        char *path = NULL;
+        bl_path_join(dir, figs->items[i].file, &path, NULL);
         char *buf = malloc(sizeof decl - 1 + figs->items[i].size);
         if (!path || !buf) {
             free(path), free(buf);

@@ -36,16 +36,14 @@ typedef struct {
 
 /* Draw every figure. `power` may be NULL (no recordings: the spectrum figure then says so).
  * `g` is the goodness-of-fit result of the same trials and fit set. */
-BL_API bl_status bl_figures_make(const bl_study *study, const bl_trials *trials, const bl_power_result *power,
-                                 const bl_fit_set *set, const bl_goodness *g, bl_figure_set **out, bl_error *err);
+bl_status bl_figures_make(const bl_study *study, const bl_trials *trials, const bl_power_result *power,
+                          const bl_fit_set *set, const bl_goodness *g, bl_figure_set **out, bl_error *err);
 /* Write each figure as a standalone .svg file into folder `dir` (created if missing), atomically. */
-BL_API bl_status bl_figures_write(const bl_figure_set *figs, const char *dir, bl_error *err);
-BL_API void bl_figure_set_destroy(bl_figure_set *figs);
+bl_status bl_figures_write(const bl_figure_set *figs, const char *dir, bl_error *err);
+void bl_figure_set_destroy(bl_figure_set *figs);
 
 /* Index of the model with the lowest AIC (ties: the first), or -1 when none has a finite AIC. */
-BL_API int bl_figures_best_model(const bl_fit_set *set);
+int bl_figures_best_model(const bl_fit_set *set);
 
-/* Axis text for a parameter, with its unit, e.g. "threshold (evidence units, s = 1)". */
-BL_API const char *bl_figures_param_unit(int param);
 
 #endif

@@ -71,36 +71,36 @@ typedef struct {
 } bl_goodness;
 
 /* The `boundary` value of fit_quantiles.csv: "upper"/"lower", or "correct"/"error" when g->accuracy. */
-BL_API const char *bl_goodness_response_name(const bl_goodness *g, int upper);
+const char *bl_goodness_response_name(const bl_goodness *g, int upper);
 
 /* Index of the binning used for a slope (its regressor and `by` columns), or -1. */
-BL_API int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope);
+int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope);
 
 /* Compute every row for every model of `set`. `threads` <= 0: OpenMP default; results do not
  * depend on it. Errors: BL_ERR_NUMERIC when a mixture quantile cannot be bracketed or solved
  * (message names model, group and boundary), BL_ERR_NOMEM. */
-BL_API bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, const bl_fit_set *set,
-                                     int threads, bl_goodness **out, bl_error *err);
-BL_API void bl_goodness_destroy(bl_goodness *g);
+bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, const bl_fit_set *set,
+                              int threads, bl_goodness **out, bl_error *err);
+void bl_goodness_destroy(bl_goodness *g);
 
 /* fit_quantiles.csv, atomically. Columns (docs/report.md): model, condition, regressor, bin,
  * regressor_low, regressor_high, regressor_mean, boundary, trials, responses, observed_share,
  * predicted_share, observed_q10, predicted_q10, ... observed_q90, predicted_q90. Missing "NA";
  * numbers %.17g. */
-BL_API bl_status bl_goodness_write_csv(const bl_goodness *g, const char *path, bl_error *err);
+bl_status bl_goodness_write_csv(const bl_goodness *g, const char *path, bl_error *err);
 
 /* Building blocks (exposed for tests and figures). */
 
 /* Quantile of sorted[0..n-1] at prob in [0, 1] by Hyndman & Fan definition 7. NAN when n == 0. */
-BL_API double bl_goodness_sample_quantile(const double *sorted, size_t n, double prob);
+double bl_goodness_sample_quantile(const double *sorted, size_t n, double prob);
 
 /* Quantiles at probs[0..k-1] (increasing, in (0,1)) of the mixture of n parameter sets with
  * weights w (NULL = equal), each distribution conditional on the boundary `upper`:
  *   F(t) = sum_i w_i cdf_i(t, upper) / sum_i w_i P_i(upper).
  * Also returns the mixture's boundary probability sum_i w_i P_i / sum_i w_i in *share (may be NULL).
  * Quantiles are NAN when that share is below 1e-12. Solved to 1e-9 s (a Newton step below that). */
-BL_API bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n,
-                                               int upper, const double *probs, size_t k, double *q,
-                                               double *share, bl_error *err);
+bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n,
+                                        int upper, const double *probs, size_t k, double *q,
+                                        double *share, bl_error *err);
 
 #endif

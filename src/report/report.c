@@ -186,8 +186,8 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
     fputs("</dl>\n", f);
     if (t) {
         bl_exclusion_count *ex = NULL;
-        size_t nex = bl_trials_exclusion_counts(t, &ex);
-        if (nex == BL_EXCLUSION_COUNTS_NOMEM) report_text_lost = 1;
+        size_t nex = 0;
+        if (bl_trials_exclusion_counts(t, &ex, &nex, NULL)) report_text_lost = 1;
         if (nex > 0 && ex) {
             fputs("<h3>Excluded trials by reason</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">reason</th><th>trials</th></tr>\n", f);
             for (size_t i = 0; i < nex; i++) {
@@ -549,20 +549,20 @@ bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, con
     double t = now_seconds();
     if (seconds) seconds[0] = seconds[1] = seconds[2] = 0;
     if ((st = bl_goodness_compute(study, trials, set, threads, &g, err))) goto done;
-    if (!(path = bl_path_join(dir, "fit_quantiles.csv"))) goto nomem;
+    if (bl_path_join(dir, "fit_quantiles.csv", &path, NULL)) goto nomem;
     if ((st = bl_goodness_write_csv(g, path, err))) goto done;
     free(path);
     path = NULL;
     if (seconds) seconds[0] = now_seconds() - t;
     t = now_seconds();
     if ((st = bl_figures_make(study, trials, power, set, g, &figs, err))) goto done;
-    if (!(path = bl_path_join(dir, "figures"))) goto nomem;
+    if (bl_path_join(dir, "figures", &path, NULL)) goto nomem;
     if ((st = bl_figures_write(figs, path, err))) goto done;
     free(path);
     path = NULL;
     if (seconds) seconds[1] = now_seconds() - t;
     t = now_seconds();
-    if (!(path = bl_path_join(dir, "report.html"))) goto nomem;
+    if (bl_path_join(dir, "report.html", &path, NULL)) goto nomem;
     if ((st = bl_report_write(path, job, study, trials, power, set, g, figs, warnings, err))) goto done;
     if (seconds) seconds[2] = now_seconds() - t;
     goto done;

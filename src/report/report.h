@@ -33,21 +33,21 @@ typedef struct {
 /* Write report.html atomically. `power` and `figs` may be NULL; `g` must be the goodness of fit of
  * `set` (may be NULL: the summary is then left out). Figures are inlined and also linked as
  * figures/<file>. */
-BL_API bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_study *study,
-                                 const bl_trials *trials, const bl_power_result *power, const bl_fit_set *set,
-                                 const bl_goodness *g, const bl_figure_set *figs, const bl_warnings *warnings,
-                                 bl_error *err);
+bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_study *study,
+                          const bl_trials *trials, const bl_power_result *power, const bl_fit_set *set,
+                          const bl_goodness *g, const bl_figure_set *figs, const bl_warnings *warnings,
+                          bl_error *err);
 
 /* Everything of the report area in one call, into folder `dir` (which must exist):
  * fit_quantiles.csv, figures/ (five .svg files) and report.html. `power` may be NULL. `seconds`
  * (may be NULL) receives the wall time of the three stages: [0] goodness of fit, [1] figures,
  * [2] report. threads <= 0: OpenMP default (results do not depend on it). */
-BL_API bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, const bl_study *study,
-                                         const bl_trials *trials, const bl_power_result *power,
-                                         const bl_fit_set *set, const bl_warnings *warnings, int threads,
-                                         double seconds[3], bl_error *err);
+bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, const bl_study *study,
+                                  const bl_trials *trials, const bl_power_result *power,
+                                  const bl_fit_set *set, const bl_warnings *warnings, int threads,
+                                  double seconds[3], bl_error *err);
 
 /* The research-use caution shown in the report (and available to other outputs). */
-BL_API const char *bl_report_caution(void);
+const char *bl_report_caution(void);
 
 #endif

@@ -172,7 +172,10 @@ static cJSON *model_json(const bl_model_result *r)
     return o;
 }
 
-cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance, const bl_warnings *warnings)
+/* The fits.json document (caller frees with cJSON_Delete). `provenance` (may be NULL) is copied
+ * in under "provenance"; `warnings` (may be NULL) under "warnings". NULL on allocation failure
+ * (the caller turns it into BL_ERR_NOMEM). */
+static cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance, const bl_warnings *warnings)
 {
     cJSON *root = cJSON_CreateObject(), *models = cJSON_CreateArray(), *warn = cJSON_CreateArray();
     int ok = root && add(root, "mode", cJSON_CreateString(set->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled"));

@@ -28,15 +28,10 @@
 
 #include <cjson/cJSON.h>
 
-/* The fits.json document (caller frees with cJSON_Delete). `provenance` (may be NULL) is copied
- * in under "provenance"; `warnings` (may be NULL) under "warnings". NULL on allocation failure. */
-BL_API cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance,
-                                   const bl_warnings *warnings);
-
-BL_API bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
+bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
                                        const bl_warnings *warnings, bl_error *err);
-BL_API bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, bl_error *err);
-BL_API bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_study *study,
+bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, bl_error *err);
+bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_study *study,
                                          const bl_trials *trials, bl_error *err);
 
 

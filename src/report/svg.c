@@ -460,9 +460,11 @@ static double nicenum(double x, int rnd)
     return nf * pow(10, e);
 }
 
-int bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count)
+bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count,
+                            bl_error *err)
 {
-    if (!isfinite(*lo) || !isfinite(*hi) || *lo > *hi || target < 2) return 0;
+    if (!isfinite(*lo) || !isfinite(*hi) || *lo > *hi || target < 2)
+        return bl_error_set(err, BL_ERR_RANGE, "svg: no ticks for the range [%g, %g] with %d ticks", *lo, *hi, target);
     if (*lo == *hi) {
         double w = *lo != 0 ? fabs(*lo) * 0.1 : 1;
         *lo -= w;
@@ -476,7 +478,7 @@ int bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double 
     *count = (int)(k1 - k0) + 1;
     *lo = k0 * d;
     *hi = k1 * d;
-    return 1;
+    return BL_OK;
 }
 
 /* ---- layout and rendering ---- */
@@ -639,7 +641,7 @@ static void make_scale(const bl_svg_panel *p, int axis, scale_t *s)
         double first, step;
         int count;
         double wlo = lo, whi = hi;
-        if (!bl_svg_nice_ticks(&wlo, &whi, 6, &first, &step, &count)) {
+        if (bl_svg_nice_ticks(&wlo, &whi, 6, &first, &step, &count, NULL)) {
             wlo = 0, whi = 1, first = 0, step = 0.2, count = 6;
         }
         if (!a->fixed) lo = wlo, hi = whi;
@@ -724,140 +726,180 @@ static int fit_font(const char *s, double room)
     return fs;
 }
 
+/* What the element renderers share: the stream, the panel's axes and scales, and its plot box. */
+typedef struct {
+    FILE *f;
+    const axis_t *ax, *ay;
+    const scale_t *sx, *sy;
+    box_t b;
+} draw_ctx;
+
+static double dx(const draw_ctx *c, double v) { return map(c->sx, tr(c->ax, v)); }
+static double dy(const draw_ctx *c, double v) { return map(c->sy, tr(c->ay, v)); }
+
+/* A polyline, broken at non-finite points. */
+static void render_line(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    fputs("<path d=\"", f);
+    int pen = 0;
+    for (size_t i = 0; i < e->n; i++) {
+        double x = dx(c, e->x[i]), y = dy(c, e->y[i]);
+        if (!isfinite(x) || !isfinite(y)) {
+            pen = 0;
+            continue;
+        }
+        fputc(pen ? 'L' : 'M', f);
+        num(f, x), fputc(' ', f), num(f, y);
+        pen = 1;
+    }
+    fputc('"', f);
+    stroke_attrs(f, e, 1.5);
+    fputs(" stroke-linejoin=\"round\"/>\n", f);
+}
+
+/* Markers at the finite points. */
+static void render_points(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    double r = e->style.size > 0 ? e->style.size : 3;
+    fprintf(f, "<g fill=\"%s\"", e->color);
+    if (e->style.opacity > 0 && e->style.opacity < 1) fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
+    fputs(">", f);
+    for (size_t i = 0; i < e->n; i++) {
+        double x = dx(c, e->x[i]), y = dy(c, e->y[i]);
+        if (isfinite(x) && isfinite(y)) marker(f, e->style.marker, x, y, r);
+    }
+    fputs("</g>\n", f);
+}
+
+/* Error bars with small caps. */
+static void render_errorbars(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    fputs("<path d=\"", f);
+    for (size_t i = 0; i < e->n; i++) {
+        if (e->axis == BL_SVG_Y) {
+            double x = dx(c, e->x[i]), y0 = dy(c, e->lo[i]), y1 = dy(c, e->hi[i]);
+            if (!isfinite(x) || !isfinite(y0) || !isfinite(y1)) continue;
+            fputc('M', f), num(f, x), fputc(' ', f), num(f, y0), fputc('V', f), num(f, y1);
+            fputc('M', f), num(f, x - 3), fputc(' ', f), num(f, y0), fputc('H', f), num(f, x + 3);
+            fputc('M', f), num(f, x - 3), fputc(' ', f), num(f, y1), fputc('H', f), num(f, x + 3);
+        } else {
+            double y = dy(c, e->y[i]), x0 = dx(c, e->lo[i]), x1 = dx(c, e->hi[i]);
+            if (!isfinite(y) || !isfinite(x0) || !isfinite(x1)) continue;
+            fputc('M', f), num(f, x0), fputc(' ', f), num(f, y), fputc('H', f), num(f, x1);
+            fputc('M', f), num(f, x0), fputc(' ', f), num(f, y - 3), fputc('V', f), num(f, y + 3);
+            fputc('M', f), num(f, x1), fputc(' ', f), num(f, y - 3), fputc('V', f), num(f, y + 3);
+        }
+    }
+    fputc('"', f);
+    stroke_attrs(f, e, 1.2);
+    fputs("/>\n", f);
+}
+
+/* A shaded band: one closed polygon per run of finite values. */
+static void render_ribbon(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    size_t i = 0;
+    while (i < e->n) {
+        size_t j = i;
+        while (j < e->n && isfinite(dx(c, e->x[j])) && isfinite(dy(c, e->lo[j])) && isfinite(dy(c, e->hi[j]))) j++;
+        if (j > i + 1) {
+            fprintf(f, "<path fill=\"%s\" fill-opacity=\"", e->color);
+            num(f, e->style.opacity > 0 ? e->style.opacity : 0.2);
+            fputs("\" stroke=\"none\" d=\"", f);
+            for (size_t k = i; k < j; k++) {
+                fputc(k == i ? 'M' : 'L', f);
+                num(f, dx(c, e->x[k])), fputc(' ', f), num(f, dy(c, e->hi[k]));
+            }
+            for (size_t k = j; k-- > i;) {
+                fputc('L', f);
+                num(f, dx(c, e->x[k])), fputc(' ', f), num(f, dy(c, e->lo[k]));
+            }
+            fputs("Z\"/>\n", f);
+        }
+        i = j > i ? j : i + 1;
+    }
+}
+
+/* A shaded vertical span over the plot box, with its label. */
+static void render_vspan(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    box_t b = c->b;
+    double x0 = fmax(dx(c, e->a), b.x0), x1 = fmin(dx(c, e->b), b.x1);
+    if (!isfinite(x0) || !isfinite(x1) || x1 <= x0) return;
+    fprintf(f, "<rect fill=\"%s\" fill-opacity=\"", e->color);
+    num(f, e->style.opacity > 0 ? e->style.opacity : 0.15);
+    fputs("\" x=\"", f), num(f, x0), fputs("\" y=\"", f), num(f, b.y0);
+    fputs("\" width=\"", f), num(f, x1 - x0), fputs("\" height=\"", f), num(f, b.y1 - b.y0), fputs("\"/>\n", f);
+    if (e->text) text_el(f, (x0 + x1) / 2, b.y0 + 12, FS_SPAN, "middle", "fill=\"#333333\"", e->text);
+}
+
+/* Bars from the base line (0 when inside the range) to each value. */
+static void render_bars(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    const scale_t *sy = c->sy;
+    const axis_t *ay = c->ay;
+    double base = ay->log ? sy->lo : (sy->lo <= 0 && sy->hi >= 0 ? 0 : sy->lo);
+    double yb = map(sy, base);
+    fprintf(f, "<g fill=\"%s\"", e->color);
+    if (e->style.opacity > 0 && e->style.opacity < 1) fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
+    fputs(">", f);
+    for (size_t i = 0; i < e->n; i++) {
+        double x0 = dx(c, e->x[i] - e->a / 2), x1 = dx(c, e->x[i] + e->a / 2), y = dy(c, e->y[i]);
+        if (!isfinite(x0) || !isfinite(x1) || !isfinite(y)) continue;
+        double top = fmin(y, yb), h = fabs(y - yb);
+        fputs("<rect x=\"", f), num(f, fmin(x0, x1)), fputs("\" y=\"", f), num(f, top);
+        fputs("\" width=\"", f), num(f, fabs(x1 - x0)), fputs("\" height=\"", f), num(f, h), fputs("\"/>", f);
+    }
+    fputs("</g>\n", f);
+}
+
+/* A reference line across the plot box. */
+static void render_refline(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    box_t b = c->b;
+    double v = e->axis == BL_SVG_X ? dx(c, e->a) : dy(c, e->a);
+    if (!isfinite(v)) return;
+    fputs("<path d=\"", f);
+    if (e->axis == BL_SVG_X) fputc('M', f), num(f, v), fputc(' ', f), num(f, b.y0), fputc('V', f), num(f, b.y1);
+    else fputc('M', f), num(f, b.x0), fputc(' ', f), num(f, v), fputc('H', f), num(f, b.x1);
+    fputc('"', f);
+    stroke_attrs(f, e, 1);
+    fputs("/>\n", f);
+}
+
+/* A label above a data point. */
+static void render_text(const draw_ctx *c, const element *e)
+{
+    FILE *f = c->f;
+    double x = dx(c, e->a), y = dy(c, e->b);
+    if (!isfinite(x) || !isfinite(y)) return;
+    char fill[32];
+    snprintf(fill, sizeof fill, "fill=\"%s\"", e->color);
+    text_el(f, x, y - e->style.width, FS_SPAN, "middle", fill, e->text);
+}
+
 static void render_element(FILE *f, const bl_svg_panel *p, const element *e, const scale_t *sx, const scale_t *sy,
                            box_t b)
 {
-    const axis_t *ax = &p->ax[0], *ay = &p->ax[1];
-#define PX(v) map(sx, tr(ax, (v)))
-#define PY(v) map(sy, tr(ay, (v)))
+    const draw_ctx c = {f, &p->ax[0], &p->ax[1], sx, sy, b};
     switch (e->kind) {
-    case EL_LINE: {
-        fputs("<path d=\"", f);
-        int pen = 0;
-        for (size_t i = 0; i < e->n; i++) {
-            double x = PX(e->x[i]), y = PY(e->y[i]);
-            if (!isfinite(x) || !isfinite(y)) {
-                pen = 0;
-                continue;
-            }
-            fputc(pen ? 'L' : 'M', f);
-            num(f, x), fputc(' ', f), num(f, y);
-            pen = 1;
-        }
-        fputc('"', f);
-        stroke_attrs(f, e, 1.5);
-        fputs(" stroke-linejoin=\"round\"/>\n", f);
-        break;
+    case EL_LINE: render_line(&c, e); break;
+    case EL_POINTS: render_points(&c, e); break;
+    case EL_ERRORBARS: render_errorbars(&c, e); break;
+    case EL_RIBBON: render_ribbon(&c, e); break;
+    case EL_VSPAN: render_vspan(&c, e); break;
+    case EL_BARS: render_bars(&c, e); break;
+    case EL_REFLINE: render_refline(&c, e); break;
+    case EL_NOTE: text_el(f, (b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2, FS_LABEL, "middle", "fill=\"#555555\"", e->text); break;
+    case EL_TEXT: render_text(&c, e); break;
     }
-    case EL_POINTS: {
-        double r = e->style.size > 0 ? e->style.size : 3;
-        fprintf(f, "<g fill=\"%s\"", e->color);
-        if (e->style.opacity > 0 && e->style.opacity < 1) fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
-        fputs(">", f);
-        for (size_t i = 0; i < e->n; i++) {
-            double x = PX(e->x[i]), y = PY(e->y[i]);
-            if (isfinite(x) && isfinite(y)) marker(f, e->style.marker, x, y, r);
-        }
-        fputs("</g>\n", f);
-        break;
-    }
-    case EL_ERRORBARS: {
-        fputs("<path d=\"", f);
-        for (size_t i = 0; i < e->n; i++) {
-            if (e->axis == BL_SVG_Y) {
-                double x = PX(e->x[i]), y0 = PY(e->lo[i]), y1 = PY(e->hi[i]);
-                if (!isfinite(x) || !isfinite(y0) || !isfinite(y1)) continue;
-                fputc('M', f), num(f, x), fputc(' ', f), num(f, y0), fputc('V', f), num(f, y1);
-                fputc('M', f), num(f, x - 3), fputc(' ', f), num(f, y0), fputc('H', f), num(f, x + 3);
-                fputc('M', f), num(f, x - 3), fputc(' ', f), num(f, y1), fputc('H', f), num(f, x + 3);
-            } else {
-                double y = PY(e->y[i]), x0 = PX(e->lo[i]), x1 = PX(e->hi[i]);
-                if (!isfinite(y) || !isfinite(x0) || !isfinite(x1)) continue;
-                fputc('M', f), num(f, x0), fputc(' ', f), num(f, y), fputc('H', f), num(f, x1);
-                fputc('M', f), num(f, x0), fputc(' ', f), num(f, y - 3), fputc('V', f), num(f, y + 3);
-                fputc('M', f), num(f, x1), fputc(' ', f), num(f, y - 3), fputc('V', f), num(f, y + 3);
-            }
-        }
-        fputc('"', f);
-        stroke_attrs(f, e, 1.2);
-        fputs("/>\n", f);
-        break;
-    }
-    case EL_RIBBON: {
-        /* One closed polygon per run of finite values. */
-        size_t i = 0;
-        while (i < e->n) {
-            size_t j = i;
-            while (j < e->n && isfinite(PX(e->x[j])) && isfinite(PY(e->lo[j])) && isfinite(PY(e->hi[j]))) j++;
-            if (j > i + 1) {
-                fprintf(f, "<path fill=\"%s\" fill-opacity=\"", e->color);
-                num(f, e->style.opacity > 0 ? e->style.opacity : 0.2);
-                fputs("\" stroke=\"none\" d=\"", f);
-                for (size_t k = i; k < j; k++) {
-                    fputc(k == i ? 'M' : 'L', f);
-                    num(f, PX(e->x[k])), fputc(' ', f), num(f, PY(e->hi[k]));
-                }
-                for (size_t k = j; k-- > i;) {
-                    fputc('L', f);
-                    num(f, PX(e->x[k])), fputc(' ', f), num(f, PY(e->lo[k]));
-                }
-                fputs("Z\"/>\n", f);
-            }
-            i = j > i ? j : i + 1;
-        }
-        break;
-    }
-    case EL_VSPAN: {
-        double x0 = fmax(PX(e->a), b.x0), x1 = fmin(PX(e->b), b.x1);
-        if (!isfinite(x0) || !isfinite(x1) || x1 <= x0) break;
-        fprintf(f, "<rect fill=\"%s\" fill-opacity=\"", e->color);
-        num(f, e->style.opacity > 0 ? e->style.opacity : 0.15);
-        fputs("\" x=\"", f), num(f, x0), fputs("\" y=\"", f), num(f, b.y0);
-        fputs("\" width=\"", f), num(f, x1 - x0), fputs("\" height=\"", f), num(f, b.y1 - b.y0), fputs("\"/>\n", f);
-        if (e->text) text_el(f, (x0 + x1) / 2, b.y0 + 12, FS_SPAN, "middle", "fill=\"#333333\"", e->text);
-        break;
-    }
-    case EL_BARS: {
-        double base = ay->log ? sy->lo : (sy->lo <= 0 && sy->hi >= 0 ? 0 : sy->lo);
-        double yb = map(sy, base);
-        fprintf(f, "<g fill=\"%s\"", e->color);
-        if (e->style.opacity > 0 && e->style.opacity < 1) fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
-        fputs(">", f);
-        for (size_t i = 0; i < e->n; i++) {
-            double x0 = PX(e->x[i] - e->a / 2), x1 = PX(e->x[i] + e->a / 2), y = PY(e->y[i]);
-            if (!isfinite(x0) || !isfinite(x1) || !isfinite(y)) continue;
-            double top = fmin(y, yb), h = fabs(y - yb);
-            fputs("<rect x=\"", f), num(f, fmin(x0, x1)), fputs("\" y=\"", f), num(f, top);
-            fputs("\" width=\"", f), num(f, fabs(x1 - x0)), fputs("\" height=\"", f), num(f, h), fputs("\"/>", f);
-        }
-        fputs("</g>\n", f);
-        break;
-    }
-    case EL_REFLINE: {
-        double v = e->axis == BL_SVG_X ? PX(e->a) : PY(e->a);
-        if (!isfinite(v)) break;
-        fputs("<path d=\"", f);
-        if (e->axis == BL_SVG_X) fputc('M', f), num(f, v), fputc(' ', f), num(f, b.y0), fputc('V', f), num(f, b.y1);
-        else fputc('M', f), num(f, b.x0), fputc(' ', f), num(f, v), fputc('H', f), num(f, b.x1);
-        fputc('"', f);
-        stroke_attrs(f, e, 1);
-        fputs("/>\n", f);
-        break;
-    }
-    case EL_NOTE:
-        text_el(f, (b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2, FS_LABEL, "middle", "fill=\"#555555\"", e->text);
-        break;
-    case EL_TEXT: {
-        double x = PX(e->a), y = PY(e->b);
-        if (!isfinite(x) || !isfinite(y)) break;
-        char fill[32];
-        snprintf(fill, sizeof fill, "fill=\"%s\"", e->color);
-        text_el(f, x, y - e->style.width, FS_SPAN, "middle", fill, e->text);
-        break;
-    }
-    }
-#undef PX
-#undef PY
 }
 
 static void render_panel(FILE *f, const bl_svg *fig, int index, double ox, double oy)
@@ -1141,24 +1183,4 @@ bl_status bl_svg_render(const bl_svg *fig, char **out, size_t *size, bl_error *e
     *out = b.buf;
     *size = b.len;
     return BL_OK;
-}
-
-bl_status bl_svg_write(const bl_svg *fig, const char *path, bl_error *err)
-{
-    char *svg = NULL;
-    size_t n = 0;
-    bl_status st = bl_svg_render(fig, &svg, &n, err);
-    if (st != BL_OK) return st;
-    static const char decl[] = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
-    char *all = malloc(sizeof decl - 1 + n);
-    if (!all) {
-        free(svg);
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing %s", path);
-    }
-    memcpy(all, decl, sizeof decl - 1);
-    memcpy(all + sizeof decl - 1, svg, n);
-    st = bl_write_file_atomic(path, all, sizeof decl - 1 + n, err);
-    free(all);
-    free(svg);
-    return st;
 }

@@ -518,7 +518,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     free(align);
     warn_window_confound(s, t, jobs, n_jobs, r, warn);
 
-    if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, (bl_welch_detrend)s->power.detrend,
+    if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, s->power.detrend,
                                    s->power.median ? BL_WELCH_MEDIAN : BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, err)))
         goto fail;
     r->df = bl_welch_df(plan);
@@ -804,8 +804,9 @@ static void sb_printf(sbuf *b, const char *fmt, ...)
     }
 }
 
-char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_result *r)
+bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_result *r, char **out, bl_error *err)
 {
+    *out = NULL;
     sbuf b = {0};
     static const char *const scales[] = {"linear", "log10", "db"};
     static const char *const stds[] = {"none", "participant", "participant_condition"};
@@ -817,8 +818,8 @@ char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_res
     if (t->n_participants > 20) sb_printf(&b, " ...");
     sb_printf(&b, "\ntrials       %zu, kept %zu, excluded %zu\n", t->n, t->n_kept, t->n - t->n_kept);
     bl_exclusion_count *ec = NULL;
-    size_t ne = bl_trials_exclusion_counts(t, &ec);
-    if (ne == BL_EXCLUSION_COUNTS_NOMEM) b.failed = 1;
+    size_t ne = 0;
+    if (bl_trials_exclusion_counts(t, &ec, &ne, NULL)) b.failed = 1;
     for (size_t k = 0; ec && k < ne; k++) sb_printf(&b, "  excluded   %-40s %zu\n", ec[k].reason, ec[k].count);
     free(ec);
     size_t n_up = 0, n_kept = 0;
@@ -867,7 +868,8 @@ char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_res
     sb_printf(&b, "output       %s\n", s->output);
     if (b.failed) {
         free(b.buf);
-        return NULL;
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the check summary");
     }
-    return b.buf;
+    *out = b.buf;
+    return BL_OK;
 }

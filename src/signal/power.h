@@ -64,20 +64,21 @@ typedef struct {
  * "artifact: clipping", "artifact: non-finite"). A window outside the recording, a missing file or
  * channel are errors naming participant, trial and file. threads <= 0: OpenMP default; results are
  * identical for any thread count. */
-BL_API bl_status bl_power_compute(const bl_study *study, bl_trials *trials, int threads,
-                                  bl_power_result **out, bl_warnings *warn, bl_error *err);
-BL_API void bl_power_result_destroy(bl_power_result *r);
+bl_status bl_power_compute(const bl_study *study, bl_trials *trials, int threads,
+                           bl_power_result **out, bl_warnings *warn, bl_error *err);
+void bl_power_result_destroy(bl_power_result *r);
 
 /* Write power.csv (columns: participant, trial, the trial table's columns, <band>_power and <band>
  * per band, artifact). Atomic. Missing values "NA", numbers %.17g. An artifact-flagged trial keeps
  * its raw <band>_power (from artifact_power); its regressor <band> is NA. */
-BL_API bl_status bl_power_write_csv(const bl_study *study, const bl_trials *trials,
-                                    const bl_power_result *result, const char *path, bl_error *err);
+bl_status bl_power_write_csv(const bl_study *study, const bl_trials *trials,
+                             const bl_power_result *result, const char *path, bl_error *err);
 
 /* Human-readable summary for `bandlink check`: participants, trials kept/excluded by reason,
  * recordings (rate, channels, duration, format), Welch settings, frequency resolution and bins per band.
- * result may be NULL (study without recordings). Caller frees. NULL on allocation failure. */
-BL_API char *bl_check_summary(const bl_study *study, const bl_trials *trials,
-                              const bl_power_result *result);
+ * result may be NULL (study without recordings). Caller frees *out. BL_ERR_NOMEM (*out NULL) when memory
+ * ran out. */
+bl_status bl_check_summary(const bl_study *study, const bl_trials *trials, const bl_power_result *result,
+                           char **out, bl_error *err);
 
 #endif

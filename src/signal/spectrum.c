@@ -8,6 +8,7 @@
  */
 #include "signal/spectrum.h"
 
+#include "core/gsl_guard.h"
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fft_real.h>
 #include <math.h>
@@ -17,7 +18,7 @@
 struct bl_welch_plan {
     double fs;
     size_t nperseg, noverlap, nfft, n_freqs;
-    bl_welch_detrend detrend;
+    bl_detrend detrend;
     bl_welch_average average;
     double *window;
     double scale;                        /* per-segment |X|^2 factor */
@@ -33,9 +34,10 @@ struct bl_welch_work {
     double *seg;                         /* n_freqs: one segment's power (mean average) */
 };
 
-bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_t nfft, bl_welch_detrend detrend,
+bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_t nfft, bl_detrend detrend,
                                bl_welch_average average, bl_welch_scaling scaling, bl_welch_plan **out, bl_error *err)
 {
+    bl_gsl_guard();
     *out = NULL;
     if (nfft == 0) nfft = nperseg;
     if (!(fs > 0) || !isfinite(fs)) return bl_error_set(err, BL_ERR_INPUT, "Welch: sampling rate %g is not > 0", fs);
@@ -91,6 +93,7 @@ size_t bl_welch_n_segments(const bl_welch_plan *p, size_t n)
 
 bl_status bl_welch_work_create(const bl_welch_plan *p, size_t max_n, bl_welch_work **out, bl_error *err)
 {
+    bl_gsl_guard();
     *out = NULL;
     bl_welch_work *w = calloc(1, sizeof *w);
     if (!w) return bl_error_set(err, BL_ERR_NOMEM, "out of memory for a Welch workspace");
@@ -127,13 +130,13 @@ static int segment_power(const bl_welch_plan *p, bl_welch_work *w, const double 
 {
     size_t m = p->nperseg, nfft = p->nfft;
     double *b = w->buf;
-    if (p->detrend == BL_WELCH_DETREND_NONE) {
+    if (p->detrend == BL_DETREND_NONE) {
         for (size_t i = 0; i < m; i++) b[i] = x[i] * p->window[i];
     } else {
         double mean = 0;
         for (size_t i = 0; i < m; i++) mean += x[i];
         mean /= (double)m;
-        if (p->detrend == BL_WELCH_DETREND_CONSTANT) {
+        if (p->detrend == BL_DETREND_MEAN) {
             for (size_t i = 0; i < m; i++) b[i] = (x[i] - mean) * p->window[i];
         } else {
             /* least-squares line on centred time t = i - (m-1)/2: slope = sum t*y / sum t^2 */

@@ -227,7 +227,6 @@ fail:
 }
 
 const bl_trace_info *bl_trace_get_info(const bl_trace *t) { return &t->info; }
-const char *bl_trace_path(const bl_trace *t) { return t->path; }
 
 bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err)
 {

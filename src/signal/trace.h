@@ -31,13 +31,12 @@ typedef struct {
 
 /* Open a recording. `csv_rate` [Hz] is required (> 0) for CSV/TSV traces (files ending in .csv,
  * .tsv or .txt) and ignored otherwise. Errors name the file. */
-BL_API bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_error *err);
-BL_API const bl_trace_info *bl_trace_get_info(const bl_trace *t);
-BL_API const char *bl_trace_path(const bl_trace *t);
+bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_error *err);
+const bl_trace_info *bl_trace_get_info(const bl_trace *t);
 /* Read frames [start, start + n) of every channel, interleaved, into buf (n * channels doubles).
  * BL_ERR_INPUT when the range leaves the recording; BL_ERR_IO when fewer frames come back. */
-BL_API bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err);
-BL_API void bl_trace_close(bl_trace *t);
+bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err);
+void bl_trace_close(bl_trace *t);
 
 /* A channel selection: each entry is one channel ("3") or a bipolar pair ("1-2" = channel 1 minus
  * channel 2); 1-based; several entries are averaged. */
@@ -47,18 +46,18 @@ typedef struct {
 } bl_montage;
 
 /* Parse channel specifications; errors name `key` (e.g. "recordings.channels[1]") and the value. */
-BL_API bl_status bl_montage_parse(const char *const *specs, size_t n, const char *key, bl_montage **out,
-                                  bl_error *err);
+bl_status bl_montage_parse(const char *const *specs, size_t n, const char *key, bl_montage **out,
+                           bl_error *err);
 /* Largest channel number (1-based) the montage uses. */
-BL_API int bl_montage_max_channel(const bl_montage *m);
+int bl_montage_max_channel(const bl_montage *m);
 /* out[f] = gain * mean_i (x[f, pos_i] - x[f, neg_i]) for f < frames, from interleaved x. */
-BL_API void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_t channels,
-                             double gain, double *out);
-BL_API void bl_montage_destroy(bl_montage *m);
+void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_t channels,
+                      double gain, double *out);
+void bl_montage_destroy(bl_montage *m);
 
 /* Fill {column} placeholders of a file pattern from row `row` of the table; errors name the pattern,
  * the column and the table line. Caller frees *out. */
-BL_API bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t row, char **out,
-                                   bl_error *err);
+bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t row, char **out,
+                            bl_error *err);
 
 #endif

@@ -16,7 +16,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     bl_study *s = NULL;
     bl_error err = {0};
     if (bl_study_parse(json, "/tmp/fuzz/study.json", &s, &err) == BL_OK) {
-        char *text = bl_study_to_json(s);
+        char *text = NULL;
+        bl_study_to_json(s, &text, &err);
         free(text);
         bl_study_destroy(s);
     }

@@ -1,0 +1,376 @@
+/* The fits of a study: every selected model, pooled or one fit per participant, in the order this
+ * file owns: designs (checked before anything is fitted), the fits, per-model totals and
+ * predictions, group summaries and permutation tests (compare.c), nesting, and the comparison.
+ *
+ * Layering: this file calls fit.c (one design fitted) and compare.c (summaries of fitted models);
+ * compare.c calls fit.c for its refits; fit.c calls neither, so the three have no cycle.
+ */
+#include "fit/fit_internal.h"
+#include "design/model_internal.h"
+
+#include "fit/fit.h"
+#include "fit/screen.h"
+#include "core/strutil.h"
+#include "core/gsl_guard.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#ifdef _OPENMP
+#include <omp.h>
+#endif
+
+/* Everything one bl_fit_study call builds on the way to its bl_fit_set. */
+typedef struct {
+    const bl_study *study;
+    const bl_trials *trials;
+    bl_fit_options opt;
+    size_t *sel;           /* study model index of each selected model */
+    size_t n_sel;
+    bl_unit_set *units;    /* per selected model: its compiled designs, workspaces, estimates */
+    char ***unit_names;    /* per selected model: participant label of each unit (separate mode) */
+    bl_fit_set *set;
+} study_fit;
+
+static void fill_predictions(bl_model_result *r, const bl_model *m, const double *coef, bl_likelihood *lik)
+{
+    double *tll = malloc(m->n * sizeof *tll);
+    if (tll) bl_likelihood_trials(lik, coef, tll);
+    for (size_t k = 0; k < m->n; k++) {
+        size_t row = m->row[k];
+        bl_wiener_params p;
+        bl_model_predict(m, coef, k, &p);
+        r->used[row] = 1;
+        r->predicted[row] = p;
+        double pu = NAN, mu = NAN, ml = NAN;
+        if (bl_wiener_p_upper(&p, &pu, NULL) != BL_OK) pu = NAN;
+        double mean = NAN;
+        if (isfinite(pu)) {
+            int ok_u = pu > 1e-12 ? bl_wiener_mean_rt(&p, 1, &mu, NULL) == BL_OK : 1;
+            int ok_l = pu < 1 - 1e-12 ? bl_wiener_mean_rt(&p, 0, &ml, NULL) == BL_OK : 1;
+            if (ok_u && ok_l) mean = (pu > 1e-12 ? pu * mu : 0) + (pu < 1 - 1e-12 ? (1 - pu) * ml : 0);
+        }
+        r->p_upper[row] = pu;
+        r->mean_rt[row] = mean;
+        r->trial_log_likelihood[row] = tll ? tll[k] : NAN;
+    }
+    free(tll);
+}
+
+static void model_result_free(bl_model_result *r)
+{
+    free(r->name);
+    free(r->extends);
+    bl_fit_result_clear(&r->fit);
+    for (size_t i = 0; i < r->n_participants; i++) bl_fit_result_clear(&r->participants[i]);
+    free(r->participants);
+    for (size_t i = 0; i < r->n_group; i++) {
+        free(r->group[i].term);
+        free(r->group[i].level);
+    }
+    free(r->group);
+    for (size_t i = 0; i < r->n_permutation; i++) {
+        free(r->permutation[i].regressor);
+        free(r->permutation[i].level);
+    }
+    free(r->permutation);
+    free(r->used);
+    free(r->predicted);
+    free(r->p_upper);
+    free(r->mean_rt);
+    free(r->trial_log_likelihood);
+}
+
+void bl_fit_set_destroy(bl_fit_set *set)
+{
+    if (!set) return;
+    for (size_t i = 0; i < set->n_models; i++) model_result_free(&set->models[i]);
+    free(set->models);
+    if (set->comparison)
+        for (size_t i = 0; i < set->n_models; i++) {
+            free(set->comparison[i].name);
+            free(set->comparison[i].lrt_against);
+        }
+    free(set->comparison);
+    free(set);
+}
+
+/* Every name given with options->models must be a model of the study. */
+static bl_status check_model_names(const bl_study *study, const bl_fit_options *opt, bl_error *err)
+{
+    for (size_t i = 0; i < opt->n_models; i++) {
+        size_t j;
+        for (j = 0; j < study->n_models; j++)
+            if (!strcmp(study->models[j].name, opt->models[i])) break;
+        if (j < study->n_models) continue;
+        char names[512] = "";
+        for (size_t q = 0; q < study->n_models; q++) {
+            size_t len = strlen(names);
+            snprintf(names + len, sizeof names - len, "%s'%s'", q ? ", " : "", study->models[q].name);
+        }
+        return bl_error_set(err, BL_ERR_USAGE, "--model: the study has no model '%s' (it has %s)", opt->models[i],
+                            names);
+    }
+    return BL_OK;
+}
+
+static void study_fit_free(study_fit *sf)
+{
+    for (size_t q = 0; q < sf->n_sel; q++) {
+        if (sf->units) bl_unit_set_free(&sf->units[q]);
+        if (sf->unit_names) free(sf->unit_names[q]);
+    }
+    free(sf->units);
+    free(sf->unit_names);
+    free(sf->sel);
+    sf->units = NULL;
+    sf->unit_names = NULL;
+    sf->sel = NULL;
+}
+
+/* The selected models in study order, and the empty result set. */
+static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_trials *trials,
+                                const bl_fit_options *opt_in, bl_error *err)
+{
+    memset(sf, 0, sizeof *sf);
+    sf->study = study;
+    sf->trials = trials;
+    if (opt_in) sf->opt = *opt_in;
+    else bl_fit_options_default(&sf->opt);
+    if (sf->opt.starts <= 0) sf->opt.starts = study->fit.starts > 0 ? study->fit.starts : 3;
+    size_t n_alloc = study->n_models ? study->n_models : 1;
+    sf->sel = calloc(n_alloc, sizeof *sf->sel);
+    sf->units = calloc(n_alloc, sizeof *sf->units);
+    sf->unit_names = calloc(n_alloc, sizeof *sf->unit_names);
+    sf->set = calloc(1, sizeof *sf->set);
+    if (!sf->sel || !sf->units || !sf->unit_names || !sf->set) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    for (size_t j = 0; j < study->n_models; j++) {
+        int want = sf->opt.n_models == 0;
+        for (size_t i = 0; i < sf->opt.n_models; i++)
+            if (!strcmp(study->models[j].name, sf->opt.models[i])) want = 1;
+        if (want) sf->sel[sf->n_sel++] = j;
+    }
+    bl_fit_set *set = sf->set;
+    set->mode = study->fit.participants;
+    set->permutations = sf->opt.permutations;
+    set->seed = sf->opt.seed;
+    set->threads = sf->opt.threads;
+    set->models = calloc(sf->n_sel ? sf->n_sel : 1, sizeof *set->models);
+    if (!set->models) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    set->n_models = sf->n_sel;
+    return BL_OK;
+}
+
+/* A model result with its name and trial-wise arrays (predictions NAN until fitted). */
+static bl_status model_result_init(bl_model_result *r, const bl_model_spec *spec, bl_participants_mode mode,
+                                   size_t n_rows, bl_error *err)
+{
+    size_t n = n_rows ? n_rows : 1;
+    r->mode = mode;
+    r->nested = -1;
+    r->n_rows = n_rows;
+    r->name = bl_strdup(spec->name);
+    r->extends = spec->extends ? bl_strdup(spec->extends) : NULL;
+    r->used = calloc(n, 1);
+    r->predicted = calloc(n, sizeof *r->predicted);
+    r->p_upper = malloc(n * sizeof(double));
+    r->mean_rt = malloc(n * sizeof(double));
+    r->trial_log_likelihood = malloc(n * sizeof(double));
+    if (!r->name || (spec->extends && !r->extends) || !r->used || !r->predicted || !r->p_upper || !r->mean_rt ||
+        !r->trial_log_likelihood)
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    for (size_t i = 0; i < n_rows; i++) {
+        r->p_upper[i] = r->mean_rt[i] = r->trial_log_likelihood[i] = NAN;
+        for (int p = 0; p < BL_NPARAM; p++) r->predicted[i].value[p] = NAN;
+        r->predicted[i].contamination_lo = r->predicted[i].contamination_hi = NAN;
+    }
+    return BL_OK;
+}
+
+/* Step 1: the designs of every model (and participant), compiled and checked before any fit. */
+static bl_status build_designs(study_fit *sf, bl_warnings *warn, bl_error *err)
+{
+    bl_fit_set *set = sf->set;
+    for (size_t q = 0; q < sf->n_sel; q++) {
+        const bl_model_spec *spec = &sf->study->models[sf->sel[q]];
+        bl_model_result *r = &set->models[q];
+        bl_status st = model_result_init(r, spec, set->mode, sf->trials->n, err);
+        if (!st) st = bl_build_units(spec, sf->trials, set->mode, &sf->opt, &sf->units[q], &sf->unit_names[q], warn, err);
+        if (st) return st;
+        if (set->mode != BL_PARTICIPANTS_SEPARATE) continue;
+        r->participants = calloc(sf->units[q].n_units, sizeof *r->participants);
+        if (!r->participants) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        r->n_participants = sf->units[q].n_units;
+        for (size_t i = 0; i < sf->units[q].n_units; i++)
+            if (!(r->participants[i].participant = bl_strdup(sf->unit_names[q][i])))
+                return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    return BL_OK;
+}
+
+/* Step 2: the fits. Several fits (models, participants) run side by side, each on one thread, with
+ * the same results as one after the other; a single fit spreads its trials over the threads. The
+ * first failure in job order is reported, whatever order the threads finished in. */
+static bl_status run_fits(study_fit *sf, bl_error *err)
+{
+    bl_fit_set *set = sf->set;
+    const bl_fit_options *opt = &sf->opt;
+    size_t n_jobs = 0;
+    for (size_t q = 0; q < sf->n_sel; q++) n_jobs += sf->units[q].n_units;
+    size_t n_alloc = n_jobs ? n_jobs : 1;
+    size_t *job_q = malloc(n_alloc * sizeof *job_q), *job_i = malloc(n_alloc * sizeof *job_i);
+    bl_status *job_st = calloc(n_alloc, sizeof *job_st);
+    bl_error *job_err = calloc(n_alloc, sizeof *job_err);
+    bl_status st = BL_OK;
+    if (!job_q || !job_i || !job_st || !job_err) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
+    for (size_t q = 0, j = 0; q < sf->n_sel; q++)
+        for (size_t i = 0; i < sf->units[q].n_units; i++, j++) {
+            job_q[j] = q;
+            job_i[j] = i;
+        }
+    size_t jobs_done = 0;
+    int nt = 1;
+#ifdef _OPENMP
+    nt = opt->threads > 0 ? opt->threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (n_jobs > 1 && nt > 1)
+#endif
+    for (size_t j = 0; j < n_jobs; j++) {
+        size_t q = job_q[j], i = job_i[j];
+        bl_unit_set *u = &sf->units[q];
+        bl_model_result *r = &set->models[q];
+        bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
+        char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
+        fr->participant = NULL;
+        job_st[j] = bl_fit_core(u->models[i], u->liks[i], opt, opt->starts, NULL, 1, fr, u->coef[i], &job_err[j]);
+        fr->participant = keep;
+        if (opt->progress) {
+#ifdef _OPENMP
+#pragma omp critical(bl_fit_progress)
+#endif
+            {
+                jobs_done++;
+                opt->progress(opt->progress_user, r->name, jobs_done, n_jobs);
+            }
+        }
+    }
+    (void)nt;
+    for (size_t j = 0; j < n_jobs && !st; j++)
+        if (job_st[j]) {
+            st = job_st[j];
+            if (err) *err = job_err[j];
+        }
+done:
+    free(job_q);
+    free(job_i);
+    free(job_st);
+    free(job_err);
+    return st;
+}
+
+/* Separate mode: the model's own fit record holds the totals over its participants. */
+static void separate_totals(bl_model_result *r)
+{
+    bl_fit_result *f = &r->fit;
+    f->log_likelihood = r->log_likelihood;
+    f->parameters = r->parameters;
+    f->trials = r->trials;
+    f->aic = r->aic;
+    f->bic = r->bic;
+    f->converged = r->converged;
+    f->diag.method = r->participants[0].diag.method;
+    f->diag.converged = r->converged;
+    f->diag.newton_decrement = f->diag.condition_number = f->diag.gradient_norm = NAN;
+    f->diag.hessian_positive_definite = 1;
+    for (size_t i = 0; i < r->n_participants; i++) {
+        const bl_fit_diagnostics *d = &r->participants[i].diag;
+        f->diag.evaluations += d->evaluations;
+        f->diag.iterations += d->iterations;
+        f->diag.seconds += d->seconds;
+        f->diag.starts += d->starts;
+        f->diag.starts_agreed += d->starts_agreed;
+        f->diag.hessian_positive_definite &= d->hessian_positive_definite;
+    }
+}
+
+/* Step 3, for model q: warnings, predictions, totals, group summary, permutation tests. */
+static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note, bl_warnings *warn, bl_error *err)
+{
+    bl_fit_set *set = sf->set;
+    bl_model_result *r = &set->models[q];
+    bl_unit_set *u = &sf->units[q];
+    r->converged = 1;
+    for (size_t i = 0; i < u->n_units; i++) {
+        bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
+        bl_fit_warn(u->models[i], fr->participant, fr, warn);
+        r->log_likelihood += fr->log_likelihood;
+        r->parameters += fr->parameters;
+        r->trials += fr->trials;
+        r->converged = r->converged && fr->converged;
+        fill_predictions(r, u->models[i], u->coef[i], u->liks[i]);
+    }
+    if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
+        *nondecision_note = 1;
+    r->aic = 2.0 * (double)r->parameters - 2.0 * r->log_likelihood;
+    r->bic = (double)r->parameters * log((double)r->trials) - 2.0 * r->log_likelihood;
+    bl_status st = BL_OK;
+    if (set->mode == BL_PARTICIPANTS_SEPARATE) {
+        separate_totals(r);
+        if ((st = bl_group_summary(r, err))) return st;
+    }
+    return bl_permutation_tests(sf->study, &sf->study->models[sf->sel[q]], sf->trials, &sf->opt, u, r, err);
+}
+
+/* Step 4: nesting for the likelihood-ratio test. The base model must be fitted, and nested unit by unit. */
+static bl_status mark_nesting(study_fit *sf, bl_error *err)
+{
+    bl_fit_set *set = sf->set;
+    for (size_t q = 0; q < sf->n_sel; q++) {
+        bl_model_result *r = &set->models[q];
+        if (!r->extends) continue;
+        size_t b;
+        for (b = 0; b < sf->n_sel; b++)
+            if (!strcmp(set->models[b].name, r->extends)) break;
+        if (b == sf->n_sel) continue;
+        int nested = sf->units[q].n_units == sf->units[b].n_units;
+        for (size_t i = 0; nested && i < sf->units[q].n_units; i++) {
+            bl_status st = bl_model_nested_in(sf->units[b].models[i], sf->units[q].models[i], &nested, err);
+            if (st) return st;
+        }
+        r->nested = nested && set->models[b].parameters < r->parameters;
+    }
+    return BL_OK;
+}
+
+bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt,
+                       bl_fit_set **out, bl_warnings *warn, bl_error *err)
+{
+    bl_gsl_guard();
+    *out = NULL;
+    bl_status st = opt ? check_model_names(study, opt, err) : BL_OK;
+    if (st) return st;
+    study_fit sf;
+    int nondecision_note = 0;
+    if ((st = study_fit_init(&sf, study, trials, opt, err))) goto fail;
+    /* Data the model cannot use (identical RTs) stop here; data that weaken estimates get warnings. */
+    if ((st = bl_screen_trials(study, trials, sf.sel, sf.n_sel, warn, err))) goto fail;
+    if ((st = build_designs(&sf, warn, err))) goto fail;
+    if ((st = run_fits(&sf, err))) goto fail;
+    for (size_t q = 0; q < sf.n_sel; q++)
+        if ((st = summarise_model(&sf, q, &nondecision_note, warn, err))) goto fail;
+    if (nondecision_note)
+        bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
+                              "the fastest RT (see docs/models.md)");
+    if ((st = mark_nesting(&sf, err))) goto fail;
+    if ((st = bl_compare_models(sf.set, err))) goto fail;
+    *out = sf.set;
+    sf.set = NULL;
+fail:
+    study_fit_free(&sf);
+    bl_fit_set_destroy(sf.set);
+    return st;
+}
