@@ -8,6 +8,7 @@
  */
 #include "design/trials.h"
 #include "design/study.h"
+#include "core/groups.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -129,7 +130,7 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
     t->participants = calloc(n, sizeof *t->participants);
     t->trial_label = calloc(n, sizeof *t->trial_label);
     t->excluded = calloc(n, sizeof *t->excluded);
-    size_t *count = calloc(n, sizeof *count);
+    size_t *count = calloc(n, sizeof *count), *part_id = NULL;
     if (!t->rt || !t->upper || !t->drift_sign || !t->participant || !t->participants || !t->trial_label ||
         !t->excluded || !count)
         goto nomem;
@@ -166,7 +167,10 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
         }
 
     const bl_column *part = &tab->cols[c_part], *rtc = &tab->cols[c_rt], *resp = &tab->cols[c_resp];
-    size_t n_upper_rows = 0;
+    size_t n_upper_rows = 0, n_part_ids = 0;
+    if (!(part_id = malloc(n * sizeof *part_id))) goto nomem;
+    if ((st = bl_group_strings((const char *const *)part->text, n, part_id, &n_part_ids, "participants", err)))
+        goto fail;
     for (size_t i = 0; i < n; i++) {
         t->drift_sign[i] = 1;
         t->rt[i] = NAN;
@@ -176,8 +180,7 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
                               file, tab->line[i], part->name, c_part + 1);
             goto fail;
         }
-        size_t k = 0;
-        while (k < t->n_participants && strcmp(t->participants[k], p) != 0) k++;
+        size_t k = part_id[i]; /* numbered by first appearance: a new participant is the next number */
         if (k == t->n_participants) {
             if (!(t->participants[k] = bl_strdup(p))) goto nomem;
             t->n_participants++;
@@ -268,12 +271,14 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
     if (t->n_kept == 0)
         bl_warnings_add(warn, "%s: every trial is excluded by the keep rules or missing values", file);
     free(count);
+    free(part_id);
     *out = t;
     return BL_OK;
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
 fail:
     free(count);
+    free(part_id);
     bl_trials_destroy(t);
     return st;
 }

@@ -15,6 +15,8 @@
 #include "core/output.h"
 #include "signal/spectrum.h"
 #include "signal/trace.h"
+#include "core/groups.h"
+#include "design/cells.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -72,7 +74,13 @@ void bl_power_result_destroy(bl_power_result *r)
     }
     free(r->recordings);
     free(r->freq);
-    free(r->psd);
+    for (size_t c = 0; c < r->n_spectra; c++) {
+        free(r->spectra[c].condition);
+        free(r->spectra[c].n);
+        free(r->spectra[c].mean);
+        free(r->spectra[c].m2);
+    }
+    free(r->spectra);
     free(r->band_power);
     free(r->unit);
     free(r);
@@ -191,8 +199,10 @@ static const char *artifact(const bl_study *s, const bl_trace_info *info, const 
     return NULL;
 }
 
+/* One work item: its trials' PSDs go to block_psd (row k - block_begin), band power to the result. */
 static void process_item(const bl_study *s, bl_power_result *r, const bl_trials *t, const bl_montage *m,
-                         const bl_welch_plan *plan, const job *jobs, item *it, thread_state *ts, const char **reason)
+                         const bl_welch_plan *plan, const job *jobs, item *it, thread_state *ts, const char **reason,
+                         double *block_psd, size_t block_begin)
 {
     if (ts->rec != it->rec) {
         it->status = open_recording(ts, s, r, t, m, it->rec, jobs[it->begin].row, &it->err);
@@ -228,7 +238,7 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
             return;
         }
         bl_montage_apply(m, ts->raw, L, info->channels, s->recordings.gain, ts->x);
-        double *psd = r->psd + row * nf;
+        double *psd = block_psd + (k - block_begin) * nf;
         const char *why = artifact(s, info, m, ts->raw, ts->x, L);
         if (why) {
             reason[row] = why;
@@ -245,6 +255,170 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
     }
 }
 
+/* ---- groups and per-cell spectra ---- */
+
+/* Standardize groups (participant, or participant x power.condition texts), numbered by first
+ * appearance over all rows; first_of_group[g] is the first row of group g. Sorting keeps this
+ * O(n log n) for any number of groups. */
+static bl_status standardize_groups(const bl_study *s, const bl_trials *t, size_t *group, size_t *first_of_group,
+                                    size_t *n_groups, bl_error *err)
+{
+    size_t n = t->n;
+    *n_groups = n ? 1 : 0;
+    if (s->power.standardize == BL_STANDARDIZE_NONE) {
+        for (size_t i = 0; i < n; i++) group[i] = 0;
+        first_of_group[0] = 0;
+        return BL_OK;
+    }
+    int by_condition = s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION;
+    char **key = calloc(n ? n : 1, sizeof *key);
+    bl_status st = BL_OK;
+    if (!key) return bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials for standardize");
+    for (size_t i = 0; i < n && !st; i++) {
+        /* participant number, then each condition value length-prefixed ("-" when missing): unambiguous */
+        size_t len = 32;
+        for (size_t k = 0; by_condition && k < s->power.n_condition; k++) {
+            const char *v = t->table->cols[bl_table_find(t->table, s->power.condition[k])].text[i];
+            len += 24 + (v ? strlen(v) : 0);
+        }
+        if (!(key[i] = malloc(len))) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials for standardize");
+            break;
+        }
+        int at = snprintf(key[i], len, "%zu", t->participant[i]);
+        for (size_t k = 0; by_condition && k < s->power.n_condition; k++) {
+            const char *v = t->table->cols[bl_table_find(t->table, s->power.condition[k])].text[i];
+            at += v ? snprintf(key[i] + at, len - (size_t)at, "|%zu:%s", strlen(v), v)
+                    : snprintf(key[i] + at, len - (size_t)at, "|-");
+        }
+    }
+    if (!st) st = bl_group_strings((const char *const *)key, n, group, n_groups, "standardize groups", err);
+    for (size_t i = 0; i < n; i++) free(key[i]);
+    free(key);
+    if (st) return st;
+    for (size_t i = n; i-- > 0;) first_of_group[group[i]] = i;
+    return BL_OK;
+}
+
+/* Accumulates each kept trial's PSD into the mean spectrum of its condition cell. A trial is kept
+ * when it is not an artifact and all its band powers can be scaled; with standardize, the first kept
+ * trial of a group waits (one PSD per group) until a second arrives, because the only kept trial
+ * of a group is left out later. */
+typedef struct {
+    size_t *cell;            /* n rows: cell index, SIZE_MAX when cells are unknown */
+    size_t *group;           /* n rows: standardize group */
+    size_t *first_of_group;  /* n_groups */
+    size_t n_groups;
+    size_t *kept;            /* n_groups: kept trials seen so far */
+    size_t *pending_row;     /* n_groups */
+    double **pending;        /* n_groups: PSD of the first kept trial while it is the only one */
+    int standardize;
+} spectra_acc;
+
+static void spectra_acc_free(spectra_acc *a)
+{
+    free(a->cell);
+    free(a->group);
+    free(a->first_of_group);
+    free(a->kept);
+    free(a->pending_row);
+    for (size_t g = 0; a->pending && g < a->n_groups; g++) free(a->pending[g]);
+    free(a->pending);
+}
+
+static bl_status spectra_setup(const bl_study *s, const bl_trials *t, bl_power_result *r, spectra_acc *a,
+                               bl_error *err)
+{
+    size_t n = t->n, nf = r->n_freqs;
+    const char **cols = NULL;
+    size_t n_cols = 0, n_cells = 0;
+    int *ci = NULL;
+    char **label = NULL;
+    a->standardize = s->power.standardize != BL_STANDARDIZE_NONE;
+    a->cell = malloc((n ? n : 1) * sizeof *a->cell);
+    a->group = malloc((n ? n : 1) * sizeof *a->group);
+    a->first_of_group = malloc((n ? n : 1) * sizeof *a->first_of_group);
+    if (!a->cell || !a->group || !a->first_of_group) goto nomem;
+    bl_status st = standardize_groups(s, t, a->group, a->first_of_group, &a->n_groups, err);
+    if (st) return st;
+    a->kept = calloc(a->n_groups ? a->n_groups : 1, sizeof *a->kept);
+    a->pending_row = calloc(a->n_groups ? a->n_groups : 1, sizeof *a->pending_row);
+    a->pending = calloc(a->n_groups ? a->n_groups : 1, sizeof *a->pending);
+    if (!a->kept || !a->pending_row || !a->pending) goto nomem;
+    for (size_t i = 0; i < n; i++) a->cell[i] = SIZE_MAX;
+    if ((st = bl_cell_columns(s, NULL, 0, &cols, &n_cols, err))) return st;
+    if (!(ci = malloc((n_cols ? n_cols : 1) * sizeof *ci))) goto nomem;
+    for (size_t c = 0; c < n_cols; c++)
+        if ((ci[c] = bl_table_find(t->table, cols[c])) < 0) goto done; /* the models' check names it */
+    if (!(label = calloc(n ? n : 1, sizeof *label))) goto nomem;
+    for (size_t i = 0; i < n; i++)
+        if (!(label[i] = bl_cell_label(t->table, ci, n_cols, i))) goto nomem;
+    if ((st = bl_group_strings((const char *const *)label, n, a->cell, &n_cells, "condition cells", err))) goto fail;
+    if (!(r->spectra = calloc(n_cells ? n_cells : 1, sizeof *r->spectra))) goto nomem;
+    r->n_spectra = n_cells;
+    for (size_t i = 0; i < n; i++) {
+        bl_power_spectrum *sp = &r->spectra[a->cell[i]];
+        if (sp->condition) continue;
+        sp->condition = label[i];
+        label[i] = NULL;
+        if (!(sp->n = calloc(nf, sizeof *sp->n)) || !(sp->mean = calloc(nf, sizeof *sp->mean)) ||
+            !(sp->m2 = calloc(nf, sizeof *sp->m2)))
+            goto nomem;
+    }
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for the mean spectra");
+    goto fail;
+done:
+    st = BL_OK;
+fail:
+    for (size_t i = 0; label && i < n; i++) free(label[i]);
+    free(label);
+    free(ci);
+    free((void *)cols);
+    return st;
+}
+
+/* Welford's update, bin by bin; non-finite values are left out of their bin. */
+static void spectrum_add(bl_power_spectrum *sp, const double *psd, size_t nf)
+{
+    sp->trials++;
+    for (size_t j = 0; j < nf; j++) {
+        double v = psd[j];
+        if (!isfinite(v)) continue;
+        sp->n[j]++;
+        double d = v - sp->mean[j];
+        sp->mean[j] += d / (double)sp->n[j];
+        sp->m2[j] += d * (v - sp->mean[j]);
+    }
+}
+
+static double scaled(bl_scale sc, double v);
+
+/* Take the PSD of a trial just computed (in job order, so the result does not depend on threads). */
+static int spectra_take(spectra_acc *a, bl_power_result *r, const bl_study *s, size_t row, const double *psd)
+{
+    for (size_t b = 0; b < r->n_bands; b++)
+        if (!isfinite(scaled(s->power.scale, r->band_power[row * r->n_bands + b]))) return 1; /* left out later */
+    if (a->cell[row] == SIZE_MAX) return 1;
+    size_t nf = r->n_freqs, g = a->group[row];
+    if (a->standardize && a->kept[g] == 0) {
+        if (!(a->pending[g] = malloc(nf * sizeof *a->pending[g]))) return 0;
+        memcpy(a->pending[g], psd, nf * sizeof *psd);
+        a->pending_row[g] = row;
+        a->kept[g] = 1;
+        return 1;
+    }
+    if (a->standardize && a->pending[g]) {
+        spectrum_add(&r->spectra[a->cell[a->pending_row[g]]], a->pending[g], nf);
+        free(a->pending[g]);
+        a->pending[g] = NULL;
+    }
+    a->kept[g]++;
+    spectrum_add(&r->spectra[a->cell[row]], psd, nf);
+    return 1;
+}
+
 static double scaled(bl_scale sc, double v)
 {
     switch (sc) {
@@ -255,23 +429,21 @@ static double scaled(bl_scale sc, double v)
 }
 
 /* z-score each band's scaled values within groups, over kept trials; adds the table columns. */
-static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result *r, bl_warnings *warn,
-                                bl_error *err)
+static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result *r, const spectra_acc *acc,
+                                bl_warnings *warn, bl_error *err)
 {
     size_t n = t->n, nb = r->n_bands;
     bl_status st = BL_OK;
     double *val = malloc(n * sizeof *val);
     double *raw = malloc(n * sizeof *raw);
-    size_t *group = malloc(n * sizeof *group);
-    size_t *first_of_group = malloc(n * sizeof *first_of_group);
+    const size_t *group = acc->group, *first_of_group = acc->first_of_group;
+    size_t n_groups = acc->n_groups;
     double *sum = calloc(n, sizeof *sum), *sum2 = calloc(n, sizeof *sum2);
     size_t *cnt = calloc(n, sizeof *cnt);
-    int *cond_col = calloc(s->power.n_condition + 1, sizeof *cond_col);
-    if (!val || !raw || !group || !first_of_group || !sum || !sum2 || !cnt || !cond_col) {
+    if (!val || !raw || !sum || !sum2 || !cnt) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory standardizing band power");
         goto done;
     }
-    for (size_t k = 0; k < s->power.n_condition; k++) cond_col[k] = bl_table_find(t->table, s->power.condition[k]);
 
     /* non-positive band power cannot be log-scaled: say so per trial instead of writing -inf */
     size_t n_zero = 0;
@@ -289,29 +461,6 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
     if (n_zero)
         bl_warnings_add(warn, "%zu trials have zero power in a band (a silent or disconnected channel?) and were left out",
                         n_zero);
-    /* groups: participant, or participant x condition columns (by text) */
-    size_t n_groups = 0;
-    for (size_t i = 0; i < n; i++) {
-        size_t g = 0;
-        if (s->power.standardize == BL_STANDARDIZE_NONE) {
-            group[i] = 0;
-            n_groups = 1;
-            continue;
-        }
-        for (g = 0; g < n_groups; g++) {
-            size_t j = first_of_group[g];
-            if (t->participant[j] != t->participant[i]) continue;
-            int same = 1;
-            if (s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION)
-                for (size_t k = 0; k < s->power.n_condition && same; k++) {
-                    const char *a = t->table->cols[cond_col[k]].text[i], *b = t->table->cols[cond_col[k]].text[j];
-                    same = (!a && !b) || (a && b && strcmp(a, b) == 0);
-                }
-            if (same) break;
-        }
-        if (g == n_groups) first_of_group[n_groups++] = i;
-        group[i] = g;
-    }
     if (s->power.standardize != BL_STANDARDIZE_NONE) {
         /* a group needs two kept trials for a sample SD */
         for (size_t i = 0; i < n; i++) cnt[group[i]] += !t->excluded[i];
@@ -362,12 +511,67 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
 done:
     free(val);
     free(raw);
-    free(group);
-    free(first_of_group);
     free(sum);
     free(sum2);
     free(cnt);
-    free(cond_col);
+    return st;
+}
+
+/* Runs the work items in blocks of a few hundred trials: the threads fill one PSD row per trial of
+ * the block, then the block's PSDs are added to the cell spectra in job order. Peak memory is one
+ * block of PSDs, whatever the number of trials. Each thread keeps its file handle across blocks. */
+static bl_status compute_blocks(const bl_study *s, bl_power_result *r, const bl_trials *t, const bl_montage *m,
+                                const bl_welch_plan *plan, const job *jobs, item *items, size_t n_items, int threads,
+                                const char **reason, spectra_acc *acc, bl_error *err)
+{
+    int nt = threads > 0 ? threads : 1;
+#ifdef _OPENMP
+    if (threads <= 0) nt = omp_get_max_threads();
+#endif
+    size_t nf = r->n_freqs, block_trials = (size_t)nt * CHUNK_TRIALS * 4;
+    thread_state *ts = calloc((size_t)nt, sizeof *ts);
+    double *block_psd = malloc(block_trials * nf * sizeof *block_psd);
+    bl_status st = BL_OK;
+    int failed_alloc = !ts || !block_psd;
+    for (int i = 0; !failed_alloc && i < nt; i++) {
+        bl_error e = {0};
+        ts[i].rec = SIZE_MAX;
+        ts[i].x = malloc(r->window_samples * sizeof *ts[i].x);
+        if (!ts[i].x || bl_welch_work_create(plan, r->window_samples, &ts[i].work, &e) != BL_OK) failed_alloc = 1;
+    }
+    for (size_t first = 0; !failed_alloc && first < n_items;) {
+        size_t last = first, block_begin = items[first].begin;
+        while (last < n_items && items[last].end - block_begin <= block_trials) last++;
+#ifdef _OPENMP
+#pragma omp parallel for num_threads(nt) schedule(static) /* contiguous: each thread reads its files forward */
+#endif
+        for (size_t k = first; k < last; k++) {
+            int tid = 0;
+#ifdef _OPENMP
+            tid = omp_get_thread_num();
+#endif
+            process_item(s, r, t, m, plan, jobs, &items[k], &ts[tid], reason, block_psd, block_begin);
+        }
+        for (size_t k = first; k < last; k++)
+            if (items[k].status) {
+                st = bl_error_set(err, items[k].status, "%s", items[k].err.message);
+                goto done;
+            }
+        for (size_t j = block_begin; j < items[last - 1].end; j++)
+            if (!reason[jobs[j].row] && !spectra_take(acc, r, s, jobs[j].row, block_psd + (j - block_begin) * nf))
+                failed_alloc = 1;
+        first = last;
+    }
+done:
+    for (int i = 0; ts && i < nt; i++) {
+        bl_trace_close(ts[i].trace);
+        free(ts[i].raw);
+        free(ts[i].x);
+        bl_welch_work_destroy(ts[i].work);
+    }
+    free(ts);
+    free(block_psd);
+    if (!st && failed_alloc) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
     return st;
 }
 
@@ -400,6 +604,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     job *jobs = NULL;
     item *items = NULL;
     const char **reason = NULL;
+    spectra_acc acc = {0};
     size_t n_jobs = 0, n_items = 0, rec_cap = 0;
     bl_power_result *r = calloc(1, sizeof *r);
     if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
@@ -540,79 +745,36 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             bl_warnings_add(warn, "band %s starts at bin %zu (%.6g Hz), below 2 x the resolution %.6g Hz, where "
                             "detrending biases the PSD low", bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
     }
-    if (!(r->psd = malloc((n ? n : 1) * r->n_freqs * sizeof *r->psd)) ||
-        !(r->band_power = malloc((n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power)))
-        goto nomem;
-    for (size_t k = 0; k < n * r->n_freqs; k++) r->psd[k] = NAN;
+    if (!(r->band_power = malloc((n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power))) goto nomem;
     for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = NAN;
+    if ((st = spectra_setup(s, t, r, &acc, err))) goto fail;
 
     /* work items: chunks of trials of one recording, in a fixed order */
     qsort(jobs, n_jobs, sizeof *jobs, job_cmp);
     if (!(items = calloc(n_jobs ? n_jobs : 1, sizeof *items))) goto nomem;
     for (size_t k = 0; k < n_jobs;) {
         size_t e = k;
-        int csv = is_text_trace(r->recordings[jobs[k].rec].path);
-        while (e < n_jobs && jobs[e].rec == jobs[k].rec && (csv || e - k < CHUNK_TRIALS)) e++;
+        while (e < n_jobs && jobs[e].rec == jobs[k].rec && e - k < CHUNK_TRIALS) e++;
         items[n_items].rec = jobs[k].rec;
         items[n_items].begin = k;
         items[n_items].end = e;
         n_items++;
         k = e;
     }
-
-    int failed_alloc = 0;
-    int nt = threads > 0 ? threads : 1;
-#ifdef _OPENMP
-    if (threads <= 0) nt = omp_get_max_threads();
-#pragma omp parallel num_threads(nt)
-#endif
-    {
-        thread_state ts = {NULL, SIZE_MAX, NULL, 0, NULL, NULL};
-        bl_error e = {0};
-        ts.x = malloc(r->window_samples * sizeof *ts.x);
-        int ok = ts.x && bl_welch_work_create(plan, r->window_samples, &ts.work, &e) == BL_OK;
-        if (!ok) {
-#ifdef _OPENMP
-#pragma omp atomic write
-#endif
-            failed_alloc = 1;
-        }
-#ifdef _OPENMP
-#pragma omp for schedule(static) /* contiguous blocks: each thread reads its files forward */
-#endif
-        for (size_t k = 0; k < n_items; k++) {
-            if (!ok) continue;
-            process_item(s, r, t, m, plan, jobs, &items[k], &ts, reason);
-        }
-        bl_trace_close(ts.trace);
-        free(ts.raw);
-        free(ts.x);
-        bl_welch_work_destroy(ts.work);
-    }
-    (void)nt;
-    if (failed_alloc) goto nomem;
-    for (size_t k = 0; k < n_items; k++)
-        if (items[k].status) {
-            st = bl_error_set(err, items[k].status, "%s", items[k].err.message);
-            goto fail;
-        }
+    if ((st = compute_blocks(s, r, t, m, plan, jobs, items, n_items, threads, reason, &acc, err))) goto fail;
     for (size_t i = 0; i < n; i++)
         if (reason[i]) {
             bl_trials_exclude(t, i, reason[i]);
             r->n_artifacts++;
         }
-    /* excluded trials keep NAN rows */
+    /* excluded trials keep NAN band power */
     for (size_t i = 0; i < n; i++)
-        if (t->excluded[i]) {
-            for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
+        if (t->excluded[i])
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
-        }
-    if ((st = add_regressors(s, t, r, warn, err))) goto fail;
+    if ((st = add_regressors(s, t, r, &acc, warn, err))) goto fail;
     for (size_t i = 0; i < n; i++)
-        if (t->excluded[i]) {
-            for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
+        if (t->excluded[i])
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
-        }
     if (s->power.clipping)
         for (size_t k = 0; k < r->n_recordings; k++)
             if (!strstr(r->recordings[k].format, "-bit PCM"))
@@ -624,6 +786,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     free(items);
     free(jobs);
     free(reason);
+    spectra_acc_free(&acc);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     *out = r;
@@ -634,6 +797,7 @@ fail:
     free(items);
     free(jobs);
     free(reason);
+    spectra_acc_free(&acc);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     bl_power_result_destroy(r);
