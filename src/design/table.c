@@ -236,6 +236,39 @@ static int parse_number(const char *s, double *out)
     return 1;
 }
 
+/* Offset of the first byte that does not start a well-formed UTF-8 sequence (RFC 3629 section 4:
+ * no overlong forms, no surrogates, nothing above U+10FFFF), or size when the text is valid. */
+static size_t utf8_invalid_at(const unsigned char *d, size_t size)
+{
+    size_t i = 0;
+    while (i < size) {
+        unsigned char c = d[i];
+        if (c < 0x80) {
+            i++;
+            continue;
+        }
+        size_t need;
+        unsigned char lo = 0x80, hi = 0xBF; /* allowed range of the second byte */
+        if (c >= 0xC2 && c <= 0xDF) need = 1;
+        else if (c >= 0xE0 && c <= 0xEF) {
+            need = 2;
+            if (c == 0xE0) lo = 0xA0;
+            if (c == 0xED) hi = 0x9F;
+        } else if (c >= 0xF0 && c <= 0xF4) {
+            need = 3;
+            if (c == 0xF0) lo = 0x90;
+            if (c == 0xF4) hi = 0x8F;
+        } else
+            return i;
+        if (i + need >= size) return i; /* the sequence is cut off by the end of the file */
+        if (d[i + 1] < lo || d[i + 1] > hi) return i;
+        for (size_t k = 2; k <= need; k++)
+            if ((d[i + k] & 0xC0) != 0x80) return i;
+        i += need + 1;
+    }
+    return size;
+}
+
 bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_table **out, bl_error *err)
 {
     *out = NULL;
@@ -245,6 +278,23 @@ bl_status bl_table_parse(const char *data, size_t size, const char *name, bl_tab
         pos = 3;
     if (memchr(data, '\0', size))
         return bl_error_set(err, BL_ERR_INPUT, "%s: not a text table (contains a NUL byte)", name);
+    /* Levels and IDs are copied into JSON and CSV outputs: refuse bytes that are not UTF-8 here, where
+     * the file and position are known. */
+    size_t bad = utf8_invalid_at((const unsigned char *)data, size);
+    if (bad < size) {
+        size_t bl = 1, bc = 1;
+        for (size_t k = 0; k < bad; k++) {
+            if (data[k] == '\n') {
+                bl++;
+                bc = 1;
+            } else {
+                bc++;
+            }
+        }
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s:%zu:%zu: byte \\x%02X is not UTF-8 text; save the table as UTF-8 (docs/study-file.md)",
+                            name, bl, bc, (unsigned)(unsigned char)data[bad]);
+    }
     /* skip blank lines before the header */
     while (pos < size && (data[pos] == '\n' || data[pos] == '\r')) {
         if (data[pos] == '\n') line++;

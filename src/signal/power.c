@@ -29,7 +29,7 @@
 #include <omp.h>
 #endif
 
-enum { CHUNK_TRIALS = 32 };
+enum { CHUNK_TRIALS = 32, BL_MAX_WINDOW_SAMPLES = 1 << 28 };
 
 /* CSV/TSV traces are parsed whole when opened, so one thread takes all trials of such a file. */
 static int is_text_trace(const char *p)
@@ -86,36 +86,34 @@ void bl_power_result_destroy(bl_power_result *r)
     free(r);
 }
 
-static int add_recording(bl_power_result *r, size_t *cap, const char *path, const char *participant, size_t *index)
+/* The recordings of the jobs, numbered by first appearance (by sorting the paths: one file per trial
+ * stays O(n log n)). Takes ownership of paths[0..n_jobs). */
+static bl_status assign_recordings(bl_power_result *r, const bl_trials *t, job *jobs, size_t n_jobs, char **paths,
+                                   bl_error *err)
 {
-    /* trials usually come grouped by file: look at the last one first */
-    if (r->n_recordings && strcmp(r->recordings[r->n_recordings - 1].path, path) == 0) {
-        *index = r->n_recordings - 1;
-        return 1;
-    }
-    for (size_t i = 0; i < r->n_recordings; i++)
-        if (strcmp(r->recordings[i].path, path) == 0) {
-            *index = i;
-            return 1;
+    size_t *id = malloc((n_jobs ? n_jobs : 1) * sizeof *id), n_rec = 0;
+    bl_status st = BL_OK;
+    if (!id) goto nomem;
+    if ((st = bl_group_strings((const char *const *)paths, n_jobs, id, &n_rec, "recordings", err))) goto done;
+    if (!(r->recordings = calloc(n_rec ? n_rec : 1, sizeof *r->recordings))) goto nomem;
+    r->n_recordings = n_rec;
+    for (size_t k = 0; k < n_jobs; k++) {
+        bl_power_recording *rec = &r->recordings[id[k]];
+        if (!rec->path) {
+            rec->path = paths[k];
+            paths[k] = NULL;
+            if (!(rec->participant = bl_strdup(t->participants[t->participant[jobs[k].row]]))) goto nomem;
         }
-    if (r->n_recordings == *cap) {
-        size_t nc = *cap ? 2 * *cap : 16;
-        bl_power_recording *nr = realloc(r->recordings, nc * sizeof *nr);
-        if (!nr) return 0;
-        r->recordings = nr;
-        *cap = nc;
+        rec->n_trials++;
+        jobs[k].rec = id[k];
     }
-    bl_power_recording *rec = &r->recordings[r->n_recordings];
-    memset(rec, 0, sizeof *rec);
-    rec->path = bl_strdup(path);
-    rec->participant = bl_strdup(participant);
-    if (!rec->path || !rec->participant) {
-        free(rec->path);
-        free(rec->participant);
-        return 0;
-    }
-    *index = r->n_recordings++;
-    return 1;
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory listing the recordings");
+done:
+    for (size_t k = 0; k < n_jobs; k++) free(paths[k]);
+    free(id);
+    return st;
 }
 
 /* Per-thread state. */
@@ -605,7 +603,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     item *items = NULL;
     const char **reason = NULL;
     spectra_acc acc = {0};
-    size_t n_jobs = 0, n_items = 0, rec_cap = 0;
+    size_t n_jobs = 0, n_items = 0;
     bl_power_result *r = calloc(1, sizeof *r);
     if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
@@ -626,31 +624,28 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
 
     /* alignment time and recording of each kept trial */
     double *align = malloc((n ? n : 1) * sizeof *align);
-    if (!align) goto nomem;
-    for (size_t i = 0; i < n; i++) {
+    char **paths = calloc(n ? n : 1, sizeof *paths);
+    if (!align || !paths) {
+        free(align);
+        free(paths);
+        goto nomem;
+    }
+    for (size_t i = 0; i < n && !st; i++) {
         if (t->excluded[i]) continue;
         double onset = 0;
-        if ((st = parse_onset(t, c_onset, i, "recordings.onset", &onset, err))) {
-            free(align);
-            goto fail;
-        }
+        if ((st = parse_onset(t, c_onset, i, "recordings.onset", &onset, err))) break;
         align[i] = onset + (s->power.align == BL_ALIGN_RESPONSE ? t->rt[i] : 0.0);
-        char *path = NULL;
-        if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &path, err))) {
-            free(align);
-            goto fail;
-        }
-        size_t rec;
-        int ok = add_recording(r, &rec_cap, path, t->participants[t->participant[i]], &rec);
-        free(path);
-        if (!ok) {
-            free(align);
-            goto nomem;
-        }
-        r->recordings[rec].n_trials++;
+        if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &paths[n_jobs], err))) break;
         jobs[n_jobs].row = i;
-        jobs[n_jobs].rec = rec;
         n_jobs++;
+    }
+    if (!st) st = assign_recordings(r, t, jobs, n_jobs, paths, err);
+    else
+        for (size_t k = 0; k < n_jobs; k++) free(paths[k]);
+    free(paths);
+    if (st) {
+        free(align);
+        goto fail;
     }
 
     /* sampling rate: the study's, or the first recording's */
@@ -674,6 +669,16 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         goto fail;
     }
     double fs = r->fs;
+    /* Range checks before rounding to 64-bit sample indices (llround of a value out of range is undefined). */
+    if (!(fs > 0 && fabs(s->power.from * fs) < 0x1p62 && fabs(s->power.to * fs) < 0x1p62 &&
+          (s->power.to - s->power.from) * fs <= (double)BL_MAX_WINDOW_SAMPLES)) {
+        free(align);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: key \"power.window\": from %.10g s to %.10g s is %.6g samples at %.10g Hz; at most %d "
+                          "samples fit in a window", s->path, s->power.from, s->power.to,
+                          (s->power.to - s->power.from) * fs, fs, BL_MAX_WINDOW_SAMPLES);
+        goto fail;
+    }
     long long a = llround(s->power.from * fs), b = llround(s->power.to * fs);
     r->window_samples = b > a ? (size_t)(b - a) : 0;
     r->nperseg = (size_t)llround(s->power.segment * fs);
@@ -688,7 +693,19 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     r->noverlap = (size_t)llround(s->power.overlap * (double)r->nperseg);
     if (r->noverlap >= r->nperseg) r->noverlap = r->nperseg - 1;
     r->nfft = r->nperseg;
-    for (size_t k = 0; k < n_jobs; k++) jobs[k].start = llround(align[jobs[k].row] * fs) + a;
+    for (size_t k = 0; k < n_jobs; k++) {
+        size_t row = jobs[k].row;
+        if (!(fabs(align[row] * fs) < 0x1p62)) { /* onset (+ rt) too large to be a sample index */
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "%s:%zu: column \"%s\" (recordings.onset)%s: %.10g s is sample %.6g at %.10g Hz, beyond "
+                              "any recording", t->table->path ? t->table->path : "trials", t->table->line[row],
+                              s->recordings.onset, s->power.align == BL_ALIGN_RESPONSE ? " + rt" : "", align[row],
+                              align[row] * fs, fs);
+            free(align);
+            goto fail;
+        }
+        jobs[k].start = llround(align[row] * fs) + a;
+    }
     free(align);
 
     if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, (bl_welch_detrend)s->power.detrend,
