@@ -93,6 +93,110 @@ size_t bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **out)
 
 /* qsort has no context argument in C11; loading is not done from several threads at once on one table,
  * but keep the pointer thread-local anyway */
+/* power.csv holds participant, trial, the table's columns, <band>_power and <band> per band, and
+ * artifact: refuse, before any work, a name that two of these would share. */
+static bl_status check_power_columns(const struct bl_study *study, const bl_table *tab, bl_error *err)
+{
+    size_t nb = study->power.n_bands, n = 0;
+    char (*name)[300] = malloc((3 + 2 * nb) * sizeof *name);
+    char (*what)[340] = malloc((3 + 2 * nb) * sizeof *what);
+    bl_status st = BL_OK;
+    if (!name || !what) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking the power.csv columns");
+        goto done;
+    }
+    snprintf(name[n], sizeof name[n], "participant"), snprintf(what[n++], sizeof what[0], "power.csv's participant column");
+    snprintf(name[n], sizeof name[n], "trial"), snprintf(what[n++], sizeof what[0], "power.csv's trial column");
+    snprintf(name[n], sizeof name[n], "artifact"), snprintf(what[n++], sizeof what[0], "power.csv's artifact column");
+    for (size_t b = 0; b < nb; b++) {
+        const char *bn = study->power.bands[b].name;
+        snprintf(name[n], sizeof name[n], "%s_power", bn);
+        snprintf(what[n++], sizeof what[0], "the raw power of band \"%s\" (power.bands.%s)", bn, bn);
+        snprintf(name[n], sizeof name[n], "%s", bn);
+        snprintf(what[n++], sizeof what[0], "the regressor of band \"%s\" (power.bands.%s)", bn, bn);
+    }
+    for (size_t i = 0; i < n && !st; i++)
+        for (size_t k = i + 1; k < n && !st; k++)
+            if (strcmp(name[i], name[k]) == 0)
+                st = bl_error_set(err, BL_ERR_INPUT, "%s: %s and %s would both be the power.csv column \"%s\"; rename "
+                                  "the band", study->path, what[i], what[k], name[i]);
+    for (size_t j = 0; j < tab->n_cols && !st; j++) {
+        const char *cn = tab->cols[j].name;
+        /* the table's own participant and trial columns are written once, as the leading columns */
+        if (strcmp(cn, "participant") == 0 && strcmp(study->trials.participant, "participant") == 0) continue;
+        if (strcmp(cn, "trial") == 0 && study->trials.trial && strcmp(study->trials.trial, "trial") == 0) continue;
+        for (size_t i = 0; i < n && !st; i++)
+            if (strcmp(cn, name[i]) == 0)
+                st = bl_error_set(err, BL_ERR_INPUT, "%s:1: column \"%s\" of the trial table and %s would both be the "
+                                  "power.csv column \"%s\"; rename the column", tab->path, cn, what[i], cn);
+    }
+done:
+    free(name);
+    free(what);
+    return st;
+}
+
+/* Every trials.upper value must occur in the column it codes: ["Right"] against a column holding
+ * "right" would otherwise code every response as the lower boundary without a word. */
+static bl_status check_upper_values(const struct bl_study *study, const bl_table *tab, const bl_column *col,
+                                    const char *key, const char *file, bl_error *err)
+{
+    for (size_t u = 0; u < study->trials.n_upper; u++) {
+        const char *want = study->trials.upper[u];
+        int found = 0;
+        for (size_t i = 0; i < tab->n_rows && !found; i++) found = col->text[i] && strcmp(col->text[i], want) == 0;
+        if (found) continue;
+        /* name up to six of the values that are there */
+        const char *seen[6];
+        size_t n_seen = 0, more = 0;
+        for (size_t i = 0; i < tab->n_rows; i++) {
+            const char *v = col->text[i];
+            if (!v) continue;
+            size_t k = 0;
+            while (k < n_seen && strcmp(seen[k], v) != 0) k++;
+            if (k < n_seen) continue;
+            if (n_seen < 6) seen[n_seen++] = v;
+            else more = 1;
+            if (more) break;
+        }
+        char list[400] = "";
+        for (size_t k = 0; k < n_seen; k++)
+            snprintf(list + strlen(list), sizeof list - strlen(list), "%s\"%.60s\"", k ? ", " : "", seen[k]);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: trials.upper value \"%s\" matches no row of column \"%s\" (%s); values present: %s%s "
+                            "(values are compared exactly, case included)", file, want, col->name, key,
+                            n_seen ? list : "none", more ? ", ..." : "");
+    }
+    return BL_OK;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+    double u = *(const double *)a, v = *(const double *)b;
+    return (u > v) - (u < v);
+}
+
+/* RTs in milliseconds read as seconds (or the reverse) still fit, to absurd parameters: warn when the
+ * median kept RT is outside 0.05-20 s (human and animal choice RTs lie well inside). */
+static void warn_rt_scale(const struct bl_study *study, const bl_trials *t, const char *file, const char *col,
+                          bl_warnings *warn)
+{
+    double *rt = malloc((t->n ? t->n : 1) * sizeof *rt);
+    size_t m = 0;
+    if (!rt) return;
+    for (size_t i = 0; i < t->n; i++)
+        if (!t->excluded[i] && isfinite(t->rt[i])) rt[m++] = t->rt[i];
+    if (m) {
+        qsort(rt, m, sizeof *rt, cmp_double);
+        double med = m % 2 ? rt[m / 2] : 0.5 * (rt[m / 2 - 1] + rt[m / 2]);
+        if (med > 20 || med < 0.05)
+            bl_warnings_add(warn, "%s: the median response time in column %s is %.6g s (trials.rt_unit \"%s\"); RTs "
+                            "are usually 0.05-20 s: is trials.rt_unit right?", file, col, med,
+                            study->trials.rt_in_ms ? "ms" : "s");
+    }
+    free(rt);
+}
+
 static _Thread_local const bl_trials *sort_trials;
 
 static int cmp_trial(const void *a, const void *b)
@@ -165,6 +269,8 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
                 goto fail;
             }
         }
+
+    if (study->has_power && (st = check_power_columns(study, tab, err))) goto fail;
 
     const bl_column *part = &tab->cols[c_part], *rtc = &tab->cols[c_rt], *resp = &tab->cols[c_resp];
     size_t n_upper_rows = 0, n_part_ids = 0;
@@ -265,9 +371,10 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
             free(idx);
         }
     }
-    if (n_upper_rows == 0)
-        bl_warnings_add(warn, "%s: no trial has a %s value listed in trials.upper, so every response is coded as the "
-                        "lower boundary", file, resp->name);
+    (void)n_upper_rows;
+    if ((st = check_upper_values(study, tab, resp, "trials.response", file, err))) goto fail;
+    if (c_stim >= 0 && (st = check_upper_values(study, tab, &tab->cols[c_stim], "trials.stimulus", file, err))) goto fail;
+    warn_rt_scale(study, t, file, rtc->name, warn);
     if (t->n_kept == 0)
         bl_warnings_add(warn, "%s: every trial is excluded by the keep rules or missing values", file);
     free(count);

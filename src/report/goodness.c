@@ -9,6 +9,7 @@
  */
 #include "report/goodness.h"
 
+#include "core/csvtext.h"
 #include "core/groups.h"
 #include "design/cells.h"
 #include "core/output.h"
@@ -643,24 +644,11 @@ static void csv_num(FILE *f, double v)
     else fputs(",NA", f);
 }
 
-/* A text field, quoted when it holds a comma, quote or line break (RFC 4180). */
+/* A text field (core/csvtext.h: RFC 4180 quoting, formula starts neutralised). */
 static void csv_text(FILE *f, const char *s, int lead_comma)
 {
     if (lead_comma) fputc(',', f);
-    if (!s) {
-        fputs("NA", f);
-        return;
-    }
-    if (!strpbrk(s, ",\"\r\n")) {
-        fputs(s, f);
-        return;
-    }
-    fputc('"', f);
-    for (; *s; s++) {
-        if (*s == '"') fputc('"', f);
-        fputc(*s, f);
-    }
-    fputc('"', f);
+    bl_csv_text(f, s);
 }
 
 bl_status bl_goodness_write_csv(const bl_goodness *g, const char *path, bl_error *err)

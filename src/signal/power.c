@@ -15,6 +15,7 @@
 #include "core/output.h"
 #include "signal/spectrum.h"
 #include "signal/trace.h"
+#include "core/csvtext.h"
 #include "core/groups.h"
 #include "design/cells.h"
 #include "core/strutil.h"
@@ -426,6 +427,49 @@ static double scaled(bl_scale sc, double v)
     }
 }
 
+/* Relative spread (sample SD / |mean|) of the raw band power of the kept trials of each standardize
+ * group. Below 1e-9 the differences are rounding noise of one repeated value (double precision
+ * carries about 16 digits), and the z-scores would turn that noise into a regressor with unit
+ * variance: refuse, naming participant and band. */
+static bl_status check_spread(const bl_study *s, const bl_trials *t, const double *raw, const spectra_acc *acc,
+                              const char *band, bl_error *err)
+{
+    size_t ng = acc->n_groups;
+    double *mean = calloc(ng ? ng : 1, sizeof *mean), *ss = calloc(ng ? ng : 1, sizeof *ss);
+    size_t *cnt = calloc(ng ? ng : 1, sizeof *cnt);
+    bl_status st = BL_OK;
+    if (!mean || !ss || !cnt) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory standardizing band power");
+        goto done;
+    }
+    for (size_t i = 0; i < t->n; i++)
+        if (!t->excluded[i]) {
+            mean[acc->group[i]] += raw[i];
+            cnt[acc->group[i]]++;
+        }
+    for (size_t g = 0; g < ng; g++) mean[g] = cnt[g] ? mean[g] / (double)cnt[g] : NAN;
+    for (size_t i = 0; i < t->n; i++)
+        if (!t->excluded[i]) ss[acc->group[i]] += (raw[i] - mean[acc->group[i]]) * (raw[i] - mean[acc->group[i]]);
+    for (size_t g = 0; g < ng && !st; g++) {
+        if (cnt[g] < 2) continue;
+        double rel = sqrt(ss[g] / (double)(cnt[g] - 1)) / fabs(mean[g]);
+        if (rel > 0 && rel < 1e-9) {
+            size_t j = acc->first_of_group[g];
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "band %s: the kept trials of participant %s%s have the same power up to rounding "
+                              "(relative SD %.3g of %.10g %s^2, below 1e-9); standardizing would turn rounding noise "
+                              "into a regressor", band, t->participants[t->participant[j]],
+                              s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION ? " (in one condition)" : "",
+                              rel, mean[g], s->recordings.unit);
+        }
+    }
+done:
+    free(mean);
+    free(ss);
+    free(cnt);
+    return st;
+}
+
 /* z-score each band's scaled values within groups, over kept trials; adds the table columns. */
 static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result *r, const spectra_acc *acc,
                                 bl_warnings *warn, bl_error *err)
@@ -444,11 +488,17 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
     }
 
     /* non-positive band power cannot be log-scaled: say so per trial instead of writing -inf */
-    size_t n_zero = 0;
+    /* ... and power that overflowed (samples near 1e154 or larger square to infinity) is a different cause */
+    size_t n_zero = 0, n_overflow = 0, first_overflow = 0;
     for (size_t i = 0; i < n; i++) {
         if (t->excluded[i]) continue;
         for (size_t b = 0; b < nb; b++) {
             double v = r->band_power[i * nb + b];
+            if (!isfinite(v)) {
+                bl_trials_exclude(t, i, "non-finite band power");
+                if (n_overflow++ == 0) first_overflow = i;
+                break;
+            }
             if (!isfinite(scaled(s->power.scale, v))) {
                 bl_trials_exclude(t, i, "zero band power");
                 n_zero++;
@@ -459,6 +509,11 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
     if (n_zero)
         bl_warnings_add(warn, "%zu trials have zero power in a band (a silent or disconnected channel?) and were left out",
                         n_zero);
+    if (n_overflow)
+        bl_warnings_add(warn, "%zu trials have non-finite band power, first participant %s, trial %s: their samples are so "
+                        "large (|x| above about 1e150 %s) that the power overflows; they were left out (check "
+                        "recordings.gain and the recording's values)", n_overflow,
+                        t->participants[t->participant[first_overflow]], t->trial_label[first_overflow], s->recordings.unit);
     if (s->power.standardize != BL_STANDARDIZE_NONE) {
         /* a group needs two kept trials for a sample SD */
         for (size_t i = 0; i < n; i++) cnt[group[i]] += !t->excluded[i];
@@ -482,6 +537,7 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
             sum[group[i]] += val[i];
             cnt[group[i]]++;
         }
+        if (s->power.standardize != BL_STANDARDIZE_NONE && (st = check_spread(s, t, raw, acc, name, err))) goto done;
         if (s->power.standardize != BL_STANDARDIZE_NONE) {
             for (size_t g = 0; g < n_groups; g++) sum[g] = cnt[g] ? sum[g] / (double)cnt[g] : NAN;
             for (size_t i = 0; i < n; i++)
@@ -823,23 +879,7 @@ fail:
 
 /* ---- power.csv ---- */
 
-static void put_field(FILE *f, const char *s)
-{
-    if (!s) {
-        fputs("NA", f);
-        return;
-    }
-    if (!strpbrk(s, ",\"\r\n")) {
-        fputs(s, f);
-        return;
-    }
-    fputc('"', f);
-    for (const char *p = s; *p; p++) {
-        if (*p == '"') fputc('"', f);
-        fputc(*p, f);
-    }
-    fputc('"', f);
-}
+static void put_field(FILE *f, const char *s) { bl_csv_text(f, s); }
 
 static void put_number(FILE *f, double x)
 {

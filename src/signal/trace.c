@@ -435,6 +435,32 @@ bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t r
         len += plen;
     }
     r[len] = '\0';
+    /* Filled values may each be harmless ("." and ".") yet join into ".." across adjacent placeholders:
+     * the part of the path after the pattern's fixed folder must not climb out of that folder (which is
+     * inside the study folder when recordings.file is a relative path). */
+    const char *brace = strchr(pattern, '{');
+    if (brace) {
+        size_t fixed = 0;
+        for (const char *q = pattern; q < brace; q++)
+            if (*q == '/') fixed = (size_t)(q - pattern) + 1;
+        long depth = 0;
+        for (const char *c = r + fixed; *c;) {
+            const char *e = strchr(c, '/');
+            size_t cl = e ? (size_t)(e - c) : strlen(c);
+            if (cl == 2 && c[0] == '.' && c[1] == '.') depth--;
+            else if (!(cl == 0 || (cl == 1 && c[0] == '.'))) depth++;
+            if (depth < 0) {
+                bl_status st = bl_error_set(err, BL_ERR_INPUT,
+                                            "%s:%zu: recordings.file \"%s\" filled from this row is \"%s\", which leads "
+                                            "out of the folder \"%.*s\" (adjacent values make '..')",
+                                            table->path ? table->path : "trials", table->line[row], pattern, r,
+                                            (int)(fixed ? fixed : 1), fixed ? pattern : ".");
+                free(r);
+                return st;
+            }
+            c += cl + (e != NULL);
+        }
+    }
     *out = r;
     return BL_OK;
 }
