@@ -136,36 +136,66 @@ done:
     return st;
 }
 
-/* Every trials.upper value must occur in the column it codes: ["Right"] against a column holding
- * "right" would otherwise code every response as the lower boundary without a word. */
-static bl_status check_upper_values(const struct bl_study *study, const bl_table *tab, const bl_column *col,
-                                    const char *key, const char *file, bl_error *err)
+/* Up to six distinct values of a column, quoted, into list. */
+static void list_values(const bl_table *tab, const bl_column *col, char *list, size_t size)
 {
+    const char *seen[6];
+    size_t n_seen = 0;
+    int more = 0;
+    list[0] = '\0';
+    for (size_t i = 0; i < tab->n_rows && !more; i++) {
+        const char *v = col->text[i];
+        if (!v) continue;
+        size_t k = 0;
+        while (k < n_seen && strcmp(seen[k], v) != 0) k++;
+        if (k < n_seen) continue;
+        if (n_seen < 6) seen[n_seen++] = v;
+        else more = 1;
+    }
+    for (size_t k = 0; k < n_seen; k++)
+        snprintf(list + strlen(list), size - strlen(list), "%s\"%.60s\"", k ? ", " : "", seen[k]);
+    if (!n_seen) snprintf(list, size, "none");
+    if (more) snprintf(list + strlen(list), size - strlen(list), ", ...");
+}
+
+/* Some row of col holds v (as text, or as the same number: value_in's rule). */
+static int column_has(const bl_table *tab, const bl_column *col, const char *v)
+{
+    char *const one[1] = {(char *)v};
+    for (size_t i = 0; i < tab->n_rows; i++)
+        if (col->text[i] && value_in(col->text[i], one, 1)) return 1;
+    return 0;
+}
+
+/* trials.upper values must occur: ["Right"] against a column holding "right" would otherwise code every
+ * response as the lower boundary without a word. Each value must be in the response column (or, with
+ * stimulus coding, in the stimulus column), and each coded column must hold at least one of them. */
+static bl_status check_upper_values(const struct bl_study *study, const bl_table *tab, const bl_column *resp,
+                                    const bl_column *stim, const char *file, bl_error *err)
+{
+    char list[400], list2[400];
+    const bl_column *cols[2] = {resp, stim};
+    const char *keys[2] = {"trials.response", "trials.stimulus"};
     for (size_t u = 0; u < study->trials.n_upper; u++) {
         const char *want = study->trials.upper[u];
-        int found = 0;
-        for (size_t i = 0; i < tab->n_rows && !found; i++) found = col->text[i] && strcmp(col->text[i], want) == 0;
-        if (found) continue;
-        /* name up to six of the values that are there */
-        const char *seen[6];
-        size_t n_seen = 0, more = 0;
-        for (size_t i = 0; i < tab->n_rows; i++) {
-            const char *v = col->text[i];
-            if (!v) continue;
-            size_t k = 0;
-            while (k < n_seen && strcmp(seen[k], v) != 0) k++;
-            if (k < n_seen) continue;
-            if (n_seen < 6) seen[n_seen++] = v;
-            else more = 1;
-            if (more) break;
-        }
-        char list[400] = "";
-        for (size_t k = 0; k < n_seen; k++)
-            snprintf(list + strlen(list), sizeof list - strlen(list), "%s\"%.60s\"", k ? ", " : "", seen[k]);
+        if (column_has(tab, resp, want) || (stim && column_has(tab, stim, want))) continue;
+        list_values(tab, resp, list, sizeof list);
+        if (stim) list_values(tab, stim, list2, sizeof list2);
         return bl_error_set(err, BL_ERR_INPUT,
-                            "%s: trials.upper value \"%s\" matches no row of column \"%s\" (%s); values present: %s%s "
-                            "(values are compared exactly, case included)", file, want, col->name, key,
-                            n_seen ? list : "none", more ? ", ..." : "");
+                            "%s: trials.upper value \"%s\" matches no row of column \"%s\"%s%s%s; values present: "
+                            "%s%s%s (compared as text, case included, or as numbers)", file, want, resp->name,
+                            stim ? " or \"" : "", stim ? stim->name : "", stim ? "\"" : "", list,
+                            stim ? "; in the stimulus column: " : "", stim ? list2 : "");
+    }
+    for (int c = 0; c < 2; c++) {
+        if (!cols[c]) continue;
+        int any = 0;
+        for (size_t u = 0; u < study->trials.n_upper && !any; u++) any = column_has(tab, cols[c], study->trials.upper[u]);
+        if (any) continue;
+        list_values(tab, cols[c], list, sizeof list);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: no row of column \"%s\" (%s) holds a trials.upper value; values present: %s "
+                            "(compared as text, case included, or as numbers)", file, cols[c]->name, keys[c], list);
     }
     return BL_OK;
 }
@@ -372,8 +402,7 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
         }
     }
     (void)n_upper_rows;
-    if ((st = check_upper_values(study, tab, resp, "trials.response", file, err))) goto fail;
-    if (c_stim >= 0 && (st = check_upper_values(study, tab, &tab->cols[c_stim], "trials.stimulus", file, err))) goto fail;
+    if ((st = check_upper_values(study, tab, resp, c_stim >= 0 ? &tab->cols[c_stim] : NULL, file, err))) goto fail;
     warn_rt_scale(study, t, file, rtc->name, warn);
     if (t->n_kept == 0)
         bl_warnings_add(warn, "%s: every trial is excluded by the keep rules or missing values", file);

@@ -178,7 +178,7 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
         int code = sf_error(NULL), e = errno;
         const char *why = sf_strerror(NULL);
         bl_status kind = code == SF_ERR_SYSTEM ? bl_status_from_errno(e)
-                         : strstr(why, "malloc") ? BL_ERR_NOMEM
+                         : strstr(why, "malloc") || strstr(why, "creating") ? BL_ERR_NOMEM /* decoder set-up */
                                                  : BL_ERR_INPUT;
         st = bl_error_set(err, kind, "%s: cannot open the recording: %s", path, why);
         goto fail;
