@@ -383,6 +383,18 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
 
 /* ---- 3. quantile-probability ---- */
 
+typedef struct {
+    double share;
+    size_t index;
+} share_item;
+
+static int share_cmp(const void *a, const void *b)
+{
+    const share_item *p = a, *q = b;
+    if (p->share != q->share) return p->share < q->share ? -1 : 1;
+    return (p->index > q->index) - (p->index < q->index);
+}
+
 static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **caption)
 {
     size_t nm = set->n_models;
@@ -399,8 +411,9 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
     size_t npts = 2 * g->n_cells;
     double *px = malloc((npts + 1) * sizeof *px), *py = malloc((npts + 1) * sizeof *py);
     size_t *ord = malloc((npts + 1) * sizeof *ord);
-    if (!px || !py || !ord) {
-        free(px), free(py), free(ord);
+    share_item *keyed = malloc((npts + 1) * sizeof *keyed);
+    if (!px || !py || !ord || !keyed) {
+        free(px), free(py), free(ord), free(keyed);
         bl_svg_destroy(fig);
         return NULL;
     }
@@ -418,12 +431,10 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
             size_t n = 0;
             for (size_t i = 0; i < npts; i++)
                 if (isfinite(rows0[i].predicted_q[k]) && isfinite(rows0[i].predicted_share)) ord[n++] = i;
-            for (size_t i = 1; i < n; i++)
-                for (size_t j = i; j > 0 && rows0[ord[j - 1]].predicted_share > rows0[ord[j]].predicted_share; j--) {
-                    size_t tmp = ord[j];
-                    ord[j] = ord[j - 1];
-                    ord[j - 1] = tmp;
-                }
+            /* Stable order by predicted share (ties keep cell order): qsort with the cell index as tie-break. */
+            for (size_t i = 0; i < n; i++) keyed[i] = (share_item){rows0[ord[i]].predicted_share, ord[i]};
+            qsort(keyed, n, sizeof *keyed, share_cmp);
+            for (size_t i = 0; i < n; i++) ord[i] = keyed[i].index;
             for (size_t i = 0; i < n; i++) {
                 px[i] = rows0[ord[i]].predicted_share;
                 py[i] = rows0[ord[i]].predicted_q[k];
@@ -447,7 +458,7 @@ static bl_svg *fig_qp(const bl_fit_set *set, const bl_goodness *g, char **captio
     bl_svg_legend_heading(fig, "marks");
     bl_svg_legend(fig, "observed", BL_SVG_KEY_POINT, (bl_svg_style){.color = "#666666"});
     bl_svg_legend(fig, "predicted", BL_SVG_KEY_LINE, (bl_svg_style){.color = "#666666"});
-    free(px), free(py), free(ord);
+    free(px), free(py), free(ord), free(keyed);
     *caption = xprintf("For each condition cell (%zu) and each response (upper and lower boundary), the 0.1, 0.3, "
                        "0.5, 0.7 and 0.9 RT quantiles are plotted against the probability of that response: points "
                        "are observed, lines are the model's predictions (quantiles of the mixture of the cell's "
