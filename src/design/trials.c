@@ -303,7 +303,7 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
     if (study->has_power && (st = check_power_columns(study, tab, err))) goto fail;
 
     const bl_column *part = &tab->cols[c_part], *rtc = &tab->cols[c_rt], *resp = &tab->cols[c_resp];
-    size_t n_upper_rows = 0, n_part_ids = 0;
+    size_t n_part_ids = 0;
     if (!(part_id = malloc(n * sizeof *part_id))) goto nomem;
     if ((st = bl_group_strings((const char *const *)part->text, n, part_id, &n_part_ids, "participants", err)))
         goto fail;
@@ -355,7 +355,6 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
             bl_trials_exclude(t, i, "missing response");
         } else {
             t->upper[i] = value_in(v, study->trials.upper, study->trials.n_upper);
-            n_upper_rows += (size_t)t->upper[i];
         }
         if (c_stim >= 0) {
             const char *s = tab->cols[c_stim].text[i];
@@ -401,7 +400,6 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
             free(idx);
         }
     }
-    (void)n_upper_rows;
     if ((st = check_upper_values(study, tab, resp, c_stim >= 0 ? &tab->cols[c_stim] : NULL, file, err))) goto fail;
     warn_rt_scale(study, t, file, rtc->name, warn);
     if (t->n_kept == 0)
