@@ -35,8 +35,9 @@ static double now(void)
     return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
 
-/* Runs argv quietly; wall seconds and peak RSS (MiB) of that child alone (wait4). */
-static int run_child(char *const *argv, double *seconds, double *peak_mib)
+/* Runs argv quietly; wall seconds, CPU seconds (user + system) and peak RSS (MiB) of that child alone
+ * (wait4). CPU time is what to compare on a loaded machine. */
+static int run_child(char *const *argv, double *seconds, double *cpu, double *peak_mib)
 {
     fflush(stdout); /* or the child would write the parent's buffered lines again */
     fflush(stderr);
@@ -53,6 +54,8 @@ static int run_child(char *const *argv, double *seconds, double *peak_mib)
     if (wait4(pid, &status, 0, &ru) != pid) return 0;
     *seconds = now() - t0;
     *peak_mib = (double)ru.ru_maxrss / 1024.0;
+    *cpu = (double)ru.ru_utime.tv_sec + 1e-6 * (double)ru.ru_utime.tv_usec + (double)ru.ru_stime.tv_sec +
+           1e-6 * (double)ru.ru_stime.tv_usec;
     return WIFEXITED(status) && WEXITSTATUS(status) == 0;
 }
 
@@ -158,7 +161,7 @@ static double stage_seconds(const char *fits, const char *stage)
 }
 
 typedef struct {
-    double wall, peak, stage[6];
+    double wall, cpu, peak, stage[6];
 } measure;
 
 static const char *stages[6] = {"setup", "power", "fits", "goodness", "figures", "report"};
@@ -177,7 +180,7 @@ static int measure_run(const char *bandlink, const char *root, const char *kind,
     snprintf(out, sizeof out, "%s/out", dir);
     char *argv[] = {(char *)bandlink, fit ? "run" : "power", study, "--out", out, "--threads", "1", "--quiet", NULL};
     fprintf(stderr, "  bandlink %s on %ld trials ...\n", argv[1], n);
-    if (!run_child(argv, &m->wall, &m->peak)) return 0;
+    if (!run_child(argv, &m->wall, &m->cpu, &m->peak)) return 0;
     snprintf(fits, sizeof fits, "%s/fits.json", out);
     for (int s = 0; s < 6; s++) m->stage[s] = fit ? stage_seconds(fits, stages[s]) : NAN;
     return 1;
@@ -195,6 +198,7 @@ static int bench(const char *bandlink, const char *root, const char *kind, long 
     printf("  %-10s %12s %12s %8s\n", "", "reference", "large", "ratio");
     printf("  %-10s %10.2f s %10.2f s %8.1f   (linear: 10, quadratic: 100)\n", "wall", ref.wall, big.wall,
            big.wall / ref.wall);
+    printf("  %-10s %10.2f s %10.2f s %8.1f\n", "CPU", ref.cpu, big.cpu, big.cpu / ref.cpu);
     for (int s = 0; s < 6; s++)
         if (!isnan(big.stage[s]) && big.stage[s] >= 0.01)
             printf("  %-10s %10.2f s %10.2f s %8.1f\n", stages[s], ref.stage[s], big.stage[s],
