@@ -30,6 +30,9 @@ typedef struct {
     char *participants[2];
     bl_power_result power;
     bl_power_band pbands[2];
+    bl_power_spectrum spectra[2];
+    size_t spec_n[2][FX_NF];
+    double spec_mean[2][FX_NF], spec_m2[2][FX_NF];
     bl_fit_set set;
     bl_model_result models[2];
     unsigned char used[FX_N];
@@ -158,13 +161,29 @@ static fixture *fixture_create(unsigned long seed, int separate)
     pr->freq = calloc(FX_NF, sizeof *pr->freq);
     for (size_t j = 0; j < FX_NF; j++) pr->freq[j] = 2.0 * (double)j;
     pr->n_trials = FX_N;
-    pr->psd = calloc((size_t)FX_N * FX_NF, sizeof *pr->psd);
+    /* One mean spectrum per context cell, accumulated trial by trial as band power does (Welford). */
+    pr->n_spectra = 2;
+    pr->spectra = fx->spectra;
+    for (int c = 0; c < 2; c++) {
+        fx->spectra[c] = (bl_power_spectrum){c ? "context=lean" : "context=rich", 0, fx->spec_n[c], fx->spec_mean[c],
+                                             fx->spec_m2[c]};
+        memset(fx->spec_n[c], 0, sizeof fx->spec_n[c]);
+        memset(fx->spec_mean[c], 0, sizeof fx->spec_mean[c]);
+        memset(fx->spec_m2[c], 0, sizeof fx->spec_m2[c]);
+    }
     for (size_t i = 0; i < FX_N; i++)
         for (size_t j = 0; j < FX_NF; j++) {
             double f = pr->freq[j];
             double v = 40 / (1 + f) + 6 * exp(0.4 * fx->theta[i]) * exp(-0.5 * pow((f - 7) / 1.5, 2)) +
                        (ctx[i][0] == 'r' ? 1.5 : 0.8) * exp(-0.5 * pow((f - 22) / 3, 2));
-            pr->psd[i * FX_NF + j] = t->excluded[i] ? NAN : v * (0.8 + 0.4 * gsl_rng_uniform(rng));
+            v *= 0.8 + 0.4 * gsl_rng_uniform(rng);
+            if (t->excluded[i]) continue;
+            bl_power_spectrum *sp = &fx->spectra[ctx[i][0] == 'r' ? 0 : 1];
+            sp->trials += j == 0;
+            sp->n[j]++;
+            double d = v - sp->mean[j];
+            sp->mean[j] += d / (double)sp->n[j];
+            sp->m2[j] += d * (v - sp->mean[j]);
         }
     fx->pbands[0] = (bl_power_band){"theta", 4, 10, 2, 5, 4, NULL};
     fx->pbands[1] = (bl_power_band){"beta", 15, 30, 8, 15, 8, NULL};
@@ -269,7 +288,6 @@ static void fixture_destroy(fixture *fx)
     free(fx->trials.participant);
     free(fx->trials.excluded);
     free(fx->power.freq);
-    free(fx->power.psd);
     for (size_t i = 0; fx->set.comparison && i < fx->set.n_models; i++) {
         free(fx->set.comparison[i].name);
         free(fx->set.comparison[i].lrt_against);

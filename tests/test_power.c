@@ -183,7 +183,21 @@ HARNESS_CASE(artifacts)
     check_true(t->excluded[NTR + 4] && strcmp(t->excluded[NTR + 4], "artifact: peak-to-peak") == 0, "r2 trial 5 step: %s",
                t->excluded[NTR + 4] ? t->excluded[NTR + 4] : "kept");
     check_true(r->n_artifacts == 4 && t->n_kept == 2 * NTR - 4, "4 artifacts, %d kept", 2 * NTR - 4);
-    check_true(isnan(r->psd[3 * r->n_freqs + 5]) && isnan(r->band_power[3 * 2]), "excluded trials have NAN PSD rows");
+    check_true(isnan(r->band_power[3 * 2]), "excluded trials have NAN band power");
+    /* One cell ("all": no model splits trials) whose mean spectrum holds exactly the kept trials. */
+    check_true(r->n_spectra == 1 && strcmp(r->spectra[0].condition, "all") == 0 &&
+                   r->spectra[0].trials == t->n_kept && r->spectra[0].n[5] == t->n_kept,
+               "one mean spectrum over the %zu kept trials", t->n_kept);
+    if (r->n_spectra == 1) {
+        /* Band sums are linear in the PSD: the band sum of the mean spectrum is the mean of the trials'
+         * band powers (rectangle rule, shared signal conventions). */
+        double from_mean = 0, mean_bp = 0;
+        for (size_t j = 0; j < r->n_freqs; j++)
+            if (r->bands[0].used[j]) from_mean += r->df * r->spectra[0].mean[j];
+        for (size_t i = 0; i < t->n; i++)
+            if (!t->excluded[i]) mean_bp += r->band_power[i * 2] / (double)t->n_kept;
+        check_rel(from_mean, mean_bp, 1e-12, "alpha band sum of the mean spectrum = mean alpha band power");
+    }
 }
 
 HARNESS_CASE(standardized_regressors)
@@ -241,8 +255,11 @@ HARNESS_CASE(thread_invariance)
         bl_power_result *r2 = NULL;
         bl_trials_load(s, &t2, NULL, &err);
         check_true(bl_power_compute(s, t2, 2, &r2, NULL, &err) == BL_OK &&
-                       memcmp(r->psd, r2->psd, t->n * r->n_freqs * sizeof(double)) == 0,
-                   "2 threads give the same PSD bytes as 1");
+                       memcmp(r->band_power, r2->band_power, t->n * r->n_bands * sizeof(double)) == 0 &&
+                       r2->n_spectra == r->n_spectra &&
+                       memcmp(r->spectra[0].mean, r2->spectra[0].mean, r->n_freqs * sizeof(double)) == 0 &&
+                       memcmp(r->spectra[0].m2, r2->spectra[0].m2, r->n_freqs * sizeof(double)) == 0,
+                   "2 threads give the same band power and mean spectrum bytes as 1");
         bl_power_result_destroy(r2);
         bl_trials_destroy(t2);
     }

@@ -51,14 +51,43 @@ bl_status bl_status_from_errno(int error_number)
     }
 }
 
+/* Messages are printed on terminals and quote values from input files: keep them to one line
+ * (line breaks and tabs become spaces) and show every other control character (ESC, BEL, DEL, ...)
+ * as \xHH, so that a value cannot move the cursor, ring the bell or change colours. */
+static void make_printable(char *msg, size_t cap)
+{
+    size_t n = strlen(msg), extra = 0;
+    for (size_t i = 0; i < n; i++) {
+        unsigned char c = (unsigned char)msg[i];
+        if (c == '\n' || c == '\r' || c == '\t') msg[i] = ' ';
+        else if (c < 0x20 || c == 0x7F) extra += 3;
+    }
+    if (!extra) return;
+    char *out = malloc(n + extra + 1);
+    if (!out) { /* cannot expand: blank them out */
+        for (size_t i = 0; i < n; i++)
+            if ((unsigned char)msg[i] < 0x20 || msg[i] == 0x7F) msg[i] = '?';
+        return;
+    }
+    size_t w = 0;
+    for (size_t i = 0; i < n; i++) { /* whole escapes only: stop before one that would not fit */
+        unsigned char c = (unsigned char)msg[i];
+        int ctrl = c < 0x20 || c == 0x7F;
+        if (w + (ctrl ? 4 : 1) >= cap) break;
+        if (ctrl) w += (size_t)sprintf(out + w, "\\x%02X", c);
+        else out[w++] = (char)c;
+    }
+    out[w] = '\0';
+    memcpy(msg, out, w + 1);
+    free(out);
+}
+
 bl_status bl_error_setv(bl_error *err, bl_status status, const char *fmt, va_list ap)
 {
     if (err) {
         err->status = status;
         vsnprintf(err->message, sizeof err->message, fmt, ap);
-        /* Keep messages to one line whatever the caller passed in. */
-        for (char *c = err->message; *c; c++)
-            if (*c == '\n' || *c == '\r') *c = ' ';
+        make_printable(err->message, sizeof err->message);
     }
     return status;
 }
@@ -90,6 +119,7 @@ void bl_warnings_add(bl_warnings *w, const char *fmt, ...)
     char buf[1024];
     vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
+    make_printable(buf, sizeof buf);
     char *copy = malloc(strlen(buf) + 1);
     if (!copy) {
         w->lost++;

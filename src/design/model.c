@@ -5,6 +5,7 @@
  * involved (Golub & Van Loan, Matrix Computations, 4th ed., 2013, sections 2.4 and 5.5).
  */
 #include "design/model_internal.h"
+#include "core/groups.h"
 #include "core/strutil.h"
 
 #include <lapacke.h>
@@ -96,13 +97,11 @@ static bl_status make_levels(const bl_model *m, const bl_trials *trials, char *c
     const bl_table *t = trials->table;
     int *ci = calloc(n_cols ? n_cols : 1, sizeof *ci);
     size_t *level = calloc(m->n ? m->n : 1, sizeof *level);
+    char **keys = calloc(m->n ? m->n : 1, sizeof *keys);
     char **names = NULL;
-    size_t n_names = 0, cap = 0;
-    char *key = NULL;
-    size_t key_cap = 256;
+    size_t n_names = 0;
     bl_status st = BL_ERR_NOMEM;
-    key = malloc(key_cap);
-    if (!ci || !level || !key) goto fail;
+    if (!ci || !level || !keys) goto fail;
     for (size_t c = 0; c < n_cols; c++) {
         ci[c] = bl_table_find(t, cols[c]);
         if (ci[c] < 0) {
@@ -112,8 +111,7 @@ static bl_status make_levels(const bl_model *m, const bl_trials *trials, char *c
         }
     }
     for (size_t k = 0; k < m->n; k++) {
-        size_t row = m->row[k], len = 0;
-        key[0] = '\0';
+        size_t row = m->row[k], len = 1;
         for (size_t c = 0; c < n_cols; c++) {
             const char *v = t->cols[ci[c]].text[row];
             if (!v) {
@@ -123,38 +121,36 @@ static bl_status make_levels(const bl_model *m, const bl_trials *trials, char *c
                                   trials->participants ? trials->participants[trials->participant[row]] : "?");
                 goto fail;
             }
+            len += strlen(v) + 1;
+        }
+        if (!(keys[k] = malloc(len))) goto fail;
+        keys[k][0] = '\0';
+        for (size_t c = 0, at = 0; c < n_cols; c++) {
+            const char *v = t->cols[ci[c]].text[row];
             size_t vl = strlen(v);
-            if (len + vl + 2 > key_cap) {
-                key_cap = 2 * (len + vl + 2);
-                char *nk = realloc(key, key_cap);
-                if (!nk) goto fail;
-                key = nk;
-            }
-            if (c) key[len++] = ':';
-            memcpy(key + len, v, vl + 1);
-            len += vl;
+            if (c) keys[k][at++] = ':';
+            memcpy(keys[k] + at, v, vl + 1);
+            at += vl;
         }
-        size_t l = 0;
-        /* Searching from the last level found keeps sorted trial tables fast. */
-        if (k > 0 && strcmp(names[level[k - 1]], key) == 0) l = level[k - 1];
-        else {
-            for (l = 0; l < n_names; l++)
-                if (strcmp(names[l], key) == 0) break;
-        }
-        if (l == n_names) {
-            if (n_names == cap) {
-                cap = cap ? 2 * cap : 8;
-                char **nn = realloc(names, cap * sizeof *nn);
-                if (!nn) goto fail;
-                names = nn;
-            }
-            if (!(names[n_names] = bl_strdup(key))) goto fail;
-            n_names++;
-        }
-        level[k] = l;
     }
+    /* Numbered by sorting, not by comparing each trial with every level found so far. */
+    bl_status gs = bl_group_strings((const char *const *)keys, m->n, level, &n_names, "levels", err);
+    if (gs) {
+        n_names = 0;
+        st = gs;
+        goto fail;
+    }
+    if (!(names = calloc(n_names ? n_names : 1, sizeof *names))) {
+        n_names = 0;
+        goto fail;
+    }
+    for (size_t k = 0; k < m->n; k++)
+        if (!names[level[k]]) { /* hand the key of the first appearance over to names */
+            names[level[k]] = keys[k];
+            keys[k] = NULL;
+        }
+    free_strv(keys, m->n);
     free(ci);
-    free(key);
     *level_out = level;
     *names_out = names;
     *n_out = n_names;
@@ -162,7 +158,7 @@ static bl_status make_levels(const bl_model *m, const bl_trials *trials, char *c
 fail:
     if (st == BL_ERR_NOMEM) bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory building the design", m->name);
     free(ci);
-    free(key);
+    free_strv(keys, keys ? m->n : 0);
     free(level);
     free_strv(names, n_names);
     return st;
@@ -780,22 +776,20 @@ bl_status bl_model_condition_cells(const bl_model *m, const bl_trials *trials, s
     free(cols);
     if (st) return st;
     free_strv(names, n_lev);
-    /* Combine with the participant: cell = level * n_participants + participant, then renumber. */
-    size_t np = trials->n_participants ? trials->n_participants : 1;
-    size_t *map = malloc(n_lev * np * sizeof *map);
-    if (!map) {
+    /* Combine with the participant: cells are the (level, participant) pairs numbered by first appearance
+     * (by sorting: a levels x participants map would grow with their product). */
+    size_t *pair = malloc((m->n ? m->n : 1) * sizeof *pair), next = 0;
+    if (!pair) {
         free(lev);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     }
-    for (size_t i = 0; i < n_lev * np; i++) map[i] = (size_t)-1;
-    size_t next = 0;
-    for (size_t k = 0; k < m->n; k++) {
-        size_t key = lev[k] * np + m->participant[k];
-        if (map[key] == (size_t)-1) map[key] = next++;
-        lev[k] = map[key];
+    st = bl_group_pairs(lev, m->participant, m->n, pair, &next, "permutation cells", err);
+    free(lev);
+    if (st) {
+        free(pair);
+        return st;
     }
-    free(map);
-    *cell = lev;
+    *cell = pair;
     *n_cells = next;
     return BL_OK;
 }

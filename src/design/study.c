@@ -381,6 +381,11 @@ static bl_status parse_power(ctx *c, const cJSON *o, bl_study *s)
     if (!present) return bad(c, "power.window.from", NULL, "is required (seconds relative to the alignment point)");
     if ((st = get_number(c, w, "power.window", "to", NAN, &s->power.to, &present))) return st;
     if (!present) return bad(c, "power.window.to", NULL, "is required (seconds relative to the alignment point)");
+    /* Limits before any arithmetic: sample indices are computed as round(seconds x rate) in 64 bits. */
+    if (!(fabs(s->power.from) <= BL_MAX_WINDOW_SECONDS))
+        return bad(c, "power.window.from", get(w, "from"), "must be within +-1e6 s of the alignment point");
+    if (!(fabs(s->power.to) <= BL_MAX_WINDOW_SECONDS))
+        return bad(c, "power.window.to", get(w, "to"), "must be within +-1e6 s of the alignment point");
     if (!(s->power.to > s->power.from))
         return bad(c, "power.window.to", get(w, "to"), "must be greater than power.window.from");
     double len = s->power.to - s->power.from;

@@ -12,6 +12,9 @@
 
 typedef enum { BL_LINK_DEFAULT = 0, BL_LINK_IDENTITY, BL_LINK_LOG } bl_link;
 
+/* power.window.from and .to must lie within this many seconds of the alignment point. */
+#define BL_MAX_WINDOW_SECONDS 1e6
+
 typedef struct {
     char *regressor;     /* a band name or a numeric trial column */
     char **by;           /* one slope per level combination of these columns; n_by = 0: one shared slope */

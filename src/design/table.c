@@ -262,6 +262,58 @@ static void skip_blank_lines(table_reader *tr)
 
 /* The header: named, distinct columns (trailing spaces dropped). The delimiter is a tab when the
  * header line has one, else a comma. */
+/* Offset of the first byte that does not start a well-formed UTF-8 sequence (RFC 3629 section 4:
+ * no overlong forms, no surrogates, nothing above U+10FFFF), or size when the text is valid. */
+static size_t utf8_invalid_at(const unsigned char *d, size_t size)
+{
+    size_t i = 0;
+    while (i < size) {
+        unsigned char c = d[i];
+        if (c < 0x80) {
+            i++;
+            continue;
+        }
+        size_t need;
+        unsigned char lo = 0x80, hi = 0xBF; /* allowed range of the second byte */
+        if (c >= 0xC2 && c <= 0xDF) need = 1;
+        else if (c >= 0xE0 && c <= 0xEF) {
+            need = 2;
+            if (c == 0xE0) lo = 0xA0;
+            if (c == 0xED) hi = 0x9F;
+        } else if (c >= 0xF0 && c <= 0xF4) {
+            need = 3;
+            if (c == 0xF0) lo = 0x90;
+            if (c == 0xF4) hi = 0x8F;
+        } else
+            return i;
+        if (i + need >= size) return i; /* the sequence is cut off by the end of the file */
+        if (d[i + 1] < lo || d[i + 1] > hi) return i;
+        for (size_t k = 2; k <= need; k++)
+            if ((d[i + k] & 0xC0) != 0x80) return i;
+        i += need + 1;
+    }
+    return size;
+}
+
+/* Levels and IDs are copied into JSON and CSV outputs: refuse bytes that are not UTF-8 here, where the file
+ * and position are known. */
+static bl_status check_utf8(const table_reader *tr, bl_error *err)
+{
+    size_t bad = utf8_invalid_at((const unsigned char *)tr->data, tr->size);
+    if (bad >= tr->size) return BL_OK;
+    size_t bl = 1, bc = 1;
+    for (size_t k = 0; k < bad; k++) {
+        if (tr->data[k] == '\n') {
+            bl++;
+            bc = 1;
+        } else {
+            bc++;
+        }
+    }
+    return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: byte \\x%02X is not UTF-8 text; save the table as UTF-8 "
+                        "(docs/study-file.md)", tr->name, bl, bc, (unsigned)(unsigned char)tr->data[bad]);
+}
+
 static bl_status read_header(table_reader *tr, bl_error *err)
 {
     if (tr->size >= 3 && (unsigned char)tr->data[0] == 0xEF && (unsigned char)tr->data[1] == 0xBB &&
@@ -269,6 +321,8 @@ static bl_status read_header(table_reader *tr, bl_error *err)
         tr->pos = 3;
     if (memchr(tr->data, '\0', tr->size))
         return bl_error_set(err, BL_ERR_INPUT, "%s: not a text table (contains a NUL byte)", tr->name);
+    bl_status st = check_utf8(tr, err);
+    if (st) return st;
     skip_blank_lines(tr);
     if (tr->pos >= tr->size) return bl_error_set(err, BL_ERR_INPUT, "%s: the table is empty (no header row)", tr->name);
     tr->delim = ',';
@@ -279,7 +333,7 @@ static bl_status read_header(table_reader *tr, bl_error *err)
         }
     size_t header_line = tr->line;
     int got = 0;
-    bl_status st = read_record(tr, &got, err);
+    st = read_record(tr, &got, err);
     if (st) return st;
     row_buf *r = &tr->r;
     for (size_t j = 0; j < r->n; j++) {

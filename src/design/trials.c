@@ -8,6 +8,7 @@
  */
 #include "design/trials.h"
 #include "design/study.h"
+#include "core/groups.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -94,6 +95,140 @@ bl_status bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **ou
 
 /* qsort has no context argument in C11; loading is not done from several threads at once on one table,
  * but keep the pointer thread-local anyway */
+/* power.csv holds participant, trial, the table's columns, <band>_power and <band> per band, and
+ * artifact: refuse, before any work, a name that two of these would share. */
+static bl_status check_power_columns(const struct bl_study *study, const bl_table *tab, bl_error *err)
+{
+    size_t nb = study->power.n_bands, n = 0;
+    char (*name)[300] = malloc((3 + 2 * nb) * sizeof *name);
+    char (*what)[340] = malloc((3 + 2 * nb) * sizeof *what);
+    bl_status st = BL_OK;
+    if (!name || !what) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking the power.csv columns");
+        goto done;
+    }
+    snprintf(name[n], sizeof name[n], "participant"), snprintf(what[n++], sizeof what[0], "power.csv's participant column");
+    snprintf(name[n], sizeof name[n], "trial"), snprintf(what[n++], sizeof what[0], "power.csv's trial column");
+    snprintf(name[n], sizeof name[n], "artifact"), snprintf(what[n++], sizeof what[0], "power.csv's artifact column");
+    for (size_t b = 0; b < nb; b++) {
+        const char *bn = study->power.bands[b].name;
+        snprintf(name[n], sizeof name[n], "%s_power", bn);
+        snprintf(what[n++], sizeof what[0], "the raw power of band \"%s\" (power.bands.%s)", bn, bn);
+        snprintf(name[n], sizeof name[n], "%s", bn);
+        snprintf(what[n++], sizeof what[0], "the regressor of band \"%s\" (power.bands.%s)", bn, bn);
+    }
+    for (size_t i = 0; i < n && !st; i++)
+        for (size_t k = i + 1; k < n && !st; k++)
+            if (strcmp(name[i], name[k]) == 0)
+                st = bl_error_set(err, BL_ERR_INPUT, "%s: %s and %s would both be the power.csv column \"%s\"; rename "
+                                  "the band", study->path, what[i], what[k], name[i]);
+    for (size_t j = 0; j < tab->n_cols && !st; j++) {
+        const char *cn = tab->cols[j].name;
+        /* the table's own participant and trial columns are written once, as the leading columns */
+        if (strcmp(cn, "participant") == 0 && strcmp(study->trials.participant, "participant") == 0) continue;
+        if (strcmp(cn, "trial") == 0 && study->trials.trial && strcmp(study->trials.trial, "trial") == 0) continue;
+        for (size_t i = 0; i < n && !st; i++)
+            if (strcmp(cn, name[i]) == 0)
+                st = bl_error_set(err, BL_ERR_INPUT, "%s:1: column \"%s\" of the trial table and %s would both be the "
+                                  "power.csv column \"%s\"; rename the column", tab->path, cn, what[i], cn);
+    }
+done:
+    free(name);
+    free(what);
+    return st;
+}
+
+/* Up to six distinct values of a column, quoted, into list. */
+static void list_values(const bl_table *tab, const bl_column *col, char *list, size_t size)
+{
+    const char *seen[6];
+    size_t n_seen = 0;
+    int more = 0;
+    list[0] = '\0';
+    for (size_t i = 0; i < tab->n_rows && !more; i++) {
+        const char *v = col->text[i];
+        if (!v) continue;
+        size_t k = 0;
+        while (k < n_seen && strcmp(seen[k], v) != 0) k++;
+        if (k < n_seen) continue;
+        if (n_seen < 6) seen[n_seen++] = v;
+        else more = 1;
+    }
+    for (size_t k = 0; k < n_seen; k++)
+        snprintf(list + strlen(list), size - strlen(list), "%s\"%.60s\"", k ? ", " : "", seen[k]);
+    if (!n_seen) snprintf(list, size, "none");
+    if (more) snprintf(list + strlen(list), size - strlen(list), ", ...");
+}
+
+/* Some row of col holds v (as text, or as the same number: value_in's rule). */
+static int column_has(const bl_table *tab, const bl_column *col, const char *v)
+{
+    char *const one[1] = {(char *)v};
+    for (size_t i = 0; i < tab->n_rows; i++)
+        if (col->text[i] && value_in(col->text[i], one, 1)) return 1;
+    return 0;
+}
+
+/* trials.upper values must occur: ["Right"] against a column holding "right" would otherwise code every
+ * response as the lower boundary without a word. Each value must be in the response column (or, with
+ * stimulus coding, in the stimulus column), and each coded column must hold at least one of them. */
+static bl_status check_upper_values(const struct bl_study *study, const bl_table *tab, const bl_column *resp,
+                                    const bl_column *stim, const char *file, bl_error *err)
+{
+    char list[400], list2[400];
+    const bl_column *cols[2] = {resp, stim};
+    const char *keys[2] = {"trials.response", "trials.stimulus"};
+    for (size_t u = 0; u < study->trials.n_upper; u++) {
+        const char *want = study->trials.upper[u];
+        if (column_has(tab, resp, want) || (stim && column_has(tab, stim, want))) continue;
+        list_values(tab, resp, list, sizeof list);
+        if (stim) list_values(tab, stim, list2, sizeof list2);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: trials.upper value \"%s\" matches no row of column \"%s\"%s%s%s; values present: "
+                            "%s%s%s (compared as text, case included, or as numbers)", file, want, resp->name,
+                            stim ? " or \"" : "", stim ? stim->name : "", stim ? "\"" : "", list,
+                            stim ? "; in the stimulus column: " : "", stim ? list2 : "");
+    }
+    for (int c = 0; c < 2; c++) {
+        if (!cols[c]) continue;
+        int any = 0;
+        for (size_t u = 0; u < study->trials.n_upper && !any; u++) any = column_has(tab, cols[c], study->trials.upper[u]);
+        if (any) continue;
+        list_values(tab, cols[c], list, sizeof list);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: no row of column \"%s\" (%s) holds a trials.upper value; values present: %s "
+                            "(compared as text, case included, or as numbers)", file, cols[c]->name, keys[c], list);
+    }
+    return BL_OK;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+    double u = *(const double *)a, v = *(const double *)b;
+    return (u > v) - (u < v);
+}
+
+/* RTs in milliseconds read as seconds (or the reverse) still fit, to absurd parameters: warn when the
+ * median kept RT is outside 0.05-20 s (human and animal choice RTs lie well inside). */
+static void warn_rt_scale(const struct bl_study *study, const bl_trials *t, const char *file, const char *col,
+                          bl_warnings *warn)
+{
+    double *rt = malloc((t->n ? t->n : 1) * sizeof *rt);
+    size_t m = 0;
+    if (!rt) return;
+    for (size_t i = 0; i < t->n; i++)
+        if (!t->excluded[i] && isfinite(t->rt[i])) rt[m++] = t->rt[i];
+    if (m) {
+        qsort(rt, m, sizeof *rt, cmp_double);
+        double med = m % 2 ? rt[m / 2] : 0.5 * (rt[m / 2 - 1] + rt[m / 2]);
+        if (med > 20 || med < 0.05)
+            bl_warnings_add(warn, "%s: the median response time in column %s is %.6g s (trials.rt_unit \"%s\"); RTs "
+                            "are usually 0.05-20 s: is trials.rt_unit right?", file, col, med,
+                            study->trials.rt_in_ms ? "ms" : "s");
+    }
+    free(rt);
+}
+
 static _Thread_local const bl_trials *sort_trials;
 
 static int cmp_trial(const void *a, const void *b)
@@ -142,8 +277,10 @@ static bl_status find_columns(const struct bl_study *study, const bl_table *tab,
     return BL_OK;
 }
 
-/* Participant index and trial label of row i (count[k]: rows of participant k so far). */
-static bl_status code_participant(bl_trials *t, const trial_columns *c, size_t i, size_t *count, bl_error *err)
+/* Participant index and trial label of row i (count[k]: rows of participant k so far; part_id[i]: the
+ * participant's number by first appearance, from bl_group_strings). */
+static bl_status code_participant(bl_trials *t, const trial_columns *c, size_t i, const size_t *part_id,
+                                  size_t *count, bl_error *err)
 {
     const bl_table *tab = t->table;
     const bl_column *part = &tab->cols[c->part];
@@ -151,8 +288,7 @@ static bl_status code_participant(bl_trials *t, const trial_columns *c, size_t i
     if (!p)
         return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.participant) is missing",
                             tab->path, tab->line[i], part->name, c->part + 1);
-    size_t k = 0;
-    while (k < t->n_participants && strcmp(t->participants[k], p) != 0) k++;
+    size_t k = part_id[i]; /* numbered by first appearance: a new participant is the next number */
     if (k == t->n_participants) {
         if (!(t->participants[k] = bl_strdup(p))) return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
         t->n_participants++;
@@ -288,31 +424,37 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
     }
     size_t n = tab->n_rows;
     bl_trials *t = NULL;
-    size_t *count = NULL;
+    size_t *count = NULL, *part_id = NULL, n_part_ids = 0;
     trial_columns c;
     if ((st = trials_alloc(tab, &t, err))) goto fail;
-    if (!(count = calloc(n, sizeof *count))) {
+    if (!(count = calloc(n, sizeof *count)) || !(part_id = malloc(n * sizeof *part_id))) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
         goto fail;
     }
     if ((st = find_columns(study, tab, &c, err))) goto fail;
+    if (study->has_power && (st = check_power_columns(study, tab, err))) goto fail;
+    if ((st = bl_group_strings((const char *const *)tab->cols[c.part].text, n, part_id, &n_part_ids, "participants",
+                               err)))
+        goto fail;
     size_t n_upper_rows = 0;
     for (size_t i = 0; i < n; i++)
-        if ((st = code_participant(t, &c, i, count, err)) || (st = code_response(study, t, &c, i, &n_upper_rows, err)))
+        if ((st = code_participant(t, &c, i, part_id, count, err)) ||
+            (st = code_response(study, t, &c, i, &n_upper_rows, err)))
             goto fail;
     const bl_column *resp = &tab->cols[c.resp];
     warn_response_values(tab, resp, warn);
     warn_repeated_labels(t, warn);
-    if (n_upper_rows == 0)
-        bl_warnings_add(warn, "%s: no trial has a %s value listed in trials.upper, so every response is coded as the "
-                        "lower boundary", file, resp->name);
+    if ((st = check_upper_values(study, tab, resp, c.stim >= 0 ? &tab->cols[c.stim] : NULL, file, err))) goto fail;
+    warn_rt_scale(study, t, file, tab->cols[c.rt].name, warn);
     if (t->n_kept == 0)
         bl_warnings_add(warn, "%s: every trial is excluded by the keep rules or missing values", file);
     free(count);
+    free(part_id);
     *out = t;
     return BL_OK;
 fail:
     free(count);
+    free(part_id);
     bl_trials_destroy(t);
     return st;
 }

@@ -160,7 +160,7 @@ static bl_svg *fig_spectrum(const bl_study *study, const bl_power_result *pr, co
     bl_svg *fig = bl_svg_create("psd", "Power spectral density by condition", 1, 1, 560, 340);
     if (!fig) return NULL;
     bl_svg_panel *p = bl_svg_panel_at(fig, 0);
-    if (!pr || pr->n_freqs < 2 || !pr->psd) {
+    if (!pr || pr->n_freqs < 2) {
         bl_svg_note(p, "no recordings in this study: band power was not computed here");
         *caption = xprintf("No spectrum: the study has no recordings section.");
         return fig;
@@ -193,21 +193,14 @@ static bl_svg *fig_spectrum(const bl_study *study, const bl_power_result *pr, co
     size_t shown = 0;
     for (size_t c = 0; c < g->n_cells; c++) {
         const bl_goodness_group *cell = &g->groups[c];
+        /* The cell's mean spectrum, accumulated while band power was computed (no per-trial PSDs kept). */
+        const bl_power_spectrum *sp = NULL;
+        for (size_t k = 0; k < pr->n_spectra && !sp; k++)
+            if (strcmp(pr->spectra[k].condition, cell->condition) == 0) sp = &pr->spectra[k];
         for (size_t j = 0; j < nf; j++) {
-            double s = 0, ss = 0;
-            size_t n = 0;
-            for (size_t i = 0; i < cell->n; i++) {
-                double v = pr->psd[cell->rows[i] * pr->n_freqs + j + 1];
-                if (!isfinite(v)) continue;
-                s += v;
-                n++;
-            }
-            double m = n ? s / (double)n : NAN;
-            for (size_t i = 0; i < cell->n && n > 1; i++) {
-                double v = pr->psd[cell->rows[i] * pr->n_freqs + j + 1];
-                if (isfinite(v)) ss += (v - m) * (v - m);
-            }
-            double se = n > 1 ? sqrt(ss / (double)(n - 1) / (double)n) : NAN;
+            size_t n = sp ? sp->n[j + 1] : 0;
+            double m = n ? sp->mean[j + 1] : NAN;
+            double se = n > 1 ? sqrt(sp->m2[j + 1] / (double)(n - 1) / (double)n) : NAN;
             mean[j] = m;
             lo[j] = m - se;
             hi[j] = m + se;

@@ -9,6 +9,9 @@
  */
 #include "report/goodness.h"
 
+#include "core/csvtext.h"
+#include "core/groups.h"
+#include "design/cells.h"
 #include "core/output.h"
 #include "core/strutil.h"
 
@@ -202,24 +205,7 @@ static int strlist_add(strlist *l, const char *s)
 /* "col=value;col=value" for a row (missing values shown as NA), or "all" when ncols == 0. */
 static char *level_label(const bl_trials *t, const int *cols, size_t ncols, size_t row)
 {
-    if (ncols == 0) return bl_strdup("all");
-    size_t len = 1;
-    for (size_t c = 0; c < ncols; c++) {
-        const bl_column *col = &t->table->cols[cols[c]];
-        const char *v = col->text[row] ? col->text[row] : "NA";
-        len += strlen(col->name) + strlen(v) + 2;
-    }
-    char *s = malloc(len);
-    if (!s) return NULL;
-    s[0] = 0;
-    for (size_t c = 0; c < ncols; c++) {
-        const bl_column *col = &t->table->cols[cols[c]];
-        if (c) strcat(s, ";");
-        strcat(s, col->name);
-        strcat(s, "=");
-        strcat(s, col->text[row] ? col->text[row] : "NA");
-    }
-    return s;
+    return bl_cell_label(t->table, cols, ncols, row);
 }
 
 static const bl_model_spec *find_spec(const bl_study *study, const char *name)
@@ -260,35 +246,39 @@ static bl_goodness_group *group_new(grouplist *l)
 }
 
 /* Split `rows` (n, table order) into groups by the level label of `cols`; appends groups to `out`
- * in order of first appearance. `rows_of` receives, per new group, its rows. */
+ * in order of first appearance, each holding its rows in table order. O(n log n) time (labels are
+ * numbered by sorting) and O(n) memory (each group gets exactly its own rows). */
 static bl_status split_by(const bl_trials *t, const int *cols, size_t ncols, const size_t *rows, size_t n,
                           grouplist *out, size_t *first_new, bl_error *err)
 {
     *first_new = out->n;
     char **labels = calloc(n ? n : 1, sizeof *labels);
-    if (!labels) return bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
+    size_t *id = malloc((n ? n : 1) * sizeof *id), n_ids = 0;
+    size_t *count = NULL;
     bl_status st = BL_OK;
+    if (!labels || !id) goto nomem;
     for (size_t i = 0; i < n; i++)
-        if (!(labels[i] = level_label(t, cols, ncols, rows[i]))) {
-            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
-            goto done;
-        }
+        if (!(labels[i] = level_label(t, cols, ncols, rows[i]))) goto nomem;
+    if ((st = bl_group_strings((const char *const *)labels, n, id, &n_ids, "goodness-of-fit groups", err))) goto done;
+    if (!(count = calloc(n_ids ? n_ids : 1, sizeof *count))) goto nomem;
+    for (size_t i = 0; i < n; i++) count[id[i]]++;
     for (size_t i = 0; i < n; i++) {
-        size_t gi;
-        for (gi = *first_new; gi < out->n; gi++)
-            if (strcmp(out->g[gi].condition, labels[i]) == 0) break;
-        if (gi == out->n) {
+        size_t gi = *first_new + id[i];
+        if (gi == out->n) { /* ids are numbered by first appearance: a new id is always the next group */
             bl_goodness_group *g = group_new(out);
-            if (!g || !(g->condition = bl_strdup(labels[i])) || !(g->rows = malloc(n * sizeof *g->rows))) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
-                goto done;
-            }
+            if (!g || !(g->condition = bl_strdup(labels[i])) || !(g->rows = malloc(count[id[i]] * sizeof *g->rows)))
+                goto nomem;
         }
         out->g[gi].rows[out->g[gi].n++] = rows[i];
     }
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials");
 done:
-    for (size_t i = 0; i < n; i++) free(labels[i]);
+    for (size_t i = 0; labels && i < n; i++) free(labels[i]);
     free(labels);
+    free(id);
+    free(count);
     return st;
 }
 
@@ -304,6 +294,12 @@ static int rank_cmp(const void *a, const void *b)
     if (u < v) return -1;
     if (u > v) return 1;
     return p->row < q->row ? -1 : p->row > q->row;
+}
+
+static int cmp_row(const void *a, const void *b)
+{
+    size_t u = *(const size_t *)a, v = *(const size_t *)b;
+    return (u > v) - (u < v);
 }
 
 /* "regressor|by1,by2": identifies a binning. Caller frees. */
@@ -340,7 +336,12 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
 {
     bl_status st = BL_OK;
     grouplist gl = {0};
-    strlist cell_cols = {0}, seen_pairs = {0};
+    struct {
+        const char **names;
+        size_t n;
+    } cell_cols = {0};
+    strlist seen_pairs = {0};
+    const char **names = NULL;
     int *cols = NULL;
     size_t *rows = NULL, nrows = 0;
     rank_item *items = NULL;
@@ -357,23 +358,11 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
         if (ok) rows[nrows++] = r;
     }
 
-    /* Columns that define condition cells. */
-    for (size_t m = 0; m < set->n_models; m++) {
-        const bl_model_spec *sp = find_spec(study, set->models[m].name);
-        if (!sp) continue;
-        for (int p = 0; p < BL_NPARAM; p++) {
-            const bl_param_spec *ps = &sp->param[p];
-            if (ps->is_fixed) continue;
-            for (size_t i = 0; i < ps->n_per; i++)
-                if (strcmp(ps->per[i], study->trials.participant) != 0 && !strlist_add(&cell_cols, ps->per[i])) goto nomem;
-            for (size_t s = 0; s < ps->n_slopes; s++)
-                for (size_t i = 0; i < ps->slopes[s].n_by; i++)
-                    if (strcmp(ps->slopes[s].by[i], study->trials.participant) != 0 &&
-                        !strlist_add(&cell_cols, ps->slopes[s].by[i]))
-                        goto nomem;
-        }
-    }
-    if (study->trials.stimulus && !strlist_add(&cell_cols, study->trials.stimulus)) goto nomem;
+    /* Columns that define condition cells (shared with the per-cell spectra of band power). */
+    names = malloc((set->n_models ? set->n_models : 1) * sizeof *names);
+    if (!names) goto nomem;
+    for (size_t m = 0; m < set->n_models; m++) names[m] = set->models[m].name;
+    if ((st = bl_cell_columns(study, names, set->n_models, &cell_cols.names, &cell_cols.n, err))) goto fail;
     cols = malloc((cell_cols.n + 1) * sizeof *cols);
     if (!cols) goto nomem;
     for (size_t i = 0; i < cell_cols.n; i++) {
@@ -475,13 +464,8 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
                         ng->regressor_low = x[items[r0].row];
                         ng->regressor_high = x[items[r1 - 1].row];
                         ng->regressor_mean = sum / (double)(r1 - r0);
-                        /* Table order within the bin. */
-                        for (size_t i = 1; i < ng->n; i++)
-                            for (size_t j = i; j > 0 && ng->rows[j - 1] > ng->rows[j]; j--) {
-                                size_t tmp = ng->rows[j];
-                                ng->rows[j] = ng->rows[j - 1];
-                                ng->rows[j - 1] = tmp;
-                            }
+                        /* Table order within the bin (rows are distinct: a total order). */
+                        qsort(ng->rows, ng->n, sizeof *ng->rows, cmp_row);
                     }
                 }
                 free_groups(levels.g, levels.n);
@@ -501,7 +485,8 @@ nomem:
 fail:
     free_groups(gl.g, gl.n);
 done:
-    free(cell_cols.names);
+    free((void *)cell_cols.names);
+    free((void *)names);
     free(seen_pairs.names);
     for (size_t i = 0; i < n_pair_keys; i++) free(pair_keys[i]);
     free(pair_keys);
@@ -690,24 +675,11 @@ static void csv_num(FILE *f, double v)
     else fputs(",NA", f);
 }
 
-/* A text field, quoted when it holds a comma, quote or line break (RFC 4180). */
+/* A text field (core/csvtext.h: RFC 4180 quoting, formula starts neutralised). */
 static void csv_text(FILE *f, const char *s, int lead_comma)
 {
     if (lead_comma) fputc(',', f);
-    if (!s) {
-        fputs("NA", f);
-        return;
-    }
-    if (!strpbrk(s, ",\"\r\n")) {
-        fputs(s, f);
-        return;
-    }
-    fputc('"', f);
-    for (; *s; s++) {
-        if (*s == '"') fputc('"', f);
-        fputc(*s, f);
-    }
-    fputc('"', f);
+    bl_csv_text(f, s);
 }
 
 bl_status bl_goodness_write_csv(const bl_goodness *g, const char *path, bl_error *err)

@@ -1,6 +1,7 @@
 /* Writers for fits.json, comparison.csv and trials.csv (vocabulary.md), atomic via output.h.
  * CSV follows RFC 4180 quoting; numbers are printed with %.17g so they read back exactly. */
 #include "report/results.h"
+#include "core/csvtext.h"
 
 #include "core/output.h"
 #include "core/json.h"
@@ -233,23 +234,7 @@ bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const c
 
 /* ---- CSV ------------------------------------------------------------------------------------- */
 
-static void csv_text(FILE *f, const char *s)
-{
-    if (!s) {
-        fputs("NA", f);
-        return;
-    }
-    if (strpbrk(s, ",\"\r\n") == NULL) {
-        fputs(s, f);
-        return;
-    }
-    fputc('"', f);
-    for (const char *c = s; *c; c++) {
-        if (*c == '"') fputc('"', f);
-        fputc(*c, f);
-    }
-    fputc('"', f);
-}
+static void csv_text(FILE *f, const char *s) { bl_csv_text(f, s); }
 
 static void csv_num(FILE *f, double x)
 {

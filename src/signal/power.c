@@ -15,6 +15,9 @@
 #include "core/output.h"
 #include "signal/spectrum.h"
 #include "signal/trace.h"
+#include "core/csvtext.h"
+#include "core/groups.h"
+#include "design/cells.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -27,7 +30,7 @@
 #include <omp.h>
 #endif
 
-enum { CHUNK_TRIALS = 32 };
+enum { CHUNK_TRIALS = 32, BL_MAX_WINDOW_SAMPLES = 1 << 28 };
 
 /* CSV/TSV traces are parsed whole when opened, so one thread takes all trials of such a file. */
 static int is_text_trace(const char *p)
@@ -72,42 +75,46 @@ void bl_power_result_destroy(bl_power_result *r)
     }
     free(r->recordings);
     free(r->freq);
-    free(r->psd);
+    for (size_t c = 0; c < r->n_spectra; c++) {
+        free(r->spectra[c].condition);
+        free(r->spectra[c].n);
+        free(r->spectra[c].mean);
+        free(r->spectra[c].m2);
+    }
+    free(r->spectra);
     free(r->band_power); /* artifact_power lives in the same block */
     free(r->unit);
     free(r);
 }
 
-static int add_recording(bl_power_result *r, size_t *cap, const char *path, const char *participant, size_t *index)
+/* The recordings of the jobs, numbered by first appearance (by sorting the paths: one file per trial
+ * stays O(n log n)). Takes ownership of paths[0..n_jobs). */
+static bl_status assign_recordings(bl_power_result *r, const bl_trials *t, job *jobs, size_t n_jobs, char **paths,
+                                   bl_error *err)
 {
-    /* trials usually come grouped by file: look at the last one first */
-    if (r->n_recordings && strcmp(r->recordings[r->n_recordings - 1].path, path) == 0) {
-        *index = r->n_recordings - 1;
-        return 1;
-    }
-    for (size_t i = 0; i < r->n_recordings; i++)
-        if (strcmp(r->recordings[i].path, path) == 0) {
-            *index = i;
-            return 1;
+    size_t *id = malloc((n_jobs ? n_jobs : 1) * sizeof *id), n_rec = 0;
+    bl_status st = BL_OK;
+    if (!id) goto nomem;
+    if ((st = bl_group_strings((const char *const *)paths, n_jobs, id, &n_rec, "recordings", err))) goto done;
+    if (!(r->recordings = calloc(n_rec ? n_rec : 1, sizeof *r->recordings))) goto nomem;
+    r->n_recordings = n_rec;
+    for (size_t k = 0; k < n_jobs; k++) {
+        bl_power_recording *rec = &r->recordings[id[k]];
+        if (!rec->path) {
+            rec->path = paths[k];
+            paths[k] = NULL;
+            if (!(rec->participant = bl_strdup(t->participants[t->participant[jobs[k].row]]))) goto nomem;
         }
-    if (r->n_recordings == *cap) {
-        size_t nc = *cap ? 2 * *cap : 16;
-        bl_power_recording *nr = realloc(r->recordings, nc * sizeof *nr);
-        if (!nr) return 0;
-        r->recordings = nr;
-        *cap = nc;
+        rec->n_trials++;
+        jobs[k].rec = id[k];
     }
-    bl_power_recording *rec = &r->recordings[r->n_recordings];
-    memset(rec, 0, sizeof *rec);
-    rec->path = bl_strdup(path);
-    rec->participant = bl_strdup(participant);
-    if (!rec->path || !rec->participant) {
-        free(rec->path);
-        free(rec->participant);
-        return 0;
-    }
-    *index = r->n_recordings++;
-    return 1;
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory listing the recordings");
+done:
+    for (size_t k = 0; k < n_jobs; k++) free(paths[k]);
+    free(id);
+    return st;
 }
 
 /* Per-thread state. */
@@ -191,8 +198,10 @@ static const char *artifact(const bl_study *s, const bl_trace_info *info, const 
     return NULL;
 }
 
+/* One work item: its trials' PSDs go to block_psd (row k - block_begin), band power to the result. */
 static void process_item(const bl_study *s, bl_power_result *r, const bl_trials *t, const bl_montage *m,
-                         const bl_welch_plan *plan, const job *jobs, item *it, thread_state *ts, const char **reason)
+                         const bl_welch_plan *plan, const job *jobs, item *it, thread_state *ts, const char **reason,
+                         double *block_psd, size_t block_begin)
 {
     if (ts->rec != it->rec) {
         it->status = open_recording(ts, s, r, t, m, it->rec, jobs[it->begin].row, &it->err);
@@ -228,7 +237,7 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
             return;
         }
         bl_montage_apply(m, ts->raw, L, info->channels, s->recordings.gain, ts->x);
-        double *psd = r->psd + row * nf;
+        double *psd = block_psd + (k - block_begin) * nf;
         const char *why = artifact(s, info, m, ts->raw, ts->x, L);
         if (why) reason[row] = why;
         if (why && strcmp(why, "artifact: non-finite") == 0) continue;
@@ -245,6 +254,170 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
     }
 }
 
+/* ---- groups and per-cell spectra ---- */
+
+/* Standardize groups (participant, or participant x power.condition texts), numbered by first
+ * appearance over all rows; first_of_group[g] is the first row of group g. Sorting keeps this
+ * O(n log n) for any number of groups. */
+static bl_status standardize_groups(const bl_study *s, const bl_trials *t, size_t *group, size_t *first_of_group,
+                                    size_t *n_groups, bl_error *err)
+{
+    size_t n = t->n;
+    *n_groups = n ? 1 : 0;
+    if (s->power.standardize == BL_STANDARDIZE_NONE) {
+        for (size_t i = 0; i < n; i++) group[i] = 0;
+        first_of_group[0] = 0;
+        return BL_OK;
+    }
+    int by_condition = s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION;
+    char **key = calloc(n ? n : 1, sizeof *key);
+    bl_status st = BL_OK;
+    if (!key) return bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials for standardize");
+    for (size_t i = 0; i < n && !st; i++) {
+        /* participant number, then each condition value length-prefixed ("-" when missing): unambiguous */
+        size_t len = 32;
+        for (size_t k = 0; by_condition && k < s->power.n_condition; k++) {
+            const char *v = t->table->cols[bl_table_find(t->table, s->power.condition[k])].text[i];
+            len += 24 + (v ? strlen(v) : 0);
+        }
+        if (!(key[i] = malloc(len))) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory grouping trials for standardize");
+            break;
+        }
+        int at = snprintf(key[i], len, "%zu", t->participant[i]);
+        for (size_t k = 0; by_condition && k < s->power.n_condition; k++) {
+            const char *v = t->table->cols[bl_table_find(t->table, s->power.condition[k])].text[i];
+            at += v ? snprintf(key[i] + at, len - (size_t)at, "|%zu:%s", strlen(v), v)
+                    : snprintf(key[i] + at, len - (size_t)at, "|-");
+        }
+    }
+    if (!st) st = bl_group_strings((const char *const *)key, n, group, n_groups, "standardize groups", err);
+    for (size_t i = 0; i < n; i++) free(key[i]);
+    free(key);
+    if (st) return st;
+    for (size_t i = n; i-- > 0;) first_of_group[group[i]] = i;
+    return BL_OK;
+}
+
+/* Accumulates each kept trial's PSD into the mean spectrum of its condition cell. A trial is kept
+ * when it is not an artifact and all its band powers can be scaled; with standardize, the first kept
+ * trial of a group waits (one PSD per group) until a second arrives, because the only kept trial
+ * of a group is left out later. */
+typedef struct {
+    size_t *cell;            /* n rows: cell index, SIZE_MAX when cells are unknown */
+    size_t *group;           /* n rows: standardize group */
+    size_t *first_of_group;  /* n_groups */
+    size_t n_groups;
+    size_t *kept;            /* n_groups: kept trials seen so far */
+    size_t *pending_row;     /* n_groups */
+    double **pending;        /* n_groups: PSD of the first kept trial while it is the only one */
+    int standardize;
+} spectra_acc;
+
+static void spectra_acc_free(spectra_acc *a)
+{
+    free(a->cell);
+    free(a->group);
+    free(a->first_of_group);
+    free(a->kept);
+    free(a->pending_row);
+    for (size_t g = 0; a->pending && g < a->n_groups; g++) free(a->pending[g]);
+    free(a->pending);
+}
+
+static bl_status spectra_setup(const bl_study *s, const bl_trials *t, bl_power_result *r, spectra_acc *a,
+                               bl_error *err)
+{
+    size_t n = t->n, nf = r->n_freqs;
+    const char **cols = NULL;
+    size_t n_cols = 0, n_cells = 0;
+    int *ci = NULL;
+    char **label = NULL;
+    a->standardize = s->power.standardize != BL_STANDARDIZE_NONE;
+    a->cell = malloc((n ? n : 1) * sizeof *a->cell);
+    a->group = malloc((n ? n : 1) * sizeof *a->group);
+    a->first_of_group = malloc((n ? n : 1) * sizeof *a->first_of_group);
+    if (!a->cell || !a->group || !a->first_of_group) goto nomem;
+    bl_status st = standardize_groups(s, t, a->group, a->first_of_group, &a->n_groups, err);
+    if (st) return st;
+    a->kept = calloc(a->n_groups ? a->n_groups : 1, sizeof *a->kept);
+    a->pending_row = calloc(a->n_groups ? a->n_groups : 1, sizeof *a->pending_row);
+    a->pending = calloc(a->n_groups ? a->n_groups : 1, sizeof *a->pending);
+    if (!a->kept || !a->pending_row || !a->pending) goto nomem;
+    for (size_t i = 0; i < n; i++) a->cell[i] = SIZE_MAX;
+    if ((st = bl_cell_columns(s, NULL, 0, &cols, &n_cols, err))) return st;
+    if (!(ci = malloc((n_cols ? n_cols : 1) * sizeof *ci))) goto nomem;
+    for (size_t c = 0; c < n_cols; c++)
+        if ((ci[c] = bl_table_find(t->table, cols[c])) < 0) goto done; /* the models' check names it */
+    if (!(label = calloc(n ? n : 1, sizeof *label))) goto nomem;
+    for (size_t i = 0; i < n; i++)
+        if (!(label[i] = bl_cell_label(t->table, ci, n_cols, i))) goto nomem;
+    if ((st = bl_group_strings((const char *const *)label, n, a->cell, &n_cells, "condition cells", err))) goto fail;
+    if (!(r->spectra = calloc(n_cells ? n_cells : 1, sizeof *r->spectra))) goto nomem;
+    r->n_spectra = n_cells;
+    for (size_t i = 0; i < n; i++) {
+        bl_power_spectrum *sp = &r->spectra[a->cell[i]];
+        if (sp->condition) continue;
+        sp->condition = label[i];
+        label[i] = NULL;
+        if (!(sp->n = calloc(nf, sizeof *sp->n)) || !(sp->mean = calloc(nf, sizeof *sp->mean)) ||
+            !(sp->m2 = calloc(nf, sizeof *sp->m2)))
+            goto nomem;
+    }
+    goto done;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for the mean spectra");
+    goto fail;
+done:
+    st = BL_OK;
+fail:
+    for (size_t i = 0; label && i < n; i++) free(label[i]);
+    free(label);
+    free(ci);
+    free((void *)cols);
+    return st;
+}
+
+/* Welford's update, bin by bin; non-finite values are left out of their bin. */
+static void spectrum_add(bl_power_spectrum *sp, const double *psd, size_t nf)
+{
+    sp->trials++;
+    for (size_t j = 0; j < nf; j++) {
+        double v = psd[j];
+        if (!isfinite(v)) continue;
+        sp->n[j]++;
+        double d = v - sp->mean[j];
+        sp->mean[j] += d / (double)sp->n[j];
+        sp->m2[j] += d * (v - sp->mean[j]);
+    }
+}
+
+static double scaled(bl_scale sc, double v);
+
+/* Take the PSD of a trial just computed (in job order, so the result does not depend on threads). */
+static int spectra_take(spectra_acc *a, bl_power_result *r, const bl_study *s, size_t row, const double *psd)
+{
+    for (size_t b = 0; b < r->n_bands; b++)
+        if (!isfinite(scaled(s->power.scale, r->band_power[row * r->n_bands + b]))) return 1; /* left out later */
+    if (a->cell[row] == SIZE_MAX) return 1;
+    size_t nf = r->n_freqs, g = a->group[row];
+    if (a->standardize && a->kept[g] == 0) {
+        if (!(a->pending[g] = malloc(nf * sizeof *a->pending[g]))) return 0;
+        memcpy(a->pending[g], psd, nf * sizeof *psd);
+        a->pending_row[g] = row;
+        a->kept[g] = 1;
+        return 1;
+    }
+    if (a->standardize && a->pending[g]) {
+        spectrum_add(&r->spectra[a->cell[a->pending_row[g]]], a->pending[g], nf);
+        free(a->pending[g]);
+        a->pending[g] = NULL;
+    }
+    a->kept[g]++;
+    spectrum_add(&r->spectra[a->cell[row]], psd, nf);
+    return 1;
+}
+
 static double scaled(bl_scale sc, double v)
 {
     switch (sc) {
@@ -254,31 +427,78 @@ static double scaled(bl_scale sc, double v)
     }
 }
 
+/* Relative spread (sample SD / |mean|) of the raw band power of the kept trials of each standardize
+ * group. Below 1e-9 the differences are rounding noise of one repeated value (double precision
+ * carries about 16 digits), and the z-scores would turn that noise into a regressor with unit
+ * variance: refuse, naming participant and band. */
+static bl_status check_spread(const bl_study *s, const bl_trials *t, const double *raw, const spectra_acc *acc,
+                              const char *band, bl_error *err)
+{
+    size_t ng = acc->n_groups;
+    double *mean = calloc(ng ? ng : 1, sizeof *mean), *ss = calloc(ng ? ng : 1, sizeof *ss);
+    size_t *cnt = calloc(ng ? ng : 1, sizeof *cnt);
+    bl_status st = BL_OK;
+    if (!mean || !ss || !cnt) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory standardizing band power");
+        goto done;
+    }
+    for (size_t i = 0; i < t->n; i++)
+        if (!t->excluded[i]) {
+            mean[acc->group[i]] += raw[i];
+            cnt[acc->group[i]]++;
+        }
+    for (size_t g = 0; g < ng; g++) mean[g] = cnt[g] ? mean[g] / (double)cnt[g] : NAN;
+    for (size_t i = 0; i < t->n; i++)
+        if (!t->excluded[i]) ss[acc->group[i]] += (raw[i] - mean[acc->group[i]]) * (raw[i] - mean[acc->group[i]]);
+    for (size_t g = 0; g < ng && !st; g++) {
+        if (cnt[g] < 2) continue;
+        double rel = sqrt(ss[g] / (double)(cnt[g] - 1)) / fabs(mean[g]);
+        if (rel > 0 && rel < 1e-9) {
+            size_t j = acc->first_of_group[g];
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "band %s: the kept trials of participant %s%s have the same power up to rounding "
+                              "(relative SD %.3g of %.10g %s^2, below 1e-9); standardizing would turn rounding noise "
+                              "into a regressor", band, t->participants[t->participant[j]],
+                              s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION ? " (in one condition)" : "",
+                              rel, mean[g], s->recordings.unit);
+        }
+    }
+done:
+    free(mean);
+    free(ss);
+    free(cnt);
+    return st;
+}
+
 /* z-score each band's scaled values within groups, over kept trials; adds the table columns. */
-static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result *r, bl_warnings *warn,
-                                bl_error *err)
+static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result *r, const spectra_acc *acc,
+                                bl_warnings *warn, bl_error *err)
 {
     size_t n = t->n, nb = r->n_bands;
     bl_status st = BL_OK;
     double *val = malloc(n * sizeof *val);
     double *raw = malloc(n * sizeof *raw);
-    size_t *group = malloc(n * sizeof *group);
-    size_t *first_of_group = malloc(n * sizeof *first_of_group);
+    const size_t *group = acc->group, *first_of_group = acc->first_of_group;
+    size_t n_groups = acc->n_groups;
     double *sum = calloc(n, sizeof *sum), *sum2 = calloc(n, sizeof *sum2);
     size_t *cnt = calloc(n, sizeof *cnt);
-    int *cond_col = calloc(s->power.n_condition + 1, sizeof *cond_col);
-    if (!val || !raw || !group || !first_of_group || !sum || !sum2 || !cnt || !cond_col) {
+    if (!val || !raw || !sum || !sum2 || !cnt) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory standardizing band power");
         goto done;
     }
-    for (size_t k = 0; k < s->power.n_condition; k++) cond_col[k] = bl_table_find(t->table, s->power.condition[k]);
 
     /* non-positive band power cannot be log-scaled: say so per trial instead of writing -inf */
-    size_t n_zero = 0;
+    /* ... and power that overflowed (samples near 1e154 or larger square to infinity) is a different cause */
+    size_t n_zero = 0, n_overflow = 0, first_overflow = 0;
     for (size_t i = 0; i < n; i++) {
         if (t->excluded[i]) continue;
         for (size_t b = 0; b < nb; b++) {
             double v = r->band_power[i * nb + b];
+            if (!isfinite(v)) {
+                bl_trials_exclude(t, i, "non-finite band power");
+                if (n_overflow++ == 0) first_overflow = i;
+                break;
+            }
             if (!isfinite(scaled(s->power.scale, v))) {
                 bl_trials_exclude(t, i, "zero band power");
                 n_zero++;
@@ -289,29 +509,11 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
     if (n_zero)
         bl_warnings_add(warn, "%zu trials have zero power in a band (a silent or disconnected channel?) and were left out",
                         n_zero);
-    /* groups: participant, or participant x condition columns (by text) */
-    size_t n_groups = 0;
-    for (size_t i = 0; i < n; i++) {
-        size_t g = 0;
-        if (s->power.standardize == BL_STANDARDIZE_NONE) {
-            group[i] = 0;
-            n_groups = 1;
-            continue;
-        }
-        for (g = 0; g < n_groups; g++) {
-            size_t j = first_of_group[g];
-            if (t->participant[j] != t->participant[i]) continue;
-            int same = 1;
-            if (s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION)
-                for (size_t k = 0; k < s->power.n_condition && same; k++) {
-                    const char *a = t->table->cols[cond_col[k]].text[i], *b = t->table->cols[cond_col[k]].text[j];
-                    same = (!a && !b) || (a && b && strcmp(a, b) == 0);
-                }
-            if (same) break;
-        }
-        if (g == n_groups) first_of_group[n_groups++] = i;
-        group[i] = g;
-    }
+    if (n_overflow)
+        bl_warnings_add(warn, "%zu trials have non-finite band power, first participant %s, trial %s: their samples are so "
+                        "large (|x| above about 1e150 %s) that the power overflows; they were left out (check "
+                        "recordings.gain and the recording's values)", n_overflow,
+                        t->participants[t->participant[first_overflow]], t->trial_label[first_overflow], s->recordings.unit);
     if (s->power.standardize != BL_STANDARDIZE_NONE) {
         /* a group needs two kept trials for a sample SD */
         for (size_t i = 0; i < n; i++) cnt[group[i]] += !t->excluded[i];
@@ -335,6 +537,7 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
             sum[group[i]] += val[i];
             cnt[group[i]]++;
         }
+        if (s->power.standardize != BL_STANDARDIZE_NONE && (st = check_spread(s, t, raw, acc, name, err))) goto done;
         if (s->power.standardize != BL_STANDARDIZE_NONE) {
             for (size_t g = 0; g < n_groups; g++) sum[g] = cnt[g] ? sum[g] / (double)cnt[g] : NAN;
             for (size_t i = 0; i < n; i++)
@@ -362,12 +565,67 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
 done:
     free(val);
     free(raw);
-    free(group);
-    free(first_of_group);
     free(sum);
     free(sum2);
     free(cnt);
-    free(cond_col);
+    return st;
+}
+
+/* Runs the work items in blocks of a few hundred trials: the threads fill one PSD row per trial of
+ * the block, then the block's PSDs are added to the cell spectra in job order. Peak memory is one
+ * block of PSDs, whatever the number of trials. Each thread keeps its file handle across blocks. */
+static bl_status compute_blocks(const bl_study *s, bl_power_result *r, const bl_trials *t, const bl_montage *m,
+                                const bl_welch_plan *plan, const job *jobs, item *items, size_t n_items, int threads,
+                                const char **reason, spectra_acc *acc, bl_error *err)
+{
+    int nt = threads > 0 ? threads : 1;
+#ifdef _OPENMP
+    if (threads <= 0) nt = omp_get_max_threads();
+#endif
+    size_t nf = r->n_freqs, block_trials = (size_t)nt * CHUNK_TRIALS * 4;
+    thread_state *ts = calloc((size_t)nt, sizeof *ts);
+    double *block_psd = malloc(block_trials * nf * sizeof *block_psd);
+    bl_status st = BL_OK;
+    int failed_alloc = !ts || !block_psd;
+    for (int i = 0; !failed_alloc && i < nt; i++) {
+        bl_error e = {0};
+        ts[i].rec = SIZE_MAX;
+        ts[i].x = malloc(r->window_samples * sizeof *ts[i].x);
+        if (!ts[i].x || bl_welch_work_create(plan, r->window_samples, &ts[i].work, &e) != BL_OK) failed_alloc = 1;
+    }
+    for (size_t first = 0; !failed_alloc && first < n_items;) {
+        size_t last = first, block_begin = items[first].begin;
+        while (last < n_items && items[last].end - block_begin <= block_trials) last++;
+#ifdef _OPENMP
+#pragma omp parallel for num_threads(nt) schedule(static) /* contiguous: each thread reads its files forward */
+#endif
+        for (size_t k = first; k < last; k++) {
+            int tid = 0;
+#ifdef _OPENMP
+            tid = omp_get_thread_num();
+#endif
+            process_item(s, r, t, m, plan, jobs, &items[k], &ts[tid], reason, block_psd, block_begin);
+        }
+        for (size_t k = first; k < last; k++)
+            if (items[k].status) {
+                st = bl_error_set(err, items[k].status, "%s", items[k].err.message);
+                goto done;
+            }
+        for (size_t j = block_begin; j < items[last - 1].end; j++)
+            if (!reason[jobs[j].row] && !spectra_take(acc, r, s, jobs[j].row, block_psd + (j - block_begin) * nf))
+                failed_alloc = 1;
+        first = last;
+    }
+done:
+    for (int i = 0; ts && i < nt; i++) {
+        bl_trace_close(ts[i].trace);
+        free(ts[i].raw);
+        free(ts[i].x);
+        bl_welch_work_destroy(ts[i].work);
+    }
+    free(ts);
+    free(block_psd);
+    if (!st && failed_alloc) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
     return st;
 }
 
@@ -431,7 +689,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     job *jobs = NULL;
     item *items = NULL;
     const char **reason = NULL;
-    size_t n_jobs = 0, n_items = 0, rec_cap = 0;
+    spectra_acc acc = {0};
+    size_t n_jobs = 0, n_items = 0;
     bl_power_result *r = calloc(1, sizeof *r);
     if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
@@ -452,31 +711,28 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
 
     /* alignment time and recording of each kept trial */
     double *align = malloc((n ? n : 1) * sizeof *align);
-    if (!align) goto nomem;
-    for (size_t i = 0; i < n; i++) {
+    char **paths = calloc(n ? n : 1, sizeof *paths);
+    if (!align || !paths) {
+        free(align);
+        free(paths);
+        goto nomem;
+    }
+    for (size_t i = 0; i < n && !st; i++) {
         if (t->excluded[i]) continue;
         double onset = 0;
-        if ((st = parse_onset(t, c_onset, i, "recordings.onset", &onset, err))) {
-            free(align);
-            goto fail;
-        }
+        if ((st = parse_onset(t, c_onset, i, "recordings.onset", &onset, err))) break;
         align[i] = onset + (s->power.align == BL_ALIGN_RESPONSE ? t->rt[i] : 0.0);
-        char *path = NULL;
-        if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &path, err))) {
-            free(align);
-            goto fail;
-        }
-        size_t rec;
-        int ok = add_recording(r, &rec_cap, path, t->participants[t->participant[i]], &rec);
-        free(path);
-        if (!ok) {
-            free(align);
-            goto nomem;
-        }
-        r->recordings[rec].n_trials++;
+        if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &paths[n_jobs], err))) break;
         jobs[n_jobs].row = i;
-        jobs[n_jobs].rec = rec;
         n_jobs++;
+    }
+    if (!st) st = assign_recordings(r, t, jobs, n_jobs, paths, err);
+    else
+        for (size_t k = 0; k < n_jobs; k++) free(paths[k]);
+    free(paths);
+    if (st) {
+        free(align);
+        goto fail;
     }
 
     /* sampling rate: the study's, or the first recording's */
@@ -500,6 +756,16 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         goto fail;
     }
     double fs = r->fs;
+    /* Range checks before rounding to 64-bit sample indices (llround of a value out of range is undefined). */
+    if (!(fs > 0 && fabs(s->power.from * fs) < 0x1p62 && fabs(s->power.to * fs) < 0x1p62 &&
+          (s->power.to - s->power.from) * fs <= (double)BL_MAX_WINDOW_SAMPLES)) {
+        free(align);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: key \"power.window\": from %.10g s to %.10g s is %.6g samples at %.10g Hz; at most %d "
+                          "samples fit in a window", s->path, s->power.from, s->power.to,
+                          (s->power.to - s->power.from) * fs, fs, BL_MAX_WINDOW_SAMPLES);
+        goto fail;
+    }
     long long a = llround(s->power.from * fs), b = llround(s->power.to * fs);
     r->window_samples = b > a ? (size_t)(b - a) : 0;
     r->nperseg = (size_t)llround(s->power.segment * fs);
@@ -514,7 +780,19 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     r->noverlap = (size_t)llround(s->power.overlap * (double)r->nperseg);
     if (r->noverlap >= r->nperseg) r->noverlap = r->nperseg - 1;
     r->nfft = r->nperseg;
-    for (size_t k = 0; k < n_jobs; k++) jobs[k].start = llround(align[jobs[k].row] * fs) + a;
+    for (size_t k = 0; k < n_jobs; k++) {
+        size_t row = jobs[k].row;
+        if (!(fabs(align[row] * fs) < 0x1p62)) { /* onset (+ rt) too large to be a sample index */
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "%s:%zu: column \"%s\" (recordings.onset)%s: %.10g s is sample %.6g at %.10g Hz, beyond "
+                              "any recording", t->table->path ? t->table->path : "trials", t->table->line[row],
+                              s->recordings.onset, s->power.align == BL_ALIGN_RESPONSE ? " + rt" : "", align[row],
+                              align[row] * fs, fs);
+            free(align);
+            goto fail;
+        }
+        jobs[k].start = llround(align[row] * fs) + a;
+    }
     free(align);
     warn_window_confound(s, t, jobs, n_jobs, r, warn);
 
@@ -572,81 +850,38 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             bl_warnings_add(warn, "band %s starts at bin %zu (%.6g Hz), below 2 x the resolution %.6g Hz, where "
                             "detrending biases the PSD low", bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
     }
-    if (!(r->psd = malloc((n ? n : 1) * r->n_freqs * sizeof *r->psd)) ||
-        !(r->band_power = malloc(2 * (n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power)))
-        goto nomem;
+    if (!(r->band_power = malloc(2 * (n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power))) goto nomem;
     /* the second half of the block: flagged trials' power, which the regressors never see */
     r->artifact_power = r->band_power + (n ? n : 1) * (r->n_bands ? r->n_bands : 1);
-    for (size_t k = 0; k < n * r->n_freqs; k++) r->psd[k] = NAN;
     for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = r->artifact_power[k] = NAN;
+    if ((st = spectra_setup(s, t, r, &acc, err))) goto fail;
 
     /* work items: chunks of trials of one recording, in a fixed order */
     qsort(jobs, n_jobs, sizeof *jobs, job_cmp);
     if (!(items = calloc(n_jobs ? n_jobs : 1, sizeof *items))) goto nomem;
     for (size_t k = 0; k < n_jobs;) {
         size_t e = k;
-        int csv = is_text_trace(r->recordings[jobs[k].rec].path);
-        while (e < n_jobs && jobs[e].rec == jobs[k].rec && (csv || e - k < CHUNK_TRIALS)) e++;
+        while (e < n_jobs && jobs[e].rec == jobs[k].rec && e - k < CHUNK_TRIALS) e++;
         items[n_items].rec = jobs[k].rec;
         items[n_items].begin = k;
         items[n_items].end = e;
         n_items++;
         k = e;
     }
-
-    int failed_alloc = 0;
-    int nt = threads > 0 ? threads : 1;
-#ifdef _OPENMP
-    if (threads <= 0) nt = omp_get_max_threads();
-#pragma omp parallel num_threads(nt)
-#endif
-    {
-        thread_state ts = {NULL, SIZE_MAX, NULL, 0, NULL, NULL};
-        bl_error e = {0};
-        ts.x = malloc(r->window_samples * sizeof *ts.x);
-        int ok = ts.x && bl_welch_work_create(plan, r->window_samples, &ts.work, &e) == BL_OK;
-        if (!ok) {
-#ifdef _OPENMP
-#pragma omp atomic write
-#endif
-            failed_alloc = 1;
-        }
-#ifdef _OPENMP
-#pragma omp for schedule(static) /* contiguous blocks: each thread reads its files forward */
-#endif
-        for (size_t k = 0; k < n_items; k++) {
-            if (!ok) continue;
-            process_item(s, r, t, m, plan, jobs, &items[k], &ts, reason);
-        }
-        bl_trace_close(ts.trace);
-        free(ts.raw);
-        free(ts.x);
-        bl_welch_work_destroy(ts.work);
-    }
-    (void)nt;
-    if (failed_alloc) goto nomem;
-    for (size_t k = 0; k < n_items; k++)
-        if (items[k].status) {
-            st = bl_error_set(err, items[k].status, "%s", items[k].err.message);
-            goto fail;
-        }
+    if ((st = compute_blocks(s, r, t, m, plan, jobs, items, n_items, threads, reason, &acc, err))) goto fail;
     for (size_t i = 0; i < n; i++)
         if (reason[i]) {
             bl_trials_exclude(t, i, reason[i]);
             r->n_artifacts++;
         }
-    /* excluded trials keep NAN rows */
+    /* excluded trials keep NAN band power */
     for (size_t i = 0; i < n; i++)
-        if (t->excluded[i]) {
-            for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
+        if (t->excluded[i])
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
-        }
-    if ((st = add_regressors(s, t, r, warn, err))) goto fail;
+    if ((st = add_regressors(s, t, r, &acc, warn, err))) goto fail;
     for (size_t i = 0; i < n; i++)
-        if (t->excluded[i]) {
-            for (size_t j = 0; j < r->n_freqs; j++) r->psd[i * r->n_freqs + j] = NAN;
+        if (t->excluded[i])
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
-        }
     if (s->power.clipping)
         for (size_t k = 0; k < r->n_recordings; k++)
             if (!strstr(r->recordings[k].format, "-bit PCM"))
@@ -658,6 +893,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     free(items);
     free(jobs);
     free(reason);
+    spectra_acc_free(&acc);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     *out = r;
@@ -668,6 +904,7 @@ fail:
     free(items);
     free(jobs);
     free(reason);
+    spectra_acc_free(&acc);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     bl_power_result_destroy(r);
@@ -676,23 +913,7 @@ fail:
 
 /* ---- power.csv ---- */
 
-static void put_field(FILE *f, const char *s)
-{
-    if (!s) {
-        fputs("NA", f);
-        return;
-    }
-    if (!strpbrk(s, ",\"\r\n")) {
-        fputs(s, f);
-        return;
-    }
-    fputc('"', f);
-    for (const char *p = s; *p; p++) {
-        if (*p == '"') fputc('"', f);
-        fputc(*p, f);
-    }
-    fputc('"', f);
-}
+static void put_field(FILE *f, const char *s) { bl_csv_text(f, s); }
 
 static void put_number(FILE *f, double x)
 {

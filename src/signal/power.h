@@ -36,6 +36,16 @@ typedef struct {
     size_t n_trials;             /* trials windowed from it */
 } bl_power_recording;
 
+/* Mean spectrum of the kept trials of one condition cell, accumulated trial by trial (Welford 1962,
+ * Technometrics 4(3):419) so that memory depends on the frequency grid, not on the number of trials. */
+typedef struct {
+    char *condition;             /* cell label, "col=value;..." or "all" (as in fit_quantiles.csv) */
+    size_t trials;               /* trials accumulated */
+    size_t *n;                   /* n_freqs: trials with a finite PSD value at bin j */
+    double *mean;                /* n_freqs, unit^2/Hz */
+    double *m2;                  /* n_freqs: sum of squared deviations from the mean */
+} bl_power_spectrum;
+
 typedef struct {
     double fs;                   /* Hz (all recordings of a study must share it) */
     size_t nperseg, noverlap, nfft, n_segments;
@@ -46,7 +56,8 @@ typedef struct {
     size_t n_bands;
     bl_power_band *bands;
     size_t n_trials;             /* = trials->n */
-    double *psd;                 /* n_trials x n_freqs, row-major, unit^2/Hz; NAN rows for excluded trials */
+    size_t n_spectra;            /* condition cells (design/cells.h) with at least one kept trial */
+    bl_power_spectrum *spectra;  /* mean PSD per cell over its kept trials, in order of first appearance */
     double *band_power;          /* n_trials x n_bands, raw unit^2; NAN for excluded trials */
     double *artifact_power;      /* n_trials x n_bands, raw unit^2 of artifact-flagged trials (NAN for the
                                     rest and for non-finite windows); written to power.csv only. Points

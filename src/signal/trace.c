@@ -172,15 +172,15 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
     memset(&si, 0, sizeof si);
     t->sf = sf_open(path, SFM_READ, &si);
     if (!t->sf) {
-        /* A file that is missing, unreadable or not a recording is bad input (exit 2); anything else
-         * (allocation, decoder set-up) is a failure while running (exit 1). */
+        /* A file that is missing or unreadable is reported from errno; one that opens but that libsndfile
+         * refuses (no data chunk, zero channels or rate, too many channels, a damaged header) is bad input
+         * (exit 2); only libsndfile's own allocation failure is a failure while running (exit 1). */
         int code = sf_error(NULL), e = errno;
-        bl_status kind = code == SF_ERR_UNRECOGNISED_FORMAT || code == SF_ERR_MALFORMED_FILE ||
-                                 code == SF_ERR_UNSUPPORTED_ENCODING
-                             ? BL_ERR_INPUT
-                         : code == SF_ERR_SYSTEM ? bl_status_from_errno(e)
-                                                 : BL_ERR_IO;
-        st = bl_error_set(err, kind, "%s: cannot open the recording: %s", path, sf_strerror(NULL));
+        const char *why = sf_strerror(NULL);
+        bl_status kind = code == SF_ERR_SYSTEM ? bl_status_from_errno(e)
+                         : strstr(why, "malloc") || strstr(why, "creating") ? BL_ERR_NOMEM /* decoder set-up */
+                                                 : BL_ERR_INPUT;
+        st = bl_error_set(err, kind, "%s: cannot open the recording: %s", path, why);
         goto fail;
     }
     if (si.samplerate <= 0 || si.channels <= 0) {
@@ -228,6 +228,13 @@ fail:
 
 const bl_trace_info *bl_trace_get_info(const bl_trace *t) { return &t->info; }
 
+/* Fewer samples than the header promised: a system read error is a failure while running (exit 1);
+ * a file that ends early or whose frames do not decode (truncated or corrupt FLAC) is bad input. */
+static bl_status short_read_status(bl_trace *t)
+{
+    return sf_error(t->sf) == SF_ERR_SYSTEM ? BL_ERR_IO : BL_ERR_INPUT;
+}
+
 bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err)
 {
     if (start < 0 || (int64_t)n > t->info.frames - start)
@@ -248,7 +255,7 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
             sf_count_t got = sf_readf_double(t->sf, buf, step);
             if (got != step) {
                 t->pos = -1;
-                return bl_error_set(err, BL_ERR_IO, "%s: read %lld of %lld samples at sample %lld; the file is truncated or "
+                return bl_error_set(err, short_read_status(t), "%s: read %lld of %lld samples at sample %lld; the file is truncated or "
                                     "damaged (%s)", t->path, (long long)got, (long long)step,
                                     (long long)(start - gap), sf_strerror(t->sf));
             }
@@ -256,13 +263,13 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
         }
     } else if (sf_seek(t->sf, start, SEEK_SET) != start) {
         t->pos = -1;
-        return bl_error_set(err, BL_ERR_IO, "%s: cannot seek to sample %lld: %s", t->path, (long long)start,
+        return bl_error_set(err, short_read_status(t), "%s: cannot seek to sample %lld: %s", t->path, (long long)start,
                             sf_strerror(t->sf));
     }
     sf_count_t got = sf_readf_double(t->sf, buf, (sf_count_t)n);
     if (got != (sf_count_t)n) {
         t->pos = -1;
-        return bl_error_set(err, BL_ERR_IO, "%s: read %lld of %zu samples at sample %lld; the file is truncated or damaged (%s)",
+        return bl_error_set(err, short_read_status(t), "%s: read %lld of %zu samples at sample %lld; the file is truncated or damaged (%s)",
                             t->path, (long long)got, n, (long long)start, sf_strerror(t->sf));
     }
     t->pos = start + (int64_t)n;
@@ -427,6 +434,32 @@ bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t r
         len += plen;
     }
     r[len] = '\0';
+    /* Filled values may each be harmless ("." and ".") yet join into ".." across adjacent placeholders:
+     * the part of the path after the pattern's fixed folder must not climb out of that folder (which is
+     * inside the study folder when recordings.file is a relative path). */
+    const char *brace = strchr(pattern, '{');
+    if (brace) {
+        size_t fixed = 0;
+        for (const char *q = pattern; q < brace; q++)
+            if (*q == '/') fixed = (size_t)(q - pattern) + 1;
+        long depth = 0;
+        for (const char *c = r + fixed; *c;) {
+            const char *e = strchr(c, '/');
+            size_t cl = e ? (size_t)(e - c) : strlen(c);
+            if (cl == 2 && c[0] == '.' && c[1] == '.') depth--;
+            else if (!(cl == 0 || (cl == 1 && c[0] == '.'))) depth++;
+            if (depth < 0) {
+                bl_status st = bl_error_set(err, BL_ERR_INPUT,
+                                            "%s:%zu: recordings.file \"%s\" filled from this row is \"%s\", which leads "
+                                            "out of the folder \"%.*s\" (adjacent values make '..')",
+                                            table->path ? table->path : "trials", table->line[row], pattern, r,
+                                            (int)(fixed ? fixed : 1), fixed ? pattern : ".");
+                free(r);
+                return st;
+            }
+            c += cl + (e != NULL);
+        }
+    }
     *out = r;
     return BL_OK;
 }

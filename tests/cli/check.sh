@@ -29,7 +29,7 @@ printf 'onset\tduration\ttrial_type\tresponse_time\tanimal\tchoice\r\n' > "$tmp/
 printf '2.6\t0.5\t"high"\t0.512\tr1\thigher\r\n4.2\t0.5\tlow\tn/a\tr1\tn/a\r\n5.8\t0.5\tlow\t0.44\tr2\tlower\r\n7.4\t0.5\thigh\t0.61\tr2\thigher\r\n' >> "$tmp/bids/events.tsv"
 cat > "$tmp/bids/study.json" <<'JSON'
 {"trials": {"file": "events.tsv", "participant": "animal", "rt": "response_time", "response": "choice",
-            "upper": ["higher"], "stimulus": "trial_type"},
+            "upper": ["higher", "high"], "stimulus": "trial_type"},
  "recordings": {"file": "recordings/{animal}.flac", "onset": "onset", "channels": ["1-2"]},
  "power": {"window": {"from": -1, "to": 0}, "segment": 0.5, "bands": {"theta": [4, 10]}, "standardize": "none"}}
 JSON
