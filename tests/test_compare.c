@@ -159,11 +159,34 @@ HARNESS_CASE(permutation_test)
     /* Permutation test of the theta slope: its statistic is the LRT against the model without it
      * (= baseline), and no shuffled regressor reaches the observed fit. */
     const bl_model_result *r1 = &set->models[1];
-    check_true(r1->n_permutation == 1 && !strcmp(r1->permutation[0].regressor, "theta"), "one slope tested");
+    check_true(r1->n_permutation == 3 && !strcmp(r1->permutation[0].regressor, "theta") &&
+                   !strcmp(r1->permutation[0].level, ""),
+               "the slope tested as a whole, then each of its 2 levels (%zu tests)", r1->n_permutation);
     check_abs(r1->permutation[0].statistic, c[1].lrt_statistic, 1e-6, "permutation statistic = LR vs baseline");
     check_true(r1->permutation[0].permutations == 19 && r1->permutation[0].exceed == 0, "no permutation reached it");
     check_rel(r1->permutation[0].p, 1.0 / 20.0, 1e-15, "permutation p = 1/(B+1)");
     check_true(set->models[0].n_permutation == 0, "no slopes, no permutation test");
+    /* Each level's coefficient: its LR statistic (the model refitted without that one coefficient) agrees
+     * with its Wald z^2, the two being asymptotically equivalent (Wald 1943; Engle 1984, Handbook of
+     * Econometrics II, ch. 13); the tolerance 0.15 z^2 + 0.5 is common practice for n = 2000, not a bound.
+     * The coefficients sit on disjoint trials, so the whole-slope statistic is close to the sum of the two. */
+    double sum = 0;
+    for (size_t k = 1; k < r1->n_permutation && k < 3; k++) {
+        const bl_permutation_test *pt = &r1->permutation[k];
+        const bl_coefficient *cf = NULL;
+        for (size_t j = 0; j < r1->fit.n_coef; j++)
+            if (!strcmp(r1->fit.coef[j].term, "theta") && !strcmp(r1->fit.coef[j].level, pt->level)) cf = &r1->fit.coef[j];
+        if (!check_true(cf != NULL, "level '%s' is a coefficient of the fit", pt->level)) continue;
+        double z2 = (cf->estimate / cf->se) * (cf->estimate / cf->se);
+        check_abs(pt->statistic, z2, 0.15 * z2 + 0.5, "level '%s': LR statistic %.3f vs Wald z^2 %.3f", pt->level,
+                  pt->statistic, z2);
+        check_rel(pt->p, (1.0 + (double)pt->exceed) / 20.0, 1e-15, "level '%s': p = (1 + exceed)/(1 + B)", pt->level);
+        if (fabs(cf->estimate / cf->se) > 5)
+            check_true(pt->exceed == 0, "level '%s' (the true slope 0.25): no permutation reached it", pt->level);
+        sum += pt->statistic;
+    }
+    check_abs(r1->permutation[0].statistic, sum, 0.02 * sum + 0.2,
+              "whole-slope statistic %.3f ~ the sum of the per-level statistics %.3f", r1->permutation[0].statistic, sum);
 }
 
 HARNESS_CASE(null_slope_permutation)

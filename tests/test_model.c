@@ -141,7 +141,7 @@ HARNESS_CASE(copy_and_permutation)
     for (size_t k = 0; k < t->n; k++) cell[k] = 2 * t->participant[bl_model_row(mc, k)] + bl_model_row(mc, k) % 2;
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, 3);
-    check_true(bl_model_permute_slope(mc, BL_THRESHOLD, 0, cell, rng, &err) == BL_OK, "permute");
+    check_true(bl_model_permute_slope(mc, BL_THRESHOLD, 0, cell, -1, rng, &err) == BL_OK, "permute");
     double coef[11] = {1, 1, 1, 0, 1, 1, 1, 1, 1, 1, 0.2};
     double sums_orig[6] = {0}, sums_perm[6] = {0};
     size_t moved = 0;

@@ -636,8 +636,8 @@ int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_
     return bl_model_params_valid(p);
 }
 
-bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, gsl_rng *rng,
-                                 bl_error *err)
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, long level,
+                                 gsl_rng *rng, bl_error *err)
 {
     if ((unsigned)param >= BL_NPARAM || s >= m->par[param].n_slopes)
         return bl_error_set(err, BL_ERR_INTERNAL, "model '%s': no slope %zu on parameter %d", m->name, s, param);
@@ -651,7 +651,10 @@ bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const si
         free(idx);
         return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory permuting", m->name);
     }
-    for (size_t k = 0; k < n; k++) start[cell[k] + 1]++;
+    /* A trial takes part when its level is the one tested (or every trial when level < 0). */
+#define BL_TAKES_PART(k) (level < 0 || sl->level[k] == (size_t)level)
+    for (size_t k = 0; k < n; k++)
+        if (BL_TAKES_PART(k)) start[cell[k] + 1]++;
     for (size_t c = 0; c < n_cells; c++) start[c + 1] += start[c];
     size_t *fill = malloc((n_cells + 1) * sizeof *fill);
     if (!fill) {
@@ -660,7 +663,9 @@ bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const si
         return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory permuting", m->name);
     }
     memcpy(fill, start, (n_cells + 1) * sizeof *fill);
-    for (size_t k = 0; k < n; k++) idx[fill[cell[k]]++] = k;
+    for (size_t k = 0; k < n; k++)
+        if (BL_TAKES_PART(k)) idx[fill[cell[k]]++] = k;
+#undef BL_TAKES_PART
     for (size_t k = 0; k < n; k++) sl->x[k] = sl->x_orig[k];
     /* Fisher-Yates within each cell (Knuth, TAOCP vol. 2, Algorithm 3.4.2 P). */
     for (size_t c = 0; c < n_cells; c++) {
@@ -676,6 +681,19 @@ bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const si
     free(idx);
     free(fill);
     return BL_OK;
+}
+
+size_t bl_model_slope_levels(const bl_model *m, bl_param param, size_t s)
+{
+    return (unsigned)param < BL_NPARAM && s < m->par[param].n_slopes ? m->par[param].slopes[s].n_levels : 0;
+}
+
+void bl_model_drop_slope_level(bl_model *m, bl_param param, size_t s, size_t level)
+{
+    if ((unsigned)param >= BL_NPARAM || s >= m->par[param].n_slopes) return;
+    bl_slope_design *sl = &m->par[param].slopes[s];
+    for (size_t k = 0; k < m->n; k++)
+        if (sl->level[k] == level) sl->x[k] = sl->x_orig[k] = 0;
 }
 
 void bl_model_restore_slopes(bl_model *m)

@@ -65,9 +65,16 @@ bl_status bl_model_nested_in(const bl_model *a, const bl_model *b, int *nested, 
 int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_params *p);
 
 /* Permutation support: shuffle the values of slope s of `param` among used trials within the cells
- * given by cell[k] (k = used trial), with a Fisher-Yates shuffle per cell driven by `rng`. */
-bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell,
+ * given by cell[k] (k = used trial), with a Fisher-Yates shuffle per cell driven by `rng`. level >= 0:
+ * only the trials of that level of the slope are shuffled (among themselves, within each cell), the test
+ * of that one coefficient; level < 0: every trial. */
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, long level,
                                  gsl_rng *rng, bl_error *err);
+/* Levels (coefficients) of slope s of `param`; 0 when there is no such slope. */
+size_t bl_model_slope_levels(const bl_model *m, bl_param param, size_t s);
+/* The model without one coefficient of slope s: the regressor is set to 0 on that level's trials, so the
+ * coefficient no longer enters the likelihood (the null model of that coefficient's test). */
+void bl_model_drop_slope_level(bl_model *m, bl_param param, size_t s, size_t level);
 /* Restore all slope values to the unshuffled design. */
 void bl_model_restore_slopes(bl_model *m);
 

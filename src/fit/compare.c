@@ -295,7 +295,8 @@ static bl_status refit_units(bl_unit_set *u, const bl_fit_options *opt, double *
  * from (seed, model, parameter, slope, b), so the refits can run on several threads (each with its
  * own copy of the designs and a one-thread likelihood) and still give the same count. */
 static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const bl_fit_options *opt,
-                                  const bl_model_result *r, bl_param p, size_t s, size_t *exceed_out, bl_error *err)
+                                  const bl_model_result *r, bl_param p, size_t s, long level, size_t *exceed_out,
+                                  bl_error *err)
 {
     size_t n_perm = opt->permutations, exceed = 0, done_count = 0;
     bl_status st_all = BL_OK;
@@ -339,10 +340,13 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
             if (!ok) continue;
             bl_error e = {0};
             bl_status st = BL_OK;
+            /* One seed per (model, parameter, slope, level, permutation); the whole-slope test (level < 0)
+             * keeps the seeds it always had. */
             gsl_rng_set(rng, bl_fit_mix_seed(opt->seed, r->name, (unsigned long)p * 1000003UL + (unsigned long)s * 7919UL +
-                                                               (unsigned long)b * 2654435761UL));
+                                                               (unsigned long)b * 2654435761UL +
+                                                               (level >= 0 ? (unsigned long)(level + 1) * 104729UL : 0)));
             for (size_t i = 0; !st && i < mine.n_units; i++)
-                st = bl_model_permute_slope(mine.models[i], p, s, cells[i], rng, &e);
+                st = bl_model_permute_slope(mine.models[i], p, s, cells[i], level, rng, &e);
             double ll_perm = -INFINITY;
             if (!st) st = refit_units(&mine, &one, &ll_perm, &e);
             if (st) {
@@ -364,8 +368,9 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
                 {
                     done_count++;
                     char stage[256];
-                    snprintf(stage, sizeof stage, "%s: permutations of the %s slope on '%s'", r->name,
-                             bl_param_name(p), full->models[0]->par[p].slopes[s].regressor);
+                    snprintf(stage, sizeof stage, "%s: permutations of the %s slope on '%s'%s", r->name,
+                             bl_param_name(p), full->models[0]->par[p].slopes[s].regressor,
+                             level >= 0 ? " (one level)" : "");
                     opt->progress(opt->progress_user, stage, done_count, n_perm);
                 }
             }
@@ -381,70 +386,122 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
     return BL_OK;
 }
 
+/* Maximum log-likelihood of the full model without coefficient `level` of slope s (its regressor set to 0
+ * on that level's trials), refitted from the full estimates with that coefficient at 0. */
+static bl_status level_null_ll(const bl_unit_set *full, const bl_fit_options *opt, bl_param p, size_t s,
+                               size_t level, double *ll, bl_error *err)
+{
+    bl_fit_options one = *opt;
+    one.progress = NULL;
+    bl_unit_set red = {0};
+    bl_status st = BL_OK;
+    red.n_units = full->n_units;
+    red.models = calloc(full->n_units, sizeof *red.models);
+    red.liks = calloc(full->n_units, sizeof *red.liks);
+    red.coef = calloc(full->n_units, sizeof *red.coef);
+    if (!red.models || !red.liks || !red.coef) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    for (size_t i = 0; !st && i < full->n_units; i++) {
+        const bl_model *m = full->models[i];
+        if ((st = bl_model_copy(m, &red.models[i], err))) break;
+        bl_model_drop_slope_level(red.models[i], p, s, level);
+        if ((st = bl_likelihood_create(red.models[i], opt->threads, &red.liks[i], err))) break;
+        if (!(red.coef[i] = malloc(m->n_coef * sizeof(double)))) {
+            st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            break;
+        }
+        memcpy(red.coef[i], full->coef[i], m->n_coef * sizeof(double));
+        red.coef[i][m->par[p].slopes[s].first_coef + level] = 0;
+    }
+    if (!st) st = refit_units(&red, &one, ll, err);
+    bl_unit_set_free(&red);
+    return st;
+}
+
+/* The whole-slope null model: the same model without slope s, fitted afresh. */
+static bl_status slope_null_ll(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
+                               const bl_fit_options *opt, bl_param p, size_t s, double *ll, bl_error *err)
+{
+    bl_model_spec reduced;
+    bl_slope_spec *mem = NULL;
+    bl_unit_set red;
+    bl_status st = spec_without_slope(spec, p, s, &reduced, &mem, err);
+    if (st) return st;
+    st = bl_build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red, NULL,
+                        NULL, err);
+    free(mem);
+    if (st) return st;
+    double total = 0;
+    for (size_t i = 0; i < red.n_units && !st; i++) {
+        bl_fit_result fr;
+        st = bl_fit_core(red.models[i], red.liks[i], opt, bl_fit_default_starts(opt), NULL, 0, &fr, NULL, err);
+        if (!st) total += fr.log_likelihood;
+        bl_fit_result_clear(&fr);
+    }
+    bl_unit_set_free(&red);
+    *ll = total;
+    return st;
+}
+
+/* Coefficient tests per slope: every level on its own when the slope has several and one likelihood is
+ * fitted (pooled); separate fits keep the whole-slope test only (participants may lack a level). */
+static size_t level_tests(const bl_unit_set *full, bl_param p, size_t s)
+{
+    size_t L = bl_model_slope_levels(full->models[0], p, s);
+    return full->n_units == 1 && L > 1 ? L : 0;
+}
+
 bl_status bl_permutation_tests(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
                                    const bl_fit_options *opt, bl_unit_set *full, bl_model_result *r, bl_error *err)
 {
     bl_gsl_guard();
     size_t n_tests = 0;
-    for (int p = 0; p < BL_NPARAM; p++) n_tests += spec->param[p].is_fixed ? 0 : spec->param[p].n_slopes;
+    for (int p = 0; p < BL_NPARAM; p++)
+        if (!spec->param[p].is_fixed)
+            for (size_t s = 0; s < spec->param[p].n_slopes; s++) n_tests += 1 + level_tests(full, (bl_param)p, s);
     if (n_tests == 0 || opt->permutations == 0) return BL_OK;
     r->permutation = calloc(n_tests, sizeof *r->permutation);
     if (!r->permutation) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     bl_status st = BL_OK;
     size_t **cells = calloc(full->n_units, sizeof *cells);
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!cells || !rng) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-        goto done;
-    }
+    if (!cells) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     for (size_t i = 0; i < full->n_units; i++) {
         size_t nc;
         if ((st = bl_model_condition_cells(full->models[i], trials, &cells[i], &nc, err))) goto done;
     }
     size_t t = 0;
-    for (int p = 0; p < BL_NPARAM; p++) {
+    for (int pi = 0; pi < BL_NPARAM; pi++) {
+        bl_param p = (bl_param)pi;
         if (spec->param[p].is_fixed) continue;
-        for (size_t s = 0; s < spec->param[p].n_slopes; s++, t++) {
-            bl_permutation_test *pt = &r->permutation[t];
-            r->n_permutation = t + 1;
-            pt->param = p;
-            pt->parameter = bl_param_name(p);
-            if (!(pt->regressor = bl_strdup(spec->param[p].slopes[s].regressor))) {
-                st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-                goto done;
+        for (size_t s = 0; s < spec->param[p].n_slopes; s++) {
+            size_t nl = level_tests(full, p, s);
+            /* level -1: every level at once; then each level's coefficient on its own. */
+            for (long level = -1; level < (long)nl; level++, t++) {
+                bl_permutation_test *pt = &r->permutation[t];
+                r->n_permutation = t + 1;
+                pt->param = p;
+                pt->parameter = bl_param_name(p);
+                const bl_model *m0 = full->models[0];
+                const char *lv = level < 0 ? "" : m0->coef[m0->par[p].slopes[s].first_coef + (size_t)level].level;
+                if (!(pt->regressor = bl_strdup(spec->param[p].slopes[s].regressor)) || !(pt->level = bl_strdup(lv))) {
+                    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+                    goto done;
+                }
+                double ll_null = NAN;
+                st = level < 0 ? slope_null_ll(study, spec, trials, opt, p, s, &ll_null, err)
+                               : level_null_ll(full, opt, p, s, (size_t)level, &ll_null, err);
+                if (st) goto done;
+                pt->statistic = 2 * (r->log_likelihood - ll_null);
+                size_t exceed = 0;
+                if ((st = run_permutations(full, cells, opt, r, p, s, level, &exceed, err))) goto done;
+                pt->permutations = opt->permutations;
+                pt->exceed = exceed;
+                pt->p = (1.0 + (double)exceed) / (1.0 + (double)opt->permutations);
             }
-            /* Null model: the same model without this slope. */
-            bl_model_spec reduced;
-            bl_slope_spec *mem = NULL;
-            bl_unit_set red;
-            double ll_red = NAN;
-            if ((st = spec_without_slope(spec, p, s, &reduced, &mem, err))) goto done;
-            st = bl_build_units(&reduced, trials, study ? study->fit.participants : BL_PARTICIPANTS_POOLED, opt, &red,
-                             NULL, NULL, err);
-            free(mem);
-            if (st) goto done;
-            double total = 0;
-            for (size_t i = 0; i < red.n_units && !st; i++) {
-                bl_fit_result fr;
-                st = bl_fit_core(red.models[i], red.liks[i], opt, bl_fit_default_starts(opt), NULL, 0, &fr, NULL, err);
-                if (!st) total += fr.log_likelihood;
-                bl_fit_result_clear(&fr);
-            }
-            bl_unit_set_free(&red);
-            if (st) goto done;
-            ll_red = total;
-            pt->statistic = 2 * (r->log_likelihood - ll_red);
-            size_t exceed = 0;
-            if ((st = run_permutations(full, cells, opt, r, p, s, &exceed, err))) goto done;
-            pt->permutations = opt->permutations;
-            pt->exceed = exceed;
-            pt->p = (1.0 + (double)exceed) / (1.0 + (double)opt->permutations);
         }
     }
 done:
     if (cells)
         for (size_t i = 0; i < full->n_units; i++) free(cells[i]);
     free(cells);
-    gsl_rng_free(rng);
     return st;
 }

@@ -162,7 +162,7 @@ static cJSON *model_json(const bl_model_result *r)
                 break;
             }
             ok = add_str(e, "parameter", t->parameter) && add_str(e, "term", t->regressor) &&
-                 add_num(e, "statistic", t->statistic) && add_num(e, "permutations", (double)t->permutations) &&
+                 add_str(e, "level", t->level ? t->level : "") && add_num(e, "statistic", t->statistic) && add_num(e, "permutations", (double)t->permutations) &&
                  add_num(e, "exceed", (double)t->exceed) && add_num(e, "p", t->p);
         }
     }
