@@ -32,6 +32,12 @@ nsym=$(nm -D --defined-only $(find "$root" -name "libbandlink.so*" -type f | hea
 [ "$nsym" -gt 10 ] && [ -z "$bad" ] && pass "the shared library exports $nsym functions, all bl_*" \
     || fail "exports: $nsym functions; not bl_*: $bad"
 
+# Every exported function is declared in an installed header, and every declared function is exported.
+declared=$(cat "$root"/include/bandlink/*.h | tr -s ' \n' ' ' | grep -o 'BL_API [^;(]*(' | sed 's/($//; s/.*[ *]//' | grep '^bl_' | sort -u)
+exported=$(nm -D --defined-only $(find "$root" -name "libbandlink.so*" -type f | head -1) | awk '$2 ~ /T/ {print $3}' | sort -u)
+[ -n "$declared" ] && [ "$declared" = "$exported" ] && pass "exports = the functions of include/bandlink/ ($(echo "$declared" | wc -l))" \
+    || fail "exports differ from the headers: $(diff <(echo "$declared") <(echo "$exported") | head -8 | tr '\n' ' ')"
+
 # A program against the installed library: the demo example study end to end, then one density value
 # against the closed form for t -> the density at a known point (Navarro & Fuss 2009; value checked in
 # tests/test_wiener.c against mpmath).
