@@ -1,4 +1,4 @@
-/* Speed of the report area, as ratios to references measured in the same run:
+/* Speed of the report module, as ratios to references measured in the same run:
  *  1. mixture quantiles of a group (5 quantiles, one boundary, n distinct trial distributions)
  *     vs n x 5 single-distribution quantiles by the engine (bl_wiener_quantile): how much the
  *     mixture costs compared with solving each trial alone;

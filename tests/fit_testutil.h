@@ -1,4 +1,4 @@
-/* Helpers for the fit-area tests: trial sets built in memory and filled with responses drawn from
+/* Helpers for the fit tests: trial sets built in memory and filled with responses drawn from
  * the engine's exact sampler under a known regression (invented test data, not a scenario). */
 #ifndef BL_FIT_TESTUTIL_H
 #define BL_FIT_TESTUTIL_H

@@ -1,4 +1,4 @@
-/* An invented, fully known data set for the report-area tests: a study description, coded trials
+/* An invented, fully known data set for the report tests: a study description, coded trials
  * drawn from the engine's sampler, a synthetic per-trial spectrum, and a fit set whose trial-wise
  * predictions are the generating parameters. Not real data; only for tests and the sample program. */
 #ifndef BL_REPORT_FIXTURE_H

@@ -1,4 +1,4 @@
-/* Writes the report area's outputs for the invented fixture into a folder, for the outside checks
+/* Writes the report module's outputs for the invented fixture into a folder, for the outside checks
  * (python's XML parser, numpy quantiles, headless Chromium):
  *   report_sample DIR [separate]
  * DIR/fit_quantiles.csv, the SVG files in DIR/figures, DIR/report.html, and DIR/sample_trials.csv (row, rt,

@@ -5,7 +5,7 @@
  *    gsl_cdf_chisq_Q; "not nested" when the designs are not nested;
  *  - permutation test: p = (1 + exceed) / (1 + B) (Phipson & Smyth 2010, Stat. Appl. Genet. Mol.
  *    Biol. 9:39), reproducible for a seed and independent of the thread count;
- *  - fits.json keys, comparison.csv and trials.csv columns as in vocabulary.md; numbers read back
+ *  - fits.json keys, comparison.csv and trials.csv columns as in docs/outputs.md; numbers read back
  *    exactly (%.17g); existing files kept unless forced. */
 #include "fit/fit.h"
 #include "report/results.h"

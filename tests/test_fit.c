@@ -1,10 +1,10 @@
 /* Maximum-likelihood fitting:
  *  - parameter recovery from data drawn with the engine's exact sampler under a known regression
- *    (numerics.md 6.10): every true coefficient inside a 99.9% Wald interval;
+ *    (docs/models.md, inference): every true coefficient inside a 99.9% Wald interval;
  *  - the BFGS optimum equals an independent Nelder-Mead search (GSL nmsimplex2, Nelder & Mead 1965,
  *    run here directly on the likelihood) to 1e-6 in log-likelihood;
  *  - EZ-diffusion (Wagenmakers, van der Maas & Grasman 2007, Psychon. Bull. Rev. 14:3-22): the forward
- *    equations (their eqs. 1-4 as restated in numerics.md section 3) inverted exactly; a no-slope fit on
+ *    equations (their eqs. 1-4) inverted exactly; a no-slope fit on
  *    single-condition data agrees with the EZ estimates within sampling error;
  *  - separate mode: DerSimonian & Laird (1986, Controlled Clinical Trials 7:177-188) random-effects
  *    estimate recomputed here from the per-participant estimates; t-test p from gsl_cdf_tdist_Q. */
@@ -17,7 +17,7 @@
 #include <gsl/gsl_multimin.h>
 #include <math.h>
 
-/* EZ forward model with s = 1 (numerics.md section 3): proportion correct, MDT, VRT. */
+/* EZ forward model with s = 1 (Wagenmakers et al. 2007): proportion correct, MDT, VRT. */
 static void ez_forward(double v, double a, double *pc, double *mdt, double *vrt)
 {
     double y = -v * a;

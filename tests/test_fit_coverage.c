@@ -1,5 +1,5 @@
 /* Slow statistical check (suite 'slow'): coverage of the 95% Wald intervals over 300 datasets drawn
- * with the engine's exact sampler from a known 9-coefficient regression (numerics.md 6.10). Each
+ * with the engine's exact sampler from a known 9-coefficient regression (docs/models.md, inference). Each
  * coefficient's coverage count must lie inside the central 99.9% range of Binomial(300, 0.95)
  * (limits from gsl_cdf_binomial_P), and the count over all coefficients inside the 99.9% range of
  * Binomial(2700, 0.95). Also the Wald test and the likelihood-ratio test (chi^2 with 1 df, Wilks 1938)

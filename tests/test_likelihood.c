@@ -1,6 +1,6 @@
 /* Summed log-likelihood with trial-wise parameters: value against the definition (sum of the
  * engine's per-trial log-densities with parameters computed here from the regression), analytic
- * gradient against central finite differences (numerics.md section 6.9; Nocedal & Wright 2006,
+ * gradient against central finite differences (Nocedal & Wright 2006,
  * Numerical Optimization, section 8.1), invariance to the thread count, infeasible points. */
 #include "design/model.h"
 #include "fit_testutil.h"
@@ -109,7 +109,7 @@ HARNESS_CASE(value_gradient_and_count)
         bl_wiener_log_density(&p, t->rt[i], t->upper[i], &lf, NULL);
         want += lf;
     }
-    /* The engine's series tolerance is 1e-10 relative (numerics.md 1.3), so the two routines agree to that. */
+    /* The engine's series tolerance is 1e-10 relative (docs/methods.md), so the two routines agree to that. */
     check_rel(ll, want, 1e-10, "total log-likelihood equals the sum of per-trial log-densities");
 
     check_gradient(w1, coef, bl_model_n_coef(m), "identity link");

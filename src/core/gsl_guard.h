@@ -1,4 +1,4 @@
-/* GSL's error handler, made safe for a program that embeds the library. Core area. */
+/* GSL's error handler, made safe for a program that embeds the library. */
 #ifndef BL_GSL_GUARD_H
 #define BL_GSL_GUARD_H
 

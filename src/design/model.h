@@ -1,6 +1,6 @@
 /* A model compiled against a trial set: the design of every Wiener parameter, the trial-wise
  * log-likelihood with its analytic gradient, and trial-wise predicted parameters.
- * Owned by the fit area (src/model.c, src/likelihood.c); docs/models.md describes the grammar.
+ * docs/models.md describes the grammar.
  *
  * Design. Each free parameter p has a linear predictor per trial
  *     eta_i = b[intercept of the level combination of `per` that trial i falls in]

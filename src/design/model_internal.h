@@ -1,4 +1,4 @@
-/* Private layout of a compiled model, shared by model.c, likelihood.c and fit.c (fit area). */
+/* Private layout of a compiled model, shared by model.c, likelihood.c and fit.c. */
 #ifndef BL_MODEL_INTERNAL_H
 #define BL_MODEL_INTERNAL_H
 

@@ -4,7 +4,7 @@
  *
  * Optimiser: GSL's BFGS (vector_bfgs2: Fletcher, Practical Methods of Optimization, 2nd ed., 1987,
  * algorithms 2.6.2 and 2.6.4) on the analytic gradient, in an unconstrained parameterisation where one
- * exists (numerics.md section 8): intercept-only parameters on the identity link are optimised as
+ * exists (docs/models.md): intercept-only parameters on the identity link are optimised as
  * log(threshold), logit(start), nondecision = min RT of the cell * logistic(.), and so on; other
  * coefficients are optimised directly (slopes scaled by their regressor's root mean square), with
  * infeasible points returning +inf so the line search backs off. Starting values from EZ-diffusion

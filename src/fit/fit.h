@@ -1,5 +1,5 @@
 /* Fitting a study's models by maximum likelihood, with inference and model comparison.
- * Owned by the fit area (src/fit.c, src/compare.c); docs/models.md explains the methods.
+ * docs/models.md explains the methods.
  *
  *   bl_fit_options opt;  bl_fit_options_default(&opt);  opt.threads = 2;
  *   bl_fit_set *set;     bl_fit_study(study, trials, &opt, &set, &warnings, &err);

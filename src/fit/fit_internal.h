@@ -1,4 +1,4 @@
-/* Private interface of the fit area: fit.c (one design fitted: optimiser, inference, units) is
+/* Private interface of the fit module: fit.c (one design fitted: optimiser, inference, units) is
  * called by compare.c (group summaries, permutation refits) and fit_study.c (a study's fits, in
  * order); fit_study.c calls compare.c. No file calls back up this chain. */
 #ifndef BL_FIT_INTERNAL_H

@@ -1,5 +1,5 @@
 /* Summed Wiener log-likelihood over trials with trial-wise parameters, and its analytic gradient by
- * the chain rule through the design (numerics.md section 4):
+ * the chain rule through the design (docs/models.md):
  *     d loglik / d b_j = sum_i (d log f_i / d theta_i) * (d theta_i / d eta_i) * x_ij,
  * with d theta / d eta = 1 (identity link) or theta (log link), and drift entering as sign_i * v_i
  * under stimulus coding. Trials are cut into fixed blocks whose partial sums are added in block

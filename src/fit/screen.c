@@ -7,7 +7,7 @@
 #include <string.h>
 
 /* Below this RT a response is faster than any plausible encoding + motor time (common practice puts the
- * cut-off at 0.1-0.15 s; numerics.md §8). */
+ * cut-off at 0.1-0.15 s; docs/degenerate-data.md). */
 #define BL_FASTEST_PLAUSIBLE_RT 0.1
 
 typedef struct {

@@ -38,7 +38,7 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
                           const bl_goodness *g, const bl_figure_set *figs, const bl_warnings *warnings,
                           bl_error *err);
 
-/* Everything of the report area in one call, into folder `dir` (which must exist):
+/* Everything of the report module in one call, into folder `dir` (which must exist):
  * fit_quantiles.csv, figures/ (five .svg files) and report.html. `power` may be NULL. `seconds`
  * (may be NULL) receives the wall time of the three stages: [0] goodness of fit, [1] figures,
  * [2] report. threads <= 0: OpenMP default (results do not depend on it). */

@@ -1,4 +1,4 @@
-/* Writers for fits.json, comparison.csv and trials.csv (vocabulary.md), atomic via output.h.
+/* Writers for fits.json, comparison.csv and trials.csv (docs/outputs.md), atomic via output.h.
  * CSV follows RFC 4180 quoting; numbers are printed with %.17g so they read back exactly. */
 #include "report/results.h"
 #include "core/csvtext.h"
@@ -96,7 +96,7 @@ static cJSON *covariance_json(const bl_fit_result *f)
     return rows;
 }
 
-/* The keys every fit carries (vocabulary.md), for a model or one participant. */
+/* The keys every fit carries (docs/outputs.md), for a model or one participant. */
 static int fit_fields(cJSON *o, const char *name, const bl_fit_result *f, double ll, size_t k, size_t n, double aic,
                       double bic, int converged)
 {

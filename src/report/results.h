@@ -1,5 +1,5 @@
-/* Writers for the fit outputs of vocabulary.md: fits.json, comparison.csv, trials.csv.
- * Owned by the fit area (src/results.c). Every file is written atomically (output.h). CSV: header
+/* Writers for the fit outputs (docs/outputs.md): fits.json, comparison.csv, trials.csv.
+ * Every file is written atomically (output.h). CSV: header
  * row, comma-separated, missing values "NA", numbers %.17g. JSON numbers that are NAN are null.
  *
  * fits.json: {"mode", "models": [{"name", "log_likelihood", "parameters", "trials", "aic", "bic",

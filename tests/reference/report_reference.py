@@ -1,4 +1,4 @@
-"""Outside checks of the report area's files, written by tests/report_sample into a folder.
+"""Outside checks of the report module's files, written by tests/report_sample into a folder.
 
   report_reference.py SAMPLE_PROGRAM
 

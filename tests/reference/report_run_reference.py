@@ -1,5 +1,5 @@
 """End to end: `bandlink simulate` + `bandlink run` on the small scenario, then outside checks of the
-report area's files on real pipeline output.
+report module's files on real pipeline output.
 
 - every figures/*.svg and every <svg> inlined in report.html is well-formed XML 1.0 (xml.etree);
 - report.html parses with html.parser;
