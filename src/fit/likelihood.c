@@ -6,6 +6,7 @@
  * order, so the result does not depend on the number of OpenMP threads.
  */
 #include "design/model_internal.h"
+#include "core/clock.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -39,12 +40,6 @@ struct bl_likelihood {
     size_t next_probe;
 };
 
-static double wall(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
-}
 
 #define BL_LIK_PROBES 2        /* timed evaluations of each mode per probe round */
 #define BL_LIK_REPROBE 64      /* evaluations between probe rounds (load can change quickly); x4 after
@@ -166,7 +161,7 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
         }
     }
 #endif
-    double t_start = probing ? wall() : 0;
+    double t_start = probing ? bl_clock_seconds() : 0;
     if (par) {
 #ifdef _OPENMP
         /* Dynamic scheduling keeps both threads busy when one is slowed by other load; the sums
@@ -188,7 +183,7 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
     if (probing && par && !w->warmed) {
         w->warmed = 1; /* the first parallel region also starts the thread pool: not timed */
     } else if (probing) {
-        double dt = wall() - t_start;
+        double dt = bl_clock_seconds() - t_start;
         if (par) {
             w->time_par += dt;
             w->probes_par++;

@@ -4,6 +4,7 @@
  * printed with fixed formats so that the same results give the same bytes.
  */
 #include "report/report.h"
+#include "core/clock.h"
 
 #include "core/output.h"
 #include "report/svg.h"
@@ -531,12 +532,6 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
     return bl_outfile_commit(o, err);
 }
 
-static double now_seconds(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
-}
 
 bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, const bl_study *study,
                                   const bl_trials *trials, const bl_power_result *power, const bl_fit_set *set,
@@ -546,25 +541,25 @@ bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, con
     bl_figure_set *figs = NULL;
     char *path = NULL;
     bl_status st;
-    double t = now_seconds();
+    double t = bl_clock_seconds();
     if (seconds) seconds[0] = seconds[1] = seconds[2] = 0;
     if ((st = bl_goodness_compute(study, trials, set, threads, &g, err))) goto done;
     if (bl_path_join(dir, "fit_quantiles.csv", &path, NULL)) goto nomem;
     if ((st = bl_goodness_write_csv(g, path, err))) goto done;
     free(path);
     path = NULL;
-    if (seconds) seconds[0] = now_seconds() - t;
-    t = now_seconds();
+    if (seconds) seconds[0] = bl_clock_seconds() - t;
+    t = bl_clock_seconds();
     if ((st = bl_figures_make(study, trials, power, set, g, &figs, err))) goto done;
     if (bl_path_join(dir, "figures", &path, NULL)) goto nomem;
     if ((st = bl_figures_write(figs, path, err))) goto done;
     free(path);
     path = NULL;
-    if (seconds) seconds[1] = now_seconds() - t;
-    t = now_seconds();
+    if (seconds) seconds[1] = bl_clock_seconds() - t;
+    t = bl_clock_seconds();
     if (bl_path_join(dir, "report.html", &path, NULL)) goto nomem;
     if ((st = bl_report_write(path, job, study, trials, power, set, g, figs, warnings, err))) goto done;
-    if (seconds) seconds[2] = now_seconds() - t;
+    if (seconds) seconds[2] = bl_clock_seconds() - t;
     goto done;
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the report outputs");
