@@ -776,39 +776,10 @@ bl_status bl_scenario_parse(const char *json, const char *name, bl_scenario **ou
 bl_status bl_scenario_load(const char *path, bl_scenario **out, bl_error *err)
 {
     *out = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the scenario: %s", path, strerror(errno));
-    size_t cap = 1 << 16, n = 0;
-    char *buf = malloc(cap + 1);
-    size_t k;
-    while (buf && (k = fread(buf + n, 1, cap - n, f)) > 0) {
-        n += k;
-        if (n == cap) {
-            char *nb = realloc(buf, 2 * cap + 1);
-            if (!nb) {
-                free(buf);
-                buf = NULL;
-                break;
-            }
-            buf = nb;
-            cap *= 2;
-        }
-    }
-    int bad_read = ferror(f), read_errno = errno;
-    fclose(f);
-    if (!buf) return bl_error_set(err, BL_ERR_NOMEM, "out of memory reading %s", path);
-    if (bad_read) {
-        free(buf);
-        return bl_error_set(err, bl_status_from_errno(read_errno), "%s: cannot read the scenario: %s", path,
-                            read_errno == EISDIR ? "it is a folder" : strerror(read_errno));
-    }
-    buf[n] = '\0';
-    if (strlen(buf) != n) {
-        free(buf);
-        return bl_error_set(err, BL_ERR_INPUT, "%s: contains a NUL byte; not a JSON text file", path);
-    }
-    bl_status st = bl_scenario_parse(buf, path, out, err);
-    free(buf);
+    char *text = NULL;
+    bl_status st = bl_json_read_file(path, "the scenario", &text, err);
+    if (!st) st = bl_scenario_parse(text, path, out, err);
+    free(text);
     return st;
 }
 

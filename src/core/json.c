@@ -3,6 +3,8 @@
  * failures. */
 #include "core/json.h"
 
+#include <errno.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -57,4 +59,45 @@ bl_status bl_json_parse(const char *text, const char *name, cJSON **out, bl_erro
     if (at >= text + len || !near[0])
         return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: JSON syntax error: unexpected end of file", name, line, col);
     return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: JSON syntax error near '%s'", name, line, col, near);
+}
+
+bl_status bl_json_read_file(const char *path, const char *what, char **text, bl_error *err)
+{
+    *text = NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open %s: %s", path, what, strerror(errno));
+    char *buf = NULL;
+    size_t len = 0, cap = 0;
+    for (;;) {
+        if (len + 4096 + 1 > cap) {
+            cap = cap ? 2 * cap : 8192;
+            char *nb = realloc(buf, cap);
+            if (!nb) {
+                free(buf);
+                fclose(f);
+                return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory reading %s", path, what);
+            }
+            buf = nb;
+        }
+        size_t got = fread(buf + len, 1, 4096, f);
+        len += got;
+        if (got < 4096) break;
+    }
+    int rerr = ferror(f), rerrno = errno;
+    fclose(f);
+    if (rerr) {
+        free(buf);
+        /* A folder given for the file is the user's mistake (exit 2); a failing disk is not. */
+        return bl_error_set(err, bl_status_from_errno(rerrno), "%s: cannot read %s: %s", path, what,
+                            rerrno == EISDIR ? "it is a folder" : strerror(rerrno));
+    }
+    buf[len] = '\0';
+    if (memchr(buf, '\0', len)) {
+        free(buf);
+        return bl_error_set(err, BL_ERR_INPUT, "%s: %s is not a text file (contains a NUL byte)", path, what);
+    }
+    if (len >= 3 && (unsigned char)buf[0] == 0xEF && (unsigned char)buf[1] == 0xBB && (unsigned char)buf[2] == 0xBF)
+        memmove(buf, buf + 3, len - 2);
+    *text = buf;
+    return BL_OK;
 }

@@ -779,42 +779,10 @@ fail:
 bl_status bl_study_load(const char *path, bl_study **out, bl_error *err)
 {
     *out = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the study file: %s", path, strerror(errno));
-    char *buf = NULL;
-    size_t len = 0, cap = 0;
-    for (;;) {
-        if (len + 4096 + 1 > cap) {
-            cap = cap ? 2 * cap : 8192;
-            char *nb = realloc(buf, cap);
-            if (!nb) {
-                free(buf);
-                fclose(f);
-                return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory reading the study file", path);
-            }
-            buf = nb;
-        }
-        size_t got = fread(buf + len, 1, 4096, f);
-        len += got;
-        if (got < 4096) break;
-    }
-    int rerr = ferror(f), rerrno = errno;
-    fclose(f);
-    if (rerr) {
-        free(buf);
-        return bl_error_set(err, bl_status_from_errno(rerrno), "%s: cannot read the study file: %s", path,
-                            rerrno == EISDIR ? "it is a folder" : strerror(rerrno));
-    }
-    buf[len] = '\0';
-    if (memchr(buf, '\0', len)) {
-        free(buf);
-        return bl_error_set(err, BL_ERR_INPUT, "%s: not a text file (contains a NUL byte)", path);
-    }
-    const char *json = buf;
-    if (len >= 3 && (unsigned char)buf[0] == 0xEF && (unsigned char)buf[1] == 0xBB && (unsigned char)buf[2] == 0xBF)
-        json += 3;
-    bl_status st = bl_study_parse(json, path, out, err);
-    free(buf);
+    char *text = NULL;
+    bl_status st = bl_json_read_file(path, "the study file", &text, err);
+    if (!st) st = bl_study_parse(text, path, out, err);
+    free(text);
     return st;
 }
 

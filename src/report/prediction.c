@@ -273,39 +273,10 @@ fail:
 bl_status bl_fitted_models_load(const char *path, bl_fitted_models **out, bl_error *err)
 {
     *out = NULL;
-    errno = 0;
-    FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "cannot open %s: %s", path, strerror(errno));
-    errno = 0;
-    size_t cap = 1 << 16, n = 0;
-    char *buf = malloc(cap);
-    while (buf) {
-        n += fread(buf + n, 1, cap - 1 - n, f);
-        if (n < cap - 1) break;
-        char *nb = realloc(buf, 2 * cap);
-        if (!nb) {
-            free(buf);
-            buf = NULL;
-            break;
-        }
-        buf = nb;
-        cap *= 2;
-    }
-    int rerr = ferror(f) ? (errno ? errno : EIO) : 0;
-    fclose(f);
-    if (!buf) return bl_error_set(err, BL_ERR_NOMEM, "out of memory reading %s", path);
-    if (rerr) {
-        free(buf);
-        /* A folder given for the file is the user's mistake (exit 2); a failing disk is not. */
-        return bl_error_set(err, bl_status_from_errno(rerr), "cannot read %s: %s", path, strerror(rerr));
-    }
-    buf[n] = '\0';
-    if (strlen(buf) != n) {
-        free(buf);
-        return bl_error_set(err, BL_ERR_INPUT, "%s: not a fits.json document (it holds a NUL byte)", path);
-    }
-    bl_status st = bl_fitted_models_parse(buf, path, out, err);
-    free(buf);
+    char *text = NULL;
+    bl_status st = bl_json_read_file(path, "the fits.json document", &text, err);
+    if (!st) st = bl_fitted_models_parse(text, path, out, err);
+    free(text);
     return st;
 }
 

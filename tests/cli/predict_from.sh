@@ -217,7 +217,7 @@ expect2() {
     fi
 }
 AT=theta=1,context=rich,difficulty=easy
-expect2 "cannot open nothere.json" --from nothere.json --model baseline --at $AT
+expect2 "nothere.json: cannot open" --from nothere.json --model baseline --at $AT
 printf '{"models": [\n  {"name": "x",}\n]}\n' > syntax.json
 expect2 "syntax.json:2:" --from syntax.json --model x
 "$PY" -c "
