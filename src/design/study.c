@@ -725,7 +725,7 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;
     }
-    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", NULL};
+    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", "scan", NULL};
     if ((st = check_keys(&c, root, "", keys))) goto fail;
 
     const cJSON *o;
@@ -758,6 +758,11 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
     s->output = resolve_path(s->dir, outname);
     free(outname);
     if (!s->output) {
+        st = nomem(&c);
+        goto fail;
+    }
+    /* the "scan" block is checked by src/scan/scan_spec.c; keep a copy of it */
+    if (get(root, "scan") && !(s->scan_json = cJSON_Duplicate(get(root, "scan"), 1))) {
         st = nomem(&c);
         goto fail;
     }
@@ -909,6 +914,7 @@ char *bl_study_to_json(const bl_study *s)
         }
     }
     cJSON_AddStringToObject(root, "output", s->output);
+    if (s->scan_json) cJSON_AddItemToObject(root, "scan", cJSON_Duplicate(s->scan_json, 1));
     char *txt = bl_json_alloc_failures() ? NULL : cJSON_Print(root);
     cJSON_Delete(root);
     if (!txt) return NULL;
@@ -944,5 +950,6 @@ void bl_study_destroy(bl_study *s)
     }
     free(s->models);
     free(s->output);
+    cJSON_Delete(s->scan_json);
     free(s);
 }

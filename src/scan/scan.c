@@ -1,0 +1,297 @@
+/* The scan job and its outputs (scan.h). */
+#include "scan/scan.h"
+#include "scan/scan_power.h"
+#include "core/output.h"
+#include "core/strutil.h"
+#include "core/textbuf.h"
+#include "report/svg.h"
+
+#include <math.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+static double now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+void bl_scan_result_destroy(bl_scan_result *r)
+{
+    if (!r) return;
+    bl_scan_spec_destroy(r->spec);
+    bl_scan_stats_destroy(r->stats);
+    for (size_t t = 0; t < r->n_tests; t++) free(r->test_level ? r->test_level[t] : NULL);
+    free(r->test_level);
+    free(r->test_param);
+    free(r);
+}
+
+typedef struct {
+    const bl_scan_options *opt;
+} perm_ctx;
+
+static void perm_progress(void *user, size_t done, size_t total)
+{
+    const perm_ctx *c = user;
+    c->opt->progress(c->opt->progress_user, "scan: permutations", done, total);
+}
+
+static void say(const bl_scan_options *o, const char *what, size_t done, size_t total)
+{
+    if (o->progress) o->progress(o->progress_user, what, done, total);
+}
+
+static bl_status copy_tests(bl_scan_result *r, const bl_scan_null *nm)
+{
+    r->n_tests = bl_scan_null_n_tests(nm);
+    r->test_param = malloc(r->n_tests * sizeof *r->test_param);
+    r->test_level = calloc(r->n_tests, sizeof *r->test_level);
+    if (!r->test_param || !r->test_level) return BL_ERR_NOMEM;
+    for (size_t t = 0; t < r->n_tests; t++) {
+        r->test_param[t] = bl_scan_null_test_param(nm, t);
+        if (!(r->test_level[t] = bl_strdup(bl_scan_null_test_level(nm, t)))) return BL_ERR_NOMEM;
+    }
+    return BL_OK;
+}
+
+bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_scan_options *opt, bl_scan_result **out,
+                      bl_warnings *warn, bl_error *err)
+{
+    *out = NULL;
+    bl_scan_null *nm = NULL;
+    double *x = NULL;
+    bl_scan_result *r = calloc(1, sizeof *r);
+    if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    bl_status st = bl_scan_spec_parse(study, &r->spec, err);
+    if (st) goto fail;
+    const bl_scan_spec *sp = r->spec;
+    const bl_model_spec *spec = NULL;
+    for (size_t m = 0; m < study->n_models; m++)
+        if (!strcmp(study->models[m].name, sp->null_model)) spec = &study->models[m];
+    r->mode = study->fit.participants;
+    double t0 = now();
+    say(opt, "scan: fitting the null model", 0, 0);
+    if ((st = bl_scan_null_create(study, spec, trials, r->mode, sp->params, sp->n_params, opt->threads, opt->seed, &nm,
+                                  warn, err)))
+        goto fail;
+    if (copy_tests(r, nm)) goto nomem;
+    r->null_log_likelihood = bl_scan_null_log_likelihood(nm);
+    r->n_trials = bl_scan_null_n_trials(nm);
+    r->n_participants = trials->n_participants;
+    double t1 = now();
+    r->seconds_null = t1 - t0;
+    size_t n = r->n_trials, nc = sp->n_freqs * sp->n_windows;
+    say(opt, "scan: multitaper power of every cell", 0, 0);
+    if (!(x = malloc(nc * (n ? n : 1) * sizeof *x))) goto nomem;
+    const size_t *rows = bl_scan_null_rows(nm);
+    if ((st = bl_scan_power(study, sp, trials, rows, n, opt->threads, x, &r->fs, err))) goto fail;
+    if ((st = bl_scan_standardize(study, trials, rows, n, sp, x, err))) goto fail;
+    double t2 = now();
+    r->seconds_power = t2 - t1;
+    size_t perms = opt->permutations == SIZE_MAX ? sp->permutations : opt->permutations;
+    perm_ctx pc = {opt};
+    say(opt, "scan: permutations", 0, perms);
+    if ((st = bl_scan_grid(nm, x, sp->n_freqs, sp->n_windows, perms, sp->correction, sp->cluster_threshold, opt->seed,
+                           opt->threads, opt->progress ? perm_progress : NULL, &pc, &r->stats, err)))
+        goto fail;
+    r->seconds_stats = now() - t2;
+    if (perms > 0 && perms < 1000)
+        bl_warnings_add(warn, "scan: %zu permutations give family-wise p-values no finer than %.2g; use 1000 or more",
+                        perms, 1.0 / (double)(perms + 1));
+    free(x);
+    bl_scan_null_destroy(nm);
+    *out = r;
+    return BL_OK;
+nomem:
+    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for the scan");
+fail:
+    free(x);
+    bl_scan_null_destroy(nm);
+    bl_scan_result_destroy(r);
+    return st;
+}
+
+/* ---- outputs ---- */
+
+static void put_num(FILE *f, double v)
+{
+    if (isfinite(v)) fprintf(f, "%.10g", v);
+    else fputs("NA", f);
+}
+
+static void put_text(FILE *f, const char *s)
+{
+    if (!strpbrk(s, ",\"\r\n")) {
+        fputs(s, f);
+        return;
+    }
+    fputc('"', f);
+    for (; *s; s++) {
+        if (*s == '"') fputc('"', f);
+        fputc(*s, f);
+    }
+    fputc('"', f);
+}
+
+bl_status bl_scan_write_csv(const bl_scan_result *r, const char *path, bl_error *err)
+{
+    bl_outfile *of = NULL;
+    bl_status st = bl_outfile_open(path, &of, err);
+    if (st) return st;
+    FILE *f = bl_outfile_stream(of);
+    const bl_scan_spec *sp = r->spec;
+    const bl_scan_stats *s = r->stats;
+    size_t nc = sp->n_freqs * sp->n_windows;
+    fputs("frequency,bandwidth,window_from,window_to,parameter,level,statistic,estimate,z,p,p_familywise,cluster\n", f);
+    for (size_t t = 0; t < r->n_tests; t++)
+        for (size_t c = 0; c < nc; c++) {
+            size_t fi = c / sp->n_windows, wi = c % sp->n_windows, i = t * nc + c;
+            double fr = sp->freq[fi];
+            fprintf(f, "%.10g,%.10g,%.10g,%.10g,%s,", fr, bl_scan_bandwidth(sp, fr), sp->window_from[wi],
+                    sp->window_from[wi] + sp->length, bl_param_name(r->test_param[t]));
+            put_text(f, r->test_level[t]);
+            fputc(',', f);
+            put_num(f, s->statistic[i]);
+            fputc(',', f);
+            put_num(f, s->estimate[i]);
+            fputc(',', f);
+            put_num(f, s->z[i]);
+            fputc(',', f);
+            put_num(f, s->p[i]);
+            fputc(',', f);
+            put_num(f, s->p_familywise[i]);
+            fputc(',', f);
+            if (s->cluster[i]) fprintf(f, "%ld\n", s->cluster[i]);
+            else fputs("NA\n", f);
+        }
+    return bl_outfile_commit(of, err);
+}
+
+/* Diverging colours for the signed z (ColorBrewer RdBu, 7 classes; Brewer 2003). */
+static const char *const z_colors[7] = {"#2166ac", "#67a9cf", "#d1e5f0", "#f7f7f7", "#fddbc7", "#ef8a62", "#b2182b"};
+static const double z_edges[6] = {-3.0, -2.0, -1.0, 1.0, 2.0, 3.0};
+
+static int z_class(double z)
+{
+    int k = 0;
+    while (k < 6 && z >= z_edges[k]) k++;
+    return k;
+}
+
+static bl_status heat_map(const bl_scan_result *r, size_t t, const char *path, bl_error *err)
+{
+    const bl_scan_spec *sp = r->spec;
+    const bl_scan_stats *s = r->stats;
+    size_t nf = sp->n_freqs, nw = sp->n_windows, nc = nf * nw;
+    char title[256];
+    snprintf(title, sizeof title, "Score statistic of a slope on %s%s%s per frequency and window", bl_param_name(r->test_param[t]),
+             r->test_level[t][0] ? " in " : "", r->test_level[t]);
+    bl_svg *fig = bl_svg_create("scan", title, 1, 1, 640, 440);
+    double *xs = malloc(nc * sizeof *xs), *ys = malloc(nc * sizeof *ys);
+    if (!fig || !xs || !ys) {
+        bl_svg_destroy(fig);
+        free(xs);
+        free(ys);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory drawing the scan");
+    }
+    bl_svg_panel *p = bl_svg_panel_at(fig, 0);
+    bl_svg_axis_label(p, BL_SVG_X, "window centre (s from the alignment point)");
+    bl_svg_axis_label(p, BL_SVG_Y, "frequency (Hz)");
+    double cell_px = fmin(520.0 / (double)nw, 340.0 / (double)nf) / 2.0;
+    for (int k = 0; k < 7; k++) {
+        size_t m = 0;
+        for (size_t c = 0; c < nc; c++)
+            if (isfinite(s->z[t * nc + c]) && z_class(s->z[t * nc + c]) == k) {
+                xs[m] = sp->window_from[c % nw] + sp->length / 2;
+                ys[m++] = sp->freq[c / nw];
+            }
+        bl_svg_style st = {z_colors[k], 1.0, 0, 0, BL_SVG_MARK_SQUARE, fmax(cell_px, 1.5)};
+        if (m) bl_svg_points(p, xs, ys, m, st);
+        static const char *const names[7] = {"z < -3", "-3 to -2", "-2 to -1", "-1 to 1", "1 to 2", "2 to 3", "z > 3"};
+        bl_svg_legend(fig, names[k], BL_SVG_KEY_BOX, st);
+    }
+    size_t m = 0;
+    for (size_t c = 0; c < nc; c++)
+        if (s->p_familywise[t * nc + c] <= 0.05) {
+            xs[m] = sp->window_from[c % nw] + sp->length / 2;
+            ys[m++] = sp->freq[c / nw];
+        }
+    bl_svg_style mark = {"#000000", 1.0, 0, 0, BL_SVG_MARK_DIAMOND, fmax(cell_px / 2.5, 1.5)};
+    if (m) bl_svg_points(p, xs, ys, m, mark);
+    bl_svg_legend(fig, "family-wise p <= 0.05", BL_SVG_KEY_POINT, mark);
+    bl_status st = bl_svg_write(fig, path, err);
+    bl_svg_destroy(fig);
+    free(xs);
+    free(ys);
+    return st;
+}
+
+bl_status bl_scan_write_figures(const bl_scan_result *r, const char *dir, bl_error *err)
+{
+    for (size_t t = 0; t < r->n_tests; t++) {
+        char name[300];
+        snprintf(name, sizeof name, "scan_%s%s%s.svg", bl_param_name(r->test_param[t]), r->test_level[t][0] ? "_" : "",
+                 r->test_level[t]);
+        for (char *q = name; *q; q++)
+            if (*q == '/' || *q == ':' || *q == ' ' || *q == '\\') *q = '-';
+        char *path = bl_path_join(dir, name);
+        if (!path) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        bl_status st = heat_map(r, t, path, err);
+        free(path);
+        if (st) return st;
+    }
+    return BL_OK;
+}
+
+char *bl_scan_summary(const bl_scan_result *r)
+{
+    const bl_scan_spec *sp = r->spec;
+    const bl_scan_stats *s = r->stats;
+    size_t nc = sp->n_freqs * sp->n_windows, total = nc * r->n_tests;
+    bl_textbuf b = {0};
+    bl_textbuf_printf(&b, "scan: %zu frequencies (%.4g to %.4g Hz) x %zu windows of %.4g s (%.4g to %.4g s) x %zu tests "
+                      "on %zu trials; null model '%s' (log-likelihood %.2f)\n", sp->n_freqs, sp->freq[0],
+                      sp->freq[sp->n_freqs - 1], sp->n_windows, sp->length, sp->from, sp->to, r->n_tests, r->n_trials,
+                      sp->null_model, r->null_log_likelihood);
+    if (s->correction == BL_SCAN_CORRECTION_CLUSTER)
+        bl_textbuf_printf(&b, "family-wise error: cluster mass over %zu permutations; cluster-forming threshold p < %.3g "
+                          "(statistic > %.4g), %zu clusters\n", s->permutations, s->cluster_threshold,
+                          s->cluster_statistic, s->n_clusters);
+    else
+        bl_textbuf_printf(&b, "family-wise error: maximum statistic over the grid, %zu permutations\n", s->permutations);
+    /* the five strongest cells */
+    size_t best[5], nb = 0;
+    for (size_t i = 0; i < total; i++) {
+        if (!isfinite(s->statistic[i])) continue;
+        size_t k;
+        if (nb < 5) k = nb++;
+        else if (s->statistic[i] > s->statistic[best[4]]) k = 4;
+        else continue;
+        while (k > 0 && s->statistic[i] > s->statistic[best[k - 1]]) {
+            best[k] = best[k - 1];
+            k--;
+        }
+        best[k] = i;
+    }
+    bl_textbuf_printf(&b, "strongest cells:\n  %-12s %-10s %-16s %9s %9s %10s %12s\n", "parameter", "frequency",
+                      "window (s)", "statistic", "estimate", "p", "p_familywise");
+    for (size_t k = 0; k < nb; k++) {
+        size_t i = best[k], t = i / nc, c = i % nc;
+        char par[64], win[64], pf[32];
+        snprintf(par, sizeof par, "%s%s%s", bl_param_name(r->test_param[t]), r->test_level[t][0] ? ":" : "", r->test_level[t]);
+        snprintf(win, sizeof win, "%.3g to %.3g", sp->window_from[c % sp->n_windows],
+                 sp->window_from[c % sp->n_windows] + sp->length);
+        if (isfinite(s->p_familywise[i])) snprintf(pf, sizeof pf, "%.4f", s->p_familywise[i]);
+        else snprintf(pf, sizeof pf, "NA");
+        bl_textbuf_printf(&b, "  %-12s %6.3g Hz  %-16s %9.3f %9.4f %10.3g %12s\n", par, sp->freq[c / sp->n_windows], win,
+                          s->statistic[i], s->estimate[i], s->p[i], pf);
+    }
+    bl_textbuf_printf(&b, "time: null model %.2f s, power %.2f s, statistics %.2f s\n", r->seconds_null, r->seconds_power,
+                      r->seconds_stats);
+    return bl_textbuf_take(&b);
+}
