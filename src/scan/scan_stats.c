@@ -192,8 +192,8 @@ done:
 }
 
 /* Level of every scan parameter per scan trial: level[t * n + j] = 1 when trial j belongs to test t. */
-static bl_status make_tests(bl_scan_null *nm, const bl_trials *tr, const bl_scan_param *params, size_t n_params,
-                            unsigned char **level_out, bl_error *err)
+static bl_status make_tests(bl_scan_null *nm, const char *study_path, const bl_trials *tr, const bl_scan_param *params,
+                            size_t n_params, unsigned char **level_out, bl_error *err)
 {
     size_t n = nm->n, cap = 0;
     char **text = calloc(n ? n : 1, sizeof *text);
@@ -204,7 +204,7 @@ static bl_status make_tests(bl_scan_null *nm, const bl_trials *tr, const bl_scan
         for (size_t b = 0; b < params[i].n_by; b++)
             if (bl_table_find(tr->table, params[i].by[b]) < 0) {
                 st = bl_error_set(err, BL_ERR_INPUT, "%s: key \"scan.parameters[%zu].by\": column \"%s\" is not in the "
-                                  "trial table", tr->table->path ? tr->table->path : "trials", i, params[i].by[b]);
+                                  "trial table %s", study_path, i, params[i].by[b], tr->table->path ? tr->table->path : "");
                 goto done;
             }
         size_t first_test = nm->n_tests;
@@ -331,7 +331,6 @@ bl_status bl_scan_null_create(const bl_study *study, const bl_model_spec *spec, 
                               bl_participants_mode mode, const bl_scan_param *params, size_t n_params, int threads,
                               unsigned long seed, bl_scan_null **out, bl_warnings *warn, bl_error *err)
 {
-    (void)study;
     *out = NULL;
     bl_fit_options fo;
     bl_fit_options_default(&fo);
@@ -366,7 +365,7 @@ bl_status bl_scan_null_create(const bl_study *study, const bl_model_spec *spec, 
     memcpy(nm->coef0, units.coef[0], nm->k[0] * sizeof *nm->coef0);
     for (size_t u = 0; u < units.n_units; u++)
         for (size_t k = 0; k < units.models[u]->n; k++) nm->rows[nm->unit_start[u] + k] = units.models[u]->row[k];
-    if ((st = make_tests(nm, trials, params, n_params, &level, err))) goto fail;
+    if ((st = make_tests(nm, study->path, trials, params, n_params, &level, err))) goto fail;
     if ((st = make_cells(nm, spec, trials, params, n_params, err))) goto fail;
     nm->R1 = nm->n_tests * (1 + nm->kmax);
     if (!(nm->wt = calloc(nm->n * nm->R1, sizeof *nm->wt)) || !(nm->vt = calloc(nm->n * nm->n_tests, sizeof *nm->vt)))
