@@ -74,6 +74,7 @@ bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_s
     for (size_t m = 0; m < study->n_models; m++)
         if (!strcmp(study->models[m].name, sp->null_model)) spec = &study->models[m];
     r->mode = study->fit.participants;
+    if ((st = bl_scan_power_check(study, sp, trials, err))) goto fail;
     double t0 = now();
     say(opt, "scan: fitting the null model", 0, 0);
     if ((st = bl_scan_null_create(study, spec, trials, r->mode, sp->params, sp->n_params, opt->threads, opt->seed, &nm,
@@ -183,51 +184,84 @@ static int z_class(double z)
     return k;
 }
 
+/* Edges of cell k of n centres c[] along one axis: midpoints (geometric on a log axis), mirrored at the ends. */
+static void cell_edges(const double *c, size_t n, size_t k, double half, int geometric, double *lo, double *hi)
+{
+    if (n == 1) {
+        *lo = geometric ? c[0] / (1 + half) : c[0] - half;
+        *hi = geometric ? c[0] * (1 + half) : c[0] + half;
+        return;
+    }
+    double prev = k > 0 ? c[k - 1] : geometric ? c[0] * c[0] / c[1] : 2 * c[0] - c[1];
+    double next = k + 1 < n ? c[k + 1] : geometric ? c[n - 1] * c[n - 1] / c[n - 2] : 2 * c[n - 1] - c[n - 2];
+    *lo = geometric ? sqrt(prev * c[k]) : (prev + c[k]) / 2;
+    *hi = geometric ? sqrt(c[k] * next) : (c[k] + next) / 2;
+}
+
 static bl_status heat_map(const bl_scan_result *r, size_t t, const char *path, bl_error *err)
 {
     const bl_scan_spec *sp = r->spec;
     const bl_scan_stats *s = r->stats;
     size_t nf = sp->n_freqs, nw = sp->n_windows, nc = nf * nw;
+    int geometric = nf > 1 && sp->freq[1] - sp->freq[0] < 0.999 * (sp->freq[nf - 1] - sp->freq[nf - 2]);
     char title[256];
-    snprintf(title, sizeof title, "Score statistic of a slope on %s%s%s per frequency and window", bl_param_name(r->test_param[t]),
-             r->test_level[t][0] ? " in " : "", r->test_level[t]);
+    snprintf(title, sizeof title, "Score statistic of a slope on %s%s%s per frequency and window",
+             bl_param_name(r->test_param[t]), r->test_level[t][0] ? " in " : "", r->test_level[t]);
     bl_svg *fig = bl_svg_create("scan", title, 1, 1, 640, 440);
-    double *xs = malloc(nc * sizeof *xs), *ys = malloc(nc * sizeof *ys);
-    if (!fig || !xs || !ys) {
+    double *centre = malloc(nw * sizeof *centre);
+    double *xs = malloc(6 * nc * sizeof *xs), *lo = malloc(6 * nc * sizeof *lo), *hi = malloc(6 * nc * sizeof *hi);
+    if (!fig || !centre || !xs || !lo || !hi) {
         bl_svg_destroy(fig);
+        free(centre);
         free(xs);
-        free(ys);
+        free(lo);
+        free(hi);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory drawing the scan");
     }
+    for (size_t w = 0; w < nw; w++) centre[w] = sp->window_from[w] + sp->length / 2;
     bl_svg_panel *p = bl_svg_panel_at(fig, 0);
     bl_svg_axis_label(p, BL_SVG_X, "window centre (s from the alignment point)");
     bl_svg_axis_label(p, BL_SVG_Y, "frequency (Hz)");
-    double cell_px = fmin(520.0 / (double)nw, 340.0 / (double)nf) / 2.0;
+    if (geometric) bl_svg_axis_log(p, BL_SVG_Y);
+    static const char *const names[7] = {"z < -3", "-3 to -2", "-2 to -1", "-1 to 1", "1 to 2", "2 to 3", "z > 3"};
     for (int k = 0; k < 7; k++) {
         size_t m = 0;
-        for (size_t c = 0; c < nc; c++)
-            if (isfinite(s->z[t * nc + c]) && z_class(s->z[t * nc + c]) == k) {
-                xs[m] = sp->window_from[c % nw] + sp->length / 2;
-                ys[m++] = sp->freq[c / nw];
-            }
-        bl_svg_style st = {z_colors[k], 1.0, 0, 0, BL_SVG_MARK_SQUARE, fmax(cell_px, 1.5)};
-        if (m) bl_svg_points(p, xs, ys, m, st);
-        static const char *const names[7] = {"z < -3", "-3 to -2", "-2 to -1", "-1 to 1", "1 to 2", "2 to 3", "z > 3"};
+        for (size_t c = 0; c < nc; c++) {
+            double z = s->z[t * nc + c];
+            if (!isfinite(z) || z_class(z) != k) continue;
+            double x0, x1, y0, y1;
+            cell_edges(centre, nw, c % nw, sp->length / 2, 0, &x0, &x1);
+            cell_edges(sp->freq, nf, c / nw, 0.05, geometric, &y0, &y1);
+            xs[m] = x0, lo[m] = y0, hi[m++] = y1;
+            xs[m] = x1, lo[m] = y0, hi[m++] = y1;
+            xs[m] = NAN, lo[m] = NAN, hi[m++] = NAN; /* one rectangle per run */
+        }
+        bl_svg_style st = {z_colors[k], 1.0, 0, 0, BL_SVG_MARK_SQUARE, 0};
+        if (m) bl_svg_ribbon(p, xs, lo, hi, m, st);
         bl_svg_legend(fig, names[k], BL_SVG_KEY_BOX, st);
     }
+    /* outline every cell with family-wise p <= 0.05 */
     size_t m = 0;
-    for (size_t c = 0; c < nc; c++)
-        if (s->p_familywise[t * nc + c] <= 0.05) {
-            xs[m] = sp->window_from[c % nw] + sp->length / 2;
-            ys[m++] = sp->freq[c / nw];
+    for (size_t c = 0; c < nc; c++) {
+        if (!(s->p_familywise[t * nc + c] <= 0.05)) continue;
+        double x0, x1, y0, y1;
+        cell_edges(centre, nw, c % nw, sp->length / 2, 0, &x0, &x1);
+        cell_edges(sp->freq, nf, c / nw, 0.05, geometric, &y0, &y1);
+        double px[6] = {x0, x1, x1, x0, x0, NAN}, py[6] = {y0, y0, y1, y1, y0, NAN};
+        for (int i = 0; i < 6; i++) {
+            xs[m] = px[i];
+            lo[m++] = py[i];
         }
-    bl_svg_style mark = {"#000000", 1.0, 0, 0, BL_SVG_MARK_DIAMOND, fmax(cell_px / 2.5, 1.5)};
-    if (m) bl_svg_points(p, xs, ys, m, mark);
-    bl_svg_legend(fig, "family-wise p <= 0.05", BL_SVG_KEY_POINT, mark);
+    }
+    bl_svg_style edge = {"#000000", 1.0, 1.5, 0, BL_SVG_MARK_SQUARE, 0};
+    if (m) bl_svg_line(p, xs, lo, m, edge);
+    bl_svg_legend(fig, "family-wise p <= 0.05", BL_SVG_KEY_LINE, edge);
     bl_status st = bl_svg_write(fig, path, err);
     bl_svg_destroy(fig);
+    free(centre);
     free(xs);
-    free(ys);
+    free(lo);
+    free(hi);
     return st;
 }
 

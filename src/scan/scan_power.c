@@ -361,6 +361,28 @@ done:
     return st;
 }
 
+bl_status bl_scan_power_check(const bl_study *s, const bl_scan_spec *sp, const bl_trials *t, bl_error *err)
+{
+    size_t n = 0;
+    char **path = calloc(t->n ? t->n : 1, sizeof *path);
+    if (!path) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    bl_status st = BL_OK;
+    for (size_t i = 0; i < t->n && !st; i++) {
+        if (t->excluded[i]) continue;
+        char *p = NULL;
+        st = bl_pattern_expand(s->recordings.file, t->table, i, &p, err);
+        if (!st && (!n || strcmp(p, path[n - 1]))) path[n++] = p;
+        else free(p);
+    }
+    double fs = NAN, shortest = 0;
+    if (!st && n == 0) st = bl_error_set(err, BL_ERR_INPUT, "%s: no trial to scan", s->path);
+    if (!st) st = survey(s, path, n, &fs, &shortest, err);
+    if (!st) st = bl_scan_spec_check_signal(sp, s, fs, shortest, err);
+    for (size_t j = 0; j < n; j++) free(path[j]);
+    free(path);
+    return st;
+}
+
 static double scaled(bl_scale sc, double v)
 {
     return sc == BL_SCALE_LOG10 ? log10(v) : sc == BL_SCALE_DB ? 10.0 * log10(v) : v;

@@ -33,6 +33,10 @@ size_t bl_dpss_count(double NW);
 bl_status bl_scan_power(const bl_study *study, const bl_scan_spec *spec, const bl_trials *trials, const size_t *rows,
                         size_t n, int threads, double *out, double *fs_out, bl_error *err);
 
+/* The checks of bl_scan_spec_check_signal against the recordings of the kept trials (headers only), so that
+ * a bad grid is reported before the null model is fitted. */
+bl_status bl_scan_power_check(const bl_study *study, const bl_scan_spec *spec, const bl_trials *trials, bl_error *err);
+
 /* Scale (power.scale) and standardise (power.standardize) each cell's values over the n trials, in
  * place, by the study's rules (docs/study-file.md: z-score within participant, or participant x
  * power.condition). Errors: power that cannot be log-scaled, a group without spread (naming the cell). */
