@@ -312,7 +312,7 @@ char *bl_scan_summary(const bl_scan_result *r)
         }
         best[k] = i;
     }
-    bl_textbuf_printf(&b, "strongest cells:\n  %-12s %-10s %-16s %9s %9s %10s %12s\n", "parameter", "frequency",
+    bl_textbuf_printf(&b, "strongest cells:\n  %-18s %-10s %-16s %9s %9s %10s %12s\n", "parameter", "frequency",
                       "window (s)", "statistic", "estimate", "p", "p_familywise");
     for (size_t k = 0; k < nb; k++) {
         size_t i = best[k], t = i / nc, c = i % nc;
@@ -322,7 +322,7 @@ char *bl_scan_summary(const bl_scan_result *r)
                  sp->window_from[c % sp->n_windows] + sp->length);
         if (isfinite(s->p_familywise[i])) snprintf(pf, sizeof pf, "%.4f", s->p_familywise[i]);
         else snprintf(pf, sizeof pf, "NA");
-        bl_textbuf_printf(&b, "  %-12s %6.3g Hz  %-16s %9.3f %9.4f %10.3g %12s\n", par, sp->freq[c / sp->n_windows], win,
+        bl_textbuf_printf(&b, "  %-18s %6.3g Hz  %-16s %9.3f %9.4f %10.3g %12s\n", par, sp->freq[c / sp->n_windows], win,
                           s->statistic[i], s->estimate[i], s->p[i], pf);
     }
     bl_textbuf_printf(&b, "time: null model %.2f s, power %.2f s, statistics %.2f s\n", r->seconds_null, r->seconds_power,
