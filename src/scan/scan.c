@@ -5,6 +5,9 @@
 #include "core/strutil.h"
 #include "core/textbuf.h"
 #include "report/svg.h"
+#include "fit/fit_internal.h"
+
+#include <gsl/gsl_cdf.h>
 
 #include <math.h>
 #include <stdint.h>
@@ -28,6 +31,7 @@ void bl_scan_result_destroy(bl_scan_result *r)
     for (size_t t = 0; t < r->n_tests; t++) free(r->test_level ? r->test_level[t] : NULL);
     free(r->test_level);
     free(r->test_param);
+    free(r->refits);
     free(r);
 }
 
@@ -58,6 +62,10 @@ static bl_status copy_tests(bl_scan_result *r, const bl_scan_null *nm)
     }
     return BL_OK;
 }
+
+static bl_status refit_strongest(const bl_study *study, const bl_model_spec *null_spec, const bl_trials *trials,
+                                 const bl_scan_options *opt, bl_scan_result *r, const double *x, const size_t *rows,
+                                 size_t n, bl_warnings *warn, bl_error *err);
 
 bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_scan_options *opt, bl_scan_result **out,
                       bl_warnings *warn, bl_error *err)
@@ -100,6 +108,7 @@ bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_s
     if ((st = bl_scan_grid(nm, x, sp->n_freqs, sp->n_windows, perms, sp->correction, sp->cluster_threshold, opt->seed,
                            opt->threads, opt->progress ? perm_progress : NULL, &pc, &r->stats, err)))
         goto fail;
+    if ((st = refit_strongest(study, spec, trials, opt, r, x, rows, n, warn, err))) goto fail;
     r->seconds_stats = now() - t2;
     if (perms > 0 && perms < 1000)
         bl_warnings_add(warn, "scan: %zu permutations give family-wise p-values no finer than %.2g; use 1000 or more",
@@ -325,7 +334,165 @@ char *bl_scan_summary(const bl_scan_result *r)
         bl_textbuf_printf(&b, "  %-18s %6.3g Hz  %-16s %9.3f %9.4f %10.3g %12s\n", par, sp->freq[c / sp->n_windows], win,
                           s->statistic[i], s->estimate[i], s->p[i], pf);
     }
+    if (r->n_refits)
+        bl_textbuf_printf(&b, "refitted with the slope (likelihood-ratio test against the null model):\n  %-18s %-10s %-16s "
+                          "%9s %9s %4s %10s %9s %8s\n", "parameter", "frequency", "window (s)", "score", "LR", "df", "p",
+                          "estimate", "SE");
+    for (size_t k = 0; k < r->n_refits; k++) {
+        const bl_scan_refit *q = &r->refits[k];
+        char par[64], win[64];
+        snprintf(par, sizeof par, "%s%s%s", bl_param_name(r->test_param[q->test]), r->test_level[q->test][0] ? ":" : "",
+                 r->test_level[q->test]);
+        snprintf(win, sizeof win, "%.3g to %.3g", sp->window_from[q->cell % sp->n_windows],
+                 sp->window_from[q->cell % sp->n_windows] + sp->length);
+        bl_textbuf_printf(&b, "  %-18s %6.3g Hz  %-16s %9.3f %9.3f %4.0f %10.3g %9.4f %8.4f%s\n", par,
+                          sp->freq[q->cell / sp->n_windows], win, s->statistic[q->test * nc + q->cell], q->lr, q->df, q->p,
+                          q->estimate, q->se, q->converged ? "" : "  (not converged)");
+    }
     bl_textbuf_printf(&b, "time: null model %.2f s, power %.2f s, statistics %.2f s\n", r->seconds_null, r->seconds_power,
                       r->seconds_stats);
     return bl_textbuf_take(&b);
+}
+
+/* ---- refits of the strongest cells ---- */
+
+#define BL_SCAN_REFIT_COLUMN "scan cell"
+
+/* Is scan trial row `row` in the level of test t? The level text is the test's `by` columns joined by ':'. */
+static int in_level(const bl_scan_spec *sp, const bl_trials *t, int param, const char *level, size_t row)
+{
+    const bl_scan_param *sc = NULL;
+    for (size_t i = 0; i < sp->n_params; i++)
+        if (sp->params[i].param == param) sc = &sp->params[i];
+    if (!sc || sc->n_by == 0) return 1;
+    const char *p = level;
+    for (size_t b = 0; b < sc->n_by; b++) {
+        const char *v = t->table->cols[bl_table_find(t->table, sc->by[b])].text[row];
+        if (!v) v = "NA";
+        size_t l = strlen(v);
+        if (strncmp(p, v, l) != 0 || (p[l] != ':' && p[l] != '\0')) return 0;
+        p += l + (p[l] == ':');
+    }
+    return *p == '\0';
+}
+
+/* One refit: the null model plus a slope on the cell's power (zero outside the test's level), on a shadow
+ * trial table that adds the cell as a column (the analysis's own table is not touched). */
+static bl_status refit_cell(const bl_study *study, const bl_model_spec *null_spec, const bl_trials *trials,
+                            const bl_scan_options *opt, bl_scan_result *r, const double *xc, const size_t *rows, size_t n,
+                            bl_scan_refit *out, bl_warnings *warn, bl_error *err)
+{
+    int param = r->test_param[out->test];
+    bl_table shadow = *trials->table;
+    bl_trials st_trials = *trials;
+    bl_column *cols = malloc((shadow.n_cols + 1) * sizeof *cols);
+    double *num = malloc((shadow.n_rows ? shadow.n_rows : 1) * sizeof *num);
+    char **text = calloc(shadow.n_rows ? shadow.n_rows : 1, sizeof *text);
+    bl_slope_spec *slopes = malloc((null_spec->param[param].n_slopes + 1) * sizeof *slopes);
+    bl_status st = BL_OK;
+    bl_unit_set units = {0};
+    if (!cols || !num || !text || !slopes) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory refitting a scan cell");
+        goto done;
+    }
+    memcpy(cols, shadow.cols, shadow.n_cols * sizeof *cols);
+    for (size_t i = 0; i < shadow.n_rows; i++) num[i] = NAN;
+    for (size_t j = 0; j < n; j++)
+        num[rows[j]] = in_level(r->spec, trials, param, r->test_level[out->test], rows[j]) ? xc[j] : 0.0;
+    cols[shadow.n_cols] = (bl_column){BL_SCAN_REFIT_COLUMN, 1, num, text};
+    shadow.cols = cols;
+    shadow.n_cols++;
+    st_trials.table = &shadow;
+    bl_model_spec alt = *null_spec;
+    memcpy(slopes, null_spec->param[param].slopes, null_spec->param[param].n_slopes * sizeof *slopes);
+    slopes[null_spec->param[param].n_slopes] = (bl_slope_spec){BL_SCAN_REFIT_COLUMN, NULL, 0};
+    alt.param[param].slopes = slopes;
+    alt.param[param].n_slopes++;
+    bl_fit_options fo;
+    bl_fit_options_default(&fo);
+    fo.threads = opt->threads;
+    fo.seed = opt->seed;
+    if ((st = bl_build_units(&alt, &st_trials, r->mode, &fo, &units, NULL, warn, err))) goto done;
+    double ll = 0;
+    out->converged = 1;
+    out->estimate = out->se = NAN;
+    for (size_t u = 0; u < units.n_units && !st; u++) {
+        bl_fit_result res;
+        st = bl_fit_core(units.models[u], units.liks[u], &fo, bl_fit_default_starts(&fo), NULL, 1, &res, NULL, err);
+        if (st) break;
+        ll += res.log_likelihood;
+        out->converged &= res.converged;
+        for (size_t k = 0; units.n_units == 1 && k < res.n_coef; k++)
+            if (res.coef[k].param == param && !strcmp(res.coef[k].term, BL_SCAN_REFIT_COLUMN)) {
+                out->estimate = res.coef[k].estimate;
+                out->se = res.coef[k].se;
+            }
+        bl_fit_result_clear(&res);
+    }
+    out->df = (double)units.n_units;
+    out->lr = 2 * (ll - r->null_log_likelihood);
+    out->p = isfinite(out->lr) ? gsl_cdf_chisq_Q(fmax(out->lr, 0), out->df) : NAN;
+    (void)study;
+done:
+    bl_unit_set_free(&units);
+    free(cols);
+    free(num);
+    free(text);
+    free(slopes);
+    return st;
+}
+
+/* The `refit` strongest cells (by score statistic over every test), refitted in order of strength. */
+static bl_status refit_strongest(const bl_study *study, const bl_model_spec *null_spec, const bl_trials *trials,
+                                 const bl_scan_options *opt, bl_scan_result *r, const double *x, const size_t *rows,
+                                 size_t n, bl_warnings *warn, bl_error *err)
+{
+    const bl_scan_spec *sp = r->spec;
+    size_t nc = sp->n_freqs * sp->n_windows, total = nc * r->n_tests, want = sp->refit;
+    if (!want) return BL_OK;
+    if (want > total) want = total;
+    if (!(r->refits = calloc(want, sizeof *r->refits))) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    const double *stat = r->stats->statistic;
+    for (size_t k = 0; k < want; k++) {
+        size_t best = SIZE_MAX;
+        for (size_t i = 0; i < total; i++) {
+            int taken = 0;
+            for (size_t q = 0; q < k; q++) taken |= r->refits[q].test * nc + r->refits[q].cell == i;
+            if (!taken && isfinite(stat[i]) && (best == SIZE_MAX || stat[i] > stat[best])) best = i;
+        }
+        if (best == SIZE_MAX) break;
+        r->refits[k].test = best / nc;
+        r->refits[k].cell = best % nc;
+        say(opt, "scan: refitting the strongest cells", k, want);
+        bl_status st = refit_cell(study, null_spec, trials, opt, r, x + r->refits[k].cell * n, rows, n, &r->refits[k],
+                                  warn, err);
+        if (st) return st;
+        r->n_refits = k + 1;
+    }
+    return BL_OK;
+}
+
+bl_status bl_scan_write_refits(const bl_scan_result *r, const char *path, bl_error *err)
+{
+    bl_outfile *of = NULL;
+    bl_status st = bl_outfile_open(path, &of, err);
+    if (st) return st;
+    FILE *f = bl_outfile_stream(of);
+    const bl_scan_spec *sp = r->spec;
+    size_t nc = sp->n_freqs * sp->n_windows;
+    fputs("frequency,window_from,window_to,parameter,level,statistic,lr_statistic,df,p_lr,estimate,se,converged\n", f);
+    for (size_t k = 0; k < r->n_refits; k++) {
+        const bl_scan_refit *q = &r->refits[k];
+        size_t fi = q->cell / sp->n_windows, wi = q->cell % sp->n_windows;
+        fprintf(f, "%.10g,%.10g,%.10g,%s,", sp->freq[fi], sp->window_from[wi], sp->window_from[wi] + sp->length,
+                bl_param_name(r->test_param[q->test]));
+        put_text(f, r->test_level[q->test]);
+        double v[6] = {r->stats->statistic[q->test * nc + q->cell], q->lr, q->df, q->p, q->estimate, q->se};
+        for (int i = 0; i < 6; i++) {
+            fputc(',', f);
+            put_num(f, v[i]);
+        }
+        fprintf(f, ",%d\n", q->converged);
+    }
+    return bl_outfile_commit(of, err);
 }

@@ -22,6 +22,14 @@ typedef struct {
     void *progress_user;
 } bl_scan_options;
 
+/* A cell refitted with the slope in the model: likelihood-ratio test against the null model. */
+typedef struct {
+    size_t test, cell;          /* cell = f * n_windows + w */
+    double lr, df, p;           /* 2 (LL with the slope - LL of the null); df = fitted units (1 pooled) */
+    double estimate, se;        /* the refitted slope and its Wald SE (pooled only; NAN when separate) */
+    int converged;
+} bl_scan_refit;
+
 typedef struct bl_scan_result {
     bl_scan_spec *spec;
     bl_scan_stats *stats;
@@ -33,6 +41,8 @@ typedef struct bl_scan_result {
     double null_log_likelihood;
     double fs;
     double seconds_null, seconds_power, seconds_stats;
+    size_t n_refits;
+    bl_scan_refit *refits;
 } bl_scan_result;
 
 bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_scan_options *opt,
@@ -42,6 +52,9 @@ void bl_scan_result_destroy(bl_scan_result *r);
 /* scan.csv: frequency, window_from, window_to, parameter, level, statistic, estimate, z, p, p_familywise,
  * cluster; NA for what could not be computed. Atomic. */
 bl_status bl_scan_write_csv(const bl_scan_result *r, const char *path, bl_error *err);
+/* scan_refits.csv (only when the block asks for refits): frequency, window_from, window_to, parameter, level,
+ * statistic (score), lr_statistic, df, p_lr, estimate, se. Atomic. */
+bl_status bl_scan_write_refits(const bl_scan_result *r, const char *path, bl_error *err);
 /* One heat map per tested parameter (and level): scan_<parameter>[_<level>].svg in dir. */
 bl_status bl_scan_write_figures(const bl_scan_result *r, const char *dir, bl_error *err);
 /* The summary: grid, permutations, correction, the strongest cells. Caller frees; NULL when memory ran out. */

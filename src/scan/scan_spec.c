@@ -196,9 +196,14 @@ static bl_status parse_rest(const ctx *c, const cJSON *root, const bl_study *stu
     for (size_t m = 0; name && m < study->n_models; m++) found |= !strcmp(study->models[m].name, name);
     if (!found) return bad(c, "scan.null_model", nm, study->n_models ? "is not a model of the study" : "needs a model in \"models\"");
     if (!(s->null_model = bl_strdup(name))) return nomem(c);
-    double perms, thr;
+    double perms, thr, refit;
     bl_status st = number(c, root, "scan", "permutations", 1000, &perms);
-    if (st || (st = number(c, root, "scan", "cluster_threshold", 0.05, &thr))) return st;
+    if (st || (st = number(c, root, "scan", "cluster_threshold", 0.05, &thr)) ||
+        (st = number(c, root, "scan", "refit", 0, &refit)))
+        return st;
+    if (!(refit >= 0 && refit <= 50 && refit == floor(refit)))
+        return bad(c, "scan.refit", get(root, "refit"), "must be a whole number from 0 to 50");
+    s->refit = (size_t)refit;
     if (!(perms >= 0 && perms <= 1e6 && perms == floor(perms)))
         return bad(c, "scan.permutations", get(root, "permutations"), "must be a whole number from 0 to 1000000");
     s->permutations = (size_t)perms;
@@ -221,7 +226,7 @@ bl_status bl_scan_spec_parse(const bl_study *study, bl_scan_spec **out, bl_error
     if (!study->has_recordings || !study->has_power)
         return bad(&c, "scan", NULL, "needs the study's \"recordings\" and \"power\" sections (scale, standardize, detrend)");
     static const char *const keys[] = {"frequencies", "windows",     "parameters",        "null_model",
-                                       "permutations", "correction", "cluster_threshold", NULL};
+                                       "permutations", "correction", "cluster_threshold", "refit", NULL};
     bl_status st = check_keys(&c, root, "scan", keys);
     if (st) return st;
     bl_scan_spec *s = calloc(1, sizeof *s);

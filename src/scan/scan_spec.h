@@ -35,6 +35,7 @@ typedef struct {
     size_t permutations;      /* default 1000 */
     bl_scan_correction correction;
     double cluster_threshold; /* uncorrected p below which a cell joins a cluster (default 0.05) */
+    size_t refit;             /* the strongest cells refitted with a likelihood-ratio test (default 0) */
 } bl_scan_spec;
 
 /* NULL study->scan_json is an error ("the study has no \"scan\" block"). */

@@ -58,6 +58,20 @@ out=$("$BANDLINK" scan "$tmp/ok/study.json" --out "$tmp/ok/r4" --permutations 20
 echo "$out" | grep -q 'strongest cells' && echo "$out" | grep -q '20 permutations' &&
     pass "summary names the strongest cells; --permutations overrides the block" || bad "summary: $out"
 
+# refits of the strongest cells: a likelihood-ratio test each, in scan_refits.csv and the summary
+make_case refit "$GRID"', "refit": 2, "correction": "cluster", "cluster_threshold": 0.2'
+out=$("$BANDLINK" scan "$tmp/refit/study.json" --out "$tmp/refit/r" 2>/dev/null)
+rf="$tmp/refit/r/scan_refits.csv"
+[ "$(wc -l < "$rf" 2>/dev/null)" = 3 ] && pass "scan_refits.csv: 2 refits" || bad "scan_refits.csv: $(cat "$rf" 2>&1)"
+awk -F, 'NR > 1 && !($7 >= 0 && $8 == 1 && $9 >= 0 && $9 <= 1) { bad = 1 } END { exit bad }' "$rf" &&
+    pass "refits: LR >= 0, df 1, p in [0, 1]" || bad "refits: $(cat "$rf")"
+# the refitted cells are the two largest score statistics of scan.csv
+top=$(awk -F, 'NR > 1 && $7 != "NA" {print $7}' "$tmp/refit/r/scan.csv" | sort -g -r | head -2 | tr '\n' ' ')
+got=$(awk -F, 'NR > 1 {print $6}' "$rf" | tr '\n' ' ')
+[ "$top" = "$got" ] && pass "refits are the strongest cells ($got)" || bad "refitted [$got], strongest [$top]"
+echo "$out" | grep -q 'cluster-forming threshold p < 0.2' && echo "$out" | grep -q 'likelihood-ratio' &&
+    pass "summary states the cluster-forming threshold and the refits" || bad "summary: $out"
+
 # bad grids
 n=0
 expect() {
@@ -86,6 +100,8 @@ expect "$(sub 's/"by": \["context"\]/"by": ["ctx"]/')" 'scan.parameters[0].by' '
 expect "$(sub 's/"drift"/"start"/')" 'scan.parameters[1]' 'start is fixed in the null model'
 expect "$(sub 's/"permutations": 99/"permutations": -1/')" 'scan.permutations' '-1'
 expect "$(sub 's/"spacing": "log"/"spacing": "octave"/')" 'scan.frequencies.spacing' '"octave"'
+expect "$GRID"', "refit": 99' 'scan.refit' '99'
+expect "$GRID"', "cluster_threshold": 1.5' 'scan.cluster_threshold' '1.5'
 expect - 'no "scan" block'
 
 [ $fail -eq 0 ] && echo "all passed"
