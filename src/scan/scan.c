@@ -404,7 +404,7 @@ static bl_status refit_cell(const bl_study *study, const bl_model_spec *null_spe
     shadow.n_cols++;
     st_trials.table = &shadow;
     bl_model_spec alt = *null_spec;
-    memcpy(slopes, null_spec->param[param].slopes, null_spec->param[param].n_slopes * sizeof *slopes);
+    for (size_t k = 0; k < null_spec->param[param].n_slopes; k++) slopes[k] = null_spec->param[param].slopes[k];
     slopes[null_spec->param[param].n_slopes] = (bl_slope_spec){BL_SCAN_REFIT_COLUMN, NULL, 0};
     alt.param[param].slopes = slopes;
     alt.param[param].n_slopes++;
