@@ -142,6 +142,7 @@ typedef struct {
     const int64_t *start;   /* per trial: first sample of the span */
     const int64_t *offset;  /* per window: first sample relative to the span */
     char **path;            /* per trial: recording */
+    const size_t *order;    /* trials in the order they are read: grouped by recording */
     const size_t *rows;
     double *out;
 } power_job;
@@ -234,7 +235,8 @@ static bl_status run_trials(const power_job *jb, int threads, size_t max_k, bl_e
 #ifdef _OPENMP
 #pragma omp for schedule(dynamic, 8)
 #endif
-        for (size_t j = 0; j < jb->n; j++) {
+        for (size_t k = 0; k < jb->n; k++) {
+            size_t j = jb->order[k];
             int failed;
 #ifdef _OPENMP
 #pragma omp atomic read
@@ -304,6 +306,35 @@ static bl_status survey(const bl_study *s, char **path, size_t n, double *fs, do
     return BL_OK;
 }
 
+/* Trials grouped by recording (then in scan order), so each thread opens a recording once per run of trials. */
+typedef struct {
+    const char *path;
+    size_t j;
+} read_slot;
+
+static int by_path(const void *a, const void *b)
+{
+    const read_slot *x = a, *y = b;
+    int c = strcmp(x->path, y->path);
+    return c ? c : (x->j > y->j) - (x->j < y->j);
+}
+
+static size_t *read_order(char **path, size_t n)
+{
+    read_slot *slot = malloc((n ? n : 1) * sizeof *slot);
+    size_t *order = malloc((n ? n : 1) * sizeof *order);
+    if (!slot || !order) {
+        free(slot);
+        free(order);
+        return NULL;
+    }
+    for (size_t j = 0; j < n; j++) slot[j] = (read_slot){path[j], j};
+    qsort(slot, n, sizeof *slot, by_path);
+    for (size_t j = 0; j < n; j++) order[j] = slot[j].j;
+    free(slot);
+    return order;
+}
+
 bl_status bl_scan_power(const bl_study *s, const bl_scan_spec *sp, const bl_trials *t, const size_t *rows, size_t n,
                         int threads, double *out, double *fs_out, bl_error *err)
 {
@@ -346,8 +377,14 @@ bl_status bl_scan_power(const bl_study *s, const bl_scan_spec *sp, const bl_tria
     if ((st = make_kernels(sp, fs, N, fk, err))) goto done;
     size_t max_k = 1;
     for (size_t f = 0; f < sp->n_freqs; f++) max_k = fk[f].K > max_k ? fk[f].K : max_k;
-    power_job jb = {s, sp, t, mont, fk, fs, N, sp->n_windows, n, span, start, offset, path, rows, out};
+    size_t *order = read_order(path, n);
+    if (!order) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for the scan");
+        goto done;
+    }
+    power_job jb = {s, sp, t, mont, fk, fs, N, sp->n_windows, n, span, start, offset, path, order, rows, out};
     st = run_trials(&jb, threads, max_k, err);
+    free(order);
     if (fs_out) *fs_out = fs;
 done:
     for (size_t j = 0; path && j < n; j++) free(path[j]);
