@@ -3,6 +3,8 @@
  *  - the score is the derivative of the log-likelihood in the slope at the null estimate, and the
  *    information its negative second derivative (Rao 1948; Cox & Hinkley 1974, Theoretical Statistics,
  *    section 9.3): compared with central differences of the exact log-likelihood;
+ *  - the efficient variance is the Schur complement 1 / [I^-1]_gg of the full model's information (same
+ *    references), against central differences of the likelihood module's analytic gradient;
  *  - the score statistic and the likelihood-ratio statistic agree asymptotically (same references):
  *    compared on 6,000 simulated trials against a full refit by the library's optimiser;
  *  - Slepian sequences are orthonormal and even/odd (Slepian 1978, Bell Syst. Tech. J. 57);
@@ -27,7 +29,8 @@ static double loglik_shift(const bl_model *m, const double *coef, int param, con
     for (size_t k = 0; k < m->n; k++) {
         bl_wiener_params p;
         bl_model_predict(m, coef, k, &p);
-        p.value[param] += gamma * x[k] * (param == BL_DRIFT ? (double)m->sign[k] : 1.0);
+        if (m->par[param].link == BL_LINK_LOG) p.value[param] *= exp(gamma * x[k]); /* exp(eta + gamma x) */
+        else p.value[param] += gamma * x[k] * (param == BL_DRIFT ? (double)m->sign[k] : 1.0);
         double lf;
         if (bl_wiener_log_density(&p, m->rt[k], m->upper[k], &lf, NULL) != BL_OK) return NAN;
         ll += lf;
@@ -37,10 +40,12 @@ static double loglik_shift(const bl_model *m, const double *coef, int param, con
 
 static bl_study dummy_study = {.path = "test-study.json"};
 
-/* Null model: threshold per context, drift per difficulty, nondecision; tests on threshold and drift. */
-static bl_scan_null *make_null(const bl_trials *t, bl_model_spec *spec, bl_participants_mode mode)
+/* Null model: threshold per context, drift per difficulty, nondecision; tests on threshold and drift.
+ * log_link: threshold and nondecision on the log link. */
+static bl_scan_null *make_null_link(const bl_trials *t, bl_model_spec *spec, bl_participants_mode mode, int log_link)
 {
     spec_default(spec, "null");
+    if (log_link) spec->param[BL_THRESHOLD].link = spec->param[BL_NONDECISION].link = BL_LINK_LOG;
     spec->param[BL_THRESHOLD].per = col_context;
     spec->param[BL_THRESHOLD].n_per = 1;
     spec->param[BL_DRIFT].per = col_difficulty;
@@ -55,12 +60,18 @@ static bl_scan_null *make_null(const bl_trials *t, bl_model_spec *spec, bl_parti
     return nm;
 }
 
-static void test_score_is_derivative(void)
+static bl_scan_null *make_null(const bl_trials *t, bl_model_spec *spec, bl_participants_mode mode)
+{
+    return make_null_link(t, spec, mode, 0);
+}
+
+static void test_score_is_derivative(int log_link)
 {
     sim_truth tr = {.n = 1200, .n_participants = 1, .a = {1.4, 1.1}, .v = {2.0, 1.2, 0.5}, .t0 = 0.3, .stimulus = 1};
     bl_trials *t = sim_trials(&tr, 11);
     bl_model_spec spec;
-    bl_scan_null *nm = make_null(t, &spec, BL_PARTICIPANTS_POOLED);
+    printf("-- %s link on threshold\n", log_link ? "log" : "identity");
+    bl_scan_null *nm = make_null_link(t, &spec, BL_PARTICIPANTS_POOLED, log_link);
     check_true(nm != NULL, "null model fitted");
     if (!nm) return;
     bl_model *m = NULL;
@@ -132,6 +143,45 @@ static void test_score_close_to_lr(void)
     bl_model_build(&alt, t, NULL, &m1, &err);
     bl_fit_model(m0, &o, NULL, &r0, NULL, &err);
     bl_fit_model(m1, &o, NULL, &r1, NULL, &err);
+    /* the efficient variance is 1 / [I^-1]_gg of the full model's information at (b^, 0) (the Schur complement;
+     * Cox & Hinkley 1974, 9.3): information from central differences of the analytic gradient */
+    {
+        size_t k1 = bl_model_n_coef(m1), k0, jg = 0;
+        const double *c0 = bl_scan_null_coef(nm, &k0);
+        double *c1 = malloc(k1 * sizeof *c1), *info = malloc(k1 * k1 * sizeof *info), *cov = malloc(k1 * k1 * sizeof *cov);
+        double *gp = malloc(k1 * sizeof *gp), *gm = malloc(k1 * sizeof *gm);
+        for (size_t j = 0, i = 0; j < k1; j++) {
+            if (!strcmp(bl_model_coef(m1, j)->term, "xc")) {
+                jg = j;
+                c1[j] = 0;
+            } else {
+                c1[j] = c0[i++];
+            }
+        }
+        bl_likelihood *lk = bl_likelihood_create(m1, 1);
+        for (size_t a = 0; a < k1; a++) {
+            double h = 1e-5, keep = c1[a];
+            c1[a] = keep + h;
+            bl_likelihood_eval(lk, c1, gp);
+            c1[a] = keep - h;
+            bl_likelihood_eval(lk, c1, gm);
+            c1[a] = keep;
+            for (size_t b = 0; b < k1; b++) info[a * k1 + b] = -(gp[b] - gm[b]) / (2 * h);
+        }
+        for (size_t a = 0; a < k1; a++)
+            for (size_t b = 0; b < a; b++) info[a * k1 + b] = info[b * k1 + a] = 0.5 * (info[a * k1 + b] + info[b * k1 + a]);
+        double cond;
+        if (bl_information_inverse(info, k1, cov, &cond) == 1)
+            check_rel(v[0], 1.0 / cov[jg * k1 + jg], 1e-4, "efficient variance = 1 / [I^-1]_gg of the full model");
+        else
+            check_true(0, "full-model information positive definite");
+        bl_likelihood_destroy(lk);
+        free(c1);
+        free(info);
+        free(cov);
+        free(gp);
+        free(gm);
+    }
     double lr = 2 * (r1.log_likelihood - r0.log_likelihood);
     check_true(lr > 4, "planted slope gives a clear likelihood-ratio statistic (%.3f)", lr);
     /* Rao (1948) / Cox & Hinkley (1974): score and LR statistics agree to O(n^-1/2) under local alternatives */
@@ -222,7 +272,8 @@ static void test_dpss_properties(void)
 int main(void)
 {
     test_dpss_properties();
-    test_score_is_derivative();
+    test_score_is_derivative(0);
+    test_score_is_derivative(1);
     test_grid_threads();
     test_score_close_to_lr();
     return harness_summary();
