@@ -232,6 +232,13 @@ static bl_status heat_map(const bl_scan_result *r, size_t t, const char *path, b
     bl_svg_axis_label(p, BL_SVG_X, "window centre (s from the alignment point)");
     bl_svg_axis_label(p, BL_SVG_Y, "frequency (Hz)");
     if (geometric) bl_svg_axis_log(p, BL_SVG_Y);
+    double x_lo, x_hi, y_lo, y_hi, dummy;
+    cell_edges(centre, nw, 0, sp->length / 2, 0, &x_lo, &dummy);
+    cell_edges(centre, nw, nw - 1, sp->length / 2, 0, &dummy, &x_hi);
+    cell_edges(sp->freq, nf, 0, 0.05, geometric, &y_lo, &dummy);
+    cell_edges(sp->freq, nf, nf - 1, 0.05, geometric, &dummy, &y_hi);
+    if (y_lo > 0 || !geometric) bl_svg_axis_range(p, BL_SVG_Y, y_lo, y_hi);
+    bl_svg_axis_range(p, BL_SVG_X, x_lo, x_hi);
     static const char *const names[7] = {"z < -3", "-3 to -2", "-2 to -1", "-1 to 1", "1 to 2", "2 to 3", "z > 3"};
     for (int k = 0; k < 7; k++) {
         size_t m = 0;
