@@ -106,6 +106,19 @@ BL_API const bl_warnings *bl_analysis_warnings(const bl_analysis *a);
 /* Wall time of a step in seconds (0 when it has not run). */
 BL_API double bl_analysis_step_seconds(const bl_analysis *a, bl_step step);
 
+/* ---- scan (docs/scan.md) ---- */
+
+/* Output flag: scan.csv and one heat map per tested parameter (scan_<parameter>[_<level>].svg). */
+enum { BL_OUTPUT_SCAN = 1u << 3 };
+
+/* The time-frequency scan of the study's "scan" block: the null model fitted once, multitaper power of
+ * every cell, score statistics, permutation family-wise error (opt->permutations > 0 overrides the
+ * block's count). Run after bl_analysis_power (its artifact rules decide which trials are kept).
+ * Progress is reported as the "fits" step. */
+BL_API bl_status bl_analysis_scan(bl_analysis *a, bl_error *err);
+/* The scan's summary (grid, correction, the strongest cells); NULL before bl_analysis_scan. */
+BL_API const char *bl_analysis_scan_summary(bl_analysis *a);
+
 #ifdef __cplusplus
 }
 #endif

@@ -9,8 +9,10 @@
 #include "core/textbuf.h"
 #include "report/report.h"
 #include "report/results.h"
+#include "scan/scan.h"
 #include "bl_config.h"
 
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 #ifdef _OPENMP
@@ -23,6 +25,9 @@ static char *joined(const char *dir, const char *name)
     char *p = NULL;
     return bl_path_join(dir, name, &p, NULL) == BL_OK ? p : NULL;
 }
+
+static void scan_free(bl_analysis *a);
+static bl_status write_scan(bl_analysis *a, const char *dir, bl_error *err);
 
 static const char *const step_names[BL_STEP_COUNT] = {"setup", "power", "fits", "goodness", "figures", "report"};
 
@@ -77,6 +82,7 @@ void bl_analysis_close(bl_analysis *a)
 {
     if (!a) return;
     bl_input_hashes_destroy(a->hashes);
+    scan_free(a);
     bl_fit_set_destroy(a->fits);
     bl_power_result_destroy(a->power);
     bl_trials_destroy(a->trials);
@@ -312,6 +318,7 @@ bl_status bl_analysis_write(bl_analysis *a, unsigned outputs, const char *comman
         st = write_fit_tables(a, dir, err);
         a->seconds[BL_STEP_FITS] += bl_clock_seconds() - t;
     }
+    if (!st && (outputs & BL_OUTPUT_SCAN)) st = write_scan(a, dir, err);
     if (!st) st = provenance_begin(a, &prov, err);
     if (!st && (outputs & BL_OUTPUT_REPORT)) st = write_report(a, dir, err);
     if (!st) st = provenance_finish(a, prov, dir, outputs, command, err);
@@ -372,4 +379,58 @@ const bl_warnings *bl_analysis_warnings(const bl_analysis *a) { return &a->warni
 double bl_analysis_step_seconds(const bl_analysis *a, bl_step step)
 {
     return (int)step >= 0 && step < BL_STEP_COUNT ? a->seconds[step] : 0;
+}
+
+/* ---- scan (docs/scan.md) ---- */
+
+static void scan_free(bl_analysis *a)
+{
+    bl_scan_result_destroy(a->scan);
+    free(a->scan_summary);
+    a->scan = NULL;
+    a->scan_summary = NULL;
+}
+
+static void scan_progress(void *user, const char *detail, size_t done, size_t total)
+{
+    say(user, BL_STEP_FITS, detail, done, total);
+}
+
+bl_status bl_analysis_scan(bl_analysis *a, bl_error *err)
+{
+    double t = bl_clock_seconds();
+    if (!a->hashes) {
+        bl_status hs = start_hashing(a, err);
+        if (hs) return hs;
+    }
+    scan_free(a);
+    bl_scan_options so = {a->threads, a->opt.seed, a->opt.permutations > 0 ? a->opt.permutations : SIZE_MAX,
+                          scan_progress, a};
+    bl_status st = bl_scan_run(a->study, a->trials, &so, &a->scan, &a->warnings, err);
+    if (!st) a->seconds[BL_STEP_POWER] += a->scan->seconds_power;
+    a->seconds[BL_STEP_FITS] += bl_clock_seconds() - t - (st ? 0 : a->scan->seconds_power);
+    return st;
+}
+
+const char *bl_analysis_scan_summary(bl_analysis *a)
+{
+    if (!a->scan) return NULL;
+    if (!a->scan_summary) a->scan_summary = bl_scan_summary(a->scan);
+    return a->scan_summary;
+}
+
+static bl_status write_scan(bl_analysis *a, const char *dir, bl_error *err)
+{
+    if (!a->scan) return bl_error_set(err, BL_ERR_INTERNAL, "scan outputs need bl_analysis_scan first");
+    char *path = joined(dir, "scan.csv");
+    if (!path) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    bl_status st = bl_scan_write_csv(a->scan, path, err);
+    free(path);
+    if (!st) st = bl_scan_write_figures(a->scan, dir, err);
+    if (!st && a->scan->n_refits) {
+        if (!(path = joined(dir, "scan_refits.csv"))) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        st = bl_scan_write_refits(a->scan, path, err);
+        free(path);
+    }
+    return st;
 }

@@ -25,6 +25,8 @@ struct bl_analysis {
     double seconds[BL_STEP_COUNT];
     char *fit_summary, *check_summary, *power_summary, *timings;
     bl_input_hashes *hashes;  /* the inputs being hashed in the background, once their list is known */
+    struct bl_scan_result *scan;      /* NULL until bl_analysis_scan */
+    char *scan_summary;
 };
 
 #endif

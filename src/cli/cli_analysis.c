@@ -113,6 +113,7 @@ static bl_status run_steps(const cli_analysis_command *cmd, const cli_job *job, 
     if (cmd->outputs) st = bl_analysis_target(a, job->out_dir, job->force, err);
     if (!st) st = bl_analysis_power(a, err);
     if (!st && cmd->fits) st = bl_analysis_fit(a, err);
+    if (!st && cmd->scans) st = bl_analysis_scan(a, err);
     if (!st && cmd->outputs) st = bl_analysis_write(a, cmd->outputs, cmd->name, err);
     return st;
 }

@@ -36,6 +36,7 @@ typedef struct {
     /* What the command prints on success (not called with --quiet). Returns 0, or -1 when a summary is
      * NULL (memory ran out). */
     int (*print)(bl_analysis *a, const cli_job *job);
+    int scans;             /* run the time-frequency scan (bl_analysis_scan) */
 } cli_analysis_command;
 
 /* Parse, run the steps, print warnings and the result; returns the exit code. */

@@ -29,6 +29,6 @@ static int print(bl_analysis *a, const cli_job *job)
 
 int cmd_check(int argc, char **argv)
 {
-    static const cli_analysis_command cmd = {"check", OPTIONS, 0, 0, 0, help, print};
+    static const cli_analysis_command cmd = {"check", OPTIONS, 0, 0, 0, help, print, 0};
     return cli_analysis_main(&cmd, argc, argv);
 }

@@ -30,6 +30,6 @@ static int print(bl_analysis *a, const cli_job *job)
 
 int cmd_fit(int argc, char **argv)
 {
-    static const cli_analysis_command cmd = {"fit", OPTIONS, 0, 1, BL_OUTPUT_POWER | BL_OUTPUT_FITS, help, print};
+    static const cli_analysis_command cmd = {"fit", OPTIONS, 0, 1, BL_OUTPUT_POWER | BL_OUTPUT_FITS, help, print, 0};
     return cli_analysis_main(&cmd, argc, argv);
 }

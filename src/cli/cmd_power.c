@@ -26,6 +26,6 @@ static int print(bl_analysis *a, const cli_job *job)
 
 int cmd_power(int argc, char **argv)
 {
-    static const cli_analysis_command cmd = {"power", OPTIONS, 1, 0, BL_OUTPUT_POWER, help, print};
+    static const cli_analysis_command cmd = {"power", OPTIONS, 1, 0, BL_OUTPUT_POWER, help, print, 0};
     return cli_analysis_main(&cmd, argc, argv);
 }

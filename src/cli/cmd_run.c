@@ -36,6 +36,6 @@ static int print(bl_analysis *a, const cli_job *job)
 
 int cmd_run(int argc, char **argv)
 {
-    static const cli_analysis_command cmd = {"run", OPTIONS, 0, 1, BL_OUTPUT_ALL, help, print};
+    static const cli_analysis_command cmd = {"run", OPTIONS, 0, 1, BL_OUTPUT_ALL, help, print, 0};
     return cli_analysis_main(&cmd, argc, argv);
 }

@@ -8,5 +8,6 @@ int cmd_fit(int argc, char **argv);
 int cmd_check(int argc, char **argv);
 int cmd_simulate(int argc, char **argv);
 int cmd_predict(int argc, char **argv);
+int cmd_scan(int argc, char **argv);
 
 #endif

@@ -18,6 +18,7 @@ static const struct {
     {"check", cmd_check, "validate the study file and its inputs; print a summary"},
     {"simulate", cmd_simulate, "write a synthetic study with known truth"},
     {"predict", cmd_predict, "choice probabilities, RT quantiles and densities for given parameters"},
+    {"scan", cmd_scan, "test every frequency x time window of power against the model (scan.csv)"},
 };
 
 static void usage(FILE *out)

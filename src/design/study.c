@@ -731,7 +731,7 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;
     }
-    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", NULL};
+    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", "scan", NULL};
     if ((st = check_keys(&c, root, "", keys))) goto fail;
 
     const cJSON *o;
@@ -764,6 +764,11 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
     s->output = resolve_path(s->dir, outname);
     free(outname);
     if (!s->output) {
+        st = nomem(&c);
+        goto fail;
+    }
+    /* the "scan" block is checked by src/scan/scan_spec.c; keep a copy of it */
+    if (get(root, "scan") && !(s->scan_json = cJSON_Duplicate(get(root, "scan"), 1))) {
         st = nomem(&c);
         goto fail;
     }
@@ -887,6 +892,10 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
         }
     }
     cJSON_AddStringToObject(root, "output", s->output);
+    if (s->scan_json) { /* a failed allocation here is counted, and caught just below */
+        cJSON *scan = cJSON_Duplicate(s->scan_json, 1);
+        if (scan && !cJSON_AddItemToObject(root, "scan", scan)) cJSON_Delete(scan);
+    }
     char *txt = bl_json_alloc_failures() != failures_before ? NULL : cJSON_Print(root);
     cJSON_Delete(root);
     /* cJSON_Print allocates with its hooks (malloc by default); hand back a plain malloc'd copy */
@@ -922,5 +931,6 @@ void bl_study_destroy(bl_study *s)
     }
     free(s->models);
     free(s->output);
+    cJSON_Delete(s->scan_json);
     free(s);
 }

@@ -111,6 +111,7 @@ typedef struct bl_study {
     size_t n_models;
 
     char *output;                 /* resolved results folder */
+    struct cJSON *scan_json;      /* a copy of the "scan" block (checked by src/scan/scan_spec.c), or NULL */
 } bl_study;
 
 bl_status bl_study_load(const char *path, bl_study **out, bl_error *err);
