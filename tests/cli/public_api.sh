@@ -63,7 +63,12 @@ int main(int argc, char **argv)
 }
 C
 cp -r "$BL_SOURCE_ROOT/docs/examples/power" "$tmp/ex"
-if cc -std=c11 -Wall -Werror $cflags "$tmp/prog.c" -o "$tmp/prog" $libs 2>"$tmp/e"; then
+sanitize=$(meson introspect "$BL_BUILD_ROOT" --buildoptions | python3 -c \
+    'import json,sys; print([o["value"] for o in json.load(sys.stdin) if o["name"]=="b_sanitize"][0])')
+# A sanitized library needs its runtime loaded first: build the program with the same sanitizers.
+san_flags=""
+[ "$sanitize" != "none" ] && san_flags="-fsanitize=$sanitize"
+if cc $san_flags -std=c11 -Wall -Werror $cflags "$tmp/prog.c" -o "$tmp/prog" $libs 2>"$tmp/e"; then
     pass "a program links against the installed shared library"
     libdir=$(dirname "$(find "$root" -name 'libbandlink.so' | head -1)")
     out=$(LD_LIBRARY_PATH="$libdir" "$tmp/prog" "$tmp/ex/study.json" "$tmp/out" 2>"$tmp/e")
