@@ -98,7 +98,7 @@ struct bl_scenario {
     burst_spec *bursts;
     size_t n_bursts;
     truth_param truth[BL_NPARAM];
-    cJSON *keep, *power, *fit, *models;
+    cJSON *keep, *power, *fit, *models, *scan;
     char *truth_model;
 };
 
@@ -265,6 +265,7 @@ void bl_scenario_destroy(bl_scenario *sc)
     cJSON_Delete(sc->keep);
     cJSON_Delete(sc->power);
     cJSON_Delete(sc->fit);
+    cJSON_Delete(sc->scan);
     cJSON_Delete(sc->models);
     free(sc->truth_model);
     free(sc);
@@ -668,13 +669,15 @@ static bl_status parse_study_block(ctx *c, bl_scenario *sc, const cJSON *root)
     bl_status st = BL_OK;
     const cJSON *sd = item(root, "study");
     if (!sd) return bad(c, "study", "required key is missing");
-    static const char *const dkeys[] = {"keep", "power", "fit", "models", "truth_model", NULL};
+    static const char *const dkeys[] = {"keep", "power", "fit", "models", "truth_model", "scan", NULL};
     if ((st = check_keys(c, sd, "study", dkeys))) return st;
     if (item(sd, "keep") && !(sc->keep = cJSON_Duplicate(item(sd, "keep"), 1)))
         return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
     if (!item(sd, "power")) return bad(c, "study.power", "required key is missing");
     if (!item(sd, "models")) return bad(c, "study.models", "required key is missing");
     if (!(sc->power = cJSON_Duplicate(item(sd, "power"), 1)) || !(sc->models = cJSON_Duplicate(item(sd, "models"), 1)))
+        return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
+    if (item(sd, "scan") && !(sc->scan = cJSON_Duplicate(item(sd, "scan"), 1)))
         return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
     if (item(sd, "fit") && !(sc->fit = cJSON_Duplicate(item(sd, "fit"), 1)))
         return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
@@ -1010,6 +1013,7 @@ static cJSON *study_json(const bl_scenario *sc)
     for (size_t i = 0; i < sc->n_channels; i++) cJSON_AddItemToArray(ch, cJSON_CreateString(sc->channels[i]));
     cJSON_AddItemToObject(root, "power", cJSON_Duplicate(sc->power, 1));
     if (sc->fit) cJSON_AddItemToObject(root, "fit", cJSON_Duplicate(sc->fit, 1));
+    if (sc->scan) cJSON_AddItemToObject(root, "scan", cJSON_Duplicate(sc->scan, 1));
     cJSON_AddItemToObject(root, "models", cJSON_Duplicate(sc->models, 1));
     cJSON_AddStringToObject(root, "output", "results");
     return root;

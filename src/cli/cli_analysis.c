@@ -47,7 +47,10 @@ void cli_analysis_options_help(FILE *out, unsigned o)
                      "                      one is complete\n");
     if (o & CLI_OPT_THREADS)
         fprintf(out, "  --threads N         threads, 1-1024 (default: all cores); results do not depend on it\n");
-    if (o & CLI_OPT_SEED) fprintf(out, "  --seed S            seed of the extra optimiser starts and the permutations (default 1)\n");
+    if (o & CLI_OPT_SEED) fprintf(out, "  --seed S            seed of the optimiser starts and the permutations (default 1)\n");
+    if (o & CLI_OPT_SCAN_PERMUTATIONS)
+        fprintf(out, "  --permutations N    permutations for the family-wise error (default: the scan block's\n"
+                     "                      \"permutations\")\n");
     if (o & CLI_OPT_PERMUTATIONS)
         fprintf(out, "  --permutations N    permutation test of every slope coefficient with N refits (default 0: none)\n");
     if (o & CLI_OPT_TIMINGS) fprintf(out, "  --timings           print the time per step even with --quiet\n");
@@ -89,7 +92,7 @@ static int parse(const cli_analysis_command *cmd, int argc, char **argv, cli_job
             if (missing) return cli_usage_error(name, "option --seed needs a value");
             if (!cli_parse_count(name, "--seed", v, &x)) return CLI_EXIT_USAGE;
             job->opt.seed = x;
-        } else if ((o & CLI_OPT_PERMUTATIONS) &&
+        } else if ((o & (CLI_OPT_PERMUTATIONS | CLI_OPT_SCAN_PERMUTATIONS)) &&
                    ((v = cli_option_value(argc, argv, &i, "--permutations", &missing)) || missing)) {
             if (missing) return cli_usage_error(name, "option --permutations needs a value");
             if (!cli_parse_count(name, "--permutations", v, &x)) return CLI_EXIT_USAGE;

@@ -17,6 +17,7 @@ enum {
     CLI_OPT_PERMUTATIONS = 1u << 4,
     CLI_OPT_MODEL = 1u << 5,
     CLI_OPT_TIMINGS = 1u << 6,
+    CLI_OPT_SCAN_PERMUTATIONS = 1u << 7, /* --permutations as the scan's family-wise permutations */
 };
 
 typedef struct {

@@ -3,7 +3,7 @@
 #include "cli_analysis.h"
 #include "commands.h"
 
-static const unsigned OPTIONS = CLI_OPT_OUT | CLI_OPT_FORCE | CLI_OPT_THREADS | CLI_OPT_SEED | CLI_OPT_PERMUTATIONS | CLI_OPT_TIMINGS;
+static const unsigned OPTIONS = CLI_OPT_OUT | CLI_OPT_FORCE | CLI_OPT_THREADS | CLI_OPT_SEED | CLI_OPT_SCAN_PERMUTATIONS | CLI_OPT_TIMINGS;
 
 static void help(FILE *out)
 {
@@ -14,7 +14,7 @@ static void help(FILE *out)
             "multitaper power of every cell on every trial, and test a slope on each cell's power for every listed\n"
             "parameter with a score statistic; family-wise error by permutation (maximum statistic or cluster\n"
             "mass). Writes scan.csv, scan_<parameter>.svg heat maps, power.csv and provenance.json.\n"
-            "--permutations N overrides the scan block's \"permutations\".\n\n"
+            "\n"
             "options:\n");
     cli_analysis_options_help(out, OPTIONS);
 }

@@ -21,6 +21,7 @@ declare -A opts=(
     [power]="--out --force --threads --timings --quiet --help"
     [check]="--threads --quiet --help"
     [simulate]="--out --seed --threads --force --quiet --help"
+    [scan]="--out --force --threads --seed --permutations --timings --quiet --help"
 )
 for cmd in "${!opts[@]}"; do
     help=$("$BANDLINK" "$cmd" --help)
