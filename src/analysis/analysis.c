@@ -427,6 +427,7 @@ static bl_status write_scan(bl_analysis *a, const char *dir, bl_error *err)
     bl_status st = bl_scan_write_csv(a->scan, path, err);
     free(path);
     if (!st) st = bl_scan_write_figures(a->scan, dir, err);
+    if (!st) st = bl_scan_write_report(a->scan, a->study_path, dir, err);
     if (!st && a->scan->n_refits) {
         if (!(path = joined(dir, "scan_refits.csv"))) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         st = bl_scan_write_refits(a->scan, path, err);

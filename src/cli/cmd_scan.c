@@ -13,7 +13,7 @@ static void help(FILE *out)
             "Scan a grid of frequencies x time windows (the study's \"scan\" block): fit the null model once, measure\n"
             "multitaper power of every cell on every trial, and test a slope on each cell's power for every listed\n"
             "parameter with a score statistic; family-wise error by permutation (maximum statistic or cluster\n"
-            "mass). Writes scan.csv, scan_<parameter>.svg heat maps, power.csv and provenance.json.\n"
+            "mass). Writes scan.csv, scan_<parameter>.svg heat maps, scan_report.html, power.csv and provenance.json.\n"
             "\n"
             "options:\n");
     cli_analysis_options_help(out, OPTIONS);

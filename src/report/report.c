@@ -480,6 +480,39 @@ static void figure_section(FILE *f, const bl_figure_set *figs)
     }
 }
 
+void bl_report_page_begin(FILE *f, const char *title, const char *subject)
+{
+    fputs("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+          "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
+          "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; "
+          "img-src data:\">\n<title>",
+          f);
+    esc(f, title);
+    if (subject) {
+        fputs(": ", f);
+        esc(f, subject);
+    }
+    fprintf(f, "</title>\n<style>%s</style>\n</head>\n<body>\n<h1>", CSS);
+    esc(f, title);
+    fputs("</h1>\n<p class=\"caution\" id=\"caution\"><strong>", f);
+    esc(f, CAUTION);
+    fputs("</strong></p>\n", f);
+}
+
+void bl_report_page_end(FILE *f, const char *version, const char *files)
+{
+    fputs("<hr>\n<p class=\"muted\">Written by bandlink", f);
+    if (version) {
+        fputc(' ', f);
+        esc(f, version);
+    }
+    fputs(". Files beside this page: ", f);
+    esc(f, files);
+    fputs(". ", f);
+    esc(f, CAUTION);
+    fputs("</p>\n</body>\n</html>\n", f);
+}
+
 bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_study *study, const bl_trials *trials,
                           const bl_power_result *power, const bl_fit_set *set, const bl_goodness *g,
                           const bl_figure_set *figs, const bl_warnings *warnings, bl_error *err)
@@ -492,20 +525,9 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
     if (st != BL_OK) return st;
     FILE *f = bl_outfile_stream(o);
     report_text_lost = 0;
-    fputs("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
-          "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
-          "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; "
-          "img-src data:\">\n<title>bandlink report",
-          f);
     const char *sp = job && job->study_path ? job->study_path : study ? study->path : NULL;
-    if (sp) {
-        fputs(": ", f);
-        esc(f, sp);
-    }
-    fprintf(f, "</title>\n<style>%s</style>\n</head>\n<body>\n", CSS);
-    fputs("<h1>bandlink report</h1>\n<p class=\"caution\" id=\"caution\"><strong>", f);
-    esc(f, CAUTION);
-    fputs("</strong></p>\n<nav><a href=\"#job\">Job</a> &#183; <a href=\"#data\">Data</a> &#183; "
+    bl_report_page_begin(f, "bandlink report", sp);
+    fputs("<nav><a href=\"#job\">Job</a> &#183; <a href=\"#data\">Data</a> &#183; "
           "<a href=\"#comparison\">Model comparison</a> &#183; <a href=\"#coefficients\">Coefficients</a> &#183; "
           "<a href=\"#goodness\">Goodness of fit</a> &#183; <a href=\"#figures\">Figures</a></nav>\n",
           f);
@@ -515,16 +537,8 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
     coefficient_section(f, study, set);
     goodness_section(f, set, g);
     figure_section(f, figs);
-    fputs("<hr>\n<p class=\"muted\">Written by bandlink", f);
-    if (job && job->version) {
-        fputc(' ', f);
-        esc(f, job->version);
-    }
-    fputs(". Files beside this page: power.csv, fits.json, comparison.csv, trials.csv, fit_quantiles.csv, "
-          "figures/. ",
-          f);
-    esc(f, CAUTION);
-    fputs("</p>\n</body>\n</html>\n", f);
+    bl_report_page_end(f, job ? job->version : NULL,
+                       "power.csv, fits.json, comparison.csv, trials.csv, fit_quantiles.csv, figures/");
     if (report_text_lost) {
         bl_outfile_abort(o);
         return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory writing the report", path);

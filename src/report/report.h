@@ -15,6 +15,7 @@
 #include "design/trials.h"
 
 #include <stddef.h>
+#include <stdio.h>
 
 /* What the job was; every field may be NULL / 0 and is then left out. */
 typedef struct {
@@ -46,6 +47,12 @@ bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, con
                                   const bl_trials *trials, const bl_power_result *power,
                                   const bl_fit_set *set, const bl_warnings *warnings, int threads,
                                   double seconds[3], bl_error *err);
+
+/* The frame of every bandlink page (report.html, the scan's page): doctype, styles, a heading with `title`
+ * (`subject`, e.g. the study file, may be NULL, and goes into the window title) and the research-use caution;
+ * then the footer naming the version and the files beside the page. */
+void bl_report_page_begin(FILE *f, const char *title, const char *subject);
+void bl_report_page_end(FILE *f, const char *version, const char *files);
 
 /* The research-use caution shown in the report (and available to other outputs). */
 const char *bl_report_caution(void);

@@ -57,6 +57,9 @@ bl_status bl_scan_write_csv(const bl_scan_result *r, const char *path, bl_error 
 bl_status bl_scan_write_refits(const bl_scan_result *r, const char *path, bl_error *err);
 /* One heat map per tested parameter (and level): scan_<parameter>[_<level>].svg in dir. */
 bl_status bl_scan_write_figures(const bl_scan_result *r, const char *dir, bl_error *err);
+/* scan_report.html in dir, beside the heat maps (written first by bl_scan_write_figures): the caution, the
+ * summary, the cells significant after correction, the heat maps inline. */
+bl_status bl_scan_write_report(const bl_scan_result *r, const char *study_path, const char *dir, bl_error *err);
 /* The summary: grid, permutations, correction, the strongest cells. Caller frees; NULL when memory ran out. */
 char *bl_scan_summary(const bl_scan_result *r);
 

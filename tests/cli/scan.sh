@@ -50,6 +50,15 @@ for f in scan_threshold_rich.svg scan_threshold_lean.svg scan_drift.svg power.cs
     [ -s "$tmp/ok/r1/$f" ] && pass "$f written" || bad "$f missing"
 done
 grep -q '"scan"' "$tmp/ok/r1/provenance.json" && pass "provenance records the scan block" || bad "no scan block in the provenance"
+# The scan's page: the caution, the summary, every heat map inline, the significant cells as a table whose rows
+# are exactly the cells of scan.csv with family-wise p <= 0.05.
+page="$tmp/ok/r1/scan_report.html"
+[ -s "$page" ] && grep -q 'not a medical device' "$page" && [ "$(grep -c '<svg' "$page")" -eq 3 ] \
+    && pass "scan_report.html: caution and the 3 heat maps inline" || bad "scan_report.html missing or incomplete"
+n_sig=$(awk -F, 'NR > 1 && $11 != "NA" && $11 <= 0.05' "$csv" | wc -l)
+n_rows=$(sed -n '/id="significant"/,/<\/table>/p' "$page" | grep -c '<tr><td')
+[ "$n_rows" -eq "$(( n_sig < 200 ? n_sig : 200 ))" ] && pass "scan_report.html lists the $n_sig significant cells of scan.csv" \
+    || bad "scan_report.html: $n_rows rows, scan.csv has $n_sig significant cells"
 "$BANDLINK" scan "$tmp/ok/study.json" --out "$tmp/ok/r2" --threads 2 --quiet 2>/dev/null
 cmp -s "$csv" "$tmp/ok/r2/scan.csv" && pass "1 and 2 threads: identical scan.csv" || bad "scan.csv differs between 1 and 2 threads"
 "$BANDLINK" scan "$tmp/ok/study.json" --out "$tmp/ok/r3" --seed 9 --quiet 2>/dev/null
