@@ -17,7 +17,8 @@
 #include <string.h>
 
 /* Truth of a simulation: threshold = a[context] + a_slope[context] * theta,
- * drift = v[difficulty] + v_slope * beta, nondecision t0, start 0.5. */
+ * drift = v[difficulty] + v_slope * beta, nondecision t0, start 0.5. The optional per-participant
+ * offsets (n_participants entries each, NULL: none) make participants differ as in real studies. */
 typedef struct {
     size_t n, n_participants;
     double a[2], a_slope[2];
@@ -25,6 +26,7 @@ typedef struct {
     double t0;
     int stimulus;          /* 1: stimulus coding with random stimuli */
     double v_step;         /* participant p (0-based) adds p * v_step to drift */
+    const double *a_offset, *v_offset, *t0_offset; /* participant p adds [p] to threshold, drift, t0 */
 } sim_truth;
 
 static const char *sim_contexts[2] __attribute__((unused)) = {"rich", "lean"};
@@ -78,13 +80,13 @@ static inline bl_trials *sim_trials(const sim_truth *tr, unsigned long seed)
         t->trial_label[i] = sim_dup(b);
         bl_wiener_params w;
         bl_wiener_params_default(&w);
-        w.value[BL_THRESHOLD] = tr->a[c] + tr->a_slope[c] * theta[i];
-        double v = tr->v[d] + tr->v_slope * beta[i] + (double)p * tr->v_step;
+        w.value[BL_THRESHOLD] = tr->a[c] + tr->a_slope[c] * theta[i] + (tr->a_offset ? tr->a_offset[p] : 0);
+        double v = tr->v[d] + tr->v_slope * beta[i] + (double)p * tr->v_step + (tr->v_offset ? tr->v_offset[p] : 0);
         int sign = 1;
         if (tr->stimulus) sign = gsl_rng_uniform(rng) < 0.5 ? -1 : 1;
         t->drift_sign[i] = sign;
         w.value[BL_DRIFT] = sign * v;
-        w.value[BL_NONDECISION] = tr->t0;
+        w.value[BL_NONDECISION] = tr->t0 + (tr->t0_offset ? tr->t0_offset[p] : 0);
         w.value[BL_START] = 0.5;
         int up;
         double rt;
