@@ -17,6 +17,8 @@ static const int gh_sizes[] = {12, 20, 32, 48, 64, 96};
 #define GH_COUNT ((int)(sizeof gh_sizes / sizeof gh_sizes[0]))
 static double gh_x[GH_COUNT][96], gh_w[GH_COUNT][96];
 static int tables_ok;
+/* Gauss-Laguerre (weight e^{-y} on [0, inf)), BLW_GLAG_N nodes, weights as logs */
+static double glag_y[BLW_GLAG_N], glag_lw[BLW_GLAG_N];
 
 static pthread_once_t once = PTHREAD_ONCE_INIT;
 
@@ -57,7 +59,26 @@ static void build_tables(void)
         }
         gsl_integration_fixed_free(ws);
     }
+    gsl_integration_fixed_workspace *lg =
+        gsl_integration_fixed_alloc(gsl_integration_fixed_laguerre, BLW_GLAG_N, 0.0, 1.0, 0.0, 0.0);
+    if (lg) {
+        const double *xs = gsl_integration_fixed_nodes(lg), *ws_ = gsl_integration_fixed_weights(lg);
+        for (int i = 0; i < BLW_GLAG_N; i++) {
+            glag_y[i] = xs[i];
+            glag_lw[i] = log(ws_[i]);
+        }
+        gsl_integration_fixed_free(lg);
+    } else {
+        ok = 0;
+    }
     tables_ok = ok;
+}
+
+void blw_gauss_laguerre(const double **y, const double **log_wt)
+{
+    pthread_once(&once, build_tables);
+    *y = glag_y;
+    *log_wt = glag_lw;
 }
 
 void blw_gauss_legendre(int n, const double **x, const double **wt)
