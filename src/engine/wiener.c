@@ -364,46 +364,65 @@ bl_status bl_wiener_log_density_grad(const bl_wiener_params *p, double rt, int u
     return blw_log_density_full(p, rt, upper, log_density, grad, err);
 }
 
+/* log of the drift integrand of P(boundary): normal log-weight plus log P at drift v + sv x. */
+static double drift_log_integrand(double x, double v, double a, double w, double sv, int upper)
+{
+    return -0.5 * x * x + blw_log_p(v + sv * x, a, w, upper);
+}
+
 /* P(boundary) and E[T | boundary] averaged over the drift_sd normal and the start_range uniform.
- * Drift: composite Gauss-Legendre over x in [-9, 9] (nu = v + sv x, normal weight), panels no wider
- * than the distance pi/(a sv) of P's poles from the real axis; start: Gauss-Legendre, 24 nodes.
- * Not a hot path (used for predictions), so it favours accuracy (checked against GSL qagi to 1e-9). */
+ * Drift: composite Gauss-Legendre over x (nu = v + sv x, normal weight) on [-9, 9] joined with
+ * [x* - 9, x* + 9], x* the maximum of -x^2/2 + log P(v + sv x) (for a rare boundary the integrand peaks
+ * near x* = 2a(1-w)sv, far beyond 9 SD); panels no wider than the distance pi/(a sv) of P's poles from
+ * the real axis; start: Gauss-Legendre, 24 nodes. Summed in logs relative to the peak, so probabilities
+ * of 1e-300 keep their digits. Not a hot path (used for predictions), so it favours accuracy
+ * (checked against GSL qagi to 1e-9 and against mpmath). */
 static void moments_var(double a, double v, double w, double sv, double sz, int upper, double *prob,
                         double *mean_t)
 {
     const double *gx, *gw, *lx, *lw;
     static const double one = 1, zero = 0;
     int panels = 1, ng = 1, nl = 1;
-    double half = 0;
+    double half = 0, xlo = 0, href = blw_log_p(v, a, w, upper);
     gx = lx = &zero;
     gw = lw = &one;
     if (sv > 0) {
+        /* the log-integrand is concave in x: golden-section search for its maximum on [-60, 60] */
+        double l = -60, r = 60, g = 0.6180339887498949;
+        for (int it = 0; it < 90; it++) {
+            double m1 = r - g * (r - l), m2 = l + g * (r - l);
+            if (drift_log_integrand(m1, v, a, w, sv, upper) < drift_log_integrand(m2, v, a, w, sv, upper)) l = m1;
+            else r = m2;
+        }
+        double xs = 0.5 * (l + r);
+        href = drift_log_integrand(xs, v, a, w, sv, upper);
+        xlo = fmin(-9, xs - 9);
+        double xhi = fmax(9, xs + 9);
         double width = fmin(1.5, BLW_PI / (a * sv));
-        panels = (int)ceil(18 / width);
-        if (panels > 400) panels = 400;
-        half = 9.0 / panels;
+        panels = (int)ceil((xhi - xlo) / width);
+        if (panels > 800) panels = 800;
+        half = 0.5 * (xhi - xlo) / panels;
         blw_gauss_legendre(ng = 16, &gx, &gw);
     }
     if (sz > 0) blw_gauss_legendre(nl = 24, &lx, &lw);
-    /* Weighted in logs relative to the plain-parameter probability so tiny probabilities work. */
-    double ref = blw_log_p(v, a, w, upper);
     double P = 0, M = 0;
     for (int pi = 0; pi < panels; pi++) {
-        double centre = sv > 0 ? -9 + (2 * pi + 1) * half : 0;
+        double centre = sv > 0 ? xlo + (2 * pi + 1) * half : 0;
         for (int i = 0; i < ng; i++) {
             double xi = centre + half * gx[i];
-            double wi = sv > 0 ? gw[i] * 2 * half * exp(-0.5 * xi * xi) * 0.39894228040143267794 : 1;
+            /* normal weight in logs, relative to the peak href */
+            double lwi = sv > 0 ? log(gw[i] * 2 * half * 0.39894228040143267794) - 0.5 * xi * xi : 0;
             double vi = v + sv * xi;
             for (int j = 0; j < nl; j++) {
                 double wj = w + 0.5 * sz * lx[j];
-                double pij = wi * lw[j] * exp(blw_log_p(vi, a, wj, upper) - ref);
+                double pij = lw[j] * exp(lwi + blw_log_p(vi, a, wj, upper) - href);
                 double mij = blw_mean_t(vi, a, wj, upper);
                 P += pij;
                 M += pij * mij;
             }
         }
     }
-    if (prob) *prob = exp(ref) * P;
+    if (prob) *prob = exp(href) * P;
     if (mean_t) *mean_t = M / P;
 }
 

@@ -500,55 +500,74 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
     return BL_OK;
 }
 
+/* start_range: composite Gauss-Legendre over w' in [w - sz/2, w + sz/2] (panels of equal width, weights
+ * summing to 1). Node count from blw_gl_nodes_start_range at the earliest decision time of the window
+ * (the integrand's sharpest feature) and from the exponential factor exp(-v a w' + sv^2 a^2 w'^2/(2D))
+ * across the range; panels are added until a panel needs at most 40 nodes. */
+static bl_status dens_start_range(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], t0 = x[BL_NONDECISION], w = x[BL_START], sz = x[BL_START_RANGE];
+    double v = x[BL_DRIFT], sv = x[BL_DRIFT_SD];
+    double stw = x[BL_NONDECISION_RANGE], lo = rt - t0 - 0.5 * stw, hi = rt - t0 + 0.5 * stw;
+    double tmin = stw > 0 ? (lo > 0 ? fmax(lo, fmin(stw, 0.5 * (rt - t0))) : hi) : rt - t0;
+    if (!(tmin > 0)) tmin = 1e-3 * a * a;
+    double D = 1 + sv * sv * tmin;
+    double slope = fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / D; /* |d exponent / dw'| */
+    int P = 1, n;
+    while ((n = blw_gl_nodes_start_range(sz / P, tmin / (a * a), 0.5 * sz / P * slope)) > 40 && P < 64) P++;
+    const double *gx, *gw;
+    blw_gauss_legendre(n, &gx, &gw);
+    double mx = -INFINITY, S = 0, G[BL_NPARAM] = {0};
+    for (int j = 0; j < P; j++) {
+        double lfi[BLW_GL_MAX], gi[BLW_GL_MAX][BL_NPARAM], off = (j + 0.5) / P - 0.5;
+        double pmx = -INFINITY;
+        for (int i = 0; i < n; i++) {
+            double dz = off + 0.5 * gx[i] / P; /* w' = w + sz dz */
+            bl_status s = dens_one_start(p, rt, w + sz * dz, upper, &lfi[i], gd ? gi[i] : NULL);
+            if (s) return s;
+            if (gd) gi[i][BL_START_RANGE] = gi[i][BL_START] * dz;
+            if (lfi[i] > pmx) pmx = lfi[i];
+        }
+        if (pmx == -INFINITY) continue;
+        if (pmx > mx) {
+            double r = mx == -INFINITY ? 0 : exp(mx - pmx);
+            S *= r;
+            for (int k = 0; k < BL_NPARAM; k++) G[k] *= r;
+            mx = pmx;
+        }
+        for (int i = 0; i < n; i++) {
+            double e = gw[i] / P * exp(lfi[i] - mx);
+            S += e;
+            if (gd)
+                for (int k = 0; k < BL_NPARAM; k++) G[k] += e * gi[i][k];
+        }
+    }
+    if (mx == -INFINITY) {
+        *lfd = -INFINITY;
+        if (gd)
+            for (int k = 0; k < BL_NPARAM; k++) gd[k] = 0;
+        return BL_OK;
+    }
+    *lfd = mx + log(S);
+    if (gd)
+        for (int k = 0; k < BL_NPARAM; k++) gd[k] = G[k] / S;
+    return BL_OK;
+}
+
 bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld, double *grad,
                                bl_error *err)
 {
     if (!blw_tables_ok()) return bl_error_set(err, BL_ERR_NOMEM, "cannot build the quadrature tables");
     const double *x = p->value;
-    double a = x[BL_THRESHOLD], t0 = x[BL_NONDECISION], w = x[BL_START], sz = x[BL_START_RANGE];
+    double w = x[BL_START], sz = x[BL_START_RANGE];
     double p0 = x[BL_CONTAMINATION];
     double lfd, gd[BL_NPARAM];
     bl_status s;
-    if (sz == 0) {
+    if (sz == 0)
         s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);
-    } else {
-        /* Gauss-Legendre over w' in [w - sz/2, w + sz/2]; node count from the earliest decision
-         * time in the window (the integrand's sharpest feature). */
-        /* with nondecision_range the integrand is a CDF difference, smooth across the window:
-         * half its middle sets the scale (verified to 1e-6 with tests/test_wiener_variability.c) */
-        double stw = x[BL_NONDECISION_RANGE], lo = rt - t0 - 0.5 * stw, hi = rt - t0 + 0.5 * stw;
-        double tmin = stw > 0 ? (lo > 0 ? fmax(lo, fmin(stw, 0.5 * (rt - t0))) : hi) : rt - t0;
-        if (!(tmin > 0)) tmin = 1e-3 * a * a;
-        const double *gx, *gw;
-        int n = blw_gl_nodes_start_range(sz, tmin / (a * a));
-        blw_gauss_legendre(n, &gx, &gw);
-        double lfi[BLW_GL_MAX], gi[BLW_GL_MAX][BL_NPARAM];
-        double mx = -INFINITY;
-        s = BL_OK;
-        for (int i = 0; i < n && !s; i++) {
-            s = dens_one_start(p, rt, w + 0.5 * sz * gx[i], upper, &lfi[i], grad ? gi[i] : NULL);
-            if (lfi[i] > mx) mx = lfi[i];
-        }
-        if (!s) {
-            if (mx == -INFINITY) {
-                lfd = -INFINITY;
-                for (int j = 0; j < BL_NPARAM; j++) gd[j] = 0;
-            } else {
-                double S = 0, G[BL_NPARAM] = {0};
-                for (int i = 0; i < n; i++) {
-                    double e = gw[i] * exp(lfi[i] - mx);
-                    S += e;
-                    if (grad) {
-                        for (int j = 0; j < BL_NPARAM; j++) G[j] += e * gi[i][j];
-                        G[BL_START_RANGE] += e * gi[i][BL_START] * 0.5 * gx[i];
-                    }
-                }
-                lfd = mx + log(S);
-                if (grad)
-                    for (int j = 0; j < BL_NPARAM; j++) gd[j] = G[j] / S;
-            }
-        }
-    }
+    else
+        s = dens_start_range(p, rt, upper, &lfd, grad ? gd : NULL);
     if (s) return bl_error_set(err, s, "Wiener CDF series did not converge at rt %g", rt);
     double lo = p->contamination_lo, hi = p->contamination_hi;
     double c = (lo < hi && rt >= lo && rt <= hi) ? 0.5 / (hi - lo) : 0;
@@ -597,7 +616,7 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
     lw = hw = &one;
     if (sz > 0) {
         /* twice the density's rule: the CDF feeds quantiles, where accuracy matters more than speed */
-        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a));
+        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a), 0.5 * sz * (fabs(v * a) + sv * sv * a * a));
         if (nl > BLW_GL_MAX) nl = BLW_GL_MAX;
         blw_gauss_legendre(nl, &lx, &lw);
     }

@@ -73,7 +73,9 @@ void blw_gauss_laguerre(const double **y, const double **log_wt);
 int blw_tables_ok(void);
 
 /* Node counts chosen from the parameters (docs/methods.md explains how they were verified). */
-int blw_gl_nodes_start_range(double sz, double u);
+/* Gauss-Legendre nodes over start_range sz at u = t/a^2, with e_z = (sz/2) |d/dw' of the density's
+ * exponential factor| (the variation of exp(-v a w' + ...) across the range); capped at BLW_GL_MAX. */
+int blw_gl_nodes_start_range(double sz, double u, double e_z);
 int blw_gh_nodes_drift_sd(double sv, double a, double t);
 
 /* log(exp(x) + exp(y)) and log(exp(x) - exp(y)) for x >= y. */

@@ -107,12 +107,13 @@ int blw_tables_ok(void)
     return tables_ok;
 }
 
-int blw_gl_nodes_start_range(double sz, double u)
+int blw_gl_nodes_start_range(double sz, double u, double e_z)
 {
-    /* Fitted to the minimum node counts for 1e-7 relative error over a grid (docs/methods.md):
-     * about 3 + 4.5 sz at large u, growing like sqrt(sz/u) and then sz/u as u -> 0. */
+    /* Fitted to the minimum node counts for 1e-9 relative error over a grid (docs/methods.md):
+     * about 3 + 4.5 sz at large u, growing like sqrt(sz/u) and then sz/u as u -> 0, plus a term for
+     * the exponential factor exp(-v a w') across the range (a |v| sz = 27 needs ~20 more nodes). */
     double r = sz / u;
-    double n = fmax(3 + 4.5 * sz, 4 + 1.1 * sqrt(r) + 0.03 * r);
+    double n = fmax(3 + 4.5 * sz, 4 + 1.1 * sqrt(r) + 0.03 * r) + 0.5 + 0.5 * sqrt(e_z) + 0.5 * e_z;
     return n >= BLW_GL_MAX ? BLW_GL_MAX : (int)ceil(n);
 }
 
