@@ -251,6 +251,104 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
     return lf;
 }
 
+/* ---- tensor Gauss sums in the large-time range ------------------------------------------------- */
+
+/* Sum over t nodes (tt[i], weights twt[i]) and start nodes (w + sz dz[j], weights wwt[j]) of the
+ * density at one boundary, all at u = t/a^2 >= 0.25, where the five-term large-time series of
+ * large_time() is exact to 1e-15 relative. The series factorises: exp(-(k^2-1)q) depends on t only and
+ * sin(k pi w'), cos(k pi w') on the start only, and without drift_sd the exponential prefactor splits
+ * into exp(-v a w') exp(-v^2 t/2); so a point costs a few multiply-adds (plus one exp with drift_sd)
+ * instead of a full log-density. Returns log of the sum; g (optional) receives the f-weighted means
+ * of d log f / d(a, v, w, sv, sz), of d log f / dt and of (d log f / dt) tx[i] (tx may be NULL). */
+double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
+                      const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
+                      double g[BLW_GRID_NG])
+{
+    enum { NT = 64 + 2, NW = 40 };
+    if (nt > NT || nw > NW) return NAN;
+    double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
+    double ek[NT][5], qt[NT], et[NT], rs[NT];
+    double Wj[NW], sk[NW][5], ck[NW][5], ew[NW];
+    /* reference: the exponent at the window centre and the user's start, so every factor stays O(e^(|v| a sz)) */
+    double tref = tt[nt / 2], Wref = upper ? 1 - w : w;
+    for (int i = 0; i < nt; i++) {
+        double q = 4.934802200544679309 * tt[i] / a2, E = exp(-q), E2 = E * E, E4 = E2 * E2, E8 = E4 * E4;
+        ek[i][0] = 1;
+        ek[i][1] = E2 * E;
+        ek[i][2] = E8;
+        ek[i][3] = E8 * E4 * E2 * E;
+        ek[i][4] = E8 * E8 * E8;
+        qt[i] = q;
+        rs[i] = sqrt((1 + s2 * tref) / (1 + s2 * tt[i])); /* D^(-1/2) relative to the reference */
+        /* sv = 0: the t-part of the prefactor, relative to the reference time */
+        et[i] = sv == 0 ? twt[i] * exp(-(q - 4.934802200544679309 * tref / a2) - 0.5 * vv * vv * (tt[i] - tref)) : twt[i];
+    }
+    for (int j = 0; j < nw; j++) {
+        double wp = w + sz * dz[j];
+        double W = upper ? 1 - wp : wp, Wc = upper ? wp : 1 - wp;
+        double s1, c1;
+        blw_sincospi(W < 0.5 ? W : Wc, &s1, &c1);
+        if (W > 0.5) c1 = -c1;
+        double tc = 2 * c1;
+        sk[j][0] = s1;
+        ck[j][0] = c1;
+        sk[j][1] = tc * s1;
+        ck[j][1] = tc * c1 - 1;
+        for (int k = 2; k < 5; k++) {
+            sk[j][k] = tc * sk[j][k - 1] - sk[j][k - 2];
+            ck[j][k] = tc * ck[j][k - 1] - ck[j][k - 2];
+        }
+        Wj[j] = W;
+        ew[j] = sv == 0 ? wwt[j] * exp(-vv * a * (W - Wref)) : wwt[j];
+    }
+    double S = 0, G[BLW_GRID_NG] = {0};
+    double Dref = 1 + s2 * tref;
+    double bexp = (s2 * a2 * Wref * Wref - 2 * vv * a * Wref - vv * vv * tref) / (2 * Dref) -
+                  4.934802200544679309 * tref / a2;
+    for (int i = 0; i < nt; i++) {
+        double t = tt[i], D = 1 + s2 * t, iD = 1 / D;
+        for (int j = 0; j < nw; j++) {
+            double W = Wj[j];
+            double ser = 0, s3 = 0, sc = 0;
+            for (int k = 0; k < 5; k++) {
+                double kk = k + 1, e = ek[i][k];
+                ser += kk * sk[j][k] * e;
+                if (g) {
+                    s3 += kk * kk * kk * sk[j][k] * e;
+                    sc += kk * kk * ck[j][k] * e;
+                }
+            }
+            double pre;
+            if (sv == 0) pre = et[i] * ew[j];
+            else
+                pre = twt[i] * wwt[j] * rs[i] *
+                      exp((s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t) * 0.5 * iD - qt[i] - bexp);
+            double e = pre * ser;
+            S += e;
+            if (g) {
+                double Lu = -4.934802200544679309 * s3 / ser, Lw = BLW_PI * sc / ser;
+                double m = a * W + vv * t, N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t;
+                double gw_ = sg * ((s2 * a2 * W - vv * a) * iD + Lw); /* d/dw' in the user's orientation */
+                double gt = -vv * vv * 0.5 * iD - s2 * N * 0.5 * iD * iD - s2 * 0.5 * iD + Lu / a2;
+                G[0] += e * ((s2 * a * W * W - vv * W) * iD - 2 / a - (2 * t / (a2 * a)) * Lu);
+                G[1] += e * (-sg * m * iD);
+                G[2] += e * gw_;
+                G[3] += e * sv * (m * m * iD * iD - t * iD);
+                G[4] += e * gw_ * dz[j];
+                G[5] += e * gt;
+                if (tx) G[6] += e * gt * tx[i];
+            }
+        }
+    }
+    if (!(S > 0)) return -INFINITY;
+    if (g)
+        for (int k = 0; k < BLW_GRID_NG; k++) g[k] = G[k] / S;
+    /* undo the reference: sv = 0 used exp(-q - v^2 t/2 - v a W) relative to the reference point */
+    double lref = sv == 0 ? -vv * a * Wref - 0.5 * vv * vv * tref - 4.934802200544679309 * tref / a2
+                          : bexp - 0.5 * log(Dref);
+    return lref + log(BLW_PI * S / a2);
+}
+
 /* ---- boundary probabilities and moments --------------------------------------------------------- */
 
 /* wc = 1 - w exactly (see log_dens_lo_c) */

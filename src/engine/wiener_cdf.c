@@ -484,6 +484,27 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
         *lf = -INFINITY;
         return BL_OK;
     }
+    if (sv == 0 && lo > 0) {
+        /* without drift_sd the window integral is the CDF difference F(hi) - F(lo) (two series instead
+         * of a Gauss rule); taken only when it keeps its digits: F(hi) < 1e3 (F(hi) - F(lo)) */
+        double lFh, lFl, dh[3], dl[3];
+        bl_status s = g ? blw_log_cdf_grad(hi, v, a, w, upper, &lFh, dh) : blw_log_cdf(hi, v, a, w, upper, &lFh, NULL);
+        if (!s) s = g ? blw_log_cdf_grad(lo, v, a, w, upper, &lFl, dl) : blw_log_cdf(lo, v, a, w, upper, &lFl, NULL);
+        double ld = s ? -INFINITY : blw_logsubexp(lFh, lFl);
+        if (ld > -INFINITY && lFh - ld < 6.9) {
+            *lf = ld - log(hi - lo);
+            if (!g) return BL_OK;
+            double rh = exp(lFh - ld), rl = exp(lFl - ld);
+            g[BL_THRESHOLD] = rh * dh[0] - rl * dl[0];
+            g[BL_DRIFT] = rh * dh[1] - rl * dl[1];
+            g[BL_START] = rh * dh[2] - rl * dl[2];
+            double fh = exp(blw_log_dens(hi, v, a, w, 0, upper, NULL) - ld);
+            double fl = exp(blw_log_dens(lo, v, a, w, 0, upper, NULL) - ld);
+            g[BL_NONDECISION] = fl - fh;
+            g[BL_NONDECISION_RANGE] = 0.5 * (fh + fl) - 1 / st;
+            return BL_OK;
+        }
+    }
     double lI = window_integral(lo, hi, v, a, w, sv, upper, g ? g5 : NULL);
     /* the average over the window as represented (for st ~ 1e-9 s, hi - lo differs from st in the 8th digit) */
     *lf = lI - log(lo > 0 ? hi - lo : st);
@@ -555,6 +576,66 @@ static bl_status dens_start_range(const bl_wiener_params *p, double rt, int uppe
     return BL_OK;
 }
 
+/* start_range and/or nondecision_range with the whole window of decision times in the large-time range
+ * (u >= 0.25): one tensor Gauss sum (blw_grid_large), the same node rules as the general path.
+ * Returns 0 (caller takes the general path) when the window leaves that range or needs panels. */
+static int dens_grid_large(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], w = x[BL_START], sv = x[BL_DRIFT_SD];
+    double sz = x[BL_START_RANGE], st = x[BL_NONDECISION_RANGE];
+    double c = rt - t0, lo = c - 0.5 * st, hi = c + 0.5 * st;
+    if (!(lo >= BLW_U_SWITCH * a * a) || lo < 0.5 * hi) return 0;
+    double tt[BLW_GL_MAX], twt[BLW_GL_MAX], tx[BLW_GL_MAX], dz[BLW_GL_MAX];
+    const double *gx, *gw, *zx, *zw;
+    int nt = 1, nw = 1;
+    static const double one = 1, zero = 0;
+    zw = &one;
+    zx = &zero;
+    tt[0] = c;
+    twt[0] = 1;
+    tx[0] = 0;
+    dz[0] = 0;
+    if (st > 0) {
+        wparams P = {v, a, w, sv, upper ? -v : v, upper ? a * (1 - w) : a * w, upper};
+        double h = 0.5 * st;
+        double E = h * fmax(fabs(slope_proxy(lo, P.vv, a, P.z, sv)), fabs(slope_proxy(hi, P.vv, a, P.z, sv)));
+        double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
+        if (nf > 40) return 0;
+        nt = (int)ceil(nf);
+        blw_gauss_legendre(nt, &gx, &gw);
+        for (int i = 0; i < nt; i++) {
+            tt[i] = c + h * gx[i];
+            twt[i] = gw[i];
+            tx[i] = 0.5 * gx[i];
+        }
+    }
+    if (sz > 0) {
+        double D = 1 + sv * sv * lo;
+        double slope = fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / D;
+        nw = blw_gl_nodes_start_range(sz, lo / (a * a), 0.5 * sz * slope);
+        if (nw > 40) return 0;
+        blw_gauss_legendre(nw, &zx, &zw);
+        for (int j = 0; j < nw; j++) dz[j] = 0.5 * zx[j];
+    }
+    double g[BLW_GRID_NG];
+    double l = blw_grid_large(v, a, w, sv, sz, upper, nt, tt, twt, tx, nw, dz, zw, gd ? g : NULL);
+    if (isnan(l)) return 0;
+    *lfd = l;
+    if (gd) {
+        for (int k = 0; k < BL_NPARAM; k++) gd[k] = 0;
+        if (l == -INFINITY) return 1;
+        gd[BL_THRESHOLD] = g[0];
+        gd[BL_DRIFT] = g[1];
+        gd[BL_START] = g[2];
+        gd[BL_DRIFT_SD] = g[3];
+        gd[BL_START_RANGE] = sz > 0 ? g[4] : 0;
+        gd[BL_NONDECISION] = -g[5];
+        gd[BL_NONDECISION_RANGE] = st > 0 ? g[6] : 0;
+    }
+    return 1;
+}
+
 bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld, double *grad,
                                bl_error *err)
 {
@@ -564,7 +645,9 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
     double p0 = x[BL_CONTAMINATION];
     double lfd, gd[BL_NPARAM];
     bl_status s;
-    if (sz == 0)
+    if (dens_grid_large(p, rt, upper, &lfd, grad ? gd : NULL))
+        s = BL_OK;
+    else if (sz == 0)
         s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);
     else
         s = dens_start_range(p, rt, upper, &lfd, grad ? gd : NULL);

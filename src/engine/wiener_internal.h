@@ -38,6 +38,13 @@ double blw_log_dens_lo(double t, double v, double a, double w, double sv, double
 /* Same for a boundary (upper != 0: upper), derivatives mirrored back. */
 double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g);
 
+/* Tensor Gauss sums of the density over decision times and starts, all in the large-time range
+ * (t/a^2 >= 0.25); see wiener.c. Node counts at most 66 (times) and 40 (starts); NAN beyond. */
+enum { BLW_GRID_NG = 7 };
+double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
+                      const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
+                      double g[BLW_GRID_NG]);
+
 /* log P(lower) and log P(boundary) without variability; stable for any v*a. */
 double blw_log_p_lo(double v, double a, double w);
 double blw_log_p(double v, double a, double w, int upper);
