@@ -349,6 +349,54 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
     return lref + log(BLW_PI * S / a2);
 }
 
+/* Weighted sum of the density at one boundary over a list of points (t[i], start w + sz dz[i],
+ * weight wt[i]), in logs, one pass relative to the running maximum. Per point: small_time() or
+ * large_time() and one exp, no log. The sum is merged into acc (log-sum state; see wiener_internal.h);
+ * g sums (when acc->grad) are the weighted d log f / d(a, v, w, sv, sz, t) and (d log f/dt) tx[i]. */
+void blw_point_sum(double v, double a, double w, double sv, double sz, int upper, int n, const double *t,
+                   const double *dz, const double *wt, const double *tx, blw_acc *acc)
+{
+    double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
+    for (int i = 0; i < n; i++) {
+        double ti = t[i], u = ti / a2, D = 1 + s2 * ti, iD = 1 / D;
+        double wp = w + sz * dz[i];
+        double W = upper ? 1 - wp : wp, Wc = upper ? wp : 1 - wp;
+        double Lu = 0, Lw = 0, E, R;
+        double N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * ti;
+        if (u < BLW_U_SWITCH) {
+            double S0 = small_time(u, a2 / ti, W, Wc, BL_WIENER_EPS, acc->grad, &Lu, &Lw);
+            E = N * 0.5 * iD - 0.5 * W * W / u;
+            R = wt[i] * a / (ti * sqrt(ti * D)) * 0.39894228040143267794 * S0;
+        } else {
+            double S = large_time(u, W, Wc, acc->grad, &Lu, &Lw);
+            E = N * 0.5 * iD - 4.934802200544679309 * u;
+            R = wt[i] * BLW_PI / (a2 * sqrt(D)) * S;
+        }
+        if (!(R > 0)) continue;
+        if (E > acc->mx) {
+            double r = acc->mx == -INFINITY ? 0 : exp(acc->mx - E);
+            acc->S *= r;
+            if (acc->grad)
+                for (int k = 0; k < BLW_GRID_NG; k++) acc->G[k] *= r;
+            acc->mx = E;
+        }
+        double e = R * exp(E - acc->mx);
+        acc->S += e;
+        if (acc->grad) {
+            double m = a * W + vv * ti;
+            double gw_ = sg * ((s2 * a2 * W - vv * a) * iD + Lw);
+            double gt = -vv * vv * 0.5 * iD - s2 * N * 0.5 * iD * iD - s2 * 0.5 * iD + Lu / a2;
+            acc->G[0] += e * ((s2 * a * W * W - vv * W) * iD - 2 / a - (2 * ti / (a2 * a)) * Lu);
+            acc->G[1] += e * (-sg * m * iD);
+            acc->G[2] += e * gw_;
+            acc->G[3] += e * sv * (m * m * iD * iD - ti * iD);
+            acc->G[4] += e * gw_ * dz[i];
+            acc->G[5] += e * gt;
+            if (tx) acc->G[6] += e * gt * tx[i];
+        }
+    }
+}
+
 /* ---- boundary probabilities and moments --------------------------------------------------------- */
 
 /* wc = 1 - w exactly (see log_dens_lo_c) */

@@ -576,63 +576,213 @@ static bl_status dens_start_range(const bl_wiener_params *p, double rt, int uppe
     return BL_OK;
 }
 
-/* start_range and/or nondecision_range with the whole window of decision times in the large-time range
- * (u >= 0.25): one tensor Gauss sum (blw_grid_large), the same node rules as the general path.
- * Returns 0 (caller takes the general path) when the window leaves that range or needs panels. */
-static int dens_grid_large(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd)
+static void acc_merge(blw_acc *to, const blw_acc *from)
+{
+    if (from->mx == -INFINITY || from->S == 0) return;
+    double ra = 1, rb = 1;
+    if (from->mx > to->mx) {
+        ra = to->mx == -INFINITY ? 0 : exp(to->mx - from->mx);
+        to->mx = from->mx;
+    } else {
+        rb = exp(from->mx - to->mx);
+    }
+    to->S = to->S * ra + from->S * rb;
+    if (to->grad)
+        for (int k = 0; k < BLW_GRID_NG; k++) to->G[k] = to->G[k] * ra + from->G[k] * rb;
+}
+
+static double acc_log(const blw_acc *acc)
+{
+    return acc->S > 0 ? acc->mx + log(acc->S) : -INFINITY;
+}
+
+typedef struct {
+    double a, v, w, sv, sz, slope_z; /* slope_z: |d exponent / dw'| for the start-range rule */
+    double zmin, vv;
+    int upper;
+} gctx;
+
+/* start_range node count at decision time t (rule of blw_gl_nodes_start_range); 1 without start_range */
+static int nodes_z(const gctx *C, double t)
+{
+    if (C->sz == 0) return 1;
+    return blw_gl_nodes_start_range(C->sz, t / (C->a * C->a), 0.5 * C->sz * C->slope_z);
+}
+
+/* Adds sum_i sum_j wt_i gw_j f(t_i, w + sz dz_j) for one row of times sharing a start rule of nz nodes. */
+static void add_rows(const gctx *C, int nt, const double *t, const double *wt, const double *tx, int nz, blw_acc *acc)
+{
+    static const double one = 1, zero = 0;
+    const double *zx = &zero, *zw = &one;
+    if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
+    double tt[BLW_GL_MAX], dz[BLW_GL_MAX], ww[BLW_GL_MAX], xx[BLW_GL_MAX];
+    for (int i = 0; i < nt; i++) {
+        for (int j = 0; j < nz; j++) {
+            tt[j] = t[i];
+            dz[j] = 0.5 * zx[j];
+            ww[j] = wt[i] * zw[j];
+            xx[j] = tx ? tx[i] : 0;
+        }
+        blw_point_sum(C->v, C->a, C->w, C->sv, C->sz, C->upper, nz, tt, dz, ww, xx, acc);
+    }
+}
+
+/* log of the start-averaged density at decision time t (no gradient) */
+static double start_avg(const gctx *C, double t)
+{
+    blw_acc acc = {-INFINITY, 0, {0}, 0};
+    double one = 1;
+    if (t > 0) add_rows(C, 1, &t, &one, NULL, nodes_z(C, t), &acc);
+    return acc_log(&acc);
+}
+
+/* Integral over the window [max(lo, 0), hi] of the start-averaged density: Gauss-Legendre panels from
+ * hi downwards with ratio 2 (window_panel's rules, the start rule at each panel's lower end) and, when
+ * the window reaches the onset, Gauss-Laguerre below m = min(hi, z_min^2/20) per start node (see
+ * window_integral). Returns 0 when a panel would need more than 40 nodes (caller: general path). */
+static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
+{
+    double a = C->a, m = fmin(hi, 0.05 * C->zmin * C->zmin);
+    double floor_ = lo > 0 ? lo : m, top = hi;
+    int onset = lo <= 0;
+    for (int k = 0; top > floor_; k++) {
+        if (k > 60) return 0;
+        double bot = fmax(floor_, 0.5 * top), h = 0.5 * (top - bot), c = 0.5 * (top + bot);
+        double E = h * fmax(fabs(slope_proxy(bot, C->vv, a, C->zmin, C->sv)), fabs(slope_proxy(top, C->vv, a, C->zmin, C->sv)));
+        double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
+        int nz = nodes_z(C, bot);
+        if (nf > 40 || nz > 40) return 0;
+        int nt = (int)ceil(nf);
+        const double *gx, *gw;
+        blw_gauss_legendre(nt, &gx, &gw);
+        double tt[BLW_GL_MAX], wt[BLW_GL_MAX];
+        for (int i = 0; i < nt; i++) {
+            tt[i] = c + h * gx[i];
+            wt[i] = 2 * h * gw[i];
+        }
+        blw_acc pan = {-INFINITY, 0, {0}, acc->grad};
+        add_rows(C, nt, tt, wt, NULL, nz, &pan);
+        acc_merge(acc, &pan);
+        if (bot > floor_ && acc_log(&pan) < acc_log(acc) - 40 && slope_proxy(top, C->vv, a, C->zmin, C->sv) > 0) {
+            onset = 0;
+            break;
+        }
+        top = bot;
+    }
+    if (onset && m > 0) {
+        const double *y, *lw, *zx = NULL, *zw = NULL;
+        static const double zero = 0, one = 1;
+        int nz = nodes_z(C, m);
+        if (nz > 40) return 0;
+        if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
+        else {
+            zx = &zero;
+            zw = &one;
+        }
+        blw_gauss_laguerre(&y, &lw);
+        double tt[BLW_GLAG_N], dz[BLW_GLAG_N], wt[BLW_GLAG_N];
+        for (int j = 0; j < nz; j++) {
+            double wp = C->w + 0.5 * C->sz * zx[j];
+            double z = C->upper ? a * (1 - wp) : a * wp, beta = 0.5 * z * z;
+            for (int l = 0; l < BLW_GLAG_N; l++) {
+                double x = 1 / m + y[l] / beta;
+                tt[l] = 1 / x;
+                dz[l] = 0.5 * zx[j];
+                wt[l] = zw[j] * exp(lw[l] + y[l]) / (x * x * beta);
+            }
+            blw_point_sum(C->v, a, C->w, C->sv, C->sz, C->upper, BLW_GLAG_N, tt, dz, wt, NULL, acc);
+        }
+    }
+    return 1;
+}
+
+/* start_range and/or nondecision_range (any drift_sd) as Gauss sums over (decision time, start):
+ * a window in the large-time range with lo >= hi/2 is one factorised tensor sum (blw_grid_large);
+ * otherwise grid_window's panels. Gradients: under the sums; t0 and st through the ends of the window
+ * (Leibniz rule, the start-averaged density at lo and hi). Returns 0 (caller takes the general path)
+ * when a rule asks for more than 40 nodes. */
+static int dens_grid(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd)
 {
     const double *x = p->value;
     double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], w = x[BL_START], sv = x[BL_DRIFT_SD];
     double sz = x[BL_START_RANGE], st = x[BL_NONDECISION_RANGE];
     double c = rt - t0, lo = c - 0.5 * st, hi = c + 0.5 * st;
-    if (!(lo >= BLW_U_SWITCH * a * a) || lo < 0.5 * hi) return 0;
-    double tt[BLW_GL_MAX], twt[BLW_GL_MAX], tx[BLW_GL_MAX], dz[BLW_GL_MAX];
-    const double *gx, *gw, *zx, *zw;
-    int nt = 1, nw = 1;
-    static const double one = 1, zero = 0;
-    zw = &one;
-    zx = &zero;
-    tt[0] = c;
-    twt[0] = 1;
-    tx[0] = 0;
-    dz[0] = 0;
-    if (st > 0) {
-        wparams P = {v, a, w, sv, upper ? -v : v, upper ? a * (1 - w) : a * w, upper};
+    if (!(hi > 0)) return 0;
+    double wb = upper ? 1 - w : w;
+    double tref = lo > 0 ? lo : fmin(hi, 0.5 * a * a);
+    gctx C = {a, v, w, sv, sz, fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / (1 + sv * sv * tref),
+              a * (wb - 0.5 * sz), upper ? -v : v, upper};
+    if (gd)
+        for (int k = 0; k < BL_NPARAM; k++) gd[k] = 0;
+    blw_acc acc = {-INFINITY, 0, {0}, gd != NULL};
+    double g[BLW_GRID_NG];
+    if (st == 0) {
+        int nz = nodes_z(&C, c);
+        if (nz > 40) return 0;
+        if (c >= BLW_U_SWITCH * a * a) {
+            const double *zx, *zw;
+            double dz[BLW_GL_MAX];
+            blw_gauss_legendre(nz, &zx, &zw);
+            for (int j = 0; j < nz; j++) dz[j] = 0.5 * zx[j];
+            double one = 1;
+            *lfd = blw_grid_large(v, a, w, sv, sz, upper, 1, &c, &one, NULL, nz, dz, zw, gd ? g : NULL);
+        } else {
+            double one = 1;
+            add_rows(&C, 1, &c, &one, NULL, nz, &acc);
+            *lfd = acc_log(&acc);
+            for (int k = 0; k < BLW_GRID_NG; k++) g[k] = acc.S > 0 ? acc.G[k] / acc.S : 0;
+        }
+        if (gd && *lfd > -INFINITY) {
+            gd[BL_THRESHOLD] = g[0];
+            gd[BL_DRIFT] = g[1];
+            gd[BL_START] = g[2];
+            gd[BL_DRIFT_SD] = g[3];
+            gd[BL_START_RANGE] = g[4];
+            gd[BL_NONDECISION] = -g[5];
+        }
+        return 1;
+    }
+    if (lo >= 0.5 * hi && lo >= BLW_U_SWITCH * a * a) {
+        /* one panel in large time: factorised tensor, derivative of the rule itself for t0 and st */
         double h = 0.5 * st;
-        double E = h * fmax(fabs(slope_proxy(lo, P.vv, a, P.z, sv)), fabs(slope_proxy(hi, P.vv, a, P.z, sv)));
+        double E = h * fmax(fabs(slope_proxy(lo, C.vv, a, a * wb, sv)), fabs(slope_proxy(hi, C.vv, a, a * wb, sv)));
         double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
-        if (nf > 40) return 0;
-        nt = (int)ceil(nf);
+        int nz = nodes_z(&C, lo);
+        if (nf > 40 || nz > 40) return 0;
+        int nt = (int)ceil(nf);
+        const double *gx, *gw, *zx, *zw;
         blw_gauss_legendre(nt, &gx, &gw);
+        blw_gauss_legendre(nz, &zx, &zw);
+        double tt[BLW_GL_MAX], tx[BLW_GL_MAX], dz[BLW_GL_MAX];
         for (int i = 0; i < nt; i++) {
             tt[i] = c + h * gx[i];
-            twt[i] = gw[i];
             tx[i] = 0.5 * gx[i];
         }
+        for (int j = 0; j < nz; j++) dz[j] = 0.5 * zx[j];
+        *lfd = blw_grid_large(v, a, w, sv, sz, upper, nt, tt, gw, tx, nz, dz, zw, gd ? g : NULL);
+        if (gd && *lfd > -INFINITY) {
+            gd[BL_THRESHOLD] = g[0];
+            gd[BL_DRIFT] = g[1];
+            gd[BL_START] = g[2];
+            gd[BL_DRIFT_SD] = g[3];
+            gd[BL_START_RANGE] = sz > 0 ? g[4] : 0;
+            gd[BL_NONDECISION] = -g[5];
+            gd[BL_NONDECISION_RANGE] = g[6];
+        }
+        return 1;
     }
-    if (sz > 0) {
-        double D = 1 + sv * sv * lo;
-        double slope = fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / D;
-        nw = blw_gl_nodes_start_range(sz, lo / (a * a), 0.5 * sz * slope);
-        if (nw > 40) return 0;
-        blw_gauss_legendre(nw, &zx, &zw);
-        for (int j = 0; j < nw; j++) dz[j] = 0.5 * zx[j];
-    }
-    double g[BLW_GRID_NG];
-    double l = blw_grid_large(v, a, w, sv, sz, upper, nt, tt, twt, tx, nw, dz, zw, gd ? g : NULL);
-    if (isnan(l)) return 0;
-    *lfd = l;
-    if (gd) {
-        for (int k = 0; k < BL_NPARAM; k++) gd[k] = 0;
-        if (l == -INFINITY) return 1;
-        gd[BL_THRESHOLD] = g[0];
-        gd[BL_DRIFT] = g[1];
-        gd[BL_START] = g[2];
-        gd[BL_DRIFT_SD] = g[3];
-        gd[BL_START_RANGE] = sz > 0 ? g[4] : 0;
-        gd[BL_NONDECISION] = -g[5];
-        gd[BL_NONDECISION_RANGE] = st > 0 ? g[6] : 0;
-    }
+    if (!grid_window(&C, lo, hi, &acc)) return 0;
+    double lI = acc_log(&acc);
+    *lfd = lI - log(lo > 0 ? hi - lo : st);
+    if (!gd || lI == -INFINITY) return 1;
+    gd[BL_THRESHOLD] = acc.G[0] / acc.S;
+    gd[BL_DRIFT] = acc.G[1] / acc.S;
+    gd[BL_START] = acc.G[2] / acc.S;
+    gd[BL_DRIFT_SD] = acc.G[3] / acc.S;
+    gd[BL_START_RANGE] = acc.G[4] / acc.S;
+    double fh = exp(start_avg(&C, hi) - lI), fl = lo > 0 ? exp(start_avg(&C, lo) - lI) : 0;
+    gd[BL_NONDECISION] = fl - fh;
+    gd[BL_NONDECISION_RANGE] = 0.5 * (fh + fl) - 1 / st;
     return 1;
 }
 
@@ -645,7 +795,7 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
     double p0 = x[BL_CONTAMINATION];
     double lfd, gd[BL_NPARAM];
     bl_status s;
-    if (dens_grid_large(p, rt, upper, &lfd, grad ? gd : NULL))
+    if (dens_grid(p, rt, upper, &lfd, grad ? gd : NULL))
         s = BL_OK;
     else if (sz == 0)
         s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);

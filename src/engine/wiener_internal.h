@@ -44,6 +44,14 @@ enum { BLW_GRID_NG = 7 };
 double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
                       const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
                       double g[BLW_GRID_NG]);
+/* Log-sum state: sum S of exp(E) R relative to exp(mx), and (grad) the sums of the same terms times
+ * d log f / d(a, v, w, sv, sz, t) and (d log f / dt) tx. Start with {-INFINITY, 0, {0}, grad}. */
+typedef struct {
+    double mx, S, G[BLW_GRID_NG];
+    int grad;
+} blw_acc;
+void blw_point_sum(double v, double a, double w, double sv, double sz, int upper, int n, const double *t,
+                   const double *dz, const double *wt, const double *tx, blw_acc *acc);
 
 /* log P(lower) and log P(boundary) without variability; stable for any v*a. */
 double blw_log_p_lo(double v, double a, double w);
