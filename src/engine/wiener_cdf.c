@@ -645,14 +645,19 @@ static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
     double a = C->a, m = fmin(hi, 0.05 * C->zmin * C->zmin);
     double floor_ = lo > 0 ? lo : m, top = hi;
     int onset = lo <= 0;
+    /* Node counts scale with log(1/tolerance): a part that carries a share s of the integral needs
+     * only 1e-9/s relative accuracy, i.e. the fraction log(1e-9/s)/log(1e-9) of the nodes (at least
+     * 0.3). Descending into the onset, each panel's share is estimated by the previous one's. */
+    double fct = 1;
     for (int k = 0; top > floor_; k++) {
         if (k > 60) return 0;
         double bot = fmax(floor_, 0.5 * top), h = 0.5 * (top - bot), c = 0.5 * (top + bot);
         double E = h * fmax(fabs(slope_proxy(bot, C->vv, a, C->zmin, C->sv)), fabs(slope_proxy(top, C->vv, a, C->zmin, C->sv)));
-        double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
+        double nf = fct * (2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c);
         int nz = nodes_z(C, bot);
+        if (nz > 1) nz = (int)ceil(fct * nz);
         if (nf > 40 || nz > 40) return 0;
-        int nt = (int)ceil(nf);
+        int nt = nf < 2 ? 2 : (int)ceil(nf);
         const double *gx, *gw;
         blw_gauss_legendre(nt, &gx, &gw);
         double tt[BLW_GL_MAX], wt[BLW_GL_MAX];
@@ -660,10 +665,24 @@ static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
             tt[i] = c + h * gx[i];
             wt[i] = 2 * h * gw[i];
         }
+        /* the row nearest bot (Gauss-Legendre nodes ascend) first: its start average bounds the rest */
         blw_acc pan = {-INFINITY, 0, {0}, acc->grad};
-        add_rows(C, nt, tt, wt, NULL, nz, &pan);
+        add_rows(C, 1, tt, wt, NULL, nz, &pan);
+        double lrow = acc_log(&pan) - log(wt[0]);
+        add_rows(C, nt - 1, tt + 1, wt + 1, NULL, nz, &pan);
         acc_merge(acc, &pan);
-        if (bot > floor_ && acc_log(&pan) < acc_log(acc) - 40 && slope_proxy(top, C->vv, a, C->zmin, C->sv) > 0) {
+        double share = acc_log(&pan) - acc_log(acc); /* log of the panel's share, <= 0 */
+        int rising = slope_proxy(top, C->vv, a, C->zmin, C->sv) > 0;
+        /* below bot the density is rising: the rest is at most bot * f(bot) <= bot * f(first row) */
+        double rest = log(bot) + lrow - acc_log(acc);
+        if (rising) fct = fmax(0.3, fmin(1, 1 + share / 20.7));
+        if (rising && rest < -23) {
+            onset = 0;
+            break;
+        }
+        /* rising density and a share below 1e-10: what lies below is smaller still (f increases on
+         * [0, top], so the rest is at most bot f(bot) <= this panel's sum) */
+        if (share < -23 && slope_proxy(top, C->vv, a, C->zmin, C->sv) > 0) {
             onset = 0;
             break;
         }
@@ -673,6 +692,7 @@ static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
         const double *y, *lw, *zx = NULL, *zw = NULL;
         static const double zero = 0, one = 1;
         int nz = nodes_z(C, m);
+        if (nz > 1) nz = (int)ceil(fct * nz);
         if (nz > 40) return 0;
         if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
         else {
