@@ -168,6 +168,7 @@ typedef struct {
     double *cache_x, *cache_g, cache_f;
     int cache_valid;
     int out_of_memory; /* an optimiser workspace could not be allocated: the fit must fail, not skip a start */
+    double gtol;       /* BFGS stops at this per-trial gradient (loose when Newton steps follow) */
 } objective;
 
 static void evaluate_point(objective *o, const gsl_vector *x)
@@ -216,7 +217,8 @@ static double obj_f_finite(const gsl_vector *x, void *params)
 
 /* BFGS from x (updated in place). Returns the minimum found (+inf if the start is infeasible).
  * Stopping rule: the objective is the mean negative log-likelihood per trial, so a gradient of g per
- * trial is n*g in log-likelihood units; BFGS stops at |g| <= 1e-5 per trial, or when five iterations
+ * trial is n*g in log-likelihood units; BFGS stops at |g| <= o->gtol per trial (1e-3 when Newton steps
+ * with the observed information follow, else 1e-5), or when five iterations
  * together lower the objective by less than 1e-12 per trial (the line search is then working in
  * the quadrature's rounding), at most 500 iterations per restart. The last digits are left to the
  * Newton steps of bl_fit_core, which stop in standard-error units (the Newton decrement
@@ -239,14 +241,14 @@ static double run_bfgs(objective *o, gsl_vector *x, size_t *iterations)
             hist[it % 5] = s->f;
             int st = gsl_multimin_fdfminimizer_iterate(s);
             if (st != GSL_SUCCESS) break;
-            if (gsl_multimin_test_gradient(s->gradient, 1e-5) == GSL_SUCCESS) break;
+            if (gsl_multimin_test_gradient(s->gradient, o->gtol) == GSL_SUCCESS) break;
             if (it >= 5 && hist[(it + 1) % 5] - s->f < 1e-12) break;
         }
         if (isfinite(s->f) && s->f <= best) {
             best = s->f;
             gsl_vector_memcpy(x, s->x);
         }
-        if (gsl_multimin_test_gradient(s->gradient, 1e-5) == GSL_SUCCESS) break;
+        if (gsl_multimin_test_gradient(s->gradient, o->gtol) == GSL_SUCCESS) break;
         if (!(f_before - s->f > 1e-12)) break;
     }
     gsl_multimin_fdfminimizer_free(s);
@@ -524,7 +526,9 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         if (g && isfinite(f)) {
             double fv;
             obj_fdf(x, o, &fv, g);
-            stalled = gsl_multimin_test_gradient(g, 1e-5) != GSL_SUCCESS;
+            /* near a stationary point (per-trial gradient 1e-3, i.e. within Newton's reach) the
+             * Newton steps of bl_fit_core finish the job; the simplex is for real stalls */
+            stalled = gsl_multimin_test_gradient(g, 1e-3) != GSL_SUCCESS;
         }
         gsl_vector_free(g);
         if (stalled) {
@@ -602,6 +606,21 @@ static bl_status explain_zero_likelihood(const bl_model *m, bl_likelihood *lik, 
                         m->name, m->row[k] + 1, m->rt[k], p.value[BL_NONDECISION], p.value[BL_NONDECISION_RANGE]);
 }
 
+/* BFGS (o->gtol) from coef, updated in place when it improves. Returns 1 on allocation failure. */
+static int refine_bfgs(objective *o, double *coef)
+{
+    gsl_vector *x = gsl_vector_alloc(o->k);
+    if (!x) return 1;
+    for (size_t j = 0; j < o->k; j++) gsl_vector_set(x, j, to_x(&o->tr[j], coef[j]));
+    size_t it = 0;
+    double f0 = obj_f(x, o);
+    double f = run_bfgs(o, x, &it);
+    if (f < f0)
+        for (size_t j = 0; j < o->k; j++) coef[j] = to_coef(&o->tr[j], gsl_vector_get(x, j));
+    gsl_vector_free(x);
+    return o->out_of_memory;
+}
+
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                           const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
 {
@@ -629,7 +648,7 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         st = explain_zero_likelihood(m, lik, start, err);
         goto fail;
     }
-    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0};
+    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0, infer ? 1e-3 : 1e-5};
     start_result best = {0, coef, 0, 0};
     int agreed = 0;
     optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
@@ -655,8 +674,9 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         info = malloc(k * k * sizeof *info);
         cov = malloc(k * k * sizeof *cov);
         if (!info || !cov) goto nomem;
-        int pd = 0;
+        int pd = 0, retried = 0;
         double cond = NAN;
+    polish_again:
         /* Newton polishing with the observed information: each step is checked to raise the
          * likelihood (halved up to three times when it does not), so it can only help. The loop
          * stops when the Newton decrement -- the gradient in standard-error units -- is below 1e-4
@@ -686,6 +706,14 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
             ll = ll2;
             memcpy(coef, wcoef, k * sizeof *coef);
             memcpy(grad, wgrad, k * sizeof *grad);
+        }
+        if ((!pd || !(res->diag.newton_decrement <= BL_FIT_CONVERGED_DECREMENT)) && o.gtol > 1e-5 && !retried) {
+            /* Newton could not finish from the loose BFGS point: tight BFGS from here, then again */
+            retried = 1;
+            o.gtol = 1e-5;
+            if (refine_bfgs(&o, coef)) goto nomem;
+            ll = bl_likelihood_eval(lik, coef, grad);
+            goto polish_again;
         }
         res->log_likelihood = ll;
         res->diag.hessian_positive_definite = pd;
