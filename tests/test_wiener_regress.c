@@ -6,6 +6,7 @@
  * Blurton, Kesselmeier & Gondan 2017, itself checked against mpmath.quad over the drift); the same
  * integrals are recomputed live by tests/reference/wiener_mpmath.py (regression_cases). */
 #include "bandlink/wiener.h"
+#include "engine/wiener_internal.h" /* the Gauss-Laguerre onset rule */
 #include "harness.h"
 
 #include <math.h>
@@ -98,8 +99,39 @@ static void gradients_every_combination(void)
     }
 }
 
+/* The onset part [0, m], m = z^2/20, by Gauss-Laguerre in x = 1/t: 8 nodes against 16 (GSL's fixed
+ * Laguerre rule, gsl_integration_fixed_laguerre) over a grid of thresholds, drifts, starts, drift_sd and
+ * both boundaries. The two rules agree only if both have converged. */
+static void onset_laguerre(void)
+{
+    double worst = 0;
+    double as[] = {0.5, 1, 1.5, 3}, vs[] = {-6, -2, 0, 2, 6}, ws[] = {0.05, 0.2, 0.5, 0.8}, svs[] = {0, 1, 3};
+    for (int ia = 0; ia < 4; ia++)
+        for (int iv = 0; iv < 5; iv++)
+            for (int iw = 0; iw < 4; iw++)
+                for (int is = 0; is < 3; is++)
+                    for (int up = 0; up < 2; up++) {
+                        double a = as[ia], v = vs[iv], w = ws[iw], sv = svs[is];
+                        double z = up ? a * (1 - w) : a * w, m = 0.05 * z * z, beta = 0.5 * z * z, r[2];
+                        for (int k = 0; k < 2; k++) {
+                            const double *y, *lw;
+                            int n = blw_gauss_laguerre(k, &y, &lw);
+                            double S = 0;
+                            for (int l = 0; l < n; l++) {
+                                double x = 1 / m + y[l] / beta;
+                                S += exp(lw[l] + y[l] + blw_log_dens(1 / x, v, a, w, sv, up, NULL) - 2 * log(x) - log(beta));
+                            }
+                            r[k] = S;
+                        }
+                        double e = fabs(r[1] / r[0] - 1);
+                        if (e > worst) worst = e;
+                    }
+    check_true(worst < 1e-8, "onset by Gauss-Laguerre: 8 nodes vs 16, 480 cases, worst relative difference %.2g", worst);
+}
+
 int main(void)
 {
+    onset_laguerre();
     committed_values();
     gradients_every_combination();
     return harness_summary();

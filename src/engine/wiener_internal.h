@@ -81,9 +81,10 @@ bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, do
 #define BLW_GL_MAX 64
 void blw_gauss_legendre(int n, const double **x, const double **wt);
 int blw_gauss_hermite(int n, const double **x, const double **wt); /* returns the n actually used */
-/* Gauss-Laguerre rule for weight e^{-y} on [0, inf) with BLW_GLAG_N nodes; weights given as logs. */
+/* Gauss-Laguerre rule for weight e^{-y} on [0, inf) with BLW_GLAG_N nodes (8 when small != 0);
+ * weights given as logs; returns the node count. */
 #define BLW_GLAG_N 16
-void blw_gauss_laguerre(const double **y, const double **log_wt);
+int blw_gauss_laguerre(int small, const double **y, const double **log_wt);
 /* 1 when the tables were built (0 only after an allocation failure). */
 int blw_tables_ok(void);
 

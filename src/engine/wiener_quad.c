@@ -18,7 +18,7 @@ static const int gh_sizes[] = {12, 20, 32, 48, 64, 96};
 static double gh_x[GH_COUNT][96], gh_w[GH_COUNT][96];
 static int tables_ok;
 /* Gauss-Laguerre (weight e^{-y} on [0, inf)), BLW_GLAG_N nodes, weights as logs */
-static double glag_y[BLW_GLAG_N], glag_lw[BLW_GLAG_N];
+static double glag_y[BLW_GLAG_N], glag_lw[BLW_GLAG_N], glag8_y[8], glag8_lw[8];
 
 static pthread_once_t once = PTHREAD_ONCE_INIT;
 
@@ -59,26 +59,31 @@ static void build_tables(void)
         }
         gsl_integration_fixed_free(ws);
     }
-    gsl_integration_fixed_workspace *lg =
-        gsl_integration_fixed_alloc(gsl_integration_fixed_laguerre, BLW_GLAG_N, 0.0, 1.0, 0.0, 0.0);
-    if (lg) {
+    for (int r = 0; r < 2; r++) {
+        int nl = r ? 8 : BLW_GLAG_N;
+        double *ly = r ? glag8_y : glag_y, *llw = r ? glag8_lw : glag_lw;
+        gsl_integration_fixed_workspace *lg =
+            gsl_integration_fixed_alloc(gsl_integration_fixed_laguerre, (size_t)nl, 0.0, 1.0, 0.0, 0.0);
+        if (!lg) {
+            ok = 0;
+            continue;
+        }
         const double *xs = gsl_integration_fixed_nodes(lg), *ws_ = gsl_integration_fixed_weights(lg);
-        for (int i = 0; i < BLW_GLAG_N; i++) {
-            glag_y[i] = xs[i];
-            glag_lw[i] = log(ws_[i]);
+        for (int i = 0; i < nl; i++) {
+            ly[i] = xs[i];
+            llw[i] = log(ws_[i]);
         }
         gsl_integration_fixed_free(lg);
-    } else {
-        ok = 0;
     }
     tables_ok = ok;
 }
 
-void blw_gauss_laguerre(const double **y, const double **log_wt)
+int blw_gauss_laguerre(int small, const double **y, const double **log_wt)
 {
     pthread_once(&once, build_tables);
-    *y = glag_y;
-    *log_wt = glag_lw;
+    *y = small ? glag8_y : glag_y;
+    *log_wt = small ? glag8_lw : glag_lw;
+    return small ? 8 : BLW_GLAG_N;
 }
 
 void blw_gauss_legendre(int n, const double **x, const double **wt)

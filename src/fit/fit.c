@@ -811,6 +811,30 @@ static int edge_estimates(const bl_model *m, const bl_fit_result *r, char *buf, 
     return found;
 }
 
+/* Intercept-only identity-link range parameters (drift_sd, start_range, nondecision_range,
+ * contamination) whose 95% Wald interval reaches below 0, listed into buf: the estimate is near the
+ * boundary of the parameter space, where the normal approximation behind the interval fails. */
+static int wald_below_zero(const bl_model *m, const bl_fit_result *r, char *buf, size_t n)
+{
+    int found = 0;
+    buf[0] = '\0';
+    for (size_t j = 0; j < r->n_coef; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (ci->slope >= 0 || d->n_slopes || d->link != BL_LINK_IDENTITY) continue;
+        if (ci->param != BL_DRIFT_SD && ci->param != BL_START_RANGE && ci->param != BL_NONDECISION_RANGE &&
+            ci->param != BL_CONTAMINATION)
+            continue;
+        const bl_coefficient *c = &r->coef[j];
+        if (!(c->ci_low < 0) || c->estimate < 1e-3) continue; /* at the edge: edge_estimates reports it */
+        size_t len = strlen(buf);
+        snprintf(buf + len, n - len, "%s%s%s%s (%.3g, interval %.3g to %.3g)", found ? ", " : "",
+                 bl_param_name(ci->param), ci->level[0] ? " " : "", ci->level, c->estimate, c->ci_low, c->ci_high);
+        found = 1;
+    }
+    return found;
+}
+
 static void warn_fit(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
 {
     char who[512], edge[512];
@@ -829,6 +853,12 @@ static void warn_fit(const bl_model *m, const char *participant, const bl_fit_re
     else if (at_edge)
         bl_warnings_add(warn, "%s: estimates at the edge of their range (Wald intervals unreliable there): %s", who,
                         edge);
+    char wald[512];
+    if (r->diag.hessian_positive_definite && wald_below_zero(m, r, wald, sizeof wald))
+        bl_warnings_add(warn,
+                        "%s: boundary estimates, Wald intervals reach below 0 (impossible values; the interval "
+                        "is not reliable near the edge of the range): %s",
+                        who, wald);
     if (r->diag.starts_agreed < r->diag.starts)
         bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
                         r->diag.starts_agreed, r->diag.starts);

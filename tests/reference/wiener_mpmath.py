@@ -224,6 +224,17 @@ def regression_cases():
         for e in d["density"]:
             ref = mp.quad(lambda ww: f_b(e["rt"] - t0, v, a, ww, upper), mp.linspace(0.5 - sz / 2, 0.5 + sz / 2, 7)) / sz
             check(rel(e[name], ref) < 1e-8, "a=5 v=6 start_range 0.9: density %s at rt %g %r vs mpmath %s" % (name, e["rt"], e[name], mp.nstr(ref, 12)))
+    # all three together, RTs from inside the onset window to the slow tail: mpmath.quad over t0' and w'
+    a, v, t0, sv, sz, st = 1.5, 2.5, 0.3, 1.8, 0.43, 0.13
+    mp.mp.dps = 15
+    d = predict(["--threshold", "1.5", "--drift", "2.5", "--nondecision", "0.3", "--drift-sd", "1.8",
+                 "--start-range", "0.43", "--nondecision-range", "0.13"], [0.3, 0.36, 0.5, 1.2])
+    for upper, name in ((1, "upper"), (0, "lower")):
+        for e in d["density"]:
+            hi = min(t0 + st / 2, e["rt"])
+            ref = mp.quad(lambda tt, ww: f_sv_b(e["rt"] - tt, v, a, ww, sv, upper), [t0 - st / 2, hi], [0.5 - sz / 2, 0.5, 0.5 + sz / 2]) / (st * sz)
+            check(rel(e[name], ref) < 1e-7, "drift_sd+start_range+nondecision_range: density %s at rt %g %r vs mpmath %s" % (name, e["rt"], e[name], mp.nstr(ref, 12)))
+    mp.mp.dps = 25
     # P(boundary) and mean RT with drift_sd for a rare boundary: the integrand peaks 9 SD out
     a, v, w, sv, t0 = 5.0, -10.0, 0.1, 1.0, 0.3
     d = predict(["--threshold", "5", "--drift", "-10", "--start", "0.1", "--drift-sd", "1", "--nondecision", "0.3"], [1.0])
