@@ -307,6 +307,8 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
                   4.934802200544679309 * tref / a2;
     for (int i = 0; i < nt; i++) {
         double t = tt[i], D = 1 + s2 * t, iD = 1 / D;
+        /* t-only parts of the gradient terms */
+        double gt0 = -vv * vv * 0.5 * iD - s2 * 0.5 * iD, ta = 2 * t / (a2 * a), txi = tx ? tx[i] : 0;
         for (int j = 0; j < nw; j++) {
             double W = Wj[j];
             double ser = 0, s3 = 0, sc = 0;
@@ -326,17 +328,18 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
             double e = pre * ser;
             S += e;
             if (g) {
-                double Lu = -4.934802200544679309 * s3 / ser, Lw = BLW_PI * sc / ser;
+                /* e * L_u = -(pi^2/2) pre s3 and e * L_w = pi pre sc: no division per point */
+                double eLu = -4.934802200544679309 * pre * s3, eLw = BLW_PI * pre * sc;
                 double m = a * W + vv * t, N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t;
-                double gw_ = sg * ((s2 * a2 * W - vv * a) * iD + Lw); /* d/dw' in the user's orientation */
-                double gt = -vv * vv * 0.5 * iD - s2 * N * 0.5 * iD * iD - s2 * 0.5 * iD + Lu / a2;
-                G[0] += e * ((s2 * a * W * W - vv * W) * iD - 2 / a - (2 * t / (a2 * a)) * Lu);
-                G[1] += e * (-sg * m * iD);
-                G[2] += e * gw_;
-                G[3] += e * sv * (m * m * iD * iD - t * iD);
-                G[4] += e * gw_ * dz[j];
-                G[5] += e * gt;
-                if (tx) G[6] += e * gt * tx[i];
+                double egw = sg * ((s2 * a2 * W - vv * a) * iD * e + eLw); /* d/dw' in the user's orientation */
+                double egt = (gt0 - s2 * N * 0.5 * iD * iD) * e + eLu / a2;
+                G[0] += ((s2 * a * W * W - vv * W) * iD - 2 / a) * e - ta * eLu;
+                G[1] -= sg * m * iD * e;
+                G[2] += egw;
+                G[3] += sv * (m * m * iD * iD - t * iD) * e;
+                G[4] += egw * dz[j];
+                G[5] += egt;
+                G[6] += egt * txi;
             }
         }
     }
