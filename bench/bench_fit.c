@@ -237,19 +237,33 @@ int main(int argc, char **argv)
             size_t evals = 0;
             double ll = 0;
             int conv = 1;
-            t0 = now();
+            /* each fit is timed on its own, with a reference pass (the plain density+gradient over the
+             * same trials) right before it; the fastest of each counts, so load hits both alike */
+            double best_fit = INFINITY, best_ref = INFINITY;
+            size_t best_evals = 0;
             for (int f = 0; f < fits; f++) {
+                double ref = 0;
+                for (int rr = 0; rr < 5; rr++) ref += reference_pass(m, t, truth, &sink);
+                if (ref / 5 < best_ref) best_ref = ref / 5;
                 bl_fit_result r;
+                t0 = now();
                 if (bl_fit_model(m, &opt, NULL, &r, &warn, &err)) {
                     fprintf(stderr, "bench-fit: %s\n", err.message);
                     return 1;
+                }
+                double el = now() - t0;
+                if (el < best_fit) {
+                    best_fit = el;
+                    best_evals = r.diag.evaluations;
                 }
                 evals += r.diag.evaluations;
                 ll = r.log_likelihood;
                 conv = conv && r.converged;
                 bl_fit_result_clear(&r);
             }
-            double per_fit = (now() - t0) / fits;
+            if (best_ref < ns_grad) ns_grad = best_ref;
+            double per_fit = best_fit;
+            evals = best_evals * (size_t)fits;
             fit_time[mode][starts] = per_fit;
             double per_eval = per_fit / ((double)evals / fits);
             printf("fit, %s, %d start%s: %.4f s per fit, %zu likelihood evaluations per fit, "
