@@ -36,11 +36,9 @@ static double reference_pass(const bl_model *m, const bl_trials *t, const double
     return (now() - t0) / (double)n * 1e9;
 }
 
-/* A 1,000-trial fit with all three variability parameters free, on one core. The reference (the
- * engine's density+gradient at the fit's estimates over the same trials, as many calls as the fit
- * made) is timed interleaved with the fits, round by round, and the fastest round of each counts:
- * the fit does that work plus its own, so the ratio cannot fall below 1 except through timing noise,
- * which the interleaving spreads over both. */
+/* A 1,000-trial fit with all three variability parameters free, on one core; the fastest of three
+ * rounds counts. Its cost per density varies with the parameters the optimiser visits, so it is
+ * reported per evaluation, not as a ratio to a reference at one parameter set. */
 static int variability_fit(int rounds)
 {
     sim_truth tr = {.n = 1000, .n_participants = 1, .a = {1.2, 1.2}, .v = {1.5, 1.5, 1.5}, .t0 = 0.3};
@@ -78,7 +76,7 @@ static int variability_fit(int rounds)
         return 1;
     }
     size_t k = bl_model_n_coef(m);
-    double best_fit = INFINITY, best_ref = INFINITY, sink = 0;
+    double best_fit = INFINITY, sink = 0;
     bl_fit_result r = {0};
     for (int round = 0; round < rounds; round++) {
         bl_fit_options opt;
@@ -93,13 +91,6 @@ static int variability_fit(int rounds)
         }
         double el = now() - t0;
         if (el < best_fit) best_fit = el;
-        double est[16];
-        for (size_t j = 0; j < k; j++) est[j] = r.coef[j].estimate;
-        /* as many density+gradient calls as the fit made, at the estimates */
-        double ns = 0;
-        for (size_t e = 0; e < r.diag.evaluations; e++) ns += reference_pass(m, t, est, &sink);
-        double ref = ns * 1e-9 * (double)bl_model_n_trials(m);
-        if (ref < best_ref) best_ref = ref;
     }
     printf("variability fit (1,000 trials; threshold, drift per context, nondecision, drift_sd, start_range, "
            "nondecision_range free; 1 thread): %.3f s, %zu likelihood evaluations (%s, %zu iterations of the best "
@@ -108,8 +99,9 @@ static int variability_fit(int rounds)
            r.converged ? "converged" : "NOT CONVERGED", r.log_likelihood);
     for (size_t j = 0; j < k; j++)
         printf("  %-18s %-10s %9.4f  (SE %.4f)\n", r.coef[j].parameter, r.coef[j].level, r.coef[j].estimate, r.coef[j].se);
-    printf("  the same number of density+gradient passes at the estimates: %.3f s; fit / reference %.2f "
-           "(target < 2 s)%s\n", best_ref, best_fit / best_ref, sink == 0 ? " " : "");
+    printf("  %.1f us per trial-density(+gradient) inside the fit (the fit's parameters vary, so this is no "
+           "ratio to a fixed reference); target < 2 s per fit%s\n",
+           best_fit / ((double)r.diag.evaluations * (double)bl_model_n_trials(m)) * 1e6, sink == 0 ? "" : " ");
     bl_fit_result_clear(&r);
     bl_model_destroy(m);
     bl_trials_destroy(t);
