@@ -102,7 +102,7 @@ HARNESS_CASE(start_range_2n)
                     double a = as[ia], sz = szs[is], t = ts[it];
                     bl_wiener_params q = mk(a, vs[iv], 0.3, 0.5, 0, 0, 0), p = q;
                     p.value[BL_START_RANGE] = sz;
-                    size_t nr = (size_t)blw_gl_nodes_start_range(sz, t / (a * a));
+                    size_t nr = (size_t)blw_gl_nodes_start_range(sz, t / (a * a), 0.5 * sz * fabs(vs[iv] * a));
                     double f1 = gl_sum(nr, &q, 0.5, sz, 0.3 + t, 0), f2 = gl_sum(2 * nr, &q, 0.5, sz, 0.3 + t, 0);
                     if (!(f2 > 1e-280)) continue;
                     worst_2n = fmax(worst_2n, fabs(f1 - f2) / f2);

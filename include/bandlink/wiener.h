@@ -2,7 +2,7 @@
  * gradients and an exact sampler. Pure functions, thread-safe; no allocation per call (the quadrature
  * tables for the variability parameters are built once, on first use, under pthread_once).
  * Accuracy (docs/methods.md): plain and drift_sd log-densities ~1e-10 relative (series truncated
- * relative to the partial sum); start_range quadrature <= 1e-6; CDF ~1e-12; quantiles invert the
+ * relative to the partial sum); start_range / nondecision_range Gauss sums ~1e-9; CDF ~1e-12; quantiles invert the
  * CDF to 1e-14 of the boundary probability or to 2 ulp of the RT.
  *
  * Conventions (docs/methods.md): noise scale s = 1; evidence starts at start*threshold and is

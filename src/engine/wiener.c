@@ -251,6 +251,155 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
     return lf;
 }
 
+/* ---- tensor Gauss sums in the large-time range ------------------------------------------------- */
+
+/* Sum over t nodes (tt[i], weights twt[i]) and start nodes (w + sz dz[j], weights wwt[j]) of the
+ * density at one boundary, all at u = t/a^2 >= 0.25, where the five-term large-time series of
+ * large_time() is exact to 1e-15 relative. The series factorises: exp(-(k^2-1)q) depends on t only and
+ * sin(k pi w'), cos(k pi w') on the start only, and without drift_sd the exponential prefactor splits
+ * into exp(-v a w') exp(-v^2 t/2); so a point costs a few multiply-adds (plus one exp with drift_sd)
+ * instead of a full log-density. Returns log of the sum; g (optional) receives the f-weighted means
+ * of d log f / d(a, v, w, sv, sz), of d log f / dt and of (d log f / dt) tx[i] (tx may be NULL). */
+double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
+                      const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
+                      double g[BLW_GRID_NG])
+{
+    enum { NT = 64 + 2, NW = 40 };
+    if (nt > NT || nw > NW) return NAN;
+    double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
+    double ek[NT][5], qt[NT], et[NT], rs[NT];
+    double Wj[NW], sk[NW][5], ck[NW][5], ew[NW];
+    /* reference: the exponent at the window centre and the user's start, so every factor stays O(e^(|v| a sz)) */
+    double tref = tt[nt / 2], Wref = upper ? 1 - w : w;
+    for (int i = 0; i < nt; i++) {
+        double q = 4.934802200544679309 * tt[i] / a2, E = exp(-q), E2 = E * E, E4 = E2 * E2, E8 = E4 * E4;
+        ek[i][0] = 1;
+        ek[i][1] = E2 * E;
+        ek[i][2] = E8;
+        ek[i][3] = E8 * E4 * E2 * E;
+        ek[i][4] = E8 * E8 * E8;
+        qt[i] = q;
+        rs[i] = sqrt((1 + s2 * tref) / (1 + s2 * tt[i])); /* D^(-1/2) relative to the reference */
+        /* sv = 0: the t-part of the prefactor, relative to the reference time */
+        et[i] = sv == 0 ? twt[i] * exp(-(q - 4.934802200544679309 * tref / a2) - 0.5 * vv * vv * (tt[i] - tref)) : twt[i];
+    }
+    for (int j = 0; j < nw; j++) {
+        double wp = w + sz * dz[j];
+        double W = upper ? 1 - wp : wp, Wc = upper ? wp : 1 - wp;
+        double s1, c1;
+        blw_sincospi(W < 0.5 ? W : Wc, &s1, &c1);
+        if (W > 0.5) c1 = -c1;
+        double tc = 2 * c1;
+        sk[j][0] = s1;
+        ck[j][0] = c1;
+        sk[j][1] = tc * s1;
+        ck[j][1] = tc * c1 - 1;
+        for (int k = 2; k < 5; k++) {
+            sk[j][k] = tc * sk[j][k - 1] - sk[j][k - 2];
+            ck[j][k] = tc * ck[j][k - 1] - ck[j][k - 2];
+        }
+        Wj[j] = W;
+        ew[j] = sv == 0 ? wwt[j] * exp(-vv * a * (W - Wref)) : wwt[j];
+    }
+    double S = 0, G[BLW_GRID_NG] = {0};
+    double Dref = 1 + s2 * tref;
+    double bexp = (s2 * a2 * Wref * Wref - 2 * vv * a * Wref - vv * vv * tref) / (2 * Dref) -
+                  4.934802200544679309 * tref / a2;
+    for (int i = 0; i < nt; i++) {
+        double t = tt[i], D = 1 + s2 * t, iD = 1 / D;
+        /* t-only parts of the gradient terms */
+        double gt0 = -vv * vv * 0.5 * iD - s2 * 0.5 * iD, ta = 2 * t / (a2 * a), txi = tx ? tx[i] : 0;
+        for (int j = 0; j < nw; j++) {
+            double W = Wj[j];
+            double ser = 0, s3 = 0, sc = 0;
+            for (int k = 0; k < 5; k++) {
+                double kk = k + 1, e = ek[i][k];
+                ser += kk * sk[j][k] * e;
+                if (g) {
+                    s3 += kk * kk * kk * sk[j][k] * e;
+                    sc += kk * kk * ck[j][k] * e;
+                }
+            }
+            double pre;
+            if (sv == 0) pre = et[i] * ew[j];
+            else
+                pre = twt[i] * wwt[j] * rs[i] *
+                      exp((s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t) * 0.5 * iD - qt[i] - bexp);
+            double e = pre * ser;
+            S += e;
+            if (g) {
+                /* e * L_u = -(pi^2/2) pre s3 and e * L_w = pi pre sc: no division per point */
+                double eLu = -4.934802200544679309 * pre * s3, eLw = BLW_PI * pre * sc;
+                double m = a * W + vv * t, N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t;
+                double egw = sg * ((s2 * a2 * W - vv * a) * iD * e + eLw); /* d/dw' in the user's orientation */
+                double egt = (gt0 - s2 * N * 0.5 * iD * iD) * e + eLu / a2;
+                G[0] += ((s2 * a * W * W - vv * W) * iD - 2 / a) * e - ta * eLu;
+                G[1] -= sg * m * iD * e;
+                G[2] += egw;
+                G[3] += sv * (m * m * iD * iD - t * iD) * e;
+                G[4] += egw * dz[j];
+                G[5] += egt;
+                G[6] += egt * txi;
+            }
+        }
+    }
+    if (!(S > 0)) return -INFINITY;
+    if (g)
+        for (int k = 0; k < BLW_GRID_NG; k++) g[k] = G[k] / S;
+    /* undo the reference: sv = 0 used exp(-q - v^2 t/2 - v a W) relative to the reference point */
+    double lref = sv == 0 ? -vv * a * Wref - 0.5 * vv * vv * tref - 4.934802200544679309 * tref / a2
+                          : bexp - 0.5 * log(Dref);
+    return lref + log(BLW_PI * S / a2);
+}
+
+/* Weighted sum of the density at one boundary over a list of points (t[i], start w + sz dz[i],
+ * weight wt[i]), in logs, one pass relative to the running maximum. Per point: small_time() or
+ * large_time() and one exp, no log. The sum is merged into acc (log-sum state; see wiener_internal.h);
+ * g sums (when acc->grad) are the weighted d log f / d(a, v, w, sv, sz, t) and (d log f/dt) tx[i]. */
+void blw_point_sum(double v, double a, double w, double sv, double sz, int upper, int n, const double *t,
+                   const double *dz, const double *wt, const double *tx, blw_acc *acc)
+{
+    double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
+    for (int i = 0; i < n; i++) {
+        double ti = t[i], u = ti / a2, D = 1 + s2 * ti, iD = 1 / D;
+        double wp = w + sz * dz[i];
+        double W = upper ? 1 - wp : wp, Wc = upper ? wp : 1 - wp;
+        double Lu = 0, Lw = 0, E, R;
+        double N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * ti;
+        if (u < BLW_U_SWITCH) {
+            double S0 = small_time(u, a2 / ti, W, Wc, BL_WIENER_EPS, acc->grad, &Lu, &Lw);
+            E = N * 0.5 * iD - 0.5 * W * W / u;
+            R = wt[i] * a / (ti * sqrt(ti * D)) * 0.39894228040143267794 * S0;
+        } else {
+            double S = large_time(u, W, Wc, acc->grad, &Lu, &Lw);
+            E = N * 0.5 * iD - 4.934802200544679309 * u;
+            R = wt[i] * BLW_PI / (a2 * sqrt(D)) * S;
+        }
+        if (!(R > 0)) continue;
+        if (E > acc->mx) {
+            double r = acc->mx == -INFINITY ? 0 : exp(acc->mx - E);
+            acc->S *= r;
+            if (acc->grad)
+                for (int k = 0; k < BLW_GRID_NG; k++) acc->G[k] *= r;
+            acc->mx = E;
+        }
+        double e = R * exp(E - acc->mx);
+        acc->S += e;
+        if (acc->grad) {
+            double m = a * W + vv * ti;
+            double gw_ = sg * ((s2 * a2 * W - vv * a) * iD + Lw);
+            double gt = -vv * vv * 0.5 * iD - s2 * N * 0.5 * iD * iD - s2 * 0.5 * iD + Lu / a2;
+            acc->G[0] += e * ((s2 * a * W * W - vv * W) * iD - 2 / a - (2 * ti / (a2 * a)) * Lu);
+            acc->G[1] += e * (-sg * m * iD);
+            acc->G[2] += e * gw_;
+            acc->G[3] += e * sv * (m * m * iD * iD - ti * iD);
+            acc->G[4] += e * gw_ * dz[i];
+            acc->G[5] += e * gt;
+            if (tx) acc->G[6] += e * gt * tx[i];
+        }
+    }
+}
+
 /* ---- boundary probabilities and moments --------------------------------------------------------- */
 
 /* wc = 1 - w exactly (see log_dens_lo_c) */
@@ -364,46 +513,65 @@ bl_status bl_wiener_log_density_grad(const bl_wiener_params *p, double rt, int u
     return blw_log_density_full(p, rt, upper, log_density, grad, err);
 }
 
+/* log of the drift integrand of P(boundary): normal log-weight plus log P at drift v + sv x. */
+static double drift_log_integrand(double x, double v, double a, double w, double sv, int upper)
+{
+    return -0.5 * x * x + blw_log_p(v + sv * x, a, w, upper);
+}
+
 /* P(boundary) and E[T | boundary] averaged over the drift_sd normal and the start_range uniform.
- * Drift: composite Gauss-Legendre over x in [-9, 9] (nu = v + sv x, normal weight), panels no wider
- * than the distance pi/(a sv) of P's poles from the real axis; start: Gauss-Legendre, 24 nodes.
- * Not a hot path (used for predictions), so it favours accuracy (checked against GSL qagi to 1e-9). */
+ * Drift: composite Gauss-Legendre over x (nu = v + sv x, normal weight) on [-9, 9] joined with
+ * [x* - 9, x* + 9], x* the maximum of -x^2/2 + log P(v + sv x) (for a rare boundary the integrand peaks
+ * near x* = 2a(1-w)sv, far beyond 9 SD); panels no wider than the distance pi/(a sv) of P's poles from
+ * the real axis; start: Gauss-Legendre, 24 nodes. Summed in logs relative to the peak, so probabilities
+ * of 1e-300 keep their digits. Not a hot path (used for predictions), so it favours accuracy
+ * (checked against GSL qagi to 1e-9 and against mpmath). */
 static void moments_var(double a, double v, double w, double sv, double sz, int upper, double *prob,
                         double *mean_t)
 {
     const double *gx, *gw, *lx, *lw;
     static const double one = 1, zero = 0;
     int panels = 1, ng = 1, nl = 1;
-    double half = 0;
+    double half = 0, xlo = 0, href = blw_log_p(v, a, w, upper);
     gx = lx = &zero;
     gw = lw = &one;
     if (sv > 0) {
+        /* the log-integrand is concave in x: golden-section search for its maximum on [-60, 60] */
+        double l = -60, r = 60, g = 0.6180339887498949;
+        for (int it = 0; it < 90; it++) {
+            double m1 = r - g * (r - l), m2 = l + g * (r - l);
+            if (drift_log_integrand(m1, v, a, w, sv, upper) < drift_log_integrand(m2, v, a, w, sv, upper)) l = m1;
+            else r = m2;
+        }
+        double xs = 0.5 * (l + r);
+        href = drift_log_integrand(xs, v, a, w, sv, upper);
+        xlo = fmin(-9, xs - 9);
+        double xhi = fmax(9, xs + 9);
         double width = fmin(1.5, BLW_PI / (a * sv));
-        panels = (int)ceil(18 / width);
-        if (panels > 400) panels = 400;
-        half = 9.0 / panels;
+        panels = (int)ceil((xhi - xlo) / width);
+        if (panels > 800) panels = 800;
+        half = 0.5 * (xhi - xlo) / panels;
         blw_gauss_legendre(ng = 16, &gx, &gw);
     }
     if (sz > 0) blw_gauss_legendre(nl = 24, &lx, &lw);
-    /* Weighted in logs relative to the plain-parameter probability so tiny probabilities work. */
-    double ref = blw_log_p(v, a, w, upper);
     double P = 0, M = 0;
     for (int pi = 0; pi < panels; pi++) {
-        double centre = sv > 0 ? -9 + (2 * pi + 1) * half : 0;
+        double centre = sv > 0 ? xlo + (2 * pi + 1) * half : 0;
         for (int i = 0; i < ng; i++) {
             double xi = centre + half * gx[i];
-            double wi = sv > 0 ? gw[i] * 2 * half * exp(-0.5 * xi * xi) * 0.39894228040143267794 : 1;
+            /* normal weight in logs, relative to the peak href */
+            double lwi = sv > 0 ? log(gw[i] * 2 * half * 0.39894228040143267794) - 0.5 * xi * xi : 0;
             double vi = v + sv * xi;
             for (int j = 0; j < nl; j++) {
                 double wj = w + 0.5 * sz * lx[j];
-                double pij = wi * lw[j] * exp(blw_log_p(vi, a, wj, upper) - ref);
+                double pij = lw[j] * exp(lwi + blw_log_p(vi, a, wj, upper) - href);
                 double mij = blw_mean_t(vi, a, wj, upper);
                 P += pij;
                 M += pij * mij;
             }
         }
     }
-    if (prob) *prob = exp(ref) * P;
+    if (prob) *prob = exp(href) * P;
     if (mean_t) *mean_t = M / P;
 }
 

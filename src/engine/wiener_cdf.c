@@ -293,12 +293,6 @@ bl_status blw_log_cdf(double t, double v, double a, double w, int upper, double 
                  : cdf_lo_c(t, v, a, w, 1 - w, NAN, log_cdf, log_surv);
 }
 
-/* log F at the boundary with log P(boundary) already known (saves the probability per call) */
-static bl_status log_cdf_lp(double t, double v, double a, double w, int upper, double lP, double *log_cdf)
-{
-    return upper ? cdf_lo_c(t, -v, a, 1 - w, w, lP, log_cdf, NULL) : cdf_lo_c(t, v, a, w, 1 - w, lP, log_cdf, NULL);
-}
-
 bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, double *log_cdf, double dl[3])
 {
     if (!(t > 0)) {
@@ -328,88 +322,137 @@ static bl_status surv_direct(double t, double v, double a, double w, double sv, 
 
 /* ---- density with variability ------------------------------------------------------------------- */
 
-/* log F (surv = 0) or log S (surv = 1, large-time series; only for y/a^2 >= 0.25) at decision time y
- * for one start value, averaged over the drift_sd normal by Gauss-Hermite.
- * dl (optional) receives d log F (or log S) / d(a, v, w, sv). */
-static bl_status cdf_sv(double y, double v, double a, double w, double sv, int upper, int surv, double lP,
-                        double *lF, double dl[4])
+/* ---- integral of the density over a window of decision times ------------------------------------ */
+
+/* Running sum of exp(term) and of exp(term) * g[], kept relative to its largest term (log space). */
+typedef struct {
+    double mx, S, G[BLW_NG];
+    int grad;
+} wsum;
+
+/* Adds a block (its own maximum mx, sum S relative to it, gradient sums G) to the running sum. */
+static void wsum_merge(wsum *acc, double mx, double S, const double *G)
 {
-    bl_status s;
-    if (surv) return surv_direct(y, v, a, w, sv, upper, lF, dl);
-    if (sv == 0) {
-        if (!dl) return log_cdf_lp(y, v, a, w, upper, lP, lF);
-        s = blw_log_cdf_grad(y, v, a, w, upper, lF, dl); /* fills dl[0..2] */
-        dl[3] = 0;
-        return s;
+    if (mx == -INFINITY || S == 0) return;
+    double ra = 1, rb = 1;
+    if (mx > acc->mx) {
+        ra = acc->mx == -INFINITY ? 0 : exp(acc->mx - mx);
+        acc->mx = mx;
+    } else {
+        rb = exp(mx - acc->mx);
     }
-    const double *gx, *gw;
-    int n = blw_gauss_hermite(blw_gh_nodes_drift_sd(sv, a, y), &gx, &gw);
-    double lfi[96], di[96][3];
-    double mx = -INFINITY;
-    for (int i = 0; i < n; i++) {
-        double vi = v + sv * gx[i];
-        s = dl ? blw_log_cdf_grad(y, vi, a, w, upper, &lfi[i], di[i]) : blw_log_cdf(y, vi, a, w, upper, &lfi[i], NULL);
-        if (s) return s;
-        if (lfi[i] > mx) mx = lfi[i];
-    }
-    if (mx == -INFINITY) {
-        *lF = -INFINITY;
-        if (dl) dl[0] = dl[1] = dl[2] = dl[3] = 0;
-        return BL_OK;
-    }
-    double S = 0, D[4] = {0, 0, 0, 0};
-    for (int i = 0; i < n; i++) {
-        double e = gw[i] * exp(lfi[i] - mx);
-        S += e;
-        if (dl) {
-            D[0] += e * di[i][0];
-            D[1] += e * di[i][1];
-            D[2] += e * di[i][2];
-            D[3] += e * di[i][1] * gx[i];
-        }
-    }
-    *lF = mx + log(S);
-    if (dl)
-        for (int j = 0; j < 4; j++) dl[j] = D[j] / S;
-    return BL_OK;
+    acc->S = acc->S * ra + S * rb;
+    if (acc->grad)
+        for (int j = 0; j < BLW_NG; j++) acc->G[j] = acc->G[j] * ra + G[j] * rb;
 }
 
-/* nondecision_range window narrow against the CDF's scale: average the density over t0' by 8-node
- * Gauss-Legendre (weights sum to 1). Gradient by differentiating under the sum. */
-static bl_status dens_narrow_window(const bl_wiener_params *p, double rt, double w, int upper, double *lf, double *g)
+/* Adds the terms exp(lt[i]) * wt[i] (with gradients g[i]) as one block; returns the block's log sum. */
+static double wsum_block(wsum *acc, int n, const double *lt, const double *wt, double (*g)[BLW_NG])
 {
-    const double *x = p->value;
-    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], sv = x[BL_DRIFT_SD];
-    double st = x[BL_NONDECISION_RANGE];
-    const double *gx, *gw;
-    blw_gauss_legendre(8, &gx, &gw);
-    double lfi[8], gi[8][BLW_NG], mx = -INFINITY;
-    for (int i = 0; i < 8; i++) {
-        lfi[i] = blw_log_dens(rt - t0 + 0.5 * st * gx[i], v, a, w, sv, upper, g ? gi[i] : NULL);
-        if (lfi[i] > mx) mx = lfi[i];
-    }
-    double S = 0, G[BLW_NG] = {0}, Gst = 0;
-    for (int i = 0; i < 8; i++) {
-        double e = gw[i] * exp(lfi[i] - mx);
+    double mx = -INFINITY, S = 0, G[BLW_NG] = {0};
+    for (int i = 0; i < n; i++)
+        if (lt[i] > mx) mx = lt[i];
+    if (mx == -INFINITY) return -INFINITY;
+    for (int i = 0; i < n; i++) {
+        double e = wt[i] * exp(lt[i] - mx);
         S += e;
-        if (g) {
-            for (int j = 0; j < BLW_NG; j++) G[j] += e * gi[i][j];
-            Gst += e * gi[i][BLW_GT] * 0.5 * gx[i];
-        }
+        if (acc->grad)
+            for (int j = 0; j < BLW_NG; j++) G[j] += e * g[i][j];
     }
-    *lf = mx + log(S);
-    if (g) {
-        g[BL_THRESHOLD] = G[BLW_GA] / S;
-        g[BL_DRIFT] = G[BLW_GV] / S;
-        g[BL_START] = G[BLW_GW] / S;
-        g[BL_DRIFT_SD] = G[BLW_GSV] / S;
-        g[BL_NONDECISION] = -G[BLW_GT] / S;
-        g[BL_NONDECISION_RANGE] = Gst / S;
-    }
-    return BL_OK;
+    wsum_merge(acc, mx, S, G);
+    return mx + log(S);
 }
 
-/* One start value: log density (no contaminants) with nondecision_range by the CDF difference.
+/* Cheap proxy for d log f / dt at the boundary (lower-boundary form with vv, z = distance of the start
+ * to the boundary): the drift_sd exponent's t-derivative plus, in small time, the leading image's
+ * z^2/(2t^2) - 3/(2t), else the large-time decay -pi^2/(2a^2). Sets the Gauss-Legendre node count. */
+static double slope_proxy(double t, double vv, double a, double z, double sv)
+{
+    double s2 = sv * sv, D = 1 + s2 * t;
+    double drift = -(s2 + vv * vv) / (2 * D) - s2 * (s2 * z * z - 2 * vv * z - vv * vv * t) / (2 * D * D);
+    double u = t / (a * a);
+    return drift + (u < BLW_U_SWITCH ? z * z / (2 * t * t) - 1.5 / t : -4.934802200544679309 / (a * a));
+}
+
+typedef struct {
+    double v, a, w, sv, vv, z;
+    int upper;
+} wparams;
+
+/* Gauss-Legendre over one panel [bot, top] (top / bot <= 2 unless bot = 0 is excluded by the caller).
+ * Node count n = ceil(2.5 + 2.5 sqrt(E) + 0.1 E + 9 h/c), E = h max |slope proxy| at the ends, h the
+ * half-width, c the centre (fitted to the minimum n for 1e-9 relative error over 86,000 windows,
+ * docs/methods.md); panels needing more than 40 nodes are halved. Returns the log of the panel sum. */
+static double window_panel(const wparams *P, double bot, double top, wsum *acc, int depth)
+{
+    double h = 0.5 * (top - bot), c = 0.5 * (top + bot);
+    double E = h * fmax(fabs(slope_proxy(bot, P->vv, P->a, P->z, P->sv)), fabs(slope_proxy(top, P->vv, P->a, P->z, P->sv)));
+    double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
+    if (nf > 40 && depth < 12) {
+        double l1 = window_panel(P, bot, c, acc, depth + 1), l2 = window_panel(P, c, top, acc, depth + 1);
+        return blw_logaddexp(l1, l2);
+    }
+    int n = nf >= BLW_GL_MAX ? BLW_GL_MAX : (int)ceil(nf);
+    const double *gx, *gw;
+    blw_gauss_legendre(n, &gx, &gw);
+    double lf[BLW_GL_MAX], wt[BLW_GL_MAX], g[BLW_GL_MAX][BLW_NG];
+    for (int i = 0; i < n; i++) {
+        lf[i] = blw_log_dens(c + h * gx[i], P->v, P->a, P->w, P->sv, P->upper, acc->grad ? g[i] : NULL);
+        wt[i] = 2 * h * gw[i];
+    }
+    return wsum_block(acc, n, lf, wt, g);
+}
+
+/* log of the integral of f(t | v, a, w, sv) at one boundary over t in [max(lo, 0), hi], hi > 0, and
+ * (G != NULL) the f-weighted average of d log f / d(a, v, w, t, sv) over the window.
+ * Panels from hi downwards with ratio 2 (each by window_panel). When the window reaches t = 0 the
+ * part below m = min(hi, z^2/20) (z = distance of the start to the boundary) goes by Gauss-Laguerre
+ * in x = 1/t: f dt = e^{-z^2 x/2} x^{-1/2} (smooth) dx there, so with x = 1/m + 2y/z^2 the weight
+ * e^{-y} carries the onset and the rest is smooth (its singularity lies >= 10 units away).
+ * The descent stops early once the density is rising at the panel's top and the panel adds less than
+ * e^-40 of the sum (the rest is then smaller still). */
+static double window_integral(double lo, double hi, double v, double a, double w, double sv, int upper,
+                              double G[BLW_NG])
+{
+    wparams P = {v, a, w, sv, upper ? -v : v, upper ? a * (1 - w) : a * w, upper};
+    wsum acc = {-INFINITY, 0, {0}, G != NULL};
+    double m = fmin(hi, 0.05 * P.z * P.z);
+    double floor_ = lo > 0 ? lo : m;
+    double top = hi;
+    int onset = lo <= 0;
+    for (int k = 0; top > floor_ && k < 200; k++) {
+        double bot = fmax(floor_, 0.5 * top);
+        double lp = window_panel(&P, bot, top, &acc, 0);
+        if (bot > floor_ && lp < acc.mx + log(acc.S) - 40 && slope_proxy(top, P.vv, a, P.z, sv) > 0) {
+            onset = 0;
+            break;
+        }
+        top = bot;
+    }
+    if (onset && m > 0) {
+        const double *y, *lw;
+        blw_gauss_laguerre(0, &y, &lw);
+        double beta = 0.5 * P.z * P.z, im = 1 / m, lb = log(beta);
+        double lt[BLW_GLAG_N], one[BLW_GLAG_N], g[BLW_GLAG_N][BLW_NG];
+        for (int j = 0; j < BLW_GLAG_N; j++) {
+            double x = im + y[j] / beta;
+            lt[j] = blw_log_dens(1 / x, v, a, w, sv, upper, G ? g[j] : NULL) + lw[j] + y[j] - 2 * log(x) - lb;
+            one[j] = 1;
+        }
+        wsum_block(&acc, BLW_GLAG_N, lt, one, g);
+    }
+    if (acc.S == 0) {
+        if (G)
+            for (int j = 0; j < BLW_NG; j++) G[j] = 0;
+        return -INFINITY;
+    }
+    if (G)
+        for (int j = 0; j < BLW_NG; j++) G[j] = acc.G[j] / acc.S;
+    return acc.mx + log(acc.S);
+}
+
+/* One start value: log density (no contaminants), nondecision_range as the average of the density
+ * over the window of decision times [rt - t0 - st/2, rt - t0 + st/2] (window_integral).
  * g (optional, BL_NPARAM entries) receives d log f for threshold, drift, nondecision, start,
  * drift_sd and nondecision_range. */
 static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, int upper, double *lf, double *g)
@@ -419,13 +462,13 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
     double st = x[BL_NONDECISION_RANGE];
     if (g)
         for (int i = 0; i < BL_NPARAM; i++) g[i] = 0;
+    double g5[BLW_NG];
     if (st == 0) {
         double t = rt - t0;
         if (!(t > 0)) {
             *lf = -INFINITY;
             return BL_OK;
         }
-        double g5[BLW_NG];
         *lf = blw_log_dens(t, v, a, w, sv, upper, g ? g5 : NULL);
         if (g) {
             g[BL_THRESHOLD] = g5[BLW_GA];
@@ -441,47 +484,329 @@ static bl_status dens_one_start(const bl_wiener_params *p, double rt, double w, 
         *lf = -INFINITY;
         return BL_OK;
     }
-    /* F(hi) - F(lo), or S(lo) - S(hi) when both ends are in the large-time range: there F is close to
-     * P(boundary) and the survival difference keeps the digits. */
-    int surv = lo / (a * a) >= BLW_U_SWITCH;
-    if (surv && sv == 0 && !g) {
-        /* S(lo) - S(hi) = 2 pi e^{pf_lo} [sum_lo - e^{pf_hi - pf_lo} sum_hi]: one log instead of four */
-        double vv = upper ? -v : v, ww = upper ? 1 - w : w, wc = upper ? w : 1 - w;
-        double pfl, sml, pfh, smh;
-        bl_status s = surv_plain_parts(lo, vv, a, ww, wc, &pfl, &sml);
-        if (!s) s = surv_plain_parts(hi, vv, a, ww, wc, &pfh, &smh);
-        if (s) return s;
-        double br = sml - exp(pfh - pfl) * smh;
-        if (!(br > 0)) br = 0;
-        if (br == 0 || sml > 1e3 * br) return dens_narrow_window(p, rt, w, upper, lf, g);
-        *lf = pfl + log(2 * BLW_PI * br / st);
-        return BL_OK;
+    if (sv == 0 && lo > 0) {
+        /* without drift_sd the window integral is the CDF difference F(hi) - F(lo) (two series instead
+         * of a Gauss rule); taken only when it keeps its digits: F(hi) < 1e3 (F(hi) - F(lo)) */
+        double lFh, lFl, dh[3], dl[3];
+        bl_status s = g ? blw_log_cdf_grad(hi, v, a, w, upper, &lFh, dh) : blw_log_cdf(hi, v, a, w, upper, &lFh, NULL);
+        if (!s) s = g ? blw_log_cdf_grad(lo, v, a, w, upper, &lFl, dl) : blw_log_cdf(lo, v, a, w, upper, &lFl, NULL);
+        double ld = s ? -INFINITY : blw_logsubexp(lFh, lFl);
+        if (ld > -INFINITY && lFh - ld < 6.9) {
+            *lf = ld - log(hi - lo);
+            if (!g) return BL_OK;
+            double rh = exp(lFh - ld), rl = exp(lFl - ld);
+            g[BL_THRESHOLD] = rh * dh[0] - rl * dl[0];
+            g[BL_DRIFT] = rh * dh[1] - rl * dl[1];
+            g[BL_START] = rh * dh[2] - rl * dl[2];
+            double fh = exp(blw_log_dens(hi, v, a, w, 0, upper, NULL) - ld);
+            double fl = exp(blw_log_dens(lo, v, a, w, 0, upper, NULL) - ld);
+            g[BL_NONDECISION] = fl - fh;
+            g[BL_NONDECISION_RANGE] = 0.5 * (fh + fl) - 1 / st;
+            return BL_OK;
+        }
     }
-    double lFhi, lFlo = -INFINITY, dhi[4] = {0, 0, 0, 0}, dlo[4] = {0, 0, 0, 0};
-    double lP = (!surv && sv == 0 && !g) ? blw_log_p(v, a, w, upper) : NAN;
-    bl_status s = cdf_sv(hi, v, a, w, sv, upper, surv, lP, &lFhi, g ? dhi : NULL);
-    if (!s && lo > 0) s = cdf_sv(lo, v, a, w, sv, upper, surv, lP, &lFlo, g ? dlo : NULL);
-    if (s) return s;
-    double ld = surv ? blw_logsubexp(lFlo, lFhi) : blw_logsubexp(lFhi, lFlo);
-    /* A window much narrower than the CDF's own scale (ratio F/(F(hi) - F(lo)) > 1e3) would lose
-     * digits to the subtraction; there ln f changes by less than 1/ratio across the window, so an
-     * 8-node Gauss-Legendre average of the density itself is exact to rounding. */
-    if (lo > 0 && ld > -INFINITY && exp((surv ? lFlo : lFhi) - ld) > 1e3) return dens_narrow_window(p, rt, w, upper, lf, g);
-    *lf = ld - log(st);
-    if (!g || ld == -INFINITY) return BL_OK;
-    double rh = exp(lFhi - ld), rl = lFlo == -INFINITY ? 0 : exp(lFlo - ld);
-    if (surv) {
-        rh = -rh;
-        rl = -rl;
-    }
-    static const int map[4] = {BL_THRESHOLD, BL_DRIFT, BL_START, BL_DRIFT_SD};
-    for (int j = 0; j < 4; j++) g[map[j]] = rh * dhi[j] - rl * dlo[j];
-    /* dF(y)/dy = f(y): d/dt0 = [f(lo) - f(hi)] / (F(hi) - F(lo)); d/dst adds the half-sum. */
-    double fh = exp(blw_log_dens(hi, v, a, w, sv, upper, NULL) - ld);
-    double fl = lo > 0 ? exp(blw_log_dens(lo, v, a, w, sv, upper, NULL) - ld) : 0;
+    double lI = window_integral(lo, hi, v, a, w, sv, upper, g ? g5 : NULL);
+    /* the average over the window as represented (for st ~ 1e-9 s, hi - lo differs from st in the 8th digit) */
+    *lf = lI - log(lo > 0 ? hi - lo : st);
+    if (!g || lI == -INFINITY) return BL_OK;
+    g[BL_THRESHOLD] = g5[BLW_GA];
+    g[BL_DRIFT] = g5[BLW_GV];
+    g[BL_START] = g5[BLW_GW];
+    g[BL_DRIFT_SD] = g5[BLW_GSV];
+    /* d/d(ends) of the integral: f at the ends (Leibniz rule); the window moves with -t0 and widens with st */
+    double fh = exp(blw_log_dens(hi, v, a, w, sv, upper, NULL) - lI);
+    double fl = lo > 0 ? exp(blw_log_dens(lo, v, a, w, sv, upper, NULL) - lI) : 0;
     g[BL_NONDECISION] = fl - fh;
     g[BL_NONDECISION_RANGE] = 0.5 * (fh + fl) - 1 / st;
     return BL_OK;
+}
+
+/* start_range: composite Gauss-Legendre over w' in [w - sz/2, w + sz/2] (panels of equal width, weights
+ * summing to 1). Node count from blw_gl_nodes_start_range at the earliest decision time of the window
+ * (the integrand's sharpest feature) and from the exponential factor exp(-v a w' + sv^2 a^2 w'^2/(2D))
+ * across the range; panels are added until a panel needs at most 40 nodes. */
+static bl_status dens_start_range(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], t0 = x[BL_NONDECISION], w = x[BL_START], sz = x[BL_START_RANGE];
+    double v = x[BL_DRIFT], sv = x[BL_DRIFT_SD];
+    double stw = x[BL_NONDECISION_RANGE], lo = rt - t0 - 0.5 * stw, hi = rt - t0 + 0.5 * stw;
+    double tmin = stw > 0 ? (lo > 0 ? fmax(lo, fmin(stw, 0.5 * (rt - t0))) : hi) : rt - t0;
+    if (!(tmin > 0)) tmin = 1e-3 * a * a;
+    double D = 1 + sv * sv * tmin;
+    double slope = fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / D; /* |d exponent / dw'| */
+    int P = 1, n;
+    while ((n = blw_gl_nodes_start_range(sz / P, tmin / (a * a), 0.5 * sz / P * slope)) > 40 && P < 64) P++;
+    const double *gx, *gw;
+    blw_gauss_legendre(n, &gx, &gw);
+    double mx = -INFINITY, S = 0, G[BL_NPARAM] = {0};
+    for (int j = 0; j < P; j++) {
+        double lfi[BLW_GL_MAX], gi[BLW_GL_MAX][BL_NPARAM], off = (j + 0.5) / P - 0.5;
+        double pmx = -INFINITY;
+        for (int i = 0; i < n; i++) {
+            double dz = off + 0.5 * gx[i] / P; /* w' = w + sz dz */
+            bl_status s = dens_one_start(p, rt, w + sz * dz, upper, &lfi[i], gd ? gi[i] : NULL);
+            if (s) return s;
+            if (gd) gi[i][BL_START_RANGE] = gi[i][BL_START] * dz;
+            if (lfi[i] > pmx) pmx = lfi[i];
+        }
+        if (pmx == -INFINITY) continue;
+        if (pmx > mx) {
+            double r = mx == -INFINITY ? 0 : exp(mx - pmx);
+            S *= r;
+            for (int k = 0; k < BL_NPARAM; k++) G[k] *= r;
+            mx = pmx;
+        }
+        for (int i = 0; i < n; i++) {
+            double e = gw[i] / P * exp(lfi[i] - mx);
+            S += e;
+            if (gd)
+                for (int k = 0; k < BL_NPARAM; k++) G[k] += e * gi[i][k];
+        }
+    }
+    if (mx == -INFINITY) {
+        *lfd = -INFINITY;
+        if (gd)
+            for (int k = 0; k < BL_NPARAM; k++) gd[k] = 0;
+        return BL_OK;
+    }
+    *lfd = mx + log(S);
+    if (gd)
+        for (int k = 0; k < BL_NPARAM; k++) gd[k] = G[k] / S;
+    return BL_OK;
+}
+
+static void acc_merge(blw_acc *to, const blw_acc *from)
+{
+    if (from->mx == -INFINITY || from->S == 0) return;
+    double ra = 1, rb = 1;
+    if (from->mx > to->mx) {
+        ra = to->mx == -INFINITY ? 0 : exp(to->mx - from->mx);
+        to->mx = from->mx;
+    } else {
+        rb = exp(from->mx - to->mx);
+    }
+    to->S = to->S * ra + from->S * rb;
+    if (to->grad)
+        for (int k = 0; k < BLW_GRID_NG; k++) to->G[k] = to->G[k] * ra + from->G[k] * rb;
+}
+
+static double acc_log(const blw_acc *acc)
+{
+    return acc->S > 0 ? acc->mx + log(acc->S) : -INFINITY;
+}
+
+typedef struct {
+    double a, v, w, sv, sz, slope_z; /* slope_z: |d exponent / dw'| for the start-range rule */
+    double zmin, vv;
+    int upper;
+} gctx;
+
+/* start_range node count at decision time t (rule of blw_gl_nodes_start_range); 1 without start_range */
+static int nodes_z(const gctx *C, double t)
+{
+    if (C->sz == 0) return 1;
+    return blw_gl_nodes_start_range(C->sz, t / (C->a * C->a), 0.5 * C->sz * C->slope_z);
+}
+
+/* Adds sum_i sum_j wt_i gw_j f(t_i, w + sz dz_j) for one row of times sharing a start rule of nz nodes. */
+static void add_rows(const gctx *C, int nt, const double *t, const double *wt, const double *tx, int nz, blw_acc *acc)
+{
+    static const double one = 1, zero = 0;
+    const double *zx = &zero, *zw = &one;
+    if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
+    double tt[BLW_GL_MAX], dz[BLW_GL_MAX], ww[BLW_GL_MAX], xx[BLW_GL_MAX];
+    for (int i = 0; i < nt; i++) {
+        for (int j = 0; j < nz; j++) {
+            tt[j] = t[i];
+            dz[j] = 0.5 * zx[j];
+            ww[j] = wt[i] * zw[j];
+            xx[j] = tx ? tx[i] : 0;
+        }
+        blw_point_sum(C->v, C->a, C->w, C->sv, C->sz, C->upper, nz, tt, dz, ww, xx, acc);
+    }
+}
+
+/* log of the start-averaged density at decision time t (no gradient) */
+static double start_avg(const gctx *C, double t)
+{
+    blw_acc acc = {-INFINITY, 0, {0}, 0};
+    double one = 1;
+    if (t > 0) add_rows(C, 1, &t, &one, NULL, nodes_z(C, t), &acc);
+    return acc_log(&acc);
+}
+
+/* Integral over the window [max(lo, 0), hi] of the start-averaged density: Gauss-Legendre panels from
+ * hi downwards with ratio 2 (window_panel's rules, the start rule at each panel's lower end) and, when
+ * the window reaches the onset, Gauss-Laguerre below m = min(hi, z_min^2/20) per start node (see
+ * window_integral). Returns 0 when a panel would need more than 40 nodes (caller: general path). */
+static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
+{
+    double a = C->a, m = fmin(hi, 0.05 * C->zmin * C->zmin);
+    double floor_ = lo > 0 ? lo : m, top = hi;
+    int onset = lo <= 0;
+    /* Node counts scale with log(1/tolerance): a part that carries a share s of the integral needs
+     * only 1e-9/s relative accuracy, i.e. the fraction log(1e-9/s)/log(1e-9) of the nodes (at least
+     * 0.3). Descending into the onset, each panel's share is estimated by the previous one's. */
+    double fct = 1, rest = 0;
+    for (int k = 0; top > floor_; k++) {
+        if (k > 60) return 0;
+        double bot = fmax(floor_, 0.5 * top), h = 0.5 * (top - bot), c = 0.5 * (top + bot);
+        double E = h * fmax(fabs(slope_proxy(bot, C->vv, a, C->zmin, C->sv)), fabs(slope_proxy(top, C->vv, a, C->zmin, C->sv)));
+        double nf = fct * (2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c);
+        int nz = nodes_z(C, bot);
+        if (nz > 1) nz = (int)ceil(fct * nz);
+        if (nf > 40 || nz > 40) return 0;
+        int nt = nf < 2 ? 2 : (int)ceil(nf);
+        const double *gx, *gw;
+        blw_gauss_legendre(nt, &gx, &gw);
+        double tt[BLW_GL_MAX], wt[BLW_GL_MAX];
+        for (int i = 0; i < nt; i++) {
+            tt[i] = c + h * gx[i];
+            wt[i] = 2 * h * gw[i];
+        }
+        /* the row nearest bot (Gauss-Legendre nodes ascend) first: its start average bounds the rest */
+        blw_acc pan = {-INFINITY, 0, {0}, acc->grad};
+        add_rows(C, 1, tt, wt, NULL, nz, &pan);
+        double lrow = acc_log(&pan) - log(wt[0]);
+        add_rows(C, nt - 1, tt + 1, wt + 1, NULL, nz, &pan);
+        acc_merge(acc, &pan);
+        double share = acc_log(&pan) - acc_log(acc); /* log of the panel's share, <= 0 */
+        int rising = slope_proxy(top, C->vv, a, C->zmin, C->sv) > 0;
+        /* below bot the density is rising: the rest is at most bot * f(bot) <= bot * f(first row) */
+        rest = log(bot) + lrow - acc_log(acc);
+        if (rising) fct = fmax(0.3, fmin(1, 1 + share / 20.7));
+        if (rising && rest < -23) {
+            onset = 0;
+            break;
+        }
+        /* rising density and a share below 1e-10: what lies below is smaller still (f increases on
+         * [0, top], so the rest is at most bot f(bot) <= this panel's sum) */
+        if (share < -23 && slope_proxy(top, C->vv, a, C->zmin, C->sv) > 0) {
+            onset = 0;
+            break;
+        }
+        top = bot;
+    }
+    if (onset && m > 0) {
+        const double *y, *lw, *zx = NULL, *zw = NULL;
+        static const double zero = 0, one = 1;
+        /* this part carries at most e^rest of the sum: looser start rule, and 8 Laguerre nodes when
+         * e^rest < 1e-3 (8 nodes agree with 16 to 6e-10 over a grid: tests/test_wiener_regress.c) */
+        double fl = fmax(0.3, fmin(fct, 1 + rest / 20.7));
+        int nz = nodes_z(C, m);
+        if (nz > 1) nz = (int)ceil(fl * nz);
+        if (nz > 40) return 0;
+        if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
+        else {
+            zx = &zero;
+            zw = &one;
+        }
+        int nl = blw_gauss_laguerre(rest < -6.9, &y, &lw);
+        double tt[BLW_GLAG_N], dz[BLW_GLAG_N], wt[BLW_GLAG_N];
+        for (int j = 0; j < nz; j++) {
+            double wp = C->w + 0.5 * C->sz * zx[j];
+            double z = C->upper ? a * (1 - wp) : a * wp, beta = 0.5 * z * z;
+            for (int l = 0; l < nl; l++) {
+                double x = 1 / m + y[l] / beta;
+                tt[l] = 1 / x;
+                dz[l] = 0.5 * zx[j];
+                wt[l] = zw[j] * exp(lw[l] + y[l]) / (x * x * beta);
+            }
+            blw_point_sum(C->v, a, C->w, C->sv, C->sz, C->upper, nl, tt, dz, wt, NULL, acc);
+        }
+    }
+    return 1;
+}
+
+/* start_range and/or nondecision_range (any drift_sd) as Gauss sums over (decision time, start):
+ * a window in the large-time range with lo >= hi/2 is one factorised tensor sum (blw_grid_large);
+ * otherwise grid_window's panels. Gradients: under the sums; t0 and st through the ends of the window
+ * (Leibniz rule, the start-averaged density at lo and hi). Returns 0 (caller takes the general path)
+ * when a rule asks for more than 40 nodes. */
+static int dens_grid(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd)
+{
+    const double *x = p->value;
+    double a = x[BL_THRESHOLD], v = x[BL_DRIFT], t0 = x[BL_NONDECISION], w = x[BL_START], sv = x[BL_DRIFT_SD];
+    double sz = x[BL_START_RANGE], st = x[BL_NONDECISION_RANGE];
+    double c = rt - t0, lo = c - 0.5 * st, hi = c + 0.5 * st;
+    if (!(hi > 0)) return 0;
+    double wb = upper ? 1 - w : w;
+    double tref = lo > 0 ? lo : fmin(hi, 0.5 * a * a);
+    gctx C = {a, v, w, sv, sz, fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / (1 + sv * sv * tref),
+              a * (wb - 0.5 * sz), upper ? -v : v, upper};
+    if (gd)
+        for (int k = 0; k < BL_NPARAM; k++) gd[k] = 0;
+    blw_acc acc = {-INFINITY, 0, {0}, gd != NULL};
+    double g[BLW_GRID_NG];
+    if (st == 0) {
+        int nz = nodes_z(&C, c);
+        if (nz > 40) return 0;
+        if (c >= BLW_U_SWITCH * a * a) {
+            const double *zx, *zw;
+            double dz[BLW_GL_MAX];
+            blw_gauss_legendre(nz, &zx, &zw);
+            for (int j = 0; j < nz; j++) dz[j] = 0.5 * zx[j];
+            double one = 1;
+            *lfd = blw_grid_large(v, a, w, sv, sz, upper, 1, &c, &one, NULL, nz, dz, zw, gd ? g : NULL);
+        } else {
+            double one = 1;
+            add_rows(&C, 1, &c, &one, NULL, nz, &acc);
+            *lfd = acc_log(&acc);
+            for (int k = 0; k < BLW_GRID_NG; k++) g[k] = acc.S > 0 ? acc.G[k] / acc.S : 0;
+        }
+        if (gd && *lfd > -INFINITY) {
+            gd[BL_THRESHOLD] = g[0];
+            gd[BL_DRIFT] = g[1];
+            gd[BL_START] = g[2];
+            gd[BL_DRIFT_SD] = g[3];
+            gd[BL_START_RANGE] = g[4];
+            gd[BL_NONDECISION] = -g[5];
+        }
+        return 1;
+    }
+    if (lo >= 0.5 * hi && lo >= BLW_U_SWITCH * a * a) {
+        /* one panel in large time: factorised tensor, derivative of the rule itself for t0 and st */
+        double h = 0.5 * st;
+        double E = h * fmax(fabs(slope_proxy(lo, C.vv, a, a * wb, sv)), fabs(slope_proxy(hi, C.vv, a, a * wb, sv)));
+        double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
+        int nz = nodes_z(&C, lo);
+        if (nf > 40 || nz > 40) return 0;
+        int nt = (int)ceil(nf);
+        const double *gx, *gw, *zx, *zw;
+        blw_gauss_legendre(nt, &gx, &gw);
+        blw_gauss_legendre(nz, &zx, &zw);
+        double tt[BLW_GL_MAX], tx[BLW_GL_MAX], dz[BLW_GL_MAX];
+        for (int i = 0; i < nt; i++) {
+            tt[i] = c + h * gx[i];
+            tx[i] = 0.5 * gx[i];
+        }
+        for (int j = 0; j < nz; j++) dz[j] = 0.5 * zx[j];
+        *lfd = blw_grid_large(v, a, w, sv, sz, upper, nt, tt, gw, tx, nz, dz, zw, gd ? g : NULL);
+        if (gd && *lfd > -INFINITY) {
+            gd[BL_THRESHOLD] = g[0];
+            gd[BL_DRIFT] = g[1];
+            gd[BL_START] = g[2];
+            gd[BL_DRIFT_SD] = g[3];
+            gd[BL_START_RANGE] = sz > 0 ? g[4] : 0;
+            gd[BL_NONDECISION] = -g[5];
+            gd[BL_NONDECISION_RANGE] = g[6];
+        }
+        return 1;
+    }
+    if (!grid_window(&C, lo, hi, &acc)) return 0;
+    double lI = acc_log(&acc);
+    *lfd = lI - log(lo > 0 ? hi - lo : st);
+    if (!gd || lI == -INFINITY) return 1;
+    gd[BL_THRESHOLD] = acc.G[0] / acc.S;
+    gd[BL_DRIFT] = acc.G[1] / acc.S;
+    gd[BL_START] = acc.G[2] / acc.S;
+    gd[BL_DRIFT_SD] = acc.G[3] / acc.S;
+    gd[BL_START_RANGE] = acc.G[4] / acc.S;
+    double fh = exp(start_avg(&C, hi) - lI), fl = lo > 0 ? exp(start_avg(&C, lo) - lI) : 0;
+    gd[BL_NONDECISION] = fl - fh;
+    gd[BL_NONDECISION_RANGE] = 0.5 * (fh + fl) - 1 / st;
+    return 1;
 }
 
 bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld, double *grad,
@@ -489,50 +814,16 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
 {
     if (!blw_tables_ok()) return bl_error_set(err, BL_ERR_NOMEM, "cannot build the quadrature tables");
     const double *x = p->value;
-    double a = x[BL_THRESHOLD], t0 = x[BL_NONDECISION], w = x[BL_START], sz = x[BL_START_RANGE];
+    double w = x[BL_START], sz = x[BL_START_RANGE];
     double p0 = x[BL_CONTAMINATION];
     double lfd, gd[BL_NPARAM];
     bl_status s;
-    if (sz == 0) {
-        s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);
-    } else {
-        /* Gauss-Legendre over w' in [w - sz/2, w + sz/2]; node count from the earliest decision
-         * time in the window (the integrand's sharpest feature). */
-        /* with nondecision_range the integrand is a CDF difference, smooth across the window:
-         * half its middle sets the scale (verified to 1e-6 with tests/test_wiener_variability.c) */
-        double stw = x[BL_NONDECISION_RANGE], lo = rt - t0 - 0.5 * stw, hi = rt - t0 + 0.5 * stw;
-        double tmin = stw > 0 ? (lo > 0 ? fmax(lo, fmin(stw, 0.5 * (rt - t0))) : hi) : rt - t0;
-        if (!(tmin > 0)) tmin = 1e-3 * a * a;
-        const double *gx, *gw;
-        int n = blw_gl_nodes_start_range(sz, tmin / (a * a));
-        blw_gauss_legendre(n, &gx, &gw);
-        double lfi[BLW_GL_MAX], gi[BLW_GL_MAX][BL_NPARAM];
-        double mx = -INFINITY;
+    if (dens_grid(p, rt, upper, &lfd, grad ? gd : NULL))
         s = BL_OK;
-        for (int i = 0; i < n && !s; i++) {
-            s = dens_one_start(p, rt, w + 0.5 * sz * gx[i], upper, &lfi[i], grad ? gi[i] : NULL);
-            if (lfi[i] > mx) mx = lfi[i];
-        }
-        if (!s) {
-            if (mx == -INFINITY) {
-                lfd = -INFINITY;
-                for (int j = 0; j < BL_NPARAM; j++) gd[j] = 0;
-            } else {
-                double S = 0, G[BL_NPARAM] = {0};
-                for (int i = 0; i < n; i++) {
-                    double e = gw[i] * exp(lfi[i] - mx);
-                    S += e;
-                    if (grad) {
-                        for (int j = 0; j < BL_NPARAM; j++) G[j] += e * gi[i][j];
-                        G[BL_START_RANGE] += e * gi[i][BL_START] * 0.5 * gx[i];
-                    }
-                }
-                lfd = mx + log(S);
-                if (grad)
-                    for (int j = 0; j < BL_NPARAM; j++) gd[j] = G[j] / S;
-            }
-        }
-    }
+    else if (sz == 0)
+        s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);
+    else
+        s = dens_start_range(p, rt, upper, &lfd, grad ? gd : NULL);
     if (s) return bl_error_set(err, s, "Wiener CDF series did not converge at rt %g", rt);
     double lo = p->contamination_lo, hi = p->contamination_hi;
     double c = (lo < hi && rt >= lo && rt <= hi) ? 0.5 / (hi - lo) : 0;
@@ -581,7 +872,7 @@ static bl_status cdf_decision(const bl_wiener_params *p, double y, int upper, do
     lw = hw = &one;
     if (sz > 0) {
         /* twice the density's rule: the CDF feeds quantiles, where accuracy matters more than speed */
-        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a));
+        nl = 2 * blw_gl_nodes_start_range(sz, y / (a * a), 0.5 * sz * (fabs(v * a) + sv * sv * a * a));
         if (nl > BLW_GL_MAX) nl = BLW_GL_MAX;
         blw_gauss_legendre(nl, &lx, &lw);
     }

@@ -38,6 +38,21 @@ double blw_log_dens_lo(double t, double v, double a, double w, double sv, double
 /* Same for a boundary (upper != 0: upper), derivatives mirrored back. */
 double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g);
 
+/* Tensor Gauss sums of the density over decision times and starts, all in the large-time range
+ * (t/a^2 >= 0.25); see wiener.c. Node counts at most 66 (times) and 40 (starts); NAN beyond. */
+enum { BLW_GRID_NG = 7 };
+double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
+                      const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
+                      double g[BLW_GRID_NG]);
+/* Log-sum state: sum S of exp(E) R relative to exp(mx), and (grad) the sums of the same terms times
+ * d log f / d(a, v, w, sv, sz, t) and (d log f / dt) tx. Start with {-INFINITY, 0, {0}, grad}. */
+typedef struct {
+    double mx, S, G[BLW_GRID_NG];
+    int grad;
+} blw_acc;
+void blw_point_sum(double v, double a, double w, double sv, double sz, int upper, int n, const double *t,
+                   const double *dz, const double *wt, const double *tx, blw_acc *acc);
+
 /* log P(lower) and log P(boundary) without variability; stable for any v*a. */
 double blw_log_p_lo(double v, double a, double w);
 double blw_log_p(double v, double a, double w, int upper);
@@ -66,11 +81,17 @@ bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, do
 #define BLW_GL_MAX 64
 void blw_gauss_legendre(int n, const double **x, const double **wt);
 int blw_gauss_hermite(int n, const double **x, const double **wt); /* returns the n actually used */
+/* Gauss-Laguerre rule for weight e^{-y} on [0, inf) with BLW_GLAG_N nodes (8 when small != 0);
+ * weights given as logs; returns the node count. */
+#define BLW_GLAG_N 16
+int blw_gauss_laguerre(int small, const double **y, const double **log_wt);
 /* 1 when the tables were built (0 only after an allocation failure). */
 int blw_tables_ok(void);
 
 /* Node counts chosen from the parameters (docs/methods.md explains how they were verified). */
-int blw_gl_nodes_start_range(double sz, double u);
+/* Gauss-Legendre nodes over start_range sz at u = t/a^2, with e_z = (sz/2) |d/dw' of the density's
+ * exponential factor| (the variation of exp(-v a w' + ...) across the range); capped at BLW_GL_MAX. */
+int blw_gl_nodes_start_range(double sz, double u, double e_z);
 int blw_gh_nodes_drift_sd(double sv, double a, double t);
 
 /* log(exp(x) + exp(y)) and log(exp(x) - exp(y)) for x >= y. */

@@ -17,6 +17,8 @@ static const int gh_sizes[] = {12, 20, 32, 48, 64, 96};
 #define GH_COUNT ((int)(sizeof gh_sizes / sizeof gh_sizes[0]))
 static double gh_x[GH_COUNT][96], gh_w[GH_COUNT][96];
 static int tables_ok;
+/* Gauss-Laguerre (weight e^{-y} on [0, inf)), BLW_GLAG_N nodes, weights as logs */
+static double glag_y[BLW_GLAG_N], glag_lw[BLW_GLAG_N], glag8_y[8], glag8_lw[8];
 
 static pthread_once_t once = PTHREAD_ONCE_INIT;
 
@@ -57,7 +59,31 @@ static void build_tables(void)
         }
         gsl_integration_fixed_free(ws);
     }
+    for (int r = 0; r < 2; r++) {
+        int nl = r ? 8 : BLW_GLAG_N;
+        double *ly = r ? glag8_y : glag_y, *llw = r ? glag8_lw : glag_lw;
+        gsl_integration_fixed_workspace *lg =
+            gsl_integration_fixed_alloc(gsl_integration_fixed_laguerre, (size_t)nl, 0.0, 1.0, 0.0, 0.0);
+        if (!lg) {
+            ok = 0;
+            continue;
+        }
+        const double *xs = gsl_integration_fixed_nodes(lg), *ws_ = gsl_integration_fixed_weights(lg);
+        for (int i = 0; i < nl; i++) {
+            ly[i] = xs[i];
+            llw[i] = log(ws_[i]);
+        }
+        gsl_integration_fixed_free(lg);
+    }
     tables_ok = ok;
+}
+
+int blw_gauss_laguerre(int small, const double **y, const double **log_wt)
+{
+    pthread_once(&once, build_tables);
+    *y = small ? glag8_y : glag_y;
+    *log_wt = small ? glag8_lw : glag_lw;
+    return small ? 8 : BLW_GLAG_N;
 }
 
 void blw_gauss_legendre(int n, const double **x, const double **wt)
@@ -86,12 +112,13 @@ int blw_tables_ok(void)
     return tables_ok;
 }
 
-int blw_gl_nodes_start_range(double sz, double u)
+int blw_gl_nodes_start_range(double sz, double u, double e_z)
 {
-    /* Fitted to the minimum node counts for 1e-7 relative error over a grid (docs/methods.md):
-     * about 3 + 4.5 sz at large u, growing like sqrt(sz/u) and then sz/u as u -> 0. */
+    /* Fitted to the minimum node counts for 1e-9 relative error over a grid (docs/methods.md):
+     * about 3 + 4.5 sz at large u, growing like sqrt(sz/u) and then sz/u as u -> 0, plus a term for
+     * the exponential factor exp(-v a w') across the range (a |v| sz = 27 needs ~20 more nodes). */
     double r = sz / u;
-    double n = fmax(3 + 4.5 * sz, 4 + 1.1 * sqrt(r) + 0.03 * r);
+    double n = fmax(3 + 4.5 * sz, 4 + 1.1 * sqrt(r) + 0.03 * r) + 0.5 + 0.5 * sqrt(e_z) + 0.5 * e_z;
     return n >= BLW_GL_MAX ? BLW_GL_MAX : (int)ceil(n);
 }
 

@@ -170,6 +170,7 @@ typedef struct {
     double *cache_x, *cache_g, cache_f;
     int cache_valid;
     int out_of_memory; /* an optimiser workspace could not be allocated: the fit must fail, not skip a start */
+    double gtol;       /* BFGS stops at this per-trial gradient (loose when Newton steps follow) */
 } objective;
 
 static void evaluate_point(objective *o, const gsl_vector *x)
@@ -216,7 +217,14 @@ static double obj_f_finite(const gsl_vector *x, void *params)
     return isfinite(f) ? f : 1e300;
 }
 
-/* BFGS from x (updated in place). Returns the minimum found (+inf if the start is infeasible). */
+/* BFGS from x (updated in place). Returns the minimum found (+inf if the start is infeasible).
+ * Stopping rule: the objective is the mean negative log-likelihood per trial, so a gradient of g per
+ * trial is n*g in log-likelihood units; BFGS stops at |g| <= o->gtol per trial (1e-3 when Newton steps
+ * with the observed information follow, else 1e-5), or when five iterations
+ * together lower the objective by less than 1e-12 per trial (the line search is then working in
+ * the quadrature's rounding), at most 500 iterations per restart. The last digits are left to the
+ * Newton steps of bl_fit_core, which stop in standard-error units (the Newton decrement
+ * sqrt(g' I^-1 g), I the observed information) and converge quadratically. */
 static double run_bfgs(objective *o, gsl_vector *x, size_t *iterations)
 {
     gsl_multimin_function_fdf fdf = {obj_f, obj_df, obj_fdf, o->k, o};
@@ -229,18 +237,20 @@ static double run_bfgs(objective *o, gsl_vector *x, size_t *iterations)
     /* Restarts reset the curvature estimate, which often gets a stalled line search moving again. */
     for (int restart = 0; restart < 3; restart++) {
         if (gsl_multimin_fdfminimizer_set(s, &fdf, x, 0.1, 0.1) != GSL_SUCCESS || !isfinite(s->f)) break;
-        double f_before = s->f;
-        for (size_t it = 0; it < 2000; it++) {
+        double f_before = s->f, hist[5];
+        for (size_t it = 0; it < 500; it++) {
             (*iterations)++;
+            hist[it % 5] = s->f;
             int st = gsl_multimin_fdfminimizer_iterate(s);
             if (st != GSL_SUCCESS) break;
-            if (gsl_multimin_test_gradient(s->gradient, 1e-9) == GSL_SUCCESS) break;
+            if (gsl_multimin_test_gradient(s->gradient, o->gtol) == GSL_SUCCESS) break;
+            if (it >= 5 && hist[(it + 1) % 5] - s->f < 1e-12) break;
         }
         if (isfinite(s->f) && s->f <= best) {
             best = s->f;
             gsl_vector_memcpy(x, s->x);
         }
-        if (gsl_multimin_test_gradient(s->gradient, 1e-8) == GSL_SUCCESS) break;
+        if (gsl_multimin_test_gradient(s->gradient, o->gtol) == GSL_SUCCESS) break;
         if (!(f_before - s->f > 1e-12)) break;
     }
     gsl_multimin_fdfminimizer_free(s);
@@ -526,7 +536,9 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         if (g && isfinite(f)) {
             double fv;
             obj_fdf(x, o, &fv, g);
-            stalled = gsl_multimin_test_gradient(g, 1e-5) != GSL_SUCCESS;
+            /* near a stationary point (per-trial gradient 1e-3, i.e. within Newton's reach) the
+             * Newton steps of bl_fit_core finish the job; the simplex is for real stalls */
+            stalled = gsl_multimin_test_gradient(g, 1e-3) != GSL_SUCCESS;
         }
         gsl_vector_free(g);
         if (stalled) {
@@ -604,6 +616,21 @@ static bl_status explain_zero_likelihood(const bl_model *m, bl_likelihood *lik, 
                         m->name, m->row[k] + 1, m->rt[k], p.value[BL_NONDECISION], p.value[BL_NONDECISION_RANGE]);
 }
 
+/* BFGS (o->gtol) from coef, updated in place when it improves. Returns 1 on allocation failure. */
+static int refine_bfgs(objective *o, double *coef)
+{
+    gsl_vector *x = gsl_vector_alloc(o->k);
+    if (!x) return 1;
+    for (size_t j = 0; j < o->k; j++) gsl_vector_set(x, j, to_x(&o->tr[j], coef[j]));
+    size_t it = 0;
+    double f0 = obj_f(x, o);
+    double f = run_bfgs(o, x, &it);
+    if (f < f0)
+        for (size_t j = 0; j < o->k; j++) coef[j] = to_coef(&o->tr[j], gsl_vector_get(x, j));
+    gsl_vector_free(x);
+    return o->out_of_memory;
+}
+
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                           const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
 {
@@ -631,7 +658,7 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         st = explain_zero_likelihood(m, lik, start, err);
         goto fail;
     }
-    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0};
+    objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0, infer ? 1e-3 : 1e-5};
     start_result best = {0, coef, 0, 0};
     int agreed = 0;
     optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
@@ -657,11 +684,14 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         info = malloc(k * k * sizeof *info);
         cov = malloc(k * k * sizeof *cov);
         if (!info || !cov) goto nomem;
-        int pd = 0;
+        int pd = 0, retried = 0;
         double cond = NAN;
+    polish_again:
         /* Newton polishing with the observed information: each step is checked to raise the
-         * likelihood, so it can only help. */
-        for (int polish = 0; polish < 4; polish++) {
+         * likelihood (halved up to three times when it does not), so it can only help. The loop
+         * stops when the Newton decrement -- the gradient in standard-error units -- is below 1e-4
+         * (log-likelihood gap ~5e-9), at most 8 steps. */
+        for (int polish = 0; polish < 8; polish++) {
             int oi = 0, inv = 0;
             if ((st = observed_information(lik, m, coef, info, &oi, err))) goto fail;
             if (oi && (st = bl_information_inverse(info, k, cov, &cond, &inv, err))) goto fail;
@@ -671,17 +701,29 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
             for (size_t i = 0; i < k; i++)
                 for (size_t j = 0; j < k; j++) nd2 += grad[i] * cov[i * k + j] * grad[j];
             res->diag.newton_decrement = sqrt(fmax(nd2, 0));
-            if (res->diag.newton_decrement < 1e-6 || polish == 3) break;
-            for (size_t i = 0; i < k; i++) {
-                double step = 0;
-                for (size_t j = 0; j < k; j++) step += cov[i * k + j] * grad[j];
-                wcoef[i] = coef[i] + step;
+            if (res->diag.newton_decrement < 1e-4 || polish == 7) break;
+            double ll2 = -INFINITY;
+            for (int half = 0; half < 4 && !(ll2 > ll); half++) {
+                double scale = ldexp(1.0, -half);
+                for (size_t i = 0; i < k; i++) {
+                    double step = 0;
+                    for (size_t j = 0; j < k; j++) step += cov[i * k + j] * grad[j];
+                    wcoef[i] = coef[i] + scale * step;
+                }
+                ll2 = bl_likelihood_eval(lik, wcoef, wgrad);
             }
-            double ll2 = bl_likelihood_eval(lik, wcoef, wgrad);
             if (!(ll2 > ll)) break;
             ll = ll2;
             memcpy(coef, wcoef, k * sizeof *coef);
             memcpy(grad, wgrad, k * sizeof *grad);
+        }
+        if ((!pd || !(res->diag.newton_decrement <= BL_FIT_CONVERGED_DECREMENT)) && o.gtol > 1e-5 && !retried) {
+            /* Newton could not finish from the loose BFGS point: tight BFGS from here, then again */
+            retried = 1;
+            o.gtol = 1e-5;
+            if (refine_bfgs(&o, coef)) goto nomem;
+            ll = bl_likelihood_eval(lik, coef, grad);
+            goto polish_again;
         }
         res->log_likelihood = ll;
         res->diag.hessian_positive_definite = pd;
@@ -779,6 +821,30 @@ static int edge_estimates(const bl_model *m, const bl_fit_result *r, char *buf, 
     return found;
 }
 
+/* Intercept-only identity-link range parameters (drift_sd, start_range, nondecision_range,
+ * contamination) whose 95% Wald interval reaches below 0, listed into buf: the estimate is near the
+ * boundary of the parameter space, where the normal approximation behind the interval fails. */
+static int wald_below_zero(const bl_model *m, const bl_fit_result *r, char *buf, size_t n)
+{
+    int found = 0;
+    buf[0] = '\0';
+    for (size_t j = 0; j < r->n_coef; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (ci->slope >= 0 || d->n_slopes || d->link != BL_LINK_IDENTITY) continue;
+        if (ci->param != BL_DRIFT_SD && ci->param != BL_START_RANGE && ci->param != BL_NONDECISION_RANGE &&
+            ci->param != BL_CONTAMINATION)
+            continue;
+        const bl_coefficient *c = &r->coef[j];
+        if (!(c->ci_low < 0) || c->estimate < 1e-3) continue; /* at the edge: edge_estimates reports it */
+        size_t len = strlen(buf);
+        snprintf(buf + len, n - len, "%s%s%s%s (%.3g, interval %.3g to %.3g)", found ? ", " : "",
+                 bl_param_name(ci->param), ci->level[0] ? " " : "", ci->level, c->estimate, c->ci_low, c->ci_high);
+        found = 1;
+    }
+    return found;
+}
+
 void bl_fit_warn(const bl_model *m, const char *participant, const bl_fit_result *r, bl_warnings *warn)
 {
     char who[512], edge[512];
@@ -797,6 +863,12 @@ void bl_fit_warn(const bl_model *m, const char *participant, const bl_fit_result
     else if (at_edge)
         bl_warnings_add(warn, "%s: estimates at the edge of their range (Wald intervals unreliable there): %s", who,
                         edge);
+    char wald[512];
+    if (r->diag.hessian_positive_definite && wald_below_zero(m, r, wald, sizeof wald))
+        bl_warnings_add(warn,
+                        "%s: boundary estimates, Wald intervals reach below 0 (impossible values; the interval "
+                        "is not reliable near the edge of the range): %s",
+                        who, wald);
     if (r->diag.starts_agreed < r->diag.starts)
         bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
                         r->diag.starts_agreed, r->diag.starts);

@@ -76,8 +76,10 @@ def mean_b(v, a, w, upper):
     v, a, w = mp.mpf(v), mp.mpf(a), mp.mpf(w)
     z = a * w if upper else a * (1 - w)
     vv = v if upper else -v
-    if vv == 0:
-        return (a * a - z * z) / 3
+    if abs(vv * a) < mp.mpf(10) ** -(mp.mp.dps // 3):
+        # the coth terms cancel near v = 0 (a quadrature node can fall there): series of the
+        # numerics notes, section 3, error O((va)^4)
+        return (a * a - z * z) / 3 - (a**4 - z**4) * vv * vv / 45
     return (a * mp.coth(vv * a) - z * mp.coth(vv * z)) / vv
 
 
@@ -179,6 +181,73 @@ def variability_case():
             check(rel(e[name], ref) < 1e-9, "nondecision_range %g: density %s at rt %g vs mpmath.quad over t0" % (st, name, e["rt"]))
 
 
+def f_sv_b(t, v, a, w, sv, upper):
+    """drift_sd closed form (Blurton, Kesselmeier & Gondan 2017, J. Math. Psych. 76:7-12): the plain
+    series at drift 0 times exp((sv^2 z^2 - 2 v z - v^2 t) / (2D)) / sqrt(D), D = 1 + sv^2 t, z the
+    distance of the start to the boundary; checked below against mpmath.quad over the drift."""
+    t, v, a, sv = mp.mpf(t), mp.mpf(v), mp.mpf(a), mp.mpf(sv)
+    if t <= 0:
+        return mp.mpf(0)
+    ww = 1 - mp.mpf(w) if upper else mp.mpf(w)
+    vv = -v if upper else v
+    D = 1 + sv * sv * t
+    z = a * ww
+    return f_lo(t, 0, a, ww) * mp.exp((sv * sv * z * z - 2 * vv * z - vv * vv * t) / (2 * D)) / mp.sqrt(D)
+
+
+def regression_cases():
+    """Cases where the engine was once wrong; references by mpmath quadrature of the series."""
+    mp.mp.dps = 25
+    # nondecision_range at a|v| = 24, slow RT in small time: the CDF difference cancelled to exactly 0
+    a, v, t0, st = 4.0, 6.0, 0.4, 0.1
+    d = predict(["--threshold", "4", "--drift", "6", "--nondecision", "0.4", "--nondecision-range", "0.1"], [1.5, 2.9, 3.6])
+    for upper, name in ((1, "upper"), (0, "lower")):
+        for e in d["density"]:
+            ref = mp.quad(lambda tt: f_b(e["rt"] - tt, v, a, 0.5, upper), [t0 - st / 2, t0 + st / 2]) / st
+            check(rel(e[name], ref) < 1e-8, "a=4 v=6 nondecision_range 0.1: density %s at rt %g %r vs mpmath %s" % (name, e["rt"], e[name], mp.nstr(ref, 12)))
+    # the closed form used below equals the integral over the normal drift
+    ref = mp.quad(lambda nu: f_b(2.1, nu, 3.0, 0.4, 1) * mp.npdf(nu, 0.5, 2.0), [-mp.inf, 0.5, mp.inf])
+    check(rel(f_sv_b(2.1, 0.5, 3.0, 0.4, 2.0, 1), ref) < 1e-15, "drift_sd closed form = mpmath.quad over the drift")
+    # drift_sd + nondecision_range with the window in u = t/a^2 in [0.1, 0.3)
+    for a, v, sv, st, rts in ((4.0, 0.0, 2.5, 0.3, [2.3, 3.2, 4.39]), (3.0, 0.8, 2.0, 0.2, [1.5, 2.2, 2.6])):
+        t0 = 0.4
+        d = predict(["--threshold", repr(a), "--drift", repr(v), "--nondecision", "0.4", "--drift-sd", repr(sv),
+                     "--nondecision-range", repr(st)], rts)
+        for upper, name in ((1, "upper"), (0, "lower")):
+            for e in d["density"]:
+                ref = mp.quad(lambda tt: f_sv_b(e["rt"] - tt, v, a, 0.5, sv, upper), [t0 - st / 2, t0, t0 + st / 2]) / st
+                check(rel(e[name], ref) < 1e-8, "a=%g sv=%g st=%g: density %s at rt %g %r vs mpmath %s" % (a, sv, st, name, e["rt"], e[name], mp.nstr(ref, 12)))
+    # start_range with a|v|sz = 27: the node rule must follow the factor exp(-v a w') across the range
+    a, v, sz, t0 = 5.0, 6.0, 0.9, 0.3
+    d = predict(["--threshold", "5", "--drift", "6", "--start-range", "0.9", "--nondecision", "0.3"], [0.6, 1.3, 2.5])
+    for upper, name in ((1, "upper"), (0, "lower")):
+        for e in d["density"]:
+            ref = mp.quad(lambda ww: f_b(e["rt"] - t0, v, a, ww, upper), mp.linspace(0.5 - sz / 2, 0.5 + sz / 2, 7)) / sz
+            check(rel(e[name], ref) < 1e-8, "a=5 v=6 start_range 0.9: density %s at rt %g %r vs mpmath %s" % (name, e["rt"], e[name], mp.nstr(ref, 12)))
+    # all three together, RTs from inside the onset window to the slow tail: mpmath.quad over t0' and w'
+    a, v, t0, sv, sz, st = 1.5, 2.5, 0.3, 1.8, 0.43, 0.13
+    mp.mp.dps = 15
+    d = predict(["--threshold", "1.5", "--drift", "2.5", "--nondecision", "0.3", "--drift-sd", "1.8",
+                 "--start-range", "0.43", "--nondecision-range", "0.13"], [0.3, 0.36, 0.5, 1.2])
+    for upper, name in ((1, "upper"), (0, "lower")):
+        for e in d["density"]:
+            hi = min(t0 + st / 2, e["rt"])
+            ref = mp.quad(lambda tt, ww: f_sv_b(e["rt"] - tt, v, a, ww, sv, upper), [t0 - st / 2, hi], [0.5 - sz / 2, 0.5, 0.5 + sz / 2]) / (st * sz)
+            check(rel(e[name], ref) < 1e-7, "drift_sd+start_range+nondecision_range: density %s at rt %g %r vs mpmath %s" % (name, e["rt"], e[name], mp.nstr(ref, 12)))
+    mp.mp.dps = 25
+    # P(boundary) and mean RT with drift_sd for a rare boundary: the integrand peaks 9 SD out
+    a, v, w, sv, t0 = 5.0, -10.0, 0.1, 1.0, 0.3
+    d = predict(["--threshold", "5", "--drift", "-10", "--start", "0.1", "--drift-sd", "1", "--nondecision", "0.3"], [1.0])
+    for upper, name in ((1, "upper"), (0, "lower")):
+        pts = [-mp.inf, -20, -10, -5, 0, mp.inf]
+        Pref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mp.npdf(nu, v, sv), pts)
+        check(rel(d["p_" + name], Pref) < 1e-9, "a=5 v=-10 w=0.1 sv=1: p_%s %r vs mpmath %s" % (name, d["p_" + name], mp.nstr(Pref, 12)))
+        Mref = mp.quad(lambda nu: p_b(nu, a, w, upper) * mean_b(nu, a, w, upper) * mp.npdf(nu, v, sv), pts) / Pref + t0
+        check(rel(d["mean_rt_" + name], Mref) < 1e-9, "a=5 v=-10 w=0.1 sv=1: mean_rt_%s %r vs mpmath %s" % (name, d["mean_rt_" + name], mp.nstr(Mref, 12)))
+    mp.mp.dps = 40
+
+
+regression_cases()
 plain_case(1.0, 1.0, 0.0, 0.5, [0.05, 0.35, 1.0, 3.0])
 plain_case(2.0, -1.5, 0.2, 0.3, [0.25, 0.6, 1.1, 4.0])
 plain_case(1.5, 2.0, 0.3, 0.6, [0.31, 0.35, 0.8, 2.5])
