@@ -249,7 +249,7 @@ HARNESS_CASE(gbk_bound)
 
 HARNESS_CASE(extremes_and_errors)
 {
-    /* issue 2: t -> t0, t = 20 s, a = 0.3 and 6, v = +-8 must give finite logs */
+    /* extremes: t -> t0, t = 20 s, a = 0.3 and 6, v = +-8 must give finite logs */
     double as[] = {0.3, 1, 6}, vs[] = {-8, 0, 8}, ts[] = {1e-6, 1e-3, 0.05, 1, 20}, ws[] = {1e-6, 0.5, 1 - 1e-6};
     int finite = 1, n = 0;
     for (int i = 0; i < 3; i++)

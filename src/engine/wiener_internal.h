@@ -59,6 +59,8 @@ double blw_log_p(double v, double a, double w, int upper);
 
 /* P(boundary) averaged over drift_sd and start_range (quadrature; exact closed form without them). */
 double blw_p_var(double v, double a, double w, double sv, double sz, int upper);
+/* Boundary probability and mean decision time of p's boundary, integrated over drift_sd and start_range. */
+void blw_variability_moments(const bl_wiener_params *p, int upper, double *prob, double *mean_t);
 
 /* Mean decision time conditional on the lower boundary (closed form, no variability). */
 double blw_mean_t_lo(double v, double a, double w);
@@ -101,5 +103,9 @@ double blw_logsubexp(double x, double y);
 /* Full log-density (every parameter) and, when grad != NULL, its gradient; parameters already checked. */
 bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld,
                                double *grad, bl_error *err);
+
+/* log survival S(t) = P(T > t, boundary) directly from the large-time series (drift_sd closed form), with
+ * dl the gradient in (v, a, w, sv); for the far tail, where 1 - CDF would cancel. */
+bl_status blw_surv_direct(double t, double v, double a, double w, double sv, int upper, double *lS, double dl[4]);
 
 #endif

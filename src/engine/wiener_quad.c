@@ -6,6 +6,7 @@
  * Node-count rules: docs/methods.md ("Node counts") and tests/test_wiener_variability.c.
  */
 #include "engine/wiener_internal.h"
+#include "core/gsl_guard.h"
 
 #include <gsl/gsl_integration.h>
 #include <math.h>
@@ -24,6 +25,7 @@ static pthread_once_t once = PTHREAD_ONCE_INIT;
 
 static void build_tables(void)
 {
+    bl_gsl_guard(); /* GSL's allocators call its error handler on failure: returned statuses, never abort() */
     int ok = 1;
     gl_x[1][0] = 0;
     gl_w[1][0] = 1;

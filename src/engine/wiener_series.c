@@ -1,0 +1,460 @@
+/* The lower-boundary series of the Wiener first-passage time and what is built from them without the
+ * CDF: the Navarro-Fuss small- and large-time series in log space, tensor Gauss sums in the large-time
+ * range, boundary probabilities and mean decision times, and their integrals over drift_sd and start_range.
+ * The public entry points (wiener.c) and the CDF and variability windows (wiener_cdf.c) both build on these;
+ * nothing here calls either, so the engine's files depend on each other one way. docs/methods.md. */
+#include "engine/wiener_internal.h"
+
+#include <float.h>
+#include <math.h>
+#include <string.h>
+
+/* ---- the lower-boundary series ----------------------------------------------------------------- */
+
+static const double LOG_SQRT_2PI = 0.91893853320467274178;
+
+/* Small-time series (u < 0.25). Sums are scaled by exp(w^2 / (2u)) so the k = 0 image is w.
+ * Every scaled image term is a product of powers of two exponentials, A = exp(-2(1-w)/u) and
+ * B = exp(-2(1+w)/u): the image at w - 2k has exp(-2k(k-w)/u) = A^{k(k+1)/2} B^{k(k-1)/2} and the one
+ * at w + 2k has A^{k(k-1)/2} B^{k(k+1)/2}; so the usual case (k <= 1 plus the bound at k = 2) costs two
+ * calls to exp. All factors are <= 1: nothing overflows.
+ * Returns S0; fills Lu = d log phi / du and Lw = d log phi / dw when want_grad. */
+static double small_time(double u, double iu, double w, double d, double eps, int want_grad, double *Lu, double *Lw)
+{
+    double S0, S3 = 0, Sw = 0;
+    double A, B = -1; /* B computed on first use */
+    double En, Ep, Ak, Bk;
+    int K;
+    if (d < 1e-3) {
+        /* Start near the far boundary: the k = 0 and k = -1 images cancel; pair them exactly
+         * (numerics notes, section 1.3): w + (w-2)exp(-2d/u) without cancellation. */
+        double em = expm1(-2 * d * iu);
+        A = 1 + em;
+        B = exp(-2 * (1 + w) * iu);
+        S0 = -em - d * (2 + em);
+        double xn = w - 2, xp = w + 2;
+        S0 += xp * B;
+        if (want_grad) {
+            S3 = w * w * w + xn * xn * xn * A + xp * xp * xp * B;
+            Sw = (1 - w * w / u) + (1 - xn * xn / u) * A + (1 - xp * xp / u) * B;
+        }
+        K = 1;
+        En = A * A * A * B; /* images for k = 2 */
+        Ep = A * B * B * B;
+        Ak = A * A;
+        Bk = B * B;
+    } else {
+        A = exp(-2 * d * iu);
+        S0 = w;
+        if (want_grad) {
+            S3 = w * w * w;
+            Sw = 1 - w * w / u;
+        }
+        K = 0;
+        En = A; /* images for k = 1 (Ep once B is known) */
+        Ep = 0;
+        Ak = A;
+        Bk = 1;
+    }
+    for (;; K++) {
+        /* Nearest omitted image is x = w - 2(K+1), at distance x0 = 2K + 2 - w >= 1 > sqrt(3u):
+         * every tail bound below is valid. Its scaled term is En. */
+        double x0 = 2 * K + 2 - w;
+        if ((x0 + 0.5 * u) * En <= eps * S0) {
+            if (!want_grad) break;
+            /* Weight x^3 (d/du) and x^2/u (d/dw): first omitted term plus half the tail integral. */
+            double b3 = (x0 * x0 * x0 + 0.5 * u * (x0 * x0 + 2 * u)) * En;
+            double bw = (x0 * x0 / u + 0.5 * (x0 + u / x0)) * En;
+            if (b3 <= eps * S0 * u && bw <= eps * S0) break;
+        }
+        if (K > 50) break; /* unreachable for u < 0.25: En < exp(-400) by then */
+        if (B < 0) {
+            B = exp(-2 * (1 + w) * iu);
+            Ep = B;
+            Bk = B;
+        }
+        double kp = K + 1;
+        double xn = w - 2 * kp, xp = w + 2 * kp;
+        S0 += xn * En + xp * Ep;
+        if (want_grad) {
+            S3 += xn * xn * xn * En + xp * xp * xp * Ep;
+            Sw += (1 - xn * xn / u) * En + (1 - xp * xp / u) * Ep;
+        }
+        /* step k -> k + 1: En *= A^{k+1} B^k, Ep *= A^k B^{k+1} (Ak = A^k, Bk = B^k) */
+        En *= Ak * A * Bk;
+        Ep *= Ak * Bk * B;
+        Ak *= A;
+        Bk *= B;
+    }
+    if (want_grad) {
+        *Lu = -1.5 / u + S3 / (2 * u * u * S0);
+        *Lw = Sw / S0;
+    }
+    return S0;
+}
+
+/* Large-time series (u >= 0.25). Sum S = sum_k k sin(k pi w) exp(-(k^2-1) q), q = pi^2 u / 2.
+ * wc = 1 - w, passed exactly by the caller.
+ * Term count: the tail bound of the numerics notes (1.3), [X^2 + X/(2q) + 1/(4q^2 X)] e^{-(X^2-1)q}
+ * sin(pi w) after X - 1 terms, is largest at the switch q = pi^2/8; there it is 3.8e-12 sin(pi w) for
+ * X = 5, while S >= 0.9 sin(pi w) for every w (the k >= 2 terms sum to at most 0.1 sin(pi w) in
+ * magnitude). So four terms meet the relative tolerance 1e-10 everywhere (about 4e-12), and the sum is
+ * evaluated branch-free; the gradient's k^3 and k^2 sums take a fifth term (tail < 1e-15).
+ * tests/test_wiener.c re-checks these bounds. */
+static double large_time(double u, double w, double wc, int want_grad, double *Lu, double *Lw)
+{
+    double q = 4.934802200544679309 * u; /* pi^2/2 * u */
+    double dmin = w < 0.5 ? w : wc;
+    double s1, c1;
+    blw_sincospi(dmin, &s1, &c1);
+    if (w > 0.5) c1 = -c1; /* cos(pi w) */
+    double E = exp(-q), E2 = E * E, E3 = E2 * E, E4 = E2 * E2, E8 = E4 * E4;
+    double e2 = E3, e3 = E8, e4 = E8 * E4 * E3; /* exp(-(k^2 - 1) q) */
+    double tc = 2 * c1;
+    double s2 = tc * s1, s3 = tc * s2 - s1, s4 = tc * s3 - s2; /* sin(k pi w): Chebyshev recurrence */
+    double S = s1 + 2 * s2 * e2 + 3 * s3 * e3 + 4 * s4 * e4;
+    if (want_grad) {
+        double e5 = E8 * E8 * E8, s5 = tc * s4 - s3;
+        double c2 = tc * c1 - 1, c3 = tc * c2 - c1, c4 = tc * c3 - c2, c5 = tc * c4 - c3;
+        S += 5 * s5 * e5;
+        double S3 = s1 + 8 * s2 * e2 + 27 * s3 * e3 + 64 * s4 * e4 + 125 * s5 * e5;
+        double Sc = c1 + 4 * c2 * e2 + 9 * c3 * e3 + 16 * c4 * e4 + 25 * c5 * e5;
+        *Lu = -4.934802200544679309 * S3 / S;
+        *Lw = BLW_PI * Sc / S;
+    }
+    return S;
+}
+
+/* wc = 1 - w given exactly (for the upper boundary it is the user's start itself), so a start within
+ * 1e-16 of a boundary keeps its relative precision. */
+static double log_dens_lo_c(double t, double v, double a, double w, double wc, double sv, double *g)
+{
+    double a2 = a * a;
+    double u = t / a2;
+    double D = 1, base;
+    if (sv == 0) {
+        base = -v * a * w - 0.5 * v * v * t;
+    } else {
+        double s2 = sv * sv;
+        D = 1 + s2 * t;
+        base = -0.5 * log1p(s2 * t) + (s2 * a * a * w * w - 2 * v * a * w - v * v * t) / (2 * D);
+    }
+    double Lu = 0, Lw = 0, lf;
+    int want = g != NULL;
+    if (u < BLW_U_SWITCH) {
+        double iu = a2 / t;
+        double S = small_time(u, iu, w, wc, BL_WIENER_EPS, want, &Lu, &Lw);
+        /* log phi - 2 log a = -log sqrt(2 pi) - w^2/(2u) + log(S a / t^1.5) */
+        double y = S * a / (t * sqrt(t));
+        double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(S) + log(a) - 1.5 * log(t);
+        lf = base - LOG_SQRT_2PI - 0.5 * w * w * iu + ly;
+    } else {
+        double S = large_time(u, w, wc, want, &Lu, &Lw);
+        double y = BLW_PI * S / a2;
+        double ly = (y > DBL_MIN && y < DBL_MAX) ? log(y) : log(BLW_PI * S) - 2 * log(a);
+        lf = base - 4.934802200544679309 * u + ly;
+    }
+    if (g) {
+        double s2 = sv * sv;
+        double m = a * w + v * t;
+        g[BLW_GV] = -m / D;
+        g[BLW_GA] = (s2 * a * w * w - v * w) / D - 2 / a - (2 * t / (a * a * a)) * Lu;
+        g[BLW_GW] = (s2 * a * a * w - v * a) / D + Lw;
+        double N = s2 * a * a * w * w - 2 * v * a * w - v * v * t;
+        g[BLW_GT] = -v * v / (2 * D) - s2 * N / (2 * D * D) - s2 / (2 * D) + Lu / (a * a);
+        g[BLW_GSV] = sv * (m * m / (D * D) - t / D);
+    }
+    return lf;
+}
+
+double blw_log_dens_lo(double t, double v, double a, double w, double sv, double *g)
+{
+    return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+}
+
+double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g)
+{
+    if (!upper) return log_dens_lo_c(t, v, a, w, 1 - w, sv, g);
+    double lf = log_dens_lo_c(t, -v, a, 1 - w, w, sv, g);
+    if (g) {
+        g[BLW_GV] = -g[BLW_GV];
+        g[BLW_GW] = -g[BLW_GW];
+    }
+    return lf;
+}
+
+/* ---- tensor Gauss sums in the large-time range ------------------------------------------------- */
+
+/* Sum over t nodes (tt[i], weights twt[i]) and start nodes (w + sz dz[j], weights wwt[j]) of the
+ * density at one boundary, all at u = t/a^2 >= 0.25, where the five-term large-time series of
+ * large_time() is exact to 1e-15 relative. The series factorises: exp(-(k^2-1)q) depends on t only and
+ * sin(k pi w'), cos(k pi w') on the start only, and without drift_sd the exponential prefactor splits
+ * into exp(-v a w') exp(-v^2 t/2); so a point costs a few multiply-adds (plus one exp with drift_sd)
+ * instead of a full log-density. Returns log of the sum; g (optional) receives the f-weighted means
+ * of d log f / d(a, v, w, sv, sz), of d log f / dt and of (d log f / dt) tx[i] (tx may be NULL). */
+double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
+                      const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
+                      double g[BLW_GRID_NG])
+{
+    enum { NT = 64 + 2, NW = 40 };
+    if (nt > NT || nw > NW) return NAN;
+    double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
+    double ek[NT][5], qt[NT], et[NT], rs[NT];
+    double Wj[NW], sk[NW][5], ck[NW][5], ew[NW];
+    /* reference: the exponent at the window centre and the user's start, so every factor stays O(e^(|v| a sz)) */
+    double tref = tt[nt / 2], Wref = upper ? 1 - w : w;
+    for (int i = 0; i < nt; i++) {
+        double q = 4.934802200544679309 * tt[i] / a2, E = exp(-q), E2 = E * E, E4 = E2 * E2, E8 = E4 * E4;
+        ek[i][0] = 1;
+        ek[i][1] = E2 * E;
+        ek[i][2] = E8;
+        ek[i][3] = E8 * E4 * E2 * E;
+        ek[i][4] = E8 * E8 * E8;
+        qt[i] = q;
+        rs[i] = sqrt((1 + s2 * tref) / (1 + s2 * tt[i])); /* D^(-1/2) relative to the reference */
+        /* sv = 0: the t-part of the prefactor, relative to the reference time */
+        et[i] = sv == 0 ? twt[i] * exp(-(q - 4.934802200544679309 * tref / a2) - 0.5 * vv * vv * (tt[i] - tref)) : twt[i];
+    }
+    for (int j = 0; j < nw; j++) {
+        double wp = w + sz * dz[j];
+        double W = upper ? 1 - wp : wp, Wc = upper ? wp : 1 - wp;
+        double s1, c1;
+        blw_sincospi(W < 0.5 ? W : Wc, &s1, &c1);
+        if (W > 0.5) c1 = -c1;
+        double tc = 2 * c1;
+        sk[j][0] = s1;
+        ck[j][0] = c1;
+        sk[j][1] = tc * s1;
+        ck[j][1] = tc * c1 - 1;
+        for (int k = 2; k < 5; k++) {
+            sk[j][k] = tc * sk[j][k - 1] - sk[j][k - 2];
+            ck[j][k] = tc * ck[j][k - 1] - ck[j][k - 2];
+        }
+        Wj[j] = W;
+        ew[j] = sv == 0 ? wwt[j] * exp(-vv * a * (W - Wref)) : wwt[j];
+    }
+    double S = 0, G[BLW_GRID_NG] = {0};
+    double Dref = 1 + s2 * tref;
+    double bexp = (s2 * a2 * Wref * Wref - 2 * vv * a * Wref - vv * vv * tref) / (2 * Dref) -
+                  4.934802200544679309 * tref / a2;
+    for (int i = 0; i < nt; i++) {
+        double t = tt[i], D = 1 + s2 * t, iD = 1 / D;
+        /* t-only parts of the gradient terms */
+        double gt0 = -vv * vv * 0.5 * iD - s2 * 0.5 * iD, ta = 2 * t / (a2 * a), txi = tx ? tx[i] : 0;
+        for (int j = 0; j < nw; j++) {
+            double W = Wj[j];
+            double ser = 0, s3 = 0, sc = 0;
+            for (int k = 0; k < 5; k++) {
+                double kk = k + 1, e = ek[i][k];
+                ser += kk * sk[j][k] * e;
+                if (g) {
+                    s3 += kk * kk * kk * sk[j][k] * e;
+                    sc += kk * kk * ck[j][k] * e;
+                }
+            }
+            double pre;
+            if (sv == 0) pre = et[i] * ew[j];
+            else
+                pre = twt[i] * wwt[j] * rs[i] *
+                      exp((s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t) * 0.5 * iD - qt[i] - bexp);
+            double e = pre * ser;
+            S += e;
+            if (g) {
+                /* e * L_u = -(pi^2/2) pre s3 and e * L_w = pi pre sc: no division per point */
+                double eLu = -4.934802200544679309 * pre * s3, eLw = BLW_PI * pre * sc;
+                double m = a * W + vv * t, N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t;
+                double egw = sg * ((s2 * a2 * W - vv * a) * iD * e + eLw); /* d/dw' in the user's orientation */
+                double egt = (gt0 - s2 * N * 0.5 * iD * iD) * e + eLu / a2;
+                G[0] += ((s2 * a * W * W - vv * W) * iD - 2 / a) * e - ta * eLu;
+                G[1] -= sg * m * iD * e;
+                G[2] += egw;
+                G[3] += sv * (m * m * iD * iD - t * iD) * e;
+                G[4] += egw * dz[j];
+                G[5] += egt;
+                G[6] += egt * txi;
+            }
+        }
+    }
+    if (!(S > 0)) return -INFINITY;
+    if (g)
+        for (int k = 0; k < BLW_GRID_NG; k++) g[k] = G[k] / S;
+    /* undo the reference: sv = 0 used exp(-q - v^2 t/2 - v a W) relative to the reference point */
+    double lref = sv == 0 ? -vv * a * Wref - 0.5 * vv * vv * tref - 4.934802200544679309 * tref / a2
+                          : bexp - 0.5 * log(Dref);
+    return lref + log(BLW_PI * S / a2);
+}
+
+/* Weighted sum of the density at one boundary over a list of points (t[i], start w + sz dz[i],
+ * weight wt[i]), in logs, one pass relative to the running maximum. Per point: small_time() or
+ * large_time() and one exp, no log. The sum is merged into acc (log-sum state; see wiener_internal.h);
+ * g sums (when acc->grad) are the weighted d log f / d(a, v, w, sv, sz, t) and (d log f/dt) tx[i]. */
+void blw_point_sum(double v, double a, double w, double sv, double sz, int upper, int n, const double *t,
+                   const double *dz, const double *wt, const double *tx, blw_acc *acc)
+{
+    double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
+    for (int i = 0; i < n; i++) {
+        double ti = t[i], u = ti / a2, D = 1 + s2 * ti, iD = 1 / D;
+        double wp = w + sz * dz[i];
+        double W = upper ? 1 - wp : wp, Wc = upper ? wp : 1 - wp;
+        double Lu = 0, Lw = 0, E, R;
+        double N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * ti;
+        if (u < BLW_U_SWITCH) {
+            double S0 = small_time(u, a2 / ti, W, Wc, BL_WIENER_EPS, acc->grad, &Lu, &Lw);
+            E = N * 0.5 * iD - 0.5 * W * W / u;
+            R = wt[i] * a / (ti * sqrt(ti * D)) * 0.39894228040143267794 * S0;
+        } else {
+            double S = large_time(u, W, Wc, acc->grad, &Lu, &Lw);
+            E = N * 0.5 * iD - 4.934802200544679309 * u;
+            R = wt[i] * BLW_PI / (a2 * sqrt(D)) * S;
+        }
+        if (!(R > 0)) continue;
+        if (E > acc->mx) {
+            double r = acc->mx == -INFINITY ? 0 : exp(acc->mx - E);
+            acc->S *= r;
+            if (acc->grad)
+                for (int k = 0; k < BLW_GRID_NG; k++) acc->G[k] *= r;
+            acc->mx = E;
+        }
+        double e = R * exp(E - acc->mx);
+        acc->S += e;
+        if (acc->grad) {
+            double m = a * W + vv * ti;
+            double gw_ = sg * ((s2 * a2 * W - vv * a) * iD + Lw);
+            double gt = -vv * vv * 0.5 * iD - s2 * N * 0.5 * iD * iD - s2 * 0.5 * iD + Lu / a2;
+            acc->G[0] += e * ((s2 * a * W * W - vv * W) * iD - 2 / a - (2 * ti / (a2 * a)) * Lu);
+            acc->G[1] += e * (-sg * m * iD);
+            acc->G[2] += e * gw_;
+            acc->G[3] += e * sv * (m * m * iD * iD - ti * iD);
+            acc->G[4] += e * gw_ * dz[i];
+            acc->G[5] += e * gt;
+            if (tx) acc->G[6] += e * gt * tx[i];
+        }
+    }
+}
+
+/* ---- boundary probabilities and moments --------------------------------------------------------- */
+
+/* wc = 1 - w exactly (see log_dens_lo_c) */
+static double log_p_lo_c(double v, double a, double w, double wc)
+{
+    double va = v * a;
+    if (va == 0) return log(wc);
+    if (va > 0) return -2 * va * w + log(-expm1(-2 * va * wc)) - log(-expm1(-2 * va));
+    return log(-expm1(2 * va * wc)) - log(-expm1(2 * va));
+}
+
+double blw_log_p_lo(double v, double a, double w)
+{
+    return log_p_lo_c(v, a, w, 1 - w);
+}
+
+double blw_log_p(double v, double a, double w, int upper)
+{
+    return upper ? log_p_lo_c(-v, a, 1 - w, w) : log_p_lo_c(v, a, w, 1 - w);
+}
+
+/* h(x) = (x coth x - 1) / x^2, even, h(0) = 1/3. */
+static double coth_h(double x)
+{
+    double x2 = x * x;
+    if (fabs(x) < 0.1)
+        return 1.0 / 3 + x2 * (-1.0 / 45 + x2 * (2.0 / 945 + x2 * (-1.0 / 4725 + x2 * (2.0 / 93555))));
+    if (fabs(x) > 40) return (fabs(x) - 1) / x2;
+    return (x / tanh(x) - 1) / x2;
+}
+
+/* E[T | lower] = [a coth(va) - z' coth(v z')] / v with z' = a - z the distance to the upper
+ * boundary, written as a^2 h(va) - z'^2 h(v z') so v -> 0 needs no special case. */
+static double mean_t_c(double v, double a, double wc)
+{
+    double zp = a * wc;
+    return a * a * coth_h(v * a) - zp * zp * coth_h(v * zp);
+}
+
+double blw_mean_t_lo(double v, double a, double w)
+{
+    return mean_t_c(v, a, 1 - w);
+}
+
+/* E[T | upper](v, a, w) = E[T | lower](-v, a, 1 - w) and h is even: the distance to the far boundary
+ * is the start itself, passed without rounding. */
+double blw_mean_t(double v, double a, double w, int upper)
+{
+    return upper ? mean_t_c(v, a, w) : mean_t_c(v, a, 1 - w);
+}
+
+static double drift_log_integrand(double x, double v, double a, double w, double sv, int upper)
+{
+    return -0.5 * x * x + blw_log_p(v + sv * x, a, w, upper);
+}
+
+/* P(boundary) and E[T | boundary] averaged over the drift_sd normal and the start_range uniform.
+ * Drift: composite Gauss-Legendre over x (nu = v + sv x, normal weight) on [-9, 9] joined with
+ * [x* - 9, x* + 9], x* the maximum of -x^2/2 + log P(v + sv x) (for a rare boundary the integrand peaks
+ * near x* = 2a(1-w)sv, far beyond 9 SD); panels no wider than the distance pi/(a sv) of P's poles from
+ * the real axis; start: Gauss-Legendre, 24 nodes. Summed in logs relative to the peak, so probabilities
+ * of 1e-300 keep their digits. Not a hot path (used for predictions), so it favours accuracy
+ * (checked against GSL qagi to 1e-9 and against mpmath). */
+static void moments_var(double a, double v, double w, double sv, double sz, int upper, double *prob,
+                        double *mean_t)
+{
+    const double *gx, *gw, *lx, *lw;
+    static const double one = 1, zero = 0;
+    int panels = 1, ng = 1, nl = 1;
+    double half = 0, xlo = 0, href = blw_log_p(v, a, w, upper);
+    gx = lx = &zero;
+    gw = lw = &one;
+    if (sv > 0) {
+        /* the log-integrand is concave in x: golden-section search for its maximum on [-60, 60] */
+        double l = -60, r = 60, g = 0.6180339887498949;
+        for (int it = 0; it < 90; it++) {
+            double m1 = r - g * (r - l), m2 = l + g * (r - l);
+            if (drift_log_integrand(m1, v, a, w, sv, upper) < drift_log_integrand(m2, v, a, w, sv, upper)) l = m1;
+            else r = m2;
+        }
+        double xs = 0.5 * (l + r);
+        href = drift_log_integrand(xs, v, a, w, sv, upper);
+        xlo = fmin(-9, xs - 9);
+        double xhi = fmax(9, xs + 9);
+        double width = fmin(1.5, BLW_PI / (a * sv));
+        panels = (int)ceil((xhi - xlo) / width);
+        if (panels > 800) panels = 800;
+        half = 0.5 * (xhi - xlo) / panels;
+        blw_gauss_legendre(ng = 16, &gx, &gw);
+    }
+    if (sz > 0) blw_gauss_legendre(nl = 24, &lx, &lw);
+    double P = 0, M = 0;
+    for (int pi = 0; pi < panels; pi++) {
+        double centre = sv > 0 ? xlo + (2 * pi + 1) * half : 0;
+        for (int i = 0; i < ng; i++) {
+            double xi = centre + half * gx[i];
+            /* normal weight in logs, relative to the peak href */
+            double lwi = sv > 0 ? log(gw[i] * 2 * half * 0.39894228040143267794) - 0.5 * xi * xi : 0;
+            double vi = v + sv * xi;
+            for (int j = 0; j < nl; j++) {
+                double wj = w + 0.5 * sz * lx[j];
+                double pij = lw[j] * exp(lwi + blw_log_p(vi, a, wj, upper) - href);
+                double mij = blw_mean_t(vi, a, wj, upper);
+                P += pij;
+                M += pij * mij;
+            }
+        }
+    }
+    if (prob) *prob = exp(href) * P;
+    if (mean_t) *mean_t = M / P;
+}
+
+void blw_variability_moments(const bl_wiener_params *p, int upper, double *prob, double *mean_t)
+{
+    const double *x = p->value;
+    moments_var(x[BL_THRESHOLD], x[BL_DRIFT], x[BL_START], x[BL_DRIFT_SD], x[BL_START_RANGE], upper, prob, mean_t);
+}
+
+double blw_p_var(double v, double a, double w, double sv, double sz, int upper)
+{
+    double P;
+    if (sv == 0 && sz == 0) return exp(blw_log_p(v, a, w, upper));
+    moments_var(a, v, w, sv, sz, upper, &P, NULL);
+    return P;
+}
+
