@@ -5,7 +5,9 @@
  * Statistician 50(4) - definition 7 for observed quantiles;
  * Press, Teukolsky, Vetterling & Flannery (2007) "Numerical Recipes", 3rd ed., section 9.4 (Newton
  * steps safeguarded by bisection, "rtsafe") for the mixture quantiles, with the mixture density as
- * derivative; Markov's inequality P(RT > t) <= E[RT]/t for a guaranteed upper bracket.
+ * derivative, started from the cubic Hermite interpolant of a tabulated mixture CDF; 3-point
+ * Gauss-Legendre (Abramowitz & Stegun 1964, 25.4.29) for the CDF after short steps; Markov's
+ * inequality P(RT > t) <= E[RT]/t for a guaranteed upper bracket.
  */
 #include "report/goodness.h"
 
@@ -43,6 +45,8 @@ typedef struct {
     int upper;
     double target; /* prob x sum w_i P_i */
     bl_error *err;
+    int quad_ok; /* no trial has nondecision_range (its density costs two CDFs): short steps may
+                          take F by integrating the density (mix_step) */
 } mix_ctx;
 
 /* F = sum w_i cdf_i(t) and, when f != NULL, f = sum w_i density_i(t): trials in index order, so the
@@ -63,6 +67,63 @@ static bl_status mix_sums(const mix_ctx *c, double t, double *F, double *f)
     *F = sum;
     if (f) *f = dsum;
     return BL_OK;
+}
+
+static bl_status mix_density(const mix_ctx *c, double t, double *f)
+{
+    double dsum = 0;
+    for (size_t i = 0; i < c->n; i++) {
+        double ld;
+        bl_status st = bl_wiener_log_density(&c->p[i], t, c->upper, &ld, c->err);
+        if (st != BL_OK) return st;
+        dsum += (c->w ? c->w[i] : 1.0) * exp(ld);
+    }
+    *f = dsum;
+    return BL_OK;
+}
+
+static double earliest(const bl_wiener_params *p);
+
+/* Distance from [x0, x1] to the nearest point where some trial's density is not analytic (its
+ * earliest RT, the contaminant's edges); 0 when one lies inside. */
+static double distance_to_kinks(const mix_ctx *c, double x0, double x1)
+{
+    double d = INFINITY;
+    for (size_t i = 0; i < c->n; i++) {
+        const bl_wiener_params *p = &c->p[i];
+        double k[3] = {earliest(p), NAN, NAN};
+        if (p->value[BL_CONTAMINATION] > 0) k[1] = p->contamination_lo, k[2] = p->contamination_hi;
+        for (int j = 0; j < 3; j++) {
+            if (isnan(k[j])) continue;
+            double dj = k[j] < x0 ? x0 - k[j] : k[j] > x1 ? k[j] - x1 : 0;
+            d = fmin(d, dj);
+        }
+    }
+    return d;
+}
+
+/* Relative length (to the distance to the nearest kink) below which a step's F comes from quadrature. */
+static const double QUAD_REL = 1e-2;
+
+/* Sums at x after a step from xp, where the sum of CDFs Fp is known. A short step (|x - xp| below
+ * QUAD_REL times the distance to every trial's kinks) integrates the mixture density over [xp, x]
+ * with 3-point Gauss-Legendre: the density is analytic on a disc 100 times wider than the step, so
+ * the rule's error, ~(step / distance)^6 relative to the increment, is far below the CDF's own
+ * rounding; 4 densities cost less than one CDF sum plus a density (CDF ~5x a density). Otherwise
+ * the CDFs are summed afresh. */
+static bl_status mix_step(const mix_ctx *c, int have_prev, double xp, double Fp, double x, double *F, double *f)
+{
+    double lo = fmin(xp, x), hi = fmax(xp, x);
+    if (!have_prev || !c->quad_ok || !(hi - lo <= QUAD_REL * distance_to_kinks(c, lo, hi))) return mix_sums(c, x, F, f);
+    /* Gauss-Legendre, 3 nodes: 0, +-sqrt(3/5); weights 8/9, 5/9 (Abramowitz & Stegun 1964, 25.4.29). */
+    static const double node = 0.77459666924148337704, w_out = 5.0 / 9.0, w_mid = 8.0 / 9.0;
+    double mid = 0.5 * (xp + x), half = 0.5 * (x - xp), f1, f2, f3;
+    bl_status st;
+    if ((st = mix_density(c, mid - node * half, &f1)) != BL_OK) return st;
+    if ((st = mix_density(c, mid, &f2)) != BL_OK) return st;
+    if ((st = mix_density(c, mid + node * half, &f3)) != BL_OK) return st;
+    *F = Fp + half * (w_out * f1 + w_mid * f2 + w_out * f3);
+    return mix_density(c, x, f);
 }
 
 /* f(t) = sum w_i cdf_i(t) - target and, when df != NULL, f'(t) = sum w_i density_i(t). */
@@ -86,14 +147,17 @@ static const double TOL = 1e-9; /* seconds */
 /* Root of the increasing function f in [a, b] with f(a) <= 0 <= f(b): Newton steps on the mixture
  * density, kept inside the bracket, and bisection whenever a Newton step would leave the bracket or
  * does not halve the previous step (Press et al. 2007, Numerical Recipes 3rd ed., section 9.4,
- * "rtsafe"). x is the first point tried. */
+ * "rtsafe"). x is the first point tried; after it, short steps take F by quadrature (mix_step). */
 static bl_status solve(const mix_ctx *c, double a, double b, double x, double *root, bl_error *err)
 {
-    double dx_old = b - a, dx = dx_old;
+    double dx_old = b - a, dx = dx_old, xp = x, Fp = 0;
     for (int it = 0; it < MAX_STEPS; it++) {
-        double f, df;
-        bl_status st = mix_eval(c, x, &f, &df);
+        double F, df;
+        bl_status st = mix_step(c, it > 0, xp, Fp, x, &F, &df);
         if (st != BL_OK) return st;
+        xp = x;
+        Fp = F;
+        double f = F - c->target;
         if (f == 0) {
             *root = x;
             return BL_OK;
@@ -131,9 +195,9 @@ static bl_status solve(const mix_ctx *c, double a, double b, double x, double *r
  * Why this grid: a first-passage-time CDF rises from 0 at lo like exp(-c / (t - lo)) and decays like
  * exp(-k t) at the right, so equal steps in log(t - lo) resolve both ends with the same relative
  * detail, whatever the time unit. Two nodes per doubling of t - lo (6 to 8 nodes from below the
- * 0.1 to above the 0.9 quantile) start Newton within about 1e-4 s of the root, so that two more
- * mixture evaluations per quantile normally finish it; 1, 3 or 4 nodes per doubling cost as many
- * or more evaluations in all (measured with bench/bench_report.c, see docs/report.md). */
+ * 0.1 to above the 0.9 quantile) start Newton within about 1e-4 s of the root, so that one CDF sum
+ * and one or two quadrature steps (mix_step) normally finish a quantile; 1, 3 or 4 nodes per
+ * doubling cost as many or more evaluations in all (bench/bench_report.c, docs/report.md). */
 enum { GRID_PER_DOUBLING = 2, GRID_DOWN = 30, GRID_UP = 40, GRID_MAX = (GRID_DOWN + GRID_UP) * GRID_PER_DOUBLING + 1 };
 
 typedef struct {
@@ -260,7 +324,9 @@ bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const do
     }
     if (k == 0) return BL_OK;
 
-    mix_ctx c = {params, w, n, upper, 0, err};
+    mix_ctx c = {params, w, n, upper, 0, err, 1};
+    for (size_t i = 0; i < n; i++)
+        if (params[i].value[BL_NONDECISION_RANGE] > 0) c.quad_ok = 0;
     /* Scale: mixture mean minus the earliest RT (any positive value would do; this one puts the
      * mean on a node and the quantiles a few nodes away). */
     double scale = mw > 0 ? msum / mw - lo : 0;
@@ -677,6 +743,12 @@ static bl_status fill_rows(const bl_trials *t, const bl_model_result *mr, const 
     return BL_OK;
 }
 
+/* Fewest trials, summed over all (model, group) tasks, for which bl_goodness_compute starts a parallel
+ * team. A trial costs about 8 us of mixture quantiles at most (both boundaries, plain parameters;
+ * fewer when trials share parameters), starting a 2-thread team 0.05 ms idle and up to 7 ms on a loaded
+ * 2-core machine: 1000 trials (~8 ms) is where 2 threads stopped losing to 1 there (docs/report.md). */
+enum { PARALLEL_MIN_TRIALS = 1000 };
+
 bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, const bl_fit_set *set, int threads,
                               bl_goodness **out, bl_error *err)
 {
@@ -703,9 +775,16 @@ bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, co
         goto done;
     }
     int nomem = 0;
+    /* Start a team only when there are two tasks or more and enough trials over all tasks to pay for it
+     * (PARALLEL_MIN_TRIALS); the rows do not depend on it. */
+    size_t task_trials = 0;
+    for (size_t i = 0; i < g->n_groups; i++) task_trials += g->groups[i].n;
+    task_trials *= set->n_models;
+    int parallel = ntask >= 2 && task_trials >= PARALLEL_MIN_TRIALS;
+    (void)parallel;
 #ifdef _OPENMP
     if (threads <= 0) threads = omp_get_max_threads();
-#pragma omp parallel num_threads(threads) reduction(| : nomem)
+#pragma omp parallel num_threads(threads) reduction(| : nomem) if (parallel)
 #else
     (void)threads;
 #endif
