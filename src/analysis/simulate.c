@@ -1213,9 +1213,12 @@ static bl_status write_recordings(const bl_scenario *sc, const trial_rec *tr, co
         goto done;
     }
     int nth = threads > 0 ? threads : 0;
+    /* One participant's recording is one task: with a single participant a team would idle (and its
+     * start-up, up to milliseconds on a loaded machine, would be lost), so the region starts only for two
+     * or more. */
 #ifdef _OPENMP
     if (nth <= 0) nth = omp_get_max_threads();
-#pragma omp parallel for schedule(dynamic, 1) num_threads(nth)
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nth) if (P >= 2)
 #else
     (void)nth;
 #endif

@@ -5,7 +5,9 @@
  * Statistician 50(4) - definition 7 for observed quantiles;
  * Press, Teukolsky, Vetterling & Flannery (2007) "Numerical Recipes", 3rd ed., section 9.4 (Newton
  * steps safeguarded by bisection, "rtsafe") for the mixture quantiles, with the mixture density as
- * derivative; Markov's inequality P(RT > t) <= E[RT]/t for a guaranteed upper bracket.
+ * derivative, started from the cubic Hermite interpolant of a tabulated mixture CDF; 3-point
+ * Gauss-Legendre (Abramowitz & Stegun 1964, 25.4.29) for the CDF after short steps; Markov's
+ * inequality P(RT > t) <= E[RT]/t for a guaranteed upper bracket.
  */
 #include "report/goodness.h"
 
@@ -41,12 +43,15 @@ typedef struct {
     const double *w;
     size_t n;
     int upper;
-    double target;     /* prob x sum w_i P_i */
+    double target; /* prob x sum w_i P_i */
     bl_error *err;
+    int quad_ok; /* no trial has nondecision_range (its density costs two CDFs): short steps may
+                          take F by integrating the density (mix_step) */
 } mix_ctx;
 
-/* f(t) = sum w_i cdf_i(t) - target and, when df != NULL, f'(t) = sum w_i density_i(t). */
-static bl_status mix_eval(const mix_ctx *c, double t, double *f, double *df)
+/* F = sum w_i cdf_i(t) and, when f != NULL, f = sum w_i density_i(t): trials in index order, so the
+ * sums do not depend on threads. */
+static bl_status mix_sums(const mix_ctx *c, double t, double *F, double *f)
 {
     double sum = 0, dsum = 0;
     for (size_t i = 0; i < c->n; i++) {
@@ -54,14 +59,79 @@ static bl_status mix_eval(const mix_ctx *c, double t, double *f, double *df)
         bl_status st = bl_wiener_cdf(&c->p[i], t, c->upper, &v, c->err);
         if (st != BL_OK) return st;
         sum += wi * v;
-        if (df) {
+        if (f) {
             if ((st = bl_wiener_log_density(&c->p[i], t, c->upper, &ld, c->err)) != BL_OK) return st;
             dsum += wi * exp(ld);
         }
     }
-    *f = sum - c->target;
-    if (df) *df = dsum;
+    *F = sum;
+    if (f) *f = dsum;
     return BL_OK;
+}
+
+static bl_status mix_density(const mix_ctx *c, double t, double *f)
+{
+    double dsum = 0;
+    for (size_t i = 0; i < c->n; i++) {
+        double ld;
+        bl_status st = bl_wiener_log_density(&c->p[i], t, c->upper, &ld, c->err);
+        if (st != BL_OK) return st;
+        dsum += (c->w ? c->w[i] : 1.0) * exp(ld);
+    }
+    *f = dsum;
+    return BL_OK;
+}
+
+static double earliest(const bl_wiener_params *p);
+
+/* Distance from [x0, x1] to the nearest point where some trial's density is not analytic (its
+ * earliest RT, the contaminant's edges); 0 when one lies inside. */
+static double distance_to_kinks(const mix_ctx *c, double x0, double x1)
+{
+    double d = INFINITY;
+    for (size_t i = 0; i < c->n; i++) {
+        const bl_wiener_params *p = &c->p[i];
+        double k[3] = {earliest(p), NAN, NAN};
+        if (p->value[BL_CONTAMINATION] > 0) k[1] = p->contamination_lo, k[2] = p->contamination_hi;
+        for (int j = 0; j < 3; j++) {
+            if (isnan(k[j])) continue;
+            double dj = k[j] < x0 ? x0 - k[j] : k[j] > x1 ? k[j] - x1 : 0;
+            d = fmin(d, dj);
+        }
+    }
+    return d;
+}
+
+/* Relative length (to the distance to the nearest kink) below which a step's F comes from quadrature. */
+static const double QUAD_REL = 1e-2;
+
+/* Sums at x after a step from xp, where the sum of CDFs Fp is known. A short step (|x - xp| below
+ * QUAD_REL times the distance to every trial's kinks) integrates the mixture density over [xp, x]
+ * with 3-point Gauss-Legendre: the density is analytic on a disc 100 times wider than the step, so
+ * the rule's error, ~(step / distance)^6 relative to the increment, is far below the CDF's own
+ * rounding; 4 densities cost less than one CDF sum plus a density (CDF ~5x a density). Otherwise
+ * the CDFs are summed afresh. */
+static bl_status mix_step(const mix_ctx *c, int have_prev, double xp, double Fp, double x, double *F, double *f)
+{
+    double lo = fmin(xp, x), hi = fmax(xp, x);
+    if (!have_prev || !c->quad_ok || !(hi - lo <= QUAD_REL * distance_to_kinks(c, lo, hi))) return mix_sums(c, x, F, f);
+    /* Gauss-Legendre, 3 nodes: 0, +-sqrt(3/5); weights 8/9, 5/9 (Abramowitz & Stegun 1964, 25.4.29). */
+    static const double node = 0.77459666924148337704, w_out = 5.0 / 9.0, w_mid = 8.0 / 9.0;
+    double mid = 0.5 * (xp + x), half = 0.5 * (x - xp), f1, f2, f3;
+    bl_status st;
+    if ((st = mix_density(c, mid - node * half, &f1)) != BL_OK) return st;
+    if ((st = mix_density(c, mid, &f2)) != BL_OK) return st;
+    if ((st = mix_density(c, mid + node * half, &f3)) != BL_OK) return st;
+    *F = Fp + half * (w_out * f1 + w_mid * f2 + w_out * f3);
+    return mix_density(c, x, f);
+}
+
+/* f(t) = sum w_i cdf_i(t) - target and, when df != NULL, f'(t) = sum w_i density_i(t). */
+static bl_status mix_eval(const mix_ctx *c, double t, double *f, double *df)
+{
+    bl_status st = mix_sums(c, t, f, df);
+    if (st == BL_OK) *f -= c->target;
+    return st;
 }
 
 static double earliest(const bl_wiener_params *p)
@@ -77,14 +147,17 @@ static const double TOL = 1e-9; /* seconds */
 /* Root of the increasing function f in [a, b] with f(a) <= 0 <= f(b): Newton steps on the mixture
  * density, kept inside the bracket, and bisection whenever a Newton step would leave the bracket or
  * does not halve the previous step (Press et al. 2007, Numerical Recipes 3rd ed., section 9.4,
- * "rtsafe"). x is the first point tried. */
+ * "rtsafe"). x is the first point tried; after it, short steps take F by quadrature (mix_step). */
 static bl_status solve(const mix_ctx *c, double a, double b, double x, double *root, bl_error *err)
 {
-    double dx_old = b - a, dx = dx_old;
+    double dx_old = b - a, dx = dx_old, xp = x, Fp = 0;
     for (int it = 0; it < MAX_STEPS; it++) {
-        double f, df;
-        bl_status st = mix_eval(c, x, &f, &df);
+        double F, df;
+        bl_status st = mix_step(c, it > 0, xp, Fp, x, &F, &df);
         if (st != BL_OK) return st;
+        xp = x;
+        Fp = F;
+        double f = F - c->target;
         if (f == 0) {
             *root = x;
             return BL_OK;
@@ -115,62 +188,158 @@ static bl_status solve(const mix_ctx *c, double a, double b, double x, double *r
                         MAX_STEPS, a, b);
 }
 
+/* The tabulated mixture CDF. Nodes sit on the lattice t_i = lo + scale * 2^(i / GRID_PER_DOUBLING),
+ * i = -GRID_DOWN*GRID_PER_DOUBLING .. GRID_UP*GRID_PER_DOUBLING, with lo the earliest possible RT
+ * and scale the mixture's mean RT minus lo; only the stretch from the last node below the smallest
+ * quantile's target to the first node above the largest is evaluated, walking out from the mean.
+ * Why this grid: a first-passage-time CDF rises from 0 at lo like exp(-c / (t - lo)) and decays like
+ * exp(-k t) at the right, so equal steps in log(t - lo) resolve both ends with the same relative
+ * detail, whatever the time unit. Two nodes per doubling of t - lo (6 to 8 nodes from below the
+ * 0.1 to above the 0.9 quantile) start Newton within about 1e-4 s of the root, so that one CDF sum
+ * and one or two quadrature steps (mix_step) normally finish a quantile; 1, 3 or 4 nodes per
+ * doubling cost as many or more evaluations in all (bench/bench_report.c, docs/report.md). */
+enum { GRID_PER_DOUBLING = 2, GRID_DOWN = 30, GRID_UP = 40, GRID_MAX = (GRID_DOWN + GRID_UP) * GRID_PER_DOUBLING + 1 };
+
+typedef struct {
+    double t, F, f; /* time [s], sum w_i cdf_i, sum w_i density_i */
+} grid_node;
+
+typedef struct {
+    grid_node node[GRID_MAX];
+    int first, last; /* evaluated nodes: node[first .. last] */
+} mix_grid;
+
+static double grid_time(double lo, double scale, int i)
+{
+    return lo + scale * exp2((double)(i - GRID_DOWN * GRID_PER_DOUBLING) / GRID_PER_DOUBLING);
+}
+
+static bl_status grid_eval(const mix_ctx *c, mix_grid *g, int i, double lo, double scale)
+{
+    grid_node *nd = &g->node[i];
+    nd->t = grid_time(lo, scale, i);
+    return mix_sums(c, nd->t, &nd->F, &nd->f);
+}
+
+/* Nodes from below F_low to F_high or tmax (the Markov bound of the largest quantile). */
+static bl_status grid_build(const mix_ctx *c, double lo, double scale, double F_low, double F_high, double tmax,
+                            mix_grid *g)
+{
+    int mid = GRID_DOWN * GRID_PER_DOUBLING;
+    bl_status st = grid_eval(c, g, mid, lo, scale);
+    g->first = g->last = mid;
+    while (st == BL_OK && g->node[g->first].F >= F_low && g->first > 0) st = grid_eval(c, g, --g->first, lo, scale);
+    while (st == BL_OK && g->node[g->last].F < F_high && g->node[g->last].t < tmax && g->last < GRID_MAX - 1)
+        st = grid_eval(c, g, ++g->last, lo, scale);
+    return st;
+}
+
+/* The t in [x0, x1] where the cubic Hermite interpolant of the sums (values F, slopes f at both ends)
+ * reaches target, F0 < target <= F1; Newton on the cubic safeguarded by bisection (no CDF calls). */
+static double hermite_inverse(const grid_node *n0, const grid_node *n1, double target)
+{
+    double h = n1->t - n0->t, F0 = n0->F, F1 = n1->F, m0 = h * n0->f, m1 = h * n1->f;
+    double sa = 0, sb = 1, s = (target - F0) / (F1 - F0);
+    if (!(s > 0 && s < 1)) s = 0.5;
+    for (int it = 0; it < 60; it++) {
+        double s2 = s * s, s3 = s2 * s;
+        double H = (2 * s3 - 3 * s2 + 1) * F0 + (s3 - 2 * s2 + s) * m0 + (-2 * s3 + 3 * s2) * F1 + (s3 - s2) * m1;
+        double dH = (6 * s2 - 6 * s) * (F0 - F1) + (3 * s2 - 4 * s + 1) * m0 + (3 * s2 - 2 * s) * m1;
+        if (H < target) sa = s;
+        else sb = s;
+        double sn = s - (H - target) / dH;
+        if (!(sn > sa && sn < sb)) sn = 0.5 * (sa + sb);
+        if (fabs(sn - s) < 1e-15 || sb - sa < 1e-15) {
+            s = sn;
+            break;
+        }
+        s = sn;
+    }
+    return n0->t + s * h;
+}
+
+/* One quantile from the grid: the cell holding the target gives the bracket and, by interpolation,
+ * the start of the safeguarded Newton solve (normally two mixture evaluations to converge). Past the
+ * last node the bracket is [last node, Markov bound], grown as long as the bound fails by rounding. */
+static bl_status grid_quantile(const mix_ctx *c, const mix_grid *g, double lo, double markov, double prob, double *q,
+                               bl_error *err)
+{
+    int k = g->first;
+    while (k <= g->last && g->node[k].F < c->target) k++;
+    if (k <= g->last) {
+        if (k == g->first) /* the target lies below every node: bracket from the earliest RT */
+            return solve(c, lo, g->node[k].t, 0.5 * (lo + g->node[k].t), q, err);
+        const grid_node *n0 = &g->node[k - 1], *n1 = &g->node[k];
+        return solve(c, n0->t, n1->t, hermite_inverse(n0, n1, c->target), q, err);
+    }
+    double a = g->node[g->last].t, b = fmax(markov, a + 4 * TOL);
+    bl_status st = solve(c, a, b, a, q, err);
+    for (int grow = 0; st == BL_OK && *q > b - 2 * TOL; grow++) {
+        double fb;
+        if ((st = mix_eval(c, b, &fb, NULL)) != BL_OK) break;
+        if (fb >= 0) break;
+        if (grow == 40)
+            return bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile %g: cannot bracket the root (F-p = %g at %g s)",
+                                prob, fb, b);
+        a = b;
+        b = a + 2 * (b - lo);
+        st = solve(c, a, b, a, q, err);
+    }
+    return st;
+}
+
 bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n, int upper,
                                         const double *probs, size_t k, double *q, double *share, bl_error *err)
 {
     for (size_t j = 0; j < k; j++) q[j] = NAN;
     if (share) *share = NAN;
     if (n == 0) return BL_OK;
-    double wsum = 0, psum = 0, lo = INFINITY, maxmean = 0;
+    double wsum = 0, psum = 0, lo = INFINITY, maxmean = 0, msum = 0, mw = 0;
     for (size_t i = 0; i < n; i++) {
-        double wi = w ? w[i] : 1.0, pu, m;
-        bl_status st = bl_wiener_p_upper(&params[i], &pu, err);
+        double wi = w ? w[i] : 1.0, pb, m;
+        /* The boundary's own probability, not 1 - P(other): a tiny probability keeps its digits, so
+         * the quantile targets prob x psum of a rare boundary are right to ~1e-15 relative. */
+        bl_status st = bl_wiener_p_boundary(&params[i], upper, &pb, err);
         if (st != BL_OK) return st;
-        double pb = upper ? pu : 1 - pu;
         wsum += wi;
         psum += wi * pb;
         double e = earliest(&params[i]);
         if (e < lo) lo = e;
         /* Largest conditional mean RT, for the Markov bracket below (components that never reach
-         * this boundary do not count). */
-        if (pb > 1e-300 && bl_wiener_mean_rt(&params[i], upper, &m, NULL) == BL_OK && isfinite(m) && m > maxmean)
-            maxmean = m;
+         * this boundary do not count), and the mixture's mean RT, the grid's scale. */
+        if (pb > 1e-300 && bl_wiener_mean_rt(&params[i], upper, &m, NULL) == BL_OK && isfinite(m)) {
+            if (m > maxmean) maxmean = m;
+            msum += wi * pb * m;
+            mw += wi * pb;
+        }
     }
     if (share) *share = psum / wsum;
     if (!(psum / wsum >= 1e-12)) return BL_OK;
-
-    mix_ctx c = {params, w, n, upper, 0, err};
+    double pmin = 1, pmax = 0;
     for (size_t j = 0; j < k; j++) {
-        double prob = probs[j];
-        if (!(prob > 0 && prob < 1))
-            return bl_error_set(err, BL_ERR_RANGE, "quantile probability %g is outside (0, 1)", prob);
-        c.target = prob * psum;
-        /* Bracket: nothing is below the earliest RT (or the previous, smaller quantile); by Markov's
-         * inequality every conditional CDF is >= prob at E[RT | boundary] / (1 - prob), so the
-         * mixture is too. */
-        double a = (j > 0 && isfinite(q[j - 1]) && probs[j - 1] < prob) ? q[j - 1] : lo;
-        double b = fmax(maxmean / (1 - prob), a + 4 * TOL);
-        /* Start from the previous quantile (Newton moves right from there) or the bracket's middle.
-         * F(a) < p needs no check (a is the earliest RT or a smaller quantile); F(b) >= p holds
-         * by Markov's inequality, and is checked only when the root lands on b (engine rounding). */
-        double x0 = j > 0 ? a : 0.5 * (a + b);
-        bl_status st = solve(&c, a, b, x0, &q[j], err);
-        for (int grow = 0; st == BL_OK && q[j] > b - 2 * TOL; grow++) {
-            double fb;
-            if ((st = mix_eval(&c, b, &fb, NULL)) != BL_OK) break;
-            if (fb >= 0) break;
-            if (grow == 40) {
-                st = bl_error_set(err, BL_ERR_NUMERIC, "mixture quantile %g: cannot bracket the root (F-p = %g at %g s)",
-                                  prob, fb, b);
-                break;
-            }
-            a = b;
-            b = a + 2 * (b - lo);
-            st = solve(&c, a, b, a, &q[j], err);
-        }
-        if (st != BL_OK) return st;
+        if (!(probs[j] > 0 && probs[j] < 1))
+            return bl_error_set(err, BL_ERR_RANGE, "quantile probability %g is outside (0, 1)", probs[j]);
+        pmin = fmin(pmin, probs[j]);
+        pmax = fmax(pmax, probs[j]);
     }
-    return BL_OK;
+    if (k == 0) return BL_OK;
+
+    mix_ctx c = {params, w, n, upper, 0, err, 1};
+    for (size_t i = 0; i < n; i++)
+        if (params[i].value[BL_NONDECISION_RANGE] > 0) c.quad_ok = 0;
+    /* Scale: mixture mean minus the earliest RT (any positive value would do; this one puts the
+     * mean on a node and the quantiles a few nodes away). */
+    double scale = mw > 0 ? msum / mw - lo : 0;
+    if (!(scale > 1e-6 && isfinite(scale))) scale = fmax(maxmean - lo, 1e-3);
+    /* Markov's inequality: every conditional CDF is >= p at E[RT | boundary] / (1 - p). */
+    double markov = maxmean / (1 - pmax);
+    mix_grid g; /* on the stack (6.8 kB): no allocation per group */
+    bl_status st = grid_build(&c, lo, scale, pmin * psum, pmax * psum, markov, &g);
+    for (size_t j = 0; st == BL_OK && j < k; j++) {
+        c.target = probs[j] * psum;
+        st = grid_quantile(&c, &g, lo, maxmean / (1 - probs[j]), probs[j], &q[j], err);
+    }
+    return st;
 }
 
 /* ---- groups ---- */
@@ -449,7 +618,8 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
                         size_t r1 = (lv->n * (size_t)(b + 1) + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
                         if (r1 <= r0) continue;
                         bl_goodness_group *ng = group_new(&gl);
-                        if (!ng || !(ng->condition = bl_strdup(lv->condition)) || !(ng->regressor = bl_strdup(sl->regressor)) ||
+                        if (!ng || !(ng->condition = bl_strdup(lv->condition)) ||
+                            !(ng->regressor = bl_strdup(sl->regressor)) ||
                             !(ng->rows = malloc((r1 - r0) * sizeof *ng->rows))) {
                             free_groups(levels.g, levels.n);
                             goto nomem;
@@ -573,6 +743,12 @@ static bl_status fill_rows(const bl_trials *t, const bl_model_result *mr, const 
     return BL_OK;
 }
 
+/* Fewest trials, summed over all (model, group) tasks, for which bl_goodness_compute starts a parallel
+ * team. A trial costs about 8 us of mixture quantiles at most (both boundaries, plain parameters;
+ * fewer when trials share parameters), starting a 2-thread team 0.05 ms idle and up to 7 ms on a loaded
+ * 2-core machine: 1000 trials (~8 ms) is where 2 threads stopped losing to 1 there (docs/report.md). */
+enum { PARALLEL_MIN_TRIALS = 1000 };
+
 bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, const bl_fit_set *set, int threads,
                               bl_goodness **out, bl_error *err)
 {
@@ -599,9 +775,16 @@ bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, co
         goto done;
     }
     int nomem = 0;
+    /* Start a team only when there are two tasks or more and enough trials over all tasks to pay for it
+     * (PARALLEL_MIN_TRIALS); the rows do not depend on it. */
+    size_t task_trials = 0;
+    for (size_t i = 0; i < g->n_groups; i++) task_trials += g->groups[i].n;
+    task_trials *= set->n_models;
+    int parallel = ntask >= 2 && task_trials >= PARALLEL_MIN_TRIALS;
+    (void)parallel;
 #ifdef _OPENMP
     if (threads <= 0) threads = omp_get_max_threads();
-#pragma omp parallel num_threads(threads) reduction(| : nomem)
+#pragma omp parallel num_threads(threads) reduction(| : nomem) if (parallel)
 #else
     (void)threads;
 #endif

@@ -17,10 +17,11 @@
  *
  * Observed quantiles: Hyndman & Fan (1996) definition 7 (linear interpolation between order
  * statistics; numpy.quantile's default). Predicted quantiles: the quantile of the mixture, over the
- * group's trials, of each trial's predicted RT distribution given the boundary, found by Newton
- * steps safeguarded by bisection on the mixture CDF built from bl_wiener_cdf (its derivative from
- * bl_wiener_log_density). Predicted share: mean predicted
- * probability of the boundary over the group's trials.
+ * group's trials, of each trial's predicted RT distribution given the boundary: the mixture CDF
+ * (bl_wiener_cdf) and density (bl_wiener_log_density) tabulated on a grid log-spaced in t minus the
+ * earliest RT, each quantile started by cubic Hermite interpolation in its grid cell and finished by
+ * Newton steps safeguarded by bisection. Predicted share: mean predicted probability of the boundary
+ * over the group's trials.
  */
 #ifndef BL_GOODNESS_H
 #define BL_GOODNESS_H
@@ -38,13 +39,13 @@ enum { BL_GOODNESS_NQ = 5, BL_GOODNESS_NBINS = 5 };
 extern const double bl_goodness_probs[BL_GOODNESS_NQ];
 
 typedef struct {
-    char *condition;          /* "context=rich;difficulty=easy", or "all" */
-    char *regressor;          /* NULL for a condition cell, else the binned regressor */
-    int bin;                  /* 0 for a condition cell, else 1..5 (low to high regressor) */
-    double regressor_low, regressor_high, regressor_mean;   /* over the bin (NAN for cells) */
-    size_t binning;           /* for bins: index into binnings (bins of one binning are contiguous) */
-    size_t n;                 /* trials in the group */
-    size_t *rows;             /* their table rows, in table order */
+    char *condition; /* "context=rich;difficulty=easy", or "all" */
+    char *regressor; /* NULL for a condition cell, else the binned regressor */
+    int bin;         /* 0 for a condition cell, else 1..5 (low to high regressor) */
+    double regressor_low, regressor_high, regressor_mean; /* over the bin (NAN for cells) */
+    size_t binning; /* for bins: index into binnings (bins of one binning are contiguous) */
+    size_t n;       /* trials in the group */
+    size_t *rows;   /* their table rows, in table order */
 } bl_goodness_group;
 
 typedef struct {
@@ -53,20 +54,20 @@ typedef struct {
     int upper;                /* 1 upper boundary, 0 lower (accuracy: 1 correct, 0 error) */
     size_t trials, responses; /* trials in the group; of them, responses at this boundary */
     double observed_share, predicted_share;
-    double observed_q[BL_GOODNESS_NQ];    /* seconds; NAN when responses == 0 */
-    double predicted_q[BL_GOODNESS_NQ];   /* seconds; NAN when the predicted share is ~0 */
+    double observed_q[BL_GOODNESS_NQ];  /* seconds; NAN when responses == 0 */
+    double predicted_q[BL_GOODNESS_NQ]; /* seconds; NAN when the predicted share is ~0 */
 } bl_goodness_row;
 
 typedef struct {
-    const bl_fit_set *set;    /* borrowed: must outlive this result */
+    const bl_fit_set *set; /* borrowed: must outlive this result */
     size_t n_groups;
     bl_goodness_group *groups;
-    size_t n_cells;           /* groups[0 .. n_cells-1] are condition cells, the rest regressor bins */
+    size_t n_cells; /* groups[0 .. n_cells-1] are condition cells, the rest regressor bins */
     size_t n_rows;
-    bl_goodness_row *rows;    /* model-major, then group, then upper before lower */
+    bl_goodness_row *rows; /* model-major, then group, then upper before lower */
     size_t n_binnings;
-    char **binnings;          /* "regressor|by1,by2" per distinct slope binning */
-    int accuracy;             /* 1 with stimulus coding: rows are correct and error responses instead of
+    char **binnings; /* "regressor|by1,by2" per distinct slope binning */
+    int accuracy;    /* 1 with stimulus coding: rows are correct and error responses instead of
                                  upper and lower boundary, so the share of the correct row is accuracy */
 } bl_goodness;
 
@@ -79,8 +80,8 @@ int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope);
 /* Compute every row for every model of `set`. `threads` <= 0: OpenMP default; results do not
  * depend on it. Errors: BL_ERR_NUMERIC when a mixture quantile cannot be bracketed or solved
  * (message names model, group and boundary), BL_ERR_NOMEM. */
-bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, const bl_fit_set *set,
-                              int threads, bl_goodness **out, bl_error *err);
+bl_status bl_goodness_compute(const bl_study *study, const bl_trials *trials, const bl_fit_set *set, int threads,
+                              bl_goodness **out, bl_error *err);
 void bl_goodness_destroy(bl_goodness *g);
 
 /* fit_quantiles.csv, atomically. Columns (docs/report.md): model, condition, regressor, bin,
@@ -98,9 +99,9 @@ double bl_goodness_sample_quantile(const double *sorted, size_t n, double prob);
  * weights w (NULL = equal), each distribution conditional on the boundary `upper`:
  *   F(t) = sum_i w_i cdf_i(t, upper) / sum_i w_i P_i(upper).
  * Also returns the mixture's boundary probability sum_i w_i P_i / sum_i w_i in *share (may be NULL).
- * Quantiles are NAN when that share is below 1e-12. Solved to 1e-9 s (a Newton step below that). */
-bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n,
-                                        int upper, const double *probs, size_t k, double *q,
-                                        double *share, bl_error *err);
+ * Quantiles are NAN when that share is below 1e-12. Solved to 1e-9 s (a Newton step below that);
+ * equal to a direct root of the mixture CDF to 1e-10 relative (tests/test_goodness.c). */
+bl_status bl_goodness_mixture_quantiles(const bl_wiener_params *params, const double *w, size_t n, int upper,
+                                        const double *probs, size_t k, double *q, double *share, bl_error *err);
 
 #endif

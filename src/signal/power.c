@@ -31,6 +31,10 @@
 #endif
 
 enum { CHUNK_TRIALS = 32, BL_MAX_WINDOW_SAMPLES = 1 << 28 };
+/* Fewest trials in a block worth a parallel region: two chunks. Starting a 2-thread team cost 0.05-7 ms
+ * on the 2-core test machine (7 ms the first time under load), one trial's Welch spectrum of a 1 s
+ * window at 1 kHz about 0.05-0.2 ms; below two chunks 1 thread was as fast or faster (docs/report.md). */
+enum { PARALLEL_MIN_TRIALS = 2 * CHUNK_TRIALS };
 
 /* CSV/TSV traces are parsed whole when opened, so one thread takes all trials of such a file. */
 static int is_text_trace(const char *p)
@@ -596,8 +600,12 @@ static bl_status compute_blocks(const bl_study *s, bl_power_result *r, const bl_
     for (size_t first = 0; !failed_alloc && first < n_items;) {
         size_t last = first, block_begin = items[first].begin;
         while (last < n_items && items[last].end - block_begin <= block_trials) last++;
+        /* A block of one item, or of fewer than PARALLEL_MIN_TRIALS trials, runs on the calling thread:
+         * starting the team costs more than such a block (see PARALLEL_MIN_TRIALS). */
+        int parallel = last - first >= 2 && items[last - 1].end - block_begin >= PARALLEL_MIN_TRIALS;
+        (void)parallel;
 #ifdef _OPENMP
-#pragma omp parallel for num_threads(nt) schedule(static) /* contiguous: each thread reads its files forward */
+#pragma omp parallel for num_threads(nt) schedule(static) if (parallel) /* contiguous: each thread reads its files forward */
 #endif
         for (size_t k = first; k < last; k++) {
             int tid = 0;
