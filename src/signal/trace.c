@@ -5,6 +5,7 @@
  * default on: integer PCM read as double is divided by 2^(bits-1)).
  */
 #include "signal/trace.h"
+#include "signal/trace_backend.h"
 #include "core/strutil.h"
 
 #include <errno.h>
@@ -13,6 +14,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 struct bl_trace {
     char *path;
@@ -20,7 +22,29 @@ struct bl_trace {
     SNDFILE *sf;
     int64_t pos;            /* the sound file's read position (frames), -1 when unknown */
     double *csv;            /* frames x channels, interleaved (CSV traces only) */
+    bl_trace_backend be;    /* EDF/BDF, BrainVision, NWB: a reader of its own (trace_*.c) */
+    char **names;           /* channel names from the header (CSV header row or the format's), or NULL */
+    size_t n_names;
 };
+
+/* The format reader chosen by extension, or NULL for libsndfile and CSV. */
+typedef bl_status (*backend_open)(const char *, bl_trace_info *, bl_trace_backend *, bl_error *);
+static backend_open backend_for(const char *p)
+{
+    const char *dot = strrchr(p, '.');
+    if (!dot || strchr(dot, '/')) return NULL;
+    if (strcasecmp(dot, ".edf") == 0 || strcasecmp(dot, ".bdf") == 0) return bl_trace_edf_open;
+    if (strcasecmp(dot, ".vhdr") == 0) return bl_trace_brainvision_open;
+    if (strcasecmp(dot, ".nwb") == 0) return bl_trace_nwb_open;
+    return NULL;
+}
+
+void bl_trace_strings_free(char **s, size_t n)
+{
+    if (!s) return;
+    for (size_t i = 0; i < n; i++) free(s[i]);
+    free(s);
+}
 
 static int has_csv_extension(const char *p)
 {
@@ -66,6 +90,28 @@ static int is_integer_pcm(int format)
            s == SF_FORMAT_PCM_32;
 }
 
+/* The header row's fields, spaces and quotes trimmed; an empty field stays "" (unnamed). */
+static char **csv_names(const char *p, char delim, size_t channels)
+{
+    char **names = calloc(channels, sizeof *names);
+    if (!names) return NULL;
+    for (size_t c = 0; c < channels; c++) {
+        const char *stop = strchr(p, delim);
+        size_t len = stop ? (size_t)(stop - p) : strlen(p);
+        const char *a = p;
+        while (len > 0 && (*a == ' ' || *a == '"')) a++, len--;
+        while (len > 0 && (a[len - 1] == ' ' || a[len - 1] == '"')) len--;
+        if (!(names[c] = malloc(len + 1))) {
+            bl_trace_strings_free(names, channels);
+            return NULL;
+        }
+        memcpy(names[c], a, len);
+        names[c][len] = '\0';
+        p = stop ? stop + 1 : p + len;
+    }
+    return names;
+}
+
 /* CSV/TSV trace: header row, then one numeric row per sample. */
 static bl_status read_csv_trace(bl_trace *t, bl_error *err)
 {
@@ -89,6 +135,11 @@ static bl_status read_csv_trace(bl_trace *t, bl_error *err)
             if (strchr(p, '\t')) delim = '\t';
             channels = 1;
             for (char *q = p; *q; q++) channels += *q == delim;
+            t->n_names = channels;
+            if (!(t->names = csv_names(p, delim, channels))) {
+                st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory reading the header", t->path);
+                goto done;
+            }
             continue;
         }
         if (frames == dcap) {
@@ -155,6 +206,15 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory opening %s", path);
     }
     bl_status st;
+    backend_open open_format = backend_for(path);
+    if (open_format) {
+        t->info.clip_lo = t->info.clip_hi = NAN;
+        if ((st = open_format(path, &t->info, &t->be, err))) goto fail;
+        t->names = t->be.names;
+        t->n_names = t->info.channels;
+        *out = t;
+        return BL_OK;
+    }
     if (has_csv_extension(path)) {
         if (!(csv_rate > 0)) {
             st = bl_error_set(err, BL_ERR_INPUT, "%s: a CSV/TSV trace needs recordings.rate (samples per second)", path);
@@ -227,6 +287,14 @@ fail:
 }
 
 const bl_trace_info *bl_trace_get_info(const bl_trace *t) { return &t->info; }
+const char *bl_trace_channel_name(const bl_trace *t, size_t c)
+{
+    return t->names && c < t->info.channels && t->names[c][0] ? t->names[c] : NULL;
+}
+const char *bl_trace_channel_unit(const bl_trace *t, size_t c)
+{
+    return t->be.units && c < t->info.channels ? t->be.units[c] : NULL;
+}
 const char *bl_trace_path(const bl_trace *t) { return t->path; }
 
 bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err)
@@ -236,6 +304,7 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
                             "%s: samples %lld to %.0f are outside the recording (%lld samples = %.6g s at %.10g Hz)",
                             t->path, (long long)start, (double)start + (double)n - 1, (long long)t->info.frames,
                             (double)t->info.frames / t->info.rate, t->info.rate);
+    if (t->be.read) return t->be.read(t->be.impl, start, n, buf, err);
     if (t->csv) {
         memcpy(buf, t->csv + (size_t)start * t->info.channels, n * t->info.channels * sizeof *buf);
         return BL_OK;
@@ -274,6 +343,9 @@ void bl_trace_close(bl_trace *t)
 {
     if (!t) return;
     if (t->sf) sf_close(t->sf);
+    if (t->be.close) t->be.close(t->be.impl);
+    bl_trace_strings_free(t->names, t->n_names);
+    if (t->be.units) bl_trace_strings_free(t->be.units, t->info.channels);
     free(t->csv);
     free(t->path);
     free(t);

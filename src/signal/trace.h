@@ -6,6 +6,9 @@
  * study (`recordings.rate`); values are taken as already in the study's unit.
  * Sound files are never loaded whole: each window seeks (sf_seek) and reads only its frames, so
  * memory is proportional to a window. CSV traces are parsed once into memory (text cannot be sought).
+ * EDF/EDF+/BDF/BDF+ (.edf, .bdf), BrainVision (.vhdr with its .eeg) and NWB 2.x (.nwb, an ElectricalSeries)
+ * have readers of their own (trace_edf.c, trace_brainvision.c, trace_nwb.c), chosen by extension; they
+ * return samples in each channel's physical unit from the file's header, and read windows by seeking.
  */
 #ifndef BL_TRACE_H
 #define BL_TRACE_H
@@ -34,6 +37,12 @@ typedef struct {
 BL_API bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_error *err);
 BL_API const bl_trace_info *bl_trace_get_info(const bl_trace *t);
 BL_API const char *bl_trace_path(const bl_trace *t);
+/* Name of channel c (0-based) from the file's header or the CSV header row; NULL when the format has no
+ * names (sound files) or the field is empty. */
+BL_API const char *bl_trace_channel_name(const bl_trace *t, size_t c);
+/* Physical unit of channel c as the file writes it ("uV", "volts", ...); NULL when the format has none
+ * (sound files, CSV), whose values are scaled by recordings.gain instead. */
+BL_API const char *bl_trace_channel_unit(const bl_trace *t, size_t c);
 /* Read frames [start, start + n) of every channel, interleaved, into buf (n * channels doubles).
  * BL_ERR_INPUT when the range leaves the recording; BL_ERR_IO when fewer frames come back. */
 BL_API bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err);
