@@ -309,7 +309,8 @@ static const char *const unit_names[] = {"V", "mV", "uV", "\xc2\xb5V", "nV", "au
 
 static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
 {
-    static const char *const keys[] = {"file", "onset", "gain", "unit", "rate", "channels", NULL};
+    static const char *const keys[] = {"file", "onset", "gain", "unit", "rate", "channels", "average", NULL};
+    static const char *const averages[] = {"signal", "power", NULL};
     bl_status st;
     char *file = NULL;
     if ((st = check_keys(c, o, "recordings", keys))) return st;
@@ -323,6 +324,9 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
     int u;
     if ((st = get_choice(c, o, "recordings", "unit", unit_names, 5, &u))) return st;
     if (!(s->recordings.unit = bl_strdup(unit_names[u]))) return nomem(c);
+    int average;
+    if ((st = get_choice(c, o, "recordings", "average", averages, 0, &average))) return st;
+    s->recordings.average_power = average == 1;
     int has_rate;
     if ((st = get_number(c, o, "recordings", "rate", NAN, &s->recordings.rate, &has_rate))) return st;
     if (has_rate && !(s->recordings.rate > 0)) return bad(c, "recordings.rate", get(o, "rate"), "must be > 0 (Hz)");
@@ -854,6 +858,7 @@ char *bl_study_to_json(const bl_study *s)
         cJSON_AddStringToObject(r, "onset", s->recordings.onset);
         cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
         cJSON_AddStringToObject(r, "unit", s->recordings.unit);
+        cJSON_AddStringToObject(r, "average", s->recordings.average_power ? "power" : "signal");
         cJSON_AddItemToObject(r, "rate", num_or_null(s->recordings.rate));
         cJSON_AddItemToObject(r, "channels", string_array(s->recordings.channels, s->recordings.n_channels));
     }

@@ -73,8 +73,9 @@ typedef struct bl_study {
         double gain;              /* multiplies what the reader returns into `unit` */
         char *unit;               /* e.g. "uV" */
         double rate;              /* Hz, required for CSV traces; NAN otherwise */
-        char **channels;          /* "3", "1-2"; several are averaged */
+        char **channels;          /* "3", "1-2", "Cz", "Cz-Pz"; several are averaged */
         size_t n_channels;
+        int average_power;        /* "average": "power" (mean of each entry's band power), else the signals' mean */
     } recordings;
 
     int has_power;                /* the study has a "power" section */

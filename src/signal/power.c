@@ -15,6 +15,7 @@
 #include "core/output.h"
 #include "signal/spectrum.h"
 #include "signal/trace.h"
+#include "signal/channels.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -118,6 +119,8 @@ typedef struct {
     size_t raw_cap;          /* doubles */
     double *x;               /* window_samples */
     bl_welch_work *work;
+    bl_montage *mont;        /* the study's channels resolved for the open recording (names, units, gain) */
+    double *psd_entry;       /* n_freqs: one entry's PSD when "average": "power" */
 } thread_state;
 
 static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_result *r, const bl_trials *t,
@@ -147,11 +150,11 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
                             "participant %s: %s is sampled at %.10g Hz, but the study uses %.10g Hz%s", part, path,
                             info->rate, r->fs,
                             isfinite(s->recordings.rate) ? " (recordings.rate)" : " (the rate of the first recording)");
-    if ((size_t)bl_montage_max_channel(m) > info->channels)
-        return bl_error_set(err, BL_ERR_INPUT,
-                            "participant %s, trial %s: %s has %zu channel%s, but recordings.channels uses channel %d",
-                            part, t->trial_label[first_row], path, info->channels, info->channels == 1 ? "" : "s",
-                            bl_montage_max_channel(m));
+    bl_montage_destroy(ts->mont);
+    ts->mont = NULL;
+    if ((st = bl_montage_resolve(m, ts->trace, "recordings.channels", s->recordings.unit, s->recordings.gain,
+                                 &ts->mont, &e)))
+        return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
     size_t need = r->window_samples * info->channels;
     if (need > ts->raw_cap) {
         double *nr = realloc(ts->raw, need * sizeof *nr);
@@ -191,6 +194,22 @@ static const char *artifact(const bl_study *s, const bl_trace_info *info, const 
     return NULL;
 }
 
+/* "average": "power": the mean of each entry's PSD (so of each entry's band power, a linear sum of bins). */
+static const char *power_average(const bl_study *s, const bl_trace_info *info, const bl_welch_plan *plan,
+                                 thread_state *ts, size_t L, size_t nf, double *psd, bl_status *status, bl_error *e)
+{
+    const bl_montage *m = ts->mont;
+    for (size_t j = 0; j < nf; j++) psd[j] = 0;
+    for (size_t k = 0; k < m->n; k++) {
+        bl_montage_apply_entry(m, k, ts->raw, L, info->channels, ts->x);
+        const char *why = artifact(s, info, m, ts->raw, ts->x, L);
+        if (why) return why;
+        if ((*status = bl_welch_compute(plan, ts->work, ts->x, L, ts->psd_entry, e))) return NULL;
+        for (size_t j = 0; j < nf; j++) psd[j] += ts->psd_entry[j] / (double)m->n;
+    }
+    return NULL;
+}
+
 static void process_item(const bl_study *s, bl_power_result *r, const bl_trials *t, const bl_montage *m,
                          const bl_welch_plan *plan, const job *jobs, item *it, thread_state *ts, const char **reason)
 {
@@ -198,6 +217,7 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
         it->status = open_recording(ts, s, r, t, m, it->rec, jobs[it->begin].row, &it->err);
         if (it->status) return;
     }
+    m = ts->mont;
     const bl_trace_info *info = bl_trace_get_info(ts->trace);
     if (it->begin == 0 || jobs[it->begin - 1].rec != it->rec) { /* first chunk of this recording: describe it */
         bl_power_recording *rec = &r->recordings[it->rec];
@@ -227,14 +247,24 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
             bl_error_set(&it->err, it->status, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
             return;
         }
-        bl_montage_apply(m, ts->raw, L, info->channels, s->recordings.gain, ts->x);
         double *psd = r->psd + row * nf;
-        const char *why = artifact(s, info, m, ts->raw, ts->x, L);
-        if (why) {
-            reason[row] = why;
-            continue;
+        if (s->recordings.average_power && m->n > 1) {
+            const char *why = power_average(s, info, plan, ts, L, nf, psd, &it->status, &e);
+            if (why) {
+                for (size_t j = 0; j < nf; j++) psd[j] = NAN;
+                reason[row] = why;
+                continue;
+            }
+        } else {
+            bl_montage_apply(m, ts->raw, L, info->channels, 1.0, ts->x); /* gain is inside the resolved montage */
+            const char *why = artifact(s, info, m, ts->raw, ts->x, L);
+            if (why) {
+                reason[row] = why;
+                continue;
+            }
+            it->status = bl_welch_compute(plan, ts->work, ts->x, L, psd, &e);
         }
-        if ((it->status = bl_welch_compute(plan, ts->work, ts->x, L, psd, &e))) {
+        if (it->status) {
             bl_error_set(&it->err, it->status, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
             return;
         }
@@ -567,10 +597,11 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
 #pragma omp parallel num_threads(nt)
 #endif
     {
-        thread_state ts = {NULL, SIZE_MAX, NULL, 0, NULL, NULL};
+        thread_state ts = {NULL, SIZE_MAX, NULL, 0, NULL, NULL, NULL, NULL};
         bl_error e = {0};
         ts.x = malloc(r->window_samples * sizeof *ts.x);
-        int ok = ts.x && bl_welch_work_create(plan, r->window_samples, &ts.work, &e) == BL_OK;
+        ts.psd_entry = malloc(r->n_freqs * sizeof *ts.psd_entry);
+        int ok = ts.x && ts.psd_entry && bl_welch_work_create(plan, r->window_samples, &ts.work, &e) == BL_OK;
         if (!ok) {
 #ifdef _OPENMP
 #pragma omp atomic write
@@ -585,6 +616,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             process_item(s, r, t, m, plan, jobs, &items[k], &ts, reason);
         }
         bl_trace_close(ts.trace);
+        bl_montage_destroy(ts.mont);
+        free(ts.psd_entry);
         free(ts.raw);
         free(ts.x);
         bl_welch_work_destroy(ts.work);

@@ -386,10 +386,23 @@ bl_status bl_montage_parse(const char *const *specs, size_t n, const char *key, 
             e = b > 0 ? e2 : e;
             if (b < 0) a = -1;
         }
+        if ((a < 0 || *e) && strpbrk(s, "0123456789-") != s && *s) { /* a name: looked up per recording */
+            if (!m->name && !(m->name = calloc(n, sizeof *m->name))) {
+                bl_montage_destroy(m);
+                return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            }
+            if (!(m->name[i] = bl_strdup(s))) {
+                bl_montage_destroy(m);
+                return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            }
+            m->pos[i] = m->neg[i] = -1;
+            continue;
+        }
         if (a < 0 || *e) {
             bl_montage_destroy(m);
             return bl_error_set(err, BL_ERR_INPUT,
-                                "key \"%s[%zu]\": \"%s\" is not a channel (1-based number \"3\" or bipolar pair \"1-2\")",
+                                "key \"%s[%zu]\": \"%s\" is not a channel (1-based number \"3\", bipolar pair \"1-2\", or a "
+                                "name \"Cz\", \"Cz-Pz\")",
                                 key, i, s);
         }
         if (a == b) {
@@ -416,6 +429,16 @@ int bl_montage_max_channel(const bl_montage *m)
 void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_t channels, double gain, double *out)
 {
     double scale = gain / (double)m->n;
+    if (m->wpos) { /* resolved per recording: each channel has its own multiplier */
+        for (size_t f = 0; f < frames; f++) {
+            const double *row = x + f * channels;
+            double s = 0;
+            for (size_t i = 0; i < m->n; i++)
+                s += m->neg[i] >= 0 ? m->wpos[i] * row[m->pos[i]] - m->wneg[i] * row[m->neg[i]] : m->wpos[i] * row[m->pos[i]];
+            out[f] = scale * s;
+        }
+        return;
+    }
     if (m->n == 1 && m->neg[0] < 0) {
         const double *p = x + m->pos[0];
         for (size_t f = 0; f < frames; f++) out[f] = gain * p[f * channels];
@@ -432,6 +455,11 @@ void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_
 void bl_montage_destroy(bl_montage *m)
 {
     if (!m) return;
+    if (m->name)
+        for (size_t i = 0; i < m->n; i++) free(m->name[i]);
+    free(m->name);
+    free(m->wpos);
+    free(m->wneg);
     free(m->pos);
     free(m->neg);
     free(m);

@@ -48,17 +48,20 @@ BL_API const char *bl_trace_channel_unit(const bl_trace *t, size_t c);
 BL_API bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err);
 BL_API void bl_trace_close(bl_trace *t);
 
-/* A channel selection: each entry is one channel ("3") or a bipolar pair ("1-2" = channel 1 minus
- * channel 2); 1-based; several entries are averaged. */
+/* A channel selection: each entry is one channel ("3", or a name "Cz") or a bipolar pair ("1-2" = channel 1
+ * minus channel 2, "Cz-Pz"); numbers are 1-based; several entries are averaged. Entries given by name have
+ * pos[i] = -1 until bl_montage_resolve (signal/channels.h) looks them up in a recording. */
 typedef struct {
     size_t n;
     int *pos, *neg;         /* 0-based channel indices; neg[i] = -1 for a single channel */
+    char **name;            /* n entries: the specification when it names channels, else NULL; NULL array when none */
+    double *wpos, *wneg;    /* per-entry multipliers (unit conversion x gain) set by bl_montage_resolve; NULL = 1 */
 } bl_montage;
 
 /* Parse channel specifications; errors name `key` (e.g. "recordings.channels[1]") and the value. */
 BL_API bl_status bl_montage_parse(const char *const *specs, size_t n, const char *key, bl_montage **out,
                                   bl_error *err);
-/* Largest channel number (1-based) the montage uses. */
+/* Largest channel number (1-based) the montage uses (entries by name not yet resolved count as 0). */
 BL_API int bl_montage_max_channel(const bl_montage *m);
 /* out[f] = gain * mean_i (x[f, pos_i] - x[f, neg_i]) for f < frames, from interleaved x. */
 BL_API void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_t channels,
