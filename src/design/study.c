@@ -264,19 +264,71 @@ static int is_csv_name(const char *p)
 
 /* ---- sections ---- */
 
+/* "split": {"trial_type": ["side", "difficulty"]}: a column of "left/easy" values into named columns. */
+static bl_status parse_split(ctx *c, const cJSON *o, bl_study *s)
+{
+    const cJSON *sp;
+    bl_status st;
+    if ((st = get_object(c, o, "trials", "split", 0, &sp))) return st;
+    if (!sp) return BL_OK;
+    size_t n = (size_t)cJSON_GetArraySize(sp);
+    if (!(s->split.column = calloc(n + 1, sizeof *s->split.column)) ||
+        !(s->split.into = calloc(n + 1, sizeof *s->split.into)) ||
+        !(s->split.n_into = calloc(n + 1, sizeof *s->split.n_into)))
+        return nomem(c);
+    for (const cJSON *e = sp->child; e; e = e->next) {
+        char key[300];
+        snprintf(key, sizeof key, "trials.split.%s", e->string);
+        size_t i = s->split.n++;
+        if (!(s->split.column[i] = bl_strdup(e->string))) return nomem(c);
+        if (!cJSON_IsArray(e)) return bad(c, key, e, "must be an array of column names, one per part");
+        if ((st = get_string_array(c, e, key, 0, 0, &s->split.into[i], &s->split.n_into[i]))) return st;
+        if (s->split.n_into[i] < 2) return bad(c, key, e, "needs at least two column names");
+    }
+    return BL_OK;
+}
+
+/* "bids": {"root": ".", "task": "..."}: trials and recordings found in a BIDS dataset. */
+static bl_status parse_bids(ctx *c, const cJSON *o, bl_study *s)
+{
+    static const char *const keys[] = {"root", "task", NULL};
+    bl_status st;
+    char *root = NULL;
+    if ((st = check_keys(c, o, "bids", keys))) return st;
+    if ((st = get_string(c, o, "bids", "root", ".", &root))) return st;
+    s->bids.root = resolve_path(s->dir, root);
+    free(root);
+    if (!s->bids.root) return nomem(c);
+    size_t len = strlen(s->bids.root); /* "dir/." and "dir/" are "dir" */
+    while (len > 1 && (s->bids.root[len - 1] == '/' || (s->bids.root[len - 1] == '.' && s->bids.root[len - 2] == '/')))
+        s->bids.root[--len] = '\0';
+    if ((st = require_string(c, o, "bids", "task", &s->bids.task))) return st;
+    if (!*s->bids.task || strpbrk(s->bids.task, "_-/ "))
+        return bad(c, "bids.task", get(o, "task"), "must be a BIDS label (letters and digits, no '_', '-' or '/')");
+    return BL_OK;
+}
+
 static bl_status parse_trials(ctx *c, const cJSON *o, bl_study *s)
 {
     static const char *const keys[] = {"file", "participant", "trial", "rt", "rt_unit", "response", "upper",
-                                       "stimulus", "keep", NULL};
+                                       "stimulus", "keep", "split", NULL};
     static const char *const units[] = {"s", "ms", NULL};
     bl_status st;
     char *file = NULL;
     if ((st = check_keys(c, o, "trials", keys))) return st;
-    if ((st = require_string(c, o, "trials", "file", &file))) return st;
-    s->trials.file = resolve_path(s->dir, file);
-    free(file);
-    if (!s->trials.file) return nomem(c);
-    if ((st = require_string(c, o, "trials", "participant", &s->trials.participant))) return st;
+    if (s->bids.root && !get(o, "file")) { /* the events files of the BIDS tree (design/trial_files.c) */
+        if (!(s->trials.file = bl_strdup(s->bids.root))) return nomem(c);
+    } else {
+        if ((st = require_string(c, o, "trials", "file", &file))) return st;
+        s->trials.file = resolve_path(s->dir, file);
+        free(file);
+        if (!s->trials.file) return nomem(c);
+    }
+    if (s->bids.root && !get(o, "participant")) {
+        if (!(s->trials.participant = bl_strdup("participant"))) return nomem(c);
+    } else if ((st = require_string(c, o, "trials", "participant", &s->trials.participant)))
+        return st;
+    if ((st = parse_split(c, o, s))) return st;
     if ((st = require_string(c, o, "trials", "rt", &s->trials.rt))) return st;
     int unit;
     if ((st = get_choice(c, o, "trials", "rt_unit", units, 0, &unit))) return st;
@@ -314,11 +366,20 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
     bl_status st;
     char *file = NULL;
     if ((st = check_keys(c, o, "recordings", keys))) return st;
-    if ((st = require_string(c, o, "recordings", "file", &file))) return st;
-    s->recordings.file = resolve_path(s->dir, file);
-    free(file);
-    if (!s->recordings.file) return nomem(c);
-    if ((st = require_string(c, o, "recordings", "onset", &s->recordings.onset))) return st;
+    if (s->bids.root && !get(o, "file")) { /* each events file's own recording, found by the BIDS scan */
+        size_t len = strlen(s->bids.root) + 32;
+        if (!(s->recordings.file = malloc(len))) return nomem(c);
+        snprintf(s->recordings.file, len, "%s/{bids_recording}", s->bids.root);
+    } else {
+        if ((st = require_string(c, o, "recordings", "file", &file))) return st;
+        s->recordings.file = resolve_path(s->dir, file);
+        free(file);
+        if (!s->recordings.file) return nomem(c);
+    }
+    if (s->bids.root && !get(o, "onset")) {
+        if (!(s->recordings.onset = bl_strdup("onset"))) return nomem(c);
+    } else if ((st = require_string(c, o, "recordings", "onset", &s->recordings.onset)))
+        return st;
     if ((st = get_number(c, o, "recordings", "gain", 1.0, &s->recordings.gain, NULL))) return st;
     if (!(s->recordings.gain > 0)) return bad(c, "recordings.gain", get(o, "gain"), "must be > 0");
     int u;
@@ -729,10 +790,12 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;
     }
-    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", NULL};
+    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", "bids", NULL};
     if ((st = check_keys(&c, root, "", keys))) goto fail;
 
     const cJSON *o;
+    if ((st = get_object(&c, root, "", "bids", 0, &o))) goto fail;
+    if (o && (st = parse_bids(&c, o, s))) goto fail;
     if ((st = get_object(&c, root, "", "trials", 1, &o))) goto fail;
     if ((st = parse_trials(&c, o, s))) goto fail;
     if ((st = get_object(&c, root, "", "recordings", 0, &o))) goto fail;
@@ -929,6 +992,16 @@ void bl_study_destroy(bl_study *s)
     free(s->path);
     free(s->dir);
     free(s->trials.file);
+    free(s->bids.root);
+    free(s->bids.task);
+    for (size_t i = 0; i < s->split.n; i++) {
+        free(s->split.column[i]);
+        for (size_t k = 0; k < s->split.n_into[i]; k++) free(s->split.into[i][k]);
+        free(s->split.into[i]);
+    }
+    free(s->split.column);
+    free(s->split.into);
+    free(s->split.n_into);
     free(s->trials.participant);
     free(s->trials.rt);
     free(s->trials.response);

@@ -66,6 +66,16 @@ typedef struct bl_study {
         int trial_given;          /* the study named `trial` explicitly (then the column must exist) */
     } trials;
 
+    struct {
+        char *root;               /* resolved BIDS dataset folder; NULL without a "bids" block */
+        char *task;               /* the task label of the *_task-<label>_events.tsv files */
+    } bids;
+    struct {
+        char **column;            /* trials.split: columns holding combined factors ("left/easy") */
+        char ***into;             /* per column, the names of the parts */
+        size_t *n_into, n;
+    } split;
+
     int has_recordings;           /* the study has a "recordings" section */
     struct {
         char *file;               /* resolved path, may contain {column} placeholders */

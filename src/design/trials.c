@@ -8,6 +8,7 @@
  */
 #include "design/trials.h"
 #include "design/study.h"
+#include "design/trial_files.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -106,21 +107,25 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
 {
     *out = NULL;
     bl_table *tab = NULL;
-    bl_status st = bl_table_read(study->trials.file, &tab, err);
+    bl_trial_sources *files = NULL;
+    bl_status st = bl_trial_table_load(study, &tab, &files, err); /* one file, a pattern, or a BIDS tree */
     if (st) return st;
     const char *file = tab->path;
     if (tab->n_rows == 0) {
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the trial table is empty (a header row but no trials)", file);
         bl_table_destroy(tab);
+        bl_trial_sources_destroy(files);
         return st;
     }
     size_t n = tab->n_rows;
     bl_trials *t = calloc(1, sizeof *t);
     if (!t) {
         bl_table_destroy(tab);
+        bl_trial_sources_destroy(files);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
     }
     t->table = tab;
+    t->files = files;
     t->n = t->n_kept = n;
     t->rt = malloc(n * sizeof *t->rt);
     t->upper = calloc(n, sizeof *t->upper);
@@ -281,6 +286,7 @@ fail:
 void bl_trials_destroy(bl_trials *t)
 {
     if (!t) return;
+    bl_trial_sources_destroy(t->files);
     if (t->trial_label)
         for (size_t i = 0; i < t->n; i++) free(t->trial_label[i]);
     if (t->participants)

@@ -1,6 +1,9 @@
 /* Channel selections resolved per recording: names from the header, bipolar pairs of names, units. */
 #include "signal/channels.h"
 #include "core/strutil.h"
+#include "design/table.h"
+
+#include <sys/stat.h>
 
 #include <math.h>
 #include <stdio.h>
@@ -120,6 +123,49 @@ static bl_status resolve_entry(const bl_montage *m, const bl_trace *t, const cha
     return BL_OK;
 }
 
+/* BIDS: "<stem>_eeg.edf" has "<stem>_channels.tsv" beside it; a channel named in the study and marked
+ * status "bad" there is refused (a numbered channel is the user's explicit choice and passes). */
+static bl_status refuse_bad(const bl_montage *m, const bl_montage *r, const bl_trace *t, const char *key, bl_error *err)
+{
+    if (!m->name) return BL_OK;
+    const char *path = bl_trace_path(t), *slash = strrchr(path, '/'), *base = slash ? slash + 1 : path;
+    const char *us = strrchr(base, '_');
+    if (!us) return BL_OK;
+    size_t keep = (size_t)(us - path);
+    char *sidecar = malloc(keep + 16);
+    if (!sidecar) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    memcpy(sidecar, path, keep);
+    strcpy(sidecar + keep, "_channels.tsv");
+    struct stat sb;
+    bl_table *tab = NULL;
+    bl_status st = BL_OK;
+    if (stat(sidecar, &sb) != 0 || (st = bl_table_read(sidecar, &tab, err))) goto done;
+    int cn = bl_table_find(tab, "name"), cs = bl_table_find(tab, "status"), cd = bl_table_find(tab, "status_description");
+    if (cn < 0) {
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: no column \"name\" (BIDS channels.tsv)", sidecar);
+        goto done;
+    }
+    for (size_t i = 0; i < m->n && cs >= 0 && !st; i++) {
+        if (!m->name[i]) continue;
+        int chans[2] = {r->pos[i], r->neg[i]};
+        for (int k = 0; k < 2 && !st; k++) {
+            const char *name = chans[k] >= 0 ? bl_trace_channel_name(t, (size_t)chans[k]) : NULL;
+            for (size_t row = 0; name && row < tab->n_rows && !st; row++) {
+                const char *nm = tab->cols[cn].text[row], *status = tab->cols[cs].text[row];
+                if (nm && status && strcmp(nm, name) == 0 && strcmp(status, "bad") == 0)
+                    st = bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": channel \"%s\" is marked bad in %s:%zu%s%s%s",
+                                      key, i, name, sidecar, tab->line[row], cd >= 0 && tab->cols[cd].text[row] ? " (" : "",
+                                      cd >= 0 && tab->cols[cd].text[row] ? tab->cols[cd].text[row] : "",
+                                      cd >= 0 && tab->cols[cd].text[row] ? ")" : "");
+            }
+        }
+    }
+done:
+    bl_table_destroy(tab);
+    free(sidecar);
+    return st;
+}
+
 bl_status bl_montage_resolve(const bl_montage *m, const bl_trace *t, const char *key, const char *unit, double gain,
                              bl_montage **out, bl_error *err)
 {
@@ -140,6 +186,7 @@ bl_status bl_montage_resolve(const bl_montage *m, const bl_trace *t, const char 
         r->wneg[i] = 0;
         if (!st && r->neg[i] >= 0) st = channel_factor(t, r->neg[i], key, i, unit, gain, &first_unit, &r->wneg[i], err);
     }
+    if (!st) st = refuse_bad(m, r, t, key, err);
     if (st) {
         bl_montage_destroy(r);
         return st;

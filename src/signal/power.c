@@ -16,6 +16,7 @@
 #include "signal/spectrum.h"
 #include "signal/trace.h"
 #include "signal/channels.h"
+#include "design/trial_files.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -109,6 +110,31 @@ static int add_recording(bl_power_result *r, size_t *cap, const char *path, cons
     }
     *index = r->n_recordings++;
     return 1;
+}
+
+/* "<name>.*" recordings: the one file with a recording's extension; the last answer is kept, as
+ * consecutive trials usually share a recording. */
+typedef struct {
+    char *pattern, *path;
+} any_cache_t;
+
+static bl_status any_extension(char **path, any_cache_t *cache, bl_error *err)
+{
+    size_t len = strlen(*path);
+    if (len < 2 || strcmp(*path + len - 2, ".*") != 0) return BL_OK;
+    if (!cache->pattern || strcmp(cache->pattern, *path) != 0) {
+        char *found = NULL;
+        bl_status st = bl_resolve_any_extension(*path, &found, err);
+        if (st) return st;
+        free(cache->pattern);
+        free(cache->path);
+        cache->pattern = *path;
+        cache->path = found;
+    } else {
+        free(*path);
+    }
+    *path = bl_strdup(cache->path);
+    return *path ? BL_OK : bl_error_set(err, BL_ERR_NOMEM, "out of memory");
 }
 
 /* Per-thread state. */
@@ -431,6 +457,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     item *items = NULL;
     const char **reason = NULL;
     size_t n_jobs = 0, n_items = 0, rec_cap = 0;
+    any_cache_t any_cache = {NULL, NULL};
     bl_power_result *r = calloc(1, sizeof *r);
     if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
@@ -461,7 +488,9 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         }
         align[i] = onset + (s->power.align == BL_ALIGN_RESPONSE ? t->rt[i] : 0.0);
         char *path = NULL;
-        if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &path, err))) {
+        if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &path, err)) ||
+            (st = any_extension(&path, &any_cache, err))) {
+            free(path);
             free(align);
             goto fail;
         }
@@ -478,6 +507,9 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         n_jobs++;
     }
 
+    free(any_cache.pattern);
+    free(any_cache.path);
+    any_cache.pattern = any_cache.path = NULL;
     /* sampling rate: the study's, or the first recording's */
     if (isfinite(s->recordings.rate)) {
         r->fs = s->recordings.rate;
@@ -657,6 +689,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     free(items);
     free(jobs);
     free(reason);
+    free(any_cache.pattern);
+    free(any_cache.path);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     *out = r;
@@ -667,6 +701,8 @@ fail:
     free(items);
     free(jobs);
     free(reason);
+    free(any_cache.pattern);
+    free(any_cache.path);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     bl_power_result_destroy(r);

@@ -504,7 +504,9 @@ bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t r
                 return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" is missing but recordings.file \"%s\" needs it",
                                     table->path ? table->path : "trials", table->line[row], name, pattern);
             }
-            if (strchr(piece, '/') || strcmp(piece, "..") == 0) {
+            /* bids_recording is the relative path the BIDS scan found (design/trial_files.c): '/' allowed, '..' not */
+            int nested = strcmp(name, "bids_recording") == 0 && !strstr(piece, "..") && piece[0] != '/';
+            if ((strchr(piece, '/') && !nested) || strcmp(piece, "..") == 0) {
                 free(r);
                 return bl_error_set(err, BL_ERR_INPUT,
                                     "%s:%zu: column \"%s\" value \"%s\" contains '/' or is '..'; it cannot fill a file name",
