@@ -16,6 +16,7 @@
 #include "signal/spectrum.h"
 #include "signal/trace.h"
 #include "signal/channels.h"
+#include "signal/check_breakdown.h"
 #include "design/trial_files.h"
 #include "core/strutil.h"
 
@@ -76,6 +77,8 @@ void bl_power_result_destroy(bl_power_result *r)
     free(r->freq);
     free(r->psd);
     free(r->band_power);
+    free(r->row_recording);
+    free(r->row_ptp);
     free(r->unit);
     free(r);
 }
@@ -220,14 +223,27 @@ static const char *artifact(const bl_study *s, const bl_trace_info *info, const 
     return NULL;
 }
 
+static double peak_to_peak(const double *x, size_t n)
+{
+    double lo = INFINITY, hi = -INFINITY;
+    for (size_t i = 0; i < n; i++) {
+        if (x[i] < lo) lo = x[i];
+        if (x[i] > hi) hi = x[i];
+    }
+    return hi - lo;
+}
+
 /* "average": "power": the mean of each entry's PSD (so of each entry's band power, a linear sum of bins). */
 static const char *power_average(const bl_study *s, const bl_trace_info *info, const bl_welch_plan *plan,
-                                 thread_state *ts, size_t L, size_t nf, double *psd, bl_status *status, bl_error *e)
+                                 thread_state *ts, size_t L, size_t nf, double *psd, double *ptp_out,
+                                 bl_status *status, bl_error *e)
 {
     const bl_montage *m = ts->mont;
     for (size_t j = 0; j < nf; j++) psd[j] = 0;
     for (size_t k = 0; k < m->n; k++) {
         bl_montage_apply_entry(m, k, ts->raw, L, info->channels, ts->x);
+        double ptp = peak_to_peak(ts->x, L);
+        if (!(*ptp_out >= ptp)) *ptp_out = ptp;
         const char *why = artifact(s, info, m, ts->raw, ts->x, L);
         if (why) return why;
         if ((*status = bl_welch_compute(plan, ts->work, ts->x, L, ts->psd_entry, e))) return NULL;
@@ -274,8 +290,10 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
             return;
         }
         double *psd = r->psd + row * nf;
+        r->row_recording[row] = it->rec;
         if (s->recordings.average_power && m->n > 1) {
-            const char *why = power_average(s, info, plan, ts, L, nf, psd, &it->status, &e);
+            r->row_ptp[row] = NAN;
+            const char *why = power_average(s, info, plan, ts, L, nf, psd, &r->row_ptp[row], &it->status, &e);
             if (why) {
                 for (size_t j = 0; j < nf; j++) psd[j] = NAN;
                 reason[row] = why;
@@ -283,6 +301,7 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
             }
         } else {
             bl_montage_apply(m, ts->raw, L, info->channels, 1.0, ts->x); /* gain is inside the resolved montage */
+            r->row_ptp[row] = peak_to_peak(ts->x, L);
             const char *why = artifact(s, info, m, ts->raw, ts->x, L);
             if (why) {
                 reason[row] = why;
@@ -607,6 +626,10 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         goto nomem;
     for (size_t k = 0; k < n * r->n_freqs; k++) r->psd[k] = NAN;
     for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = NAN;
+    if (!(r->row_recording = malloc((n ? n : 1) * sizeof *r->row_recording)) ||
+        !(r->row_ptp = malloc((n ? n : 1) * sizeof *r->row_ptp)))
+        goto nomem;
+    for (size_t k = 0; k < n; k++) r->row_recording[k] = SIZE_MAX, r->row_ptp[k] = NAN;
 
     /* work items: chunks of trials of one recording, in a fixed order */
     qsort(jobs, n_jobs, sizeof *jobs, job_cmp);
@@ -892,6 +915,10 @@ char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_res
     } else {
         sb_printf(&b, "recordings   none (band regressors, if any, come from trial-table columns)\n");
     }
+    char *breakdown = bl_check_breakdown(s, t, r); /* per participant and recording; scale/unit diagnosis */
+    if (!breakdown) b.failed = 1;
+    else sb_printf(&b, "%s", breakdown);
+    free(breakdown);
     sb_printf(&b, "models       %zu", s->n_models);
     for (size_t k = 0; k < s->n_models; k++) sb_printf(&b, "%s%s", k ? ", " : ": ", s->models[k].name);
     sb_printf(&b, "\nfit          participants %s, %d start%s\n",
