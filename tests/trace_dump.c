@@ -2,14 +2,35 @@
  * (tests/reference/formats_mne.py). usage: trace_dump FILE [START N]
  * Prints "rate R", "channels C", "frames F", "format ...", one "channel i name unit" line per channel, then N
  * rows of C samples (%.17g) from frame START (default: the whole recording). Errors: the library's message
- * on stderr, exit 2 (input) or 1. */
+ * on stderr, exit 2 (input) or 1.
+ * trace_dump --events FILE prints the file's events (design/events_files.h) as TSV, missing cells "NA". */
 #include "signal/trace.h"
+#include "design/events_files.h"
 
 #include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
+
+static int dump_events(const char *path)
+{
+    bl_error err = {0};
+    bl_table *t = NULL;
+    bl_status st = bl_events_table_read(path, &t, &err);
+    if (st) {
+        fprintf(stderr, "%s\n", err.message);
+        return bl_status_exit_code(st);
+    }
+    for (size_t c = 0; c < t->n_cols; c++) printf("%s%c", t->cols[c].name, c + 1 == t->n_cols ? '\n' : '\t');
+    for (size_t r = 0; r < t->n_rows; r++)
+        for (size_t c = 0; c < t->n_cols; c++)
+            printf("%s%c", t->cols[c].text[r] ? t->cols[c].text[r] : "NA", c + 1 == t->n_cols ? '\n' : '\t');
+    bl_table_destroy(t);
+    return 0;
+}
 
 int main(int argc, char **argv)
 {
+    if (argc == 3 && strcmp(argv[1], "--events") == 0) return dump_events(argv[2]);
     if (argc != 2 && argc != 4) {
         fprintf(stderr, "usage: trace_dump FILE [START N]\n");
         return 2;

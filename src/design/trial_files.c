@@ -1,6 +1,7 @@
 /* One trial table from many files: {placeholder} patterns, BIDS file lists, "<name>.*" recordings. */
 #include "design/trial_files.h"
 #include "design/study.h"
+#include "design/events_files.h"
 #include "core/strutil.h"
 
 #include <dirent.h>
@@ -246,7 +247,9 @@ bl_status bl_trial_sources_read(bl_trial_sources *s, const char *name, const cha
     FILE *m = NULL;
     if (!tabs) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     for (size_t i = 0; i < s->n && !st; i++) {
-        if ((st = bl_table_read(s->path[i], &tabs[i], err))) break;
+        if ((st = bl_events_file_kind(s->path[i]) ? bl_events_table_read(s->path[i], &tabs[i], err)
+                                                   : bl_table_read(s->path[i], &tabs[i], err)))
+            break;
         for (size_t r = 0; required && required[r] && !st; r++)
             if (bl_table_find(tabs[i], required[r]) < 0)
                 st = bl_error_set(err, BL_ERR_INPUT, "%s: no column \"%s\" (every trial file needs it)", s->path[i],
@@ -630,7 +633,8 @@ bl_status bl_trial_table_load(const bl_study *study, bl_table **out, bl_trial_so
     const char *file = study->trials.file;
     int bids = study->bids.root && strcmp(file, study->bids.root) == 0;
     if (!bids && !strchr(file, '{')) {
-        if ((st = bl_table_read(file, out, err))) return st;
+        if ((st = bl_events_file_kind(file) ? bl_events_table_read(file, out, err) : bl_table_read(file, out, err)))
+            return st;
     } else {
         static const char *const need_onset[] = {"onset", NULL};
         if ((st = bids ? bids_sources(study, files, err) : bl_trial_sources_glob(file, files, err))) return st;

@@ -21,14 +21,14 @@ def _f(text, width):
 
 
 def write_edf(path, labels, units, pmin, pmax, dmin, dmax, digital, spr, duration, bdf=False, plus=False,
-              nrec_field=None, header_bytes_field=None, extra_spr=None):
+              nrec_field=None, header_bytes_field=None, extra_spr=None, annotations=()):
     """digital: int array (n_records*spr, channels). plus=True adds an EDF Annotations signal.
     nrec_field / header_bytes_field override the header fields (to write lying headers);
     extra_spr: per-channel samples per record overriding spr (to write mismatched rates)."""
     ch = len(labels)
     n = digital.shape[0]
     nrec = n // spr
-    ann_spr = 30 if plus else 0  # annotation signal: 30 "samples" of 2 bytes (60 bytes of TAL text)
+    ann_spr = (60 if annotations else 30) if plus else 0  # annotation signal: "samples" of TAL text bytes
     ns = ch + (1 if plus else 0)
     h = b"\xffBIOSEMI" if bdf else _f("0", 8)
     h += _f("X X X X" if plus else "test", 80) + _f("Startdate 02-DEC-2026 X X X" if plus else "test", 80)
@@ -66,12 +66,16 @@ def write_edf(path, labels, units, pmin, pmax, dmin, dmax, digital, spr, duratio
                 out += block.astype("<i2").tobytes()
         if plus:
             tal = ("+%g\x14\x14\x00" % (r * duration)).encode()
+            for onset, dur, text in annotations:  # each in the record whose time span holds its onset
+                if r * duration <= onset < (r + 1) * duration:
+                    tal += (("+%g" % onset) + ("\x15%g" % dur if dur else "") + "\x14" + text + "\x14\x00").encode()
+            assert len(tal) <= ann_spr * bps, "annotations do not fit the record"
             out += tal + b"\x00" * (ann_spr * bps - len(tal))
     open(path, "wb").write(bytes(out))
 
 
 def write_brainvision(stem, labels, resolution, units, raw, fs, binary="INT_16", vectorized=False,
-                      n_channels_field=None, data_bytes=None):
+                      n_channels_field=None, data_bytes=None, markers=None):
     """raw: stored values (frames, channels). Writes stem.vhdr, stem.vmrk, stem.eeg."""
     import os
     base = os.path.basename(stem)
@@ -92,7 +96,9 @@ def write_brainvision(stem, labels, resolution, units, raw, fs, binary="INT_16",
             f"[Channel Infos]\n{ch_lines}")
     open(stem + ".vhdr", "w", encoding="utf-8").write(vhdr)
     vmrk = ("Brain Vision Data Exchange Marker File, Version 1.0\n\n[Common Infos]\nCodepage=UTF-8\n"
-            f"DataFile={base}.eeg\n\n[Marker Infos]\nMk1=New Segment,,1,1,0\nMk2=Stimulus,S  1,100,1,0\n")
+            f"DataFile={base}.eeg\n\n[Marker Infos]\nMk1=New Segment,,1,1,0\n")
+    for k, (kind, desc, pos, pts) in enumerate(markers or [("Stimulus", "S  1", 100, 1)]):
+        vmrk += f"Mk{k + 2}={kind},{desc},{pos},{pts},0\n"
     open(stem + ".vmrk", "w", encoding="utf-8").write(vmrk)
 
 

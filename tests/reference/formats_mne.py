@@ -135,5 +135,57 @@ with tempfile.TemporaryDirectory() as tmp:
     fw.write_nwb(p, data, timestamps=12.5 + np.arange(2000) / 1250.0, labels=["sh1", "sh2"],
                  where="processing/ecephys/LFP/ElectricalSeries")
     compare("NWB processing/ecephys/LFP with timestamps", p, ["sh1", "sh2"], 1250.0, data.T)
+
+    # Events: EDF+ TALs (Kemp & Olivan 2003) and BrainVision markers against mne.read_annotations; the NWB
+    # intervals/trials table against the values written with h5py
+    def events(path):
+        p_ = subprocess.run([dump, "--events", path], capture_output=True, text=True)
+        if p_.returncode != 0:
+            return None, p_.stderr.strip()
+        lines = p_.stdout.splitlines()
+        head = lines[0].split("\t")
+        return [dict(zip(head, x.split("\t"))) for x in lines[1:]], None
+
+    anns = [(0.5, 0, "stim/left"), (3.25, 0.5, "stim/right"), (3.75, 0, "resp"), (7.125, 1.5, "stim/left")]
+    p = os.path.join(tmp, "ev.edf")
+    fw.write_edf(p, ["C3", "C4"], ["uV"] * 2, [-100] * 2, [100] * 2, [-32768] * 2, [32767] * 2,
+                 rng.integers(-100, 100, size=(256 * 10, 2)), 256, 1, plus=True, annotations=anns)
+    ref = mne.read_annotations(p)
+    got, err = events(p)
+    ok = got is not None and len(got) == len(ref) and all(
+        abs(float(g["onset"]) - o) <= 1e-12 and abs(float(g["duration"]) - d) <= 1e-12 and g["trial_type"] == t
+        for g, o, d, t in zip(got, ref.onset, ref.duration, ref.description))
+    check("EDF+ annotations as events (mne.read_annotations)", ok, f"{len(got) if got else err} of {len(ref)} "
+          "annotations with equal onset, duration and text")
+    stem = os.path.join(tmp, "ev_bv")
+    fw.write_brainvision(stem, ["Fz"], [0.1], ["\u00b5V"], rng.integers(-100, 100, size=(5000, 1)), 500,
+                         markers=[("Stimulus", "S  1", 251, 1), ("Response", "R  2", 777, 1),
+                                  ("Stimulus", "S 11", 3001, 50)])
+    ref = mne.read_annotations(stem + ".vmrk")
+    got, err = events(stem + ".vmrk")
+    ok = got is not None and len(got) == len(ref) and all(
+        abs(float(g["onset"]) - o) <= 1e-12 and abs(float(g["duration"]) - d) <= 1e-12 and g["trial_type"] == t
+        for g, o, d, t in zip(got, ref.onset, ref.duration, ref.description))
+    check("BrainVision markers as events (mne.read_annotations)", ok,
+          f"{got if got is None else len(got)} vs {list(zip(ref.onset, ref.duration, ref.description))}"[:300]
+          if not ok else f"{len(ref)} markers with equal onset, duration and type/description")
+    p = os.path.join(tmp, "tr.nwb")
+    fw.write_nwb(p, rng.standard_normal((5000, 1)), fs=1000.0, labels=["a"])
+    import h5py as _h5
+    starts = np.array([0.5, 1.25, 2.0])
+    with _h5.File(p, "a") as f_:
+        g = f_.require_group("intervals/trials")
+        g.attrs["neurodata_type"] = "TimeIntervals"
+        g.attrs["colnames"] = ["start_time", "stop_time", "rt", "condition"]
+        g.create_dataset("id", data=np.arange(3))
+        g.create_dataset("start_time", data=starts)
+        g.create_dataset("stop_time", data=starts + 0.75)
+        g.create_dataset("rt", data=[0.41, 0.52, 0.63])
+        g.create_dataset("condition", data=[b"easy", b"hard", b"easy"], dtype=_h5.string_dtype())
+    got, err = events(p)
+    ok = got is not None and len(got) == 3 and all(
+        float(g["onset"]) == s_ and abs(float(g["duration"]) - 0.75) <= 1e-12 and g["condition"] == c and
+        float(g["rt"]) == r_ for g, s_, c, r_ in zip(got, starts, ["easy", "hard", "easy"], [0.41, 0.52, 0.63]))
+    check("NWB intervals/trials as the trial table (values written by h5py)", ok, str(got or err)[:200])
 print(f"{passed} checks passed, {failed} failed")
 sys.exit(1 if failed else 0)
