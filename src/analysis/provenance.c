@@ -88,6 +88,7 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
     /* Paths absolute, so the recorded study parses again from the results folder (docs/outputs.md). */
     if (!absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "trials"), "file") ||
         !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "recordings"), "file") ||
+        !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "bids"), "root") ||
         !absolute_key(parsed, "output") || !cJSON_AddItemToObject(p, "study", parsed)) {
         cJSON_Delete(parsed);
         goto nomem;

@@ -16,6 +16,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 /* Parameter names as users write them (vocabulary), in bl_param order. Kept here so the study
  * module does not depend on the likelihood engine. */
@@ -357,6 +358,36 @@ static bl_status parse_trials(ctx *c, const cJSON *o, bl_study *s)
     return BL_OK;
 }
 
+/* "gain": {"flac": 838860.8, "csv": 1}: one gain per file extension (sound files and CSV traces need one,
+ * formats with physical units normally none), so recordings of several formats share a study. */
+static bl_status parse_gain_formats(ctx *c, const cJSON *g, bl_study *s)
+{
+    size_t n = (size_t)cJSON_GetArraySize(g);
+    s->recordings.gain = 1.0;
+    if (!(s->recordings.gain_format = calloc(n + 1, sizeof *s->recordings.gain_format)) ||
+        !(s->recordings.gain_value = calloc(n + 1, sizeof *s->recordings.gain_value)))
+        return nomem(c);
+    for (const cJSON *e = g->child; e; e = e->next) {
+        char key[300];
+        snprintf(key, sizeof key, "recordings.gain.%s", e->string);
+        const char *ext = e->string[0] == '.' ? e->string + 1 : e->string;
+        if (!*ext || strchr(ext, '.') || strchr(ext, '/')) return bad(c, key, e, "must be keyed by a file extension");
+        if (!cJSON_IsNumber(e) || !(e->valuedouble > 0)) return bad(c, key, e, "must be a number > 0");
+        size_t i = s->recordings.n_gain_formats++;
+        if (!(s->recordings.gain_format[i] = bl_strdup(ext))) return nomem(c);
+        s->recordings.gain_value[i] = e->valuedouble;
+    }
+    return BL_OK;
+}
+
+double bl_study_recording_gain(const bl_study *s, const char *path)
+{
+    const char *dot = strrchr(path, '.');
+    for (size_t i = 0; dot && !strchr(dot, '/') && i < s->recordings.n_gain_formats; i++)
+        if (strcasecmp(dot + 1, s->recordings.gain_format[i]) == 0) return s->recordings.gain_value[i];
+    return s->recordings.gain;
+}
+
 static const char *const unit_names[] = {"V", "mV", "uV", "\xc2\xb5V", "nV", "au", NULL};
 
 static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
@@ -380,8 +411,12 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
         if (!(s->recordings.onset = bl_strdup("onset"))) return nomem(c);
     } else if ((st = require_string(c, o, "recordings", "onset", &s->recordings.onset)))
         return st;
-    if ((st = get_number(c, o, "recordings", "gain", 1.0, &s->recordings.gain, NULL))) return st;
-    if (!(s->recordings.gain > 0)) return bad(c, "recordings.gain", get(o, "gain"), "must be > 0");
+    if (cJSON_IsObject(get(o, "gain"))) {
+        if ((st = parse_gain_formats(c, get(o, "gain"), s))) return st;
+    } else {
+        if ((st = get_number(c, o, "recordings", "gain", 1.0, &s->recordings.gain, NULL))) return st;
+        if (!(s->recordings.gain > 0)) return bad(c, "recordings.gain", get(o, "gain"), "must be > 0");
+    }
     int u;
     if ((st = get_choice(c, o, "recordings", "unit", unit_names, 5, &u))) return st;
     if (!(s->recordings.unit = bl_strdup(unit_names[u]))) return nomem(c);
@@ -902,8 +937,13 @@ char *bl_study_to_json(const bl_study *s)
     static const char *const links[] = {"default", "identity", "log"};
     cJSON *root = cJSON_CreateObject();
     if (!root) return NULL;
+    if (s->bids.root) { /* trials.file is then the root folder: the recorded study keeps the block instead */
+        cJSON *b = cJSON_AddObjectToObject(root, "bids");
+        cJSON_AddStringToObject(b, "root", s->bids.root);
+        cJSON_AddStringToObject(b, "task", s->bids.task);
+    }
     cJSON *t = cJSON_AddObjectToObject(root, "trials");
-    cJSON_AddStringToObject(t, "file", s->trials.file);
+    if (!s->bids.root || strcmp(s->trials.file, s->bids.root) != 0) cJSON_AddStringToObject(t, "file", s->trials.file);
     cJSON_AddStringToObject(t, "participant", s->trials.participant);
     if (s->trials.trial_given) cJSON_AddStringToObject(t, "trial", s->trials.trial);
     cJSON_AddStringToObject(t, "rt", s->trials.rt);
@@ -912,6 +952,11 @@ char *bl_study_to_json(const bl_study *s)
     cJSON_AddItemToObject(t, "upper", string_array(s->trials.upper, s->trials.n_upper));
     if (s->trials.stimulus) cJSON_AddStringToObject(t, "stimulus", s->trials.stimulus);
     else cJSON_AddNullToObject(t, "stimulus");
+    if (s->split.n) {
+        cJSON *sp = cJSON_AddObjectToObject(t, "split");
+        for (size_t i = 0; sp && i < s->split.n; i++)
+            cJSON_AddItemToObject(sp, s->split.column[i], string_array(s->split.into[i], s->split.n_into[i]));
+    }
     cJSON *k = cJSON_AddObjectToObject(t, "keep");
     cJSON_AddItemToObject(k, "rt_min", num_or_null(s->trials.rt_min));
     cJSON_AddItemToObject(k, "rt_max", num_or_null(s->trials.rt_max));
@@ -919,7 +964,12 @@ char *bl_study_to_json(const bl_study *s)
         cJSON *r = cJSON_AddObjectToObject(root, "recordings");
         cJSON_AddStringToObject(r, "file", s->recordings.file);
         cJSON_AddStringToObject(r, "onset", s->recordings.onset);
-        cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
+        if (s->recordings.n_gain_formats) {
+            cJSON *g = cJSON_AddObjectToObject(r, "gain");
+            for (size_t i = 0; g && i < s->recordings.n_gain_formats; i++)
+                cJSON_AddNumberToObject(g, s->recordings.gain_format[i], s->recordings.gain_value[i]);
+        } else
+            cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
         cJSON_AddStringToObject(r, "unit", s->recordings.unit);
         cJSON_AddStringToObject(r, "average", s->recordings.average_power ? "power" : "signal");
         cJSON_AddItemToObject(r, "rate", num_or_null(s->recordings.rate));
@@ -992,6 +1042,9 @@ void bl_study_destroy(bl_study *s)
     free(s->path);
     free(s->dir);
     free(s->trials.file);
+    for (size_t i = 0; i < s->recordings.n_gain_formats; i++) free(s->recordings.gain_format[i]);
+    free(s->recordings.gain_format);
+    free(s->recordings.gain_value);
     free(s->bids.root);
     free(s->bids.task);
     for (size_t i = 0; i < s->split.n; i++) {

@@ -80,7 +80,10 @@ typedef struct bl_study {
     struct {
         char *file;               /* resolved path, may contain {column} placeholders */
         char *onset;              /* column with each trial's onset [s from recording start] */
-        double gain;              /* multiplies what the reader returns into `unit` */
+        double gain;              /* multiplies what the reader returns into `unit` (1 with per-format gains) */
+        char **gain_format;       /* "gain": {"flac": 838860.8, "csv": 1}: file extensions (no dot) ... */
+        double *gain_value;       /* ... and their gains; a recording of another extension gets `gain` */
+        size_t n_gain_formats;
         char *unit;               /* e.g. "uV" */
         double rate;              /* Hz, required for CSV traces; NAN otherwise */
         char **channels;          /* "3", "1-2", "Cz", "Cz-Pz"; several are averaged */
@@ -124,5 +127,8 @@ BL_API bl_status bl_study_parse(const char *json, const char *path, bl_study **o
 /* The study as parsed, defaults filled in, as a JSON string (caller frees with free()). */
 BL_API char *bl_study_to_json(const bl_study *study);
 BL_API void bl_study_destroy(bl_study *study);
+
+/* The gain for one recording: its extension's entry of a per-format "gain" object, else recordings.gain. */
+BL_API double bl_study_recording_gain(const bl_study *s, const char *path);
 
 #endif

@@ -181,7 +181,7 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
                             isfinite(s->recordings.rate) ? " (recordings.rate)" : " (the rate of the first recording)");
     bl_montage_destroy(ts->mont);
     ts->mont = NULL;
-    if ((st = bl_montage_resolve(m, ts->trace, "recordings.channels", s->recordings.unit, s->recordings.gain,
+    if ((st = bl_montage_resolve(m, ts->trace, "recordings.channels", s->recordings.unit, bl_study_recording_gain(s, path),
                                  &ts->mont, &e)))
         return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
     size_t need = r->window_samples * info->channels;

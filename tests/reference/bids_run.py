@@ -129,6 +129,16 @@ with tempfile.TemporaryDirectory() as tmp:
                 worst = max(worst, abs(float(r_["theta_power"]) - ref) / ref)
         check("band power of EDF, BrainVision and BDF trials equals mne + scipy.signal.welch", worst <= 1e-10,
               f"worst relative difference {worst:.2e}")
+        prov = os.path.join(root, "results", "provenance.json")
+        if os.path.exists(prov):
+            rec = json.load(open(prov))
+            again = os.path.join(tmp, "again.json")
+            json.dump(dict(rec["study"], output=os.path.join(tmp, "again")), open(again, "w"))
+            r2 = subprocess.run([bandlink, "check", again], capture_output=True, text=True)
+            check("the recorded study (with its bids block) parses and checks again", r2.returncode == 0 and
+                  "bids" in rec["study"] and len(rec["inputs"]) == 1 + 3 + 3, r2.stderr.strip()[:200])
+        else:
+            check("provenance.json written", False)
     shutil.rmtree(os.path.join(root, "results"), ignore_errors=True)
 
     r = run(root, study(("Cz", "T7")))

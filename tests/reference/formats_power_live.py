@@ -150,5 +150,53 @@ with tempfile.TemporaryDirectory() as tmp:
         with h5py.File(path, "r") as f:
             return ["LFP1", "LFP2", "LFP3"], (f["acquisition/ElectricalSeries/data"][:].astype("f8") * 1e-7).T
     run_case(tmp, "nwb_average_power", "nwb", w_nwb, r_nwb, ["LFP1-LFP2", "LFP3"], "uV", "power", 1000)
+
+    # per-format gain with "<name>.*": p1 as 24-bit FLAC (counts of 0.1 uV, so gain 0.1 * 2^23 turns
+    # libsndfile's normalised values into uV; libsndfile API: integer PCM read as double / 2^(bits-1)),
+    # p2 as a CSV trace already in uV (gain 1)
+    try:
+        import soundfile as sf
+    except ImportError:
+        sf = None
+    if sf is not None:
+        d = os.path.join(tmp, "mixed")
+        os.makedirs(d)
+        fs = 500
+        counts = np.round(signal(fs, 30, 2, 200.0)).astype(np.int32)
+        sf.write(os.path.join(d, "p1.flac"), counts * 256, fs, subtype="PCM_24")  # 24-bit counts, left-aligned
+        uv = {}
+        csv_x = signal(fs, 30, 2, 20.0)
+        np.savetxt(os.path.join(d, "p2.csv"), csv_x, delimiter=",", header="Fz,Cz", comments="", fmt="%.17g")
+        uv["p2"] = csv_x
+        back, _ = sf.read(os.path.join(d, "p1.flac"), dtype="float64", always_2d=True)
+        uv["p1"] = back * 0.1 * 2 ** 23
+        rows = ["participant,trial,onset,rt,correct"] + [f"{p},{k + 1},{2 + 1.2 * k},0.5,1" for p in ("p1", "p2")
+                                                         for k in range(15)]
+        open(os.path.join(d, "trials.csv"), "w").write("\n".join(rows) + "\n")
+        json.dump({"trials": {"file": "trials.csv", "participant": "participant", "rt": "rt", "response": "correct",
+                              "upper": ["1"]},
+                   "recordings": {"file": "{participant}.*", "onset": "onset", "unit": "uV", "rate": fs,
+                                  "channels": ["1-2"], "gain": {"flac": 0.1 * 2 ** 23, "csv": 1}},
+                   "power": {"window": {"from": -1.0, "to": 0.0}, "segment": 0.5, "bands": {"theta": [4, 9]},
+                             "scale": "linear", "standardize": "none"}, "output": "out"},
+                  open(os.path.join(d, "study.json"), "w"))
+        r = subprocess.run([bandlink, "power", os.path.join(d, "study.json"), "--quiet"], capture_output=True,
+                           text=True)
+        worst = math.inf
+        if r.returncode == 0:
+            got = list(csv.DictReader(open(os.path.join(d, "out", "power.csv"))))
+            worst = 0.0
+            for row in got:
+                x = uv[row["participant"]]
+                s_ = rnd(float(row["onset"]) * fs)
+                f, pxx = welch(x[s_ - fs:s_, 0] - x[s_ - fs:s_, 1], fs=fs, nperseg=250, noverlap=125)
+                sel = (f >= 4 - 1e-9) & (f <= 9 + 1e-9)
+                ref = (f[1] - f[0]) * pxx[sel].sum()
+                worst = max(worst, abs(float(row["theta_power"]) - ref) / ref)
+        ok = worst <= 1e-10
+        passed += ok
+        failed += not ok
+        print(f"{'PASS' if ok else 'FAIL'}: FLAC + CSV in one study through {{participant}}.* with a gain per format "
+              f"matches soundfile + scipy.signal.welch (worst relative difference {worst:.2e}) {r.stderr.strip()[:200]}")
 print(f"{passed} checks passed, {failed} failed")
 sys.exit(1 if failed else 0)
