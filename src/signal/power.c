@@ -889,8 +889,15 @@ char *bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_res
         sb_printf(&b, "recordings   %zu file%s, %.10g Hz, channels", r->n_recordings, r->n_recordings == 1 ? "" : "s", r->fs);
         for (size_t c = 0; c < s->recordings.n_channels; c++)
             sb_printf(&b, "%s%s", c ? ", " : " ", s->recordings.channels[c]);
-        sb_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "", s->recordings.gain,
-                  s->recordings.unit);
+        if (s->recordings.n_gain_formats) { /* one gain per file extension */
+            sb_printf(&b, "%s, gain", s->recordings.n_channels > 1 ? " (averaged)" : "");
+            for (size_t g = 0; g < s->recordings.n_gain_formats; g++)
+                sb_printf(&b, " %s %.10g%s", s->recordings.gain_format[g], s->recordings.gain_value[g],
+                          g + 1 < s->recordings.n_gain_formats ? "," : "");
+            sb_printf(&b, " (others 1), unit %s\n", s->recordings.unit);
+        } else
+            sb_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "",
+                      s->recordings.gain, s->recordings.unit);
         for (size_t k = 0; k < r->n_recordings && k < 50; k++) {
             const bl_power_recording *rec = &r->recordings[k];
             sb_printf(&b, "  %s: participant %s, %.10g Hz, %zu channel%s, %.6g s, %s, %zu trials\n", rec->path,
