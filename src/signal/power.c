@@ -150,6 +150,7 @@ typedef struct {
     bl_welch_work *work;
     bl_montage *mont;        /* the study's channels resolved for the open recording (names, units, gain) */
     double *psd_entry;       /* n_freqs: one entry's PSD when "average": "power" */
+    double *clip_lo, *clip_hi; /* channels: full-scale values of the open recording, or NULL when it has none */
 } thread_state;
 
 static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_result *r, const bl_trials *t,
@@ -179,6 +180,16 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
                             "participant %s: %s is sampled at %.10g Hz, but the study uses %.10g Hz%s", part, path,
                             info->rate, r->fs,
                             isfinite(s->recordings.rate) ? " (recordings.rate)" : " (the rate of the first recording)");
+    free(ts->clip_lo);
+    free(ts->clip_hi);
+    ts->clip_lo = ts->clip_hi = NULL;
+    double lo, hi;
+    if (s->power.clipping && bl_trace_channel_clip(ts->trace, 0, &lo, &hi)) {
+        size_t ch = bl_trace_get_info(ts->trace)->channels;
+        if (!(ts->clip_lo = malloc(ch * sizeof *ts->clip_lo)) || !(ts->clip_hi = malloc(ch * sizeof *ts->clip_hi)))
+            return bl_error_set(err, BL_ERR_NOMEM, "out of memory opening %s", path);
+        for (size_t c = 0; c < ch; c++) bl_trace_channel_clip(ts->trace, c, &ts->clip_lo[c], &ts->clip_hi[c]);
+    }
     bl_montage_destroy(ts->mont);
     ts->mont = NULL;
     if ((st = bl_montage_resolve(m, ts->trace, "recordings.channels", s->recordings.unit, bl_study_recording_gain(s, path),
@@ -198,7 +209,7 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
 /* Artifact reason for a window, or NULL. `raw` holds every channel; only the montage's channels count
  * for clipping. */
 static const char *artifact(const bl_study *s, const bl_trace_info *info, const bl_montage *m, const double *raw,
-                            const double *x, size_t n)
+                            const double *x, size_t n, const double *clo, const double *chi)
 {
     double lo = INFINITY, hi = -INFINITY;
     for (size_t i = 0; i < n; i++) {
@@ -206,15 +217,15 @@ static const char *artifact(const bl_study *s, const bl_trace_info *info, const 
         if (x[i] < lo) lo = x[i];
         if (x[i] > hi) hi = x[i];
     }
-    if (s->power.clipping && info->integer_pcm) {
+    if (s->power.clipping && clo) { /* per channel: integer PCM rails, EDF/BDF digital minimum/maximum */
         size_t ch = info->channels;
         for (size_t i = 0; i < n; i++)
             for (size_t k = 0; k < m->n; k++) {
-                double a = raw[i * ch + (size_t)m->pos[k]];
-                if (a <= info->clip_lo || a >= info->clip_hi) return "artifact: clipping";
+                size_t a = (size_t)m->pos[k];
+                if (raw[i * ch + a] <= clo[a] || raw[i * ch + a] >= chi[a]) return "artifact: clipping";
                 if (m->neg[k] >= 0) {
-                    double b = raw[i * ch + (size_t)m->neg[k]];
-                    if (b <= info->clip_lo || b >= info->clip_hi) return "artifact: clipping";
+                    size_t b = (size_t)m->neg[k];
+                    if (raw[i * ch + b] <= clo[b] || raw[i * ch + b] >= chi[b]) return "artifact: clipping";
                 }
             }
     }
@@ -244,7 +255,7 @@ static const char *power_average(const bl_study *s, const bl_trace_info *info, c
         bl_montage_apply_entry(m, k, ts->raw, L, info->channels, ts->x);
         double ptp = peak_to_peak(ts->x, L);
         if (!(*ptp_out >= ptp)) *ptp_out = ptp;
-        const char *why = artifact(s, info, m, ts->raw, ts->x, L);
+        const char *why = artifact(s, info, m, ts->raw, ts->x, L, ts->clip_lo, ts->clip_hi);
         if (why) return why;
         if ((*status = bl_welch_compute(plan, ts->work, ts->x, L, ts->psd_entry, e))) return NULL;
         for (size_t j = 0; j < nf; j++) psd[j] += ts->psd_entry[j] / (double)m->n;
@@ -302,7 +313,7 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
         } else {
             bl_montage_apply(m, ts->raw, L, info->channels, 1.0, ts->x); /* gain is inside the resolved montage */
             r->row_ptp[row] = peak_to_peak(ts->x, L);
-            const char *why = artifact(s, info, m, ts->raw, ts->x, L);
+            const char *why = artifact(s, info, m, ts->raw, ts->x, L, ts->clip_lo, ts->clip_hi);
             if (why) {
                 reason[row] = why;
                 continue;
@@ -652,7 +663,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
 #pragma omp parallel num_threads(nt)
 #endif
     {
-        thread_state ts = {NULL, SIZE_MAX, NULL, 0, NULL, NULL, NULL, NULL};
+        thread_state ts = {NULL, SIZE_MAX, NULL, 0, NULL, NULL, NULL, NULL, NULL, NULL};
         bl_error e = {0};
         ts.x = malloc(r->window_samples * sizeof *ts.x);
         ts.psd_entry = malloc(r->n_freqs * sizeof *ts.psd_entry);
@@ -672,6 +683,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         }
         bl_trace_close(ts.trace);
         bl_montage_destroy(ts.mont);
+        free(ts.clip_lo);
+        free(ts.clip_hi);
         free(ts.psd_entry);
         free(ts.raw);
         free(ts.x);
@@ -703,7 +716,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         }
     if (s->power.clipping)
         for (size_t k = 0; k < r->n_recordings; k++)
-            if (!strstr(r->recordings[k].format, "-bit PCM"))
+            if (!strstr(r->recordings[k].format, "-bit PCM") && strncmp(r->recordings[k].format, "EDF", 3) != 0 &&
+                strncmp(r->recordings[k].format, "BDF", 3) != 0)
                 bl_warnings_add(warn, "%s (%s) has no integer full scale, so power.artifacts.clipping does not apply to it",
                                 r->recordings[k].path, r->recordings[k].format);
     if (r->n_artifacts)

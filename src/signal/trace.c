@@ -291,6 +291,18 @@ const char *bl_trace_channel_name(const bl_trace *t, size_t c)
 {
     return t->names && c < t->info.channels && t->names[c][0] ? t->names[c] : NULL;
 }
+int bl_trace_channel_clip(const bl_trace *t, size_t c, double *lo, double *hi)
+{
+    if (c >= t->info.channels) return 0;
+    if (t->be.clip_lo) {
+        *lo = t->be.clip_lo[c];
+        *hi = t->be.clip_hi[c];
+        return 1;
+    }
+    *lo = t->info.clip_lo;
+    *hi = t->info.clip_hi;
+    return t->info.integer_pcm;
+}
 const char *bl_trace_channel_unit(const bl_trace *t, size_t c)
 {
     return t->be.units && c < t->info.channels ? t->be.units[c] : NULL;
@@ -346,6 +358,8 @@ void bl_trace_close(bl_trace *t)
     if (t->be.close) t->be.close(t->be.impl);
     bl_trace_strings_free(t->names, t->n_names);
     if (t->be.units) bl_trace_strings_free(t->be.units, t->info.channels);
+    free(t->be.clip_lo);
+    free(t->be.clip_hi);
     free(t->csv);
     free(t->path);
     free(t);

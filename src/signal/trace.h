@@ -43,6 +43,9 @@ BL_API const char *bl_trace_channel_name(const bl_trace *t, size_t c);
 /* Physical unit of channel c as the file writes it ("uV", "volts", ...); NULL when the format has none
  * (sound files, CSV), whose values are scaled by recordings.gain instead. */
 BL_API const char *bl_trace_channel_unit(const bl_trace *t, size_t c);
+/* The values channel c reads at its format's full scale (integer PCM: info.clip_lo/hi; EDF/BDF: the physical
+ * values of the digital minimum and maximum); 0 when the format has none (float, CSV, BrainVision, NWB). */
+BL_API int bl_trace_channel_clip(const bl_trace *t, size_t c, double *lo, double *hi);
 /* Read frames [start, start + n) of every channel, interleaved, into buf (n * channels doubles).
  * BL_ERR_INPUT when the range leaves the recording; BL_ERR_IO when fewer frames come back. */
 BL_API bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err);

@@ -16,6 +16,7 @@ typedef struct {
     void (*close)(void *impl);
     char **names;           /* info.channels malloc'd names (owned by trace.c once open succeeds) */
     char **units;           /* info.channels malloc'd unit strings as written in the file */
+    double *clip_lo, *clip_hi; /* info.channels physical values at the digital extremes, or NULL (unknown) */
 } bl_trace_backend;
 
 /* Each returns BL_OK with `b` filled, or an error naming the file and the header field. */

@@ -30,6 +30,7 @@ typedef struct {
     size_t n_data;          /* data signals (annotation signals left out) */
     size_t *offset;         /* n_data: first sample of the signal inside a record */
     double *cal, *off;      /* n_data: physical = digital * cal + off */
+    double *dmin, *dmax;    /* n_data: digital extremes (clipping) */
     unsigned char *record;  /* one data record */
     long long cached;       /* record held in `record`, -1 none */
 } edf_file;
@@ -63,6 +64,8 @@ static void edf_close(void *impl)
     free(e->offset);
     free(e->cal);
     free(e->off);
+    free(e->dmin);
+    free(e->dmax);
     free(e->record);
     free(e);
 }
@@ -134,7 +137,8 @@ static bl_status read_signals(edf_file *e, const unsigned char *sh, size_t ns, d
         pos += field_len[k] * ns;
     }
     if (!(e->offset = calloc(ns, sizeof *e->offset)) || !(e->cal = calloc(ns, sizeof *e->cal)) ||
-        !(e->off = calloc(ns, sizeof *e->off)) || !(b->names = calloc(ns, sizeof *b->names)) ||
+        !(e->off = calloc(ns, sizeof *e->off)) || !(e->dmin = calloc(ns, sizeof *e->dmin)) ||
+        !(e->dmax = calloc(ns, sizeof *e->dmax)) || !(b->names = calloc(ns, sizeof *b->names)) ||
         !(b->units = calloc(ns, sizeof *b->units)))
         return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory reading the header", e->path);
     size_t first_spr_signal = 0;
@@ -183,6 +187,8 @@ static bl_status read_signals(edf_file *e, const unsigned char *sh, size_t ns, d
                                 "both %.17g", e->path, s + 1, v[F_PMIN]);
         e->cal[c] = (v[F_PMAX] - v[F_PMIN]) / (v[F_DMAX] - v[F_DMIN]);
         e->off[c] = v[F_PMIN] - v[F_DMIN] * e->cal[c];
+        e->dmin[c] = v[F_DMIN];
+        e->dmax[c] = v[F_DMAX];
         e->offset[c] = here;
         field(sh, at[F_DIM] + s * 8, 8, text);
         if (!(b->names[c] = bl_strdup(label)) || !(b->units[c] = bl_strdup(text)))
@@ -298,6 +304,15 @@ bl_status bl_trace_edf_open(const char *path, bl_trace_info *info, bl_trace_back
     if ((st = read_signals(e, sh, ns, duration, info, b, err))) goto fail;
     long long nrec = 0;
     if ((st = check_length(e, nrec_field, &nrec, err))) goto fail;
+    if (!(b->clip_lo = malloc(e->n_data * sizeof *b->clip_lo)) || !(b->clip_hi = malloc(e->n_data * sizeof *b->clip_hi))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", path);
+        goto fail;
+    }
+    for (size_t c = 0; c < e->n_data; c++) { /* the same expression as edf_read, so a rail sample equals it exactly */
+        double a = e->dmin[c] * e->cal[c] + e->off[c], z = e->dmax[c] * e->cal[c] + e->off[c];
+        b->clip_lo[c] = a < z ? a : z;
+        b->clip_hi[c] = a < z ? z : a;
+    }
     if (!(e->record = malloc(e->record_bytes))) {
         st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory for a data record", path);
         goto fail;
@@ -315,6 +330,9 @@ fail:
     free(sh);
     bl_trace_strings_free(b->names, ns);
     bl_trace_strings_free(b->units, ns);
+    free(b->clip_lo);
+    free(b->clip_hi);
+    b->clip_lo = b->clip_hi = NULL;
     b->names = b->units = NULL;
     edf_close(e);
     return st;

@@ -59,5 +59,23 @@ with tempfile.TemporaryDirectory() as d:
           "other recordings median" in diag[0], diag[0][:200] if diag else out[-300:])
     check("the diagnosis names a scale/unit problem of about 10^3 (mV vs uV)",
           "scale/unit" in out and "10^3" in out and "mV and uV" in out)
+
+    # clipping at EDF's digital extremes (Kemp et al. 1992: dmin/dmax are the converter's range; a sample at
+    # them is saturated, common practice in artifact rejection): trials 1-3 of p1 touch dmax on Cz only,
+    # trial 4 touches dmin on Fz, which the study does not use
+    x = np.round(10 * rng.standard_normal((256 * 40, 2)) / 0.1).astype(int)
+    for k in range(3):
+        x[int((2 + 1.5 * k - 0.5) * 256), 1] = 32767
+    x[int((2 + 1.5 * 3 - 0.5) * 256), 0] = -32768
+    fw.write_edf(os.path.join(d, "p1.edf"), ["Fz", "Cz"], ["uV"] * 2, [-3276.8] * 2, [3276.7] * 2, [-32768] * 2,
+                 [32767] * 2, x, 256, 1)
+    st = json.load(open(os.path.join(d, "study.json")))
+    st["power"]["artifacts"] = {"clipping": True}
+    json.dump(st, open(os.path.join(d, "study.json"), "w"))
+    r = subprocess.run([bandlink, "check", os.path.join(d, "study.json")], capture_output=True, text=True)
+    check("EDF samples at the digital maximum of a used channel are clipping; the unused channel is not",
+          r.returncode == 0 and "p1: 20 trials, 17 kept; artifact: clipping 3" in r.stdout and
+          "p1.edf: 20 windowed, 3 flagged" in r.stdout and "no integer full scale" not in r.stderr,
+          r.stdout[r.stdout.find("by participant"):][:200] + r.stderr[:200])
 print(f"{passed} checks passed, {failed} failed")
 sys.exit(1 if failed else 0)
