@@ -392,7 +392,7 @@ static const char *const unit_names[] = {"V", "mV", "uV", "\xc2\xb5V", "nV", "au
 
 static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
 {
-    static const char *const keys[] = {"file", "onset", "gain", "unit", "rate", "channels", "average", NULL};
+    static const char *const keys[] = {"file", "onset", "gain", "unit", "rate", "channels", "average", "series", NULL};
     static const char *const averages[] = {"signal", "power", NULL};
     bl_status st;
     char *file = NULL;
@@ -420,6 +420,7 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
     int u;
     if ((st = get_choice(c, o, "recordings", "unit", unit_names, 5, &u))) return st;
     if (!(s->recordings.unit = bl_strdup(unit_names[u]))) return nomem(c);
+    if ((st = get_string(c, o, "recordings", "series", NULL, &s->recordings.series))) return st;
     int average;
     if ((st = get_choice(c, o, "recordings", "average", averages, 0, &average))) return st;
     s->recordings.average_power = average == 1;
@@ -972,6 +973,7 @@ char *bl_study_to_json(const bl_study *s)
             cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
         cJSON_AddStringToObject(r, "unit", s->recordings.unit);
         cJSON_AddStringToObject(r, "average", s->recordings.average_power ? "power" : "signal");
+        if (s->recordings.series) cJSON_AddStringToObject(r, "series", s->recordings.series);
         cJSON_AddItemToObject(r, "rate", num_or_null(s->recordings.rate));
         cJSON_AddItemToObject(r, "channels", string_array(s->recordings.channels, s->recordings.n_channels));
     }
@@ -1045,6 +1047,7 @@ void bl_study_destroy(bl_study *s)
     for (size_t i = 0; i < s->recordings.n_gain_formats; i++) free(s->recordings.gain_format[i]);
     free(s->recordings.gain_format);
     free(s->recordings.gain_value);
+    free(s->recordings.series);
     free(s->bids.root);
     free(s->bids.task);
     for (size_t i = 0; i < s->split.n; i++) {

@@ -88,6 +88,7 @@ typedef struct bl_study {
         double rate;              /* Hz, required for CSV traces; NAN otherwise */
         char **channels;          /* "3", "1-2", "Cz", "Cz-Pz"; several are averaged */
         size_t n_channels;
+        char *series;             /* NWB: the ElectricalSeries to read when a file has several; NULL = the only one */
         int average_power;        /* "average": "power" (mean of each entry's band power), else the signals' mean */
     } recordings;
 

@@ -164,13 +164,13 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
     const char *part = t->participants[t->participant[first_row]];
     bl_error e = {0};
     if (is_text_trace(path)) { /* parsed whole: let threads parse different CSV files at once */
-        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+        st = bl_trace_open_series(path, s->recordings.rate, s->recordings.series, &ts->trace, &e);
     } else {
         /* sf_open reports failures through a process-wide sf_strerror(NULL): one thread at a time */
 #ifdef _OPENMP
 #pragma omp critical(bl_trace_open)
 #endif
-        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+        st = bl_trace_open_series(path, s->recordings.rate, s->recordings.series, &ts->trace, &e);
     }
     if (st)
         return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
@@ -547,7 +547,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         bl_trace *tr = NULL;
         bl_error e = {0};
         size_t row = jobs[0].row;
-        if ((st = bl_trace_open(r->recordings[0].path, NAN, &tr, &e))) {
+        if ((st = bl_trace_open_series(r->recordings[0].path, NAN, s->recordings.series, &tr, &e))) {
             bl_error_set(err, st, "participant %s, trial %s: %s", t->participants[t->participant[row]],
                          t->trial_label[row], e.message);
             free(align);

@@ -199,6 +199,11 @@ done:
 
 bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_error *err)
 {
+    return bl_trace_open_series(path, csv_rate, NULL, out, err);
+}
+
+bl_status bl_trace_open_series(const char *path, double csv_rate, const char *series, bl_trace **out, bl_error *err)
+{
     *out = NULL;
     bl_trace *t = calloc(1, sizeof *t);
     if (!t || !(t->path = bl_strdup(path))) {
@@ -209,6 +214,7 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
     backend_open open_format = backend_for(path);
     if (open_format) {
         t->info.clip_lo = t->info.clip_hi = NAN;
+        t->be.series = series;
         if ((st = open_format(path, &t->info, &t->be, err))) goto fail;
         t->names = t->be.names;
         t->n_names = t->info.channels;

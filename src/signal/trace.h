@@ -35,6 +35,10 @@ typedef struct {
 /* Open a recording. `csv_rate` [Hz] is required (> 0) for CSV/TSV traces (files ending in .csv,
  * .tsv or .txt) and ignored otherwise. Errors name the file. */
 BL_API bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_error *err);
+/* The same, naming the NWB ElectricalSeries to read ("/processing/ecephys/LFP/ElectricalSeries" or its last
+ * part "ElectricalSeries"; NULL: the file's only one). Other formats ignore `series`. */
+BL_API bl_status bl_trace_open_series(const char *path, double csv_rate, const char *series, bl_trace **out,
+                                      bl_error *err);
 BL_API const bl_trace_info *bl_trace_get_info(const bl_trace *t);
 BL_API const char *bl_trace_path(const bl_trace *t);
 /* Name of channel c (0-based) from the file's header or the CSV header row; NULL when the format has no

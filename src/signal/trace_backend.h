@@ -10,6 +10,7 @@
 #include "signal/trace.h"
 
 typedef struct {
+    const char *series;     /* input: NWB ElectricalSeries to use (path or name), or NULL; not owned */
     void *impl;
     /* frames [start, start + n) of every channel, interleaved; the range is already checked */
     bl_status (*read)(void *impl, int64_t start, size_t n, double *buf, bl_error *err);

@@ -263,19 +263,35 @@ static bl_status series_rate(const char *path, hid_t series, const char *where, 
     return st;
 }
 
-static bl_status choose_series(const char *path, hid_t file, char *where, size_t size, bl_error *err)
+static bl_status choose_series(const char *path, const char *want, hid_t file, char *where, size_t size,
+                               bl_error *err)
 {
     series_list l;
     l.n = 0;
     H5Lvisit(file, H5_INDEX_NAME, H5_ITER_INC, find_series, &l);
     if (l.n == 0)
         return bl_error_set(err, BL_ERR_INPUT, "%s: no ElectricalSeries in /acquisition or /processing", path);
+    if (want) { /* recordings.series: the full path, or the path's last part when that is unambiguous */
+        size_t hits = 0, pick = 0, wl = strlen(want);
+        for (size_t i = 0; i < l.n; i++) {
+            size_t fl = strlen(l.found[i]);
+            int full = strcmp(l.found[i], want) == 0 || strcmp(l.found[i] + 1, want) == 0;
+            int tail = fl > wl && strcmp(l.found[i] + fl - wl, want) == 0 && l.found[i][fl - wl - 1] == '/';
+            if (full || tail) pick = i, hits++;
+        }
+        if (hits != 1)
+            return bl_error_set(err, BL_ERR_INPUT, "key \"recordings.series\": \"%s\" matches %zu of the %zu "
+                                "ElectricalSeries in %s (%s%s%s%s)", want, hits, l.n, path, l.found[0], l.n > 1 ? ", " : "",
+                                l.n > 1 ? l.found[1] : "", l.n > 2 ? ", ..." : "");
+        snprintf(where, size, "%s", l.found[pick]);
+        return BL_OK;
+    }
     size_t pick = 0, in_acq = 0;
     for (size_t i = 0; i < l.n; i++)
         if (strncmp(l.found[i], "/acquisition/", 13) == 0 && in_acq++ == 0) pick = i;
     if (in_acq > 1 || (in_acq == 0 && l.n > 1))
         return bl_error_set(err, BL_ERR_INPUT, "%s: %zu ElectricalSeries (%s, %s%s); keep one per file", path, l.n,
-                            l.found[0], l.found[1], l.n > 2 ? ", ..." : "");
+                            l.found[0], l.found[1], l.n > 2 ? ", ..." : "; choose one with recordings.series");
     snprintf(where, size, "%s", l.found[pick]);
     return BL_OK;
 }
@@ -299,7 +315,7 @@ bl_status bl_trace_nwb_open(const char *path, bl_trace_info *info, bl_trace_back
                           f ? "not an HDF5 (NWB) file" : "no such file or not readable");
         goto fail;
     }
-    if ((st = choose_series(path, w->file, where, sizeof where, err))) goto fail;
+    if ((st = choose_series(path, b->series, w->file, where, sizeof where, err))) goto fail;
     series = H5Gopen2(w->file, where, H5P_DEFAULT);
     if (series < 0 || H5Lexists(series, "data", H5P_DEFAULT) <= 0 ||
         (w->data = H5Dopen2(series, "data", H5P_DEFAULT)) < 0) {

@@ -103,10 +103,14 @@ def write_brainvision(stem, labels, resolution, units, raw, fs, binary="INT_16",
 
 
 def write_nwb(path, data, fs=None, timestamps=None, labels=None, conversion=1.0, offset=0.0,
-              where="acquisition/ElectricalSeries", electrode_column="label"):
-    """An NWB 2.x-shaped file with one ElectricalSeries; data (frames, channels) stored as given."""
+              where="acquisition/ElectricalSeries", electrode_column="label", append=False):
+    """An NWB 2.x-shaped file with one ElectricalSeries; data (frames, channels) stored as given.
+    append=True adds the series to an existing file (its electrodes table is reused)."""
     import h5py
-    with h5py.File(path, "w") as f:
+    with h5py.File(path, "a" if append else "w") as f:
+        if append:
+            _series(f, data, fs, timestamps, labels, conversion, offset, where)
+            return
         f.attrs["namespace"] = "core"
         f.attrs["neurodata_type"] = "NWBFile"
         f.attrs["nwb_version"] = "2.6.0"
@@ -122,29 +126,35 @@ def write_nwb(path, data, fs=None, timestamps=None, labels=None, conversion=1.0,
             t.create_dataset("id", data=np.arange(ch))
             t.create_dataset(electrode_column, data=[s.encode() for s in labels], dtype=h5py.string_dtype())
             t.create_dataset("location", data=[b"CA1"] * ch, dtype=h5py.string_dtype())
-        parts = where.split("/")
-        for k in range(2, len(parts)):
-            g = f.require_group("/".join(parts[:k]))
-            if k == 2 and parts[0] == "processing":
-                g.attrs["neurodata_type"] = "ProcessingModule"
-            elif k == 3:
-                g.attrs["neurodata_type"] = "LFP"
-        s = f.create_group(where)
-        s.attrs["neurodata_type"] = "ElectricalSeries"
-        s.attrs["namespace"] = "core"
-        d = s.create_dataset("data", data=data)
-        d.attrs["conversion"] = np.float32(conversion) if False else float(conversion)
-        d.attrs["offset"] = float(offset)
-        d.attrs["resolution"] = -1.0
-        d.attrs["unit"] = "volts"
-        if timestamps is None:
-            st = s.create_dataset("starting_time", data=0.0)
-            st.attrs["rate"] = float(fs)
-            st.attrs["unit"] = "seconds"
-        else:
-            ts = s.create_dataset("timestamps", data=np.asarray(timestamps, dtype="f8"))
-            ts.attrs["unit"] = "seconds"
-        if labels is not None:
-            e = s.create_dataset("electrodes", data=np.arange(ch))
-            e.attrs["neurodata_type"] = "DynamicTableRegion"
-            e.attrs["table"] = f["general/extracellular_ephys/electrodes"].ref
+        _series(f, data, fs, timestamps, labels, conversion, offset, where)
+
+
+def _series(f, data, fs, timestamps, labels, conversion, offset, where):
+    """One ElectricalSeries (and its parent groups) at `where` in the open h5py file f."""
+    ch = data.shape[1]
+    parts = where.split("/")
+    for k in range(2, len(parts)):
+        g = f.require_group("/".join(parts[:k]))
+        if k == 2 and parts[0] == "processing":
+            g.attrs["neurodata_type"] = "ProcessingModule"
+        elif k == 3:
+            g.attrs["neurodata_type"] = "LFP"
+    s = f.create_group(where)
+    s.attrs["neurodata_type"] = "ElectricalSeries"
+    s.attrs["namespace"] = "core"
+    d = s.create_dataset("data", data=data)
+    d.attrs["conversion"] = float(conversion)
+    d.attrs["offset"] = float(offset)
+    d.attrs["resolution"] = -1.0
+    d.attrs["unit"] = "volts"
+    if timestamps is None:
+        st = s.create_dataset("starting_time", data=0.0)
+        st.attrs["rate"] = float(fs)
+        st.attrs["unit"] = "seconds"
+    else:
+        ts = s.create_dataset("timestamps", data=np.asarray(timestamps, dtype="f8"))
+        ts.attrs["unit"] = "seconds"
+    if labels is not None:
+        e = s.create_dataset("electrodes", data=np.arange(ch))
+        e.attrs["neurodata_type"] = "DynamicTableRegion"
+        e.attrs["table"] = f["general/extracellular_ephys/electrodes"].ref

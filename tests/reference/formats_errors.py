@@ -96,5 +96,11 @@ with tempfile.TemporaryDirectory() as tmp:
     case(tmp, "nwb_uneven_timestamps", "nwb",
          lambda p: fw.write_nwb(p, rng.standard_normal((8000, 2)), timestamps=ts, labels=["a", "b"]),
          ["p1.nwb", "timestamps", "even"], channels=["a"])
+    def two_series(p):
+        fw.write_nwb(p, rng.standard_normal((8000, 2)), fs=1000.0, labels=["a", "b"], where="acquisition/raw")
+        fw.write_nwb(p, rng.standard_normal((8000, 2)), fs=1000.0, labels=["a", "b"], where="acquisition/lfp",
+                     append=True)
+    case(tmp, "nwb_two_series", "nwb", two_series, ["p1.nwb", "/acquisition/lfp", "/acquisition/raw",
+                                                    "recordings.series"], channels=["a"])
 print(f"{passed} checks passed, {failed} failed")
 sys.exit(1 if failed else 0)

@@ -48,7 +48,7 @@ def signal(fs, seconds, channels, scale):
     return x * scale
 
 
-def run_case(tmp, name, ext, write, read_volts, channels, unit, average, fs):
+def run_case(tmp, name, ext, write, read_volts, channels, unit, average, fs, series=None):
     """write(path) writes one participant's file; read_volts(path) -> (names, volts[ch, n])."""
     global failed, passed
     d = os.path.join(tmp, name)
@@ -66,7 +66,7 @@ def run_case(tmp, name, ext, write, read_volts, channels, unit, average, fs):
     study = {"trials": {"file": "trials.csv", "participant": "participant", "rt": "rt", "response": "correct",
                         "upper": ["1"]},
              "recordings": {"file": "{participant}." + ext, "onset": "onset", "unit": unit, "channels": channels,
-                            "average": average},
+                            "average": average, **({"series": series} if series else {})},
              "power": settings, "output": "out"}
     json.dump(study, open(os.path.join(d, "study.json"), "w"))
     r = subprocess.run([bandlink, "power", os.path.join(d, "study.json"), "--quiet"], capture_output=True, text=True)
@@ -198,5 +198,16 @@ with tempfile.TemporaryDirectory() as tmp:
         failed += not ok
         print(f"{'PASS' if ok else 'FAIL'}: FLAC + CSV in one study through {{participant}}.* with a gain per format "
               f"matches soundfile + scipy.signal.welch (worst relative difference {worst:.2e}) {r.stderr.strip()[:200]}")
+    # NWB with two series in acquisition/: recordings.series picks "lfp" (by the last part of its path)
+    def w_two(path):
+        fw.write_nwb(path, np.round(signal(1000, 20, 2, 3000.0)).astype("<i2"), fs=1000.0, labels=["c1", "c2"],
+                     conversion=1e-7, where="acquisition/raw")
+        fw.write_nwb(path, signal(1000, 20, 2, 1e-4), fs=1000.0, labels=["c1", "c2"], where="acquisition/lfp",
+                     append=True)
+
+    def r_lfp(path):
+        with h5py.File(path, "r") as f:
+            return ["c1", "c2"], f["acquisition/lfp/data"][:].T
+    run_case(tmp, "nwb_series_choice", "nwb", w_two, r_lfp, ["c1-c2"], "uV", "signal", 1000, series="lfp")
 print(f"{passed} checks passed, {failed} failed")
 sys.exit(1 if failed else 0)
