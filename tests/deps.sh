@@ -1,6 +1,7 @@
 # Debian packages bandlink needs to build, test and run its demo. Sourced by tests/run and demo/run.
 BL_PACKAGES="meson ninja-build pkg-config gcc libgsl-dev liblapacke-dev libopenblas-dev libsndfile1-dev
-libcjson-dev python3 python3-numpy python3-scipy python3-mpmath python3-soundfile"
+libcjson-dev libhdf5-dev python3 python3-numpy python3-scipy python3-mpmath python3-soundfile
+python3-mne python3-h5py"
 
 # Install what is missing: as root with apt-get; otherwise print the command to run.
 bl_install_missing() {

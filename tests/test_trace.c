@@ -183,7 +183,11 @@ HARNESS_CASE(montage)
         check_rel(o, (1.0 + (10.0 - 4.0)) / 2, 1e-15, "several entries are averaged: (ch1 + (ch3 - ch2)) / 2");
         check_true(bl_montage_max_channel(m) == 3, "largest channel used is 3");
         bl_montage_destroy(m);
-        const char *bad[] = {"0", "1-1", "a", "1-", "-2", "1-2-3", ""};
+        const char *named[] = {"Cz", "Cz-Pz"};
+        check_true(bl_montage_parse(named, 2, "recordings.channels", &m, &err) == BL_OK && m->name && m->pos[0] == -1,
+                   "names parse, to be looked up in each recording");
+        bl_montage_destroy(m);
+        const char *bad[] = {"0", "1-1", "1-", "-2", "1-2-3", ""};
         for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++)
             check_true(bl_montage_parse(&bad[k], 1, "recordings.channels", &m, &err) == BL_ERR_INPUT &&
                            strstr(err.message, "recordings.channels[0]"),

@@ -3,6 +3,7 @@
 #include "analysis/analysis_internal.h"
 #include "analysis/provenance.h"
 #include "analysis/summary.h"
+#include "design/trial_files.h"
 #include "core/clock.h"
 #include "core/output.h"
 #include "core/strutil.h"
@@ -137,12 +138,15 @@ bl_status bl_analysis_target(bl_analysis *a, const char *out_dir, int force, bl_
 static bl_status start_hashing(bl_analysis *a, bl_error *err)
 {
     if (!a->target) return BL_OK; /* nothing will be written (check): no provenance, no hashing */
-    size_t n = 2 + (a->power ? a->power->n_recordings : 0);
+    /* a trials.file pattern or a BIDS tree: every file read, in place of the pattern */
+    const bl_trial_sources *files = a->trials ? a->trials->files : NULL;
+    size_t n_tables = files ? files->n : 1;
+    size_t n = 1 + n_tables + (a->power ? a->power->n_recordings : 0);
     const char **paths = malloc(n * sizeof *paths);
     if (!paths) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     paths[0] = a->study_path;
-    paths[1] = a->study->trials.file;
-    for (size_t r = 2; r < n; r++) paths[r] = a->power->recordings[r - 2].path;
+    for (size_t k = 0; k < n_tables; k++) paths[1 + k] = files ? files->path[k] : a->study->trials.file;
+    for (size_t r = 1 + n_tables; r < n; r++) paths[r] = a->power->recordings[r - 1 - n_tables].path;
     bl_input_hashes_destroy(a->hashes);
     a->hashes = NULL;
     bl_status st = bl_input_hashes_start(paths, n, &a->hashes, err);

@@ -3,6 +3,7 @@
  * core/sha256.c) of the study file, the trial table and every recording read, Welch settings and the
  * frequency bins of each band, exclusion counts. docs/outputs.md lists every field. */
 #include "analysis/provenance.h"
+#include "design/trial_files.h"
 #include "core/json.h"
 #include "core/sha256.h"
 #include "bl_config.h"
@@ -88,6 +89,7 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
     /* Paths absolute, so the recorded study parses again from the results folder (docs/outputs.md). */
     if (!absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "trials"), "file") ||
         !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "recordings"), "file") ||
+        !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "bids"), "root") ||
         !absolute_key(parsed, "output") || !cJSON_AddItemToObject(p, "study", parsed)) {
         cJSON_Delete(parsed);
         goto nomem;
@@ -96,10 +98,16 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
     cJSON *inputs = cJSON_AddArrayToObject(p, "inputs");
     if (!inputs) goto nomem;
     if (!input_entry(inputs, "study", study_path, hashes ? hashes[0] : NULL, err, &st)) goto fail_or_nomem;
-    if (!input_entry(inputs, "trials", study->trials.file, hashes ? hashes[1] : NULL, err, &st)) goto fail_or_nomem;
+    /* a trials.file pattern or a BIDS tree: one entry per file read (design/trial_files.h) */
+    const bl_trial_sources *files = trials ? trials->files : NULL;
+    size_t n_tables = files ? files->n : 1;
+    for (size_t k = 0; k < n_tables; k++)
+        if (!input_entry(inputs, "trials", files ? files->path[k] : study->trials.file, hashes ? hashes[1 + k] : NULL,
+                         err, &st))
+            goto fail_or_nomem;
     for (size_t r = 0; pr && r < pr->n_recordings; r++) {
         const bl_power_recording *rec = &pr->recordings[r];
-        cJSON *o = input_entry(inputs, "recording", rec->path, hashes ? hashes[2 + r] : NULL, err, &st);
+        cJSON *o = input_entry(inputs, "recording", rec->path, hashes ? hashes[1 + n_tables + r] : NULL, err, &st);
         if (!o) goto fail_or_nomem;
         if (!cJSON_AddStringToObject(o, "participant", rec->participant ? rec->participant : "")) goto nomem;
         if (!cJSON_AddStringToObject(o, "format", rec->format)) goto nomem;

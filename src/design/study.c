@@ -16,6 +16,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 /* Parameter names as users write them (vocabulary), in bl_param order. Kept here so the study
  * module does not depend on the likelihood engine. */
@@ -264,19 +265,71 @@ static int is_csv_name(const char *p)
 
 /* ---- sections ---- */
 
+/* "split": {"trial_type": ["side", "difficulty"]}: a column of "left/easy" values into named columns. */
+static bl_status parse_split(ctx *c, const cJSON *o, bl_study *s)
+{
+    const cJSON *sp;
+    bl_status st;
+    if ((st = get_object(c, o, "trials", "split", 0, &sp))) return st;
+    if (!sp) return BL_OK;
+    size_t n = (size_t)cJSON_GetArraySize(sp);
+    if (!(s->split.column = calloc(n + 1, sizeof *s->split.column)) ||
+        !(s->split.into = calloc(n + 1, sizeof *s->split.into)) ||
+        !(s->split.n_into = calloc(n + 1, sizeof *s->split.n_into)))
+        return nomem(c);
+    for (const cJSON *e = sp->child; e; e = e->next) {
+        char key[300];
+        snprintf(key, sizeof key, "trials.split.%s", e->string);
+        size_t i = s->split.n++;
+        if (!(s->split.column[i] = bl_strdup(e->string))) return nomem(c);
+        if (!cJSON_IsArray(e)) return bad(c, key, e, "must be an array of column names, one per part");
+        if ((st = get_string_array(c, e, key, 0, 0, &s->split.into[i], &s->split.n_into[i]))) return st;
+        if (s->split.n_into[i] < 2) return bad(c, key, e, "needs at least two column names");
+    }
+    return BL_OK;
+}
+
+/* "bids": {"root": ".", "task": "..."}: trials and recordings found in a BIDS dataset. */
+static bl_status parse_bids(ctx *c, const cJSON *o, bl_study *s)
+{
+    static const char *const keys[] = {"root", "task", NULL};
+    bl_status st;
+    char *root = NULL;
+    if ((st = check_keys(c, o, "bids", keys))) return st;
+    if ((st = get_string(c, o, "bids", "root", ".", &root))) return st;
+    s->bids.root = resolve_path(s->dir, root);
+    free(root);
+    if (!s->bids.root) return nomem(c);
+    size_t len = strlen(s->bids.root); /* "dir/." and "dir/" are "dir" */
+    while (len > 1 && (s->bids.root[len - 1] == '/' || (s->bids.root[len - 1] == '.' && s->bids.root[len - 2] == '/')))
+        s->bids.root[--len] = '\0';
+    if ((st = require_string(c, o, "bids", "task", &s->bids.task))) return st;
+    if (!*s->bids.task || strpbrk(s->bids.task, "_-/ "))
+        return bad(c, "bids.task", get(o, "task"), "must be a BIDS label (letters and digits, no '_', '-' or '/')");
+    return BL_OK;
+}
+
 static bl_status parse_trials(ctx *c, const cJSON *o, bl_study *s)
 {
     static const char *const keys[] = {"file", "participant", "trial", "rt", "rt_unit", "response", "upper",
-                                       "stimulus", "keep", NULL};
+                                       "stimulus", "keep", "split", NULL};
     static const char *const units[] = {"s", "ms", NULL};
     bl_status st;
     char *file = NULL;
     if ((st = check_keys(c, o, "trials", keys))) return st;
-    if ((st = require_string(c, o, "trials", "file", &file))) return st;
-    s->trials.file = resolve_path(s->dir, file);
-    free(file);
-    if (!s->trials.file) return nomem(c);
-    if ((st = require_string(c, o, "trials", "participant", &s->trials.participant))) return st;
+    if (s->bids.root && !get(o, "file")) { /* the events files of the BIDS tree (design/trial_files.c) */
+        if (!(s->trials.file = bl_strdup(s->bids.root))) return nomem(c);
+    } else {
+        if ((st = require_string(c, o, "trials", "file", &file))) return st;
+        s->trials.file = resolve_path(s->dir, file);
+        free(file);
+        if (!s->trials.file) return nomem(c);
+    }
+    if (s->bids.root && !get(o, "participant")) {
+        if (!(s->trials.participant = bl_strdup("participant"))) return nomem(c);
+    } else if ((st = require_string(c, o, "trials", "participant", &s->trials.participant)))
+        return st;
+    if ((st = parse_split(c, o, s))) return st;
     if ((st = require_string(c, o, "trials", "rt", &s->trials.rt))) return st;
     int unit;
     if ((st = get_choice(c, o, "trials", "rt_unit", units, 0, &unit))) return st;
@@ -305,24 +358,72 @@ static bl_status parse_trials(ctx *c, const cJSON *o, bl_study *s)
     return BL_OK;
 }
 
+/* "gain": {"flac": 838860.8, "csv": 1}: one gain per file extension (sound files and CSV traces need one,
+ * formats with physical units normally none), so recordings of several formats share a study. */
+static bl_status parse_gain_formats(ctx *c, const cJSON *g, bl_study *s)
+{
+    size_t n = (size_t)cJSON_GetArraySize(g);
+    s->recordings.gain = 1.0;
+    if (!(s->recordings.gain_format = calloc(n + 1, sizeof *s->recordings.gain_format)) ||
+        !(s->recordings.gain_value = calloc(n + 1, sizeof *s->recordings.gain_value)))
+        return nomem(c);
+    for (const cJSON *e = g->child; e; e = e->next) {
+        char key[300];
+        snprintf(key, sizeof key, "recordings.gain.%s", e->string);
+        const char *ext = e->string[0] == '.' ? e->string + 1 : e->string;
+        if (!*ext || strchr(ext, '.') || strchr(ext, '/')) return bad(c, key, e, "must be keyed by a file extension");
+        if (!cJSON_IsNumber(e) || !(e->valuedouble > 0)) return bad(c, key, e, "must be a number > 0");
+        size_t i = s->recordings.n_gain_formats++;
+        if (!(s->recordings.gain_format[i] = bl_strdup(ext))) return nomem(c);
+        s->recordings.gain_value[i] = e->valuedouble;
+    }
+    return BL_OK;
+}
+
+double bl_study_recording_gain(const bl_study *s, const char *path)
+{
+    const char *dot = strrchr(path, '.');
+    for (size_t i = 0; dot && !strchr(dot, '/') && i < s->recordings.n_gain_formats; i++)
+        if (strcasecmp(dot + 1, s->recordings.gain_format[i]) == 0) return s->recordings.gain_value[i];
+    return s->recordings.gain;
+}
+
 static const char *const unit_names[] = {"V", "mV", "uV", "\xc2\xb5V", "nV", "au", NULL};
 
 static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
 {
-    static const char *const keys[] = {"file", "onset", "gain", "unit", "rate", "channels", NULL};
+    static const char *const keys[] = {"file", "onset", "gain", "unit", "rate", "channels", "average", "series", NULL};
+    static const char *const averages[] = {"signal", "power", NULL};
     bl_status st;
     char *file = NULL;
     if ((st = check_keys(c, o, "recordings", keys))) return st;
-    if ((st = require_string(c, o, "recordings", "file", &file))) return st;
-    s->recordings.file = resolve_path(s->dir, file);
-    free(file);
-    if (!s->recordings.file) return nomem(c);
-    if ((st = require_string(c, o, "recordings", "onset", &s->recordings.onset))) return st;
-    if ((st = get_number(c, o, "recordings", "gain", 1.0, &s->recordings.gain, NULL))) return st;
-    if (!(s->recordings.gain > 0)) return bad(c, "recordings.gain", get(o, "gain"), "must be > 0");
+    if (s->bids.root && !get(o, "file")) { /* each events file's own recording, found by the BIDS scan */
+        size_t len = strlen(s->bids.root) + 32;
+        if (!(s->recordings.file = malloc(len))) return nomem(c);
+        snprintf(s->recordings.file, len, "%s/{bids_recording}", s->bids.root);
+    } else {
+        if ((st = require_string(c, o, "recordings", "file", &file))) return st;
+        s->recordings.file = resolve_path(s->dir, file);
+        free(file);
+        if (!s->recordings.file) return nomem(c);
+    }
+    if (s->bids.root && !get(o, "onset")) {
+        if (!(s->recordings.onset = bl_strdup("onset"))) return nomem(c);
+    } else if ((st = require_string(c, o, "recordings", "onset", &s->recordings.onset)))
+        return st;
+    if (cJSON_IsObject(get(o, "gain"))) {
+        if ((st = parse_gain_formats(c, get(o, "gain"), s))) return st;
+    } else {
+        if ((st = get_number(c, o, "recordings", "gain", 1.0, &s->recordings.gain, NULL))) return st;
+        if (!(s->recordings.gain > 0)) return bad(c, "recordings.gain", get(o, "gain"), "must be > 0");
+    }
     int u;
     if ((st = get_choice(c, o, "recordings", "unit", unit_names, 5, &u))) return st;
     if (!(s->recordings.unit = bl_strdup(unit_names[u]))) return nomem(c);
+    if ((st = get_string(c, o, "recordings", "series", NULL, &s->recordings.series))) return st;
+    int average;
+    if ((st = get_choice(c, o, "recordings", "average", averages, 0, &average))) return st;
+    s->recordings.average_power = average == 1;
     int has_rate;
     if ((st = get_number(c, o, "recordings", "rate", NAN, &s->recordings.rate, &has_rate))) return st;
     if (has_rate && !(s->recordings.rate > 0)) return bad(c, "recordings.rate", get(o, "rate"), "must be > 0 (Hz)");
@@ -731,10 +832,13 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;
     }
-    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", "scan", NULL};
+    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", "scan", "bids",
+                                       NULL};
     if ((st = check_keys(&c, root, "", keys))) goto fail;
 
     const cJSON *o;
+    if ((st = get_object(&c, root, "", "bids", 0, &o))) goto fail;
+    if (o && (st = parse_bids(&c, o, s))) goto fail;
     if ((st = get_object(&c, root, "", "trials", 1, &o))) goto fail;
     if ((st = parse_trials(&c, o, s))) goto fail;
     if ((st = get_object(&c, root, "", "recordings", 0, &o))) goto fail;
@@ -818,8 +922,13 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
     unsigned long failures_before = bl_json_alloc_failures();
     cJSON *root = cJSON_CreateObject();
     if (!root) return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the study as JSON");
+    if (s->bids.root) { /* trials.file is then the root folder: the recorded study keeps the block instead */
+        cJSON *b = cJSON_AddObjectToObject(root, "bids");
+        cJSON_AddStringToObject(b, "root", s->bids.root);
+        cJSON_AddStringToObject(b, "task", s->bids.task);
+    }
     cJSON *t = cJSON_AddObjectToObject(root, "trials");
-    cJSON_AddStringToObject(t, "file", s->trials.file);
+    if (!s->bids.root || strcmp(s->trials.file, s->bids.root) != 0) cJSON_AddStringToObject(t, "file", s->trials.file);
     cJSON_AddStringToObject(t, "participant", s->trials.participant);
     if (s->trials.trial_given) cJSON_AddStringToObject(t, "trial", s->trials.trial);
     cJSON_AddStringToObject(t, "rt", s->trials.rt);
@@ -828,6 +937,11 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
     cJSON_AddItemToObject(t, "upper", string_array(s->trials.upper, s->trials.n_upper));
     if (s->trials.stimulus) cJSON_AddStringToObject(t, "stimulus", s->trials.stimulus);
     else cJSON_AddNullToObject(t, "stimulus");
+    if (s->split.n) {
+        cJSON *sp = cJSON_AddObjectToObject(t, "split");
+        for (size_t i = 0; sp && i < s->split.n; i++)
+            cJSON_AddItemToObject(sp, s->split.column[i], string_array(s->split.into[i], s->split.n_into[i]));
+    }
     cJSON *k = cJSON_AddObjectToObject(t, "keep");
     cJSON_AddItemToObject(k, "rt_min", num_or_null(s->trials.rt_min));
     cJSON_AddItemToObject(k, "rt_max", num_or_null(s->trials.rt_max));
@@ -835,8 +949,15 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
         cJSON *r = cJSON_AddObjectToObject(root, "recordings");
         cJSON_AddStringToObject(r, "file", s->recordings.file);
         cJSON_AddStringToObject(r, "onset", s->recordings.onset);
-        cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
+        if (s->recordings.n_gain_formats) {
+            cJSON *g = cJSON_AddObjectToObject(r, "gain");
+            for (size_t i = 0; g && i < s->recordings.n_gain_formats; i++)
+                cJSON_AddNumberToObject(g, s->recordings.gain_format[i], s->recordings.gain_value[i]);
+        } else
+            cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
         cJSON_AddStringToObject(r, "unit", s->recordings.unit);
+        cJSON_AddStringToObject(r, "average", s->recordings.average_power ? "power" : "signal");
+        if (s->recordings.series) cJSON_AddStringToObject(r, "series", s->recordings.series);
         cJSON_AddItemToObject(r, "rate", num_or_null(s->recordings.rate));
         cJSON_AddItemToObject(r, "channels", string_array(s->recordings.channels, s->recordings.n_channels));
     }
@@ -911,6 +1032,20 @@ void bl_study_destroy(bl_study *s)
     free(s->path);
     free(s->dir);
     free(s->trials.file);
+    for (size_t i = 0; i < s->recordings.n_gain_formats; i++) free(s->recordings.gain_format[i]);
+    free(s->recordings.gain_format);
+    free(s->recordings.gain_value);
+    free(s->recordings.series);
+    free(s->bids.root);
+    free(s->bids.task);
+    for (size_t i = 0; i < s->split.n; i++) {
+        free(s->split.column[i]);
+        for (size_t k = 0; k < s->split.n_into[i]; k++) free(s->split.into[i][k]);
+        free(s->split.into[i]);
+    }
+    free(s->split.column);
+    free(s->split.into);
+    free(s->split.n_into);
     free(s->trials.participant);
     free(s->trials.rt);
     free(s->trials.response);

@@ -71,15 +71,30 @@ typedef struct bl_study {
         int trial_given;          /* the study named `trial` explicitly (then the column must exist) */
     } trials;
 
+    struct {
+        char *root;               /* resolved BIDS dataset folder; NULL without a "bids" block */
+        char *task;               /* the task label of the *_task-<label>_events.tsv files */
+    } bids;
+    struct {
+        char **column;            /* trials.split: columns holding combined factors ("left/easy") */
+        char ***into;             /* per column, the names of the parts */
+        size_t *n_into, n;
+    } split;
+
     int has_recordings;           /* the study has a "recordings" section */
     struct {
         char *file;               /* resolved path, may contain {column} placeholders */
         char *onset;              /* column with each trial's onset [s from recording start] */
-        double gain;              /* multiplies what the reader returns into `unit` */
+        double gain;              /* multiplies what the reader returns into `unit` (1 with per-format gains) */
+        char **gain_format;       /* "gain": {"flac": 838860.8, "csv": 1}: file extensions (no dot) ... */
+        double *gain_value;       /* ... and their gains; a recording of another extension gets `gain` */
+        size_t n_gain_formats;
         char *unit;               /* e.g. "uV" */
         double rate;              /* Hz, required for CSV traces; NAN otherwise */
-        char **channels;          /* "3", "1-2"; several are averaged */
+        char **channels;          /* "3", "1-2", "Cz", "Cz-Pz"; several are averaged */
         size_t n_channels;
+        char *series;             /* NWB: the ElectricalSeries to read when a file has several; NULL = the only one */
+        int average_power;        /* "average": "power" (mean of each entry's band power), else the signals' mean */
     } recordings;
 
     int has_power;                /* the study has a "power" section */
@@ -120,5 +135,8 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
  * BL_ERR_NOMEM (*out NULL) when memory ran out. */
 bl_status bl_study_to_json(const bl_study *study, char **out, bl_error *err);
 void bl_study_destroy(bl_study *study);
+
+/* The gain for one recording: its extension's entry of a per-format "gain" object, else recordings.gain. */
+double bl_study_recording_gain(const bl_study *s, const char *path);
 
 #endif

@@ -9,6 +9,7 @@
 #include "design/trials.h"
 #include "design/study.h"
 #include "core/groups.h"
+#include "design/trial_files.h"
 #include "core/strutil.h"
 
 #include <math.h>
@@ -386,16 +387,19 @@ static void warn_repeated_labels(const bl_trials *t, bl_warnings *warn)
 }
 
 /* The trials around a read table (which they own from then on, even on failure), arrays allocated. */
-static bl_status trials_alloc(bl_table *tab, bl_trials **out, bl_error *err)
+/* Takes ownership of tab and files (freed on failure too). */
+static bl_status trials_alloc(bl_table *tab, bl_trial_sources *files, bl_trials **out, bl_error *err)
 {
     size_t n = tab->n_rows;
     bl_trials *t = calloc(1, sizeof *t);
     *out = t;
     if (!t) {
         bl_table_destroy(tab);
+        bl_trial_sources_destroy(files);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
     }
     t->table = tab;
+    t->files = files;
     t->n = t->n_kept = n;
     t->rt = malloc(n * sizeof *t->rt);
     t->upper = calloc(n, sizeof *t->upper);
@@ -414,19 +418,21 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
 {
     *out = NULL;
     bl_table *tab = NULL;
-    bl_status st = bl_table_read(study->trials.file, &tab, err);
+    bl_trial_sources *files = NULL;
+    bl_status st = bl_trial_table_load(study, &tab, &files, err); /* one file, a pattern, or a BIDS tree */
     if (st) return st;
     const char *file = tab->path;
     if (tab->n_rows == 0) {
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the trial table is empty (a header row but no trials)", file);
         bl_table_destroy(tab);
+        bl_trial_sources_destroy(files);
         return st;
     }
     size_t n = tab->n_rows;
     bl_trials *t = NULL;
     size_t *count = NULL, *part_id = NULL, n_part_ids = 0;
     trial_columns c;
-    if ((st = trials_alloc(tab, &t, err))) goto fail;
+    if ((st = trials_alloc(tab, files, &t, err))) goto fail;
     if (!(count = calloc(n, sizeof *count)) || !(part_id = malloc(n * sizeof *part_id))) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
         goto fail;
@@ -462,6 +468,7 @@ fail:
 void bl_trials_destroy(bl_trials *t)
 {
     if (!t) return;
+    bl_trial_sources_destroy(t->files);
     if (t->trial_label)
         for (size_t i = 0; i < t->n; i++) free(t->trial_label[i]);
     if (t->participants)

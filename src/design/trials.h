@@ -7,6 +7,7 @@
 #include "design/table.h"
 
 struct bl_study;
+struct bl_trial_sources;
 
 typedef struct bl_trials {
     bl_table *table;            /* every column of the trial file, plus regressors added later */
@@ -20,6 +21,7 @@ typedef struct bl_trials {
     char **trial_label;         /* the table's own `trial` value, or the 1-based row number within participant */
     const char **excluded;      /* NULL = kept, else a static reason string ("rt_min", "artifact: flat", ...) */
     size_t n_kept;
+    struct bl_trial_sources *files; /* the files a pattern or a BIDS tree gave (design/trial_files.h), or NULL */
 } bl_trials;
 
 /* Read and code the trial table of a study. Exclusions (keep rules) are applied as reasons, never

@@ -15,6 +15,9 @@
 #include "core/output.h"
 #include "signal/spectrum.h"
 #include "signal/trace.h"
+#include "signal/channels.h"
+#include "signal/check_breakdown.h"
+#include "design/trial_files.h"
 #include "core/csvtext.h"
 #include "core/groups.h"
 #include "design/cells.h"
@@ -87,6 +90,8 @@ void bl_power_result_destroy(bl_power_result *r)
     }
     free(r->spectra);
     free(r->band_power); /* artifact_power lives in the same block */
+    free(r->row_recording);
+    free(r->row_ptp);
     free(r->unit);
     free(r);
 }
@@ -121,6 +126,31 @@ done:
     return st;
 }
 
+/* "<name>.*" recordings: the one file with a recording's extension; the last answer is kept, as
+ * consecutive trials usually share a recording. */
+typedef struct {
+    char *pattern, *path;
+} any_cache_t;
+
+static bl_status any_extension(char **path, any_cache_t *cache, bl_error *err)
+{
+    size_t len = strlen(*path);
+    if (len < 2 || strcmp(*path + len - 2, ".*") != 0) return BL_OK;
+    if (!cache->pattern || strcmp(cache->pattern, *path) != 0) {
+        char *found = NULL;
+        bl_status st = bl_resolve_any_extension(*path, &found, err);
+        if (st) return st;
+        free(cache->pattern);
+        free(cache->path);
+        cache->pattern = *path;
+        cache->path = found;
+    } else {
+        free(*path);
+    }
+    *path = bl_strdup(cache->path);
+    return *path ? BL_OK : bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+}
+
 /* Per-thread state. */
 typedef struct {
     bl_trace *trace;
@@ -129,6 +159,9 @@ typedef struct {
     size_t raw_cap;          /* doubles */
     double *x;               /* window_samples */
     bl_welch_work *work;
+    bl_montage *mont;        /* the study's channels resolved for the open recording (names, units, gain) */
+    double *psd_entry;       /* n_freqs: one entry's PSD when "average": "power" */
+    double *clip_lo, *clip_hi; /* channels: full-scale values of the open recording, or NULL when it has none */
 } thread_state;
 
 static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_result *r, const bl_trials *t,
@@ -142,13 +175,13 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
     const char *part = t->participants[t->participant[first_row]];
     bl_error e = {0};
     if (is_text_trace(path)) { /* parsed whole: let threads parse different CSV files at once */
-        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+        st = bl_trace_open_series(path, s->recordings.rate, s->recordings.series, &ts->trace, &e);
     } else {
         /* sf_open reports failures through a process-wide sf_strerror(NULL): one thread at a time */
 #ifdef _OPENMP
 #pragma omp critical(bl_trace_open)
 #endif
-        st = bl_trace_open(path, s->recordings.rate, &ts->trace, &e);
+        st = bl_trace_open_series(path, s->recordings.rate, s->recordings.series, &ts->trace, &e);
     }
     if (st)
         return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
@@ -158,11 +191,21 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
                             "participant %s: %s is sampled at %.10g Hz, but the study uses %.10g Hz%s", part, path,
                             info->rate, r->fs,
                             isfinite(s->recordings.rate) ? " (recordings.rate)" : " (the rate of the first recording)");
-    if ((size_t)bl_montage_max_channel(m) > info->channels)
-        return bl_error_set(err, BL_ERR_INPUT,
-                            "participant %s, trial %s: %s has %zu channel%s, but recordings.channels uses channel %d",
-                            part, t->trial_label[first_row], path, info->channels, info->channels == 1 ? "" : "s",
-                            bl_montage_max_channel(m));
+    free(ts->clip_lo);
+    free(ts->clip_hi);
+    ts->clip_lo = ts->clip_hi = NULL;
+    double lo, hi;
+    if (s->power.clipping && bl_trace_channel_clip(ts->trace, 0, &lo, &hi)) {
+        size_t ch = bl_trace_get_info(ts->trace)->channels;
+        if (!(ts->clip_lo = malloc(ch * sizeof *ts->clip_lo)) || !(ts->clip_hi = malloc(ch * sizeof *ts->clip_hi)))
+            return bl_error_set(err, BL_ERR_NOMEM, "out of memory opening %s", path);
+        for (size_t c = 0; c < ch; c++) bl_trace_channel_clip(ts->trace, c, &ts->clip_lo[c], &ts->clip_hi[c]);
+    }
+    bl_montage_destroy(ts->mont);
+    ts->mont = NULL;
+    if ((st = bl_montage_resolve(m, ts->trace, "recordings.channels", s->recordings.unit, bl_study_recording_gain(s, path),
+                                 &ts->mont, &e)))
+        return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
     size_t need = r->window_samples * info->channels;
     if (need > ts->raw_cap) {
         double *nr = realloc(ts->raw, need * sizeof *nr);
@@ -177,7 +220,7 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
 /* Artifact reason for a window, or NULL. `raw` holds every channel; only the montage's channels count
  * for clipping. */
 static const char *artifact(const bl_study *s, const bl_trace_info *info, const bl_montage *m, const double *raw,
-                            const double *x, size_t n)
+                            const double *x, size_t n, const double *clo, const double *chi)
 {
     double lo = INFINITY, hi = -INFINITY;
     for (size_t i = 0; i < n; i++) {
@@ -185,15 +228,15 @@ static const char *artifact(const bl_study *s, const bl_trace_info *info, const 
         if (x[i] < lo) lo = x[i];
         if (x[i] > hi) hi = x[i];
     }
-    if (s->power.clipping && info->integer_pcm) {
+    if (s->power.clipping && clo) { /* per channel: integer PCM rails, EDF/BDF digital minimum/maximum */
         size_t ch = info->channels;
         for (size_t i = 0; i < n; i++)
             for (size_t k = 0; k < m->n; k++) {
-                double a = raw[i * ch + (size_t)m->pos[k]];
-                if (a <= info->clip_lo || a >= info->clip_hi) return "artifact: clipping";
+                size_t a = (size_t)m->pos[k];
+                if (raw[i * ch + a] <= clo[a] || raw[i * ch + a] >= chi[a]) return "artifact: clipping";
                 if (m->neg[k] >= 0) {
-                    double b = raw[i * ch + (size_t)m->neg[k]];
-                    if (b <= info->clip_lo || b >= info->clip_hi) return "artifact: clipping";
+                    size_t b = (size_t)m->neg[k];
+                    if (raw[i * ch + b] <= clo[b] || raw[i * ch + b] >= chi[b]) return "artifact: clipping";
                 }
             }
     }
@@ -203,6 +246,39 @@ static const char *artifact(const bl_study *s, const bl_trace_info *info, const 
 }
 
 /* One work item: its trials' PSDs go to block_psd (row k - block_begin), band power to the result. */
+static double peak_to_peak(const double *x, size_t n)
+{
+    double lo = INFINITY, hi = -INFINITY;
+    for (size_t i = 0; i < n; i++) {
+        if (x[i] < lo) lo = x[i];
+        if (x[i] > hi) hi = x[i];
+    }
+    return hi - lo;
+}
+
+/* "average": "power": the mean of each entry's PSD (so of each entry's band power, a linear sum of bins).
+ * An entry's artifact is the window's; the PSD is computed only for windows without one, except that
+ * flagged windows keep their power apart (as with the signal average) unless a sample is non-finite. */
+static const char *power_average(const bl_study *s, const bl_trace_info *info, const bl_welch_plan *plan,
+                                 thread_state *ts, size_t L, size_t nf, double *psd, double *ptp_out,
+                                 bl_status *status, bl_error *e)
+{
+    const bl_montage *m = ts->mont;
+    const char *why = NULL;
+    for (size_t j = 0; j < nf; j++) psd[j] = 0;
+    for (size_t k = 0; k < m->n; k++) {
+        bl_montage_apply_entry(m, k, ts->raw, L, info->channels, ts->x);
+        double ptp = peak_to_peak(ts->x, L);
+        if (!(*ptp_out >= ptp)) *ptp_out = ptp;
+        const char *w = artifact(s, info, m, ts->raw, ts->x, L, ts->clip_lo, ts->clip_hi);
+        if (w && !why) why = w;
+        if (why && strcmp(why, "artifact: non-finite") == 0) return why;
+        if ((*status = bl_welch_compute(plan, ts->work, ts->x, L, ts->psd_entry, e))) return NULL;
+        for (size_t j = 0; j < nf; j++) psd[j] += ts->psd_entry[j] / (double)m->n;
+    }
+    return why;
+}
+
 static void process_item(const bl_study *s, bl_power_result *r, const bl_trials *t, const bl_montage *m,
                          const bl_welch_plan *plan, const job *jobs, item *it, thread_state *ts, const char **reason,
                          double *block_psd, size_t block_begin)
@@ -211,6 +287,7 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
         it->status = open_recording(ts, s, r, t, m, it->rec, jobs[it->begin].row, &it->err);
         if (it->status) return;
     }
+    m = ts->mont;
     const bl_trace_info *info = bl_trace_get_info(ts->trace);
     if (it->begin == 0 || jobs[it->begin - 1].rec != it->rec) { /* first chunk of this recording: describe it */
         bl_power_recording *rec = &r->recordings[it->rec];
@@ -240,12 +317,22 @@ static void process_item(const bl_study *s, bl_power_result *r, const bl_trials 
             bl_error_set(&it->err, it->status, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
             return;
         }
-        bl_montage_apply(m, ts->raw, L, info->channels, s->recordings.gain, ts->x);
         double *psd = block_psd + (k - block_begin) * nf;
-        const char *why = artifact(s, info, m, ts->raw, ts->x, L);
+        r->row_recording[row] = it->rec;
+        const char *why;
+        if (s->recordings.average_power && m->n > 1) {
+            r->row_ptp[row] = NAN;
+            why = power_average(s, info, plan, ts, L, nf, psd, &r->row_ptp[row], &it->status, &e);
+        } else {
+            bl_montage_apply(m, ts->raw, L, info->channels, 1.0, ts->x); /* gain is inside the resolved montage */
+            r->row_ptp[row] = peak_to_peak(ts->x, L);
+            why = artifact(s, info, m, ts->raw, ts->x, L, ts->clip_lo, ts->clip_hi);
+            if (!(why && strcmp(why, "artifact: non-finite") == 0))
+                it->status = bl_welch_compute(plan, ts->work, ts->x, L, psd, &e);
+        }
         if (why) reason[row] = why;
-        if (why && strcmp(why, "artifact: non-finite") == 0) continue;
-        if ((it->status = bl_welch_compute(plan, ts->work, ts->x, L, psd, &e))) {
+        if (!it->status && why && strcmp(why, "artifact: non-finite") == 0) continue;
+        if (it->status) {
             bl_error_set(&it->err, it->status, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
             return;
         }
@@ -595,7 +682,9 @@ static bl_status compute_blocks(const bl_study *s, bl_power_result *r, const bl_
         bl_error e = {0};
         ts[i].rec = SIZE_MAX;
         ts[i].x = malloc(r->window_samples * sizeof *ts[i].x);
-        if (!ts[i].x || bl_welch_work_create(plan, r->window_samples, &ts[i].work, &e) != BL_OK) failed_alloc = 1;
+        ts[i].psd_entry = malloc(nf * sizeof *ts[i].psd_entry);
+        if (!ts[i].x || !ts[i].psd_entry || bl_welch_work_create(plan, r->window_samples, &ts[i].work, &e) != BL_OK)
+            failed_alloc = 1;
     }
     for (size_t first = 0; !failed_alloc && first < n_items;) {
         size_t last = first, block_begin = items[first].begin;
@@ -627,6 +716,10 @@ static bl_status compute_blocks(const bl_study *s, bl_power_result *r, const bl_
 done:
     for (int i = 0; ts && i < nt; i++) {
         bl_trace_close(ts[i].trace);
+        bl_montage_destroy(ts[i].mont);
+        free(ts[i].clip_lo);
+        free(ts[i].clip_hi);
+        free(ts[i].psd_entry);
         free(ts[i].raw);
         free(ts[i].x);
         bl_welch_work_destroy(ts[i].work);
@@ -699,6 +792,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     const char **reason = NULL;
     spectra_acc acc = {0};
     size_t n_jobs = 0, n_items = 0;
+    any_cache_t any_cache = {NULL, NULL};
     bl_power_result *r = calloc(1, sizeof *r);
     if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
@@ -731,6 +825,11 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         if ((st = parse_onset(t, c_onset, i, "recordings.onset", &onset, err))) break;
         align[i] = onset + (s->power.align == BL_ALIGN_RESPONSE ? t->rt[i] : 0.0);
         if ((st = bl_pattern_expand(s->recordings.file, t->table, i, &paths[n_jobs], err))) break;
+        if ((st = any_extension(&paths[n_jobs], &any_cache, err))) {
+            free(paths[n_jobs]);
+            paths[n_jobs] = NULL;
+            break;
+        }
         jobs[n_jobs].row = i;
         n_jobs++;
     }
@@ -750,7 +849,7 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         bl_trace *tr = NULL;
         bl_error e = {0};
         size_t row = jobs[0].row;
-        if ((st = bl_trace_open(r->recordings[0].path, NAN, &tr, &e))) {
+        if ((st = bl_trace_open_series(r->recordings[0].path, NAN, s->recordings.series, &tr, &e))) {
             bl_error_set(err, st, "participant %s, trial %s: %s", t->participants[t->participant[row]],
                          t->trial_label[row], e.message);
             free(align);
@@ -862,6 +961,11 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     /* the second half of the block: flagged trials' power, which the regressors never see */
     r->artifact_power = r->band_power + (n ? n : 1) * (r->n_bands ? r->n_bands : 1);
     for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = r->artifact_power[k] = NAN;
+    /* per row: its recording and its window's peak-to-peak amplitude (the check's breakdown and scale hints) */
+    if (!(r->row_recording = malloc((n ? n : 1) * sizeof *r->row_recording)) ||
+        !(r->row_ptp = malloc((n ? n : 1) * sizeof *r->row_ptp)))
+        goto nomem;
+    for (size_t k = 0; k < n; k++) r->row_recording[k] = SIZE_MAX, r->row_ptp[k] = NAN;
     if ((st = spectra_setup(s, t, r, &acc, err))) goto fail;
 
     /* work items: chunks of trials of one recording, in a fixed order */
@@ -892,7 +996,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
     if (s->power.clipping)
         for (size_t k = 0; k < r->n_recordings; k++)
-            if (!strstr(r->recordings[k].format, "-bit PCM"))
+            if (!strstr(r->recordings[k].format, "-bit PCM") && strncmp(r->recordings[k].format, "EDF", 3) != 0 &&
+                strncmp(r->recordings[k].format, "BDF", 3) != 0)
                 bl_warnings_add(warn, "%s (%s) has no integer full scale, so power.artifacts.clipping does not apply to it",
                                 r->recordings[k].path, r->recordings[k].format);
     if (r->n_artifacts)
@@ -902,6 +1007,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     free(jobs);
     free(reason);
     spectra_acc_free(&acc);
+    free(any_cache.pattern);
+    free(any_cache.path);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     *out = r;
@@ -913,6 +1020,8 @@ fail:
     free(jobs);
     free(reason);
     spectra_acc_free(&acc);
+    free(any_cache.pattern);
+    free(any_cache.path);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
     bl_power_result_destroy(r);
@@ -1063,6 +1172,13 @@ bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power
         sb_printf(&b, "recordings   %zu file%s, %.10g Hz, channels", r->n_recordings, r->n_recordings == 1 ? "" : "s", r->fs);
         for (size_t c = 0; c < s->recordings.n_channels; c++)
             sb_printf(&b, "%s%s", c ? ", " : " ", s->recordings.channels[c]);
+        if (s->recordings.n_gain_formats) { /* one gain per file extension */
+            sb_printf(&b, "%s, gain", s->recordings.n_channels > 1 ? " (averaged)" : "");
+            for (size_t g = 0; g < s->recordings.n_gain_formats; g++)
+                sb_printf(&b, " %s %.10g%s", s->recordings.gain_format[g], s->recordings.gain_value[g],
+                          g + 1 < s->recordings.n_gain_formats ? "," : "");
+            sb_printf(&b, " (others 1), unit %s\n", s->recordings.unit);
+        } else
         sb_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "", s->recordings.gain,
                   s->recordings.unit);
         for (size_t k = 0; k < r->n_recordings && k < 50; k++) {
@@ -1089,6 +1205,10 @@ bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power
     } else {
         sb_printf(&b, "recordings   none (band regressors, if any, come from trial-table columns)\n");
     }
+    char *breakdown = bl_check_breakdown(s, t, r); /* per participant and recording; scale/unit diagnosis */
+    if (!breakdown) b.failed = 1;
+    else sb_printf(&b, "%s", breakdown);
+    free(breakdown);
     sb_printf(&b, "models       %zu", s->n_models);
     for (size_t k = 0; k < s->n_models; k++) sb_printf(&b, "%s%s", k ? ", " : ": ", s->models[k].name);
     sb_printf(&b, "\nfit          participants %s, %d start%s\n",

@@ -68,6 +68,9 @@ typedef struct {
     bl_power_recording *recordings;
     char *unit;                  /* the study's unit; PSD is unit^2/Hz, band power unit^2 */
     size_t n_artifacts;          /* trials flagged by an artifact rule */
+    size_t *row_recording;       /* n_trials: index into recordings of each windowed trial, SIZE_MAX otherwise */
+    double *row_ptp;             /* n_trials: peak-to-peak of the trial's signal in unit (largest over entries
+                                    with "average": "power"); NAN when not windowed (for check's diagnosis) */
 } bl_power_result;
 
 /* Compute band power for every kept trial of `trials` (study must have recordings and power).

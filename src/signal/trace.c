@@ -5,6 +5,7 @@
  * default on: integer PCM read as double is divided by 2^(bits-1)).
  */
 #include "signal/trace.h"
+#include "signal/trace_backend.h"
 #include "core/strutil.h"
 
 #include <errno.h>
@@ -13,6 +14,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 struct bl_trace {
     char *path;
@@ -20,7 +22,29 @@ struct bl_trace {
     SNDFILE *sf;
     int64_t pos;            /* the sound file's read position (frames), -1 when unknown */
     double *csv;            /* frames x channels, interleaved (CSV traces only) */
+    bl_trace_backend be;    /* EDF/BDF, BrainVision, NWB: a reader of its own (trace_*.c) */
+    char **names;           /* channel names from the header (CSV header row or the format's), or NULL */
+    size_t n_names;
 };
+
+/* The format reader chosen by extension, or NULL for libsndfile and CSV. */
+typedef bl_status (*backend_open)(const char *, bl_trace_info *, bl_trace_backend *, bl_error *);
+static backend_open backend_for(const char *p)
+{
+    const char *dot = strrchr(p, '.');
+    if (!dot || strchr(dot, '/')) return NULL;
+    if (strcasecmp(dot, ".edf") == 0 || strcasecmp(dot, ".bdf") == 0) return bl_trace_edf_open;
+    if (strcasecmp(dot, ".vhdr") == 0) return bl_trace_brainvision_open;
+    if (strcasecmp(dot, ".nwb") == 0) return bl_trace_nwb_open;
+    return NULL;
+}
+
+void bl_trace_strings_free(char **s, size_t n)
+{
+    if (!s) return;
+    for (size_t i = 0; i < n; i++) free(s[i]);
+    free(s);
+}
 
 static int has_csv_extension(const char *p)
 {
@@ -66,6 +90,28 @@ static int is_integer_pcm(int format)
            s == SF_FORMAT_PCM_32;
 }
 
+/* The header row's fields, spaces and quotes trimmed; an empty field stays "" (unnamed). */
+static char **csv_names(const char *p, char delim, size_t channels)
+{
+    char **names = calloc(channels, sizeof *names);
+    if (!names) return NULL;
+    for (size_t c = 0; c < channels; c++) {
+        const char *stop = strchr(p, delim);
+        size_t len = stop ? (size_t)(stop - p) : strlen(p);
+        const char *a = p;
+        while (len > 0 && (*a == ' ' || *a == '"')) a++, len--;
+        while (len > 0 && (a[len - 1] == ' ' || a[len - 1] == '"')) len--;
+        if (!(names[c] = malloc(len + 1))) {
+            bl_trace_strings_free(names, channels);
+            return NULL;
+        }
+        memcpy(names[c], a, len);
+        names[c][len] = '\0';
+        p = stop ? stop + 1 : p + len;
+    }
+    return names;
+}
+
 /* CSV/TSV trace: header row, then one numeric row per sample. */
 static bl_status read_csv_trace(bl_trace *t, bl_error *err)
 {
@@ -89,6 +135,11 @@ static bl_status read_csv_trace(bl_trace *t, bl_error *err)
             if (strchr(p, '\t')) delim = '\t';
             channels = 1;
             for (char *q = p; *q; q++) channels += *q == delim;
+            t->n_names = channels;
+            if (!(t->names = csv_names(p, delim, channels))) {
+                st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory reading the header", t->path);
+                goto done;
+            }
             continue;
         }
         if (frames == dcap) {
@@ -148,6 +199,11 @@ done:
 
 bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_error *err)
 {
+    return bl_trace_open_series(path, csv_rate, NULL, out, err);
+}
+
+bl_status bl_trace_open_series(const char *path, double csv_rate, const char *series, bl_trace **out, bl_error *err)
+{
     *out = NULL;
     bl_trace *t = calloc(1, sizeof *t);
     if (!t || !(t->path = bl_strdup(path))) {
@@ -155,6 +211,16 @@ bl_status bl_trace_open(const char *path, double csv_rate, bl_trace **out, bl_er
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory opening %s", path);
     }
     bl_status st;
+    backend_open open_format = backend_for(path);
+    if (open_format) {
+        t->info.clip_lo = t->info.clip_hi = NAN;
+        t->be.series = series;
+        if ((st = open_format(path, &t->info, &t->be, err))) goto fail;
+        t->names = t->be.names;
+        t->n_names = t->info.channels;
+        *out = t;
+        return BL_OK;
+    }
     if (has_csv_extension(path)) {
         if (!(csv_rate > 0)) {
             st = bl_error_set(err, BL_ERR_INPUT, "%s: a CSV/TSV trace needs recordings.rate (samples per second)", path);
@@ -235,6 +301,28 @@ static bl_status short_read_status(bl_trace *t)
     return sf_error(t->sf) == SF_ERR_SYSTEM ? BL_ERR_IO : BL_ERR_INPUT;
 }
 
+const char *bl_trace_channel_name(const bl_trace *t, size_t c)
+{
+    return t->names && c < t->info.channels && t->names[c][0] ? t->names[c] : NULL;
+}
+int bl_trace_channel_clip(const bl_trace *t, size_t c, double *lo, double *hi)
+{
+    if (c >= t->info.channels) return 0;
+    if (t->be.clip_lo) {
+        *lo = t->be.clip_lo[c];
+        *hi = t->be.clip_hi[c];
+        return 1;
+    }
+    *lo = t->info.clip_lo;
+    *hi = t->info.clip_hi;
+    return t->info.integer_pcm;
+}
+const char *bl_trace_channel_unit(const bl_trace *t, size_t c)
+{
+    return t->be.units && c < t->info.channels ? t->be.units[c] : NULL;
+}
+const char *bl_trace_path(const bl_trace *t) { return t->path; }
+
 bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_error *err)
 {
     if (start < 0 || (int64_t)n > t->info.frames - start)
@@ -242,6 +330,7 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
                             "%s: samples %lld to %.0f are outside the recording (%lld samples = %.6g s at %.10g Hz)",
                             t->path, (long long)start, (double)start + (double)n - 1, (long long)t->info.frames,
                             (double)t->info.frames / t->info.rate, t->info.rate);
+    if (t->be.read) return t->be.read(t->be.impl, start, n, buf, err);
     if (t->csv) {
         memcpy(buf, t->csv + (size_t)start * t->info.channels, n * t->info.channels * sizeof *buf);
         return BL_OK;
@@ -280,6 +369,11 @@ void bl_trace_close(bl_trace *t)
 {
     if (!t) return;
     if (t->sf) sf_close(t->sf);
+    if (t->be.close) t->be.close(t->be.impl);
+    bl_trace_strings_free(t->names, t->n_names);
+    if (t->be.units) bl_trace_strings_free(t->be.units, t->info.channels);
+    free(t->be.clip_lo);
+    free(t->be.clip_hi);
     free(t->csv);
     free(t->path);
     free(t);
@@ -320,10 +414,23 @@ bl_status bl_montage_parse(const char *const *specs, size_t n, const char *key, 
             e = b > 0 ? e2 : e;
             if (b < 0) a = -1;
         }
+        if ((a < 0 || *e) && strpbrk(s, "0123456789-") != s && *s) { /* a name: looked up per recording */
+            if (!m->name && !(m->name = calloc(n, sizeof *m->name))) {
+                bl_montage_destroy(m);
+                return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            }
+            if (!(m->name[i] = bl_strdup(s))) {
+                bl_montage_destroy(m);
+                return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+            }
+            m->pos[i] = m->neg[i] = -1;
+            continue;
+        }
         if (a < 0 || *e) {
             bl_montage_destroy(m);
             return bl_error_set(err, BL_ERR_INPUT,
-                                "key \"%s[%zu]\": \"%s\" is not a channel (1-based number \"3\" or bipolar pair \"1-2\")",
+                                "key \"%s[%zu]\": \"%s\" is not a channel (1-based number \"3\", bipolar pair \"1-2\", or a "
+                                "name \"Cz\", \"Cz-Pz\")",
                                 key, i, s);
         }
         if (a == b) {
@@ -350,6 +457,16 @@ int bl_montage_max_channel(const bl_montage *m)
 void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_t channels, double gain, double *out)
 {
     double scale = gain / (double)m->n;
+    if (m->wpos) { /* resolved per recording: each channel has its own multiplier */
+        for (size_t f = 0; f < frames; f++) {
+            const double *row = x + f * channels;
+            double s = 0;
+            for (size_t i = 0; i < m->n; i++)
+                s += m->neg[i] >= 0 ? m->wpos[i] * row[m->pos[i]] - m->wneg[i] * row[m->neg[i]] : m->wpos[i] * row[m->pos[i]];
+            out[f] = scale * s;
+        }
+        return;
+    }
     if (m->n == 1 && m->neg[0] < 0) {
         const double *p = x + m->pos[0];
         for (size_t f = 0; f < frames; f++) out[f] = gain * p[f * channels];
@@ -366,6 +483,11 @@ void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_
 void bl_montage_destroy(bl_montage *m)
 {
     if (!m) return;
+    if (m->name)
+        for (size_t i = 0; i < m->n; i++) free(m->name[i]);
+    free(m->name);
+    free(m->wpos);
+    free(m->wneg);
     free(m->pos);
     free(m->neg);
     free(m);
@@ -410,7 +532,9 @@ bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t r
                 return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" is missing but recordings.file \"%s\" needs it",
                                     table->path ? table->path : "trials", table->line[row], name, pattern);
             }
-            if (strchr(piece, '/') || strcmp(piece, "..") == 0) {
+            /* bids_recording is the relative path the BIDS scan found (design/trial_files.c): '/' allowed, '..' not */
+            int nested = strcmp(name, "bids_recording") == 0 && !strstr(piece, "..") && piece[0] != '/';
+            if ((strchr(piece, '/') && !nested) || strcmp(piece, "..") == 0) {
                 free(r);
                 return bl_error_set(err, BL_ERR_INPUT,
                                     "%s:%zu: column \"%s\" value \"%s\" contains '/' or is '..'; it cannot fill a file name",

@@ -112,7 +112,7 @@ static void resolve_alloc(void)
 }
 
 /* Allocations made by the C library itself (qsort's buffer, stdio buffers: it falls back without them by
- * design), by libgomp, and by libsndfile (1.2.0 crashes in sf_open when one of its own allocations fails: a
+ * design), by libgomp, and by libsndfile and its codecs (1.2.0 crashes in sf_open when one of its own allocations fails: a
  * defect outside bandlink that no caller can handle) are not failed and not counted: the sweep is over
  * allocations whose failure bandlink itself must report. */
 static int exempt_caller(void *ret)
@@ -121,7 +121,13 @@ static int exempt_caller(void *ret)
     if (!dladdr(ret, &info) || !info.dli_fname) return 0;
     const char *f = strrchr(info.dli_fname, '/');
     f = f ? f + 1 : info.dli_fname;
-    return strncmp(f, "libc.so", 7) == 0 || strncmp(f, "libgomp", 7) == 0 || strncmp(f, "libsndfile", 10) == 0;
+    /* libsndfile's codecs too (libFLAC, libvorbis, libogg, libopus, libmpg123): their failures surface as
+     * "decoder error" without saying memory ran out */
+    static const char *const exempt[] = {"libc.so", "libgomp", "libsndfile", "libFLAC", "libvorbis", "libogg",
+                                         "libopus", "libmpg123", "libmp3lame"};
+    for (size_t i = 0; i < sizeof exempt / sizeof exempt[0]; i++)
+        if (strncmp(f, exempt[i], strlen(exempt[i])) == 0) return 1;
+    return 0;
 }
 
 void *malloc(size_t n)
