@@ -307,6 +307,9 @@ bl_status bl_analysis_write(bl_analysis *a, unsigned outputs, const char *comman
         return bl_error_set(err, BL_ERR_INTERNAL, "no results folder chosen (bl_analysis_target) before writing");
     if ((outputs & (BL_OUTPUT_FITS | BL_OUTPUT_REPORT)) && !a->fits)
         return bl_error_set(err, BL_ERR_INTERNAL, "fits and report outputs need bl_analysis_fit first");
+    if (a->warnings.lost)
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory: %zu warnings could not be recorded, so no results are "
+                            "written", a->warnings.lost);
     bl_results_folder *folder = NULL;
     cJSON *prov = NULL;
     bl_status st = bl_results_folder_begin(a->target, a->force, command, &folder, err);

@@ -411,13 +411,13 @@ fail:
 
 const char *bl_results_folder_dir(const bl_results_folder *s) { return s->temp; }
 
-static void fsync_dir(const char *path)
+static int fsync_dir(const char *path)
 {
     int fd = open(path, O_RDONLY | O_DIRECTORY);
-    if (fd >= 0) {
-        fsync(fd);
-        close(fd);
-    }
+    if (fd < 0) return -1;
+    int rc = fsync(fd);
+    close(fd);
+    return rc;
 }
 
 /* The old folder aside, the new one in, the old one removed (restored if the second step fails). */
@@ -448,7 +448,10 @@ bl_status bl_results_folder_commit(bl_results_folder *s, bl_error *err)
     char *parent = parent_of(s->target, &name);
     bl_status st = marker_write(s->temp, s->command, err);
     if (st) goto done;
-    fsync_dir(s->temp);
+    if (fsync_dir(s->temp) != 0) {
+        st = bl_error_set(err, BL_ERR_IO, "%s: cannot flush the finished results to disk: %s", s->target, strerror(errno));
+        goto done;
+    }
     if (!s->replace) {
         if (rename(s->temp, s->target) != 0)
             st = bl_error_set(err, BL_ERR_IO, "%s: cannot move the finished results into place: %s", s->target,
@@ -465,7 +468,9 @@ bl_status bl_results_folder_commit(bl_results_folder *s, bl_error *err)
 #endif
     st = swap_by_rename(s, err);
 done:
-    if (parent && st == BL_OK) fsync_dir(parent);
+    /* After the swap the new results are in place; a failure to flush the parent folder then cannot undo it
+     * and is not reported as if nothing had been written. */
+    if (parent && st == BL_OK) (void)fsync_dir(parent);
     free(parent);
     bl_results_folder_abort(s);
     return st;

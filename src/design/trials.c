@@ -216,7 +216,10 @@ static void warn_rt_scale(const struct bl_study *study, const bl_trials *t, cons
 {
     double *rt = malloc((t->n ? t->n : 1) * sizeof *rt);
     size_t m = 0;
-    if (!rt) return;
+    if (!rt) { /* a check that could not run is a lost warning: the writers then refuse (out of memory) */
+        if (warn) warn->lost++;
+        return;
+    }
     for (size_t i = 0; i < t->n; i++)
         if (!t->excluded[i] && isfinite(t->rt[i])) rt[m++] = t->rt[i];
     if (m) {
@@ -371,7 +374,10 @@ static void warn_repeated_labels(const bl_trials *t, bl_warnings *warn)
     const bl_table *tab = t->table;
     size_t n = t->n;
     size_t *idx = malloc(n * sizeof *idx);
-    if (!idx) return;
+    if (!idx) { /* a check that could not run is a lost warning: the writers then refuse (out of memory) */
+        if (warn) warn->lost++;
+        return;
+    }
     for (size_t i = 0; i < n; i++) idx[i] = i;
     sort_trials = t;
     qsort(idx, n, sizeof *idx, cmp_trial);
