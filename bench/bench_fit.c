@@ -98,7 +98,8 @@ static int variability_fit(int rounds)
            best_fit, r.diag.evaluations, r.diag.method, r.diag.iterations, r.diag.newton_decrement,
            r.converged ? "converged" : "NOT CONVERGED", r.log_likelihood);
     for (size_t j = 0; j < k; j++)
-        printf("  %-18s %-10s %9.4f  (SE %.4f)\n", r.coef[j].parameter, r.coef[j].level, r.coef[j].estimate, r.coef[j].se);
+        printf("  %-18s %-10s %9.4f  (SE %.4f)\n", r.coef[j].parameter, r.coef[j].level, r.coef[j].estimate,
+               r.coef[j].se);
     printf("  %.1f us per trial-density(+gradient) inside the fit (the fit's parameters vary, so this is no "
            "ratio to a fixed reference); target < 2 s per fit%s\n",
            best_fit / ((double)r.diag.evaluations * (double)bl_model_n_trials(m)) * 1e6, sink == 0 ? "" : " ");
@@ -116,8 +117,13 @@ int main(int argc, char **argv)
     if (variability_fit(only ? 1 : 3)) return 1;
     if (only) return 0;
     size_t perms = argc > 1 ? (size_t)strtoul(argv[1], NULL, 10) : 100;
-    sim_truth tr = {.n = 2000, .n_participants = 4, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
-                    .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28};
+    sim_truth tr = {.n = 2000,
+                    .n_participants = 4,
+                    .a = {1.5, 1.1},
+                    .a_slope = {0.25, 0.0},
+                    .v = {2.2, 1.3, 0.6},
+                    .v_slope = -0.3,
+                    .t0 = 0.28};
     bl_trials *t = sim_trials(&tr, 2024);
     bl_model_spec s;
     bl_slope_spec slopes[2];
@@ -154,8 +160,8 @@ int main(int argc, char **argv)
             sink += lf + g[0];
         }
     double ns_grad = (now() - t0) / (reps * (double)n) * 1e9;
-    printf("engine reference: %.1f ns per log-density, %.1f ns per log-density+gradient (checksum %.3f)\n",
-           ns_density, ns_grad, sink / 1e6);
+    printf("engine reference: %.1f ns per log-density, %.1f ns per log-density+gradient (checksum %.3f)\n", ns_density,
+           ns_grad, sink / 1e6);
 
     /* Control: the same plain density+gradient loop split over 2 threads with no design, no
      * reduction order and one parallel region: the parallelism the machine offers right now. */
@@ -203,7 +209,8 @@ int main(int argc, char **argv)
     for (int th = 1; th <= 2; th++) {
         bl_likelihood *w = NULL;
         if (bl_likelihood_create(m, th, &w, &err)) return 1;
-        bl_likelihood_set_parallel(w, th > 1 ? BL_PARALLEL_SPLIT : BL_PARALLEL_UNSPLIT); /* forced: the parallel path itself */
+        bl_likelihood_set_parallel(w, th > 1 ? BL_PARALLEL_SPLIT
+                                             : BL_PARALLEL_UNSPLIT); /* forced: the parallel path itself */
         double gg[9];
         int er = 300;
         t0 = now();

@@ -26,8 +26,7 @@ static void read_plain(const char *path)
     static char buf[1 << 16];
     int fd = open(path, O_RDONLY);
     if (fd < 0) return;
-    while (read(fd, buf, sizeof buf) > 0) {
-    }
+    while (read(fd, buf, sizeof buf) > 0) {}
     close(fd);
 }
 
@@ -38,8 +37,7 @@ static void decode(const char *path)
     SNDFILE *f = sf_open(path, SFM_READ, &info);
     if (!f) return;
     double *buf = malloc(4096 * (size_t)info.channels * sizeof *buf);
-    while (buf && sf_readf_double(f, buf, 4096) > 0) {
-    }
+    while (buf && sf_readf_double(f, buf, 4096) > 0) {}
     free(buf);
     sf_close(f);
 }

@@ -75,8 +75,10 @@ static int make_study(const char *dir, int np, int nt)
     fclose(tf);
     snprintf(path, sizeof path, "%s/study.json", dir);
     FILE *sf = fopen(path, "w");
-    fprintf(sf, "{\"trials\": {\"file\": \"trials.csv\", \"participant\": \"animal\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [1]},\n"
-                " \"recordings\": {\"file\": \"{animal}.flac\", \"onset\": \"onset\", \"gain\": 1000, \"unit\": \"uV\", \"channels\": [\"1-2\", \"3-4\"]},\n"
+    fprintf(sf, "{\"trials\": {\"file\": \"trials.csv\", \"participant\": \"animal\", \"rt\": \"rt\", \"response\": "
+                "\"correct\", \"upper\": [1]},\n"
+                " \"recordings\": {\"file\": \"{animal}.flac\", \"onset\": \"onset\", \"gain\": 1000, \"unit\": "
+                "\"uV\", \"channels\": [\"1-2\", \"3-4\"]},\n"
                 " \"power\": {\"window\": {\"from\": -1.0, \"to\": 0.0}, \"segment\": 0.5, \"overlap\": 0.5,\n"
                 "   \"bands\": {\"theta\": [4, 10], \"alpha\": [8, 13], \"beta\": [15, 30], \"gamma\": [30, 80]},\n"
                 "   \"scale\": \"log10\", \"standardize\": \"participant\"}}\n");
@@ -215,11 +217,14 @@ int main(int argc, char **argv)
     } else {
         printf("agreement: theta band power, worst relative difference to scipy %.2e\n", maxrel);
         printf("ratio (trials/s, bandlink 1 thread / scipy):  %.2fx vs the same pipeline in Python, %.2fx vs welch "
-               "alone per trial, %.2fx vs welch alone vectorised\n", sp_full / t1, sp_loop / t1, sp_vec / t1);
+               "alone per trial, %.2fx vs welch alone vectorised\n",
+               sp_full / t1, sp_loop / t1, sp_vec / t1);
         printf("ratio (trials/s, Welch + bands alone in memory, bandlink / scipy): %.2fx per trial, %.2fx vs scipy "
-               "vectorised\n", sp_loop / tw, sp_vec / tw);
+               "vectorised\n",
+               sp_loop / tw, sp_vec / tw);
         printf("ratio (trials/s, bandlink all cores / scipy): %.2fx vs the same pipeline in Python, %.2fx vs welch "
-               "alone per trial, %.2fx vs welch alone vectorised\n", sp_full / tn, sp_loop / tn, sp_vec / tn);
+               "alone per trial, %.2fx vs welch alone vectorised\n",
+               sp_full / tn, sp_loop / tn, sp_vec / tn);
     }
     if (getenv("BL_BENCH_KEEP")) { /* keep the generated study for profiling */
         printf("kept %s\n", dir);

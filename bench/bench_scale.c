@@ -89,7 +89,8 @@ static int write_fit_study(const char *dir, long n)
     fputs("{\"trials\": {\"file\": \"trials.csv\", \"participant\": \"participant\", \"rt\": \"rt\", \"response\": "
           "\"correct\", \"upper\": [\"1\"]},\n \"fit\": {\"participants\": \"pooled\", \"starts\": 1},\n"
           " \"models\": [{\"name\": \"baseline\"}, {\"name\": \"x-threshold\", \"extends\": \"baseline\", "
-          "\"threshold\": {\"slopes\": {\"x\": []}}}]}\n", f);
+          "\"threshold\": {\"slopes\": {\"x\": []}}}]}\n",
+          f);
     return fclose(f) == 0;
 }
 
@@ -132,7 +133,8 @@ static int write_power_study(const char *dir, long n)
     if (!(f = fopen(path, "w"))) return 0;
     fprintf(f, "participant,onset,rt,correct\n");
     for (long i = 0; i < n; i++) /* windows overlap: trials cycle over the recording */
-        fprintf(f, "p%ld,%.4f,%.3f,%ld\n", i % 10 + 1, 1.5 + (double)((i * 37) % 5600) / 100.0, 0.4 + 0.001 * (double)(i % 300), i % 2);
+        fprintf(f, "p%ld,%.4f,%.3f,%ld\n", i % 10 + 1, 1.5 + (double)((i * 37) % 5600) / 100.0,
+                0.4 + 0.001 * (double)(i % 300), i % 2);
     if (fclose(f)) return 0;
     snprintf(path, sizeof path, "%s/study.json", dir);
     if (!(f = fopen(path, "w"))) return 0;
@@ -140,7 +142,8 @@ static int write_power_study(const char *dir, long n)
           "\"correct\", \"upper\": [\"1\"]},\n \"recordings\": {\"file\": \"p1.wav\", \"onset\": \"onset\", \"unit\": "
           "\"uV\", \"gain\": 1000},\n \"power\": {\"window\": {\"align\": \"onset\", \"from\": -1.0, \"to\": 0.0}, "
           "\"segment\": 1.0, \"bands\": {\"theta\": [4, 10], \"gamma\": [60, 200]}},\n"
-          " \"models\": [{\"name\": \"baseline\"}]}\n", f);
+          " \"models\": [{\"name\": \"baseline\"}]}\n",
+          f);
     return fclose(f) == 0;
 }
 

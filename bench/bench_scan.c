@@ -32,12 +32,15 @@ static const char *scenario =
     " \"timing\": {\"first_onset\": 2.0, \"interval\": [2.5, 3.5], \"tail\": 3.0},"
     " \"recording\": {\"format\": \"flac\", \"rate\": 1000, \"contacts\": 2, \"channels\": [\"1-2\"], \"unit\": \"uV\","
     "   \"full_scale\": 5000, \"background\": {\"rms\": 30}},"
-    " \"bursts\": {\"theta\": {\"frequency\": [5, 8], \"from\": -0.8, \"to\": -0.2, \"amplitude\": 25, \"variability\": 0.5,"
+    " \"bursts\": {\"theta\": {\"frequency\": [5, 8], \"from\": -0.8, \"to\": -0.2, \"amplitude\": 25, "
+    "\"variability\": 0.5,"
     "   \"contacts\": [1.0, 0.2]}},"
     " \"truth\": {\"threshold\": {\"intercept\": 1.4, \"slopes\": {\"theta\": 0.15}},"
-    "   \"drift\": {\"per\": [\"context\"], \"intercept\": {\"rich\": 1.8, \"lean\": 1.0}}, \"nondecision\": {\"intercept\": 0.3}},"
+    "   \"drift\": {\"per\": [\"context\"], \"intercept\": {\"rich\": 1.8, \"lean\": 1.0}}, \"nondecision\": "
+    "{\"intercept\": 0.3}},"
     " \"study\": {\"keep\": {\"rt_min\": 0.15, \"rt_max\": 5.0},"
-    "   \"power\": {\"window\": {\"align\": \"onset\", \"from\": -0.8, \"to\": -0.2}, \"segment\": 0.3, \"overlap\": 0.5,"
+    "   \"power\": {\"window\": {\"align\": \"onset\", \"from\": -0.8, \"to\": -0.2}, \"segment\": 0.3, \"overlap\": "
+    "0.5,"
     "     \"bands\": {\"theta\": [4, 9]}, \"scale\": \"log10\", \"standardize\": \"participant\"},"
     "   \"models\": [{\"name\": \"baseline\", \"drift\": {\"per\": [\"context\"]}},"
     "     {\"name\": \"theta-threshold\", \"extends\": \"baseline\", \"threshold\": {\"slopes\": {\"theta\": []}}}],"
@@ -110,16 +113,21 @@ int main(int argc, char **argv)
     double ref = now() - t3;
     bl_fit_set_destroy(set);
     double scan = t2 - t1, total = t2 - t0;
-    printf("scan of %zu frequencies x %zu windows x %zu tests, %zu permutations, %zu trials, %zu participants, %d threads\n",
+    printf("scan of %zu frequencies x %zu windows x %zu tests, %zu permutations, %zu trials, %zu participants, %d "
+           "threads\n",
            r->spec->n_freqs, r->spec->n_windows, r->n_tests, r->stats->permutations, r->n_trials, r->n_participants,
            threads);
     printf("  setup + band power (study)   %7.2f s\n", t1 - t0);
-    printf("  null model fit               %7.2f s  %5.1f%% of the scan\n", r->seconds_null, 100 * r->seconds_null / scan);
-    printf("  multitaper power (cells)     %7.2f s  %5.1f%% of the scan\n", r->seconds_power, 100 * r->seconds_power / scan);
-    printf("  score statistics + perms     %7.2f s  %5.1f%% of the scan\n", r->seconds_stats, 100 * r->seconds_stats / scan);
+    printf("  null model fit               %7.2f s  %5.1f%% of the scan\n", r->seconds_null,
+           100 * r->seconds_null / scan);
+    printf("  multitaper power (cells)     %7.2f s  %5.1f%% of the scan\n", r->seconds_power,
+           100 * r->seconds_power / scan);
+    printf("  score statistics + perms     %7.2f s  %5.1f%% of the scan\n", r->seconds_stats,
+           100 * r->seconds_stats / scan);
     printf("  scan total                   %7.2f s  (whole job %.2f s; target < 60 s)\n", scan, total);
     printf("  reference: one null fit      %7.2f s  -> the scan costs %.1f null fits for %zu cell tests x %zu "
-           "permutations\n", ref, scan / ref, r->spec->n_freqs * r->spec->n_windows * r->n_tests, r->stats->permutations);
+           "permutations\n",
+           ref, scan / ref, r->spec->n_freqs * r->spec->n_windows * r->n_tests, r->stats->permutations);
     bl_analysis_close(a);
     bl_warnings_clear(&warn);
     bl_remove_tree(dir, &err);

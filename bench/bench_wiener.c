@@ -130,9 +130,7 @@ int main(int argc, char **argv)
         }
     double plain = ns[1], plain_g = ns[2], worst = 0;
     if (json) printf("{\n  \"trials\": %zu,\n  \"exp_ns\": %.2f,\n  \"combinations\": [", n, ns[0]);
-    else
-        printf("%-48s %10s %9s %10s %9s %9s\n", "density case", "ns", "/ plain", "grad ns", "/ p.grad",
-               "/ plain");
+    else printf("%-48s %10s %9s %10s %9s %9s\n", "density case", "ns", "/ plain", "grad ns", "/ p.grad", "/ plain");
     for (int c = 0; c < NCOMBO; c++) {
         char name[96];
         combo_name(c, name, sizeof name);
@@ -143,8 +141,7 @@ int main(int argc, char **argv)
             printf("%s\n    {\"case\": \"%s\", \"ns\": %.2f, \"per_plain\": %.3f, \"gradient_ns\": %.2f, "
                    "\"gradient_per_plain_gradient\": %.3f, \"gradient_per_plain\": %.3f}",
                    c ? "," : "", name, v, v / plain, g, g / plain_g, g / plain);
-        else
-            printf("%-48s %10.1f %9.2f %10.1f %9.2f %9.2f\n", name, v, v / plain, g, g / plain_g, g / plain);
+        else printf("%-48s %10.1f %9.2f %10.1f %9.2f %9.2f\n", name, v, v / plain, g, g / plain_g, g / plain);
     }
     if (json)
         printf("\n  ],\n  \"log_density_per_exp\": %.2f,\n  \"gradient_per_log_density\": %.2f,\n"

@@ -57,8 +57,7 @@ int main(int argc, char **argv)
             if (stimulus)
                 fprintf(f, "rat%ld,%ld,%s,%s,%.6f,%.6f,%.4f,%s,%s\n", a + 1, i + 1, ctx[c], dif[d], theta, beta, rt,
                         high ? "high" : "low", up ? "high" : "low");
-            else
-                fprintf(f, "rat%ld,%ld,%s,%s,%.6f,%.6f,%.4f,%d\n", a + 1, i + 1, ctx[c], dif[d], theta, beta, rt, up);
+            else fprintf(f, "rat%ld,%ld,%s,%s,%.6f,%.6f,%.4f,%d\n", a + 1, i + 1, ctx[c], dif[d], theta, beta, rt, up);
         }
     gsl_rng_free(rng);
     return fclose(f) == 0 ? 0 : 1;

@@ -24,8 +24,8 @@ typedef struct {
     double a[2], a_slope[2];
     double v[3], v_slope;
     double t0;
-    int stimulus;          /* 1: stimulus coding with random stimuli */
-    double v_step;         /* participant p (0-based) adds p * v_step to drift */
+    int stimulus;                                  /* 1: stimulus coding with random stimuli */
+    double v_step;                                 /* participant p (0-based) adds p * v_step to drift */
     const double *a_offset, *v_offset, *t0_offset; /* participant p adds [p] to threshold, drift, t0 */
 } sim_truth;
 

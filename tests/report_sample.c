@@ -37,8 +37,8 @@ int main(int argc, char **argv)
     free(p);
     const char *stages[3] = {"power", "fits", "goodness"};
     double secs[3] = {0.5, 2.25, 0.125};
-    bl_report_job job = {"0.1.0", "fixture/study.json", "2026-12-02T00:00:00Z", "2026-12-02T00:00:03Z", 1, 7, 2, 0,
-                         3, stages, secs};
+    bl_report_job job = {
+        "0.1.0", "fixture/study.json", "2026-12-02T00:00:00Z", "2026-12-02T00:00:03Z", 1, 7, 2, 0, 3, stages, secs};
     if (bl_path_join(dir, "report.html", &p, NULL) ||
         bl_report_write(p, &job, &fx->study, &fx->trials, &fx->power, &fx->set, g, fs, &warn, &err))
         goto done;

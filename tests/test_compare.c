@@ -83,8 +83,13 @@ static int fixture(void)
     tried = 1;
     bl_error err = {0};
     bl_warnings warn = {0};
-    sim_truth tr = {.n = 2000, .n_participants = 2, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
-                    .v = {2.0, 1.2, 0.6}, .v_slope = 0, .t0 = 0.3};
+    sim_truth tr = {.n = 2000,
+                    .n_participants = 2,
+                    .a = {1.5, 1.1},
+                    .a_slope = {0.25, 0.0},
+                    .v = {2.0, 1.2, 0.6},
+                    .v_slope = 0,
+                    .t0 = 0.3};
     t = sim_trials(&tr, 1234);
     atexit(fixture_free);
 
@@ -175,7 +180,8 @@ HARNESS_CASE(permutation_test)
         const bl_permutation_test *pt = &r1->permutation[k];
         const bl_coefficient *cf = NULL;
         for (size_t j = 0; j < r1->fit.n_coef; j++)
-            if (!strcmp(r1->fit.coef[j].term, "theta") && !strcmp(r1->fit.coef[j].level, pt->level)) cf = &r1->fit.coef[j];
+            if (!strcmp(r1->fit.coef[j].term, "theta") && !strcmp(r1->fit.coef[j].level, pt->level))
+                cf = &r1->fit.coef[j];
         if (!check_true(cf != NULL, "level '%s' is a coefficient of the fit", pt->level)) continue;
         double z2 = (cf->estimate / cf->se) * (cf->estimate / cf->se);
         check_abs(pt->statistic, z2, 0.15 * z2 + 0.5, "level '%s': LR statistic %.3f vs Wald z^2 %.3f", pt->level,
@@ -186,7 +192,8 @@ HARNESS_CASE(permutation_test)
         sum += pt->statistic;
     }
     check_abs(r1->permutation[0].statistic, sum, 0.02 * sum + 0.2,
-              "whole-slope statistic %.3f ~ the sum of the per-level statistics %.3f", r1->permutation[0].statistic, sum);
+              "whole-slope statistic %.3f ~ the sum of the per-level statistics %.3f", r1->permutation[0].statistic,
+              sum);
 }
 
 HARNESS_CASE(null_slope_permutation)
@@ -286,8 +293,9 @@ HARNESS_CASE(result_files)
     size_t lines = 0;
     for (char *p = tc; p && *p; p++) lines += *p == '\n';
     check_true(lines == 1 + 3 * 2000, "trials.csv: header + one row per trial and model (%zu lines)", lines);
-    check_true(tc && !strncmp(tc, "model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,"
-                                  "log_likelihood\nbaseline,r1,1,",
+    check_true(tc && !strncmp(tc,
+                              "model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,"
+                              "log_likelihood\nbaseline,r1,1,",
                               strlen("model,participant,trial,threshold,drift,nondecision,start,p_upper,mean_rt,"
                                      "log_likelihood\nbaseline,r1,1,")),
                "trials.csv header and first row");
@@ -306,12 +314,9 @@ int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
     static const harness_case cases[] = {
-        HARNESS_ENTRY(akaike_weights_hand_example),
-        HARNESS_ENTRY(information_criteria),
-        HARNESS_ENTRY(likelihood_ratio_tests),
-        HARNESS_ENTRY(permutation_test),
-        HARNESS_ENTRY(null_slope_permutation),
-        HARNESS_ENTRY(result_files),
+        HARNESS_ENTRY(akaike_weights_hand_example), HARNESS_ENTRY(information_criteria),
+        HARNESS_ENTRY(likelihood_ratio_tests),      HARNESS_ENTRY(permutation_test),
+        HARNESS_ENTRY(null_slope_permutation),      HARNESS_ENTRY(result_files),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

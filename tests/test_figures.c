@@ -82,7 +82,8 @@ static int figures(void)
     bl_error err = {0};
     fx = fixture_create(20261202, 0);
     atexit(figures_free);
-    check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 2, &g, &err) == BL_OK, "goodness (%s)", err.message);
+    check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 2, &g, &err) == BL_OK, "goodness (%s)",
+               err.message);
     check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs, &err) == BL_OK, "figures (%s)",
                err.message);
     check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs2, &err) == BL_OK, "figures again");
@@ -97,7 +98,8 @@ HARNESS_CASE(five_figures)
     for (size_t i = 0; i < fs->n; i++) {
         balanced(&fs->items[i]);
         check_true(fs->items[i].caption && strlen(fs->items[i].caption) > 40, "%s has a caption", fs->items[i].file);
-        check_true(fs->items[i].size == fs2->items[i].size && memcmp(fs->items[i].svg, fs2->items[i].svg, fs->items[i].size) == 0,
+        check_true(fs->items[i].size == fs2->items[i].size &&
+                       memcmp(fs->items[i].svg, fs2->items[i].svg, fs->items[i].size) == 0,
                    "%s: same input, same bytes", fs->items[i].file);
     }
 }
@@ -108,9 +110,12 @@ HARNESS_CASE(spectrum)
     /* 1. Spectrum: one mean line and one SE band per condition cell, bands shaded and named, log axis. */
     const bl_figure *f = find(fs, "power_spectrum.svg");
     if (f) {
-        check_true(strstr(f->svg, ">frequency (Hz)<") && strstr(f->svg, ">PSD (uV\xC2\xB2/Hz)<"), "spectrum axes with units");
-        check_true(count(f->svg, "stroke-linejoin=\"round\"") == g->n_cells, "one mean line per cell (%zu)", g->n_cells);
-        check_true(count_in(f->svg, "<g clip-path", "</g>", "fill-opacity=\"0.25\"") == g->n_cells, "one SE band per cell");
+        check_true(strstr(f->svg, ">frequency (Hz)<") && strstr(f->svg, ">PSD (uV\xC2\xB2/Hz)<"),
+                   "spectrum axes with units");
+        check_true(count(f->svg, "stroke-linejoin=\"round\"") == g->n_cells, "one mean line per cell (%zu)",
+                   g->n_cells);
+        check_true(count_in(f->svg, "<g clip-path", "</g>", "fill-opacity=\"0.25\"") == g->n_cells,
+                   "one SE band per cell");
         check_true(strstr(f->svg, ">theta<") && strstr(f->svg, ">beta<"), "band spans labelled");
         check_true(strstr(f->svg, "context=rich (") && strstr(f->svg, "context=lean ("), "legend names the cells");
         check_true(strstr(f->svg, ">10<") && strstr(f->svg, ">1<"), "log axis labelled by decades");
@@ -142,7 +147,9 @@ HARNESS_CASE(quantile_probability)
     /* 3. QP: one panel per model, observed points = 5 quantiles x cells x 2 responses. */
     f = find(fs, "quantile_probability.svg");
     if (f) {
-        check_true(strstr(f->svg, ">response probability (proportion of trials)<") && strstr(f->svg, ">RT quantile (s)<"), "QP axes with units");
+        check_true(strstr(f->svg, ">response probability (proportion of trials)<") &&
+                       strstr(f->svg, ">RT quantile (s)<"),
+                   "QP axes with units");
         size_t pts = count_in(f->svg, "id=\"qp-p0\"", "id=\"qp-p1\"", "<circle");
         check_true(pts == 5 * 2 * g->n_cells, "observed points in panel 1: %zu", pts);
         size_t lines = count_in(f->svg, "id=\"qp-p1\"", "qp-legend", "stroke-linejoin");
@@ -177,8 +184,15 @@ HARNESS_CASE(model_comparison)
     if (f) {
         size_t bars = count_in(f->svg, "<g clip-path", "</g>\n<rect fill=\"none\"", "<rect");
         check_true(bars == 4, "two bars per model (%zu)", bars);
-        check_true(strstr(f->svg, "\xCE\x94" "AIC, \xCE\x94" "BIC (2 \xC3\x97 log-likelihood units)") != NULL, "axis with unit");
-        check_true(strstr(f->svg, ">\xCE\x94" "AIC<") && strstr(f->svg, ">\xCE\x94" "BIC<"), "legend");
+        check_true(strstr(f->svg, "\xCE\x94"
+                                  "AIC, \xCE\x94"
+                                  "BIC (2 \xC3\x97 log-likelihood units)") != NULL,
+                   "axis with unit");
+        check_true(strstr(f->svg, ">\xCE\x94"
+                                  "AIC<") &&
+                       strstr(f->svg, ">\xCE\x94"
+                                      "BIC<"),
+                   "legend");
         check_true(count(f->svg, ">best by AIC and BIC<") == 1, "best model marked once");
     }
 }
@@ -196,7 +210,8 @@ HARNESS_CASE(written_files)
     for (int i = 0; i < 5; i++) {
         char *p = NULL;
         char *head = bl_path_join(sub, names[i], &p, &err) == BL_OK ? read_head(p) : NULL;
-        check_true(head && strncmp(head, "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<svg", 43) == 0, "%s written", names[i]);
+        check_true(head && strncmp(head, "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<svg", 43) == 0, "%s written",
+                   names[i]);
         free(head);
         unlink(p);
         free(p);
@@ -213,10 +228,12 @@ HARNESS_CASE(without_recordings)
     const bl_figure *f;
     /* Without recordings the spectrum figure says so; separate mode shows participants. */
     bl_figure_set *fs3 = NULL;
-    check_true(bl_figures_make(&fx->study, &fx->trials, NULL, &fx->set, g, &fs3, &err) == BL_OK, "figures without power");
+    check_true(bl_figures_make(&fx->study, &fx->trials, NULL, &fx->set, g, &fs3, &err) == BL_OK,
+               "figures without power");
     if (fs3) {
         f = find(fs3, "power_spectrum.svg");
-        check_true(f && strstr(f->svg, "no recordings") && !strstr(f->svg, "clipPath"), "spectrum note without recordings");
+        check_true(f && strstr(f->svg, "no recordings") && !strstr(f->svg, "clipPath"),
+                   "spectrum note without recordings");
     }
     bl_figure_set_destroy(fs3);
 }
@@ -270,7 +287,8 @@ HARNESS_CASE(separate_mode)
     bl_goodness *g = NULL;
     check_true(bl_goodness_compute(&fx->study, &fx->trials, &fx->set, 1, &g, &err) == BL_OK, "goodness, separate");
     fs = NULL;
-    check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs, &err) == BL_OK, "figures, separate");
+    check_true(bl_figures_make(&fx->study, &fx->trials, &fx->power, &fx->set, g, &fs, &err) == BL_OK,
+               "figures, separate");
     if (fs) {
         f = find(fs, "coefficients.svg");
         check_true(f && strstr(f->svg, ">participants<") && strstr(f->svg, "group (random-effects estimate)"),

@@ -92,8 +92,13 @@ HARNESS_CASE(ez_agreement)
     bl_error err = {0};
     bl_warnings warn = {0};
     {
-        sim_truth tr = {.n = 3000, .n_participants = 1, .a = {1.3, 1.3}, .a_slope = {0, 0},
-                        .v = {1.4, 1.4, 1.4}, .v_slope = 0, .t0 = 0.32};
+        sim_truth tr = {.n = 3000,
+                        .n_participants = 1,
+                        .a = {1.3, 1.3},
+                        .a_slope = {0, 0},
+                        .v = {1.4, 1.4, 1.4},
+                        .v_slope = 0,
+                        .t0 = 0.32};
         bl_trials *t = sim_trials(&tr, 21);
         bl_model_spec s;
         spec_default(&s, "single");
@@ -121,8 +126,8 @@ HARNESS_CASE(ez_agreement)
         /* Both are consistent estimators of the same values; EZ is less efficient than the MLE, so
          * their difference is of the order of EZ's own sampling error (about 1-2 MLE SEs here).
          * 4 MLE SEs leaves room for that. */
-        check_abs(r.coef[0].estimate, a_ez, 4 * r.coef[0].se, "threshold: MLE vs EZ (%.4f vs %.4f)",
-                  r.coef[0].estimate, a_ez);
+        check_abs(r.coef[0].estimate, a_ez, 4 * r.coef[0].se, "threshold: MLE vs EZ (%.4f vs %.4f)", r.coef[0].estimate,
+                  a_ez);
         check_abs(r.coef[1].estimate, v_ez, 4 * r.coef[1].se, "drift: MLE vs EZ (%.4f vs %.4f)", r.coef[1].estimate,
                   v_ez);
         check_abs(r.coef[2].estimate, t_ez, 4 * r.coef[2].se + 0.005, "nondecision: MLE vs EZ (%.4f vs %.4f)",
@@ -159,8 +164,14 @@ static void regression_free(void)
 static bl_trials *regression_trials(void)
 {
     if (!reg.t) {
-        sim_truth tr = {.n = 4000, .n_participants = 4, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
-                        .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28, .stimulus = 1};
+        sim_truth tr = {.n = 4000,
+                        .n_participants = 4,
+                        .a = {1.5, 1.1},
+                        .a_slope = {0.25, 0.0},
+                        .v = {2.2, 1.3, 0.6},
+                        .v_slope = -0.3,
+                        .t0 = 0.28,
+                        .stimulus = 1};
         reg.t = sim_trials(&tr, 77);
         atexit(regression_free);
     }
@@ -272,7 +283,8 @@ HARNESS_CASE(warm_starts)
     bl_fit_result r2;
     opt.starts = 1;
     check_true(bl_fit_model(m, &opt, far, &r2, &warn, &err) == BL_OK, "fit from an infeasible start runs");
-    check_abs(r2.log_likelihood, r.log_likelihood, 1e-6, "same optimum from the EZ start when the given one is infeasible");
+    check_abs(r2.log_likelihood, r.log_likelihood, 1e-6,
+              "same optimum from the EZ start when the given one is infeasible");
     /* From a feasible but poor start. */
     double poor[9] = {1.0, 1.0, 0.0, 0.0, 0.5, 0.5, 0.5, 0.0, 0.1};
     bl_fit_result r3;
@@ -396,13 +408,21 @@ HARNESS_CASE(separate_heterogeneous)
     bl_fit_options opt;
     bl_fit_set *set = NULL;
     bl_fit_options_default(&opt);
-    sim_truth tr2 = {.n = 2400, .n_participants = 4, .a = {1.2, 1.2}, .a_slope = {0, 0}, .v = {1.0, 1.0, 1.0},
-                     .v_slope = -0.3, .t0 = 0.3, .v_step = 0.6};
+    sim_truth tr2 = {.n = 2400,
+                     .n_participants = 4,
+                     .a = {1.2, 1.2},
+                     .a_slope = {0, 0},
+                     .v = {1.0, 1.0, 1.0},
+                     .v_slope = -0.3,
+                     .t0 = 0.3,
+                     .v_step = 0.6};
     bl_trials *t = sim_trials(&tr2, 99);
     check_true(bl_fit_study(&study, t, &opt, &set, &warn, &err) == BL_OK, "separate fit, heterogeneous drift");
     const bl_model_result *mr = &set->models[0];
-    check_true(mr->group[1].tau2 > 0.05, "drift intercept: between-participant variance found (tau^2 %.3g; truth "
-               "var of 1.0, 1.6, 2.2, 2.8 = 0.6)", mr->group[1].tau2);
+    check_true(mr->group[1].tau2 > 0.05,
+               "drift intercept: between-participant variance found (tau^2 %.3g; truth "
+               "var of 1.0, 1.6, 2.2, 2.8 = 0.6)",
+               mr->group[1].tau2);
     check_abs(mr->group[1].mean, 1.9, 0.2, "drift intercept: mean across participants near 1.9");
     check_true(mr->group[2].tau2 < mr->group[1].tau2, "drift slope: less heterogeneity than the intercept");
     {
@@ -434,15 +454,9 @@ int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
     static const harness_case cases[] = {
-        HARNESS_ENTRY(information_inverse),
-        HARNESS_ENTRY(ez_round_trip),
-        HARNESS_ENTRY(ez_agreement),
-        HARNESS_ENTRY(regression_recovery),
-        HARNESS_ENTRY(nelder_mead_optimum),
-        HARNESS_ENTRY(warm_starts),
-        HARNESS_ENTRY(thread_invariance),
-        HARNESS_ENTRY(separate_mode),
-        HARNESS_ENTRY(separate_heterogeneous),
+        HARNESS_ENTRY(information_inverse), HARNESS_ENTRY(ez_round_trip),       HARNESS_ENTRY(ez_agreement),
+        HARNESS_ENTRY(regression_recovery), HARNESS_ENTRY(nelder_mead_optimum), HARNESS_ENTRY(warm_starts),
+        HARNESS_ENTRY(thread_invariance),   HARNESS_ENTRY(separate_mode),       HARNESS_ENTRY(separate_heterogeneous),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

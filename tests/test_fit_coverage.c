@@ -34,8 +34,13 @@ static void simulate_and_fit(void)
     bl_error err = {0};
     bl_warnings warn = {0};
     for (unsigned r = 0; r < reps; r++) {
-        sim_truth tr = {.n = 1000, .n_participants = 2, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
-                        .v = {2.2, 1.3, 0.6}, .v_slope = -0.3, .t0 = 0.28};
+        sim_truth tr = {.n = 1000,
+                        .n_participants = 2,
+                        .a = {1.5, 1.1},
+                        .a_slope = {0.25, 0.0},
+                        .v = {2.2, 1.3, 0.6},
+                        .v_slope = -0.3,
+                        .t0 = 0.28};
         bl_trials *t = sim_trials(&tr, 5000 + r);
         bl_model_spec s;
         bl_slope_spec slopes[2];
@@ -54,8 +59,7 @@ static void simulate_and_fit(void)
         double ll0 = NAN;
         if (bl_fit_model(m, &opt, NULL, &res, &warn, &err) == BL_OK) {
             conv += res.converged;
-            for (int j = 0; j < 9; j++)
-                cover[j] += res.coef[j].ci_low <= truth[j] && truth[j] <= res.coef[j].ci_high;
+            for (int j = 0; j < 9; j++) cover[j] += res.coef[j].ci_low <= truth[j] && truth[j] <= res.coef[j].ci_high;
             reject_null += res.coef[3].p < 0.05;
             ll0 = res.log_likelihood;
             bl_fit_result_clear(&res);
@@ -89,18 +93,19 @@ HARNESS_CASE(wald_interval_coverage)
     simulate_and_fit();
     unsigned lo, hi, total = 0;
     binom_range(reps, 0.95, 0.001, &lo, &hi);
-    const char *names[9] = {"threshold rich", "threshold lean", "theta slope rich", "theta slope lean",
-                            "drift easy",     "drift medium",   "drift hard",       "beta slope",
-                            "nondecision"};
+    const char *names[9] = {"threshold rich", "threshold lean", "theta slope rich", "theta slope lean", "drift easy",
+                            "drift medium",   "drift hard",     "beta slope",       "nondecision"};
     for (int j = 0; j < 9; j++) {
-        check_true(cover[j] >= lo && cover[j] <= hi, "%s: 95%% interval covered the truth %u of %u times (99.9%% "
-                   "binomial range %u-%u)", names[j], cover[j], reps, lo, hi);
+        check_true(cover[j] >= lo && cover[j] <= hi,
+                   "%s: 95%% interval covered the truth %u of %u times (99.9%% "
+                   "binomial range %u-%u)",
+                   names[j], cover[j], reps, lo, hi);
         total += cover[j];
     }
     unsigned tlo, thi;
     binom_range(9 * reps, 0.95, 0.001, &tlo, &thi);
-    check_true(total >= tlo && total <= thi, "all coefficients: covered %u of %u (range %u-%u)", total, 9 * reps,
-               tlo, thi);
+    check_true(total >= tlo && total <= thi, "all coefficients: covered %u of %u (range %u-%u)", total, 9 * reps, tlo,
+               thi);
 }
 
 HARNESS_CASE(null_slope_rejection_rates)
@@ -113,8 +118,8 @@ HARNESS_CASE(null_slope_rejection_rates)
                nhi);
     check_true(n_lrt == reps, "LRT fits done (%u)", n_lrt);
     check_true(reject_lrt >= nlo && reject_lrt <= nhi,
-               "true-zero slope: LRT (chi^2, 1 df) rejects at 5%% in %u of %u datasets (range %u-%u)", reject_lrt,
-               reps, nlo, nhi);
+               "true-zero slope: LRT (chi^2, 1 df) rejects at 5%% in %u of %u datasets (range %u-%u)", reject_lrt, reps,
+               nlo, nhi);
 }
 
 /* Usage: test_fit_coverage [REPS] [--list] [--case NAME]...   (REPS data sets, default 300) */

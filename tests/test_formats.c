@@ -35,8 +35,8 @@ static void write_edf(const char *path)
     field(f, "0", 8), field(f, "x", 80), field(f, "x", 80), field(f, "01.01.01", 8), field(f, "00.00.00", 8);
     field(f, "768", 8), field(f, "", 44), field(f, "3", 8), field(f, "1", 8), field(f, "2", 4);
     field(f, "Fz", 16), field(f, "Cz", 16), field(f, "", 80), field(f, "", 80), field(f, "uV", 8), field(f, "mV", 8);
-    field(f, "-100", 8), field(f, "-2", 8), field(f, "100", 8), field(f, "2", 8);          /* pmin, pmax */
-    field(f, "-1000", 8), field(f, "-1000", 8), field(f, "1000", 8), field(f, "1000", 8);  /* dmin, dmax */
+    field(f, "-100", 8), field(f, "-2", 8), field(f, "100", 8), field(f, "2", 8);         /* pmin, pmax */
+    field(f, "-1000", 8), field(f, "-1000", 8), field(f, "1000", 8), field(f, "1000", 8); /* dmin, dmax */
     field(f, "", 80), field(f, "", 80), field(f, "4", 8), field(f, "4", 8), field(f, "", 32), field(f, "", 32);
     for (int r = 0; r < 3; r++)
         for (int c = 0; c < 2; c++)
@@ -80,7 +80,8 @@ int main(void)
         const char *spec[] = {"Fz-Cz"};
         bl_montage *m = NULL, *r = NULL;
         if (bl_montage_parse(spec, 1, "recordings.channels", &m, &err) == BL_OK &&
-            check_true(bl_montage_resolve(m, t, "recordings.channels", "uV", 2.0, &r, &err) == BL_OK, "Fz-Cz resolves")) {
+            check_true(bl_montage_resolve(m, t, "recordings.channels", "uV", 2.0, &r, &err) == BL_OK,
+                       "Fz-Cz resolves")) {
             double out;
             bl_montage_apply(r, buf, 1, 2, 1.0, &out);
             check_rel(out, 2.0 * (0.3 - 0.026 * 1000), 1e-14, "Fz-Cz in uV x gain 2 = 2 (0.3 - 26)");
@@ -110,7 +111,8 @@ int main(void)
         bl_montage *m = NULL, *r = NULL;
         double row[3] = {1, 2, 4}, out;
         if (bl_montage_parse(spec, 2, "recordings.channels", &m, &err) == BL_OK &&
-            check_true(bl_montage_resolve(m, t, "recordings.channels", "uV", 1.0, &r, &err) == BL_OK, "names resolve")) {
+            check_true(bl_montage_resolve(m, t, "recordings.channels", "uV", 1.0, &r, &err) == BL_OK,
+                       "names resolve")) {
             bl_montage_apply(r, row, 1, 3, 1.0, &out);
             check_rel(out, (1 + (4 - 2)) / 2.0, 1e-15, "\"EEG Fz-Ref\" whole, \"Pz-Cz\" a pair, averaged");
         }
@@ -144,8 +146,8 @@ int main(void)
     write_text(path, "kind\nleft/easy\n");
     snprintf(p2, sizeof p2, "%s/s{animal}/d{day}_ev.csv", dir);
     if (bl_trial_sources_glob(p2, &src, &err) == BL_OK)
-        check_true(bl_trial_sources_read(src, p2, NULL, &tab, &err) == BL_ERR_INPUT && strstr(err.message, "d8_ev.csv") &&
-                       strstr(err.message, "\"onset\""),
+        check_true(bl_trial_sources_read(src, p2, NULL, &tab, &err) == BL_ERR_INPUT &&
+                       strstr(err.message, "d8_ev.csv") && strstr(err.message, "\"onset\""),
                    "a file without a column the others have is named: %s", err.message);
     bl_trial_sources_destroy(src);
     snprintf(p2, sizeof p2, "%s/s{animal}/nothing_{x}.csv", dir);

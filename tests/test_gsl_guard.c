@@ -31,8 +31,8 @@ static int child(int install_host_handler)
     if (install_host_handler) gsl_set_error_handler(host_handler);
     bl_welch_plan *plan = NULL;
     bl_error err = {0};
-    bl_status st = bl_welch_plan_create(1000.0, 2, 0, huge_nfft, BL_DETREND_MEAN, BL_WELCH_MEAN,
-                                        BL_WELCH_DENSITY, &plan, &err);
+    bl_status st = bl_welch_plan_create(1000.0, 2, 0, huge_nfft, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_DENSITY,
+                                        &plan, &err);
     bl_welch_plan_destroy(plan);
     if (st != BL_ERR_NOMEM) return 10;
     if (install_host_handler) {
@@ -64,10 +64,12 @@ int main(void)
     int rc = run_child(0, &sig);
     check_true(rc == 0 && sig == 0,
                "GSL fails inside bl_welch_plan_create in a program that left GSL's handler alone: "
-               "BL_ERR_NOMEM, no abort (child exit %d, signal %d)", rc, sig);
+               "BL_ERR_NOMEM, no abort (child exit %d, signal %d)",
+               rc, sig);
     rc = run_child(1, &sig);
     check_true(rc == 0 && sig == 0,
                "a handler the host installed is kept and sees the GSL failure; the call still returns "
-               "BL_ERR_NOMEM (child exit %d, signal %d)", rc, sig);
+               "BL_ERR_NOMEM (child exit %d, signal %d)",
+               rc, sig);
     return harness_summary();
 }

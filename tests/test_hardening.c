@@ -38,7 +38,8 @@ static void check_groups(void)
     }
     bl_error err = {0};
     size_t ng = 0, nw = naive_ids(keys, N, want);
-    check_true(bl_group_strings(keys, N, got, &ng, "test", &err) == BL_OK && ng == nw && memcmp(got, want, sizeof got) == 0,
+    check_true(bl_group_strings(keys, N, got, &ng, "test", &err) == BL_OK && ng == nw &&
+                   memcmp(got, want, sizeof got) == 0,
                "strings: ids by first appearance equal the direct definition (%zu groups)", nw);
     /* pairs: compared with strings made from the pair */
     for (size_t i = 0; i < N; i++) {
@@ -61,7 +62,8 @@ static void check_csv_guard(void)
     const char *formula[] = {"=1+2", "+cmd", "-2+3", "@SUM(A1)", "\tx", "\rx", "=HYPERLINK(\"x\")", "-", "+", "-inf"};
     const char *plain[] = {"-1.5", "+3", "-0", "1e-5", "abc", "", "a=b", "-2e10"};
     for (size_t i = 0; i < sizeof formula / sizeof *formula; i++)
-        check_true(bl_csv_needs_guard(formula[i]), "formula start guarded: \"%s\"", formula[i][0] < 32 ? "(ctl)x" : formula[i]);
+        check_true(bl_csv_needs_guard(formula[i]), "formula start guarded: \"%s\"",
+                   formula[i][0] < 32 ? "(ctl)x" : formula[i]);
     for (size_t i = 0; i < sizeof plain / sizeof *plain; i++)
         check_true(!bl_csv_needs_guard(plain[i]), "number or plain text left alone: \"%s\"", plain[i]);
     char out[128] = "";
@@ -114,8 +116,7 @@ static void check_utf8(void)
         bl_table *t = NULL;
         bl_error err = {0};
         bl_status st = bl_table_parse(cases[i].text, strlen(cases[i].text), "t.csv", &t, &err);
-        if (cases[i].ok)
-            check_true(st == BL_OK, "UTF-8 accepted: %s", cases[i].what);
+        if (cases[i].ok) check_true(st == BL_OK, "UTF-8 accepted: %s", cases[i].what);
         else
             check_true(st == BL_ERR_INPUT && strncmp(err.message, "t.csv:", 6) == 0 && strstr(err.message, "UTF-8"),
                        "not UTF-8, refused with file:line:column: %s (%s)", cases[i].what, err.message);
@@ -124,8 +125,8 @@ static void check_utf8(void)
     bl_table *t = NULL;
     bl_error err = {0};
     bl_table_parse("a,b\nxy,\xff\n", 9, "t.csv", &t, &err);
-    check_true(strncmp(err.message, "t.csv:2:4:", 10) == 0 && strstr(err.message, "\\xFF"), "line 2, column 4, byte: %s",
-               err.message);
+    check_true(strncmp(err.message, "t.csv:2:4:", 10) == 0 && strstr(err.message, "\\xFF"),
+               "line 2, column 4, byte: %s", err.message);
     bl_table_destroy(t);
 }
 

@@ -72,8 +72,14 @@ static int fixture(void)
     static int tried;
     if (tried) return m != NULL;
     tried = 1;
-    sim_truth tr = {.n = 600, .n_participants = 2, .a = {1.4, 1.0}, .a_slope = {0.2, 0.0},
-                    .v = {2.0, 1.2, 0.5}, .v_slope = -0.2, .t0 = 0.3, .stimulus = 1};
+    sim_truth tr = {.n = 600,
+                    .n_participants = 2,
+                    .a = {1.4, 1.0},
+                    .a_slope = {0.2, 0.0},
+                    .v = {2.0, 1.2, 0.5},
+                    .v_slope = -0.2,
+                    .t0 = 0.3,
+                    .stimulus = 1};
     t = sim_trials(&tr, 11);
     atexit(fixture_free);
     fx_spec = regression_spec(&fx_as, &fx_vs, 0);
@@ -129,9 +135,8 @@ HARNESS_CASE(predicted_parameters)
     size_t row5 = bl_model_row(m, 5);
     check_true(valid, "trial 5 predicted parameters are valid");
     check_rel(pp.value[BL_NONDECISION], 0.27, 1e-15, "predicted nondecision");
-    check_rel(fabs(pp.value[BL_DRIFT]),
-              fabs(coef[4 + (int)((row5 / 2) % 3)] + coef[7] * tab->cols[c_beta].num[row5]), 1e-14,
-              "predicted drift magnitude (trial 5)");
+    check_rel(fabs(pp.value[BL_DRIFT]), fabs(coef[4 + (int)((row5 / 2) % 3)] + coef[7] * tab->cols[c_beta].num[row5]),
+              1e-14, "predicted drift magnitude (trial 5)");
 }
 
 /* Thread-count invariance: the fixed block reduction gives the same bits. */
@@ -246,12 +251,8 @@ int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
     static const harness_case cases[] = {
-        HARNESS_ENTRY(value_gradient_and_count),
-        HARNESS_ENTRY(predicted_parameters),
-        HARNESS_ENTRY(thread_invariance),
-        HARNESS_ENTRY(infeasible_points),
-        HARNESS_ENTRY(per_trial_sum),
-        HARNESS_ENTRY(log_link),
+        HARNESS_ENTRY(value_gradient_and_count), HARNESS_ENTRY(predicted_parameters), HARNESS_ENTRY(thread_invariance),
+        HARNESS_ENTRY(infeasible_points),        HARNESS_ENTRY(per_trial_sum),        HARNESS_ENTRY(log_link),
         HARNESS_ENTRY(free_start_and_drift_sd),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));

@@ -27,8 +27,13 @@ static void trials_free(void) { bl_trials_destroy(shared_trials); }
 static bl_trials *trials(void)
 {
     if (shared_trials) return shared_trials;
-    sim_truth tr = {.n = 240, .n_participants = 3, .a = {1.4, 1.0}, .a_slope = {0.2, 0.0},
-                    .v = {2.0, 1.2, 0.5}, .v_slope = -0.2, .t0 = 0.3};
+    sim_truth tr = {.n = 240,
+                    .n_participants = 3,
+                    .a = {1.4, 1.0},
+                    .a_slope = {0.2, 0.0},
+                    .v = {2.0, 1.2, 0.5},
+                    .v_slope = -0.2,
+                    .t0 = 0.3};
     bl_trials *t = sim_trials(&tr, 5);
     /* theta2 = 2 theta - 1 (collinear with theta and the intercept); "gap" is missing on trial 3. */
     int ct = bl_table_find(t->table, "theta");
@@ -248,7 +253,8 @@ HARNESS_CASE(rank_deficiency)
     e3.param[BL_THRESHOLD].slopes = &flat;
     st = bl_model_build(&e3, t, NULL, &m, &err);
     check_true(st == BL_ERR_MODEL && contains(err.message, "'flat-slope'") && contains(err.message, "'threshold'") &&
-                   contains(err.message, "slope 'flat' at level 'rich' is collinear with intercept at level 'rich'") && contains(err.message, "rank-deficient"),
+                   contains(err.message, "slope 'flat' at level 'rich' is collinear with intercept at level 'rich'") &&
+                   contains(err.message, "rank-deficient"),
                "constant regressor within levels: %s", err.message);
 
     /* Two collinear regressors: theta2 = 2 theta - 1 with a shared intercept. */

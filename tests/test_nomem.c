@@ -256,7 +256,8 @@ int main(void)
     spec_regression(&spec, slopes, "regression");
     spec_default(&plain, "plain");
     bl_model *m = NULL, *m0 = NULL;
-    if (check_true(bl_model_build(&spec, t, NULL, &m, &err) == BL_OK && bl_model_build(&plain, t, NULL, &m0, &err) == BL_OK,
+    if (check_true(bl_model_build(&spec, t, NULL, &m, &err) == BL_OK &&
+                       bl_model_build(&plain, t, NULL, &m0, &err) == BL_OK,
                    "models build (%s)", err.message)) {
         model_ctx c = {&spec, t, m, m0};
         sweep("bl_model_build", call_model_build, &c, 0, 5000);

@@ -76,9 +76,16 @@ static int run_study(unsigned r, int threads, study_tests *out)
         t0_off[p] = gsl_ran_flat(rng, -0.06, 0.06);
     }
     gsl_rng_free(rng);
-    sim_truth tr = {.n = trials_per_study, .n_participants = np, .a = {1.5, 1.1}, .a_slope = {0.25, 0.0},
-                    .v = {2.0, 1.2, 0.6}, .v_slope = 0.0, .t0 = 0.3,
-                    .a_offset = a_off, .v_offset = v_off, .t0_offset = t0_off};
+    sim_truth tr = {.n = trials_per_study,
+                    .n_participants = np,
+                    .a = {1.5, 1.1},
+                    .a_slope = {0.25, 0.0},
+                    .v = {2.0, 1.2, 0.6},
+                    .v_slope = 0.0,
+                    .t0 = 0.3,
+                    .a_offset = a_off,
+                    .v_offset = v_off,
+                    .t0_offset = t0_off};
     bl_trials *t = sim_trials(&tr, 70000 + r);
     bl_model_spec spec;
     bl_slope_spec slopes[2];
@@ -104,8 +111,16 @@ static int run_study(unsigned r, int threads, study_tests *out)
         const bl_permutation_test *lean = find_test(m, "theta", "lean"), *rich = find_test(m, "theta", "rich"),
                                   *beta = find_test(m, "beta", "");
         if (lean && rich && beta) {
-            *out = (study_tests){1,           lean->p,      beta->p,      rich->p,      lean->statistic,
-                                 beta->statistic, rich->statistic, lean->exceed, beta->exceed, rich->exceed};
+            *out = (study_tests){1,
+                                 lean->p,
+                                 beta->p,
+                                 rich->p,
+                                 lean->statistic,
+                                 beta->statistic,
+                                 rich->statistic,
+                                 lean->exceed,
+                                 beta->exceed,
+                                 rich->exceed};
         }
     }
     bl_fit_set_destroy(set);
@@ -142,8 +157,9 @@ static void simulate_studies(void)
     clock_gettime(CLOCK_MONOTONIC, &t1);
     printf("%u studies of %zu trials (4-6 participants), 19 permutations each, 2 threads: %.1f s\n", n_done,
            trials_per_study, (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
-    printf("rejections at p <= 0.05: theta lean (true 0) %u, beta whole slope (no effect) %u, theta rich (true 0.25) %u\n",
-           reject_lean, reject_beta, reject_rich);
+    printf(
+        "rejections at p <= 0.05: theta lean (true 0) %u, beta whole slope (no effect) %u, theta rich (true 0.25) %u\n",
+        reject_lean, reject_beta, reject_rich);
     printf("studies by permutations reaching the observed statistic (0..19), theta lean:");
     for (int k = 0; k < 20; k++) printf(" %u", p_hist_lean[k]);
     printf("\n                                                          beta whole slope:");
@@ -223,8 +239,8 @@ HARNESS_CASE(thread_count_invariance)
                "same exceed counts on 1 and 2 threads (lean %zu/%zu, beta %zu/%zu, rich %zu/%zu)", one.exceed_lean,
                two.exceed_lean, one.exceed_beta, two.exceed_beta, one.exceed_rich, two.exceed_rich);
     check_true(one.stat_lean == two.stat_lean && one.stat_beta == two.stat_beta && one.stat_rich == two.stat_rich,
-               "same statistics on 1 and 2 threads (lean %.17g, beta %.17g, rich %.17g)", two.stat_lean,
-               two.stat_beta, two.stat_rich);
+               "same statistics on 1 and 2 threads (lean %.17g, beta %.17g, rich %.17g)", two.stat_lean, two.stat_beta,
+               two.stat_rich);
 }
 
 /* Usage: test_permutation_type1 [REPS [TRIALS]] [--list] [--case NAME]...
@@ -240,12 +256,9 @@ int main(int argc, char **argv)
         argc--;
     }
     static const harness_case cases[] = {
-        HARNESS_ENTRY(every_study_tested),
-        HARNESS_ENTRY(type1_true_zero_level),
-        HARNESS_ENTRY(type1_no_effect_regressor),
-        HARNESS_ENTRY(null_p_values_uniform),
-        HARNESS_ENTRY(power_of_true_slope),
-        HARNESS_ENTRY(thread_count_invariance),
+        HARNESS_ENTRY(every_study_tested),        HARNESS_ENTRY(type1_true_zero_level),
+        HARNESS_ENTRY(type1_no_effect_regressor), HARNESS_ENTRY(null_p_values_uniform),
+        HARNESS_ENTRY(power_of_true_slope),       HARNESS_ENTRY(thread_count_invariance),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -41,7 +41,7 @@ static void write_recording(int p, int format, const char *name)
     for (int k = 0; k < NTR; k++) {
         long s = lround((2.0 * k + 2.0004) * FS);
         for (long i = s - FS; i < s; i++) x[2 * i] += amp[p][k] * sin(2 * M_PI * 10 * (double)(i - (s - FS)) / FS);
-        x[2 * s] += 0.5;          /* spikes just outside the window: an off-by-one would see them */
+        x[2 * s] += 0.5; /* spikes just outside the window: an off-by-one would see them */
         x[2 * (s - FS - 1)] += 0.5;
     }
     if (p == 0) { /* trial 4: flat; trial 5: a non-finite sample */
@@ -68,8 +68,10 @@ static void write_recording(int p, int format, const char *name)
 }
 
 static const char *study_json =
-    "{\"trials\": {\"file\": \"trials.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [1]},"
-    " \"recordings\": {\"file\": \"{rat}.{ext}\", \"onset\": \"onset\", \"gain\": 2, \"unit\": \"mV\", \"channels\": [\"1-2\"]},"
+    "{\"trials\": {\"file\": \"trials.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", "
+    "\"upper\": [1]},"
+    " \"recordings\": {\"file\": \"{rat}.{ext}\", \"onset\": \"onset\", \"gain\": 2, \"unit\": \"mV\", \"channels\": "
+    "[\"1-2\"]},"
     " \"power\": {\"window\": {\"from\": -1.0, \"to\": 0}, \"segment\": 0.5, \"overlap\": 0.5,"
     "   \"bands\": {\"alpha\": [6, 14], \"line\": [40, 60]}, \"scale\": \"log10\", \"standardize\": \"participant\","
     "   \"line_noise\": 50, \"artifacts\": {\"peak_to_peak\": 0.8, \"flat\": 1e-6, \"clipping\": true}}}";
@@ -114,7 +116,8 @@ static int write_fixture_files(void)
         for (int k = 0; k < NTR; k++) {
             amp[p][k] = 0.05 + 0.01 * k + 0.003 * p;
             size_t l = strlen(rows);
-            snprintf(rows + l, sizeof rows - l, "%s,%s,%.4f,0.5,1\n", p ? "r2" : "r1", p ? "wav" : "w64", 2.0 * k + 2.0004);
+            snprintf(rows + l, sizeof rows - l, "%s,%s,%.4f,0.5,1\n", p ? "r2" : "r1", p ? "wav" : "w64",
+                     2.0 * k + 2.0004);
         }
     write_text("trials.csv", rows);
     write_recording(0, SF_FORMAT_W64 | SF_FORMAT_DOUBLE, "r1.w64");
@@ -142,10 +145,12 @@ HARNESS_CASE(window_and_bins)
 {
     if (!fixture()) return;
     const bl_power_result *r = fx.r;
-    check_true(r->fs == FS && r->window_samples == 1000 && r->nperseg == 500 && r->noverlap == 250 && r->n_segments == 3,
+    check_true(r->fs == FS && r->window_samples == 1000 && r->nperseg == 500 && r->noverlap == 250 &&
+                   r->n_segments == 3,
                "window 1000 samples, nperseg 500, noverlap 250, 3 segments");
     check_rel(r->df, 2.0, 0, "df = fs / nperseg = 2 Hz");
-    check_true(r->bands[0].first_bin == 3 && r->bands[0].last_bin == 7 && r->bands[0].n_bins == 5, "alpha [6,14]: bins 3..7");
+    check_true(r->bands[0].first_bin == 3 && r->bands[0].last_bin == 7 && r->bands[0].n_bins == 5,
+               "alpha [6,14]: bins 3..7");
     /* line noise 50 Hz: bins within max(2 df, 2 Hz) = 4 Hz of 50 leave the band: 46..54 Hz = 5 bins of 11 */
     check_true(r->bands[1].n_bins == 6 && !r->bands[1].used[25] && !r->bands[1].used[23] && r->bands[1].used[22],
                "line band [40,60] keeps 6 of 11 bins (46-54 Hz left out)");
@@ -165,9 +170,11 @@ HARNESS_CASE(analytic_band_power)
             double want = (2 * amp[p][k]) * (2 * amp[p][k]) / 2;
             double rel = fabs(r->band_power[i * 2] - want) / want;
             if (p == 0 || rel > worst) worst = fmax(worst, p == 0 ? rel : 0);
-            if (p == 1) check_rel(r->band_power[i * 2], want, 2e-4, "r2 (24-bit PCM) trial %d: alpha = (gain A)^2/2", k + 1);
+            if (p == 1)
+                check_rel(r->band_power[i * 2], want, 2e-4, "r2 (24-bit PCM) trial %d: alpha = (gain A)^2/2", k + 1);
         }
-    check_abs(worst, 0, 1e-9, "r1 (64-bit float): alpha band power = (gain A)^2/2 for every kept trial (worst relative)");
+    check_abs(worst, 0, 1e-9,
+              "r1 (64-bit float): alpha band power = (gain A)^2/2 for every kept trial (worst relative)");
 }
 
 HARNESS_CASE(artifacts)
@@ -176,17 +183,19 @@ HARNESS_CASE(artifacts)
     const bl_trials *t = fx.t;
     const bl_power_result *r = fx.r;
     /* artifacts */
-    check_true(t->excluded[3] && strcmp(t->excluded[3], "artifact: flat") == 0, "r1 trial 4 flat: %s", t->excluded[3] ? t->excluded[3] : "kept");
-    check_true(t->excluded[4] && strcmp(t->excluded[4], "artifact: non-finite") == 0, "r1 trial 5 NaN: %s", t->excluded[4] ? t->excluded[4] : "kept");
-    check_true(t->excluded[NTR + 3] && strcmp(t->excluded[NTR + 3], "artifact: clipping") == 0, "r2 trial 4 at full scale: %s",
-               t->excluded[NTR + 3] ? t->excluded[NTR + 3] : "kept");
-    check_true(t->excluded[NTR + 4] && strcmp(t->excluded[NTR + 4], "artifact: peak-to-peak") == 0, "r2 trial 5 step: %s",
-               t->excluded[NTR + 4] ? t->excluded[NTR + 4] : "kept");
+    check_true(t->excluded[3] && strcmp(t->excluded[3], "artifact: flat") == 0, "r1 trial 4 flat: %s",
+               t->excluded[3] ? t->excluded[3] : "kept");
+    check_true(t->excluded[4] && strcmp(t->excluded[4], "artifact: non-finite") == 0, "r1 trial 5 NaN: %s",
+               t->excluded[4] ? t->excluded[4] : "kept");
+    check_true(t->excluded[NTR + 3] && strcmp(t->excluded[NTR + 3], "artifact: clipping") == 0,
+               "r2 trial 4 at full scale: %s", t->excluded[NTR + 3] ? t->excluded[NTR + 3] : "kept");
+    check_true(t->excluded[NTR + 4] && strcmp(t->excluded[NTR + 4], "artifact: peak-to-peak") == 0,
+               "r2 trial 5 step: %s", t->excluded[NTR + 4] ? t->excluded[NTR + 4] : "kept");
     check_true(r->n_artifacts == 4 && t->n_kept == 2 * NTR - 4, "4 artifacts, %d kept", 2 * NTR - 4);
     check_true(isnan(r->band_power[3 * 2]), "excluded trials have NAN band power");
     /* One cell ("all": no model splits trials) whose mean spectrum holds exactly the kept trials. */
-    check_true(r->n_spectra == 1 && strcmp(r->spectra[0].condition, "all") == 0 &&
-                   r->spectra[0].trials == t->n_kept && r->spectra[0].n[5] == t->n_kept,
+    check_true(r->n_spectra == 1 && strcmp(r->spectra[0].condition, "all") == 0 && r->spectra[0].trials == t->n_kept &&
+                   r->spectra[0].n[5] == t->n_kept,
                "one mean spectrum over the %zu kept trials", t->n_kept);
     if (r->n_spectra == 1) {
         /* Band sums are linear in the PSD: the band sum of the mean spectrum is the mean of the trials'
@@ -280,12 +289,13 @@ HARNESS_CASE(power_csv_and_summary)
         bl_table *pc = NULL;
         check_true(bl_table_read(path, &pc, &err) == BL_OK, "power.csv reads back as a table");
         if (pc) {
-            const char *want[] = {"participant", "trial", "rat", "ext", "onset", "rt", "correct", "alpha_power", "alpha",
-                                  "line_power", "line", "artifact"};
+            const char *want[] = {"participant", "trial",       "rat",   "ext",        "onset", "rt",
+                                  "correct",     "alpha_power", "alpha", "line_power", "line",  "artifact"};
             int ok = pc->n_cols == 12 && pc->n_rows == 2 * NTR;
             for (size_t j = 0; ok && j < 12; j++) ok = strcmp(pc->cols[j].name, want[j]) == 0;
             check_true(ok, "power.csv columns: participant, trial, table columns, <band>_power, <band>, artifact");
-            check_true(strcmp(pc->cols[1].text[13], "2") == 0 && strcmp(pc->cols[0].text[13], "r2") == 0, "trial = row number within participant");
+            check_true(strcmp(pc->cols[1].text[13], "2") == 0 && strcmp(pc->cols[0].text[13], "r2") == 0,
+                       "trial = row number within participant");
             check_true(pc->cols[7].num[0] == t->table->cols[c_raw].num[0], "band power written with %%.17g (exact)");
             check_true(pc->cols[8].text[3] == NULL && strcmp(pc->cols[11].text[3], "artifact: flat") == 0,
                        "excluded trial: NA regressor, reason in artifact");
@@ -325,7 +335,8 @@ HARNESS_CASE(power_csv_and_summary)
     check_true(!confound_warned && r->n_window_confounds == 0,
                "onset-aligned window ending at the onset: no RT-position warning");
     char *summary = NULL;
-    check_true(bl_check_summary(s, t, r, &summary, &err) == BL_OK && strstr(summary, "artifact: flat") && strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
+    check_true(bl_check_summary(s, t, r, &summary, &err) == BL_OK && strstr(summary, "artifact: flat") &&
+                   strstr(summary, "alpha") && strstr(summary, "1000 Hz"),
                "check summary names exclusions, bands and rate");
     free(summary);
 }
@@ -347,7 +358,8 @@ HARNESS_CASE(errors)
     memmove(pos + 8, pos + 10, strlen(pos + 10) + 1);
     s = load_study(js);
     bl_trials_load(s, &t, NULL, &err);
-    check_true(bl_power_compute(s, t, 1, &r, NULL, &err) == BL_OK, "window ending at the last sample is inside: %s", err.message);
+    check_true(bl_power_compute(s, t, 1, &r, NULL, &err) == BL_OK, "window ending at the last sample is inside: %s",
+               err.message);
     bl_power_result_destroy(r);
     bl_trials_destroy(t);
     bl_study_destroy(s);
@@ -425,8 +437,7 @@ HARNESS_CASE(window_confounds)
                     check_true(hit && strstr(hit, want[c]) && strstr(hit, "docs/study-file.md") &&
                                    r->n_window_confounds == 3,
                                "window %d: warning with share and count: %s", c + 1, hit ? hit : "none");
-                else
-                    check_true(!hit && r->n_window_confounds == 0, "window %d (within the RT): no warning", c + 1);
+                else check_true(!hit && r->n_window_confounds == 0, "window %d (within the RT): no warning", c + 1);
             } else {
                 check_true(0, "window %d: power computed: %s", c + 1, err.message);
             }

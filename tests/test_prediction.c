@@ -73,9 +73,9 @@ static double COV[25];
 
 static void fill_cov(void)
 {
-    const double c[25] = {0.004,  0.001,  0.0005, 0.0001, 0.0002,  0.001,  0.003, 0.0002, 0,
-                          0.0001, 0.0005, 0.0002, 0.01,   0.002,   -0.0003, 0.0001, 0,     0.002,
-                          0.006,  0,      0.0002, 0.0001, -0.0003, 0,      0.00004};
+    const double c[25] = {0.004,  0.001,  0.0005, 0.0001, 0.0002,  0.001,   0.003,  0.0002, 0,
+                          0.0001, 0.0005, 0.0002, 0.01,   0.002,   -0.0003, 0.0001, 0,      0.002,
+                          0.006,  0,      0.0002, 0.0001, -0.0003, 0,       0.00004};
     memcpy(COV, c, sizeof c);
 }
 
@@ -105,7 +105,8 @@ static void check_whole(void)
     check_rel(pr.param[BL_DRIFT].se, sqrt(0.01 + 2 * theta * 0.002 + theta * theta * 0.006), 1e-14,
               "drift se = sqrt(S_vv + 2x S_vb + x^2 S_bb)");
     check_rel(pr.param[BL_THRESHOLD].se, sqrt(0.004), 1e-14, "threshold se = sqrt(S_rich,rich)");
-    check_true(pr.link[BL_START] == BL_PREDICTION_LINK_FIXED && pr.param[BL_START].value == 0.5 && pr.param[BL_START].se == 0,
+    check_true(pr.link[BL_START] == BL_PREDICTION_LINK_FIXED && pr.param[BL_START].value == 0.5 &&
+                   pr.param[BL_START].se == 0,
                "start is fixed at 0.5 with se 0");
     /* P(upper) at w = 1/2 is 1 / (1 + exp(-v a)) (Wagenmakers, van der Maas & Grasman 2007, EZ eq. for
      * Pc with s = 1); dP/da = v P(1-P), dP/dv = a P(1-P). */
@@ -165,8 +166,8 @@ static void check_whole(void)
     char *row = strstr(broken, last);
     memset(row, ' ', strlen(last));
     memcpy(row, shorter, strlen(shorter));
-    check_true(bl_fitted_models_parse(broken, "f.json", &fm, &err) == BL_ERR_INPUT &&
-                   strstr(err.message, "f.json") && strstr(err.message, "models[0].covariance[4]"),
+    check_true(bl_fitted_models_parse(broken, "f.json", &fm, &err) == BL_ERR_INPUT && strstr(err.message, "f.json") &&
+                   strstr(err.message, "models[0].covariance[4]"),
                "covariance row of the wrong length names file and key (%s)", err.message);
     free(broken);
     bl_warnings_clear(&warn);
@@ -200,7 +201,8 @@ static void check_separate(void)
         return;
     bl_prediction_request req = {"c", "p1", NULL, 0, 0, 0, 0};
     bl_prediction pr;
-    check_true(bl_prediction_compute(fm, &req, &pr, &warn, &err) == BL_ERR_USAGE && strstr(err.message, "contamination"),
+    check_true(bl_prediction_compute(fm, &req, &pr, &warn, &err) == BL_ERR_USAGE &&
+                   strstr(err.message, "contamination"),
                "contamination > 0 without its RT range is named (%s)", err.message);
     req.has_contamination_range = 1;
     req.contamination_lo = 0.2;

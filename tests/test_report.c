@@ -27,10 +27,10 @@ static char *make(fixture *fx, const char *path, int with_power, const bl_warnin
         goto done;
     const char *stages[2] = {"power", "fits"};
     double secs[2] = {0.25, 1.5};
-    bl_report_job job = {"0.1.0", "demo/study.json", "2026-12-02T00:00:00Z", "2026-12-02T00:00:09Z", 1, 42, 2, 0,
-                         2, stages, secs};
-    if (bl_report_write(path, &job, &fx->study, &fx->trials, with_power ? &fx->power : NULL, &fx->set, g, fs, w, &err) ==
-        BL_OK)
+    bl_report_job job = {
+        "0.1.0", "demo/study.json", "2026-12-02T00:00:00Z", "2026-12-02T00:00:09Z", 1, 42, 2, 0, 2, stages, secs};
+    if (bl_report_write(path, &job, &fx->study, &fx->trials, with_power ? &fx->power : NULL, &fx->set, g, fs, w,
+                        &err) == BL_OK)
         out = harness_read_file(path);
 done:
     check_true(out != NULL, "report written (%s)", err.message);
@@ -83,14 +83,16 @@ HARNESS_CASE(full_report)
         check_true(strstr(a, "Research use only; not a medical device.") != NULL, "research-use caution");
         check_true(count(a, "not a medical device") >= 2, "caution at the top and the bottom");
         /* Sections. */
-        const char *ids[] = {"id=\"job\"", "id=\"data\"", "id=\"comparison\"", "id=\"coefficients\"",
-                             "id=\"goodness\"", "id=\"figures\""};
+        const char *ids[] = {"id=\"job\"",          "id=\"data\"",     "id=\"comparison\"",
+                             "id=\"coefficients\"", "id=\"goodness\"", "id=\"figures\""};
         for (int i = 0; i < 6; i++) check_true(strstr(a, ids[i]) != NULL, "section %s", ids[i]);
         /* Job and data summary. */
-        check_true(strstr(a, "<dt>seed</dt><dd>42</dd>") && strstr(a, "<dt>threads</dt><dd>2</dd>"), "seed and threads");
+        check_true(strstr(a, "<dt>seed</dt><dd>42</dd>") && strstr(a, "<dt>threads</dt><dd>2</dd>"),
+                   "seed and threads");
         check_true(strstr(a, "power 0.25 s, fits 1.50 s") != NULL, "stage times");
         check_true(strstr(a, "600 in the table, 597 kept, 3 excluded") != NULL, "trial counts");
-        check_true(strstr(a, "<td class=\"t\">rt_min</td><td>1</td>") && strstr(a, "<td class=\"t\">artifact: flat</td><td>2</td>"),
+        check_true(strstr(a, "<td class=\"t\">rt_min</td><td>1</td>") &&
+                       strstr(a, "<td class=\"t\">artifact: flat</td><td>2</td>"),
                    "exclusions by reason with counts");
         check_true(strstr(a, "2 (r1, r2)") != NULL, "participants listed");
         check_true(strstr(a, "theta 4&#8211;10 Hz: 4 bins") != NULL, "band bins");
@@ -98,7 +100,8 @@ HARNESS_CASE(full_report)
         /* Comparison: AIC = 2k - 2LL (Akaike 1974) -> baseline 2*4 + 825.5 = 833.50, theta 10 + 796.25 = 806.25. */
         check_true(strstr(a, "<td>833.50</td>") && strstr(a, "<td>806.25</td>"), "AIC values");
         check_true(strstr(a, "<td>27.25</td>") != NULL, "delta AIC of baseline = 27.25");
-        check_true(strstr(a, "<tr class=\"best\"><td class=\"t\">theta-threshold</td>") != NULL, "best model highlighted");
+        check_true(strstr(a, "<tr class=\"best\"><td class=\"t\">theta-threshold</td>") != NULL,
+                   "best model highlighted");
         /* LRT statistic 2 (LL1 - LL0) = 29.25, df 1. */
         check_true(strstr(a, "<td>29.25</td><td>1</td><td>&lt; 0.001</td>") != NULL, "likelihood-ratio test");
         /* Coefficients: 0.24 +- 1.96 x 0.05 = 0.142 to 0.338. */
@@ -159,9 +162,13 @@ HARNESS_CASE(outputs_write)
     check_true(bl_report_outputs_write(dir, NULL, &fx->study, &fx->trials, &fx->power, &fx->set, NULL, 2, secs, &e1) ==
                    BL_OK,
                "bl_report_outputs_write (%s)", e1.message);
-    const char *files[] = {"fit_quantiles.csv", "report.html", "figures/power_spectrum.svg",
-                           "figures/parameter_vs_regressor.svg", "figures/quantile_probability.svg",
-                           "figures/coefficients.svg", "figures/model_comparison.svg"};
+    const char *files[] = {"fit_quantiles.csv",
+                           "report.html",
+                           "figures/power_spectrum.svg",
+                           "figures/parameter_vs_regressor.svg",
+                           "figures/quantile_probability.svg",
+                           "figures/coefficients.svg",
+                           "figures/model_comparison.svg"};
     for (int i = 0; i < 7; i++) {
         char p[512];
         snprintf(p, sizeof p, "%s/%s", dir, files[i]);
@@ -179,8 +186,8 @@ HARNESS_CASE(unwritable_path_and_caution)
 {
     /* A folder that does not exist: an error naming the path, nothing written. */
     bl_error err = {0};
-    check_true(bl_report_write("/nonexistent-dir-bl/report.html", NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, &err) ==
-                       BL_ERR_IO &&
+    check_true(bl_report_write("/nonexistent-dir-bl/report.html", NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL,
+                               &err) == BL_ERR_IO &&
                    strstr(err.message, "/nonexistent-dir-bl/report.html"),
                "unwritable path: I/O error naming it (%s)", err.message);
     check_true(strstr(bl_report_caution(), "not a medical device") != NULL, "caution text");
@@ -190,11 +197,8 @@ int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
     static const harness_case cases[] = {
-        HARNESS_ENTRY(full_report),
-        HARNESS_ENTRY(no_warnings_no_recordings),
-        HARNESS_ENTRY(separate_mode),
-        HARNESS_ENTRY(outputs_write),
-        HARNESS_ENTRY(unwritable_path_and_caution),
+        HARNESS_ENTRY(full_report),   HARNESS_ENTRY(no_warnings_no_recordings),   HARNESS_ENTRY(separate_mode),
+        HARNESS_ENTRY(outputs_write), HARNESS_ENTRY(unwritable_path_and_caution),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -96,8 +96,8 @@ static void test_score_is_derivative(int log_link)
         check_rel(score[q], d1, 1e-4, "%s: score = central difference of the log-likelihood", bl_param_name(param));
         /* Cox & Hinkley (1974): information = -d^2 loglik / d gamma^2 */
         check_rel(igg[q], -d2, 2e-3, "%s: information = minus the second difference", bl_param_name(param));
-        check_true(v[q] > 0 && v[q] <= igg[q], "%s: efficient variance %.6g in (0, I_gg = %.6g]", bl_param_name(param), v[q],
-                   igg[q]);
+        check_true(v[q] > 0 && v[q] <= igg[q], "%s: efficient variance %.6g in (0, I_gg = %.6g]", bl_param_name(param),
+                   v[q], igg[q]);
     }
     free(x);
     bl_model_destroy(m);
@@ -109,8 +109,13 @@ static void test_score_is_derivative(int log_link)
  * nuisance adjustment matters. */
 static void test_score_close_to_lr(void)
 {
-    sim_truth tr = {.n = 6000, .n_participants = 1, .a = {1.4, 1.1}, .a_slope = {0.05, 0.05}, .v = {2.0, 1.2, 0.5},
-                    .t0 = 0.3, .stimulus = 1};
+    sim_truth tr = {.n = 6000,
+                    .n_participants = 1,
+                    .a = {1.4, 1.1},
+                    .a_slope = {0.05, 0.05},
+                    .v = {2.0, 1.2, 0.5},
+                    .t0 = 0.3,
+                    .stimulus = 1};
     bl_trials *t = sim_trials(&tr, 23);
     bl_model_spec spec;
     bl_scan_null *nm = make_null(t, &spec, BL_PARTICIPANTS_POOLED);
@@ -148,7 +153,8 @@ static void test_score_close_to_lr(void)
     {
         size_t k1 = bl_model_n_coef(m1), k0, jg = 0;
         const double *c0 = bl_scan_null_coef(nm, &k0);
-        double *c1 = malloc(k1 * sizeof *c1), *info = malloc(k1 * k1 * sizeof *info), *cov = malloc(k1 * k1 * sizeof *cov);
+        double *c1 = malloc(k1 * sizeof *c1), *info = malloc(k1 * k1 * sizeof *info),
+               *cov = malloc(k1 * k1 * sizeof *cov);
         double *gp = malloc(k1 * sizeof *gp), *gm = malloc(k1 * sizeof *gm);
         for (size_t j = 0, i = 0; j < k1; j++) {
             if (!strcmp(bl_model_coef(m1, j)->term, "xc")) {
@@ -170,13 +176,13 @@ static void test_score_close_to_lr(void)
             for (size_t b = 0; b < k1; b++) info[a * k1 + b] = -(gp[b] - gm[b]) / (2 * h);
         }
         for (size_t a = 0; a < k1; a++)
-            for (size_t b = 0; b < a; b++) info[a * k1 + b] = info[b * k1 + a] = 0.5 * (info[a * k1 + b] + info[b * k1 + a]);
+            for (size_t b = 0; b < a; b++)
+                info[a * k1 + b] = info[b * k1 + a] = 0.5 * (info[a * k1 + b] + info[b * k1 + a]);
         double cond;
         int pd = 0;
         if (bl_information_inverse(info, k1, cov, &cond, &pd, NULL) == BL_OK && pd)
             check_rel(v[0], 1.0 / cov[jg * k1 + jg], 1e-4, "efficient variance = 1 / [I^-1]_gg of the full model");
-        else
-            check_true(0, "full-model information positive definite");
+        else check_true(0, "full-model information positive definite");
         bl_likelihood_destroy(lk);
         free(c1);
         free(info);
@@ -217,7 +223,8 @@ static void test_grid_threads(void)
     double *x = malloc(nf * nw * n * sizeof *x);
     for (size_t c = 0; c < nf * nw; c++)
         for (size_t j = 0; j < n; j++)
-            x[c * n + j] = (double)(c % 3) * t->table->cols[theta].num[rows[j]] + t->table->cols[beta].num[rows[j]] * (double)c;
+            x[c * n + j] = (double)(c % 3) * t->table->cols[theta].num[rows[j]] +
+                           t->table->cols[beta].num[rows[j]] * (double)c;
     bl_scan_stats *s1 = NULL, *s2 = NULL, *s3 = NULL;
     bl_error err = {0};
     bl_scan_grid(nm, x, nf, nw, 200, BL_SCAN_CORRECTION_MAX, 0.05, 7, 1, NULL, NULL, &s1, &err);
@@ -225,7 +232,8 @@ static void test_grid_threads(void)
     bl_scan_grid(nm, x, nf, nw, 200, BL_SCAN_CORRECTION_CLUSTER, 0.05, 7, 2, NULL, NULL, &s3, &err);
     check_true(s1 && s2 && s3, "grids computed");
     if (s1 && s2 && s3) {
-        check_true(memcmp(s1->null_max, s2->null_max, 200 * sizeof(double)) == 0, "1 and 2 threads: identical permutation maxima");
+        check_true(memcmp(s1->null_max, s2->null_max, 200 * sizeof(double)) == 0,
+                   "1 and 2 threads: identical permutation maxima");
         check_true(memcmp(s1->p_familywise, s2->p_familywise, 2 * nf * nw * sizeof(double)) == 0,
                    "1 and 2 threads: identical family-wise p");
         int ok = 1;
@@ -236,7 +244,8 @@ static void test_grid_threads(void)
         int okc = 1;
         for (size_t i = 0; i < 2 * nf * nw; i++)
             if (s3->cluster[i]) okc &= s3->statistic[i] > s3->cluster_statistic && s3->p[i] < 0.05;
-        check_true(okc, "every cell in a cluster passes the cluster-forming threshold (statistic %.4f)", s3->cluster_statistic);
+        check_true(okc, "every cell in a cluster passes the cluster-forming threshold (statistic %.4f)",
+                   s3->cluster_statistic);
         /* chi^2(1) upper 5% point is 3.841459 (e.g. Abramowitz & Stegun 1964, table 26.8) */
         check_abs(s3->cluster_statistic, 3.841459, 1e-5, "cluster-forming statistic for p = 0.05");
     }
@@ -261,13 +270,13 @@ static void test_dpss_properties(void)
             for (size_t t = 0; t < N; t++) d += h[a * N + t] * h[b * N + t];
             worst = fmax(worst, fabs(d - (a == b)));
         }
-        for (size_t t = 0; t < N; t++)
-            sym = fmax(sym, fabs(h[a * N + t] - (a % 2 ? -1 : 1) * h[a * N + N - 1 - t]));
+        for (size_t t = 0; t < N; t++) sym = fmax(sym, fabs(h[a * N + t] - (a % 2 ? -1 : 1) * h[a * N + N - 1 - t]));
     }
     /* Slepian (1978): orthonormal; even order symmetric, odd order antisymmetric */
     check_abs(worst, 0, 1e-10, "tapers orthonormal");
     check_abs(sym, 0, 1e-10, "tapers even/odd");
-    check_true(bl_dpss_count(3.0) == 5 && bl_dpss_count(1.0) == 1 && bl_dpss_count(0.4) == 1, "K = 2NW - 1, at least 1");
+    check_true(bl_dpss_count(3.0) == 5 && bl_dpss_count(1.0) == 1 && bl_dpss_count(0.4) == 1,
+               "K = 2NW - 1, at least 1");
     free(h);
 }
 

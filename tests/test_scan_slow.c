@@ -19,8 +19,8 @@ static bl_study dummy_study = {.path = "slow-test-study.json"};
 
 static int one_study(unsigned long seed, bl_scan_correction corr, bl_participants_mode mode)
 {
-    sim_truth tr = {.n = 480, .n_participants = 4, .a = {1.3, 1.1}, .v = {1.8, 1.1, 0.5}, .t0 = 0.3, .stimulus = 1,
-                    .v_step = 0.35};
+    sim_truth tr = {
+        .n = 480, .n_participants = 4, .a = {1.3, 1.1}, .v = {1.8, 1.1, 0.5}, .t0 = 0.3, .stimulus = 1, .v_step = 0.35};
     bl_trials *t = sim_trials(&tr, seed);
     bl_model_spec spec;
     spec_default(&spec, "null");
@@ -79,12 +79,14 @@ int main(void)
     for (int corr = 0; corr < 2; corr++) {
         int rej = 0, failed = 0;
         for (int k = 0; k < n; k++) {
-            int r = one_study(1000 + (unsigned long)(corr * n + k), corr ? BL_SCAN_CORRECTION_CLUSTER : BL_SCAN_CORRECTION_MAX,
+            int r = one_study(1000 + (unsigned long)(corr * n + k),
+                              corr ? BL_SCAN_CORRECTION_CLUSTER : BL_SCAN_CORRECTION_MAX,
                               k % 2 ? BL_PARTICIPANTS_POOLED : BL_PARTICIPANTS_SEPARATE);
             if (r < 0) failed++;
             else rej += r;
         }
-        check_true(failed == 0, "%s: every study scanned (%d failed)", corr ? "cluster mass" : "maximum statistic", failed);
+        check_true(failed == 0, "%s: every study scanned (%d failed)", corr ? "cluster mass" : "maximum statistic",
+                   failed);
         check_true((unsigned)rej >= lo && (unsigned)rej <= hi,
                    "%s: %d of %d null studies with a family-wise p <= 0.05 (%.1f%%), 99%% binomial limits [%u, %u]",
                    corr ? "cluster mass" : "maximum statistic", rej, n, 100.0 * rej / n, lo, hi);

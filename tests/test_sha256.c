@@ -131,12 +131,9 @@ int main(int argc, char **argv)
         return 0;
     }
     static const harness_case cases[] = {
-        HARNESS_ENTRY(fips_one_block),
-        HARNESS_ENTRY(fips_two_blocks),
-        HARNESS_ENTRY(fips_million_a_chunked),
-        HARNESS_ENTRY(empty_and_896_bit_messages),
-        HARNESS_ENTRY(streaming_splits),
-        HARNESS_ENTRY(missing_file),
+        HARNESS_ENTRY(fips_one_block),         HARNESS_ENTRY(fips_two_blocks),
+        HARNESS_ENTRY(fips_million_a_chunked), HARNESS_ENTRY(empty_and_896_bit_messages),
+        HARNESS_ENTRY(streaming_splits),       HARNESS_ENTRY(missing_file),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

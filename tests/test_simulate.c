@@ -22,8 +22,8 @@ static double spectral_slope(const double *x, size_t n, double fs, double f_lo, 
     bl_welch_work *work = NULL;
     bl_error err = {0};
     size_t nper = 2000;
-    if (bl_welch_plan_create(fs, nper, nper / 2, 0, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan,
-                             &err) != BL_OK ||
+    if (bl_welch_plan_create(fs, nper, nper / 2, 0, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, &err) !=
+            BL_OK ||
         bl_welch_work_create(plan, n, &work, &err) != BL_OK)
         return NAN;
     size_t nf = bl_welch_n_freqs(plan);
@@ -180,12 +180,15 @@ HARNESS_CASE(scenario_parsing)
         expect_error(demo, "\"full_scale\": 5000,", "", "recording.full_scale: required key is missing");
         expect_error(demo, "\"by\": [\"context\"]", "\"by\": [\"season\"]",
                      "truth.threshold.slopes.theta.by: 'season' is not one of the scenario's conditions");
-        expect_error(demo, "\"contacts\": [1.0, 0.2]", "\"contacts\": [1.0]", "bursts.theta.contacts: must be an array of 2");
+        expect_error(demo, "\"contacts\": [1.0, 0.2]", "\"contacts\": [1.0]",
+                     "bursts.theta.contacts: must be an array of 2");
         expect_error(demo, "\"interval\": [2.5, 3.5]", "\"interval\": [3.5, 2.5]", "timing.interval");
-        expect_error(demo, "\"truth_model\": \"theta-and-beta\"", "\"truth_modl\": \"x\"", "study.truth_modl: unknown key");
+        expect_error(demo, "\"truth_model\": \"theta-and-beta\"", "\"truth_modl\": \"x\"",
+                     "study.truth_modl: unknown key");
         expect_error(demo, "\"prefix\": \"rat\"", "\"prefix\": \"rat\", \"labels\": [\"a\"]",
                      "participants: give either labels or count");
-        expect_error(demo, "\"prefix\": \"rat\"", "\"prefix\": \"rat/\"", "participants.prefix: 'rat/' contains one of");
+        expect_error(demo, "\"prefix\": \"rat\"", "\"prefix\": \"rat/\"",
+                     "participants.prefix: 'rat/' contains one of");
         expect_error(demo, "{", "{,", "scenario.json:1:");
     }
     free(demo);

@@ -26,14 +26,13 @@ static double *read_f64(const char *path, size_t *n)
     return x;
 }
 
-static double *welch(const double *x, size_t n, double fs, size_t nperseg, size_t noverlap, size_t nfft,
-                     bl_detrend d, bl_welch_average a, bl_welch_scaling s, size_t *nf)
+static double *welch(const double *x, size_t n, double fs, size_t nperseg, size_t noverlap, size_t nfft, bl_detrend d,
+                     bl_welch_average a, bl_welch_scaling s, size_t *nf)
 {
     bl_welch_plan *p = NULL;
     bl_welch_work *w = NULL;
     bl_error err = {0};
-    if (bl_welch_plan_create(fs, nperseg, noverlap, nfft, d, a, s, &p, &err) ||
-        bl_welch_work_create(p, n, &w, &err)) {
+    if (bl_welch_plan_create(fs, nperseg, noverlap, nfft, d, a, s, &p, &err) || bl_welch_work_create(p, n, &w, &err)) {
         printf("plan failed: %s\n", err.message);
         exit(1);
     }
@@ -72,8 +71,10 @@ static void check_fixtures(const char *dir)
         double *want = read_f64(path, &np);
         if (!check_true(x && want && nx == n, "fixture %s: input and expected PSD read", name)) continue;
         bl_detrend d = strcmp(det, "constant") == 0 ? BL_DETREND_MEAN
-                             : strcmp(det, "linear") == 0 ? BL_DETREND_LINEAR : BL_DETREND_NONE;
-        double *got = welch(x, n, fs, nperseg, noverlap, nfft, d, strcmp(avg, "median") == 0 ? BL_WELCH_MEDIAN : BL_WELCH_MEAN,
+                       : strcmp(det, "linear") == 0 ? BL_DETREND_LINEAR
+                                                    : BL_DETREND_NONE;
+        double *got = welch(x, n, fs, nperseg, noverlap, nfft, d,
+                            strcmp(avg, "median") == 0 ? BL_WELCH_MEDIAN : BL_WELCH_MEAN,
                             strcmp(sc, "spectrum") == 0 ? BL_WELCH_SPECTRUM : BL_WELCH_DENSITY, &nf);
         check_true(nf == np, "fixture %s: %zu frequencies like scipy (%zu)", name, nf, np);
         /* criterion of the shared signal notes: |C - P| <= 1e-10 |P| + 1e-12 max(P) */
@@ -85,8 +86,10 @@ static void check_fixtures(const char *dir)
             if (d2 > tol) ok = 0;
             if (want[j] > 1e-6 * pmax) worst = fmax(worst, d2 / want[j]);
         }
-        check_true(ok, "fixture %s (%s, %s, %s, nperseg %zu, noverlap %zu, nfft %zu) matches scipy.signal.welch to 1e-10; "
-                   "worst relative %.2g", name, det, avg, sc, nperseg, noverlap, nfft, worst);
+        check_true(ok,
+                   "fixture %s (%s, %s, %s, nperseg %zu, noverlap %zu, nfft %zu) matches scipy.signal.welch to 1e-10; "
+                   "worst relative %.2g",
+                   name, det, avg, sc, nperseg, noverlap, nfft, worst);
         cases++;
         free(x);
         free(want);
@@ -147,7 +150,8 @@ HARNESS_CASE(bin_centred_sine)
         check_rel(total, 4.5, 1e-9, "bin-centred sine A=3: total power = A^2/2 = 4.5");
         size_t a, b;
         bl_band_bins(1.0, nf, 48, 52, &a, &b);
-        check_rel(bl_band_power(p, 1.0, a, b, NULL), 4.5, 1e-9, "band [48, 52] Hz holds the whole sine (Hann main lobe is +-1 bin)");
+        check_rel(bl_band_power(p, 1.0, a, b, NULL), 4.5, 1e-9,
+                  "band [48, 52] Hz holds the whole sine (Hann main lobe is +-1 bin)");
         free(p);
         /* spectrum scaling: the peak equals A^2/2 for a bin-centred sine (same table, 4.5000) */
         p = welch(x, n, 1000, 1000, 500, 0, BL_DETREND_MEAN, BL_WELCH_MEAN, BL_WELCH_SPECTRUM, &nf);
@@ -190,7 +194,8 @@ HARNESS_CASE(white_noise_and_parseval)
             }
         want /= (double)K * sw2;
         double df = 1000.0 / 256;
-        check_rel(bl_band_power(p, df, 1, nf - 1, NULL) + p[0] * df, want, 1e-12, "Parseval: sum P df = windowed mean square");
+        check_rel(bl_band_power(p, df, 1, nf - 1, NULL) + p[0] * df, want, 1e-12,
+                  "Parseval: sum P df = windowed mean square");
         check_rel(want, var, 0.02, "Parseval total close to the sample variance %.4f", var);
         free(p);
         free(x);
@@ -260,12 +265,8 @@ int main(int argc, char **argv)
         argc--;
     }
     static const harness_case cases[] = {
-        HARNESS_ENTRY(scipy_fixtures),
-        HARNESS_ENTRY(bin_centred_sine),
-        HARNESS_ENTRY(white_noise_and_parseval),
-        HARNESS_ENTRY(band_bins),
-        HARNESS_ENTRY(fft_sizes),
-        HARNESS_ENTRY(bad_settings),
+        HARNESS_ENTRY(scipy_fixtures), HARNESS_ENTRY(bin_centred_sine), HARNESS_ENTRY(white_noise_and_parseval),
+        HARNESS_ENTRY(band_bins),      HARNESS_ENTRY(fft_sizes),        HARNESS_ENTRY(bad_settings),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

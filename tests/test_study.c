@@ -6,7 +6,9 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define TRIALS "\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", \"upper\": [\"1\"]}"
+#define TRIALS                                                                                                         \
+    "\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"correct\", "          \
+    "\"upper\": [\"1\"]}"
 #define REC "\"recordings\": {\"file\": \"rec/{rat}.flac\", \"onset\": \"onset\"}"
 #define POW "\"power\": {\"window\": {\"from\": -0.5, \"to\": 0}, \"bands\": {\"theta\": [4, 8]}}"
 
@@ -33,16 +35,21 @@ HARNESS_CASE(full_example)
     const char *full =
         "{\n"
         "  \"trials\": {\"file\": \"trials.csv\", \"participant\": \"animal\", \"rt\": \"rt\", \"rt_unit\": \"ms\",\n"
-        "    \"response\": \"correct\", \"upper\": [\"1\", 2], \"stimulus\": null, \"keep\": {\"rt_min\": 0.15, \"rt_max\": 3.0}},\n"
-        "  \"recordings\": {\"file\": \"recordings/{animal}.flac\", \"onset\": \"onset\", \"gain\": 1000, \"unit\": \"uV\",\n"
+        "    \"response\": \"correct\", \"upper\": [\"1\", 2], \"stimulus\": null, \"keep\": {\"rt_min\": 0.15, "
+        "\"rt_max\": 3.0}},\n"
+        "  \"recordings\": {\"file\": \"recordings/{animal}.flac\", \"onset\": \"onset\", \"gain\": 1000, \"unit\": "
+        "\"uV\",\n"
         "    \"channels\": [\"1-2\", 3]},\n"
-        "  \"power\": {\"window\": {\"align\": \"response\", \"from\": -0.5, \"to\": 0.0}, \"segment\": 0.25, \"overlap\": 0.5,\n"
+        "  \"power\": {\"window\": {\"align\": \"response\", \"from\": -0.5, \"to\": 0.0}, \"segment\": 0.25, "
+        "\"overlap\": 0.5,\n"
         "    \"taper\": \"hann\", \"detrend\": \"linear\", \"bands\": {\"theta\": [4, 10], \"beta\": [15, 30]},\n"
-        "    \"scale\": \"db\", \"standardize\": \"participant_condition\", \"condition\": [\"context\"], \"line_noise\": 50,\n"
+        "    \"scale\": \"db\", \"standardize\": \"participant_condition\", \"condition\": [\"context\"], "
+        "\"line_noise\": 50,\n"
         "    \"artifacts\": {\"peak_to_peak\": 500, \"flat\": 1, \"clipping\": true}, \"average\": \"median\"},\n"
         "  \"fit\": {\"participants\": \"separate\", \"starts\": 4},\n"
         "  \"models\": [\n"
-        "    {\"name\": \"baseline\", \"threshold\": {\"per\": [\"context\"]}, \"drift\": {\"per\": [\"difficulty\"]}},\n"
+        "    {\"name\": \"baseline\", \"threshold\": {\"per\": [\"context\"]}, \"drift\": {\"per\": "
+        "[\"difficulty\"]}},\n"
         "    {\"name\": \"theta-threshold\", \"extends\": \"baseline\",\n"
         "     \"threshold\": {\"per\": [\"context\"], \"slopes\": {\"theta\": [\"context\"]}, \"link\": \"log\"},\n"
         "     \"start\": {}, \"drift_sd\": {\"fixed\": 0.3}}\n"
@@ -51,33 +58,44 @@ HARNESS_CASE(full_example)
         "}\n";
     bl_study *s = parse(full, &err);
     if (check_true(s != NULL, "the contract example parses: %s", err.message)) {
-        check_true(strcmp(s->trials.file, "/data/exp/trials.csv") == 0, "relative trial file resolved against the study folder");
-        check_true(strcmp(s->recordings.file, "/data/exp/recordings/{animal}.flac") == 0, "recordings pattern resolved");
+        check_true(strcmp(s->trials.file, "/data/exp/trials.csv") == 0,
+                   "relative trial file resolved against the study folder");
+        check_true(strcmp(s->recordings.file, "/data/exp/recordings/{animal}.flac") == 0,
+                   "recordings pattern resolved");
         check_true(strcmp(s->output, "/abs/results") == 0, "absolute output kept");
-        check_true(s->trials.rt_in_ms && s->trials.n_upper == 2 && strcmp(s->trials.upper[1], "2") == 0, "rt_unit ms, upper [\"1\", 2]");
+        check_true(s->trials.rt_in_ms && s->trials.n_upper == 2 && strcmp(s->trials.upper[1], "2") == 0,
+                   "rt_unit ms, upper [\"1\", 2]");
         check_true(!s->trials.stimulus && s->trials.rt_min == 0.15 && s->trials.rt_max == 3.0, "keep rules");
-        check_true(s->recordings.gain == 1000 && strcmp(s->recordings.unit, "uV") == 0 && s->recordings.n_channels == 2 &&
-                       strcmp(s->recordings.channels[1], "3") == 0, "gain, unit, channels");
+        check_true(s->recordings.gain == 1000 && strcmp(s->recordings.unit, "uV") == 0 &&
+                       s->recordings.n_channels == 2 && strcmp(s->recordings.channels[1], "3") == 0,
+                   "gain, unit, channels");
         check_true(s->power.align == BL_ALIGN_RESPONSE && s->power.from == -0.5 && s->power.to == 0 &&
                        s->power.segment == 0.25 && s->power.overlap == 0.5 && s->power.detrend == BL_DETREND_LINEAR &&
-                       s->power.median, "window and Welch settings");
+                       s->power.median,
+                   "window and Welch settings");
         check_true(s->power.n_bands == 2 && strcmp(s->power.bands[1].name, "beta") == 0 && s->power.bands[1].lo == 15 &&
-                       s->power.bands[1].hi == 30, "bands in file order");
+                       s->power.bands[1].hi == 30,
+                   "bands in file order");
         check_true(s->power.scale == BL_SCALE_DB && s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION &&
-                       s->power.n_condition == 1 && s->power.line_noise == 50, "scale, standardize, condition, line_noise");
+                       s->power.n_condition == 1 && s->power.line_noise == 50,
+                   "scale, standardize, condition, line_noise");
         check_true(s->power.peak_to_peak == 500 && s->power.flat == 1 && s->power.clipping, "artifact limits");
         check_true(s->fit.participants == BL_PARTICIPANTS_SEPARATE && s->fit.starts == 4, "fit section");
         check_true(s->n_models == 2, "two models");
         const bl_model_spec *b = &s->models[0], *m = &s->models[1];
-        check_true(b->param[BL_THRESHOLD].named && b->param[BL_THRESHOLD].n_per == 1 && !b->param[BL_NONDECISION].named &&
-                       !b->param[BL_NONDECISION].is_fixed && b->param[BL_NONDECISION].n_per == 0,
+        check_true(b->param[BL_THRESHOLD].named && b->param[BL_THRESHOLD].n_per == 1 &&
+                       !b->param[BL_NONDECISION].named && !b->param[BL_NONDECISION].is_fixed &&
+                       b->param[BL_NONDECISION].n_per == 0,
                    "baseline: threshold per context; nondecision unnamed = one free value");
         check_true(b->param[BL_START].is_fixed && b->param[BL_START].fixed == 0.5 && b->param[BL_DRIFT_SD].is_fixed &&
-                       b->param[BL_DRIFT_SD].fixed == 0 && b->param[BL_CONTAMINATION].is_fixed, "defaults: start 0.5, variabilities 0");
+                       b->param[BL_DRIFT_SD].fixed == 0 && b->param[BL_CONTAMINATION].is_fixed,
+                   "defaults: start 0.5, variabilities 0");
         check_true(m->extends && strcmp(m->extends, "baseline") == 0, "extends recorded");
-        check_true(m->param[BL_DRIFT].named && m->param[BL_DRIFT].n_per == 1 && strcmp(m->param[BL_DRIFT].per[0], "difficulty") == 0,
+        check_true(m->param[BL_DRIFT].named && m->param[BL_DRIFT].n_per == 1 &&
+                       strcmp(m->param[BL_DRIFT].per[0], "difficulty") == 0,
                    "extends copies drift per difficulty from the base");
-        check_true(m->param[BL_THRESHOLD].n_slopes == 1 && strcmp(m->param[BL_THRESHOLD].slopes[0].regressor, "theta") == 0 &&
+        check_true(m->param[BL_THRESHOLD].n_slopes == 1 &&
+                       strcmp(m->param[BL_THRESHOLD].slopes[0].regressor, "theta") == 0 &&
                        m->param[BL_THRESHOLD].slopes[0].n_by == 1 && m->param[BL_THRESHOLD].link == BL_LINK_LOG,
                    "override: theta slope per context, log link");
         check_true(m->param[BL_START].named && !m->param[BL_START].is_fixed, "start: {} makes it free");
@@ -85,14 +103,16 @@ HARNESS_CASE(full_example)
         check_true(b->param[BL_THRESHOLD].n_slopes == 0, "the base model is unchanged");
         char *json = NULL;
         bl_study *again = NULL;
-        check_true(bl_study_to_json(s, &json, &err) == BL_OK && bl_study_parse(json, "/data/exp/study.json", &again, &err) == BL_OK,
+        check_true(bl_study_to_json(s, &json, &err) == BL_OK &&
+                       bl_study_parse(json, "/data/exp/study.json", &again, &err) == BL_OK,
                    "the provenance JSON parses again as a study: %s", err.message);
         if (again) {
             check_true(again->n_models == 2 && again->models[1].param[BL_THRESHOLD].n_slopes == 1 &&
                            again->power.median && again->fit.starts == 4,
                        "round trip keeps models and settings");
             char *json2 = NULL;
-            check_true(bl_study_to_json(again, &json2, &err) == BL_OK && strcmp(json, json2) == 0, "provenance JSON is a fixed point");
+            check_true(bl_study_to_json(again, &json2, &err) == BL_OK && strcmp(json, json2) == 0,
+                       "provenance JSON is a fixed point");
             free(json2);
         }
         bl_study_destroy(again);
@@ -136,15 +156,16 @@ HARNESS_CASE(model_errors)
     expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"treshold\": {}}]}", "models[0].treshold", NULL);
     expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\"}, {\"name\": \"b\", \"extends\": \"c\"}]}",
                  "models[1].extends", "\"c\"");
-    expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"extends\": \"b\"}, {\"name\": \"b\", \"extends\": \"a\"}]}",
+    expect_error("{" TRIALS
+                 ", \"models\": [{\"name\": \"a\", \"extends\": \"b\"}, {\"name\": \"b\", \"extends\": \"a\"}]}",
                  "cycle", NULL);
     expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\"}, {\"name\": \"a\"}]}", "models[1].name", NULL);
     expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"start\": {\"fixed\": 1.5}}]}", "models[0].start.fixed",
                  "1.5");
     expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"threshold\": {\"fixed\": 1, \"per\": [\"x\"]}}]}",
                  "models[0].threshold.fixed", NULL);
-    expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"drift\": {\"link\": \"logit\"}}]}", "models[0].drift.link",
-                 "logit");
+    expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"drift\": {\"link\": \"logit\"}}]}",
+                 "models[0].drift.link", "logit");
     expect_error("{" TRIALS ", \"models\": [{\"name\": \"a\", \"drift\": {\"slopes\": {\"theta\": \"ctx\"}}}]}",
                  "models[0].drift.slopes.theta", "\"ctx\"");
     expect_error("{" TRIALS ", \"fit\": {\"participants\": \"pool\"}}", "fit.participants", "\"pool\"");
@@ -156,11 +177,14 @@ HARNESS_CASE(trials_errors)
 {
     expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"c\"}}",
                  "trials.upper", "required");
-    expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": 3, \"response\": \"c\", \"upper\": [1]}}",
-                 "trials.rt", "3");
-    expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"rt_unit\": \"sec\", \"response\": \"c\", \"upper\": [1]}}",
+    expect_error(
+        "{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": 3, \"response\": \"c\", \"upper\": [1]}}",
+        "trials.rt", "3");
+    expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"rt_unit\": \"sec\", "
+                 "\"response\": \"c\", \"upper\": [1]}}",
                  "trials.rt_unit", "\"sec\"");
-    expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"c\", \"upper\": [1], \"keep\": {\"rt_min\": 2, \"rt_max\": 1}}}",
+    expect_error("{\"trials\": {\"file\": \"t.csv\", \"participant\": \"rat\", \"rt\": \"rt\", \"response\": \"c\", "
+                 "\"upper\": [1], \"keep\": {\"rt_min\": 2, \"rt_max\": 1}}}",
                  "trials.keep.rt_max", NULL);
 }
 
@@ -169,33 +193,49 @@ HARNESS_CASE(recordings_and_power_errors)
 {
     expect_error("{" TRIALS "," REC "}", "\"power\"", "required");
     expect_error("{" TRIALS "," POW "}", "\"recordings\"", "required");
-    expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.flac\", \"onset\": \"onset\", \"unit\": \"volts\"}," POW "}",
+    expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.flac\", \"onset\": \"onset\", \"unit\": \"volts\"}," POW
+                 "}",
                  "recordings.unit", "\"volts\"");
     expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.csv\", \"onset\": \"onset\"}," POW "}", "recordings.rate",
                  "CSV");
-    expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.flac\", \"onset\": \"onset\", \"channels\": [\"1-x\"]}," POW "}",
+    expect_error("{" TRIALS
+                 ", \"recordings\": {\"file\": \"x.flac\", \"onset\": \"onset\", \"channels\": [\"1-x\"]}," POW "}",
                  "recordings.channels[0]", "1-x");
     expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.flac\", \"onset\": \"onset\", \"gain\": -2}," POW "}",
                  "recordings.gain", "-2");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": 0, \"to\": -0.5}, \"bands\": {\"theta\": [4, 8]}}}",
+    expect_error("{" TRIALS "," REC
+                 ", \"power\": {\"window\": {\"from\": 0, \"to\": -0.5}, \"bands\": {\"theta\": [4, 8]}}}",
                  "power.window.to", "-0.5");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"bands\": {\"theta\": [8, 4]}}}",
+    expect_error("{" TRIALS "," REC
+                 ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"bands\": {\"theta\": [8, 4]}}}",
                  "power.bands.theta", "[8,4]");
-    expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.csv\", \"onset\": \"onset\", \"rate\": 100}, \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"bands\": {\"gamma\": [30, 80]}}}",
+    expect_error("{" TRIALS ", \"recordings\": {\"file\": \"x.csv\", \"onset\": \"onset\", \"rate\": 100}, \"power\": "
+                            "{\"window\": {\"from\": -1, \"to\": 0}, \"bands\": {\"gamma\": [30, 80]}}}",
                  "power.bands.gamma", "Nyquist");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"segment\": 2, \"bands\": {\"theta\": [4, 8]}}}",
-                 "power.segment", "2");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"overlap\": 1, \"bands\": {\"theta\": [4, 8]}}}",
-                 "power.overlap", "1");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"taper\": \"hamming\", \"bands\": {\"theta\": [4, 8]}}}",
-                 "power.taper", "hamming");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"standardize\": \"participant_condition\", \"bands\": {\"theta\": [4, 8]}}}",
+    expect_error(
+        "{" TRIALS "," REC
+        ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"segment\": 2, \"bands\": {\"theta\": [4, 8]}}}",
+        "power.segment", "2");
+    expect_error(
+        "{" TRIALS "," REC
+        ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"overlap\": 1, \"bands\": {\"theta\": [4, 8]}}}",
+        "power.overlap", "1");
+    expect_error(
+        "{" TRIALS "," REC
+        ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"taper\": \"hamming\", \"bands\": {\"theta\": [4, 8]}}}",
+        "power.taper", "hamming");
+    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"standardize\": "
+                                    "\"participant_condition\", \"bands\": {\"theta\": [4, 8]}}}",
                  "power.condition", "required");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"line_noise\": 55, \"bands\": {\"theta\": [4, 8]}}}",
-                 "power.line_noise", "55");
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"artifacts\": {\"peak_to_peak\": 100, \"clip\": true}, \"bands\": {\"theta\": [4, 8]}}}",
+    expect_error(
+        "{" TRIALS "," REC
+        ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"line_noise\": 55, \"bands\": {\"theta\": [4, 8]}}}",
+        "power.line_noise", "55");
+    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"artifacts\": "
+                                    "{\"peak_to_peak\": 100, \"clip\": true}, \"bands\": {\"theta\": [4, 8]}}}",
                  "power.artifacts.clip", NULL);
-    expect_error("{" TRIALS "," REC ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"bands\": {\"the ta\": [4, 8]}}}",
+    expect_error("{" TRIALS "," REC
+                 ", \"power\": {\"window\": {\"from\": -1, \"to\": 0}, \"bands\": {\"the ta\": [4, 8]}}}",
                  "power.bands.the ta", NULL);
 }
 
@@ -205,7 +245,8 @@ HARNESS_CASE(duplicate_key_and_missing_file)
     bl_error err = {0};
     expect_error("{" TRIALS ", \"trials\": {}}", "appears twice", NULL);
     bl_study *x = NULL;
-    check_true(bl_study_load("/nonexistent/study.json", &x, &err) == BL_ERR_INPUT && strstr(err.message, "/nonexistent/study.json"),
+    check_true(bl_study_load("/nonexistent/study.json", &x, &err) == BL_ERR_INPUT &&
+                   strstr(err.message, "/nonexistent/study.json"),
                "missing study file named: %s", err.message);
 }
 

@@ -74,7 +74,8 @@ HARNESS_CASE(nice_ticks)
     double ranges[][2] = {{0.013, 0.097}, {-3.7, 12.2}, {0, 1}, {1234, 98765}, {-0.5, -0.1}, {2.5, 2.5}};
     for (size_t i = 0; i < sizeof ranges / sizeof ranges[0]; i++) {
         double a = ranges[i][0], b = ranges[i][1];
-        check_true(bl_svg_nice_ticks(&a, &b, 6, &first, &step, &n, NULL) == BL_OK, "ticks for [%g, %g]", ranges[i][0], ranges[i][1]);
+        check_true(bl_svg_nice_ticks(&a, &b, 6, &first, &step, &n, NULL) == BL_OK, "ticks for [%g, %g]", ranges[i][0],
+                   ranges[i][1]);
         double m = step / pow(10, floor(log10(step) + 1e-12));
         check_true(fabs(m - 1) < 1e-9 || fabs(m - 2) < 1e-9 || fabs(m - 5) < 1e-9, "step %g is 1/2/5 x 10^k", step);
         check_true(a <= ranges[i][0] && b >= ranges[i][1], "range [%g, %g] covers the data", a, b);
@@ -157,11 +158,8 @@ HARNESS_CASE(bad_arguments_and_note)
 int main(int argc, char **argv)
 {
     static const harness_case cases[] = {
-        HARNESS_ENTRY(nice_ticks),
-        HARNESS_ENTRY(okabe_ito_palette),
-        HARNESS_ENTRY(xml_escaping),
-        HARNESS_ENTRY(sample_figure),
-        HARNESS_ENTRY(bad_arguments_and_note),
+        HARNESS_ENTRY(nice_ticks),    HARNESS_ENTRY(okabe_ito_palette),      HARNESS_ENTRY(xml_escaping),
+        HARNESS_ENTRY(sample_figure), HARNESS_ENTRY(bad_arguments_and_note),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

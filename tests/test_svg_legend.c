@@ -92,7 +92,8 @@ int main(void)
                    l[3].text, l[4].text);
         check_true(l[2].text[strlen(l[2].text) - 1] == ';' && strcmp(l[4].text, "(212 trials)") == 0,
                    "wrapped after a ';' and at a space (%s | %s)", l[2].text, l[4].text);
-        check_true(rows_hold(l, 5, 8, word) && chars(l[5].text) == 40, "a long word is split in rows of 40, nothing lost");
+        check_true(rows_hold(l, 5, 8, word) && chars(l[5].text) == 40,
+                   "a long word is split in rows of 40, nothing lost");
         check_true(l[2].x == l[3].x && l[3].x == l[4].x && l[5].x == l[6].x && l[1].x == l[2].x,
                    "continuation rows align with their first row, keyless entries with keyed ones");
         for (size_t i = 0; i < 8; i++)

@@ -21,7 +21,8 @@ HARNESS_CASE(bids_events_tsv)
     bl_table *t = parse("onset\tduration\ttrial_type\tresponse_time\tvalue\n"
                         "1.2\t0.6\tgo\t0.435\t1\n"
                         "5.6\t0.6\tstop\tn/a\t2\n"
-                        "9.1\t0.6\tgo\t0.512\tn/a\n", &err);
+                        "9.1\t0.6\tgo\t0.512\tn/a\n",
+                        &err);
     if (check_true(t != NULL, "BIDS events.tsv parses: %s", err.message)) {
         check_true(t->n_rows == 3 && t->n_cols == 5, "3 rows, 5 columns");
         int rt = bl_table_find(t, "response_time");
@@ -39,11 +40,13 @@ HARNESS_CASE(rfc4180_quoting)
     bl_error err = {0};
     bl_table *t;
     /* RFC 4180: quoted fields with the delimiter, doubled quotes and a line break; CRLF; BOM */
-    t = parse("\xef\xbb\xbf" "name,\"note\",x\r\n"
+    t = parse("\xef\xbb\xbf"
+              "name,\"note\",x\r\n"
               "a,\"one, two\",1\r\n"
               "b,\"say \"\"hi\"\"\",2.5\r\n"
               "c,\"line1\r\nline2\",NA\r\n"
-              "\r\n", &err);
+              "\r\n",
+              &err);
     if (check_true(t != NULL, "quoted CSV with CRLF and BOM parses: %s", err.message)) {
         check_true(strcmp(t->cols[0].name, "name") == 0, "BOM stripped from the first header name");
         check_true(strcmp(t->cols[1].text[0], "one, two") == 0, "delimiter inside quotes kept");
@@ -91,7 +94,8 @@ HARNESS_CASE(errors)
     for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
         err.message[0] = '\0';
         t = parse(bad[k].text, &err);
-        check_true(!t && strstr(err.message, bad[k].want), "bad table %zu: \"%s\" in \"%s\"", k, bad[k].want, err.message);
+        check_true(!t && strstr(err.message, bad[k].want), "bad table %zu: \"%s\" in \"%s\"", k, bad[k].want,
+                   err.message);
         bl_table_destroy(t);
     }
     check_true(bl_table_read("/nonexistent/trials.csv", &t, &err) == BL_ERR_INPUT &&

@@ -43,8 +43,8 @@ static void round_trip(const char *dir, const char *name, int format, int bits)
     bl_error err = {0};
     if (!check_true(bl_trace_open(path, NAN, &t, &err) == BL_OK, "%s opens: %s", name, err.message)) return;
     const bl_trace_info *info = bl_trace_get_info(t);
-    check_true(info->rate == 2000 && info->channels == CH && info->frames == FRAMES, "%s: 2000 Hz, 3 channels, %d frames",
-               name, FRAMES);
+    check_true(info->rate == 2000 && info->channels == CH && info->frames == FRAMES,
+               "%s: 2000 Hz, 3 channels, %d frames", name, FRAMES);
     static double buf[5000 * CH];
     double worst = 0;
     int64_t starts[3] = {0, 7777, FRAMES - 5000};
@@ -149,8 +149,8 @@ HARNESS_CASE(bad_files)
     if (bl_trace_open(cut, NAN, &t, &err) == BL_OK) {
         static double buf[1000 * CH];
         bl_status st = bl_trace_read(t, FRAMES - 1000, 1000, buf, &err);
-        check_true(st != BL_OK && strstr(err.message, "cut.wav"), "truncated WAV: a window in the missing part fails: %s",
-                   err.message);
+        check_true(st != BL_OK && strstr(err.message, "cut.wav"),
+                   "truncated WAV: a window in the missing part fails: %s", err.message);
         bl_trace_close(t);
     } else {
         check_true(strstr(err.message, "cut.wav") != NULL, "truncated WAV refused at open: %s", err.message);
@@ -206,7 +206,9 @@ HARNESS_CASE(csv_trace)
     {
         snprintf(path, sizeof path, "%s/trace.csv", dir);
         f = fopen(path, "w");
-        fputs("\xef\xbb\xbf" "a,b\r\n", f);
+        fputs("\xef\xbb\xbf"
+              "a,b\r\n",
+              f);
         for (int i = 0; i < 100; i++) fprintf(f, "%d,%.17g\r\n", i, -0.5 * i);
         fclose(f);
         check_true(bl_trace_open(path, NAN, &t, &err) == BL_ERR_INPUT && strstr(err.message, "rate"),
@@ -244,9 +246,11 @@ HARNESS_CASE(file_patterns)
                        strcmp(p, "rec/r1_s2.flac") == 0,
                    "pattern filled: %s", p ? p : "-");
         free(p);
-        check_true(bl_pattern_expand("rec/{animal}.flac", tab, 1, &p, &err) == BL_ERR_INPUT && strstr(err.message, "animal"),
+        check_true(bl_pattern_expand("rec/{animal}.flac", tab, 1, &p, &err) == BL_ERR_INPUT &&
+                       strstr(err.message, "animal"),
                    "missing value: %s", err.message);
-        check_true(bl_pattern_expand("rec/{rat}.flac", tab, 0, &p, &err) == BL_ERR_INPUT && strstr(err.message, "{rat}"),
+        check_true(bl_pattern_expand("rec/{rat}.flac", tab, 0, &p, &err) == BL_ERR_INPUT &&
+                       strstr(err.message, "{rat}"),
                    "unknown column: %s", err.message);
         check_true(bl_pattern_expand("rec/{animal.flac", tab, 0, &p, &err) == BL_ERR_INPUT, "unclosed brace: %s",
                    err.message);
@@ -263,10 +267,10 @@ HARNESS_CASE(unknown_length_flac)
          * (xiph.org, "STREAMINFO": 0 means the total is unknown) allows; libsndfile then reports
          * SF_COUNT_MAX frames. Found by fuzzing (tests/fuzz/regressions/trace/): windows cannot be
          * checked against such a length, so the file must be refused, not read. */
-        static const unsigned char unknown_length[] = {
-            0x66, 0x4c, 0x61, 0x43, 0x00, 0x00, 0x00, 0x22, 0x10, 0x00, 0x10, 0x00, 0x00, 0x02, 0x32,
-            0x00, 0x02, 0x34, 0x00, 0x3e, 0x83, 0x70, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
-            0x00, 0x00, 0x22, 0x10, 0x00, 0x10, 0x00, 0x20, 0x00, 0x00, 0x00, 0x98};
+        static const unsigned char unknown_length[] = {0x66, 0x4c, 0x61, 0x43, 0x00, 0x00, 0x00, 0x22, 0x10, 0x00, 0x10,
+                                                       0x00, 0x00, 0x02, 0x32, 0x00, 0x02, 0x34, 0x00, 0x3e, 0x83, 0x70,
+                                                       0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x22,
+                                                       0x10, 0x00, 0x10, 0x00, 0x20, 0x00, 0x00, 0x00, 0x98};
         char path[600];
         snprintf(path, sizeof path, "%s/unknown_length.wav", dir); /* the name the fuzz target used */
         FILE *f = fopen(path, "wb");
@@ -283,12 +287,8 @@ HARNESS_CASE(unknown_length_flac)
 int main(int argc, char **argv)
 {
     static const harness_case cases[] = {
-        HARNESS_ENTRY(round_trips),
-        HARNESS_ENTRY(bad_files),
-        HARNESS_ENTRY(montage),
-        HARNESS_ENTRY(csv_trace),
-        HARNESS_ENTRY(file_patterns),
-        HARNESS_ENTRY(unknown_length_flac),
+        HARNESS_ENTRY(round_trips), HARNESS_ENTRY(bad_files),     HARNESS_ENTRY(montage),
+        HARNESS_ENTRY(csv_trace),   HARNESS_ENTRY(file_patterns), HARNESS_ENTRY(unknown_length_flac),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -190,8 +190,10 @@ HARNESS_CASE(far_boundary_corner)
                 if (e > worst) worst = e;
                 n++;
             }
-    check_true(worst < 2e-10, "far-boundary corner: %d small-time densities within %.2g relative of the long-double "
-               "image sum (target 1e-10 truncation)", n, worst);
+    check_true(worst < 2e-10,
+               "far-boundary corner: %d small-time densities within %.2g relative of the long-double "
+               "image sum (target 1e-10 truncation)",
+               n, worst);
     /* the numerics notes' example: v=-1.856, a=4.316, w=0.962, t=0.3388 (lower boundary) */
     bl_wiener_params p = mk(4.316, -1.856, 0, 0.962, 0);
     check_abs(ld(&p, 0.3388, 0), brute_lo(0.3388, -1.856, 4.316, 0.962), 1e-12, "numerics 1.3 corner example");
@@ -239,9 +241,11 @@ HARNESS_CASE(gbk_bound)
             }
         check_true(worst_abs <= 1, "GBK 2014 count (as recalled), eps %g: absolute error within eps (max %.2g eps)",
                    eps, worst_abs);
-        check_true(worst_in <= 1e4 * eps, "GBK 2014 count, eps %g: relative error %.2g for start <= 0.9", eps, worst_in);
-        check_true(worst_corner > 0.1, "GBK 2014 count, eps %g: relative error %.3g near the far boundary (start > 0.9)",
-                   eps, worst_corner);
+        check_true(worst_in <= 1e4 * eps, "GBK 2014 count, eps %g: relative error %.2g for start <= 0.9", eps,
+                   worst_in);
+        check_true(worst_corner > 0.1,
+                   "GBK 2014 count, eps %g: relative error %.3g near the far boundary (start > 0.9)", eps,
+                   worst_corner);
         check_true(worst_engine < 2e-10, "engine's relative truncation on the same grid: max relative error %.2g",
                    worst_engine);
     }
@@ -262,7 +266,8 @@ HARNESS_CASE(extremes_and_errors)
                         bl_wiener_log_density_grad(&p, 0.2 + ts[k], up, &y, g, NULL);
                         int ok = isfinite(x) && y == x;
                         for (int m = 0; m < BL_NPARAM; m++) ok = ok && isfinite(g[m]);
-                        if (!ok) printf("  not finite: a %g v %g t %g w %g up %d: %g\n", as[i], vs[j], ts[k], ws[l], up, x);
+                        if (!ok)
+                            printf("  not finite: a %g v %g t %g w %g up %d: %g\n", as[i], vs[j], ts[k], ws[l], up, x);
                         finite &= ok;
                         n++;
                     }
@@ -273,11 +278,18 @@ HARNESS_CASE(extremes_and_errors)
         int idx;
         double val;
         const char *name;
-    } bad[] = {{BL_THRESHOLD, 0, "threshold"}, {BL_THRESHOLD, -1, "threshold"}, {BL_THRESHOLD, NAN, "threshold"},
-               {BL_DRIFT, INFINITY, "drift"}, {BL_NONDECISION, -0.1, "nondecision"}, {BL_START, 0, "start"},
-               {BL_START, 1, "start"}, {BL_DRIFT_SD, -1, "drift_sd"}, {BL_START_RANGE, 1, "start_range"},
-{BL_NONDECISION_RANGE, 1, "nondecision_range"},
-               {BL_CONTAMINATION, 1, "contamination"}, {BL_CONTAMINATION, 0.1, "contamination"}};
+    } bad[] = {{BL_THRESHOLD, 0, "threshold"},
+               {BL_THRESHOLD, -1, "threshold"},
+               {BL_THRESHOLD, NAN, "threshold"},
+               {BL_DRIFT, INFINITY, "drift"},
+               {BL_NONDECISION, -0.1, "nondecision"},
+               {BL_START, 0, "start"},
+               {BL_START, 1, "start"},
+               {BL_DRIFT_SD, -1, "drift_sd"},
+               {BL_START_RANGE, 1, "start_range"},
+               {BL_NONDECISION_RANGE, 1, "nondecision_range"},
+               {BL_CONTAMINATION, 1, "contamination"},
+               {BL_CONTAMINATION, 0.1, "contamination"}};
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         bl_wiener_params p = mk(1, 1, 0.3, 0.5, 0);
         p.value[bad[i].idx] = bad[i].val;
@@ -329,9 +341,10 @@ HARNESS_CASE(gradients)
     /* finite differences over a grid spanning u = t/a^2 from 0.02 to 3 */
     double maxerr = 0;
     int n = 0;
-    static const double pts[][5] = {{1.2, 0.8, 0.45, 0.0, 0.05}, {1.2, -1.3, 0.6, 0.7, 0.2},  {0.9, 2.5, 0.3, 0.0, 0.36},
-                                    {2.0, 0.3, 0.5, 1.5, 0.99},  {2.0, -3.0, 0.8, 0.0, 1.0},  {0.7, 1.0, 0.55, 0.3, 0.1225},
-                                    {0.7, 1.0, 0.55, 0.3, 0.1226}, {1.5, 4.0, 0.2, 2.0, 5.0}, {3.0, -0.2, 0.93, 0.5, 0.6}};
+    static const double pts[][5] = {
+        {1.2, 0.8, 0.45, 0.0, 0.05},   {1.2, -1.3, 0.6, 0.7, 0.2}, {0.9, 2.5, 0.3, 0.0, 0.36},
+        {2.0, 0.3, 0.5, 1.5, 0.99},    {2.0, -3.0, 0.8, 0.0, 1.0}, {0.7, 1.0, 0.55, 0.3, 0.1225},
+        {0.7, 1.0, 0.55, 0.3, 0.1226}, {1.5, 4.0, 0.2, 2.0, 5.0},  {3.0, -0.2, 0.93, 0.5, 0.6}};
     for (size_t i = 0; i < sizeof pts / sizeof pts[0]; i++)
         for (int up = 0; up < 2; up++) {
             const double *r = pts[i];
@@ -384,7 +397,8 @@ HARNESS_CASE(large_time_terms)
 {
     double q = BL_TEST_PI * BL_TEST_PI / 8, X = 5;
     double tail = (X * X + X / (2 * q) + 1 / (4 * q * q * X)) * exp(-(X * X - 1) * q);
-    check_true(tail <= 0.9 * BL_WIENER_EPS, "large-time tail after 4 terms at u = 0.25: %.2g sin(pi w) <= 0.9 eps", tail);
+    check_true(tail <= 0.9 * BL_WIENER_EPS, "large-time tail after 4 terms at u = 0.25: %.2g sin(pi w) <= 0.9 eps",
+               tail);
     double X6 = 6, tail4 = (pow(X6, 4) + pow(X6, 3) / (2 * q) + 0.75 * X6 / (q * q) + 0.375 / (q * q * q * X6)) *
                            exp(-(X6 * X6 - 1) * q);
     check_true(tail4 <= 1e-14, "gradient k^3 tail after 5 terms at u = 0.25: %.2g sin(pi w)", tail4);

@@ -73,7 +73,7 @@ static bl_wiener_params mk(double a, double v, double w)
 
 HARNESS_CASE(probability_and_moments)
 {
-    static const double set[][3] = {{1, 1, 0.5}, {2, -1.5, 0.3}, {1.5, 2, 0.6}, {0.5, 0, 0.5},
+    static const double set[][3] = {{1, 1, 0.5},  {2, -1.5, 0.3},   {1.5, 2, 0.6},  {0.5, 0, 0.5},
                                     {4, -6, 0.9}, {1.2, 0.3, 0.05}, {3, 0.8, 0.97}, {0.3, 8, 0.5}};
     for (size_t i = 0; i < sizeof set / sizeof set[0]; i++)
         for (int up = 0; up < 2; up++) {
@@ -97,14 +97,16 @@ HARNESS_CASE(probability_and_moments)
             double zz = up ? a * w : a * (1 - w);
             if (fabs(v) * a > 0.01) {
                 double ref = (a / tanh(vv * a) - zz / tanh(vv * zz)) / vv;
-                check_rel(mrt - 0.2, ref, 1e-8, "E[T|%s] biased-start formula a=%g v=%g w=%g", up ? "up" : "lo", a, v, w);
+                check_rel(mrt - 0.2, ref, 1e-8, "E[T|%s] biased-start formula a=%g v=%g w=%g", up ? "up" : "lo", a, v,
+                          w);
             }
             /* CDF at an interior time equals the integral up to it */
             c.moment = 0;
             double tm = m1;
             double F;
             bl_wiener_cdf(&c.p, 0.2 + tm, up, &F, NULL);
-            check_rel(F, integrate_t(&c, 0, tm), 1e-9, "F_%s(mean) = int_0^mean f (GSL) a=%g v=%g w=%g", up ? "up" : "lo", a, v, w);
+            check_rel(F, integrate_t(&c, 0, tm), 1e-9, "F_%s(mean) = int_0^mean f (GSL) a=%g v=%g w=%g",
+                      up ? "up" : "lo", a, v, w);
         }
 }
 
@@ -124,8 +126,11 @@ static double over_nu(double nu, void *vp)
 
 HARNESS_CASE(drift_sd)
 {
-    static const double set[][5] = {{1, 1, 0.5, 0.5, 0.6}, {1.5, 1, 0.4, 1.2, 0.95}, {2, -2, 0.3, 2.5, 0.45},
-                                    {0.8, 0.5, 0.7, 0.3, 3.0}, {1.2, 3, 0.5, 1, 0.22}};
+    static const double set[][5] = {{1, 1, 0.5, 0.5, 0.6},
+                                    {1.5, 1, 0.4, 1.2, 0.95},
+                                    {2, -2, 0.3, 2.5, 0.45},
+                                    {0.8, 0.5, 0.7, 0.3, 3.0},
+                                    {1.2, 3, 0.5, 1, 0.22}};
     gsl_integration_workspace *ws = gsl_integration_workspace_alloc(1000);
     for (size_t i = 0; i < sizeof set / sizeof set[0]; i++)
         for (int up = 0; up < 2; up++) {
@@ -209,8 +214,9 @@ HARNESS_CASE(crank_nicolson)
             bl_wiener_cdf(&p, times[k], 0, &F, NULL);
             /* second order: error(800) ~ (g3 - g2)/3; allow 2x that plus rounding */
             double est = fabs(g3[k] - g2[k]) / 3;
-            check_abs(g3[k], F, 2 * est + 1e-10, "Crank-Nicolson J=800 vs F_lo within its O(h^2) error %.2g (a=%g v=%g w=%g t=%g)",
-                      est, a, v, w, times[k]);
+            check_abs(g3[k], F, 2 * est + 1e-10,
+                      "Crank-Nicolson J=800 vs F_lo within its O(h^2) error %.2g (a=%g v=%g w=%g t=%g)", est, a, v, w,
+                      times[k]);
             check_true(fabs(g1[k] - F) > fabs(g2[k] - F) && fabs(g2[k] - F) > fabs(g3[k] - F),
                        "Crank-Nicolson error shrinks with the grid (a=%g v=%g w=%g t=%g)", a, v, w, times[k]);
             double rich = (4 * g3[k] - g2[k]) / 3;
@@ -233,7 +239,8 @@ HARNESS_CASE(crank_nicolson)
             f2[q] = Fq;
         }
         double fd_exact = (f2[1] - f2[0]) / 0.02; /* same difference quotient on the engine's CDF */
-        check_abs(fd, fd_exact, 2 * fabs(fd - fdh) / 3 + 1e-9, "Crank-Nicolson dG/dt matches the engine's CDF difference (a=%g v=%g w=%g)", a, v, w);
+        check_abs(fd, fd_exact, 2 * fabs(fd - fdh) / 3 + 1e-9,
+                  "Crank-Nicolson dG/dt matches the engine's CDF difference (a=%g v=%g w=%g)", a, v, w);
         /* and the engine's density is the derivative of that CDF (step 1e-3: O(h^2) ~ 1e-6) */
         double Fp, Fm;
         bl_wiener_cdf(&p, 0.501, 0, &Fp, NULL);

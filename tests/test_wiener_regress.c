@@ -42,8 +42,10 @@ static void committed_values(void)
     p = mk(4, 0, 0.4, 0.5, 2.5, 0, 0.3);
     check_rel(dens(&p, 4.39, 1), 0.018258525405948838, 1e-8, "a=4 sv=2.5 nondecision_range 0.3, rt 4.39 (mpmath)");
     p = mk(3, 0.8, 0.4, 0.5, 2, 0, 0.2);
-    check_rel(dens(&p, 2.6, 1), 0.055672690610193381, 1e-8, "a=3 v=0.8 sv=2 nondecision_range 0.2, rt 2.6 upper (mpmath)");
-    check_rel(dens(&p, 2.6, 0), 0.043560081052062971, 1e-8, "a=3 v=0.8 sv=2 nondecision_range 0.2, rt 2.6 lower (mpmath)");
+    check_rel(dens(&p, 2.6, 1), 0.055672690610193381, 1e-8,
+              "a=3 v=0.8 sv=2 nondecision_range 0.2, rt 2.6 upper (mpmath)");
+    check_rel(dens(&p, 2.6, 0), 0.043560081052062971, 1e-8,
+              "a=3 v=0.8 sv=2 nondecision_range 0.2, rt 2.6 lower (mpmath)");
     /* start_range with a|v|sz = 27 (mpmath.quad over the start) */
     p = mk(5, 6, 0.3, 0.5, 0, 0.9, 0);
     check_rel(dens(&p, 1.3, 1), 0.098709155945378883, 1e-8, "a=5 v=6 start_range 0.9, rt 1.3 (mpmath)");
@@ -77,7 +79,7 @@ static void gradients_every_combination(void)
                 for (int j = 0; j < BL_NPARAM; j++) {
                     double th = p.value[j];
                     if (j >= BL_DRIFT_SD && th == 0) continue; /* one-sided at the edge of the range */
-                    double h = 1e-6 * fmax(1, fabs(th)); /* truncation error ~h^2 f''' stays small at the onset */
+                    double h = 1e-6 * fmax(1, fabs(th));       /* truncation error ~h^2 f''' stays small at the onset */
                     bl_wiener_params pp = p, pm = p;
                     pp.value[j] = th + h;
                     pm.value[j] = th - h;
@@ -92,7 +94,8 @@ static void gradients_every_combination(void)
                     n++;
                 }
             }
-        check_true(worst < 1e-5, "gradient (drift_sd %g, start_range %g, nondecision_range %g, contamination %g): "
+        check_true(worst < 1e-5,
+                   "gradient (drift_sd %g, start_range %g, nondecision_range %g, contamination %g): "
                    "%d partials vs central differences, worst %.2g",
                    p.value[BL_DRIFT_SD], p.value[BL_START_RANGE], p.value[BL_NONDECISION_RANGE],
                    p.value[BL_CONTAMINATION], n, worst);
@@ -119,14 +122,16 @@ static void onset_laguerre(void)
                             double S = 0;
                             for (int l = 0; l < n; l++) {
                                 double x = 1 / m + y[l] / beta;
-                                S += exp(lw[l] + y[l] + blw_log_dens(1 / x, v, a, w, sv, up, NULL) - 2 * log(x) - log(beta));
+                                S += exp(lw[l] + y[l] + blw_log_dens(1 / x, v, a, w, sv, up, NULL) - 2 * log(x) -
+                                         log(beta));
                             }
                             r[k] = S;
                         }
                         double e = fabs(r[1] / r[0] - 1);
                         if (e > worst) worst = e;
                     }
-    check_true(worst < 1e-8, "onset by Gauss-Laguerre: 8 nodes vs 16, 480 cases, worst relative difference %.2g", worst);
+    check_true(worst < 1e-8, "onset by Gauss-Laguerre: 8 nodes vs 16, 480 cases, worst relative difference %.2g",
+               worst);
 }
 
 int main(void)

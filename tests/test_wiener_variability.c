@@ -44,32 +44,34 @@ HARNESS_CASE(start_range)
            us[] = {0.005, 0.02, 0.1, 0.3, 1, 3};
     double sts[] = {0, 0.15, 0.4};
     for (int ist = 0; ist < 3; ist++)
-    for (int ia = 0; ia < 3; ia++)
-        for (int iv = 0; iv < 3; iv++)
-            for (int iw = 0; iw < 3; iw++)
-                for (int is = 0; is < 3; is++)
-                    for (int iu = 0; iu < 6; iu++)
-                        for (int up = 0; up < 2; up++) {
-                            double a = as[ia], w = ws[iw], sz = szs[is], t = us[iu] * a * a;
-                            if (w - sz / 2 <= 0 || w + sz / 2 >= 1) continue;
-                            /* with nondecision_range the same rule is applied to the window's ends */
-                            bl_wiener_params p = mk(a, vs[iv], 0.3, w, 0, sz, sts[ist]), q = p;
-                            q.value[BL_START_RANGE] = 0;
-                            double ref = 0;
-                            for (size_t i = 0; i < 96; i++) {
-                                double xi, wi;
-                                gsl_integration_glfixed_point(w - sz / 2, w + sz / 2, i, &xi, &wi, tab);
-                                q.value[BL_START] = xi;
-                                ref += wi * exp(ld(&q, 0.3 + t, up));
+        for (int ia = 0; ia < 3; ia++)
+            for (int iv = 0; iv < 3; iv++)
+                for (int iw = 0; iw < 3; iw++)
+                    for (int is = 0; is < 3; is++)
+                        for (int iu = 0; iu < 6; iu++)
+                            for (int up = 0; up < 2; up++) {
+                                double a = as[ia], w = ws[iw], sz = szs[is], t = us[iu] * a * a;
+                                if (w - sz / 2 <= 0 || w + sz / 2 >= 1) continue;
+                                /* with nondecision_range the same rule is applied to the window's ends */
+                                bl_wiener_params p = mk(a, vs[iv], 0.3, w, 0, sz, sts[ist]), q = p;
+                                q.value[BL_START_RANGE] = 0;
+                                double ref = 0;
+                                for (size_t i = 0; i < 96; i++) {
+                                    double xi, wi;
+                                    gsl_integration_glfixed_point(w - sz / 2, w + sz / 2, i, &xi, &wi, tab);
+                                    q.value[BL_START] = xi;
+                                    ref += wi * exp(ld(&q, 0.3 + t, up));
+                                }
+                                ref /= sz;
+                                if (!(ref > 1e-280)) continue;
+                                double e = fabs(exp(ld(&p, 0.3 + t, up)) - ref) / ref;
+                                if (e > worst) worst = e;
+                                n++;
                             }
-                            ref /= sz;
-                            if (!(ref > 1e-280)) continue;
-                            double e = fabs(exp(ld(&p, 0.3 + t, up)) - ref) / ref;
-                            if (e > worst) worst = e;
-                            n++;
-                        }
     gsl_integration_glfixed_table_free(tab);
-    check_true(worst <= 1e-6, "start_range (nondecision_range 0, 0.15, 0.4): node rule vs 96-node GSL Gauss-Legendre, %d points, max rel err %.2g <= 1e-6",
+    check_true(worst <= 1e-6,
+               "start_range (nondecision_range 0, 0.15, 0.4): node rule vs 96-node GSL Gauss-Legendre, %d points, max "
+               "rel err %.2g <= 1e-6",
                n, worst);
 }
 
@@ -110,8 +112,10 @@ HARNESS_CASE(start_range_2n)
                     n++;
                 }
     /* grid of the numerics notes' node table (a in {0.8, 1.5, 2.5}, v in {-2, 0, 2}, w = 0.5) */
-    check_true(worst_2n <= 1e-6, "start_range rule n vs 2n nodes over %d points: max rel diff %.2g <= 1e-6", n, worst_2n);
-    check_true(worst_engine <= 1e-12, "the engine's start_range density is the n-node rule (max rel diff %.2g)", worst_engine);
+    check_true(worst_2n <= 1e-6, "start_range rule n vs 2n nodes over %d points: max rel diff %.2g <= 1e-6", n,
+               worst_2n);
+    check_true(worst_engine <= 1e-12, "the engine's start_range density is the n-node rule (max rel diff %.2g)",
+               worst_engine);
 }
 
 /* nondecision_range: exact CDF difference vs GSL adaptive integration of the plain density over t0'. */
@@ -133,8 +137,10 @@ static double over_t0(double t0, void *vp)
 HARNESS_CASE(nondecision_range)
 {
     gsl_integration_workspace *ws = gsl_integration_workspace_alloc(1000);
-    static const double set[][6] = {{1.2, 1, 0.3, 0.45, 0.2, 0}, {1.2, 1, 0.3, 0.45, 0.2, 0.8},
-                                    {2, -1, 0.4, 0.6, 0.3, 0}, {0.8, 2, 0.25, 0.5, 0.1, 1.5},
+    static const double set[][6] = {{1.2, 1, 0.3, 0.45, 0.2, 0},
+                                    {1.2, 1, 0.3, 0.45, 0.2, 0.8},
+                                    {2, -1, 0.4, 0.6, 0.3, 0},
+                                    {0.8, 2, 0.25, 0.5, 0.1, 1.5},
                                     {3, 0.5, 0.5, 0.3, 0.6, 0}};
     double rts[] = {0.22, 0.35, 0.5, 0.9, 2.5};
     for (size_t i = 0; i < sizeof set / sizeof set[0]; i++)
@@ -156,8 +162,8 @@ HARNESS_CASE(nondecision_range)
                     continue;
                 }
                 check_rel(got, r, s[5] > 0 ? 1e-6 : 1e-9,
-                          "nondecision_range %g (drift_sd %g): CDF difference = GSL qags over t0', rt %g %s", s[4], s[5],
-                          rts[k], up ? "upper" : "lower");
+                          "nondecision_range %g (drift_sd %g): CDF difference = GSL qags over t0', rt %g %s", s[4],
+                          s[5], rts[k], up ? "upper" : "lower");
             }
     /* narrow windows (down to 1e-9 s): no digits lost to the CDF difference */
     double sts[] = {1e-3, 1e-5, 1e-7, 1e-9};
@@ -170,8 +176,9 @@ HARNESS_CASE(nondecision_range)
             /* divide by the window as represented (0.3 +- st/2 rounds at 1e-17 absolute) */
             double lo = 0.3 - st / 2, hi = 0.3 + st / 2;
             gsl_integration_qags(&F, lo, hi, 0, 1e-13, 1000, ws, &r, &e);
-            check_rel(exp(ld(&c.p, c.rt, up)), r / (hi - lo), 1e-10, "nondecision_range %g s: density at rt %g (%s) keeps its digits",
-                      st, c.rt, up ? "upper" : "lower");
+            check_rel(exp(ld(&c.p, c.rt, up)), r / (hi - lo), 1e-10,
+                      "nondecision_range %g s: density at rt %g (%s) keeps its digits", st, c.rt,
+                      up ? "upper" : "lower");
         }
     gsl_integration_workspace_free(ws);
 }
@@ -369,7 +376,8 @@ HARNESS_CASE(full_gradient)
                 double g[BL_NPARAM], l;
                 if (bl_wiener_log_density_grad(&p, rts[k], up, &l, g, NULL) != BL_OK || !isfinite(l)) continue;
                 /* the gradient path may sum a term more (its own tail bounds): same value to ~1e-10 */
-                check_rel(l, ld(&p, rts[k], up), 1e-9, "set %d rt %g: gradient call returns the same log-density", i, rts[k]);
+                check_rel(l, ld(&p, rts[k], up), 1e-9, "set %d rt %g: gradient call returns the same log-density", i,
+                          rts[k]);
                 for (int j = 0; j < BL_NPARAM; j++) {
                     double th = p.value[j];
                     if (j >= BL_DRIFT_SD && th == 0) continue; /* one-sided at the edge */
@@ -381,7 +389,8 @@ HARNESS_CASE(full_gradient)
                     double fd = (ld(&pp, rts[k], up) - ld(&pm, rts[k], up)) / (2 * h);
                     double e = fabs(fd - g[j]) / fmax(1, fabs(g[j]));
                     if (e > 1e-5)
-                        printf("  set %d rt %g up %d %s: analytic %.10g fd %.10g\n", i, rts[k], up, bl_param_name(j), g[j], fd);
+                        printf("  set %d rt %g up %d %s: analytic %.10g fd %.10g\n", i, rts[k], up, bl_param_name(j),
+                               g[j], fd);
                     if (e > worst) worst = e;
                     n++;
                 }
@@ -451,14 +460,9 @@ int main(int argc, char **argv)
     gsl_set_error_handler_off();
     static const harness_case cases[] = {
         HARNESS_ENTRY(thread_safety), /* first: its threads race into the table construction */
-        HARNESS_ENTRY(start_range),
-        HARNESS_ENTRY(start_range_2n),
-        HARNESS_ENTRY(nondecision_range),
-        HARNESS_ENTRY(contamination),
-        HARNESS_ENTRY(drift_sd_moments),
-        HARNESS_ENTRY(drift_sd_cdf),
-        HARNESS_ENTRY(cdf_quantiles),
-        HARNESS_ENTRY(full_gradient),
+        HARNESS_ENTRY(start_range),   HARNESS_ENTRY(start_range_2n),   HARNESS_ENTRY(nondecision_range),
+        HARNESS_ENTRY(contamination), HARNESS_ENTRY(drift_sd_moments), HARNESS_ENTRY(drift_sd_cdf),
+        HARNESS_ENTRY(cdf_quantiles), HARNESS_ENTRY(full_gradient),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

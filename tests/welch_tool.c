@@ -23,7 +23,8 @@ int main(int argc, char **argv)
     if (fread(x, sizeof *x, n, f) != n) return 2;
     fclose(f);
     bl_detrend d = strcmp(argv[6], "constant") == 0 ? BL_DETREND_MEAN
-                         : strcmp(argv[6], "linear") == 0 ? BL_DETREND_LINEAR : BL_DETREND_NONE;
+                   : strcmp(argv[6], "linear") == 0 ? BL_DETREND_LINEAR
+                                                    : BL_DETREND_NONE;
     bl_welch_plan *p = NULL;
     bl_welch_work *w = NULL;
     bl_error err = {0};

@@ -39,10 +39,10 @@ typedef enum {
 BL_API const char *bl_step_name(bl_step step);
 
 typedef struct {
-    int threads;                   /* <= 0: all cores; results do not depend on it */
-    unsigned long seed;            /* optimiser starts and permutations; default 1 */
-    size_t permutations;           /* permutation refits per slope coefficient; 0 = none */
-    const char *const *models;     /* fit only these models (NULL: every model of the study) */
+    int threads;               /* <= 0: all cores; results do not depend on it */
+    unsigned long seed;        /* optimiser starts and permutations; default 1 */
+    size_t permutations;       /* permutation refits per slope coefficient; 0 = none */
+    const char *const *models; /* fit only these models (NULL: every model of the study) */
     size_t n_models;
     /* Progress (may be NULL): the step, a detail ("model theta-threshold"), steps done and total
      * (total 0 = unknown). Called from the calling thread only. */

@@ -45,8 +45,7 @@ typedef struct bl_fitted_models bl_fitted_models;
  * (`models[1].coefficients[3].estimate`) and the value; a missing or unreadable file names the file. */
 BL_API bl_status bl_fitted_models_load(const char *path, bl_fitted_models **out, bl_error *err);
 /* The same from text; `name` is used in messages. */
-BL_API bl_status bl_fitted_models_parse(const char *text, const char *name, bl_fitted_models **out,
-                                        bl_error *err);
+BL_API bl_status bl_fitted_models_parse(const char *text, const char *name, bl_fitted_models **out, bl_error *err);
 BL_API void bl_fitted_models_destroy(bl_fitted_models *fm);
 BL_API size_t bl_fitted_models_count(const bl_fitted_models *fm);
 BL_API const char *bl_fitted_models_name(const bl_fitted_models *fm, size_t i);
@@ -60,12 +59,12 @@ typedef struct {
 } bl_prediction_setting;
 
 typedef struct {
-    const char *model;                  /* model name */
-    const char *participant;            /* NULL: the model-level fit; else a participant of a separate fit */
+    const char *model;       /* model name */
+    const char *participant; /* NULL: the model-level fit; else a participant of a separate fit */
     const bl_prediction_setting *at;
     size_t n_at;
-    int has_contamination_range;        /* needed when the predicted contamination is > 0 */
-    double contamination_lo, contamination_hi;   /* seconds */
+    int has_contamination_range;               /* needed when the predicted contamination is > 0 */
+    double contamination_lo, contamination_hi; /* seconds */
 } bl_prediction_request;
 
 /* A predicted number with its delta-method SE and 95% interval; NAN where not available (no
@@ -75,16 +74,16 @@ typedef struct {
 } bl_predicted;
 
 typedef struct {
-    bl_wiener_params params;            /* the predicted parameter set (drift toward the upper boundary) */
+    bl_wiener_params params; /* the predicted parameter set (drift toward the upper boundary) */
     bl_predicted param[BL_NPARAM];
-    int link[BL_NPARAM];                /* BL_PREDICTION_LINK_*: identity, log, or fixed */
-    int drift_sign;                     /* -1 for a stimulus of the lower category (stimulus coding), else 1 */
-    int has_covariance;                 /* 0: intervals are NAN (no covariance in fits.json) */
-    int group_summary;                  /* 1: the model-level coefficients of a separate fit (no covariance) */
+    int link[BL_NPARAM]; /* BL_PREDICTION_LINK_*: identity, log, or fixed */
+    int drift_sign;      /* -1 for a stimulus of the lower category (stimulus coding), else 1 */
+    int has_covariance;  /* 0: intervals are NAN (no covariance in fits.json) */
+    int group_summary;   /* 1: the model-level coefficients of a separate fit (no covariance) */
     bl_predicted p_upper, p_lower;
-    bl_predicted mean_rt_upper, mean_rt_lower;   /* seconds, nondecision included; NAN for P = 0 */
-    bl_predicted mean_rt;               /* over both responses: P(upper) mean_upper + P(lower) mean_lower */
-    double quantile[2][BL_PREDICTION_NQ];        /* [lower, upper], seconds; NAN when P(boundary) ~ 0 */
+    bl_predicted mean_rt_upper, mean_rt_lower; /* seconds, nondecision included; NAN for P = 0 */
+    bl_predicted mean_rt;                      /* over both responses: P(upper) mean_upper + P(lower) mean_lower */
+    double quantile[2][BL_PREDICTION_NQ];      /* [lower, upper], seconds; NAN when P(boundary) ~ 0 */
 } bl_prediction;
 
 /* Predict. Errors: BL_ERR_USAGE for an unknown model (the message lists the models), an unknown
@@ -93,13 +92,13 @@ typedef struct {
  * (lists them) or a participant asked of a pooled fit, a missing contamination range;
  * BL_ERR_INPUT for a value that is not a finite number; BL_ERR_RANGE when the predicted parameters
  * are invalid. Names in `at` that other models use but this one does not add a warning. */
-BL_API bl_status bl_prediction_compute(const bl_fitted_models *fm, const bl_prediction_request *req,
-                                       bl_prediction *out, bl_warnings *warn, bl_error *err);
+BL_API bl_status bl_prediction_compute(const bl_fitted_models *fm, const bl_prediction_request *req, bl_prediction *out,
+                                       bl_warnings *warn, bl_error *err);
 
 /* One parameter from its design row (k coefficients): value = sign h(row'coef), se and interval by
  * the delta method with covariance `cov` (k x k row-major; NULL: se and interval NAN). */
-BL_API void bl_prediction_linear(int link /* BL_PREDICTION_LINK_* */, const double *coef, const double *cov, size_t k, const double *row,
-                                 double sign, bl_predicted *out);
+BL_API void bl_prediction_linear(int link /* BL_PREDICTION_LINK_* */, const double *coef, const double *cov, size_t k,
+                                 const double *row, double sign, bl_predicted *out);
 /* sqrt(j' cov j) for a gradient j of k values (cov k x k row-major); NAN when any term is not finite. */
 BL_API double bl_prediction_delta_se(const double *j, const double *cov, size_t k);
 

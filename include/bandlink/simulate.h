@@ -35,18 +35,18 @@ BL_API void bl_scenario_destroy(bl_scenario *sc);
 BL_API unsigned long bl_scenario_seed(const bl_scenario *sc);
 
 typedef struct {
-    int has_seed;              /* use `seed` instead of the scenario's */
+    int has_seed; /* use `seed` instead of the scenario's */
     unsigned long seed;
-    int force;                 /* replace an existing output folder (only once the new one is complete) */
-    int threads;               /* for the band-power measurement; <= 0: default */
+    int force;   /* replace an existing output folder (only once the new one is complete) */
+    int threads; /* for the band-power measurement; <= 0: default */
 } bl_simulate_options;
 
 typedef struct {
     size_t participants, trials;
     size_t recordings;
-    double seconds;            /* total recorded time, all participants */
-    double p_upper;            /* share of upper-boundary responses */
-    double mean_rt;            /* seconds */
+    double seconds; /* total recorded time, all participants */
+    double p_upper; /* share of upper-boundary responses */
+    double mean_rt; /* seconds */
     unsigned long seed;
 } bl_simulate_summary;
 

@@ -29,15 +29,15 @@ extern "C" {
 
 typedef enum {
     BL_OK = 0,
-    BL_ERR_USAGE,       /* bad command-line use: unknown option, missing argument */
-    BL_ERR_INPUT,       /* bad input data: non-numeric RT, unknown study key, window beyond the recording */
-    BL_ERR_RANGE,       /* a parameter outside its valid range: threshold <= 0, start outside (0,1) */
-    BL_ERR_MODEL,       /* a model that cannot be fitted: unknown regressor, rank-deficient design */
-    BL_ERR_IO,          /* the system failed us: cannot write the output folder, disk full, rename failed */
-    BL_ERR_NOMEM,       /* an allocation failed */
-    BL_ERR_NUMERIC,     /* a numerical method failed: series did not converge, Hessian not positive definite */
-    BL_ERR_EXISTS,      /* an output exists and --force was not given */
-    BL_ERR_INTERNAL,    /* a bug: a broken invariant inside bandlink */
+    BL_ERR_USAGE,    /* bad command-line use: unknown option, missing argument */
+    BL_ERR_INPUT,    /* bad input data: non-numeric RT, unknown study key, window beyond the recording */
+    BL_ERR_RANGE,    /* a parameter outside its valid range: threshold <= 0, start outside (0,1) */
+    BL_ERR_MODEL,    /* a model that cannot be fitted: unknown regressor, rank-deficient design */
+    BL_ERR_IO,       /* the system failed us: cannot write the output folder, disk full, rename failed */
+    BL_ERR_NOMEM,    /* an allocation failed */
+    BL_ERR_NUMERIC,  /* a numerical method failed: series did not converge, Hessian not positive definite */
+    BL_ERR_EXISTS,   /* an output exists and --force was not given */
+    BL_ERR_INTERNAL, /* a bug: a broken invariant inside bandlink */
     BL_STATUS_COUNT
 } bl_status;
 
@@ -69,7 +69,7 @@ BL_API bl_status bl_status_from_errno(int error_number);
 typedef struct {
     char **items;
     size_t count, capacity;
-    size_t lost;  /* warnings that could not be stored (out of memory): writers refuse to write then */
+    size_t lost; /* warnings that could not be stored (out of memory): writers refuse to write then */
 } bl_warnings;
 
 /* Append a warning. On allocation failure the warning is counted in `lost`, and the writers of

@@ -19,22 +19,21 @@
 extern "C" {
 #endif
 
-
 /* Parameter indices, in the order used by every array of parameters or gradients. */
 typedef enum {
-    BL_THRESHOLD = 0,         /* a  : boundary separation, > 0 */
-    BL_DRIFT,                 /* v  : drift rate toward the upper boundary, any real */
-    BL_NONDECISION,           /* t0 : seconds, >= 0 */
-    BL_START,                 /* w  : relative start, in (0, 1) */
-    BL_DRIFT_SD,              /* sv : across-trial SD of drift, >= 0 */
-    BL_START_RANGE,           /* sz : width of uniform start variability, [0, 1), w +- sz/2 inside (0,1) */
-    BL_NONDECISION_RANGE,     /* st : width of uniform nondecision variability, seconds, >= 0, t0 - st/2 >= 0 */
-    BL_CONTAMINATION,         /* p0 : share of responses from a uniform RT distribution, [0, 1) */
+    BL_THRESHOLD = 0,     /* a  : boundary separation, > 0 */
+    BL_DRIFT,             /* v  : drift rate toward the upper boundary, any real */
+    BL_NONDECISION,       /* t0 : seconds, >= 0 */
+    BL_START,             /* w  : relative start, in (0, 1) */
+    BL_DRIFT_SD,          /* sv : across-trial SD of drift, >= 0 */
+    BL_START_RANGE,       /* sz : width of uniform start variability, [0, 1), w +- sz/2 inside (0,1) */
+    BL_NONDECISION_RANGE, /* st : width of uniform nondecision variability, seconds, >= 0, t0 - st/2 >= 0 */
+    BL_CONTAMINATION,     /* p0 : share of responses from a uniform RT distribution, [0, 1) */
     BL_NPARAM
 } bl_param;
 
 typedef struct {
-    double value[BL_NPARAM];  /* indexed by bl_param */
+    double value[BL_NPARAM]; /* indexed by bl_param */
     /* Uniform contaminant RT range [seconds]; used only when value[BL_CONTAMINATION] > 0,
      * then 0 <= contamination_lo < contamination_hi is required. */
     double contamination_lo, contamination_hi;
@@ -57,15 +56,14 @@ BL_API bl_status bl_wiener_check(const bl_wiener_params *p, bl_error *err);
 /* Log-density of responding at the given boundary (upper != 0: upper) at response time rt [s].
  * Returns -INFINITY where the density is zero (rt at or below the earliest possible RT);
  * BL_ERR_RANGE for invalid parameters or non-finite rt. Never writes NaN. */
-BL_API bl_status bl_wiener_log_density(const bl_wiener_params *p, double rt, int upper,
-                                       double *log_density, bl_error *err);
+BL_API bl_status bl_wiener_log_density(const bl_wiener_params *p, double rt, int upper, double *log_density,
+                                       bl_error *err);
 
 /* As above, plus the gradient of the log-density with respect to every parameter (grad[BL_NPARAM],
  * indexed by bl_param; entries for parameters at a boundary of their range are one-sided limits).
  * When the log-density is -INFINITY the gradient is set to 0. */
-BL_API bl_status bl_wiener_log_density_grad(const bl_wiener_params *p, double rt, int upper,
-                                            double *log_density, double grad[BL_NPARAM],
-                                            bl_error *err);
+BL_API bl_status bl_wiener_log_density_grad(const bl_wiener_params *p, double rt, int upper, double *log_density,
+                                            double grad[BL_NPARAM], bl_error *err);
 
 /* Probability of absorbing at the upper boundary (contamination included: half the contaminants). */
 BL_API bl_status bl_wiener_p_upper(const bl_wiener_params *p, double *p_upper, bl_error *err);
@@ -75,17 +73,14 @@ BL_API bl_status bl_wiener_p_upper(const bl_wiener_params *p, double *p_upper, b
 BL_API bl_status bl_wiener_p_boundary(const bl_wiener_params *p, int upper, double *prob, bl_error *err);
 
 /* Defective CDF: P(RT <= rt and response at the given boundary). */
-BL_API bl_status bl_wiener_cdf(const bl_wiener_params *p, double rt, int upper, double *cdf,
-                               bl_error *err);
+BL_API bl_status bl_wiener_cdf(const bl_wiener_params *p, double rt, int upper, double *cdf, bl_error *err);
 
 /* Mean RT [s, nondecision included] conditional on responding at the given boundary. */
-BL_API bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double *mean_rt,
-                                   bl_error *err);
+BL_API bl_status bl_wiener_mean_rt(const bl_wiener_params *p, int upper, double *mean_rt, bl_error *err);
 
 /* Quantile [s] of the RT distribution conditional on the boundary: the rt with
  * cdf(rt)/P(boundary) = prob, prob in (0, 1). BL_ERR_NUMERIC when the boundary has probability ~0. */
-BL_API bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, double *rt,
-                                    bl_error *err);
+BL_API bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, double *rt, bl_error *err);
 
 #ifdef __cplusplus
 }

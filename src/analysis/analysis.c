@@ -32,10 +32,7 @@ static bl_status write_scan(bl_analysis *a, const char *dir, bl_error *err);
 
 static const char *const step_names[BL_STEP_COUNT] = {"setup", "power", "fits", "goodness", "figures", "report"};
 
-const char *bl_step_name(bl_step step)
-{
-    return (int)step >= 0 && step < BL_STEP_COUNT ? step_names[step] : "?";
-}
+const char *bl_step_name(bl_step step) { return (int)step >= 0 && step < BL_STEP_COUNT ? step_names[step] : "?"; }
 
 void bl_analysis_options_default(bl_analysis_options *opt)
 {
@@ -249,8 +246,8 @@ static bl_status write_report(bl_analysis *a, const char *dir, bl_error *err)
     job.stage_seconds = a->seconds;
     double sec[3];
     say(a, BL_STEP_GOODNESS, "observed vs predicted quantiles, figures, report.html", 0, 0);
-    bl_status st = bl_report_outputs_write(dir, &job, a->study, a->trials, a->power, a->fits, &a->warnings,
-                                           a->threads, sec, err);
+    bl_status st = bl_report_outputs_write(dir, &job, a->study, a->trials, a->power, a->fits, &a->warnings, a->threads,
+                                           sec, err);
     for (int i = 0; i < 3; i++) a->seconds[BL_STEP_GOODNESS + i] += sec[i];
     return st;
 }
@@ -270,8 +267,8 @@ static bl_status provenance_begin(bl_analysis *a, cJSON **prov, bl_error *err)
 }
 
 /* provenance.json, and fits.json with the same record inside, once every step's time is known. */
-static bl_status provenance_finish(bl_analysis *a, cJSON *prov, const char *dir, unsigned outputs,
-                                   const char *command, bl_error *err)
+static bl_status provenance_finish(bl_analysis *a, cJSON *prov, const char *dir, unsigned outputs, const char *command,
+                                   bl_error *err)
 {
     char *path = NULL, *text = NULL;
     char finished[32];
@@ -308,8 +305,10 @@ bl_status bl_analysis_write(bl_analysis *a, unsigned outputs, const char *comman
     if ((outputs & (BL_OUTPUT_FITS | BL_OUTPUT_REPORT)) && !a->fits)
         return bl_error_set(err, BL_ERR_INTERNAL, "fits and report outputs need bl_analysis_fit first");
     if (a->warnings.lost)
-        return bl_error_set(err, BL_ERR_NOMEM, "out of memory: %zu warnings could not be recorded, so no results are "
-                            "written", a->warnings.lost);
+        return bl_error_set(err, BL_ERR_NOMEM,
+                            "out of memory: %zu warnings could not be recorded, so no results are "
+                            "written",
+                            a->warnings.lost);
     bl_results_folder *folder = NULL;
     cJSON *prov = NULL;
     bl_status st = bl_results_folder_begin(a->target, a->force, command, &folder, err);

@@ -20,8 +20,7 @@ struct bl_input_hashes {
 static void hash_all(bl_input_hashes *h)
 {
     h->status = BL_OK;
-    for (size_t i = 0; i < h->n && h->status == BL_OK; i++)
-        h->status = bl_sha256_file(h->paths[i], h->hex[i], &h->err);
+    for (size_t i = 0; i < h->n && h->status == BL_OK; i++) h->status = bl_sha256_file(h->paths[i], h->hex[i], &h->err);
     h->done = 1;
 }
 
@@ -71,6 +70,6 @@ bl_status bl_input_hashes_wait(bl_input_hashes *h, const char (**hex)[BL_SHA256_
         if (err) *err = h->err;
         return h->status;
     }
-    *hex = (const char (*)[BL_SHA256_HEX_SIZE])h->hex;
+    *hex = (const char(*)[BL_SHA256_HEX_SIZE])h->hex;
     return BL_OK;
 }

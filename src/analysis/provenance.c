@@ -89,8 +89,8 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
     /* Paths absolute, so the recorded study parses again from the results folder (docs/outputs.md). */
     if (!absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "trials"), "file") ||
         !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "recordings"), "file") ||
-        !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "bids"), "root") ||
-        !absolute_key(parsed, "output") || !cJSON_AddItemToObject(p, "study", parsed)) {
+        !absolute_key(cJSON_GetObjectItemCaseSensitive(parsed, "bids"), "root") || !absolute_key(parsed, "output") ||
+        !cJSON_AddItemToObject(p, "study", parsed)) {
         cJSON_Delete(parsed);
         goto nomem;
     }
@@ -121,7 +121,8 @@ bl_status bl_provenance_create(const char *study_path, const bl_study *study, co
         cJSON *w = cJSON_AddObjectToObject(p, "welch");
         if (!w) goto nomem;
         if (!cJSON_AddNumberToObject(w, "rate", pr->fs)) goto nomem;
-        if (!cJSON_AddStringToObject(w, "align", study->power.align == BL_ALIGN_RESPONSE ? "response" : "onset")) goto nomem;
+        if (!cJSON_AddStringToObject(w, "align", study->power.align == BL_ALIGN_RESPONSE ? "response" : "onset"))
+            goto nomem;
         if (!cJSON_AddNumberToObject(w, "from", study->power.from)) goto nomem;
         if (!cJSON_AddNumberToObject(w, "to", study->power.to)) goto nomem;
         if (!cJSON_AddNumberToObject(w, "window_samples", (double)pr->window_samples)) goto nomem;

@@ -50,25 +50,25 @@ typedef struct {
 
 typedef struct {
     char *name;
-    double f_lo, f_hi;      /* Hz, frequency drawn uniformly per trial */
-    double from, to;        /* s relative to onset */
-    double amplitude;       /* median peak amplitude, unit */
-    double variability;     /* SD of the natural log of the amplitude across trials */
-    double *weights;        /* per contact */
+    double f_lo, f_hi;  /* Hz, frequency drawn uniformly per trial */
+    double from, to;    /* s relative to onset */
+    double amplitude;   /* median peak amplitude, unit */
+    double variability; /* SD of the natural log of the amplitude across trials */
+    double *weights;    /* per contact */
 } burst_spec;
 
 typedef struct {
     char *regressor;
-    size_t *by;             /* factor indices */
+    size_t *by; /* factor indices */
     size_t n_by;
-    double *values;         /* per level combination of `by` (1 value when n_by = 0) */
+    double *values; /* per level combination of `by` (1 value when n_by = 0) */
 } truth_slope;
 
 typedef struct {
     int given;
-    size_t *per;            /* factor indices */
+    size_t *per; /* factor indices */
     size_t n_per;
-    double *intercept;      /* per level combination (1 when n_per = 0) */
+    double *intercept; /* per level combination (1 when n_per = 0) */
     truth_slope *slopes;
     size_t n_slopes;
 } truth_param;
@@ -326,8 +326,8 @@ static bl_status parse_factor_list(ctx *c, const bl_scenario *sc, const cJSON *v
 
 /* A value per level combination: a number (only with no factors) or an object {label: number} covering
  * every combination exactly. */
-static bl_status parse_values(ctx *c, const bl_scenario *sc, const cJSON *v, const char *p, const size_t *f,
-                              size_t n, double **out)
+static bl_status parse_values(ctx *c, const bl_scenario *sc, const cJSON *v, const char *p, const size_t *f, size_t n,
+                              double **out)
 {
     size_t k = n_combos(sc, f, n);
     *out = calloc(k, sizeof **out);
@@ -365,8 +365,8 @@ static bl_status parse_values(ctx *c, const bl_scenario *sc, const cJSON *v, con
 
 static bl_status parse_truth(ctx *c, bl_scenario *sc, const cJSON *t)
 {
-    static const char *const params[] = {"threshold", "drift", "nondecision", "start", "drift_sd", "start_range",
-                                         "nondecision_range", NULL};
+    static const char *const params[] = {"threshold", "drift",       "nondecision",       "start",
+                                         "drift_sd",  "start_range", "nondecision_range", NULL};
     bl_status st = check_keys(c, t, "truth", params);
     if (st) return st;
     for (const cJSON *pe = t->child; pe; pe = pe->next) {
@@ -480,8 +480,8 @@ static bl_status parse_bursts(ctx *c, bl_scenario *sc, const cJSON *b)
 
 static bl_status parse_recording(ctx *c, bl_scenario *sc, const cJSON *r)
 {
-    static const char *const keys[] = {"format", "rate", "contacts", "channels", "unit", "full_scale",
-                                       "background", "common_mode", NULL};
+    static const char *const keys[] = {"format",     "rate",       "contacts",    "channels", "unit",
+                                       "full_scale", "background", "common_mode", NULL};
     bl_status st = check_keys(c, r, "recording", keys);
     if (st) return st;
     char *fmt = NULL;
@@ -505,7 +505,8 @@ static bl_status parse_recording(ctx *c, bl_scenario *sc, const cJSON *r)
     sc->contacts = (size_t)contacts;
     const cJSON *ch = item(r, "channels");
     if (ch) {
-        if (!cJSON_IsArray(ch) || cJSON_GetArraySize(ch) < 1) return bad(c, "recording.channels", "must be a non-empty array");
+        if (!cJSON_IsArray(ch) || cJSON_GetArraySize(ch) < 1)
+            return bad(c, "recording.channels", "must be a non-empty array");
         sc->n_channels = (size_t)cJSON_GetArraySize(ch);
         sc->channels = calloc(sc->n_channels, sizeof *sc->channels);
         if (!sc->channels) return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
@@ -708,8 +709,9 @@ static bl_status check_columns_distinct(ctx *c, const bl_scenario *sc)
 
 static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
 {
-    static const char *const keys[] = {"name", "seed", "participants", "trials_per_participant", "conditions",
-                                       "stimulus", "timing", "recording", "bursts", "truth", "study", NULL};
+    static const char *const keys[] = {"name",       "seed",     "participants", "trials_per_participant",
+                                       "conditions", "stimulus", "timing",       "recording",
+                                       "bursts",     "truth",    "study",        NULL};
     bl_status st = check_keys(c, root, "", keys);
     if (st) return st;
     const cJSON *nm = item(root, "name");
@@ -741,8 +743,10 @@ static bl_status parse_root(ctx *c, bl_scenario *sc, const cJSON *root)
         if (sc->first_onset + b->from < 0) {
             char q[300];
             snprintf(q, sizeof q, "bursts.%s.from", b->name);
-            return bad(c, q, "the burst of the first trial would start before the recording (timing.first_onset %g + from %g < 0)",
-                       sc->first_onset, b->from);
+            return bad(
+                c, q,
+                "the burst of the first trial would start before the recording (timing.first_onset %g + from %g < 0)",
+                sc->first_onset, b->from);
         }
     }
     const cJSON *tr = item(root, "truth");
@@ -806,7 +810,8 @@ bl_status bl_simulate_colored_noise(double *x, size_t n, double fs, double expon
     bl_gsl_guard();
     if (n == 0) return BL_OK;
     if (!(fs > 0) || !(corner > 0) || !(rms >= 0) || !isfinite(exponent))
-        return bl_error_set(err, BL_ERR_RANGE, "coloured noise: invalid settings (fs %g, corner %g, rms %g)", fs, corner, rms);
+        return bl_error_set(err, BL_ERR_RANGE, "coloured noise: invalid settings (fs %g, corner %g, rms %g)", fs,
+                            corner, rms);
     size_t N = fast_size(n);
     double *d = malloc(N * sizeof *d);
     gsl_fft_real_wavetable *rw = gsl_fft_real_wavetable_alloc(N);
@@ -854,11 +859,11 @@ done:
 /* One trial of the schedule. */
 typedef struct {
     size_t participant;
-    size_t trial;            /* 1-based within participant */
-    double onset;            /* s */
-    size_t *level;           /* level index per factor (points into a shared array) */
-    int stimulus;            /* 0 or 1 */
-    int upper;               /* drawn: 1 = correct */
+    size_t trial;  /* 1-based within participant */
+    double onset;  /* s */
+    size_t *level; /* level index per factor (points into a shared array) */
+    int stimulus;  /* 0 or 1 */
+    int upper;     /* drawn: 1 = correct */
     double rt;
     double param[BL_NPARAM]; /* true parameters */
 } trial_rec;
@@ -894,12 +899,14 @@ static bl_status write_recording(const bl_scenario *sc, size_t p, const trial_re
     /* One stream per participant, so recordings do not depend on each other. */
     gsl_rng_set(rng, seed * 1000003UL + 7919UL * (p + 1));
     for (size_t c = 0; c < C; c++) {
-        if ((st = bl_simulate_colored_noise(tmp, frames, sc->rate, sc->bg_exponent, sc->bg_corner, sc->bg_rms, rng, err)))
+        if ((st = bl_simulate_colored_noise(tmp, frames, sc->rate, sc->bg_exponent, sc->bg_corner, sc->bg_rms, rng,
+                                            err)))
             goto done;
         for (size_t i = 0; i < frames; i++) x[i * C + c] = tmp[i];
     }
     if (sc->cm_rms > 0 || sc->line_amplitude > 0) {
-        if ((st = bl_simulate_colored_noise(tmp, frames, sc->rate, sc->cm_exponent, sc->bg_corner, sc->cm_rms, rng, err)))
+        if ((st = bl_simulate_colored_noise(tmp, frames, sc->rate, sc->cm_exponent, sc->bg_corner, sc->cm_rms, rng,
+                                            err)))
             goto done;
         double phase = gsl_rng_uniform(rng) * 2 * M_PI;
         for (size_t i = 0; i < frames; i++) {
@@ -931,8 +938,8 @@ static bl_status write_recording(const bl_scenario *sc, size_t p, const trial_re
             st = bl_error_set(err, BL_ERR_RANGE,
                               "%s: the simulated signal of %s reaches %.6g %s at %.3f s, beyond recording.full_scale "
                               "(%g %s); raise full_scale or lower the amplitudes",
-                              sc->path, sc->participants[p], x[i], sc->unit, (double)(i / C) / sc->rate,
-                              sc->full_scale, sc->unit);
+                              sc->path, sc->participants[p], x[i], sc->unit, (double)(i / C) / sc->rate, sc->full_scale,
+                              sc->unit);
             goto done;
         }
         x[i] = v;
@@ -954,7 +961,8 @@ static bl_status write_recording(const bl_scenario *sc, size_t p, const trial_re
     }
     sf_count_t w = sf_writef_double(f, x, (sf_count_t)frames);
     if (w != (sf_count_t)frames) {
-        st = bl_error_set(err, BL_ERR_IO, "%s: wrote %lld of %zu frames: %s", path, (long long)w, frames, sf_strerror(f));
+        st = bl_error_set(err, BL_ERR_IO, "%s: wrote %lld of %zu frames: %s", path, (long long)w, frames,
+                          sf_strerror(f));
         goto done;
     }
     *seconds = (double)frames / sc->rate;
@@ -1054,8 +1062,8 @@ static bl_status check_truth_model(const bl_scenario *sc, const bl_study *study,
         if (!t->given) {
             if (!ps->is_fixed)
                 return bl_error_set(err, BL_ERR_INPUT,
-                                    "%s: truth.%s: missing, but model '%s' estimates it; give its true value",
-                                    sc->path, bl_param_name(p), m->name);
+                                    "%s: truth.%s: missing, but model '%s' estimates it; give its true value", sc->path,
+                                    bl_param_name(p), m->name);
             continue;
         }
         int same = !ps->is_fixed && ps->n_per == t->n_per && ps->n_slopes == t->n_slopes;
@@ -1075,8 +1083,10 @@ static bl_status check_truth_model(const bl_scenario *sc, const bl_study *study,
                                 "(same per columns, same slopes with the same by columns, in the same order)",
                                 sc->path, bl_param_name(p), m->name);
         if (ps->link == BL_LINK_LOG)
-            return bl_error_set(err, BL_ERR_INPUT, "%s: truth.%s: model '%s' uses the log link; the simulator's truth is "
-                                "on the identity link", sc->path, bl_param_name(p), m->name);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: truth.%s: model '%s' uses the log link; the simulator's truth is "
+                                "on the identity link",
+                                sc->path, bl_param_name(p), m->name);
     }
     return BL_OK;
 }
@@ -1201,8 +1211,8 @@ static void schedule_trials(const bl_scenario *sc, gsl_rng *rng, trial_rec *tr, 
 
 /* Recordings in parallel, one participant per thread: each has its own random stream, so the files do not
  * depend on the thread count. The first failure in participant order is reported. */
-static bl_status write_recordings(const bl_scenario *sc, const trial_rec *tr, const char *rec_dir,
-                                  unsigned long seed, int threads, double *seconds, bl_error *err)
+static bl_status write_recordings(const bl_scenario *sc, const trial_rec *tr, const char *rec_dir, unsigned long seed,
+                                  int threads, double *seconds, bl_error *err)
 {
     size_t P = sc->n_participants, T = sc->trials_per_participant;
     bl_status *pst = calloc(P, sizeof *pst), st = BL_OK;
@@ -1292,9 +1302,10 @@ static bl_status draw_behaviour(const bl_scenario *sc, const bl_trials *trials, 
                 const truth_slope *ts = &tp->slopes[s];
                 const double *x = regressor(trials, ts->regressor);
                 if (!x)
-                    return bl_error_set(err, BL_ERR_INPUT, "%s: truth.%s.slopes.%s: the study has no numeric regressor "
-                                        "of that name (bands: study.power.bands)", sc->path, bl_param_name(p),
-                                        ts->regressor);
+                    return bl_error_set(err, BL_ERR_INPUT,
+                                        "%s: truth.%s.slopes.%s: the study has no numeric regressor "
+                                        "of that name (bands: study.power.bands)",
+                                        sc->path, bl_param_name(p), ts->regressor);
                 double xi = isfinite(x[i]) ? x[i] : 0.0;
                 v += ts->values[combo_index(sc, ts->by, ts->n_by, t->level)] * xi;
             }
@@ -1303,9 +1314,10 @@ static bl_status draw_behaviour(const bl_scenario *sc, const bl_trials *trials, 
         for (int p = 0; p < BL_NPARAM; p++) t->param[p] = wp.value[p];
         bl_error perr = {0};
         if (bl_wiener_check(&wp, &perr) != BL_OK)
-            return bl_error_set(err, BL_ERR_RANGE, "%s: truth gives invalid parameters for %s trial %zu: %s; make the "
-                                "slopes smaller or the intercepts larger", sc->path, sc->participants[t->participant],
-                                t->trial, perr.message);
+            return bl_error_set(err, BL_ERR_RANGE,
+                                "%s: truth gives invalid parameters for %s trial %zu: %s; make the "
+                                "slopes smaller or the intercepts larger",
+                                sc->path, sc->participants[t->participant], t->trial, perr.message);
         bl_status st = bl_wiener_sample(&wp, rng, &t->upper, &t->rt, err);
         if (st) return st;
         *n_upper += (size_t)t->upper;
@@ -1383,7 +1395,8 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
     double shift = regressor_shift(sc, first->trials, second->trials);
     size_t excluded = N - second->trials->n_kept;
     if (excluded > 0)
-        bl_warnings_add(warn, "%zu of %zu simulated trials are excluded by the study's keep rules or artifact checks; "
+        bl_warnings_add(warn,
+                        "%zu of %zu simulated trials are excluded by the study's keep rules or artifact checks; "
                         "the standardised regressors moved by up to %.3g (truth.json: regressor_shift_max)",
                         excluded, N, shift);
     if (!(tj = truth_json(sc, second->study, seed, N, excluded, shift))) {

@@ -8,7 +8,7 @@
 
 /* Fill x[0..n) with Gaussian noise shaped to a power spectrum proportional to 1/f^exponent above
  * `corner` Hz (flat below), scaled to the given RMS. fs in Hz. Uses one FFT of a fast size >= n. */
-bl_status bl_simulate_colored_noise(double *x, size_t n, double fs, double exponent, double corner,
-                                 double rms, gsl_rng *rng, bl_error *err);
+bl_status bl_simulate_colored_noise(double *x, size_t n, double fs, double exponent, double corner, double rms,
+                                    gsl_rng *rng, bl_error *err);
 
 #endif

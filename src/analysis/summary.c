@@ -17,10 +17,8 @@ static void lrt_text(const bl_comparison_row *r, char *out, size_t size)
     if (r->lrt_nested == 1 && !isfinite(r->lrt_p))
         snprintf(out, size, "vs %s: not tested (a fit did not converge)", r->lrt_against);
     else if (r->lrt_nested == 1)
-        snprintf(out, size, "vs %s: chi2(%g) = %.2f, p = %.3g", r->lrt_against, r->lrt_df, r->lrt_statistic,
-                 r->lrt_p);
-    else if (r->lrt_nested == 0)
-        snprintf(out, size, "vs %s: not nested", r->lrt_against ? r->lrt_against : "?");
+        snprintf(out, size, "vs %s: chi2(%g) = %.2f, p = %.3g", r->lrt_against, r->lrt_df, r->lrt_statistic, r->lrt_p);
+    else if (r->lrt_nested == 0) snprintf(out, size, "vs %s: not nested", r->lrt_against ? r->lrt_against : "?");
     else snprintf(out, size, "-");
 }
 
@@ -75,8 +73,8 @@ static void slopes_of(bl_textbuf *b, const bl_model_result *mr)
         const bl_coefficient *c = &fr->coef[j];
         if (strcmp(c->term, "intercept") == 0) continue;
         char name[256], est[32], lo[32], hi[32], p[32], ci[80];
-        snprintf(name, sizeof name, "%s: slope on %s%s%s%s", c->parameter, c->term, c->level[0] ? " [" : "",
-                 c->level, c->level[0] ? "]" : "");
+        snprintf(name, sizeof name, "%s: slope on %s%s%s%s", c->parameter, c->term, c->level[0] ? " [" : "", c->level,
+                 c->level[0] ? "]" : "");
         fmt_num(est, sizeof est, c->estimate, "%.4f");
         fmt_num(lo, sizeof lo, c->ci_low, "%.4f");
         fmt_num(hi, sizeof hi, c->ci_high, "%.4f");
@@ -85,10 +83,12 @@ static void slopes_of(bl_textbuf *b, const bl_model_result *mr)
         bl_textbuf_printf(b, "  %-40s %10s %23s %10s\n", name, est, ci, p);
     }
     if (mr->mode == BL_PARTICIPANTS_SEPARATE)
-        bl_textbuf_printf(b, "  (separate fits: group random-effects estimates; per-participant values in fits.json)\n");
+        bl_textbuf_printf(b,
+                          "  (separate fits: group random-effects estimates; per-participant values in fits.json)\n");
     for (size_t k = 0; k < mr->n_permutation; k++) {
         const bl_permutation_test *pt = &mr->permutation[k];
-        if (k == 0) bl_textbuf_printf(b, "  Permutation tests (the regressor shuffled within participant x condition):\n");
+        if (k == 0)
+            bl_textbuf_printf(b, "  Permutation tests (the regressor shuffled within participant x condition):\n");
         char stat[32];
         fmt_num(stat, sizeof stat, pt->statistic, "%.2f");
         bl_textbuf_printf(b, "  %s: slope on %s%s%s%s: 2 dLL = %s, p = %.4g (%zu of %zu refits reached it)\n",
@@ -108,7 +108,8 @@ char *bl_summary_fits(const bl_fit_set *set)
         return bl_textbuf_take(&b);
     }
     const bl_model_result *mr = &set->models[best];
-    bl_textbuf_printf(&b, "\nBest model by AIC: %s%s\n", mr->name, mr->converged ? "" : " (NOT CONVERGED: see fits.json)");
+    bl_textbuf_printf(&b, "\nBest model by AIC: %s%s\n", mr->name,
+                      mr->converged ? "" : " (NOT CONVERGED: see fits.json)");
     slopes_of(&b, mr);
     /* A close call is reported as one: the model BIC prefers, else the runner-up within 2 AIC units. */
     size_t rival = set->n_models;

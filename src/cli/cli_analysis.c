@@ -39,7 +39,8 @@ static void on_progress(void *user, bl_step step, const char *detail, size_t don
 
 void cli_analysis_options_help(FILE *out, unsigned o)
 {
-    if (o & CLI_OPT_MODEL) fprintf(out, "  --model NAME        fit only this model (repeat for several; default: every model)\n");
+    if (o & CLI_OPT_MODEL)
+        fprintf(out, "  --model NAME        fit only this model (repeat for several; default: every model)\n");
     if (o & CLI_OPT_OUT)
         fprintf(out, "  --out DIR           results folder (default: the study's \"output\", beside the study file)\n");
     if (o & CLI_OPT_FORCE)
@@ -47,12 +48,14 @@ void cli_analysis_options_help(FILE *out, unsigned o)
                      "                      one is complete\n");
     if (o & CLI_OPT_THREADS)
         fprintf(out, "  --threads N         threads, 1-1024 (default: all cores); results do not depend on it\n");
-    if (o & CLI_OPT_SEED) fprintf(out, "  --seed S            seed of the optimiser starts and the permutations (default 1)\n");
+    if (o & CLI_OPT_SEED)
+        fprintf(out, "  --seed S            seed of the optimiser starts and the permutations (default 1)\n");
     if (o & CLI_OPT_SCAN_PERMUTATIONS)
         fprintf(out, "  --permutations N    permutations for the family-wise error (default: the scan block's\n"
                      "                      \"permutations\")\n");
     if (o & CLI_OPT_PERMUTATIONS)
-        fprintf(out, "  --permutations N    permutation test of every slope coefficient with N refits (default 0: none)\n");
+        fprintf(out,
+                "  --permutations N    permutation test of every slope coefficient with N refits (default 0: none)\n");
     if (o & CLI_OPT_TIMINGS) fprintf(out, "  --timings           print the time per step even with --quiet\n");
     fprintf(out, "  --quiet             no progress, warnings or summary\n"
                  "  --help              this text\n");
@@ -85,7 +88,8 @@ static int parse(const cli_analysis_command *cmd, int argc, char **argv, cli_job
         } else if ((o & CLI_OPT_OUT) && ((v = cli_option_value(argc, argv, &i, "--out", &missing)) || missing)) {
             if (missing) return cli_usage_error(name, "option --out needs a value (a folder)");
             job->out_dir = v;
-        } else if ((o & CLI_OPT_THREADS) && ((v = cli_option_value(argc, argv, &i, "--threads", &missing)) || missing)) {
+        } else if ((o & CLI_OPT_THREADS) &&
+                   ((v = cli_option_value(argc, argv, &i, "--threads", &missing)) || missing)) {
             if (!cli_parse_threads(name, v, missing, &x)) return CLI_EXIT_USAGE;
             job->opt.threads = (int)x;
         } else if ((o & CLI_OPT_SEED) && ((v = cli_option_value(argc, argv, &i, "--seed", &missing)) || missing)) {
@@ -145,8 +149,10 @@ int cli_analysis_main(const cli_analysis_command *cmd, int argc, char **argv)
     job.opt.progress_user = &ps;
     bl_status st = bl_analysis_open(job.study_path, &job.opt, &a, &err);
     if (!st && cmd->needs_power && !bl_analysis_has_power(a))
-        st = bl_error_set(&err, BL_ERR_INPUT, "%s: the study has no \"power\" section, so there is no band power to "
-                          "compute", job.study_path);
+        st = bl_error_set(&err, BL_ERR_INPUT,
+                          "%s: the study has no \"power\" section, so there is no band power to "
+                          "compute",
+                          job.study_path);
     if (!st) st = run_steps(cmd, &job, a, &err);
     cli_progress("%s", "");
     if (a) cli_print_warnings(bl_analysis_warnings(a));

@@ -22,22 +22,22 @@ enum {
 
 typedef struct {
     const char *study_path;
-    const char *out_dir;   /* NULL: the study's "output" */
+    const char *out_dir; /* NULL: the study's "output" */
     int force, timings;
     bl_analysis_options opt;
 } cli_job;
 
 typedef struct {
-    const char *name;      /* "run" */
-    unsigned options;      /* CLI_OPT_* */
-    int needs_power;       /* the study must have a "power" section */
-    int fits;              /* fit the models */
-    unsigned outputs;      /* BL_OUTPUT_*; 0: nothing is written (check) */
+    const char *name; /* "run" */
+    unsigned options; /* CLI_OPT_* */
+    int needs_power;  /* the study must have a "power" section */
+    int fits;         /* fit the models */
+    unsigned outputs; /* BL_OUTPUT_*; 0: nothing is written (check) */
     void (*help)(FILE *out);
     /* What the command prints on success (not called with --quiet). Returns 0, or -1 when a summary is
      * NULL (memory ran out). */
     int (*print)(bl_analysis *a, const cli_job *job);
-    int scans;             /* run the time-frequency scan (bl_analysis_scan) */
+    int scans; /* run the time-frequency scan (bl_analysis_scan) */
 } cli_analysis_command;
 
 /* Parse, run the steps, print warnings and the result; returns the exit code. */

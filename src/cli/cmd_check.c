@@ -7,13 +7,12 @@ static const unsigned OPTIONS = CLI_OPT_THREADS;
 
 static void help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandlink check STUDY.json [--threads N] [--quiet]\n\n"
-            "Validates the study file, the trial table and every recording window without fitting or writing,\n"
-            "and prints a summary: participants, trials kept and excluded by reason, recordings (rate, channels,\n"
-            "duration, format), Welch settings, frequency resolution and bins per band, models. Exit 0 when\n"
-            "everything is usable, 2 with a message naming the culprit otherwise.\n\n"
-            "options:\n");
+    fprintf(out, "usage: bandlink check STUDY.json [--threads N] [--quiet]\n\n"
+                 "Validates the study file, the trial table and every recording window without fitting or writing,\n"
+                 "and prints a summary: participants, trials kept and excluded by reason, recordings (rate, channels,\n"
+                 "duration, format), Welch settings, frequency resolution and bins per band, models. Exit 0 when\n"
+                 "everything is usable, 2 with a message naming the culprit otherwise.\n\n"
+                 "options:\n");
     cli_analysis_options_help(out, OPTIONS);
 }
 

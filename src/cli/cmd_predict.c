@@ -21,40 +21,39 @@ enum { MAX_RT = 100000 };
 
 static void usage(FILE *out)
 {
-    fprintf(out,
-            "usage: bandlink predict --threshold A --drift V --nondecision T [--start W] [--drift-sd SV]\n"
-            "                        [--start-range SZ] [--nondecision-range ST]\n"
-            "                        [--contamination P --contamination-range LO,HI] [--rt R1,R2,..] [--json]\n"
-            "       bandlink predict --from FITS.json --model NAME [--at NAME=VALUE,..] [--participant P]\n"
-            "                        [--contamination-range LO,HI] [--json]\n\n"
-            "Choice probabilities, mean response times, RT quantiles (0.1 0.3 0.5 0.7 0.9) per boundary and\n"
-            "densities at the given response times, for the Wiener diffusion model with noise scale s = 1\n"
-            "(multiply threshold, drift and drift-sd from the s = 0.1 convention by 10).\n\n"
-            "  --threshold A           boundary separation, > 0\n"
-            "  --drift V               drift rate toward the upper boundary\n"
-            "  --nondecision T         non-decision time [s], >= 0\n"
-            "  --start W               relative starting point in (0, 1); default 0.5\n"
-            "  --drift-sd SV           across-trial SD of the drift, >= 0; default 0\n"
-            "  --start-range SZ        across-trial width of the start (relative), default 0\n"
-            "  --nondecision-range ST  across-trial width of the non-decision time [s], default 0\n"
-            "  --contamination P       share of uniform contaminant responses in [0, 1); default 0\n"
-            "  --contamination-range LO,HI  RT range [s] of the contaminants (required with P > 0)\n"
-            "  --rt R1,R2,..           response times [s] at which to print the densities [1/s]\n"
-            "  --json                  print one JSON object instead of a table\n\n"
-            "Predictions of a fitted model (fits.json of `bandlink run` or `bandlink fit`):\n"
-            "  --from FITS.json        read the model's coefficients and their covariance from this file\n"
-            "  --model NAME            the model to predict from\n"
-            "  --at NAME=VALUE,..      a value for every regressor the model uses, on the regressor's scale as\n"
-            "                          written in power.csv / trials.csv (standardised units when the study\n"
-            "                          standardises), and a level for every condition column it uses\n"
-            "                          (context=rich); the stimulus column (stimulus coding) is optional.\n"
-            "                          May be given several times\n"
-            "  --participant P         a participant's own fit (models fitted with participants separate)\n"
-            "  --contamination-range LO,HI  contaminant RT range [s], needed when the model predicts\n"
-            "                          contamination > 0\n"
-            "  --json                  print one JSON object instead of a table\n"
-            "Parameters, P(upper), P(lower) and mean RTs get delta-method 95%% intervals (numerical gradient of\n"
-            "the engine for the derived quantities); --rt and the parameter options do not apply.\n");
+    fprintf(out, "usage: bandlink predict --threshold A --drift V --nondecision T [--start W] [--drift-sd SV]\n"
+                 "                        [--start-range SZ] [--nondecision-range ST]\n"
+                 "                        [--contamination P --contamination-range LO,HI] [--rt R1,R2,..] [--json]\n"
+                 "       bandlink predict --from FITS.json --model NAME [--at NAME=VALUE,..] [--participant P]\n"
+                 "                        [--contamination-range LO,HI] [--json]\n\n"
+                 "Choice probabilities, mean response times, RT quantiles (0.1 0.3 0.5 0.7 0.9) per boundary and\n"
+                 "densities at the given response times, for the Wiener diffusion model with noise scale s = 1\n"
+                 "(multiply threshold, drift and drift-sd from the s = 0.1 convention by 10).\n\n"
+                 "  --threshold A           boundary separation, > 0\n"
+                 "  --drift V               drift rate toward the upper boundary\n"
+                 "  --nondecision T         non-decision time [s], >= 0\n"
+                 "  --start W               relative starting point in (0, 1); default 0.5\n"
+                 "  --drift-sd SV           across-trial SD of the drift, >= 0; default 0\n"
+                 "  --start-range SZ        across-trial width of the start (relative), default 0\n"
+                 "  --nondecision-range ST  across-trial width of the non-decision time [s], default 0\n"
+                 "  --contamination P       share of uniform contaminant responses in [0, 1); default 0\n"
+                 "  --contamination-range LO,HI  RT range [s] of the contaminants (required with P > 0)\n"
+                 "  --rt R1,R2,..           response times [s] at which to print the densities [1/s]\n"
+                 "  --json                  print one JSON object instead of a table\n\n"
+                 "Predictions of a fitted model (fits.json of `bandlink run` or `bandlink fit`):\n"
+                 "  --from FITS.json        read the model's coefficients and their covariance from this file\n"
+                 "  --model NAME            the model to predict from\n"
+                 "  --at NAME=VALUE,..      a value for every regressor the model uses, on the regressor's scale as\n"
+                 "                          written in power.csv / trials.csv (standardised units when the study\n"
+                 "                          standardises), and a level for every condition column it uses\n"
+                 "                          (context=rich); the stimulus column (stimulus coding) is optional.\n"
+                 "                          May be given several times\n"
+                 "  --participant P         a participant's own fit (models fitted with participants separate)\n"
+                 "  --contamination-range LO,HI  contaminant RT range [s], needed when the model predicts\n"
+                 "                          contamination > 0\n"
+                 "  --json                  print one JSON object instead of a table\n"
+                 "Parameters, P(upper), P(lower) and mean RTs get delta-method 95%% intervals (numerical gradient of\n"
+                 "the engine for the derived quantities); --rt and the parameter options do not apply.\n");
 }
 
 /* Parse "x,y,..." into a new array; on error print a usage message naming --rt and the item. */
@@ -69,7 +68,8 @@ static int parse_list(const char *opt, const char *value, double **out, size_t *
         size_t len = comma ? (size_t)(comma - s) : strlen(s);
         char item[128];
         if (len == 0 || len >= sizeof item) {
-            cli_usage_error(CMD, "option %s: '%.*s' in '%s' is not a number", opt, (int)(len < 64 ? len : 64), s, value);
+            cli_usage_error(CMD, "option %s: '%.*s' in '%s' is not a number", opt, (int)(len < 64 ? len : 64), s,
+                            value);
             free(xs);
             return 0;
         }
@@ -104,7 +104,7 @@ static int parse_list(const char *opt, const char *value, double **out, size_t *
 }
 
 typedef struct {
-    double p[2];        /* [lower, upper] */
+    double p[2]; /* [lower, upper] */
     double mean[2];
     int mean_ok[2];
     double q[2][5];
@@ -268,8 +268,9 @@ static void from_options_free(from_options *o)
 /* Options of the --from mode; 1 ok, 0 usage error printed, -1 --help printed. */
 static int parse_from(int argc, char **argv, from_options *o)
 {
-    static const char *const raw[] = {"--threshold", "--drift", "--nondecision", "--start", "--drift-sd",
-                                      "--start-range", "--nondecision-range", "--contamination", "--rt"};
+    static const char *const raw[] = {"--threshold", "--drift",       "--nondecision",       "--start",
+                                      "--drift-sd",  "--start-range", "--nondecision-range", "--contamination",
+                                      "--rt"};
     for (int i = 1; i < argc; i++) {
         const char *a = argv[i];
         if (!strcmp(a, "--help") || !strcmp(a, "-h")) {
@@ -608,7 +609,8 @@ int cmd_predict(int argc, char **argv)
             goto done;
         }
     if (par.value[BL_CONTAMINATION] > 0 && !have_range) {
-        cli_usage_error(CMD, "option --contamination %g needs --contamination-range LO,HI", par.value[BL_CONTAMINATION]);
+        cli_usage_error(CMD, "option --contamination %g needs --contamination-range LO,HI",
+                        par.value[BL_CONTAMINATION]);
         goto done;
     }
     bl_error err = {0};

@@ -7,14 +7,13 @@ static const unsigned OPTIONS = CLI_OPT_OUT | CLI_OPT_FORCE | CLI_OPT_THREADS | 
 
 static void help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandlink run STUDY.json [--out DIR] [--force] [--threads N] [--seed S] [--permutations N]\n"
-            "                    [--model NAME ...] [--timings] [--quiet]\n\n"
-            "The whole job: band power per trial, every model fitted and compared, goodness of fit, figures and\n"
-            "a report. Writes power.csv, fits.json, comparison.csv, trials.csv, fit_quantiles.csv, figures/,\n"
-            "report.html and provenance.json into the results folder (docs/outputs.md), then prints the model\n"
-            "comparison, the best model's slopes with 95%% CIs and p-values, and the time per step.\n\n"
-            "options:\n");
+    fprintf(out, "usage: bandlink run STUDY.json [--out DIR] [--force] [--threads N] [--seed S] [--permutations N]\n"
+                 "                    [--model NAME ...] [--timings] [--quiet]\n\n"
+                 "The whole job: band power per trial, every model fitted and compared, goodness of fit, figures and\n"
+                 "a report. Writes power.csv, fits.json, comparison.csv, trials.csv, fit_quantiles.csv, figures/,\n"
+                 "report.html and provenance.json into the results folder (docs/outputs.md), then prints the model\n"
+                 "comparison, the best model's slopes with 95%% CIs and p-values, and the time per step.\n\n"
+                 "options:\n");
     cli_analysis_options_help(out, OPTIONS);
     fprintf(out, "\nThe results are written into a hidden folder beside DIR and moved into place at the end, so an\n"
                  "interrupted run leaves earlier results as they were. Research use only; not a medical device.\n");

@@ -3,7 +3,8 @@
 #include "cli_analysis.h"
 #include "commands.h"
 
-static const unsigned OPTIONS = CLI_OPT_OUT | CLI_OPT_FORCE | CLI_OPT_THREADS | CLI_OPT_SEED | CLI_OPT_SCAN_PERMUTATIONS | CLI_OPT_TIMINGS;
+static const unsigned OPTIONS = CLI_OPT_OUT | CLI_OPT_FORCE | CLI_OPT_THREADS | CLI_OPT_SEED |
+                                CLI_OPT_SCAN_PERMUTATIONS | CLI_OPT_TIMINGS;
 
 static void help(FILE *out)
 {

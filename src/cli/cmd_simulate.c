@@ -7,20 +7,19 @@
 
 static void help(FILE *out)
 {
-    fprintf(out,
-            "usage: bandlink simulate SCENARIO.json --out DIR [--seed S] [--threads N] [--force] [--quiet]\n\n"
-            "Writes a complete synthetic study with known truth into DIR: recordings/ (continuous traces,\n"
-            "24-bit FLAC or WAV), trials.csv, study.json (analyses it), truth.json (the true coefficients on the\n"
-            "terms and levels of the fitted model) and truth_trials.csv (true parameters per trial).\n"
-            "Behaviour is drawn from the band power the study itself measures. Same seed, same files.\n\n"
-            "options:\n"
-            "  --out DIR      folder to create (required); an existing folder needs --force\n"
-            "  --seed S       random seed (default: the scenario's \"seed\")\n"
-            "  --threads N    threads for measuring band power (default: all cores)\n"
-            "  --force        replace DIR (only a folder bandlink wrote), once the new study is complete\n"
-            "  --quiet        no warnings or summary\n"
-            "  --help         this text\n\n"
-            "The scenario keys are described in docs/simulate.md; 'bash demo/run' uses demo/scenario.json.\n");
+    fprintf(out, "usage: bandlink simulate SCENARIO.json --out DIR [--seed S] [--threads N] [--force] [--quiet]\n\n"
+                 "Writes a complete synthetic study with known truth into DIR: recordings/ (continuous traces,\n"
+                 "24-bit FLAC or WAV), trials.csv, study.json (analyses it), truth.json (the true coefficients on the\n"
+                 "terms and levels of the fitted model) and truth_trials.csv (true parameters per trial).\n"
+                 "Behaviour is drawn from the band power the study itself measures. Same seed, same files.\n\n"
+                 "options:\n"
+                 "  --out DIR      folder to create (required); an existing folder needs --force\n"
+                 "  --seed S       random seed (default: the scenario's \"seed\")\n"
+                 "  --threads N    threads for measuring band power (default: all cores)\n"
+                 "  --force        replace DIR (only a folder bandlink wrote), once the new study is complete\n"
+                 "  --quiet        no warnings or summary\n"
+                 "  --help         this text\n\n"
+                 "The scenario keys are described in docs/simulate.md; 'bash demo/run' uses demo/scenario.json.\n");
 }
 
 int cmd_simulate(int argc, char **argv)
@@ -77,8 +76,8 @@ int cmd_simulate(int argc, char **argv)
     bl_warnings_clear(&warn);
     if (st != BL_OK) return cli_fail(&err);
     if (!cli_quiet) {
-        printf("simulated %zu participants, %zu trials, %.0f s of recording (seed %lu)\n", sum.participants,
-               sum.trials, sum.seconds, sum.seed);
+        printf("simulated %zu participants, %zu trials, %.0f s of recording (seed %lu)\n", sum.participants, sum.trials,
+               sum.seconds, sum.seed);
         printf("upper-boundary (correct) share %.3f, mean RT %.3f s\n", sum.p_upper, sum.mean_rt);
         printf("study: %s/study.json   truth: %s/truth.json\n", out, out);
     }

@@ -23,16 +23,14 @@ static const struct {
 
 static void usage(FILE *out)
 {
-    fprintf(out,
-            "usage: bandlink COMMAND [OPTIONS]\n\n"
-            "Links trial-wise oscillation band power to the parameters of the Wiener diffusion model.\n\n"
-            "commands:\n");
+    fprintf(out, "usage: bandlink COMMAND [OPTIONS]\n\n"
+                 "Links trial-wise oscillation band power to the parameters of the Wiener diffusion model.\n\n"
+                 "commands:\n");
     for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
         fprintf(out, "  %-9s %s\n", commands[i].name, commands[i].summary);
-    fprintf(out,
-            "\ncommon options: --help, --version, --quiet\n"
-            "exit codes: 0 ok, 1 failure while running, 2 bad usage or bad input\n"
-            "'bandlink COMMAND --help' describes a command. Research use only; not a medical device.\n");
+    fprintf(out, "\ncommon options: --help, --version, --quiet\n"
+                 "exit codes: 0 ok, 1 failure while running, 2 bad usage or bad input\n"
+                 "'bandlink COMMAND --help' describes a command. Research use only; not a medical device.\n");
 }
 
 int main(int argc, char **argv)

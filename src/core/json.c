@@ -48,7 +48,8 @@ bl_status bl_json_parse(const char *text, const char *name, cJSON **out, bl_erro
     /* The length counts the NUL that require_null_terminated checks. */
     *out = cJSON_ParseWithLengthOpts(text, len + 1, &end, 1);
     if (*out) return BL_OK;
-    if (bl_json_alloc_failures() != failures_before) return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory while reading the JSON", name);
+    if (bl_json_alloc_failures() != failures_before)
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory while reading the JSON", name);
     size_t line, col;
     const char *at = end ? end : text + len;
     line_col(text, at, &line, &col);
@@ -57,7 +58,8 @@ bl_status bl_json_parse(const char *text, const char *name, cJSON **out, bl_erro
     for (const char *p = at; *p && *p != '\n' && k < 16; p++) near[k++] = *p;
     near[k] = '\0';
     if (at >= text + len || !near[0])
-        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: JSON syntax error: unexpected end of file", name, line, col);
+        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: JSON syntax error: unexpected end of file", name, line,
+                            col);
     return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: JSON syntax error near '%s'", name, line, col, near);
 }
 
@@ -65,7 +67,8 @@ bl_status bl_json_read_file(const char *path, const char *what, char **text, bl_
 {
     *text = NULL;
     FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open %s: %s", path, what, strerror(errno));
+    if (!f)
+        return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open %s: %s", path, what, strerror(errno));
     char *buf = NULL;
     size_t len = 0, cap = 0;
     for (;;) {

@@ -71,8 +71,8 @@ bl_status bl_outfile_commit(bl_outfile *f, bl_error *err)
     if (e) {
         st = bl_error_set(err, BL_ERR_IO, "%s: write failed: %s", f->target, strerror(e));
     } else if (rename(f->temp, f->target) != 0) {
-        st = bl_error_set(err, BL_ERR_IO, "%s: cannot rename the finished file into place: %s",
-                          f->target, strerror(errno));
+        st = bl_error_set(err, BL_ERR_IO, "%s: cannot rename the finished file into place: %s", f->target,
+                          strerror(errno));
     } else {
         free(f->temp);
         f->temp = NULL; /* renamed: nothing to remove */

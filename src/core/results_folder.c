@@ -276,8 +276,10 @@ static bl_status marker_write(const char *dir, const char *command, bl_error *er
     qsort(l.entry, l.n, sizeof *l.entry, cmp_str); /* same bytes for the same results */
     if ((st = bl_outfile_open(path, &o, err))) goto done;
     FILE *f = bl_outfile_stream(o);
-    fprintf(f, "bandlink results folder, written by `bandlink %s`. `--force` replaces this folder only while it "
-               "holds nothing but the entries below.\n", command);
+    fprintf(f,
+            "bandlink results folder, written by `bandlink %s`. `--force` replaces this folder only while it "
+            "holds nothing but the entries below.\n",
+            command);
     for (size_t i = 0; i < l.n; i++) fprintf(f, "%s\n", l.entry[i]);
     st = bl_outfile_commit(o, err);
     o = NULL;
@@ -300,14 +302,18 @@ static bl_status check_target(const char *target, const char *name, const char *
     if (!name[0] || !strcmp(name, ".") || !strcmp(name, "..")) {
         st = bl_error_set(err, BL_ERR_USAGE, "'%s' cannot be used as an output folder; name a new folder", target);
     } else if (lstat(target, &sb) == 0 && S_ISLNK(sb.st_mode)) {
-        st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s is a symbolic link; give the folder it points to, "
-                          "or a new folder", target);
+        st = bl_error_set(err, BL_ERR_USAGE,
+                          "the output folder %s is a symbolic link; give the folder it points to, "
+                          "or a new folder",
+                          target);
     } else if (stat(target, &sb) == 0) {
         if (!S_ISDIR(sb.st_mode)) {
             st = bl_error_set(err, BL_ERR_EXISTS, "%s exists and is not a folder; choose another output", target);
         } else if (!force) {
-            st = bl_error_set(err, BL_ERR_EXISTS, "the output folder %s already exists; use --force to replace it "
-                              "(it is replaced only once the new results are complete)", target);
+            st = bl_error_set(err, BL_ERR_EXISTS,
+                              "the output folder %s already exists; use --force to replace it "
+                              "(it is replaced only once the new results are complete)",
+                              target);
         } else {
             /* A marked folder holding only its entries, or a folder holding nothing but marked ones. */
             entry_list none = {0};
@@ -315,9 +321,10 @@ static bl_status check_target(const char *target, const char *name, const char *
             if (owned == 0 && !foreign) owned = check_owned(target, "", &none, &foreign);
             if (owned < 0) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking %s", target);
             else if (owned == 0)
-                st = bl_error_set(err, BL_ERR_EXISTS, "the output folder %s holds '%s', which bandlink did not "
-                                  "write; it is not replaced even with --force: choose another folder", target,
-                                  foreign ? foreign : "?");
+                st = bl_error_set(err, BL_ERR_EXISTS,
+                                  "the output folder %s holds '%s', which bandlink did not "
+                                  "write; it is not replaced even with --force: choose another folder",
+                                  target, foreign ? foreign : "?");
         }
     } else if (errno != ENOENT) {
         st = bl_error_set(err, BL_ERR_IO, "%s: %s", target, strerror(errno));
@@ -342,8 +349,10 @@ bl_status bl_results_folder_check(const char *target, int force, const char *con
         if (!inputs[i]) continue;
         if ((st = bl_path_inside(inputs[i], target, &inside, err))) break;
         if (inside)
-            st = bl_error_set(err, BL_ERR_USAGE, "the output folder %s holds an input (%s); choose another output "
-                              "folder", target, inputs[i]);
+            st = bl_error_set(err, BL_ERR_USAGE,
+                              "the output folder %s holds an input (%s); choose another output "
+                              "folder",
+                              target, inputs[i]);
     }
     if (!st) st = check_target(target, name, parent, force, &foreign, err);
     free(foreign);
@@ -431,8 +440,7 @@ static bl_status swap_by_rename(bl_results_folder *s, bl_error *err)
     if (rename(s->target, aside) != 0) {
         st = bl_error_set(err, BL_ERR_IO, "%s: cannot move the old results aside: %s", s->target, strerror(errno));
     } else if (rename(s->temp, s->target) != 0) {
-        st = bl_error_set(err, BL_ERR_IO, "%s: cannot move the new results into place: %s", s->target,
-                          strerror(errno));
+        st = bl_error_set(err, BL_ERR_IO, "%s: cannot move the new results into place: %s", s->target, strerror(errno));
         rename(aside, s->target);
     } else {
         s->temp[0] = '\0';
@@ -449,7 +457,8 @@ bl_status bl_results_folder_commit(bl_results_folder *s, bl_error *err)
     bl_status st = marker_write(s->temp, s->command, err);
     if (st) goto done;
     if (fsync_dir(s->temp) != 0) {
-        st = bl_error_set(err, BL_ERR_IO, "%s: cannot flush the finished results to disk: %s", s->target, strerror(errno));
+        st = bl_error_set(err, BL_ERR_IO, "%s: cannot flush the finished results to disk: %s", s->target,
+                          strerror(errno));
         goto done;
     }
     if (!s->replace) {

@@ -12,9 +12,9 @@ enum { BL_SHA256_DIGEST_SIZE = 32, BL_SHA256_HEX_SIZE = 65 /* 64 hex digits + NU
 
 typedef struct {
     uint32_t state[8];
-    uint64_t length;          /* bytes hashed so far */
-    unsigned char block[64];  /* pending partial block */
-    size_t used;              /* bytes in block */
+    uint64_t length;         /* bytes hashed so far */
+    unsigned char block[64]; /* pending partial block */
+    size_t used;             /* bytes in block */
 } bl_sha256;
 
 void bl_sha256_init(bl_sha256 *ctx);

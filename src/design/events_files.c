@@ -107,11 +107,11 @@ static bl_status vmrk_events(const char *path, FILE *m, bl_error *err)
         char *end;
         double pos = f[2] ? strtod(f[2], &end) : NAN, pts = f[3] && *f[3] ? strtod(f[3], NULL) : 1;
         if (!f[2] || *end || !(pos >= 1)) {
-            st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: marker position \"%s\" is not a sample number >= 1", path, lineno,
-                              f[2] ? f[2] : "");
+            st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: marker position \"%s\" is not a sample number >= 1", path,
+                              lineno, f[2] ? f[2] : "");
             break;
         }
-        fprintf(m, "%.17g\t%.17g\t", (pos - 1) / rate, pts / rate); /* "points": the size in samples */
+        fprintf(m, "%.17g\t%.17g\t", (pos - 1) / rate, pts / rate);   /* "points": the size in samples */
         fprintf(m, "%s/%s\t%.0f\t", f[0], f[1] ? f[1] : "", pos - 1); /* "Stimulus/S  1": trials.split parts it */
         tsv_field(m, f[4] && *f[4] ? f[4] : NULL, 1);
     }
@@ -141,8 +141,10 @@ static bl_status tal_events(const char *path, const unsigned char *b, size_t n, 
         char *end;
         double t = strtod(onset, &end);
         if ((onset[0] != '+' && onset[0] != '-') || *end || i >= n || b[i] != 0x14)
-            return bl_error_set(err, BL_ERR_INPUT, "%s: data record %lld: annotation onset \"%s\" is not a TAL "
-                                "(+seconds, then 0x14)", path, record + 1, onset);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: data record %lld: annotation onset \"%s\" is not a TAL "
+                                "(+seconds, then 0x14)",
+                                path, record + 1, onset);
         i++;
         while (i < n && b[i] && b[i] != 0) { /* texts, each ended by 0x14; the TAL ends with 0x00 */
             size_t ts = i;
@@ -183,8 +185,10 @@ static bl_status edf_events(const char *path, FILE *m, bl_error *err)
     if (ns < 1 || ns > 100000 || hb != 256 * (ns + 1) || !(h = malloc((size_t)hb)) ||
         fread(h + 256, 1, (size_t)hb - 256, f) != (size_t)hb - 256) {
         st = h || ns < 1 || ns > 100000 || hb != 256 * (ns + 1)
-                 ? bl_error_set(err, BL_ERR_INPUT, "%s: not a readable EDF+/BDF+ header (number of signals %ld, header "
-                                "bytes %ld)", path, ns, hb)
+                 ? bl_error_set(err, BL_ERR_INPUT,
+                                "%s: not a readable EDF+/BDF+ header (number of signals %ld, header "
+                                "bytes %ld)",
+                                path, ns, hb)
                  : bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
@@ -204,8 +208,10 @@ static bl_status edf_events(const char *path, FILE *m, bl_error *err)
         rec_bytes += spr > 0 ? (size_t)spr * (size_t)bps : 0;
     }
     if (!found) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: no \"EDF Annotations\" signal, so no events (EDF+ and BDF+ files hold "
-                          "them)", path);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: no \"EDF Annotations\" signal, so no events (EDF+ and BDF+ files hold "
+                          "them)",
+                          path);
         goto done;
     }
     if (!(block = malloc(ann_len + 1))) {
@@ -217,7 +223,8 @@ static bl_status edf_events(const char *path, FILE *m, bl_error *err)
         if (fseeko(f, (off_t)hb + (off_t)r * (off_t)rec_bytes + (off_t)ann_off, SEEK_SET) != 0 ||
             fread(block, 1, ann_len, f) != ann_len) {
             if (nrec >= 0)
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: truncated: data record %ld of %ld is missing", path, r + 1, nrec);
+                st = bl_error_set(err, BL_ERR_INPUT, "%s: truncated: data record %ld of %ld is missing", path, r + 1,
+                                  nrec);
             break;
         }
         st = tal_events(path, block, ann_len, r, m, err);
@@ -298,7 +305,8 @@ static bl_status nwb_events(const char *path, FILE *m, bl_error *err)
     if (f < 0) return bl_error_set(err, BL_ERR_INPUT, "%s: cannot open as an HDF5 (NWB) file", path);
     bl_status st = BL_OK;
     hid_t g = H5Lexists(f, "/intervals", H5P_DEFAULT) > 0 && H5Lexists(f, "/intervals/trials", H5P_DEFAULT) > 0
-                  ? H5Gopen2(f, "/intervals/trials", H5P_DEFAULT) : -1;
+                  ? H5Gopen2(f, "/intervals/trials", H5P_DEFAULT)
+                  : -1;
     name_list l;
     l.n = 0;
     char **col[64] = {0};
@@ -324,8 +332,10 @@ static bl_status nwb_events(const char *path, FILE *m, bl_error *err)
         if (strcmp(l.names[k], "stop_time") == 0) c_stop = (int)k;
     }
     if (c_start < 0 || c_stop < 0 || !col[c_start] || !col[c_stop]) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: intervals/trials needs numeric start_time and stop_time columns of "
-                          "equal length", path);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: intervals/trials needs numeric start_time and stop_time columns of "
+                          "equal length",
+                          path);
         goto done;
     }
     fputs("onset\tduration", m);
@@ -370,7 +380,9 @@ bl_status bl_events_table_read(const char *path, bl_table **out, bl_error *err)
     FILE *m = open_memstream(&text, &len);
     if (!m) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     int kind = bl_events_file_kind(path);
-    bl_status st = kind == 1 ? vmrk_events(path, m, err) : kind == 2 ? edf_events(path, m, err) : nwb_events(path, m, err);
+    bl_status st = kind == 1   ? vmrk_events(path, m, err)
+                   : kind == 2 ? edf_events(path, m, err)
+                               : nwb_events(path, m, err);
     if (fclose(m) != 0 && !st) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     if (!st) st = bl_table_parse(text, len, path, out, err);
     free(text);

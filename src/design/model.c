@@ -48,8 +48,7 @@ int bl_model_params_valid(const bl_wiener_params *p)
     if (!(v[BL_NONDECISION] >= 0)) return 0;
     if (!(v[BL_DRIFT_SD] >= 0)) return 0;
     if (!(v[BL_START_RANGE] >= 0 && v[BL_START_RANGE] < 1)) return 0;
-    if (v[BL_START_RANGE] > 0 &&
-        !(v[BL_START] - v[BL_START_RANGE] / 2 > 0 && v[BL_START] + v[BL_START_RANGE] / 2 < 1))
+    if (v[BL_START_RANGE] > 0 && !(v[BL_START] - v[BL_START_RANGE] / 2 > 0 && v[BL_START] + v[BL_START_RANGE] / 2 < 1))
         return 0;
     if (!(v[BL_NONDECISION_RANGE] >= 0)) return 0;
     if (!(v[BL_NONDECISION] - v[BL_NONDECISION_RANGE] / 2 >= 0)) return 0;
@@ -91,8 +90,7 @@ void bl_model_destroy(bl_model *m)
 /* Level combinations of `cols` over the used trials: level index per trial, and the names
  * ("v1:v2") in order of first appearance. On error names model, parameter and column. */
 static bl_status make_levels(const bl_model *m, const bl_trials *trials, char *const *cols, size_t n_cols,
-                             const char *param, size_t **level_out, char ***names_out, size_t *n_out,
-                             bl_error *err)
+                             const char *param, size_t **level_out, char ***names_out, size_t *n_out, bl_error *err)
 {
     const bl_table *t = trials->table;
     int *ci = calloc(n_cols ? n_cols : 1, sizeof *ci);
@@ -199,7 +197,8 @@ static void coef_label(const bl_model *m, size_t j, char *buf, size_t n)
  * of columns that is already deficient (eigenvalues of its Gram matrix) has a null vector naming
  * exactly them, and the last of them adds nothing to the ones before it; without it, the null
  * vector of the whole design (last row of vt, k x k) is used. */
-static bl_status report_collinearity(const bl_model *m, bl_param p, size_t k, const double *vt, double cond, bl_error *err)
+static bl_status report_collinearity(const bl_model *m, bl_param p, size_t k, const double *vt, double cond,
+                                     bl_error *err)
 {
     const bl_param_design *d = &m->par[p];
     double *G = calloc(k * k, sizeof *G), *Gj = malloc(k * k * sizeof *Gj), *ev = malloc(k * sizeof *ev);
@@ -301,11 +300,11 @@ static bl_status check_rank(const bl_model *m, bl_param p, bl_error *err)
         st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory checking the design", m->name);
         goto done;
     }
-    lapack_int info = LAPACKE_dgesvd(LAPACK_ROW_MAJOR, 'N', 'A', (lapack_int)m->n, (lapack_int)k, X,
-                                     (lapack_int)k, s, NULL, 1, vt, (lapack_int)k, superb);
+    lapack_int info = LAPACKE_dgesvd(LAPACK_ROW_MAJOR, 'N', 'A', (lapack_int)m->n, (lapack_int)k, X, (lapack_int)k, s,
+                                     NULL, 1, vt, (lapack_int)k, superb);
     if (info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR) {
-        st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': parameter '%s': out of memory checking the rank of the design",
-                          m->name, pname);
+        st = bl_error_set(err, BL_ERR_NOMEM,
+                          "model '%s': parameter '%s': out of memory checking the rank of the design", m->name, pname);
         goto done;
     }
     if (info != 0) {
@@ -421,8 +420,8 @@ static bl_status slope_values(bl_model *m, const bl_trials *trials, const bl_slo
 
 /* The design of parameter p: fixed, or free with its intercept levels and its slopes. Coefficients
  * are numbered from *n_coef on, which is advanced past them. */
-static bl_status param_design(bl_model *m, const bl_trials *trials, const bl_param_spec *ps, bl_param p,
-                              level_sets *ls, size_t *n_coef, bl_error *err)
+static bl_status param_design(bl_model *m, const bl_trials *trials, const bl_param_spec *ps, bl_param p, level_sets *ls,
+                              size_t *n_coef, bl_error *err)
 {
     bl_param_design *d = &m->par[p];
     const char *pname = bl_param_name(p);
@@ -500,8 +499,8 @@ static bl_status coef_table(bl_model *m, size_t n_coef, level_sets *ls, bl_error
     return BL_OK;
 }
 
-bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use,
-                         bl_model **out, bl_error *err)
+bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use, bl_model **out,
+                         bl_error *err)
 {
     *out = NULL;
     const char *mname = spec->name ? spec->name : "(unnamed)";
@@ -636,8 +635,8 @@ int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_
     return bl_model_params_valid(p);
 }
 
-bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, long level,
-                                 gsl_rng *rng, bl_error *err)
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, long level, gsl_rng *rng,
+                                 bl_error *err)
 {
     if ((unsigned)param >= BL_NPARAM || s >= m->par[param].n_slopes)
         return bl_error_set(err, BL_ERR_INTERNAL, "model '%s': no slope %zu on parameter %d", m->name, s, param);

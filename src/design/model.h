@@ -31,17 +31,17 @@ typedef struct bl_model bl_model;
 
 typedef struct {
     bl_param param;
-    int slope;            /* -1 for an intercept, else the index of the slope within the parameter */
-    const char *term;     /* "intercept" or the regressor name */
-    const char *level;    /* "rich", "rich:easy" (values of the columns joined by ':'), "" when single */
+    int slope;         /* -1 for an intercept, else the index of the slope within the parameter */
+    const char *term;  /* "intercept" or the regressor name */
+    const char *level; /* "rich", "rich:easy" (values of the columns joined by ':'), "" when single */
 } bl_coef_info;
 
 /* Compile `spec` against `trials`. `use` (n flags, may be NULL) selects table rows to fit among the
  * kept ones (NULL: every kept trial). Errors (BL_ERR_MODEL, message naming the model, the parameter
  * and the level or name): unknown regressor or column, a regressor missing or not numeric on a used
  * trial, no trials, a rank-deficient or collinear design (singular value test by LAPACKE SVD). */
-bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials,
-                         const unsigned char *use, bl_model **out, bl_error *err);
+bl_status bl_model_build(const bl_model_spec *spec, const bl_trials *trials, const unsigned char *use, bl_model **out,
+                         bl_error *err);
 void bl_model_destroy(bl_model *m);
 /* A deep copy (for permutation refits). BL_ERR_NOMEM (*out NULL) when memory ran out. */
 bl_status bl_model_copy(const bl_model *m, bl_model **out, bl_error *err);
@@ -51,7 +51,7 @@ const bl_coef_info *bl_model_coef(const bl_model *m, size_t j);
 size_t bl_model_n_trials(const bl_model *m);
 /* Table row of used trial k. */
 size_t bl_model_row(const bl_model *m, size_t k);
-int bl_model_param_free(const bl_model *m, bl_param param);    /* 1 when the parameter has coefficients */
+int bl_model_param_free(const bl_model *m, bl_param param); /* 1 when the parameter has coefficients */
 
 /* Index of the intercept coefficient of `param` that used trial k falls in (param must be free). */
 size_t bl_model_intercept_index(const bl_model *m, bl_param param, size_t k);
@@ -68,8 +68,8 @@ int bl_model_predict(const bl_model *m, const double *coef, size_t k, bl_wiener_
  * given by cell[k] (k = used trial), with a Fisher-Yates shuffle per cell driven by `rng`. level >= 0:
  * only the trials of that level of the slope are shuffled (among themselves, within each cell), the test
  * of that one coefficient; level < 0: every trial. */
-bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, long level,
-                                 gsl_rng *rng, bl_error *err);
+bl_status bl_model_permute_slope(bl_model *m, bl_param param, size_t s, const size_t *cell, long level, gsl_rng *rng,
+                                 bl_error *err);
 /* Levels (coefficients) of slope s of `param`; 0 when there is no such slope. */
 size_t bl_model_slope_levels(const bl_model *m, bl_param param, size_t s);
 /* The model without one coefficient of slope s: the regressor is set to 0 on that level's trials, so the

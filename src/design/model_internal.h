@@ -9,28 +9,28 @@ typedef struct {
     size_t n_by;
     char **by;
     size_t n_levels, first_coef;
-    size_t *level;     /* per used trial: level index */
-    double *x;         /* per used trial: regressor value as fitted (maybe shuffled) */
-    double *x_orig;    /* per used trial: the observed value */
-    double rms;        /* root mean square of x over used trials (optimiser scaling) */
+    size_t *level;  /* per used trial: level index */
+    double *x;      /* per used trial: regressor value as fitted (maybe shuffled) */
+    double *x_orig; /* per used trial: the observed value */
+    double rms;     /* root mean square of x over used trials (optimiser scaling) */
 } bl_slope_design;
 
 typedef struct {
     int is_free;
-    int link;          /* BL_LINK_IDENTITY or BL_LINK_LOG */
+    int link; /* BL_LINK_IDENTITY or BL_LINK_LOG */
     double fixed;
     size_t n_per;
     char **per;
     size_t n_levels, first_coef;
-    size_t *level;     /* per used trial: intercept level index */
+    size_t *level; /* per used trial: intercept level index */
     size_t n_slopes;
     bl_slope_design *slopes;
 } bl_param_design;
 
 struct bl_model {
     char *name;
-    size_t n;          /* used trials */
-    size_t *row;       /* table row of each used trial */
+    size_t n;    /* used trials */
+    size_t *row; /* table row of each used trial */
     double *rt;
     int *upper, *sign;
     size_t *participant;

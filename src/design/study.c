@@ -132,8 +132,7 @@ static bl_status get_object(ctx *c, const cJSON *obj, const char *path, const ch
     return BL_OK;
 }
 
-static bl_status get_string(ctx *c, const cJSON *obj, const char *path, const char *key, const char *def,
-                            char **out)
+static bl_status get_string(ctx *c, const cJSON *obj, const char *path, const char *key, const char *def, char **out)
 {
     char k[256];
     join_key(k, sizeof k, path, key);
@@ -206,7 +205,8 @@ static bl_status get_string_array(ctx *c, const cJSON *v, const char *k, int all
 {
     *out = NULL;
     *n_out = 0;
-    if (!cJSON_IsArray(v)) return bad(c, k, v, allow_numbers ? "must be an array of strings or numbers" : "must be an array of strings");
+    if (!cJSON_IsArray(v))
+        return bad(c, k, v, allow_numbers ? "must be an array of strings or numbers" : "must be an array of strings");
     size_t n = (size_t)cJSON_GetArraySize(v);
     if (n == 0 && !allow_empty) return bad(c, k, v, "must not be empty");
     char **arr = n ? calloc(n, sizeof *arr) : NULL;
@@ -224,7 +224,8 @@ static bl_status get_string_array(ctx *c, const cJSON *v, const char *k, int all
             char kk[300];
             snprintf(kk, sizeof kk, "%s[%zu]", k, i);
             free_strings(arr, n);
-            return bad(c, kk, it, allow_numbers ? "must be a non-empty string or a number" : "must be a non-empty string");
+            return bad(c, kk, it,
+                       allow_numbers ? "must be a non-empty string or a number" : "must be a non-empty string");
         }
         for (size_t j = 0; j < i; j++)
             if (strcmp(arr[j], s) == 0) {
@@ -311,8 +312,8 @@ static bl_status parse_bids(ctx *c, const cJSON *o, bl_study *s)
 
 static bl_status parse_trials(ctx *c, const cJSON *o, bl_study *s)
 {
-    static const char *const keys[] = {"file", "participant", "trial", "rt", "rt_unit", "response", "upper",
-                                       "stimulus", "keep", "split", NULL};
+    static const char *const keys[] = {"file",  "participant", "trial", "rt",    "rt_unit", "response",
+                                       "upper", "stimulus",    "keep",  "split", NULL};
     static const char *const units[] = {"s", "ms", NULL};
     bl_status st;
     char *file = NULL;
@@ -327,8 +328,7 @@ static bl_status parse_trials(ctx *c, const cJSON *o, bl_study *s)
     }
     if (s->bids.root && !get(o, "participant")) {
         if (!(s->trials.participant = bl_strdup("participant"))) return nomem(c);
-    } else if ((st = require_string(c, o, "trials", "participant", &s->trials.participant)))
-        return st;
+    } else if ((st = require_string(c, o, "trials", "participant", &s->trials.participant))) return st;
     if ((st = parse_split(c, o, s))) return st;
     if ((st = require_string(c, o, "trials", "rt", &s->trials.rt))) return st;
     int unit;
@@ -409,8 +409,7 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
     }
     if (s->bids.root && !get(o, "onset")) {
         if (!(s->recordings.onset = bl_strdup("onset"))) return nomem(c);
-    } else if ((st = require_string(c, o, "recordings", "onset", &s->recordings.onset)))
-        return st;
+    } else if ((st = require_string(c, o, "recordings", "onset", &s->recordings.onset))) return st;
     if (cJSON_IsObject(get(o, "gain"))) {
         if ((st = parse_gain_formats(c, get(o, "gain"), s))) return st;
     } else {
@@ -441,8 +440,8 @@ static bl_status parse_recordings(ctx *c, const cJSON *o, bl_study *s)
     }
     bl_montage *m = NULL;
     bl_error merr = {0};
-    if (bl_montage_parse((const char *const *)s->recordings.channels, s->recordings.n_channels,
-                         "recordings.channels", &m, &merr))
+    if (bl_montage_parse((const char *const *)s->recordings.channels, s->recordings.n_channels, "recordings.channels",
+                         &m, &merr))
         return bl_error_set(c->err, merr.status, "%s: %s", c->file, merr.message);
     bl_montage_destroy(m);
     return BL_OK;
@@ -460,8 +459,9 @@ static int valid_name(const char *n)
 
 static bl_status parse_power(ctx *c, const cJSON *o, bl_study *s)
 {
-    static const char *const keys[] = {"window", "segment", "overlap", "taper", "detrend", "average", "bands",
-                                       "scale", "standardize", "condition", "line_noise", "artifacts", NULL};
+    static const char *const keys[] = {"window",     "segment",   "overlap", "taper",       "detrend",
+                                       "average",    "bands",     "scale",   "standardize", "condition",
+                                       "line_noise", "artifacts", NULL};
     static const char *const aligns[] = {"onset", "response", NULL};
     static const char *const tapers[] = {"hann", NULL};
     static const char *const detrends[] = {"mean", "linear", "none", NULL};
@@ -494,7 +494,8 @@ static bl_status parse_power(ctx *c, const cJSON *o, bl_study *s)
     if ((st = get_number(c, o, "power", "segment", len, &s->power.segment, NULL))) return st;
     if (!(s->power.segment > 0)) return bad(c, "power.segment", get(o, "segment"), "must be > 0 (seconds)");
     if (s->power.segment > len * (1 + 1e-12))
-        return bad(c, "power.segment", get(o, "segment"), "must not be longer than the window (power.window.to - from)");
+        return bad(c, "power.segment", get(o, "segment"),
+                   "must not be longer than the window (power.window.to - from)");
     if ((st = get_number(c, o, "power", "overlap", 0.5, &s->power.overlap, NULL))) return st;
     if (!(s->power.overlap >= 0 && s->power.overlap < 1))
         return bad(c, "power.overlap", get(o, "overlap"), "must be in [0, 1) (a fraction of the segment)");
@@ -505,7 +506,8 @@ static bl_status parse_power(ctx *c, const cJSON *o, bl_study *s)
 
     const cJSON *b = get(o, "bands");
     if (!b) return bad(c, "power.bands", NULL, "is required (e.g. {\"theta\": [4, 8]})");
-    if (!cJSON_IsObject(b) || !b->child) return bad(c, "power.bands", b, "must be a non-empty object of name: [lo, hi]");
+    if (!cJSON_IsObject(b) || !b->child)
+        return bad(c, "power.bands", b, "must be a non-empty object of name: [lo, hi]");
     size_t nb = (size_t)cJSON_GetArraySize(b);
     if (!(s->power.bands = calloc(nb, sizeof *s->power.bands))) return nomem(c);
     for (const cJSON *it = b->child; it; it = it->next) {
@@ -647,8 +649,8 @@ static bl_status check_fixed(ctx *c, const char *k, const cJSON *v, int which, d
     case BL_CONTAMINATION: ok = x >= 0 && x < 1; break;
     default: break;
     }
-    static const char *const ranges[BL_NPARAM] = {"> 0", "any number", ">= 0 (seconds)", "in (0, 1)", ">= 0",
-                                                  "in [0, 1)", ">= 0 (seconds)", "in [0, 1)"};
+    static const char *const ranges[BL_NPARAM] = {"> 0",  "any number", ">= 0 (seconds)", "in (0, 1)",
+                                                  ">= 0", "in [0, 1)",  ">= 0 (seconds)", "in [0, 1)"};
     if (!ok) {
         char what[96];
         snprintf(what, sizeof what, "a fixed %s must be %s", param_names[which], ranges[which]);
@@ -663,8 +665,7 @@ static bl_status parse_param(ctx *c, const cJSON *v, const char *path, int which
     static const char *const links[] = {"identity", "log", NULL};
     bl_status st;
     memset(p, 0, sizeof *p);
-    if (!cJSON_IsObject(v))
-        return bad(c, path, v, "must be an object with per, slopes, fixed or link");
+    if (!cJSON_IsObject(v)) return bad(c, path, v, "must be an object with per, slopes, fixed or link");
     if ((st = check_keys(c, v, path, keys))) return st;
     p->named = 1;
     const cJSON *fx = get(v, "fixed");
@@ -707,7 +708,7 @@ static bl_status parse_param(ctx *c, const cJSON *v, const char *path, int which
 
 typedef struct {
     const cJSON *obj;
-    int state;                   /* 0 todo, 1 in progress, 2 done */
+    int state; /* 0 todo, 1 in progress, 2 done */
 } model_job;
 
 static bl_status resolve_model(ctx *c, bl_study *s, model_job *jobs, size_t i)
@@ -832,8 +833,8 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;
     }
-    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models", "output", "scan", "bids",
-                                       NULL};
+    static const char *const keys[] = {"trials", "recordings", "power", "fit", "models",
+                                       "output", "scan",       "bids",  NULL};
     if ((st = check_keys(&c, root, "", keys))) goto fail;
 
     const cJSON *o;
@@ -904,10 +905,7 @@ static cJSON *string_array(char *const *v, size_t n)
     return a;
 }
 
-static cJSON *num_or_null(double x)
-{
-    return isfinite(x) ? cJSON_CreateNumber(x) : cJSON_CreateNull();
-}
+static cJSON *num_or_null(double x) { return isfinite(x) ? cJSON_CreateNumber(x) : cJSON_CreateNull(); }
 
 bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
 {
@@ -953,8 +951,7 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
             cJSON *g = cJSON_AddObjectToObject(r, "gain");
             for (size_t i = 0; g && i < s->recordings.n_gain_formats; i++)
                 cJSON_AddNumberToObject(g, s->recordings.gain_format[i], s->recordings.gain_value[i]);
-        } else
-            cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
+        } else cJSON_AddNumberToObject(r, "gain", s->recordings.gain);
         cJSON_AddStringToObject(r, "unit", s->recordings.unit);
         cJSON_AddStringToObject(r, "average", s->recordings.average_power ? "power" : "signal");
         if (s->recordings.series) cJSON_AddStringToObject(r, "series", s->recordings.series);
@@ -984,7 +981,9 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
         if (s->power.line_noise > 0) cJSON_AddNumberToObject(p, "line_noise", s->power.line_noise);
         else cJSON_AddNullToObject(p, "line_noise");
         cJSON *a = cJSON_AddObjectToObject(p, "artifacts");
-        cJSON_AddItemToObject(a, "peak_to_peak", s->power.peak_to_peak > 0 ? cJSON_CreateNumber(s->power.peak_to_peak) : cJSON_CreateNull());
+        cJSON_AddItemToObject(a, "peak_to_peak",
+                              s->power.peak_to_peak > 0 ? cJSON_CreateNumber(s->power.peak_to_peak)
+                                                        : cJSON_CreateNull());
         cJSON_AddItemToObject(a, "flat", s->power.flat > 0 ? cJSON_CreateNumber(s->power.flat) : cJSON_CreateNull());
         cJSON_AddBoolToObject(a, "clipping", s->power.clipping);
     }
@@ -1007,7 +1006,8 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
                 cJSON_AddItemToObject(po, "per", string_array(ps->per, ps->n_per));
                 cJSON *so = cJSON_AddObjectToObject(po, "slopes");
                 for (size_t j = 0; j < ps->n_slopes; j++)
-                    cJSON_AddItemToObject(so, ps->slopes[j].regressor, string_array(ps->slopes[j].by, ps->slopes[j].n_by));
+                    cJSON_AddItemToObject(so, ps->slopes[j].regressor,
+                                          string_array(ps->slopes[j].by, ps->slopes[j].n_by));
             }
             if (ps->link != BL_LINK_DEFAULT) cJSON_AddStringToObject(po, "link", links[ps->link]);
         }

@@ -109,13 +109,10 @@ void bl_table_destroy(bl_table *t)
 typedef struct {
     char **cells;
     size_t n, cap;
-    size_t *col;   /* 1-based character column where each cell starts */
+    size_t *col; /* 1-based character column where each cell starts */
 } row_buf;
 
-static int is_missing(const char *s)
-{
-    return s[0] == '\0' || strcmp(s, "NA") == 0 || strcmp(s, "n/a") == 0;
-}
+static int is_missing(const char *s) { return s[0] == '\0' || strcmp(s, "NA") == 0 || strcmp(s, "n/a") == 0; }
 
 static int row_push(row_buf *r, const char *s, size_t len, size_t col)
 {
@@ -151,13 +148,13 @@ typedef struct {
     size_t size, pos, line;
     char delim;
     row_buf r;
-    char *scratch;                 /* a quoted field as unquoted */
+    char *scratch; /* a quoted field as unquoted */
     size_t scratch_cap;
-    char **names;                  /* header */
+    char **names; /* header */
     size_t n_cols;
     char **cells;
     size_t n_rows, cap_rows;
-    size_t *lines;                 /* source line of each row */
+    size_t *lines; /* source line of each row */
 } table_reader;
 
 static bl_status reader_nomem(const table_reader *tr, bl_error *err)
@@ -284,8 +281,7 @@ static size_t utf8_invalid_at(const unsigned char *d, size_t size)
             need = 3;
             if (c == 0xF0) lo = 0x90;
             if (c == 0xF4) hi = 0x8F;
-        } else
-            return i;
+        } else return i;
         if (i + need >= size) return i; /* the sequence is cut off by the end of the file */
         if (d[i + 1] < lo || d[i + 1] > hi) return i;
         for (size_t k = 2; k <= need; k++)
@@ -310,8 +306,10 @@ static bl_status check_utf8(const table_reader *tr, bl_error *err)
             bc++;
         }
     }
-    return bl_error_set(err, BL_ERR_INPUT, "%s:%zu:%zu: byte \\x%02X is not UTF-8 text; save the table as UTF-8 "
-                        "(docs/study-file.md)", tr->name, bl, bc, (unsigned)(unsigned char)tr->data[bad]);
+    return bl_error_set(err, BL_ERR_INPUT,
+                        "%s:%zu:%zu: byte \\x%02X is not UTF-8 text; save the table as UTF-8 "
+                        "(docs/study-file.md)",
+                        tr->name, bl, bc, (unsigned)(unsigned char)tr->data[bad]);
 }
 
 static bl_status read_header(table_reader *tr, bl_error *err)
@@ -369,8 +367,8 @@ static bl_status read_rows(table_reader *tr, bl_error *err)
         if (st) return st;
         if (!got) return BL_OK;
         if (tr->r.n != n_cols)
-            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: expected %zu fields (as in the header), found %zu", tr->name,
-                                rec_line, n_cols, tr->r.n);
+            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: expected %zu fields (as in the header), found %zu",
+                                tr->name, rec_line, n_cols, tr->r.n);
         if (tr->n_rows == tr->cap_rows) {
             size_t cap = tr->cap_rows ? 2 * tr->cap_rows : 256;
             char **nc = realloc(tr->cells, cap * n_cols * sizeof *nc);
@@ -462,7 +460,8 @@ bl_status bl_table_read(const char *path, bl_table **out, bl_error *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the table: %s", path, strerror(errno));
+    if (!f)
+        return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the table: %s", path, strerror(errno));
     char *buf = NULL;
     size_t len = 0, cap = 0;
     for (;;) {

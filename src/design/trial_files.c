@@ -64,9 +64,9 @@ void bl_trial_sources_destroy(bl_trial_sources *s)
 
 typedef struct {
     bl_trial_sources *s;
-    char **seg;             /* pattern segments */
+    char **seg; /* pattern segments */
     size_t n_seg;
-    char *vals[16];         /* current value of each key */
+    char *vals[16]; /* current value of each key */
     int nomem;
 } glob_state;
 
@@ -177,24 +177,29 @@ bl_status bl_trial_sources_glob(const char *pattern, bl_trial_sources **out, bl_
         const char *close = strchr(p, '}');
         size_t len = close ? (size_t)(close - p - 1) : 0;
         if (!close || len == 0 || len >= sizeof names[0] || memchr(p + 1, '/', len) || memchr(p + 1, '{', len))
-            return bl_error_set(err, BL_ERR_INPUT, "key \"trials.file\": \"%s\" has a malformed {placeholder}", pattern);
+            return bl_error_set(err, BL_ERR_INPUT, "key \"trials.file\": \"%s\" has a malformed {placeholder}",
+                                pattern);
         if (close[1] == '{')
-            return bl_error_set(err, BL_ERR_INPUT, "key \"trials.file\": \"%s\": two placeholders side by side cannot be "
-                                "told apart", pattern);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "key \"trials.file\": \"%s\": two placeholders side by side cannot be "
+                                "told apart",
+                                pattern);
         memcpy(names[n_keys], p + 1, len);
         names[n_keys][len] = '\0';
         int seen = 0;
         for (size_t k = 0; k < n_keys; k++) seen |= strcmp(keys[k], names[n_keys]) == 0;
         if (seen) continue;
         if (n_keys == 16)
-            return bl_error_set(err, BL_ERR_INPUT, "key \"trials.file\": \"%s\" has more than 16 placeholders", pattern);
+            return bl_error_set(err, BL_ERR_INPUT, "key \"trials.file\": \"%s\" has more than 16 placeholders",
+                                pattern);
         keys[n_keys] = names[n_keys];
         n_keys++;
     }
     glob_state g;
     memset(&g, 0, sizeof g);
     char *copy = bl_strdup(pattern);
-    if (!copy || !(g.s = bl_trial_sources_create(keys, n_keys)) || !(g.seg = calloc(strlen(pattern) + 1, sizeof *g.seg))) {
+    if (!copy || !(g.s = bl_trial_sources_create(keys, n_keys)) ||
+        !(g.seg = calloc(strlen(pattern) + 1, sizeof *g.seg))) {
         free(copy);
         bl_trial_sources_destroy(g.s);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
@@ -236,8 +241,8 @@ const char *bl_trial_sources_file_of(const bl_trial_sources *s, size_t row)
     return NULL;
 }
 
-bl_status bl_trial_sources_read(bl_trial_sources *s, const char *name, const char *const *required,
-                                bl_table **out, bl_error *err)
+bl_status bl_trial_sources_read(bl_trial_sources *s, const char *name, const char *const *required, bl_table **out,
+                                bl_error *err)
 {
     *out = NULL;
     bl_status st = BL_OK;
@@ -248,7 +253,7 @@ bl_status bl_trial_sources_read(bl_trial_sources *s, const char *name, const cha
     if (!tabs) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     for (size_t i = 0; i < s->n && !st; i++) {
         if ((st = bl_events_file_kind(s->path[i]) ? bl_events_table_read(s->path[i], &tabs[i], err)
-                                                   : bl_table_read(s->path[i], &tabs[i], err)))
+                                                  : bl_table_read(s->path[i], &tabs[i], err)))
             break;
         for (size_t r = 0; required && required[r] && !st; r++)
             if (bl_table_find(tabs[i], required[r]) < 0)
@@ -257,12 +262,14 @@ bl_status bl_trial_sources_read(bl_trial_sources *s, const char *name, const cha
         const bl_table *first = tabs[0];
         for (size_t c = 0; c < first->n_cols && !st; c++) /* one set of columns across files */
             if (bl_table_find(tabs[i], first->cols[c].name) < 0)
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: no column \"%s\", which %s has", s->path[i], first->cols[c].name,
-                                  s->path[0]);
+                st = bl_error_set(err, BL_ERR_INPUT, "%s: no column \"%s\", which %s has", s->path[i],
+                                  first->cols[c].name, s->path[0]);
         for (size_t c = 0; c < tabs[i]->n_cols && !st; c++)
             if (bl_table_find(first, tabs[i]->cols[c].name) < 0)
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: column \"%s\" is not in %s; every trial file needs the same "
-                                  "columns", s->path[i], tabs[i]->cols[c].name, s->path[0]);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s: column \"%s\" is not in %s; every trial file needs the same "
+                                  "columns",
+                                  s->path[i], tabs[i]->cols[c].name, s->path[0]);
     }
     if (st) goto done;
     /* the stacked table goes through the CSV parser once, so numeric columns are detected as usual */
@@ -349,8 +356,8 @@ bl_status bl_resolve_any_extension(const char *path, char **out, bl_error *err)
     } else strcpy(dir, ".");
     DIR *d = opendir(dir);
     if (!d) {
-        bl_status st = bl_error_set(err, BL_ERR_INPUT, "key \"recordings.file\": \"%s\": cannot open the folder %s: %s", path,
-                                    dir, strerror(errno));
+        bl_status st = bl_error_set(err, BL_ERR_INPUT, "key \"recordings.file\": \"%s\": cannot open the folder %s: %s",
+                                    path, dir, strerror(errno));
         free(dir);
         return st;
     }
@@ -368,9 +375,10 @@ bl_status bl_resolve_any_extension(const char *path, char **out, bl_error *err)
     closedir(d);
     free(dir);
     if (n != 1)
-        return bl_error_set(err, BL_ERR_INPUT, "key \"recordings.file\": \"%s\" matches %zu recordings%s%s%s%s; exactly "
-                            "one is needed", path, n, n ? " (" : "", n ? found[0] : "", n > 1 ? ", " : "",
-                            n > 1 ? found[1] : "");
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "key \"recordings.file\": \"%s\" matches %zu recordings%s%s%s%s; exactly "
+                            "one is needed",
+                            path, n, n ? " (" : "", n ? found[0] : "", n > 1 ? ", " : "", n > 1 ? found[1] : "");
     char *r = malloc(len + strlen(found[0]));
     if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     memcpy(r, path, len - strlen(stem));
@@ -594,8 +602,8 @@ static bl_status split_columns(const bl_study *study, bl_table *t, const bl_tria
     for (size_t i = 0; i < study->split.n; i++) {
         int c = bl_table_find(t, study->split.column[i]);
         if (c < 0)
-            return bl_error_set(err, BL_ERR_INPUT, "key \"trials.split.%s\": no such column in %s", study->split.column[i],
-                                t->path);
+            return bl_error_set(err, BL_ERR_INPUT, "key \"trials.split.%s\": no such column in %s",
+                                study->split.column[i], t->path);
         size_t parts = study->split.n_into[i];
         char **cells = calloc(t->n_rows * parts + 1, sizeof *cells);
         if (!cells) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
@@ -611,10 +619,11 @@ static bl_status split_columns(const bl_study *study, bl_table *t, const bl_tria
                 p = slash ? slash + 1 : NULL;
             }
             if (!st && v && got != parts)
-                st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" value \"%s\" has %zu part%s separated by '/', "
-                                  "but trials.split.%s names %zu", files ? bl_trial_sources_file_of(files, r) : t->path,
-                                  t->line[r], study->split.column[i], v, got,
-                                  got == 1 ? "" : "s", study->split.column[i], parts);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s:%zu: column \"%s\" value \"%s\" has %zu part%s separated by '/', "
+                                  "but trials.split.%s names %zu",
+                                  files ? bl_trial_sources_file_of(files, r) : t->path, t->line[r],
+                                  study->split.column[i], v, got, got == 1 ? "" : "s", study->split.column[i], parts);
         }
         for (size_t k = 0; k < parts && !st; k++)
             st = bl_table_add_text(t, study->split.into[i][k], (const char *const *)cells + k * t->n_rows, err);

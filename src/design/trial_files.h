@@ -11,10 +11,10 @@
 
 typedef struct bl_trial_sources {
     size_t n, n_keys;
-    char **path;            /* n files */
-    char **key;             /* n_keys column names the files add (placeholders, BIDS entities) */
-    char **value;           /* n x n_keys values, row-major; NULL = missing */
-    size_t *first_row;      /* n + 1 entries once read: file i holds stacked rows [first_row[i], first_row[i+1]) */
+    char **path;       /* n files */
+    char **key;        /* n_keys column names the files add (placeholders, BIDS entities) */
+    char **value;      /* n x n_keys values, row-major; NULL = missing */
+    size_t *first_row; /* n + 1 entries once read: file i holds stacked rows [first_row[i], first_row[i+1]) */
 } bl_trial_sources;
 
 /* The file stacked row `row` came from (for messages), or NULL. */
@@ -33,8 +33,8 @@ void bl_trial_sources_destroy(bl_trial_sources *s);
 /* Read every file and stack them into one table named `name` (for messages). `required` (NULL-terminated,
  * may be NULL) lists columns each file must have. Each key becomes a text column unless a file already
  * has a column of that name. */
-bl_status bl_trial_sources_read(bl_trial_sources *s, const char *name, const char *const *required,
-                                bl_table **out, bl_error *err);
+bl_status bl_trial_sources_read(bl_trial_sources *s, const char *name, const char *const *required, bl_table **out,
+                                bl_error *err);
 
 /* "<path>.*": the one file whose name is <path>'s name plus an extension bandlink reads as a recording
  * (companion files .vmrk, .eeg, .json and .tsv sidecars are skipped). Errors name the pattern and the

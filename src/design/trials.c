@@ -54,8 +54,9 @@ static bl_status need_column(const bl_table *t, const char *col, const char *key
         }
         snprintf(list + l, sizeof list - l, "%s%s", j ? ", " : "", t->cols[j].name);
     }
-    return bl_error_set(err, BL_ERR_INPUT, "%s:1: column \"%s\" (study key %s) is not in the table; its columns are: %s",
-                        t->path, col, key, list);
+    return bl_error_set(err, BL_ERR_INPUT,
+                        "%s:1: column \"%s\" (study key %s) is not in the table; its columns are: %s", t->path, col,
+                        key, list);
 }
 
 void bl_trials_exclude(bl_trials *t, size_t i, const char *reason)
@@ -101,14 +102,15 @@ bl_status bl_trials_exclusion_counts(const bl_trials *t, bl_exclusion_count **ou
 static bl_status check_power_columns(const struct bl_study *study, const bl_table *tab, bl_error *err)
 {
     size_t nb = study->power.n_bands, n = 0;
-    char (*name)[300] = malloc((3 + 2 * nb) * sizeof *name);
-    char (*what)[340] = malloc((3 + 2 * nb) * sizeof *what);
+    char(*name)[300] = malloc((3 + 2 * nb) * sizeof *name);
+    char(*what)[340] = malloc((3 + 2 * nb) * sizeof *what);
     bl_status st = BL_OK;
     if (!name || !what) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory checking the power.csv columns");
         goto done;
     }
-    snprintf(name[n], sizeof name[n], "participant"), snprintf(what[n++], sizeof what[0], "power.csv's participant column");
+    snprintf(name[n], sizeof name[n], "participant"),
+        snprintf(what[n++], sizeof what[0], "power.csv's participant column");
     snprintf(name[n], sizeof name[n], "trial"), snprintf(what[n++], sizeof what[0], "power.csv's trial column");
     snprintf(name[n], sizeof name[n], "artifact"), snprintf(what[n++], sizeof what[0], "power.csv's artifact column");
     for (size_t b = 0; b < nb; b++) {
@@ -121,8 +123,10 @@ static bl_status check_power_columns(const struct bl_study *study, const bl_tabl
     for (size_t i = 0; i < n && !st; i++)
         for (size_t k = i + 1; k < n && !st; k++)
             if (strcmp(name[i], name[k]) == 0)
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: %s and %s would both be the power.csv column \"%s\"; rename "
-                                  "the band", study->path, what[i], what[k], name[i]);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s: %s and %s would both be the power.csv column \"%s\"; rename "
+                                  "the band",
+                                  study->path, what[i], what[k], name[i]);
     for (size_t j = 0; j < tab->n_cols && !st; j++) {
         const char *cn = tab->cols[j].name;
         /* the table's own participant and trial columns are written once, as the leading columns */
@@ -130,8 +134,10 @@ static bl_status check_power_columns(const struct bl_study *study, const bl_tabl
         if (strcmp(cn, "trial") == 0 && study->trials.trial && strcmp(study->trials.trial, "trial") == 0) continue;
         for (size_t i = 0; i < n && !st; i++)
             if (strcmp(cn, name[i]) == 0)
-                st = bl_error_set(err, BL_ERR_INPUT, "%s:1: column \"%s\" of the trial table and %s would both be the "
-                                  "power.csv column \"%s\"; rename the column", tab->path, cn, what[i], cn);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s:1: column \"%s\" of the trial table and %s would both be the "
+                                  "power.csv column \"%s\"; rename the column",
+                                  tab->path, cn, what[i], cn);
     }
 done:
     free(name);
@@ -186,19 +192,21 @@ static bl_status check_upper_values(const struct bl_study *study, const bl_table
         if (stim) list_values(tab, stim, list2, sizeof list2);
         return bl_error_set(err, BL_ERR_INPUT,
                             "%s: trials.upper value \"%s\" matches no row of column \"%s\"%s%s%s; values present: "
-                            "%s%s%s (compared as text, case included, or as numbers)", file, want, resp->name,
-                            stim ? " or \"" : "", stim ? stim->name : "", stim ? "\"" : "", list,
-                            stim ? "; in the stimulus column: " : "", stim ? list2 : "");
+                            "%s%s%s (compared as text, case included, or as numbers)",
+                            file, want, resp->name, stim ? " or \"" : "", stim ? stim->name : "", stim ? "\"" : "",
+                            list, stim ? "; in the stimulus column: " : "", stim ? list2 : "");
     }
     for (int c = 0; c < 2; c++) {
         if (!cols[c]) continue;
         int any = 0;
-        for (size_t u = 0; u < study->trials.n_upper && !any; u++) any = column_has(tab, cols[c], study->trials.upper[u]);
+        for (size_t u = 0; u < study->trials.n_upper && !any; u++)
+            any = column_has(tab, cols[c], study->trials.upper[u]);
         if (any) continue;
         list_values(tab, cols[c], list, sizeof list);
         return bl_error_set(err, BL_ERR_INPUT,
                             "%s: no row of column \"%s\" (%s) holds a trials.upper value; values present: %s "
-                            "(compared as text, case included, or as numbers)", file, cols[c]->name, keys[c], list);
+                            "(compared as text, case included, or as numbers)",
+                            file, cols[c]->name, keys[c], list);
     }
     return BL_OK;
 }
@@ -226,9 +234,10 @@ static void warn_rt_scale(const struct bl_study *study, const bl_trials *t, cons
         qsort(rt, m, sizeof *rt, cmp_double);
         double med = m % 2 ? rt[m / 2] : 0.5 * (rt[m / 2 - 1] + rt[m / 2]);
         if (med > 20 || med < 0.05)
-            bl_warnings_add(warn, "%s: the median response time in column %s is %.6g s (trials.rt_unit \"%s\"); RTs "
-                            "are usually 0.05-20 s: is trials.rt_unit right?", file, col, med,
-                            study->trials.rt_in_ms ? "ms" : "s");
+            bl_warnings_add(warn,
+                            "%s: the median response time in column %s is %.6g s (trials.rt_unit \"%s\"); RTs "
+                            "are usually 0.05-20 s: is trials.rt_unit right?",
+                            file, col, med, study->trials.rt_in_ms ? "ms" : "s");
     }
     free(rt);
 }
@@ -283,8 +292,8 @@ static bl_status find_columns(const struct bl_study *study, const bl_table *tab,
 
 /* Participant index and trial label of row i (count[k]: rows of participant k so far; part_id[i]: the
  * participant's number by first appearance, from bl_group_strings). */
-static bl_status code_participant(bl_trials *t, const trial_columns *c, size_t i, const size_t *part_id,
-                                  size_t *count, bl_error *err)
+static bl_status code_participant(bl_trials *t, const trial_columns *c, size_t i, const size_t *part_id, size_t *count,
+                                  bl_error *err)
 {
     const bl_table *tab = t->table;
     const bl_column *part = &tab->cols[c->part];
@@ -294,7 +303,8 @@ static bl_status code_participant(bl_trials *t, const trial_columns *c, size_t i
                             tab->path, tab->line[i], part->name, c->part + 1);
     size_t k = part_id[i]; /* numbered by first appearance: a new participant is the next number */
     if (k == t->n_participants) {
-        if (!(t->participants[k] = bl_strdup(p))) return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
+        if (!(t->participants[k] = bl_strdup(p)))
+            return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
         t->n_participants++;
     }
     t->participant[i] = k;
@@ -327,8 +337,9 @@ static bl_status code_response(const struct bl_study *study, bl_trials *t, const
             return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.rt): '%s' is not a number",
                                 tab->path, tab->line[i], rtc->name, c->rt + 1, r);
         if (x < 0)
-            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (field %d, trials.rt): negative response time %s",
-                                tab->path, tab->line[i], rtc->name, c->rt + 1, r);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s:%zu: column \"%s\" (field %d, trials.rt): negative response time %s", tab->path,
+                                tab->line[i], rtc->name, c->rt + 1, r);
         t->rt[i] = study->trials.rt_in_ms ? x / 1000.0 : x;
     }
     const char *v = resp->text[i];
@@ -344,8 +355,10 @@ static bl_status code_response(const struct bl_study *study, bl_trials *t, const
         else t->drift_sign[i] = value_in(s, study->trials.upper, study->trials.n_upper) ? 1 : -1;
     }
     if (!isnan(t->rt[i])) {
-        if (!isnan(study->trials.rt_min) && t->rt[i] < study->trials.rt_min) bl_trials_exclude(t, i, "rt < keep.rt_min");
-        if (!isnan(study->trials.rt_max) && t->rt[i] > study->trials.rt_max) bl_trials_exclude(t, i, "rt > keep.rt_max");
+        if (!isnan(study->trials.rt_min) && t->rt[i] < study->trials.rt_min)
+            bl_trials_exclude(t, i, "rt < keep.rt_min");
+        if (!isnan(study->trials.rt_max) && t->rt[i] > study->trials.rt_max)
+            bl_trials_exclude(t, i, "rt > keep.rt_max");
     }
     if (c->onset >= 0 && !tab->cols[c->onset].text[i]) bl_trials_exclude(t, i, "missing onset");
     return BL_OK;
@@ -364,8 +377,10 @@ static void warn_response_values(const bl_table *tab, const bl_column *resp, bl_
         if (k == n_seen) seen[n_seen++] = v;
     }
     if (n_seen > 2)
-        bl_warnings_add(warn, "%s: column %s has more than two values (%s, %s, %s, ...); every value not listed in "
-                        "trials.upper is coded as the lower boundary", tab->path, resp->name, seen[0], seen[1], seen[2]);
+        bl_warnings_add(warn,
+                        "%s: column %s has more than two values (%s, %s, %s, ...); every value not listed in "
+                        "trials.upper is coded as the lower boundary",
+                        tab->path, resp->name, seen[0], seen[1], seen[2]);
 }
 
 /* The same trial label twice within a participant makes power.csv and trials.csv ambiguous. */
@@ -414,8 +429,7 @@ static bl_status trials_alloc(bl_table *tab, bl_trial_sources *files, bl_trials 
     t->participants = calloc(n, sizeof *t->participants);
     t->trial_label = calloc(n, sizeof *t->trial_label);
     t->excluded = calloc(n, sizeof *t->excluded);
-    if (!t->rt || !t->upper || !t->drift_sign || !t->participant || !t->participants || !t->trial_label ||
-        !t->excluded)
+    if (!t->rt || !t->upper || !t->drift_sign || !t->participant || !t->participants || !t->trial_label || !t->excluded)
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory loading trials");
     return BL_OK;
 }
@@ -458,8 +472,7 @@ bl_status bl_trials_load(const struct bl_study *study, bl_trials **out, bl_warni
     warn_repeated_labels(t, warn);
     if ((st = check_upper_values(study, tab, resp, c.stim >= 0 ? &tab->cols[c.stim] : NULL, file, err))) goto fail;
     warn_rt_scale(study, t, file, tab->cols[c.rt].name, warn);
-    if (t->n_kept == 0)
-        bl_warnings_add(warn, "%s: every trial is excluded by the keep rules or missing values", file);
+    if (t->n_kept == 0) bl_warnings_add(warn, "%s: every trial is excluded by the keep rules or missing values", file);
     free(count);
     free(part_id);
     *out = t;

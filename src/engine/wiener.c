@@ -15,14 +15,10 @@
 #include <math.h>
 #include <string.h>
 
-static const char *const param_names[BL_NPARAM] = {
-    "threshold", "drift", "nondecision", "start", "drift_sd", "start_range", "nondecision_range",
-    "contamination"};
+static const char *const param_names[BL_NPARAM] = {"threshold", "drift",       "nondecision",       "start",
+                                                   "drift_sd",  "start_range", "nondecision_range", "contamination"};
 
-const char *bl_param_name(int index)
-{
-    return index >= 0 && index < BL_NPARAM ? param_names[index] : NULL;
-}
+const char *bl_param_name(int index) { return index >= 0 && index < BL_NPARAM ? param_names[index] : NULL; }
 
 int bl_param_index(const char *name)
 {
@@ -53,27 +49,23 @@ bl_status bl_wiener_check(const bl_wiener_params *p, bl_error *err)
     if (!(x[BL_DRIFT_SD] >= 0))
         return bl_error_set(err, BL_ERR_RANGE, "drift_sd must be >= 0 (got %g)", x[BL_DRIFT_SD]);
     double w = x[BL_START], sz = x[BL_START_RANGE];
-    if (!(sz >= 0 && sz < 1))
-        return bl_error_set(err, BL_ERR_RANGE, "start_range must lie in [0, 1) (got %g)", sz);
+    if (!(sz >= 0 && sz < 1)) return bl_error_set(err, BL_ERR_RANGE, "start_range must lie in [0, 1) (got %g)", sz);
     if (sz > 0 && !(w - sz / 2 > 0 && w + sz / 2 < 1))
         return bl_error_set(err, BL_ERR_RANGE,
-                            "start_range %g with start %g leaves (0, 1): start +- start_range/2 must stay inside",
-                            sz, w);
+                            "start_range %g with start %g leaves (0, 1): start +- start_range/2 must stay inside", sz,
+                            w);
     double t0 = x[BL_NONDECISION], st = x[BL_NONDECISION_RANGE];
-    if (!(st >= 0))
-        return bl_error_set(err, BL_ERR_RANGE, "nondecision_range must be >= 0 s (got %g)", st);
+    if (!(st >= 0)) return bl_error_set(err, BL_ERR_RANGE, "nondecision_range must be >= 0 s (got %g)", st);
     if (st > 0 && !(t0 - st / 2 >= 0))
         return bl_error_set(err, BL_ERR_RANGE,
                             "nondecision_range %g exceeds twice nondecision %g (nondecision - range/2 must be >= 0)",
                             st, t0);
     double p0 = x[BL_CONTAMINATION];
-    if (!(p0 >= 0 && p0 < 1))
-        return bl_error_set(err, BL_ERR_RANGE, "contamination must lie in [0, 1) (got %g)", p0);
-    if (p0 > 0 && !(isfinite(p->contamination_lo) && isfinite(p->contamination_hi) &&
-                    p->contamination_lo >= 0 && p->contamination_lo < p->contamination_hi))
-        return bl_error_set(err, BL_ERR_RANGE,
-                            "contamination range [%g, %g] s must satisfy 0 <= low < high", p->contamination_lo,
-                            p->contamination_hi);
+    if (!(p0 >= 0 && p0 < 1)) return bl_error_set(err, BL_ERR_RANGE, "contamination must lie in [0, 1) (got %g)", p0);
+    if (p0 > 0 && !(isfinite(p->contamination_lo) && isfinite(p->contamination_hi) && p->contamination_lo >= 0 &&
+                    p->contamination_lo < p->contamination_hi))
+        return bl_error_set(err, BL_ERR_RANGE, "contamination range [%g, %g] s must satisfy 0 <= low < high",
+                            p->contamination_lo, p->contamination_hi);
     return BL_OK;
 }
 
@@ -84,19 +76,17 @@ static inline int plain_ok(const bl_wiener_params *p)
     const double *x = p->value;
     return x[BL_THRESHOLD] > 0 && x[BL_THRESHOLD] < INFINITY && fabs(x[BL_DRIFT]) < INFINITY &&
            x[BL_NONDECISION] >= 0 && x[BL_NONDECISION] < INFINITY && x[BL_START] > 0 && x[BL_START] < 1 &&
-           x[BL_DRIFT_SD] >= 0 && x[BL_DRIFT_SD] < INFINITY && x[BL_START_RANGE] == 0 &&
-           x[BL_NONDECISION_RANGE] == 0 && x[BL_CONTAMINATION] == 0;
+           x[BL_DRIFT_SD] >= 0 && x[BL_DRIFT_SD] < INFINITY && x[BL_START_RANGE] == 0 && x[BL_NONDECISION_RANGE] == 0 &&
+           x[BL_CONTAMINATION] == 0;
 }
 
-bl_status bl_wiener_log_density(const bl_wiener_params *p, double rt, int upper, double *log_density,
-                                bl_error *err)
+bl_status bl_wiener_log_density(const bl_wiener_params *p, double rt, int upper, double *log_density, bl_error *err)
 {
     if (!isfinite(rt)) return bl_error_set(err, BL_ERR_RANGE, "response time must be finite (got %g)", rt);
     if (plain_ok(p)) {
         const double *x = p->value;
         double t = rt - x[BL_NONDECISION];
-        *log_density = t > 0 ? blw_log_dens(t, x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], x[BL_DRIFT_SD],
-                                            upper, NULL)
+        *log_density = t > 0 ? blw_log_dens(t, x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], x[BL_DRIFT_SD], upper, NULL)
                              : -INFINITY;
         return BL_OK;
     }
@@ -148,8 +138,7 @@ bl_status bl_wiener_p_boundary(const bl_wiener_params *p, int upper, double *pro
     double pb;
     if (x[BL_DRIFT_SD] == 0 && x[BL_START_RANGE] == 0)
         pb = exp(blw_log_p(x[BL_DRIFT], x[BL_THRESHOLD], x[BL_START], upper));
-    else
-        blw_variability_moments(p, upper, &pb, NULL);
+    else blw_variability_moments(p, upper, &pb, NULL);
     double p0 = x[BL_CONTAMINATION];
     *prob = (1 - p0) * pb + 0.5 * p0;
     return BL_OK;
@@ -262,8 +251,7 @@ bl_status bl_wiener_cdf(const bl_wiener_params *p, double rt, int upper, double 
     if (!isfinite(rt)) return bl_error_set(err, BL_ERR_RANGE, "response time must be finite (got %g)", rt);
     if (!blw_tables_ok()) return bl_error_set(err, BL_ERR_NOMEM, "cannot build the quadrature tables");
     double F;
-    if ((s = cdf_ddm(p, rt, upper, &F)))
-        return bl_error_set(err, s, "Wiener CDF series did not converge at rt %g", rt);
+    if ((s = cdf_ddm(p, rt, upper, &F))) return bl_error_set(err, s, "Wiener CDF series did not converge at rt %g", rt);
     double p0 = p->value[BL_CONTAMINATION];
     if (p0 > 0) {
         double lo = p->contamination_lo, hi = p->contamination_hi;
@@ -278,7 +266,8 @@ bl_status bl_wiener_quantile(const bl_wiener_params *p, double prob, int upper, 
 {
     bl_status s = bl_wiener_check(p, err);
     if (s) return s;
-    if (!(prob > 0 && prob < 1)) return bl_error_set(err, BL_ERR_RANGE, "quantile probability must lie in (0, 1) (got %g)", prob);
+    if (!(prob > 0 && prob < 1))
+        return bl_error_set(err, BL_ERR_RANGE, "quantile probability must lie in (0, 1) (got %g)", prob);
     double P, m;
     const char *side = upper ? "upper" : "lower";
     if ((s = bl_wiener_p_boundary(p, upper, &P, err))) return s;

@@ -184,8 +184,8 @@ static bl_status surv_large(double t, double v, double a, double w, double wc, d
     int K = 1;
     {
         double ek = 1, sk = s1, skm = 0, ck = c1, ckm = 1, r = E2 * E;
-        ke[1] = s1;      /* k s_k e_k */
-        kc[1] = c1;      /* k^2 c_k e_k / k = k c_k e_k */
+        ke[1] = s1; /* k s_k e_k */
+        kc[1] = c1; /* k^2 c_k e_k / k = k c_k e_k */
         for (int k = 1; k < KMAX; k++) {
             double X = k + 1, eX = ek * r;
             r *= E2;
@@ -386,7 +386,8 @@ typedef struct {
 static double window_panel(const wparams *P, double bot, double top, wsum *acc, int depth)
 {
     double h = 0.5 * (top - bot), c = 0.5 * (top + bot);
-    double E = h * fmax(fabs(slope_proxy(bot, P->vv, P->a, P->z, P->sv)), fabs(slope_proxy(top, P->vv, P->a, P->z, P->sv)));
+    double E = h *
+               fmax(fabs(slope_proxy(bot, P->vv, P->a, P->z, P->sv)), fabs(slope_proxy(top, P->vv, P->a, P->z, P->sv)));
     double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
     if (nf > 40 && depth < 12) {
         double l1 = window_panel(P, bot, c, acc, depth + 1), l2 = window_panel(P, c, top, acc, depth + 1);
@@ -591,10 +592,7 @@ static void acc_merge(blw_acc *to, const blw_acc *from)
         for (int k = 0; k < BLW_GRID_NG; k++) to->G[k] = to->G[k] * ra + from->G[k] * rb;
 }
 
-static double acc_log(const blw_acc *acc)
-{
-    return acc->S > 0 ? acc->mx + log(acc->S) : -INFINITY;
-}
+static double acc_log(const blw_acc *acc) { return acc->S > 0 ? acc->mx + log(acc->S) : -INFINITY; }
 
 typedef struct {
     double a, v, w, sv, sz, slope_z; /* slope_z: |d exponent / dw'| for the start-range rule */
@@ -652,7 +650,8 @@ static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
     for (int k = 0; top > floor_; k++) {
         if (k > 60) return 0;
         double bot = fmax(floor_, 0.5 * top), h = 0.5 * (top - bot), c = 0.5 * (top + bot);
-        double E = h * fmax(fabs(slope_proxy(bot, C->vv, a, C->zmin, C->sv)), fabs(slope_proxy(top, C->vv, a, C->zmin, C->sv)));
+        double E = h * fmax(fabs(slope_proxy(bot, C->vv, a, C->zmin, C->sv)),
+                            fabs(slope_proxy(top, C->vv, a, C->zmin, C->sv)));
         double nf = fct * (2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c);
         int nz = nodes_z(C, bot);
         if (nz > 1) nz = (int)ceil(fct * nz);
@@ -733,8 +732,15 @@ static int dens_grid(const bl_wiener_params *p, double rt, int upper, double *lf
     if (!(hi > 0)) return 0;
     double wb = upper ? 1 - w : w;
     double tref = lo > 0 ? lo : fmin(hi, 0.5 * a * a);
-    gctx C = {a, v, w, sv, sz, fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / (1 + sv * sv * tref),
-              a * (wb - 0.5 * sz), upper ? -v : v, upper};
+    gctx C = {a,
+              v,
+              w,
+              sv,
+              sz,
+              fabs(v * a) + sv * sv * a * a * (fmax(w, 1 - w) + 0.5 * sz) / (1 + sv * sv * tref),
+              a * (wb - 0.5 * sz),
+              upper ? -v : v,
+              upper};
     if (gd)
         for (int k = 0; k < BL_NPARAM; k++) gd[k] = 0;
     blw_acc acc = {-INFINITY, 0, {0}, gd != NULL};
@@ -809,8 +815,7 @@ static int dens_grid(const bl_wiener_params *p, double rt, int upper, double *lf
     return 1;
 }
 
-bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld, double *grad,
-                               bl_error *err)
+bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld, double *grad, bl_error *err)
 {
     if (!blw_tables_ok()) return bl_error_set(err, BL_ERR_NOMEM, "cannot build the quadrature tables");
     const double *x = p->value;
@@ -818,12 +823,9 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
     double p0 = x[BL_CONTAMINATION];
     double lfd, gd[BL_NPARAM];
     bl_status s;
-    if (dens_grid(p, rt, upper, &lfd, grad ? gd : NULL))
-        s = BL_OK;
-    else if (sz == 0)
-        s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);
-    else
-        s = dens_start_range(p, rt, upper, &lfd, grad ? gd : NULL);
+    if (dens_grid(p, rt, upper, &lfd, grad ? gd : NULL)) s = BL_OK;
+    else if (sz == 0) s = dens_one_start(p, rt, w, upper, &lfd, grad ? gd : NULL);
+    else s = dens_start_range(p, rt, upper, &lfd, grad ? gd : NULL);
     if (s) return bl_error_set(err, s, "Wiener CDF series did not converge at rt %g", rt);
     double lo = p->contamination_lo, hi = p->contamination_hi;
     double c = (lo < hi && rt >= lo && rt <= hi) ? 0.5 / (hi - lo) : 0;
@@ -855,4 +857,3 @@ bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, 
 }
 
 /* ---- CDF with variability ----------------------------------------------------------------------- */
-

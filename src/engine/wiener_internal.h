@@ -17,12 +17,20 @@ static inline void blw_sincospi(double x, double *s, double *c)
     int swap = x > 0.25;
     double y = swap ? 0.5 - x : x;
     double z = BLW_PI * y, z2 = z * z;
-    double sp = z * (1 + z2 * (-1.0 / 6 + z2 * (1.0 / 120 + z2 * (-1.0 / 5040 + z2 * (1.0 / 362880 +
-                z2 * (-1.0 / 39916800 + z2 * (1.0 / 6227020800.0 + z2 * (-1.0 / 1307674368000.0 +
-                z2 * (1.0 / 355687428096000.0)))))))));
-    double cp = 1 + z2 * (-1.0 / 2 + z2 * (1.0 / 24 + z2 * (-1.0 / 720 + z2 * (1.0 / 40320 +
-                z2 * (-1.0 / 3628800 + z2 * (1.0 / 479001600.0 + z2 * (-1.0 / 87178291200.0 +
-                z2 * (1.0 / 20922789888000.0))))))));
+    double sp = z * (1 + z2 * (-1.0 / 6 +
+                               z2 * (1.0 / 120 +
+                                     z2 * (-1.0 / 5040 + z2 * (1.0 / 362880 +
+                                                               z2 * (-1.0 / 39916800 +
+                                                                     z2 * (1.0 / 6227020800.0 +
+                                                                           z2 * (-1.0 / 1307674368000.0 +
+                                                                                 z2 * (1.0 / 355687428096000.0)))))))));
+    double cp = 1 +
+                z2 * (-1.0 / 2 +
+                      z2 * (1.0 / 24 + z2 * (-1.0 / 720 +
+                                             z2 * (1.0 / 40320 + z2 * (-1.0 / 3628800 +
+                                                                       z2 * (1.0 / 479001600.0 +
+                                                                             z2 * (-1.0 / 87178291200.0 +
+                                                                                   z2 * (1.0 / 20922789888000.0))))))));
     *s = swap ? cp : sp;
     *c = swap ? sp : cp;
 }
@@ -70,12 +78,10 @@ double blw_mean_t(double v, double a, double w, int upper);
  * *log_cdf = log P(T <= t, lower), *log_surv = log P(T > t, lower) (may be NULL).
  * Returns BL_OK or BL_ERR_NUMERIC when a series fails to converge. */
 bl_status blw_log_cdf_lo(double t, double v, double a, double w, double *log_cdf, double *log_surv);
-bl_status blw_log_cdf(double t, double v, double a, double w, int upper, double *log_cdf,
-                      double *log_surv);
+bl_status blw_log_cdf(double t, double v, double a, double w, int upper, double *log_cdf, double *log_surv);
 
 /* Small-time CDF series with the relative derivatives d log F / d(a, v, w) in dl[0..2]. */
-bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, double *log_cdf,
-                           double dl[3]);
+bl_status blw_log_cdf_grad(double t, double v, double a, double w, int upper, double *log_cdf, double dl[3]);
 
 /* Quadrature rules, built once (thread-safe) and never freed.
  * Gauss-Legendre on [-1, 1] with weights summing to 1 (so sums are averages), n in 1..BLW_GL_MAX;
@@ -101,8 +107,8 @@ double blw_logaddexp(double x, double y);
 double blw_logsubexp(double x, double y);
 
 /* Full log-density (every parameter) and, when grad != NULL, its gradient; parameters already checked. */
-bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld,
-                               double *grad, bl_error *err);
+bl_status blw_log_density_full(const bl_wiener_params *p, double rt, int upper, double *ld, double *grad,
+                               bl_error *err);
 
 /* log survival S(t) = P(T > t, boundary) directly from the large-time series (drift_sd closed form), with
  * dl the gradient in (v, a, w, sv); for the far tail, where 1 - CDF would cancel. */

@@ -46,8 +46,8 @@ static void build_tables(void)
     for (int j = 0; j < GH_COUNT; j++) {
         int n = gh_sizes[j];
         /* weight exp(-b (x - a)^2) with a = 0, b = 1/2: the standard normal kernel */
-        gsl_integration_fixed_workspace *ws =
-            gsl_integration_fixed_alloc(gsl_integration_fixed_hermite, (size_t)n, 0.0, 0.5, 0.0, 0.0);
+        gsl_integration_fixed_workspace *ws = gsl_integration_fixed_alloc(gsl_integration_fixed_hermite, (size_t)n, 0.0,
+                                                                          0.5, 0.0, 0.0);
         if (!ws) {
             ok = 0;
             continue;
@@ -64,8 +64,8 @@ static void build_tables(void)
     for (int r = 0; r < 2; r++) {
         int nl = r ? 8 : BLW_GLAG_N;
         double *ly = r ? glag8_y : glag_y, *llw = r ? glag8_lw : glag_lw;
-        gsl_integration_fixed_workspace *lg =
-            gsl_integration_fixed_alloc(gsl_integration_fixed_laguerre, (size_t)nl, 0.0, 1.0, 0.0, 0.0);
+        gsl_integration_fixed_workspace *lg = gsl_integration_fixed_alloc(gsl_integration_fixed_laguerre, (size_t)nl,
+                                                                          0.0, 1.0, 0.0, 0.0);
         if (!lg) {
             ok = 0;
             continue;
@@ -106,7 +106,6 @@ int blw_gauss_hermite(int n, const double **x, const double **wt)
     *wt = gh_w[j];
     return gh_sizes[j];
 }
-
 
 int blw_tables_ok(void)
 {

@@ -78,8 +78,8 @@ bl_status bl_wiener_sample(const bl_wiener_params *p, gsl_rng *rng, int *upper, 
     double U = gsl_rng_uniform_pos(rng), T;
     s = solve_time(v, a, w, up, U, &T);
     if (s)
-        return bl_error_set(err, s, "sampler: decision-time inversion did not converge (drift %g, threshold %g, start %g)",
-                            v, a, w);
+        return bl_error_set(
+            err, s, "sampler: decision-time inversion did not converge (drift %g, threshold %g, start %g)", v, a, w);
     *upper = up;
     *rt = t0 + T;
     return BL_OK;

@@ -10,7 +10,6 @@
 /* Draw one (response, rt) pair by inverting the CDF (exact up to the solver's ~1e-13 in log time);
  * variability parameters are drawn per call, contaminants uniform on [contamination_lo, hi] with a fair
  * response. Deterministic for a given rng state. */
-bl_status bl_wiener_sample(const bl_wiener_params *p, gsl_rng *rng, int *upper, double *rt,
-                           bl_error *err);
+bl_status bl_wiener_sample(const bl_wiener_params *p, gsl_rng *rng, int *upper, double *rt, bl_error *err);
 
 #endif

@@ -213,7 +213,8 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
         qt[i] = q;
         rs[i] = sqrt((1 + s2 * tref) / (1 + s2 * tt[i])); /* D^(-1/2) relative to the reference */
         /* sv = 0: the t-part of the prefactor, relative to the reference time */
-        et[i] = sv == 0 ? twt[i] * exp(-(q - 4.934802200544679309 * tref / a2) - 0.5 * vv * vv * (tt[i] - tref)) : twt[i];
+        et[i] = sv == 0 ? twt[i] * exp(-(q - 4.934802200544679309 * tref / a2) - 0.5 * vv * vv * (tt[i] - tref))
+                        : twt[i];
     }
     for (int j = 0; j < nw; j++) {
         double wp = w + sz * dz[j];
@@ -343,10 +344,7 @@ static double log_p_lo_c(double v, double a, double w, double wc)
     return log(-expm1(2 * va * wc)) - log(-expm1(2 * va));
 }
 
-double blw_log_p_lo(double v, double a, double w)
-{
-    return log_p_lo_c(v, a, w, 1 - w);
-}
+double blw_log_p_lo(double v, double a, double w) { return log_p_lo_c(v, a, w, 1 - w); }
 
 double blw_log_p(double v, double a, double w, int upper)
 {
@@ -357,8 +355,7 @@ double blw_log_p(double v, double a, double w, int upper)
 static double coth_h(double x)
 {
     double x2 = x * x;
-    if (fabs(x) < 0.1)
-        return 1.0 / 3 + x2 * (-1.0 / 45 + x2 * (2.0 / 945 + x2 * (-1.0 / 4725 + x2 * (2.0 / 93555))));
+    if (fabs(x) < 0.1) return 1.0 / 3 + x2 * (-1.0 / 45 + x2 * (2.0 / 945 + x2 * (-1.0 / 4725 + x2 * (2.0 / 93555))));
     if (fabs(x) > 40) return (fabs(x) - 1) / x2;
     return (x / tanh(x) - 1) / x2;
 }
@@ -371,17 +368,11 @@ static double mean_t_c(double v, double a, double wc)
     return a * a * coth_h(v * a) - zp * zp * coth_h(v * zp);
 }
 
-double blw_mean_t_lo(double v, double a, double w)
-{
-    return mean_t_c(v, a, 1 - w);
-}
+double blw_mean_t_lo(double v, double a, double w) { return mean_t_c(v, a, 1 - w); }
 
 /* E[T | upper](v, a, w) = E[T | lower](-v, a, 1 - w) and h is even: the distance to the far boundary
  * is the start itself, passed without rounding. */
-double blw_mean_t(double v, double a, double w, int upper)
-{
-    return upper ? mean_t_c(v, a, w) : mean_t_c(v, a, 1 - w);
-}
+double blw_mean_t(double v, double a, double w, int upper) { return upper ? mean_t_c(v, a, w) : mean_t_c(v, a, 1 - w); }
 
 static double drift_log_integrand(double x, double v, double a, double w, double sv, int upper)
 {
@@ -395,8 +386,7 @@ static double drift_log_integrand(double x, double v, double a, double w, double
  * the real axis; start: Gauss-Legendre, 24 nodes. Summed in logs relative to the peak, so probabilities
  * of 1e-300 keep their digits. Not a hot path (used for predictions), so it favours accuracy
  * (checked against GSL qagi to 1e-9 and against mpmath). */
-static void moments_var(double a, double v, double w, double sv, double sz, int upper, double *prob,
-                        double *mean_t)
+static void moments_var(double a, double v, double w, double sv, double sz, int upper, double *prob, double *mean_t)
 {
     const double *gx, *gw, *lx, *lw;
     static const double one = 1, zero = 0;
@@ -457,4 +447,3 @@ double blw_p_var(double v, double a, double w, double sv, double sz, int upper)
     moments_var(a, v, w, sv, sz, upper, &P, NULL);
     return P;
 }
-

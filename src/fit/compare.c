@@ -342,9 +342,10 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
             bl_status st = BL_OK;
             /* One seed per (model, parameter, slope, level, permutation); the whole-slope test (level < 0)
              * keeps the seeds it always had. */
-            gsl_rng_set(rng, bl_fit_mix_seed(opt->seed, r->name, (unsigned long)p * 1000003UL + (unsigned long)s * 7919UL +
-                                                               (unsigned long)b * 2654435761UL +
-                                                               (level >= 0 ? (unsigned long)(level + 1) * 104729UL : 0)));
+            gsl_rng_set(rng, bl_fit_mix_seed(opt->seed, r->name,
+                                             (unsigned long)p * 1000003UL + (unsigned long)s * 7919UL +
+                                                 (unsigned long)b * 2654435761UL +
+                                                 (level >= 0 ? (unsigned long)(level + 1) * 104729UL : 0)));
             for (size_t i = 0; !st && i < mine.n_units; i++)
                 st = bl_model_permute_slope(mine.models[i], p, s, cells[i], level, rng, &e);
             double ll_perm = -INFINITY;
@@ -388,8 +389,8 @@ static bl_status run_permutations(const bl_unit_set *full, size_t **cells, const
 
 /* Maximum log-likelihood of the full model without coefficient `level` of slope s (its regressor set to 0
  * on that level's trials), refitted from the full estimates with that coefficient at 0. */
-static bl_status level_null_ll(const bl_unit_set *full, const bl_fit_options *opt, bl_param p, size_t s,
-                               size_t level, double *ll, bl_error *err)
+static bl_status level_null_ll(const bl_unit_set *full, const bl_fit_options *opt, bl_param p, size_t s, size_t level,
+                               double *ll, bl_error *err)
 {
     bl_fit_options one = *opt;
     one.progress = NULL;
@@ -451,7 +452,7 @@ static size_t level_tests(const bl_unit_set *full, bl_param p, size_t s)
 }
 
 bl_status bl_permutation_tests(const bl_study *study, const bl_model_spec *spec, const bl_trials *trials,
-                                   const bl_fit_options *opt, bl_unit_set *full, bl_model_result *r, bl_error *err)
+                               const bl_fit_options *opt, bl_unit_set *full, bl_model_result *r, bl_error *err)
 {
     bl_gsl_guard();
     size_t n_tests = 0;

@@ -85,7 +85,7 @@ bl_status bl_ez_diffusion(double pc, double vrt, double mrt, double *drift, doub
 
 typedef struct {
     size_t n, n_correct;
-    double sum, sumsq;   /* of correct RTs */
+    double sum, sumsq; /* of correct RTs */
     double min_rt;
 } cell_stats;
 
@@ -119,8 +119,8 @@ enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC };
 
 typedef struct {
     int type;
-    double lo, hi;      /* TR_LOGISTIC: coef = lo + (hi - lo) * logistic(x) */
-    double scale;       /* TR_RAW: coef = x / scale */
+    double lo, hi; /* TR_LOGISTIC: coef = lo + (hi - lo) * logistic(x) */
+    double scale;  /* TR_RAW: coef = x / scale */
 } transform;
 
 static double to_coef(const transform *t, double x)
@@ -500,7 +500,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
                 for (size_t j = 0; j < k; j++) {
                     double xj = gsl_vector_get(x0, j);
                     double sd = o->tr[j].type == TR_RAW && o->m->coef[j].slope < 0 ? spread * fmax(fabs(xj), 0.5)
-                                                                                    : spread * 0.5;
+                                                                                   : spread * 0.5;
                     gsl_vector_set(x, j, xj + gsl_ran_gaussian(rng, sd));
                 }
                 if (isfinite(obj_f(x, o))) break;
@@ -608,8 +608,8 @@ static bl_status explain_zero_likelihood(const bl_model *m, bl_likelihood *lik, 
     int valid = bl_model_predict(m, coef, k, &p);
     bl_error why = {0};
     if (!valid && bl_wiener_check(&p, &why) != BL_OK)
-        return bl_error_set(err, BL_ERR_MODEL, "model '%s': trial table row %zu: %s (check fixed values and links)", m->name,
-                            m->row[k] + 1, why.message);
+        return bl_error_set(err, BL_ERR_MODEL, "model '%s': trial table row %zu: %s (check fixed values and links)",
+                            m->name, m->row[k] + 1, why.message);
     return bl_error_set(err, BL_ERR_MODEL,
                         "model '%s': trial table row %zu: an RT of %.6g s cannot be produced with nondecision %.6g s "
                         "(and nondecision_range %.6g s); check fixed values, or leave such RTs out with trials.keep",
@@ -632,7 +632,7 @@ static int refine_bfgs(objective *o, double *coef)
 }
 
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
-                          const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
+                      const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
 {
     double t_start = now_seconds();
     size_t k = m->n_coef;
@@ -903,8 +903,8 @@ void bl_unit_set_free(bl_unit_set *u)
 
 /* Build one model for every unit (pooled: one unit; separate: one per participant with trials). */
 bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
-                             const bl_fit_options *opt, bl_unit_set *u, char ***unit_names, bl_warnings *warn,
-                             bl_error *err)
+                         const bl_fit_options *opt, bl_unit_set *u, char ***unit_names, bl_warnings *warn,
+                         bl_error *err)
 {
     memset(u, 0, sizeof *u);
     size_t n_units = mode == BL_PARTICIPANTS_SEPARATE ? trials->n_participants : 1;

@@ -26,10 +26,10 @@ typedef struct {
     const bl_study *study;
     const bl_trials *trials;
     bl_fit_options opt;
-    size_t *sel;           /* study model index of each selected model */
+    size_t *sel; /* study model index of each selected model */
     size_t n_sel;
-    bl_unit_set *units;    /* per selected model: its compiled designs, workspaces, estimates */
-    char ***unit_names;    /* per selected model: participant label of each unit (separate mode) */
+    bl_unit_set *units; /* per selected model: its compiled designs, workspaces, estimates */
+    char ***unit_names; /* per selected model: participant label of each unit (separate mode) */
     bl_fit_set *set;
 } study_fit;
 
@@ -196,7 +196,8 @@ static bl_status build_designs(study_fit *sf, bl_warnings *warn, bl_error *err)
         const bl_model_spec *spec = &sf->study->models[sf->sel[q]];
         bl_model_result *r = &set->models[q];
         bl_status st = model_result_init(r, spec, set->mode, sf->trials->n, err);
-        if (!st) st = bl_build_units(spec, sf->trials, set->mode, &sf->opt, &sf->units[q], &sf->unit_names[q], warn, err);
+        if (!st)
+            st = bl_build_units(spec, sf->trials, set->mode, &sf->opt, &sf->units[q], &sf->unit_names[q], warn, err);
         if (st) return st;
         if (set->mode != BL_PARTICIPANTS_SEPARATE) continue;
         r->participants = calloc(sf->units[q].n_units, sizeof *r->participants);
@@ -346,8 +347,8 @@ static bl_status mark_nesting(study_fit *sf, bl_error *err)
     return BL_OK;
 }
 
-bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt,
-                       bl_fit_set **out, bl_warnings *warn, bl_error *err)
+bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_fit_options *opt, bl_fit_set **out,
+                       bl_warnings *warn, bl_error *err)
 {
     bl_gsl_guard();
     *out = NULL;
@@ -363,8 +364,9 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     for (size_t q = 0; q < sf.n_sel; q++)
         if ((st = summarise_model(&sf, q, &nondecision_note, warn, err))) goto fail;
     if (nondecision_note)
-        bl_warnings_add(warn, "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
-                              "the fastest RT (see docs/models.md)");
+        bl_warnings_add(warn,
+                        "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
+                        "the fastest RT (see docs/models.md)");
     if ((st = mark_nesting(&sf, err))) goto fail;
     if ((st = bl_compare_models(sf.set, err))) goto fail;
     *out = sf.set;

@@ -24,11 +24,11 @@ struct bl_likelihood {
     const bl_model *m;
     int threads;
     size_t n_blocks;
-    double *block_ll;     /* n_blocks */
-    double *block_grad;   /* n_blocks rows of `stride` doubles (n_coef used) */
-    size_t stride;        /* n_coef rounded up to 64 bytes: blocks on different threads never share a
+    double *block_ll;   /* n_blocks */
+    double *block_grad; /* n_blocks rows of `stride` doubles (n_coef used) */
+    size_t stride;      /* n_coef rounded up to 64 bytes: blocks on different threads never share a
                              cache line, which would make every gradient update ping-pong */
-    int *block_bad;       /* n_blocks */
+    int *block_bad;     /* n_blocks */
     size_t evaluations;
     /* Parallel or serial, chosen by timing: the block sums are the same either way, so the choice
      * changes speed only. Probes alternate both for a few evaluations, then the faster one is used
@@ -40,9 +40,9 @@ struct bl_likelihood {
     size_t next_probe;
 };
 
-
-#define BL_LIK_PROBES 2        /* timed evaluations of each mode per probe round */
-#define BL_LIK_REPROBE 64      /* evaluations between probe rounds (load can change quickly); x4 after
+#define BL_LIK_PROBES 2 /* timed evaluations of each mode per probe round */
+#define BL_LIK_REPROBE                                                                                                 \
+    64 /* evaluations between probe rounds (load can change quickly); x4 after
                                   each round one thread wins, up to 4096 */
 
 bl_status bl_likelihood_create(const bl_model *m, int threads, bl_likelihood **out, bl_error *err)
@@ -221,10 +221,7 @@ infeasible:
 
 void bl_likelihood_set_parallel(bl_likelihood *w, bl_parallel_mode mode) { w->parallel = mode; }
 
-double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad)
-{
-    return evaluate(w, coef, grad, NULL);
-}
+double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad) { return evaluate(w, coef, grad, NULL); }
 
 double bl_likelihood_trials(bl_likelihood *w, const double *coef, double *trial_ll)
 {

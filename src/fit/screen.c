@@ -11,7 +11,7 @@
 #define BL_FASTEST_PLAUSIBLE_RT 0.1
 
 typedef struct {
-    const char *key;  /* cell label, shared by the trials of a cell */
+    const char *key; /* cell label, shared by the trials of a cell */
     size_t trial;
 } cell_entry;
 
@@ -64,10 +64,11 @@ bl_status bl_screen_trials(const bl_study *study, const bl_trials *t, const size
         if (t->rt[i] < fastest) fastest = t->rt[i];
     }
     if (n_fast)
-        bl_warnings_add(warn,
-                        "%zu kept trials are faster than %g s (fastest %.4g s); nondecision cannot exceed the fastest RT, "
-                        "so they pull it toward 0 (consider trials.keep.rt_min)",
-                        n_fast, BL_FASTEST_PLAUSIBLE_RT, fastest);
+        bl_warnings_add(
+            warn,
+            "%zu kept trials are faster than %g s (fastest %.4g s); nondecision cannot exceed the fastest RT, "
+            "so they pull it toward 0 (consider trials.keep.rt_min)",
+            n_fast, BL_FASTEST_PLAUSIBLE_RT, fastest);
 
     /* Separate fits with one participant: no between-participant summary is possible. */
     if (study->fit.participants == BL_PARTICIPANTS_SEPARATE) {
@@ -95,7 +96,8 @@ bl_status bl_screen_trials(const bl_study *study, const bl_trials *t, const size
          * when participants are fitted separately). Unknown columns are model.c's to report. */
         int cols[64];
         size_t n_cols = 0;
-        if (study->fit.participants == BL_PARTICIPANTS_SEPARATE && participant_col >= 0) cols[n_cols++] = participant_col;
+        if (study->fit.participants == BL_PARTICIPANTS_SEPARATE && participant_col >= 0)
+            cols[n_cols++] = participant_col;
         const bl_param_spec *ps[2] = {&m->param[BL_THRESHOLD], &m->param[BL_DRIFT]};
         for (int p = 0; p < 2; p++)
             for (size_t k = 0; k < ps[p]->n_per && n_cols < 64; k++) {
@@ -132,15 +134,17 @@ bl_status bl_screen_trials(const bl_study *study, const bl_trials *t, const size
             }
             size_t count = b - a;
             if (count >= 2 && lo == hi) {
-                st = bl_error_set(err, BL_ERR_MODEL,
-                                  "model '%s': all %zu RTs of cell %s are identical (%.6g s); threshold and drift cannot "
-                                  "be estimated from them (the likelihood grows without bound as the threshold shrinks)",
-                                  m->name, count, cells[a].key, lo);
+                st = bl_error_set(
+                    err, BL_ERR_MODEL,
+                    "model '%s': all %zu RTs of cell %s are identical (%.6g s); threshold and drift cannot "
+                    "be estimated from them (the likelihood grows without bound as the threshold shrinks)",
+                    m->name, count, cells[a].key, lo);
                 goto done;
             }
             if (count >= 2 && (n_upper == 0 || n_upper == count) && !already_warned(seen, n_seen, cells[a].key)) {
-                bl_warnings_add(warn, "cell %s: all %zu responses at the %s boundary; its drift is estimated from the "
-                                      "RT distribution alone",
+                bl_warnings_add(warn,
+                                "cell %s: all %zu responses at the %s boundary; its drift is estimated from the "
+                                "RT distribution alone",
                                 cells[a].key, count, n_upper ? "upper" : "lower");
                 if ((seen[n_seen] = malloc(strlen(cells[a].key) + 1))) strcpy(seen[n_seen++], cells[a].key);
             }

@@ -277,8 +277,9 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
             refs[nref++] = (slope_ref){p, &sp->param[p].slopes[s]};
     if (nref == 0) {
         bl_svg *fig = bl_svg_create("pred", "Predicted parameter vs regressor", 1, 1, 560, 200);
-        bl_svg_note(bl_svg_panel_at(fig, 0), mr ? "the best model has no slopes: every trial of a condition has the same parameters"
-                                                : "no fitted model");
+        bl_svg_note(bl_svg_panel_at(fig, 0),
+                    mr ? "the best model has no slopes: every trial of a condition has the same parameters"
+                       : "no fitted model");
         *caption = xprintf("No slopes in the model with the lowest AIC%s%s%s, so there is no parameter-regressor "
                            "relation to show.",
                            mr ? " (" : "", mr ? mr->name : "", mr ? ")" : "");
@@ -307,7 +308,9 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
         bl_svg_axis_label(p, BL_SVG_X, xl ? xl : r->slope->regressor);
         free(xl);
         const char *yl = bl_figures_param_unit(r->param);
-        char *yl2 = r->param == BL_DRIFT && study->trials.stimulus ? xprintf("drift toward the correct response (evidence units/s)") : NULL;
+        char *yl2 = r->param == BL_DRIFT && study->trials.stimulus
+                        ? xprintf("drift toward the correct response (evidence units/s)")
+                        : NULL;
         bl_svg_axis_label(p, BL_SVG_Y, yl2 ? yl2 : yl);
         free(yl2);
         char *pt = xprintf("%s vs %s", bl_param_name(r->param), r->slope->regressor);
@@ -365,13 +368,15 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
     }
     bl_svg_legend_heading(fig, "condition");
     for (size_t i = 0; i < n_leg; i++) {
-        bl_svg_legend(fig, legend_labels[i], BL_SVG_KEY_BOX, (bl_svg_style){.color = bl_svg_color((int)i), .opacity = 0.8});
+        bl_svg_legend(fig, legend_labels[i], BL_SVG_KEY_BOX,
+                      (bl_svg_style){.color = bl_svg_color((int)i), .opacity = 0.8});
         free(legend_labels[i]);
     }
     bl_svg_legend_heading(fig, "marks");
     bl_svg_legend(fig, "predicted, one per trial", BL_SVG_KEY_POINT, (bl_svg_style){.color = "#666666", .size = 2});
-    bl_svg_legend(fig, "observed, per regressor quintile", BL_SVG_KEY_LINE_POINT,
-                  (bl_svg_style){.color = "#666666", .marker = BL_SVG_MARK_DIAMOND, .size = 4.5, .dashed = 1, .width = 1});
+    bl_svg_legend(
+        fig, "observed, per regressor quintile", BL_SVG_KEY_LINE_POINT,
+        (bl_svg_style){.color = "#666666", .marker = BL_SVG_MARK_DIAMOND, .size = 4.5, .dashed = 1, .width = 1});
     free(x), free(y);
     *caption = xprintf("Each small point is one trial's parameter as predicted by %s (the model with the lowest AIC), "
                        "against the regressor its slope multiplies, coloured by the condition the slope is "
@@ -632,7 +637,8 @@ static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, ch
                        "regressor. Bars are 95%% Wald intervals.%s",
                        mr->name,
                        separate ? " Participants were fitted separately: grey marks are their estimates, squares the "
-                                  "DerSimonian-Laird random-effects summary." : "");
+                                  "DerSimonian-Laird random-effects summary."
+                                : "");
     return fig;
 }
 
@@ -661,7 +667,10 @@ static bl_svg *fig_comparison(const bl_fit_set *set, char **caption)
     }
     bl_svg_axis_categories(p, BL_SVG_X, labels, k);
     bl_svg_axis_label(p, BL_SVG_X, "model");
-    bl_svg_axis_label(p, BL_SVG_Y, "\xCE\x94" "AIC, \xCE\x94" "BIC (2 \xC3\x97 log-likelihood units)");
+    bl_svg_axis_label(p, BL_SVG_Y,
+                      "\xCE\x94"
+                      "AIC, \xCE\x94"
+                      "BIC (2 \xC3\x97 log-likelihood units)");
     bl_svg_axis_include(p, BL_SVG_Y, 0);
     bl_svg_axis_include(p, BL_SVG_Y, 2);
     bl_svg_bars(p, x1, a, k, 0.38, (bl_svg_style){.color = bl_svg_color(0)});
@@ -671,11 +680,20 @@ static bl_svg *fig_comparison(const bl_fit_set *set, char **caption)
     for (size_t m = 0; m < k; m++) {
         int ba = a[m] == 0, bb = b[m] == 0;
         if (ba || bb)
-            bl_svg_text(p, (double)m, 0, 6, ba && bb ? "best by AIC and BIC" : ba ? "best by AIC" : "best by BIC",
+            bl_svg_text(p, (double)m, 0, 6,
+                        ba && bb ? "best by AIC and BIC"
+                        : ba     ? "best by AIC"
+                                 : "best by BIC",
                         (bl_svg_style){.color = "#333333"});
     }
-    bl_svg_legend(fig, "\xCE\x94" "AIC", BL_SVG_KEY_BOX, (bl_svg_style){.color = bl_svg_color(0), .opacity = 1});
-    bl_svg_legend(fig, "\xCE\x94" "BIC", BL_SVG_KEY_BOX, (bl_svg_style){.color = bl_svg_color(1), .opacity = 1});
+    bl_svg_legend(fig,
+                  "\xCE\x94"
+                  "AIC",
+                  BL_SVG_KEY_BOX, (bl_svg_style){.color = bl_svg_color(0), .opacity = 1});
+    bl_svg_legend(fig,
+                  "\xCE\x94"
+                  "BIC",
+                  BL_SVG_KEY_BOX, (bl_svg_style){.color = bl_svg_color(1), .opacity = 1});
     *caption = xprintf("AIC and BIC of each model minus the smallest value over the models (%zu); the best model "
                        "by each criterion has a bar of 0. Differences below about 2 are usually read as no clear "
                        "preference (a convention, Burnham & Anderson 2002).",
@@ -699,7 +717,8 @@ bl_status bl_figures_make(const bl_study *study, const bl_trials *trials, const 
     if ((st = add_figure(fs, f, "power_spectrum.svg", "Power spectral density by condition", cap, err))) goto fail;
     cap = NULL;
     f = fig_predicted(study, trials, set, g, &cap);
-    if ((st = add_figure(fs, f, "parameter_vs_regressor.svg", "Predicted parameters vs regressors", cap, err))) goto fail;
+    if ((st = add_figure(fs, f, "parameter_vs_regressor.svg", "Predicted parameters vs regressors", cap, err)))
+        goto fail;
     cap = NULL;
     f = fig_qp(set, g, &cap);
     if ((st = add_figure(fs, f, "quantile_probability.svg", "Quantile-probability plot", cap, err))) goto fail;

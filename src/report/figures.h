@@ -22,11 +22,11 @@
 #include <stddef.h>
 
 typedef struct {
-    char *file;      /* "power_spectrum.svg" (name inside figures/) */
-    char *title;     /* short title */
-    char *caption;   /* one or two sentences for the report */
-    char *svg;       /* the <svg> element (no XML declaration) */
-    size_t size;     /* strlen(svg) */
+    char *file;    /* "power_spectrum.svg" (name inside figures/) */
+    char *title;   /* short title */
+    char *caption; /* one or two sentences for the report */
+    char *svg;     /* the <svg> element (no XML declaration) */
+    size_t size;   /* strlen(svg) */
 } bl_figure;
 
 typedef struct {
@@ -44,6 +44,5 @@ void bl_figure_set_destroy(bl_figure_set *figs);
 
 /* Index of the model with the lowest AIC (ties: the first), or -1 when none has a finite AIC. */
 int bl_figures_best_model(const bl_fit_set *set);
-
 
 #endif

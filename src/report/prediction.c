@@ -13,32 +13,33 @@
 #include <string.h>
 
 /* The public link codes are the study's own. */
-_Static_assert(BL_PREDICTION_LINK_FIXED == (int)BL_LINK_DEFAULT && BL_PREDICTION_LINK_IDENTITY == (int)BL_LINK_IDENTITY &&
-                   BL_PREDICTION_LINK_LOG == (int)BL_LINK_LOG, "link codes");
+_Static_assert(BL_PREDICTION_LINK_FIXED == (int)BL_LINK_DEFAULT &&
+                   BL_PREDICTION_LINK_IDENTITY == (int)BL_LINK_IDENTITY && BL_PREDICTION_LINK_LOG == (int)BL_LINK_LOG,
+               "link codes");
 
 const double bl_prediction_quantile_probs[BL_PREDICTION_NQ] = {0.1, 0.3, 0.5, 0.7, 0.9};
 
 /* One maximised likelihood as read back: coefficients (link scale) and their covariance. */
 typedef struct {
-    char *participant;  /* NULL for the model-level fit */
+    char *participant; /* NULL for the model-level fit */
     size_t n_coef;
-    int *param;         /* bl_param index per coefficient */
+    int *param; /* bl_param index per coefficient */
     char **term, **level;
-    double *estimate;   /* NAN where fits.json has null */
-    double *cov;        /* n_coef x n_coef, NULL when fits.json has null or no "covariance" */
+    double *estimate; /* NAN where fits.json has null */
+    double *cov;      /* n_coef x n_coef, NULL when fits.json has null or no "covariance" */
 } fit_entry;
 
 typedef struct {
     char *name;
-    int pooled;             /* "mode": "pooled" */
+    int pooled; /* "mode": "pooled" */
     fit_entry fit;
     size_t n_parts;
     fit_entry *parts;
-    const bl_model_spec *spec;  /* in the study of provenance.study */
+    const bl_model_spec *spec; /* in the study of provenance.study */
 } model_entry;
 
 struct bl_fitted_models {
-    char *name;             /* the file, for messages */
+    char *name; /* the file, for messages */
     bl_study *study;
     size_t n_models;
     model_entry *models;
@@ -111,8 +112,10 @@ static bl_status read_covariance(const char *file, const cJSON *o, const char *p
     if (!cov || cJSON_IsNull(cov)) return BL_OK; /* written by an older bandlink, or not available */
     size_t k = e->n_coef;
     if (!cJSON_IsArray(cov) || (size_t)cJSON_GetArraySize(cov) != k)
-        return bl_error_set(err, BL_ERR_INPUT, "%s: key '%s' must be null or %zu rows of %zu numbers", file, path, k, k);
-    if (!(e->cov = malloc((k ? k * k : 1) * sizeof *e->cov))) return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", file);
+        return bl_error_set(err, BL_ERR_INPUT, "%s: key '%s' must be null or %zu rows of %zu numbers", file, path, k,
+                            k);
+    if (!(e->cov = malloc((k ? k * k : 1) * sizeof *e->cov)))
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", file);
     size_t i = 0;
     for (const cJSON *row = cov->child; row; row = row->next, i++) {
         if (!cJSON_IsArray(row) || (size_t)cJSON_GetArraySize(row) != k)
@@ -183,7 +186,8 @@ static bl_status read_model(bl_fitted_models *fm, const cJSON *o, size_t i, bl_e
     if (parts && !cJSON_IsArray(parts)) return bad_key(err, file, path, "is not an array");
     if (!m->pooled && !parts) return bad_key(err, file, path, "is missing (the model was not fitted pooled)");
     size_t np = parts ? (size_t)cJSON_GetArraySize(parts) : 0;
-    if (np && !(m->parts = calloc(np, sizeof *m->parts))) return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", file);
+    if (np && !(m->parts = calloc(np, sizeof *m->parts)))
+        return bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", file);
     for (const cJSON *p = parts ? parts->child : NULL; p; p = p->next, m->n_parts++) {
         char pp[128];
         snprintf(pp, sizeof pp, "%s.participants[%zu]", prefix, m->n_parts);
@@ -198,8 +202,8 @@ static bl_status read_model(bl_fitted_models *fm, const cJSON *o, size_t i, bl_e
     for (size_t s = 0; s < fm->study->n_models; s++)
         if (strcmp(fm->study->models[s].name, m->name) == 0) m->spec = &fm->study->models[s];
     if (!m->spec)
-        return bl_error_set(err, BL_ERR_INPUT, "%s: key '%s.name' is '%s', a model not in provenance.study.models", file,
-                            prefix, m->name);
+        return bl_error_set(err, BL_ERR_INPUT, "%s: key '%s.name' is '%s', a model not in provenance.study.models",
+                            file, prefix, m->name);
     return BL_OK;
 }
 
@@ -407,13 +411,13 @@ static bl_status check_names(const bl_fitted_models *fm, const model_entry *m, c
     for (size_t i = 0; i < req->n_at; i++) {
         const char *nm = req->at[i].name;
         for (size_t j = 0; j < i; j++)
-            if (strcmp(req->at[j].name, nm) == 0)
-                return bl_error_set(err, BL_ERR_USAGE, "'%s' is given twice", nm);
+            if (strcmp(req->at[j].name, nm) == 0) return bl_error_set(err, BL_ERR_USAGE, "'%s' is given twice", nm);
         if (model_uses(m->spec, nm) || (stim && strcmp(stim, nm) == 0)) continue;
         int elsewhere = 0;
         for (size_t s = 0; s < fm->study->n_models; s++) elsewhere |= model_uses(&fm->study->models[s], nm);
         if (elsewhere) {
-            bl_warnings_add(warn, "model '%s' does not use '%s': its value %s is ignored", m->name, nm, req->at[i].value);
+            bl_warnings_add(warn, "model '%s' does not use '%s': its value %s is ignored", m->name, nm,
+                            req->at[i].value);
             continue;
         }
         name_list l = {0};
@@ -430,8 +434,9 @@ static bl_status check_names(const bl_fitted_models *fm, const model_entry *m, c
                 const char *nm = c < nc ? cols[c] : (s > 0 ? ps->slopes[s - 1].regressor : NULL);
                 if (!nm || setting(req, nm)) continue;
                 int regressor = c == nc;
-                return bl_error_set(err, BL_ERR_USAGE, "model '%s' uses %s '%s' (in %s) but no value is given for it (%s=%s)",
-                                    m->name, regressor ? "regressor" : "condition column", nm, bl_param_name(p), nm,
+                return bl_error_set(err, BL_ERR_USAGE,
+                                    "model '%s' uses %s '%s' (in %s) but no value is given for it (%s=%s)", m->name,
+                                    regressor ? "regressor" : "condition column", nm, bl_param_name(p), nm,
                                     regressor ? "VALUE" : "LEVEL");
             }
         }
@@ -590,7 +595,8 @@ static bl_status predict_derived(const bl_fitted_models *fm, const model_entry *
     size_t k = e->n_coef;
     double f0[NF], df[BL_NPARAM][NF];
     if (derived(&out->params, f0, err) != 1)
-        return err && err->status ? err->status : bl_error_set(err, BL_ERR_INTERNAL, "model '%s': invalid prediction", m->name);
+        return err && err->status ? err->status
+                                  : bl_error_set(err, BL_ERR_INTERNAL, "model '%s': invalid prediction", m->name);
     for (int q = 0; q < BL_NPARAM; q++) {
         for (int i = 0; i < NF; i++) df[q][i] = 0;
         if (out->link[q] == BL_LINK_DEFAULT || !e->cov) continue;

@@ -112,8 +112,8 @@ static void job_section(FILE *f, const bl_report_job *job, const bl_study *study
         kv(f, "permutation refits", job->permutations ? b : "none");
     }
     if (set) {
-        kv(f, "participants fitted", set->mode == BL_PARTICIPANTS_SEPARATE ? "separately (plus a group summary)"
-                                                                           : "pooled (one likelihood)");
+        kv(f, "participants fitted",
+           set->mode == BL_PARTICIPANTS_SEPARATE ? "separately (plus a group summary)" : "pooled (one likelihood)");
         snprintf(b, sizeof b, "%zu", set->n_models);
         kv(f, "models", b);
     }
@@ -169,7 +169,8 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
     if (pr) {
         snprintf(b, sizeof b, "%zu file%s, %.6g Hz", pr->n_recordings, pr->n_recordings == 1 ? "" : "s", pr->fs);
         kv(f, "recordings", b);
-        snprintf(b, sizeof b, "%zu samples per window, segments of %zu with %zu overlap (%zu per window), "
+        snprintf(b, sizeof b,
+                 "%zu samples per window, segments of %zu with %zu overlap (%zu per window), "
                  "FFT length %zu, resolution %.4g Hz",
                  pr->window_samples, pr->nperseg, pr->noverlap, pr->n_segments, pr->nfft, pr->df);
         kv(f, "Welch settings", b);
@@ -190,7 +191,9 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
         size_t nex = 0;
         if (bl_trials_exclusion_counts(t, &ex, &nex, NULL)) report_text_lost = 1;
         if (nex > 0 && ex) {
-            fputs("<h3>Excluded trials by reason</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">reason</th><th>trials</th></tr>\n", f);
+            fputs("<h3>Excluded trials by reason</h3>\n<div class=\"scroll\"><table><tr><th "
+                  "class=\"t\">reason</th><th>trials</th></tr>\n",
+                  f);
             for (size_t i = 0; i < nex; i++) {
                 fputs("<tr><td class=\"t\">", f);
                 esc(f, ex[i].reason);
@@ -210,7 +213,8 @@ static void data_section(FILE *f, const bl_study *study, const bl_trials *t, con
                 tot[t->participant[i]]++;
                 kept[t->participant[i]] += t->excluded[i] == NULL;
             }
-            fputs("<details><summary>Trials per participant</summary>\n<div class=\"scroll\"><table><tr><th class=\"t\">participant</th>"
+            fputs("<details><summary>Trials per participant</summary>\n<div class=\"scroll\"><table><tr><th "
+                  "class=\"t\">participant</th>"
                   "<th>trials</th><th>kept</th></tr>\n",
                   f);
             for (size_t p = 0; p < t->n_participants; p++) {
@@ -245,7 +249,8 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
         return;
     }
     int best = bl_figures_best_model(set);
-    fputs("<div class=\"scroll\"><table class=\"cmp\"><tr><th class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
+    fputs("<div class=\"scroll\"><table class=\"cmp\"><tr><th "
+          "class=\"t\">model</th><th>parameters</th><th>trials</th><th>log-likelihood</th>"
           "<th>AIC</th><th>BIC</th><th>&#916;AIC</th><th>&#916;BIC</th><th>AIC weight</th>"
           "<th class=\"t\">LRT against</th><th>statistic</th><th>df</th><th>p</th><th>converged</th></tr>\n",
           f);
@@ -288,7 +293,8 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
 
 static void coef_rows(FILE *f, const bl_coefficient *c, size_t n)
 {
-    fputs("<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th class=\"t\">term</th><th class=\"t\">level</th>"
+    fputs("<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th class=\"t\">term</th><th "
+          "class=\"t\">level</th>"
           "<th>estimate</th><th>SE</th><th>95% CI</th><th>z</th><th>p</th></tr>\n",
           f);
     for (size_t j = 0; j < n; j++) {
@@ -386,7 +392,8 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
             coef_rows(f, mr->fit.coef, mr->fit.n_coef);
         }
         if (mr->n_permutation) {
-            fputs("<h3>Permutation tests</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th class=\"t\">regressor</th>"
+            fputs("<h3>Permutation tests</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th "
+                  "class=\"t\">regressor</th>"
                   "<th>statistic</th><th>refits</th><th>p</th></tr>\n",
                   f);
             for (size_t j = 0; j < mr->n_permutation; j++) {
@@ -413,7 +420,8 @@ static void goodness_section(FILE *f, const bl_fit_set *set, const bl_goodness *
     if (!set || !g) return;
     /* with stimulus coding the rows are correct and error responses, so the share is accuracy */
     const char *share = g->accuracy ? "accuracy" : "shares";
-    fprintf(f, "<h2 id=\"goodness\">Goodness of fit</h2>\n<p>Distance between observed and predicted RT quantiles "
+    fprintf(f,
+            "<h2 id=\"goodness\">Goodness of fit</h2>\n<p>Distance between observed and predicted RT quantiles "
             "(0.1&#8211;0.9) and %s, averaged over groups weighted by their responses (quantiles) or "
             "trials (%s).%s All numbers per group are in <code>fit_quantiles.csv</code>.</p>\n"
             "<div class=\"scroll\"><table><tr><th class=\"t\">model</th><th>quantiles, condition cells (ms)</th>"
@@ -545,7 +553,6 @@ bl_status bl_report_write(const char *path, const bl_report_job *job, const bl_s
     }
     return bl_outfile_commit(o, err);
 }
-
 
 bl_status bl_report_outputs_write(const char *dir, const bl_report_job *job, const bl_study *study,
                                   const bl_trials *trials, const bl_power_result *power, const bl_fit_set *set,

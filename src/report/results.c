@@ -162,8 +162,9 @@ static cJSON *model_json(const bl_model_result *r)
                 break;
             }
             ok = add_str(e, "parameter", t->parameter) && add_str(e, "term", t->regressor) &&
-                 add_str(e, "level", t->level ? t->level : "") && add_num(e, "statistic", t->statistic) && add_num(e, "permutations", (double)t->permutations) &&
-                 add_num(e, "exceed", (double)t->exceed) && add_num(e, "p", t->p);
+                 add_str(e, "level", t->level ? t->level : "") && add_num(e, "statistic", t->statistic) &&
+                 add_num(e, "permutations", (double)t->permutations) && add_num(e, "exceed", (double)t->exceed) &&
+                 add_num(e, "p", t->p);
         }
     }
     if (!ok) {
@@ -179,7 +180,8 @@ static cJSON *model_json(const bl_model_result *r)
 static cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance, const bl_warnings *warnings)
 {
     cJSON *root = cJSON_CreateObject(), *models = cJSON_CreateArray(), *warn = cJSON_CreateArray();
-    int ok = root && add(root, "mode", cJSON_CreateString(set->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled"));
+    int ok = root &&
+             add(root, "mode", cJSON_CreateString(set->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled"));
     ok = ok && add(root, "models", models);
     if (!ok) cJSON_Delete(models);
     for (size_t i = 0; ok && i < set->n_models; i++) {
@@ -285,8 +287,8 @@ bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, b
  * slope `by`, participant column left out, stimulus column added with stimulus coding), then their
  * slope regressors, each once in order of first appearance. Names equal to a fixed column are left
  * out (they would make the header ambiguous). cols[] receives table indices; returns the count. */
-static const char *const trials_fixed_cols[] = {"model", "participant", "trial", "threshold", "drift", "nondecision",
-                                                "start", "p_upper", "mean_rt", "log_likelihood"};
+static const char *const trials_fixed_cols[] = {"model",       "participant", "trial",   "threshold", "drift",
+                                                "nondecision", "start",       "p_upper", "mean_rt",   "log_likelihood"};
 
 static void trials_add_col(const bl_trials *t, const char *name, int *cols, size_t *n, size_t cap)
 {
@@ -357,8 +359,8 @@ bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const
             csv_text(f, trials->participants ? trials->participants[trials->participant[i]] : NULL);
             fputc(',', f);
             csv_text(f, trials->trial_label ? trials->trial_label[i] : NULL);
-            const double v[] = {p->value[BL_THRESHOLD], p->value[BL_DRIFT], p->value[BL_NONDECISION],
-                                p->value[BL_START],     r->p_upper[i],      r->mean_rt[i],
+            const double v[] = {p->value[BL_THRESHOLD],    p->value[BL_DRIFT], p->value[BL_NONDECISION],
+                                p->value[BL_START],        r->p_upper[i],      r->mean_rt[i],
                                 r->trial_log_likelihood[i]};
             for (size_t j = 0; j < sizeof v / sizeof v[0]; j++) {
                 fputc(',', f);

@@ -29,10 +29,9 @@
 #include <cjson/cJSON.h>
 
 bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
-                                       const bl_warnings *warnings, bl_error *err);
+                                const bl_warnings *warnings, bl_error *err);
 bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, bl_error *err);
 bl_status bl_results_write_trials(const char *path, const bl_fit_set *set, const bl_study *study,
-                                         const bl_trials *trials, bl_error *err);
-
+                                  const bl_trials *trials, bl_error *err);
 
 #endif

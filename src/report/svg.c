@@ -27,16 +27,16 @@ typedef struct {
     el_kind kind;
     bl_svg_style style;
     char color[8];
-    int axis;              /* errorbars, refline */
+    int axis; /* errorbars, refline */
     size_t n;
     double *x, *y, *lo, *hi;
-    double a, b;           /* vspan x0/x1, refline value, bar width */
-    char *text;            /* vspan label, note */
+    double a, b; /* vspan x0/x1, refline value, bar width */
+    char *text;  /* vspan label, note */
 } element;
 
 typedef struct {
     int log, fixed, categorical;
-    double lo, hi;         /* fixed range */
+    double lo, hi; /* fixed range */
     double *include;
     size_t n_include;
     char **cats;
@@ -280,8 +280,8 @@ void bl_svg_points(bl_svg_panel *p, const double *x, const double *y, size_t n, 
     if (!e->x || !e->y) e->n = 0;
 }
 
-void bl_svg_errorbars(bl_svg_panel *p, int axis, const double *x, const double *y, const double *lo,
-                      const double *hi, size_t n, bl_svg_style s)
+void bl_svg_errorbars(bl_svg_panel *p, int axis, const double *x, const double *y, const double *lo, const double *hi,
+                      size_t n, bl_svg_style s)
 {
     element *e = add_el(p, EL_ERRORBARS, s);
     if (!e) return;
@@ -460,8 +460,7 @@ static double nicenum(double x, int rnd)
     return nf * pow(10, e);
 }
 
-bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count,
-                            bl_error *err)
+bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count, bl_error *err)
 {
     if (!isfinite(*lo) || !isfinite(*hi) || *lo > *hi || target < 2)
         return bl_error_set(err, BL_ERR_RANGE, "svg: no ticks for the range [%g, %g] with %d ticks", *lo, *hi, target);
@@ -487,19 +486,16 @@ bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, d
 enum { MAX_TICKS = 256 };
 
 typedef struct {
-    double lo, hi;         /* in transformed units (log10 for log axes) */
+    double lo, hi; /* in transformed units (log10 for log axes) */
     double ticks[MAX_TICKS];
     char labels[MAX_TICKS][32];
     int n_ticks;
-    double px0, px1;       /* pixel positions of lo and hi */
+    double px0, px1; /* pixel positions of lo and hi */
 } scale_t;
 
 static double tr(const axis_t *a, double v) { return a->log ? (v > 0 ? log10(v) : NAN) : v; }
 
-static double map(const scale_t *s, double tv)
-{
-    return s->px0 + (tv - s->lo) / (s->hi - s->lo) * (s->px1 - s->px0);
-}
+static double map(const scale_t *s, double tv) { return s->px0 + (tv - s->lo) / (s->hi - s->lo) * (s->px1 - s->px0); }
 
 static void extend(double *lo, double *hi, double v)
 {
@@ -764,7 +760,8 @@ static void render_points(const draw_ctx *c, const element *e)
     FILE *f = c->f;
     double r = e->style.size > 0 ? e->style.size : 3;
     fprintf(f, "<g fill=\"%s\"", e->color);
-    if (e->style.opacity > 0 && e->style.opacity < 1) fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
+    if (e->style.opacity > 0 && e->style.opacity < 1)
+        fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
     fputs(">", f);
     for (size_t i = 0; i < e->n; i++) {
         double x = dx(c, e->x[i]), y = dy(c, e->y[i]);
@@ -847,7 +844,8 @@ static void render_bars(const draw_ctx *c, const element *e)
     double base = ay->log ? sy->lo : (sy->lo <= 0 && sy->hi >= 0 ? 0 : sy->lo);
     double yb = map(sy, base);
     fprintf(f, "<g fill=\"%s\"", e->color);
-    if (e->style.opacity > 0 && e->style.opacity < 1) fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
+    if (e->style.opacity > 0 && e->style.opacity < 1)
+        fputs(" fill-opacity=\"", f), num(f, e->style.opacity), fputc('"', f);
     fputs(">", f);
     for (size_t i = 0; i < e->n; i++) {
         double x0 = dx(c, e->x[i] - e->a / 2), x1 = dx(c, e->x[i] + e->a / 2), y = dy(c, e->y[i]);
@@ -897,7 +895,9 @@ static void render_element(FILE *f, const bl_svg_panel *p, const element *e, con
     case EL_VSPAN: render_vspan(&c, e); break;
     case EL_BARS: render_bars(&c, e); break;
     case EL_REFLINE: render_refline(&c, e); break;
-    case EL_NOTE: text_el(f, (b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2, FS_LABEL, "middle", "fill=\"#555555\"", e->text); break;
+    case EL_NOTE:
+        text_el(f, (b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2, FS_LABEL, "middle", "fill=\"#555555\"", e->text);
+        break;
     case EL_TEXT: render_text(&c, e); break;
     }
 }
@@ -930,7 +930,8 @@ static void render_panel(FILE *f, const bl_svg *fig, int index, double ox, doubl
     if (b.x1 - b.x0 < 20) b.x0 = b.x1 - 20;
     if (b.y1 - b.y0 < 20) b.y0 = b.y1 - 20;
     sx.px0 = b.x0, sx.px1 = b.x1;
-    if (p->ax[1].categorical) sy.px0 = b.y0, sy.px1 = b.y1, sy.lo = -0.5, sy.hi = (double)(p->ax[1].n_cats ? p->ax[1].n_cats : 1) - 0.5;
+    if (p->ax[1].categorical)
+        sy.px0 = b.y0, sy.px1 = b.y1, sy.lo = -0.5, sy.hi = (double)(p->ax[1].n_cats ? p->ax[1].n_cats : 1) - 0.5;
     else sy.px0 = b.y1, sy.px1 = b.y0;
     /* Categorical y: category 0 at the top means lo maps to y0. */
 
@@ -1000,7 +1001,8 @@ static void render_key(FILE *f, const legend_t *l, double x, double y)
     case BL_SVG_KEY_BOX:
         fprintf(f, "<rect fill=\"%s\" fill-opacity=\"", l->color);
         num(f, l->style.opacity > 0 ? l->style.opacity : 0.5);
-        fputs("\" x=\"", f), num(f, x), fputs("\" y=\"", f), num(f, y - 6), fputs("\" width=\"22\" height=\"12\"/>\n", f);
+        fputs("\" x=\"", f), num(f, x), fputs("\" y=\"", f), num(f, y - 6),
+            fputs("\" width=\"22\" height=\"12\"/>\n", f);
         break;
     case BL_SVG_KEY_POINT:
         fprintf(f, "<g fill=\"%s\">", l->color), marker(f, l->style.marker, x + 11, y, r), fputs("</g>\n", f);
@@ -1116,11 +1118,9 @@ static void render_to(FILE *f, const bl_svg *fig)
     /* Centred over the panels when it fits there, else left-aligned so it is never cut off. */
     if (text_width(fig->title, FS_TITLE) <= fig->cols * fig->pw - 16)
         text_el(f, (fig->cols * fig->pw) / 2, 22, FS_TITLE, "middle", "font-weight=\"bold\"", fig->title);
-    else
-        text_el(f, 10, 22, FS_TITLE, NULL, "font-weight=\"bold\"", fig->title);
+    else text_el(f, 10, 22, FS_TITLE, NULL, "font-weight=\"bold\"", fig->title);
     for (int r = 0; r < fig->rows; r++)
-        for (int c = 0; c < fig->cols; c++)
-            render_panel(f, fig, r * fig->cols + c, c * fig->pw, TITLE_H + r * fig->ph);
+        for (int c = 0; c < fig->cols; c++) render_panel(f, fig, r * fig->cols + c, c * fig->pw, TITLE_H + r * fig->ph);
     if (fig->n_legend) {
         double x = fig->cols * fig->pw + 8, y = TITLE_H + 14;
         fprintf(f, "<g id=\"%s-legend\">\n", fig->id);

@@ -34,20 +34,19 @@ const char *bl_svg_color(int i);
 typedef enum { BL_SVG_MARK_CIRCLE = 0, BL_SVG_MARK_SQUARE, BL_SVG_MARK_TRIANGLE, BL_SVG_MARK_DIAMOND } bl_svg_marker;
 
 typedef struct {
-    const char *color;   /* "#rrggbb"; NULL = black */
-    double opacity;      /* 0..1; 0 means the default for the element (1, or 0.2 for fills) */
-    double width;        /* stroke width [px]; 0 = default 1.5 */
-    int dashed;          /* lines: 1 = dashed */
-    bl_svg_marker marker;/* points */
-    double size;         /* marker radius [px]; 0 = default 3 */
+    const char *color;    /* "#rrggbb"; NULL = black */
+    double opacity;       /* 0..1; 0 means the default for the element (1, or 0.2 for fills) */
+    double width;         /* stroke width [px]; 0 = default 1.5 */
+    int dashed;           /* lines: 1 = dashed */
+    bl_svg_marker marker; /* points */
+    double size;          /* marker radius [px]; 0 = default 3 */
 } bl_svg_style;
 
 /* A figure of rows x cols panels, each panel_w x panel_h pixels (including its margins), with a
  * title on top and, when legend entries are added, a legend column on the right.
  * `id` (letters, digits, '-') keeps clip-path ids unique when several figures share one HTML page.
  * NULL on allocation failure or bad arguments (rows, cols >= 1; sizes >= 100 px). */
-bl_svg *bl_svg_create(const char *id, const char *title, int rows, int cols, double panel_w,
-                      double panel_h);
+bl_svg *bl_svg_create(const char *id, const char *title, int rows, int cols, double panel_w, double panel_h);
 void bl_svg_destroy(bl_svg *fig);
 
 /* Panel i (row-major, 0-based), owned by the figure; NULL when out of range. */
@@ -73,16 +72,14 @@ void bl_svg_line(bl_svg_panel *p, const double *x, const double *y, size_t n, bl
 void bl_svg_points(bl_svg_panel *p, const double *x, const double *y, size_t n, bl_svg_style s);
 /* Error bars along `axis` (BL_SVG_Y: vertical from lo to hi at x[i]; BL_SVG_X: horizontal from
  * lo to hi at y[i]), with small caps. */
-void bl_svg_errorbars(bl_svg_panel *p, int axis, const double *x, const double *y,
-                      const double *lo, const double *hi, size_t n, bl_svg_style s);
+void bl_svg_errorbars(bl_svg_panel *p, int axis, const double *x, const double *y, const double *lo, const double *hi,
+                      size_t n, bl_svg_style s);
 /* A shaded band between lo[i] and hi[i] over x[i] (x increasing). */
-void bl_svg_ribbon(bl_svg_panel *p, const double *x, const double *lo, const double *hi, size_t n,
-                   bl_svg_style s);
+void bl_svg_ribbon(bl_svg_panel *p, const double *x, const double *lo, const double *hi, size_t n, bl_svg_style s);
 /* A shaded vertical span x0..x1 over the full height, labelled at the top (label may be NULL). */
 void bl_svg_vspan(bl_svg_panel *p, double x0, double x1, const char *label, bl_svg_style s);
 /* Bars: bar i spans x[i] +- width/2 (data units) from 0 to y[i]. */
-void bl_svg_bars(bl_svg_panel *p, const double *x, const double *y, size_t n, double width,
-                 bl_svg_style s);
+void bl_svg_bars(bl_svg_panel *p, const double *x, const double *y, size_t n, double width, bl_svg_style s);
 /* A reference line across the panel at `value` of `axis` (BL_SVG_X: vertical line). */
 void bl_svg_refline(bl_svg_panel *p, int axis, double value, bl_svg_style s);
 /* A short label at data point (x, y), centred, `dy` pixels above it (negative: below). */
@@ -91,7 +88,13 @@ void bl_svg_text(bl_svg_panel *p, double x, double y, double dy, const char *tex
  * axes. */
 void bl_svg_note(bl_svg_panel *p, const char *text);
 
-typedef enum { BL_SVG_KEY_LINE = 0, BL_SVG_KEY_POINT, BL_SVG_KEY_LINE_POINT, BL_SVG_KEY_BOX, BL_SVG_KEY_NONE } bl_svg_key;
+typedef enum {
+    BL_SVG_KEY_LINE = 0,
+    BL_SVG_KEY_POINT,
+    BL_SVG_KEY_LINE_POINT,
+    BL_SVG_KEY_BOX,
+    BL_SVG_KEY_NONE
+} bl_svg_key;
 /* A legend entry (shown in the legend column, in the order added; BL_SVG_KEY_NONE: text only,
  * aligned with the other entries). Labels wider than the legend column (320 px of text) wrap onto
  * more rows, breaking after ';' or ',' or at a space when they can; nothing is cut. */
@@ -110,7 +113,6 @@ void bl_svg_escape(FILE *f, const char *text);
 /* Nice ticks for [lo, hi] (Heckbert 1990): about `target` ticks at steps 1, 2 or 5 x 10^k.
  * Fills *first, *step and *count (ticks first + k*step, k < count), and widens *lo and *hi to tick
  * values. BL_ERR_RANGE on bad input (non-finite, lo > hi, target < 2). */
-bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count,
-                            bl_error *err);
+bl_status bl_svg_nice_ticks(double *lo, double *hi, int target, double *first, double *step, int *count, bl_error *err);
 
 #endif

@@ -309,16 +309,19 @@ char *bl_scan_summary(const bl_scan_result *r)
     const bl_scan_stats *s = r->stats;
     size_t nc = sp->n_freqs * sp->n_windows, total = nc * r->n_tests;
     bl_textbuf b = {0};
-    bl_textbuf_printf(&b, "scan: %zu frequencies (%.4g to %.4g Hz) x %zu windows of %.4g s (%.4g to %.4g s) x %zu tests "
-                      "on %zu trials; null model '%s' (log-likelihood %.2f)\n", sp->n_freqs, sp->freq[0],
-                      sp->freq[sp->n_freqs - 1], sp->n_windows, sp->length, sp->from, sp->to, r->n_tests, r->n_trials,
-                      sp->null_model, r->null_log_likelihood);
+    bl_textbuf_printf(&b,
+                      "scan: %zu frequencies (%.4g to %.4g Hz) x %zu windows of %.4g s (%.4g to %.4g s) x %zu tests "
+                      "on %zu trials; null model '%s' (log-likelihood %.2f)\n",
+                      sp->n_freqs, sp->freq[0], sp->freq[sp->n_freqs - 1], sp->n_windows, sp->length, sp->from, sp->to,
+                      r->n_tests, r->n_trials, sp->null_model, r->null_log_likelihood);
     if (s->correction == BL_SCAN_CORRECTION_CLUSTER)
-        bl_textbuf_printf(&b, "family-wise error: cluster mass over %zu permutations; cluster-forming threshold p < %.3g "
-                          "(statistic > %.4g), %zu clusters\n", s->permutations, s->cluster_threshold,
-                          s->cluster_statistic, s->n_clusters);
+        bl_textbuf_printf(&b,
+                          "family-wise error: cluster mass over %zu permutations; cluster-forming threshold p < %.3g "
+                          "(statistic > %.4g), %zu clusters\n",
+                          s->permutations, s->cluster_threshold, s->cluster_statistic, s->n_clusters);
     else
-        bl_textbuf_printf(&b, "family-wise error: maximum statistic over the grid, %zu permutations\n", s->permutations);
+        bl_textbuf_printf(&b, "family-wise error: maximum statistic over the grid, %zu permutations\n",
+                          s->permutations);
     /* the five strongest cells */
     size_t best[5], nb = 0;
     for (size_t i = 0; i < total; i++) {
@@ -338,18 +341,21 @@ char *bl_scan_summary(const bl_scan_result *r)
     for (size_t k = 0; k < nb; k++) {
         size_t i = best[k], t = i / nc, c = i % nc;
         char par[64], win[64], pf[32];
-        snprintf(par, sizeof par, "%s%s%s", bl_param_name(r->test_param[t]), r->test_level[t][0] ? ":" : "", r->test_level[t]);
+        snprintf(par, sizeof par, "%s%s%s", bl_param_name(r->test_param[t]), r->test_level[t][0] ? ":" : "",
+                 r->test_level[t]);
         snprintf(win, sizeof win, "%.3g to %.3g", sp->window_from[c % sp->n_windows],
                  sp->window_from[c % sp->n_windows] + sp->length);
         if (isfinite(s->p_familywise[i])) snprintf(pf, sizeof pf, "%.4f", s->p_familywise[i]);
         else snprintf(pf, sizeof pf, "NA");
-        bl_textbuf_printf(&b, "  %-18s %6.3g Hz  %-16s %9.3f %9.4f %10.3g %12s\n", par, sp->freq[c / sp->n_windows], win,
-                          s->statistic[i], s->estimate[i], s->p[i], pf);
+        bl_textbuf_printf(&b, "  %-18s %6.3g Hz  %-16s %9.3f %9.4f %10.3g %12s\n", par, sp->freq[c / sp->n_windows],
+                          win, s->statistic[i], s->estimate[i], s->p[i], pf);
     }
     if (r->n_refits)
-        bl_textbuf_printf(&b, "refitted with the slope (likelihood-ratio test against the null model):\n  %-18s %-10s %-16s "
-                          "%9s %9s %4s %10s %9s %8s\n", "parameter", "frequency", "window (s)", "score", "LR", "df", "p",
-                          "estimate", "SE");
+        bl_textbuf_printf(
+            &b,
+            "refitted with the slope (likelihood-ratio test against the null model):\n  %-18s %-10s %-16s "
+            "%9s %9s %4s %10s %9s %8s\n",
+            "parameter", "frequency", "window (s)", "score", "LR", "df", "p", "estimate", "SE");
     for (size_t k = 0; k < r->n_refits; k++) {
         const bl_scan_refit *q = &r->refits[k];
         char par[64], win[64];
@@ -358,11 +364,11 @@ char *bl_scan_summary(const bl_scan_result *r)
         snprintf(win, sizeof win, "%.3g to %.3g", sp->window_from[q->cell % sp->n_windows],
                  sp->window_from[q->cell % sp->n_windows] + sp->length);
         bl_textbuf_printf(&b, "  %-18s %6.3g Hz  %-16s %9.3f %9.3f %4.0f %10.3g %9.4f %8.4f%s\n", par,
-                          sp->freq[q->cell / sp->n_windows], win, s->statistic[q->test * nc + q->cell], q->lr, q->df, q->p,
-                          q->estimate, q->se, q->converged ? "" : "  (not converged)");
+                          sp->freq[q->cell / sp->n_windows], win, s->statistic[q->test * nc + q->cell], q->lr, q->df,
+                          q->p, q->estimate, q->se, q->converged ? "" : "  (not converged)");
     }
-    bl_textbuf_printf(&b, "time: null model %.2f s, power %.2f s, statistics %.2f s\n", r->seconds_null, r->seconds_power,
-                      r->seconds_stats);
+    bl_textbuf_printf(&b, "time: null model %.2f s, power %.2f s, statistics %.2f s\n", r->seconds_null,
+                      r->seconds_power, r->seconds_stats);
     return bl_textbuf_take(&b);
 }
 
@@ -391,8 +397,8 @@ static int in_level(const bl_scan_spec *sp, const bl_trials *t, int param, const
 /* One refit: the null model plus a slope on the cell's power (zero outside the test's level), on a shadow
  * trial table that adds the cell as a column (the analysis's own table is not touched). */
 static bl_status refit_cell(const bl_study *study, const bl_model_spec *null_spec, const bl_trials *trials,
-                            const bl_scan_options *opt, bl_scan_result *r, const double *xc, const size_t *rows, size_t n,
-                            bl_scan_refit *out, bl_warnings *warn, bl_error *err)
+                            const bl_scan_options *opt, bl_scan_result *r, const double *xc, const size_t *rows,
+                            size_t n, bl_scan_refit *out, bl_warnings *warn, bl_error *err)
 {
     int param = r->test_param[out->test];
     bl_table shadow = *trials->table;

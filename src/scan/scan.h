@@ -14,9 +14,9 @@
 #include <stddef.h>
 
 typedef struct {
-    int threads;                /* <= 0: OpenMP default; results do not depend on it */
+    int threads; /* <= 0: OpenMP default; results do not depend on it */
     unsigned long seed;
-    size_t permutations;        /* SIZE_MAX: the scan block's */
+    size_t permutations; /* SIZE_MAX: the scan block's */
     /* Called from the calling thread (may be NULL): what, done, total (0 = unknown). */
     void (*progress)(void *user, const char *detail, size_t done, size_t total);
     void *progress_user;
@@ -24,9 +24,9 @@ typedef struct {
 
 /* A cell refitted with the slope in the model: likelihood-ratio test against the null model. */
 typedef struct {
-    size_t test, cell;          /* cell = f * n_windows + w */
-    double lr, df, p;           /* 2 (LL with the slope - LL of the null); df = fitted units (1 pooled) */
-    double estimate, se;        /* the refitted slope and its Wald SE (pooled only; NAN when separate) */
+    size_t test, cell;   /* cell = f * n_windows + w */
+    double lr, df, p;    /* 2 (LL with the slope - LL of the null); df = fitted units (1 pooled) */
+    double estimate, se; /* the refitted slope and its Wald SE (pooled only; NAN when separate) */
     int converged;
 } bl_scan_refit;
 
@@ -45,8 +45,8 @@ typedef struct bl_scan_result {
     bl_scan_refit *refits;
 } bl_scan_result;
 
-bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_scan_options *opt,
-                      bl_scan_result **out, bl_warnings *warn, bl_error *err);
+bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_scan_options *opt, bl_scan_result **out,
+                      bl_warnings *warn, bl_error *err);
 void bl_scan_result_destroy(bl_scan_result *r);
 
 /* scan.csv: frequency, window_from, window_to, parameter, level, statistic, estimate, z, p, p_familywise,

@@ -83,7 +83,7 @@ done:
 /* One frequency's demodulating kernels: rows (taper k, cos / -sin) of N values. */
 typedef struct {
     size_t K;
-    double *rows;   /* 2 K x N */
+    double *rows; /* 2 K x N */
 } freq_kernel;
 
 static bl_status make_kernels(const bl_scan_spec *sp, double fs, size_t N, freq_kernel *fk, bl_error *err)
@@ -139,10 +139,10 @@ typedef struct {
     const freq_kernel *fk;
     double fs;
     size_t N, nw, n, span;
-    const int64_t *start;   /* per trial: first sample of the span */
-    const int64_t *offset;  /* per window: first sample relative to the span */
-    char **path;            /* per trial: recording */
-    const size_t *order;    /* trials in the order they are read: grouped by recording */
+    const int64_t *start;  /* per trial: first sample of the span */
+    const int64_t *offset; /* per window: first sample relative to the span */
+    char **path;           /* per trial: recording */
+    const size_t *order;   /* trials in the order they are read: grouped by recording */
     const size_t *rows;
     double *out;
 } power_job;
@@ -176,11 +176,12 @@ static bl_status trial_power(const power_job *jb, power_thread *th, size_t j, bl
     }
     const bl_trace_info *info = bl_trace_get_info(th->trace);
     if (jb->start[j] < 0 || jb->start[j] + (int64_t)jb->span > info->frames)
-        return bl_error_set(err, BL_ERR_INPUT,
-                            "participant %s, trial %s: the scan windows (%.6g s to %.6g s of the recording) leave %s, which "
-                            "holds %.6g s; shorten scan.windows", part, t->trial_label[row],
-                            (double)jb->start[j] / jb->fs, (double)(jb->start[j] + (int64_t)jb->span) / jb->fs,
-                            jb->path[j], (double)info->frames / jb->fs);
+        return bl_error_set(
+            err, BL_ERR_INPUT,
+            "participant %s, trial %s: the scan windows (%.6g s to %.6g s of the recording) leave %s, which "
+            "holds %.6g s; shorten scan.windows",
+            part, t->trial_label[row], (double)jb->start[j] / jb->fs,
+            (double)(jb->start[j] + (int64_t)jb->span) / jb->fs, jb->path[j], (double)info->frames / jb->fs);
     bl_status st = bl_trace_read(th->trace, jb->start[j], jb->span, th->raw, &e);
     if (st) return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[row], e.message);
     bl_montage_apply(jb->mont, th->raw, jb->span, info->channels, jb->study->recordings.gain, th->x);
@@ -277,9 +278,9 @@ static bl_status onset_of(const bl_study *s, const bl_trials *t, int col, size_t
     char *end = NULL;
     *out = txt ? strtod(txt, &end) : NAN;
     if (!txt || end == txt || !isfinite(*out))
-        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (recordings.onset): '%s' is not a number of seconds",
-                            t->table->path ? t->table->path : "trials", t->table->line[row], s->recordings.onset,
-                            txt ? txt : "");
+        return bl_error_set(
+            err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (recordings.onset): '%s' is not a number of seconds",
+            t->table->path ? t->table->path : "trials", t->table->line[row], s->recordings.onset, txt ? txt : "");
     return BL_OK;
 }
 
@@ -297,8 +298,8 @@ static bl_status survey(const bl_study *s, char **path, size_t n, double *fs, do
         if (isnan(*fs)) *fs = info->rate;
         if (fabs(info->rate - *fs) > 1e-9 * *fs) {
             bl_trace_close(tr);
-            return bl_error_set(err, BL_ERR_INPUT, "%s is sampled at %.10g Hz, but other recordings at %.10g Hz", path[j],
-                                info->rate, *fs);
+            return bl_error_set(err, BL_ERR_INPUT, "%s is sampled at %.10g Hz, but other recordings at %.10g Hz",
+                                path[j], info->rate, *fs);
         }
         *shortest = fmin(*shortest, (double)info->frames / info->rate);
         bl_trace_close(tr);
@@ -442,10 +443,12 @@ static bl_status groups_of(const bl_study *s, const bl_trials *t, const size_t *
         for (g = 0; g < *n_groups; g++) {
             size_t q = rows[first[g]];
             int same = t->participant[q] == t->participant[i];
-            for (size_t k = 0; same && s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION &&
-                               k < s->power.n_condition; k++) {
+            for (size_t k = 0;
+                 same && s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION && k < s->power.n_condition;
+                 k++) {
                 int c = bl_table_find(t->table, s->power.condition[k]);
-                const char *a = c >= 0 ? t->table->cols[c].text[i] : NULL, *b = c >= 0 ? t->table->cols[c].text[q] : NULL;
+                const char *a = c >= 0 ? t->table->cols[c].text[i] : NULL,
+                           *b = c >= 0 ? t->table->cols[c].text[q] : NULL;
                 same = (!a && !b) || (a && b && !strcmp(a, b));
             }
             if (same) break;
@@ -478,9 +481,10 @@ bl_status bl_scan_standardize(const bl_study *s, const bl_trials *t, const size_
             v[j] = scaled(s->power.scale, v[j]);
             if (!isfinite(v[j])) {
                 size_t r = rows[j];
-                st = bl_error_set(err, BL_ERR_INPUT, "participant %s, trial %s: zero power at %.6g Hz in the window from "
-                                  "%.6g s, which power.scale cannot take", t->participants[t->participant[r]],
-                                  t->trial_label[r], f, w0);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "participant %s, trial %s: zero power at %.6g Hz in the window from "
+                                  "%.6g s, which power.scale cannot take",
+                                  t->participants[t->participant[r]], t->trial_label[r], f, w0);
                 goto done;
             }
         }
@@ -493,8 +497,10 @@ bl_status bl_scan_standardize(const bl_study *s, const bl_trials *t, const size_
         for (size_t g = 0; g < n_groups; g++) {
             sd[g] = cnt[g] > 1 ? sqrt(sd[g] / (double)(cnt[g] - 1)) : 0;
             if (!(sd[g] > 0)) {
-                st = bl_error_set(err, BL_ERR_INPUT, "scan power at %.6g Hz, window from %.6g s: a standardize group has "
-                                  "fewer than two trials or no spread", f, w0);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "scan power at %.6g Hz, window from %.6g s: a standardize group has "
+                                  "fewer than two trials or no spread",
+                                  f, w0);
                 goto done;
             }
         }

@@ -50,7 +50,8 @@ static void significant_cells(FILE *f, const bl_scan_result *r)
     size_t nc = s->n_freqs * s->n_windows, shown = 0;
     fputs("<h2 id=\"significant\">Cells significant after correction (family-wise p &#8804; 0.05)</h2>\n", f);
     fputs("<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th>frequency (Hz)</th>"
-          "<th>window (s)</th><th>statistic</th><th>estimate</th><th>p</th><th>family-wise p</th></tr>\n", f);
+          "<th>window (s)</th><th>statistic</th><th>estimate</th><th>p</th><th>family-wise p</th></tr>\n",
+          f);
     for (size_t t = 0; t < r->n_tests; t++)
         for (size_t c = 0; c < nc && shown < 200; c++) {
             double pf = s->p_familywise[t * nc + c];
@@ -62,9 +63,10 @@ static void significant_cells(FILE *f, const bl_scan_result *r)
                 fputc(':', f);
                 esc(f, r->test_level[t]);
             }
-            fprintf(f, "</td><td>%.3g</td><td>%.3g to %.3g</td><td>%.3f</td><td>%.4g</td><td>%.3g</td><td>%.4f</td></tr>\n",
-                    r->spec->freq[fi], r->spec->window_from[wi], r->spec->window_from[wi] + r->spec->length, s->statistic[t * nc + c],
-                    s->estimate[t * nc + c], s->p[t * nc + c], pf);
+            fprintf(
+                f, "</td><td>%.3g</td><td>%.3g to %.3g</td><td>%.3f</td><td>%.4g</td><td>%.3g</td><td>%.4f</td></tr>\n",
+                r->spec->freq[fi], r->spec->window_from[wi], r->spec->window_from[wi] + r->spec->length,
+                s->statistic[t * nc + c], s->estimate[t * nc + c], s->p[t * nc + c], pf);
             shown++;
         }
     fputs("</table></div>\n", f);

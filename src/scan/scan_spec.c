@@ -48,8 +48,8 @@ static bl_status check_keys(const ctx *c, const cJSON *o, const char *path, cons
             size_t l = strlen(list);
             snprintf(list + l, sizeof list - l, "%s%s", i ? ", " : "", allowed[i]);
         }
-        return bl_error_set(c->err, BL_ERR_INPUT, "%s: unknown or repeated key \"%s\" (allowed here: %s)", c->file,
-                            key, list);
+        return bl_error_set(c->err, BL_ERR_INPUT, "%s: unknown or repeated key \"%s\" (allowed here: %s)", c->file, key,
+                            list);
     }
     return BL_OK;
 }
@@ -69,7 +69,8 @@ static bl_status number(const ctx *c, const cJSON *o, const char *path, const ch
 
 static bl_status parse_frequencies(const ctx *c, const cJSON *f, bl_scan_spec *s)
 {
-    static const char *const keys[] = {"from", "to", "step", "count", "spacing", "bandwidth", "bandwidth_fraction", NULL};
+    static const char *const keys[] = {"from", "to", "step", "count", "spacing", "bandwidth", "bandwidth_fraction",
+                                       NULL};
     const char *P = "scan.frequencies";
     if (!cJSON_IsObject(f)) return bad(c, P, f, "must be an object {\"from\", \"to\", \"count\" or \"step\", ...}");
     bl_status st = check_keys(c, f, P, keys);
@@ -92,7 +93,8 @@ static bl_status parse_frequencies(const ctx *c, const cJSON *f, bl_scan_spec *s
         if (!(count >= 1 && count <= 1000 && count == floor(count)))
             return bad(c, "scan.frequencies.count", get(f, "count"), "must be a whole number from 1 to 1000");
         n = (size_t)count;
-        if (n > 1 && hi == lo) return bad(c, "scan.frequencies.to", get(f, "to"), "must exceed \"from\" when count > 1");
+        if (n > 1 && hi == lo)
+            return bad(c, "scan.frequencies.to", get(f, "to"), "must exceed \"from\" when count > 1");
     } else {
         if (log_spacing && !(step > 1))
             return bad(c, "scan.frequencies.step", get(f, "step"), "must be a ratio above 1 with log spacing");
@@ -110,7 +112,8 @@ static bl_status parse_frequencies(const ctx *c, const cJSON *f, bl_scan_spec *s
     }
     if ((get(f, "bandwidth") != NULL) == (get(f, "bandwidth_fraction") != NULL))
         return bad(c, P, NULL, "needs exactly one of \"bandwidth\" (Hz) and \"bandwidth_fraction\" (of the frequency)");
-    if (get(f, "bandwidth") && !(bw > 0)) return bad(c, "scan.frequencies.bandwidth", get(f, "bandwidth"), "must be above 0 Hz");
+    if (get(f, "bandwidth") && !(bw > 0))
+        return bad(c, "scan.frequencies.bandwidth", get(f, "bandwidth"), "must be above 0 Hz");
     if (get(f, "bandwidth_fraction") && !(frac > 0 && frac <= 2))
         return bad(c, "scan.frequencies.bandwidth_fraction", get(f, "bandwidth_fraction"), "must be in (0, 2]");
     s->bandwidth = bw;
@@ -194,7 +197,9 @@ static bl_status parse_rest(const ctx *c, const cJSON *root, const bl_study *stu
     const char *name = nm ? nm->valuestring : study->n_models ? study->models[0].name : NULL;
     int found = 0;
     for (size_t m = 0; name && m < study->n_models; m++) found |= !strcmp(study->models[m].name, name);
-    if (!found) return bad(c, "scan.null_model", nm, study->n_models ? "is not a model of the study" : "needs a model in \"models\"");
+    if (!found)
+        return bad(c, "scan.null_model", nm,
+                   study->n_models ? "is not a model of the study" : "needs a model in \"models\"");
     if (!(s->null_model = bl_strdup(name))) return nomem(c);
     double perms, thr, refit;
     bl_status st = number(c, root, "scan", "permutations", 1000, &perms);
@@ -207,7 +212,8 @@ static bl_status parse_rest(const ctx *c, const cJSON *root, const bl_study *stu
     if (!(perms >= 0 && perms <= 1e6 && perms == floor(perms)))
         return bad(c, "scan.permutations", get(root, "permutations"), "must be a whole number from 0 to 1000000");
     s->permutations = (size_t)perms;
-    if (!(thr > 0 && thr < 1)) return bad(c, "scan.cluster_threshold", get(root, "cluster_threshold"), "must be in (0, 1)");
+    if (!(thr > 0 && thr < 1))
+        return bad(c, "scan.cluster_threshold", get(root, "cluster_threshold"), "must be in (0, 1)");
     s->cluster_threshold = thr;
     const cJSON *cor = get(root, "correction");
     if (cor && !(cJSON_IsString(cor) && (!strcmp(cor->valuestring, "max") || !strcmp(cor->valuestring, "cluster"))))
@@ -221,12 +227,14 @@ bl_status bl_scan_spec_parse(const bl_study *study, bl_scan_spec **out, bl_error
     *out = NULL;
     ctx c = {study->path, err};
     const cJSON *root = study->scan_json;
-    if (!root) return bl_error_set(err, BL_ERR_INPUT, "%s: the study has no \"scan\" block (docs/scan.md)", study->path);
+    if (!root)
+        return bl_error_set(err, BL_ERR_INPUT, "%s: the study has no \"scan\" block (docs/scan.md)", study->path);
     if (!cJSON_IsObject(root)) return bad(&c, "scan", root, "must be an object {...}");
     if (!study->has_recordings || !study->has_power)
-        return bad(&c, "scan", NULL, "needs the study's \"recordings\" and \"power\" sections (scale, standardize, detrend)");
-    static const char *const keys[] = {"frequencies", "windows",     "parameters",        "null_model",
-                                       "permutations", "correction", "cluster_threshold", "refit", NULL};
+        return bad(&c, "scan", NULL,
+                   "needs the study's \"recordings\" and \"power\" sections (scale, standardize, detrend)");
+    static const char *const keys[] = {"frequencies", "windows",           "parameters", "null_model", "permutations",
+                                       "correction",  "cluster_threshold", "refit",      NULL};
     bl_status st = check_keys(&c, root, "scan", keys);
     if (st) return st;
     bl_scan_spec *s = calloc(1, sizeof *s);
@@ -271,13 +279,16 @@ bl_status bl_scan_spec_check_signal(const bl_scan_spec *s, const bl_study *study
     const cJSON *root = study->scan_json, *f = get(root, "frequencies"), *w = get(root, "windows");
     char what[256];
     if (s->length > shortest) {
-        snprintf(what, sizeof what, "a window of %.6g s is longer than the shortest recording (%.6g s)", s->length, shortest);
+        snprintf(what, sizeof what, "a window of %.6g s is longer than the shortest recording (%.6g s)", s->length,
+                 shortest);
         return bad(&c, "scan.windows.length", get(w, "length"), what);
     }
     double top = s->freq[s->n_freqs - 1];
     if (top + bl_scan_bandwidth(s, top) / 2 > fs / 2) {
-        snprintf(what, sizeof what, "the band around %.6g Hz (half-width %.6g Hz) reaches above the Nyquist frequency "
-                 "%.6g Hz of the recordings", top, bl_scan_bandwidth(s, top) / 2, fs / 2);
+        snprintf(what, sizeof what,
+                 "the band around %.6g Hz (half-width %.6g Hz) reaches above the Nyquist frequency "
+                 "%.6g Hz of the recordings",
+                 top, bl_scan_bandwidth(s, top) / 2, fs / 2);
         return bad(&c, "scan.frequencies.to", get(f, "to"), what);
     }
     double res = 2.0 / s->length, low = s->freq[0];
@@ -285,8 +296,10 @@ bl_status bl_scan_spec_check_signal(const bl_scan_spec *s, const bl_study *study
         const char *key = s->bandwidth_fraction > 0 ? "bandwidth_fraction" : "bandwidth";
         char k[64];
         snprintf(k, sizeof k, "scan.frequencies.%s", key);
-        snprintf(what, sizeof what, "a bandwidth of %.6g Hz at %.6g Hz is below the resolution of one taper, 2 / window "
-                 "length = %.6g Hz", bl_scan_bandwidth(s, low), low, res);
+        snprintf(what, sizeof what,
+                 "a bandwidth of %.6g Hz at %.6g Hz is below the resolution of one taper, 2 / window "
+                 "length = %.6g Hz",
+                 bl_scan_bandwidth(s, low), low, res);
         return bad(&c, k, get(f, key), what);
     }
     if (llround(s->length * fs) < 8) {

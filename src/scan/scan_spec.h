@@ -14,25 +14,25 @@
 typedef enum { BL_SCAN_CORRECTION_MAX = 0, BL_SCAN_CORRECTION_CLUSTER } bl_scan_correction;
 
 typedef struct {
-    int param;                /* bl_param index */
-    char **by;                /* condition columns whose level combinations get their own slope */
+    int param; /* bl_param index */
+    char **by; /* condition columns whose level combinations get their own slope */
     size_t n_by;
 } bl_scan_param;
 
 typedef struct {
     size_t n_freqs;
-    double *freq;             /* Hz, centre of each cell's band, increasing */
-    double bandwidth;         /* Hz, full width 2W of the multitaper band (bandwidth rule "hz") */
-    double bandwidth_fraction;/* > 0: full width = fraction * frequency instead (rule "fraction") */
+    double *freq;              /* Hz, centre of each cell's band, increasing */
+    double bandwidth;          /* Hz, full width 2W of the multitaper band (bandwidth rule "hz") */
+    double bandwidth_fraction; /* > 0: full width = fraction * frequency instead (rule "fraction") */
     bl_align align;
-    double from, to;          /* s relative to the alignment point: the span the windows tile */
-    double length, step;      /* s */
+    double from, to;     /* s relative to the alignment point: the span the windows tile */
+    double length, step; /* s */
     size_t n_windows;
-    double *window_from;      /* s, start of each window (window_from + length = its end) */
+    double *window_from; /* s, start of each window (window_from + length = its end) */
     size_t n_params;
     bl_scan_param *params;
-    char *null_model;         /* a model of the study (default: the first) */
-    size_t permutations;      /* default 1000 */
+    char *null_model;    /* a model of the study (default: the first) */
+    size_t permutations; /* default 1000 */
     bl_scan_correction correction;
     double cluster_threshold; /* uncorrected p below which a cell joins a cluster (default 0.05) */
     size_t refit;             /* the strongest cells refitted with a likelihood-ratio test (default 0) */

@@ -18,18 +18,18 @@
 
 struct bl_scan_null {
     size_t n, n_units, n_tests, kmax, R1;
-    size_t *unit_start;   /* n_units + 1 */
-    size_t *rows;         /* n */
-    size_t n_cells;       /* permutation cells */
-    size_t *cell_start;   /* n_cells + 1 */
-    size_t *cell_member;  /* n scan indices grouped by cell, in scan order inside a cell */
+    size_t *unit_start;  /* n_units + 1 */
+    size_t *rows;        /* n */
+    size_t n_cells;      /* permutation cells */
+    size_t *cell_start;  /* n_cells + 1 */
+    size_t *cell_member; /* n scan indices grouped by cell, in scan order inside a cell */
     int *test_param;
     char **test_level;
-    size_t *k;            /* coefficients per unit */
-    double **cov, **ub;   /* per unit: I_bb^-1 (k x k) and the null gradient U_b */
-    double *coef0;        /* unit 0's estimates */
-    double *wt;           /* n x R1: per test, score weight then kmax cross weights */
-    double *vt;           /* n x n_tests: information weight (multiplies x^2) */
+    size_t *k;          /* coefficients per unit */
+    double **cov, **ub; /* per unit: I_bb^-1 (k x k) and the null gradient U_b */
+    double *coef0;      /* unit 0's estimates */
+    double *wt;         /* n x R1: per test, score weight then kmax cross weights */
+    double *vt;         /* n x n_tests: information weight (multiplies x^2) */
     double loglik;
 };
 
@@ -88,10 +88,10 @@ static int trial_derivatives(const bl_model *m, const double *coef, size_t k, do
         bl_wiener_params pp = p, pm = p;
         pp.value[b] += h;
         pm.value[b] -= h;
-        int okp = bl_model_params_valid(&pp) && !bl_wiener_log_density_grad(&pp, m->rt[k], m->upper[k], &l1, gp, NULL) &&
-                  isfinite(l1);
-        int okm = bl_model_params_valid(&pm) && !bl_wiener_log_density_grad(&pm, m->rt[k], m->upper[k], &l2, gm, NULL) &&
-                  isfinite(l2);
+        int okp = bl_model_params_valid(&pp) &&
+                  !bl_wiener_log_density_grad(&pp, m->rt[k], m->upper[k], &l1, gp, NULL) && isfinite(l1);
+        int okm = bl_model_params_valid(&pm) &&
+                  !bl_wiener_log_density_grad(&pm, m->rt[k], m->upper[k], &l2, gm, NULL) && isfinite(l2);
         for (int q = 0; q < BL_NPARAM; q++) {
             if (okp && okm) H[q][b] = (gp[q] - gm[q]) / (2 * h);
             else if (okp) H[q][b] = (gp[q] - g0[q]) / h;
@@ -145,8 +145,10 @@ static bl_status unit_weights(bl_scan_null *nm, size_t u, const bl_model *m, con
     for (size_t k = 0; k < m->n; k++) {
         double uq[BL_NPARAM], W[BL_NPARAM][BL_NPARAM];
         if (!trial_derivatives(m, coef, k, uq, W)) {
-            st = bl_error_set(err, BL_ERR_NUMERIC, "scan: the null model '%s' gives trial %zu (row %zu) no finite density "
-                              "at its estimates", m->name, k + 1, m->row[k] + 1);
+            st = bl_error_set(err, BL_ERR_NUMERIC,
+                              "scan: the null model '%s' gives trial %zu (row %zu) no finite density "
+                              "at its estimates",
+                              m->name, k + 1, m->row[k] + 1);
             goto done;
         }
         /* cross[q][j] = sum_p W_qp Z_pj; info += Z' W Z; U_b += Z' u */
@@ -183,8 +185,10 @@ static bl_status unit_weights(bl_scan_null *nm, size_t u, const bl_model *m, con
     int pd = 0;
     if ((st = bl_information_inverse(info, K, nm->cov[u], &cond, &pd, err))) goto done;
     if (pd == 0)
-        st = bl_error_set(err, BL_ERR_NUMERIC, "scan: the observed information of the null model '%s' is not positive "
-                          "definite; the score test needs a null model with a clear optimum", m->name);
+        st = bl_error_set(err, BL_ERR_NUMERIC,
+                          "scan: the observed information of the null model '%s' is not positive "
+                          "definite; the score test needs a null model with a clear optimum",
+                          m->name);
 done:
     free(info);
     free(cross);
@@ -203,8 +207,10 @@ static bl_status make_tests(bl_scan_null *nm, const char *study_path, const bl_t
     for (size_t i = 0; i < n_params && !st; i++) {
         for (size_t b = 0; b < params[i].n_by; b++)
             if (bl_table_find(tr->table, params[i].by[b]) < 0) {
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: key \"scan.parameters[%zu].by\": column \"%s\" is not in the "
-                                  "trial table %s", study_path, i, params[i].by[b], tr->table->path ? tr->table->path : "");
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s: key \"scan.parameters[%zu].by\": column \"%s\" is not in the "
+                                  "trial table %s",
+                                  study_path, i, params[i].by[b], tr->table->path ? tr->table->path : "");
                 goto done;
             }
         size_t first_test = nm->n_tests;
@@ -254,8 +260,8 @@ done:
 }
 
 /* Permutation cells: participant x the null model's per/by columns x the scan's by columns (by text). */
-static bl_status make_cells(bl_scan_null *nm, const bl_model_spec *spec, const bl_trials *tr, const bl_scan_param *params,
-                            size_t n_params, bl_error *err)
+static bl_status make_cells(bl_scan_null *nm, const bl_model_spec *spec, const bl_trials *tr,
+                            const bl_scan_param *params, size_t n_params, bl_error *err)
 {
     size_t n = nm->n, n_cols = 0;
     int cols[256];
@@ -267,7 +273,8 @@ static bl_status make_cells(bl_scan_null *nm, const bl_model_spec *spec, const b
                 cols[n_cols++] = bl_table_find(tr->table, ps->slopes[s].by[i]);
     }
     for (size_t i = 0; i < n_params; i++)
-        for (size_t b = 0; b < params[i].n_by && n_cols < 256; b++) cols[n_cols++] = bl_table_find(tr->table, params[i].by[b]);
+        for (size_t b = 0; b < params[i].n_by && n_cols < 256; b++)
+            cols[n_cols++] = bl_table_find(tr->table, params[i].by[b]);
     size_t *cell = malloc((n ? n : 1) * sizeof *cell), *first = malloc((n ? n : 1) * sizeof *first);
     nm->cell_member = malloc((n ? n : 1) * sizeof *nm->cell_member);
     if (!cell || !first || !nm->cell_member) {
@@ -308,7 +315,8 @@ static bl_status make_cells(bl_scan_null *nm, const bl_model_spec *spec, const b
 }
 
 static bl_status fit_units(const bl_model_spec *spec, const bl_trials *trials, bl_participants_mode mode,
-                           const bl_fit_options *fo, bl_unit_set *units, double *loglik, bl_warnings *warn, bl_error *err)
+                           const bl_fit_options *fo, bl_unit_set *units, double *loglik, bl_warnings *warn,
+                           bl_error *err)
 {
     bl_status st = bl_build_units(spec, trials, mode, fo, units, NULL, warn, err);
     *loglik = 0;
@@ -318,9 +326,10 @@ static bl_status fit_units(const bl_model_spec *spec, const bl_trials *trials, b
                          err);
         if (st) break;
         if (!res.converged)
-            bl_warnings_add(warn, "scan: the null model '%s'%s did not converge clearly (gradient %.3g); the score "
-                            "statistics assume its optimum", spec->name, units->n_units > 1 ? " (one participant)" : "",
-                            res.diag.gradient_norm);
+            bl_warnings_add(warn,
+                            "scan: the null model '%s'%s did not converge clearly (gradient %.3g); the score "
+                            "statistics assume its optimum",
+                            spec->name, units->n_units > 1 ? " (one participant)" : "", res.diag.gradient_norm);
         *loglik += res.log_likelihood;
         bl_fit_result_clear(&res);
     }
@@ -344,9 +353,10 @@ bl_status bl_scan_null_create(const bl_study *study, const bl_model_spec *spec, 
     if (st) goto fail_nounits;
     for (size_t i = 0; i < n_params; i++)
         if (!units.models[0]->par[params[i].param].is_free) {
-            st = bl_error_set(err, BL_ERR_INPUT, "%s: key \"scan.parameters[%zu]\": %s is fixed in the null model '%s'; "
-                              "a slope can only be tested on a parameter the null model estimates", study->path, i,
-                              bl_param_name(params[i].param), spec->name);
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "%s: key \"scan.parameters[%zu]\": %s is fixed in the null model '%s'; "
+                              "a slope can only be tested on a parameter the null model estimates",
+                              study->path, i, bl_param_name(params[i].param), spec->name);
             goto fail;
         }
     nm->n_units = units.n_units;
@@ -361,7 +371,8 @@ bl_status bl_scan_null_create(const bl_study *study, const bl_model_spec *spec, 
         nm->unit_start[u + 1] = nm->unit_start[u] + units.models[u]->n;
     }
     nm->n = nm->unit_start[units.n_units];
-    if (!(nm->rows = malloc(nm->n * sizeof *nm->rows)) || !(nm->coef0 = malloc(nm->k[0] * sizeof *nm->coef0))) goto nomem;
+    if (!(nm->rows = malloc(nm->n * sizeof *nm->rows)) || !(nm->coef0 = malloc(nm->k[0] * sizeof *nm->coef0)))
+        goto nomem;
     memcpy(nm->coef0, units.coef[0], nm->k[0] * sizeof *nm->coef0);
     for (size_t u = 0; u < units.n_units; u++)
         for (size_t k = 0; k < units.models[u]->n; k++) nm->rows[nm->unit_start[u] + k] = units.models[u]->row[k];
@@ -392,7 +403,7 @@ fail_nounits:
 /* ---- statistics of one regressor ---- */
 
 typedef struct {
-    double *acc, *acc2, *ca;   /* R1, n_tests, kmax */
+    double *acc, *acc2, *ca; /* R1, n_tests, kmax */
 } cell_work;
 
 /* Efficient score and variance of every test for regressor x, with weights wt/vt (maybe permuted).
@@ -554,8 +565,8 @@ static double grid_pass(const bl_scan_null *nm, const double *wt, const double *
 
 /* Permutation p: weights moved within the permutation cells by a Fisher-Yates shuffle of their own
  * generator, seeded from (seed, p). */
-static void permute_weights(const bl_scan_null *nm, gsl_rng *rng, unsigned long seed, size_t p, size_t *idx,
-                            double *wt, double *vt)
+static void permute_weights(const bl_scan_null *nm, gsl_rng *rng, unsigned long seed, size_t p, size_t *idx, double *wt,
+                            double *vt)
 {
     gsl_rng_set(rng, bl_fit_mix_seed(seed, "scan permutation", (unsigned long)p));
     size_t R1 = nm->R1, T = nm->n_tests;
@@ -668,16 +679,18 @@ bl_status bl_scan_grid(const bl_scan_null *nm, const double *x, size_t nf, size_
     int cl = correction == BL_SCAN_CORRECTION_CLUSTER;
     if (!(s->statistic = malloc(T * nc * sizeof *s->statistic)) || !(s->z = malloc(T * nc * sizeof *s->z)) ||
         !(s->estimate = malloc(T * nc * sizeof *s->estimate)) || !(s->p = malloc(T * nc * sizeof *s->p)) ||
-        !(s->p_familywise = malloc(T * nc * sizeof *s->p_familywise)) || !(s->cluster = calloc(T * nc, sizeof *s->cluster)) ||
-        !(s->cluster_mass = malloc(T * nc * sizeof *s->cluster_mass)) || !(s->cluster_p = malloc(T * nc * sizeof *s->cluster_p)) ||
+        !(s->p_familywise = malloc(T * nc * sizeof *s->p_familywise)) ||
+        !(s->cluster = calloc(T * nc, sizeof *s->cluster)) ||
+        !(s->cluster_mass = malloc(T * nc * sizeof *s->cluster_mass)) ||
+        !(s->cluster_p = malloc(T * nc * sizeof *s->cluster_p)) ||
         !(s->null_max = malloc((permutations ? permutations : 1) * sizeof *s->null_max)))
         goto nomem;
     grid_pass(nm, nm->wt, nm->vt, x, nf, nw, s->cluster_statistic, &cw, eff, v, s->statistic, s->z, s->estimate, NULL,
               NULL, NULL);
     /* clusters of the observed grid, numbered across tests */
     for (size_t t = 0; t < T; t++) {
-        size_t k = label_clusters(s->statistic + t * nc, s->z + t * nc, nf, nw, s->cluster_statistic, s->cluster + t * nc,
-                                  s->cluster_mass + s->n_clusters, stack);
+        size_t k = label_clusters(s->statistic + t * nc, s->z + t * nc, nf, nw, s->cluster_statistic,
+                                  s->cluster + t * nc, s->cluster_mass + s->n_clusters, stack);
         for (size_t c = 0; c < nc; c++)
             if (s->cluster[t * nc + c]) s->cluster[t * nc + c] += (long)s->n_clusters;
         s->n_clusters += k;
@@ -687,7 +700,9 @@ bl_status bl_scan_grid(const bl_scan_null *nm, const double *x, size_t nf, size_
     if (st) goto nomem;
     double denom = 1.0 + (double)permutations;
     for (size_t k = 0; k < s->n_clusters; k++)
-        s->cluster_p[k] = cl && permutations ? (1.0 + (double)count_at_least(s->null_max, permutations, s->cluster_mass[k])) / denom : NAN;
+        s->cluster_p[k] = cl && permutations
+                              ? (1.0 + (double)count_at_least(s->null_max, permutations, s->cluster_mass[k])) / denom
+                              : NAN;
     for (size_t i = 0; i < T * nc; i++) {
         if (!permutations || !isfinite(s->statistic[i])) s->p_familywise[i] = NAN;
         else if (cl) s->p_familywise[i] = s->cluster[i] ? s->cluster_p[s->cluster[i] - 1] : NAN;

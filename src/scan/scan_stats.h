@@ -38,7 +38,7 @@ bl_status bl_scan_null_create(const bl_study *study, const bl_model_spec *null_s
                               unsigned long seed, bl_scan_null **out, bl_warnings *warn, bl_error *err);
 void bl_scan_null_destroy(bl_scan_null *nm);
 
-size_t bl_scan_null_n_trials(const bl_scan_null *nm);   /* trials in the null fit */
+size_t bl_scan_null_n_trials(const bl_scan_null *nm);    /* trials in the null fit */
 const size_t *bl_scan_null_rows(const bl_scan_null *nm); /* their table rows, in scan order */
 size_t bl_scan_null_n_tests(const bl_scan_null *nm);
 int bl_scan_null_test_param(const bl_scan_null *nm, size_t t);
@@ -58,18 +58,17 @@ typedef struct {
     double cluster_threshold, cluster_statistic; /* p and the chi^2(1) value it corresponds to */
     /* [t * n_cells + c], c = f * n_windows + w */
     double *statistic, *z, *estimate, *p, *p_familywise;
-    long *cluster;                /* cluster id (1-based) or 0 */
+    long *cluster; /* cluster id (1-based) or 0 */
     size_t n_clusters;
     double *cluster_mass, *cluster_p;
-    double *null_max;             /* per permutation: max statistic (max mode) or max cluster mass */
+    double *null_max; /* per permutation: max statistic (max mode) or max cluster mass */
 } bl_scan_stats;
 
 /* The grid: x[c * n + j] standardised power of cell c and scan trial j. progress (may be NULL) is called
  * from the calling thread with permutations done. */
-bl_status bl_scan_grid(const bl_scan_null *nm, const double *x, size_t n_freqs, size_t n_windows,
-                       size_t permutations, bl_scan_correction correction, double cluster_threshold,
-                       unsigned long seed, int threads, void (*progress)(void *, size_t, size_t), void *user,
-                       bl_scan_stats **out, bl_error *err);
+bl_status bl_scan_grid(const bl_scan_null *nm, const double *x, size_t n_freqs, size_t n_windows, size_t permutations,
+                       bl_scan_correction correction, double cluster_threshold, unsigned long seed, int threads,
+                       void (*progress)(void *, size_t, size_t), void *user, bl_scan_stats **out, bl_error *err);
 void bl_scan_stats_destroy(bl_scan_stats *s);
 
 #endif

@@ -54,8 +54,9 @@ static bl_status unknown(const bl_trace *t, const char *key, size_t i, const cha
         if (c + 1 < info->channels && len + 40 >= sizeof list) snprintf(list + len, sizeof list - len, ", ...");
     }
     if (!bl_trace_channel_name(t, 0))
-        return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": \"%s\": %s names no channels (%s); use numbers 1 to %zu",
-                            key, i, spec, bl_trace_path(t), info->format, info->channels);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "key \"%s[%zu]\": \"%s\": %s names no channels (%s); use numbers 1 to %zu", key, i, spec,
+                            bl_trace_path(t), info->format, info->channels);
     return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": no channel \"%s\" in %s; its channels are: %s", key, i,
                         spec, bl_trace_path(t), list);
 }
@@ -71,16 +72,18 @@ static bl_status channel_factor(const bl_trace *t, int c, const char *key, size_
     double target = bl_unit_volts(unit), have = bl_unit_volts(cu);
     if (isnan(target)) { /* "au": values in the file's own unit, which must be the same for every channel */
         if (*first_unit && strcmp(*first_unit, cu) != 0)
-            return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": channel %s of %s is in \"%s\" but another selected "
-                                "channel is in \"%s\"; set recordings.unit (e.g. \"uV\") to convert both", key, i,
-                                name ? name : "?", bl_trace_path(t), cu, *first_unit);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "key \"%s[%zu]\": channel %s of %s is in \"%s\" but another selected "
+                                "channel is in \"%s\"; set recordings.unit (e.g. \"uV\") to convert both",
+                                key, i, name ? name : "?", bl_trace_path(t), cu, *first_unit);
         *first_unit = cu;
         return BL_OK;
     }
     if (isnan(have))
-        return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": channel %s of %s is in \"%s\", which cannot be converted to "
-                            "recordings.unit \"%s\"; use \"au\" to keep the file's values", key, i, name ? name : "?",
-                            bl_trace_path(t), cu, unit);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "key \"%s[%zu]\": channel %s of %s is in \"%s\", which cannot be converted to "
+                            "recordings.unit \"%s\"; use \"au\" to keep the file's values",
+                            key, i, name ? name : "?", bl_trace_path(t), cu, unit);
     *w = gain * have / target;
     return BL_OK;
 }
@@ -94,8 +97,9 @@ static bl_status resolve_entry(const bl_montage *m, const bl_trace *t, const cha
         *neg = m->neg[i];
         size_t channels = bl_trace_get_info(t)->channels;
         if ((size_t)(*pos + 1) > channels || (size_t)(*neg + 1) > channels)
-            return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": %s has %zu channel%s, so channel %d does not exist",
-                                key, i, bl_trace_path(t), channels, channels == 1 ? "" : "s",
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "key \"%s[%zu]\": %s has %zu channel%s, so channel %d does not exist", key, i,
+                                bl_trace_path(t), channels, channels == 1 ? "" : "s",
                                 (size_t)(*pos + 1) > channels ? *pos + 1 : *neg + 1);
         return BL_OK;
     }
@@ -110,8 +114,10 @@ static bl_status resolve_entry(const bl_montage *m, const bl_trace *t, const cha
         int a = lookup(t, s, (size_t)(d - s)), b = lookup(t, d + 1, strlen(d + 1));
         if (a >= 0 && b >= 0) {
             if (found++) {
-                return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": \"%s\" splits into two channel pairs in %s; "
-                                    "rename the channels or use numbers", key, i, s, bl_trace_path(t));
+                return bl_error_set(err, BL_ERR_INPUT,
+                                    "key \"%s[%zu]\": \"%s\" splits into two channel pairs in %s; "
+                                    "rename the channels or use numbers",
+                                    key, i, s, bl_trace_path(t));
             }
             *pos = a;
             *neg = b;
@@ -140,7 +146,8 @@ static bl_status refuse_bad(const bl_montage *m, const bl_montage *r, const bl_t
     bl_table *tab = NULL;
     bl_status st = BL_OK;
     if (stat(sidecar, &sb) != 0 || (st = bl_table_read(sidecar, &tab, err))) goto done;
-    int cn = bl_table_find(tab, "name"), cs = bl_table_find(tab, "status"), cd = bl_table_find(tab, "status_description");
+    int cn = bl_table_find(tab, "name"), cs = bl_table_find(tab, "status"),
+        cd = bl_table_find(tab, "status_description");
     if (cn < 0) {
         st = bl_error_set(err, BL_ERR_INPUT, "%s: no column \"name\" (BIDS channels.tsv)", sidecar);
         goto done;
@@ -153,8 +160,9 @@ static bl_status refuse_bad(const bl_montage *m, const bl_montage *r, const bl_t
             for (size_t row = 0; name && row < tab->n_rows && !st; row++) {
                 const char *nm = tab->cols[cn].text[row], *status = tab->cols[cs].text[row];
                 if (nm && status && strcmp(nm, name) == 0 && strcmp(status, "bad") == 0)
-                    st = bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": channel \"%s\" is marked bad in %s:%zu%s%s%s",
-                                      key, i, name, sidecar, tab->line[row], cd >= 0 && tab->cols[cd].text[row] ? " (" : "",
+                    st = bl_error_set(err, BL_ERR_INPUT,
+                                      "key \"%s[%zu]\": channel \"%s\" is marked bad in %s:%zu%s%s%s", key, i, name,
+                                      sidecar, tab->line[row], cd >= 0 && tab->cols[cd].text[row] ? " (" : "",
                                       cd >= 0 && tab->cols[cd].text[row] ? tab->cols[cd].text[row] : "",
                                       cd >= 0 && tab->cols[cd].text[row] ? ")" : "");
             }

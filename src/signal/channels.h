@@ -15,7 +15,8 @@ bl_status bl_montage_resolve(const bl_montage *m, const bl_trace *t, const char 
                              bl_montage **out, bl_error *err);
 
 /* out[f] = entry k of a resolved montage alone: wpos x[pos] - wneg x[neg], from interleaved x. */
-void bl_montage_apply_entry(const bl_montage *m, size_t k, const double *x, size_t frames, size_t channels, double *out);
+void bl_montage_apply_entry(const bl_montage *m, size_t k, const double *x, size_t frames, size_t channels,
+                            double *out);
 
 /* Volts per unit for "V", "volts", "mV", "uV", "µV" (UTF-8 micro or Greek mu, or Latin-1 0xB5), "nV"; NAN for
  * anything else (including "au"). */

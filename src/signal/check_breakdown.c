@@ -49,22 +49,24 @@ static void diagnose(bl_textbuf *b, const bl_study *s, const bl_trials *t, const
     if (windowed < 3 || 2 * flagged <= windowed) return;
     double lo = NAN, hi = NAN, med = median_ptp(r, k, 1, &lo, &hi), other = median_ptp(r, k, 0, NULL, NULL);
     const char *u = r->unit;
-    bl_textbuf_printf(b, "  ! %s: %zu of %zu trials flagged (%s); peak-to-peak of its windows %.4g to %.4g %s "
-                      "(median %.4g)", r->recordings[k].path, flagged, windowed, reason, lo, hi, u, med);
+    bl_textbuf_printf(b,
+                      "  ! %s: %zu of %zu trials flagged (%s); peak-to-peak of its windows %.4g to %.4g %s "
+                      "(median %.4g)",
+                      r->recordings[k].path, flagged, windowed, reason, lo, hi, u, med);
     if (isfinite(other)) bl_textbuf_printf(b, ", other recordings median %.4g %s", other, u);
     if (strcmp(reason, "artifact: peak-to-peak") == 0)
         bl_textbuf_printf(b, ", limit %.4g %s", s->power.peak_to_peak, u);
-    else if (strcmp(reason, "artifact: flat") == 0)
-        bl_textbuf_printf(b, ", flat below %.4g %s", s->power.flat, u);
+    else if (strcmp(reason, "artifact: flat") == 0) bl_textbuf_printf(b, ", flat below %.4g %s", s->power.flat, u);
     double ratio = isfinite(other) && other > 0 && med > 0 ? med / other : NAN;
     double decades = log10(ratio);
     bl_textbuf_printf(b, ".\n    Likely a scale/unit problem, not the data: ");
     if (isfinite(decades) && fabs(decades) >= 1.5)
         bl_textbuf_printf(b, "this recording's values are about 10^%.0f times the others' (%s), ", decades,
-                          fabs(fabs(decades) - 3) < 0.5 ? "as between mV and uV" :
-                          fabs(fabs(decades) - 6) < 0.5 ? "as between V and uV" : "a gain or unit mismatch");
+                          fabs(fabs(decades) - 3) < 0.5   ? "as between mV and uV"
+                          : fabs(fabs(decades) - 6) < 0.5 ? "as between V and uV"
+                                                          : "a gain or unit mismatch");
     bl_textbuf_printf(b, "check recordings.gain and recordings.unit (sound files and CSV traces take `gain`; "
-                      "EDF/BDF/BrainVision/NWB carry their own unit) and the artifact limits.\n");
+                         "EDF/BDF/BrainVision/NWB carry their own unit) and the artifact limits.\n");
 }
 
 char *bl_check_breakdown(const bl_study *s, const bl_trials *t, const bl_power_result *r)
@@ -104,8 +106,8 @@ char *bl_check_breakdown(const bl_study *s, const bl_trials *t, const bl_power_r
                     flagged += t->excluded[i] && strncmp(t->excluded[i], "artifact:", 9) == 0;
                 }
             if (windowed)
-                bl_textbuf_printf(&b, "    %s: %zu windowed, %zu flagged as artifacts\n", r->recordings[k].path, windowed,
-                                  flagged);
+                bl_textbuf_printf(&b, "    %s: %zu windowed, %zu flagged as artifacts\n", r->recordings[k].path,
+                                  windowed, flagged);
         }
     }
     if (shown < t->n_participants) bl_textbuf_printf(&b, "  ... %zu more participants\n", t->n_participants - shown);

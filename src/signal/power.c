@@ -49,13 +49,13 @@ static int is_text_trace(const char *p)
 }
 
 typedef struct {
-    size_t row;        /* trial index */
-    size_t rec;        /* recording index */
-    int64_t start;     /* first sample of the window (may be outside the recording: checked when read) */
+    size_t row;    /* trial index */
+    size_t rec;    /* recording index */
+    int64_t start; /* first sample of the window (may be outside the recording: checked when read) */
 } job;
 
 typedef struct {
-    size_t rec, begin, end;  /* jobs[begin..end) */
+    size_t rec, begin, end; /* jobs[begin..end) */
     bl_status status;
     bl_error err;
 } item;
@@ -154,13 +154,13 @@ static bl_status any_extension(char **path, any_cache_t *cache, bl_error *err)
 /* Per-thread state. */
 typedef struct {
     bl_trace *trace;
-    size_t rec;              /* recording the trace belongs to, or SIZE_MAX */
-    double *raw;             /* window_samples x channels */
-    size_t raw_cap;          /* doubles */
-    double *x;               /* window_samples */
+    size_t rec;     /* recording the trace belongs to, or SIZE_MAX */
+    double *raw;    /* window_samples x channels */
+    size_t raw_cap; /* doubles */
+    double *x;      /* window_samples */
     bl_welch_work *work;
-    bl_montage *mont;        /* the study's channels resolved for the open recording (names, units, gain) */
-    double *psd_entry;       /* n_freqs: one entry's PSD when "average": "power" */
+    bl_montage *mont;          /* the study's channels resolved for the open recording (names, units, gain) */
+    double *psd_entry;         /* n_freqs: one entry's PSD when "average": "power" */
     double *clip_lo, *clip_hi; /* channels: full-scale values of the open recording, or NULL when it has none */
 } thread_state;
 
@@ -183,8 +183,7 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
 #endif
         st = bl_trace_open_series(path, s->recordings.rate, s->recordings.series, &ts->trace, &e);
     }
-    if (st)
-        return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
+    if (st) return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
     const bl_trace_info *info = bl_trace_get_info(ts->trace);
     if (fabs(info->rate - r->fs) > 1e-9 * r->fs)
         return bl_error_set(err, BL_ERR_INPUT,
@@ -203,8 +202,8 @@ static bl_status open_recording(thread_state *ts, const bl_study *s, bl_power_re
     }
     bl_montage_destroy(ts->mont);
     ts->mont = NULL;
-    if ((st = bl_montage_resolve(m, ts->trace, "recordings.channels", s->recordings.unit, bl_study_recording_gain(s, path),
-                                 &ts->mont, &e)))
+    if ((st = bl_montage_resolve(m, ts->trace, "recordings.channels", s->recordings.unit,
+                                 bl_study_recording_gain(s, path), &ts->mont, &e)))
         return bl_error_set(err, st, "participant %s, trial %s: %s", part, t->trial_label[first_row], e.message);
     size_t need = r->window_samples * info->channels;
     if (need > ts->raw_cap) {
@@ -260,8 +259,8 @@ static double peak_to_peak(const double *x, size_t n)
  * An entry's artifact is the window's; the PSD is computed only for windows without one, except that
  * flagged windows keep their power apart (as with the signal average) unless a sample is non-finite. */
 static const char *power_average(const bl_study *s, const bl_trace_info *info, const bl_welch_plan *plan,
-                                 thread_state *ts, size_t L, size_t nf, double *psd, double *ptp_out,
-                                 bl_status *status, bl_error *e)
+                                 thread_state *ts, size_t L, size_t nf, double *psd, double *ptp_out, bl_status *status,
+                                 bl_error *e)
 {
     const bl_montage *m = ts->mont;
     const char *why = NULL;
@@ -395,13 +394,13 @@ static bl_status standardize_groups(const bl_study *s, const bl_trials *t, size_
  * trial of a group waits (one PSD per group) until a second arrives, because the only kept trial
  * of a group is left out later. */
 typedef struct {
-    size_t *cell;            /* n rows: cell index, SIZE_MAX when cells are unknown */
-    size_t *group;           /* n rows: standardize group */
-    size_t *first_of_group;  /* n_groups */
+    size_t *cell;           /* n rows: cell index, SIZE_MAX when cells are unknown */
+    size_t *group;          /* n rows: standardize group */
+    size_t *first_of_group; /* n_groups */
     size_t n_groups;
-    size_t *kept;            /* n_groups: kept trials seen so far */
-    size_t *pending_row;     /* n_groups */
-    double **pending;        /* n_groups: PSD of the first kept trial while it is the only one */
+    size_t *kept;        /* n_groups: kept trials seen so far */
+    size_t *pending_row; /* n_groups */
+    double **pending;    /* n_groups: PSD of the first kept trial while it is the only one */
     int standardize;
 } spectra_acc;
 
@@ -416,8 +415,7 @@ static void spectra_acc_free(spectra_acc *a)
     free(a->pending);
 }
 
-static bl_status spectra_setup(const bl_study *s, const bl_trials *t, bl_power_result *r, spectra_acc *a,
-                               bl_error *err)
+static bl_status spectra_setup(const bl_study *s, const bl_trials *t, bl_power_result *r, spectra_acc *a, bl_error *err)
 {
     size_t n = t->n, nf = r->n_freqs;
     const char **cols = NULL;
@@ -549,7 +547,8 @@ static bl_status check_spread(const bl_study *s, const bl_trials *t, const doubl
             st = bl_error_set(err, BL_ERR_INPUT,
                               "band %s: the kept trials of participant %s%s have the same power up to rounding "
                               "(relative SD %.3g of %.10g %s^2, below 1e-9); standardizing would turn rounding noise "
-                              "into a regressor", band, t->participants[t->participant[j]],
+                              "into a regressor",
+                              band, t->participants[t->participant[j]],
                               s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION ? " (in one condition)" : "",
                               rel, mean[g], s->recordings.unit);
         }
@@ -598,20 +597,23 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
         }
     }
     if (n_zero)
-        bl_warnings_add(warn, "%zu trials have zero power in a band (a silent or disconnected channel?) and were left out",
-                        n_zero);
+        bl_warnings_add(
+            warn, "%zu trials have zero power in a band (a silent or disconnected channel?) and were left out", n_zero);
     if (n_overflow)
-        bl_warnings_add(warn, "%zu trials have non-finite band power, first participant %s, trial %s: their samples are so "
+        bl_warnings_add(warn,
+                        "%zu trials have non-finite band power, first participant %s, trial %s: their samples are so "
                         "large (|x| above about 1e150 %s) that the power overflows; they were left out (check "
-                        "recordings.gain and the recording's values)", n_overflow,
-                        t->participants[t->participant[first_overflow]], t->trial_label[first_overflow], s->recordings.unit);
+                        "recordings.gain and the recording's values)",
+                        n_overflow, t->participants[t->participant[first_overflow]], t->trial_label[first_overflow],
+                        s->recordings.unit);
     if (s->power.standardize != BL_STANDARDIZE_NONE) {
         /* a group needs two kept trials for a sample SD */
         for (size_t i = 0; i < n; i++) cnt[group[i]] += !t->excluded[i];
         for (size_t i = 0; i < n; i++)
             if (!t->excluded[i] && cnt[group[i]] < 2) {
                 bl_trials_exclude(t, i, "standardize: only trial of its group");
-                bl_warnings_add(warn, "participant %s, trial %s: the only kept trial of its standardize group; left out",
+                bl_warnings_add(warn,
+                                "participant %s, trial %s: the only kept trial of its standardize group; left out",
                                 t->participants[t->participant[i]], t->trial_label[i]);
             }
     }
@@ -637,10 +639,12 @@ static bl_status add_regressors(const bl_study *s, bl_trials *t, bl_power_result
                 double sd = cnt[g] > 1 ? sqrt(sum2[g] / (double)(cnt[g] - 1)) : NAN;
                 if (cnt[g] > 1 && !(sd > 0)) {
                     size_t j = first_of_group[g];
-                    st = bl_error_set(err, BL_ERR_INPUT,
-                                      "band %s: every kept trial of participant %s%s has the same power; it cannot be "
-                                      "standardized", name, t->participants[t->participant[j]],
-                                      s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION ? " (in one condition)" : "");
+                    st = bl_error_set(
+                        err, BL_ERR_INPUT,
+                        "band %s: every kept trial of participant %s%s has the same power; it cannot be "
+                        "standardized",
+                        name, t->participants[t->participant[j]],
+                        s->power.standardize == BL_STANDARDIZE_PARTICIPANT_CONDITION ? " (in one condition)" : "");
                     goto done;
                 }
                 sum2[g] = sd;
@@ -694,7 +698,8 @@ static bl_status compute_blocks(const bl_study *s, bl_power_result *r, const bl_
         int parallel = last - first >= 2 && items[last - 1].end - block_begin >= PARALLEL_MIN_TRIALS;
         (void)parallel;
 #ifdef _OPENMP
-#pragma omp parallel for num_threads(nt) schedule(static) if (parallel) /* contiguous: each thread reads its files forward */
+#pragma omp parallel for num_threads(nt)                                                                               \
+    schedule(static) if (parallel) /* contiguous: each thread reads its files forward */
 #endif
         for (size_t k = first; k < last; k++) {
             int tid = 0;
@@ -734,8 +739,9 @@ static bl_status parse_onset(const bl_trials *t, int col, size_t i, const char *
 {
     const char *txt = t->table->cols[col].text[i];
     if (!txt)
-        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (%s) is missing", t->table->path ? t->table->path : "trials",
-                            t->table->line[i], t->table->cols[col].name, key);
+        return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" (%s) is missing",
+                            t->table->path ? t->table->path : "trials", t->table->line[i], t->table->cols[col].name,
+                            key);
     char *end;
     double x = strtod(txt, &end);
     while (*end == ' ') end++;
@@ -766,16 +772,20 @@ static void warn_window_confound(const bl_study *s, const bl_trials *t, const jo
     r->n_window_confounds = count;
     if (!count) return;
     if (to_response)
-        bl_warnings_add(warn, "power.window (aligned to the response, from %.6g s) begins before the stimulus onset in "
-                        "%.1f%% of windows (%zu of %zu, every RT below %.6g s): window position follows RT, so band power "
-                        "can follow RT and fake threshold or drift slopes; see docs/study-file.md, \"Windows and response "
-                        "times\"", s->power.from, 100.0 * (double)count / (double)n_jobs, count, n_jobs, -s->power.from);
+        bl_warnings_add(
+            warn,
+            "power.window (aligned to the response, from %.6g s) begins before the stimulus onset in "
+            "%.1f%% of windows (%zu of %zu, every RT below %.6g s): window position follows RT, so band power "
+            "can follow RT and fake threshold or drift slopes; see docs/study-file.md, \"Windows and response "
+            "times\"",
+            s->power.from, 100.0 * (double)count / (double)n_jobs, count, n_jobs, -s->power.from);
     else
-        bl_warnings_add(warn, "power.window (aligned to the onset, to %.6g s) reaches past the response in %.1f%% of "
+        bl_warnings_add(warn,
+                        "power.window (aligned to the onset, to %.6g s) reaches past the response in %.1f%% of "
                         "windows (%zu of %zu, every RT below %.6g s): the window then holds response-related signal on "
                         "fast trials only, so band power can follow RT and fake threshold or drift slopes; see "
-                        "docs/study-file.md, \"Windows and response times\"", s->power.to,
-                        100.0 * (double)count / (double)n_jobs, count, n_jobs, s->power.to);
+                        "docs/study-file.md, \"Windows and response times\"",
+                        s->power.to, 100.0 * (double)count / (double)n_jobs, count, n_jobs, s->power.to);
 }
 
 bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_power_result **out, bl_warnings *warn,
@@ -859,7 +869,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         bl_trace_close(tr);
     } else {
         free(align);
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: no trial is left to window (every trial is excluded)", t->table->path);
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: no trial is left to window (every trial is excluded)",
+                          t->table->path);
         goto fail;
     }
     double fs = r->fs;
@@ -869,8 +880,9 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         free(align);
         st = bl_error_set(err, BL_ERR_INPUT,
                           "%s: key \"power.window\": from %.10g s to %.10g s is %.6g samples at %.10g Hz; at most %d "
-                          "samples fit in a window", s->path, s->power.from, s->power.to,
-                          (s->power.to - s->power.from) * fs, fs, BL_MAX_WINDOW_SAMPLES);
+                          "samples fit in a window",
+                          s->path, s->power.from, s->power.to, (s->power.to - s->power.from) * fs, fs,
+                          BL_MAX_WINDOW_SAMPLES);
         goto fail;
     }
     long long a = llround(s->power.from * fs), b = llround(s->power.to * fs);
@@ -879,9 +891,11 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     if (r->nperseg > r->window_samples && r->nperseg <= r->window_samples + 1) r->nperseg = r->window_samples;
     if (r->window_samples < 2 || r->nperseg < 2) {
         free(align);
-        st = bl_error_set(err, BL_ERR_INPUT,
-                          "%s: key \"power.segment\": %.6g s is %zu samples at %.10g Hz (window %zu samples); at least 2 "
-                          "are needed", s->path, s->power.segment, r->nperseg, fs, r->window_samples);
+        st = bl_error_set(
+            err, BL_ERR_INPUT,
+            "%s: key \"power.segment\": %.6g s is %zu samples at %.10g Hz (window %zu samples); at least 2 "
+            "are needed",
+            s->path, s->power.segment, r->nperseg, fs, r->window_samples);
         goto fail;
     }
     r->noverlap = (size_t)llround(s->power.overlap * (double)r->nperseg);
@@ -892,9 +906,9 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         if (!(fabs(align[row] * fs) < 0x1p62)) { /* onset (+ rt) too large to be a sample index */
             st = bl_error_set(err, BL_ERR_INPUT,
                               "%s:%zu: column \"%s\" (recordings.onset)%s: %.10g s is sample %.6g at %.10g Hz, beyond "
-                              "any recording", t->table->path ? t->table->path : "trials", t->table->line[row],
-                              s->recordings.onset, s->power.align == BL_ALIGN_RESPONSE ? " + rt" : "", align[row],
-                              align[row] * fs, fs);
+                              "any recording",
+                              t->table->path ? t->table->path : "trials", t->table->line[row], s->recordings.onset,
+                              s->power.align == BL_ALIGN_RESPONSE ? " + rt" : "", align[row], align[row] * fs, fs);
             free(align);
             goto fail;
         }
@@ -911,9 +925,10 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     r->n_segments = bl_welch_n_segments(plan, r->window_samples);
     size_t lpf = bl_largest_prime_factor(r->nperseg);
     if (lpf > 7)
-        bl_warnings_add(warn, "segment length %zu samples has the prime factor %zu, which makes the FFT slow; %zu samples "
-                        "(power.segment = %.10g s) would be fast", r->nperseg, lpf, bl_next_fast_size(r->nperseg),
-                        (double)bl_next_fast_size(r->nperseg) / fs);
+        bl_warnings_add(warn,
+                        "segment length %zu samples has the prime factor %zu, which makes the FFT slow; %zu samples "
+                        "(power.segment = %.10g s) would be fast",
+                        r->nperseg, lpf, bl_next_fast_size(r->nperseg), (double)bl_next_fast_size(r->nperseg) / fs);
 
     /* frequency grid and bands */
     if (!(r->freq = malloc(r->n_freqs * sizeof *r->freq)) ||
@@ -931,7 +946,8 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         if (bs->hi > fs / 2) {
             st = bl_error_set(err, BL_ERR_INPUT,
                               "%s: key \"power.bands.%s\": the band [%.10g, %.10g] Hz reaches above the Nyquist "
-                              "frequency %.10g Hz of the recordings", s->path, bs->name, bs->lo, bs->hi, fs / 2);
+                              "frequency %.10g Hz of the recordings",
+                              s->path, bs->name, bs->lo, bs->hi, fs / 2);
             goto fail;
         }
         bl_band_bins(r->df, r->n_freqs, bs->lo, bs->hi, &pb->first_bin, &pb->last_bin);
@@ -946,16 +962,21 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         if (pb->n_bins == 0) {
             st = bl_error_set(err, BL_ERR_INPUT,
                               "%s: key \"power.bands.%s\": no frequency bin in [%.10g, %.10g] Hz at a resolution of "
-                              "%.6g Hz%s; widen the band or lengthen power.segment", s->path, bs->name, bs->lo, bs->hi,
-                              r->df, s->power.line_noise > 0 ? " (after leaving out line-noise bins)" : "");
+                              "%.6g Hz%s; widen the band or lengthen power.segment",
+                              s->path, bs->name, bs->lo, bs->hi, r->df,
+                              s->power.line_noise > 0 ? " (after leaving out line-noise bins)" : "");
             goto fail;
         }
         if (pb->n_bins < 2)
-            bl_warnings_add(warn, "band %s [%g, %g] Hz holds only %zu frequency bin at %.6g Hz resolution; lengthen "
-                            "power.segment for a steadier estimate", bs->name, bs->lo, bs->hi, pb->n_bins, r->df);
+            bl_warnings_add(warn,
+                            "band %s [%g, %g] Hz holds only %zu frequency bin at %.6g Hz resolution; lengthen "
+                            "power.segment for a steadier estimate",
+                            bs->name, bs->lo, bs->hi, pb->n_bins, r->df);
         if (s->power.detrend != BL_DETREND_NONE && (double)pb->first_bin < 2.0)
-            bl_warnings_add(warn, "band %s starts at bin %zu (%.6g Hz), below 2 x the resolution %.6g Hz, where "
-                            "detrending biases the PSD low", bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
+            bl_warnings_add(warn,
+                            "band %s starts at bin %zu (%.6g Hz), below 2 x the resolution %.6g Hz, where "
+                            "detrending biases the PSD low",
+                            bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
     }
     if (!(r->band_power = malloc(2 * (n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power))) goto nomem;
     /* the second half of the block: flagged trials' power, which the regressors never see */
@@ -998,10 +1019,12 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
         for (size_t k = 0; k < r->n_recordings; k++)
             if (!strstr(r->recordings[k].format, "-bit PCM") && strncmp(r->recordings[k].format, "EDF", 3) != 0 &&
                 strncmp(r->recordings[k].format, "BDF", 3) != 0)
-                bl_warnings_add(warn, "%s (%s) has no integer full scale, so power.artifacts.clipping does not apply to it",
+                bl_warnings_add(warn,
+                                "%s (%s) has no integer full scale, so power.artifacts.clipping does not apply to it",
                                 r->recordings[k].path, r->recordings[k].format);
     if (r->n_artifacts)
-        bl_warnings_add(warn, "%zu of %zu windowed trials were flagged as artifacts and left out", r->n_artifacts, n_jobs);
+        bl_warnings_add(warn, "%zu of %zu windowed trials were flagged as artifacts and left out", r->n_artifacts,
+                        n_jobs);
 
     free(items);
     free(jobs);
@@ -1169,7 +1192,8 @@ bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power
     sb_printf(&b, "responses    %zu upper, %zu lower (kept trials; %s coding)\n", n_up, n_kept - n_up,
               s->trials.stimulus ? "stimulus" : "accuracy");
     if (r) {
-        sb_printf(&b, "recordings   %zu file%s, %.10g Hz, channels", r->n_recordings, r->n_recordings == 1 ? "" : "s", r->fs);
+        sb_printf(&b, "recordings   %zu file%s, %.10g Hz, channels", r->n_recordings, r->n_recordings == 1 ? "" : "s",
+                  r->fs);
         for (size_t c = 0; c < s->recordings.n_channels; c++)
             sb_printf(&b, "%s%s", c ? ", " : " ", s->recordings.channels[c]);
         if (s->recordings.n_gain_formats) { /* one gain per file extension */
@@ -1179,8 +1203,8 @@ bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power
                           g + 1 < s->recordings.n_gain_formats ? "," : "");
             sb_printf(&b, " (others 1), unit %s\n", s->recordings.unit);
         } else
-        sb_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "", s->recordings.gain,
-                  s->recordings.unit);
+            sb_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "",
+                      s->recordings.gain, s->recordings.unit);
         for (size_t k = 0; k < r->n_recordings && k < 50; k++) {
             const bl_power_recording *rec = &r->recordings[k];
             sb_printf(&b, "  %s: participant %s, %.10g Hz, %zu channel%s, %.6g s, %s, %zu trials\n", rec->path,
@@ -1196,8 +1220,8 @@ bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power
         sb_printf(&b, "resolution   %.6g Hz (%zu bins, 0 to %.6g Hz)\n", r->df, r->n_freqs, r->freq[r->n_freqs - 1]);
         for (size_t k = 0; k < r->n_bands; k++) {
             const bl_power_band *pb = &r->bands[k];
-            sb_printf(&b, "  band %-12s [%g, %g] Hz: %zu bins (%.6g to %.6g Hz)%s\n", pb->name, pb->lo, pb->hi, pb->n_bins,
-                      r->freq[pb->first_bin], r->freq[pb->last_bin],
+            sb_printf(&b, "  band %-12s [%g, %g] Hz: %zu bins (%.6g to %.6g Hz)%s\n", pb->name, pb->lo, pb->hi,
+                      pb->n_bins, r->freq[pb->first_bin], r->freq[pb->last_bin],
                       pb->n_bins < pb->last_bin - pb->first_bin + 1 ? ", line-noise bins left out" : "");
         }
         sb_printf(&b, "regressors   scale %s, standardize %s\n", scales[s->power.scale], stds[s->power.standardize]);

@@ -21,17 +21,17 @@ struct bl_welch_plan {
     bl_detrend detrend;
     bl_welch_average average;
     double *window;
-    double scale;                        /* per-segment |X|^2 factor */
-    gsl_fft_real_wavetable *wavetable;   /* read-only during transforms: shared between threads */
+    double scale;                      /* per-segment |X|^2 factor */
+    gsl_fft_real_wavetable *wavetable; /* read-only during transforms: shared between threads */
 };
 
 struct bl_welch_work {
     size_t max_n, max_k;
     gsl_fft_real_workspace *ws;
-    double *buf;                         /* nfft */
-    double *rows;                        /* max_k x n_freqs, median only */
-    double *col;                         /* max_k, median only */
-    double *seg;                         /* n_freqs: one segment's power (mean average) */
+    double *buf;  /* nfft */
+    double *rows; /* max_k x n_freqs, median only */
+    double *col;  /* max_k, median only */
+    double *seg;  /* n_freqs: one segment's power (mean average) */
 };
 
 bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_t nfft, bl_detrend detrend,
@@ -41,9 +41,11 @@ bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_
     *out = NULL;
     if (nfft == 0) nfft = nperseg;
     if (!(fs > 0) || !isfinite(fs)) return bl_error_set(err, BL_ERR_INPUT, "Welch: sampling rate %g is not > 0", fs);
-    if (nperseg < 2) return bl_error_set(err, BL_ERR_INPUT, "Welch: segment of %zu samples is too short (need >= 2)", nperseg);
+    if (nperseg < 2)
+        return bl_error_set(err, BL_ERR_INPUT, "Welch: segment of %zu samples is too short (need >= 2)", nperseg);
     if (noverlap >= nperseg)
-        return bl_error_set(err, BL_ERR_INPUT, "Welch: overlap of %zu samples must be below the segment (%zu)", noverlap, nperseg);
+        return bl_error_set(err, BL_ERR_INPUT, "Welch: overlap of %zu samples must be below the segment (%zu)",
+                            noverlap, nperseg);
     if (nfft < nperseg)
         return bl_error_set(err, BL_ERR_INPUT, "Welch: nfft %zu is smaller than the segment (%zu)", nfft, nperseg);
     bl_welch_plan *p = calloc(1, sizeof *p);

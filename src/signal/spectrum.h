@@ -24,9 +24,8 @@ typedef struct bl_welch_plan bl_welch_plan;
 typedef struct bl_welch_work bl_welch_work;
 
 /* fs > 0 [Hz]; 1 <= nperseg; noverlap < nperseg; nfft >= nperseg (0 = nperseg). */
-bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_t nfft,
-                               bl_detrend detrend, bl_welch_average average,
-                               bl_welch_scaling scaling, bl_welch_plan **out, bl_error *err);
+bl_status bl_welch_plan_create(double fs, size_t nperseg, size_t noverlap, size_t nfft, bl_detrend detrend,
+                               bl_welch_average average, bl_welch_scaling scaling, bl_welch_plan **out, bl_error *err);
 void bl_welch_plan_destroy(bl_welch_plan *p);
 /* Number of one-sided frequencies, nfft/2 + 1. */
 size_t bl_welch_n_freqs(const bl_welch_plan *p);
@@ -41,16 +40,15 @@ void bl_welch_work_destroy(bl_welch_work *w);
 
 /* PSD of x[0..n) into psd[0..n_freqs): unit^2/Hz for density scaling, unit^2 for spectrum scaling.
  * BL_ERR_INPUT when n < nperseg or n > the workspace's max_n; BL_ERR_NUMERIC when the FFT fails. */
-bl_status bl_welch_compute(const bl_welch_plan *p, bl_welch_work *w, const double *x, size_t n,
-                           double *psd, bl_error *err);
+bl_status bl_welch_compute(const bl_welch_plan *p, bl_welch_work *w, const double *x, size_t n, double *psd,
+                           bl_error *err);
 
 /* The bins j with lo <= j*df <= hi (closed band) and j >= 1 (the DC bin never counts), within
  * [0, n_freqs). Sets *first > *last (count 0) when the band holds no bin. Returns the count. */
 size_t bl_band_bins(double df, size_t n_freqs, double lo, double hi, size_t *first, size_t *last);
 
 /* Rectangle rule: df * sum of psd[j] over j in [first, last] with mask[j] != 0 (mask NULL = all). */
-double bl_band_power(const double *psd, double df, size_t first, size_t last,
-                     const unsigned char *mask);
+double bl_band_power(const double *psd, double df, size_t first, size_t last, const unsigned char *mask);
 
 /* Largest prime factor of n (n >= 2), and the nearest size >= n whose factors are 2, 3 and 5 only. */
 size_t bl_largest_prime_factor(size_t n);

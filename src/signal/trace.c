@@ -20,10 +20,10 @@ struct bl_trace {
     char *path;
     bl_trace_info info;
     SNDFILE *sf;
-    int64_t pos;            /* the sound file's read position (frames), -1 when unknown */
-    double *csv;            /* frames x channels, interleaved (CSV traces only) */
-    bl_trace_backend be;    /* EDF/BDF, BrainVision, NWB: a reader of its own (trace_*.c) */
-    char **names;           /* channel names from the header (CSV header row or the format's), or NULL */
+    int64_t pos;         /* the sound file's read position (frames), -1 when unknown */
+    double *csv;         /* frames x channels, interleaved (CSV traces only) */
+    bl_trace_backend be; /* EDF/BDF, BrainVision, NWB: a reader of its own (trace_*.c) */
+    char **names;        /* channel names from the header (CSV header row or the format's), or NULL */
     size_t n_names;
 };
 
@@ -116,7 +116,9 @@ static char **csv_names(const char *p, char delim, size_t channels)
 static bl_status read_csv_trace(bl_trace *t, bl_error *err)
 {
     FILE *f = fopen(t->path, "rb");
-    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the recording: %s", t->path, strerror(errno));
+    if (!f)
+        return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the recording: %s", t->path,
+                            strerror(errno));
     bl_status st = BL_OK;
     char *line = NULL;
     size_t cap = 0, frames = 0, dcap = 0, lineno = 0;
@@ -174,8 +176,8 @@ static bl_status read_csv_trace(bl_trace *t, bl_error *err)
             q = end + 1;
         }
         if (c != channels) {
-            st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: %zu fields, but the header has %zu columns", t->path, lineno, c,
-                              channels);
+            st = bl_error_set(err, BL_ERR_INPUT, "%s:%zu: %zu fields, but the header has %zu columns", t->path, lineno,
+                              c, channels);
             goto done;
         }
         frames++;
@@ -185,8 +187,10 @@ static bl_status read_csv_trace(bl_trace *t, bl_error *err)
         goto done;
     }
     if (channels == 0 || frames == 0) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: the recording has no samples (a header row and one row per sample "
-                          "are expected)", t->path);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: the recording has no samples (a header row and one row per sample "
+                          "are expected)",
+                          t->path);
         goto done;
     }
     t->info.channels = channels;
@@ -223,7 +227,8 @@ bl_status bl_trace_open_series(const char *path, double csv_rate, const char *se
     }
     if (has_csv_extension(path)) {
         if (!(csv_rate > 0)) {
-            st = bl_error_set(err, BL_ERR_INPUT, "%s: a CSV/TSV trace needs recordings.rate (samples per second)", path);
+            st = bl_error_set(err, BL_ERR_INPUT, "%s: a CSV/TSV trace needs recordings.rate (samples per second)",
+                              path);
             goto fail;
         }
         t->info.is_csv = 1;
@@ -243,9 +248,9 @@ bl_status bl_trace_open_series(const char *path, double csv_rate, const char *se
          * (exit 2); only libsndfile's own allocation failure is a failure while running (exit 1). */
         int code = sf_error(NULL), e = errno;
         const char *why = sf_strerror(NULL);
-        bl_status kind = code == SF_ERR_SYSTEM ? bl_status_from_errno(e)
+        bl_status kind = code == SF_ERR_SYSTEM                              ? bl_status_from_errno(e)
                          : strstr(why, "malloc") || strstr(why, "creating") ? BL_ERR_NOMEM /* decoder set-up */
-                                                 : BL_ERR_INPUT;
+                                                                            : BL_ERR_INPUT;
         st = bl_error_set(err, kind, "%s: cannot open the recording: %s", path, why);
         goto fail;
     }
@@ -296,10 +301,7 @@ const bl_trace_info *bl_trace_get_info(const bl_trace *t) { return &t->info; }
 
 /* Fewer samples than the header promised: a system read error is a failure while running (exit 1);
  * a file that ends early or whose frames do not decode (truncated or corrupt FLAC) is bad input. */
-static bl_status short_read_status(bl_trace *t)
-{
-    return sf_error(t->sf) == SF_ERR_SYSTEM ? BL_ERR_IO : BL_ERR_INPUT;
-}
+static bl_status short_read_status(bl_trace *t) { return sf_error(t->sf) == SF_ERR_SYSTEM ? BL_ERR_IO : BL_ERR_INPUT; }
 
 const char *bl_trace_channel_name(const bl_trace *t, size_t c)
 {
@@ -344,9 +346,11 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
             sf_count_t got = sf_readf_double(t->sf, buf, step);
             if (got != step) {
                 t->pos = -1;
-                return bl_error_set(err, short_read_status(t), "%s: read %lld of %lld samples at sample %lld; the file is truncated or "
-                                    "damaged (%s)", t->path, (long long)got, (long long)step,
-                                    (long long)(start - gap), sf_strerror(t->sf));
+                return bl_error_set(err, short_read_status(t),
+                                    "%s: read %lld of %lld samples at sample %lld; the file is truncated or "
+                                    "damaged (%s)",
+                                    t->path, (long long)got, (long long)step, (long long)(start - gap),
+                                    sf_strerror(t->sf));
             }
             gap -= step;
         }
@@ -358,7 +362,8 @@ bl_status bl_trace_read(bl_trace *t, int64_t start, size_t n, double *buf, bl_er
     sf_count_t got = sf_readf_double(t->sf, buf, (sf_count_t)n);
     if (got != (sf_count_t)n) {
         t->pos = -1;
-        return bl_error_set(err, short_read_status(t), "%s: read %lld of %zu samples at sample %lld; the file is truncated or damaged (%s)",
+        return bl_error_set(err, short_read_status(t),
+                            "%s: read %lld of %zu samples at sample %lld; the file is truncated or damaged (%s)",
                             t->path, (long long)got, n, (long long)start, sf_strerror(t->sf));
     }
     t->pos = start + (int64_t)n;
@@ -428,14 +433,16 @@ bl_status bl_montage_parse(const char *const *specs, size_t n, const char *key, 
         }
         if (a < 0 || *e) {
             bl_montage_destroy(m);
-            return bl_error_set(err, BL_ERR_INPUT,
-                                "key \"%s[%zu]\": \"%s\" is not a channel (1-based number \"3\", bipolar pair \"1-2\", or a "
-                                "name \"Cz\", \"Cz-Pz\")",
-                                key, i, s);
+            return bl_error_set(
+                err, BL_ERR_INPUT,
+                "key \"%s[%zu]\": \"%s\" is not a channel (1-based number \"3\", bipolar pair \"1-2\", or a "
+                "name \"Cz\", \"Cz-Pz\")",
+                key, i, s);
         }
         if (a == b) {
             bl_montage_destroy(m);
-            return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": \"%s\" subtracts a channel from itself", key, i, s);
+            return bl_error_set(err, BL_ERR_INPUT, "key \"%s[%zu]\": \"%s\" subtracts a channel from itself", key, i,
+                                s);
         }
         m->pos[i] = a - 1;
         m->neg[i] = b > 0 ? b - 1 : -1;
@@ -462,7 +469,8 @@ void bl_montage_apply(const bl_montage *m, const double *x, size_t frames, size_
             const double *row = x + f * channels;
             double s = 0;
             for (size_t i = 0; i < m->n; i++)
-                s += m->neg[i] >= 0 ? m->wpos[i] * row[m->pos[i]] - m->wneg[i] * row[m->neg[i]] : m->wpos[i] * row[m->pos[i]];
+                s += m->neg[i] >= 0 ? m->wpos[i] * row[m->pos[i]] - m->wneg[i] * row[m->neg[i]]
+                                    : m->wpos[i] * row[m->pos[i]];
             out[f] = scale * s;
         }
         return;
@@ -508,14 +516,15 @@ bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t r
             const char *close = strchr(p, '}');
             if (!close) {
                 free(r);
-                return bl_error_set(err, BL_ERR_INPUT, "key \"recordings.file\": \"%s\" has a '{' without '}'", pattern);
+                return bl_error_set(err, BL_ERR_INPUT, "key \"recordings.file\": \"%s\" has a '{' without '}'",
+                                    pattern);
             }
             char name[256];
             size_t nl = (size_t)(close - p - 1);
             if (nl == 0 || nl >= sizeof name) {
                 free(r);
-                return bl_error_set(err, BL_ERR_INPUT, "key \"recordings.file\": \"%s\" has an empty or too long {column}",
-                                    pattern);
+                return bl_error_set(err, BL_ERR_INPUT,
+                                    "key \"recordings.file\": \"%s\" has an empty or too long {column}", pattern);
             }
             memcpy(name, p + 1, nl);
             name[nl] = '\0';
@@ -523,22 +532,24 @@ bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t r
             if (c < 0) {
                 free(r);
                 return bl_error_set(err, BL_ERR_INPUT,
-                                    "key \"recordings.file\": \"%s\" names column {%s}, which is not in %s", pattern, name,
-                                    table->path ? table->path : "the trial table");
+                                    "key \"recordings.file\": \"%s\" names column {%s}, which is not in %s", pattern,
+                                    name, table->path ? table->path : "the trial table");
             }
             piece = table->cols[c].text[row];
             if (!piece) {
                 free(r);
-                return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: column \"%s\" is missing but recordings.file \"%s\" needs it",
+                return bl_error_set(err, BL_ERR_INPUT,
+                                    "%s:%zu: column \"%s\" is missing but recordings.file \"%s\" needs it",
                                     table->path ? table->path : "trials", table->line[row], name, pattern);
             }
             /* bids_recording is the relative path the BIDS scan found (design/trial_files.c): '/' allowed, '..' not */
             int nested = strcmp(name, "bids_recording") == 0 && !strstr(piece, "..") && piece[0] != '/';
             if ((strchr(piece, '/') && !nested) || strcmp(piece, "..") == 0) {
                 free(r);
-                return bl_error_set(err, BL_ERR_INPUT,
-                                    "%s:%zu: column \"%s\" value \"%s\" contains '/' or is '..'; it cannot fill a file name",
-                                    table->path ? table->path : "trials", table->line[row], name, piece);
+                return bl_error_set(
+                    err, BL_ERR_INPUT,
+                    "%s:%zu: column \"%s\" value \"%s\" contains '/' or is '..'; it cannot fill a file name",
+                    table->path ? table->path : "trials", table->line[row], name, piece);
             }
             plen = strlen(piece);
             p = close + 1;
@@ -573,11 +584,12 @@ bl_status bl_pattern_expand(const char *pattern, const bl_table *table, size_t r
             if (cl == 2 && c[0] == '.' && c[1] == '.') depth--;
             else if (!(cl == 0 || (cl == 1 && c[0] == '.'))) depth++;
             if (depth < 0) {
-                bl_status st = bl_error_set(err, BL_ERR_INPUT,
-                                            "%s:%zu: recordings.file \"%s\" filled from this row is \"%s\", which leads "
-                                            "out of the folder \"%.*s\" (adjacent values make '..')",
-                                            table->path ? table->path : "trials", table->line[row], pattern, r,
-                                            (int)(fixed ? fixed : 1), fixed ? pattern : ".");
+                bl_status st = bl_error_set(
+                    err, BL_ERR_INPUT,
+                    "%s:%zu: recordings.file \"%s\" filled from this row is \"%s\", which leads "
+                    "out of the folder \"%.*s\" (adjacent values make '..')",
+                    table->path ? table->path : "trials", table->line[row], pattern, r, (int)(fixed ? fixed : 1),
+                    fixed ? pattern : ".");
                 free(r);
                 return st;
             }

@@ -10,13 +10,13 @@
 #include "signal/trace.h"
 
 typedef struct {
-    const char *series;     /* input: NWB ElectricalSeries to use (path or name), or NULL; not owned */
+    const char *series; /* input: NWB ElectricalSeries to use (path or name), or NULL; not owned */
     void *impl;
     /* frames [start, start + n) of every channel, interleaved; the range is already checked */
     bl_status (*read)(void *impl, int64_t start, size_t n, double *buf, bl_error *err);
     void (*close)(void *impl);
-    char **names;           /* info.channels malloc'd names (owned by trace.c once open succeeds) */
-    char **units;           /* info.channels malloc'd unit strings as written in the file */
+    char **names;              /* info.channels malloc'd names (owned by trace.c once open succeeds) */
+    char **units;              /* info.channels malloc'd unit strings as written in the file */
     double *clip_lo, *clip_hi; /* info.channels physical values at the digital extremes, or NULL (unknown) */
 } bl_trace_backend;
 

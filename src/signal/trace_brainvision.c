@@ -27,8 +27,8 @@ typedef struct {
     int64_t frames;
     int vectorized;
     bv_type type;
-    size_t bytes;           /* per sample */
-    double *resolution;     /* per channel */
+    size_t bytes;       /* per sample */
+    double *resolution; /* per channel */
     unsigned char *buf;
     size_t buf_cap;
 } bv_file;
@@ -100,7 +100,7 @@ static bl_status bv_read(void *impl, int64_t start, size_t n, double *buf, bl_er
 /* The header's keys, by section; values point into the loaded text. */
 typedef struct {
     char *data_file, *format, *orientation, *n_channels, *interval, *binary;
-    char **ch;              /* Ch1.. entries, index n-1 */
+    char **ch; /* Ch1.. entries, index n-1 */
     size_t *ch_line;
     size_t n_ch;
 } bv_header;
@@ -124,8 +124,10 @@ static bl_status parse_header(const char *path, char *text, bv_header *h, bl_err
         char *s = trim(line);
         if (lineno == 1) {
             if (strstr(s, "Vision Data Exchange Header File") == NULL)
-                return bl_error_set(err, BL_ERR_INPUT, "%s:1: not a BrainVision header (the first line should name the "
-                                    "\"Brain Vision Data Exchange Header File\")", path);
+                return bl_error_set(err, BL_ERR_INPUT,
+                                    "%s:1: not a BrainVision header (the first line should name the "
+                                    "\"Brain Vision Data Exchange Header File\")",
+                                    path);
             continue;
         }
         if (!*s || *s == ';') continue;
@@ -149,8 +151,8 @@ static bl_status parse_header(const char *path, char *text, bv_header *h, bl_err
             char *end;
             long k = strtol(key + 2, &end, 10);
             if (end == key + 2 || *end || k < 1 || k > 100000)
-                return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: [Channel Infos] key \"%s\" is not Ch<number>", path, lineno,
-                                    key);
+                return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: [Channel Infos] key \"%s\" is not Ch<number>", path,
+                                    lineno, key);
             if ((size_t)k > cap) {
                 size_t nc = (size_t)k > 2 * cap ? (size_t)k : 2 * cap;
                 char **nch = realloc(h->ch, nc * sizeof *nch);
@@ -162,7 +164,8 @@ static bl_status parse_header(const char *path, char *text, bv_header *h, bl_err
                 cap = nc;
             }
             if (h->ch[k - 1])
-                return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: [Channel Infos] key \"%s\" appears twice", path, lineno, key);
+                return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: [Channel Infos] key \"%s\" appears twice", path, lineno,
+                                    key);
             h->ch[k - 1] = val;
             h->ch_line[k - 1] = lineno;
             if ((size_t)k > h->n_ch) h->n_ch = (size_t)k;
@@ -172,8 +175,7 @@ static bl_status parse_header(const char *path, char *text, bv_header *h, bl_err
 }
 
 /* Ch<n>=<name>,<reference>,<resolution>,<unit> into the backend's name/unit and the resolution. */
-static bl_status parse_channel(const char *path, bv_header *h, size_t c, bv_file *v, bl_trace_backend *b,
-                               bl_error *err)
+static bl_status parse_channel(const char *path, bv_header *h, size_t c, bv_file *v, bl_trace_backend *b, bl_error *err)
 {
     char *fields[4] = {NULL, NULL, NULL, NULL};
     char *p = h->ch[c];
@@ -200,8 +202,10 @@ static bl_status parse_channel(const char *path, bv_header *h, size_t c, bv_file
         char *end;
         res = strtod(trim(fields[2]), &end);
         if (*end || !isfinite(res) || res == 0)
-            return bl_error_set(err, BL_ERR_INPUT, "%s:%zu: [Channel Infos] Ch%zu resolution \"%s\" is not a non-zero "
-                                "number", path, h->ch_line[c], c + 1, fields[2]);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s:%zu: [Channel Infos] Ch%zu resolution \"%s\" is not a non-zero "
+                                "number",
+                                path, h->ch_line[c], c + 1, fields[2]);
     }
     v->resolution[c] = res;
     const char *unit = fields[3] && *trim(fields[3]) ? trim(fields[3]) : "\xc2\xb5V";
@@ -214,7 +218,9 @@ static bl_status load_text(const char *path, char **out, bl_error *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
-    if (!f) return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the recording: %s", path, strerror(errno));
+    if (!f)
+        return bl_error_set(err, bl_status_from_errno(errno), "%s: cannot open the recording: %s", path,
+                            strerror(errno));
     size_t cap = 4096, len = 0;
     char *t = malloc(cap);
     for (;;) {
@@ -250,29 +256,35 @@ static bl_status check_header(const char *path, const bv_header *h, bv_file *v, 
     if (!h->orientation || strcasecmp(h->orientation, "MULTIPLEXED") == 0) v->vectorized = 0;
     else if (strcasecmp(h->orientation, "VECTORIZED") == 0) v->vectorized = 1;
     else
-        return bl_error_set(err, BL_ERR_INPUT, "%s: [Common Infos] DataOrientation is \"%s\"; MULTIPLEXED or VECTORIZED "
-                            "is expected", path, h->orientation);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: [Common Infos] DataOrientation is \"%s\"; MULTIPLEXED or VECTORIZED "
+                            "is expected",
+                            path, h->orientation);
     char *end;
     long nch = h->n_channels ? strtol(h->n_channels, &end, 10) : 0;
     if (!h->n_channels || *end || nch < 1)
-        return bl_error_set(err, BL_ERR_INPUT, "%s: [Common Infos] NumberOfChannels is \"%s\"; a whole number >= 1 is needed",
-                            path, h->n_channels ? h->n_channels : "(missing)");
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: [Common Infos] NumberOfChannels is \"%s\"; a whole number >= 1 is needed", path,
+                            h->n_channels ? h->n_channels : "(missing)");
     v->channels = (size_t)nch;
     double us = h->interval ? strtod(h->interval, &end) : 0;
     if (!h->interval || *end || !(us > 0) || !isfinite(us))
-        return bl_error_set(err, BL_ERR_INPUT, "%s: [Common Infos] SamplingInterval is \"%s\"; microseconds > 0 are needed",
-                            path, h->interval ? h->interval : "(missing)");
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: [Common Infos] SamplingInterval is \"%s\"; microseconds > 0 are needed", path,
+                            h->interval ? h->interval : "(missing)");
     *rate = 1e6 / us;
     const char *bin = h->binary ? h->binary : "(missing)";
     if (strcasecmp(bin, "INT_16") == 0) v->type = BV_INT16, v->bytes = 2;
     else if (strcasecmp(bin, "INT_32") == 0) v->type = BV_INT32, v->bytes = 4;
     else if (strcasecmp(bin, "IEEE_FLOAT_32") == 0) v->type = BV_FLOAT32, v->bytes = 4;
     else
-        return bl_error_set(err, BL_ERR_INPUT, "%s: [Binary Infos] BinaryFormat is \"%s\"; INT_16, INT_32 or IEEE_FLOAT_32 "
-                            "is expected", path, bin);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: [Binary Infos] BinaryFormat is \"%s\"; INT_16, INT_32 or IEEE_FLOAT_32 "
+                            "is expected",
+                            path, bin);
     if (h->n_ch != v->channels)
-        return bl_error_set(err, BL_ERR_INPUT, "%s: NumberOfChannels is %zu but [Channel Infos] lists Ch1 to Ch%zu", path,
-                            v->channels, h->n_ch);
+        return bl_error_set(err, BL_ERR_INPUT, "%s: NumberOfChannels is %zu but [Channel Infos] lists Ch1 to Ch%zu",
+                            path, v->channels, h->n_ch);
     for (size_t c = 0; c < h->n_ch; c++)
         if (!h->ch[c]) return bl_error_set(err, BL_ERR_INPUT, "%s: [Channel Infos] has no Ch%zu", path, c + 1);
     return BL_OK;
@@ -317,7 +329,8 @@ bl_status bl_trace_brainvision_open(const char *path, bl_trace_info *info, bl_tr
     }
     size_t frame_bytes = v->channels * v->bytes;
     if (sb.st_size == 0 || (size_t)sb.st_size % frame_bytes) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: DataFile %s holds %lld bytes, not a whole number of samples of %zu "
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: DataFile %s holds %lld bytes, not a whole number of samples of %zu "
                           "channels x %zu bytes (truncated, or the header's NumberOfChannels/BinaryFormat is wrong)",
                           path, v->data_path, (long long)sb.st_size, v->channels, v->bytes);
         goto fail;

@@ -23,16 +23,16 @@
 typedef struct {
     FILE *f;
     char *path;
-    int bytes;              /* per sample: 2 (EDF) or 3 (BDF) */
+    int bytes; /* per sample: 2 (EDF) or 3 (BDF) */
     long long header_bytes;
     size_t record_bytes;
-    size_t spr;             /* samples per record of every data signal */
-    size_t n_data;          /* data signals (annotation signals left out) */
-    size_t *offset;         /* n_data: first sample of the signal inside a record */
-    double *cal, *off;      /* n_data: physical = digital * cal + off */
-    double *dmin, *dmax;    /* n_data: digital extremes (clipping) */
-    unsigned char *record;  /* one data record */
-    long long cached;       /* record held in `record`, -1 none */
+    size_t spr;            /* samples per record of every data signal */
+    size_t n_data;         /* data signals (annotation signals left out) */
+    size_t *offset;        /* n_data: first sample of the signal inside a record */
+    double *cal, *off;     /* n_data: physical = digital * cal + off */
+    double *dmin, *dmax;   /* n_data: digital extremes (clipping) */
+    unsigned char *record; /* one data record */
+    long long cached;      /* record held in `record`, -1 none */
 } edf_file;
 
 /* Field text with trailing spaces removed; `out` holds len + 1 bytes. */
@@ -78,8 +78,9 @@ static bl_status load_record(edf_file *e, long long r, bl_error *err)
         return bl_error_set(err, BL_ERR_IO, "%s: cannot seek to data record %lld: %s", e->path, r + 1, strerror(errno));
     size_t got = fread(e->record, 1, e->record_bytes, e->f);
     if (got != e->record_bytes)
-        return bl_error_set(err, BL_ERR_IO, "%s: data record %lld: read %zu of %zu bytes; the file is truncated or damaged",
-                            e->path, r + 1, got, e->record_bytes);
+        return bl_error_set(err, BL_ERR_IO,
+                            "%s: data record %lld: read %zu of %zu bytes; the file is truncated or damaged", e->path,
+                            r + 1, got, e->record_bytes);
     e->cached = r;
     return BL_OK;
 }
@@ -100,8 +101,7 @@ static bl_status edf_read(void *impl, int64_t start, size_t n, double *buf, bl_e
             double *out = buf + done * e->n_data + c;
             for (size_t k = 0; k < take; k++, p += e->bytes, out += e->n_data) {
                 long d;
-                if (e->bytes == 2)
-                    d = (long)(int16_t)(uint16_t)(p[0] | (p[1] << 8));
+                if (e->bytes == 2) d = (long)(int16_t)(uint16_t)(p[0] | (p[1] << 8));
                 else {
                     d = (long)p[0] | ((long)p[1] << 8) | ((long)p[2] << 16);
                     if (d & 0x800000L) d -= 0x1000000L;
@@ -117,9 +117,9 @@ static bl_status edf_read(void *impl, int64_t start, size_t n, double *buf, bl_e
 /* Per-signal header fields, in the order the specification stores them (ns entries each). */
 enum { F_LABEL, F_TRANSDUCER, F_DIM, F_PMIN, F_PMAX, F_DMIN, F_DMAX, F_PREFILTER, F_SPR, F_RESERVED, F_COUNT };
 static const size_t field_len[F_COUNT] = {16, 80, 8, 8, 8, 8, 8, 80, 8, 32};
-static const char *const field_name[F_COUNT] = {"label", "transducer type", "physical dimension", "physical minimum",
-                                                "physical maximum", "digital minimum", "digital maximum",
-                                                "prefiltering", "samples per data record", "reserved"};
+static const char *const field_name[F_COUNT] = {
+    "label",           "transducer type", "physical dimension", "physical minimum",        "physical maximum",
+    "digital minimum", "digital maximum", "prefiltering",       "samples per data record", "reserved"};
 
 static int is_annotation(const char *label)
 {
@@ -158,33 +158,43 @@ static bl_status read_signals(edf_file *e, const unsigned char *sh, size_t ns, d
         snprintf(sname, sizeof sname, "samples per data record of signal %zu", s + 1);
         if (number_field(e->path, sname, text, &spr, err)) return BL_ERR_INPUT;
         if (!(spr >= 1) || spr != floor(spr) || spr > 1e8)
-            return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"%s\" is \"%s\", not a whole number >= 1", e->path,
-                                sname, text);
+            return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"%s\" is \"%s\", not a whole number >= 1",
+                                e->path, sname, text);
         size_t here = offset;
         offset += (size_t)spr;
         if (is_annotation(label)) continue;
         size_t c = e->n_data;
         if (!*label)
-            return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"label of signal %zu\" is empty; every channel "
-                                "needs a name", e->path, s + 1);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: EDF header field \"label of signal %zu\" is empty; every channel "
+                                "needs a name",
+                                e->path, s + 1);
         for (size_t j = 0; j < c; j++)
             if (strcmp(b->names[j], label) == 0)
-                return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"label of signal %zu\" is \"%s\", which "
-                                    "another signal already uses", e->path, s + 1, label);
+                return bl_error_set(err, BL_ERR_INPUT,
+                                    "%s: EDF header field \"label of signal %zu\" is \"%s\", which "
+                                    "another signal already uses",
+                                    e->path, s + 1, label);
         if (c == 0) {
             e->spr = (size_t)spr;
             first_spr_signal = s;
         } else if ((size_t)spr != e->spr)
-            return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"samples per data record\": signal %zu (%s) has "
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: EDF header field \"samples per data record\": signal %zu (%s) has "
                                 "%.0f, signal %zu (%s) %zu, so their rates differ (%.10g and %.10g Hz); one rate per "
-                                "recording is needed", e->path, s + 1, label, spr, first_spr_signal + 1, b->names[0],
-                                e->spr, spr / duration, (double)e->spr / duration);
+                                "recording is needed",
+                                e->path, s + 1, label, spr, first_spr_signal + 1, b->names[0], e->spr, spr / duration,
+                                (double)e->spr / duration);
         if (v[F_DMAX] <= v[F_DMIN])
-            return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header fields \"digital minimum/maximum of signal %zu\" are "
-                                "%.17g and %.17g; the maximum must be larger", e->path, s + 1, v[F_DMIN], v[F_DMAX]);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: EDF header fields \"digital minimum/maximum of signal %zu\" are "
+                                "%.17g and %.17g; the maximum must be larger",
+                                e->path, s + 1, v[F_DMIN], v[F_DMAX]);
         if (v[F_PMAX] == v[F_PMIN])
-            return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header fields \"physical minimum/maximum of signal %zu\" are "
-                                "both %.17g", e->path, s + 1, v[F_PMIN]);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: EDF header fields \"physical minimum/maximum of signal %zu\" are "
+                                "both %.17g",
+                                e->path, s + 1, v[F_PMIN]);
         e->cal[c] = (v[F_PMAX] - v[F_PMIN]) / (v[F_DMAX] - v[F_DMIN]);
         e->off[c] = v[F_PMIN] - v[F_DMIN] * e->cal[c];
         e->dmin[c] = v[F_DMIN];
@@ -212,20 +222,25 @@ static bl_status check_length(edf_file *e, double nrec_field, long long *nrec, b
     long long held = data > 0 ? data / (long long)e->record_bytes : 0;
     if (nrec_field == -1) { /* the specification's "unknown": recording was not closed properly */
         if (held < 1 || data % (long long)e->record_bytes)
-            return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"number of data records\" is -1 (unknown) and "
-                                "the %lld data bytes are not a whole number of %zu-byte records", e->path, data,
-                                e->record_bytes);
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: EDF header field \"number of data records\" is -1 (unknown) and "
+                                "the %lld data bytes are not a whole number of %zu-byte records",
+                                e->path, data, e->record_bytes);
         *nrec = held;
         return BL_OK;
     }
     if (!(nrec_field >= 1) || nrec_field != floor(nrec_field))
-        return bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"number of data records\" is %.17g; a whole number "
-                            ">= 1 (or -1) is needed", e->path, nrec_field);
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: EDF header field \"number of data records\" is %.17g; a whole number "
+                            ">= 1 (or -1) is needed",
+                            e->path, nrec_field);
     if (nrec_field > (double)held)
-        return bl_error_set(err, BL_ERR_INPUT, "%s: truncated: EDF header field \"number of data records\" says %.0f "
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: truncated: EDF header field \"number of data records\" says %.0f "
                             "records of %zu bytes after a %lld-byte header, but the file holds %lld complete record%s "
-                            "(%lld bytes)", e->path, nrec_field, e->record_bytes, e->header_bytes, held,
-                            held == 1 ? "" : "s", (long long)sb.st_size);
+                            "(%lld bytes)",
+                            e->path, nrec_field, e->record_bytes, e->header_bytes, held, held == 1 ? "" : "s",
+                            (long long)sb.st_size);
     *nrec = (long long)nrec_field;
     return BL_OK;
 }
@@ -254,8 +269,10 @@ bl_status bl_trace_edf_open(const char *path, bl_trace_info *info, bl_trace_back
     int bdf = h[0] == 0xFF && memcmp(h + 1, "BIOSEMI", 7) == 0;
     field(h, 0, 8, text);
     if (!bdf && strcmp(text, "0") != 0) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"version\" is \"%.8s\"; \"0\" (EDF) or 0xFF \"BIOSEMI\" "
-                          "(BDF) is expected", path, text);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: EDF header field \"version\" is \"%.8s\"; \"0\" (EDF) or 0xFF \"BIOSEMI\" "
+                          "(BDF) is expected",
+                          path, text);
         goto fail;
     }
     e->bytes = bdf ? 3 : 2;
@@ -270,25 +287,32 @@ bl_status bl_trace_edf_open(const char *path, bl_trace_info *info, bl_trace_back
     field(h, 252, 4, text);
     if ((st = number_field(path, "number of signals", text, &ns_d, err))) goto fail;
     if (!(ns_d >= 1) || ns_d != floor(ns_d) || ns_d > 100000) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"number of signals\" is \"%s\"; a whole number >= 1 is "
-                          "needed", path, text);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: EDF header field \"number of signals\" is \"%s\"; a whole number >= 1 is "
+                          "needed",
+                          path, text);
         goto fail;
     }
     ns = (size_t)ns_d;
     if (hb != 256.0 * (double)(ns + 1)) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"number of bytes in header record\" is %.17g, but %zu "
-                          "signals need 256 * (%zu + 1) = %zu", path, hb, ns, ns, 256 * (ns + 1));
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: EDF header field \"number of bytes in header record\" is %.17g, but %zu "
+                          "signals need 256 * (%zu + 1) = %zu",
+                          path, hb, ns, ns, 256 * (ns + 1));
         goto fail;
     }
     if (strncmp(reserved, "EDF+D", 5) == 0 || strncmp(reserved, "BDF+D", 5) == 0) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"reserved\" is \"%s\": a discontinuous recording has gaps "
-                          "between data records, so onsets cannot be turned into samples; export it as continuous (EDF+C)",
-                          path, reserved);
+        st = bl_error_set(
+            err, BL_ERR_INPUT,
+            "%s: EDF header field \"reserved\" is \"%s\": a discontinuous recording has gaps "
+            "between data records, so onsets cannot be turned into samples; export it as continuous (EDF+C)",
+            path, reserved);
         goto fail;
     }
     if (!(duration > 0)) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: EDF header field \"duration of a data record\" is %.17g s; it must be > 0",
-                          path, duration);
+        st = bl_error_set(err, BL_ERR_INPUT,
+                          "%s: EDF header field \"duration of a data record\" is %.17g s; it must be > 0", path,
+                          duration);
         goto fail;
     }
     e->header_bytes = (long long)hb;
@@ -304,7 +328,8 @@ bl_status bl_trace_edf_open(const char *path, bl_trace_info *info, bl_trace_back
     if ((st = read_signals(e, sh, ns, duration, info, b, err))) goto fail;
     long long nrec = 0;
     if ((st = check_length(e, nrec_field, &nrec, err))) goto fail;
-    if (!(b->clip_lo = malloc(e->n_data * sizeof *b->clip_lo)) || !(b->clip_hi = malloc(e->n_data * sizeof *b->clip_hi))) {
+    if (!(b->clip_lo = malloc(e->n_data * sizeof *b->clip_lo)) ||
+        !(b->clip_hi = malloc(e->n_data * sizeof *b->clip_hi))) {
         st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", path);
         goto fail;
     }
@@ -319,8 +344,11 @@ bl_status bl_trace_edf_open(const char *path, bl_trace_info *info, bl_trace_back
     }
     info->frames = (int64_t)nrec * (int64_t)e->spr;
     info->clip_lo = info->clip_hi = NAN;
-    snprintf(info->format, sizeof info->format, "%s, %d-bit", bdf ? (strncmp(reserved, "BDF+", 4) == 0 ? "BDF+" : "BDF")
-             : strncmp(reserved, "EDF+", 4) == 0 ? "EDF+" : "EDF", bdf ? 24 : 16);
+    snprintf(info->format, sizeof info->format, "%s, %d-bit",
+             bdf                                 ? (strncmp(reserved, "BDF+", 4) == 0 ? "BDF+" : "BDF")
+             : strncmp(reserved, "EDF+", 4) == 0 ? "EDF+"
+                                                 : "EDF",
+             bdf ? 24 : 16);
     free(sh);
     b->impl = e;
     b->read = edf_read;

@@ -192,24 +192,31 @@ static bl_status electrode_names(const char *path, hid_t file, hid_t series, con
         char **all = calloc(n_rows ? n_rows : 1, sizeof *all);
         if (csp >= 0) H5Sclose(csp);
         if (!all || cd < 0 || !read_strings(cd, n_rows, all))
-            st = bl_error_set(err, BL_ERR_INPUT, "%s: cannot read the electrodes table's \"%s\" column as text", path, column);
+            st = bl_error_set(err, BL_ERR_INPUT, "%s: cannot read the electrodes table's \"%s\" column as text", path,
+                              column);
         else if (!(b->names = calloc(channels, sizeof *b->names)))
             st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", path);
         for (size_t c = 0; !st && c < channels; c++) {
             if (rows[c] < 0 || (size_t)rows[c] >= n_rows) {
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/electrodes[%zu] = %lld, outside the electrodes table (%zu "
-                                  "rows)", path, where, c, rows[c], n_rows);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s: %s/electrodes[%zu] = %lld, outside the electrodes table (%zu "
+                                  "rows)",
+                                  path, where, c, rows[c], n_rows);
                 break;
             }
             const char *name = all[rows[c]];
             for (size_t j = 0; j < c && !st; j++)
                 if (strcmp(b->names[j], name) == 0)
-                    st = bl_error_set(err, BL_ERR_INPUT, "%s: channels %zu and %zu of %s are both named \"%s\" in the "
-                                      "electrodes table's \"%s\" column", path, j + 1, c + 1, where, name, column);
+                    st = bl_error_set(err, BL_ERR_INPUT,
+                                      "%s: channels %zu and %zu of %s are both named \"%s\" in the "
+                                      "electrodes table's \"%s\" column",
+                                      path, j + 1, c + 1, where, name, column);
             if (!st && !*name)
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: channel %zu of %s has an empty \"%s\" in the electrodes table",
-                                  path, c + 1, where, column);
-            if (!st && !(b->names[c] = bl_strdup(name))) st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", path);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s: channel %zu of %s has an empty \"%s\" in the electrodes table", path, c + 1,
+                                  where, column);
+            if (!st && !(b->names[c] = bl_strdup(name)))
+                st = bl_error_set(err, BL_ERR_NOMEM, "%s: out of memory", path);
         }
         bl_trace_strings_free(all, n_rows);
         if (cd >= 0) H5Dclose(cd);
@@ -234,28 +241,30 @@ static bl_status series_rate(const char *path, hid_t series, const char *where, 
         *rate = d >= 0 ? number_attr(d, "rate", NAN) : NAN;
         if (d >= 0) H5Dclose(d);
         if (!(*rate > 0) || !isfinite(*rate))
-            return bl_error_set(err, BL_ERR_INPUT, "%s: %s/starting_time has no attribute \"rate\" > 0 (got %.17g)", path,
-                                where, *rate);
+            return bl_error_set(err, BL_ERR_INPUT, "%s: %s/starting_time has no attribute \"rate\" > 0 (got %.17g)",
+                                path, where, *rate);
         return BL_OK;
     }
     if (H5Lexists(series, "timestamps", H5P_DEFAULT) <= 0)
-        return bl_error_set(err, BL_ERR_INPUT, "%s: %s has neither starting_time (with rate) nor timestamps", path, where);
+        return bl_error_set(err, BL_ERR_INPUT, "%s: %s has neither starting_time (with rate) nor timestamps", path,
+                            where);
     hid_t d = H5Dopen2(series, "timestamps", H5P_DEFAULT), sp = d >= 0 ? H5Dget_space(d) : -1;
     hssize_t n = sp >= 0 ? H5Sget_simple_extent_npoints(sp) : -1;
     double *t = n == frames && n >= 2 ? malloc((size_t)n * sizeof *t) : NULL;
     bl_status st = BL_OK;
     if (n != frames || n < 2)
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/timestamps has %lld entries but data has %lld samples", path, where,
-                          (long long)n, (long long)frames);
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/timestamps has %lld entries but data has %lld samples", path,
+                          where, (long long)n, (long long)frames);
     else if (!t || H5Dread(d, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, t) < 0)
         st = bl_error_set(err, BL_ERR_INPUT, "%s: cannot read %s/timestamps as numbers", path, where);
     else {
         *rate = (double)(n - 1) / (t[n - 1] - t[0]);
         for (hssize_t i = 0; i < n && !st; i++)
             if (!(fabs(t[i] - t[0] - (double)i / *rate) <= 0.01 / *rate))
-                st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/timestamps[%lld] = %.17g is not on the even grid of %.10g Hz "
-                                  "from %.17g s; windows need a constant rate", path, where, (long long)i, t[i], *rate,
-                                  t[0]);
+                st = bl_error_set(err, BL_ERR_INPUT,
+                                  "%s: %s/timestamps[%lld] = %.17g is not on the even grid of %.10g Hz "
+                                  "from %.17g s; windows need a constant rate",
+                                  path, where, (long long)i, t[i], *rate, t[0]);
     }
     free(t);
     if (sp >= 0) H5Sclose(sp);
@@ -263,8 +272,7 @@ static bl_status series_rate(const char *path, hid_t series, const char *where, 
     return st;
 }
 
-static bl_status choose_series(const char *path, const char *want, hid_t file, char *where, size_t size,
-                               bl_error *err)
+static bl_status choose_series(const char *path, const char *want, hid_t file, char *where, size_t size, bl_error *err)
 {
     series_list l;
     l.n = 0;
@@ -280,9 +288,11 @@ static bl_status choose_series(const char *path, const char *want, hid_t file, c
             if (full || tail) pick = i, hits++;
         }
         if (hits != 1)
-            return bl_error_set(err, BL_ERR_INPUT, "key \"recordings.series\": \"%s\" matches %zu of the %zu "
-                                "ElectricalSeries in %s (%s%s%s%s)", want, hits, l.n, path, l.found[0], l.n > 1 ? ", " : "",
-                                l.n > 1 ? l.found[1] : "", l.n > 2 ? ", ..." : "");
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "key \"recordings.series\": \"%s\" matches %zu of the %zu "
+                                "ElectricalSeries in %s (%s%s%s%s)",
+                                want, hits, l.n, path, l.found[0], l.n > 1 ? ", " : "", l.n > 1 ? l.found[1] : "",
+                                l.n > 2 ? ", ..." : "");
         snprintf(where, size, "%s", l.found[pick]);
         return BL_OK;
     }
@@ -326,16 +336,16 @@ bl_status bl_trace_nwb_open(const char *path, bl_trace_info *info, bl_trace_back
     hsize_t dims[2] = {0, 1};
     int rank = w->space >= 0 ? H5Sget_simple_extent_ndims(w->space) : -1;
     if (rank < 1 || rank > 2 || H5Sget_simple_extent_dims(w->space, dims, NULL) < 0 || dims[0] < 1 || dims[1] < 1) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/data has %d dimensions; [time] or [time, channel] is expected", path,
-                          where, rank);
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/data has %d dimensions; [time] or [time, channel] is expected",
+                          path, where, rank);
         goto fail;
     }
     w->channels = rank == 2 ? (size_t)dims[1] : 1;
     w->conversion = number_attr(w->data, "conversion", 1.0);
     w->offset = number_attr(w->data, "offset", 0.0);
     if (!isfinite(w->conversion) || w->conversion == 0 || !isfinite(w->offset)) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/data attributes conversion = %.17g, offset = %.17g are not usable", path,
-                          where, w->conversion, w->offset);
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: %s/data attributes conversion = %.17g, offset = %.17g are not usable",
+                          path, where, w->conversion, w->offset);
         goto fail;
     }
     char unit[64];

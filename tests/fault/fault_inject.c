@@ -73,7 +73,9 @@ static int fault_now(int k)
     return fail;
 }
 
-#define REAL(name) static __typeof__(&name) real_##name; if (!real_##name) real_##name = (__typeof__(&name))dlsym(RTLD_NEXT, #name)
+#define REAL(name)                                                                                                     \
+    static __typeof__(&name) real_##name;                                                                              \
+    if (!real_##name) real_##name = (__typeof__(&name))dlsym(RTLD_NEXT, #name)
 
 /* dlsym itself may call calloc: serve those early requests from a small static arena. */
 static char early_arena[4096];
@@ -123,8 +125,8 @@ static int exempt_caller(void *ret)
     f = f ? f + 1 : info.dli_fname;
     /* libsndfile's codecs too (libFLAC, libvorbis, libogg, libopus, libmpg123): their failures surface as
      * "decoder error" without saying memory ran out */
-    static const char *const exempt[] = {"libc.so", "libgomp", "libsndfile", "libFLAC", "libvorbis", "libogg",
-                                         "libopus", "libmpg123", "libmp3lame"};
+    static const char *const exempt[] = {"libc.so", "libgomp", "libsndfile", "libFLAC",   "libvorbis",
+                                         "libogg",  "libopus", "libmpg123",  "libmp3lame"};
     for (size_t i = 0; i < sizeof exempt / sizeof exempt[0]; i++)
         if (strncmp(f, exempt[i], strlen(exempt[i])) == 0) return 1;
     return 0;
@@ -134,7 +136,10 @@ void *malloc(size_t n)
 {
     if (in_dlsym) return early_alloc(n);
     resolve_alloc();
-    if (!exempt_caller(__builtin_return_address(0)) && fault_now(F_MALLOC)) { errno = ENOMEM; return NULL; }
+    if (!exempt_caller(__builtin_return_address(0)) && fault_now(F_MALLOC)) {
+        errno = ENOMEM;
+        return NULL;
+    }
     return real_malloc_p(n);
 }
 
@@ -146,7 +151,10 @@ void *calloc(size_t a, size_t b)
         return p;
     }
     resolve_alloc();
-    if (!exempt_caller(__builtin_return_address(0)) && fault_now(F_MALLOC)) { errno = ENOMEM; return NULL; }
+    if (!exempt_caller(__builtin_return_address(0)) && fault_now(F_MALLOC)) {
+        errno = ENOMEM;
+        return NULL;
+    }
     return real_calloc_p(a, b);
 }
 
@@ -158,7 +166,10 @@ void *realloc(void *p, size_t n)
         if (q) memcpy(q, p, n < 64 ? n : 64);
         return q;
     }
-    if (!exempt_caller(__builtin_return_address(0)) && fault_now(F_MALLOC)) { errno = ENOMEM; return NULL; }
+    if (!exempt_caller(__builtin_return_address(0)) && fault_now(F_MALLOC)) {
+        errno = ENOMEM;
+        return NULL;
+    }
     return real_realloc_p(p, n);
 }
 
@@ -172,55 +183,79 @@ void free(void *p)
 FILE *fopen(const char *path, const char *mode)
 {
     REAL(fopen);
-    if (fault_now(F_FOPEN)) { errno = EIO; return NULL; }
+    if (fault_now(F_FOPEN)) {
+        errno = EIO;
+        return NULL;
+    }
     return real_fopen(path, mode);
 }
 
 FILE *fopen64(const char *path, const char *mode)
 {
     REAL(fopen64);
-    if (fault_now(F_FOPEN)) { errno = EIO; return NULL; }
+    if (fault_now(F_FOPEN)) {
+        errno = EIO;
+        return NULL;
+    }
     return real_fopen64(path, mode);
 }
 
 ssize_t write(int fd, const void *buf, size_t n)
 {
     REAL(write);
-    if (fd > 2 && fault_now(F_WRITE)) { errno = ENOSPC; return -1; }
+    if (fd > 2 && fault_now(F_WRITE)) {
+        errno = ENOSPC;
+        return -1;
+    }
     return real_write(fd, buf, n);
 }
 
 ssize_t read(int fd, void *buf, size_t n)
 {
     REAL(read);
-    if (fd > 2 && fault_now(F_READ)) { errno = EIO; return -1; }
+    if (fd > 2 && fault_now(F_READ)) {
+        errno = EIO;
+        return -1;
+    }
     return real_read(fd, buf, n);
 }
 
 int fsync(int fd)
 {
     REAL(fsync);
-    if (fault_now(F_FSYNC)) { errno = EIO; return -1; }
+    if (fault_now(F_FSYNC)) {
+        errno = EIO;
+        return -1;
+    }
     return real_fsync(fd);
 }
 
 int rename(const char *a, const char *b)
 {
     REAL(rename);
-    if (fault_now(F_RENAME)) { errno = EIO; return -1; }
+    if (fault_now(F_RENAME)) {
+        errno = EIO;
+        return -1;
+    }
     return real_rename(a, b);
 }
 
 int renameat2(int olddirfd, const char *a, int newdirfd, const char *b, unsigned int flags)
 {
     REAL(renameat2);
-    if (fault_now(F_RENAME)) { errno = EIO; return -1; }
+    if (fault_now(F_RENAME)) {
+        errno = EIO;
+        return -1;
+    }
     return real_renameat2(olddirfd, a, newdirfd, b, flags);
 }
 
 int mkdir(const char *path, mode_t mode)
 {
     REAL(mkdir);
-    if (fault_now(F_MKDIR)) { errno = EACCES; return -1; }
+    if (fault_now(F_MKDIR)) {
+        errno = EACCES;
+        return -1;
+    }
     return real_mkdir(path, mode);
 }

@@ -69,8 +69,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         put(a, data + 1, head);
         put(kind == 2 ? b : c, zero ? zero + 1 : data + size, zero ? size - 1 - head - 1 : 0);
         if (kind == 2) read_some(a);
-        else if (bl_events_table_read(c, &tab, &err) == BL_OK)
-            bl_table_destroy(tab);
+        else if (bl_events_table_read(c, &tab, &err) == BL_OK) bl_table_destroy(tab);
         unlink(a);
         unlink(b);
         unlink(c);
