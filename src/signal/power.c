@@ -788,47 +788,15 @@ static void warn_window_confound(const bl_study *s, const bl_trials *t, const jo
                         s->power.to, 100.0 * (double)count / (double)n_jobs, count, n_jobs, s->power.to);
 }
 
-bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_power_result **out, bl_warnings *warn,
-                           bl_error *err)
+/* Alignment time (align[row], s) and recording of each kept trial: one job per windowed trial. */
+static bl_status plan_jobs(const bl_study *s, const bl_trials *t, bl_power_result *r, int c_onset, job *jobs,
+                           size_t *n_jobs_out, double *align, bl_error *err)
 {
-    *out = NULL;
-    if (!s->has_power || !s->has_recordings)
-        return bl_error_set(err, BL_ERR_INPUT, "%s: the study has no \"recordings\" and \"power\" sections", s->path);
-    bl_status st = BL_OK;
-    bl_montage *m = NULL;
-    bl_welch_plan *plan = NULL;
-    job *jobs = NULL;
-    item *items = NULL;
-    const char **reason = NULL;
-    spectra_acc acc = {0};
-    size_t n_jobs = 0, n_items = 0;
+    size_t n = t->n, n_jobs = 0;
     any_cache_t any_cache = {NULL, NULL};
-    bl_power_result *r = calloc(1, sizeof *r);
-    if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
-    if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
-    if ((st = bl_montage_parse((const char *const *)s->recordings.channels, s->recordings.n_channels,
-                               "recordings.channels", &m, err)))
-        goto fail;
-    int c_onset = bl_table_find(t->table, s->recordings.onset);
-    if (c_onset < 0) {
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: column \"%s\" (recordings.onset) is not in the trial table",
-                          t->table->path, s->recordings.onset);
-        goto fail;
-    }
-    size_t n = t->n;
-    r->n_trials = n;
-    jobs = malloc((n ? n : 1) * sizeof *jobs);
-    reason = calloc(n ? n : 1, sizeof *reason);
-    if (!jobs || !reason) goto nomem;
-
-    /* alignment time and recording of each kept trial */
-    double *align = malloc((n ? n : 1) * sizeof *align);
     char **paths = calloc(n ? n : 1, sizeof *paths);
-    if (!align || !paths) {
-        free(align);
-        free(paths);
-        goto nomem;
-    }
+    if (!paths) return bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
+    bl_status st = BL_OK;
     for (size_t i = 0; i < n && !st; i++) {
         if (t->excluded[i]) continue;
         double onset = 0;
@@ -847,109 +815,95 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     else
         for (size_t k = 0; k < n_jobs; k++) free(paths[k]);
     free(paths);
-    if (st) {
-        free(align);
-        goto fail;
-    }
+    free(any_cache.pattern);
+    free(any_cache.path);
+    *n_jobs_out = n_jobs;
+    return st;
+}
 
-    /* sampling rate: the study's, or the first recording's */
+/* The sampling rate: the study's, or the first recording's. */
+static bl_status find_rate(const bl_study *s, const bl_trials *t, bl_power_result *r, const job *jobs, size_t n_jobs,
+                           bl_error *err)
+{
     if (isfinite(s->recordings.rate)) {
         r->fs = s->recordings.rate;
-    } else if (n_jobs) {
-        bl_trace *tr = NULL;
-        bl_error e = {0};
-        size_t row = jobs[0].row;
-        if ((st = bl_trace_open_series(r->recordings[0].path, NAN, s->recordings.series, &tr, &e))) {
-            bl_error_set(err, st, "participant %s, trial %s: %s", t->participants[t->participant[row]],
-                         t->trial_label[row], e.message);
-            free(align);
-            goto fail;
-        }
-        r->fs = bl_trace_get_info(tr)->rate;
-        bl_trace_close(tr);
-    } else {
-        free(align);
-        st = bl_error_set(err, BL_ERR_INPUT, "%s: no trial is left to window (every trial is excluded)",
-                          t->table->path);
-        goto fail;
+        return BL_OK;
     }
+    if (!n_jobs)
+        return bl_error_set(err, BL_ERR_INPUT, "%s: no trial is left to window (every trial is excluded)",
+                            t->table->path);
+    bl_trace *tr = NULL;
+    bl_error e = {0};
+    size_t row = jobs[0].row;
+    bl_status st = bl_trace_open_series(r->recordings[0].path, NAN, s->recordings.series, &tr, &e);
+    if (st)
+        return bl_error_set(err, st, "participant %s, trial %s: %s", t->participants[t->participant[row]],
+                            t->trial_label[row], e.message);
+    r->fs = bl_trace_get_info(tr)->rate;
+    bl_trace_close(tr);
+    return BL_OK;
+}
+
+/* Window and Welch segment in samples, and each job's first sample. Range checks come before rounding to
+ * 64-bit sample indices (llround of a value out of range is undefined). */
+static bl_status window_geometry(const bl_study *s, const bl_trials *t, bl_power_result *r, job *jobs, size_t n_jobs,
+                                 const double *align, bl_error *err)
+{
     double fs = r->fs;
-    /* Range checks before rounding to 64-bit sample indices (llround of a value out of range is undefined). */
     if (!(fs > 0 && fabs(s->power.from * fs) < 0x1p62 && fabs(s->power.to * fs) < 0x1p62 &&
-          (s->power.to - s->power.from) * fs <= (double)BL_MAX_WINDOW_SAMPLES)) {
-        free(align);
-        st = bl_error_set(err, BL_ERR_INPUT,
-                          "%s: key \"power.window\": from %.10g s to %.10g s is %.6g samples at %.10g Hz; at most %d "
-                          "samples fit in a window",
-                          s->path, s->power.from, s->power.to, (s->power.to - s->power.from) * fs, fs,
-                          BL_MAX_WINDOW_SAMPLES);
-        goto fail;
-    }
+          (s->power.to - s->power.from) * fs <= (double)BL_MAX_WINDOW_SAMPLES))
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: key \"power.window\": from %.10g s to %.10g s is %.6g samples at %.10g Hz; at most "
+                            "%d samples fit in a window",
+                            s->path, s->power.from, s->power.to, (s->power.to - s->power.from) * fs, fs,
+                            BL_MAX_WINDOW_SAMPLES);
     long long a = llround(s->power.from * fs), b = llround(s->power.to * fs);
     r->window_samples = b > a ? (size_t)(b - a) : 0;
     r->nperseg = (size_t)llround(s->power.segment * fs);
     if (r->nperseg > r->window_samples && r->nperseg <= r->window_samples + 1) r->nperseg = r->window_samples;
-    if (r->window_samples < 2 || r->nperseg < 2) {
-        free(align);
-        st = bl_error_set(
-            err, BL_ERR_INPUT,
-            "%s: key \"power.segment\": %.6g s is %zu samples at %.10g Hz (window %zu samples); at least 2 "
-            "are needed",
-            s->path, s->power.segment, r->nperseg, fs, r->window_samples);
-        goto fail;
-    }
+    if (r->window_samples < 2 || r->nperseg < 2)
+        return bl_error_set(err, BL_ERR_INPUT,
+                            "%s: key \"power.segment\": %.6g s is %zu samples at %.10g Hz (window %zu samples); at "
+                            "least 2 are needed",
+                            s->path, s->power.segment, r->nperseg, fs, r->window_samples);
     r->noverlap = (size_t)llround(s->power.overlap * (double)r->nperseg);
     if (r->noverlap >= r->nperseg) r->noverlap = r->nperseg - 1;
     r->nfft = r->nperseg;
     for (size_t k = 0; k < n_jobs; k++) {
         size_t row = jobs[k].row;
-        if (!(fabs(align[row] * fs) < 0x1p62)) { /* onset (+ rt) too large to be a sample index */
-            st = bl_error_set(err, BL_ERR_INPUT,
-                              "%s:%zu: column \"%s\" (recordings.onset)%s: %.10g s is sample %.6g at %.10g Hz, beyond "
-                              "any recording",
-                              t->table->path ? t->table->path : "trials", t->table->line[row], s->recordings.onset,
-                              s->power.align == BL_ALIGN_RESPONSE ? " + rt" : "", align[row], align[row] * fs, fs);
-            free(align);
-            goto fail;
-        }
+        if (!(fabs(align[row] * fs) < 0x1p62)) /* onset (+ rt) too large to be a sample index */
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s:%zu: column \"%s\" (recordings.onset)%s: %.10g s is sample %.6g at %.10g Hz, "
+                                "beyond any recording",
+                                t->table->path ? t->table->path : "trials", t->table->line[row], s->recordings.onset,
+                                s->power.align == BL_ALIGN_RESPONSE ? " + rt" : "", align[row], align[row] * fs, fs);
         jobs[k].start = llround(align[row] * fs) + a;
     }
-    free(align);
-    warn_window_confound(s, t, jobs, n_jobs, r, warn);
+    return BL_OK;
+}
 
-    if ((st = bl_welch_plan_create(fs, r->nperseg, r->noverlap, r->nfft, s->power.detrend,
-                                   s->power.median ? BL_WELCH_MEDIAN : BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, err)))
-        goto fail;
-    r->df = bl_welch_df(plan);
-    r->n_freqs = bl_welch_n_freqs(plan);
-    r->n_segments = bl_welch_n_segments(plan, r->window_samples);
-    size_t lpf = bl_largest_prime_factor(r->nperseg);
-    if (lpf > 7)
-        bl_warnings_add(warn,
-                        "segment length %zu samples has the prime factor %zu, which makes the FFT slow; %zu samples "
-                        "(power.segment = %.10g s) would be fast",
-                        r->nperseg, lpf, bl_next_fast_size(r->nperseg), (double)bl_next_fast_size(r->nperseg) / fs);
-
-    /* frequency grid and bands */
+/* The frequency grid and each band's bins (line-noise bins left out); warnings for thin or low bands. */
+static bl_status make_bands(const bl_study *s, bl_power_result *r, bl_warnings *warn, bl_error *err)
+{
+    double fs = r->fs;
     if (!(r->freq = malloc(r->n_freqs * sizeof *r->freq)) ||
         !(r->bands = calloc(s->power.n_bands ? s->power.n_bands : 1, sizeof *r->bands)))
-        goto nomem;
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
     r->n_bands = s->power.n_bands; /* only now: bl_power_result_destroy walks n_bands entries */
     for (size_t j = 0; j < r->n_freqs; j++) r->freq[j] = (double)j * r->df;
     double guard = fmax(2.0 * r->df, 2.0);
     for (size_t k = 0; k < r->n_bands; k++) {
         const bl_band_spec *bs = &s->power.bands[k];
         bl_power_band *pb = &r->bands[k];
-        if (!(pb->name = bl_strdup(bs->name)) || !(pb->used = calloc(r->n_freqs, 1))) goto nomem;
+        if (!(pb->name = bl_strdup(bs->name)) || !(pb->used = calloc(r->n_freqs, 1)))
+            return bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
         pb->lo = bs->lo;
         pb->hi = bs->hi;
-        if (bs->hi > fs / 2) {
-            st = bl_error_set(err, BL_ERR_INPUT,
-                              "%s: key \"power.bands.%s\": the band [%.10g, %.10g] Hz reaches above the Nyquist "
-                              "frequency %.10g Hz of the recordings",
-                              s->path, bs->name, bs->lo, bs->hi, fs / 2);
-            goto fail;
-        }
+        if (bs->hi > fs / 2)
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: key \"power.bands.%s\": the band [%.10g, %.10g] Hz reaches above the Nyquist "
+                                "frequency %.10g Hz of the recordings",
+                                s->path, bs->name, bs->lo, bs->hi, fs / 2);
         bl_band_bins(r->df, r->n_freqs, bs->lo, bs->hi, &pb->first_bin, &pb->last_bin);
         for (size_t j = pb->first_bin; j <= pb->last_bin && pb->first_bin <= pb->last_bin; j++) {
             int keep = 1;
@@ -959,14 +913,12 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
             pb->used[j] = (unsigned char)keep;
             pb->n_bins += (size_t)keep;
         }
-        if (pb->n_bins == 0) {
-            st = bl_error_set(err, BL_ERR_INPUT,
-                              "%s: key \"power.bands.%s\": no frequency bin in [%.10g, %.10g] Hz at a resolution of "
-                              "%.6g Hz%s; widen the band or lengthen power.segment",
-                              s->path, bs->name, bs->lo, bs->hi, r->df,
-                              s->power.line_noise > 0 ? " (after leaving out line-noise bins)" : "");
-            goto fail;
-        }
+        if (pb->n_bins == 0)
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: key \"power.bands.%s\": no frequency bin in [%.10g, %.10g] Hz at a resolution of "
+                                "%.6g Hz%s; widen the band or lengthen power.segment",
+                                s->path, bs->name, bs->lo, bs->hi, r->df,
+                                s->power.line_noise > 0 ? " (after leaving out line-noise bins)" : "");
         if (pb->n_bins < 2)
             bl_warnings_add(warn,
                             "band %s [%g, %g] Hz holds only %zu frequency bin at %.6g Hz resolution; lengthen "
@@ -978,40 +930,60 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
                             "detrending biases the PSD low",
                             bs->name, pb->first_bin, r->freq[pb->first_bin], r->df);
     }
-    if (!(r->band_power = malloc(2 * (n ? n : 1) * (r->n_bands ? r->n_bands : 1) * sizeof *r->band_power))) goto nomem;
-    /* the second half of the block: flagged trials' power, which the regressors never see */
-    r->artifact_power = r->band_power + (n ? n : 1) * (r->n_bands ? r->n_bands : 1);
-    for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = r->artifact_power[k] = NAN;
-    /* per row: its recording and its window's peak-to-peak amplitude (the check's breakdown and scale hints) */
-    if (!(r->row_recording = malloc((n ? n : 1) * sizeof *r->row_recording)) ||
-        !(r->row_ptp = malloc((n ? n : 1) * sizeof *r->row_ptp)))
-        goto nomem;
-    for (size_t k = 0; k < n; k++) r->row_recording[k] = SIZE_MAX, r->row_ptp[k] = NAN;
-    if ((st = spectra_setup(s, t, r, &acc, err))) goto fail;
+    return BL_OK;
+}
 
-    /* work items: chunks of trials of one recording, in a fixed order */
+/* Per-row outputs, NAN until computed: band power, flagged trials' power (the second half of the block, which
+ * the regressors never see), each row's recording and its window's peak-to-peak amplitude (the check's
+ * breakdown and scale hints). */
+static bl_status alloc_rows(bl_power_result *r, size_t n, bl_error *err)
+{
+    size_t nb = r->n_bands ? r->n_bands : 1;
+    if (!(r->band_power = malloc(2 * (n ? n : 1) * nb * sizeof *r->band_power)) ||
+        !(r->row_recording = malloc((n ? n : 1) * sizeof *r->row_recording)) ||
+        !(r->row_ptp = malloc((n ? n : 1) * sizeof *r->row_ptp)))
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
+    r->artifact_power = r->band_power + (n ? n : 1) * nb;
+    for (size_t k = 0; k < n * r->n_bands; k++) r->band_power[k] = r->artifact_power[k] = NAN;
+    for (size_t k = 0; k < n; k++) r->row_recording[k] = SIZE_MAX, r->row_ptp[k] = NAN;
+    return BL_OK;
+}
+
+/* Work items: chunks of trials of one recording, in a fixed order. */
+static bl_status make_items(job *jobs, size_t n_jobs, item **items_out, size_t *n_items, bl_error *err)
+{
     qsort(jobs, n_jobs, sizeof *jobs, job_cmp);
-    if (!(items = calloc(n_jobs ? n_jobs : 1, sizeof *items))) goto nomem;
+    item *items = calloc(n_jobs ? n_jobs : 1, sizeof *items);
+    if (!items) return bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
+    *n_items = 0;
     for (size_t k = 0; k < n_jobs;) {
         size_t e = k;
         while (e < n_jobs && jobs[e].rec == jobs[k].rec && e - k < CHUNK_TRIALS) e++;
-        items[n_items].rec = jobs[k].rec;
-        items[n_items].begin = k;
-        items[n_items].end = e;
-        n_items++;
+        items[*n_items].rec = jobs[k].rec;
+        items[*n_items].begin = k;
+        items[*n_items].end = e;
+        (*n_items)++;
         k = e;
     }
-    if ((st = compute_blocks(s, r, t, m, plan, jobs, items, n_items, threads, reason, &acc, err))) goto fail;
+    *items_out = items;
+    return BL_OK;
+}
+
+/* Flagged trials excluded with their reason, regressors added, excluded trials' band power NAN; warnings. */
+static bl_status finish_trials(const bl_study *s, bl_trials *t, bl_power_result *r, const char **reason, size_t n_jobs,
+                               const spectra_acc *acc, bl_warnings *warn, bl_error *err)
+{
+    size_t n = t->n;
     for (size_t i = 0; i < n; i++)
         if (reason[i]) {
             bl_trials_exclude(t, i, reason[i]);
             r->n_artifacts++;
         }
-    /* excluded trials keep NAN band power */
-    for (size_t i = 0; i < n; i++)
+    for (size_t i = 0; i < n; i++) /* excluded trials keep NAN band power */
         if (t->excluded[i])
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
-    if ((st = add_regressors(s, t, r, &acc, warn, err))) goto fail;
+    bl_status st = add_regressors(s, t, r, acc, warn, err);
+    if (st) return st;
     for (size_t i = 0; i < n; i++)
         if (t->excluded[i])
             for (size_t k = 0; k < r->n_bands; k++) r->band_power[i * r->n_bands + k] = NAN;
@@ -1025,29 +997,77 @@ bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_powe
     if (r->n_artifacts)
         bl_warnings_add(warn, "%zu of %zu windowed trials were flagged as artifacts and left out", r->n_artifacts,
                         n_jobs);
-
-    free(items);
-    free(jobs);
-    free(reason);
-    spectra_acc_free(&acc);
-    free(any_cache.pattern);
-    free(any_cache.path);
-    bl_montage_destroy(m);
-    bl_welch_plan_destroy(plan);
-    *out = r;
     return BL_OK;
+}
+
+bl_status bl_power_compute(const bl_study *s, bl_trials *t, int threads, bl_power_result **out, bl_warnings *warn,
+                           bl_error *err)
+{
+    *out = NULL;
+    if (!s->has_power || !s->has_recordings)
+        return bl_error_set(err, BL_ERR_INPUT, "%s: the study has no \"recordings\" and \"power\" sections", s->path);
+    bl_status st = BL_OK;
+    bl_montage *m = NULL;
+    bl_welch_plan *plan = NULL;
+    job *jobs = NULL;
+    item *items = NULL;
+    const char **reason = NULL;
+    double *align = NULL;
+    spectra_acc acc = {0};
+    size_t n = t->n, n_jobs = 0, n_items = 0;
+    bl_power_result *r = calloc(1, sizeof *r);
+    if (!r) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    r->n_trials = n;
+    if (!(r->unit = bl_strdup(s->recordings.unit))) goto nomem;
+    if ((st = bl_montage_parse((const char *const *)s->recordings.channels, s->recordings.n_channels,
+                               "recordings.channels", &m, err)))
+        goto fail;
+    int c_onset = bl_table_find(t->table, s->recordings.onset);
+    if (c_onset < 0) {
+        st = bl_error_set(err, BL_ERR_INPUT, "%s: column \"%s\" (recordings.onset) is not in the trial table",
+                          t->table->path, s->recordings.onset);
+        goto fail;
+    }
+    jobs = malloc((n ? n : 1) * sizeof *jobs);
+    reason = calloc(n ? n : 1, sizeof *reason);
+    align = malloc((n ? n : 1) * sizeof *align);
+    if (!jobs || !reason || !align) goto nomem;
+    if ((st = plan_jobs(s, t, r, c_onset, jobs, &n_jobs, align, err)) || (st = find_rate(s, t, r, jobs, n_jobs, err)) ||
+        (st = window_geometry(s, t, r, jobs, n_jobs, align, err)))
+        goto fail;
+    warn_window_confound(s, t, jobs, n_jobs, r, warn);
+    if ((st = bl_welch_plan_create(r->fs, r->nperseg, r->noverlap, r->nfft, s->power.detrend,
+                                   s->power.median ? BL_WELCH_MEDIAN : BL_WELCH_MEAN, BL_WELCH_DENSITY, &plan, err)))
+        goto fail;
+    r->df = bl_welch_df(plan);
+    r->n_freqs = bl_welch_n_freqs(plan);
+    r->n_segments = bl_welch_n_segments(plan, r->window_samples);
+    size_t lpf = bl_largest_prime_factor(r->nperseg);
+    if (lpf > 7)
+        bl_warnings_add(warn,
+                        "segment length %zu samples has the prime factor %zu, which makes the FFT slow; %zu samples "
+                        "(power.segment = %.10g s) would be fast",
+                        r->nperseg, lpf, bl_next_fast_size(r->nperseg), (double)bl_next_fast_size(r->nperseg) / r->fs);
+    if ((st = make_bands(s, r, warn, err)) || (st = alloc_rows(r, n, err)) ||
+        (st = spectra_setup(s, t, r, &acc, err)) || (st = make_items(jobs, n_jobs, &items, &n_items, err)) ||
+        (st = compute_blocks(s, r, t, m, plan, jobs, items, n_items, threads, reason, &acc, err)) ||
+        (st = finish_trials(s, t, r, reason, n_jobs, &acc, warn, err)))
+        goto fail;
+    goto done;
 nomem:
     st = bl_error_set(err, BL_ERR_NOMEM, "out of memory computing band power");
 fail:
+    bl_power_result_destroy(r);
+    r = NULL;
+done:
     free(items);
     free(jobs);
     free(reason);
+    free(align);
     spectra_acc_free(&acc);
-    free(any_cache.pattern);
-    free(any_cache.path);
     bl_montage_destroy(m);
     bl_welch_plan_destroy(plan);
-    bl_power_result_destroy(r);
+    *out = r;
     return st;
 }
 
