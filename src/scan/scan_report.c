@@ -91,7 +91,6 @@ bl_status bl_scan_write_report(const bl_scan_result *r, const char *study_path, 
           "participant &#215; condition cells (docs/scan.md). Outlined cells in the heat maps are significant after "
           "correction.</p>\n",
           f);
-    significant_cells(f, r);
     fputs("<h2 id=\"maps\">Heat maps</h2>\n", f);
     for (size_t t = 0; t < r->n_tests && !st; t++) {
         char name[300];
@@ -102,6 +101,7 @@ bl_status bl_scan_write_report(const bl_scan_result *r, const char *study_path, 
         esc(f, name);
         fputs("</figcaption>\n</figure>\n", f);
     }
+    significant_cells(f, r);
     bl_report_page_end(f, BL_VERSION_STRING, "scan.csv, scan_*.svg, power.csv, provenance.json");
     if (st) goto done;
     st = bl_outfile_commit(o, err);
