@@ -33,10 +33,12 @@ typedef struct {
     bl_fit_set *set;
 } study_fit;
 
-static void fill_predictions(bl_model_result *r, const bl_model *m, const double *coef, bl_likelihood *lik)
+static bl_status fill_predictions(bl_model_result *r, const bl_model *m, const double *coef, bl_likelihood *lik,
+                                  bl_error *err)
 {
-    double *tll = malloc(m->n * sizeof *tll);
-    if (tll) bl_likelihood_trials(lik, coef, tll);
+    double *tll = malloc((m->n ? m->n : 1) * sizeof *tll);
+    if (!tll) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the trial-wise predictions", m->name);
+    bl_likelihood_trials(lik, coef, tll);
     for (size_t k = 0; k < m->n; k++) {
         size_t row = m->row[k];
         bl_wiener_params p;
@@ -53,9 +55,10 @@ static void fill_predictions(bl_model_result *r, const bl_model *m, const double
         }
         r->p_upper[row] = pu;
         r->mean_rt[row] = mean;
-        r->trial_log_likelihood[row] = tll ? tll[k] : NAN;
+        r->trial_log_likelihood[row] = tll[k];
     }
     free(tll);
+    return BL_OK;
 }
 
 static void model_result_free(bl_model_result *r)
@@ -312,7 +315,8 @@ static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note,
         r->parameters += fr->parameters;
         r->trials += fr->trials;
         r->converged = r->converged && fr->converged;
-        fill_predictions(r, u->models[i], u->coef[i], u->liks[i]);
+        bl_status st = fill_predictions(r, u->models[i], u->coef[i], u->liks[i], err);
+        if (st) return st;
     }
     if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
         *nondecision_note = 1;

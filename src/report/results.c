@@ -128,7 +128,7 @@ static cJSON *model_json(const bl_model_result *r)
             ok = add_str(p, "participant", f->participant) &&
                  fit_fields(p, r->name, f, f->log_likelihood, f->parameters, f->trials, f->aic, f->bic, f->converged);
         }
-        cJSON *grp = cJSON_CreateArray();
+        cJSON *grp = ok ? cJSON_CreateArray() : NULL;
         ok = ok && add(o, "group", grp);
         for (size_t g = 0; ok && g < r->n_group; g++) {
             const bl_group_coefficient *c = &r->group[g];
@@ -179,11 +179,13 @@ static cJSON *model_json(const bl_model_result *r)
  * (the caller turns it into BL_ERR_NOMEM). */
 static cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenance, const bl_warnings *warnings)
 {
+    /* add() owns the item it is given (it deletes it when it cannot attach it), so each array is either
+     * handed to add() or deleted here, never both. */
     cJSON *root = cJSON_CreateObject(), *models = cJSON_CreateArray(), *warn = cJSON_CreateArray();
     int ok = root &&
              add(root, "mode", cJSON_CreateString(set->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled"));
-    ok = ok && add(root, "models", models);
-    if (!ok) cJSON_Delete(models);
+    if (ok) ok = add(root, "models", models);
+    else cJSON_Delete(models);
     for (size_t i = 0; ok && i < set->n_models; i++) {
         cJSON *m = model_json(&set->models[i]);
         ok = m && cJSON_AddItemToArray(models, m);
@@ -194,8 +196,8 @@ static cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenanc
         ok = add(root, "permutation", p) && add_num(p, "permutations", (double)set->permutations) &&
              add_num(p, "seed", (double)set->seed);
     }
-    ok = ok && add(root, "warnings", warn);
-    if (!ok && warn && !root) cJSON_Delete(warn);
+    if (ok) ok = add(root, "warnings", warn);
+    else cJSON_Delete(warn);
     for (size_t i = 0; ok && warnings && i < warnings->count; i++) {
         cJSON *s = cJSON_CreateString(warnings->items[i]);
         ok = s && cJSON_AddItemToArray(warn, s);
