@@ -509,144 +509,173 @@ done:
     return code;
 }
 
+/* The parameter options of the direct form and the slot of bl_wiener_params each one sets. */
+static const struct {
+    const char *opt;
+    int index;
+} popts[] = {{"--threshold", BL_THRESHOLD},
+             {"--drift", BL_DRIFT},
+             {"--nondecision", BL_NONDECISION},
+             {"--start", BL_START},
+             {"--drift-sd", BL_DRIFT_SD},
+             {"--start-range", BL_START_RANGE},
+             {"--nondecision-range", BL_NONDECISION_RANGE},
+             {"--contamination", BL_CONTAMINATION}};
+enum { NPOPT = sizeof popts / sizeof popts[0] };
+
+/* The options of the direct form (parameter values given on the command line). */
+typedef struct {
+    bl_wiener_params par;
+    int seen[NPOPT], json, have_range, help;
+    double *rt;
+    size_t nrt;
+} direct_options;
+
+/* One parameter option at argv[*i]: -1 on a usage error, 0 when argv[*i] is none of them, 1 when taken. */
+static int parse_param_option(int argc, char **argv, int *i, direct_options *o)
+{
+    int missing = 0;
+    for (int k = 0; k < NPOPT; k++) {
+        const char *v = cli_option_value(argc, argv, i, popts[k].opt, &missing);
+        if (missing) {
+            cli_usage_error(CMD, "option %s needs a value", popts[k].opt);
+            return -1;
+        }
+        if (!v) continue;
+        if (o->seen[k]) {
+            cli_usage_error(CMD, "option %s given twice", popts[k].opt);
+            return -1;
+        }
+        o->seen[k] = 1;
+        if (!cli_parse_double(CMD, popts[k].opt, v, &o->par.value[popts[k].index])) return -1;
+        return 1;
+    }
+    return 0;
+}
+
+/* --rt or --contamination-range at argv[*i]: -1 on a usage error, 0 when neither, 1 when taken. */
+static int parse_list_option(int argc, char **argv, int *i, direct_options *o)
+{
+    int missing = 0;
+    const char *v = cli_option_value(argc, argv, i, "--rt", &missing);
+    if (missing) {
+        cli_usage_error(CMD, "option --rt needs a value");
+        return -1;
+    }
+    if (v) {
+        if (o->rt) {
+            cli_usage_error(CMD, "option --rt given twice");
+            return -1;
+        }
+        if (!parse_list("--rt", v, &o->rt, &o->nrt)) return -1;
+        for (size_t k = 0; k < o->nrt; k++)
+            if (o->rt[k] < 0) {
+                cli_usage_error(CMD, "option --rt: '%g' is not a response time (must be >= 0 s)", o->rt[k]);
+                return -1;
+            }
+        return 1;
+    }
+    v = cli_option_value(argc, argv, i, "--contamination-range", &missing);
+    if (missing) {
+        cli_usage_error(CMD, "option --contamination-range needs a value");
+        return -1;
+    }
+    if (!v) return 0;
+    double *r2 = NULL;
+    size_t n2 = 0;
+    if (!parse_list("--contamination-range", v, &r2, &n2)) return -1;
+    if (n2 != 2) {
+        cli_usage_error(CMD, "option --contamination-range: '%s' must be two times LO,HI", v);
+        free(r2);
+        return -1;
+    }
+    o->par.contamination_lo = r2[0];
+    o->par.contamination_hi = r2[1];
+    o->have_range = 1;
+    free(r2);
+    return 1;
+}
+
+/* The command line of the direct form into o; 0 on a usage error (reported), 1 otherwise (o->help set
+ * when --help was asked for, and then the rest is not read). */
+static int parse_direct(int argc, char **argv, direct_options *o)
+{
+    for (int i = 1; i < argc; i++) {
+        const char *a = argv[i];
+        if (!strcmp(a, "--help") || !strcmp(a, "-h")) {
+            o->help = 1;
+            return 1;
+        }
+        if (!strcmp(a, "--json")) {
+            o->json = 1;
+            continue;
+        }
+        if (!strcmp(a, "--quiet")) continue;
+        int taken = parse_param_option(argc, argv, &i, o);
+        if (taken == 0) taken = parse_list_option(argc, argv, &i, o);
+        if (taken < 0) return 0;
+        if (taken > 0) continue;
+        cli_usage_error(CMD, "unknown option '%s'", a);
+        return 0;
+    }
+    for (int k = 0; k < 3; k++)
+        if (!o->seen[k]) {
+            cli_usage_error(CMD, "option %s is required", popts[k].opt);
+            return 0;
+        }
+    if (o->par.value[BL_CONTAMINATION] > 0 && !o->have_range) {
+        cli_usage_error(CMD, "option --contamination %g needs --contamination-range LO,HI",
+                        o->par.value[BL_CONTAMINATION]);
+        return 0;
+    }
+    return 1;
+}
+
+/* Checks the parameters, computes the predictions and prints them; returns the exit code. */
+static int predict_direct(const direct_options *o, prediction *pr)
+{
+    bl_error err = {0};
+    if (bl_wiener_check(&o->par, &err)) return cli_fail(&err);
+    for (int b = 0; b < 2; b++) {
+        pr->dens[b] = calloc(o->nrt ? o->nrt : 1, sizeof(double));
+        if (!pr->dens[b]) {
+            bl_error_set(&err, BL_ERR_NOMEM, "out of memory for %zu response times", o->nrt);
+            return cli_fail(&err);
+        }
+    }
+    if (!compute(&o->par, o->rt, o->nrt, pr, &err)) return cli_fail(&err);
+    if (o->json) {
+        if (!print_json(pr, o->rt, o->nrt)) {
+            bl_error_set(&err, BL_ERR_NOMEM, "cannot build the JSON output");
+            return cli_fail(&err);
+        }
+    } else {
+        print_table(&o->par, pr, o->rt, o->nrt);
+    }
+    if (fflush(stdout) != 0 || ferror(stdout)) {
+        bl_error_set(&err, BL_ERR_IO, "writing output failed: %s", strerror(errno));
+        return cli_fail(&err);
+    }
+    return CLI_EXIT_OK;
+}
+
 int cmd_predict(int argc, char **argv)
 {
     for (int i = 1; i < argc; i++)
         if (!strcmp(argv[i], "--from") || !strncmp(argv[i], "--from=", 7)) return predict_from(argc, argv);
-    static const struct {
-        const char *opt;
-        int index;
-    } popts[] = {{"--threshold", BL_THRESHOLD},
-                 {"--drift", BL_DRIFT},
-                 {"--nondecision", BL_NONDECISION},
-                 {"--start", BL_START},
-                 {"--drift-sd", BL_DRIFT_SD},
-                 {"--start-range", BL_START_RANGE},
-                 {"--nondecision-range", BL_NONDECISION_RANGE},
-                 {"--contamination", BL_CONTAMINATION}};
-    enum { NPOPT = sizeof popts / sizeof popts[0] };
-    bl_wiener_params par;
-    bl_wiener_params_default(&par);
-    int seen[NPOPT] = {0}, json = 0, have_range = 0;
-    double *rt = NULL;
-    size_t nrt = 0;
-    int code = CLI_EXIT_USAGE;
+    direct_options o = {0};
+    bl_wiener_params_default(&o.par);
     prediction pr = {0};
-
-    for (int i = 1; i < argc; i++) {
-        const char *a = argv[i];
-        if (!strcmp(a, "--help") || !strcmp(a, "-h")) {
+    int code = CLI_EXIT_USAGE;
+    if (parse_direct(argc, argv, &o)) {
+        if (o.help) {
             usage(stdout);
             code = CLI_EXIT_OK;
-            goto done;
-        }
-        if (!strcmp(a, "--json")) {
-            json = 1;
-            continue;
-        }
-        if (!strcmp(a, "--quiet")) continue;
-        int missing = 0, matched = 0;
-        for (int k = 0; k < NPOPT && !matched; k++) {
-            const char *v = cli_option_value(argc, argv, &i, popts[k].opt, &missing);
-            if (missing) {
-                cli_usage_error(CMD, "option %s needs a value", popts[k].opt);
-                goto done;
-            }
-            if (!v) continue;
-            matched = 1;
-            if (seen[k]) {
-                cli_usage_error(CMD, "option %s given twice", popts[k].opt);
-                goto done;
-            }
-            seen[k] = 1;
-            if (!cli_parse_double(CMD, popts[k].opt, v, &par.value[popts[k].index])) goto done;
-        }
-        if (matched) continue;
-        const char *v = cli_option_value(argc, argv, &i, "--rt", &missing);
-        if (missing) {
-            cli_usage_error(CMD, "option --rt needs a value");
-            goto done;
-        }
-        if (v) {
-            if (rt) {
-                cli_usage_error(CMD, "option --rt given twice");
-                goto done;
-            }
-            if (!parse_list("--rt", v, &rt, &nrt)) goto done;
-            for (size_t k = 0; k < nrt; k++)
-                if (rt[k] < 0) {
-                    cli_usage_error(CMD, "option --rt: '%g' is not a response time (must be >= 0 s)", rt[k]);
-                    goto done;
-                }
-            continue;
-        }
-        v = cli_option_value(argc, argv, &i, "--contamination-range", &missing);
-        if (missing) {
-            cli_usage_error(CMD, "option --contamination-range needs a value");
-            goto done;
-        }
-        if (v) {
-            double *r2 = NULL;
-            size_t n2 = 0;
-            if (!parse_list("--contamination-range", v, &r2, &n2)) goto done;
-            if (n2 != 2) {
-                cli_usage_error(CMD, "option --contamination-range: '%s' must be two times LO,HI", v);
-                free(r2);
-                goto done;
-            }
-            par.contamination_lo = r2[0];
-            par.contamination_hi = r2[1];
-            have_range = 1;
-            free(r2);
-            continue;
-        }
-        cli_usage_error(CMD, "unknown option '%s'", a);
-        goto done;
-    }
-    for (int k = 0; k < 3; k++)
-        if (!seen[k]) {
-            cli_usage_error(CMD, "option %s is required", popts[k].opt);
-            goto done;
-        }
-    if (par.value[BL_CONTAMINATION] > 0 && !have_range) {
-        cli_usage_error(CMD, "option --contamination %g needs --contamination-range LO,HI",
-                        par.value[BL_CONTAMINATION]);
-        goto done;
-    }
-    bl_error err = {0};
-    if (bl_wiener_check(&par, &err)) {
-        code = cli_fail(&err);
-        goto done;
-    }
-    for (int b = 0; b < 2; b++) {
-        pr.dens[b] = calloc(nrt ? nrt : 1, sizeof(double));
-        if (!pr.dens[b]) {
-            bl_error_set(&err, BL_ERR_NOMEM, "out of memory for %zu response times", nrt);
-            code = cli_fail(&err);
-            goto done;
+        } else {
+            code = predict_direct(&o, &pr);
         }
     }
-    if (!compute(&par, rt, nrt, &pr, &err)) {
-        code = cli_fail(&err);
-        goto done;
-    }
-    if (json) {
-        if (!print_json(&pr, rt, nrt)) {
-            bl_error_set(&err, BL_ERR_NOMEM, "cannot build the JSON output");
-            code = cli_fail(&err);
-            goto done;
-        }
-    } else {
-        print_table(&par, &pr, rt, nrt);
-    }
-    if (fflush(stdout) != 0 || ferror(stdout)) {
-        bl_error_set(&err, BL_ERR_IO, "writing output failed: %s", strerror(errno));
-        code = cli_fail(&err);
-        goto done;
-    }
-    code = CLI_EXIT_OK;
-done:
-    free(rt);
+    free(o.rt);
     free(pr.dens[0]);
     free(pr.dens[1]);
     return code;

@@ -631,6 +631,136 @@ static int refine_bfgs(objective *o, double *coef)
     return o->out_of_memory;
 }
 
+/* The starting point: the planned (EZ) start, or `first` when it is feasible on these data (e.g. the
+ * observed fit for a permutation refit); fails with the reason when the likelihood is zero there. */
+static bl_status choose_start(const bl_model *m, bl_likelihood *lik, const double *first, transform *tr, double *start,
+                              bl_error *err)
+{
+    bl_status st = plan_fit(m, tr, start, err);
+    if (st) return st;
+    if (first) {
+        double ll = bl_likelihood_eval(lik, first, NULL);
+        if (isfinite(ll)) memcpy(start, first, m->n_coef * sizeof *start);
+    }
+    if (!isfinite(bl_likelihood_eval(lik, start, NULL))) return explain_zero_likelihood(m, lik, start, err);
+    return BL_OK;
+}
+
+/* What the optimiser reports into res: the log-likelihood at its optimum, sizes and diagnostics. */
+static void record_optimum(const bl_model *m, const start_result *best, int n_starts, int agreed, double ll,
+                           bl_fit_result *res)
+{
+    res->log_likelihood = ll;
+    res->parameters = m->n_coef;
+    res->trials = m->n;
+    res->diag.method = best->used_simplex == 2 ? "nmsimplex2" : best->used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
+    res->diag.iterations = best->iterations;
+    res->diag.starts = n_starts;
+    res->diag.starts_agreed = agreed;
+    res->diag.newton_decrement = NAN;
+    res->diag.condition_number = NAN;
+}
+
+/* The point being polished (coefficients, log-likelihood, gradient) and the observed information
+ * with its inverse there; pd says whether the information was positive definite. */
+typedef struct {
+    double *coef, *grad, *info, *cov;
+    double ll, cond;
+    int pd;
+} newton_state;
+
+/* Newton polishing with the observed information: each step is checked to raise the likelihood
+ * (halved up to three times when it does not), so it can only help. The loop stops when the Newton
+ * decrement -- the gradient in standard-error units -- is below 1e-4 (log-likelihood gap ~5e-9), at
+ * most 8 steps. o->coef and o->grad are the trial point's workspace. */
+static bl_status newton_polish(objective *o, newton_state *s, double *decrement, bl_error *err)
+{
+    size_t k = o->k;
+    for (int polish = 0; polish < 8; polish++) {
+        int oi = 0, inv = 0;
+        bl_status st = observed_information(o->lik, o->m, s->coef, s->info, &oi, err);
+        if (st) return st;
+        if (oi && (st = bl_information_inverse(s->info, k, s->cov, &s->cond, &inv, err))) return st;
+        s->pd = oi && inv;
+        if (!s->pd) break;
+        double nd2 = 0;
+        for (size_t i = 0; i < k; i++)
+            for (size_t j = 0; j < k; j++) nd2 += s->grad[i] * s->cov[i * k + j] * s->grad[j];
+        *decrement = sqrt(fmax(nd2, 0));
+        if (*decrement < 1e-4 || polish == 7) break;
+        double ll2 = -INFINITY;
+        for (int half = 0; half < 4 && !(ll2 > s->ll); half++) {
+            double scale = ldexp(1.0, -half);
+            for (size_t i = 0; i < k; i++) {
+                double step = 0;
+                for (size_t j = 0; j < k; j++) step += s->cov[i * k + j] * s->grad[j];
+                o->coef[i] = s->coef[i] + scale * step;
+            }
+            ll2 = bl_likelihood_eval(o->lik, o->coef, o->grad);
+        }
+        if (!(ll2 > s->ll)) break;
+        s->ll = ll2;
+        memcpy(s->coef, o->coef, k * sizeof *s->coef);
+        memcpy(s->grad, o->grad, k * sizeof *s->grad);
+    }
+    return BL_OK;
+}
+
+/* The inference step: Newton polishing, retried once after a tight BFGS when it cannot finish from
+ * the loose BFGS point; records the polished log-likelihood and convergence in res. */
+static bl_status polish_and_infer(objective *o, newton_state *s, bl_fit_result *res, bl_error *err)
+{
+    s->pd = 0;
+    s->cond = NAN;
+    int retried = 0;
+    for (;;) {
+        bl_status st = newton_polish(o, s, &res->diag.newton_decrement, err);
+        if (st) return st;
+        if (!((!s->pd || !(res->diag.newton_decrement <= BL_FIT_CONVERGED_DECREMENT)) && o->gtol > 1e-5 && !retried))
+            break;
+        /* Newton could not finish from the loose BFGS point: tight BFGS from here, then again */
+        retried = 1;
+        o->gtol = 1e-5;
+        if (refine_bfgs(o, s->coef))
+            return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory while fitting", o->m->name);
+        s->ll = bl_likelihood_eval(o->lik, s->coef, s->grad);
+    }
+    res->log_likelihood = s->ll;
+    res->diag.hessian_positive_definite = s->pd;
+    res->diag.condition_number = s->cond;
+    res->converged = s->pd && res->diag.newton_decrement <= BL_FIT_CONVERGED_DECREMENT;
+    return BL_OK;
+}
+
+/* The coefficient table of res: names and estimates, with Wald standard errors, z, p and 95%
+ * intervals from cov when `wald`. Returns 0 when out of memory. */
+static int fill_coefficients(const bl_model *m, const double *coef, const double *cov, int wald, bl_fit_result *res)
+{
+    size_t k = m->n_coef;
+    res->coef = calloc(k, sizeof *res->coef);
+    if (!res->coef) return 0;
+    res->n_coef = k; /* only now: bl_fit_result_clear walks n_coef entries */
+    for (size_t j = 0; j < k; j++) {
+        bl_coefficient *c = &res->coef[j];
+        const bl_coef_info *ci = &m->coef[j];
+        c->param = ci->param;
+        c->parameter = bl_param_name(ci->param);
+        c->term = bl_strdup(ci->term);
+        c->level = bl_strdup(ci->level);
+        if (!c->term || !c->level) return 0;
+        c->estimate = coef[j];
+        c->se = c->z = c->p = c->ci_low = c->ci_high = NAN;
+        if (wald) {
+            c->se = sqrt(cov[j * k + j]);
+            c->z = c->estimate / c->se;
+            c->p = 2 * gsl_cdf_ugaussian_Q(fabs(c->z));
+            c->ci_low = c->estimate - Z975 * c->se;
+            c->ci_high = c->estimate + Z975 * c->se;
+        }
+    }
+    return 1;
+}
+
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                       const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err)
 {
@@ -647,17 +777,7 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     memset(res, 0, sizeof *res);
     if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !cache_x || !cache_g || !rng) goto nomem;
     gsl_rng_set(rng, bl_fit_mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
-    if ((st = plan_fit(m, tr, start, err))) goto fail;
-    if (first) {
-        /* A given start (e.g. the observed fit for a permutation refit) replaces the EZ start when it
-         * is feasible on these data. */
-        double ll = bl_likelihood_eval(lik, first, NULL);
-        if (isfinite(ll)) memcpy(start, first, k * sizeof *start);
-    }
-    if (!isfinite(bl_likelihood_eval(lik, start, NULL))) {
-        st = explain_zero_likelihood(m, lik, start, err);
-        goto fail;
-    }
+    if ((st = choose_start(m, lik, first, tr, start, err))) goto fail;
     objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0, infer ? 1e-3 : 1e-5};
     start_result best = {0, coef, 0, 0};
     int agreed = 0;
@@ -671,64 +791,14 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         goto fail;
     }
     double ll = bl_likelihood_eval(lik, coef, grad);
-    res->log_likelihood = ll;
-    res->parameters = k;
-    res->trials = m->n;
-    res->diag.method = best.used_simplex == 2 ? "nmsimplex2" : best.used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
-    res->diag.iterations = best.iterations;
-    res->diag.starts = n_starts;
-    res->diag.starts_agreed = agreed;
-    res->diag.newton_decrement = NAN;
-    res->diag.condition_number = NAN;
+    record_optimum(m, &best, n_starts, agreed, ll, res);
     if (infer) {
         info = malloc(k * k * sizeof *info);
         cov = malloc(k * k * sizeof *cov);
         if (!info || !cov) goto nomem;
-        int pd = 0, retried = 0;
-        double cond = NAN;
-    polish_again:
-        /* Newton polishing with the observed information: each step is checked to raise the
-         * likelihood (halved up to three times when it does not), so it can only help. The loop
-         * stops when the Newton decrement -- the gradient in standard-error units -- is below 1e-4
-         * (log-likelihood gap ~5e-9), at most 8 steps. */
-        for (int polish = 0; polish < 8; polish++) {
-            int oi = 0, inv = 0;
-            if ((st = observed_information(lik, m, coef, info, &oi, err))) goto fail;
-            if (oi && (st = bl_information_inverse(info, k, cov, &cond, &inv, err))) goto fail;
-            pd = oi && inv;
-            if (!pd) break;
-            double nd2 = 0;
-            for (size_t i = 0; i < k; i++)
-                for (size_t j = 0; j < k; j++) nd2 += grad[i] * cov[i * k + j] * grad[j];
-            res->diag.newton_decrement = sqrt(fmax(nd2, 0));
-            if (res->diag.newton_decrement < 1e-4 || polish == 7) break;
-            double ll2 = -INFINITY;
-            for (int half = 0; half < 4 && !(ll2 > ll); half++) {
-                double scale = ldexp(1.0, -half);
-                for (size_t i = 0; i < k; i++) {
-                    double step = 0;
-                    for (size_t j = 0; j < k; j++) step += cov[i * k + j] * grad[j];
-                    wcoef[i] = coef[i] + scale * step;
-                }
-                ll2 = bl_likelihood_eval(lik, wcoef, wgrad);
-            }
-            if (!(ll2 > ll)) break;
-            ll = ll2;
-            memcpy(coef, wcoef, k * sizeof *coef);
-            memcpy(grad, wgrad, k * sizeof *grad);
-        }
-        if ((!pd || !(res->diag.newton_decrement <= BL_FIT_CONVERGED_DECREMENT)) && o.gtol > 1e-5 && !retried) {
-            /* Newton could not finish from the loose BFGS point: tight BFGS from here, then again */
-            retried = 1;
-            o.gtol = 1e-5;
-            if (refine_bfgs(&o, coef)) goto nomem;
-            ll = bl_likelihood_eval(lik, coef, grad);
-            goto polish_again;
-        }
-        res->log_likelihood = ll;
-        res->diag.hessian_positive_definite = pd;
-        res->diag.condition_number = cond;
-        res->converged = pd && res->diag.newton_decrement <= BL_FIT_CONVERGED_DECREMENT;
+        newton_state s = {coef, grad, info, cov, ll, NAN, 0};
+        if ((st = polish_and_infer(&o, &s, res, err))) goto fail;
+        ll = s.ll;
     } else {
         double gmax = 0;
         for (size_t j = 0; j < k; j++) gmax = fmax(gmax, fabs(grad[j]));
@@ -740,27 +810,7 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     res->diag.converged = res->converged;
     res->aic = 2.0 * (double)k - 2.0 * ll;
     res->bic = (double)k * log((double)m->n) - 2.0 * ll;
-    res->coef = calloc(k, sizeof *res->coef);
-    if (!res->coef) goto nomem;
-    res->n_coef = k; /* only now: bl_fit_result_clear walks n_coef entries */
-    for (size_t j = 0; j < k; j++) {
-        bl_coefficient *c = &res->coef[j];
-        const bl_coef_info *ci = &m->coef[j];
-        c->param = ci->param;
-        c->parameter = bl_param_name(ci->param);
-        c->term = bl_strdup(ci->term);
-        c->level = bl_strdup(ci->level);
-        if (!c->term || !c->level) goto nomem;
-        c->estimate = coef[j];
-        c->se = c->z = c->p = c->ci_low = c->ci_high = NAN;
-        if (infer && res->diag.hessian_positive_definite) {
-            c->se = sqrt(cov[j * k + j]);
-            c->z = c->estimate / c->se;
-            c->p = 2 * gsl_cdf_ugaussian_Q(fabs(c->z));
-            c->ci_low = c->estimate - Z975 * c->se;
-            c->ci_high = c->estimate + Z975 * c->se;
-        }
-    }
+    if (!fill_coefficients(m, coef, cov, infer && res->diag.hessian_positive_definite, res)) goto nomem;
     if (infer && res->diag.hessian_positive_definite) {
         res->covariance = cov;
         cov = NULL;

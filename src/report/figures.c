@@ -264,6 +264,110 @@ static double ez_estimate(const bl_trials *t, const bl_goodness_group *gr, int p
     return param == BL_THRESHOLD ? a : param == BL_DRIFT ? v : param == BL_NONDECISION ? t0 : NAN;
 }
 
+/* The stand-in figure when the best model has no slopes (or there is no fitted model). */
+static bl_svg *fig_predicted_none(const bl_model_result *mr, char **caption)
+{
+    bl_svg *fig = bl_svg_create("pred", "Predicted parameter vs regressor", 1, 1, 560, 200);
+    bl_svg_note(bl_svg_panel_at(fig, 0),
+                mr ? "the best model has no slopes: every trial of a condition has the same parameters"
+                   : "no fitted model");
+    *caption = xprintf("No slopes in the model with the lowest AIC%s%s%s, so there is no parameter-regressor "
+                       "relation to show.",
+                       mr ? " (" : "", mr ? mr->name : "", mr ? ")" : "");
+    return fig;
+}
+
+/* The conditions met so far, by colour (over all panels, in order of first use). */
+typedef struct {
+    char *labels[64];
+    size_t n;
+} condition_legend;
+
+/* The colour index of a condition, added to the legend on first use. */
+static size_t legend_index(condition_legend *leg, const char *condition)
+{
+    size_t ci;
+    for (ci = 0; ci < leg->n; ci++)
+        if (strcmp(leg->labels[ci], condition) == 0) break;
+    if (ci == leg->n && leg->n < 64 && (leg->labels[leg->n] = xprintf("%s", condition))) leg->n++;
+    return ci;
+}
+
+/* Axis labels and title of the panel of one slope. */
+static void label_predicted_panel(const bl_study *study, bl_svg_panel *p, const slope_ref *r)
+{
+    char *xl = regressor_label(study, r->slope->regressor);
+    bl_svg_axis_label(p, BL_SVG_X, xl ? xl : r->slope->regressor);
+    free(xl);
+    const char *yl = bl_figures_param_unit(r->param);
+    char *yl2 = r->param == BL_DRIFT && study->trials.stimulus
+                    ? xprintf("drift toward the correct response (evidence units/s)")
+                    : NULL;
+    bl_svg_axis_label(p, BL_SVG_Y, yl2 ? yl2 : yl);
+    free(yl2);
+    char *pt = xprintf("%s vs %s", bl_param_name(r->param), r->slope->regressor);
+    bl_svg_panel_title(p, pt);
+    free(pt);
+}
+
+/* One condition level in a slope's panel: the predicted parameter of every trial of its bins
+ * groups[gi..gend) against the regressor xv, and the observed EZ estimate per bin at the bin's mean
+ * regressor value. x and y have room for every trial. */
+static void plot_condition_bins(bl_svg_panel *p, const bl_trials *t, const bl_model_result *mr, const slope_ref *r,
+                                const bl_goodness *g, size_t gi, size_t gend, const double *xv, const char *color,
+                                double *x, double *y)
+{
+    size_t n = 0;
+    for (size_t b = gi; b < gend; b++)
+        for (size_t i = 0; i < g->groups[b].n; i++) {
+            size_t row = g->groups[b].rows[i];
+            x[n] = xv[row];
+            double v = mr->predicted[row].value[r->param];
+            if (r->param == BL_DRIFT && t->drift_sign) v *= t->drift_sign[row];
+            y[n++] = v;
+        }
+    bl_svg_points(p, x, y, n, (bl_svg_style){.color = color, .opacity = 0.3, .size = 1.6});
+    if (r->param == BL_THRESHOLD || r->param == BL_DRIFT || r->param == BL_NONDECISION) {
+        double bx[BL_GOODNESS_NBINS * 4], by[BL_GOODNESS_NBINS * 4];
+        size_t nb = 0;
+        for (size_t b = gi; b < gend && nb < BL_GOODNESS_NBINS * 4; b++) {
+            bx[nb] = g->groups[b].regressor_mean;
+            by[nb++] = ez_estimate(t, &g->groups[b], r->param);
+        }
+        bl_svg_line(p, bx, by, nb, (bl_svg_style){.color = color, .width = 1, .dashed = 1});
+        bl_svg_points(p, bx, by, nb, (bl_svg_style){.color = color, .marker = BL_SVG_MARK_DIAMOND, .size = 4.5});
+    }
+}
+
+/* The panel of one slope: each condition level of its binning, coloured by condition. Returns 0 when
+ * the regressor column is missing from the trial table (the panel stays empty). */
+static int plot_predicted_panel(const bl_study *study, const bl_trials *t, const bl_model_result *mr,
+                                const bl_goodness *g, const slope_ref *r, bl_svg_panel *p, condition_legend *leg,
+                                double *x, double *y)
+{
+    label_predicted_panel(study, p, r);
+    int col = bl_table_find(t->table, r->slope->regressor);
+    if (col < 0) return 0;
+    const double *xv = t->table->cols[col].num;
+    int binning = bl_goodness_find_binning(g, r->slope);
+    for (size_t gi = g->n_cells; binning >= 0 && gi < g->n_groups;) {
+        const bl_goodness_group *g0 = &g->groups[gi];
+        if (g0->binning != (size_t)binning) {
+            gi++;
+            continue;
+        }
+        /* The bins of one condition level are contiguous. */
+        size_t gend = gi;
+        while (gend < g->n_groups && g->groups[gend].regressor && g->groups[gend].binning == (size_t)binning &&
+               strcmp(g->groups[gend].condition, g0->condition) == 0)
+            gend++;
+        const char *color = bl_svg_color((int)legend_index(leg, g0->condition));
+        plot_condition_bins(p, t, mr, r, g, gi, gend, xv, color, x, y);
+        gi = gend;
+    }
+    return 1;
+}
+
 static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl_fit_set *set, const bl_goodness *g,
                              char **caption)
 {
@@ -275,16 +379,7 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
     for (int p = 0; sp && p < BL_NPARAM; p++)
         for (size_t s = 0; !sp->param[p].is_fixed && s < sp->param[p].n_slopes && nref < 64; s++)
             refs[nref++] = (slope_ref){p, &sp->param[p].slopes[s]};
-    if (nref == 0) {
-        bl_svg *fig = bl_svg_create("pred", "Predicted parameter vs regressor", 1, 1, 560, 200);
-        bl_svg_note(bl_svg_panel_at(fig, 0),
-                    mr ? "the best model has no slopes: every trial of a condition has the same parameters"
-                       : "no fitted model");
-        *caption = xprintf("No slopes in the model with the lowest AIC%s%s%s, so there is no parameter-regressor "
-                           "relation to show.",
-                           mr ? " (" : "", mr ? mr->name : "", mr ? ")" : "");
-        return fig;
-    }
+    if (nref == 0) return fig_predicted_none(mr, caption);
     int cols = nref < 2 ? 1 : 2, rows = (int)((nref + (size_t)cols - 1) / (size_t)cols);
     char *title = xprintf("Trial-wise predicted parameters of %s", mr->name);
     bl_svg *fig = bl_svg_create("pred", title ? title : "Trial-wise predicted parameters", rows, cols, PANEL_W + 40,
@@ -297,80 +392,16 @@ static bl_svg *fig_predicted(const bl_study *study, const bl_trials *t, const bl
         bl_svg_destroy(fig);
         return NULL;
     }
-    /* Legend: conditions by colour (over all panels, in order of first use). */
-    char *legend_labels[64];
-    size_t n_leg = 0;
+    condition_legend leg = {.n = 0};
     int x_col_missing = 0;
-    for (size_t k = 0; k < nref; k++) {
-        const slope_ref *r = &refs[k];
-        bl_svg_panel *p = bl_svg_panel_at(fig, (int)k);
-        char *xl = regressor_label(study, r->slope->regressor);
-        bl_svg_axis_label(p, BL_SVG_X, xl ? xl : r->slope->regressor);
-        free(xl);
-        const char *yl = bl_figures_param_unit(r->param);
-        char *yl2 = r->param == BL_DRIFT && study->trials.stimulus
-                        ? xprintf("drift toward the correct response (evidence units/s)")
-                        : NULL;
-        bl_svg_axis_label(p, BL_SVG_Y, yl2 ? yl2 : yl);
-        free(yl2);
-        char *pt = xprintf("%s vs %s", bl_param_name(r->param), r->slope->regressor);
-        bl_svg_panel_title(p, pt);
-        free(pt);
-        int col = bl_table_find(t->table, r->slope->regressor);
-        if (col < 0) {
+    for (size_t k = 0; k < nref; k++)
+        if (!plot_predicted_panel(study, t, mr, g, &refs[k], bl_svg_panel_at(fig, (int)k), &leg, x, y))
             x_col_missing = 1;
-            continue;
-        }
-        const double *xv = t->table->cols[col].num;
-        int binning = bl_goodness_find_binning(g, r->slope);
-        for (size_t gi = g->n_cells; binning >= 0 && gi < g->n_groups;) {
-            const bl_goodness_group *g0 = &g->groups[gi];
-            if (g0->binning != (size_t)binning) {
-                gi++;
-                continue;
-            }
-            /* The bins of one condition level are contiguous. */
-            size_t gend = gi;
-            while (gend < g->n_groups && g->groups[gend].regressor && g->groups[gend].binning == (size_t)binning &&
-                   strcmp(g->groups[gend].condition, g0->condition) == 0)
-                gend++;
-            /* Colour by condition label. */
-            size_t ci;
-            for (ci = 0; ci < n_leg; ci++)
-                if (strcmp(legend_labels[ci], g0->condition) == 0) break;
-            if (ci == n_leg && n_leg < 64 && (legend_labels[n_leg] = xprintf("%s", g0->condition))) n_leg++;
-            const char *color = bl_svg_color((int)ci);
-            /* Trials of this condition: every bin's rows. */
-            size_t n = 0;
-            for (size_t b = gi; b < gend; b++)
-                for (size_t i = 0; i < g->groups[b].n; i++) {
-                    size_t row = g->groups[b].rows[i];
-                    x[n] = xv[row];
-                    double v = mr->predicted[row].value[r->param];
-                    if (r->param == BL_DRIFT && t->drift_sign) v *= t->drift_sign[row];
-                    y[n++] = v;
-                }
-            bl_svg_points(p, x, y, n, (bl_svg_style){.color = color, .opacity = 0.3, .size = 1.6});
-            /* Observed: EZ estimate per bin at the bin's mean regressor value. */
-            if (r->param == BL_THRESHOLD || r->param == BL_DRIFT || r->param == BL_NONDECISION) {
-                double bx[BL_GOODNESS_NBINS * 4], by[BL_GOODNESS_NBINS * 4];
-                size_t nb = 0;
-                for (size_t b = gi; b < gend && nb < BL_GOODNESS_NBINS * 4; b++) {
-                    bx[nb] = g->groups[b].regressor_mean;
-                    by[nb++] = ez_estimate(t, &g->groups[b], r->param);
-                }
-                bl_svg_line(p, bx, by, nb, (bl_svg_style){.color = color, .width = 1, .dashed = 1});
-                bl_svg_points(p, bx, by, nb,
-                              (bl_svg_style){.color = color, .marker = BL_SVG_MARK_DIAMOND, .size = 4.5});
-            }
-            gi = gend;
-        }
-    }
     bl_svg_legend_heading(fig, "condition");
-    for (size_t i = 0; i < n_leg; i++) {
-        bl_svg_legend(fig, legend_labels[i], BL_SVG_KEY_BOX,
+    for (size_t i = 0; i < leg.n; i++) {
+        bl_svg_legend(fig, leg.labels[i], BL_SVG_KEY_BOX,
                       (bl_svg_style){.color = bl_svg_color((int)i), .opacity = 0.8});
-        free(legend_labels[i]);
+        free(leg.labels[i]);
     }
     bl_svg_legend_heading(fig, "marks");
     bl_svg_legend(fig, "predicted, one per trial", BL_SVG_KEY_POINT, (bl_svg_style){.color = "#666666", .size = 2});

@@ -500,50 +500,147 @@ int bl_goodness_find_binning(const bl_goodness *g, const bl_slope_spec *slope)
 static int find_col(const bl_trials *t, const char *name) { return bl_table_find(t->table, name); }
 
 /* Build condition cells and regressor bins. */
-static bl_status build_groups(const bl_study *study, const bl_trials *t, const bl_fit_set *set, bl_goodness *g,
-                              bl_error *err)
+static bl_status groups_out_of_memory(bl_error *err)
 {
-    bl_status st = BL_OK;
-    grouplist gl = {0};
-    struct {
-        const char **names;
-        size_t n;
-    } cell_cols = {0};
-    strlist seen_pairs = {0};
-    const char **names = NULL;
-    int *cols = NULL;
-    size_t *rows = NULL, nrows = 0;
-    rank_item *items = NULL;
-    char **pair_keys = NULL;
-    size_t n_pair_keys = 0;
+    return bl_error_set(err, BL_ERR_NOMEM, "out of memory building goodness-of-fit groups");
+}
 
-    /* Trials used by every model. */
-    rows = malloc((t->n ? t->n : 1) * sizeof *rows);
-    if (!rows) goto nomem;
+/* The trials used by every model (not excluded, finite RT), in table order; 0 when out of memory. */
+static int common_rows(const bl_trials *t, const bl_fit_set *set, size_t **rows_out, size_t *nrows_out)
+{
+    size_t *rows = malloc((t->n ? t->n : 1) * sizeof *rows), nrows = 0;
+    if (!rows) return 0;
     for (size_t r = 0; r < t->n; r++) {
         int ok = !t->excluded[r] && isfinite(t->rt[r]);
         for (size_t m = 0; ok && m < set->n_models; m++)
             ok = set->models[m].used && r < set->models[m].n_rows && set->models[m].used[r];
         if (ok) rows[nrows++] = r;
     }
+    *rows_out = rows;
+    *nrows_out = nrows;
+    return 1;
+}
 
-    /* Columns that define condition cells (shared with the per-cell spectra of band power). */
-    names = malloc((set->n_models ? set->n_models : 1) * sizeof *names);
-    if (!names) goto nomem;
+/* The condition cells: `rows` split by the columns that define them (shared with the per-cell
+ * spectra of band power), appended to gl. */
+static bl_status cell_groups(const bl_study *study, const bl_trials *t, const bl_fit_set *set, const size_t *rows,
+                             size_t nrows, grouplist *gl, bl_error *err)
+{
+    bl_status st = BL_OK;
+    const char **cell_names = NULL;
+    size_t n_cell = 0;
+    int *cols = NULL;
+    const char **names = malloc((set->n_models ? set->n_models : 1) * sizeof *names);
+    if (!names) return groups_out_of_memory(err);
     for (size_t m = 0; m < set->n_models; m++) names[m] = set->models[m].name;
-    if ((st = bl_cell_columns(study, names, set->n_models, &cell_cols.names, &cell_cols.n, err))) goto fail;
-    cols = malloc((cell_cols.n + 1) * sizeof *cols);
-    if (!cols) goto nomem;
-    for (size_t i = 0; i < cell_cols.n; i++) {
-        cols[i] = find_col(t, cell_cols.names[i]);
+    if ((st = bl_cell_columns(study, names, set->n_models, &cell_names, &n_cell, err))) goto done;
+    cols = malloc((n_cell + 1) * sizeof *cols);
+    if (!cols) {
+        st = groups_out_of_memory(err);
+        goto done;
+    }
+    for (size_t i = 0; i < n_cell; i++) {
+        cols[i] = find_col(t, cell_names[i]);
         if (cols[i] < 0) {
             st = bl_error_set(err, BL_ERR_INPUT, "%s: no column '%s' for the goodness-of-fit cells",
-                              t->table->path ? t->table->path : "trials", cell_cols.names[i]);
-            goto fail;
+                              t->table->path ? t->table->path : "trials", cell_names[i]);
+            goto done;
         }
     }
     size_t first;
-    if ((st = split_by(t, cols, cell_cols.n, rows, nrows, &gl, &first, err)) != BL_OK) goto fail;
+    st = split_by(t, cols, n_cell, rows, nrows, gl, &first, err);
+done:
+    free((void *)cell_names);
+    free((void *)names);
+    free(cols);
+    return st;
+}
+
+/* The bins of one level (the rows of lv) of regressor x: rank r of n goes to bin floor(5 r / n), and
+ * each bin becomes a group of gl with its rows in table order. items has room for lv->n ranks.
+ * Returns 0 when out of memory. */
+static int add_level_bins(grouplist *gl, const bl_goodness_group *lv, const double *x, const char *regressor,
+                          size_t binning, rank_item *items)
+{
+    for (size_t i = 0; i < lv->n; i++) items[i] = (rank_item){x, lv->rows[i]};
+    qsort(items, lv->n, sizeof *items, rank_cmp);
+    for (int b = 0; b < BL_GOODNESS_NBINS; b++) {
+        size_t r0 = (lv->n * (size_t)b + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
+        size_t r1 = (lv->n * (size_t)(b + 1) + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
+        if (r1 <= r0) continue;
+        bl_goodness_group *ng = group_new(gl);
+        if (!ng || !(ng->condition = bl_strdup(lv->condition)) || !(ng->regressor = bl_strdup(regressor)) ||
+            !(ng->rows = malloc((r1 - r0) * sizeof *ng->rows)))
+            return 0;
+        ng->bin = b + 1;
+        ng->binning = binning;
+        double sum = 0;
+        for (size_t r = r0; r < r1; r++) {
+            ng->rows[ng->n++] = items[r].row;
+            sum += x[items[r].row];
+        }
+        ng->regressor_low = x[items[r0].row];
+        ng->regressor_high = x[items[r1 - 1].row];
+        ng->regressor_mean = sum / (double)(r1 - r0);
+        /* Table order within the bin (rows are distinct: a total order). */
+        qsort(ng->rows, ng->n, sizeof *ng->rows, cmp_row);
+    }
+    return 1;
+}
+
+/* The regressor bins of one slope: the rows with a finite regressor value split by its `by` columns
+ * (the participant column aside), each level binned by add_level_bins into gl. */
+static bl_status slope_bins(const bl_study *study, const bl_trials *t, const bl_slope_spec *sl, const size_t *rows,
+                            size_t nrows, size_t binning, rank_item *items, grouplist *gl, bl_error *err)
+{
+    int rc = find_col(t, sl->regressor);
+    if (rc < 0 || !t->table->cols[rc].numeric)
+        return bl_error_set(err, BL_ERR_INPUT, "goodness of fit: regressor '%s' is not a numeric column",
+                            sl->regressor);
+    const double *x = t->table->cols[rc].num;
+    int *bcols = malloc((sl->n_by + 1) * sizeof *bcols);
+    if (!bcols) return groups_out_of_memory(err);
+    size_t nb = 0;
+    for (size_t i = 0; i < sl->n_by; i++) {
+        if (strcmp(sl->by[i], study->trials.participant) == 0) continue;
+        bcols[nb] = find_col(t, sl->by[i]);
+        if (bcols[nb] < 0) {
+            free(bcols);
+            return bl_error_set(err, BL_ERR_INPUT, "goodness of fit: no column '%s'", sl->by[i]);
+        }
+        nb++;
+    }
+    size_t *rr = malloc((nrows ? nrows : 1) * sizeof *rr), nr = 0;
+    if (!rr) {
+        free(bcols);
+        return groups_out_of_memory(err);
+    }
+    for (size_t i = 0; i < nrows; i++)
+        if (isfinite(x[rows[i]])) rr[nr++] = rows[i];
+    grouplist levels = {0};
+    size_t first;
+    bl_status st = split_by(t, bcols, nb, rr, nr, &levels, &first, err);
+    free(bcols);
+    free(rr);
+    for (size_t L = 0; st == BL_OK && L < levels.n; L++)
+        if (!add_level_bins(gl, &levels.g[L], x, sl->regressor, binning, items)) st = groups_out_of_memory(err);
+    free_groups(levels.g, levels.n);
+    return st;
+}
+
+static bl_status build_groups(const bl_study *study, const bl_trials *t, const bl_fit_set *set, bl_goodness *g,
+                              bl_error *err)
+{
+    bl_status st = BL_OK;
+    grouplist gl = {0};
+    strlist seen_pairs = {0};
+    size_t *rows = NULL, nrows = 0;
+    rank_item *items = NULL;
+    char **pair_keys = NULL;
+    size_t n_pair_keys = 0;
+
+    if (!common_rows(t, set, &rows, &nrows)) goto nomem;
+    if ((st = cell_groups(study, t, set, rows, nrows, &gl, err)) != BL_OK) goto fail;
     g->n_cells = gl.n;
 
     /* Regressor bins per distinct (regressor, by columns). */
@@ -571,74 +668,7 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
                 }
                 pair_keys = nk;
                 pair_keys[n_pair_keys++] = key;
-
-                int rc = find_col(t, sl->regressor);
-                if (rc < 0 || !t->table->cols[rc].numeric) {
-                    st = bl_error_set(err, BL_ERR_INPUT, "goodness of fit: regressor '%s' is not a numeric column",
-                                      sl->regressor);
-                    goto fail;
-                }
-                const double *x = t->table->cols[rc].num;
-                int *bcols = malloc((sl->n_by + 1) * sizeof *bcols);
-                if (!bcols) goto nomem;
-                size_t nb = 0;
-                for (size_t i = 0; i < sl->n_by; i++) {
-                    if (strcmp(sl->by[i], study->trials.participant) == 0) continue;
-                    bcols[nb] = find_col(t, sl->by[i]);
-                    if (bcols[nb] < 0) {
-                        free(bcols);
-                        st = bl_error_set(err, BL_ERR_INPUT, "goodness of fit: no column '%s'", sl->by[i]);
-                        goto fail;
-                    }
-                    nb++;
-                }
-                /* Rows with a finite regressor value. */
-                size_t *rr = malloc((nrows ? nrows : 1) * sizeof *rr), nr = 0;
-                if (!rr) {
-                    free(bcols);
-                    goto nomem;
-                }
-                for (size_t i = 0; i < nrows; i++)
-                    if (isfinite(x[rows[i]])) rr[nr++] = rows[i];
-                grouplist levels = {0};
-                st = split_by(t, bcols, nb, rr, nr, &levels, &first, err);
-                free(bcols);
-                free(rr);
-                if (st != BL_OK) {
-                    free_groups(levels.g, levels.n);
-                    goto fail;
-                }
-                for (size_t L = 0; L < levels.n; L++) {
-                    bl_goodness_group *lv = &levels.g[L];
-                    for (size_t i = 0; i < lv->n; i++) items[i] = (rank_item){x, lv->rows[i]};
-                    qsort(items, lv->n, sizeof *items, rank_cmp);
-                    for (int b = 0; b < BL_GOODNESS_NBINS; b++) {
-                        /* Rank r goes to bin floor(5 r / n). */
-                        size_t r0 = (lv->n * (size_t)b + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
-                        size_t r1 = (lv->n * (size_t)(b + 1) + BL_GOODNESS_NBINS - 1) / BL_GOODNESS_NBINS;
-                        if (r1 <= r0) continue;
-                        bl_goodness_group *ng = group_new(&gl);
-                        if (!ng || !(ng->condition = bl_strdup(lv->condition)) ||
-                            !(ng->regressor = bl_strdup(sl->regressor)) ||
-                            !(ng->rows = malloc((r1 - r0) * sizeof *ng->rows))) {
-                            free_groups(levels.g, levels.n);
-                            goto nomem;
-                        }
-                        ng->bin = b + 1;
-                        ng->binning = n_pair_keys - 1;
-                        double sum = 0;
-                        for (size_t r = r0; r < r1; r++) {
-                            ng->rows[ng->n++] = items[r].row;
-                            sum += x[items[r].row];
-                        }
-                        ng->regressor_low = x[items[r0].row];
-                        ng->regressor_high = x[items[r1 - 1].row];
-                        ng->regressor_mean = sum / (double)(r1 - r0);
-                        /* Table order within the bin (rows are distinct: a total order). */
-                        qsort(ng->rows, ng->n, sizeof *ng->rows, cmp_row);
-                    }
-                }
-                free_groups(levels.g, levels.n);
+                if ((st = slope_bins(study, t, sl, rows, nrows, n_pair_keys - 1, items, &gl, err))) goto fail;
             }
         }
     }
@@ -651,16 +681,13 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
     n_pair_keys = 0;
     goto done;
 nomem:
-    st = bl_error_set(err, BL_ERR_NOMEM, "out of memory building goodness-of-fit groups");
+    st = groups_out_of_memory(err);
 fail:
     free_groups(gl.g, gl.n);
 done:
-    free((void *)cell_cols.names);
-    free((void *)names);
     free(seen_pairs.names);
     for (size_t i = 0; i < n_pair_keys; i++) free(pair_keys[i]);
     free(pair_keys);
-    free(cols);
     free(rows);
     free(items);
     return st;
