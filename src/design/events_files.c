@@ -200,12 +200,19 @@ static bl_status edf_events(const char *path, FILE *m, bl_error *err)
         label[16] = '\0';
         for (int k = 15; k >= 0 && label[k] == ' '; k--) label[k] = '\0';
         long spr = field_long(h, 256 + (size_t)ns * (16 + 80 + 8 * 5 + 80) + 8 * (size_t)s, 8);
+        if (spr < 1 || spr > 100000000L) { /* checked before any size is computed from it */
+            st = bl_error_set(err, BL_ERR_INPUT,
+                              "%s: header field \"number of samples in each data record\" of signal %ld is %ld; "
+                              "it must be a whole number from 1 to 100000000",
+                              path, s + 1, spr);
+            goto done;
+        }
         if ((strcmp(label, "EDF Annotations") == 0 || strcmp(label, "BDF Annotations") == 0) && !found) {
             found = 1;
             ann_off = rec_bytes;
             ann_len = (size_t)spr * (size_t)bps;
         }
-        rec_bytes += spr > 0 ? (size_t)spr * (size_t)bps : 0;
+        rec_bytes += (size_t)spr * (size_t)bps;
     }
     if (!found) {
         st = bl_error_set(err, BL_ERR_INPUT,
