@@ -22,6 +22,7 @@
 #include "core/groups.h"
 #include "design/cells.h"
 #include "core/strutil.h"
+#include "core/textbuf.h"
 
 #include <math.h>
 #include <stdarg.h>
@@ -1151,57 +1152,23 @@ bl_status bl_power_write_csv(const bl_study *s, const bl_trials *t, const bl_pow
 
 /* ---- check summary ---- */
 
-typedef struct {
-    char *buf;
-    size_t len, cap;
-    int failed;
-} sbuf;
-
-static void sb_printf(sbuf *b, const char *fmt, ...) BL_PRINTF(2, 3);
-static void sb_printf(sbuf *b, const char *fmt, ...)
-{
-    if (b->failed) return;
-    for (;;) {
-        va_list ap;
-        va_start(ap, fmt);
-        int need = vsnprintf(b->buf ? b->buf + b->len : NULL, b->buf ? b->cap - b->len : 0, fmt, ap);
-        va_end(ap);
-        if (need < 0) {
-            b->failed = 1;
-            return;
-        }
-        if (b->buf && b->len + (size_t)need < b->cap) {
-            b->len += (size_t)need;
-            return;
-        }
-        size_t cap = (b->cap + (size_t)need + 1) * 2;
-        char *nb = realloc(b->buf, cap);
-        if (!nb) {
-            b->failed = 1;
-            return;
-        }
-        b->buf = nb;
-        b->cap = cap;
-    }
-}
-
 bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power_result *r, char **out, bl_error *err)
 {
     *out = NULL;
-    sbuf b = {0};
+    bl_textbuf b = {0};
     static const char *const scales[] = {"linear", "log10", "db"};
     static const char *const stds[] = {"none", "participant", "participant_condition"};
     static const char *const detrends[] = {"mean", "linear", "none"};
-    sb_printf(&b, "study        %s\n", s->path);
-    sb_printf(&b, "trial table  %s\n", s->trials.file);
-    sb_printf(&b, "participants %zu:", t->n_participants);
-    for (size_t p = 0; p < t->n_participants && p < 20; p++) sb_printf(&b, " %s", t->participants[p]);
-    if (t->n_participants > 20) sb_printf(&b, " ...");
-    sb_printf(&b, "\ntrials       %zu, kept %zu, excluded %zu\n", t->n, t->n_kept, t->n - t->n_kept);
+    bl_textbuf_printf(&b, "study        %s\n", s->path);
+    bl_textbuf_printf(&b, "trial table  %s\n", s->trials.file);
+    bl_textbuf_printf(&b, "participants %zu:", t->n_participants);
+    for (size_t p = 0; p < t->n_participants && p < 20; p++) bl_textbuf_printf(&b, " %s", t->participants[p]);
+    if (t->n_participants > 20) bl_textbuf_printf(&b, " ...");
+    bl_textbuf_printf(&b, "\ntrials       %zu, kept %zu, excluded %zu\n", t->n, t->n_kept, t->n - t->n_kept);
     bl_exclusion_count *ec = NULL;
     size_t ne = 0;
     if (bl_trials_exclusion_counts(t, &ec, &ne, NULL)) b.failed = 1;
-    for (size_t k = 0; ec && k < ne; k++) sb_printf(&b, "  excluded   %-40s %zu\n", ec[k].reason, ec[k].count);
+    for (size_t k = 0; ec && k < ne; k++) bl_textbuf_printf(&b, "  excluded   %-40s %zu\n", ec[k].reason, ec[k].count);
     free(ec);
     size_t n_up = 0, n_kept = 0;
     for (size_t i = 0; i < t->n; i++)
@@ -1209,60 +1176,60 @@ bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power
             n_kept++;
             n_up += (size_t)t->upper[i];
         }
-    sb_printf(&b, "responses    %zu upper, %zu lower (kept trials; %s coding)\n", n_up, n_kept - n_up,
-              s->trials.stimulus ? "stimulus" : "accuracy");
+    bl_textbuf_printf(&b, "responses    %zu upper, %zu lower (kept trials; %s coding)\n", n_up, n_kept - n_up,
+                      s->trials.stimulus ? "stimulus" : "accuracy");
     if (r) {
-        sb_printf(&b, "recordings   %zu file%s, %.10g Hz, channels", r->n_recordings, r->n_recordings == 1 ? "" : "s",
-                  r->fs);
+        bl_textbuf_printf(&b, "recordings   %zu file%s, %.10g Hz, channels", r->n_recordings,
+                          r->n_recordings == 1 ? "" : "s", r->fs);
         for (size_t c = 0; c < s->recordings.n_channels; c++)
-            sb_printf(&b, "%s%s", c ? ", " : " ", s->recordings.channels[c]);
+            bl_textbuf_printf(&b, "%s%s", c ? ", " : " ", s->recordings.channels[c]);
         if (s->recordings.n_gain_formats) { /* one gain per file extension */
-            sb_printf(&b, "%s, gain", s->recordings.n_channels > 1 ? " (averaged)" : "");
+            bl_textbuf_printf(&b, "%s, gain", s->recordings.n_channels > 1 ? " (averaged)" : "");
             for (size_t g = 0; g < s->recordings.n_gain_formats; g++)
-                sb_printf(&b, " %s %.10g%s", s->recordings.gain_format[g], s->recordings.gain_value[g],
-                          g + 1 < s->recordings.n_gain_formats ? "," : "");
-            sb_printf(&b, " (others 1), unit %s\n", s->recordings.unit);
+                bl_textbuf_printf(&b, " %s %.10g%s", s->recordings.gain_format[g], s->recordings.gain_value[g],
+                                  g + 1 < s->recordings.n_gain_formats ? "," : "");
+            bl_textbuf_printf(&b, " (others 1), unit %s\n", s->recordings.unit);
         } else
-            sb_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "",
-                      s->recordings.gain, s->recordings.unit);
+            bl_textbuf_printf(&b, "%s, gain %.10g, unit %s\n", s->recordings.n_channels > 1 ? " (averaged)" : "",
+                              s->recordings.gain, s->recordings.unit);
         for (size_t k = 0; k < r->n_recordings && k < 50; k++) {
             const bl_power_recording *rec = &r->recordings[k];
-            sb_printf(&b, "  %s: participant %s, %.10g Hz, %zu channel%s, %.6g s, %s, %zu trials\n", rec->path,
-                      rec->participant, rec->rate, rec->channels, rec->channels == 1 ? "" : "s",
-                      rec->rate > 0 ? (double)rec->frames / rec->rate : 0.0, rec->format, rec->n_trials);
+            bl_textbuf_printf(&b, "  %s: participant %s, %.10g Hz, %zu channel%s, %.6g s, %s, %zu trials\n", rec->path,
+                              rec->participant, rec->rate, rec->channels, rec->channels == 1 ? "" : "s",
+                              rec->rate > 0 ? (double)rec->frames / rec->rate : 0.0, rec->format, rec->n_trials);
         }
-        if (r->n_recordings > 50) sb_printf(&b, "  ... %zu more\n", r->n_recordings - 50);
-        sb_printf(&b, "window       %.6g s to %.6g s from the %s, %zu samples\n", s->power.from, s->power.to,
-                  s->power.align == BL_ALIGN_RESPONSE ? "response" : "onset", r->window_samples);
-        sb_printf(&b, "welch        hann, segment %zu samples, overlap %zu, %zu segment%s, detrend %s, %s average\n",
-                  r->nperseg, r->noverlap, r->n_segments, r->n_segments == 1 ? "" : "s", detrends[s->power.detrend],
-                  s->power.median ? "median" : "mean");
-        sb_printf(&b, "resolution   %.6g Hz (%zu bins, 0 to %.6g Hz)\n", r->df, r->n_freqs, r->freq[r->n_freqs - 1]);
+        if (r->n_recordings > 50) bl_textbuf_printf(&b, "  ... %zu more\n", r->n_recordings - 50);
+        bl_textbuf_printf(&b, "window       %.6g s to %.6g s from the %s, %zu samples\n", s->power.from, s->power.to,
+                          s->power.align == BL_ALIGN_RESPONSE ? "response" : "onset", r->window_samples);
+        bl_textbuf_printf(
+            &b, "welch        hann, segment %zu samples, overlap %zu, %zu segment%s, detrend %s, %s average\n",
+            r->nperseg, r->noverlap, r->n_segments, r->n_segments == 1 ? "" : "s", detrends[s->power.detrend],
+            s->power.median ? "median" : "mean");
+        bl_textbuf_printf(&b, "resolution   %.6g Hz (%zu bins, 0 to %.6g Hz)\n", r->df, r->n_freqs,
+                          r->freq[r->n_freqs - 1]);
         for (size_t k = 0; k < r->n_bands; k++) {
             const bl_power_band *pb = &r->bands[k];
-            sb_printf(&b, "  band %-12s [%g, %g] Hz: %zu bins (%.6g to %.6g Hz)%s\n", pb->name, pb->lo, pb->hi,
-                      pb->n_bins, r->freq[pb->first_bin], r->freq[pb->last_bin],
-                      pb->n_bins < pb->last_bin - pb->first_bin + 1 ? ", line-noise bins left out" : "");
+            bl_textbuf_printf(&b, "  band %-12s [%g, %g] Hz: %zu bins (%.6g to %.6g Hz)%s\n", pb->name, pb->lo, pb->hi,
+                              pb->n_bins, r->freq[pb->first_bin], r->freq[pb->last_bin],
+                              pb->n_bins < pb->last_bin - pb->first_bin + 1 ? ", line-noise bins left out" : "");
         }
-        sb_printf(&b, "regressors   scale %s, standardize %s\n", scales[s->power.scale], stds[s->power.standardize]);
-        sb_printf(&b, "artifacts    %zu trial%s flagged\n", r->n_artifacts, r->n_artifacts == 1 ? "" : "s");
+        bl_textbuf_printf(&b, "regressors   scale %s, standardize %s\n", scales[s->power.scale],
+                          stds[s->power.standardize]);
+        bl_textbuf_printf(&b, "artifacts    %zu trial%s flagged\n", r->n_artifacts, r->n_artifacts == 1 ? "" : "s");
     } else {
-        sb_printf(&b, "recordings   none (band regressors, if any, come from trial-table columns)\n");
+        bl_textbuf_printf(&b, "recordings   none (band regressors, if any, come from trial-table columns)\n");
     }
     char *breakdown = bl_check_breakdown(s, t, r); /* per participant and recording; scale/unit diagnosis */
     if (!breakdown) b.failed = 1;
-    else sb_printf(&b, "%s", breakdown);
+    else bl_textbuf_printf(&b, "%s", breakdown);
     free(breakdown);
-    sb_printf(&b, "models       %zu", s->n_models);
-    for (size_t k = 0; k < s->n_models; k++) sb_printf(&b, "%s%s", k ? ", " : ": ", s->models[k].name);
-    sb_printf(&b, "\nfit          participants %s, %d start%s\n",
-              s->fit.participants == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled", s->fit.starts,
-              s->fit.starts == 1 ? "" : "s");
-    sb_printf(&b, "output       %s\n", s->output);
-    if (b.failed) {
-        free(b.buf);
+    bl_textbuf_printf(&b, "models       %zu", s->n_models);
+    for (size_t k = 0; k < s->n_models; k++) bl_textbuf_printf(&b, "%s%s", k ? ", " : ": ", s->models[k].name);
+    bl_textbuf_printf(&b, "\nfit          participants %s, %d start%s\n",
+                      s->fit.participants == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled", s->fit.starts,
+                      s->fit.starts == 1 ? "" : "s");
+    bl_textbuf_printf(&b, "output       %s\n", s->output);
+    if (!(*out = bl_textbuf_take(&b)))
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the check summary");
-    }
-    *out = b.buf;
     return BL_OK;
 }
