@@ -84,6 +84,11 @@ void bl_model_restore_slopes(bl_model *m);
 typedef struct bl_likelihood bl_likelihood;
 /* BL_ERR_NOMEM (*out NULL) when memory ran out. The workspace keeps a pointer to `m`. */
 bl_status bl_likelihood_create(const bl_model *m, int threads, bl_likelihood **out, bl_error *err);
+/* A workspace over some used trials only (`trials`: n used-trial indices of m, copied), evaluated
+ * on the calling thread: one participant's likelihood in a hierarchical fit. bl_likelihood_trials
+ * then fills only those trials' entries. */
+bl_status bl_likelihood_create_subset(const bl_model *m, const size_t *trials, size_t n, bl_likelihood **out,
+                                      bl_error *err);
 void bl_likelihood_destroy(bl_likelihood *w);
 /* How one likelihood's trials are spread over threads (the one encoding of this choice, used by the
  * workspace and by bl_fit_options.parallel_trials). Results are the same bytes in every mode.

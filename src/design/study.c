@@ -571,13 +571,25 @@ static bl_status parse_power(ctx *c, const cJSON *o, bl_study *s)
 
 static bl_status parse_fit(ctx *c, const cJSON *o, bl_study *s)
 {
-    static const char *const keys[] = {"participants", "starts", NULL};
-    static const char *const modes[] = {"pooled", "separate", NULL};
+    static const char *const keys[] = {"participants", "starts", "quadrature", NULL};
+    static const char *const modes[] = {"pooled", "separate", "hierarchical", NULL};
     bl_status st;
     int tmp;
     if ((st = check_keys(c, o, "fit", keys))) return st;
-    if ((st = get_choice(c, o, "fit", "participants", modes, 0, &tmp))) return st;
-    s->fit.participants = tmp ? BL_PARTICIPANTS_SEPARATE : BL_PARTICIPANTS_POOLED;
+    if ((st = get_choice(c, o, "fit", "participants", modes, -1, &tmp))) return st;
+    s->fit.participants_given = tmp >= 0;
+    s->fit.participants = tmp == 1   ? BL_PARTICIPANTS_SEPARATE
+                          : tmp == 2 ? BL_PARTICIPANTS_HIERARCHICAL
+                                     : BL_PARTICIPANTS_POOLED;
+    double nodes;
+    if ((st = get_number(c, o, "fit", "quadrature", 1, &nodes, NULL))) return st;
+    /* 1 node is the Laplace approximation; 3 effects x 20 nodes is 8,000 points per participant */
+    if (!(nodes >= 1 && nodes <= 20 && nodes == floor(nodes)))
+        return bad(c, "fit.quadrature", get(o, "quadrature"), "must be a whole number of nodes from 1 to 20");
+    s->fit.quadrature = (int)nodes;
+    if (s->fit.quadrature > 1 && s->fit.participants_given && s->fit.participants != BL_PARTICIPANTS_HIERARCHICAL)
+        return bad(c, "fit.quadrature", get(o, "quadrature"),
+                   "integrates participants' effects: it needs \"participants\": \"hierarchical\"");
     double starts;
     if ((st = get_number(c, o, "fit", "starts", 3, &starts, NULL))) return st;
     if (!(starts >= 1 && starts <= 1000 && starts == floor(starts)))
@@ -591,6 +603,7 @@ static bl_status parse_fit(ctx *c, const cJSON *o, bl_study *s)
 static void param_free(bl_param_spec *p)
 {
     free_strings(p->per, p->n_per);
+    free_strings(p->varies, p->n_varies);
     for (size_t i = 0; i < p->n_slopes; i++) {
         free(p->slopes[i].regressor);
         free_strings(p->slopes[i].by, p->slopes[i].n_by);
@@ -606,10 +619,14 @@ static bl_status param_copy(ctx *c, bl_param_spec *d, const bl_param_spec *src)
     *d = *src;
     d->per = NULL;
     d->slopes = NULL;
-    d->n_per = d->n_slopes = 0;
+    d->varies = NULL;
+    d->n_per = d->n_slopes = d->n_varies = 0;
     d->per = copy_strings(src->per, src->n_per, &ok);
     if (!ok) return nomem(c);
     d->n_per = src->n_per;
+    d->varies = copy_strings(src->varies, src->n_varies, &ok);
+    if (!ok) return nomem(c);
+    d->n_varies = src->n_varies;
     if (src->n_slopes) {
         if (!(d->slopes = calloc(src->n_slopes, sizeof *d->slopes))) return nomem(c);
         for (size_t i = 0; i < src->n_slopes; i++) {
@@ -659,9 +676,42 @@ static bl_status check_fixed(ctx *c, const char *k, const cJSON *v, int which, d
     return BL_OK;
 }
 
+/* Each `varies` entry names the intercept or one of the parameter's slopes, optionally ":<level>"
+ * (levels are checked against the trials when the model is built); a fixed parameter has no
+ * coefficient that could vary. */
+static bl_status check_varies(ctx *c, const char *k, const cJSON *va, const bl_param_spec *p)
+{
+    if (p->n_varies && p->is_fixed) return bad(c, k, va, "names terms of a fixed parameter, which has no coefficients");
+    for (size_t i = 0; i < p->n_varies; i++) {
+        const char *t = p->varies[i];
+        size_t len = strcspn(t, ":");
+        int known = (len == 9 && !strncmp(t, "intercept", 9));
+        for (size_t j = 0; !known && j < p->n_slopes; j++)
+            known = strlen(p->slopes[j].regressor) == len && !strncmp(p->slopes[j].regressor, t, len);
+        char what[320];
+        if (!known) {
+            snprintf(what, sizeof what,
+                     "\"%s\" is neither \"intercept\" nor a slope of this parameter (give \"intercept\", a "
+                     "regressor of its slopes, or either with \":<level>\")",
+                     t);
+            return bad(c, k, va, what);
+        }
+        if (t[len] == ':' && !t[len + 1]) {
+            snprintf(what, sizeof what, "\"%s\": the level after ':' is empty", t);
+            return bad(c, k, va, what);
+        }
+        for (size_t j = 0; j < i; j++)
+            if (!strcmp(p->varies[j], t)) {
+                snprintf(what, sizeof what, "\"%s\" is given twice", t);
+                return bad(c, k, va, what);
+            }
+    }
+    return BL_OK;
+}
+
 static bl_status parse_param(ctx *c, const cJSON *v, const char *path, int which, bl_param_spec *p)
 {
-    static const char *const keys[] = {"per", "slopes", "fixed", "link", NULL};
+    static const char *const keys[] = {"per", "slopes", "fixed", "link", "varies", NULL};
     static const char *const links[] = {"identity", "log", NULL};
     bl_status st;
     memset(p, 0, sizeof *p);
@@ -703,6 +753,13 @@ static bl_status parse_param(ctx *c, const cJSON *v, const char *path, int which
     int link;
     if ((st = get_choice(c, v, path, "link", links, -1, &link))) return st;
     p->link = link < 0 ? BL_LINK_DEFAULT : link == 0 ? BL_LINK_IDENTITY : BL_LINK_LOG;
+    const cJSON *va = get(v, "varies");
+    if (va) {
+        join_key(k, sizeof k, path, "varies");
+        if ((st = get_string_array(c, va, k, 0, 1, &p->varies, &p->n_varies))) return st;
+        p->varies_given = 1;
+        if ((st = check_varies(c, k, va, p))) return st;
+    }
     return BL_OK;
 }
 
@@ -738,6 +795,7 @@ static bl_status resolve_model(ctx *c, bl_study *s, model_job *jobs, size_t i)
         }
         if (b == i) return bad(c, k, get(jobs[i].obj, "extends"), "a model cannot extend itself");
         if ((st = resolve_model(c, s, jobs, b))) return st;
+        m->correlated = s->models[b].correlated;
         for (int p = 0; p < BL_NPARAM; p++) {
             param_free(&m->param[p]);
             if ((st = param_copy(c, &m->param[p], &s->models[b].param[p]))) return st;
@@ -759,6 +817,13 @@ static bl_status resolve_model(ctx *c, bl_study *s, model_job *jobs, size_t i)
         param_free(&m->param[p]);
         m->param[p] = ps;
     }
+    const cJSON *cor = cJSON_GetObjectItemCaseSensitive(jobs[i].obj, "correlated");
+    if (cor) {
+        char k[96];
+        snprintf(k, sizeof k, "%s.correlated", path);
+        if (!cJSON_IsBool(cor)) return bad(c, k, cor, "must be true or false");
+        m->correlated = cJSON_IsTrue(cor);
+    }
     jobs[i].state = 2;
     return BL_OK;
 }
@@ -772,9 +837,9 @@ static bl_status parse_models(ctx *c, const cJSON *v, bl_study *s)
     model_job *jobs = calloc(n, sizeof *jobs);
     if (!jobs) return nomem(c);
     bl_status st = BL_OK;
-    const char *keys[BL_NPARAM + 3] = {"name", "extends"};
-    for (int p = 0; p < BL_NPARAM; p++) keys[2 + p] = param_names[p];
-    keys[BL_NPARAM + 2] = NULL;
+    const char *keys[BL_NPARAM + 4] = {"name", "extends", "correlated"};
+    for (int p = 0; p < BL_NPARAM; p++) keys[3 + p] = param_names[p];
+    keys[BL_NPARAM + 3] = NULL;
     size_t i = 0;
     for (const cJSON *it = v->child; it; it = it->next, i++) {
         char path[64];
@@ -803,6 +868,38 @@ done:
     return st;
 }
 
+/* `varies` and `correlated` describe participants' effects: a study that names another mode cannot use them. */
+static bl_status check_hierarchical_keys(ctx *c, const cJSON *models, const bl_study *s)
+{
+    if (!s->fit.participants_given || s->fit.participants == BL_PARTICIPANTS_HIERARCHICAL) return BL_OK;
+    const char *mode = s->fit.participants == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled";
+    size_t i = 0;
+    for (const cJSON *it = models->child; it; it = it->next, i++) {
+        char k[128], what[200];
+        snprintf(what, sizeof what,
+                 "describes participants' effects, but fit.participants is \"%s\" (use \"hierarchical\")", mode);
+        const cJSON *cor = get(it, "correlated");
+        if (cor) {
+            snprintf(k, sizeof k, "models[%zu].correlated", i);
+            return bad(c, k, cor, what);
+        }
+        for (int p = 0; p < BL_NPARAM; p++) {
+            const cJSON *pv = cJSON_GetObjectItemCaseSensitive(it, param_names[p]);
+            const cJSON *va = cJSON_IsObject(pv) ? get(pv, "varies") : NULL;
+            if (!va) continue;
+            snprintf(k, sizeof k, "models[%zu].%s.varies", i, param_names[p]);
+            return bad(c, k, va, what);
+        }
+    }
+    return BL_OK;
+}
+
+bl_participants_mode bl_study_participants_mode(const bl_study *s, size_t n_participants)
+{
+    if (s->fit.participants_given) return s->fit.participants;
+    return n_participants >= 3 ? BL_PARTICIPANTS_HIERARCHICAL : BL_PARTICIPANTS_POOLED;
+}
+
 /* ---- entry points ---- */
 
 bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_error *err)
@@ -829,6 +926,7 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
     s->recordings.rate = NAN;
     s->trials.rt_min = s->trials.rt_max = NAN;
     s->fit.starts = 3;
+    s->fit.quadrature = 1;
     if (!cJSON_IsObject(root)) {
         st = bl_error_set(err, BL_ERR_INPUT, "%s: the study must be a JSON object {...}", name);
         goto fail;
@@ -864,6 +962,7 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
     if (o && (st = parse_fit(&c, o, s))) goto fail;
     const cJSON *models = get(root, "models");
     if (models && (st = parse_models(&c, models, s))) goto fail;
+    if (models && (st = check_hierarchical_keys(&c, models, s))) goto fail;
     char *outname = NULL;
     if ((st = get_string(&c, root, "", "output", "results", &outname))) goto fail;
     s->output = resolve_path(s->dir, outname);
@@ -988,8 +1087,13 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
         cJSON_AddBoolToObject(a, "clipping", s->power.clipping);
     }
     cJSON *f = cJSON_AddObjectToObject(root, "fit");
-    cJSON_AddStringToObject(f, "participants", s->fit.participants == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled");
+    if (s->fit.participants_given) /* otherwise decided by the number of participants */
+        cJSON_AddStringToObject(f, "participants",
+                                s->fit.participants == BL_PARTICIPANTS_SEPARATE       ? "separate"
+                                : s->fit.participants == BL_PARTICIPANTS_HIERARCHICAL ? "hierarchical"
+                                                                                      : "pooled");
     cJSON_AddNumberToObject(f, "starts", s->fit.starts);
+    cJSON_AddNumberToObject(f, "quadrature", s->fit.quadrature);
     cJSON *ms = cJSON_AddArrayToObject(root, "models");
     for (size_t i = 0; i < s->n_models; i++) {
         const bl_model_spec *m = &s->models[i];
@@ -1010,7 +1114,9 @@ bl_status bl_study_to_json(const bl_study *s, char **out, bl_error *err)
                                           string_array(ps->slopes[j].by, ps->slopes[j].n_by));
             }
             if (ps->link != BL_LINK_DEFAULT) cJSON_AddStringToObject(po, "link", links[ps->link]);
+            if (ps->varies_given) cJSON_AddItemToObject(po, "varies", string_array(ps->varies, ps->n_varies));
         }
+        if (m->correlated) cJSON_AddBoolToObject(mo, "correlated", 1);
     }
     cJSON_AddStringToObject(root, "output", s->output);
     if (s->scan_json) { /* a failed allocation here is counted, and caught just below */

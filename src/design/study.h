@@ -30,6 +30,12 @@ typedef struct {
     bl_slope_spec *slopes;
     size_t n_slopes;
     bl_link link; /* BL_LINK_DEFAULT: identity (see docs/models.md) */
+    /* Hierarchical fits: the terms whose coefficients vary by participant ("intercept",
+     * "intercept:<level>", "<regressor>", "<regressor>:<level>"). varies_given = 0: the default
+     * (the intercept of a free parameter varies, slopes do not). */
+    char **varies;
+    size_t n_varies;
+    int varies_given;
 } bl_param_spec;
 
 typedef struct {
@@ -38,6 +44,7 @@ typedef struct {
     bl_param_spec param[BL_NPARAM]; /* after `extends` and defaults: unnamed parameters are free
                                         single values (threshold, drift, nondecision) or fixed
                                         (start 0.5, the rest 0) */
+    int correlated;                 /* hierarchical: participants' effects with an unstructured covariance */
 } bl_model_spec;
 
 typedef struct {
@@ -55,7 +62,11 @@ typedef enum { BL_ALIGN_ONSET = 0, BL_ALIGN_RESPONSE } bl_align;
 /* What each Welch segment loses before the taper: its mean (scipy's detrend='constant'), its
  * least-squares line, or nothing. The one detrend type: spectrum.h takes it as it is. */
 typedef enum { BL_DETREND_MEAN = 0, BL_DETREND_LINEAR, BL_DETREND_NONE } bl_detrend;
-typedef enum { BL_PARTICIPANTS_POOLED = 0, BL_PARTICIPANTS_SEPARATE } bl_participants_mode;
+typedef enum {
+    BL_PARTICIPANTS_POOLED = 0,
+    BL_PARTICIPANTS_SEPARATE,
+    BL_PARTICIPANTS_HIERARCHICAL
+} bl_participants_mode;
 
 typedef struct bl_study {
     char *path; /* the study file as given */
@@ -122,8 +133,11 @@ typedef struct bl_study {
     } power;
 
     struct {
-        bl_participants_mode participants;
-        int starts; /* optimiser starts per fit */
+        bl_participants_mode participants; /* when not given: hierarchical for >= 3 participants, else pooled
+                                              (bl_study_participants_mode) */
+        int participants_given;
+        int starts;     /* optimiser starts per fit */
+        int quadrature; /* hierarchical: Gauss-Hermite nodes per dimension; 1 = the Laplace approximation */
     } fit;
 
     bl_model_spec *models;
@@ -139,6 +153,10 @@ bl_status bl_study_parse(const char *json, const char *path, bl_study **out, bl_
  * BL_ERR_NOMEM (*out NULL) when memory ran out. */
 bl_status bl_study_to_json(const bl_study *study, char **out, bl_error *err);
 void bl_study_destroy(bl_study *study);
+
+/* The participants mode a fit uses: the study's, or when the study does not name one, hierarchical
+ * with 3 or more participants and pooled otherwise. */
+bl_participants_mode bl_study_participants_mode(const bl_study *s, size_t n_participants);
 
 /* The gain for one recording: its extension's entry of a per-format "gain" object, else recordings.gain. */
 double bl_study_recording_gain(const bl_study *s, const char *path);

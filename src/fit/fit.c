@@ -749,7 +749,7 @@ static int fill_coefficients(const bl_model *m, const double *coef, const double
         c->level = bl_strdup(ci->level);
         if (!c->term || !c->level) return 0;
         c->estimate = coef[j];
-        c->se = c->z = c->p = c->ci_low = c->ci_high = NAN;
+        c->se = c->z = c->p = c->ci_low = c->ci_high = c->df = NAN;
         if (wald) {
             c->se = sqrt(cov[j * k + j]);
             c->z = c->estimate / c->se;

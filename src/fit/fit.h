@@ -45,6 +45,8 @@ typedef struct {
     double estimate;        /* on the link scale (log link: log of the parameter) */
     double se, z, p;        /* Wald; NAN when the observed information is not positive definite */
     double ci_low, ci_high; /* 95% Wald interval, NAN as above */
+    double df;              /* hierarchical: degrees of freedom of the t reference (participants - 1) for a
+                               coefficient that varies by participant; NAN: normal reference */
 } bl_coefficient;
 
 typedef struct {
@@ -103,6 +105,18 @@ typedef struct {
     double p;            /* (1 + exceed) / (1 + permutations) */
 } bl_permutation_test;
 
+/* Hierarchical mode: the participant spread of one varying term (SD of the participants' offsets on
+ * the parameter's link scale) with its profile-likelihood interval and its test against no spread. */
+typedef struct {
+    bl_param param;
+    const char *parameter;
+    char *term;             /* as named in `varies`: "intercept", "intercept:rich", "theta", ... */
+    double sd;              /* maximum marginal-likelihood estimate (>= 0) */
+    double ci_low, ci_high; /* 95% profile-likelihood interval (ci_low = 0 when SD = 0 is inside) */
+    double lrt_statistic;   /* 2 (LL - LL with this SD = 0) */
+    double lrt_p;           /* against the 50:50 mixture of chi-square(0) and chi-square(1) */
+} bl_variance_component;
+
 typedef struct {
     char *name;
     char *extends; /* NULL when the model extends none */
@@ -120,6 +134,14 @@ typedef struct {
     bl_fit_result *participants;
     size_t n_group;
     bl_group_coefficient *group;
+    /* Hierarchical: participants[] hold the empirical-Bayes estimates (coefficients of each participant:
+     * population value plus their conditional-mode offset, with conditional SEs; log_likelihood is
+     * their trials' log-likelihood at those estimates); `fit` holds the population coefficients and the
+     * marginal log-likelihood. */
+    size_t n_variance;
+    bl_variance_component *variance;
+    double *correlation; /* n_variance x n_variance (correlated effects), else NULL */
+    int quadrature;      /* nodes per dimension; 1 = Laplace */
     size_t n_permutation;
     bl_permutation_test *permutation;
     /* Trial-wise predictions, indexed by table row (n_rows = trials->n); used[row] = 0 for rows not

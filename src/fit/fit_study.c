@@ -6,6 +6,7 @@
  * compare.c calls fit.c for its refits; fit.c calls neither, so the three have no cycle.
  */
 #include "fit/fit_internal.h"
+#include "fit/hier.h"
 #include "design/model_internal.h"
 
 #include "fit/fit.h"
@@ -29,17 +30,24 @@ typedef struct {
     size_t *sel; /* study model index of each selected model */
     size_t n_sel;
     bl_unit_set *units; /* per selected model: its compiled designs, workspaces, estimates */
+    bl_hier **hier;     /* hierarchical mode, per selected model: participants' effects and workspaces */
+    double **part_coef; /* hierarchical mode, per selected model: each participant's coefficients */
     char ***unit_names; /* per selected model: participant label of each unit (separate mode) */
     bl_fit_set *set;
 } study_fit;
 
+/* Predictions of the used trials (those listed in subset when given: one participant's, with their
+ * own coefficients) from coef. */
 static bl_status fill_predictions(bl_model_result *r, const bl_model *m, const double *coef, bl_likelihood *lik,
-                                  bl_error *err)
+                                  const size_t *subset, size_t n_subset, bl_error *err)
 {
     double *tll = malloc((m->n ? m->n : 1) * sizeof *tll);
-    if (!tll) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the trial-wise predictions", m->name);
+    if (!tll)
+        return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the trial-wise predictions", m->name);
     bl_likelihood_trials(lik, coef, tll);
-    for (size_t k = 0; k < m->n; k++) {
+    size_t n_k = subset ? n_subset : m->n;
+    for (size_t kk = 0; kk < n_k; kk++) {
+        size_t k = subset ? subset[kk] : kk;
         size_t row = m->row[k];
         bl_wiener_params p;
         bl_model_predict(m, coef, k, &p);
@@ -68,6 +76,9 @@ static void model_result_free(bl_model_result *r)
     bl_fit_result_clear(&r->fit);
     for (size_t i = 0; i < r->n_participants; i++) bl_fit_result_clear(&r->participants[i]);
     free(r->participants);
+    for (size_t i = 0; i < r->n_variance; i++) free(r->variance[i].term);
+    free(r->variance);
+    free(r->correlation);
     for (size_t i = 0; i < r->n_group; i++) {
         free(r->group[i].term);
         free(r->group[i].level);
@@ -123,7 +134,13 @@ static void study_fit_free(study_fit *sf)
     for (size_t q = 0; q < sf->n_sel; q++) {
         if (sf->units) bl_unit_set_free(&sf->units[q]);
         if (sf->unit_names) free(sf->unit_names[q]);
+        if (sf->hier) bl_hier_destroy(sf->hier[q]);
+        if (sf->part_coef) free(sf->part_coef[q]);
     }
+    free(sf->hier);
+    free(sf->part_coef);
+    sf->hier = NULL;
+    sf->part_coef = NULL;
     free(sf->units);
     free(sf->unit_names);
     free(sf->sel);
@@ -146,8 +163,11 @@ static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_t
     sf->sel = calloc(n_alloc, sizeof *sf->sel);
     sf->units = calloc(n_alloc, sizeof *sf->units);
     sf->unit_names = calloc(n_alloc, sizeof *sf->unit_names);
+    sf->hier = calloc(n_alloc, sizeof *sf->hier);
+    sf->part_coef = calloc(n_alloc, sizeof *sf->part_coef);
     sf->set = calloc(1, sizeof *sf->set);
-    if (!sf->sel || !sf->units || !sf->unit_names || !sf->set) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    if (!sf->sel || !sf->units || !sf->unit_names || !sf->hier || !sf->part_coef || !sf->set)
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
     for (size_t j = 0; j < study->n_models; j++) {
         int want = sf->opt.n_models == 0;
         for (size_t i = 0; i < sf->opt.n_models; i++)
@@ -155,7 +175,13 @@ static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_t
         if (want) sf->sel[sf->n_sel++] = j;
     }
     bl_fit_set *set = sf->set;
-    set->mode = study->fit.participants;
+    set->mode = bl_study_participants_mode(study, trials->n_participants);
+    if (set->mode == BL_PARTICIPANTS_HIERARCHICAL && sf->opt.permutations > 0)
+        return bl_error_set(err, BL_ERR_USAGE,
+                            "--permutations %zu: permutation tests refit pooled or separate fits; with "
+                            "fit.participants \"hierarchical\" use the Wald or likelihood-ratio tests, or set "
+                            "\"participants\": \"pooled\" for permutation tests",
+                            sf->opt.permutations);
     set->permutations = sf->opt.permutations;
     set->seed = sf->opt.seed;
     set->threads = sf->opt.threads;
@@ -199,8 +225,13 @@ static bl_status build_designs(study_fit *sf, bl_warnings *warn, bl_error *err)
         const bl_model_spec *spec = &sf->study->models[sf->sel[q]];
         bl_model_result *r = &set->models[q];
         bl_status st = model_result_init(r, spec, set->mode, sf->trials->n, err);
+        /* hierarchical: one pooled design (its fit is the start), and the participants' effects on it */
+        bl_participants_mode unit_mode = set->mode == BL_PARTICIPANTS_HIERARCHICAL ? BL_PARTICIPANTS_POOLED : set->mode;
         if (!st)
-            st = bl_build_units(spec, sf->trials, set->mode, &sf->opt, &sf->units[q], &sf->unit_names[q], warn, err);
+            st = bl_build_units(spec, sf->trials, unit_mode, &sf->opt, &sf->units[q], &sf->unit_names[q], warn, err);
+        if (!st && set->mode == BL_PARTICIPANTS_HIERARCHICAL)
+            st = bl_hier_create(spec, sf->units[q].models[0], sf->trials, sf->study->fit.quadrature, sf->opt.threads,
+                                &sf->hier[q], err);
         if (st) return st;
         if (set->mode != BL_PARTICIPANTS_SEPARATE) continue;
         r->participants = calloc(sf->units[q].n_units, sizeof *r->participants);
@@ -276,6 +307,25 @@ done:
     return st;
 }
 
+/* Step 2b, hierarchical mode: from each model's pooled fit, the fit with participants' effects
+ * integrated out (the pooled fit is the starting point and is then discarded). */
+static bl_status run_hierarchical_fits(study_fit *sf, bl_warnings *warn, bl_error *err)
+{
+    bl_fit_set *set = sf->set;
+    if (set->mode != BL_PARTICIPANTS_HIERARCHICAL) return BL_OK;
+    for (size_t q = 0; q < sf->n_sel; q++) {
+        bl_model_result *r = &set->models[q];
+        bl_fit_result pooled = r->fit;
+        memset(&r->fit, 0, sizeof r->fit);
+        bl_status st = bl_hier_fit(sf->hier[q], &sf->opt, &pooled, sf->units[q].coef[0], r, &sf->part_coef[q], warn,
+                                   err);
+        bl_fit_result_clear(&pooled);
+        if (st) return st;
+        if (sf->opt.progress) sf->opt.progress(sf->opt.progress_user, r->name, q + 1, sf->n_sel);
+    }
+    return BL_OK;
+}
+
 /* Separate mode: the model's own fit record holds the totals over its participants. */
 static void separate_totals(bl_model_result *r)
 {
@@ -301,6 +351,32 @@ static void separate_totals(bl_model_result *r)
     }
 }
 
+/* Step 3, hierarchical model q: warnings, totals from the marginal likelihood, each participant's
+ * trials predicted from their empirical-Bayes coefficients. */
+static bl_status summarise_hierarchical(study_fit *sf, size_t q, int *nondecision_note, bl_warnings *warn,
+                                        bl_error *err)
+{
+    bl_model_result *r = &sf->set->models[q];
+    const bl_model *m = sf->units[q].models[0];
+    bl_fit_warn(m, NULL, &r->fit, warn);
+    r->log_likelihood = r->fit.log_likelihood;
+    r->parameters = r->fit.parameters;
+    r->trials = r->fit.trials;
+    r->converged = r->fit.converged;
+    r->aic = r->fit.aic;
+    r->bic = r->fit.bic;
+    size_t n_coef = bl_model_n_coef(m);
+    for (size_t j = 0; j < bl_hier_participants(sf->hier[q]); j++) {
+        size_t n;
+        const size_t *trials = bl_hier_participant_trials(sf->hier[q], j, &n);
+        bl_status st = fill_predictions(r, m, sf->part_coef[q] + j * n_coef,
+                                        bl_hier_participant_likelihood(sf->hier[q], j), trials, n, err);
+        if (st) return st;
+    }
+    if (bl_model_param_free(m, BL_NONDECISION) && !bl_model_param_free(m, BL_NONDECISION_RANGE)) *nondecision_note = 1;
+    return BL_OK;
+}
+
 /* Step 3, for model q: warnings, predictions, totals, group summary, permutation tests. */
 static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note, bl_warnings *warn, bl_error *err)
 {
@@ -308,6 +384,7 @@ static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note,
     bl_model_result *r = &set->models[q];
     bl_unit_set *u = &sf->units[q];
     r->converged = 1;
+    if (set->mode == BL_PARTICIPANTS_HIERARCHICAL) return summarise_hierarchical(sf, q, nondecision_note, warn, err);
     for (size_t i = 0; i < u->n_units; i++) {
         bl_fit_result *fr = set->mode == BL_PARTICIPANTS_SEPARATE ? &r->participants[i] : &r->fit;
         bl_fit_warn(u->models[i], fr->participant, fr, warn);
@@ -315,7 +392,7 @@ static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note,
         r->parameters += fr->parameters;
         r->trials += fr->trials;
         r->converged = r->converged && fr->converged;
-        bl_status st = fill_predictions(r, u->models[i], u->coef[i], u->liks[i], err);
+        bl_status st = fill_predictions(r, u->models[i], u->coef[i], u->liks[i], NULL, 0, err);
         if (st) return st;
     }
     if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
@@ -365,6 +442,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     if ((st = bl_screen_trials(study, trials, sf.sel, sf.n_sel, warn, err))) goto fail;
     if ((st = build_designs(&sf, warn, err))) goto fail;
     if ((st = run_fits(&sf, err))) goto fail;
+    if ((st = run_hierarchical_fits(&sf, warn, err))) goto fail;
     for (size_t q = 0; q < sf.n_sel; q++)
         if ((st = summarise_model(&sf, q, &nondecision_note, warn, err))) goto fail;
     if (nondecision_note)

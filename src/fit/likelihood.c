@@ -22,6 +22,8 @@
 
 struct bl_likelihood {
     const bl_model *m;
+    size_t *subset; /* used-trial indices evaluated (one participant's); NULL: every trial */
+    size_t n;       /* trials evaluated */
     int threads;
     size_t n_blocks;
     double *block_ll;   /* n_blocks */
@@ -51,6 +53,7 @@ bl_status bl_likelihood_create(const bl_model *m, int threads, bl_likelihood **o
     bl_likelihood *w = calloc(1, sizeof *w);
     if (!w) goto nomem;
     w->m = m;
+    w->n = m->n;
     w->threads = threads;
     w->n_blocks = (m->n + BL_LIK_BLOCK - 1) / BL_LIK_BLOCK;
     w->use_par = 1;
@@ -68,9 +71,29 @@ nomem:
     return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for the likelihood workspace", m->name);
 }
 
+bl_status bl_likelihood_create_subset(const bl_model *m, const size_t *trials, size_t n, bl_likelihood **out,
+                                      bl_error *err)
+{
+    bl_status st = bl_likelihood_create(m, 1, out, err);
+    if (st) return st;
+    bl_likelihood *w = *out;
+    w->n = n;
+    w->n_blocks = (n + BL_LIK_BLOCK - 1) / BL_LIK_BLOCK;
+    w->parallel = BL_PARALLEL_UNSPLIT;
+    w->subset = malloc((n ? n : 1) * sizeof *w->subset);
+    if (!w->subset) {
+        bl_likelihood_destroy(w);
+        *out = NULL;
+        return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for a participant's likelihood", m->name);
+    }
+    memcpy(w->subset, trials, n * sizeof *trials);
+    return BL_OK;
+}
+
 void bl_likelihood_destroy(bl_likelihood *w)
 {
     if (!w) return;
+    free(w->subset);
     free(w->block_ll);
     free(w->block_grad);
     free(w->block_bad);
@@ -79,13 +102,15 @@ void bl_likelihood_destroy(bl_likelihood *w)
 
 size_t bl_likelihood_evaluations(const bl_likelihood *w) { return w->evaluations; }
 
-/* One block: trials [k0, k1). Returns 0 when a trial is infeasible. */
-static int eval_block(const bl_model *m, const double *coef, size_t k0, size_t k1, double *ll_out, double *g,
-                      double *trial_ll)
+/* One block: trials [k0, k1) of the evaluated list (subset[] when given). Returns 0 when a trial
+ * is infeasible. */
+static int eval_block(const bl_model *m, const size_t *subset, const double *coef, size_t k0, size_t k1, double *ll_out,
+                      double *g, double *trial_ll)
 {
     double ll = 0;
     if (g) memset(g, 0, m->n_coef * sizeof *g);
-    for (size_t k = k0; k < k1; k++) {
+    for (size_t kk = k0; kk < k1; kk++) {
+        size_t k = subset ? subset[kk] : kk;
         bl_wiener_params p;
         double dtheta[BL_NPARAM];
         for (int q = 0; q < BL_NPARAM; q++) {
@@ -169,15 +194,15 @@ static double evaluate(bl_likelihood *w, const double *coef, double *grad, doubl
 #pragma omp parallel for schedule(dynamic, 1) num_threads(nt)
 #endif
         for (size_t b = 0; b < nb; b++) {
-            size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < m->n ? k0 + BL_LIK_BLOCK : m->n;
-            w->block_bad[b] = !eval_block(m, coef, k0, k1, &w->block_ll[b], grad ? w->block_grad + b * w->stride : NULL,
-                                          trial_ll);
+            size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < w->n ? k0 + BL_LIK_BLOCK : w->n;
+            w->block_bad[b] = !eval_block(m, w->subset, coef, k0, k1, &w->block_ll[b],
+                                          grad ? w->block_grad + b * w->stride : NULL, trial_ll);
         }
     } else {
         for (size_t b = 0; b < nb; b++) {
-            size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < m->n ? k0 + BL_LIK_BLOCK : m->n;
-            w->block_bad[b] = !eval_block(m, coef, k0, k1, &w->block_ll[b], grad ? w->block_grad + b * w->stride : NULL,
-                                          trial_ll);
+            size_t k0 = b * BL_LIK_BLOCK, k1 = k0 + BL_LIK_BLOCK < w->n ? k0 + BL_LIK_BLOCK : w->n;
+            w->block_bad[b] = !eval_block(m, w->subset, coef, k0, k1, &w->block_ll[b],
+                                          grad ? w->block_grad + b * w->stride : NULL, trial_ll);
         }
     }
     if (probing && par && !w->warmed) {
@@ -225,7 +250,8 @@ double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad) { 
 
 double bl_likelihood_trials(bl_likelihood *w, const double *coef, double *trial_ll)
 {
-    for (size_t k = 0; k < w->m->n; k++) trial_ll[k] = NAN;
+    for (size_t k = 0; k < w->m->n; k++)
+        if (!w->subset) trial_ll[k] = NAN;
     double ll = evaluate(w, coef, NULL, trial_ll);
     return ll;
 }

@@ -62,6 +62,7 @@ static cJSON *coefficients_json(const bl_fit_result *f)
                  add_str(o, "level", c->level) && add_num(o, "estimate", c->estimate) && add_num(o, "se", c->se) &&
                  add_num(o, "ci_low", c->ci_low) && add_num(o, "ci_high", c->ci_high) && add_num(o, "z", c->z) &&
                  add_num(o, "p", c->p);
+        if (ok && f->participant == NULL && isfinite(c->df)) ok = add_num(o, "df", c->df);
         if (!ok) {
             cJSON_Delete(a);
             return NULL;
@@ -106,14 +107,74 @@ static int fit_fields(cJSON *o, const char *name, const bl_fit_result *f, double
            add(o, "coefficients", coefficients_json(f)) && add(o, "covariance", covariance_json(f));
 }
 
+const char *bl_results_mode_name(bl_participants_mode mode)
+{
+    return mode == BL_PARTICIPANTS_SEPARATE       ? "separate"
+           : mode == BL_PARTICIPANTS_HIERARCHICAL ? "hierarchical"
+                                                  : "pooled";
+}
+
+/* Hierarchical: the participant spread of every varying term and the participants' empirical-Bayes
+ * estimates (docs/outputs.md). */
+static int hierarchical_json(cJSON *o, const bl_model_result *r)
+{
+    cJSON *vcs = cJSON_CreateArray();
+    int ok = add(o, "variance_components", vcs) &&
+             add_str(o, "integration", r->quadrature > 1 ? "gauss-hermite" : "laplace") &&
+             add_num(o, "quadrature", r->quadrature);
+    for (size_t i = 0; ok && i < r->n_variance; i++) {
+        const bl_variance_component *v = &r->variance[i];
+        cJSON *e = cJSON_CreateObject();
+        ok = e && cJSON_AddItemToArray(vcs, e);
+        if (!ok) {
+            cJSON_Delete(e);
+            break;
+        }
+        ok = add_str(e, "parameter", v->parameter) && add_str(e, "term", v->term) && add_num(e, "sd", v->sd) &&
+             add_num(e, "ci_low", v->ci_low) && add_num(e, "ci_high", v->ci_high) &&
+             add_num(e, "lrt_statistic", v->lrt_statistic) && add_num(e, "lrt_p", v->lrt_p);
+    }
+    if (ok && r->correlation) {
+        cJSON *rows = cJSON_CreateArray();
+        ok = add(o, "correlation", rows);
+        for (size_t a = 0; ok && a < r->n_variance; a++) {
+            cJSON *row = cJSON_CreateArray();
+            ok = row && cJSON_AddItemToArray(rows, row);
+            if (!ok) {
+                cJSON_Delete(row);
+                break;
+            }
+            for (size_t b = 0; ok && b < r->n_variance; b++) {
+                cJSON *x = num_or_null(r->correlation[a * r->n_variance + b]);
+                ok = x && cJSON_AddItemToArray(row, x);
+                if (!ok) cJSON_Delete(x);
+            }
+        }
+    }
+    cJSON *parts = ok ? cJSON_CreateArray() : NULL;
+    ok = ok && add(o, "participants", parts);
+    for (size_t i = 0; ok && i < r->n_participants; i++) {
+        const bl_fit_result *f = &r->participants[i];
+        cJSON *p = cJSON_CreateObject();
+        ok = p && cJSON_AddItemToArray(parts, p);
+        if (!ok) {
+            cJSON_Delete(p);
+            break;
+        }
+        ok = add_str(p, "participant", f->participant) && add_num(p, "trials", (double)f->trials) &&
+             add_num(p, "log_likelihood", f->log_likelihood) && add(p, "coefficients", coefficients_json(f));
+    }
+    return ok;
+}
+
 static cJSON *model_json(const bl_model_result *r)
 {
     cJSON *o = cJSON_CreateObject();
     if (!o) return NULL;
     int ok = fit_fields(o, r->name, &r->fit, r->log_likelihood, r->parameters, r->trials, r->aic, r->bic,
                         r->converged) &&
-             add_str(o, "extends", r->extends) &&
-             add_str(o, "mode", r->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled");
+             add_str(o, "extends", r->extends) && add_str(o, "mode", bl_results_mode_name(r->mode));
+    if (ok && r->mode == BL_PARTICIPANTS_HIERARCHICAL) ok = hierarchical_json(o, r);
     if (ok && r->mode == BL_PARTICIPANTS_SEPARATE) {
         cJSON *parts = cJSON_CreateArray();
         ok = add(o, "participants", parts);
@@ -182,8 +243,7 @@ static cJSON *bl_results_fits_json(const bl_fit_set *set, const cJSON *provenanc
     /* add() owns the item it is given (it deletes it when it cannot attach it), so each array is either
      * handed to add() or deleted here, never both. */
     cJSON *root = cJSON_CreateObject(), *models = cJSON_CreateArray(), *warn = cJSON_CreateArray();
-    int ok = root &&
-             add(root, "mode", cJSON_CreateString(set->mode == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled"));
+    int ok = root && add(root, "mode", cJSON_CreateString(bl_results_mode_name(set->mode)));
     if (ok) ok = add(root, "models", models);
     else cJSON_Delete(models);
     for (size_t i = 0; ok && i < set->n_models; i++) {

@@ -28,6 +28,9 @@
 
 #include <cjson/cJSON.h>
 
+/* "pooled", "separate" or "hierarchical", as written in fits.json. */
+const char *bl_results_mode_name(bl_participants_mode mode);
+
 bl_status bl_results_write_fits(const char *path, const bl_fit_set *set, const cJSON *provenance,
                                 const bl_warnings *warnings, bl_error *err);
 bl_status bl_results_write_comparison(const char *path, const bl_fit_set *set, bl_error *err);
