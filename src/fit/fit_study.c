@@ -151,7 +151,7 @@ static void study_fit_free(study_fit *sf)
 
 /* The selected models in study order, and the empty result set. */
 static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_trials *trials,
-                                const bl_fit_options *opt_in, bl_error *err)
+                                const bl_fit_options *opt_in, bl_warnings *warn, bl_error *err)
 {
     memset(sf, 0, sizeof *sf);
     sf->study = study;
@@ -176,12 +176,19 @@ static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_t
     }
     bl_fit_set *set = sf->set;
     set->mode = bl_study_participants_mode(study, trials->n_participants);
-    if (set->mode == BL_PARTICIPANTS_HIERARCHICAL && sf->opt.permutations > 0)
-        return bl_error_set(err, BL_ERR_USAGE,
-                            "--permutations %zu: permutation tests refit pooled or separate fits; with "
-                            "fit.participants \"hierarchical\" use the Wald or likelihood-ratio tests, or set "
-                            "\"participants\": \"pooled\" for permutation tests",
-                            sf->opt.permutations);
+    if (set->mode == BL_PARTICIPANTS_HIERARCHICAL && sf->opt.permutations > 0) {
+        if (study->fit.participants_given)
+            return bl_error_set(err, BL_ERR_USAGE,
+                                "--permutations %zu: permutation tests refit pooled or separate fits; with "
+                                "fit.participants \"hierarchical\" use the Wald or likelihood-ratio tests, or set "
+                                "\"participants\": \"pooled\" for permutation tests",
+                                sf->opt.permutations);
+        set->mode = BL_PARTICIPANTS_POOLED;
+        bl_warnings_add(warn,
+                        "participants pooled, not hierarchical (the default for %zu participants): permutation tests "
+                        "refit pooled or separate fits; set fit.participants to choose",
+                        trials->n_participants);
+    }
     set->permutations = sf->opt.permutations;
     set->seed = sf->opt.seed;
     set->threads = sf->opt.threads;
@@ -437,7 +444,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     if (st) return st;
     study_fit sf;
     int nondecision_note = 0;
-    if ((st = study_fit_init(&sf, study, trials, opt, err))) goto fail;
+    if ((st = study_fit_init(&sf, study, trials, opt, warn, err))) goto fail;
     /* Data the model cannot use (identical RTs) stop here; data that weaken estimates get warnings. */
     if ((st = bl_screen_trials(study, trials, sf.sel, sf.n_sel, warn, err))) goto fail;
     if ((st = build_designs(&sf, warn, err))) goto fail;
