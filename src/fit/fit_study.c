@@ -14,6 +14,7 @@
 #include "core/strutil.h"
 #include "core/gsl_guard.h"
 
+#include <gsl/gsl_cdf.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -149,6 +150,66 @@ static void study_fit_free(study_fit *sf)
     sf->sel = NULL;
 }
 
+typedef struct {
+    double rt;
+    size_t participant;
+} rt_entry;
+
+static int rt_entry_cmp(const void *a, const void *b)
+{
+    double x = ((const rt_entry *)a)->rt, y = ((const rt_entry *)b)->rt;
+    return (x > y) - (x < y);
+}
+
+/* Pooled fits of several participants: a quick check that they differ (Kruskal & Wallis 1952 test of
+ * the kept RTs across participants, average ranks for ties), warned about at p < 0.001 with the way to
+ * fit them hierarchically. */
+static bl_status warn_if_participants_differ(const bl_trials *t, bl_warnings *warn, bl_error *err)
+{
+    if (t->n_participants < 2) return BL_OK;
+    rt_entry *e = malloc((t->n ? t->n : 1) * sizeof *e);
+    double *rank_sum = calloc(t->n_participants, sizeof *rank_sum);
+    size_t *count = calloc(t->n_participants, sizeof *count);
+    if (!e || !rank_sum || !count) {
+        free(e), free(rank_sum), free(count);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    size_t n = 0;
+    for (size_t i = 0; i < t->n; i++)
+        if (!(t->excluded && t->excluded[i]) && isfinite(t->rt[i])) e[n++] = (rt_entry){t->rt[i], t->participant[i]};
+    qsort(e, n, sizeof *e, rt_entry_cmp);
+    for (size_t i = 0; i < n;) {
+        size_t j = i;
+        while (j < n && e[j].rt == e[i].rt) j++;
+        double rank = 0.5 * (double)(i + 1 + j); /* average of ranks i+1 .. j */
+        for (size_t k = i; k < j; k++) {
+            rank_sum[e[k].participant] += rank;
+            count[e[k].participant]++;
+        }
+        i = j;
+    }
+    double h = 0;
+    size_t groups = 0;
+    for (size_t g = 0; g < t->n_participants; g++)
+        if (count[g]) {
+            h += rank_sum[g] * rank_sum[g] / (double)count[g];
+            groups++;
+        }
+    double N = (double)n;
+    h = 12.0 / (N * (N + 1)) * h - 3 * (N + 1);
+    if (groups >= 2 && n > groups) {
+        double p = gsl_cdf_chisq_Q(h, (double)(groups - 1));
+        if (p < 1e-3)
+            bl_warnings_add(warn,
+                            "participants pooled, but their RTs differ (Kruskal-Wallis H = %.1f, df = %zu, p = %.2g): "
+                            "pooled intervals are too narrow for a claim about the population; set fit.participants "
+                            "to \"hierarchical\" (docs/models.md section 8)",
+                            h, groups - 1, p);
+    }
+    free(e), free(rank_sum), free(count);
+    return BL_OK;
+}
+
 /* The selected models in study order, and the empty result set. */
 static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_trials *trials,
                                 const bl_fit_options *opt_in, bl_warnings *warn, bl_error *err)
@@ -188,6 +249,10 @@ static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_t
                         "participants pooled, not hierarchical (the default for %zu participants): permutation tests "
                         "refit pooled or separate fits; set fit.participants to choose",
                         trials->n_participants);
+    }
+    if (set->mode == BL_PARTICIPANTS_POOLED) {
+        bl_status st = warn_if_participants_differ(trials, warn, err);
+        if (st) return st;
     }
     set->permutations = sf->opt.permutations;
     set->seed = sf->opt.seed;
