@@ -237,19 +237,6 @@ static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_t
     }
     bl_fit_set *set = sf->set;
     set->mode = bl_study_participants_mode(study, trials->n_participants);
-    if (set->mode == BL_PARTICIPANTS_HIERARCHICAL && sf->opt.permutations > 0) {
-        if (study->fit.participants_given)
-            return bl_error_set(err, BL_ERR_USAGE,
-                                "--permutations %zu: permutation tests refit pooled or separate fits; with "
-                                "fit.participants \"hierarchical\" use the Wald or likelihood-ratio tests, or set "
-                                "\"participants\": \"pooled\" for permutation tests",
-                                sf->opt.permutations);
-        set->mode = BL_PARTICIPANTS_POOLED;
-        bl_warnings_add(warn,
-                        "participants pooled, not hierarchical (the default for %zu participants): permutation tests "
-                        "refit pooled or separate fits; set fit.participants to choose",
-                        trials->n_participants);
-    }
     if (set->mode == BL_PARTICIPANTS_POOLED) {
         bl_status st = warn_if_participants_differ(trials, warn, err);
         if (st) return st;
@@ -446,7 +433,8 @@ static bl_status summarise_hierarchical(study_fit *sf, size_t q, int *nondecisio
         if (st) return st;
     }
     if (bl_model_param_free(m, BL_NONDECISION) && !bl_model_param_free(m, BL_NONDECISION_RANGE)) *nondecision_note = 1;
-    return BL_OK;
+    return bl_hier_permutation_tests(sf->hier[q], sf->units[q].models[0], &sf->study->models[sf->sel[q]], sf->trials,
+                                     &sf->opt, r, err);
 }
 
 /* Step 3, for model q: warnings, predictions, totals, group summary, permutation tests. */
@@ -479,6 +467,22 @@ static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note,
     return bl_permutation_tests(sf->study, &sf->study->models[sf->sel[q]], sf->trials, &sf->opt, u, r, err);
 }
 
+/* Hierarchical: every term that varies in the base model varies in the extended one too. */
+static int effects_nested(const bl_hier *base, const bl_hier *ext)
+{
+    for (size_t a = 0; a < bl_hier_effects(base); a++) {
+        bl_param pa, pb;
+        const char *la = bl_hier_effect_label(base, a, &pa);
+        int found = 0;
+        for (size_t b = 0; b < bl_hier_effects(ext) && !found; b++) {
+            const char *lb = bl_hier_effect_label(ext, b, &pb);
+            found = pa == pb && !strcmp(la, lb);
+        }
+        if (!found) return 0;
+    }
+    return 1;
+}
+
 /* Step 4: nesting for the likelihood-ratio test. The base model must be fitted, and nested unit by unit. */
 static bl_status mark_nesting(study_fit *sf, bl_error *err)
 {
@@ -495,6 +499,7 @@ static bl_status mark_nesting(study_fit *sf, bl_error *err)
             bl_status st = bl_model_nested_in(sf->units[b].models[i], sf->units[q].models[i], &nested, err);
             if (st) return st;
         }
+        if (nested && set->mode == BL_PARTICIPANTS_HIERARCHICAL) nested = effects_nested(sf->hier[b], sf->hier[q]);
         r->nested = nested && set->models[b].parameters < r->parameters;
     }
     return BL_OK;
