@@ -1123,6 +1123,11 @@ static bl_status check_truth_model(const bl_scenario *sc, const bl_study *study,
             for (size_t i = 0; same && i < ts->n_by; i++) same = strcmp(ms->by[i], sc->factors[ts->by[i]].name) == 0;
         }
         if (ps->is_fixed && t->n_per == 0 && t->n_slopes == 0 && t->intercept[0] == ps->fixed) same = 1;
+        if (ps->is_fixed && t->intercept_spread > 0) /* NAN (not given) compares false */
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: truth.%s.spread.intercept: %g, but model '%s' fixes %s; a participant "
+                                "spread needs the parameter estimated",
+                                sc->path, bl_param_name(p), t->intercept_spread, m->name, bl_param_name(p));
         if (!same)
             return bl_error_set(err, BL_ERR_INPUT,
                                 "%s: truth.%s: its intercepts/slopes do not have the structure of model '%s' "

@@ -179,6 +179,9 @@ bad_case misspelt 's["truth"]["nondecision"]["sprad"] = s["truth"]["nondecision"
 # Too wide a spread makes some participant's non-decision time negative: an error naming participant and trial.
 bad_case too_wide 's["truth"]["nondecision"]["spread"]["intercept"] = 0.5' \
     "truth gives invalid parameters for s[0-9]+ trial [0-9]+: nondecision must be >= 0 s .*spread smaller"
+# A spread on a parameter the truth model does not estimate (start is fixed at 0.5 by default).
+bad_case fixed 's["truth"]["start"] = {"intercept": 0.5, "spread": {"intercept": 0.05}}' \
+    "truth\.start\.spread\.intercept: 0\.05, but model 'theta-threshold' fixes start"
 # A key given twice (JSON text, since json.dump cannot write one).
 sed 's/"spread": {"intercept": 0.3}/"spread": {"intercept": 0.3, "intercept": 0.2}/' "$scen" >"$tmp/twice.json"
 expect_exit 2 "$BANDLINK" simulate "$tmp/twice.json" --out "$tmp/out_twice" \
