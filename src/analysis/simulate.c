@@ -1149,7 +1149,7 @@ static void add_coef(cJSON *arr, const char *param, const char *term, const char
     cJSON_AddStringToObject(o, "term", term);
     cJSON_AddStringToObject(o, "level", level);
     cJSON_AddNumberToObject(o, "value", value);
-    cJSON_AddItemToArray(arr, o);
+    if (!cJSON_AddItemToArray(arr, o)) cJSON_Delete(o); /* arr NULL after a failed allocation: no leak */
 }
 
 /* Each participant's offsets from the population coefficients (truth.<parameter>.spread). For parameter
@@ -1242,7 +1242,7 @@ static void add_spread(cJSON *root, const bl_scenario *sc, const participant_off
             cJSON_AddStringToObject(o, "parameter", bl_param_name(p));
             cJSON_AddStringToObject(o, "term", term == 0 ? "intercept" : t->slopes[term - 1].regressor);
             cJSON_AddNumberToObject(o, "sd", sd);
-            cJSON_AddItemToArray(sp, o);
+            if (!cJSON_AddItemToArray(sp, o)) cJSON_Delete(o);
         }
     }
     cJSON *pa = cJSON_AddArrayToObject(root, "participants");
@@ -1250,7 +1250,7 @@ static void add_spread(cJSON *root, const bl_scenario *sc, const participant_off
         cJSON *o = cJSON_CreateObject();
         cJSON_AddStringToObject(o, "participant", sc->participants[i]);
         add_coefficients(cJSON_AddArrayToObject(o, "coefficients"), sc, po, i);
-        cJSON_AddItemToArray(pa, o);
+        if (!cJSON_AddItemToArray(pa, o)) cJSON_Delete(o);
     }
 }
 
