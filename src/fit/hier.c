@@ -76,6 +76,7 @@ struct bl_hier {
     size_t *free_idx, n_free;
     double *info_hat, *psi_hat; /* observed information (x units) at the estimate psi_hat, for profiles */
     double *psi_est;            /* the estimate, for refits (permutation tests) */
+    double *pooled_coef;        /* the pooled fit's coefficients (feasible with no spread) */
 };
 
 /* ---- small dense algebra (q <= HIER_MAX_EFFECTS) ---- */
@@ -211,8 +212,16 @@ static int participant_marginal(const bl_hier *h, hier_part *pp, const double *b
     double *z = pp->z, gz[HIER_MAX_EFFECTS], step[HIER_MAX_EFFECTS], zn[HIER_MAX_EFFECTS];
     double f = participant_h(h, pp, beta, L, z, gz);
     if (!isfinite(f)) {
-        memset(z, 0, q * sizeof *z);
-        f = participant_h(h, pp, beta, L, z, gz);
+        /* The warm start left the feasible region (e.g. nondecision above this participant's fastest
+         * RT): try no offset, then the warm start's direction further out (a participant whose mode
+         * lies beyond the population value on the feasible side). */
+        double warm[HIER_MAX_EFFECTS];
+        memcpy(warm, z, q * sizeof *warm);
+        static const double scale[] = {0, 1.5, 2, 3, 5, 8};
+        for (size_t k = 0; k < sizeof scale / sizeof *scale && !isfinite(f); k++) {
+            for (size_t c = 0; c < q; c++) z[c] = scale[k] * warm[c];
+            f = participant_h(h, pp, beta, L, z, gz);
+        }
         if (!isfinite(f)) return 0;
     }
     int found = 0;
@@ -654,6 +663,7 @@ void bl_hier_destroy(bl_hier *h)
     free(h->info_hat);
     free(h->psi_hat);
     free(h->psi_est);
+    free(h->pooled_coef);
     free(h);
 }
 
@@ -897,6 +907,23 @@ static double effect_sd(const bl_hier *h, const double *lambda, size_t r)
     return sqrt(s);
 }
 
+/* A feasible start for a constrained maximum when the estimate's neighbourhood is not (a participant
+ * spread held at 0 makes every participant share a nondecision time, which must lie below all of their
+ * fastest RTs): the pooled coefficients, which are feasible without spread, with the free spreads
+ * scaled down until every participant has a mode. Fills trial; returns its value. */
+static double feasible_start(bl_hier *h, const unsigned char *fixed, const double *psi, double *trial)
+{
+    static const double shrink[] = {1, 0.3, 0.1, 0.03};
+    double v = -INFINITY;
+    for (size_t k = 0; k < sizeof shrink / sizeof *shrink && !isfinite(v) && h->pooled_coef; k++) {
+        memcpy(trial, psi, h->d * sizeof *trial);
+        for (size_t c = 0; c < h->d; c++)
+            if (!fixed[c]) trial[c] = c < h->p ? h->pooled_coef[c] : shrink[k] * psi[c];
+        v = bl_hier_marginal(h, trial);
+    }
+    return v;
+}
+
 /* Maximum over the other components with the components flagged in `fixed` held at psi[...]; psi
  * (start and result) is updated to the maximiser. With the observed information at the estimate
  * (h->info_hat, all d components in x units), the other components start at their linear
@@ -930,6 +957,7 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
                 memcpy(trial, psi, d * sizeof *trial);
                 best = bl_hier_marginal(h, trial);
             }
+            if (!isfinite(best)) best = feasible_start(h, fixed, psi, trial);
             memcpy(psi, trial, d * sizeof *psi);
         }
         double last_gain = INFINITY;
@@ -979,6 +1007,11 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
             if (!moved) break;
         }
         free(idx), free(a), free(r), free(v), free(trial);
+    }
+    if (!isfinite(bl_hier_marginal(h, psi))) {
+        double *trial = malloc(d * sizeof *trial);
+        if (trial && isfinite(feasible_start(h, fixed, psi, trial))) memcpy(psi, trial, d * sizeof *psi);
+        free(trial);
     }
     memcpy(h->psi0, psi, d * sizeof *psi);
     set_free(h, fixed, NULL);
@@ -1370,6 +1403,8 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
         goto done;
     }
     starting_point(h, pooled, pooled_coef);
+    if ((h->pooled_coef = malloc((h->p ? h->p : 1) * sizeof *h->pooled_coef)))
+        memcpy(h->pooled_coef, pooled_coef, h->p * sizeof *h->pooled_coef);
     set_free(h, NULL, NULL);
     /* Near an edge (nondecision at the fastest RT) the starting spread can leave a participant without
      * a mode: start with less spread then. */
