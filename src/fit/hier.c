@@ -44,6 +44,9 @@
 /* Second-difference step of the observed information, in x units. */
 #define HIER_INFO_STEP 2e-2
 #define HIER_OUTER_ITER 400
+/* Marginal-likelihood evaluations one maximisation may spend (a fit that needs more is reported
+ * not converged rather than running on). */
+#define HIER_OUTER_BUDGET 5000
 #define HIER_MAX_EFFECTS 12
 
 typedef struct {
@@ -334,11 +337,26 @@ static int participant_gradient(const bl_hier *h, hier_part *pp, const double *L
         for (size_t r = 0; r < q; r++)
             for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] -= eps * B[r * q + k];
         double lm = bl_likelihood_eval(pp->lik, th, pp->gm);
-        if (!isfinite(lp) || !isfinite(lm)) {
+        if (isfinite(lp) && isfinite(lm)) {
+            for (size_t m = 0; m < p; m++) c[m] += (pp->gp[m] - 2 * g[m] + pp->gm[m]) / (eps * eps);
+            continue;
+        }
+        /* one side beyond a feasibility edge (nondecision at the fastest RT): the one-sided second
+         * difference g(0) - 2 g(+-e) + g(+-2e), first order instead of second */
+        double sgn = isfinite(lp) ? 1 : -1, *g1 = isfinite(lp) ? pp->gp : pp->gm;
+        if (!isfinite(lp) && !isfinite(lm)) {
             free(th);
             return 0;
         }
-        for (size_t m = 0; m < p; m++) c[m] += (pp->gp[m] - 2 * g[m] + pp->gm[m]) / (eps * eps);
+        memcpy(th, pp->theta, p * sizeof *th);
+        for (size_t r = 0; r < q; r++)
+            for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] += 2 * sgn * eps * B[r * q + k];
+        double *g2 = isfinite(lp) ? pp->gm : pp->gp; /* the infeasible side's buffer is free */
+        if (!isfinite(bl_likelihood_eval(pp->lik, th, g2))) {
+            free(th);
+            return 0;
+        }
+        for (size_t m = 0; m < p; m++) c[m] += (g[m] - 2 * g1[m] + g2[m]) / (eps * eps);
     }
     free(th);
     for (size_t a = 0; a < q; a++)
@@ -697,6 +715,7 @@ typedef struct {
     bl_hier *h;
     double *psi;
     double *grad_psi; /* d values (Laplace gradients), may be NULL */
+    int differences;  /* 1: difference the value even where the analytic gradient exists */
 } outer;
 
 static double outer_f(const gsl_vector *x, void *params)
@@ -744,7 +763,7 @@ static double outer_value_gradient(const gsl_vector *x, outer *o, gsl_vector *g)
 {
     bl_hier *h = o->h;
     x_to_psi(h, x, o->psi);
-    if (h->n_grid <= 1 && o->grad_psi) {
+    if (h->n_grid <= 1 && o->grad_psi && !o->differences) {
         double mval = marginal_and_gradient(h, o->psi, o->grad_psi);
         if (isfinite(mval)) {
             for (size_t i = 0; i < h->n_free; i++) {
@@ -780,7 +799,7 @@ static size_t outer_maximise(bl_hier *h, double tol, double *best, double *gnorm
     *gnorm = NAN;
     if (!psi) return 0;
     double *grad_psi = malloc(h->d * sizeof *grad_psi);
-    outer o = {h, psi, grad_psi};
+    outer o = {h, psi, grad_psi, 0};
     if (n == 0) {
         *best = bl_hier_marginal(h, h->psi0);
         *gnorm = 0;
@@ -791,14 +810,25 @@ static size_t outer_maximise(bl_hier *h, double tol, double *best, double *gnorm
     gsl_multimin_function_fdf fn = {outer_f, outer_df, outer_fdf, n, &o};
     gsl_vector *x = gsl_vector_calloc(n);
     gsl_multimin_fdfminimizer *s = gsl_multimin_fdfminimizer_alloc(gsl_multimin_fdfminimizer_vector_bfgs2, n);
-    size_t it = 0;
+    size_t it = 0, budget_end = h->evaluations + HIER_OUTER_BUDGET;
     if (!x || !s) goto done;
     if (!isfinite(outer_f(x, &o))) goto done;
-    gsl_multimin_fdfminimizer_set(s, &fn, x, 0.5, 0.1);
-    for (it = 0; it < HIER_OUTER_ITER; it++) {
-        int status = gsl_multimin_fdfminimizer_iterate(s);
-        if (status) break;
-        if (gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS) break;
+    /* Rounds: BFGS until the gradient test passes; a round that stalls (the line search finds no
+     * descent, as beside a feasibility edge) is restarted from where it stopped, the second time with
+     * differenced gradients; a round that gains nothing ends the search. */
+    double f_prev = outer_f(x, &o);
+    for (int round = 0; round < 3; round++) {
+        o.differences = round == 1;
+        gsl_multimin_fdfminimizer_set(s, &fn, x, 0.5, 0.1);
+        int passed = 0;
+        for (; it < HIER_OUTER_ITER && h->evaluations < budget_end; it++) {
+            if (gsl_multimin_fdfminimizer_iterate(s)) break;
+            if ((passed = gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS)) break;
+        }
+        passed = passed || gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS;
+        gsl_vector_memcpy(x, s->x);
+        if (passed || (o.differences && !(s->f < f_prev - 1e-7)) || h->evaluations >= budget_end) break;
+        f_prev = s->f;
     }
     x_to_psi(h, s->x, psi);
     *best = -s->f;
@@ -1129,7 +1159,7 @@ static double polish(bl_hier *h, double *m_hat, double *info)
     gsl_vector *x0 = gsl_vector_calloc(n), *gv = gsl_vector_alloc(n);
     double dec = NAN, *grad_psi = malloc(h->d * sizeof *grad_psi);
     if (!g || !step || !psi || !chol_f || !x0 || !gv || !grad_psi) goto done;
-    outer o = {h, psi, grad_psi};
+    outer o = {h, psi, grad_psi, 0};
     for (int round = 0; round < 4; round++) {
         if (!outer_information(h, info)) {
             dec = NAN;
@@ -1331,8 +1361,9 @@ static bl_status fill_variance(bl_hier *h, double m_hat, const double *cov_psi, 
             break;
         }
         vc->sd = effect_sd(h, psi_hat + h->p, a);
+        vc->ci_low = vc->ci_high = vc->lrt_statistic = vc->lrt_p = NAN;
+        if (!info) continue; /* no maximum to test against or profile from (reported not converged) */
         spread_test(h, psi_hat, m_hat, a, fixed, work, vc);
-        vc->ci_low = vc->ci_high = NAN;
         if (!h->correlated) {
             size_t comp = h->p + a;
             double se = cov_psi && cov_psi[comp * d + comp] > 0 ? sqrt(cov_psi[comp * d + comp]) : 0.3 * vc->sd + 0.01;
