@@ -284,6 +284,171 @@ done:
     return best;
 }
 
+/* ---- Newton's method in the optimiser's parameterisation --------------------------------------- */
+
+/* Stop when the Newton decrement in standard-error units, sqrt(n g' H^-1 g) with g and H the
+ * gradient and Hessian of the per-trial objective, is below this (the log-likelihood is then within
+ * about half its square, 5e-7, of the maximum). */
+#define BL_NEWTON_DECREMENT 1e-3
+#define BL_NEWTON_MAX_ITER 60
+
+typedef struct {
+    double *g, *H, *ev, *lam, *p, *xt, *gt, *gh;
+} newton_ws;
+
+/* f and g (per-trial objective) at x; 0 when x is infeasible. */
+static int eval_x(objective *o, const double *x, double *f, double *g)
+{
+    gsl_vector_const_view v = gsl_vector_const_view_array(x, o->k);
+    evaluate_point(o, &v.vector);
+    *f = o->cache_f;
+    memcpy(g, o->cache_g, o->k * sizeof *g);
+    return isfinite(*f);
+}
+
+/* Hessian of the objective at x by forward differences of the analytic gradient g (k evaluations;
+ * a backward step where the forward one is infeasible), symmetrised. Returns 0 when neither is
+ * feasible for some coordinate. */
+static int hessian_x(objective *o, double *x, const double *g, newton_ws *w)
+{
+    size_t k = o->k;
+    for (size_t j = 0; j < k; j++) {
+        double xj = x[j], h = 1e-5 * fmax(1.0, fabs(xj)), f;
+        int ok = 0;
+        for (int side = 0; side < 2 && !ok; side++) {
+            double hs = side ? -h : h;
+            x[j] = xj + hs;
+            hs = x[j] - xj; /* the step actually represented */
+            ok = eval_x(o, x, &f, w->gh);
+            if (ok)
+                for (size_t i = 0; i < k; i++) w->H[i * k + j] = (w->gh[i] - g[i]) / hs;
+        }
+        x[j] = xj;
+        if (!ok) return 0;
+    }
+    for (size_t i = 0; i < k; i++)
+        for (size_t j = i + 1; j < k; j++) w->H[i * k + j] = w->H[j * k + i] = 0.5 * (w->H[i * k + j] + w->H[j * k + i]);
+    return 1;
+}
+
+/* Eigen-decomposition of H (w->ev: eigenvectors in columns, w->lam: eigenvalues ascending); the
+ * decrement sqrt(n g' H^-1 g) when H is positive definite (else INFINITY), and the step
+ * p = -|H|^-1 g with eigenvalues replaced by their absolute values, floored at 1e-8 of the largest
+ * (a descent direction also where H is indefinite far from the optimum). */
+static int newton_direction(const objective *o, const double *g, newton_ws *w, double *decrement)
+{
+    size_t k = o->k;
+    memcpy(w->ev, w->H, k * k * sizeof *w->ev);
+    if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)k, w->ev, (lapack_int)k, w->lam) != 0) return 0;
+    double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
+    if (!(lmax > 0) || !isfinite(lmax)) return 0;
+    int pd = w->lam[0] > 1e-12 * lmax;
+    double d2 = 0;
+    for (size_t i = 0; i < k; i++) w->p[i] = 0;
+    for (size_t e = 0; e < k; e++) {
+        double vg = 0;
+        for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
+        double l = fmax(fabs(w->lam[e]), 1e-8 * lmax);
+        d2 += vg * vg / l;
+        for (size_t i = 0; i < k; i++) w->p[i] -= w->ev[i * k + e] * vg / l;
+    }
+    *decrement = pd ? sqrt(fmax(d2, 0) / o->inv_n) : INFINITY;
+    return 1;
+}
+
+/* The decrement at a new gradient with the previous Hessian's eigen-decomposition (no evaluation). */
+static double decrement_with(const objective *o, const double *g, const newton_ws *w)
+{
+    size_t k = o->k;
+    double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
+    if (!(w->lam[0] > 1e-12 * lmax)) return INFINITY;
+    double d2 = 0;
+    for (size_t e = 0; e < k; e++) {
+        double vg = 0;
+        for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
+        d2 += vg * vg / w->lam[e];
+    }
+    return sqrt(fmax(d2, 0) / o->inv_n);
+}
+
+/* Backtracking (Armijo) along w->p from x, steps no longer than radius in any coordinate. On success
+ * x, *f and g move to the new point and the step length used is returned (*first: the first trial
+ * step was taken); 0 when no step lowers f. */
+static double line_search(objective *o, double *x, double *f, double *g, newton_ws *w, double radius, int *first)
+{
+    size_t k = o->k;
+    double pmax = 0, slope = 0;
+    for (size_t i = 0; i < k; i++) {
+        pmax = fmax(pmax, fabs(w->p[i]));
+        slope += g[i] * w->p[i];
+    }
+    if (!(slope < 0)) return 0;
+    double t = pmax > radius ? radius / pmax : 1.0;
+    for (int tries = 0; tries < 30; tries++, t *= 0.5) {
+        for (size_t i = 0; i < k; i++) w->xt[i] = x[i] + t * w->p[i];
+        double ft;
+        if (eval_x(o, w->xt, &ft, w->gt) && ft <= *f + 1e-4 * t * slope) {
+            memcpy(x, w->xt, k * sizeof *x);
+            memcpy(g, w->gt, k * sizeof *g);
+            *f = ft;
+            *first = tries == 0;
+            return t * pmax;
+        }
+    }
+    return 0;
+}
+
+/* Damped Newton on the objective from x (updated in place): Hessian by forward differences of the
+ * analytic gradient, eigenvalue-modified step, backtracking line search, step length limited by a
+ * radius that doubles after full steps. Stops when the Newton decrement is below BL_NEWTON_DECREMENT
+ * (checked with the last Hessian after each step, so a converged fit needs no further Hessian).
+ * Returns the minimum found (+inf when x is infeasible); *converged says whether it stopped there.
+ * Near a maximum on the edge of a range (a variability parameter -> 0 through its exp or logistic
+ * map) the steps keep moving toward the edge until the decrement is small in these units. */
+static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *converged)
+{
+    size_t k = o->k;
+    *converged = 0;
+    double *buf = malloc((2 * k * k + 7 * k) * sizeof *buf);
+    if (!buf) {
+        o->out_of_memory = 1;
+        return GSL_POSINF;
+    }
+    newton_ws w;
+    double *next = buf;
+    double **slots[] = {&w.g, &w.lam, &w.p, &w.xt, &w.gt, &w.gh};
+    for (size_t i = 0; i < sizeof slots / sizeof *slots; i++, next += k) *slots[i] = next;
+    w.H = next;
+    w.ev = next + k * k;
+    double *x = next + 2 * k * k;
+    for (size_t j = 0; j < k; j++) x[j] = gsl_vector_get(xv, j);
+    double f, radius = 2.0, dec = INFINITY;
+    if (!eval_x(o, x, &f, w.g)) {
+        free(buf);
+        return GSL_POSINF;
+    }
+    for (int it = 0; it < BL_NEWTON_MAX_ITER; it++) {
+        (*iterations)++;
+        if (!hessian_x(o, x, w.g, &w) || !newton_direction(o, w.g, &w, &dec)) break;
+        if (dec < BL_NEWTON_DECREMENT) {
+            *converged = 1;
+            break;
+        }
+        int first = 0;
+        double moved = line_search(o, x, &f, w.g, &w, radius, &first);
+        if (!(moved > 0)) break;
+        if (first && moved >= radius * 0.999) radius = fmin(2 * radius, 64.0); /* capped and accepted */
+        else if (!first) radius = fmax(moved, 0.25);
+        if (decrement_with(o, w.g, &w) < BL_NEWTON_DECREMENT && dec < 1) {
+            *converged = 1;
+            break;
+        }
+    }
+    for (size_t j = 0; j < k; j++) gsl_vector_set(xv, j, x[j]);
+    free(buf);
+    return f;
+}
+
 /* ---- inference ------------------------------------------------------------------------------- */
 
 /* Observed information I = -H by central differences of the analytic gradient, symmetrised.
@@ -474,7 +639,7 @@ typedef struct {
     double ll;
     double *coef;
     size_t iterations;
-    int used_simplex;
+    int used_simplex; /* the method: 0 Newton, 1 Newton after BFGS, 2 Nelder-Mead alone, 3 Nelder-Mead fallback */
 } start_result;
 
 /* The optimiser part: maximise from the given starts. best->coef must hold k values. */
@@ -527,13 +692,23 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
             }
             continue;
         }
-        double f = run_bfgs(o, x, &iters);
+        int newton_done = 0;
+        double f = run_newton(o, x, &iters, &newton_done);
+        if (!newton_done && !o->out_of_memory) {
+            /* Newton stalled (a Hessian that cannot be evaluated, or no descent): BFGS from the
+             * best point so far (the start when even that was infeasible), then Newton again */
+            if (!isfinite(f)) gsl_vector_memcpy(x, x0);
+            double fb = run_bfgs(o, x, &iters);
+            if (isfinite(fb)) f = run_newton(o, x, &iters, &newton_done);
+            if (!(f <= fb)) f = fb;
+            simplex = 1; /* newton+bfgs2 */
+        }
         /* Fallback: derivative-free search when BFGS could not start or stalled far from a
          * stationary point, then BFGS again from where it ended. */
         gsl_vector *g = gsl_vector_alloc(k);
         if (!g) o->out_of_memory = 1;
-        int stalled = 1;
-        if (g && isfinite(f)) {
+        int stalled = !newton_done;
+        if (stalled && g && isfinite(f)) {
             double fv;
             obj_fdf(x, o, &fv, g);
             /* near a stationary point (per-trial gradient 1e-3, i.e. within Newton's reach) the
@@ -554,7 +729,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
                 if (fs < f) {
                     f = fs;
                     gsl_vector_memcpy(x, xs);
-                    simplex = 1;
+                    simplex = 3;
                 }
                 gsl_vector_free(xs);
             }
@@ -653,7 +828,8 @@ static void record_optimum(const bl_model *m, const start_result *best, int n_st
     res->log_likelihood = ll;
     res->parameters = m->n_coef;
     res->trials = m->n;
-    res->diag.method = best->used_simplex == 2 ? "nmsimplex2" : best->used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
+    static const char *const names[] = {"newton", "newton+bfgs2", "nmsimplex2", "newton+bfgs2+nmsimplex2"};
+    res->diag.method = names[best->used_simplex & 3];
     res->diag.iterations = best->iterations;
     res->diag.starts = n_starts;
     res->diag.starts_agreed = agreed;
@@ -687,7 +863,7 @@ static bl_status newton_polish(objective *o, newton_state *s, double *decrement,
         for (size_t i = 0; i < k; i++)
             for (size_t j = 0; j < k; j++) nd2 += s->grad[i] * s->cov[i * k + j] * s->grad[j];
         *decrement = sqrt(fmax(nd2, 0));
-        if (*decrement < 1e-4 || polish == 7) break;
+        if (*decrement < 2 * BL_NEWTON_DECREMENT || polish == 7) break;
         double ll2 = -INFINITY;
         for (int half = 0; half < 4 && !(ll2 > s->ll); half++) {
             double scale = ldexp(1.0, -half);
