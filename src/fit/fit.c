@@ -115,18 +115,25 @@ static int cell_ez(const cell_stats *c, double *v, double *a, double *t0)
 
 /* ---- parameterisation ------------------------------------------------------------------------ */
 
-enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC };
+/* TR_EVEN: coef = |x|, for a variability parameter the density depends on evenly (drift_sd through
+ * drift_sd^2; start_range and nondecision_range as the width of a window centred on start or
+ * nondecision, whose average is an even function of the width): the log-likelihood is then a smooth
+ * even function of x, a maximum at the edge (coef = 0) is an ordinary stationary point at x = 0, and
+ * Newton converges there quadratically instead of creeping toward log(0) = -inf. */
+enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC, TR_EVEN };
 
 typedef struct {
     int type;
     double lo, hi; /* TR_LOGISTIC: coef = lo + (hi - lo) * logistic(x) */
     double scale;  /* TR_RAW: coef = x / scale */
+    int edge;      /* a variability parameter whose maximum may lie at its lower edge (x -> -inf) */
 } transform;
 
 static double to_coef(const transform *t, double x)
 {
     switch (t->type) {
     case TR_EXP: return exp(x);
+    case TR_EVEN: return fabs(x);
     case TR_LOGISTIC: return t->lo + (t->hi - t->lo) / (1 + exp(-x));
     default: return x / t->scale;
     }
@@ -136,6 +143,7 @@ static double dcoef_dx(const transform *t, double x)
 {
     switch (t->type) {
     case TR_EXP: return exp(x);
+    case TR_EVEN: return x < 0 ? -1.0 : 1.0;
     case TR_LOGISTIC: {
         double s = 1 / (1 + exp(-x));
         return (t->hi - t->lo) * s * (1 - s);
@@ -148,6 +156,7 @@ static double to_x(const transform *t, double c)
 {
     switch (t->type) {
     case TR_EXP: return c > 0 ? log(c) : -30;
+    case TR_EVEN: return fabs(c);
     case TR_LOGISTIC: {
         double u = (c - t->lo) / (t->hi - t->lo);
         if (u < 1e-12) u = 1e-12;
@@ -327,7 +336,8 @@ static int hessian_x(objective *o, double *x, const double *g, newton_ws *w)
         if (!ok) return 0;
     }
     for (size_t i = 0; i < k; i++)
-        for (size_t j = i + 1; j < k; j++) w->H[i * k + j] = w->H[j * k + i] = 0.5 * (w->H[i * k + j] + w->H[j * k + i]);
+        for (size_t j = i + 1; j < k; j++)
+            w->H[i * k + j] = w->H[j * k + i] = 0.5 * (w->H[i * k + j] + w->H[j * k + i]);
     return 1;
 }
 
@@ -398,6 +408,30 @@ static double line_search(objective *o, double *x, double *f, double *g, newton_
     return 0;
 }
 
+/* A maximum of contamination at its lower edge lies at x -> -inf of its logistic map, where the
+ * objective behaves like e^x times the one-sided derivative: each Newton step moves x by about
+ * -1 and the decrement falls only by e^-1/2 per step. When the step for such a coordinate is below
+ * -0.5, try the full step with that coordinate moved 16 further toward the edge (c x 1e-7), kept only
+ * when it satisfies the same sufficient-decrease condition as the line search. Returns 1 when taken. */
+static int edge_jump(objective *o, double *x, double *f, double *g, newton_ws *w)
+{
+    size_t k = o->k;
+    int any = 0;
+    double slope = 0;
+    for (size_t i = 0; i < k; i++) {
+        int jump = o->tr[i].edge && w->p[i] < -0.5;
+        any |= jump;
+        w->xt[i] = x[i] + w->p[i] + (jump ? -16.0 : 0.0);
+        slope += g[i] * (w->xt[i] - x[i]);
+    }
+    double ft;
+    if (!any || !(slope < 0) || !eval_x(o, w->xt, &ft, w->gt) || !(ft <= *f + 1e-4 * slope)) return 0;
+    memcpy(x, w->xt, k * sizeof *x);
+    memcpy(g, w->gt, k * sizeof *g);
+    *f = ft;
+    return 1;
+}
+
 /* Damped Newton on the objective from x (updated in place): Hessian by forward differences of the
  * analytic gradient, eigenvalue-modified step, backtracking line search, step length limited by a
  * radius that doubles after full steps. Stops when the Newton decrement is below BL_NEWTON_DECREMENT
@@ -435,7 +469,9 @@ static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *
             break;
         }
         int first = 0;
-        double moved = line_search(o, x, &f, w.g, &w, radius, &first);
+        double moved = dec < 10 && edge_jump(o, x, &f, w.g, &w) ? 1.0 : 0.0;
+        if (moved > 0) first = 1;
+        else moved = line_search(o, x, &f, w.g, &w, radius, &first);
         if (!(moved > 0)) break;
         if (first && moved >= radius * 0.999) radius = fmin(2 * radius, 64.0); /* capped and accepted */
         else if (!first) radius = fmax(moved, 0.25);
@@ -450,6 +486,35 @@ static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *
 }
 
 /* ---- inference ------------------------------------------------------------------------------- */
+
+/* 1 when coefficient j is an intercept-only identity-link drift_sd, start_range or nondecision_range:
+ * the likelihood is an even function of it (see TR_EVEN), and values below 0 are read as |value|. */
+static int even_coef(const bl_model *m, size_t j)
+{
+    const bl_coef_info *ci = &m->coef[j];
+    const bl_param_design *d = &m->par[ci->param];
+    return ci->slope < 0 && !d->n_slopes && d->link == BL_LINK_IDENTITY &&
+           (ci->param == BL_DRIFT_SD || ci->param == BL_START_RANGE || ci->param == BL_NONDECISION_RANGE);
+}
+
+/* Log-likelihood and gradient (g may be NULL) of the even extension at c: the even coefficients are
+ * taken as |c_j| and their derivatives change sign with c_j, so central differences and Newton steps
+ * work across 0 (an estimate at the edge). c is restored before returning. */
+static double eval_even(bl_likelihood *lik, const bl_model *m, double *c, double *g)
+{
+    size_t flipped[BL_NPARAM], nf = 0; /* even coefficients are intercepts of one parameter each */
+    for (size_t j = 0; j < m->n_coef && nf < BL_NPARAM; j++)
+        if (c[j] < 0 && even_coef(m, j)) {
+            c[j] = -c[j];
+            flipped[nf++] = j;
+        }
+    double ll = bl_likelihood_eval(lik, c, g);
+    for (size_t i = 0; i < nf; i++) {
+        c[flipped[i]] = -c[flipped[i]];
+        if (g) g[flipped[i]] = -g[flipped[i]];
+    }
+    return ll;
+}
 
 /* Observed information I = -H by central differences of the analytic gradient, symmetrised.
  * *found = 0 when a step leaves the feasible region even after shrinking. BL_ERR_NOMEM when memory
@@ -476,9 +541,9 @@ static bl_status observed_information(bl_likelihood *lik, const bl_model *m, con
         int done = 0;
         for (int shrink = 0; shrink < 6 && !done; shrink++, h /= 4) {
             c[j] = coef[j] + h;
-            double lp = bl_likelihood_eval(lik, c, gp);
+            double lp = eval_even(lik, m, c, gp);
             c[j] = coef[j] - h;
-            double lm = bl_likelihood_eval(lik, c, gm);
+            double lm = eval_even(lik, m, c, gm);
             c[j] = coef[j];
             if (isfinite(lp) && isfinite(lm)) {
                 for (size_t i = 0; i < k; i++) info[i * k + j] = -(gp[i] - gm[i]) / (2 * h);
@@ -611,15 +676,16 @@ static bl_status plan_fit(const bl_model *m, transform *tr, double *start, bl_er
         if (d->n_slopes) continue;
         /* Intercept-only parameters on the identity link: an exact unconstrained parameterisation. */
         switch (ci->param) {
-        case BL_THRESHOLD:
+        case BL_THRESHOLD: tr[j].type = TR_EXP; break;
         case BL_DRIFT_SD:
-        case BL_NONDECISION_RANGE: tr[j].type = TR_EXP; break;
-        case BL_START:
         case BL_START_RANGE:
+        case BL_NONDECISION_RANGE: tr[j].type = TR_EVEN; break;
+        case BL_START:
         case BL_CONTAMINATION:
             tr[j].type = TR_LOGISTIC;
             tr[j].lo = 0;
             tr[j].hi = 1;
+            tr[j].edge = ci->param == BL_CONTAMINATION;
             break;
         case BL_NONDECISION:
             if (!st_free && !p0_free) {
@@ -665,6 +731,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
                 for (size_t j = 0; j < k; j++) {
                     double xj = gsl_vector_get(x0, j);
                     double sd = o->tr[j].type == TR_RAW && o->m->coef[j].slope < 0 ? spread * fmax(fabs(xj), 0.5)
+                                : o->tr[j].type == TR_EVEN                         ? spread * fmax(fabs(xj), 0.05)
                                                                                    : spread * 0.5;
                     gsl_vector_set(x, j, xj + gsl_ran_gaussian(rng, sd));
                 }
@@ -872,9 +939,14 @@ static bl_status newton_polish(objective *o, newton_state *s, double *decrement,
                 for (size_t j = 0; j < k; j++) step += s->cov[i * k + j] * s->grad[j];
                 o->coef[i] = s->coef[i] + scale * step;
             }
-            ll2 = bl_likelihood_eval(o->lik, o->coef, o->grad);
+            ll2 = eval_even(o->lik, o->m, o->coef, o->grad);
         }
         if (!(ll2 > s->ll)) break;
+        for (size_t i = 0; i < k; i++)
+            if (o->coef[i] < 0 && even_coef(o->m, i)) { /* back to the reported |value| */
+                o->coef[i] = -o->coef[i];
+                o->grad[i] = -o->grad[i];
+            }
         s->ll = ll2;
         memcpy(s->coef, o->coef, k * sizeof *s->coef);
         memcpy(s->grad, o->grad, k * sizeof *s->grad);
