@@ -342,9 +342,10 @@ static int hessian_x(objective *o, double *x, const double *g, newton_ws *w)
 }
 
 /* Eigen-decomposition of H (w->ev: eigenvectors in columns, w->lam: eigenvalues ascending); the
- * decrement sqrt(n g' H^-1 g) when H is positive definite (else INFINITY), and the step
- * p = -|H|^-1 g with eigenvalues replaced by their absolute values, floored at 1e-8 of the largest
- * (a descent direction also where H is indefinite far from the optimum). */
+ * decrement sqrt(n g' H^-1 g) when H is positive semi-definite (else INFINITY), and the step
+ * p = -|H|^-1 g with eigenvalues replaced by their absolute values. Eigenvalues within 1e-12 of the
+ * largest count as 0 (a coefficient the likelihood does not depend on, e.g. a fixed slope): they are
+ * floored there, so such a direction adds to the decrement only as far as the gradient points along it. */
 static int newton_direction(const objective *o, const double *g, newton_ws *w, double *decrement)
 {
     size_t k = o->k;
@@ -352,17 +353,16 @@ static int newton_direction(const objective *o, const double *g, newton_ws *w, d
     if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)k, w->ev, (lapack_int)k, w->lam) != 0) return 0;
     double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
     if (!(lmax > 0) || !isfinite(lmax)) return 0;
-    int pd = w->lam[0] > 1e-12 * lmax;
-    double d2 = 0;
     for (size_t i = 0; i < k; i++) w->p[i] = 0;
+    double d2 = 0;
     for (size_t e = 0; e < k; e++) {
         double vg = 0;
         for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
-        double l = fmax(fabs(w->lam[e]), 1e-8 * lmax);
+        double l = fmax(fabs(w->lam[e]), 1e-12 * lmax);
         d2 += vg * vg / l;
-        for (size_t i = 0; i < k; i++) w->p[i] -= w->ev[i * k + e] * vg / l;
+        for (size_t i = 0; i < k; i++) w->p[i] -= w->ev[i * k + e] * vg / fmax(l, 1e-8 * lmax);
     }
-    *decrement = pd ? sqrt(fmax(d2, 0) / o->inv_n) : INFINITY;
+    *decrement = w->lam[0] >= -1e-12 * lmax ? sqrt(fmax(d2, 0) / o->inv_n) : INFINITY;
     return 1;
 }
 
@@ -371,12 +371,12 @@ static double decrement_with(const objective *o, const double *g, const newton_w
 {
     size_t k = o->k;
     double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
-    if (!(w->lam[0] > 1e-12 * lmax)) return INFINITY;
+    if (!(w->lam[0] >= -1e-12 * lmax)) return INFINITY;
     double d2 = 0;
     for (size_t e = 0; e < k; e++) {
         double vg = 0;
         for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
-        d2 += vg * vg / w->lam[e];
+        d2 += vg * vg / fmax(w->lam[e], 1e-12 * lmax);
     }
     return sqrt(fmax(d2, 0) / o->inv_n);
 }
