@@ -299,7 +299,7 @@ done:
  * gradient and Hessian of the per-trial objective, is below this (the log-likelihood is then within
  * about half its square, 5e-7, of the maximum). */
 #define BL_NEWTON_DECREMENT 1e-3
-#define BL_NEWTON_MAX_ITER 60
+#define BL_NEWTON_MAX_ITER 30
 
 typedef struct {
     double *g, *H, *ev, *lam, *p, *xt, *gt, *gh;
@@ -341,11 +341,16 @@ static int hessian_x(objective *o, double *x, const double *g, newton_ws *w)
     return 1;
 }
 
+/* Eigenvalues of the forward-difference Hessian below this fraction of the largest are not resolved
+ * (its truncation error is ~1e-5 of the curvature scale, its rounding ~1e-10 / 1e-5 of the gradient
+ * noise): they count as 0 -- a coefficient the likelihood does not depend on, or one at the edge of
+ * its range through its logistic map -- and are floored there. */
+#define BL_NEWTON_ZERO_EIGEN 1e-7
+
 /* Eigen-decomposition of H (w->ev: eigenvectors in columns, w->lam: eigenvalues ascending); the
- * decrement sqrt(n g' H^-1 g) when H is positive semi-definite (else INFINITY), and the step
- * p = -|H|^-1 g with eigenvalues replaced by their absolute values. Eigenvalues within 1e-12 of the
- * largest count as 0 (a coefficient the likelihood does not depend on, e.g. a fixed slope): they are
- * floored there, so such a direction adds to the decrement only as far as the gradient points along it. */
+ * decrement sqrt(n g' H^-1 g) when H is positive semi-definite up to BL_NEWTON_ZERO_EIGEN (else
+ * INFINITY), and the step p = -|H|^-1 g with eigenvalues replaced by their absolute values. Floored
+ * eigenvalues add to the decrement only as far as the gradient points along them. */
 static int newton_direction(const objective *o, const double *g, newton_ws *w, double *decrement)
 {
     size_t k = o->k;
@@ -353,16 +358,16 @@ static int newton_direction(const objective *o, const double *g, newton_ws *w, d
     if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)k, w->ev, (lapack_int)k, w->lam) != 0) return 0;
     double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
     if (!(lmax > 0) || !isfinite(lmax)) return 0;
+    double floor_ = BL_NEWTON_ZERO_EIGEN * lmax, d2 = 0;
     for (size_t i = 0; i < k; i++) w->p[i] = 0;
-    double d2 = 0;
     for (size_t e = 0; e < k; e++) {
         double vg = 0;
         for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
-        double l = fmax(fabs(w->lam[e]), 1e-12 * lmax);
+        double l = fmax(fabs(w->lam[e]), floor_);
         d2 += vg * vg / l;
-        for (size_t i = 0; i < k; i++) w->p[i] -= w->ev[i * k + e] * vg / fmax(l, 1e-8 * lmax);
+        for (size_t i = 0; i < k; i++) w->p[i] -= w->ev[i * k + e] * vg / l;
     }
-    *decrement = w->lam[0] >= -1e-12 * lmax ? sqrt(fmax(d2, 0) / o->inv_n) : INFINITY;
+    *decrement = w->lam[0] >= -floor_ ? sqrt(fmax(d2, 0) / o->inv_n) : INFINITY;
     return 1;
 }
 
@@ -370,13 +375,13 @@ static int newton_direction(const objective *o, const double *g, newton_ws *w, d
 static double decrement_with(const objective *o, const double *g, const newton_ws *w)
 {
     size_t k = o->k;
-    double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
-    if (!(w->lam[0] >= -1e-12 * lmax)) return INFINITY;
+    double floor_ = BL_NEWTON_ZERO_EIGEN * fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
+    if (!(w->lam[0] >= -floor_)) return INFINITY;
     double d2 = 0;
     for (size_t e = 0; e < k; e++) {
         double vg = 0;
         for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
-        d2 += vg * vg / fmax(w->lam[e], 1e-12 * lmax);
+        d2 += vg * vg / fmax(w->lam[e], floor_);
     }
     return sqrt(fmax(d2, 0) / o->inv_n);
 }
@@ -394,7 +399,7 @@ static double line_search(objective *o, double *x, double *f, double *g, newton_
     }
     if (!(slope < 0)) return 0;
     double t = pmax > radius ? radius / pmax : 1.0;
-    for (int tries = 0; tries < 30; tries++, t *= 0.5) {
+    for (int tries = 0; tries < 16; tries++, t *= 0.5) {
         for (size_t i = 0; i < k; i++) w->xt[i] = x[i] + t * w->p[i];
         double ft;
         if (eval_x(o, w->xt, &ft, w->gt) && ft <= *f + 1e-4 * t * slope) {
@@ -468,6 +473,7 @@ static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *
             *converged = 1;
             break;
         }
+        double f_before = f;
         int first = 0;
         double moved = dec < 10 && edge_jump(o, x, &f, w.g, &w) ? 1.0 : 0.0;
         if (moved > 0) first = 1;
@@ -475,7 +481,10 @@ static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *
         if (!(moved > 0)) break;
         if (first && moved >= radius * 0.999) radius = fmin(2 * radius, 64.0); /* capped and accepted */
         else if (!first) radius = fmax(moved, 0.25);
-        if (decrement_with(o, w.g, &w) < BL_NEWTON_DECREMENT && dec < 1) {
+        /* converged by the decrement with the last Hessian, or within 10x of it where the steps no
+         * longer change the objective (log-likelihood gain below 1e-12 per trial: rounding) */
+        if ((decrement_with(o, w.g, &w) < BL_NEWTON_DECREMENT && dec < 1) ||
+            (dec < 10 * BL_NEWTON_DECREMENT && f_before - f < 1e-12)) {
             *converged = 1;
             break;
         }
@@ -722,6 +731,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         goto done;
     }
     for (size_t j = 0; j < k; j++) gsl_vector_set(x0, j, to_x(&o->tr[j], first[j]));
+    int converged_any = 0; /* some start has reached a maximum by Newton's stopping rule */
     for (int s = 0; s < n_starts; s++) {
         gsl_vector_memcpy(x, x0);
         if (s > 0) {
@@ -761,7 +771,10 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         }
         int newton_done = 0;
         double f = run_newton(o, x, &iters, &newton_done);
-        if (!newton_done && !o->out_of_memory) {
+        /* A perturbed start that Newton could not finish, stuck below a maximum already found, has
+         * shown what it can (a disagreeing start); the fallbacks are for starts that may lead higher. */
+        int hopeless = s > 0 && converged_any && !(-f / o->inv_n > best->ll);
+        if (!newton_done && !o->out_of_memory && !hopeless) {
             /* Newton stalled (a Hessian that cannot be evaluated, or no descent): BFGS from the
              * best point so far (the start when even that was infeasible), then Newton again */
             if (!isfinite(f)) gsl_vector_memcpy(x, x0);
@@ -774,7 +787,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
          * stationary point, then BFGS again from where it ended. */
         gsl_vector *g = gsl_vector_alloc(k);
         if (!g) o->out_of_memory = 1;
-        int stalled = !newton_done;
+        int stalled = !newton_done && !hopeless;
         if (stalled && g && isfinite(f)) {
             double fv;
             obj_fdf(x, o, &fv, g);
@@ -803,6 +816,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         }
         double ll = isfinite(f) ? -f / o->inv_n : -INFINITY;
         lls[s] = ll;
+        converged_any |= newton_done;
         if (ll > best->ll) {
             best->ll = ll;
             best->iterations = iters;
