@@ -607,10 +607,11 @@ static int nodes_z(const gctx *C, double t)
     return blw_gl_nodes_start_range(C->sz, t / (C->a * C->a), 0.5 * C->sz * C->slope_z);
 }
 
-/* Start node counts from which the closed form (blw_start_window_small) replaces the start nodes in small time */
-#ifndef BLW_CLOSED_FORM_NZ
+/* Start node counts from which the closed form (blw_start_window_small: about six calls to exp or erfc per
+ * image) replaces the start nodes in small time, with the gradient and for the value alone (a node costs
+ * about three calls to exp with the gradient's arithmetic, less without it). */
 #define BLW_CLOSED_FORM_NZ 6
-#endif
+#define BLW_CLOSED_FORM_NZ_VALUE 10
 
 /* Adds sum_i sum_j wt_i gw_j f(t_i, w + sz dz_j) for one row of times sharing a start rule of nz nodes. */
 static void add_rows(const gctx *C, int nt, const double *t, const double *wt, const double *tx, int nz, blw_acc *acc)
@@ -621,7 +622,7 @@ static void add_rows(const gctx *C, int nt, const double *t, const double *wt, c
     double tt[BLW_GL_MAX], dz[BLW_GL_MAX], ww[BLW_GL_MAX], xx[BLW_GL_MAX];
     for (int i = 0; i < nt; i++) {
         /* small time: the start average in closed form where it is cheaper than nz start nodes */
-        if (nz >= BLW_CLOSED_FORM_NZ && t[i] < BLW_U_SWITCH * C->a * C->a &&
+        if (nz >= (acc->grad ? BLW_CLOSED_FORM_NZ : BLW_CLOSED_FORM_NZ_VALUE) && t[i] < BLW_U_SWITCH * C->a * C->a &&
             blw_start_window_small(t[i], C->v, C->a, C->w, C->sv, C->sz, C->upper, wt[i], tx ? tx[i] : 0, acc))
             continue;
         for (int j = 0; j < nz; j++) {
