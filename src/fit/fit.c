@@ -2,15 +2,19 @@
  * ordered by fit_study.c; group summaries and permutation tests are in compare.c. This file calls
  * neither of them.
  *
- * Optimiser: GSL's BFGS (vector_bfgs2: Fletcher, Practical Methods of Optimization, 2nd ed., 1987,
- * algorithms 2.6.2 and 2.6.4) on the analytic gradient, in an unconstrained parameterisation where one
- * exists (docs/models.md): intercept-only parameters on the identity link are optimised as
- * log(threshold), logit(start), nondecision = min RT of the cell * logistic(.), and so on; other
- * coefficients are optimised directly (slopes scaled by their regressor's root mean square), with
- * infeasible points returning +inf so the line search backs off. Starting values from EZ-diffusion
- * per cell (Wagenmakers, van der Maas & Grasman 2007, Psychon. Bull. Rev. 14:3-22), several starts,
- * Nelder-Mead (GSL nmsimplex2; Nelder & Mead 1965) as the fallback, then Newton polishing with the
- * observed information.
+ * Optimiser: damped Newton on the analytic gradient (Hessian by forward differences of it, eigenvalues
+ * made positive, backtracking line search; Nocedal & Wright, Numerical Optimization, 2nd ed., 2006,
+ * sec. 3.4), stopping at a Newton decrement (the gradient in standard-error units; Boyd & Vandenberghe,
+ * Convex Optimization, 2004, sec. 9.5.1) of 1e-3, in an unconstrained parameterisation where one exists
+ * (docs/models.md): intercept-only parameters on the identity link are optimised as log(threshold),
+ * logit(start), |x| for drift_sd, start_range and nondecision_range (the likelihood is even in them),
+ * nondecision = min RT of the cell * logistic(.), and so on; other coefficients are optimised directly
+ * (slopes scaled by their regressor's root mean square), with infeasible points returning +inf so the
+ * line search backs off. Starting values from EZ-diffusion per cell (Wagenmakers, van der Maas &
+ * Grasman 2007, Psychon. Bull. Rev. 14:3-22), several starts; GSL's BFGS (vector_bfgs2: Fletcher,
+ * Practical Methods of Optimization, 2nd ed., 1987) where Newton cannot finish and Nelder-Mead (GSL
+ * nmsimplex2; Nelder & Mead 1965) where a start stalls far from a stationary point; then Newton polishing
+ * with the observed information. docs/methods.md ("Optimiser").
  * Inference: observed information from central differences of the analytic gradient, symmetrised,
  * inverted by Cholesky (LAPACKE dpotrf/dpotri); Wald SE, z, p and 95% intervals.
  */
@@ -442,8 +446,8 @@ static int edge_jump(objective *o, double *x, double *f, double *g, newton_ws *w
  * radius that doubles after full steps. Stops when the Newton decrement is below BL_NEWTON_DECREMENT
  * (checked with the last Hessian after each step, so a converged fit needs no further Hessian).
  * Returns the minimum found (+inf when x is infeasible); *converged says whether it stopped there.
- * Near a maximum on the edge of a range (a variability parameter -> 0 through its exp or logistic
- * map) the steps keep moving toward the edge until the decrement is small in these units. */
+ * A maximum of drift_sd, start_range or nondecision_range at 0 is an ordinary stationary point (TR_EVEN);
+ * one of contamination at 0 is approached by edge_jump. */
 static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *converged)
 {
     size_t k = o->k;
