@@ -898,7 +898,14 @@ bl_participants_mode bl_study_participants_mode(const bl_study *s, size_t n_part
 {
     /* a mode set in the struct (not only parsed) counts as given too */
     if (s->fit.participants_given || s->fit.participants != BL_PARTICIPANTS_POOLED) return s->fit.participants;
-    return n_participants >= 3 ? BL_PARTICIPANTS_HIERARCHICAL : BL_PARTICIPANTS_POOLED;
+    /* keys that only describe participants' effects ask for them, whatever the number of participants
+     * (a hierarchical fit of one participant is then an error naming the mode) */
+    int asks = s->fit.quadrature > 1;
+    for (size_t m = 0; m < s->n_models && !asks; m++) {
+        asks = s->models[m].correlated;
+        for (int p = 0; p < BL_NPARAM && !asks; p++) asks = s->models[m].param[p].varies_given;
+    }
+    return asks || n_participants >= 3 ? BL_PARTICIPANTS_HIERARCHICAL : BL_PARTICIPANTS_POOLED;
 }
 
 /* ---- entry points ---- */

@@ -155,7 +155,8 @@ bl_status bl_study_to_json(const bl_study *study, char **out, bl_error *err);
 void bl_study_destroy(bl_study *study);
 
 /* The participants mode a fit uses: the study's, or when the study does not name one, hierarchical
- * with 3 or more participants and pooled otherwise. */
+ * with 3 or more participants or when a model names `varies`/`correlated` or fit.quadrature > 1, and
+ * pooled otherwise. */
 bl_participants_mode bl_study_participants_mode(const bl_study *s, size_t n_participants);
 
 /* The gain for one recording: its extension's entry of a per-format "gain" object, else recordings.gain. */
