@@ -210,9 +210,22 @@ static int participant_hessian(const bl_hier *h, hier_part *pp, const double *L)
     return 1;
 }
 
-/* The conditional mode z^ (Newton with step halving, from the warm start) and ln L_j. Returns 0
- * when no feasible mode is found. */
+static int participant_marginal_from(const bl_hier *h, hier_part *pp, const double *beta, const double *L);
+
+/* The conditional mode z^ (Newton with step halving, from the warm start; once more from no offset
+ * when that fails, so that a point's value does not depend on the path that led to it beside a
+ * feasibility edge) and ln L_j. Returns 0 when no feasible mode is found. */
 static int participant_marginal(const bl_hier *h, hier_part *pp, const double *beta, const double *L)
+{
+    if (participant_marginal_from(h, pp, beta, L)) return 1;
+    int warm = 0;
+    for (size_t c = 0; c < h->q; c++) warm = warm || pp->z[c] != 0;
+    if (!warm) return 0;
+    memset(pp->z, 0, h->q * sizeof *pp->z);
+    return participant_marginal_from(h, pp, beta, L);
+}
+
+static int participant_marginal_from(const bl_hier *h, hier_part *pp, const double *beta, const double *L)
 {
     size_t q = h->q;
     double *z = pp->z, gz[HIER_MAX_EFFECTS], step[HIER_MAX_EFFECTS], zn[HIER_MAX_EFFECTS];
@@ -228,6 +241,15 @@ static int participant_marginal(const bl_hier *h, hier_part *pp, const double *b
             for (size_t c = 0; c < q; c++) z[c] = scale[k] * warm[c];
             f = participant_h(h, pp, beta, L, z, gz);
         }
+        /* then each effect on its own, either way, a growing number of SDs (the population value can be
+         * beyond this participant's edge, e.g. a nondecision time above their fastest RT) */
+        static const double sds[] = {0.5, 1, 2, 4};
+        for (size_t r = 0; r < q && !isfinite(f); r++)
+            for (size_t k = 0; k < 2 * sizeof sds / sizeof *sds && !isfinite(f); k++) {
+                memset(z, 0, q * sizeof *z);
+                z[r] = (k % 2 ? 1 : -1) * sds[k / 2];
+                f = participant_h(h, pp, beta, L, z, gz);
+            }
         if (!isfinite(f)) return 0;
     }
     int found = 0;
@@ -829,26 +851,51 @@ static size_t outer_maximise(bl_hier *h, double tol, double *best, double *gnorm
     /* Rounds: BFGS until the gradient test passes; a round that stalls (the line search finds no
      * descent, as beside a feasibility edge) is restarted from where it stopped, the second time with
      * differenced gradients; a round that gains nothing ends the search. */
-    double f_prev = outer_f(x, &o);
+    /* The best finite point seen is kept: a stalled line search can leave the minimiser on an infeasible
+     * trial point. */
+    double f_best = outer_f(x, &o), f_prev = f_best, gmax = NAN;
+    gsl_vector *x_best = gsl_vector_alloc(n);
+    if (!x_best) {
+        h->nomem = 1;
+        goto done;
+    }
+    gsl_vector_memcpy(x_best, x);
     for (int round = 0; round < 3; round++) {
         o.differences = round == 1;
         gsl_multimin_fdfminimizer_set(s, &fn, x, 0.5, 0.1);
         int passed = 0;
         for (; it < HIER_OUTER_ITER && h->evaluations < budget_end; it++) {
-            if (gsl_multimin_fdfminimizer_iterate(s)) break;
+            int status = gsl_multimin_fdfminimizer_iterate(s);
+            if (isfinite(s->f) && s->f <= f_best) {
+                f_best = s->f;
+                gsl_vector_memcpy(x_best, s->x);
+                gmax = 0;
+                for (size_t i = 0; i < n; i++) gmax = fmax(gmax, fabs(gsl_vector_get(s->gradient, i)));
+            }
+            if (status) break;
             if ((passed = gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS)) break;
         }
-        passed = passed || gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS;
-        gsl_vector_memcpy(x, s->x);
-        if (passed || (o.differences && !(s->f < f_prev - 1e-7)) || h->evaluations >= budget_end) break;
-        f_prev = s->f;
+        passed = passed || (isfinite(s->f) && gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS);
+        gsl_vector_memcpy(x, x_best);
+        if (passed || (o.differences && !(f_best < f_prev - 1e-7)) || h->evaluations >= budget_end) break;
+        f_prev = f_best;
     }
-    x_to_psi(h, s->x, psi);
-    *best = -s->f;
-    double gmax = 0;
-    for (size_t i = 0; i < n; i++) gmax = fmax(gmax, fabs(gsl_vector_get(s->gradient, i)));
+    x_to_psi(h, x_best, psi);
+    *best = -f_best;
+    if (isnan(gmax)) { /* no iteration improved on the start: its gradient */
+        gsl_vector *gv = gsl_vector_alloc(n);
+        if (gv) {
+            outer_df(x_best, &o, gv);
+            gmax = 0;
+            for (size_t i = 0; i < n; i++) gmax = fmax(gmax, fabs(gsl_vector_get(gv, i)));
+            gsl_vector_free(gv);
+        } else {
+            h->nomem = 1;
+        }
+    }
     *gnorm = gmax;
     memcpy(h->psi0, psi, h->d * sizeof *psi);
+    gsl_vector_free(x_best);
 done:
     if (s) gsl_multimin_fdfminimizer_free(s);
     if (x) gsl_vector_free(x);
@@ -868,23 +915,29 @@ static bl_status set_free(bl_hier *h, const unsigned char *fixed, bl_error *err)
 
 /* Observed information of the summed marginal log-likelihood in x units (second differences) at
  * psi0 over the free components: n x n into info. Returns 0 when a point is infeasible. */
-static int outer_information_from_gradients(bl_hier *h, double *info)
+static int outer_information_from_gradients(bl_hier *h, double *info, double e)
 {
     size_t n = h->n_free, d = h->d;
     double *psi = malloc(d * sizeof *psi), *gp = malloc(d * sizeof *gp), *gm = malloc(d * sizeof *gm);
-    int ok = psi && gp && gm;
+    double *g0 = malloc(d * sizeof *g0);
+    int ok = psi && gp && gm && g0;
     if (!ok) h->nomem = 1;
-    const double e = HIER_INFO_STEP;
+    ok = ok && isfinite(marginal_and_gradient(h, h->psi0, g0));
     for (size_t i = 0; i < n && ok; i++) {
         size_t ci = h->free_idx[i];
         memcpy(psi, h->psi0, d * sizeof *psi);
         psi[ci] += e * h->scale[ci];
-        ok = isfinite(marginal_and_gradient(h, psi, gp));
+        int okp = isfinite(marginal_and_gradient(h, psi, gp));
         psi[ci] -= 2 * e * h->scale[ci];
-        ok = ok && isfinite(marginal_and_gradient(h, psi, gm));
+        int okm = isfinite(marginal_and_gradient(h, psi, gm));
+        /* beside a feasibility edge (a participant's nondecision at their fastest RT) one side may be
+         * out of reach: a one-sided difference from the centre then */
+        const double *hi = okp ? gp : g0, *lo = okm ? gm : g0;
+        double span = (okp ? e : 0) + (okm ? e : 0);
+        ok = okp || okm;
         for (size_t j = 0; j < n && ok; j++) {
             size_t cj = h->free_idx[j];
-            info[j * n + i] = -(gp[cj] - gm[cj]) * h->scale[cj] / (2 * e);
+            info[j * n + i] = -(hi[cj] - lo[cj]) * h->scale[cj] / span;
         }
     }
     for (size_t i = 0; i < n && ok; i++)
@@ -892,6 +945,7 @@ static int outer_information_from_gradients(bl_hier *h, double *info)
     free(psi);
     free(gp);
     free(gm);
+    free(g0);
     return ok;
 }
 
@@ -899,7 +953,9 @@ static int outer_information(bl_hier *h, double *info)
 {
     size_t n = h->n_free;
     /* Laplace: central differences of the analytic gradient (2n gradients instead of ~2n^2 values) */
-    if (h->n_grid <= 1 && outer_information_from_gradients(h, info)) {
+    /* a smaller step when a point beside a feasibility edge cannot be evaluated */
+    if (h->n_grid <= 1 && (outer_information_from_gradients(h, info, HIER_INFO_STEP) ||
+                           outer_information_from_gradients(h, info, 0.1 * HIER_INFO_STEP))) {
         bl_hier_marginal(h, h->psi0); /* participants' modes back at psi0 */
         return 1;
     }
