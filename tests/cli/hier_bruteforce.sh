@@ -7,9 +7,9 @@
 #   - the reported estimates are a maximum of the quad marginal (moves of 0.1 SE / 5% of the SD);
 #   - Laplace (Tierney & Kadane 1986): equal to the Laplace formula evaluated by the reference, and
 #     off quad by the leading O(1/n) term of its error, h4/(8H^2) + 5 h3^2/(24H^3) per participant.
-# Measured when written: Gauss-Hermite vs quad 1.4e-10; Laplace vs quad -3.06e-3 in all (about 1e-3 per
-# participant of 30 trials, against 1/n = 0.033), its leading term predicting -3.15e-3 (3% off, the
-# O(1/n^2) rest); a 0.1-SE move lowers the quad marginal by 5.0e-3, a 5% move of the SD by 6.6e-3.
+# Measured when written: Gauss-Hermite vs quad 3.6e-11; Laplace vs quad -4.13e-3 in all (about 1.4e-3 per
+# participant of 30 trials, against 1/n = 0.033), its leading term predicting -4.20e-3 (2% off: the
+# O(1/n^2) rest); a 0.1-SE move lowers the quad marginal by 5.1e-3 to 5.2e-3, a 5% move of the SD by 5.7e-3 to 6.6e-3.
 # Data: invented trials drawn by the reference's seeded random walk. Skipped without scipy/numpy.
 set -u
 . "$(dirname "$0")/lib.sh"
@@ -20,7 +20,7 @@ ref="$BL_SOURCE_ROOT/tests/reference/hier_reference.py"
 "$py" -c 'import numpy, scipy' 2>/dev/null || skip "python3-numpy or python3-scipy missing"
 
 cd "$tmp" || bail "cd $tmp"
-"$py" "$ref" trials trials.csv 3 30 7 0.35 || bail "trials"
+"$py" "$ref" trials trials.csv 3 30 7 0.35 0 0 || bail "trials"
 check_eval "3 x 30 trials" "[ \$(wc -l < trials.csv) -eq 91 ]"
 
 # One varying term: the threshold intercept; drift per difficulty and nondecision fixed effects.

@@ -1,10 +1,12 @@
 #!/usr/bin/python3
 """Outside references for hierarchical fits (tests/cli/hier_bruteforce.sh, hier_limits.sh).
 
-  hier_reference.py trials OUT.csv PARTICIPANTS TRIALS SEED SD_THRESHOLD
+  hier_reference.py trials OUT.csv PARTICIPANTS TRIALS SEED SD_THRESHOLD SD_DRIFT SD_NONDECISION [easy]
       Invented trials: a Wiener process (noise scale 1, start midway) simulated by an Euler random walk
-      (numpy, seeded), threshold = 1.4 + SD_THRESHOLD * z_j per participant (z_j standard normal),
-      drift = 1.2 for "easy" and 0.6 for "hard" stimuli, nondecision 0.3 s. Accuracy coding (correct 1/0).
+      (numpy, seeded, step 0.2 ms): threshold 1.4, drift 1.2 for "easy" and 0.6 for "hard" stimuli,
+      nondecision 0.3 s, each plus SD * z_j for participant j (z_j evenly spaced in [-1.2, 1.2], in a
+      different order for each parameter). Accuracy coding (correct 1/0). A last argument "easy": every
+      trial easy.
       The walk's small overshoot bias does not matter: the checks hold for whatever data are fitted.
 
   hier_reference.py check FITS_GH20.json FITS_LAPLACE.json TRIALS.csv MODEL
@@ -34,15 +36,23 @@ except ImportError as e:  # the test is skipped, not failed
 LOG_SQRT_2PI = 0.5 * math.log(2 * math.pi)
 
 
-def simulate(out, n_part, n_trials, seed, sd_threshold):
+def spaced(n_part, shift):
+    """Participant offsets in SD units, evenly spaced in [-1.2, 1.2] (so the spread is there by design, not
+    by chance), rotated by `shift` so that the offsets of different parameters are not in step."""
+    z = [0.0] if n_part == 1 else [-1.2 + 2.4 * j / (n_part - 1) for j in range(n_part)]
+    return [z[(j + shift) % n_part] for j in range(n_part)]
+
+
+def simulate(out, n_part, n_trials, seed, sd_a, sd_v, sd_t0, all_easy=False):
     rng = np.random.default_rng(seed)
     dt = 2e-4
     rows = []
+    za, zv, zt = spaced(n_part, 0), spaced(n_part, 1), spaced(n_part, 2)
     for j in range(n_part):
-        a = 1.4 + sd_threshold * rng.standard_normal()
-        a = max(a, 0.4)
-        hard = rng.integers(0, 2, n_trials)
-        v = np.where(hard == 1, 0.6, 1.2)
+        a = max(1.4 + sd_a * za[j], 0.4)
+        t0 = max(0.3 + sd_t0 * zt[j], 0.05)
+        hard = np.zeros(n_trials, dtype=int) if all_easy else rng.integers(0, 2, n_trials)
+        v = np.where(hard == 1, 0.6, 1.2) + sd_v * zv[j]
         x = np.full(n_trials, 0.5 * a)
         t = np.zeros(n_trials)
         alive = np.ones(n_trials, dtype=bool)
@@ -52,7 +62,7 @@ def simulate(out, n_part, n_trials, seed, sd_threshold):
             t[k] += dt
             alive[k[(x[k] <= 0) | (x[k] >= a)]] = False
         for i in range(n_trials):
-            rows.append(("p%d" % (j + 1), "hard" if hard[i] else "easy", "%.5f" % (t[i] + 0.3),
+            rows.append(("p%d" % (j + 1), "hard" if hard[i] else "easy", "%.5f" % (t[i] + t0),
                          1 if x[i] >= a else 0))
     with open(out, "w", newline="") as f:
         w = csv.writer(f, lineterminator="\n")
@@ -265,8 +275,9 @@ def check(fits_aghq, fits_laplace, trials_path, model_name):
 
 
 def main(argv):
-    if len(argv) >= 7 and argv[1] == "trials":
-        simulate(argv[2], int(argv[3]), int(argv[4]), int(argv[5]), float(argv[6]))
+    if len(argv) >= 9 and argv[1] == "trials":
+        simulate(argv[2], int(argv[3]), int(argv[4]), int(argv[5]), float(argv[6]), float(argv[7]), float(argv[8]),
+                 "easy" in argv[9:])
     elif len(argv) >= 6 and argv[1] == "check":
         check(argv[2], argv[3], argv[4], argv[5])
     else:
