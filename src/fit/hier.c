@@ -53,6 +53,7 @@ typedef struct {
     double *z;      /* conditional mode of the standardised effects (warm start), q */
     double *theta, *grad, *gp, *gm, *tmp;
     double *terms; /* n_grid: the log terms of the quadrature sum */
+    double *K;     /* q x p: the Hessian of l along each effect (participant_hessian) */
     double G[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS], H[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
     double R[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS]; /* Cholesky factor of H at the mode */
     double ll_cond;                                /* l_j at the mode */
@@ -74,6 +75,7 @@ struct bl_hier {
     double *psi0, *scale;
     size_t *free_idx, n_free;
     double *info_hat, *psi_hat; /* observed information (x units) at the estimate psi_hat, for profiles */
+    double *psi_est;            /* the estimate, for refits (permutation tests) */
 };
 
 /* ---- small dense algebra (q <= HIER_MAX_EFFECTS) ---- */
@@ -159,12 +161,14 @@ static double participant_h(const bl_hier *h, hier_part *pp, const double *beta,
     return ll - 0.5 * zz;
 }
 
-/* G = Z' (d2 l / dtheta2) Z at pp->theta by central differences of the analytic gradient; then
- * H = I - L' G L. Returns 0 when a differenced point is infeasible. */
+/* K = (d2 l / dtheta2) Z (p x q, stored by effect: K[r * p + m]) at pp->theta by central differences
+ * of the analytic gradient (one-sided, from pp->grad at theta, when a side is infeasible: the
+ * nondecision time can sit within a step of the fastest RT); G = Z' K; H = I - L' G L. Returns 0 when
+ * neither side is feasible. */
 static int participant_hessian(const bl_hier *h, hier_part *pp, const double *L)
 {
-    size_t q = h->q;
-    memcpy(pp->tmp, pp->theta, h->p * sizeof *pp->tmp);
+    size_t q = h->q, p = h->p;
+    memcpy(pp->tmp, pp->theta, p * sizeof *pp->tmp);
     for (size_t r = 0; r < q; r++) {
         const bl_hier_effect *e = &h->eff[r];
         for (size_t i = 0; i < e->n; i++) pp->tmp[e->coef[i]] += HIER_HESS_STEP;
@@ -172,14 +176,19 @@ static int participant_hessian(const bl_hier *h, hier_part *pp, const double *L)
         for (size_t i = 0; i < e->n; i++) pp->tmp[e->coef[i]] -= 2 * HIER_HESS_STEP;
         double lm = bl_likelihood_eval(pp->lik, pp->tmp, pp->gm);
         for (size_t i = 0; i < e->n; i++) pp->tmp[e->coef[i]] = pp->theta[e->coef[i]];
-        if (!isfinite(lp) || !isfinite(lm)) return 0;
+        double *k = pp->K + r * p;
+        if (isfinite(lp) && isfinite(lm))
+            for (size_t m = 0; m < p; m++) k[m] = (pp->gp[m] - pp->gm[m]) / (2 * HIER_HESS_STEP);
+        else if (isfinite(lp))
+            for (size_t m = 0; m < p; m++) k[m] = (pp->gp[m] - pp->grad[m]) / HIER_HESS_STEP;
+        else if (isfinite(lm))
+            for (size_t m = 0; m < p; m++) k[m] = (pp->grad[m] - pp->gm[m]) / HIER_HESS_STEP;
+        else
+            return 0;
         for (size_t s = 0; s < q; s++) {
             double d = 0;
-            for (size_t i = 0; i < h->eff[s].n; i++) {
-                size_t c = h->eff[s].coef[i];
-                d += pp->gp[c] - pp->gm[c];
-            }
-            pp->G[s * q + r] = d / (2 * HIER_HESS_STEP);
+            for (size_t i = 0; i < h->eff[s].n; i++) d += k[h->eff[s].coef[i]];
+            pp->G[s * q + r] = d;
         }
     }
     for (size_t r = 0; r < q; r++)
@@ -405,7 +414,8 @@ static bl_status build_participants(bl_hier *h, const bl_model_spec *spec, const
         pp->gm = malloc(p * sizeof(double));
         pp->tmp = malloc(p * sizeof(double));
         pp->terms = malloc(h->n_grid * sizeof(double));
-        if (!pp->trials || !pp->z || !pp->theta || !pp->grad || !pp->gp || !pp->gm || !pp->tmp || !pp->terms)
+        pp->K = malloc(q * p * sizeof(double) + sizeof(double));
+        if (!pp->trials || !pp->z || !pp->theta || !pp->grad || !pp->gp || !pp->gm || !pp->tmp || !pp->terms || !pp->K)
             goto nomem;
         for (size_t k = 0; k < m->n; k++)
             if (trials->participant[m->row[k]] == i) pp->trials[pp->n_trials++] = k;
@@ -488,6 +498,7 @@ void bl_hier_destroy(bl_hier *h)
         free(pp->gm);
         free(pp->tmp);
         free(pp->terms);
+        free(pp->K);
     }
     free(h->part);
     free(h->names);
@@ -498,6 +509,7 @@ void bl_hier_destroy(bl_hier *h)
     free(h->free_idx);
     free(h->info_hat);
     free(h->psi_hat);
+    free(h->psi_est);
     free(h);
 }
 
@@ -1151,6 +1163,10 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
     }
     starting_point(h, pooled, pooled_coef);
     set_free(h, NULL, NULL);
+    /* Near an edge (nondecision at the fastest RT) the starting spread can leave a participant without
+     * a mode: start with less spread then. */
+    for (int shrink = 0; shrink < 3 && !isfinite(bl_hier_marginal(h, h->psi0)); shrink++)
+        for (size_t c = h->p; c < d; c++) h->psi0[c] *= 0.1;
     double m_hat, gnorm;
     size_t iterations = outer_maximise(h, 1e-3, &m_hat, &gnorm);
     if (!isfinite(m_hat)) {
@@ -1190,6 +1206,7 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
+    if ((h->psi_est = malloc(d * sizeof *h->psi_est))) memcpy(h->psi_est, h->psi0, d * sizeof *h->psi_est);
     f->diag.evaluations = likelihood_evaluations(h);
     f->diag.seconds = bl_clock_seconds() - t_start;
     if (!f->converged)
@@ -1206,4 +1223,34 @@ done:
         *part_coef = NULL;
     }
     return st;
+}
+
+double bl_hier_refit(bl_hier *h, const unsigned char *coef_at_zero, double tol)
+{
+    if (!h->psi_est) return -INFINITY;
+    unsigned char *fixed = calloc(h->d, 1);
+    if (!fixed) return -INFINITY;
+    memcpy(h->psi0, h->psi_est, h->d * sizeof *h->psi0);
+    for (size_t c = 0; coef_at_zero && c < h->p; c++)
+        if (coef_at_zero[c]) {
+            fixed[c] = 1;
+            h->psi0[c] = 0;
+        }
+    /* an effect that moves only coefficients held at zero has no spread to estimate */
+    for (size_t r = 0; coef_at_zero && r < h->q; r++) {
+        int all = 1;
+        for (size_t i = 0; i < h->eff[r].n; i++) all = all && coef_at_zero[h->eff[r].coef[i]];
+        if (!all) continue;
+        for (size_t c = 0; c <= (h->correlated ? r : 0); c++) {
+            size_t idx = h->p + (h->correlated ? r * (r + 1) / 2 + c : r);
+            fixed[idx] = 1;
+            h->psi0[idx] = 0;
+        }
+    }
+    set_free(h, fixed, NULL);
+    double best, g;
+    outer_maximise(h, tol, &best, &g);
+    set_free(h, NULL, NULL);
+    free(fixed);
+    return best;
 }

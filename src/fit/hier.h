@@ -40,6 +40,16 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
 bl_likelihood *bl_hier_participant_likelihood(const bl_hier *h, size_t j);
 /* Effect r: its parameter and `varies` label. */
 const char *bl_hier_effect_label(const bl_hier *h, size_t r, bl_param *param);
+/* After bl_hier_fit: the maximum marginal log-likelihood refitted from the estimate, with the
+ * coefficients flagged in coef_at_zero (n_coef flags, may be NULL) held at 0 (and the spread of an
+ * effect that moves only those); the model's design may have changed since (permuted regressor).
+ * Stops at a gradient of tol per pooled SE. -INFINITY when no feasible point is found. */
+double bl_hier_refit(bl_hier *h, const unsigned char *coef_at_zero, double tol);
+/* Permutation tests of every slope of a hierarchically fitted model (compare.c's design and seeds:
+ * the regressor shuffled within participant x condition cells; each level's coefficient on its own
+ * when the slope has several). m is the design h was built on; it is changed and restored. */
+bl_status bl_hier_permutation_tests(bl_hier *h, bl_model *m, const bl_model_spec *spec, const bl_trials *trials,
+                                    const bl_fit_options *opt, bl_model_result *r, bl_error *err);
 /* Used trials (model indices) of participant j. */
 const size_t *bl_hier_participant_trials(const bl_hier *h, size_t j, size_t *n);
 
