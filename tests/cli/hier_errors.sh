@@ -73,10 +73,4 @@ refused quadrature_terms "model 'm'.*quadrature 3.*4"
 study one "$H" '[{"name": "m"}]' one.csv
 refused one "model 'm'.*hierarchical.*1"
 
-# --permutations with hierarchical fits: stated, and by default (3 participants).
-study perm "$H" '[{"name": "m"}]'
-refused perm '--permutations 9.*hierarchical' --permutations 9
-study perm_default '{}' '[{"name": "m"}]'
-refused perm_default '--permutations 9.*hierarchical' --permutations 9
-
 finish
