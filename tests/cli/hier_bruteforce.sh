@@ -40,7 +40,8 @@ study 20 > gh20.json
 study 1 > laplace.json
 expect_exit 0 "$BANDLINK" fit gh20.json --out gh20 --quiet
 expect_exit 0 "$BANDLINK" fit laplace.json --out laplace --quiet
-check_eval "gauss-hermite fit says so" "grep -q '\"integration\":[[:space:]]*\"gauss-hermite\"' gh20/fits.json && grep -q '\"quadrature\":[[:space:]]*20' gh20/fits.json"
+check_eval "gauss-hermite fit says so" \
+  "grep -q '\"integration\":[[:space:]]*\"gauss-hermite\"' gh20/fits.json && grep -q '\"quadrature\":[[:space:]]*20' gh20/fits.json"
 check_eval "laplace fit says so" "grep -q '\"integration\":[[:space:]]*\"laplace\"' laplace/fits.json"
 [ -s gh20/fits.json ] && [ -s laplace/fits.json ] || bail "no fits.json"
 tally "$py" "$ref" check gh20/fits.json laplace/fits.json trials.csv tiny

@@ -12,18 +12,20 @@
 #     below the fastest RT of all, far worse here (offsets of +-0.1 s, 200 trials each), so the statistic
 #     is a number > 10 (boundary mixture p < 1e-3, Self & Liang 1987) and the profile interval's lower
 #     end is above 0 (at SD = 0 the deviance is far above 3.84) and its upper end above the estimate.
-# KNOWN DEFECT when written (main a8e0905, still at 93196ee): participant p3 (fastest RT 0.2506 s) is reported with the
-# population's coefficients (nondecision 0.3015 s, offsets exactly 0) and trials.csv gives a number
-# (0, 8e-246, -7.6e-142: uninitialised memory) as the log_likelihood of its trials from the first one
-# faster than that on (bl_likelihood_trials in src/fit/likelihood.c sets NaN only without a subset, and
-# the evaluation stops at the first impossible trial); the nondecision spread has lrt_statistic null and the
-# interval [0, 0.07208] around an estimate of 0.07206. Cause as read in src/fit/hier.c: fill_participants()
-# uses each participant's last mode (part[j].z) without re-solving at the estimate; an evaluation
-# where the warm start was impossible (participant_marginal: memset(z, 0)) leaves z = 0, and from z = 0
-# the mode is never found again (restoring the modes saved after polish() before the final re-evaluation
-# fixed the estimates and the upper end in a scratch build; the statistic and the lower end need a start
-# that is possible at SD = 0, e.g. the pooled fit, or warm starts that keep each participant's own
-# coefficients beta + L z when beta or L moves). tests/meson.build marks this test should_fail until fixed.
+# KNOWN DEFECT when written (main a8e0905, still at 93196ee): participant p3 (fastest RT 0.2506 s) is
+# reported with the population's coefficients (nondecision 0.3015 s, offsets exactly 0); trials.csv
+# gives a number (0, 8e-246, -7.6e-142: uninitialised memory) as the log_likelihood of its trials from
+# the first one faster than that on (bl_likelihood_trials in src/fit/likelihood.c sets NaN only without
+# a subset, and the evaluation stops at the first impossible trial); the nondecision spread has
+# lrt_statistic null and the interval [0, 0.07208] around an estimate of 0.07206.
+# Cause as read in src/fit/hier.c: an evaluation where a participant's warm start is impossible (the
+# spread test and the profiles move beta and L) resets that participant's z to 0 (participant_marginal,
+# memset); at the estimate z = 0 is impossible too, so the final re-solve (fill_variance: "the
+# participants' modes back at the estimate") fails, its -inf is ignored, and fill_participants() reports
+# z = 0. In a scratch build, restoring the modes saved after polish() before that re-solve fixed the
+# estimates, trials.csv and the interval's upper end; the statistic and the lower end need a start that
+# is possible at SD = 0 (the pooled fit), or warm starts that keep each participant's own coefficients
+# beta + L z when beta or L moves. tests/meson.build marks this test should_fail until fixed.
 # Data: invented trials drawn by tests/reference/hier_reference.py's seeded random walk (numpy).
 set -u
 . "$(dirname "$0")/lib.sh"
