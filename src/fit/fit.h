@@ -141,6 +141,9 @@ typedef struct {
     size_t n_variance;
     bl_variance_component *variance;
     double *correlation; /* n_variance x n_variance (correlated effects), else NULL */
+    double *separate_estimate; /* n_participants x fit.n_coef: each participant's own (separate) fit of the
+                                  model, for the shrinkage figure; NAN where a participant's fit lacks the
+                                  coefficient or failed; NULL when no separate fit could be built */
     int quadrature;      /* nodes per dimension; 1 = Laplace */
     size_t n_permutation;
     bl_permutation_test *permutation;

@@ -80,6 +80,7 @@ static void model_result_free(bl_model_result *r)
     for (size_t i = 0; i < r->n_variance; i++) free(r->variance[i].term);
     free(r->variance);
     free(r->correlation);
+    free(r->separate_estimate);
     for (size_t i = 0; i < r->n_group; i++) {
         free(r->group[i].term);
         free(r->group[i].level);
@@ -366,6 +367,51 @@ done:
     return st;
 }
 
+/* Hierarchical model q: each participant's own fit of the model (what the shrinkage figure compares
+ * the empirical-Bayes estimates with). A participant whose design cannot be fitted alone (a level
+ * missing, a constant regressor) leaves the whole comparison out: it is a figure, not an estimate. */
+static bl_status separate_for_shrinkage(study_fit *sf, size_t q, bl_error *err)
+{
+    bl_model_result *r = &sf->set->models[q];
+    const bl_model_spec *spec = &sf->study->models[sf->sel[q]];
+    bl_unit_set u;
+    bl_error ignored = {0};
+    if (bl_build_units(spec, sf->trials, BL_PARTICIPANTS_SEPARATE, &sf->opt, &u, NULL, NULL, &ignored)) return BL_OK;
+    bl_status st = BL_OK;
+    size_t k = r->fit.n_coef;
+    if (u.n_units != r->n_participants) goto done;
+    if (!(r->separate_estimate = malloc(u.n_units * (k ? k : 1) * sizeof(double)))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
+    bl_fit_options one = sf->opt;
+    one.progress = NULL;
+    one.starts = 1;
+#ifdef _OPENMP
+    int nt = one.threads > 0 ? one.threads : omp_get_max_threads();
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt > 0 ? nt : 1) if (u.n_units > 1)
+#endif
+    for (size_t i = 0; i < u.n_units; i++) {
+        bl_fit_result fr;
+        bl_error e = {0};
+        double *row = r->separate_estimate + i * k;
+        for (size_t c = 0; c < k; c++) row[c] = NAN;
+        if (bl_fit_core(u.models[i], u.liks[i], &one, 1, NULL, 0, &fr, u.coef[i], &e)) continue;
+        for (size_t c = 0; c < k; c++) {
+            const bl_coefficient *pc = &r->fit.coef[c];
+            for (size_t j = 0; j < bl_model_n_coef(u.models[i]); j++) {
+                const bl_coef_info *ci = bl_model_coef(u.models[i], j);
+                if (ci->param == pc->param && !strcmp(ci->term, pc->term) && !strcmp(ci->level, pc->level))
+                    row[c] = u.coef[i][j];
+            }
+        }
+        bl_fit_result_clear(&fr);
+    }
+done:
+    bl_unit_set_free(&u);
+    return st;
+}
+
 /* Step 2b, hierarchical mode: from each model's pooled fit, the fit with participants' effects
  * integrated out (the pooled fit is the starting point and is then discarded). */
 static bl_status run_hierarchical_fits(study_fit *sf, bl_warnings *warn, bl_error *err)
@@ -379,6 +425,7 @@ static bl_status run_hierarchical_fits(study_fit *sf, bl_warnings *warn, bl_erro
         bl_status st = bl_hier_fit(sf->hier[q], &sf->opt, &pooled, sf->units[q].coef[0], r, &sf->part_coef[q], warn,
                                    err);
         bl_fit_result_clear(&pooled);
+        if (!st) st = separate_for_shrinkage(sf, q, err);
         if (st) return st;
         if (sf->opt.progress) sf->opt.progress(sf->opt.progress_user, r->name, q + 1, sf->n_sel);
     }

@@ -76,6 +76,7 @@ struct bl_hier {
     size_t *free_idx, n_free;
     double *info_hat, *psi_hat; /* observed information (x units) at the estimate psi_hat, for profiles */
     double *psi_est;            /* the estimate, for refits (permutation tests) */
+    double *pooled_coef;        /* the pooled fit's coefficients (feasible with no spread) */
 };
 
 /* ---- small dense algebra (q <= HIER_MAX_EFFECTS) ---- */
@@ -183,8 +184,7 @@ static int participant_hessian(const bl_hier *h, hier_part *pp, const double *L)
             for (size_t m = 0; m < p; m++) k[m] = (pp->gp[m] - pp->grad[m]) / HIER_HESS_STEP;
         else if (isfinite(lm))
             for (size_t m = 0; m < p; m++) k[m] = (pp->grad[m] - pp->gm[m]) / HIER_HESS_STEP;
-        else
-            return 0;
+        else return 0;
         for (size_t s = 0; s < q; s++) {
             double d = 0;
             for (size_t i = 0; i < h->eff[s].n; i++) d += k[h->eff[s].coef[i]];
@@ -212,8 +212,16 @@ static int participant_marginal(const bl_hier *h, hier_part *pp, const double *b
     double *z = pp->z, gz[HIER_MAX_EFFECTS], step[HIER_MAX_EFFECTS], zn[HIER_MAX_EFFECTS];
     double f = participant_h(h, pp, beta, L, z, gz);
     if (!isfinite(f)) {
-        memset(z, 0, q * sizeof *z);
-        f = participant_h(h, pp, beta, L, z, gz);
+        /* The warm start left the feasible region (e.g. nondecision above this participant's fastest
+         * RT): try no offset, then the warm start's direction further out (a participant whose mode
+         * lies beyond the population value on the feasible side). */
+        double warm[HIER_MAX_EFFECTS];
+        memcpy(warm, z, q * sizeof *warm);
+        static const double scale[] = {0, 1.5, 2, 3, 5, 8};
+        for (size_t k = 0; k < sizeof scale / sizeof *scale && !isfinite(f); k++) {
+            for (size_t c = 0; c < q; c++) z[c] = scale[k] * warm[c];
+            f = participant_h(h, pp, beta, L, z, gz);
+        }
         if (!isfinite(f)) return 0;
     }
     int found = 0;
@@ -283,6 +291,151 @@ static int participant_marginal(const bl_hier *h, hier_part *pp, const double *b
     participant_h(h, pp, beta, L, z, NULL); /* leave theta and ll_cond at the mode */
     pp->m = best + log(s) - logdet_half;
     return isfinite(pp->m);
+}
+
+/* Gradient of participant j's Laplace value ln L_j = h(z^) - 1/2 ln det H with respect to psi =
+ * (beta, lambda), at the mode participant_marginal left (theta, grad, K, G, R there). With
+ * A = L H^-1 L', s(theta) = tr(A Z' d2l Z) and c = ds/dtheta (third derivatives, as second
+ * differences of the analytic gradient along the q columns w_k of Z L R'^-1):
+ *   d/dbeta   = g + c/2 + K' A (Z'c) / 2
+ *   d/dL_ab   = (Z'g)_a z_b + (G L H^-1)_ab + [ (Z'c)_a z_b + (Z'c)' L dz ] / 2,
+ *               dz = H^-1 [ e_b (Z'g)_a + L' G e_a z_b ]
+ * (docs/methods.md derives it). Returns 0 when a differenced point is infeasible. */
+static int participant_gradient(const bl_hier *h, hier_part *pp, const double *L, double *out)
+{
+    size_t q = h->q, p = h->p;
+    const double *g = pp->grad, *z = pp->z;
+    double Zg[HIER_MAX_EFFECTS] = {0}, Zc[HIER_MAX_EFFECTS] = {0}, B[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
+    for (size_t a = 0; a < q; a++)
+        for (size_t i = 0; i < h->eff[a].n; i++) Zg[a] += g[h->eff[a].coef[i]];
+    for (size_t j = 0; j < q; j++) { /* row j of B = (R^-1 (row j of L)')' */
+        double y[HIER_MAX_EFFECTS];
+        for (size_t i = 0; i < q; i++) {
+            y[i] = L[j * q + i];
+            for (size_t k = 0; k < i; k++) y[i] -= pp->R[i * q + k] * y[k];
+            y[i] /= pp->R[i * q + i];
+        }
+        memcpy(B + j * q, y, q * sizeof *y);
+    }
+    double *c = pp->tmp; /* p: reused, theta is kept in pp->theta */
+    memset(c, 0, p * sizeof *c);
+    double *th = malloc(p * sizeof *th);
+    if (!th) return 0;
+    for (size_t k = 0; k < q; k++) {
+        double wmax = 0;
+        for (size_t r = 0; r < q; r++) wmax = fmax(wmax, fabs(B[r * q + k]));
+        if (!(wmax > 0)) continue;
+        double eps = 3e-4 / wmax; /* truncation (5th derivatives near the fastest RT) vs rounding / eps^2 */
+        memcpy(th, pp->theta, p * sizeof *th);
+        for (size_t r = 0; r < q; r++)
+            for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] += eps * B[r * q + k];
+        double lp = bl_likelihood_eval(pp->lik, th, pp->gp);
+        memcpy(th, pp->theta, p * sizeof *th);
+        for (size_t r = 0; r < q; r++)
+            for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] -= eps * B[r * q + k];
+        double lm = bl_likelihood_eval(pp->lik, th, pp->gm);
+        if (!isfinite(lp) || !isfinite(lm)) {
+            free(th);
+            return 0;
+        }
+        for (size_t m = 0; m < p; m++) c[m] += (pp->gp[m] - 2 * g[m] + pp->gm[m]) / (eps * eps);
+    }
+    free(th);
+    for (size_t a = 0; a < q; a++)
+        for (size_t i = 0; i < h->eff[a].n; i++) Zc[a] += c[h->eff[a].coef[i]];
+    double A[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS], v[HIER_MAX_EFFECTS];
+    for (size_t a = 0; a < q; a++)
+        for (size_t b = 0; b < q; b++) {
+            double sum = 0;
+            for (size_t k = 0; k < q; k++) sum += B[a * q + k] * B[b * q + k];
+            A[a * q + b] = sum;
+        }
+    for (size_t a = 0; a < q; a++) {
+        v[a] = 0;
+        for (size_t b = 0; b < q; b++) v[a] += A[a * q + b] * Zc[b];
+    }
+    for (size_t m = 0; m < p; m++) {
+        double kv = 0;
+        for (size_t r = 0; r < q; r++) kv += pp->K[r * p + m] * v[r];
+        out[m] = g[m] + 0.5 * c[m] + 0.5 * kv;
+    }
+    /* G L H^-1: row a solves H x = (G L)[a, :]' */
+    double GLH[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
+    for (size_t a = 0; a < q; a++) {
+        double row[HIER_MAX_EFFECTS];
+        for (size_t b = 0; b < q; b++) {
+            row[b] = 0;
+            for (size_t k = 0; k < q; k++) row[b] += pp->G[a * q + k] * L[k * q + b];
+        }
+        chol_solve(pp->R, q, row);
+        memcpy(GLH + a * q, row, q * sizeof *row);
+    }
+    for (size_t t = 0, a = 0; a < q; a++)
+        for (size_t b = h->correlated ? 0 : a; b <= a; b++, t++) {
+            double dz[HIER_MAX_EFFECTS];
+            for (size_t i = 0; i < q; i++) { /* L' G e_a z_b + e_b (Z'g)_a */
+                double sum = 0;
+                for (size_t k = 0; k < q; k++) sum += L[k * q + i] * pp->G[k * q + a];
+                dz[i] = sum * z[b] + (i == b ? Zg[a] : 0);
+            }
+            chol_solve(pp->R, q, dz);
+            double cdt = Zc[a] * z[b];
+            for (size_t r = 0; r < q; r++) {
+                double Ldz = 0;
+                for (size_t k = 0; k < q; k++) Ldz += L[r * q + k] * dz[k];
+                cdt += Zc[r] * Ldz;
+            }
+            out[p + t] = Zg[a] * z[b] + GLH[a * q + b] + 0.5 * cdt;
+        }
+    return 1;
+}
+
+/* Summed marginal log-likelihood and its gradient (Laplace only; grad d values). Returns
+ * -INFINITY when a participant has no mode, NAN when the gradient could not be formed (the caller
+ * then differences the function). */
+static double marginal_and_gradient(bl_hier *h, const double *psi, double *grad)
+{
+    double L[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
+    bl_hier_lambda_to_l(h, psi + h->p, L);
+    h->evaluations++;
+    int ok_all = 1, grad_all = 1;
+    int nt = 1;
+    double *per = malloc(h->J * h->d * sizeof *per);
+    if (!per) return NAN;
+#ifdef _OPENMP
+    nt = h->threads > 0 ? h->threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (nt > 1 && h->J > 1) reduction(&& : ok_all, grad_all)
+#endif
+    for (size_t j = 0; j < h->J; j++) {
+        hier_part *pp = &h->part[j];
+        if (!participant_marginal(h, pp, psi, L)) {
+            pp->m = -INFINITY;
+            ok_all = 0;
+        } else if (!participant_gradient(h, pp, L, per + j * h->d)) {
+            grad_all = 0;
+        }
+    }
+    (void)nt;
+    double s = 0;
+    if (ok_all) {
+        for (size_t j = 0; j < h->J; j++) s += h->part[j].m;
+        memset(grad, 0, h->d * sizeof *grad);
+        for (size_t j = 0; j < h->J; j++)
+            for (size_t c = 0; c < h->d; c++) grad[c] += per[j * h->d + c];
+    }
+    free(per);
+    if (!ok_all || !isfinite(s)) return -INFINITY;
+    if (!grad_all) return NAN;
+    for (size_t c = 0; c < h->d; c++)
+        if (!isfinite(grad[c])) return NAN;
+    return s;
+}
+
+double bl_hier_marginal_gradient(bl_hier *h, const double *psi, double *grad)
+{
+    if (h->n_grid > 1) return NAN;
+    return marginal_and_gradient(h, psi, grad);
 }
 
 /* Summed marginal log-likelihood at psi = (beta, lambda); -INFINITY when a participant has no mode. */
@@ -510,6 +663,7 @@ void bl_hier_destroy(bl_hier *h)
     free(h->info_hat);
     free(h->psi_hat);
     free(h->psi_est);
+    free(h->pooled_coef);
     free(h);
 }
 
@@ -542,6 +696,7 @@ static void x_to_psi(const bl_hier *h, const gsl_vector *x, double *psi)
 typedef struct {
     bl_hier *h;
     double *psi;
+    double *grad_psi; /* d values (Laplace gradients), may be NULL */
 } outer;
 
 static double outer_f(const gsl_vector *x, void *params)
@@ -553,7 +708,7 @@ static double outer_f(const gsl_vector *x, void *params)
 }
 
 /* Central differences in x (one-sided where a side is infeasible). */
-static void outer_df(const gsl_vector *x, void *params, gsl_vector *g)
+static void outer_df_differences(const gsl_vector *x, void *params, gsl_vector *g)
 {
     outer *o = params;
     gsl_vector *xt = gsl_vector_alloc(x->size);
@@ -584,10 +739,34 @@ static void outer_df(const gsl_vector *x, void *params, gsl_vector *g)
     gsl_vector_free(xt);
 }
 
+/* -M and its gradient in x: the Laplace value's analytic gradient, else differences. */
+static double outer_value_gradient(const gsl_vector *x, outer *o, gsl_vector *g)
+{
+    bl_hier *h = o->h;
+    x_to_psi(h, x, o->psi);
+    if (h->n_grid <= 1 && o->grad_psi) {
+        double mval = marginal_and_gradient(h, o->psi, o->grad_psi);
+        if (isfinite(mval)) {
+            for (size_t i = 0; i < h->n_free; i++) {
+                size_t c = h->free_idx[i];
+                gsl_vector_set(g, i, -o->grad_psi[c] * h->scale[c]);
+            }
+            return -mval;
+        }
+        if (mval == -INFINITY) { /* infeasible: the line search backs off */
+            gsl_vector_set_all(g, 0);
+            return GSL_POSINF;
+        }
+    }
+    outer_df_differences(x, o, g);
+    return outer_f(x, o);
+}
+
+static void outer_df(const gsl_vector *x, void *params, gsl_vector *g) { outer_value_gradient(x, params, g); }
+
 static void outer_fdf(const gsl_vector *x, void *params, double *f, gsl_vector *g)
 {
-    *f = outer_f(x, params);
-    outer_df(x, params, g);
+    *f = outer_value_gradient(x, params, g);
 }
 
 /* Maximise over the free components from psi0 (BFGS, then Newton steps on the observed information
@@ -600,11 +779,13 @@ static size_t outer_maximise(bl_hier *h, double tol, double *best, double *gnorm
     *best = -INFINITY;
     *gnorm = NAN;
     if (!psi) return 0;
-    outer o = {h, psi};
+    double *grad_psi = malloc(h->d * sizeof *grad_psi);
+    outer o = {h, psi, grad_psi};
     if (n == 0) {
         *best = bl_hier_marginal(h, h->psi0);
         *gnorm = 0;
         free(psi);
+        free(grad_psi);
         return 0;
     }
     gsl_multimin_function_fdf fn = {outer_f, outer_df, outer_fdf, n, &o};
@@ -629,6 +810,7 @@ done:
     if (s) gsl_multimin_fdfminimizer_free(s);
     if (x) gsl_vector_free(x);
     free(psi);
+    free(grad_psi);
     return it;
 }
 
@@ -643,9 +825,40 @@ static bl_status set_free(bl_hier *h, const unsigned char *fixed, bl_error *err)
 
 /* Observed information of the summed marginal log-likelihood in x units (second differences) at
  * psi0 over the free components: n x n into info. Returns 0 when a point is infeasible. */
+static int outer_information_from_gradients(bl_hier *h, double *info)
+{
+    size_t n = h->n_free, d = h->d;
+    double *psi = malloc(d * sizeof *psi), *gp = malloc(d * sizeof *gp), *gm = malloc(d * sizeof *gm);
+    int ok = psi && gp && gm;
+    const double e = HIER_INFO_STEP;
+    for (size_t i = 0; i < n && ok; i++) {
+        size_t ci = h->free_idx[i];
+        memcpy(psi, h->psi0, d * sizeof *psi);
+        psi[ci] += e * h->scale[ci];
+        ok = isfinite(marginal_and_gradient(h, psi, gp));
+        psi[ci] -= 2 * e * h->scale[ci];
+        ok = ok && isfinite(marginal_and_gradient(h, psi, gm));
+        for (size_t j = 0; j < n && ok; j++) {
+            size_t cj = h->free_idx[j];
+            info[j * n + i] = -(gp[cj] - gm[cj]) * h->scale[cj] / (2 * e);
+        }
+    }
+    for (size_t i = 0; i < n && ok; i++)
+        for (size_t j = 0; j < i; j++) info[i * n + j] = info[j * n + i] = 0.5 * (info[i * n + j] + info[j * n + i]);
+    free(psi);
+    free(gp);
+    free(gm);
+    return ok;
+}
+
 static int outer_information(bl_hier *h, double *info)
 {
     size_t n = h->n_free;
+    /* Laplace: central differences of the analytic gradient (2n gradients instead of ~2n^2 values) */
+    if (h->n_grid <= 1 && outer_information_from_gradients(h, info)) {
+        bl_hier_marginal(h, h->psi0); /* participants' modes back at psi0 */
+        return 1;
+    }
     double *psi = malloc(h->d * sizeof *psi);
     if (!psi) return 0;
     const double e = HIER_INFO_STEP;
@@ -694,6 +907,23 @@ static double effect_sd(const bl_hier *h, const double *lambda, size_t r)
     return sqrt(s);
 }
 
+/* A feasible start for a constrained maximum when the estimate's neighbourhood is not (a participant
+ * spread held at 0 makes every participant share a nondecision time, which must lie below all of their
+ * fastest RTs): the pooled coefficients, which are feasible without spread, with the free spreads
+ * scaled down until every participant has a mode. Fills trial; returns its value. */
+static double feasible_start(bl_hier *h, const unsigned char *fixed, const double *psi, double *trial)
+{
+    static const double shrink[] = {1, 0.3, 0.1, 0.03};
+    double v = -INFINITY;
+    for (size_t k = 0; k < sizeof shrink / sizeof *shrink && !isfinite(v) && h->pooled_coef; k++) {
+        memcpy(trial, psi, h->d * sizeof *trial);
+        for (size_t c = 0; c < h->d; c++)
+            if (!fixed[c]) trial[c] = c < h->p ? h->pooled_coef[c] : shrink[k] * psi[c];
+        v = bl_hier_marginal(h, trial);
+    }
+    return v;
+}
+
 /* Maximum over the other components with the components flagged in `fixed` held at psi[...]; psi
  * (start and result) is updated to the maximiser. With the observed information at the estimate
  * (h->info_hat, all d components in x units), the other components start at their linear
@@ -727,12 +957,17 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
                 memcpy(trial, psi, d * sizeof *trial);
                 best = bl_hier_marginal(h, trial);
             }
+            if (!isfinite(best)) best = feasible_start(h, fixed, psi, trial);
             memcpy(psi, trial, d * sizeof *psi);
         }
         double last_gain = INFINITY;
         for (int it = 0; ok && isfinite(best) && it < 6; it++) {
-            /* gradient over the free components by central differences */
-            for (size_t i = 0; i < nn; i++) {
+            /* gradient over the free components: analytic (Laplace) or central differences */
+            double gm_val = h->n_grid <= 1 ? marginal_and_gradient(h, psi, trial) : NAN;
+            if (isfinite(gm_val)) {
+                for (size_t i = 0; i < nn; i++) v[i] = trial[idx[i]] * h->scale[idx[i]];
+            }
+            for (size_t i = 0; i < nn && !isfinite(gm_val); i++) {
                 size_t c = idx[i];
                 memcpy(trial, psi, d * sizeof *trial);
                 trial[c] += HIER_GRAD_STEP * h->scale[c];
@@ -772,6 +1007,11 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
             if (!moved) break;
         }
         free(idx), free(a), free(r), free(v), free(trial);
+    }
+    if (!isfinite(bl_hier_marginal(h, psi))) {
+        double *trial = malloc(d * sizeof *trial);
+        if (trial && isfinite(feasible_start(h, fixed, psi, trial))) memcpy(psi, trial, d * sizeof *psi);
+        free(trial);
     }
     memcpy(h->psi0, psi, d * sizeof *psi);
     set_free(h, fixed, NULL);
@@ -887,9 +1127,9 @@ static double polish(bl_hier *h, double *m_hat, double *info)
     double *g = malloc(n * sizeof *g), *step = malloc(n * sizeof *step), *psi = malloc(h->d * sizeof *psi);
     double *chol_f = malloc(n * n * sizeof *chol_f);
     gsl_vector *x0 = gsl_vector_calloc(n), *gv = gsl_vector_alloc(n);
-    double dec = NAN;
-    if (!g || !step || !psi || !chol_f || !x0 || !gv) goto done;
-    outer o = {h, psi};
+    double dec = NAN, *grad_psi = malloc(h->d * sizeof *grad_psi);
+    if (!g || !step || !psi || !chol_f || !x0 || !gv || !grad_psi) goto done;
+    outer o = {h, psi, grad_psi};
     for (int round = 0; round < 4; round++) {
         if (!outer_information(h, info)) {
             dec = NAN;
@@ -946,6 +1186,7 @@ done:
     free(g);
     free(step);
     free(psi);
+    free(grad_psi);
     free(chol_f);
     if (x0) gsl_vector_free(x0);
     if (gv) gsl_vector_free(gv);
@@ -1162,6 +1403,8 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
         goto done;
     }
     starting_point(h, pooled, pooled_coef);
+    if ((h->pooled_coef = malloc((h->p ? h->p : 1) * sizeof *h->pooled_coef)))
+        memcpy(h->pooled_coef, pooled_coef, h->p * sizeof *h->pooled_coef);
     set_free(h, NULL, NULL);
     /* Near an edge (nondecision at the fastest RT) the starting spread can leave a participant without
      * a mode: start with less spread then. */

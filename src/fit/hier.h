@@ -29,6 +29,10 @@ void bl_hier_lambda_to_l(const bl_hier *h, const double *lambda, double *L);
 /* Summed marginal log-likelihood at psi = (coefficients, lambda). */
 double bl_hier_marginal(bl_hier *h, const double *psi);
 
+/* The Laplace value and its gradient (d values) at psi; NAN when the gradient is not available
+ * (quadrature > 1, or a differenced point infeasible), -INFINITY when a participant has no mode. */
+double bl_hier_marginal_gradient(bl_hier *h, const double *psi, double *grad);
+
 /* Fit the model hierarchically from the pooled estimates `pooled` (with their covariance, may be NULL)
  * and fill r: fit (population coefficients, marginal log-likelihood, diagnostics), variance
  * components, correlation, participants (empirical Bayes). part_coef (J x n_coef, allocated here,

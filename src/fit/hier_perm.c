@@ -30,9 +30,9 @@ static void removed_coefficients(const bl_model *m, bl_param p, size_t s, long l
         if (level < 0 || (size_t)level == l) flags[first + l] = 1;
 }
 
-static bl_status one_test(bl_hier *h, bl_model *m, const size_t *cells, const bl_fit_options *opt,
-                          bl_model_result *r, bl_param p, size_t s, long level, unsigned char *flags,
-                          bl_permutation_test *pt, bl_error *err)
+static bl_status one_test(bl_hier *h, bl_model *m, const size_t *cells, const bl_fit_options *opt, bl_model_result *r,
+                          bl_param p, size_t s, long level, unsigned char *flags, bl_permutation_test *pt,
+                          bl_error *err)
 {
     size_t n_levels = slope_level_count(m, p, s);
     bl_slope_design *sl = &m->par[p].slopes[s];
