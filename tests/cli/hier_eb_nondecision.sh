@@ -12,20 +12,11 @@
 #     below the fastest RT of all, far worse here (offsets of +-0.1 s, 200 trials each), so the statistic
 #     is a number > 10 (boundary mixture p < 1e-3, Self & Liang 1987) and the profile interval's lower
 #     end is above 0 (at SD = 0 the deviance is far above 3.84) and its upper end above the estimate.
-# KNOWN DEFECT when written (main a8e0905, still at 93196ee): participant p3 (fastest RT 0.2506 s) is
-# reported with the population's coefficients (nondecision 0.3015 s, offsets exactly 0); trials.csv
-# gives a number (0, 8e-246, -7.6e-142: uninitialised memory) as the log_likelihood of its trials from
-# the first one faster than that on (bl_likelihood_trials in src/fit/likelihood.c sets NaN only without
-# a subset, and the evaluation stops at the first impossible trial); the nondecision spread has
-# lrt_statistic null and the interval [0, 0.07208] around an estimate of 0.07206.
-# Cause as read in src/fit/hier.c: an evaluation where a participant's warm start is impossible (the
-# spread test and the profiles move beta and L) resets that participant's z to 0 (participant_marginal,
-# memset); at the estimate z = 0 is impossible too, so the final re-solve (fill_variance: "the
-# participants' modes back at the estimate") fails, its -inf is ignored, and fill_participants() reports
-# z = 0. In a scratch build, restoring the modes saved after polish() before that re-solve fixed the
-# estimates, trials.csv and the interval's upper end; the statistic and the lower end need a start that
-# is possible at SD = 0 (the pooled fit), or warm starts that keep each participant's own coefficients
-# beta + L z when beta or L moves. tests/meson.build marks this test should_fail until fixed.
+# Regression test: on main a8e0905-93196ee participant p3 (fastest RT 0.2506 s) was reported with the
+# population's coefficients (nondecision 0.3015 s, offsets exactly 0; its trials.csv log_likelihood
+# uninitialised numbers from its first impossible trial on), and the nondecision spread had lrt_statistic
+# null and the interval [0, 0.07208] around 0.07206 (stale modes after an impossible warm start; fixed on
+# main 780d54c). Measured on 780d54c: p3's EB nondecision 0.2114, statistic 202.9, interval [0.0406, 0.1774].
 # Data: invented trials drawn by tests/reference/hier_reference.py's seeded random walk (numpy).
 set -u
 . "$(dirname "$0")/lib.sh"
