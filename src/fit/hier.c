@@ -44,6 +44,9 @@
 /* Second-difference step of the observed information, in x units. */
 #define HIER_INFO_STEP 2e-2
 #define HIER_OUTER_ITER 400
+/* Marginal-likelihood evaluations one maximisation may spend (a fit that needs more is reported
+ * not converged rather than running on). */
+#define HIER_OUTER_BUDGET 5000
 #define HIER_MAX_EFFECTS 12
 
 typedef struct {
@@ -54,6 +57,7 @@ typedef struct {
     double *theta, *grad, *gp, *gm, *tmp;
     double *terms; /* n_grid: the log terms of the quadrature sum */
     double *K;     /* q x p: the Hessian of l along each effect (participant_hessian) */
+    double *th;    /* p: a differenced point (participant_gradient) */
     double G[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS], H[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
     double R[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS]; /* Cholesky factor of H at the mode */
     double ll_cond;                                /* l_j at the mode */
@@ -77,6 +81,8 @@ struct bl_hier {
     double *info_hat, *psi_hat; /* observed information (x units) at the estimate psi_hat, for profiles */
     double *psi_est;            /* the estimate, for refits (permutation tests) */
     double *pooled_coef;        /* the pooled fit's coefficients (feasible with no spread) */
+    double *per_part;           /* J x d: each participant's gradient, summed in participant order */
+    int nomem;                  /* an allocation failed on a path without a status: the fit reports it */
 };
 
 /* ---- small dense algebra (q <= HIER_MAX_EFFECTS) ---- */
@@ -319,8 +325,7 @@ static int participant_gradient(const bl_hier *h, hier_part *pp, const double *L
     }
     double *c = pp->tmp; /* p: reused, theta is kept in pp->theta */
     memset(c, 0, p * sizeof *c);
-    double *th = malloc(p * sizeof *th);
-    if (!th) return 0;
+    double *th = pp->th;
     for (size_t k = 0; k < q; k++) {
         double wmax = 0;
         for (size_t r = 0; r < q; r++) wmax = fmax(wmax, fabs(B[r * q + k]));
@@ -334,13 +339,21 @@ static int participant_gradient(const bl_hier *h, hier_part *pp, const double *L
         for (size_t r = 0; r < q; r++)
             for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] -= eps * B[r * q + k];
         double lm = bl_likelihood_eval(pp->lik, th, pp->gm);
-        if (!isfinite(lp) || !isfinite(lm)) {
-            free(th);
-            return 0;
+        if (isfinite(lp) && isfinite(lm)) {
+            for (size_t m = 0; m < p; m++) c[m] += (pp->gp[m] - 2 * g[m] + pp->gm[m]) / (eps * eps);
+            continue;
         }
-        for (size_t m = 0; m < p; m++) c[m] += (pp->gp[m] - 2 * g[m] + pp->gm[m]) / (eps * eps);
+        /* one side beyond a feasibility edge (nondecision at the fastest RT): the one-sided second
+         * difference g(0) - 2 g(+-e) + g(+-2e), first order instead of second */
+        double sgn = isfinite(lp) ? 1 : -1, *g1 = isfinite(lp) ? pp->gp : pp->gm;
+        if (!isfinite(lp) && !isfinite(lm)) return 0;
+        memcpy(th, pp->theta, p * sizeof *th);
+        for (size_t r = 0; r < q; r++)
+            for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] += 2 * sgn * eps * B[r * q + k];
+        double *g2 = isfinite(lp) ? pp->gm : pp->gp; /* the infeasible side's buffer is free */
+        if (!isfinite(bl_likelihood_eval(pp->lik, th, g2))) return 0;
+        for (size_t m = 0; m < p; m++) c[m] += (g[m] - 2 * g1[m] + g2[m]) / (eps * eps);
     }
-    free(th);
     for (size_t a = 0; a < q; a++)
         for (size_t i = 0; i < h->eff[a].n; i++) Zc[a] += c[h->eff[a].coef[i]];
     double A[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS], v[HIER_MAX_EFFECTS];
@@ -400,7 +413,7 @@ static double marginal_and_gradient(bl_hier *h, const double *psi, double *grad)
     h->evaluations++;
     int ok_all = 1, grad_all = 1;
     int nt = 1;
-    double *per = malloc(h->J * h->d * sizeof *per);
+    double *per = h->per_part;
     if (!per) return NAN;
 #ifdef _OPENMP
     nt = h->threads > 0 ? h->threads : omp_get_max_threads();
@@ -424,7 +437,6 @@ static double marginal_and_gradient(bl_hier *h, const double *psi, double *grad)
         for (size_t j = 0; j < h->J; j++)
             for (size_t c = 0; c < h->d; c++) grad[c] += per[j * h->d + c];
     }
-    free(per);
     if (!ok_all || !isfinite(s)) return -INFINITY;
     if (!grad_all) return NAN;
     for (size_t c = 0; c < h->d; c++)
@@ -568,7 +580,9 @@ static bl_status build_participants(bl_hier *h, const bl_model_spec *spec, const
         pp->tmp = malloc(p * sizeof(double));
         pp->terms = malloc(h->n_grid * sizeof(double));
         pp->K = malloc(q * p * sizeof(double) + sizeof(double));
-        if (!pp->trials || !pp->z || !pp->theta || !pp->grad || !pp->gp || !pp->gm || !pp->tmp || !pp->terms || !pp->K)
+        pp->th = malloc(p * sizeof(double));
+        if (!pp->trials || !pp->z || !pp->theta || !pp->grad || !pp->gp || !pp->gm || !pp->tmp || !pp->terms ||
+            !pp->K || !pp->th)
             goto nomem;
         for (size_t k = 0; k < m->n; k++)
             if (trials->participant[m->row[k]] == i) pp->trials[pp->n_trials++] = k;
@@ -623,6 +637,11 @@ bl_status bl_hier_create(const bl_model_spec *spec, const bl_model *m, const bl_
     }
     h->n_lambda = h->correlated ? h->q * (h->q + 1) / 2 : h->q;
     h->d = h->p + h->n_lambda;
+    if (!(h->per_part = malloc((h->d ? h->d : 1) * (trials->n_participants ? trials->n_participants : 1) *
+                               sizeof *h->per_part))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
     if ((st = build_grid(h, quadrature, err))) goto done;
     st = build_participants(h, spec, trials, err);
 done:
@@ -652,6 +671,7 @@ void bl_hier_destroy(bl_hier *h)
         free(pp->tmp);
         free(pp->terms);
         free(pp->K);
+        free(pp->th);
     }
     free(h->part);
     free(h->names);
@@ -664,10 +684,12 @@ void bl_hier_destroy(bl_hier *h)
     free(h->psi_hat);
     free(h->psi_est);
     free(h->pooled_coef);
+    free(h->per_part);
     free(h);
 }
 
 size_t bl_hier_effects(const bl_hier *h) { return h->q; }
+int bl_hier_out_of_memory(const bl_hier *h) { return h->nomem; }
 size_t bl_hier_participants(const bl_hier *h) { return h->J; }
 size_t bl_hier_lambda_count(const bl_hier *h) { return h->n_lambda; }
 bl_likelihood *bl_hier_participant_likelihood(const bl_hier *h, size_t j) { return h->part[j].lik; }
@@ -697,6 +719,7 @@ typedef struct {
     bl_hier *h;
     double *psi;
     double *grad_psi; /* d values (Laplace gradients), may be NULL */
+    int differences;  /* 1: difference the value even where the analytic gradient exists */
 } outer;
 
 static double outer_f(const gsl_vector *x, void *params)
@@ -713,6 +736,7 @@ static void outer_df_differences(const gsl_vector *x, void *params, gsl_vector *
     outer *o = params;
     gsl_vector *xt = gsl_vector_alloc(x->size);
     if (!xt) {
+        o->h->nomem = 1;
         gsl_vector_set_all(g, 0);
         return;
     }
@@ -744,7 +768,7 @@ static double outer_value_gradient(const gsl_vector *x, outer *o, gsl_vector *g)
 {
     bl_hier *h = o->h;
     x_to_psi(h, x, o->psi);
-    if (h->n_grid <= 1 && o->grad_psi) {
+    if (h->n_grid <= 1 && o->grad_psi && !o->differences) {
         double mval = marginal_and_gradient(h, o->psi, o->grad_psi);
         if (isfinite(mval)) {
             for (size_t i = 0; i < h->n_free; i++) {
@@ -778,9 +802,14 @@ static size_t outer_maximise(bl_hier *h, double tol, double *best, double *gnorm
     double *psi = malloc(h->d * sizeof *psi);
     *best = -INFINITY;
     *gnorm = NAN;
-    if (!psi) return 0;
     double *grad_psi = malloc(h->d * sizeof *grad_psi);
-    outer o = {h, psi, grad_psi};
+    if (!psi || !grad_psi) {
+        h->nomem = 1;
+        free(psi);
+        free(grad_psi);
+        return 0;
+    }
+    outer o = {h, psi, grad_psi, 0};
     if (n == 0) {
         *best = bl_hier_marginal(h, h->psi0);
         *gnorm = 0;
@@ -791,14 +820,28 @@ static size_t outer_maximise(bl_hier *h, double tol, double *best, double *gnorm
     gsl_multimin_function_fdf fn = {outer_f, outer_df, outer_fdf, n, &o};
     gsl_vector *x = gsl_vector_calloc(n);
     gsl_multimin_fdfminimizer *s = gsl_multimin_fdfminimizer_alloc(gsl_multimin_fdfminimizer_vector_bfgs2, n);
-    size_t it = 0;
-    if (!x || !s) goto done;
+    size_t it = 0, budget_end = h->evaluations + HIER_OUTER_BUDGET;
+    if (!x || !s) {
+        h->nomem = 1;
+        goto done;
+    }
     if (!isfinite(outer_f(x, &o))) goto done;
-    gsl_multimin_fdfminimizer_set(s, &fn, x, 0.5, 0.1);
-    for (it = 0; it < HIER_OUTER_ITER; it++) {
-        int status = gsl_multimin_fdfminimizer_iterate(s);
-        if (status) break;
-        if (gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS) break;
+    /* Rounds: BFGS until the gradient test passes; a round that stalls (the line search finds no
+     * descent, as beside a feasibility edge) is restarted from where it stopped, the second time with
+     * differenced gradients; a round that gains nothing ends the search. */
+    double f_prev = outer_f(x, &o);
+    for (int round = 0; round < 3; round++) {
+        o.differences = round == 1;
+        gsl_multimin_fdfminimizer_set(s, &fn, x, 0.5, 0.1);
+        int passed = 0;
+        for (; it < HIER_OUTER_ITER && h->evaluations < budget_end; it++) {
+            if (gsl_multimin_fdfminimizer_iterate(s)) break;
+            if ((passed = gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS)) break;
+        }
+        passed = passed || gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS;
+        gsl_vector_memcpy(x, s->x);
+        if (passed || (o.differences && !(s->f < f_prev - 1e-7)) || h->evaluations >= budget_end) break;
+        f_prev = s->f;
     }
     x_to_psi(h, s->x, psi);
     *best = -s->f;
@@ -830,6 +873,7 @@ static int outer_information_from_gradients(bl_hier *h, double *info)
     size_t n = h->n_free, d = h->d;
     double *psi = malloc(d * sizeof *psi), *gp = malloc(d * sizeof *gp), *gm = malloc(d * sizeof *gm);
     int ok = psi && gp && gm;
+    if (!ok) h->nomem = 1;
     const double e = HIER_INFO_STEP;
     for (size_t i = 0; i < n && ok; i++) {
         size_t ci = h->free_idx[i];
@@ -860,7 +904,10 @@ static int outer_information(bl_hier *h, double *info)
         return 1;
     }
     double *psi = malloc(h->d * sizeof *psi);
-    if (!psi) return 0;
+    if (!psi) {
+        h->nomem = 1;
+        return 0;
+    }
     const double e = HIER_INFO_STEP;
     double f0 = bl_hier_marginal(h, h->psi0);
     int ok = isfinite(f0);
@@ -938,6 +985,7 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
         double *a = malloc(d * d * sizeof *a), *r = malloc(d * d * sizeof *r), *v = malloc(d * sizeof *v);
         double *trial = malloc(d * sizeof *trial);
         int ok = idx && a && r && v && trial;
+        if (!ok) h->nomem = 1;
         for (size_t c = 0; ok && c < d; c++)
             if (!fixed[c]) idx[nn++] = c;
         for (size_t i = 0; ok && i < nn; i++)
@@ -1010,6 +1058,7 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
     }
     if (!isfinite(bl_hier_marginal(h, psi))) {
         double *trial = malloc(d * sizeof *trial);
+        if (!trial) h->nomem = 1;
         if (trial && isfinite(feasible_start(h, fixed, psi, trial))) memcpy(psi, trial, d * sizeof *psi);
         free(trial);
     }
@@ -1128,8 +1177,11 @@ static double polish(bl_hier *h, double *m_hat, double *info)
     double *chol_f = malloc(n * n * sizeof *chol_f);
     gsl_vector *x0 = gsl_vector_calloc(n), *gv = gsl_vector_alloc(n);
     double dec = NAN, *grad_psi = malloc(h->d * sizeof *grad_psi);
-    if (!g || !step || !psi || !chol_f || !x0 || !gv || !grad_psi) goto done;
-    outer o = {h, psi, grad_psi};
+    if (!g || !step || !psi || !chol_f || !x0 || !gv || !grad_psi) {
+        h->nomem = 1;
+        goto done;
+    }
+    outer o = {h, psi, grad_psi, 0};
     for (int round = 0; round < 4; round++) {
         if (!outer_information(h, info)) {
             dec = NAN;
@@ -1317,6 +1369,7 @@ static bl_status fill_variance(bl_hier *h, double m_hat, const double *cov_psi, 
                     h->info_hat[i * d + j] = sgn * info[i * d + j];
                 }
         } else {
+            h->nomem = 1;
             free(h->info_hat);
             h->info_hat = NULL;
         }
@@ -1331,8 +1384,9 @@ static bl_status fill_variance(bl_hier *h, double m_hat, const double *cov_psi, 
             break;
         }
         vc->sd = effect_sd(h, psi_hat + h->p, a);
+        vc->ci_low = vc->ci_high = vc->lrt_statistic = vc->lrt_p = NAN;
+        if (!info) continue; /* no maximum to test against or profile from (reported not converged) */
         spread_test(h, psi_hat, m_hat, a, fixed, work, vc);
-        vc->ci_low = vc->ci_high = NAN;
         if (!h->correlated) {
             size_t comp = h->p + a;
             double se = cov_psi && cov_psi[comp * d + comp] > 0 ? sqrt(cov_psi[comp * d + comp]) : 0.3 * vc->sd + 0.01;
@@ -1405,6 +1459,7 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
     starting_point(h, pooled, pooled_coef);
     if ((h->pooled_coef = malloc((h->p ? h->p : 1) * sizeof *h->pooled_coef)))
         memcpy(h->pooled_coef, pooled_coef, h->p * sizeof *h->pooled_coef);
+    else h->nomem = 1;
     set_free(h, NULL, NULL);
     /* Near an edge (nondecision at the fastest RT) the starting spread can leave a participant without
      * a mode: start with less spread then. */
@@ -1450,6 +1505,11 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
         goto done;
     }
     if ((h->psi_est = malloc(d * sizeof *h->psi_est))) memcpy(h->psi_est, h->psi0, d * sizeof *h->psi_est);
+    else h->nomem = 1;
+    if (h->nomem) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory in the hierarchical fit of model '%s'", r->name);
+        goto done;
+    }
     f->diag.evaluations = likelihood_evaluations(h);
     f->diag.seconds = bl_clock_seconds() - t_start;
     if (!f->converged)
@@ -1472,7 +1532,10 @@ double bl_hier_refit(bl_hier *h, const unsigned char *coef_at_zero, double tol)
 {
     if (!h->psi_est) return -INFINITY;
     unsigned char *fixed = calloc(h->d, 1);
-    if (!fixed) return -INFINITY;
+    if (!fixed) {
+        h->nomem = 1;
+        return -INFINITY;
+    }
     memcpy(h->psi0, h->psi_est, h->d * sizeof *h->psi0);
     for (size_t c = 0; coef_at_zero && c < h->p; c++)
         if (coef_at_zero[c]) {

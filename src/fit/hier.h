@@ -22,6 +22,8 @@ bl_status bl_hier_create(const bl_model_spec *spec, const bl_model *m, const bl_
                          int threads, bl_hier **out, bl_error *err);
 void bl_hier_destroy(bl_hier *h);
 size_t bl_hier_effects(const bl_hier *h);
+/* 1 when an allocation failed inside an evaluation or maximisation (those return values, not statuses). */
+int bl_hier_out_of_memory(const bl_hier *h);
 size_t bl_hier_participants(const bl_hier *h);
 /* Spread parameters: q (diagonal) or q(q+1)/2 (correlated, lower triangle of L by rows). */
 size_t bl_hier_lambda_count(const bl_hier *h);

@@ -69,6 +69,7 @@ static bl_status one_test(bl_hier *h, bl_model *m, const size_t *cells, const bl
         }
     }
     gsl_rng_free(rng);
+    if (!st && bl_hier_out_of_memory(h)) st = bl_error_set(err, BL_ERR_NOMEM, "out of memory in the permutation test");
     pt->permutations = opt->permutations;
     pt->exceed = exceed;
     pt->p = (1.0 + (double)exceed) / (1.0 + (double)opt->permutations);
