@@ -1168,9 +1168,52 @@ static void starting_point(bl_hier *h, const bl_fit_result *pooled, const double
     }
 }
 
+/* Cholesky factor of info (n x n) over the components not flagged in edge (flagged rows and columns
+ * are skipped: the factor is of the reduced matrix, stored at the full indices). 0 when not positive
+ * definite. */
+static int chol_reduced(const double *info, size_t n, const unsigned char *edge, double *f)
+{
+    for (size_t i = 0; i < n; i++) {
+        if (edge[i]) continue;
+        for (size_t j = 0; j <= i; j++) {
+            if (edge[j]) continue;
+            double s = info[i * n + j];
+            for (size_t k = 0; k < j; k++)
+                if (!edge[k]) s -= f[i * n + k] * f[j * n + k];
+            if (i == j) {
+                if (!(s > 0)) return 0;
+                f[i * n + i] = sqrt(s);
+            } else {
+                f[i * n + j] = s / f[j * n + j];
+            }
+        }
+    }
+    return 1;
+}
+
+/* A spread at the edge (SD 0) can leave the information singular: the likelihood is even in the SD
+ * and may be flat in SD^2 there. Flag spread components, flattest first, until the rest is positive
+ * definite; the flagged ones are held at their value (reported as SD with a profile interval, not a
+ * Wald SE). Returns 0 when no such set makes it positive definite. */
+static int mark_edges(const bl_hier *h, const double *info, unsigned char *edge, double *f)
+{
+    size_t n = h->n_free;
+    memset(edge, 0, n);
+    for (size_t dropped = 0; dropped <= h->n_lambda; dropped++) {
+        if (chol_reduced(info, n, edge, f)) return 1;
+        size_t pick = n;
+        for (size_t i = 0; i < n; i++)
+            if (!edge[i] && h->free_idx[i] >= h->p && (pick == n || info[i * n + i] < info[pick * n + pick])) pick = i;
+        if (pick == n) return 0;
+        edge[pick] = 1;
+    }
+    return 0;
+}
+
 /* Newton steps on the observed information from the BFGS optimum; info (n x n) is left at the final
- * point. Returns the squared Newton decrement there (NAN when the information failed). */
-static double polish(bl_hier *h, double *m_hat, double *info)
+ * point and edge (n flags) marks spread components at the edge (see mark_edges). Returns the squared
+ * Newton decrement there (NAN when the information failed). */
+static double polish(bl_hier *h, double *m_hat, double *info, unsigned char *edge)
 {
     size_t n = h->n_free;
     double *g = malloc(n * sizeof *g), *step = malloc(n * sizeof *step), *psi = malloc(h->d * sizeof *psi);
@@ -1189,32 +1232,21 @@ static double polish(bl_hier *h, double *m_hat, double *info)
         }
         outer_df(x0, &o, gv);
         for (size_t i = 0; i < n; i++) g[i] = -gsl_vector_get(gv, i); /* gradient of M */
-        int pd = 1;
-        for (size_t i = 0; i < n && pd; i++)
-            for (size_t j = 0; j <= i; j++) {
-                double s = info[i * n + j];
-                for (size_t k = 0; k < j; k++) s -= chol_f[i * n + k] * chol_f[j * n + k];
-                if (i == j) {
-                    if (!(s > 0)) {
-                        pd = 0;
-                        break;
-                    }
-                    chol_f[i * n + i] = sqrt(s);
-                } else {
-                    chol_f[i * n + j] = s / chol_f[j * n + j];
-                }
-            }
-        if (!pd) {
+        if (!mark_edges(h, info, edge, chol_f)) {
             dec = NAN;
             break;
         }
-        memcpy(step, g, n * sizeof *g);
+        for (size_t i = 0; i < n; i++) step[i] = edge[i] ? 0 : g[i];
         for (size_t i = 0; i < n; i++) {
-            for (size_t k = 0; k < i; k++) step[i] -= chol_f[i * n + k] * step[k];
+            if (edge[i]) continue;
+            for (size_t k = 0; k < i; k++)
+                if (!edge[k]) step[i] -= chol_f[i * n + k] * step[k];
             step[i] /= chol_f[i * n + i];
         }
         for (size_t i = n; i-- > 0;) {
-            for (size_t k = i + 1; k < n; k++) step[i] -= chol_f[k * n + i] * step[k];
+            if (edge[i]) continue;
+            for (size_t k = i + 1; k < n; k++)
+                if (!edge[k]) step[i] -= chol_f[k * n + i] * step[k];
             step[i] /= chol_f[i * n + i];
         }
         dec = 0;
@@ -1243,6 +1275,38 @@ done:
     if (x0) gsl_vector_free(x0);
     if (gv) gsl_vector_free(gv);
     return dec;
+}
+
+/* Covariance (x units, d x d) from the information without the edge components (their rows and
+ * columns NAN); the edge components' information is then replaced by a unit diagonal, a metric for
+ * the profiles' Newton steps. */
+static bl_status reduced_inverse(const bl_hier *h, double *info, const unsigned char *edge, double *cov, double *cond,
+                                 int *pd, bl_error *err)
+{
+    size_t d = h->d, k = 0;
+    size_t idx[512];
+    if (d > 512) return bl_error_set(err, BL_ERR_MODEL, "hierarchical fit: more than 512 parameters");
+    for (size_t i = 0; i < d; i++)
+        if (!edge[i]) idx[k++] = i;
+    double *sub = calloc(k ? k * k : 1, sizeof *sub), *sc = calloc(k ? k * k : 1, sizeof *sc);
+    if (!sub || !sc) {
+        free(sub);
+        free(sc);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    for (size_t a = 0; a < k; a++)
+        for (size_t b = 0; b < k; b++) sub[a * k + b] = info[idx[a] * d + idx[b]];
+    bl_status st = bl_information_inverse(sub, k, sc, cond, pd, err);
+    for (size_t i = 0; i < d * d; i++) cov[i] = NAN;
+    if (!st && *pd)
+        for (size_t a = 0; a < k; a++)
+            for (size_t b = 0; b < k; b++) cov[idx[a] * d + idx[b]] = sc[a * k + b];
+    for (size_t i = 0; i < d; i++)
+        if (edge[i])
+            for (size_t j = 0; j < d; j++) info[i * d + j] = info[j * d + i] = i == j ? 1.0 : 0.0;
+    free(sub);
+    free(sc);
+    return st;
 }
 
 /* Population coefficients with Wald SEs; a coefficient that varies by participant gets the t
@@ -1474,12 +1538,22 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
                           r->name);
         goto done;
     }
-    double dec = polish(h, &m_hat, info);
+    unsigned char edge[HIER_MAX_EFFECTS * (HIER_MAX_EFFECTS + 1) / 2 + 256];
+    unsigned char *edge_flags = d <= sizeof edge ? edge : calloc(d, 1);
+    if (!edge_flags) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
+    memset(edge_flags, 0, d);
+    double dec = polish(h, &m_hat, info, edge_flags);
     double cond = NAN;
     int pd = 0;
-    if (isfinite(dec) && (st = bl_information_inverse(info, d, cov_x, &cond, &pd, err))) goto done;
+    if (isfinite(dec)) st = reduced_inverse(h, info, edge_flags, cov_x, &cond, &pd, err);
+    if (edge_flags != edge) free(edge_flags);
+    if (st) goto done;
     for (size_t a = 0; a < d; a++)
         for (size_t b = 0; b < d; b++) cov_psi[a * d + b] = pd ? cov_x[a * d + b] * h->scale[a] * h->scale[b] : NAN;
+    /* fits.json's coefficient covariance: the coefficients' block (never an edge component) */
     bl_fit_result *f = &r->fit;
     if (!fill_population(h, pd ? cov_psi : NULL, f)) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");

@@ -1225,9 +1225,15 @@ bl_status bl_check_summary(const bl_study *s, const bl_trials *t, const bl_power
     free(breakdown);
     bl_textbuf_printf(&b, "models       %zu", s->n_models);
     for (size_t k = 0; k < s->n_models; k++) bl_textbuf_printf(&b, "%s%s", k ? ", " : ": ", s->models[k].name);
-    bl_textbuf_printf(&b, "\nfit          participants %s, %d start%s\n",
-                      s->fit.participants == BL_PARTICIPANTS_SEPARATE ? "separate" : "pooled", s->fit.starts,
-                      s->fit.starts == 1 ? "" : "s");
+    bl_participants_mode mode = bl_study_participants_mode(s, t->n_participants);
+    bl_textbuf_printf(&b, "\nfit          participants %s%s, %d start%s\n",
+                      mode == BL_PARTICIPANTS_SEPARATE       ? "separate"
+                      : mode == BL_PARTICIPANTS_HIERARCHICAL ? "hierarchical"
+                                                             : "pooled",
+                      s->fit.participants_given || s->fit.participants != BL_PARTICIPANTS_POOLED
+                          ? ""
+                          : " (the default for this number of participants)",
+                      s->fit.starts, s->fit.starts == 1 ? "" : "s");
     bl_textbuf_printf(&b, "output       %s\n", s->output);
     if (!(*out = bl_textbuf_take(&b)))
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory writing the check summary");
