@@ -211,6 +211,22 @@ static bl_status warn_if_participants_differ(const bl_trials *t, bl_warnings *wa
     return BL_OK;
 }
 
+/* A key that asks for participants' effects in a study of one participant (the mode was not named). */
+static bl_status implied_mode_error(const bl_study *study, size_t n, bl_error *err)
+{
+    char key[128] = "fit.quadrature";
+    for (size_t m = 0; m < study->n_models; m++) {
+        if (study->models[m].correlated) snprintf(key, sizeof key, "models[%zu].correlated", m);
+        for (int p = 0; p < BL_NPARAM; p++)
+            if (study->models[m].param[p].varies_given)
+                snprintf(key, sizeof key, "models[%zu].%s.varies", m, bl_param_name(p));
+    }
+    return bl_error_set(err, BL_ERR_MODEL,
+                        "%s: %s asks for participants' effects (a hierarchical fit), which needs at least 2 "
+                        "participants; the study has %zu (remove the key, or set fit.participants to \"pooled\")",
+                        study->path ? study->path : "study", key, n);
+}
+
 /* The selected models in study order, and the empty result set. */
 static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_trials *trials,
                                 const bl_fit_options *opt_in, bl_warnings *warn, bl_error *err)
@@ -238,6 +254,8 @@ static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_t
     }
     bl_fit_set *set = sf->set;
     set->mode = bl_study_participants_mode(study, trials->n_participants);
+    if (set->mode == BL_PARTICIPANTS_HIERARCHICAL && !study->fit.participants_given && trials->n_participants < 2)
+        return implied_mode_error(study, trials->n_participants, err);
     if (set->mode == BL_PARTICIPANTS_POOLED) {
         bl_status st = warn_if_participants_differ(trials, warn, err);
         if (st) return st;

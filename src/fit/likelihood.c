@@ -250,8 +250,11 @@ double bl_likelihood_eval(bl_likelihood *w, const double *coef, double *grad) { 
 
 double bl_likelihood_trials(bl_likelihood *w, const double *coef, double *trial_ll)
 {
-    for (size_t k = 0; k < w->m->n; k++)
-        if (!w->subset) trial_ll[k] = NAN;
+    /* every evaluated entry starts as NAN: evaluation stops at the first infeasible trial */
+    if (w->subset)
+        for (size_t i = 0; i < w->n; i++) trial_ll[w->subset[i]] = NAN;
+    else
+        for (size_t k = 0; k < w->m->n; k++) trial_ll[k] = NAN;
     double ll = evaluate(w, coef, NULL, trial_ll);
     return ll;
 }

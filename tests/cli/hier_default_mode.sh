@@ -3,8 +3,6 @@
 # fit.participants to its default, which is pooled with fewer than 3 participants: an error naming the
 # key, a hierarchical fit, or at least a warning naming the key are all acceptable; a pooled fit that
 # drops the key without a word is not.
-# KNOWN DEFECT when written (main a8e0905, still at bf2e678): all three cases are fitted pooled, exit 0,
-# with no word about the key. tests/meson.build marks this test should_fail until that is fixed; then drop the mark.
 # Data: invented trials drawn with the engine's sampler (tests/fit_make_trials.c).
 set -u
 . "$(dirname "$0")/lib.sh"

@@ -77,6 +77,10 @@ used = {}
 for t in trials:
     used.setdefault(t["model"], set()).add((t["participant"], t["trial"]))
 common = set.intersection(*used.values())
+# condition cells; the per-participant rows of hierarchical fits ("animal=a1") are checked apart
+part_rows = [x for x in q if x["regressor"] == "NA" and x["condition"].split("=", 1)[0] == "animal"]
+check(len({x["condition"] for x in part_rows}) == 3, "fit_quantiles.csv: a group per participant (%d rows)" % len(part_rows))
+q = [x for x in q if x not in part_rows]
 cells = [x for x in q if x["regressor"] == "NA" and x["boundary"] == "correct"]
 nmodels = len(used)
 check(len(cells) == 8 * nmodels, "8 condition cells per model (%d rows)" % len(cells))
