@@ -36,6 +36,7 @@ typedef struct {
     double truth[N_TERM], sd_truth[N_TERM];
     double est[N_TERM], lo[N_TERM], hi[N_TERM];          /* population coefficients, 95% interval */
     double sd[N_TERM], sd_lo[N_TERM], sd_hi[N_TERM];     /* variance components, profile interval */
+    double lrt[N_TERM];                                  /* test of SD = 0 (statistic) */
 } study_outcome;
 
 static unsigned n_studies = 200;
@@ -91,7 +92,7 @@ static void fit_one(unsigned r, const bl_study *study, study_outcome *o)
     for (int k = 0; k < N_TERM; k++) {
         o->truth[k] = truth[k];
         o->sd_truth[k] = sd[k];
-        o->est[k] = o->lo[k] = o->hi[k] = o->sd[k] = o->sd_lo[k] = o->sd_hi[k] = NAN;
+        o->est[k] = o->lo[k] = o->hi[k] = o->sd[k] = o->sd_lo[k] = o->sd_hi[k] = o->lrt[k] = NAN;
     }
     bl_trials *t = hier_sim(&tr, 90000 + r, NULL);
     o->participants = tr.participants;
@@ -120,6 +121,7 @@ static void fit_one(unsigned r, const bl_study *study, study_outcome *o)
             o->sd[k] = m->variance[v].sd;
             o->sd_lo[k] = m->variance[v].ci_low;
             o->sd_hi[k] = m->variance[v].ci_high;
+            o->lrt[k] = m->variance[v].lrt_statistic;
         }
     } else {
         fprintf(stderr, "study %u: %s\n", r, err.message);
@@ -134,8 +136,8 @@ static void fit_one(unsigned r, const bl_study *study, study_outcome *o)
         w += snprintf(line + w, sizeof line - (size_t)w, " %.4g %.4g [%.4g, %.4g]", o->truth[k], o->est[k], o->lo[k],
                       o->hi[k]);
     for (int k = 0; k < N_TERM && w > 0 && (size_t)w < sizeof line; k++)
-        w += snprintf(line + w, sizeof line - (size_t)w, " | %.4g %.4g [%.4g, %.4g]", o->sd_truth[k], o->sd[k],
-                      o->sd_lo[k], o->sd_hi[k]);
+        w += snprintf(line + w, sizeof line - (size_t)w, " | %.4g %.4g [%.4g, %.4g] %.3g", o->sd_truth[k], o->sd[k],
+                      o->sd_lo[k], o->sd_hi[k], o->lrt[k]);
     fprintf(stderr, "%s\n", line);
 }
 
@@ -213,17 +215,18 @@ HARNESS_CASE(population_interval_coverage)
 static void variance_table(unsigned cover[N_TERM], unsigned *lo, unsigned *hi)
 {
     binom_range(n_studies, 0.95, 0.001, lo, hi);
-    printf("%-24s %9s %9s %9s %9s %9s %9s %16s\n", "participant SD", "mean true", "mean est", "mean bias",
-           "rel. bias", "at zero", "covered", "covered if conv.");
+    printf("%-24s %9s %9s %9s %9s %9s %9s %16s %9s\n", "participant SD", "mean true", "mean est", "mean bias",
+           "rel. bias", "at zero", "covered", "covered if conv.", "no test");
     for (int k = 0; k < N_TERM; k++) {
         double truth = 0, est = 0, rel = 0;
-        unsigned n = 0, zero = 0, c_conv = 0, n_conv = 0;
+        unsigned n = 0, zero = 0, c_conv = 0, n_conv = 0, no_test = 0;
         cover[k] = 0;
         for (unsigned r = 0; r < n_studies; r++) {
             const study_outcome *o = &outcome[r];
             cover[k] += covers(o->sd_lo[k], o->sd_truth[k], o->sd_hi[k]);
             c_conv += o->converged && covers(o->sd_lo[k], o->sd_truth[k], o->sd_hi[k]);
             n_conv += o->converged;
+            no_test += o->fitted && !isfinite(o->lrt[k]);
             if (!isfinite(o->sd[k])) continue;
             truth += o->sd_truth[k];
             est += o->sd[k];
@@ -231,8 +234,8 @@ static void variance_table(unsigned cover[N_TERM], unsigned *lo, unsigned *hi)
             zero += o->sd[k] < 1e-3 * o->sd_truth[k];
             n++;
         }
-        printf("%-24s %9.4f %9.4f %9.4f %8.1f%% %9u %5u/%-3u %10u/%-3u\n", term_name[k], truth / n, est / n,
-               (est - truth) / n, 100 * rel / n, zero, cover[k], n_studies, c_conv, n_conv);
+        printf("%-24s %9.4f %9.4f %9.4f %8.1f%% %9u %5u/%-3u %10u/%-3u %9u\n", term_name[k], truth / n, est / n,
+               (est - truth) / n, 100 * rel / n, zero, cover[k], n_studies, c_conv, n_conv, no_test);
     }
 }
 
