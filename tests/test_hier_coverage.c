@@ -13,8 +13,18 @@
  * its 95% profile-likelihood interval, printed; see the case variance_components for what is asserted.
  * Studies are fitted in parallel (OpenMP over studies, 1 thread per fit); results are stored by study
  * index, so they do not depend on the thread count.
+ *
+ * KNOWN FAILURES (fails until fixed in src/fit/hier.c; measured at commit a8e0905, 200 studies, scale 0.3):
+ *  - 33 of 200 fits end "not converged" with no population intervals (second-difference information at
+ *    the optimum not positive definite), so coverage counts 159-165 of 200, below the range 179-198;
+ *    among converged fits it is 155-162 of 167 (93-97%);
+ *  - the nondecision SD's profile interval is mostly [0, SD estimate] (108 of 200 cover the truth);
+ *  - one study (index 198) is not fitted at all ("found no point where every participant's likelihood
+ *    has a mode").
+ * Wall time: 765 s CPU for 200 studies at scale 0.3 (35 min wall on the shared 2-core machine, about
+ * 6.5 min on 2 free cores); at scale 1 (100-250 trials, the intended design) a fit costs about 10x more.
  * usage: test_hier_coverage [STUDIES [TRIAL_SCALE [THREADS]]] [--list] [--case NAME]...
- *        (defaults 200, see main, 2) */
+ *        (defaults 200 studies, scale 1, 2 threads; the suite runs 200 0.3 2) */
 #include "fit/fit.h"
 #include "harness.h"
 #include "hier_testutil.h"
