@@ -22,7 +22,8 @@
  *  - one study (index 198) is not fitted at all ("found no point where every participant's likelihood
  *    has a mode").
  * Wall time: 765 s CPU for 200 studies at scale 0.3 (35 min wall on the shared 2-core machine, about
- * 6.5 min on 2 free cores); at scale 1 (100-250 trials, the intended design) a fit costs about 10x more.
+ * 6.5 min on 2 free cores); at scale 1 (100-250 trials, the intended design) a fit costs about 4x more
+ * (bench-hier: 16 s CPU for one 12 x 200 fit).
  * usage: test_hier_coverage [STUDIES [TRIAL_SCALE [THREADS]]] [--list] [--case NAME]...
  *        (defaults 200 studies, scale 1, 2 threads; the suite runs 200 0.3 2) */
 #include "fit/fit.h"
