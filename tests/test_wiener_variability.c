@@ -76,7 +76,9 @@ HARNESS_CASE(start_range)
 }
 
 /* The node-count rule n(start_range, u) against 2n nodes (numerics notes 6.7), both with GSL's tables,
- * and the engine's density equals the n-node sum (so the rule is what the engine uses). */
+ * and the engine's density against the 2n-node sum: in large time the engine sums the n-node rule, in
+ * small time it integrates over the start in closed form (docs/methods.md), so both must agree with the
+ * more accurate 2n-node sum to the rule's accuracy. */
 static double gl_sum(size_t n, const bl_wiener_params *q0, double w, double sz, double rt, int up)
 {
     gsl_integration_glfixed_table *tab = gsl_integration_glfixed_table_alloc(n);
@@ -108,13 +110,13 @@ HARNESS_CASE(start_range_2n)
                     double f1 = gl_sum(nr, &q, 0.5, sz, 0.3 + t, 0), f2 = gl_sum(2 * nr, &q, 0.5, sz, 0.3 + t, 0);
                     if (!(f2 > 1e-280)) continue;
                     worst_2n = fmax(worst_2n, fabs(f1 - f2) / f2);
-                    worst_engine = fmax(worst_engine, fabs(exp(ld(&p, 0.3 + t, 0)) - f1) / f1);
+                    worst_engine = fmax(worst_engine, fabs(exp(ld(&p, 0.3 + t, 0)) - f2) / f2);
                     n++;
                 }
     /* grid of the numerics notes' node table (a in {0.8, 1.5, 2.5}, v in {-2, 0, 2}, w = 0.5) */
     check_true(worst_2n <= 1e-6, "start_range rule n vs 2n nodes over %d points: max rel diff %.2g <= 1e-6", n,
                worst_2n);
-    check_true(worst_engine <= 1e-12, "the engine's start_range density is the n-node rule (max rel diff %.2g)",
+    check_true(worst_engine <= 1e-9, "the engine's start_range density = the 2n-node sum (max rel diff %.2g <= 1e-9)",
                worst_engine);
 }
 

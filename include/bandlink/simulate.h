@@ -4,11 +4,13 @@
  * error naming its path) describes participants, conditions, trial timing, the recordings (1/f-like
  * background per contact, a common-mode signal shared by every contact, trial-by-trial oscillatory bursts
  * whose amplitude varies from trial to trial) and the true regression of the decision-model parameters
- * on the band-power regressors. bl_simulate_write() writes a complete study folder:
+ * on the band-power regressors, optionally with participant spread (per term, the SD of a normal offset
+ * drawn once per participant). bl_simulate_write() writes a complete study folder:
  *   recordings/<participant>.flac|.wav   continuous multi-channel traces, 24-bit PCM
  *   trials.csv                           one row per trial: onsets, conditions, stimulus, choice, rt
  *   study.json                           a study file that analyses it (the scenario's models)
  *   truth.json                           the true coefficients, on the terms and levels of the fitted model
+ *                                        (with a participant spread also each participant's own)
  *   truth_trials.csv                     the true parameters of every trial
  * Behaviour is drawn after the band power has been measured from the written recordings with the
  * study's own settings, so the truth is on the regressor the study will measure.

@@ -31,6 +31,7 @@
 #include <gsl/gsl_randist.h>
 #include <math.h>
 #include <sndfile.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -62,6 +63,7 @@ typedef struct {
     size_t *by; /* factor indices */
     size_t n_by;
     double *values; /* per level combination of `by` (1 value when n_by = 0) */
+    double spread;  /* SD of each participant's offset, shared by every level; NAN when not given */
 } truth_slope;
 
 typedef struct {
@@ -71,6 +73,8 @@ typedef struct {
     double *intercept; /* per level combination (1 when n_per = 0) */
     truth_slope *slopes;
     size_t n_slopes;
+    int has_spread;          /* a "spread" object was given */
+    double intercept_spread; /* SD of each participant's intercept offset, shared by every level; NAN: not given */
 } truth_param;
 
 struct bl_scenario {
@@ -98,6 +102,7 @@ struct bl_scenario {
     burst_spec *bursts;
     size_t n_bursts;
     truth_param truth[BL_NPARAM];
+    int any_spread; /* some parameter has a "spread": truth.json then lists each participant's coefficients */
     cJSON *keep, *power, *fit, *models, *scan;
     char *truth_model;
 };
@@ -363,6 +368,67 @@ static bl_status parse_values(ctx *c, const bl_scenario *sc, const cJSON *v, con
     return BL_OK;
 }
 
+/* truth.<parameter>.slopes: {regressor: number} or {regressor: {"by": [columns], "values": {level: number}}}. */
+static bl_status parse_truth_slopes(ctx *c, bl_scenario *sc, truth_param *tp, const cJSON *sl, const char *q)
+{
+    bl_status st;
+    if (!cJSON_IsObject(sl)) return bad(c, q, "must be an object {regressor: value}");
+    size_t ns = (size_t)cJSON_GetArraySize(sl);
+    tp->slopes = calloc(ns ? ns : 1, sizeof *tp->slopes);
+    if (!tp->slopes) return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
+    for (const cJSON *se = sl->child; se; se = se->next) {
+        truth_slope *s = &tp->slopes[tp->n_slopes++];
+        s->spread = NAN;
+        char r[500];
+        snprintf(r, sizeof r, "%s.%s", q, se->string);
+        if (!(s->regressor = dupstr(se->string))) return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
+        if (cJSON_IsNumber(se)) {
+            if ((st = parse_values(c, sc, se, r, NULL, 0, &s->values))) return st;
+            continue;
+        }
+        static const char *const skeys[] = {"by", "values", NULL};
+        if ((st = check_keys(c, se, r, skeys))) return st;
+        char rr[600];
+        snprintf(rr, sizeof rr, "%s.by", r);
+        const cJSON *by = item(se, "by");
+        if (!by) return bad(c, rr, "required key is missing");
+        if ((st = parse_factor_list(c, sc, by, rr, &s->by, &s->n_by))) return st;
+        snprintf(rr, sizeof rr, "%s.values", r);
+        const cJSON *vals = item(se, "values");
+        if (!vals) return bad(c, rr, "required key is missing");
+        if ((st = parse_values(c, sc, vals, rr, s->by, s->n_by, &s->values))) return st;
+    }
+    return BL_OK;
+}
+
+/* truth.<parameter>.spread: {term: SD}, term "intercept" or one of the parameter's slopes; SD >= 0 on the
+ * parameter's (identity) scale. Parsed after the slopes, whose names are the allowed keys. */
+static bl_status parse_truth_spread(ctx *c, truth_param *tp, const cJSON *sp, const char *q)
+{
+    if (!cJSON_IsObject(sp)) return bad(c, q, "must be an object {term: SD} (term: intercept or a slope's regressor)");
+    for (const cJSON *e = sp->child; e; e = e->next) {
+        char r[500];
+        snprintf(r, sizeof r, "%s.%s", q, e->string);
+        double *sd = NULL;
+        if (strcmp(e->string, "intercept") == 0) sd = &tp->intercept_spread;
+        for (size_t s = 0; !sd && s < tp->n_slopes; s++)
+            if (strcmp(tp->slopes[s].regressor, e->string) == 0) sd = &tp->slopes[s].spread;
+        if (!sd) {
+            char terms[400] = "intercept";
+            size_t len = strlen(terms);
+            for (size_t s = 0; s < tp->n_slopes && len < sizeof terms; s++)
+                len += (size_t)snprintf(terms + len, sizeof terms - len, ", %s", tp->slopes[s].regressor);
+            return bad(c, r, "'%s' is not a term of this parameter (terms: %s)", e->string, terms);
+        }
+        if (!isnan(*sd)) return bad(c, r, "key given twice");
+        if (!cJSON_IsNumber(e) || !isfinite(e->valuedouble)) return bad(c, r, "must be a number (an SD >= 0)");
+        if (!(e->valuedouble >= 0)) return bad(c, r, "%.10g is negative (an SD must be >= 0)", e->valuedouble);
+        *sd = e->valuedouble;
+    }
+    tp->has_spread = 1;
+    return BL_OK;
+}
+
 static bl_status parse_truth(ctx *c, bl_scenario *sc, const cJSON *t)
 {
     static const char *const params[] = {"threshold", "drift",       "nondecision",       "start",
@@ -374,9 +440,10 @@ static bl_status parse_truth(ctx *c, bl_scenario *sc, const cJSON *t)
         truth_param *tp = &sc->truth[pi];
         char path[300];
         snprintf(path, sizeof path, "truth.%s", pe->string);
-        static const char *const keys[] = {"intercept", "per", "slopes", NULL};
+        static const char *const keys[] = {"intercept", "per", "slopes", "spread", NULL};
         if ((st = check_keys(c, pe, path, keys))) return st;
         tp->given = 1;
+        tp->intercept_spread = NAN;
         char q[400];
         const cJSON *per = item(pe, "per");
         if (per) {
@@ -388,33 +455,12 @@ static bl_status parse_truth(ctx *c, bl_scenario *sc, const cJSON *t)
         if (!ic) return bad(c, q, "required key is missing");
         if ((st = parse_values(c, sc, ic, q, tp->per, tp->n_per, &tp->intercept))) return st;
         const cJSON *sl = item(pe, "slopes");
-        if (!sl) continue;
         snprintf(q, sizeof q, "%s.slopes", path);
-        if (!cJSON_IsObject(sl)) return bad(c, q, "must be an object {regressor: value}");
-        size_t ns = (size_t)cJSON_GetArraySize(sl);
-        tp->slopes = calloc(ns ? ns : 1, sizeof *tp->slopes);
-        if (!tp->slopes) return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
-        for (const cJSON *se = sl->child; se; se = se->next) {
-            truth_slope *s = &tp->slopes[tp->n_slopes++];
-            char r[500];
-            snprintf(r, sizeof r, "%s.%s", q, se->string);
-            if (!(s->regressor = dupstr(se->string))) return bl_error_set(c->err, BL_ERR_NOMEM, "out of memory");
-            if (cJSON_IsNumber(se)) {
-                if ((st = parse_values(c, sc, se, r, NULL, 0, &s->values))) return st;
-                continue;
-            }
-            static const char *const skeys[] = {"by", "values", NULL};
-            if ((st = check_keys(c, se, r, skeys))) return st;
-            char rr[600];
-            snprintf(rr, sizeof rr, "%s.by", r);
-            const cJSON *by = item(se, "by");
-            if (!by) return bad(c, rr, "required key is missing");
-            if ((st = parse_factor_list(c, sc, by, rr, &s->by, &s->n_by))) return st;
-            snprintf(rr, sizeof rr, "%s.values", r);
-            const cJSON *vals = item(se, "values");
-            if (!vals) return bad(c, rr, "required key is missing");
-            if ((st = parse_values(c, sc, vals, rr, s->by, s->n_by, &s->values))) return st;
-        }
+        if (sl && (st = parse_truth_slopes(c, sc, tp, sl, q))) return st;
+        const cJSON *sp = item(pe, "spread");
+        snprintf(q, sizeof q, "%s.spread", path);
+        if (sp && (st = parse_truth_spread(c, tp, sp, q))) return st;
+        if (sp) sc->any_spread = 1;
     }
     static const char *const required[] = {"threshold", "drift", "nondecision"};
     for (int i = 0; i < 3; i++)
@@ -1077,6 +1123,11 @@ static bl_status check_truth_model(const bl_scenario *sc, const bl_study *study,
             for (size_t i = 0; same && i < ts->n_by; i++) same = strcmp(ms->by[i], sc->factors[ts->by[i]].name) == 0;
         }
         if (ps->is_fixed && t->n_per == 0 && t->n_slopes == 0 && t->intercept[0] == ps->fixed) same = 1;
+        if (ps->is_fixed && t->intercept_spread > 0) /* NAN (not given) compares false */
+            return bl_error_set(err, BL_ERR_INPUT,
+                                "%s: truth.%s.spread.intercept: %g, but model '%s' fixes %s; a participant "
+                                "spread needs the parameter estimated",
+                                sc->path, bl_param_name(p), t->intercept_spread, m->name, bl_param_name(p));
         if (!same)
             return bl_error_set(err, BL_ERR_INPUT,
                                 "%s: truth.%s: its intercepts/slopes do not have the structure of model '%s' "
@@ -1098,10 +1149,112 @@ static void add_coef(cJSON *arr, const char *param, const char *term, const char
     cJSON_AddStringToObject(o, "term", term);
     cJSON_AddStringToObject(o, "level", level);
     cJSON_AddNumberToObject(o, "value", value);
-    cJSON_AddItemToArray(arr, o);
+    if (!cJSON_AddItemToArray(arr, o)) cJSON_Delete(o); /* arr NULL after a failed allocation: no leak */
 }
 
-static cJSON *truth_json(const bl_scenario *sc, const bl_study *study, unsigned long seed, size_t n_trials,
+/* Each participant's offsets from the population coefficients (truth.<parameter>.spread). For parameter
+ * p, off[p][participant * (1 + n_slopes) + term] with term 0 the intercept and 1 + s slope s; NULL when
+ * the parameter has no spread. One offset per participant and term, shared by every level of the term. */
+typedef struct {
+    double *off[BL_NPARAM];
+} participant_offsets;
+
+static void offsets_free(participant_offsets *po)
+{
+    for (int p = 0; p < BL_NPARAM; p++) free(po->off[p]);
+}
+
+static double offset_of(const bl_scenario *sc, const participant_offsets *po, int p, size_t participant, size_t term)
+{
+    if (!po || !po->off[p]) return 0.0;
+    return po->off[p][participant * (1 + sc->truth[p].n_slopes) + term];
+}
+
+/* Draw the offsets N(0, SD²) from a stream of their own (so they depend on the seed alone, not on trial
+ * counts or recordings), in a fixed order: participant, then parameter, then term (intercept, then the
+ * slopes in scenario order); terms without an SD get 0 and consume no draw. */
+static bl_status draw_offsets(const bl_scenario *sc, unsigned long seed, participant_offsets *po, bl_error *err)
+{
+    size_t P = sc->n_participants;
+    for (int p = 0; p < BL_NPARAM; p++) {
+        const truth_param *t = &sc->truth[p];
+        if (!t->given || !t->has_spread) continue;
+        if (!(po->off[p] = calloc(P * (1 + t->n_slopes), sizeof *po->off[p])))
+            return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    if (!sc->any_spread) return BL_OK;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    if (!rng) return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    gsl_rng_set(rng, seed ^ 0x5bd1e995UL);
+    for (size_t i = 0; i < P; i++)
+        for (int p = 0; p < BL_NPARAM; p++) {
+            const truth_param *t = &sc->truth[p];
+            if (!po->off[p]) continue;
+            double *o = po->off[p] + i * (1 + t->n_slopes);
+            if (!isnan(t->intercept_spread)) o[0] = gsl_ran_gaussian(rng, t->intercept_spread);
+            for (size_t s = 0; s < t->n_slopes; s++)
+                if (!isnan(t->slopes[s].spread)) o[1 + s] = gsl_ran_gaussian(rng, t->slopes[s].spread);
+        }
+    gsl_rng_free(rng);
+    return BL_OK;
+}
+
+/* The coefficients on the fitted model's parameter/term/level layout: the population's (participant =
+ * SIZE_MAX) or one participant's (population + that participant's offsets). */
+static void add_coefficients(cJSON *co, const bl_scenario *sc, const participant_offsets *po, size_t participant)
+{
+    for (int p = 0; p < BL_NPARAM; p++) {
+        const truth_param *t = &sc->truth[p];
+        if (!t->given) continue;
+        int own = participant != SIZE_MAX;
+        char label[256];
+        size_t k = n_combos(sc, t->per, t->n_per);
+        for (size_t i = 0; i < k; i++) {
+            combo_label(sc, t->per, t->n_per, i, label, sizeof label);
+            double v = t->intercept[i];
+            if (own) v += offset_of(sc, po, p, participant, 0);
+            add_coef(co, bl_param_name(p), "intercept", label, v);
+        }
+        for (size_t s = 0; s < t->n_slopes; s++) {
+            const truth_slope *ts = &t->slopes[s];
+            size_t ks = n_combos(sc, ts->by, ts->n_by);
+            for (size_t i = 0; i < ks; i++) {
+                combo_label(sc, ts->by, ts->n_by, i, label, sizeof label);
+                double v = ts->values[i];
+                if (own) v += offset_of(sc, po, p, participant, 1 + s);
+                add_coef(co, bl_param_name(p), ts->regressor, label, v);
+            }
+        }
+    }
+}
+
+/* "spread": the SD of every term given one; "participants": each participant's true coefficients. */
+static void add_spread(cJSON *root, const bl_scenario *sc, const participant_offsets *po)
+{
+    cJSON *sp = cJSON_AddArrayToObject(root, "spread");
+    for (int p = 0; p < BL_NPARAM; p++) {
+        const truth_param *t = &sc->truth[p];
+        if (!t->given || !t->has_spread) continue;
+        for (size_t term = 0; term <= t->n_slopes; term++) {
+            double sd = term == 0 ? t->intercept_spread : t->slopes[term - 1].spread;
+            if (isnan(sd)) continue;
+            cJSON *o = cJSON_CreateObject();
+            cJSON_AddStringToObject(o, "parameter", bl_param_name(p));
+            cJSON_AddStringToObject(o, "term", term == 0 ? "intercept" : t->slopes[term - 1].regressor);
+            cJSON_AddNumberToObject(o, "sd", sd);
+            if (!cJSON_AddItemToArray(sp, o)) cJSON_Delete(o);
+        }
+    }
+    cJSON *pa = cJSON_AddArrayToObject(root, "participants");
+    for (size_t i = 0; i < sc->n_participants; i++) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "participant", sc->participants[i]);
+        add_coefficients(cJSON_AddArrayToObject(o, "coefficients"), sc, po, i);
+        if (!cJSON_AddItemToArray(pa, o)) cJSON_Delete(o);
+    }
+}
+
+static cJSON *truth_json(const bl_scenario *sc, const participant_offsets *po, unsigned long seed, size_t n_trials,
                          size_t n_excluded, double max_shift)
 {
     cJSON *root = cJSON_CreateObject();
@@ -1112,25 +1265,8 @@ static cJSON *truth_json(const bl_scenario *sc, const bl_study *study, unsigned 
     cJSON_AddNumberToObject(root, "trials", (double)n_trials);
     cJSON_AddNumberToObject(root, "trials_excluded_by_study", (double)n_excluded);
     cJSON_AddNumberToObject(root, "regressor_shift_max", max_shift);
-    cJSON *co = cJSON_AddArrayToObject(root, "coefficients");
-    for (int p = 0; p < BL_NPARAM; p++) {
-        const truth_param *t = &sc->truth[p];
-        if (!t->given) continue;
-        char label[256];
-        size_t k = n_combos(sc, t->per, t->n_per);
-        for (size_t i = 0; i < k; i++) {
-            combo_label(sc, t->per, t->n_per, i, label, sizeof label);
-            add_coef(co, bl_param_name(p), "intercept", label, t->intercept[i]);
-        }
-        for (size_t s = 0; s < t->n_slopes; s++) {
-            const truth_slope *ts = &t->slopes[s];
-            size_t ks = n_combos(sc, ts->by, ts->n_by);
-            for (size_t i = 0; i < ks; i++) {
-                combo_label(sc, ts->by, ts->n_by, i, label, sizeof label);
-                add_coef(co, bl_param_name(p), ts->regressor, label, ts->values[i]);
-            }
-        }
-    }
+    add_coefficients(cJSON_AddArrayToObject(root, "coefficients"), sc, po, SIZE_MAX);
+    if (sc->any_spread) add_spread(root, sc, po);
     cJSON *bands = cJSON_AddObjectToObject(root, "bursts");
     for (size_t b = 0; b < sc->n_bursts; b++) {
         cJSON *o = cJSON_AddObjectToObject(bands, sc->bursts[b].name);
@@ -1140,7 +1276,6 @@ static cJSON *truth_json(const bl_scenario *sc, const bl_study *study, unsigned 
         cJSON_AddNumberToObject(o, "amplitude", sc->bursts[b].amplitude);
         cJSON_AddNumberToObject(o, "variability", sc->bursts[b].variability);
     }
-    (void)study;
     return root;
 }
 
@@ -1284,8 +1419,8 @@ static bl_status write_provisional_study(const bl_scenario *sc, const trial_rec 
 
 /* Behaviour: the true parameters of each trial from its measured regressors, then one draw of the exact
  * sampler. Trials the study excludes (e.g. an artifact) get regressor 0. */
-static bl_status draw_behaviour(const bl_scenario *sc, const bl_trials *trials, gsl_rng *rng, trial_rec *tr,
-                                size_t *n_upper, double *sum_rt, bl_error *err)
+static bl_status draw_behaviour(const bl_scenario *sc, const participant_offsets *po, const bl_trials *trials,
+                                gsl_rng *rng, trial_rec *tr, size_t *n_upper, double *sum_rt, bl_error *err)
 {
     size_t N = sc->n_participants * sc->trials_per_participant;
     *n_upper = 0;
@@ -1297,7 +1432,11 @@ static bl_status draw_behaviour(const bl_scenario *sc, const bl_trials *trials, 
         for (int p = 0; p < BL_NPARAM; p++) {
             const truth_param *tp = &sc->truth[p];
             if (!tp->given) continue;
+            /* Offsets are added only for parameters with a spread: without one the values (and bytes) are
+             * exactly those of the population. */
+            int own = po->off[p] != NULL;
             double v = tp->intercept[combo_index(sc, tp->per, tp->n_per, t->level)];
+            if (own) v += offset_of(sc, po, p, t->participant, 0);
             for (size_t s = 0; s < tp->n_slopes; s++) {
                 const truth_slope *ts = &tp->slopes[s];
                 const double *x = regressor(trials, ts->regressor);
@@ -1307,7 +1446,9 @@ static bl_status draw_behaviour(const bl_scenario *sc, const bl_trials *trials, 
                                         "of that name (bands: study.power.bands)",
                                         sc->path, bl_param_name(p), ts->regressor);
                 double xi = isfinite(x[i]) ? x[i] : 0.0;
-                v += ts->values[combo_index(sc, ts->by, ts->n_by, t->level)] * xi;
+                double b = ts->values[combo_index(sc, ts->by, ts->n_by, t->level)];
+                if (own) b += offset_of(sc, po, p, t->participant, 1 + s);
+                v += b * xi;
             }
             wp.value[p] = v;
         }
@@ -1316,8 +1457,11 @@ static bl_status draw_behaviour(const bl_scenario *sc, const bl_trials *trials, 
         if (bl_wiener_check(&wp, &perr) != BL_OK)
             return bl_error_set(err, BL_ERR_RANGE,
                                 "%s: truth gives invalid parameters for %s trial %zu: %s; make the "
-                                "slopes smaller or the intercepts larger",
-                                sc->path, sc->participants[t->participant], t->trial, perr.message);
+                                "slopes smaller or the intercepts larger%s",
+                                sc->path, sc->participants[t->participant], t->trial, perr.message,
+                                sc->any_spread ? ", or the spread smaller (the values include this participant's "
+                                                 "offsets drawn from truth.*.spread)"
+                                               : "");
         bl_status st = bl_wiener_sample(&wp, rng, &t->upper, &t->rt, err);
         if (st) return st;
         *n_upper += (size_t)t->upper;
@@ -1358,6 +1502,7 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
     bl_analysis *first = NULL, *second = NULL;
     char *p_rec = NULL, *p_trials = NULL, *p_study = NULL, *p_truth = NULL, *p_tt = NULL;
     cJSON *tj = NULL;
+    participant_offsets po = {{NULL}};
     bl_status st = BL_OK;
     double seconds = 0, sum_rt = 0;
     size_t n_upper = 0;
@@ -1368,6 +1513,7 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
     }
     gsl_rng_set(rng, seed);
     schedule_trials(sc, rng, tr, levels, order);
+    if ((st = draw_offsets(sc, seed, &po, err))) goto done;
     if ((st = bl_results_folder_check(out_dir, opt->force, inputs, 1, err))) goto done;
     if ((st = bl_results_folder_begin(out_dir, opt->force, "simulate", &stage, err))) goto done;
     const char *dir = bl_results_folder_dir(stage);
@@ -1388,7 +1534,7 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
         goto done;
     }
     gsl_rng_set(rng, seed ^ 0x9e3779b9UL);
-    if ((st = draw_behaviour(sc, first->trials, rng, tr, &n_upper, &sum_rt, err))) goto done;
+    if ((st = draw_behaviour(sc, &po, first->trials, rng, tr, &n_upper, &sum_rt, err))) goto done;
     if ((st = write_trials_csv(sc, tr, N, p_trials, 0, err))) goto done;
     /* Measure again from the final table, and record how far the regressors moved (truth.json). */
     if ((st = measure(p_study, opt->threads, &second, warn, err))) goto done;
@@ -1399,7 +1545,7 @@ bl_status bl_simulate_write(const bl_scenario *sc, const char *out_dir, const bl
                         "%zu of %zu simulated trials are excluded by the study's keep rules or artifact checks; "
                         "the standardised regressors moved by up to %.3g (truth.json: regressor_shift_max)",
                         excluded, N, shift);
-    if (!(tj = truth_json(sc, second->study, seed, N, excluded, shift))) {
+    if (!(tj = truth_json(sc, &po, seed, N, excluded, shift))) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
@@ -1429,6 +1575,7 @@ done:
     free(tr);
     free(levels);
     free(order);
+    offsets_free(&po);
     gsl_rng_free(rng);
     return st;
 }

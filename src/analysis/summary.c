@@ -22,10 +22,29 @@ static void lrt_text(const bl_comparison_row *r, char *out, size_t size)
     else snprintf(out, size, "-");
 }
 
+/* Hierarchical: how much participants differ in each varying term. */
+static void spread_table(bl_textbuf *b, const bl_model_result *mr)
+{
+    if (!mr->n_variance) return;
+    bl_textbuf_printf(b, "  Participant spread (SD of participants' values, link scale):\n");
+    for (size_t k = 0; k < mr->n_variance; k++) {
+        const bl_variance_component *v = &mr->variance[k];
+        char name[160], sd[32], lo[32], hi[32], p[32];
+        snprintf(name, sizeof name, "%s: %s", v->parameter, v->term);
+        fmt_num(sd, sizeof sd, v->sd, "%.4f");
+        fmt_num(lo, sizeof lo, v->ci_low, "%.4f");
+        fmt_num(hi, sizeof hi, v->ci_high, "%.4f");
+        fmt_num(p, sizeof p, v->lrt_p, "%.3g");
+        bl_textbuf_printf(b, "  %-40s %10s   [%s, %s]   spread = 0: p = %s\n", name, sd, lo, hi, p);
+    }
+}
+
 static void comparison_table(bl_textbuf *b, const bl_fit_set *set)
 {
-    bl_textbuf_printf(b, "Model comparison (%s fits; lowest AIC is best)\n",
-                      set->mode == BL_PARTICIPANTS_SEPARATE ? "per-participant" : "pooled");
+    bl_textbuf_printf(b, "Model comparison (%s; lowest AIC is best)\n",
+                      set->mode == BL_PARTICIPANTS_SEPARATE       ? "per-participant fits"
+                      : set->mode == BL_PARTICIPANTS_HIERARCHICAL ? "hierarchical fits, marginal likelihood"
+                                                                  : "pooled fits");
     int w = 5;
     for (size_t m = 0; m < set->n_models; m++)
         if ((int)strlen(set->comparison[m].name) > w) w = (int)strlen(set->comparison[m].name);
@@ -85,6 +104,13 @@ static void slopes_of(bl_textbuf *b, const bl_model_result *mr)
     if (mr->mode == BL_PARTICIPANTS_SEPARATE)
         bl_textbuf_printf(b,
                           "  (separate fits: group random-effects estimates; per-participant values in fits.json)\n");
+    if (mr->mode == BL_PARTICIPANTS_HIERARCHICAL) {
+        bl_textbuf_printf(b,
+                          "  (population values: they speak for the population the %zu participants were drawn from;\n"
+                          "   intervals of terms that vary use t with participants - 1 df)\n",
+                          mr->n_participants);
+        spread_table(b, mr);
+    }
     for (size_t k = 0; k < mr->n_permutation; k++) {
         const bl_permutation_test *pt = &mr->permutation[k];
         if (k == 0)

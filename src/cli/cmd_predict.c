@@ -21,39 +21,40 @@ enum { MAX_RT = 100000 };
 
 static void usage(FILE *out)
 {
-    fprintf(out, "usage: bandlink predict --threshold A --drift V --nondecision T [--start W] [--drift-sd SV]\n"
-                 "                        [--start-range SZ] [--nondecision-range ST]\n"
-                 "                        [--contamination P --contamination-range LO,HI] [--rt R1,R2,..] [--json]\n"
-                 "       bandlink predict --from FITS.json --model NAME [--at NAME=VALUE,..] [--participant P]\n"
-                 "                        [--contamination-range LO,HI] [--json]\n\n"
-                 "Choice probabilities, mean response times, RT quantiles (0.1 0.3 0.5 0.7 0.9) per boundary and\n"
-                 "densities at the given response times, for the Wiener diffusion model with noise scale s = 1\n"
-                 "(multiply threshold, drift and drift-sd from the s = 0.1 convention by 10).\n\n"
-                 "  --threshold A           boundary separation, > 0\n"
-                 "  --drift V               drift rate toward the upper boundary\n"
-                 "  --nondecision T         non-decision time [s], >= 0\n"
-                 "  --start W               relative starting point in (0, 1); default 0.5\n"
-                 "  --drift-sd SV           across-trial SD of the drift, >= 0; default 0\n"
-                 "  --start-range SZ        across-trial width of the start (relative), default 0\n"
-                 "  --nondecision-range ST  across-trial width of the non-decision time [s], default 0\n"
-                 "  --contamination P       share of uniform contaminant responses in [0, 1); default 0\n"
-                 "  --contamination-range LO,HI  RT range [s] of the contaminants (required with P > 0)\n"
-                 "  --rt R1,R2,..           response times [s] at which to print the densities [1/s]\n"
-                 "  --json                  print one JSON object instead of a table\n\n"
-                 "Predictions of a fitted model (fits.json of `bandlink run` or `bandlink fit`):\n"
-                 "  --from FITS.json        read the model's coefficients and their covariance from this file\n"
-                 "  --model NAME            the model to predict from\n"
-                 "  --at NAME=VALUE,..      a value for every regressor the model uses, on the regressor's scale as\n"
-                 "                          written in power.csv / trials.csv (standardised units when the study\n"
-                 "                          standardises), and a level for every condition column it uses\n"
-                 "                          (context=rich); the stimulus column (stimulus coding) is optional.\n"
-                 "                          May be given several times\n"
-                 "  --participant P         a participant's own fit (models fitted with participants separate)\n"
-                 "  --contamination-range LO,HI  contaminant RT range [s], needed when the model predicts\n"
-                 "                          contamination > 0\n"
-                 "  --json                  print one JSON object instead of a table\n"
-                 "Parameters, P(upper), P(lower) and mean RTs get delta-method 95%% intervals (numerical gradient of\n"
-                 "the engine for the derived quantities); --rt and the parameter options do not apply.\n");
+    fprintf(out,
+            "usage: bandlink predict --threshold A --drift V --nondecision T [--start W] [--drift-sd SV]\n"
+            "                        [--start-range SZ] [--nondecision-range ST]\n"
+            "                        [--contamination P --contamination-range LO,HI] [--rt R1,R2,..] [--json]\n"
+            "       bandlink predict --from FITS.json --model NAME [--at NAME=VALUE,..] [--participant P]\n"
+            "                        [--contamination-range LO,HI] [--json]\n\n"
+            "Choice probabilities, mean response times, RT quantiles (0.1 0.3 0.5 0.7 0.9) per boundary and\n"
+            "densities at the given response times, for the Wiener diffusion model with noise scale s = 1\n"
+            "(multiply threshold, drift and drift-sd from the s = 0.1 convention by 10).\n\n"
+            "  --threshold A           boundary separation, > 0\n"
+            "  --drift V               drift rate toward the upper boundary\n"
+            "  --nondecision T         non-decision time [s], >= 0\n"
+            "  --start W               relative starting point in (0, 1); default 0.5\n"
+            "  --drift-sd SV           across-trial SD of the drift, >= 0; default 0\n"
+            "  --start-range SZ        across-trial width of the start (relative), default 0\n"
+            "  --nondecision-range ST  across-trial width of the non-decision time [s], default 0\n"
+            "  --contamination P       share of uniform contaminant responses in [0, 1); default 0\n"
+            "  --contamination-range LO,HI  RT range [s] of the contaminants (required with P > 0)\n"
+            "  --rt R1,R2,..           response times [s] at which to print the densities [1/s]\n"
+            "  --json                  print one JSON object instead of a table\n\n"
+            "Predictions of a fitted model (fits.json of `bandlink run` or `bandlink fit`):\n"
+            "  --from FITS.json        read the model's coefficients and their covariance from this file\n"
+            "  --model NAME            the model to predict from\n"
+            "  --at NAME=VALUE,..      a value for every regressor the model uses, on the regressor's scale as\n"
+            "                          written in power.csv / trials.csv (standardised units when the study\n"
+            "                          standardises), and a level for every condition column it uses\n"
+            "                          (context=rich); the stimulus column (stimulus coding) is optional.\n"
+            "                          May be given several times\n"
+            "  --participant P         a participant's own fit (separate) or empirical-Bayes values (hierarchical)\n"
+            "  --contamination-range LO,HI  contaminant RT range [s], needed when the model predicts\n"
+            "                          contamination > 0\n"
+            "  --json                  print one JSON object instead of a table\n"
+            "Parameters, P(upper), P(lower) and mean RTs get delta-method 95%% intervals (numerical gradient of\n"
+            "the engine for the derived quantities); --rt and the parameter options do not apply.\n");
 }
 
 /* Parse "x,y,..." into a new array; on error print a usage message naming --rt and the item. */
@@ -413,7 +414,8 @@ static void from_table(const from_options *o, const bl_prediction *pr)
     printf("\nnoise s = 1; 95%% intervals by the delta method%s\n\n",
            pr->has_covariance  ? ""
            : pr->group_summary ? " (not available for the group summary of a separate fit: use --participant)"
-                               : " (not available: fits.json has no covariance for this fit)");
+                               : " (not available: fits.json has no covariance for this fit; a hierarchical fit's "
+                                 "participants have conditional SEs only)");
     printf("%-18s %12s %12s %-26s %s\n", "parameter", "value", "se", "95% interval", "link");
     for (int p = 0; p < BL_NPARAM; p++) {
         const bl_predicted *x = &pr->param[p];

@@ -896,7 +896,8 @@ static bl_status check_hierarchical_keys(ctx *c, const cJSON *models, const bl_s
 
 bl_participants_mode bl_study_participants_mode(const bl_study *s, size_t n_participants)
 {
-    if (s->fit.participants_given) return s->fit.participants;
+    /* a mode set in the struct (not only parsed) counts as given too */
+    if (s->fit.participants_given || s->fit.participants != BL_PARTICIPANTS_POOLED) return s->fit.participants;
     return n_participants >= 3 ? BL_PARTICIPANTS_HIERARCHICAL : BL_PARTICIPANTS_POOLED;
 }
 

@@ -61,6 +61,12 @@ typedef struct {
 void blw_point_sum(double v, double a, double w, double sv, double sz, int upper, int n, const double *t,
                    const double *dz, const double *wt, const double *tx, blw_acc *acc);
 
+/* The density at decision time t (t/a^2 < 0.25) averaged over start_range in closed form, merged into acc
+ * as one point of weight wt (tx: multiplies the t-derivative into G[6]). Returns 0 when not applicable
+ * (a range end within 1e-3 of a boundary): the caller sums start nodes instead. */
+int blw_start_window_small(double t, double v, double a, double w, double sv, double sz, int upper, double wt,
+                           double tx, blw_acc *acc);
+
 /* log P(lower) and log P(boundary) without variability; stable for any v*a. */
 double blw_log_p_lo(double v, double a, double w);
 double blw_log_p(double v, double a, double w, int upper);

@@ -333,6 +333,120 @@ void blw_point_sum(double v, double a, double w, double sv, double sz, int upper
     }
 }
 
+/* ---- the start average in closed form, small time ------------------------------------------------- */
+
+/* erfcx(z) = exp(z^2) erfc(z) for z >= 0: directly below 26 (erfc(26) = 5.7e-296 is still normal),
+ * else the asymptotic series 1/(z sqrt(pi)) (1 - 1/(2z^2) + 3/(4z^4) - 15/(8z^6) + 105/(16z^8))
+ * (Abramowitz & Stegun 7.1.23; the omitted term is below 1e-12 relative there). */
+static double erfcx_pos(double z)
+{
+    if (z < 26) return exp(z * z) * erfc(z);
+    double r = 1 / (z * z);
+    return 0.56418958354775628695 / z * (1 + r * (-0.5 + r * (0.75 + r * (-1.875 + r * 6.5625))));
+}
+
+/* One image k of the small-time series integrated over W in [W1, W2]: with Q(W) = c2 W^2 + c1 W + c0 =
+ * C - alpha (W - mu)^2 / 2, the integrals J_m = int W^m (W + 2k) e^{Q(W) - R} dW (m = 0, 1, 2) from
+ * the Gaussian moments over y = W - mu in [y1, y2]; e1, e2 = e^{Q(W1,2) - R}. J[0] only unless grad. */
+static void image_integrals(double alpha, double mu, double beta, double C, double R, double W1, double W2, double e1,
+                            double e2, int grad, double J[3])
+{
+    double y1 = W1 - mu, y2 = W2 - mu, s = sqrt(0.5 * alpha), z1 = s * y1, z2 = s * y2;
+    double c = 1.25331413731550025121 / sqrt(alpha); /* sqrt(pi / (2 alpha)) */
+    double H;                                        /* e^{C-R} int e^{-alpha y^2/2} dy */
+    if (y1 >= 0) H = c * (e1 * erfcx_pos(z1) - e2 * erfcx_pos(z2));
+    else if (y2 <= 0) H = c * (e2 * erfcx_pos(-z2) - e1 * erfcx_pos(-z1));
+    else H = c * exp(C - R) * (erf(z2) - erf(z1));
+    double ia = 1 / alpha, K1 = (e1 - e2) * ia;
+    J[0] = K1 + beta * H;
+    if (!grad) return;
+    double K2 = (y1 * e1 - y2 * e2) * ia + H * ia;
+    double K3 = (y1 * y1 * e1 - y2 * y2 * e2) * ia + 2 * K1 * ia;
+    J[1] = K2 + (mu + beta) * K1 + mu * beta * H;
+    J[2] = K3 + (2 * mu + beta) * K2 + (mu * mu + 2 * mu * beta) * K1 + mu * mu * beta * H;
+}
+
+/* The density at decision time t (u = t/a^2 < 0.25) averaged over the start w' in [w - sz/2, w + sz/2],
+ * in closed form (docs/methods.md, "start_range in small time"): with drift_sd the exponent of every
+ * image of the small-time series is quadratic in the start, so each image integrates to Gaussian
+ * moments (erf/erfc and exp at the ends). Images k = 0 and -1 always, k = 1, -2, 2 where their largest
+ * ratio to the k = 0 term over the range can exceed 1e-13. Merged into acc like one point of weight wt
+ * (gradient sums as in blw_point_sum; tx multiplies the t-derivative into G[6]). Returns 0 (nothing
+ * merged) where the form is not used: a range end within 1e-3 of a boundary (the images cancel there). */
+int blw_start_window_small(double t, double v, double a, double w, double sv, double sz, int upper, double wt,
+                           double tx, blw_acc *acc)
+{
+    double vv = upper ? -v : v, sg = upper ? -1 : 1, Wc = upper ? 1 - w : w;
+    double W1 = Wc - 0.5 * sz, W2 = Wc + 0.5 * sz;
+    if (!(W1 > 1e-3) || !(W2 < 1 - 1e-3) || !(sz > 0) || !(t > 0)) return 0;
+    double a2 = a * a, s2 = sv * sv, D = 1 + s2 * t, iu = a2 / t, u = t / a2;
+    double alpha = iu / D, c2 = 0.5 * s2 * a2 / D - 0.5 * iu;
+    /* image k relative to k = 0 at the same W: |W + 2k| / W exp(-2k(k + W)/u) <= 4001 e^{-x} (W >= 1e-3);
+     * below 1e-13 when x > 38.3 */
+    int ks[5] = {0, -1}, nk = 2;
+    if (2 * (1 + W1) * iu < 38.3) ks[nk++] = 1;
+    if ((8 - 4 * W2) * iu < 38.3) ks[nk++] = -2;
+    if ((8 + 4 * W1) * iu < 38.3) ks[nk++] = 2;
+    double c1k[5], c0k[5], Q1[5], Q2[5], Ck[5], mu[5], R = -INFINITY;
+    for (int i = 0; i < nk; i++) {
+        double k = ks[i];
+        c1k[i] = -vv * a / D - 2 * k * iu;
+        c0k[i] = -0.5 * vv * vv * t / D - 2 * k * k * iu;
+        Q1[i] = (c2 * W1 + c1k[i]) * W1 + c0k[i];
+        Q2[i] = (c2 * W2 + c1k[i]) * W2 + c0k[i];
+        mu[i] = -vv * a * u - 2 * k * D;
+        Ck[i] = (c2 * mu[i] + c1k[i]) * mu[i] + c0k[i];
+        double top = fmax(Q1[i], Q2[i]);
+        if (mu[i] > W1 && mu[i] < W2) top = Ck[i];
+        if (top > R) R = top;
+    }
+    int grad = acc->grad;
+    double T = 0, Ga = 0, Gv = 0, Gs = 0, Gt = 0, P1 = 0, P2 = 0;
+    for (int i = 0; i < nk; i++) {
+        double k = ks[i], J[3] = {0, 0, 0};
+        double e1 = exp(Q1[i] - R), e2 = exp(Q2[i] - R);
+        image_integrals(alpha, mu[i], mu[i] + 2 * k, Ck[i], R, W1, W2, e1, e2, grad, J);
+        T += J[0];
+        if (!grad) continue;
+        P1 += (W1 + 2 * k) * e1;
+        P2 += (W2 + 2 * k) * e2;
+        /* d(c2, c1, c0) / d(a, vv, sv, t) */
+        double iD = 1 / D, iD2 = iD * iD;
+        double c2a = s2 * a * iD - a / t, c1a = -vv * iD - 4 * k * a / t, c0a = -4 * k * k * a / t;
+        double c1v = -a * iD, c0v = -vv * t * iD;
+        double c2s = sv * a2 * iD2, c1s = 2 * sv * t * vv * a * iD2, c0s = sv * t * t * vv * vv * iD2;
+        double c2t = -0.5 * s2 * s2 * a2 * iD2 + 0.5 * iu / t, c1t = vv * a * s2 * iD2 + 2 * k * iu / t,
+               c0t = -0.5 * vv * vv * iD2 + 2 * k * k * iu / t;
+        Ga += c2a * J[2] + c1a * J[1] + c0a * J[0];
+        Gv += c1v * J[1] + c0v * J[0];
+        Gs += c2s * J[2] + c1s * J[1] + c0s * J[0];
+        Gt += c2t * J[2] + c1t * J[1] + c0t * J[0];
+    }
+    if (!(T > 0) || !isfinite(T)) return 0;
+    /* log of wt * (1/sz) * a / (sqrt(2 pi) t^1.5 sqrt(D)) * T e^R */
+    double lv = log(wt * T * a / (sz * t * sqrt(t * D))) - 0.91893853320467274178 + R;
+    if (lv > acc->mx) {
+        double r = acc->mx == -INFINITY ? 0 : exp(acc->mx - lv);
+        acc->S *= r;
+        if (grad)
+            for (int q = 0; q < BLW_GRID_NG; q++) acc->G[q] *= r;
+        acc->mx = lv;
+    }
+    double e = exp(lv - acc->mx);
+    acc->S += e;
+    if (!grad) return 1;
+    double iT = 1 / T;
+    double gt = -1.5 / t - 0.5 * s2 / D + Gt * iT;
+    acc->G[0] += e * (1 / a + Ga * iT);
+    acc->G[1] += e * sg * Gv * iT;
+    acc->G[2] += e * sg * (P2 - P1) * iT;
+    acc->G[3] += e * (-sv * t / D + Gs * iT);
+    acc->G[4] += e * (0.5 * (P1 + P2) * iT - 1 / sz);
+    acc->G[5] += e * gt;
+    acc->G[6] += e * gt * tx;
+    return 1;
+}
+
 /* ---- boundary probabilities and moments --------------------------------------------------------- */
 
 /* wc = 1 - w exactly (see log_dens_lo_c) */

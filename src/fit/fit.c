@@ -2,15 +2,19 @@
  * ordered by fit_study.c; group summaries and permutation tests are in compare.c. This file calls
  * neither of them.
  *
- * Optimiser: GSL's BFGS (vector_bfgs2: Fletcher, Practical Methods of Optimization, 2nd ed., 1987,
- * algorithms 2.6.2 and 2.6.4) on the analytic gradient, in an unconstrained parameterisation where one
- * exists (docs/models.md): intercept-only parameters on the identity link are optimised as
- * log(threshold), logit(start), nondecision = min RT of the cell * logistic(.), and so on; other
- * coefficients are optimised directly (slopes scaled by their regressor's root mean square), with
- * infeasible points returning +inf so the line search backs off. Starting values from EZ-diffusion
- * per cell (Wagenmakers, van der Maas & Grasman 2007, Psychon. Bull. Rev. 14:3-22), several starts,
- * Nelder-Mead (GSL nmsimplex2; Nelder & Mead 1965) as the fallback, then Newton polishing with the
- * observed information.
+ * Optimiser: damped Newton on the analytic gradient (Hessian by forward differences of it, eigenvalues
+ * made positive, backtracking line search; Nocedal & Wright, Numerical Optimization, 2nd ed., 2006,
+ * sec. 3.4), stopping at a Newton decrement (the gradient in standard-error units; Boyd & Vandenberghe,
+ * Convex Optimization, 2004, sec. 9.5.1) of 1e-3, in an unconstrained parameterisation where one exists
+ * (docs/models.md): intercept-only parameters on the identity link are optimised as log(threshold),
+ * logit(start), |x| for drift_sd, start_range and nondecision_range (the likelihood is even in them),
+ * nondecision = min RT of the cell * logistic(.), and so on; other coefficients are optimised directly
+ * (slopes scaled by their regressor's root mean square), with infeasible points returning +inf so the
+ * line search backs off. Starting values from EZ-diffusion per cell (Wagenmakers, van der Maas &
+ * Grasman 2007, Psychon. Bull. Rev. 14:3-22), several starts; GSL's BFGS (vector_bfgs2: Fletcher,
+ * Practical Methods of Optimization, 2nd ed., 1987) where Newton cannot finish and Nelder-Mead (GSL
+ * nmsimplex2; Nelder & Mead 1965) where a start stalls far from a stationary point; then Newton polishing
+ * with the observed information. docs/methods.md ("Optimiser").
  * Inference: observed information from central differences of the analytic gradient, symmetrised,
  * inverted by Cholesky (LAPACKE dpotrf/dpotri); Wald SE, z, p and 95% intervals.
  */
@@ -115,18 +119,25 @@ static int cell_ez(const cell_stats *c, double *v, double *a, double *t0)
 
 /* ---- parameterisation ------------------------------------------------------------------------ */
 
-enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC };
+/* TR_EVEN: coef = |x|, for a variability parameter the density depends on evenly (drift_sd through
+ * drift_sd^2; start_range and nondecision_range as the width of a window centred on start or
+ * nondecision, whose average is an even function of the width): the log-likelihood is then a smooth
+ * even function of x, a maximum at the edge (coef = 0) is an ordinary stationary point at x = 0, and
+ * Newton converges there quadratically instead of creeping toward log(0) = -inf. */
+enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC, TR_EVEN };
 
 typedef struct {
     int type;
     double lo, hi; /* TR_LOGISTIC: coef = lo + (hi - lo) * logistic(x) */
     double scale;  /* TR_RAW: coef = x / scale */
+    int edge;      /* a variability parameter whose maximum may lie at its lower edge (x -> -inf) */
 } transform;
 
 static double to_coef(const transform *t, double x)
 {
     switch (t->type) {
     case TR_EXP: return exp(x);
+    case TR_EVEN: return fabs(x);
     case TR_LOGISTIC: return t->lo + (t->hi - t->lo) / (1 + exp(-x));
     default: return x / t->scale;
     }
@@ -136,6 +147,7 @@ static double dcoef_dx(const transform *t, double x)
 {
     switch (t->type) {
     case TR_EXP: return exp(x);
+    case TR_EVEN: return x < 0 ? -1.0 : 1.0;
     case TR_LOGISTIC: {
         double s = 1 / (1 + exp(-x));
         return (t->hi - t->lo) * s * (1 - s);
@@ -148,6 +160,7 @@ static double to_x(const transform *t, double c)
 {
     switch (t->type) {
     case TR_EXP: return c > 0 ? log(c) : -30;
+    case TR_EVEN: return fabs(c);
     case TR_LOGISTIC: {
         double u = (c - t->lo) / (t->hi - t->lo);
         if (u < 1e-12) u = 1e-12;
@@ -284,7 +297,237 @@ done:
     return best;
 }
 
+/* ---- Newton's method in the optimiser's parameterisation --------------------------------------- */
+
+/* Stop when the Newton decrement in standard-error units, sqrt(n g' H^-1 g) with g and H the
+ * gradient and Hessian of the per-trial objective, is below this (the log-likelihood is then within
+ * about half its square, 5e-7, of the maximum). */
+#define BL_NEWTON_DECREMENT 1e-3
+#define BL_NEWTON_MAX_ITER 30
+
+typedef struct {
+    double *g, *H, *ev, *lam, *p, *xt, *gt, *gh;
+} newton_ws;
+
+/* f and g (per-trial objective) at x; 0 when x is infeasible. */
+static int eval_x(objective *o, const double *x, double *f, double *g)
+{
+    gsl_vector_const_view v = gsl_vector_const_view_array(x, o->k);
+    evaluate_point(o, &v.vector);
+    *f = o->cache_f;
+    memcpy(g, o->cache_g, o->k * sizeof *g);
+    return isfinite(*f);
+}
+
+/* Hessian of the objective at x by forward differences of the analytic gradient g (k evaluations;
+ * a backward step where the forward one is infeasible), symmetrised. Returns 0 when neither is
+ * feasible for some coordinate. */
+static int hessian_x(objective *o, double *x, const double *g, newton_ws *w)
+{
+    size_t k = o->k;
+    for (size_t j = 0; j < k; j++) {
+        double xj = x[j], h = 1e-5 * fmax(1.0, fabs(xj)), f;
+        int ok = 0;
+        for (int side = 0; side < 2 && !ok; side++) {
+            double hs = side ? -h : h;
+            x[j] = xj + hs;
+            hs = x[j] - xj; /* the step actually represented */
+            ok = eval_x(o, x, &f, w->gh);
+            if (ok)
+                for (size_t i = 0; i < k; i++) w->H[i * k + j] = (w->gh[i] - g[i]) / hs;
+        }
+        x[j] = xj;
+        if (!ok) return 0;
+    }
+    for (size_t i = 0; i < k; i++)
+        for (size_t j = i + 1; j < k; j++)
+            w->H[i * k + j] = w->H[j * k + i] = 0.5 * (w->H[i * k + j] + w->H[j * k + i]);
+    return 1;
+}
+
+/* Eigenvalues of the forward-difference Hessian below this fraction of the largest are not resolved
+ * (its truncation error is ~1e-5 of the curvature scale, its rounding ~1e-10 / 1e-5 of the gradient
+ * noise): they count as 0 -- a coefficient the likelihood does not depend on, or one at the edge of
+ * its range through its logistic map -- and are floored there. */
+#define BL_NEWTON_ZERO_EIGEN 1e-7
+
+/* Eigen-decomposition of H (w->ev: eigenvectors in columns, w->lam: eigenvalues ascending); the
+ * decrement sqrt(n g' H^-1 g) when H is positive semi-definite up to BL_NEWTON_ZERO_EIGEN (else
+ * INFINITY), and the step p = -|H|^-1 g with eigenvalues replaced by their absolute values. Floored
+ * eigenvalues add to the decrement only as far as the gradient points along them. */
+static int newton_direction(const objective *o, const double *g, newton_ws *w, double *decrement)
+{
+    size_t k = o->k;
+    memcpy(w->ev, w->H, k * k * sizeof *w->ev);
+    if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)k, w->ev, (lapack_int)k, w->lam) != 0) return 0;
+    double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
+    if (!(lmax > 0) || !isfinite(lmax)) return 0;
+    double floor_ = BL_NEWTON_ZERO_EIGEN * lmax, d2 = 0;
+    for (size_t i = 0; i < k; i++) w->p[i] = 0;
+    for (size_t e = 0; e < k; e++) {
+        double vg = 0;
+        for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
+        double l = fmax(fabs(w->lam[e]), floor_);
+        d2 += vg * vg / l;
+        for (size_t i = 0; i < k; i++) w->p[i] -= w->ev[i * k + e] * vg / l;
+    }
+    *decrement = w->lam[0] >= -floor_ ? sqrt(fmax(d2, 0) / o->inv_n) : INFINITY;
+    return 1;
+}
+
+/* The decrement at a new gradient with the previous Hessian's eigen-decomposition (no evaluation). */
+static double decrement_with(const objective *o, const double *g, const newton_ws *w)
+{
+    size_t k = o->k;
+    double floor_ = BL_NEWTON_ZERO_EIGEN * fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
+    if (!(w->lam[0] >= -floor_)) return INFINITY;
+    double d2 = 0;
+    for (size_t e = 0; e < k; e++) {
+        double vg = 0;
+        for (size_t i = 0; i < k; i++) vg += w->ev[i * k + e] * g[i];
+        d2 += vg * vg / fmax(w->lam[e], floor_);
+    }
+    return sqrt(fmax(d2, 0) / o->inv_n);
+}
+
+/* Backtracking (Armijo) along w->p from x, steps no longer than radius in any coordinate. On success
+ * x, *f and g move to the new point and the step length used is returned (*first: the first trial
+ * step was taken); 0 when no step lowers f. */
+static double line_search(objective *o, double *x, double *f, double *g, newton_ws *w, double radius, int *first)
+{
+    size_t k = o->k;
+    double pmax = 0, slope = 0;
+    for (size_t i = 0; i < k; i++) {
+        pmax = fmax(pmax, fabs(w->p[i]));
+        slope += g[i] * w->p[i];
+    }
+    if (!(slope < 0)) return 0;
+    double t = pmax > radius ? radius / pmax : 1.0;
+    for (int tries = 0; tries < 16; tries++, t *= 0.5) {
+        for (size_t i = 0; i < k; i++) w->xt[i] = x[i] + t * w->p[i];
+        double ft;
+        if (eval_x(o, w->xt, &ft, w->gt) && ft <= *f + 1e-4 * t * slope) {
+            memcpy(x, w->xt, k * sizeof *x);
+            memcpy(g, w->gt, k * sizeof *g);
+            *f = ft;
+            *first = tries == 0;
+            return t * pmax;
+        }
+    }
+    return 0;
+}
+
+/* A maximum of contamination at its lower edge lies at x -> -inf of its logistic map, where the
+ * objective behaves like e^x times the one-sided derivative: each Newton step moves x by about
+ * -1 and the decrement falls only by e^-1/2 per step. When the step for such a coordinate is below
+ * -0.5, try the full step with that coordinate moved 16 further toward the edge (c x 1e-7), kept only
+ * when it satisfies the same sufficient-decrease condition as the line search. Returns 1 when taken. */
+static int edge_jump(objective *o, double *x, double *f, double *g, newton_ws *w)
+{
+    size_t k = o->k;
+    int any = 0;
+    double slope = 0;
+    for (size_t i = 0; i < k; i++) {
+        int jump = o->tr[i].edge && w->p[i] < -0.5;
+        any |= jump;
+        w->xt[i] = x[i] + w->p[i] + (jump ? -16.0 : 0.0);
+        slope += g[i] * (w->xt[i] - x[i]);
+    }
+    double ft;
+    if (!any || !(slope < 0) || !eval_x(o, w->xt, &ft, w->gt) || !(ft <= *f + 1e-4 * slope)) return 0;
+    memcpy(x, w->xt, k * sizeof *x);
+    memcpy(g, w->gt, k * sizeof *g);
+    *f = ft;
+    return 1;
+}
+
+/* Damped Newton on the objective from x (updated in place): Hessian by forward differences of the
+ * analytic gradient, eigenvalue-modified step, backtracking line search, step length limited by a
+ * radius that doubles after full steps. Stops when the Newton decrement is below BL_NEWTON_DECREMENT
+ * (checked with the last Hessian after each step, so a converged fit needs no further Hessian).
+ * Returns the minimum found (+inf when x is infeasible); *converged says whether it stopped there.
+ * A maximum of drift_sd, start_range or nondecision_range at 0 is an ordinary stationary point (TR_EVEN);
+ * one of contamination at 0 is approached by edge_jump. */
+static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *converged)
+{
+    size_t k = o->k;
+    *converged = 0;
+    double *buf = malloc((2 * k * k + 7 * k) * sizeof *buf);
+    if (!buf) {
+        o->out_of_memory = 1;
+        return GSL_POSINF;
+    }
+    newton_ws w;
+    double *next = buf;
+    double **slots[] = {&w.g, &w.lam, &w.p, &w.xt, &w.gt, &w.gh};
+    for (size_t i = 0; i < sizeof slots / sizeof *slots; i++, next += k) *slots[i] = next;
+    w.H = next;
+    w.ev = next + k * k;
+    double *x = next + 2 * k * k;
+    for (size_t j = 0; j < k; j++) x[j] = gsl_vector_get(xv, j);
+    double f, radius = 2.0, dec = INFINITY;
+    if (!eval_x(o, x, &f, w.g)) {
+        free(buf);
+        return GSL_POSINF;
+    }
+    for (int it = 0; it < BL_NEWTON_MAX_ITER; it++) {
+        (*iterations)++;
+        if (!hessian_x(o, x, w.g, &w) || !newton_direction(o, w.g, &w, &dec)) break;
+        if (dec < BL_NEWTON_DECREMENT) {
+            *converged = 1;
+            break;
+        }
+        double f_before = f;
+        int first = 0;
+        double moved = dec < 10 && edge_jump(o, x, &f, w.g, &w) ? 1.0 : 0.0;
+        if (moved > 0) first = 1;
+        else moved = line_search(o, x, &f, w.g, &w, radius, &first);
+        if (!(moved > 0)) break;
+        if (first && moved >= radius * 0.999) radius = fmin(2 * radius, 64.0); /* capped and accepted */
+        else if (!first) radius = fmax(moved, 0.25);
+        /* converged by the decrement with the last Hessian, or within 10x of it where the steps no
+         * longer change the objective (log-likelihood gain below 1e-12 per trial: rounding) */
+        if ((decrement_with(o, w.g, &w) < BL_NEWTON_DECREMENT && dec < 1) ||
+            (dec < 10 * BL_NEWTON_DECREMENT && f_before - f < 1e-12)) {
+            *converged = 1;
+            break;
+        }
+    }
+    for (size_t j = 0; j < k; j++) gsl_vector_set(xv, j, x[j]);
+    free(buf);
+    return f;
+}
+
 /* ---- inference ------------------------------------------------------------------------------- */
+
+/* 1 when coefficient j is an intercept-only identity-link drift_sd, start_range or nondecision_range:
+ * the likelihood is an even function of it (see TR_EVEN), and values below 0 are read as |value|. */
+static int even_coef(const bl_model *m, size_t j)
+{
+    const bl_coef_info *ci = &m->coef[j];
+    const bl_param_design *d = &m->par[ci->param];
+    return ci->slope < 0 && !d->n_slopes && d->link == BL_LINK_IDENTITY &&
+           (ci->param == BL_DRIFT_SD || ci->param == BL_START_RANGE || ci->param == BL_NONDECISION_RANGE);
+}
+
+/* Log-likelihood and gradient (g may be NULL) of the even extension at c: the even coefficients are
+ * taken as |c_j| and their derivatives change sign with c_j, so central differences and Newton steps
+ * work across 0 (an estimate at the edge). c is restored before returning. */
+static double eval_even(bl_likelihood *lik, const bl_model *m, double *c, double *g)
+{
+    size_t flipped[BL_NPARAM], nf = 0; /* even coefficients are intercepts of one parameter each */
+    for (size_t j = 0; j < m->n_coef && nf < BL_NPARAM; j++)
+        if (c[j] < 0 && even_coef(m, j)) {
+            c[j] = -c[j];
+            flipped[nf++] = j;
+        }
+    double ll = bl_likelihood_eval(lik, c, g);
+    for (size_t i = 0; i < nf; i++) {
+        c[flipped[i]] = -c[flipped[i]];
+        if (g) g[flipped[i]] = -g[flipped[i]];
+    }
+    return ll;
+}
 
 /* Observed information I = -H by central differences of the analytic gradient, symmetrised.
  * *found = 0 when a step leaves the feasible region even after shrinking. BL_ERR_NOMEM when memory
@@ -311,9 +554,9 @@ static bl_status observed_information(bl_likelihood *lik, const bl_model *m, con
         int done = 0;
         for (int shrink = 0; shrink < 6 && !done; shrink++, h /= 4) {
             c[j] = coef[j] + h;
-            double lp = bl_likelihood_eval(lik, c, gp);
+            double lp = eval_even(lik, m, c, gp);
             c[j] = coef[j] - h;
-            double lm = bl_likelihood_eval(lik, c, gm);
+            double lm = eval_even(lik, m, c, gm);
             c[j] = coef[j];
             if (isfinite(lp) && isfinite(lm)) {
                 for (size_t i = 0; i < k; i++) info[i * k + j] = -(gp[i] - gm[i]) / (2 * h);
@@ -446,15 +689,16 @@ static bl_status plan_fit(const bl_model *m, transform *tr, double *start, bl_er
         if (d->n_slopes) continue;
         /* Intercept-only parameters on the identity link: an exact unconstrained parameterisation. */
         switch (ci->param) {
-        case BL_THRESHOLD:
+        case BL_THRESHOLD: tr[j].type = TR_EXP; break;
         case BL_DRIFT_SD:
-        case BL_NONDECISION_RANGE: tr[j].type = TR_EXP; break;
-        case BL_START:
         case BL_START_RANGE:
+        case BL_NONDECISION_RANGE: tr[j].type = TR_EVEN; break;
+        case BL_START:
         case BL_CONTAMINATION:
             tr[j].type = TR_LOGISTIC;
             tr[j].lo = 0;
             tr[j].hi = 1;
+            tr[j].edge = ci->param == BL_CONTAMINATION;
             break;
         case BL_NONDECISION:
             if (!st_free && !p0_free) {
@@ -474,7 +718,7 @@ typedef struct {
     double ll;
     double *coef;
     size_t iterations;
-    int used_simplex;
+    int used_simplex; /* the method: 0 Newton, 1 Newton after BFGS, 2 Nelder-Mead alone, 3 Nelder-Mead fallback */
 } start_result;
 
 /* The optimiser part: maximise from the given starts. best->coef must hold k values. */
@@ -491,6 +735,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
         goto done;
     }
     for (size_t j = 0; j < k; j++) gsl_vector_set(x0, j, to_x(&o->tr[j], first[j]));
+    int converged_any = 0; /* some start has reached a maximum by Newton's stopping rule */
     for (int s = 0; s < n_starts; s++) {
         gsl_vector_memcpy(x, x0);
         if (s > 0) {
@@ -500,6 +745,7 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
                 for (size_t j = 0; j < k; j++) {
                     double xj = gsl_vector_get(x0, j);
                     double sd = o->tr[j].type == TR_RAW && o->m->coef[j].slope < 0 ? spread * fmax(fabs(xj), 0.5)
+                                : o->tr[j].type == TR_EVEN                         ? spread * fmax(fabs(xj), 0.05)
                                                                                    : spread * 0.5;
                     gsl_vector_set(x, j, xj + gsl_ran_gaussian(rng, sd));
                 }
@@ -527,13 +773,26 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
             }
             continue;
         }
-        double f = run_bfgs(o, x, &iters);
+        int newton_done = 0;
+        double f = run_newton(o, x, &iters, &newton_done);
+        /* A perturbed start that Newton could not finish, stuck below a maximum already found, has
+         * shown what it can (a disagreeing start); the fallbacks are for starts that may lead higher. */
+        int hopeless = s > 0 && converged_any && !(-f / o->inv_n > best->ll);
+        if (!newton_done && !o->out_of_memory && !hopeless) {
+            /* Newton stalled (a Hessian that cannot be evaluated, or no descent): BFGS from the
+             * best point so far (the start when even that was infeasible), then Newton again */
+            if (!isfinite(f)) gsl_vector_memcpy(x, x0);
+            double fb = run_bfgs(o, x, &iters);
+            if (isfinite(fb)) f = run_newton(o, x, &iters, &newton_done);
+            if (!(f <= fb)) f = fb;
+            simplex = 1; /* newton+bfgs2 */
+        }
         /* Fallback: derivative-free search when BFGS could not start or stalled far from a
          * stationary point, then BFGS again from where it ended. */
         gsl_vector *g = gsl_vector_alloc(k);
         if (!g) o->out_of_memory = 1;
-        int stalled = 1;
-        if (g && isfinite(f)) {
+        int stalled = !newton_done && !hopeless;
+        if (stalled && g && isfinite(f)) {
             double fv;
             obj_fdf(x, o, &fv, g);
             /* near a stationary point (per-trial gradient 1e-3, i.e. within Newton's reach) the
@@ -554,13 +813,14 @@ static void optimise(objective *o, gsl_rng *rng, int n_starts, int simplex_only,
                 if (fs < f) {
                     f = fs;
                     gsl_vector_memcpy(x, xs);
-                    simplex = 1;
+                    simplex = 3;
                 }
                 gsl_vector_free(xs);
             }
         }
         double ll = isfinite(f) ? -f / o->inv_n : -INFINITY;
         lls[s] = ll;
+        converged_any |= newton_done;
         if (ll > best->ll) {
             best->ll = ll;
             best->iterations = iters;
@@ -653,7 +913,8 @@ static void record_optimum(const bl_model *m, const start_result *best, int n_st
     res->log_likelihood = ll;
     res->parameters = m->n_coef;
     res->trials = m->n;
-    res->diag.method = best->used_simplex == 2 ? "nmsimplex2" : best->used_simplex ? "bfgs2+nmsimplex2" : "bfgs2";
+    static const char *const names[] = {"newton", "newton+bfgs2", "nmsimplex2", "newton+bfgs2+nmsimplex2"};
+    res->diag.method = names[best->used_simplex & 3];
     res->diag.iterations = best->iterations;
     res->diag.starts = n_starts;
     res->diag.starts_agreed = agreed;
@@ -687,7 +948,7 @@ static bl_status newton_polish(objective *o, newton_state *s, double *decrement,
         for (size_t i = 0; i < k; i++)
             for (size_t j = 0; j < k; j++) nd2 += s->grad[i] * s->cov[i * k + j] * s->grad[j];
         *decrement = sqrt(fmax(nd2, 0));
-        if (*decrement < 1e-4 || polish == 7) break;
+        if (*decrement < 2 * BL_NEWTON_DECREMENT || polish == 7) break;
         double ll2 = -INFINITY;
         for (int half = 0; half < 4 && !(ll2 > s->ll); half++) {
             double scale = ldexp(1.0, -half);
@@ -696,9 +957,14 @@ static bl_status newton_polish(objective *o, newton_state *s, double *decrement,
                 for (size_t j = 0; j < k; j++) step += s->cov[i * k + j] * s->grad[j];
                 o->coef[i] = s->coef[i] + scale * step;
             }
-            ll2 = bl_likelihood_eval(o->lik, o->coef, o->grad);
+            ll2 = eval_even(o->lik, o->m, o->coef, o->grad);
         }
         if (!(ll2 > s->ll)) break;
+        for (size_t i = 0; i < k; i++)
+            if (o->coef[i] < 0 && even_coef(o->m, i)) { /* back to the reported |value| */
+                o->coef[i] = -o->coef[i];
+                o->grad[i] = -o->grad[i];
+            }
         s->ll = ll2;
         memcpy(s->coef, o->coef, k * sizeof *s->coef);
         memcpy(s->grad, o->grad, k * sizeof *s->grad);

@@ -50,8 +50,9 @@ typedef struct {
 } bl_coefficient;
 
 typedef struct {
-    const char *method;      /* "bfgs2", "bfgs2+nmsimplex2" when the fallback was used,
-                                       "nmsimplex2" with simplex_only */
+    const char *method;      /* "newton", "newton+bfgs2", "newton+bfgs2+nmsimplex2" (fallbacks used),
+                                "nmsimplex2" with simplex_only; hierarchical: "laplace+bfgs2" or
+                                "gauss-hermite+bfgs2" */
     int converged;           /* gradient small in SE units and information positive definite */
     double gradient_norm;    /* max |d loglik / d coef| at the optimum */
     double newton_decrement; /* sqrt(g' H^-1 g): distance to the optimum in SE units; NAN if no H */
@@ -141,6 +142,9 @@ typedef struct {
     size_t n_variance;
     bl_variance_component *variance;
     double *correlation; /* n_variance x n_variance (correlated effects), else NULL */
+    double *separate_estimate; /* n_participants x fit.n_coef: each participant's own (separate) fit of the
+                                  model, for the shrinkage figure; NAN where a participant's fit lacks the
+                                  coefficient or failed; NULL when no separate fit could be built */
     int quadrature;      /* nodes per dimension; 1 = Laplace */
     size_t n_permutation;
     bl_permutation_test *permutation;

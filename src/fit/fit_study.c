@@ -14,6 +14,7 @@
 #include "core/strutil.h"
 #include "core/gsl_guard.h"
 
+#include <gsl/gsl_cdf.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -79,6 +80,7 @@ static void model_result_free(bl_model_result *r)
     for (size_t i = 0; i < r->n_variance; i++) free(r->variance[i].term);
     free(r->variance);
     free(r->correlation);
+    free(r->separate_estimate);
     for (size_t i = 0; i < r->n_group; i++) {
         free(r->group[i].term);
         free(r->group[i].level);
@@ -149,9 +151,69 @@ static void study_fit_free(study_fit *sf)
     sf->sel = NULL;
 }
 
+typedef struct {
+    double rt;
+    size_t participant;
+} rt_entry;
+
+static int rt_entry_cmp(const void *a, const void *b)
+{
+    double x = ((const rt_entry *)a)->rt, y = ((const rt_entry *)b)->rt;
+    return (x > y) - (x < y);
+}
+
+/* Pooled fits of several participants: a quick check that they differ (Kruskal & Wallis 1952 test of
+ * the kept RTs across participants, average ranks for ties), warned about at p < 0.001 with the way to
+ * fit them hierarchically. */
+static bl_status warn_if_participants_differ(const bl_trials *t, bl_warnings *warn, bl_error *err)
+{
+    if (t->n_participants < 2) return BL_OK;
+    rt_entry *e = malloc((t->n ? t->n : 1) * sizeof *e);
+    double *rank_sum = calloc(t->n_participants, sizeof *rank_sum);
+    size_t *count = calloc(t->n_participants, sizeof *count);
+    if (!e || !rank_sum || !count) {
+        free(e), free(rank_sum), free(count);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    size_t n = 0;
+    for (size_t i = 0; i < t->n; i++)
+        if (!(t->excluded && t->excluded[i]) && isfinite(t->rt[i])) e[n++] = (rt_entry){t->rt[i], t->participant[i]};
+    qsort(e, n, sizeof *e, rt_entry_cmp);
+    for (size_t i = 0; i < n;) {
+        size_t j = i;
+        while (j < n && e[j].rt == e[i].rt) j++;
+        double rank = 0.5 * (double)(i + 1 + j); /* average of ranks i+1 .. j */
+        for (size_t k = i; k < j; k++) {
+            rank_sum[e[k].participant] += rank;
+            count[e[k].participant]++;
+        }
+        i = j;
+    }
+    double h = 0;
+    size_t groups = 0;
+    for (size_t g = 0; g < t->n_participants; g++)
+        if (count[g]) {
+            h += rank_sum[g] * rank_sum[g] / (double)count[g];
+            groups++;
+        }
+    double N = (double)n;
+    h = 12.0 / (N * (N + 1)) * h - 3 * (N + 1);
+    if (groups >= 2 && n > groups) {
+        double p = gsl_cdf_chisq_Q(h, (double)(groups - 1));
+        if (p < 1e-3)
+            bl_warnings_add(warn,
+                            "participants pooled, but their RTs differ (Kruskal-Wallis H = %.1f, df = %zu, p = %.2g): "
+                            "pooled intervals are too narrow for a claim about the population; set fit.participants "
+                            "to \"hierarchical\" (docs/models.md section 8)",
+                            h, groups - 1, p);
+    }
+    free(e), free(rank_sum), free(count);
+    return BL_OK;
+}
+
 /* The selected models in study order, and the empty result set. */
 static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_trials *trials,
-                                const bl_fit_options *opt_in, bl_error *err)
+                                const bl_fit_options *opt_in, bl_warnings *warn, bl_error *err)
 {
     memset(sf, 0, sizeof *sf);
     sf->study = study;
@@ -176,12 +238,10 @@ static bl_status study_fit_init(study_fit *sf, const bl_study *study, const bl_t
     }
     bl_fit_set *set = sf->set;
     set->mode = bl_study_participants_mode(study, trials->n_participants);
-    if (set->mode == BL_PARTICIPANTS_HIERARCHICAL && sf->opt.permutations > 0)
-        return bl_error_set(err, BL_ERR_USAGE,
-                            "--permutations %zu: permutation tests refit pooled or separate fits; with "
-                            "fit.participants \"hierarchical\" use the Wald or likelihood-ratio tests, or set "
-                            "\"participants\": \"pooled\" for permutation tests",
-                            sf->opt.permutations);
+    if (set->mode == BL_PARTICIPANTS_POOLED) {
+        bl_status st = warn_if_participants_differ(trials, warn, err);
+        if (st) return st;
+    }
     set->permutations = sf->opt.permutations;
     set->seed = sf->opt.seed;
     set->threads = sf->opt.threads;
@@ -307,6 +367,51 @@ done:
     return st;
 }
 
+/* Hierarchical model q: each participant's own fit of the model (what the shrinkage figure compares
+ * the empirical-Bayes estimates with). A participant whose design cannot be fitted alone (a level
+ * missing, a constant regressor) leaves the whole comparison out: it is a figure, not an estimate. */
+static bl_status separate_for_shrinkage(study_fit *sf, size_t q, bl_error *err)
+{
+    bl_model_result *r = &sf->set->models[q];
+    const bl_model_spec *spec = &sf->study->models[sf->sel[q]];
+    bl_unit_set u;
+    bl_error ignored = {0};
+    if (bl_build_units(spec, sf->trials, BL_PARTICIPANTS_SEPARATE, &sf->opt, &u, NULL, NULL, &ignored)) return BL_OK;
+    bl_status st = BL_OK;
+    size_t k = r->fit.n_coef;
+    if (u.n_units != r->n_participants) goto done;
+    if (!(r->separate_estimate = malloc(u.n_units * (k ? k : 1) * sizeof(double)))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
+    bl_fit_options one = sf->opt;
+    one.progress = NULL;
+    one.starts = 1;
+#ifdef _OPENMP
+    int nt = one.threads > 0 ? one.threads : omp_get_max_threads();
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt > 0 ? nt : 1) if (u.n_units > 1)
+#endif
+    for (size_t i = 0; i < u.n_units; i++) {
+        bl_fit_result fr;
+        bl_error e = {0};
+        double *row = r->separate_estimate + i * k;
+        for (size_t c = 0; c < k; c++) row[c] = NAN;
+        if (bl_fit_core(u.models[i], u.liks[i], &one, 1, NULL, 0, &fr, u.coef[i], &e)) continue;
+        for (size_t c = 0; c < k; c++) {
+            const bl_coefficient *pc = &r->fit.coef[c];
+            for (size_t j = 0; j < bl_model_n_coef(u.models[i]); j++) {
+                const bl_coef_info *ci = bl_model_coef(u.models[i], j);
+                if (ci->param == pc->param && !strcmp(ci->term, pc->term) && !strcmp(ci->level, pc->level))
+                    row[c] = u.coef[i][j];
+            }
+        }
+        bl_fit_result_clear(&fr);
+    }
+done:
+    bl_unit_set_free(&u);
+    return st;
+}
+
 /* Step 2b, hierarchical mode: from each model's pooled fit, the fit with participants' effects
  * integrated out (the pooled fit is the starting point and is then discarded). */
 static bl_status run_hierarchical_fits(study_fit *sf, bl_warnings *warn, bl_error *err)
@@ -320,6 +425,7 @@ static bl_status run_hierarchical_fits(study_fit *sf, bl_warnings *warn, bl_erro
         bl_status st = bl_hier_fit(sf->hier[q], &sf->opt, &pooled, sf->units[q].coef[0], r, &sf->part_coef[q], warn,
                                    err);
         bl_fit_result_clear(&pooled);
+        if (!st) st = separate_for_shrinkage(sf, q, err);
         if (st) return st;
         if (sf->opt.progress) sf->opt.progress(sf->opt.progress_user, r->name, q + 1, sf->n_sel);
     }
@@ -374,7 +480,8 @@ static bl_status summarise_hierarchical(study_fit *sf, size_t q, int *nondecisio
         if (st) return st;
     }
     if (bl_model_param_free(m, BL_NONDECISION) && !bl_model_param_free(m, BL_NONDECISION_RANGE)) *nondecision_note = 1;
-    return BL_OK;
+    return bl_hier_permutation_tests(sf->hier[q], sf->units[q].models[0], &sf->study->models[sf->sel[q]], sf->trials,
+                                     &sf->opt, r, err);
 }
 
 /* Step 3, for model q: warnings, predictions, totals, group summary, permutation tests. */
@@ -407,6 +514,22 @@ static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note,
     return bl_permutation_tests(sf->study, &sf->study->models[sf->sel[q]], sf->trials, &sf->opt, u, r, err);
 }
 
+/* Hierarchical: every term that varies in the base model varies in the extended one too. */
+static int effects_nested(const bl_hier *base, const bl_hier *ext)
+{
+    for (size_t a = 0; a < bl_hier_effects(base); a++) {
+        bl_param pa, pb;
+        const char *la = bl_hier_effect_label(base, a, &pa);
+        int found = 0;
+        for (size_t b = 0; b < bl_hier_effects(ext) && !found; b++) {
+            const char *lb = bl_hier_effect_label(ext, b, &pb);
+            found = pa == pb && !strcmp(la, lb);
+        }
+        if (!found) return 0;
+    }
+    return 1;
+}
+
 /* Step 4: nesting for the likelihood-ratio test. The base model must be fitted, and nested unit by unit. */
 static bl_status mark_nesting(study_fit *sf, bl_error *err)
 {
@@ -423,6 +546,7 @@ static bl_status mark_nesting(study_fit *sf, bl_error *err)
             bl_status st = bl_model_nested_in(sf->units[b].models[i], sf->units[q].models[i], &nested, err);
             if (st) return st;
         }
+        if (nested && set->mode == BL_PARTICIPANTS_HIERARCHICAL) nested = effects_nested(sf->hier[b], sf->hier[q]);
         r->nested = nested && set->models[b].parameters < r->parameters;
     }
     return BL_OK;
@@ -437,7 +561,7 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     if (st) return st;
     study_fit sf;
     int nondecision_note = 0;
-    if ((st = study_fit_init(&sf, study, trials, opt, err))) goto fail;
+    if ((st = study_fit_init(&sf, study, trials, opt, warn, err))) goto fail;
     /* Data the model cannot use (identical RTs) stop here; data that weaken estimates get warnings. */
     if ((st = bl_screen_trials(study, trials, sf.sel, sf.n_sel, warn, err))) goto fail;
     if ((st = build_designs(&sf, warn, err))) goto fail;

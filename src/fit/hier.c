@@ -44,6 +44,9 @@
 /* Second-difference step of the observed information, in x units. */
 #define HIER_INFO_STEP 2e-2
 #define HIER_OUTER_ITER 400
+/* Marginal-likelihood evaluations one maximisation may spend (a fit that needs more is reported
+ * not converged rather than running on). */
+#define HIER_OUTER_BUDGET 5000
 #define HIER_MAX_EFFECTS 12
 
 typedef struct {
@@ -53,6 +56,8 @@ typedef struct {
     double *z;      /* conditional mode of the standardised effects (warm start), q */
     double *theta, *grad, *gp, *gm, *tmp;
     double *terms; /* n_grid: the log terms of the quadrature sum */
+    double *K;     /* q x p: the Hessian of l along each effect (participant_hessian) */
+    double *th;    /* p: a differenced point (participant_gradient) */
     double G[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS], H[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
     double R[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS]; /* Cholesky factor of H at the mode */
     double ll_cond;                                /* l_j at the mode */
@@ -74,6 +79,10 @@ struct bl_hier {
     double *psi0, *scale;
     size_t *free_idx, n_free;
     double *info_hat, *psi_hat; /* observed information (x units) at the estimate psi_hat, for profiles */
+    double *psi_est;            /* the estimate, for refits (permutation tests) */
+    double *pooled_coef;        /* the pooled fit's coefficients (feasible with no spread) */
+    double *per_part;           /* J x d: each participant's gradient, summed in participant order */
+    int nomem;                  /* an allocation failed on a path without a status: the fit reports it */
 };
 
 /* ---- small dense algebra (q <= HIER_MAX_EFFECTS) ---- */
@@ -159,12 +168,14 @@ static double participant_h(const bl_hier *h, hier_part *pp, const double *beta,
     return ll - 0.5 * zz;
 }
 
-/* G = Z' (d2 l / dtheta2) Z at pp->theta by central differences of the analytic gradient; then
- * H = I - L' G L. Returns 0 when a differenced point is infeasible. */
+/* K = (d2 l / dtheta2) Z (p x q, stored by effect: K[r * p + m]) at pp->theta by central differences
+ * of the analytic gradient (one-sided, from pp->grad at theta, when a side is infeasible: the
+ * nondecision time can sit within a step of the fastest RT); G = Z' K; H = I - L' G L. Returns 0 when
+ * neither side is feasible. */
 static int participant_hessian(const bl_hier *h, hier_part *pp, const double *L)
 {
-    size_t q = h->q;
-    memcpy(pp->tmp, pp->theta, h->p * sizeof *pp->tmp);
+    size_t q = h->q, p = h->p;
+    memcpy(pp->tmp, pp->theta, p * sizeof *pp->tmp);
     for (size_t r = 0; r < q; r++) {
         const bl_hier_effect *e = &h->eff[r];
         for (size_t i = 0; i < e->n; i++) pp->tmp[e->coef[i]] += HIER_HESS_STEP;
@@ -172,14 +183,18 @@ static int participant_hessian(const bl_hier *h, hier_part *pp, const double *L)
         for (size_t i = 0; i < e->n; i++) pp->tmp[e->coef[i]] -= 2 * HIER_HESS_STEP;
         double lm = bl_likelihood_eval(pp->lik, pp->tmp, pp->gm);
         for (size_t i = 0; i < e->n; i++) pp->tmp[e->coef[i]] = pp->theta[e->coef[i]];
-        if (!isfinite(lp) || !isfinite(lm)) return 0;
+        double *k = pp->K + r * p;
+        if (isfinite(lp) && isfinite(lm))
+            for (size_t m = 0; m < p; m++) k[m] = (pp->gp[m] - pp->gm[m]) / (2 * HIER_HESS_STEP);
+        else if (isfinite(lp))
+            for (size_t m = 0; m < p; m++) k[m] = (pp->gp[m] - pp->grad[m]) / HIER_HESS_STEP;
+        else if (isfinite(lm))
+            for (size_t m = 0; m < p; m++) k[m] = (pp->grad[m] - pp->gm[m]) / HIER_HESS_STEP;
+        else return 0;
         for (size_t s = 0; s < q; s++) {
             double d = 0;
-            for (size_t i = 0; i < h->eff[s].n; i++) {
-                size_t c = h->eff[s].coef[i];
-                d += pp->gp[c] - pp->gm[c];
-            }
-            pp->G[s * q + r] = d / (2 * HIER_HESS_STEP);
+            for (size_t i = 0; i < h->eff[s].n; i++) d += k[h->eff[s].coef[i]];
+            pp->G[s * q + r] = d;
         }
     }
     for (size_t r = 0; r < q; r++)
@@ -203,8 +218,16 @@ static int participant_marginal(const bl_hier *h, hier_part *pp, const double *b
     double *z = pp->z, gz[HIER_MAX_EFFECTS], step[HIER_MAX_EFFECTS], zn[HIER_MAX_EFFECTS];
     double f = participant_h(h, pp, beta, L, z, gz);
     if (!isfinite(f)) {
-        memset(z, 0, q * sizeof *z);
-        f = participant_h(h, pp, beta, L, z, gz);
+        /* The warm start left the feasible region (e.g. nondecision above this participant's fastest
+         * RT): try no offset, then the warm start's direction further out (a participant whose mode
+         * lies beyond the population value on the feasible side). */
+        double warm[HIER_MAX_EFFECTS];
+        memcpy(warm, z, q * sizeof *warm);
+        static const double scale[] = {0, 1.5, 2, 3, 5, 8};
+        for (size_t k = 0; k < sizeof scale / sizeof *scale && !isfinite(f); k++) {
+            for (size_t c = 0; c < q; c++) z[c] = scale[k] * warm[c];
+            f = participant_h(h, pp, beta, L, z, gz);
+        }
         if (!isfinite(f)) return 0;
     }
     int found = 0;
@@ -274,6 +297,157 @@ static int participant_marginal(const bl_hier *h, hier_part *pp, const double *b
     participant_h(h, pp, beta, L, z, NULL); /* leave theta and ll_cond at the mode */
     pp->m = best + log(s) - logdet_half;
     return isfinite(pp->m);
+}
+
+/* Gradient of participant j's Laplace value ln L_j = h(z^) - 1/2 ln det H with respect to psi =
+ * (beta, lambda), at the mode participant_marginal left (theta, grad, K, G, R there). With
+ * A = L H^-1 L', s(theta) = tr(A Z' d2l Z) and c = ds/dtheta (third derivatives, as second
+ * differences of the analytic gradient along the q columns w_k of Z L R'^-1):
+ *   d/dbeta   = g + c/2 + K' A (Z'c) / 2
+ *   d/dL_ab   = (Z'g)_a z_b + (G L H^-1)_ab + [ (Z'c)_a z_b + (Z'c)' L dz ] / 2,
+ *               dz = H^-1 [ e_b (Z'g)_a + L' G e_a z_b ]
+ * (docs/methods.md derives it). Returns 0 when a differenced point is infeasible. */
+static int participant_gradient(const bl_hier *h, hier_part *pp, const double *L, double *out)
+{
+    size_t q = h->q, p = h->p;
+    const double *g = pp->grad, *z = pp->z;
+    double Zg[HIER_MAX_EFFECTS] = {0}, Zc[HIER_MAX_EFFECTS] = {0}, B[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
+    for (size_t a = 0; a < q; a++)
+        for (size_t i = 0; i < h->eff[a].n; i++) Zg[a] += g[h->eff[a].coef[i]];
+    for (size_t j = 0; j < q; j++) { /* row j of B = (R^-1 (row j of L)')' */
+        double y[HIER_MAX_EFFECTS];
+        for (size_t i = 0; i < q; i++) {
+            y[i] = L[j * q + i];
+            for (size_t k = 0; k < i; k++) y[i] -= pp->R[i * q + k] * y[k];
+            y[i] /= pp->R[i * q + i];
+        }
+        memcpy(B + j * q, y, q * sizeof *y);
+    }
+    double *c = pp->tmp; /* p: reused, theta is kept in pp->theta */
+    memset(c, 0, p * sizeof *c);
+    double *th = pp->th;
+    for (size_t k = 0; k < q; k++) {
+        double wmax = 0;
+        for (size_t r = 0; r < q; r++) wmax = fmax(wmax, fabs(B[r * q + k]));
+        if (!(wmax > 0)) continue;
+        double eps = 3e-4 / wmax; /* truncation (5th derivatives near the fastest RT) vs rounding / eps^2 */
+        memcpy(th, pp->theta, p * sizeof *th);
+        for (size_t r = 0; r < q; r++)
+            for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] += eps * B[r * q + k];
+        double lp = bl_likelihood_eval(pp->lik, th, pp->gp);
+        memcpy(th, pp->theta, p * sizeof *th);
+        for (size_t r = 0; r < q; r++)
+            for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] -= eps * B[r * q + k];
+        double lm = bl_likelihood_eval(pp->lik, th, pp->gm);
+        if (isfinite(lp) && isfinite(lm)) {
+            for (size_t m = 0; m < p; m++) c[m] += (pp->gp[m] - 2 * g[m] + pp->gm[m]) / (eps * eps);
+            continue;
+        }
+        /* one side beyond a feasibility edge (nondecision at the fastest RT): the one-sided second
+         * difference g(0) - 2 g(+-e) + g(+-2e), first order instead of second */
+        double sgn = isfinite(lp) ? 1 : -1, *g1 = isfinite(lp) ? pp->gp : pp->gm;
+        if (!isfinite(lp) && !isfinite(lm)) return 0;
+        memcpy(th, pp->theta, p * sizeof *th);
+        for (size_t r = 0; r < q; r++)
+            for (size_t i = 0; i < h->eff[r].n; i++) th[h->eff[r].coef[i]] += 2 * sgn * eps * B[r * q + k];
+        double *g2 = isfinite(lp) ? pp->gm : pp->gp; /* the infeasible side's buffer is free */
+        if (!isfinite(bl_likelihood_eval(pp->lik, th, g2))) return 0;
+        for (size_t m = 0; m < p; m++) c[m] += (g[m] - 2 * g1[m] + g2[m]) / (eps * eps);
+    }
+    for (size_t a = 0; a < q; a++)
+        for (size_t i = 0; i < h->eff[a].n; i++) Zc[a] += c[h->eff[a].coef[i]];
+    double A[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS], v[HIER_MAX_EFFECTS];
+    for (size_t a = 0; a < q; a++)
+        for (size_t b = 0; b < q; b++) {
+            double sum = 0;
+            for (size_t k = 0; k < q; k++) sum += B[a * q + k] * B[b * q + k];
+            A[a * q + b] = sum;
+        }
+    for (size_t a = 0; a < q; a++) {
+        v[a] = 0;
+        for (size_t b = 0; b < q; b++) v[a] += A[a * q + b] * Zc[b];
+    }
+    for (size_t m = 0; m < p; m++) {
+        double kv = 0;
+        for (size_t r = 0; r < q; r++) kv += pp->K[r * p + m] * v[r];
+        out[m] = g[m] + 0.5 * c[m] + 0.5 * kv;
+    }
+    /* G L H^-1: row a solves H x = (G L)[a, :]' */
+    double GLH[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
+    for (size_t a = 0; a < q; a++) {
+        double row[HIER_MAX_EFFECTS];
+        for (size_t b = 0; b < q; b++) {
+            row[b] = 0;
+            for (size_t k = 0; k < q; k++) row[b] += pp->G[a * q + k] * L[k * q + b];
+        }
+        chol_solve(pp->R, q, row);
+        memcpy(GLH + a * q, row, q * sizeof *row);
+    }
+    for (size_t t = 0, a = 0; a < q; a++)
+        for (size_t b = h->correlated ? 0 : a; b <= a; b++, t++) {
+            double dz[HIER_MAX_EFFECTS];
+            for (size_t i = 0; i < q; i++) { /* L' G e_a z_b + e_b (Z'g)_a */
+                double sum = 0;
+                for (size_t k = 0; k < q; k++) sum += L[k * q + i] * pp->G[k * q + a];
+                dz[i] = sum * z[b] + (i == b ? Zg[a] : 0);
+            }
+            chol_solve(pp->R, q, dz);
+            double cdt = Zc[a] * z[b];
+            for (size_t r = 0; r < q; r++) {
+                double Ldz = 0;
+                for (size_t k = 0; k < q; k++) Ldz += L[r * q + k] * dz[k];
+                cdt += Zc[r] * Ldz;
+            }
+            out[p + t] = Zg[a] * z[b] + GLH[a * q + b] + 0.5 * cdt;
+        }
+    return 1;
+}
+
+/* Summed marginal log-likelihood and its gradient (Laplace only; grad d values). Returns
+ * -INFINITY when a participant has no mode, NAN when the gradient could not be formed (the caller
+ * then differences the function). */
+static double marginal_and_gradient(bl_hier *h, const double *psi, double *grad)
+{
+    double L[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
+    bl_hier_lambda_to_l(h, psi + h->p, L);
+    h->evaluations++;
+    int ok_all = 1, grad_all = 1;
+    int nt = 1;
+    double *per = h->per_part;
+    if (!per) return NAN;
+#ifdef _OPENMP
+    nt = h->threads > 0 ? h->threads : omp_get_max_threads();
+    if (nt < 1) nt = 1;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(nt) if (nt > 1 && h->J > 1) reduction(&& : ok_all, grad_all)
+#endif
+    for (size_t j = 0; j < h->J; j++) {
+        hier_part *pp = &h->part[j];
+        if (!participant_marginal(h, pp, psi, L)) {
+            pp->m = -INFINITY;
+            ok_all = 0;
+        } else if (!participant_gradient(h, pp, L, per + j * h->d)) {
+            grad_all = 0;
+        }
+    }
+    (void)nt;
+    double s = 0;
+    if (ok_all) {
+        for (size_t j = 0; j < h->J; j++) s += h->part[j].m;
+        memset(grad, 0, h->d * sizeof *grad);
+        for (size_t j = 0; j < h->J; j++)
+            for (size_t c = 0; c < h->d; c++) grad[c] += per[j * h->d + c];
+    }
+    if (!ok_all || !isfinite(s)) return -INFINITY;
+    if (!grad_all) return NAN;
+    for (size_t c = 0; c < h->d; c++)
+        if (!isfinite(grad[c])) return NAN;
+    return s;
+}
+
+double bl_hier_marginal_gradient(bl_hier *h, const double *psi, double *grad)
+{
+    if (h->n_grid > 1) return NAN;
+    return marginal_and_gradient(h, psi, grad);
 }
 
 /* Summed marginal log-likelihood at psi = (beta, lambda); -INFINITY when a participant has no mode. */
@@ -405,7 +579,10 @@ static bl_status build_participants(bl_hier *h, const bl_model_spec *spec, const
         pp->gm = malloc(p * sizeof(double));
         pp->tmp = malloc(p * sizeof(double));
         pp->terms = malloc(h->n_grid * sizeof(double));
-        if (!pp->trials || !pp->z || !pp->theta || !pp->grad || !pp->gp || !pp->gm || !pp->tmp || !pp->terms)
+        pp->K = malloc(q * p * sizeof(double) + sizeof(double));
+        pp->th = malloc(p * sizeof(double));
+        if (!pp->trials || !pp->z || !pp->theta || !pp->grad || !pp->gp || !pp->gm || !pp->tmp || !pp->terms ||
+            !pp->K || !pp->th)
             goto nomem;
         for (size_t k = 0; k < m->n; k++)
             if (trials->participant[m->row[k]] == i) pp->trials[pp->n_trials++] = k;
@@ -460,6 +637,11 @@ bl_status bl_hier_create(const bl_model_spec *spec, const bl_model *m, const bl_
     }
     h->n_lambda = h->correlated ? h->q * (h->q + 1) / 2 : h->q;
     h->d = h->p + h->n_lambda;
+    if (!(h->per_part = malloc((h->d ? h->d : 1) * (trials->n_participants ? trials->n_participants : 1) *
+                               sizeof *h->per_part))) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
     if ((st = build_grid(h, quadrature, err))) goto done;
     st = build_participants(h, spec, trials, err);
 done:
@@ -488,6 +670,8 @@ void bl_hier_destroy(bl_hier *h)
         free(pp->gm);
         free(pp->tmp);
         free(pp->terms);
+        free(pp->K);
+        free(pp->th);
     }
     free(h->part);
     free(h->names);
@@ -498,10 +682,14 @@ void bl_hier_destroy(bl_hier *h)
     free(h->free_idx);
     free(h->info_hat);
     free(h->psi_hat);
+    free(h->psi_est);
+    free(h->pooled_coef);
+    free(h->per_part);
     free(h);
 }
 
 size_t bl_hier_effects(const bl_hier *h) { return h->q; }
+int bl_hier_out_of_memory(const bl_hier *h) { return h->nomem; }
 size_t bl_hier_participants(const bl_hier *h) { return h->J; }
 size_t bl_hier_lambda_count(const bl_hier *h) { return h->n_lambda; }
 bl_likelihood *bl_hier_participant_likelihood(const bl_hier *h, size_t j) { return h->part[j].lik; }
@@ -530,6 +718,8 @@ static void x_to_psi(const bl_hier *h, const gsl_vector *x, double *psi)
 typedef struct {
     bl_hier *h;
     double *psi;
+    double *grad_psi; /* d values (Laplace gradients), may be NULL */
+    int differences;  /* 1: difference the value even where the analytic gradient exists */
 } outer;
 
 static double outer_f(const gsl_vector *x, void *params)
@@ -541,11 +731,12 @@ static double outer_f(const gsl_vector *x, void *params)
 }
 
 /* Central differences in x (one-sided where a side is infeasible). */
-static void outer_df(const gsl_vector *x, void *params, gsl_vector *g)
+static void outer_df_differences(const gsl_vector *x, void *params, gsl_vector *g)
 {
     outer *o = params;
     gsl_vector *xt = gsl_vector_alloc(x->size);
     if (!xt) {
+        o->h->nomem = 1;
         gsl_vector_set_all(g, 0);
         return;
     }
@@ -572,10 +763,34 @@ static void outer_df(const gsl_vector *x, void *params, gsl_vector *g)
     gsl_vector_free(xt);
 }
 
+/* -M and its gradient in x: the Laplace value's analytic gradient, else differences. */
+static double outer_value_gradient(const gsl_vector *x, outer *o, gsl_vector *g)
+{
+    bl_hier *h = o->h;
+    x_to_psi(h, x, o->psi);
+    if (h->n_grid <= 1 && o->grad_psi && !o->differences) {
+        double mval = marginal_and_gradient(h, o->psi, o->grad_psi);
+        if (isfinite(mval)) {
+            for (size_t i = 0; i < h->n_free; i++) {
+                size_t c = h->free_idx[i];
+                gsl_vector_set(g, i, -o->grad_psi[c] * h->scale[c]);
+            }
+            return -mval;
+        }
+        if (mval == -INFINITY) { /* infeasible: the line search backs off */
+            gsl_vector_set_all(g, 0);
+            return GSL_POSINF;
+        }
+    }
+    outer_df_differences(x, o, g);
+    return outer_f(x, o);
+}
+
+static void outer_df(const gsl_vector *x, void *params, gsl_vector *g) { outer_value_gradient(x, params, g); }
+
 static void outer_fdf(const gsl_vector *x, void *params, double *f, gsl_vector *g)
 {
-    *f = outer_f(x, params);
-    outer_df(x, params, g);
+    *f = outer_value_gradient(x, params, g);
 }
 
 /* Maximise over the free components from psi0 (BFGS, then Newton steps on the observed information
@@ -587,25 +802,46 @@ static size_t outer_maximise(bl_hier *h, double tol, double *best, double *gnorm
     double *psi = malloc(h->d * sizeof *psi);
     *best = -INFINITY;
     *gnorm = NAN;
-    if (!psi) return 0;
-    outer o = {h, psi};
+    double *grad_psi = malloc(h->d * sizeof *grad_psi);
+    if (!psi || !grad_psi) {
+        h->nomem = 1;
+        free(psi);
+        free(grad_psi);
+        return 0;
+    }
+    outer o = {h, psi, grad_psi, 0};
     if (n == 0) {
         *best = bl_hier_marginal(h, h->psi0);
         *gnorm = 0;
         free(psi);
+        free(grad_psi);
         return 0;
     }
     gsl_multimin_function_fdf fn = {outer_f, outer_df, outer_fdf, n, &o};
     gsl_vector *x = gsl_vector_calloc(n);
     gsl_multimin_fdfminimizer *s = gsl_multimin_fdfminimizer_alloc(gsl_multimin_fdfminimizer_vector_bfgs2, n);
-    size_t it = 0;
-    if (!x || !s) goto done;
+    size_t it = 0, budget_end = h->evaluations + HIER_OUTER_BUDGET;
+    if (!x || !s) {
+        h->nomem = 1;
+        goto done;
+    }
     if (!isfinite(outer_f(x, &o))) goto done;
-    gsl_multimin_fdfminimizer_set(s, &fn, x, 0.5, 0.1);
-    for (it = 0; it < HIER_OUTER_ITER; it++) {
-        int status = gsl_multimin_fdfminimizer_iterate(s);
-        if (status) break;
-        if (gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS) break;
+    /* Rounds: BFGS until the gradient test passes; a round that stalls (the line search finds no
+     * descent, as beside a feasibility edge) is restarted from where it stopped, the second time with
+     * differenced gradients; a round that gains nothing ends the search. */
+    double f_prev = outer_f(x, &o);
+    for (int round = 0; round < 3; round++) {
+        o.differences = round == 1;
+        gsl_multimin_fdfminimizer_set(s, &fn, x, 0.5, 0.1);
+        int passed = 0;
+        for (; it < HIER_OUTER_ITER && h->evaluations < budget_end; it++) {
+            if (gsl_multimin_fdfminimizer_iterate(s)) break;
+            if ((passed = gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS)) break;
+        }
+        passed = passed || gsl_multimin_test_gradient(s->gradient, tol) == GSL_SUCCESS;
+        gsl_vector_memcpy(x, s->x);
+        if (passed || (o.differences && !(s->f < f_prev - 1e-7)) || h->evaluations >= budget_end) break;
+        f_prev = s->f;
     }
     x_to_psi(h, s->x, psi);
     *best = -s->f;
@@ -617,6 +853,7 @@ done:
     if (s) gsl_multimin_fdfminimizer_free(s);
     if (x) gsl_vector_free(x);
     free(psi);
+    free(grad_psi);
     return it;
 }
 
@@ -631,11 +868,46 @@ static bl_status set_free(bl_hier *h, const unsigned char *fixed, bl_error *err)
 
 /* Observed information of the summed marginal log-likelihood in x units (second differences) at
  * psi0 over the free components: n x n into info. Returns 0 when a point is infeasible. */
+static int outer_information_from_gradients(bl_hier *h, double *info)
+{
+    size_t n = h->n_free, d = h->d;
+    double *psi = malloc(d * sizeof *psi), *gp = malloc(d * sizeof *gp), *gm = malloc(d * sizeof *gm);
+    int ok = psi && gp && gm;
+    if (!ok) h->nomem = 1;
+    const double e = HIER_INFO_STEP;
+    for (size_t i = 0; i < n && ok; i++) {
+        size_t ci = h->free_idx[i];
+        memcpy(psi, h->psi0, d * sizeof *psi);
+        psi[ci] += e * h->scale[ci];
+        ok = isfinite(marginal_and_gradient(h, psi, gp));
+        psi[ci] -= 2 * e * h->scale[ci];
+        ok = ok && isfinite(marginal_and_gradient(h, psi, gm));
+        for (size_t j = 0; j < n && ok; j++) {
+            size_t cj = h->free_idx[j];
+            info[j * n + i] = -(gp[cj] - gm[cj]) * h->scale[cj] / (2 * e);
+        }
+    }
+    for (size_t i = 0; i < n && ok; i++)
+        for (size_t j = 0; j < i; j++) info[i * n + j] = info[j * n + i] = 0.5 * (info[i * n + j] + info[j * n + i]);
+    free(psi);
+    free(gp);
+    free(gm);
+    return ok;
+}
+
 static int outer_information(bl_hier *h, double *info)
 {
     size_t n = h->n_free;
+    /* Laplace: central differences of the analytic gradient (2n gradients instead of ~2n^2 values) */
+    if (h->n_grid <= 1 && outer_information_from_gradients(h, info)) {
+        bl_hier_marginal(h, h->psi0); /* participants' modes back at psi0 */
+        return 1;
+    }
     double *psi = malloc(h->d * sizeof *psi);
-    if (!psi) return 0;
+    if (!psi) {
+        h->nomem = 1;
+        return 0;
+    }
     const double e = HIER_INFO_STEP;
     double f0 = bl_hier_marginal(h, h->psi0);
     int ok = isfinite(f0);
@@ -682,6 +954,23 @@ static double effect_sd(const bl_hier *h, const double *lambda, size_t r)
     return sqrt(s);
 }
 
+/* A feasible start for a constrained maximum when the estimate's neighbourhood is not (a participant
+ * spread held at 0 makes every participant share a nondecision time, which must lie below all of their
+ * fastest RTs): the pooled coefficients, which are feasible without spread, with the free spreads
+ * scaled down until every participant has a mode. Fills trial; returns its value. */
+static double feasible_start(bl_hier *h, const unsigned char *fixed, const double *psi, double *trial)
+{
+    static const double shrink[] = {1, 0.3, 0.1, 0.03};
+    double v = -INFINITY;
+    for (size_t k = 0; k < sizeof shrink / sizeof *shrink && !isfinite(v) && h->pooled_coef; k++) {
+        memcpy(trial, psi, h->d * sizeof *trial);
+        for (size_t c = 0; c < h->d; c++)
+            if (!fixed[c]) trial[c] = c < h->p ? h->pooled_coef[c] : shrink[k] * psi[c];
+        v = bl_hier_marginal(h, trial);
+    }
+    return v;
+}
+
 /* Maximum over the other components with the components flagged in `fixed` held at psi[...]; psi
  * (start and result) is updated to the maximiser. With the observed information at the estimate
  * (h->info_hat, all d components in x units), the other components start at their linear
@@ -696,6 +985,7 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
         double *a = malloc(d * d * sizeof *a), *r = malloc(d * d * sizeof *r), *v = malloc(d * sizeof *v);
         double *trial = malloc(d * sizeof *trial);
         int ok = idx && a && r && v && trial;
+        if (!ok) h->nomem = 1;
         for (size_t c = 0; ok && c < d; c++)
             if (!fixed[c]) idx[nn++] = c;
         for (size_t i = 0; ok && i < nn; i++)
@@ -715,12 +1005,17 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
                 memcpy(trial, psi, d * sizeof *trial);
                 best = bl_hier_marginal(h, trial);
             }
+            if (!isfinite(best)) best = feasible_start(h, fixed, psi, trial);
             memcpy(psi, trial, d * sizeof *psi);
         }
         double last_gain = INFINITY;
         for (int it = 0; ok && isfinite(best) && it < 6; it++) {
-            /* gradient over the free components by central differences */
-            for (size_t i = 0; i < nn; i++) {
+            /* gradient over the free components: analytic (Laplace) or central differences */
+            double gm_val = h->n_grid <= 1 ? marginal_and_gradient(h, psi, trial) : NAN;
+            if (isfinite(gm_val)) {
+                for (size_t i = 0; i < nn; i++) v[i] = trial[idx[i]] * h->scale[idx[i]];
+            }
+            for (size_t i = 0; i < nn && !isfinite(gm_val); i++) {
                 size_t c = idx[i];
                 memcpy(trial, psi, d * sizeof *trial);
                 trial[c] += HIER_GRAD_STEP * h->scale[c];
@@ -760,6 +1055,12 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
             if (!moved) break;
         }
         free(idx), free(a), free(r), free(v), free(trial);
+    }
+    if (!isfinite(bl_hier_marginal(h, psi))) {
+        double *trial = malloc(d * sizeof *trial);
+        if (!trial) h->nomem = 1;
+        if (trial && isfinite(feasible_start(h, fixed, psi, trial))) memcpy(psi, trial, d * sizeof *psi);
+        free(trial);
     }
     memcpy(h->psi0, psi, d * sizeof *psi);
     set_free(h, fixed, NULL);
@@ -867,17 +1168,63 @@ static void starting_point(bl_hier *h, const bl_fit_result *pooled, const double
     }
 }
 
+/* Cholesky factor of info (n x n) over the components not flagged in edge (flagged rows and columns
+ * are skipped: the factor is of the reduced matrix, stored at the full indices). 0 when not positive
+ * definite. */
+static int chol_reduced(const double *info, size_t n, const unsigned char *edge, double *f)
+{
+    for (size_t i = 0; i < n; i++) {
+        if (edge[i]) continue;
+        for (size_t j = 0; j <= i; j++) {
+            if (edge[j]) continue;
+            double s = info[i * n + j];
+            for (size_t k = 0; k < j; k++)
+                if (!edge[k]) s -= f[i * n + k] * f[j * n + k];
+            if (i == j) {
+                if (!(s > 0)) return 0;
+                f[i * n + i] = sqrt(s);
+            } else {
+                f[i * n + j] = s / f[j * n + j];
+            }
+        }
+    }
+    return 1;
+}
+
+/* A spread at the edge (SD 0) can leave the information singular: the likelihood is even in the SD
+ * and may be flat in SD^2 there. Flag spread components, flattest first, until the rest is positive
+ * definite; the flagged ones are held at their value (reported as SD with a profile interval, not a
+ * Wald SE). Returns 0 when no such set makes it positive definite. */
+static int mark_edges(const bl_hier *h, const double *info, unsigned char *edge, double *f)
+{
+    size_t n = h->n_free;
+    memset(edge, 0, n);
+    for (size_t dropped = 0; dropped <= h->n_lambda; dropped++) {
+        if (chol_reduced(info, n, edge, f)) return 1;
+        size_t pick = n;
+        for (size_t i = 0; i < n; i++)
+            if (!edge[i] && h->free_idx[i] >= h->p && (pick == n || info[i * n + i] < info[pick * n + pick])) pick = i;
+        if (pick == n) return 0;
+        edge[pick] = 1;
+    }
+    return 0;
+}
+
 /* Newton steps on the observed information from the BFGS optimum; info (n x n) is left at the final
- * point. Returns the squared Newton decrement there (NAN when the information failed). */
-static double polish(bl_hier *h, double *m_hat, double *info)
+ * point and edge (n flags) marks spread components at the edge (see mark_edges). Returns the squared
+ * Newton decrement there (NAN when the information failed). */
+static double polish(bl_hier *h, double *m_hat, double *info, unsigned char *edge)
 {
     size_t n = h->n_free;
     double *g = malloc(n * sizeof *g), *step = malloc(n * sizeof *step), *psi = malloc(h->d * sizeof *psi);
     double *chol_f = malloc(n * n * sizeof *chol_f);
     gsl_vector *x0 = gsl_vector_calloc(n), *gv = gsl_vector_alloc(n);
-    double dec = NAN;
-    if (!g || !step || !psi || !chol_f || !x0 || !gv) goto done;
-    outer o = {h, psi};
+    double dec = NAN, *grad_psi = malloc(h->d * sizeof *grad_psi);
+    if (!g || !step || !psi || !chol_f || !x0 || !gv || !grad_psi) {
+        h->nomem = 1;
+        goto done;
+    }
+    outer o = {h, psi, grad_psi, 0};
     for (int round = 0; round < 4; round++) {
         if (!outer_information(h, info)) {
             dec = NAN;
@@ -885,32 +1232,21 @@ static double polish(bl_hier *h, double *m_hat, double *info)
         }
         outer_df(x0, &o, gv);
         for (size_t i = 0; i < n; i++) g[i] = -gsl_vector_get(gv, i); /* gradient of M */
-        int pd = 1;
-        for (size_t i = 0; i < n && pd; i++)
-            for (size_t j = 0; j <= i; j++) {
-                double s = info[i * n + j];
-                for (size_t k = 0; k < j; k++) s -= chol_f[i * n + k] * chol_f[j * n + k];
-                if (i == j) {
-                    if (!(s > 0)) {
-                        pd = 0;
-                        break;
-                    }
-                    chol_f[i * n + i] = sqrt(s);
-                } else {
-                    chol_f[i * n + j] = s / chol_f[j * n + j];
-                }
-            }
-        if (!pd) {
+        if (!mark_edges(h, info, edge, chol_f)) {
             dec = NAN;
             break;
         }
-        memcpy(step, g, n * sizeof *g);
+        for (size_t i = 0; i < n; i++) step[i] = edge[i] ? 0 : g[i];
         for (size_t i = 0; i < n; i++) {
-            for (size_t k = 0; k < i; k++) step[i] -= chol_f[i * n + k] * step[k];
+            if (edge[i]) continue;
+            for (size_t k = 0; k < i; k++)
+                if (!edge[k]) step[i] -= chol_f[i * n + k] * step[k];
             step[i] /= chol_f[i * n + i];
         }
         for (size_t i = n; i-- > 0;) {
-            for (size_t k = i + 1; k < n; k++) step[i] -= chol_f[k * n + i] * step[k];
+            if (edge[i]) continue;
+            for (size_t k = i + 1; k < n; k++)
+                if (!edge[k]) step[i] -= chol_f[k * n + i] * step[k];
             step[i] /= chol_f[i * n + i];
         }
         dec = 0;
@@ -934,10 +1270,43 @@ done:
     free(g);
     free(step);
     free(psi);
+    free(grad_psi);
     free(chol_f);
     if (x0) gsl_vector_free(x0);
     if (gv) gsl_vector_free(gv);
     return dec;
+}
+
+/* Covariance (x units, d x d) from the information without the edge components (their rows and
+ * columns NAN); the edge components' information is then replaced by a unit diagonal, a metric for
+ * the profiles' Newton steps. */
+static bl_status reduced_inverse(const bl_hier *h, double *info, const unsigned char *edge, double *cov, double *cond,
+                                 int *pd, bl_error *err)
+{
+    size_t d = h->d, k = 0;
+    size_t idx[512];
+    if (d > 512) return bl_error_set(err, BL_ERR_MODEL, "hierarchical fit: more than 512 parameters");
+    for (size_t i = 0; i < d; i++)
+        if (!edge[i]) idx[k++] = i;
+    double *sub = calloc(k ? k * k : 1, sizeof *sub), *sc = calloc(k ? k * k : 1, sizeof *sc);
+    if (!sub || !sc) {
+        free(sub);
+        free(sc);
+        return bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+    }
+    for (size_t a = 0; a < k; a++)
+        for (size_t b = 0; b < k; b++) sub[a * k + b] = info[idx[a] * d + idx[b]];
+    bl_status st = bl_information_inverse(sub, k, sc, cond, pd, err);
+    for (size_t i = 0; i < d * d; i++) cov[i] = NAN;
+    if (!st && *pd)
+        for (size_t a = 0; a < k; a++)
+            for (size_t b = 0; b < k; b++) cov[idx[a] * d + idx[b]] = sc[a * k + b];
+    for (size_t i = 0; i < d; i++)
+        if (edge[i])
+            for (size_t j = 0; j < d; j++) info[i * d + j] = info[j * d + i] = i == j ? 1.0 : 0.0;
+    free(sub);
+    free(sc);
+    return st;
 }
 
 /* Population coefficients with Wald SEs; a coefficient that varies by participant gets the t
@@ -1064,6 +1433,7 @@ static bl_status fill_variance(bl_hier *h, double m_hat, const double *cov_psi, 
                     h->info_hat[i * d + j] = sgn * info[i * d + j];
                 }
         } else {
+            h->nomem = 1;
             free(h->info_hat);
             h->info_hat = NULL;
         }
@@ -1078,8 +1448,9 @@ static bl_status fill_variance(bl_hier *h, double m_hat, const double *cov_psi, 
             break;
         }
         vc->sd = effect_sd(h, psi_hat + h->p, a);
+        vc->ci_low = vc->ci_high = vc->lrt_statistic = vc->lrt_p = NAN;
+        if (!info) continue; /* no maximum to test against or profile from (reported not converged) */
         spread_test(h, psi_hat, m_hat, a, fixed, work, vc);
-        vc->ci_low = vc->ci_high = NAN;
         if (!h->correlated) {
             size_t comp = h->p + a;
             double se = cov_psi && cov_psi[comp * d + comp] > 0 ? sqrt(cov_psi[comp * d + comp]) : 0.3 * vc->sd + 0.01;
@@ -1150,7 +1521,14 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
         goto done;
     }
     starting_point(h, pooled, pooled_coef);
+    if ((h->pooled_coef = malloc((h->p ? h->p : 1) * sizeof *h->pooled_coef)))
+        memcpy(h->pooled_coef, pooled_coef, h->p * sizeof *h->pooled_coef);
+    else h->nomem = 1;
     set_free(h, NULL, NULL);
+    /* Near an edge (nondecision at the fastest RT) the starting spread can leave a participant without
+     * a mode: start with less spread then. */
+    for (int shrink = 0; shrink < 3 && !isfinite(bl_hier_marginal(h, h->psi0)); shrink++)
+        for (size_t c = h->p; c < d; c++) h->psi0[c] *= 0.1;
     double m_hat, gnorm;
     size_t iterations = outer_maximise(h, 1e-3, &m_hat, &gnorm);
     if (!isfinite(m_hat)) {
@@ -1160,12 +1538,22 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
                           r->name);
         goto done;
     }
-    double dec = polish(h, &m_hat, info);
+    unsigned char edge[HIER_MAX_EFFECTS * (HIER_MAX_EFFECTS + 1) / 2 + 256];
+    unsigned char *edge_flags = d <= sizeof edge ? edge : calloc(d, 1);
+    if (!edge_flags) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
+        goto done;
+    }
+    memset(edge_flags, 0, d);
+    double dec = polish(h, &m_hat, info, edge_flags);
     double cond = NAN;
     int pd = 0;
-    if (isfinite(dec) && (st = bl_information_inverse(info, d, cov_x, &cond, &pd, err))) goto done;
+    if (isfinite(dec)) st = reduced_inverse(h, info, edge_flags, cov_x, &cond, &pd, err);
+    if (edge_flags != edge) free(edge_flags);
+    if (st) goto done;
     for (size_t a = 0; a < d; a++)
         for (size_t b = 0; b < d; b++) cov_psi[a * d + b] = pd ? cov_x[a * d + b] * h->scale[a] * h->scale[b] : NAN;
+    /* fits.json's coefficient covariance: the coefficients' block (never an edge component) */
     bl_fit_result *f = &r->fit;
     if (!fill_population(h, pd ? cov_psi : NULL, f)) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
@@ -1190,6 +1578,12 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
+    if ((h->psi_est = malloc(d * sizeof *h->psi_est))) memcpy(h->psi_est, h->psi0, d * sizeof *h->psi_est);
+    else h->nomem = 1;
+    if (h->nomem) {
+        st = bl_error_set(err, BL_ERR_NOMEM, "out of memory in the hierarchical fit of model '%s'", r->name);
+        goto done;
+    }
     f->diag.evaluations = likelihood_evaluations(h);
     f->diag.seconds = bl_clock_seconds() - t_start;
     if (!f->converged)
@@ -1206,4 +1600,37 @@ done:
         *part_coef = NULL;
     }
     return st;
+}
+
+double bl_hier_refit(bl_hier *h, const unsigned char *coef_at_zero, double tol)
+{
+    if (!h->psi_est) return -INFINITY;
+    unsigned char *fixed = calloc(h->d, 1);
+    if (!fixed) {
+        h->nomem = 1;
+        return -INFINITY;
+    }
+    memcpy(h->psi0, h->psi_est, h->d * sizeof *h->psi0);
+    for (size_t c = 0; coef_at_zero && c < h->p; c++)
+        if (coef_at_zero[c]) {
+            fixed[c] = 1;
+            h->psi0[c] = 0;
+        }
+    /* an effect that moves only coefficients held at zero has no spread to estimate */
+    for (size_t r = 0; coef_at_zero && r < h->q; r++) {
+        int all = 1;
+        for (size_t i = 0; i < h->eff[r].n; i++) all = all && coef_at_zero[h->eff[r].coef[i]];
+        if (!all) continue;
+        for (size_t c = 0; c <= (h->correlated ? r : 0); c++) {
+            size_t idx = h->p + (h->correlated ? r * (r + 1) / 2 + c : r);
+            fixed[idx] = 1;
+            h->psi0[idx] = 0;
+        }
+    }
+    set_free(h, fixed, NULL);
+    double best, g;
+    outer_maximise(h, tol, &best, &g);
+    set_free(h, NULL, NULL);
+    free(fixed);
+    return best;
 }

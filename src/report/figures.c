@@ -673,6 +673,90 @@ static bl_svg *fig_coefficients(const bl_study *study, const bl_fit_set *set, ch
     return fig;
 }
 
+/* ---- 4b. shrinkage (hierarchical fits) ---- */
+
+/* Coefficients of a hierarchical model that vary by participant (their participants' estimates differ). */
+static size_t varying_coefficients(const bl_model_result *mr, size_t *idx, size_t cap)
+{
+    size_t n = 0;
+    for (size_t c = 0; c < mr->fit.n_coef && n < cap; c++) {
+        int varies = 0;
+        for (size_t j = 1; j < mr->n_participants && !varies; j++)
+            varies = mr->participants[j].coef[c].estimate != mr->participants[0].coef[c].estimate;
+        if (varies) idx[n++] = c;
+    }
+    return n;
+}
+
+/* Each participant's empirical-Bayes estimate beside their own separate fit, per coefficient that
+ * varies, with the population estimate: how far the hierarchical fit pulls each participant toward
+ * the population (more for participants with less information). */
+static bl_svg *fig_shrinkage(const bl_fit_set *set, char **caption)
+{
+    int best = bl_figures_best_model(set);
+    if (best < 0 || set->models[best].mode != BL_PARTICIPANTS_HIERARCHICAL) return NULL;
+    const bl_model_result *mr = &set->models[best];
+    size_t idx[12];
+    size_t nv = varying_coefficients(mr, idx, 12), np = mr->n_participants;
+    if (nv == 0 || np == 0 || np > 256) return NULL;
+    int cols = nv < 2 ? 1 : 2, rows = (int)((nv + (size_t)cols - 1) / (size_t)cols);
+    double ph = fmax(PANEL_H - 60, 90 + 20.0 * (double)np);
+    char *title = xprintf("Participants' estimates of %s: hierarchical vs fitted alone", mr->name);
+    bl_svg *fig = bl_svg_create("shrink", title ? title : "Shrinkage", rows, cols, PANEL_W + 60, ph);
+    free(title);
+    if (!fig) {
+        figure_text_lost = 1; /* reported as out of memory with the other figures */
+        return NULL;
+    }
+    const char *labels[256];
+    for (size_t j = 0; j < np; j++) labels[j] = mr->participants[j].participant;
+    double *x = malloc(2 * np * sizeof *x), *y = malloc(2 * np * sizeof *y);
+    if (!x || !y) figure_text_lost = 1;
+    for (size_t v = 0; x && y && v < nv; v++) {
+        size_t c = idx[v];
+        const bl_coefficient *pc = &mr->fit.coef[c];
+        bl_svg_panel *p = bl_svg_panel_at(fig, (int)v);
+        char *pt = pc->level[0] ? xprintf("%s: %s [%s]", pc->parameter, pc->term, pc->level)
+                                : xprintf("%s: %s", pc->parameter, pc->term);
+        bl_svg_panel_title(p, pt ? pt : pc->parameter);
+        free(pt);
+        bl_svg_axis_categories(p, BL_SVG_Y, labels, np);
+        bl_svg_axis_label(p, BL_SVG_X, "coefficient (link scale)");
+        bl_svg_refline(p, BL_SVG_X, pc->estimate, (bl_svg_style){.color = bl_svg_color(1), .width = 1.5});
+        for (size_t j = 0; j < np; j++) { /* a segment from the separate fit to the hierarchical estimate */
+            double sx[2] = {mr->separate_estimate ? mr->separate_estimate[j * mr->fit.n_coef + c] : NAN,
+                            mr->participants[j].coef[c].estimate},
+                   sy[2] = {(double)j, (double)j};
+            bl_svg_line(p, sx, sy, 2, (bl_svg_style){.color = "#999999", .width = 1});
+        }
+        for (size_t j = 0; j < np; j++) {
+            x[j] = mr->separate_estimate ? mr->separate_estimate[j * mr->fit.n_coef + c] : NAN;
+            y[j] = (double)j;
+            x[np + j] = mr->participants[j].coef[c].estimate;
+            y[np + j] = (double)j;
+        }
+        bl_svg_points(p, x, y, np, (bl_svg_style){.color = "#777777", .size = 3, .marker = BL_SVG_MARK_DIAMOND});
+        bl_svg_points(p, x + np, y + np, np, (bl_svg_style){.color = bl_svg_color(0), .size = 3.5});
+    }
+    free(x);
+    free(y);
+    bl_svg_legend(fig, "hierarchical (empirical Bayes)", BL_SVG_KEY_POINT,
+                  (bl_svg_style){.color = bl_svg_color(0), .size = 3.5});
+    bl_svg_legend(fig, "participant fitted alone", BL_SVG_KEY_POINT,
+                  (bl_svg_style){.color = "#777777", .size = 3, .marker = BL_SVG_MARK_DIAMOND});
+    bl_svg_legend(fig, "population estimate", BL_SVG_KEY_LINE, (bl_svg_style){.color = bl_svg_color(1)});
+    *caption = xprintf("Shrinkage in %s (the model with the lowest AIC, fitted hierarchically): for every coefficient "
+                       "that varies by participant, each participant's empirical-Bayes estimate (circle) and the "
+                       "estimate from their trials alone (diamond), joined by a line; the vertical line is the "
+                       "population estimate. Participants with fewer or noisier trials are pulled further toward "
+                       "the population.%s",
+                       mr->name,
+                       mr->separate_estimate ? ""
+                                             : " (Participants could not be fitted alone: only the hierarchical "
+                                               "estimates are shown.)");
+    return fig;
+}
+
 /* ---- 5. model comparison ---- */
 
 static bl_svg *fig_comparison(const bl_fit_set *set, char **caption)
@@ -737,7 +821,7 @@ bl_status bl_figures_make(const bl_study *study, const bl_trials *trials, const 
 {
     *out = NULL;
     bl_figure_set *fs = calloc(1, sizeof *fs);
-    if (!fs || !(fs->items = calloc(5, sizeof *fs->items))) {
+    if (!fs || !(fs->items = calloc(6, sizeof *fs->items))) {
         free(fs);
         return bl_error_set(err, BL_ERR_NOMEM, "out of memory for figures");
     }
@@ -756,6 +840,10 @@ bl_status bl_figures_make(const bl_study *study, const bl_trials *trials, const 
     cap = NULL;
     f = fig_coefficients(study, set, &cap);
     if ((st = add_figure(fs, f, "coefficients.svg", "Coefficients", cap, err))) goto fail;
+    cap = NULL;
+    if ((f = fig_shrinkage(set, &cap)) &&
+        (st = add_figure(fs, f, "shrinkage.svg", "Participants' estimates: hierarchical vs alone", cap, err)))
+        goto fail;
     cap = NULL;
     f = fig_comparison(set, &cap);
     if ((st = add_figure(fs, f, "model_comparison.svg", "Model comparison", cap, err))) goto fail;

@@ -18,6 +18,7 @@
 #include "core/strutil.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -670,6 +671,16 @@ static bl_status build_groups(const bl_study *study, const bl_trials *t, const b
                 pair_keys[n_pair_keys++] = key;
                 if ((st = slope_bins(study, t, sl, rows, nrows, n_pair_keys - 1, items, &gl, err))) goto fail;
             }
+        }
+    }
+    /* Hierarchical and separate fits predict every participant from their own coefficients: one group
+     * per participant too (after the bins, marked as belonging to no binning). */
+    if (set->mode != BL_PARTICIPANTS_POOLED) {
+        int pcol = find_col(t, study->trials.participant);
+        size_t first;
+        if (pcol >= 0) {
+            if ((st = split_by(t, &pcol, 1, rows, nrows, &gl, &first, err))) goto fail;
+            for (size_t i = first; i < gl.n; i++) gl.g[i].binning = SIZE_MAX;
         }
     }
     g->groups = gl.g;

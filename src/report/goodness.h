@@ -43,7 +43,8 @@ typedef struct {
     char *regressor; /* NULL for a condition cell, else the binned regressor */
     int bin;         /* 0 for a condition cell, else 1..5 (low to high regressor) */
     double regressor_low, regressor_high, regressor_mean; /* over the bin (NAN for cells) */
-    size_t binning; /* for bins: index into binnings (bins of one binning are contiguous) */
+    size_t binning; /* for bins: index into binnings (bins of one binning are contiguous); SIZE_MAX for the
+                       per-participant groups (hierarchical and separate fits), which follow the bins */
     size_t n;       /* trials in the group */
     size_t *rows;   /* their table rows, in table order */
 } bl_goodness_group;
@@ -62,7 +63,7 @@ typedef struct {
     const bl_fit_set *set; /* borrowed: must outlive this result */
     size_t n_groups;
     bl_goodness_group *groups;
-    size_t n_cells; /* groups[0 .. n_cells-1] are condition cells, the rest regressor bins */
+    size_t n_cells; /* groups[0 .. n_cells-1] are condition cells, then regressor bins, then participants */
     size_t n_rows;
     bl_goodness_row *rows; /* model-major, then group, then upper before lower */
     size_t n_binnings;

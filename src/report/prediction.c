@@ -31,7 +31,8 @@ typedef struct {
 
 typedef struct {
     char *name;
-    int pooled; /* "mode": "pooled" */
+    int pooled;   /* "mode": "pooled" */
+    int separate; /* "mode": "separate" (the model-level fit is a group summary) */
     fit_entry fit;
     size_t n_parts;
     fit_entry *parts;
@@ -180,6 +181,7 @@ static bl_status read_model(bl_fitted_models *fm, const cJSON *o, size_t i, bl_e
     snprintf(path, sizeof path, "%s.mode", prefix);
     if (!cJSON_IsString(mode)) return bad_key(err, file, path, mode ? "is not a string" : "is missing");
     m->pooled = strcmp(mode->valuestring, "pooled") == 0;
+    m->separate = strcmp(mode->valuestring, "separate") == 0;
     if ((st = read_fit(file, o, prefix, &m->fit, err))) return st;
     const cJSON *parts = cJSON_GetObjectItemCaseSensitive(o, "participants");
     snprintf(path, sizeof path, "%s.participants", prefix);
@@ -674,7 +676,7 @@ bl_status bl_prediction_compute(const bl_fitted_models *fm, const bl_prediction_
     const bl_prediction_setting *ss = stim ? setting(req, stim) : NULL;
     if (ss && !names_contain(fm->study->trials.upper, fm->study->trials.n_upper, ss->value)) out->drift_sign = -1;
     out->has_covariance = e->cov != NULL;
-    out->group_summary = !m->pooled && !req->participant;
+    out->group_summary = m->separate && !req->participant;
     size_t k = e->n_coef;
     double *drow = calloc(BL_NPARAM * (k ? k : 1), sizeof *drow);
     if (!drow) return bl_error_set(err, BL_ERR_NOMEM, "out of memory predicting model '%s'", m->name);

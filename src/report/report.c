@@ -113,7 +113,10 @@ static void job_section(FILE *f, const bl_report_job *job, const bl_study *study
     }
     if (set) {
         kv(f, "participants fitted",
-           set->mode == BL_PARTICIPANTS_SEPARATE ? "separately (plus a group summary)" : "pooled (one likelihood)");
+           set->mode == BL_PARTICIPANTS_SEPARATE ? "separately (plus a group summary)"
+           : set->mode == BL_PARTICIPANTS_HIERARCHICAL
+               ? "hierarchical (participants' effects integrated out; estimates speak for the population)"
+               : "pooled (one likelihood)");
         snprintf(b, sizeof b, "%zu", set->n_models);
         kv(f, "models", b);
     }
@@ -321,6 +324,47 @@ static void coef_rows(FILE *f, const bl_coefficient *c, size_t n)
     fputs("</table></div>\n", f);
 }
 
+/* Hierarchical: the participant spread of each varying term, and the participants' own estimates. */
+static void spread_rows(FILE *f, const bl_model_result *mr)
+{
+    fputs(
+        "<h3>Participant spread</h3>\n<p class=\"muted\">SD of the participants' values of each term that varies "
+        "(link scale), with its 95% profile-likelihood interval and the test of no spread (&#189;&#967;&#178;&#8320; + "
+        "&#189;&#967;&#178;&#8321; reference). Population coefficients above speak for the population the participants "
+        "were drawn from.</p>\n<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th class=\"t\">term</th>"
+        "<th>SD</th><th>95% CI</th><th>2&#916;LL</th><th>p</th></tr>\n",
+        f);
+    for (size_t k = 0; k < mr->n_variance; k++) {
+        const bl_variance_component *v = &mr->variance[k];
+        fputs("<tr><td class=\"t\">", f);
+        esc(f, v->parameter);
+        fputs("</td><td class=\"t\">", f);
+        esc(f, v->term);
+        fputs("</td><td>", f);
+        g4(f, v->sd);
+        fputs("</td><td>", f);
+        g4(f, v->ci_low);
+        fputs(" to ", f);
+        g4(f, v->ci_high);
+        fputs("</td><td>", f);
+        g4(f, v->lrt_statistic);
+        fputs("</td><td>", f);
+        pval(f, v->lrt_p);
+        fputs("</td></tr>\n", f);
+    }
+    fputs("</table></div>\n", f);
+    for (size_t q = 0; q < mr->n_participants; q++) {
+        const bl_fit_result *pf = &mr->participants[q];
+        fputs("<h3>Participant ", f);
+        esc(f, pf->participant);
+        fprintf(f,
+                " (empirical Bayes)</h3>\n<p class=\"muted\">log-likelihood of their %zu trials at these values %.2f; "
+                "SEs are conditional on the population estimates</p>\n",
+                pf->trials, pf->log_likelihood);
+        coef_rows(f, pf->coef, pf->n_coef);
+    }
+}
+
 static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set *set)
 {
     fputs("<h2 id=\"coefficients\">Coefficients</h2>\n", f);
@@ -390,6 +434,7 @@ static void coefficient_section(FILE *f, const bl_study *study, const bl_fit_set
             }
         } else {
             coef_rows(f, mr->fit.coef, mr->fit.n_coef);
+            if (mr->mode == BL_PARTICIPANTS_HIERARCHICAL) spread_rows(f, mr);
         }
         if (mr->n_permutation) {
             fputs("<h3>Permutation tests</h3>\n<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th "

@@ -81,7 +81,16 @@ bl_status bl_scan_run(const bl_study *study, const bl_trials *trials, const bl_s
     const bl_model_spec *spec = NULL;
     for (size_t m = 0; m < study->n_models; m++)
         if (!strcmp(study->models[m].name, sp->null_model)) spec = &study->models[m];
-    r->mode = study->fit.participants;
+    r->mode = bl_study_participants_mode(study, trials->n_participants);
+    if (r->mode == BL_PARTICIPANTS_HIERARCHICAL) {
+        /* the score test is derived for one likelihood (or one per participant); docs/scan.md */
+        r->mode = BL_PARTICIPANTS_POOLED;
+        bl_warnings_add(warn,
+                        "scan: the null model '%s' is fitted with participants pooled (the scan's score tests do "
+                        "not integrate participants' effects out); family-wise p-values come from permutations within "
+                        "participant x condition cells and stay valid, per-cell p-values assume the pooled model",
+                        sp->null_model);
+    }
     if ((st = bl_scan_power_check(study, sp, trials, err))) goto fail;
     double t0 = now();
     say(opt, "scan: fitting the null model", 0, 0);

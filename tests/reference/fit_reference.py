@@ -61,7 +61,7 @@ with tempfile.TemporaryDirectory() as tmp:
     subprocess.run([maker, os.path.join(tmp, "trials.csv"), "200", "3", "31"], check=True)
     study = {
         "trials": {"file": "trials.csv", "participant": "animal", "rt": "rt", "response": "correct", "upper": ["1"]},
-        "fit": {"starts": 2},
+        "fit": {"starts": 2, "participants": "pooled"},
         "models": [
             {"name": "baseline", "threshold": {"per": ["context"]}, "drift": {"per": ["difficulty"]}},
             {"name": "theta-threshold", "extends": "baseline",
@@ -125,6 +125,38 @@ with tempfile.TemporaryDirectory() as tmp:
     check(worst < 1e-12, "Wald z, p and 95%% intervals = scipy.stats.norm (worst diff %.2e)" % worst)
     start = [co for co in fits["models"][2]["coefficients"] if co["parameter"] == "start"][0]
     check(start["ci_low"] < 0.5 < start["ci_high"], "free start: the unbiased truth 0.5 is inside its interval")
+
+    # Hierarchical fit of the same data: terms that vary by participant take the t reference with
+    # participants - 1 df (scipy.stats.t), the others the normal one (scipy.stats.norm); AIC/BIC from the
+    # marginal log-likelihood with coefficients + spread parameters counted.
+    study["fit"] = {"starts": 2, "participants": "hierarchical"}
+    study["models"] = study["models"][:2]
+    study["output"] = "out_h"
+    with open(os.path.join(tmp, "study_h.json"), "w") as f:
+        json.dump(study, f)
+    subprocess.run([bandlink, "fit", os.path.join(tmp, "study_h.json"), "--quiet"], check=True)
+    fits_h = json.load(open(os.path.join(tmp, "out_h", "fits.json")))
+    worst, n_t, n_z = 0.0, 0, 0
+    for m in fits_h["models"]:
+        check(m["mode"] == "hierarchical", "%s: fitted hierarchically" % m["name"])
+        n_spread = len(m["variance_components"])
+        check(int(m["parameters"]) == len(m["coefficients"]) + n_spread, "%s: parameters = coefficients + spread" % m["name"])
+        k, ll, n = int(m["parameters"]), float(m["log_likelihood"]), int(m["trials"])
+        check(abs(float(m["aic"]) - (2 * k - 2 * ll)) < 1e-9 and abs(float(m["bic"]) - (k * math.log(n) - 2 * ll)) < 1e-9,
+              "%s: AIC and BIC from the marginal log-likelihood" % m["name"])
+        for co in m["coefficients"]:
+            z = co["estimate"] / co["se"]
+            if "df" in co:
+                n_t += 1
+                check(co["df"] == 2, "t reference with participants - 1 = 2 df")
+                crit, p = stats.t.ppf(0.975, co["df"]), 2 * stats.t.sf(abs(z), co["df"])
+            else:
+                n_z += 1
+                crit, p = z975, 2 * stats.norm.sf(abs(z))
+            worst = max(worst, abs(co["z"] - z), abs(co["p"] - p), abs(co["ci_low"] - (co["estimate"] - crit * co["se"])),
+                        abs(co["ci_high"] - (co["estimate"] + crit * co["se"])))
+    check(n_t > 0 and n_z > 0, "hierarchical: both references used (%d t, %d normal)" % (n_t, n_z))
+    check(worst < 1e-10, "hierarchical z, p and 95%% intervals = scipy.stats.t / norm (worst diff %.2e)" % worst)
 
 print("%d failed" % fails)
 sys.exit(1 if fails else 0)

@@ -53,7 +53,10 @@ def main():
         res = os.path.join(sim, study.get("output", "results"))
 
         figs = sorted(f for f in os.listdir(os.path.join(res, "figures")) if f.endswith(".svg"))
-        check(len(figs) == 5, "five figures: %s" % figs)
+        fits = json.load(open(os.path.join(res, "fits.json")))
+        # five figures, six when the study was fitted hierarchically (the shrinkage figure)
+        want = 6 if fits["mode"] == "hierarchical" else 5
+        check(len(figs) == want, "%d figures (%s fits): %s" % (want, fits["mode"], figs))
         for f in figs:
             try:
                 root = ET.parse(os.path.join(res, "figures", f)).getroot()
@@ -62,7 +65,7 @@ def main():
                 check(False, "%s: %s" % (f, e))
         page = open(os.path.join(res, "report.html"), encoding="utf-8").read()
         inline = re.findall(r"<svg xmlns=.*?</svg>", page, flags=re.S)
-        check(len(inline) == 5, "report.html inlines five figures")
+        check(len(inline) == want, "report.html inlines every figure (%d)" % want)
         for i, s in enumerate(inline):
             try:
                 ET.fromstring(s)
