@@ -351,15 +351,22 @@ static int hessian_x(objective *o, double *x, const double *g, newton_ws *w)
  * its range through its logistic map -- and are floored there. */
 #define BL_NEWTON_ZERO_EIGEN 1e-7
 
+static int lapacke_out_of_memory(lapack_int info)
+{
+    return info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR;
+}
+
 /* Eigen-decomposition of H (w->ev: eigenvectors in columns, w->lam: eigenvalues ascending); the
  * decrement sqrt(n g' H^-1 g) when H is positive semi-definite up to BL_NEWTON_ZERO_EIGEN (else
  * INFINITY), and the step p = -|H|^-1 g with eigenvalues replaced by their absolute values. Floored
  * eigenvalues add to the decrement only as far as the gradient points along them. */
-static int newton_direction(const objective *o, const double *g, newton_ws *w, double *decrement)
+static int newton_direction(objective *o, const double *g, newton_ws *w, double *decrement)
 {
     size_t k = o->k;
     memcpy(w->ev, w->H, k * k * sizeof *w->ev);
-    if (LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)k, w->ev, (lapack_int)k, w->lam) != 0) return 0;
+    lapack_int info = LAPACKE_dsyev(LAPACK_ROW_MAJOR, 'V', 'U', (lapack_int)k, w->ev, (lapack_int)k, w->lam);
+    if (lapacke_out_of_memory(info)) o->out_of_memory = 1; /* the fit must fail, not take another path */
+    if (info != 0) return 0;
     double lmax = fmax(fabs(w->lam[0]), fabs(w->lam[k - 1]));
     if (!(lmax > 0) || !isfinite(lmax)) return 0;
     double floor_ = BL_NEWTON_ZERO_EIGEN * lmax, d2 = 0;
@@ -579,10 +586,6 @@ static bl_status observed_information(bl_likelihood *lik, const bl_model *m, con
 }
 
 /* LAPACKE's own workspace or transposition buffer could not be allocated. */
-static int lapacke_out_of_memory(lapack_int info)
-{
-    return info == LAPACK_WORK_MEMORY_ERROR || info == LAPACK_TRANSPOSE_MEMORY_ERROR;
-}
 
 /* Covariance = info^-1 by Cholesky (see fit.h). */
 bl_status bl_information_inverse(const double *info, size_t k, double *cov, double *cond, int *positive_definite,

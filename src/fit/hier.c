@@ -1202,6 +1202,14 @@ static double profile_end(bl_hier *h, const double *psi_hat, double m_hat, size_
 static void starting_point(bl_hier *h, const bl_fit_result *pooled, const double *pooled_coef)
 {
     memcpy(h->psi0, pooled_coef, h->p * sizeof *h->psi0);
+    /* A pooled nondecision time often sits at the fastest RT, where the likelihood falls off a cliff and
+     * the participants' Hessians are useless: start 2% below it (identity link; the optimiser moves it
+     * back where the data want it). */
+    for (size_t c = 0; c < h->p; c++) {
+        const bl_coef_info *ci = bl_model_coef(h->m, c);
+        if (ci->param == BL_NONDECISION && ci->slope < 0 && h->m->par[BL_NONDECISION].link != BL_LINK_LOG)
+            h->psi0[c] *= 0.98;
+    }
     for (size_t c = 0; c < h->p; c++) {
         double se = pooled && pooled->n_coef == h->p ? pooled->coef[c].se : NAN;
         h->scale[c] = isfinite(se) && se > 0 ? se : 0.05 * fmax(1, fabs(pooled_coef[c]));
@@ -1578,7 +1586,7 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
     }
     starting_point(h, pooled, pooled_coef);
     if ((h->pooled_coef = malloc((h->p ? h->p : 1) * sizeof *h->pooled_coef)))
-        memcpy(h->pooled_coef, pooled_coef, h->p * sizeof *h->pooled_coef);
+        memcpy(h->pooled_coef, h->psi0, h->p * sizeof *h->pooled_coef); /* the start, backed off the edge */
     else h->nomem = 1;
     set_free(h, NULL, NULL);
     /* Near an edge (nondecision at the fastest RT) the starting spread can leave a participant without
@@ -1590,7 +1598,8 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
     if (!isfinite(m_hat)) {
         st = bl_error_set(err, BL_ERR_NUMERIC,
                           "model '%s': the hierarchical fit found no point where every participant's likelihood has "
-                          "a mode (start: the pooled estimates)",
+                          "a mode (start: the pooled estimates; a participant's trials may allow almost no spread in "
+                          "some term): let fewer terms vary (\"varies\": []) or fit with \"participants\": \"pooled\"",
                           r->name);
         goto done;
     }

@@ -10,7 +10,10 @@ seeds=${1:-60}
 py=/usr/bin/python3
 [ -x "$py" ] || skip "/usr/bin/python3 missing"
 for s in $(seq 1 "$seeds"); do
+    # pooled, named: this checks the pooled pipeline on data without participant spread (hierarchical
+    # coverage on heterogeneous data is the hier-coverage test)
     "$BANDLINK" simulate "$BL_SOURCE_ROOT/tests/cli/simulate_small.json" --out "$tmp/s$s" --seed "$s" --quiet --threads 2 \
+        && sed -i 's/"models":/"fit": {"participants": "pooled"}, "models":/' "$tmp/s$s/study.json" \
         && "$BANDLINK" run "$tmp/s$s/study.json" --out "$tmp/r$s" --quiet --threads 2 || bail "seed $s"
 done
 tally "$py" - "$tmp" "$seeds" <<'PY'
