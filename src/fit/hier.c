@@ -48,6 +48,7 @@
  * not converged rather than running on). */
 #define HIER_OUTER_BUDGET 5000
 #define HIER_MAX_EFFECTS 12
+#define Z975 1.959963984540054 /* standard normal 97.5% quantile */
 
 typedef struct {
     bl_likelihood *lik;
@@ -904,13 +905,12 @@ done:
     return it;
 }
 
-static bl_status set_free(bl_hier *h, const unsigned char *fixed, bl_error *err)
+/* The components the optimiser moves: all but those flagged in fixed (NULL: all). */
+static void set_free(bl_hier *h, const unsigned char *fixed)
 {
     h->n_free = 0;
     for (size_t c = 0; c < h->d; c++)
         if (!fixed || !fixed[c]) h->free_idx[h->n_free++] = c;
-    (void)err;
-    return BL_OK;
 }
 
 /* Observed information of the summed marginal log-likelihood in x units (second differences) at
@@ -1119,7 +1119,7 @@ static double constrained_max(bl_hier *h, double *psi, const unsigned char *fixe
         free(trial);
     }
     memcpy(h->psi0, psi, d * sizeof *psi);
-    set_free(h, fixed, NULL);
+    set_free(h, fixed);
     double g;
     outer_maximise(h, tol, &best, &g);
     memcpy(psi, h->psi0, d * sizeof *psi);
@@ -1454,8 +1454,8 @@ static int fill_participants(const bl_hier *h, const bl_fit_result *pop, bl_mode
             for (size_t a = 0; a < q; a++)
                 for (size_t i = 0; i < h->eff[a].n; i++)
                     if (h->eff[a].coef[i] == c) co->se = sqrt(fmax(var_u[a], 0));
-            co->ci_low = co->estimate - 1.959963984540054 * co->se;
-            co->ci_high = co->estimate + 1.959963984540054 * co->se;
+            co->ci_low = co->estimate - Z975 * co->se;
+            co->ci_high = co->estimate + Z975 * co->se;
         }
     }
     return 1;
@@ -1532,13 +1532,13 @@ static bl_status fill_variance(bl_hier *h, double m_hat, const double *cov_psi, 
                 }
             double se_log = sqrt(var) / (vc->sd * vc->sd);
             if (isfinite(se_log)) {
-                vc->ci_low = vc->sd * exp(-1.959963984540054 * se_log);
-                vc->ci_high = vc->sd * exp(1.959963984540054 * se_log);
+                vc->ci_low = vc->sd * exp(-Z975 * se_log);
+                vc->ci_high = vc->sd * exp(Z975 * se_log);
             }
         }
     }
     memcpy(h->psi0, psi_hat, d * sizeof *psi_hat);
-    set_free(h, NULL, NULL);
+    set_free(h, NULL);
     bl_hier_marginal(h, h->psi0); /* the participants' modes back at the estimate */
     if (!st && h->correlated && q > 0) {
         double L[HIER_MAX_EFFECTS * HIER_MAX_EFFECTS];
@@ -1588,7 +1588,7 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
     if ((h->pooled_coef = malloc((h->p ? h->p : 1) * sizeof *h->pooled_coef)))
         memcpy(h->pooled_coef, h->psi0, h->p * sizeof *h->pooled_coef); /* the start, backed off the edge */
     else h->nomem = 1;
-    set_free(h, NULL, NULL);
+    set_free(h, NULL);
     /* Near an edge (nondecision at the fastest RT) the starting spread can leave a participant without
      * a mode: start with less spread then. */
     for (int shrink = 0; shrink < 3 && !isfinite(bl_hier_marginal(h, h->psi0)); shrink++)
@@ -1603,18 +1603,16 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
                           r->name);
         goto done;
     }
-    unsigned char edge[HIER_MAX_EFFECTS * (HIER_MAX_EFFECTS + 1) / 2 + 256];
-    unsigned char *edge_flags = d <= sizeof edge ? edge : calloc(d, 1);
+    unsigned char *edge_flags = calloc(d, 1);
     if (!edge_flags) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory");
         goto done;
     }
-    memset(edge_flags, 0, d);
     double dec = polish(h, &m_hat, info, edge_flags);
     double cond = NAN;
     int pd = 0;
     if (isfinite(dec)) st = reduced_inverse(h, info, edge_flags, cov_x, &cond, &pd, err);
-    if (edge_flags != edge) free(edge_flags);
+    free(edge_flags);
     if (st) goto done;
     for (size_t a = 0; a < d; a++)
         for (size_t b = 0; b < d; b++) cov_psi[a * d + b] = pd ? cov_x[a * d + b] * h->scale[a] * h->scale[b] : NAN;
@@ -1692,10 +1690,10 @@ double bl_hier_refit(bl_hier *h, const unsigned char *coef_at_zero, double tol)
             h->psi0[idx] = 0;
         }
     }
-    set_free(h, fixed, NULL);
+    set_free(h, fixed);
     double best, g;
     outer_maximise(h, tol, &best, &g);
-    set_free(h, NULL, NULL);
+    set_free(h, NULL);
     free(fixed);
     return best;
 }
