@@ -39,6 +39,25 @@ static void spread_table(bl_textbuf *b, const bl_model_result *mr)
     }
 }
 
+/* Pooled fit: nondecision and variability parameters with their profile-likelihood intervals. */
+static void profile_table(bl_textbuf *b, const bl_fit_result *fr)
+{
+    int any = 0;
+    for (size_t j = 0; j < fr->n_coef; j++) {
+        const bl_coefficient *c = &fr->coef[j];
+        if (!c->profiled) continue;
+        if (!any) bl_textbuf_printf(b, "  Profile-likelihood 95%% intervals:\n");
+        any = 1;
+        char name[256], est[32], lo[32], hi[32];
+        snprintf(name, sizeof name, "%s%s%s%s%s", c->parameter, strcmp(c->term, "intercept") ? ": slope on " : "",
+                 strcmp(c->term, "intercept") ? c->term : "", c->level[0] ? " " : "", c->level);
+        fmt_num(est, sizeof est, c->estimate, "%.4f");
+        fmt_num(lo, sizeof lo, c->profile_low, "%.4f");
+        fmt_num(hi, sizeof hi, c->profile_high, "%.4f");
+        bl_textbuf_printf(b, "  %-40s %10s   [%s, %s]\n", name, est, lo, hi);
+    }
+}
+
 static void comparison_table(bl_textbuf *b, const bl_fit_set *set)
 {
     bl_textbuf_printf(b, "Model comparison (%s; lowest AIC is best)\n",
@@ -85,6 +104,7 @@ static void slopes_of(bl_textbuf *b, const bl_model_result *mr)
     for (size_t j = 0; j < fr->n_coef; j++) n_slopes += strcmp(fr->coef[j].term, "intercept") != 0;
     if (n_slopes == 0) {
         bl_textbuf_printf(b, "  (no slopes: band power does not enter this model)\n");
+        if (mr->mode == BL_PARTICIPANTS_POOLED) profile_table(b, fr);
         return;
     }
     bl_textbuf_printf(b, "  %-40s %10s %23s %10s\n", "slope", "estimate", "95% CI", "p");
@@ -101,6 +121,7 @@ static void slopes_of(bl_textbuf *b, const bl_model_result *mr)
         snprintf(ci, sizeof ci, "[%s, %s]", lo, hi);
         bl_textbuf_printf(b, "  %-40s %10s %23s %10s\n", name, est, ci, p);
     }
+    if (mr->mode == BL_PARTICIPANTS_POOLED) profile_table(b, fr);
     if (mr->mode == BL_PARTICIPANTS_SEPARATE)
         bl_textbuf_printf(b,
                           "  (separate fits: group random-effects estimates; per-participant values in fits.json)\n");

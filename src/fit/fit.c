@@ -23,6 +23,7 @@
 
 #include "fit/fit.h"
 #include "fit/screen.h"
+#include "fit/profile.h"
 #include "core/strutil.h"
 #include "core/gsl_guard.h"
 
@@ -1018,7 +1019,7 @@ static int fill_coefficients(const bl_model *m, const double *coef, const double
         c->level = bl_strdup(ci->level);
         if (!c->term || !c->level) return 0;
         c->estimate = coef[j];
-        c->se = c->z = c->p = c->ci_low = c->ci_high = c->df = NAN;
+        c->se = c->z = c->p = c->ci_low = c->ci_high = c->df = c->profile_low = c->profile_high = NAN;
         if (wald) {
             c->se = sqrt(cov[j * k + j]);
             c->z = c->estimate / c->se;
@@ -1028,6 +1029,47 @@ static int fill_coefficients(const bl_model *m, const double *coef, const double
         }
     }
     return 1;
+}
+
+/* ---- profile-likelihood intervals ------------------------------------------------------------- */
+
+/* Coefficients whose Wald interval is a poor guide: nondecision (the likelihood changes steeply toward
+ * the fastest RT) and the variability parameters (their value 0 is the edge of the range). */
+static int profiled_param(bl_param p)
+{
+    return p == BL_NONDECISION || p == BL_DRIFT_SD || p == BL_START_RANGE || p == BL_NONDECISION_RANGE ||
+           p == BL_CONTAMINATION;
+}
+
+typedef struct {
+    bl_likelihood *lik;
+    const bl_model *m;
+} profile_target;
+
+static double profile_loglik(void *user, double *coef, double *grad)
+{
+    const profile_target *t = user;
+    return eval_even(t->lik, t->m, coef, grad);
+}
+
+/* Profile intervals of the profiled parameters' coefficients of a converged fit at coef (information
+ * info there). The smallest value of an intercept-only identity-link coefficient is 0. */
+static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const double *coef, double ll,
+                               const double *info, bl_fit_result *res, bl_error *err)
+{
+    profile_target t = {lik, m};
+    bl_profile_problem p = {m->n_coef, coef, ll, info, profile_loglik, &t, 0};
+    for (size_t j = 0; j < m->n_coef; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (!profiled_param(ci->param)) continue;
+        int bounded = ci->slope < 0 && !d->n_slopes && d->link == BL_LINK_IDENTITY;
+        bl_coefficient *c = &res->coef[j];
+        bl_status st = bl_profile_interval(&p, j, bounded ? 0.0 : -INFINITY, &c->profile_low, &c->profile_high, err);
+        if (st) return st;
+        c->profiled = 1;
+    }
+    return BL_OK;
 }
 
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
@@ -1080,6 +1122,7 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     res->aic = 2.0 * (double)k - 2.0 * ll;
     res->bic = (double)k * log((double)m->n) - 2.0 * ll;
     if (!fill_coefficients(m, coef, cov, infer && res->diag.hessian_positive_definite, res)) goto nomem;
+    if (infer >= 2 && res->converged && (st = fill_profiles(m, lik, coef, ll, info, res, err))) goto fail;
     if (infer && res->diag.hessian_positive_definite) {
         res->covariance = cov;
         cov = NULL;
@@ -1157,8 +1200,14 @@ static int wald_below_zero(const bl_model *m, const bl_fit_result *r, char *buf,
         const bl_coefficient *c = &r->coef[j];
         if (!(c->ci_low < 0) || c->estimate < 1e-3) continue; /* at the edge: edge_estimates reports it */
         size_t len = strlen(buf);
-        snprintf(buf + len, n - len, "%s%s%s%s (%.3g, interval %.3g to %.3g)", found ? ", " : "",
-                 bl_param_name(ci->param), ci->level[0] ? " " : "", ci->level, c->estimate, c->ci_low, c->ci_high);
+        if (c->profiled)
+            snprintf(buf + len, n - len, "%s%s%s%s (%.3g, Wald %.3g to %.3g, profile %.3g to %.3g)", found ? ", " : "",
+                     bl_param_name(ci->param), ci->level[0] ? " " : "", ci->level, c->estimate, c->ci_low,
+                     c->ci_high, c->profile_low, c->profile_high);
+        else
+            snprintf(buf + len, n - len, "%s%s%s%s (%.3g, interval %.3g to %.3g)", found ? ", " : "",
+                     bl_param_name(ci->param), ci->level[0] ? " " : "", ci->level, c->estimate, c->ci_low,
+                     c->ci_high);
         found = 1;
     }
     return found;
@@ -1180,13 +1229,15 @@ void bl_fit_warn(const bl_model *m, const char *participant, const bl_fit_result
                         who, r->diag.newton_decrement, r->diag.gradient_norm,
                         at_edge ? "; the maximum lies on the edge of the range of: " : "", at_edge ? edge : "");
     else if (at_edge)
-        bl_warnings_add(warn, "%s: estimates at the edge of their range (Wald intervals unreliable there): %s", who,
-                        edge);
+        bl_warnings_add(warn,
+                        "%s: estimates at the edge of their range (Wald intervals unreliable there; the "
+                        "profile-likelihood intervals in fits.json hold): %s",
+                        who, edge);
     char wald[512];
     if (r->diag.hessian_positive_definite && wald_below_zero(m, r, wald, sizeof wald))
         bl_warnings_add(warn,
-                        "%s: boundary estimates, Wald intervals reach below 0 (impossible values; the interval "
-                        "is not reliable near the edge of the range): %s",
+                        "%s: boundary estimates, Wald intervals reach below 0 (impossible values; the Wald "
+                        "interval is not reliable near the edge of the range, the profile-likelihood one is): %s",
                         who, wald);
     if (r->diag.starts_agreed < r->diag.starts)
         bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
@@ -1201,7 +1252,7 @@ bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const doubl
     bl_status st = bl_likelihood_create(m, opt ? opt->threads : 0, &lik, err);
     if (st) return st;
     if (opt) bl_likelihood_set_parallel(lik, opt->parallel_trials);
-    st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 1, res, NULL, err);
+    st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 2, res, NULL, err);
     if (!st) bl_fit_warn(m, NULL, res, warn);
     bl_likelihood_destroy(lik);
     return st;

@@ -47,6 +47,10 @@ typedef struct {
     double ci_low, ci_high; /* 95% Wald interval, NAN as above */
     double df;              /* hierarchical: degrees of freedom of the t reference (participants - 1) for a
                                coefficient that varies by participant; NAN: normal reference */
+    int profiled;           /* 1: profile_low/high were sought (nondecision and the variability parameters of
+                               a converged pooled or separate fit) */
+    double profile_low, profile_high; /* 95% profile-likelihood interval; an end not found is NAN; the lower
+                                         end is 0 when a variability parameter's value 0 lies inside */
 } bl_coefficient;
 
 typedef struct {

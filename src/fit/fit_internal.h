@@ -22,7 +22,8 @@ bl_status bl_build_units(const bl_model_spec *spec, const bl_trials *trials, bl_
                          const bl_fit_options *opt, bl_unit_set *u, char ***unit_names, bl_warnings *warn,
                          bl_error *err);
 /* Maximise from n_starts starts (the first `first` when feasible, else EZ values); infer = 0 skips
- * the observed information (permutation refits). coef_out (may be NULL) receives the estimates. */
+ * the observed information (permutation refits), 1 gives Wald inference, 2 adds profile-likelihood
+ * intervals of nondecision and the variability parameters. coef_out (may be NULL) receives the estimates. */
 bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_options *opt, int n_starts,
                       const double *first, int infer, bl_fit_result *res, double *coef_out, bl_error *err);
 int bl_fit_default_starts(const bl_fit_options *opt);

@@ -296,10 +296,13 @@ static void comparison_section(FILE *f, const bl_fit_set *set)
 
 static void coef_rows(FILE *f, const bl_coefficient *c, size_t n)
 {
+    int profiles = 0; /* a column of profile-likelihood intervals when any coefficient has one */
+    for (size_t j = 0; j < n; j++) profiles |= c[j].profiled;
     fputs("<div class=\"scroll\"><table><tr><th class=\"t\">parameter</th><th class=\"t\">term</th><th "
           "class=\"t\">level</th>"
-          "<th>estimate</th><th>SE</th><th>95% CI</th><th>z</th><th>p</th></tr>\n",
+          "<th>estimate</th><th>SE</th><th>95% CI</th><th>z</th><th>p</th>",
           f);
+    fputs(profiles ? "<th>95% profile CI</th></tr>\n" : "</tr>\n", f);
     for (size_t j = 0; j < n; j++) {
         fputs("<tr><td class=\"t\">", f);
         esc(f, c[j].parameter);
@@ -319,9 +322,22 @@ static void coef_rows(FILE *f, const bl_coefficient *c, size_t n)
         fixed(f, c[j].z, 2);
         fputs("</td><td>", f);
         pval(f, c[j].p);
+        if (profiles) {
+            fputs("</td><td>", f);
+            if (c[j].profiled) {
+                g4(f, c[j].profile_low);
+                fputs(" to ", f);
+                g4(f, c[j].profile_high);
+            }
+        }
         fputs("</td></tr>\n", f);
     }
     fputs("</table></div>\n", f);
+    if (profiles)
+        fputs("<p class=\"muted\">95% profile CI: the values whose profile likelihood is within &#967;&#178;&#8321;(0.95)/2 "
+              "of the maximum (nondecision and the variability parameters, whose Wald intervals are poor near the "
+              "fastest RT or the edge of the range).</p>\n",
+              f);
 }
 
 /* Hierarchical: the participant spread of each varying term, and the participants' own estimates. */

@@ -63,6 +63,8 @@ static cJSON *coefficients_json(const bl_fit_result *f)
                  add_num(o, "ci_low", c->ci_low) && add_num(o, "ci_high", c->ci_high) && add_num(o, "z", c->z) &&
                  add_num(o, "p", c->p);
         if (ok && f->participant == NULL && isfinite(c->df)) ok = add_num(o, "df", c->df);
+        if (ok && c->profiled)
+            ok = add_num(o, "profile_ci_low", c->profile_low) && add_num(o, "profile_ci_high", c->profile_high);
         if (!ok) {
             cJSON_Delete(a);
             return NULL;
