@@ -27,6 +27,7 @@ typedef struct {
     int stimulus;                                  /* 1: stimulus coding with random stimuli */
     double v_step;                                 /* participant p (0-based) adds p * v_step to drift */
     const double *a_offset, *v_offset, *t0_offset; /* participant p adds [p] to threshold, drift, t0 */
+    double sv, sz, st;                             /* drift_sd, start_range, nondecision_range (0: none) */
 } sim_truth;
 
 static const char *sim_contexts[2] __attribute__((unused)) = {"rich", "lean"};
@@ -88,6 +89,9 @@ static inline bl_trials *sim_trials(const sim_truth *tr, unsigned long seed)
         w.value[BL_DRIFT] = sign * v;
         w.value[BL_NONDECISION] = tr->t0 + (tr->t0_offset ? tr->t0_offset[p] : 0);
         w.value[BL_START] = 0.5;
+        w.value[BL_DRIFT_SD] = tr->sv;
+        w.value[BL_START_RANGE] = tr->sz;
+        w.value[BL_NONDECISION_RANGE] = tr->st;
         int up;
         double rt;
         if (bl_wiener_sample(&w, rng, &up, &rt, NULL) != BL_OK) {

@@ -681,7 +681,12 @@ static bl_status plan_fit(const bl_model *m, transform *tr, double *start, bl_er
         case BL_START: value = 0.5; break;
         case BL_DRIFT_SD: value = 0.5; break;
         case BL_START_RANGE: value = 0.1; break;
-        case BL_NONDECISION_RANGE: value = 0.1 * minrt; break;
+        case BL_NONDECISION_RANGE:
+            value = 0.1 * minrt;
+            /* a nondecision fixed at or above the fastest RT needs a window reaching below it */
+            if (!m->par[BL_NONDECISION].is_free && m->par[BL_NONDECISION].fixed - 0.5 * value >= 0.99 * minrt)
+                value = fmin(2 * (m->par[BL_NONDECISION].fixed - 0.95 * minrt), 2 * m->par[BL_NONDECISION].fixed);
+            break;
         default: value = 0.02; break;
         }
         if (log_link) {
