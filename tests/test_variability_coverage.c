@@ -28,6 +28,7 @@ typedef struct {
     int fitted, converged;
     double truth[N_WATCHED], estimate[N_WATCHED];
     int wald_cover[N_WATCHED], profile_cover[N_WATCHED], profile_found[N_WATCHED];
+    double profile_low[N_WATCHED], profile_high[N_WATCHED];
     size_t evaluations;
     double seconds;
     char error[1100];
@@ -89,6 +90,8 @@ static void fit_one(unsigned d, dataset_result *out)
                 const bl_coefficient *c = &res.coef[j];
                 if (c->param != watched[w]) continue;
                 out->estimate[w] = c->estimate;
+                out->profile_low[w] = c->profile_low;
+                out->profile_high[w] = c->profile_high;
                 out->wald_cover[w] = c->ci_low <= truth[w] && truth[w] <= c->ci_high;
                 out->profile_found[w] = c->profiled && isfinite(c->profile_low) && isfinite(c->profile_high);
                 out->profile_cover[w] = out->profile_found[w] && c->profile_low <= truth[w] && truth[w] <= c->profile_high;
@@ -120,6 +123,7 @@ HARNESS_CASE(every_dataset_fits_and_converges)
         evals += results[d].evaluations;
         secs += results[d].seconds;
         if (!results[d].fitted) check_true(0, "dataset %u: %s", d, results[d].error);
+        else if (!results[d].converged) printf("# data set %u did not converge\n", d);
     }
     printf("# %u data sets x %u trials: %u fitted, %u converged; mean %.0f evaluations, %.2f s per fit "
            "(profile intervals included)\n",
@@ -142,6 +146,10 @@ HARNESS_CASE(profile_interval_coverage)
             wald += results[d].wald_cover[w];
             prof += results[d].profile_cover[w];
             found += results[d].profile_found[w];
+            if (!results[d].profile_found[w])
+                printf("# data set %u: %s truth %.4f, estimate %.4f, profile interval %g to %g\n", d, names[w],
+                       results[d].truth[w], results[d].estimate[w], results[d].profile_low[w],
+                       results[d].profile_high[w]);
             bias += results[d].estimate[w] - results[d].truth[w];
         }
         unsigned lo, hi;

@@ -125,13 +125,15 @@ static int cell_ez(const cell_stats *c, double *v, double *a, double *t0)
  * nondecision, whose average is an even function of the width): the log-likelihood is then a smooth
  * even function of x, a maximum at the edge (coef = 0) is an ordinary stationary point at x = 0, and
  * Newton converges there quadratically instead of creeping toward log(0) = -inf. */
-enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC, TR_EVEN };
+/* TR_SQUARE: coef = x^2 / (1 + x^2), for contamination in [0, 1): a maximum at its edge (coef = 0, the
+ * log-likelihood falling into the interior) is a stationary point at x = 0 with curvature 2 dLL/dcoef,
+ * reached by Newton quadratically; such an estimate is then held at 0 for inference (see held_at_edge). */
+enum { TR_RAW = 0, TR_EXP, TR_LOGISTIC, TR_EVEN, TR_SQUARE };
 
 typedef struct {
     int type;
     double lo, hi; /* TR_LOGISTIC: coef = lo + (hi - lo) * logistic(x) */
     double scale;  /* TR_RAW: coef = x / scale */
-    int edge;      /* a variability parameter whose maximum may lie at its lower edge (x -> -inf) */
 } transform;
 
 static double to_coef(const transform *t, double x)
@@ -139,6 +141,7 @@ static double to_coef(const transform *t, double x)
     switch (t->type) {
     case TR_EXP: return exp(x);
     case TR_EVEN: return fabs(x);
+    case TR_SQUARE: return x * x / (1 + x * x);
     case TR_LOGISTIC: return t->lo + (t->hi - t->lo) / (1 + exp(-x));
     default: return x / t->scale;
     }
@@ -149,6 +152,7 @@ static double dcoef_dx(const transform *t, double x)
     switch (t->type) {
     case TR_EXP: return exp(x);
     case TR_EVEN: return x < 0 ? -1.0 : 1.0;
+    case TR_SQUARE: return 2 * x / ((1 + x * x) * (1 + x * x));
     case TR_LOGISTIC: {
         double s = 1 / (1 + exp(-x));
         return (t->hi - t->lo) * s * (1 - s);
@@ -162,6 +166,7 @@ static double to_x(const transform *t, double c)
     switch (t->type) {
     case TR_EXP: return c > 0 ? log(c) : -30;
     case TR_EVEN: return fabs(c);
+    case TR_SQUARE: return c > 0 && c < 1 ? sqrt(c / (1 - c)) : c >= 1 ? 1e6 : 0;
     case TR_LOGISTIC: {
         double u = (c - t->lo) / (t->hi - t->lo);
         if (u < 1e-12) u = 1e-12;
@@ -425,37 +430,13 @@ static double line_search(objective *o, double *x, double *f, double *g, newton_
     return 0;
 }
 
-/* A maximum of contamination at its lower edge lies at x -> -inf of its logistic map, where the
- * objective behaves like e^x times the one-sided derivative: each Newton step moves x by about
- * -1 and the decrement falls only by e^-1/2 per step. When the step for such a coordinate is below
- * -0.5, try the full step with that coordinate moved 16 further toward the edge (c x 1e-7), kept only
- * when it satisfies the same sufficient-decrease condition as the line search. Returns 1 when taken. */
-static int edge_jump(objective *o, double *x, double *f, double *g, newton_ws *w)
-{
-    size_t k = o->k;
-    int any = 0;
-    double slope = 0;
-    for (size_t i = 0; i < k; i++) {
-        int jump = o->tr[i].edge && w->p[i] < -0.5;
-        any |= jump;
-        w->xt[i] = x[i] + w->p[i] + (jump ? -16.0 : 0.0);
-        slope += g[i] * (w->xt[i] - x[i]);
-    }
-    double ft;
-    if (!any || !(slope < 0) || !eval_x(o, w->xt, &ft, w->gt) || !(ft <= *f + 1e-4 * slope)) return 0;
-    memcpy(x, w->xt, k * sizeof *x);
-    memcpy(g, w->gt, k * sizeof *g);
-    *f = ft;
-    return 1;
-}
-
 /* Damped Newton on the objective from x (updated in place): Hessian by forward differences of the
  * analytic gradient, eigenvalue-modified step, backtracking line search, step length limited by a
  * radius that doubles after full steps. Stops when the Newton decrement is below BL_NEWTON_DECREMENT
  * (checked with the last Hessian after each step, so a converged fit needs no further Hessian).
  * Returns the minimum found (+inf when x is infeasible); *converged says whether it stopped there.
- * A maximum of drift_sd, start_range or nondecision_range at 0 is an ordinary stationary point (TR_EVEN);
- * one of contamination at 0 is approached by edge_jump. */
+ * A maximum of drift_sd, start_range or nondecision_range at 0 is an ordinary stationary point (TR_EVEN),
+ * and so is one of contamination at 0 (TR_SQUARE). */
 static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *converged)
 {
     size_t k = o->k;
@@ -487,9 +468,7 @@ static double run_newton(objective *o, gsl_vector *xv, size_t *iterations, int *
         }
         double f_before = f;
         int first = 0;
-        double moved = dec < 10 && edge_jump(o, x, &f, w.g, &w) ? 1.0 : 0.0;
-        if (moved > 0) first = 1;
-        else moved = line_search(o, x, &f, w.g, &w, radius, &first);
+        double moved = line_search(o, x, &f, w.g, &w, radius, &first);
         if (!(moved > 0)) break;
         if (first && moved >= radius * 0.999) radius = fmin(2 * radius, 64.0); /* capped and accepted */
         else if (!first) radius = fmax(moved, 0.25);
@@ -540,8 +519,8 @@ static double eval_even(bl_likelihood *lik, const bl_model *m, double *c, double
 /* Observed information I = -H by central differences of the analytic gradient, symmetrised.
  * *found = 0 when a step leaves the feasible region even after shrinking. BL_ERR_NOMEM when memory
  * ran out: the caller fails the fit rather than report "not positive definite". */
-static bl_status observed_information(bl_likelihood *lik, const bl_model *m, const double *coef, double *info,
-                                      int *found, bl_error *err)
+static bl_status observed_information(bl_likelihood *lik, const bl_model *m, const double *coef,
+                                      const unsigned char *held, double *info, int *found, bl_error *err)
 {
     size_t k = m->n_coef;
     double *c = malloc(k * sizeof *c), *gp = malloc(k * sizeof *gp), *gm = malloc(k * sizeof *gm);
@@ -555,6 +534,7 @@ static bl_status observed_information(bl_likelihood *lik, const bl_model *m, con
     int ok = 1;
     memcpy(c, coef, k * sizeof *c);
     for (size_t j = 0; ok && j < k; j++) {
+        if (held && held[j]) continue; /* its row and column are set below */
         double scale = 1.0;
         const bl_coef_info *ci = &m->coef[j];
         if (ci->slope >= 0) scale = 1.0 / m->par[ci->param].slopes[ci->slope].rms;
@@ -579,6 +559,11 @@ static bl_status observed_information(bl_likelihood *lik, const bl_model *m, con
                 double a = 0.5 * (info[i * k + j] + info[j * k + i]);
                 info[i * k + j] = info[j * k + i] = a;
             }
+    /* a coefficient held at the edge of its range is fixed for inference: a unit row and column, so
+     * the others' covariance is that of the model with it fixed there */
+    for (size_t j = 0; ok && held && j < k; j++)
+        if (held[j])
+            for (size_t i = 0; i < k; i++) info[i * k + j] = info[j * k + i] = i == j ? 1.0 : 0.0;
     free(c);
     free(gp);
     free(gm);
@@ -702,12 +687,11 @@ static bl_status plan_fit(const bl_model *m, transform *tr, double *start, bl_er
         case BL_DRIFT_SD:
         case BL_START_RANGE:
         case BL_NONDECISION_RANGE: tr[j].type = TR_EVEN; break;
+        case BL_CONTAMINATION: tr[j].type = TR_SQUARE; break;
         case BL_START:
-        case BL_CONTAMINATION:
             tr[j].type = TR_LOGISTIC;
             tr[j].lo = 0;
             tr[j].hi = 1;
-            tr[j].edge = ci->param == BL_CONTAMINATION;
             break;
         case BL_NONDECISION:
             if (!st_free && !p0_free) {
@@ -937,6 +921,7 @@ typedef struct {
     double *coef, *grad, *info, *cov;
     double ll, cond;
     int pd;
+    const unsigned char *held; /* coefficients held at the edge of their range (NULL: none) */
 } newton_state;
 
 /* Newton polishing with the observed information: each step is checked to raise the likelihood
@@ -948,11 +933,13 @@ static bl_status newton_polish(objective *o, newton_state *s, double *decrement,
     size_t k = o->k;
     for (int polish = 0; polish < 8; polish++) {
         int oi = 0, inv = 0;
-        bl_status st = observed_information(o->lik, o->m, s->coef, s->info, &oi, err);
+        bl_status st = observed_information(o->lik, o->m, s->coef, s->held, s->info, &oi, err);
         if (st) return st;
         if (oi && (st = bl_information_inverse(s->info, k, s->cov, &s->cond, &inv, err))) return st;
         s->pd = oi && inv;
         if (!s->pd) break;
+        for (size_t i = 0; s->held && i < k; i++)
+            if (s->held[i]) s->grad[i] = 0; /* held: no step, and no part of the decrement */
         double nd2 = 0;
         for (size_t i = 0; i < k; i++)
             for (size_t j = 0; j < k; j++) nd2 += s->grad[i] * s->cov[i * k + j] * s->grad[j];
@@ -1007,9 +994,32 @@ static bl_status polish_and_infer(objective *o, newton_state *s, bl_fit_result *
     return BL_OK;
 }
 
+/* Contamination (TR_SQUARE) estimated within 1e-4 of 0 where the log-likelihood falls into the interior
+ * (dLL/dcoef <= 0 at 0: the condition for a maximum on the edge) is held at exactly 0 for inference: no
+ * Wald SE (the likelihood has a slope there, not a peak), the others' information with it fixed, and a
+ * profile interval from 0. Updates coef, grad and *ll; returns the number held. */
+static size_t hold_edges(objective *o, double *coef, double *grad, double *ll, unsigned char *held)
+{
+    size_t n_held = 0;
+    for (size_t j = 0; j < o->k; j++) {
+        if (o->tr[j].type != TR_SQUARE || !(coef[j] < 1e-4)) continue;
+        double keep = coef[j];
+        coef[j] = 0;
+        double l0 = bl_likelihood_eval(o->lik, coef, o->grad);
+        if (isfinite(l0) && o->grad[j] <= 0 && l0 >= *ll - 1e-6) {
+            held[j] = 1;
+            n_held++;
+            *ll = l0;
+            memcpy(grad, o->grad, o->k * sizeof *grad);
+        } else coef[j] = keep;
+    }
+    return n_held;
+}
+
 /* The coefficient table of res: names and estimates, with Wald standard errors, z, p and 95%
  * intervals from cov when `wald`. Returns 0 when out of memory. */
-static int fill_coefficients(const bl_model *m, const double *coef, const double *cov, int wald, bl_fit_result *res)
+static int fill_coefficients(const bl_model *m, const double *coef, const double *cov, const unsigned char *held,
+                             int wald, bl_fit_result *res)
 {
     size_t k = m->n_coef;
     res->coef = calloc(k, sizeof *res->coef);
@@ -1025,7 +1035,7 @@ static int fill_coefficients(const bl_model *m, const double *coef, const double
         if (!c->term || !c->level) return 0;
         c->estimate = coef[j];
         c->se = c->z = c->p = c->ci_low = c->ci_high = c->df = c->profile_low = c->profile_high = NAN;
-        if (wald) {
+        if (wald && !held[j]) {
             c->se = sqrt(cov[j * k + j]);
             c->z = c->estimate / c->se;
             c->p = 2 * gsl_cdf_ugaussian_Q(fabs(c->z));
@@ -1059,11 +1069,29 @@ static double profile_loglik(void *user, double *coef, double *grad)
 
 /* Profile intervals of the profiled parameters' coefficients of a converged fit at coef (information
  * info there). The smallest value of an intercept-only identity-link coefficient is 0. */
-static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const double *coef, double ll,
-                               const double *info, bl_fit_result *res, bl_error *err)
+static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const double *coef, double *grad, double ll,
+                               double *info, const unsigned char *held, bl_fit_result *res, bl_error *err)
 {
     profile_target t = {lik, m};
-    bl_profile_problem p = {m->n_coef, coef, ll, info, profile_loglik, &t, 0};
+    size_t k = m->n_coef;
+    /* a held coefficient: the scale of its search from the slope g at the edge (LL ~ LL_max + g b reaches
+     * the critical drop at b = z^2 / (2|g|)), so the first point lands near the end */
+    int any_held = 0;
+    for (size_t j = 0; j < k; j++) any_held |= held[j];
+    if (any_held) bl_likelihood_eval(lik, coef, grad);
+    for (size_t j = 0; j < k; j++)
+        if (held[j]) info[j * k + j] = fmax(4 * grad[j] * grad[j] / (Z975 * Z975), 1e-12);
+    /* contamination cannot go below 0 while the others are maximised (the even variability
+     * parameters need no bound: eval_even reads them as |value|) */
+    double *lower = malloc(k * sizeof *lower);
+    if (!lower) return bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory for profile intervals", m->name);
+    for (size_t j = 0; j < k; j++) lower[j] = -INFINITY;
+    for (size_t j = 0; j < k; j++) {
+        const bl_coef_info *ci = &m->coef[j];
+        const bl_param_design *d = &m->par[ci->param];
+        if (ci->param == BL_CONTAMINATION && ci->slope < 0 && !d->n_slopes && d->link == BL_LINK_IDENTITY) lower[j] = 0;
+    }
+    bl_profile_problem p = {k, coef, ll, info, lower, profile_loglik, &t, 0};
     for (size_t j = 0; j < m->n_coef; j++) {
         const bl_coef_info *ci = &m->coef[j];
         const bl_param_design *d = &m->par[ci->param];
@@ -1071,9 +1099,13 @@ static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const doub
         int bounded = ci->slope < 0 && !d->n_slopes && d->link == BL_LINK_IDENTITY;
         bl_coefficient *c = &res->coef[j];
         bl_status st = bl_profile_interval(&p, j, bounded ? 0.0 : -INFINITY, &c->profile_low, &c->profile_high, err);
-        if (st) return st;
+        if (st) {
+            free(lower);
+            return st;
+        }
         c->profiled = 1;
     }
+    free(lower);
     return BL_OK;
 }
 
@@ -1089,9 +1121,11 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     double *info = NULL, *cov = NULL, *lls = calloc((size_t)n_starts + 1, sizeof *lls);
     double *wcoef = malloc(k * sizeof *wcoef), *wgrad = malloc(k * sizeof *wgrad);
     double *cache_x = malloc(k * sizeof *cache_x), *cache_g = malloc(k * sizeof *cache_g);
+    unsigned char *held = calloc(k ? k : 1, 1);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     memset(res, 0, sizeof *res);
-    if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !cache_x || !cache_g || !rng) goto nomem;
+    if (!tr || !start || !coef || !grad || !lls || !wcoef || !wgrad || !cache_x || !cache_g || !held || !rng)
+        goto nomem;
     gsl_rng_set(rng, bl_fit_mix_seed(opt ? opt->seed : 1, m->name, 0x5EED));
     if ((st = choose_start(m, lik, first, tr, start, err))) goto fail;
     objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0, infer ? 1e-3 : 1e-5};
@@ -1108,26 +1142,29 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     }
     double ll = bl_likelihood_eval(lik, coef, grad);
     record_optimum(m, &best, n_starts, agreed, ll, res);
+    size_t n_held = hold_edges(&o, coef, grad, &ll, held);
     if (infer) {
         info = malloc(k * k * sizeof *info);
         cov = malloc(k * k * sizeof *cov);
         if (!info || !cov) goto nomem;
-        newton_state s = {coef, grad, info, cov, ll, NAN, 0};
+        newton_state s = {coef, grad, info, cov, ll, NAN, 0, n_held ? held : NULL};
         if ((st = polish_and_infer(&o, &s, res, err))) goto fail;
         ll = s.ll;
-    } else {
-        double gmax = 0;
-        for (size_t j = 0; j < k; j++) gmax = fmax(gmax, fabs(grad[j]));
-        res->converged = gmax < 1e-3 * (double)m->n;
     }
-    double gmax = 0;
-    for (size_t j = 0; j < k; j++) gmax = fmax(gmax, fabs(grad[j]));
+    double gmax = 0; /* a held coefficient's derivative is the slope at the edge, not a distance to go */
+    for (size_t j = 0; j < k; j++)
+        if (!held[j]) gmax = fmax(gmax, fabs(grad[j]));
+    if (!infer) res->converged = gmax < 1e-3 * (double)m->n;
     res->diag.gradient_norm = gmax;
     res->diag.converged = res->converged;
     res->aic = 2.0 * (double)k - 2.0 * ll;
     res->bic = (double)k * log((double)m->n) - 2.0 * ll;
-    if (!fill_coefficients(m, coef, cov, infer && res->diag.hessian_positive_definite, res)) goto nomem;
-    if (infer >= 2 && res->converged && (st = fill_profiles(m, lik, coef, ll, info, res, err))) goto fail;
+    if (!fill_coefficients(m, coef, cov, held, infer && res->diag.hessian_positive_definite, res)) goto nomem;
+    if (infer && res->diag.hessian_positive_definite) {
+        for (size_t j = 0; j < k; j++) /* a held coefficient is known: no variance, no covariance */
+            for (size_t i = 0; held[j] && i < k; i++) cov[i * k + j] = cov[j * k + i] = 0;
+    }
+    if (infer >= 2 && res->converged && (st = fill_profiles(m, lik, coef, grad, ll, info, held, res, err))) goto fail;
     if (infer && res->diag.hessian_positive_definite) {
         res->covariance = cov;
         cov = NULL;
@@ -1153,6 +1190,7 @@ done:
     free(wgrad);
     free(cache_x);
     free(cache_g);
+    free(held);
     gsl_rng_free(rng);
     return st;
 }

@@ -499,7 +499,7 @@ static bl_status summarise_hierarchical(study_fit *sf, size_t q, int *nondecisio
                                         bl_hier_participant_likelihood(sf->hier[q], j), trials, n, err);
         if (st) return st;
     }
-    if (bl_model_param_free(m, BL_NONDECISION) && !bl_model_param_free(m, BL_NONDECISION_RANGE)) *nondecision_note = 1;
+    if (bl_model_param_free(m, BL_NONDECISION) && !bl_model_param_free(m, BL_NONDECISION_RANGE)) *nondecision_note |= 1;
     return bl_hier_permutation_tests(sf->hier[q], sf->units[q].models[0], &sf->study->models[sf->sel[q]], sf->trials,
                                      &sf->opt, r, err);
 }
@@ -523,7 +523,7 @@ static bl_status summarise_model(study_fit *sf, size_t q, int *nondecision_note,
         if (st) return st;
     }
     if (bl_model_param_free(u->models[0], BL_NONDECISION) && !bl_model_param_free(u->models[0], BL_NONDECISION_RANGE))
-        *nondecision_note = 1;
+        *nondecision_note |= 2; /* with a profile interval */
     r->aic = 2.0 * (double)r->parameters - 2.0 * r->log_likelihood;
     r->bic = (double)r->parameters * log((double)r->trials) - 2.0 * r->log_likelihood;
     bl_status st = BL_OK;
@@ -589,10 +589,15 @@ bl_status bl_fit_study(const bl_study *study, const bl_trials *trials, const bl_
     if ((st = run_hierarchical_fits(&sf, warn, err))) goto fail;
     for (size_t q = 0; q < sf.n_sel; q++)
         if ((st = summarise_model(&sf, q, &nondecision_note, warn, err))) goto fail;
-    if (nondecision_note)
+    if (nondecision_note & 1)
         bl_warnings_add(warn,
                         "Wald standard errors of nondecision are approximate: the likelihood changes steeply near "
                         "the fastest RT (see docs/models.md)");
+    else if (nondecision_note & 2)
+        bl_warnings_add(warn,
+                        "Wald intervals of nondecision are approximate (the likelihood changes steeply near the "
+                        "fastest RT): report its profile-likelihood interval (fits.json profile_ci_low/high, "
+                        "docs/models.md)");
     if ((st = mark_nesting(&sf, err))) goto fail;
     if ((st = bl_compare_models(sf.set, err))) goto fail;
     *out = sf.set;

@@ -6,8 +6,9 @@
  * starts at the Wald end, extrapolates through the estimate (r = 0 there), and ends by the secant rule
  * inside a bracket (bisection where a point is infeasible). Each profile point starts from the linear
  * prediction of the others given b (-I_RR^-1 I_Rj per unit of b, I the observed information) and
- * takes Newton steps on I_RR with the analytic gradient, refreshing I_RR by central differences at the
- * point when the estimate's curvature is too far from the point's to converge in a few steps. */
+ * takes Newton steps with the analytic gradient on a curvature carried from point to point, refreshed
+ * by differences of the gradient when it stops serving; others with a lower bound (contamination >= 0)
+ * stay on it while the likelihood falls into the interior there (projected Newton on the free ones). */
 #include "fit/profile.h"
 
 #include <lapacke.h>
@@ -16,20 +17,22 @@
 #include <string.h>
 
 #define PROFILE_Z 1.959963984540054 /* sqrt of the chi-square(1) 95% point 3.841459 */
-#define PROFILE_R_TOL 1e-3          /* |r - z|: the deviance within 0.004 of its critical value */
-#define PROFILE_DECREMENT2 1e-4     /* squared Newton decrement of a profile point: LL within ~5e-5, r within ~3e-5 */
+#define PROFILE_R_TOL 1e-3          /* |r - z|: the statistic within 0.004 of its critical value */
+#define PROFILE_DECREMENT2 1e-4     /* squared Newton decrement at a point: LL within ~5e-5 of its maximum */
 #define PROFILE_MAX_ROOT_STEPS 40
 #define PROFILE_MAX_NEWTON 40
-#define PROFILE_REFRESH_AFTER 5 /* Newton steps on the estimate's information before refreshing it */
+#define PROFILE_REFRESH_AFTER 5 /* Newton steps on a carried curvature before refreshing it at the point */
 
 typedef struct {
     bl_profile_problem *p;
-    size_t j, m;           /* the profiled coefficient; m = k - 1 others */
-    size_t *idx;           /* the others' indices */
-    double *base, *cur;    /* m x m Cholesky factors: I_RR at the estimate, and the one in use */
-    double *slope;         /* m: the others' linear prediction per unit of b */
+    size_t j, m;             /* the profiled coefficient; m = k - 1 others */
+    size_t *idx;             /* the others' indices */
+    double *base, *cur;      /* m x m: I_RR at the estimate, and the curvature in use (positive definite) */
+    double *sub;             /* m x m: the free block of cur, factored */
+    double *slope;           /* m: the others' linear prediction per unit of b */
     double *c, *g, *ct, *gt; /* k: point, gradient, trial point, its gradient */
-    double *rhs, *gp, *gm;   /* m, k, k */
+    double *rhs, *gp;        /* m, k */
+    unsigned char *active;   /* m: held on its lower bound in this step */
     double se;               /* the coefficient's Wald SE from I (scale of the search) */
     double *last;            /* k: the last profile point found on this side (warm start) */
     int have_last;
@@ -42,7 +45,9 @@ static double loglik(profile_ws *w, double *c, double *g)
     return isfinite(ll) ? ll : -INFINITY;
 }
 
-/* Factor the others' block of the information (row-major m x m) held in f; 0 when not positive definite. */
+static double lower_of(const profile_ws *w, size_t i) { return w->p->lower ? w->p->lower[i] : -INFINITY; }
+
+/* Cholesky factor of the m x m matrix f in place; 0 when not positive definite. */
 static int factor(double *f, size_t m)
 {
     if (m == 0) return 1;
@@ -54,60 +59,108 @@ static void solve(const double *f, size_t m, double *rhs)
     if (m) LAPACKE_dpotrs(LAPACK_ROW_MAJOR, 'U', (lapack_int)m, 1, f, (lapack_int)m, rhs, 1);
 }
 
-/* The others' block of minus the Hessian at w->c by central differences of the analytic gradient,
- * factored into w->cur. 0 when a step is infeasible or the block is not positive definite. */
+/* Minus the Hessian of the others at w->c (gradient w->g there) by differences of the analytic gradient
+ * -- central, forward where the backward point would cross a lower bound or be infeasible -- into w->cur,
+ * its diagonal raised (Levenberg) until it is positive definite: away from the estimate the profile
+ * may curve the other way in some direction. 0 (w->cur unchanged) when no difference can be taken. */
 static int refresh_curvature(profile_ws *w)
 {
     size_t m = w->m;
+    double *h2 = w->sub; /* scratch until the step factors into it */
     for (size_t a = 0; a < m; a++) {
         size_t ia = w->idx[a];
         double ca = w->c[ia], h = 1e-5 * fmax(fabs(ca), 1e-2);
+        int central = ca - h >= lower_of(w, ia);
         w->c[ia] = ca + h;
         double lp = loglik(w, w->c, w->gp);
-        w->c[ia] = ca - h;
-        double lm = loglik(w, w->c, w->gm);
         w->c[ia] = ca;
-        if (!isfinite(lp) || !isfinite(lm)) return 0;
-        for (size_t b = 0; b < m; b++) w->cur[b * m + a] = -(w->gp[w->idx[b]] - w->gm[w->idx[b]]) / (2 * h);
+        if (!isfinite(lp)) return 0;
+        if (central) {
+            w->c[ia] = ca - h;
+            double lm = loglik(w, w->c, w->gt);
+            w->c[ia] = ca;
+            central = isfinite(lm);
+        }
+        for (size_t b = 0; b < m; b++) {
+            size_t ib = w->idx[b];
+            h2[b * m + a] = central ? -(w->gp[ib] - w->gt[ib]) / (2 * h) : -(w->gp[ib] - w->g[ib]) / h;
+        }
     }
-    for (size_t a = 0; a < m; a++)
-        for (size_t b = a + 1; b < m; b++)
-            w->cur[a * m + b] = w->cur[b * m + a] = 0.5 * (w->cur[a * m + b] + w->cur[b * m + a]);
-    return factor(w->cur, m);
+    double dmax = 0;
+    for (size_t a = 0; a < m; a++) {
+        dmax = fmax(dmax, fabs(h2[a * m + a]));
+        for (size_t b = a + 1; b < m; b++) h2[a * m + b] = h2[b * m + a] = 0.5 * (h2[a * m + b] + h2[b * m + a]);
+    }
+    if (!(dmax > 0) || !isfinite(dmax)) return 0;
+    double *trial = malloc(m * m * sizeof *trial);
+    if (!trial) return 0;
+    int ok = 0;
+    for (double shift = 0; shift <= dmax && !ok; shift = shift > 0 ? shift * 10 : 1e-8 * dmax) {
+        memcpy(trial, h2, m * m * sizeof *trial);
+        for (size_t a = 0; a < m; a++) trial[a * m + a] += shift;
+        if (factor(trial, m)) {
+            memcpy(w->cur, h2, m * m * sizeof *w->cur);
+            for (size_t a = 0; a < m; a++) w->cur[a * m + a] += shift;
+            ok = 1;
+        }
+    }
+    free(trial);
+    return ok;
 }
 
-/* LL maximised over the others with coefficient j at b (-INFINITY when no feasible point was found). */
-static double profile_point(profile_ws *w, double b)
+/* The Newton step over the free others (w->rhs, 0 on the active ones) and its squared decrement; an
+ * other is active when it sits on its lower bound and the likelihood falls into the interior there.
+ * -1 when the free block of the curvature is not positive definite. */
+static double newton_step(profile_ws *w)
+{
+    size_t m = w->m, nf = 0;
+    size_t *free_ = malloc((m ? m : 1) * sizeof *free_);
+    if (!free_) return -1;
+    for (size_t a = 0; a < m; a++) {
+        size_t ia = w->idx[a];
+        w->active[a] = w->c[ia] <= lower_of(w, ia) && w->g[ia] <= 0;
+        if (!w->active[a]) free_[nf++] = a;
+    }
+    for (size_t x = 0; x < nf; x++)
+        for (size_t y = 0; y < nf; y++) w->sub[x * nf + y] = w->cur[free_[x] * m + free_[y]];
+    double dec2 = -1;
+    if (factor(w->sub, nf)) {
+        double *r = w->gp; /* scratch (k >= nf) */
+        for (size_t x = 0; x < nf; x++) r[x] = w->g[w->idx[free_[x]]];
+        solve(w->sub, nf, r);
+        dec2 = 0;
+        for (size_t a = 0; a < m; a++) w->rhs[a] = 0;
+        for (size_t x = 0; x < nf; x++) {
+            w->rhs[free_[x]] = r[x];
+            dec2 += w->g[w->idx[free_[x]]] * r[x];
+        }
+    }
+    free(free_);
+    return dec2;
+}
+
+/* Newton steps over the others from w->c (log-likelihood ll, gradient w->g) until the squared decrement
+ * is below PROFILE_DECREMENT2, each step projected onto the lower bounds and shortened until the
+ * likelihood rises. The curvature in use is refreshed at the point when `fresh` is set, after
+ * PROFILE_REFRESH_AFTER steps, or when a step fails. Returns the final log-likelihood. */
+static double maximise_others(profile_ws *w, double ll, int fresh)
 {
     size_t k = w->p->k, m = w->m;
-    const double *est = w->p->estimate;
-    double ll = -INFINITY;
-    /* start: the linear prediction from the last point of this side (else from the estimate),
-     * shortened toward that point while infeasible */
-    const double *from = w->have_last ? w->last : est;
-    static const double shrink[] = {1.0, 0.5, 0.25, 0.0};
-    for (size_t s = 0; s < sizeof shrink / sizeof *shrink && !isfinite(ll); s++) {
-        memcpy(w->c, from, k * sizeof *w->c);
-        w->c[w->j] = b;
-        for (size_t a = 0; a < m; a++) w->c[w->idx[a]] += shrink[s] * (b - from[w->j]) * w->slope[a];
-        ll = loglik(w, w->c, w->g);
-    }
-    if (!isfinite(ll)) return -INFINITY;
-    int refreshed = 0; /* w->cur: the curvature of the last point of this side, or the estimate's */
+    int refreshed = 0;
     for (int it = 0; it < PROFILE_MAX_NEWTON; it++) {
-        if (it == PROFILE_REFRESH_AFTER && !refreshed) {
+        if (!refreshed && (fresh || it == PROFILE_REFRESH_AFTER)) {
             refreshed = 1;
-            if (!refresh_curvature(w)) memcpy(w->cur, w->base, m * m * sizeof *w->cur);
+            refresh_curvature(w);
         }
-        for (size_t a = 0; a < m; a++) w->rhs[a] = w->g[w->idx[a]];
-        solve(w->cur, m, w->rhs);
-        double dec2 = 0;
-        for (size_t a = 0; a < m; a++) dec2 += w->g[w->idx[a]] * w->rhs[a];
-        if (!(dec2 >= PROFILE_DECREMENT2)) break; /* converged (or nothing left to move) */
+        double dec2 = newton_step(w);
+        if (dec2 >= 0 && dec2 < PROFILE_DECREMENT2) break;
         int accepted = 0;
-        for (double t = 1.0; t > 1e-3 && !accepted; t *= 0.5) {
+        for (double t = 1.0; dec2 >= 0 && t > 1e-3 && !accepted; t *= 0.5) {
             memcpy(w->ct, w->c, k * sizeof *w->ct);
-            for (size_t a = 0; a < m; a++) w->ct[w->idx[a]] += t * w->rhs[a];
+            for (size_t a = 0; a < m; a++) {
+                size_t ia = w->idx[a];
+                w->ct[ia] = fmax(w->ct[ia] + t * w->rhs[a], lower_of(w, ia));
+            }
             double lt = loglik(w, w->ct, w->gt);
             if (lt > ll) {
                 accepted = 1;
@@ -116,11 +169,51 @@ static double profile_point(profile_ws *w, double b)
                 memcpy(w->g, w->gt, k * sizeof *w->g);
             }
         }
-        if (!accepted) break;
+        if (accepted) continue;
+        if (refreshed) break; /* no rise even along the point's own curvature */
+        refreshed = 1;
+        if (!refresh_curvature(w)) break;
     }
+    return ll;
+}
+
+/* LL maximised over the others with coefficient j at b (-INFINITY when no feasible point was found). */
+static double profile_point(profile_ws *w, double b)
+{
+    size_t k = w->p->k, m = w->m;
+    const double *est = w->p->estimate;
+    double ll = -INFINITY;
+    /* start: the linear prediction from the last point of this side (else from the estimate), on the
+     * lower bounds, shortened toward that point while infeasible */
+    const double *from = w->have_last ? w->last : est;
+    static const double shrink[] = {1.0, 0.5, 0.25, 0.0};
+    for (size_t s = 0; s < sizeof shrink / sizeof *shrink && !isfinite(ll); s++) {
+        memcpy(w->c, from, k * sizeof *w->c);
+        w->c[w->j] = b;
+        for (size_t a = 0; a < m; a++) {
+            size_t ia = w->idx[a];
+            w->c[ia] = fmax(w->c[ia] + shrink[s] * (b - from[w->j]) * w->slope[a], lower_of(w, ia));
+        }
+        ll = loglik(w, w->c, w->g);
+    }
+    if (!isfinite(ll)) return -INFINITY;
+    ll = maximise_others(w, ll, 0);
     memcpy(w->last, w->c, k * sizeof *w->last);
     w->have_last = 1;
     return ll;
+}
+
+/* An end candidate checked with the curvature of its own point (a carried one may be stale and stop
+ * Newton early): further steps from w->last; returns the confirmed log-likelihood. */
+static double confirm_point(profile_ws *w, double ll)
+{
+    size_t k = w->p->k;
+    memcpy(w->c, w->last, k * sizeof *w->c);
+    double l0 = loglik(w, w->c, w->g);
+    if (!isfinite(l0)) return ll;
+    double l1 = maximise_others(w, l0, 1);
+    memcpy(w->last, w->c, k * sizeof *w->last);
+    return fmax(l1, ll);
 }
 
 static double signed_root(profile_ws *w, double ll)
@@ -141,9 +234,12 @@ static double find_end(profile_ws *w, int side, double limit)
     for (int step = 0; step < PROFILE_MAX_ROOT_STEPS; step++) {
         int at_limit = side < 0 && b <= limit;
         if (at_limit) b = limit;
-        double r = signed_root(w, profile_point(w, b));
-        if (at_limit && r <= z) return limit;
-        if (fabs(r - z) < PROFILE_R_TOL) return b;
+        double ll = profile_point(w, b), r = signed_root(w, ll);
+        if (at_limit && r <= z) return limit; /* more steps could only lower r */
+        if (fabs(r - z) < PROFILE_R_TOL) {
+            r = signed_root(w, confirm_point(w, ll));
+            if (fabs(r - z) < PROFILE_R_TOL) return b;
+        }
         double this_b = b, this_r = r;
         if (r < z) {
             in_b = b;
@@ -180,6 +276,8 @@ static void ws_free(profile_ws *w)
     free(w->idx);
     free(w->base);
     free(w->cur);
+    free(w->sub);
+    free(w->active);
     free(w->slope);
     free(w->c);
     free(w->g);
@@ -187,7 +285,6 @@ static void ws_free(profile_ws *w)
     free(w->gt);
     free(w->rhs);
     free(w->gp);
-    free(w->gm);
     free(w->last);
 }
 
@@ -197,14 +294,16 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
     *low = *high = NAN;
     size_t k = p->k, m = k - 1;
     size_t mm = m ? m : 1;
-    profile_ws w = {p, j, m, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NAN, NULL, 0};
+    profile_ws w = {.p = p, .j = j, .m = m, .se = NAN};
     w.idx = malloc(mm * sizeof *w.idx);
     w.base = malloc(mm * mm * sizeof *w.base);
     w.cur = malloc(mm * mm * sizeof *w.cur);
+    w.sub = malloc(mm * mm * sizeof *w.sub);
+    w.active = malloc(mm);
     w.slope = malloc(mm * sizeof *w.slope);
     w.rhs = malloc(mm * sizeof *w.rhs);
-    double **kv[] = {&w.c, &w.g, &w.ct, &w.gt, &w.gp, &w.gm, &w.last};
-    int ok = w.idx && w.base && w.cur && w.slope && w.rhs;
+    double **kv[] = {&w.c, &w.g, &w.ct, &w.gt, &w.gp, &w.last};
+    int ok = w.idx && w.base && w.cur && w.sub && w.active && w.slope && w.rhs;
     for (size_t i = 0; i < sizeof kv / sizeof *kv; i++) ok &= (*kv[i] = malloc(k * sizeof **kv[i])) != NULL;
     if (!ok) {
         ws_free(&w);
@@ -215,10 +314,11 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
     const double *inf = p->info;
     for (size_t a = 0; a < m; a++)
         for (size_t b = 0; b < m; b++) w.base[a * m + b] = inf[w.idx[a] * k + w.idx[b]];
-    if (factor(w.base, m)) {
+    memcpy(w.sub, w.base, m * m * sizeof *w.sub);
+    if (factor(w.sub, m)) {
         /* slope = -I_RR^-1 I_Rj; the SE of b_j is 1 / sqrt(I_jj - I_jR I_RR^-1 I_Rj) */
         for (size_t a = 0; a < m; a++) w.slope[a] = -inf[w.idx[a] * k + j];
-        solve(w.base, m, w.slope);
+        solve(w.sub, m, w.slope);
         double schur = inf[j * k + j];
         for (size_t a = 0; a < m; a++) schur += inf[j * k + w.idx[a]] * w.slope[a];
         if (schur > 0 && isfinite(schur)) {

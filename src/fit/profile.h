@@ -19,6 +19,8 @@ typedef struct {
     const double *estimate; /* k: the maximum */
     double ll_max;          /* log-likelihood there */
     const double *info;     /* k x k observed information at the estimate (row-major) */
+    const double *lower;    /* k lower bounds of the others while maximising over them (NULL: none; -INFINITY:
+                               none for that coefficient) */
     bl_profile_loglik loglik;
     void *user;
     size_t evaluations; /* log-likelihood evaluations made (added to) */

@@ -51,18 +51,37 @@ cat > scenario.json <<'JSON'
   }
 }
 JSON
+# The same animal without variability, for a model with contamination: on these data (seed 606) its
+# maximum lies on the edge, contamination = 0.
+"$py" - <<'PY'
+import json
+with open("scenario.json") as f:
+    s = json.load(f)
+for k in ("drift_sd", "start_range", "nondecision_range"):
+    s["truth"].pop(k)
+s["study"]["models"] = [
+    {"name": "plain", "threshold": {}, "drift": {"per": ["difficulty"]}, "nondecision": {}},
+    {"name": "plain-cont", "threshold": {}, "drift": {"per": ["difficulty"]}, "nondecision": {}, "contamination": {}}]
+s["study"]["truth_model"] = "plain"
+with open("scenario_plain.json", "w") as f:
+    json.dump(s, f)
+PY
 expect_exit 0 "$BANDLINK" simulate scenario.json --out sim --quiet --threads 2
+expect_exit 0 "$BANDLINK" simulate scenario_plain.json --out simp --quiet --threads 2
 expect_exit 0 "$BANDLINK" run sim/study.json --out res --threads 2 --quiet
+expect_exit 0 "$BANDLINK" fit simp/study.json --out resp --threads 2 --quiet
 "$BANDLINK" fit sim/study.json --out res2 --threads 2 > summary.txt 2>&1
 check_eval "the summary lists profile intervals" 'grep -q "Profile-likelihood 95% intervals" summary.txt'
 check_eval "report.html has the profile interval column" 'grep -q "95% profile CI" res/report.html'
 
-# One model per reported end (the full model with that coefficient fixed there), fitted by the optimiser.
+# One model per reported end (the model with that coefficient fixed there), fitted by the optimiser.
 tally "$py" - <<'PY'
 import json
-with open("res/fits.json") as f:
-    fits = {m["name"]: m for m in json.load(f)["models"]}
-full, plain = fits["full"], fits["plain"]
+def load(path):
+    with open(path) as f:
+        return {m["name"]: m for m in json.load(f)["models"]}
+fits, fitsp = load("res/fits.json"), load("resp/fits.json")
+full, plain, cont = fits["full"], fits["plain"], fitsp["plain-cont"]
 def prof(m):
     return [c for c in m["coefficients"] if "profile_ci_low" in c]
 def ok(cond, what):
@@ -70,45 +89,60 @@ def ok(cond, what):
 ok([c["parameter"] for c in prof(full)] == ["nondecision", "drift_sd", "start_range", "nondecision_range"],
    "full model: profile intervals of nondecision and the three variability parameters, and only those")
 ok([c["parameter"] for c in prof(plain)] == ["nondecision"], "plain model: nondecision has a profile interval")
-for c in prof(full) + prof(plain):
+# No contamination in the data: its maximum lies on the edge, held at exactly 0 (docs/models.md section 4):
+# converged, no Wald SE, its covariance row 0, the profile interval from 0.
+cc = [c for c in cont["coefficients"] if c["parameter"] == "contamination"][0]
+ok(cont["converged"], "contamination at the edge: the fit is reported converged")
+ok(cc["estimate"] == 0 and cc["se"] is None and cc["profile_ci_low"] == 0 and cc["profile_ci_high"] > 0,
+   "contamination held at 0: no SE, profile interval [0, %s]" % cc["profile_ci_high"])
+j = cont["coefficients"].index(cc)
+ok(all(v == 0 for v in cont["covariance"][j]), "its covariance row is 0")
+ok(all(c["se"] is not None for c in cont["coefficients"] if c is not cc), "the other coefficients have SEs")
+for c in prof(full) + prof(plain) + prof(cont):
     lo, hi, b = c["profile_ci_low"], c["profile_ci_high"], c["estimate"]
     ok(lo is not None and hi is not None and lo <= b <= hi, "%s: %s <= %s <= %s" % (c["parameter"], lo, b, hi))
-with open("sim/study.json") as f:
-    study = json.load(f)
-base = [m for m in study["models"] if m["name"] == "full"][0]
-models = [base]
-for c in prof(full):
-    for end in ("profile_ci_low", "profile_ci_high"):
-        m = json.loads(json.dumps(base))
-        m["name"] = "%s-%s" % (c["parameter"], end.split("_")[-1])
-        m[c["parameter"]] = {"fixed": c[end]}
-        models.append(m)
-study["models"] = models
-study.pop("truth_model", None)
-with open("sim/fixed.json", "w") as f:
-    json.dump(study, f)
+for sim, name, res in (("sim", "full", full), ("simp", "plain-cont", cont)):
+    with open(sim + "/study.json") as f:
+        study = json.load(f)
+    base = [m for m in study["models"] if m["name"] == name][0]
+    models = [base]
+    for c in prof(res):
+        for end in ("profile_ci_low", "profile_ci_high"):
+            m = json.loads(json.dumps(base))
+            m["name"] = "%s/%s-%s" % (name, c["parameter"], end.split("_")[-1])
+            m[c["parameter"]] = {"fixed": c[end]}
+            models.append(m)
+    study["models"] = models
+    study.pop("truth_model", None)
+    with open(sim + "/fixed.json", "w") as f:
+        json.dump(study, f)
 PY
 expect_exit 0 "$BANDLINK" fit sim/fixed.json --out fixed --threads 2 --quiet
+expect_exit 0 "$BANDLINK" fit simp/fixed.json --out fixedp --threads 2 --quiet
 tally "$py" - <<'PY'
 import json
 from scipy.stats import chi2
 q = chi2.ppf(0.95, 1)
-with open("fixed/fits.json") as f:
-    ms = json.load(f)["models"]
-with open("sim/fixed.json") as f:
-    fixed_at = {m["name"]: m for m in json.load(f)["models"]}
-ll = ms[0]["log_likelihood"]
-for m in ms[1:]:
-    stat = 2 * (ll - m["log_likelihood"])
-    par = m["name"].rsplit("-", 1)[0]
-    value = fixed_at[m["name"]][par]["fixed"]
-    if value == 0:
-        good = stat <= q and m["converged"]
-        print("%s: %s: an end at 0, the edge of the range: statistic %.4f at most %.4f" % (
-            "PASS" if good else "FAIL", m["name"], stat, q))
-    else:
-        good = abs(stat - q) <= 0.02 and m["converged"]
-        print("%s: %s at %.6g: 2 (LL_full - LL_fixed) = %.4f, chi-square(1) 95%% point %.4f" % (
-            "PASS" if good else "FAIL", m["name"], value, stat, q))
+for res, sim in (("fixed", "sim"), ("fixedp", "simp")):
+    with open(res + "/fits.json") as f:
+        ms = json.load(f)["models"]
+    with open(sim + "/fixed.json") as f:
+        fixed_at = {m["name"]: m for m in json.load(f)["models"]}
+    ll = {m["name"]: m["log_likelihood"] for m in ms if "/" not in m["name"]}
+    for m in ms:
+        if "/" not in m["name"]:
+            continue
+        base, rest = m["name"].split("/")
+        stat = 2 * (ll[base] - m["log_likelihood"])
+        par = rest.rsplit("-", 1)[0]
+        value = fixed_at[m["name"]][par]["fixed"]
+        if value == 0:
+            good = stat <= q and m["converged"]
+            print("%s: %s: an end at 0, the edge of the range: statistic %.4f at most %.4f" % (
+                "PASS" if good else "FAIL", m["name"], stat, q))
+        else:
+            good = abs(stat - q) <= 0.02 and m["converged"]
+            print("%s: %s at %.6g: 2 (LL_model - LL_fixed) = %.4f, chi-square(1) 95%% point %.4f" % (
+                "PASS" if good else "FAIL", m["name"], value, stat, q))
 PY
 finish
