@@ -113,7 +113,7 @@ HARNESS_CASE(normal_mean_and_sd)
     for (size_t i = 0; i < N; i++) s2 += (x[i] - xbar) * (x[i] - xbar) / N;
     double est[2] = {xbar, sqrt(s2)}, info[4] = {N / s2, 0, 0, 2 * N / s2}, g[2];
     sample smp = {x, N};
-    bl_profile_problem p = {2, est, normal_ll(&smp, est, g), info, NULL, normal_ll, &smp, 0};
+    bl_profile_problem p = {.k = 2, .estimate = est, .ll_max = normal_ll(&smp, est, g), .info = info, .loglik = normal_ll, .user = &smp};
     bl_error err = {0};
     double lo, hi;
     check_int(bl_profile_interval(&p, 0, -INFINITY, &lo, &hi, &err), BL_OK, "profile of the mean");
@@ -149,7 +149,7 @@ static void even_case(unsigned seed, int zero_inside)
     double zero = 0, dev0 = 2 * (ll - even_ll(&smp, &zero, g));
     if (!check_true((dev0 < gsl_cdf_chisq_Pinv(0.95, 1)) == zero_inside, "seed %u: deviance at 0 is %g", seed, dev0))
         return;
-    bl_profile_problem p = {1, &tau, ll, info, NULL, even_ll, &smp, 0};
+    bl_profile_problem p = {.k = 1, .estimate = &tau, .ll_max = ll, .info = info, .loglik = even_ll, .user = &smp};
     bl_error err = {0};
     double lo, hi;
     check_int(bl_profile_interval(&p, 0, 0.0, &lo, &hi, &err), BL_OK, "seed %u: profile of tau", seed);
@@ -173,7 +173,7 @@ HARNESS_CASE(infeasible_region_bisected)
     for (int i = 0; i < 3; i++) s2 += (x[i] - xbar) * (x[i] - xbar) / 3;
     double est[2] = {xbar, sqrt(s2)}, info[4] = {3 / s2, 0, 0, 6 / s2}, g[2];
     sample smp = {x, 3};
-    bl_profile_problem p = {2, est, normal_ll(&smp, est, g), info, NULL, normal_ll, &smp, 0};
+    bl_profile_problem p = {.k = 2, .estimate = est, .ll_max = normal_ll(&smp, est, g), .info = info, .loglik = normal_ll, .user = &smp};
     bl_error err = {0};
     double lo, hi;
     check_int(bl_profile_interval(&p, 1, -INFINITY, &lo, &hi, &err), BL_OK, "profile of the SD, n = 3");

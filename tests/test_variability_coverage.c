@@ -11,7 +11,8 @@
  * docs/models.md section 5). Profile intervals are asymptotically exact for an interior truth (Wilks 1938:
  * the likelihood ratio of one fixed coefficient is chi-square(1)).
  *
- * Usage: test_variability_coverage [DATASETS [TRIALS [THREADS]]] [--list] [--case NAME]... */
+ * Usage: test_variability_coverage [DATASETS [TRIALS [THREADS [FIRST]]]] [--list] [--case NAME]...
+ * (FIRST: the index of the first data set, to rerun one alone) */
 #include "fit/fit.h"
 #include "fit_testutil.h"
 #include "harness.h"
@@ -36,6 +37,7 @@ typedef struct {
 
 static unsigned n_sets = 120, n_trials = 600;
 static int n_threads = 2;
+static unsigned first_set; /* data sets first_set .. first_set + n_sets - 1 (to rerun one) */
 static dataset_result *results;
 
 static void binom_range(unsigned n, double p, double alpha, unsigned *lo, unsigned *hi)
@@ -108,7 +110,7 @@ static void run_all(void)
     if (results) return;
     results = calloc(n_sets, sizeof *results);
 #pragma omp parallel for schedule(dynamic, 1) num_threads(n_threads)
-    for (unsigned d = 0; d < n_sets; d++) fit_one(d, &results[d]);
+    for (unsigned d = 0; d < n_sets; d++) fit_one(first_set + d, &results[d]);
 }
 
 HARNESS_CASE(every_dataset_fits_and_converges)
@@ -123,7 +125,7 @@ HARNESS_CASE(every_dataset_fits_and_converges)
         evals += results[d].evaluations;
         secs += results[d].seconds;
         if (!results[d].fitted) check_true(0, "dataset %u: %s", d, results[d].error);
-        else if (!results[d].converged) printf("# data set %u did not converge\n", d);
+        else if (!results[d].converged) printf("# data set %u did not converge\n", first_set + d);
     }
     printf("# %u data sets x %u trials: %u fitted, %u converged; mean %.0f evaluations, %.2f s per fit "
            "(profile intervals included)\n",
@@ -147,7 +149,7 @@ HARNESS_CASE(profile_interval_coverage)
             prof += results[d].profile_cover[w];
             found += results[d].profile_found[w];
             if (!results[d].profile_found[w])
-                printf("# data set %u: %s truth %.4f, estimate %.4f, profile interval %g to %g\n", d, names[w],
+                printf("# data set %u: %s truth %.4f, estimate %.4f, profile interval %g to %g\n", first_set + d, names[w],
                        results[d].truth[w], results[d].estimate[w], results[d].profile_low[w],
                        results[d].profile_high[w]);
             bias += results[d].estimate[w] - results[d].truth[w];
@@ -165,9 +167,10 @@ int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
     unsigned *sizes[2] = {&n_sets, &n_trials};
-    for (int k = 0; k < 3 && argc > 1 && argv[1][0] != '-'; k++) {
+    for (int k = 0; k < 4 && argc > 1 && argv[1][0] != '-'; k++) {
         if (k < 2) *sizes[k] = (unsigned)atoi(argv[1]);
-        else n_threads = atoi(argv[1]);
+        else if (k == 2) n_threads = atoi(argv[1]);
+        else first_set = (unsigned)atoi(argv[1]);
         argv[1] = argv[0];
         argv++;
         argc--;

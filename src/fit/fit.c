@@ -1069,8 +1069,12 @@ static double profile_loglik(void *user, double *coef, double *grad)
 
 /* Profile intervals of the profiled parameters' coefficients of a converged fit at coef (information
  * info there). The smallest value of an intercept-only identity-link coefficient is 0. */
+/* A profile point may rise above the estimate's log-likelihood (the optimiser stopped at a lower local
+ * maximum, typically a variability parameter at 0): *better_found is then set and `better` holds that
+ * point (|value| for the even coefficients), for bl_fit_core to restart from. */
 static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const double *coef, double *grad, double ll,
-                               double *info, const unsigned char *held, bl_fit_result *res, bl_error *err)
+                               double *info, const unsigned char *held, bl_fit_result *res, double *better,
+                               int *better_found, bl_error *err)
 {
     profile_target t = {lik, m};
     size_t k = m->n_coef;
@@ -1091,8 +1095,10 @@ static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const doub
         const bl_param_design *d = &m->par[ci->param];
         if (ci->param == BL_CONTAMINATION && ci->slope < 0 && !d->n_slopes && d->link == BL_LINK_IDENTITY) lower[j] = 0;
     }
-    bl_profile_problem p = {k, coef, ll, info, lower, profile_loglik, &t, 0};
-    for (size_t j = 0; j < m->n_coef; j++) {
+    bl_profile_problem p = {.k = k, .estimate = coef, .ll_max = ll, .info = info, .lower = lower,
+                            .loglik = profile_loglik, .user = &t, .better = better};
+    *better_found = 0;
+    for (size_t j = 0; j < m->n_coef && !p.found_better; j++) {
         const bl_coef_info *ci = &m->coef[j];
         const bl_param_design *d = &m->par[ci->param];
         if (!profiled_param(ci->param)) continue;
@@ -1106,6 +1112,11 @@ static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const doub
         c->profiled = 1;
     }
     free(lower);
+    if (p.found_better) {
+        *better_found = 1;
+        for (size_t j = 0; j < k; j++)
+            if (even_coef(m, j)) better[j] = fabs(better[j]);
+    }
     return BL_OK;
 }
 
@@ -1130,8 +1141,18 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     if ((st = choose_start(m, lik, first, tr, start, err))) goto fail;
     objective o = {m, lik, k, tr, wcoef, wgrad, 1.0 / (double)m->n, cache_x, cache_g, 0, 0, 0, infer ? 1e-3 : 1e-5};
     start_result best = {0, coef, 0, 0};
-    int agreed = 0;
-    optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
+    int agreed = 0, restarts = 0;
+again:
+    if (restarts) {
+        /* a profile point beat the maximum: one more start, from there (no start of the first round
+         * reached this maximum) */
+        optimise(&o, rng, 1, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
+        agreed = 0;
+        memset(held, 0, k);
+        if (info) free(info), info = NULL;
+        if (cov) free(cov), cov = NULL;
+    } else
+        optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
     if (o.out_of_memory) {
         st = bl_error_set(err, BL_ERR_NOMEM, "model '%s': out of memory in the optimiser", m->name);
         goto fail;
@@ -1142,6 +1163,7 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
     }
     double ll = bl_likelihood_eval(lik, coef, grad);
     record_optimum(m, &best, n_starts, agreed, ll, res);
+    res->diag.profile_restarts = restarts;
     size_t n_held = hold_edges(&o, coef, grad, &ll, held);
     if (infer) {
         info = malloc(k * k * sizeof *info);
@@ -1164,7 +1186,15 @@ bl_status bl_fit_core(const bl_model *m, bl_likelihood *lik, const bl_fit_option
         for (size_t j = 0; j < k; j++) /* a held coefficient is known: no variance, no covariance */
             for (size_t i = 0; held[j] && i < k; i++) cov[i * k + j] = cov[j * k + i] = 0;
     }
-    if (infer >= 2 && res->converged && (st = fill_profiles(m, lik, coef, grad, ll, info, held, res, err))) goto fail;
+    if (infer >= 2 && res->converged) {
+        int better_found = 0;
+        if ((st = fill_profiles(m, lik, coef, grad, ll, info, held, res, start, &better_found, err))) goto fail;
+        if (better_found && restarts < 2) {
+            restarts++;
+            bl_fit_result_clear(res);
+            goto again;
+        }
+    }
     if (infer && res->diag.hessian_positive_definite) {
         res->covariance = cov;
         cov = NULL;
@@ -1282,7 +1312,12 @@ void bl_fit_warn(const bl_model *m, const char *participant, const bl_fit_result
                         "%s: boundary estimates, Wald intervals reach below 0 (impossible values; the Wald "
                         "interval is not reliable near the edge of the range, the profile-likelihood one is): %s",
                         who, wald);
-    if (r->diag.starts_agreed < r->diag.starts)
+    if (r->diag.profile_restarts)
+        bl_warnings_add(warn,
+                        "%s: a profile-likelihood search found a higher likelihood than the optimiser's maximum "
+                        "(a local maximum); the fit was restarted from there (%d time%s) and reports the higher one",
+                        who, r->diag.profile_restarts, r->diag.profile_restarts == 1 ? "" : "s");
+    else if (r->diag.starts_agreed < r->diag.starts)
         bl_warnings_add(warn, "%s: only %d of %d optimiser starts reached the best log-likelihood", who,
                         r->diag.starts_agreed, r->diag.starts);
 }

@@ -67,6 +67,7 @@ typedef struct {
     int hessian_positive_definite;
     double condition_number; /* of the observed information (NAN when not computed) */
     double seconds;          /* wall time of the fit */
+    int profile_restarts;    /* restarts from a profile-likelihood point above the optimiser's maximum */
 } bl_fit_diagnostics;
 
 /* One likelihood maximised: a model on all trials (pooled) or on one participant (separate). */

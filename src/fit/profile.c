@@ -15,6 +15,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <stdio.h>
 
 #define PROFILE_Z 1.959963984540054 /* sqrt of the chi-square(1) 95% point 3.841459 */
 #define PROFILE_R_TOL 1e-3          /* |r - z|: the statistic within 0.004 of its critical value */
@@ -34,8 +35,9 @@ typedef struct {
     double *rhs, *gp;        /* m, k */
     unsigned char *active;   /* m: held on its lower bound in this step */
     double se;               /* the coefficient's Wald SE from I (scale of the search) */
-    double *last;            /* k: the last profile point found on this side (warm start) */
-    int have_last;
+    double *last;            /* k: the profile point just computed */
+    double *near_in, *near_out; /* k: the latest points inside and outside the interval on this side */
+    double b_in, b_out;         /* their values of coefficient j (NAN: none yet) */
 } profile_ws;
 
 static double loglik(profile_ws *w, double *c, double *g)
@@ -177,16 +179,13 @@ static double maximise_others(profile_ws *w, double ll, int fresh)
     return ll;
 }
 
-/* LL maximised over the others with coefficient j at b (-INFINITY when no feasible point was found). */
-static double profile_point(profile_ws *w, double b)
+/* A start for the others at b: the linear prediction from `from`, on the lower bounds, shortened toward
+ * `from` while infeasible. Returns its log-likelihood (gradient in w->g), -INFINITY when none is feasible. */
+static double start_from(profile_ws *w, const double *from, double b)
 {
     size_t k = w->p->k, m = w->m;
-    const double *est = w->p->estimate;
-    double ll = -INFINITY;
-    /* start: the linear prediction from the last point of this side (else from the estimate), on the
-     * lower bounds, shortened toward that point while infeasible */
-    const double *from = w->have_last ? w->last : est;
     static const double shrink[] = {1.0, 0.5, 0.25, 0.0};
+    double ll = -INFINITY;
     for (size_t s = 0; s < sizeof shrink / sizeof *shrink && !isfinite(ll); s++) {
         memcpy(w->c, from, k * sizeof *w->c);
         w->c[w->j] = b;
@@ -196,11 +195,45 @@ static double profile_point(profile_ws *w, double b)
         }
         ll = loglik(w, w->c, w->g);
     }
+    return ll;
+}
+
+/* LL maximised over the others with coefficient j at b (-INFINITY when no feasible start was found).
+ * Starts from the nearest of the side's latest inside and outside points (then the other, then the
+ * estimate): a far point may lie where these values of the others are infeasible. */
+static double profile_point(profile_ws *w, double b)
+{
+    const double *est = w->p->estimate;
+    const double *cand[3];
+    size_t nc = 0;
+    double din = isnan(w->b_in) ? INFINITY : fabs(b - w->b_in), dout = isnan(w->b_out) ? INFINITY : fabs(b - w->b_out);
+    if (din <= dout) {
+        if (isfinite(din)) cand[nc++] = w->near_in;
+        if (isfinite(dout)) cand[nc++] = w->near_out;
+    } else {
+        cand[nc++] = w->near_out;
+        if (isfinite(din)) cand[nc++] = w->near_in;
+    }
+    cand[nc++] = est;
+    double ll = -INFINITY;
+    for (size_t i = 0; i < nc && !isfinite(ll); i++) ll = start_from(w, cand[i], b);
     if (!isfinite(ll)) return -INFINITY;
     ll = maximise_others(w, ll, 0);
-    memcpy(w->last, w->c, k * sizeof *w->last);
-    w->have_last = 1;
+    memcpy(w->last, w->c, w->p->k * sizeof *w->last);
+    if (ll > w->p->ll_max + BL_PROFILE_BETTER) { /* the estimate is not the maximum: stop, report it */
+        w->p->found_better = 1;
+        w->p->better_ll = ll;
+        if (w->p->better) memcpy(w->p->better, w->c, w->p->k * sizeof *w->p->better);
+    }
     return ll;
+}
+
+/* The point just computed becomes the side's latest inside (r < z) or outside point. */
+static void remember(profile_ws *w, double b, int inside)
+{
+    memcpy(inside ? w->near_in : w->near_out, w->last, w->p->k * sizeof *w->last);
+    if (inside) w->b_in = b;
+    else w->b_out = b;
 }
 
 /* An end candidate checked with the curvature of its own point (a carried one may be stale and stop
@@ -213,6 +246,11 @@ static double confirm_point(profile_ws *w, double ll)
     if (!isfinite(l0)) return ll;
     double l1 = maximise_others(w, l0, 1);
     memcpy(w->last, w->c, k * sizeof *w->last);
+    if (l1 > w->p->ll_max + BL_PROFILE_BETTER) {
+        w->p->found_better = 1;
+        w->p->better_ll = l1;
+        if (w->p->better) memcpy(w->p->better, w->c, k * sizeof *w->p->better);
+    }
     return fmax(l1, ll);
 }
 
@@ -227,26 +265,51 @@ static double find_end(profile_ws *w, int side, double limit)
 {
     double b0 = w->p->estimate[w->j], z = PROFILE_Z;
     if (side < 0 && b0 <= limit) return limit;
-    w->have_last = 0;
+    w->b_in = w->b_out = NAN;
     memcpy(w->cur, w->base, w->m * w->m * sizeof *w->cur);
     double in_b = b0, in_r = 0, out_b = NAN, out_r = INFINITY;
     double b = b0 + side * z * w->se, prev_b = b0, prev_r = 0;
+    int inside_run = 0;
     for (int step = 0; step < PROFILE_MAX_ROOT_STEPS; step++) {
         int at_limit = side < 0 && b <= limit;
         if (at_limit) b = limit;
+        size_t e0 = w->p->evaluations;
         double ll = profile_point(w, b), r = signed_root(w, ll);
+        if (w->p->found_better) return NAN;
+        if (getenv("BL_PROFILE_DEBUG")) fprintf(stderr, "DBG j %zu side %d b %.6g r %.5f gain %.3g evals %zu in %g out %g\n", w->j, side, b, r, ll - w->p->ll_max, w->p->evaluations - e0, in_b, out_b);
         if (at_limit && r <= z) return limit; /* more steps could only lower r */
         if (fabs(r - z) < PROFILE_R_TOL) {
             r = signed_root(w, confirm_point(w, ll));
+            if (w->p->found_better) return NAN;
             if (fabs(r - z) < PROFILE_R_TOL) return b;
         }
+        if (isfinite(r)) remember(w, b, r < z);
         double this_b = b, this_r = r;
         if (r < z) {
             in_b = b;
             in_r = r;
+            /* Twice in a row the bracket shrank from inside only: the outer point may sit below the
+             * profile (its maximisation, started further away, found a lower local maximum; a profile
+             * value is a maximum, so any evaluation is a lower bound). Redo it from this nearby point. */
+            if (!isnan(out_b) && ++inside_run >= 2) {
+                inside_run = 0;
+                double r2 = signed_root(w, profile_point(w, out_b));
+                if (w->p->found_better) return NAN;
+                if (r2 < out_r) out_r = r2;
+                if (isfinite(r2)) remember(w, out_b, r2 < z);
+                if (out_r < z) { /* inside after all: extrapolate again */
+                    in_b = out_b;
+                    in_r = out_r;
+                    out_b = NAN;
+                    out_r = INFINITY;
+                }
+                this_b = in_b;
+                this_r = in_r;
+            }
         } else {
             out_b = b;
             out_r = r;
+            inside_run = 0;
         }
         double width = fabs(out_b - in_b);
         if (!isnan(out_b)) {
@@ -286,6 +349,8 @@ static void ws_free(profile_ws *w)
     free(w->rhs);
     free(w->gp);
     free(w->last);
+    free(w->near_in);
+    free(w->near_out);
 }
 
 bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limit, double *low, double *high,
@@ -294,7 +359,7 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
     *low = *high = NAN;
     size_t k = p->k, m = k - 1;
     size_t mm = m ? m : 1;
-    profile_ws w = {.p = p, .j = j, .m = m, .se = NAN};
+    profile_ws w = {.p = p, .j = j, .m = m, .se = NAN, .b_in = NAN, .b_out = NAN};
     w.idx = malloc(mm * sizeof *w.idx);
     w.base = malloc(mm * mm * sizeof *w.base);
     w.cur = malloc(mm * mm * sizeof *w.cur);
@@ -302,7 +367,7 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
     w.active = malloc(mm);
     w.slope = malloc(mm * sizeof *w.slope);
     w.rhs = malloc(mm * sizeof *w.rhs);
-    double **kv[] = {&w.c, &w.g, &w.ct, &w.gt, &w.gp, &w.last};
+    double **kv[] = {&w.c, &w.g, &w.ct, &w.gt, &w.gp, &w.last, &w.near_in, &w.near_out};
     int ok = w.idx && w.base && w.cur && w.sub && w.active && w.slope && w.rhs;
     for (size_t i = 0; i < sizeof kv / sizeof *kv; i++) ok &= (*kv[i] = malloc(k * sizeof **kv[i])) != NULL;
     if (!ok) {
@@ -324,7 +389,7 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
         if (schur > 0 && isfinite(schur)) {
             w.se = 1 / sqrt(schur);
             *low = find_end(&w, -1, lower_limit);
-            *high = find_end(&w, +1, -INFINITY);
+            if (!p->found_better) *high = find_end(&w, +1, -INFINITY);
         }
     }
     ws_free(&w);

@@ -24,7 +24,15 @@ typedef struct {
     bl_profile_loglik loglik;
     void *user;
     size_t evaluations; /* log-likelihood evaluations made (added to) */
+    /* A profile point above ll_max + BL_PROFILE_BETTER shows that the estimate is not the maximum: the
+     * search stops there, copies that point into `better` (k values, caller's buffer; NULL: not copied)
+     * and sets found_better, so the caller can restart the fit from it. */
+    double *better;
+    double better_ll;
+    int found_better;
 } bl_profile_problem;
+
+#define BL_PROFILE_BETTER 1e-3
 
 /* The 95% profile interval of coefficient j. lower_limit is the smallest value the coefficient may take
  * (0 for a variability parameter, -INFINITY when none): when the profile there is still inside the

@@ -38,7 +38,8 @@ static cJSON *diagnostics_json(const bl_fit_diagnostics *d)
              add_num(o, "iterations", (double)d->iterations) && add_num(o, "evaluations", (double)d->evaluations) &&
              add_num(o, "starts", d->starts) && add_num(o, "starts_agreed", d->starts_agreed) &&
              add_bool(o, "hessian_positive_definite", d->hessian_positive_definite) &&
-             add_num(o, "condition_number", d->condition_number);
+             add_num(o, "condition_number", d->condition_number) &&
+             add_num(o, "profile_restarts", (double)d->profile_restarts);
     if (!ok) {
         cJSON_Delete(o);
         return NULL;
