@@ -34,6 +34,8 @@ typedef struct {
     double *c, *g, *ct, *gt; /* k: point, gradient, trial point, its gradient */
     double *rhs, *gp;        /* m, k */
     unsigned char *active;   /* m: held on its lower bound in this step */
+    size_t *free_idx;        /* m: the others not held, in this step */
+    double *trial;           /* m x m: a shifted curvature being tried */
     double se;               /* the coefficient's Wald SE from I (scale of the search) */
     double *last;            /* k: the profile point just computed */
     double *near_in, *near_out; /* k: the latest points inside and outside the interval on this side */
@@ -49,16 +51,18 @@ static double loglik(profile_ws *w, double *c, double *g)
 
 static double lower_of(const profile_ws *w, size_t i) { return w->p->lower ? w->p->lower[i] : -INFINITY; }
 
-/* Cholesky factor of the m x m matrix f in place; 0 when not positive definite. */
+/* Cholesky factor of the symmetric m x m matrix f in place; 0 when not positive definite. Column-major
+ * 'L' is the same storage as row-major 'U' for a symmetric matrix, and LAPACKE then calls LAPACK
+ * directly: no transposed copy, so no allocation that could fail and change the path. */
 static int factor(double *f, size_t m)
 {
     if (m == 0) return 1;
-    return LAPACKE_dpotrf(LAPACK_ROW_MAJOR, 'U', (lapack_int)m, f, (lapack_int)m) == 0;
+    return LAPACKE_dpotrf(LAPACK_COL_MAJOR, 'L', (lapack_int)m, f, (lapack_int)m) == 0;
 }
 
 static void solve(const double *f, size_t m, double *rhs)
 {
-    if (m) LAPACKE_dpotrs(LAPACK_ROW_MAJOR, 'U', (lapack_int)m, 1, f, (lapack_int)m, rhs, 1);
+    if (m) LAPACKE_dpotrs(LAPACK_COL_MAJOR, 'L', (lapack_int)m, 1, f, (lapack_int)m, rhs, (lapack_int)m);
 }
 
 /* Minus the Hessian of the others at w->c (gradient w->g there) by differences of the analytic gradient
@@ -94,8 +98,7 @@ static int refresh_curvature(profile_ws *w)
         for (size_t b = a + 1; b < m; b++) h2[a * m + b] = h2[b * m + a] = 0.5 * (h2[a * m + b] + h2[b * m + a]);
     }
     if (!(dmax > 0) || !isfinite(dmax)) return 0;
-    double *trial = malloc(m * m * sizeof *trial);
-    if (!trial) return 0;
+    double *trial = w->trial;
     int ok = 0;
     for (double shift = 0; shift <= dmax && !ok; shift = shift > 0 ? shift * 10 : 1e-8 * dmax) {
         memcpy(trial, h2, m * m * sizeof *trial);
@@ -106,7 +109,6 @@ static int refresh_curvature(profile_ws *w)
             ok = 1;
         }
     }
-    free(trial);
     return ok;
 }
 
@@ -115,9 +117,7 @@ static int refresh_curvature(profile_ws *w)
  * -1 when the free block of the curvature is not positive definite. */
 static double newton_step(profile_ws *w)
 {
-    size_t m = w->m, nf = 0;
-    size_t *free_ = malloc((m ? m : 1) * sizeof *free_);
-    if (!free_) return -1;
+    size_t m = w->m, nf = 0, *free_ = w->free_idx;
     for (size_t a = 0; a < m; a++) {
         size_t ia = w->idx[a];
         w->active[a] = w->c[ia] <= lower_of(w, ia) && w->g[ia] <= 0;
@@ -137,7 +137,6 @@ static double newton_step(profile_ws *w)
             dec2 += w->g[w->idx[free_[x]]] * r[x];
         }
     }
-    free(free_);
     return dec2;
 }
 
@@ -341,6 +340,8 @@ static void ws_free(profile_ws *w)
     free(w->cur);
     free(w->sub);
     free(w->active);
+    free(w->free_idx);
+    free(w->trial);
     free(w->slope);
     free(w->c);
     free(w->g);
@@ -365,10 +366,12 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
     w.cur = malloc(mm * mm * sizeof *w.cur);
     w.sub = malloc(mm * mm * sizeof *w.sub);
     w.active = malloc(mm);
+    w.free_idx = malloc(mm * sizeof *w.free_idx);
+    w.trial = malloc(mm * mm * sizeof *w.trial);
     w.slope = malloc(mm * sizeof *w.slope);
     w.rhs = malloc(mm * sizeof *w.rhs);
     double **kv[] = {&w.c, &w.g, &w.ct, &w.gt, &w.gp, &w.last, &w.near_in, &w.near_out};
-    int ok = w.idx && w.base && w.cur && w.sub && w.active && w.slope && w.rhs;
+    int ok = w.idx && w.base && w.cur && w.sub && w.active && w.free_idx && w.trial && w.slope && w.rhs;
     for (size_t i = 0; i < sizeof kv / sizeof *kv; i++) ok &= (*kv[i] = malloc(k * sizeof **kv[i])) != NULL;
     if (!ok) {
         ws_free(&w);
