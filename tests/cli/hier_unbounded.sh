@@ -50,7 +50,7 @@ row=$(sed -n "s/.*trial table row \([0-9]*\) .*/\1/p" "$BL_ERR")
 [ -n "$row" ] || fail "the error names a table row"
 "$BANDLINK" fit sim/pooled.json --model theta-and-beta --out pooled --quiet --threads 2 || bail "pooled fit"
 tally "$py" - pooled sim/trials.csv "${row:-0}" <<'PY'
-import csv, json, sys
+import csv, json, math, sys
 d, table, row = sys.argv[1], sys.argv[2], int(sys.argv[3])
 ok = True
 def check(good, msg):
@@ -68,6 +68,18 @@ if p:
     check(0 <= rt - t0 < 1e-6, "its pooled nondecision is at its RT (gap %.3g s)" % (rt - t0))
     check(t["rt"] == min((x["rt"] for x in csv.DictReader(open(table)) if x["animal"] == t["animal"]), key=float),
           "it is the participant's fastest trial (RT %s)" % t["rt"])
+    # The spike is the density's, not a rounding artefact: the trial's log-density from the large-time series
+    # f(t|v,a,w) = pi/a^2 exp(-v a w - v^2 t/2) sum_k k exp(-k^2 pi^2 t / (2 a^2)) sin(k pi w) (Navarro & Fuss
+    # 2009, eq. 1 with the a^-2 scaling; coded here from the paper), at the pooled values; with a ~ 1e-6 the
+    # boundary hit and the sign of v change it by < 1e-5.
+    v, w, u = float(p[0]["drift"]), 0.5, (rt - t0) / a ** 2
+    series = sum(k * math.exp(-k * k * math.pi ** 2 * u / 2) * math.sin(k * math.pi * w) for k in range(1, 200))
+    ref = math.log(math.pi / a ** 2) - v * a * w - v * v * (rt - t0) / 2 + math.log(series)
+    got = float(p[0]["log_likelihood"])
+    check(abs(got - ref) < 1e-3, "its log-density %.6f equals the large-time series %.6f (+-1e-3)" % (got, ref))
+    rest = max(float(x["log_likelihood"]) for x in csv.DictReader(open(d + "/trials.csv"))
+               if not (x["participant"] == t["animal"] and x["trial"] == t["trial"]))
+    check(got > rest + 10, "it dominates: log-density %.2f, every other trial <= %.2f" % (got, rest))
 sys.exit(0 if ok else 1)
 PY
 
