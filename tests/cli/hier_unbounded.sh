@@ -5,15 +5,16 @@
 # density grows without bound (it scales as a^-2 f(t / a^2), Navarro & Fuss 2009, J Math Psych 53:222-230).
 #  1. The hierarchical fit stops with a one-line error naming that trial (table row, participant,
 #     regressor value) and the remedy, and the pooled fit of the same data shows the same trial at the
-#     spike (not converged, threshold ~0, nondecision at its RT): the error's reason is checked, not
+#     spike (not converged, threshold ~0, nondecision at its RT, a log-density that matches the
+#     Navarro-Fuss large-time series and dwarfs every other trial's): the error's reason is checked, not
 #     only its wording.
 #  2. With the log link (threshold = exp(eta) > 0 for every finite coefficient) the same data have a
 #     maximum: the hierarchical fit converges, its marginal log-likelihood is at least the pooled one
 #     (the pooled model is the hierarchical one with every SD at 0, where the Laplace value is exact), and
 #     with no true spread the spread is not found: the likelihood-ratio statistic of all SDs against
-#     pooled is referred to the chi-bar-square mixture of Self & Liang 1987 (JASA 82:605-610, case of
-#     three independent boundary parameters: weights 1/8, 3/8, 3/8, 1/8 on chi2 with 0-3 df, scipy's
-#     chi2.sf), and most SDs' 95% profile intervals reach 0.
+#     pooled is referred to the chi-bar-square mixture of Self & Liang 1987 (JASA 82:605-610, three
+#     parameters on the boundary with nearly orthogonal information: weights 1/8, 3/8, 3/8, 1/8 on chi2
+#     with 0-3 df, from memory; scipy's chi2.sf), and most SDs' 95% profile intervals reach 0.
 set -u
 . "$(dirname "$0")/lib.sh"
 : "${BANDLINK:?}" "${BL_SOURCE_ROOT:?}"
