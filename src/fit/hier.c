@@ -1213,23 +1213,23 @@ static double profile_end(bl_hier *h, const double *psi_hat, double m_hat, size_
  * (the marginal likelihood with the spread to 0 is the pooled one). Returns the used trial (model
  * index) with the smallest ratio of threshold to its intercept-only value when that ratio is below
  * HIER_SPIKE_FRACTION, else m->n. */
-static size_t spike_trial(const bl_hier *h, const double *coef, double *ratio)
+static size_t spike_trial(const bl_hier *h, const double *coef)
 {
     const bl_model *m = h->m;
     const bl_param_design *d = &m->par[BL_THRESHOLD];
     size_t worst = m->n;
-    *ratio = INFINITY;
+    double ratio = INFINITY;
     if (!d->is_free || d->link == BL_LINK_LOG || d->n_slopes == 0) return m->n;
     for (size_t k = 0; k < m->n; k++) {
         double b = coef[d->first_coef + d->level[k]], a = b;
         for (size_t s = 0; s < d->n_slopes; s++)
             a += coef[d->slopes[s].first_coef + d->slopes[s].level[k]] * d->slopes[s].x[k];
-        if (b > 0 && a / b < *ratio) {
-            *ratio = a / b;
+        if (b > 0 && a / b < ratio) {
+            ratio = a / b;
             worst = k;
         }
     }
-    return *ratio < HIER_SPIKE_FRACTION ? worst : m->n;
+    return ratio < HIER_SPIKE_FRACTION ? worst : m->n;
 }
 
 /* The error for a pooled estimate on the spike (spike_trial): names the trial, its participant, the
@@ -1646,8 +1646,8 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for the hierarchical fit of model '%s'", r->name);
         goto done;
     }
-    double spike_ratio;
-    size_t spike = pooled && !pooled->converged ? spike_trial(h, pooled_coef, &spike_ratio) : h->m->n;
+    /* a pooled estimate on the likelihood's spike: no maximum to find (spike_trial) */
+    size_t spike = pooled && !pooled->converged ? spike_trial(h, pooled_coef) : h->m->n;
     if (spike < h->m->n) {
         st = spike_error(h, r->name, pooled_coef, spike, err);
         goto done;
