@@ -1198,6 +1198,68 @@ static double profile_end(bl_hier *h, const double *psi_hat, double m_hat, size_
     return 0.5 * (s_in + s_out);
 }
 
+/* A threshold below this fraction of its intercept-only value, at a pooled estimate that did not
+ * converge, marks the spike below. */
+#define HIER_SPIKE_FRACTION 1e-3
+
+/* The likelihood of a model whose threshold has an identity link and slopes has no maximum when a slope
+ * can take one trial's threshold a to 0 while the nondecision time rises to that trial's RT t: the
+ * first-passage density scales as f(t | v, a, w) = a^-2 exp(-v a w - v^2 t / 2) f(t / a^2 | 0, 1, w)
+ * (Navarro & Fuss 2009, J Math Psych 53:222-230, eq. 2-4), so along t - t0 = a^2 it grows like
+ * 1 / (t - t0) without bound. A pooled fit that ran onto such a spike stops unconverged there; for the
+ * hierarchical fit no start near it is of use: each participant's h(z) is not concave in the threshold
+ * and nondecision offsets (their 2 x 2 block of the Hessian has a negative determinant, so no Levenberg
+ * shift or rescaling gives an ascent to a mode) and, started away from it, the maximisation climbs back
+ * (the marginal likelihood with the spread to 0 is the pooled one). Returns the used trial (model
+ * index) with the smallest ratio of threshold to its intercept-only value when that ratio is below
+ * HIER_SPIKE_FRACTION, else m->n. */
+static size_t spike_trial(const bl_hier *h, const double *coef)
+{
+    const bl_model *m = h->m;
+    const bl_param_design *d = &m->par[BL_THRESHOLD];
+    size_t worst = m->n;
+    double ratio = INFINITY;
+    if (!d->is_free || d->link == BL_LINK_LOG || d->n_slopes == 0) return m->n;
+    for (size_t k = 0; k < m->n; k++) {
+        double b = coef[d->first_coef + d->level[k]], a = b;
+        for (size_t s = 0; s < d->n_slopes; s++)
+            a += coef[d->slopes[s].first_coef + d->slopes[s].level[k]] * d->slopes[s].x[k];
+        if (b > 0 && a / b < ratio) {
+            ratio = a / b;
+            worst = k;
+        }
+    }
+    return ratio < HIER_SPIKE_FRACTION ? worst : m->n;
+}
+
+/* The error for a pooled estimate on the spike (spike_trial): names the trial, its participant, the
+ * regressor whose slope moves its threshold most, and the remedies. */
+static bl_status spike_error(const bl_hier *h, const char *model, const double *coef, size_t k, bl_error *err)
+{
+    const bl_model *m = h->m;
+    const bl_param_design *d = &m->par[BL_THRESHOLD];
+    const char *who = "?";
+    for (size_t j = 0; j < h->J; j++)
+        for (size_t i = 0; i < h->part[j].n_trials; i++)
+            if (h->part[j].trials[i] == k) who = h->names[j];
+    size_t top = 0;
+    double top_move = 0;
+    for (size_t s = 0; s < d->n_slopes; s++) {
+        double mv = fabs(coef[d->slopes[s].first_coef + d->slopes[s].level[k]] * d->slopes[s].x[k]);
+        if (mv > top_move) top_move = mv, top = s;
+    }
+    bl_wiener_params pv;
+    bl_model_predict(m, coef, k, &pv);
+    return bl_error_set(
+        err, BL_ERR_NUMERIC,
+        "model '%s': the likelihood has no maximum: the pooled fit (not converged) ran to trial table "
+        "row %zu (participant '%s', %s %.4g) with threshold %.3g and nondecision %.3g s below its RT %.6g s, "
+        "where the density grows without bound; give threshold \"link\": \"log\", or leave such "
+        "regressor values out",
+        model, m->row[k] + 1, who, d->slopes[top].regressor, d->slopes[top].x[k], pv.value[BL_THRESHOLD],
+        m->rt[k] - pv.value[BL_NONDECISION], m->rt[k]);
+}
+
 /* Starting spread and the x-unit scale of every component (pooled SEs for the coefficients). */
 static void starting_point(bl_hier *h, const bl_fit_result *pooled, const double *pooled_coef)
 {
@@ -1582,6 +1644,12 @@ bl_status bl_hier_fit(bl_hier *h, const bl_fit_options *opt, const bl_fit_result
     bl_status st = BL_OK;
     if (!h->psi0 || !h->scale || !h->free_idx || !info || !cov_x || !cov_psi || !*part_coef) {
         st = bl_error_set(err, BL_ERR_NOMEM, "out of memory for the hierarchical fit of model '%s'", r->name);
+        goto done;
+    }
+    /* a pooled estimate on the likelihood's spike: no maximum to find (spike_trial) */
+    size_t spike = pooled && !pooled->converged ? spike_trial(h, pooled_coef) : h->m->n;
+    if (spike < h->m->n) {
+        st = spike_error(h, r->name, pooled_coef, spike, err);
         goto done;
     }
     starting_point(h, pooled, pooled_coef);
