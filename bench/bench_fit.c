@@ -111,7 +111,8 @@ static int variability_fit(int rounds, int datasets)
         bl_model *m = variability_data(99 + (unsigned long)d, &t);
         if (!m) return 1;
         size_t k = bl_model_n_coef(m), n = bl_model_n_trials(m);
-        double best_fit = INFINITY, best_ref = INFINITY;
+        double best_fit = INFINITY, best_ref = INFINITY, best_prof = INFINITY;
+        size_t evals_fit = 0;
         bl_fit_result r = {0};
         bl_error err = {0};
         bl_warnings warn = {0};
@@ -121,24 +122,40 @@ static int variability_fit(int rounds, int datasets)
             bl_fit_options_default(&opt);
             opt.threads = 1;
             opt.parallel_trials = -1;
-            bl_fit_result_clear(&r);
-            double t0 = now();
-            if (bl_fit_model(m, &opt, NULL, &r, &warn, &err)) {
-                fprintf(stderr, "bench-fit: %s\n", err.message);
-                return 1;
+            /* the fit with Wald inference only, then the same fit with profile intervals */
+            for (int prof = 0; prof < 2; prof++) {
+                opt.profiles = prof;
+                bl_fit_result_clear(&r);
+                bl_warnings_clear(&warn);
+                double t0 = now();
+                if (bl_fit_model(m, &opt, NULL, &r, &warn, &err)) {
+                    fprintf(stderr, "bench-fit: %s\n", err.message);
+                    return 1;
+                }
+                double dt = now() - t0;
+                if (prof) best_prof = fmin(best_prof, dt);
+                else {
+                    best_fit = fmin(best_fit, dt);
+                    evals_fit = r.diag.evaluations;
+                }
             }
-            best_fit = fmin(best_fit, now() - t0);
         }
         double ref_pass = best_ref * (double)n * 1e-9;
         printf("variability fit, dataset %d (1,000 trials; threshold, drift per context, nondecision, drift_sd, "
                "start_range, nondecision_range free; 1 thread): %.3f s = %.0f plain passes (%.1f ns per plain "
                "density+gradient), %zu likelihood evaluations (%s, %zu iterations of the best start, Newton "
                "decrement %.2g), %s, LL %.6f; target < 2 s\n",
-               d + 1, best_fit, best_fit / ref_pass, best_ref, r.diag.evaluations, r.diag.method, r.diag.iterations,
+               d + 1, best_fit, best_fit / ref_pass, best_ref, evals_fit, r.diag.method, r.diag.iterations,
                r.diag.newton_decrement, r.converged ? "converged" : "NOT CONVERGED", r.log_likelihood);
-        for (size_t j = 0; j < k; j++)
-            printf("  %-18s %-10s %9.5f  (SE %.5f)\n", r.coef[j].parameter, r.coef[j].level, r.coef[j].estimate,
+        printf("  with profile-likelihood intervals of nondecision and the three variability parameters: %.3f s = "
+               "%.0f plain passes, %zu likelihood evaluations (%zu for the intervals)\n",
+               best_prof, best_prof / ref_pass, r.diag.evaluations, r.diag.evaluations - evals_fit);
+        for (size_t j = 0; j < k; j++) {
+            printf("  %-18s %-10s %9.5f  (SE %.5f)", r.coef[j].parameter, r.coef[j].level, r.coef[j].estimate,
                    r.coef[j].se);
+            if (r.coef[j].profiled) printf("  profile 95%% [%.5f, %.5f]", r.coef[j].profile_low, r.coef[j].profile_high);
+            printf("\n");
+        }
         for (size_t w = 0; w < warn.count; w++) printf("  warning: %s\n", warn.items[w]);
         bl_fit_result_clear(&r);
         bl_model_destroy(m);

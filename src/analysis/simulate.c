@@ -1106,6 +1106,11 @@ static bl_status check_truth_model(const bl_scenario *sc, const bl_study *study,
         const truth_param *t = &sc->truth[p];
         const bl_param_spec *ps = &m->param[p];
         if (!t->given) {
+            if (!ps->is_fixed && p == BL_CONTAMINATION)
+                return bl_error_set(err, BL_ERR_INPUT,
+                                    "%s: study.truth_model: model '%s' estimates contamination, which simulate does not "
+                                    "draw (there is no truth.contamination); name a truth model without it",
+                                    sc->path, m->name);
             if (!ps->is_fixed)
                 return bl_error_set(err, BL_ERR_INPUT,
                                     "%s: truth.%s: missing, but model '%s' estimates it; give its true value", sc->path,

@@ -61,6 +61,7 @@ void bl_fit_options_default(bl_fit_options *o)
     memset(o, 0, sizeof *o);
     o->threads = 0;
     o->seed = 1;
+    o->profiles = 1;
 }
 
 /* ---- EZ-diffusion ---------------------------------------------------------------------------- */
@@ -1330,7 +1331,7 @@ bl_status bl_fit_model(const bl_model *m, const bl_fit_options *opt, const doubl
     bl_status st = bl_likelihood_create(m, opt ? opt->threads : 0, &lik, err);
     if (st) return st;
     if (opt) bl_likelihood_set_parallel(lik, opt->parallel_trials);
-    st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, 2, res, NULL, err);
+    st = bl_fit_core(m, lik, opt, bl_fit_default_starts(opt), start, opt && !opt->profiles ? 1 : 2, res, NULL, err);
     if (!st) bl_fit_warn(m, NULL, res, warn);
     bl_likelihood_destroy(lik);
     return st;

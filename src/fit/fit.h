@@ -28,6 +28,8 @@ typedef struct {
     size_t n_models;
     int starts;                       /* optimiser starts per fit; <= 0: the study's fit.starts, else 3 */
     int simplex_only;                 /* 1: Nelder-Mead (nmsimplex2) alone instead of BFGS (for checks) */
+    int profiles;                     /* 1 (default): profile-likelihood intervals of nondecision and the
+                                         variability parameters in pooled and separate fits; 0: Wald only */
     bl_parallel_mode parallel_trials; /* a single fit's trials over threads (default AUTO: measured;
                                        see bl_likelihood_set_parallel) */
     /* Called between fits (may be NULL): stage text, steps done, steps in total. */

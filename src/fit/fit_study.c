@@ -360,7 +360,7 @@ static bl_status run_fits(study_fit *sf, bl_error *err)
         char *keep = fr->participant; /* fit_core clears the result; the label is set again below */
         fr->participant = NULL;
         /* hierarchical: this pooled fit is the start of the marginal maximisation; no profiles */
-        int infer = set->mode == BL_PARTICIPANTS_HIERARCHICAL ? 1 : 2;
+        int infer = set->mode == BL_PARTICIPANTS_HIERARCHICAL || !opt->profiles ? 1 : 2;
         job_st[j] = bl_fit_core(u->models[i], u->liks[i], opt, opt->starts, NULL, infer, fr, u->coef[i], &job_err[j]);
         fr->participant = keep;
         if (opt->progress) {

@@ -22,7 +22,7 @@
 #define PROFILE_DECREMENT2 1e-4     /* squared Newton decrement at a point: LL within ~5e-5 of its maximum */
 #define PROFILE_MAX_ROOT_STEPS 40
 #define PROFILE_MAX_NEWTON 40
-#define PROFILE_REFRESH_AFTER 5 /* Newton steps on a carried curvature before refreshing it at the point */
+#define PROFILE_REFRESH_AFTER 3 /* Newton steps on a carried curvature before refreshing it at the point */
 
 typedef struct {
     bl_profile_problem *p;
@@ -65,10 +65,11 @@ static void solve(const double *f, size_t m, double *rhs)
     if (m) LAPACKE_dpotrs(LAPACK_COL_MAJOR, 'L', (lapack_int)m, 1, f, (lapack_int)m, rhs, (lapack_int)m);
 }
 
-/* Minus the Hessian of the others at w->c (gradient w->g there) by differences of the analytic gradient
- * -- central, forward where the backward point would cross a lower bound or be infeasible -- into w->cur,
- * its diagonal raised (Levenberg) until it is positive definite: away from the estimate the profile
- * may curve the other way in some direction. 0 (w->cur unchanged) when no difference can be taken. */
+/* Minus the Hessian of the others at w->c (gradient w->g there) by forward differences of the analytic
+ * gradient (m evaluations; Newton needs the curvature only roughly) into w->cur, its diagonal raised
+ * (Levenberg) until it is positive definite: away from the estimate the profile may curve the other way
+ * in some direction. A step is taken upward from a lower bound. 0 (w->cur unchanged) when no difference
+ * can be taken. */
 static int refresh_curvature(profile_ws *w)
 {
     size_t m = w->m;
@@ -76,21 +77,11 @@ static int refresh_curvature(profile_ws *w)
     for (size_t a = 0; a < m; a++) {
         size_t ia = w->idx[a];
         double ca = w->c[ia], h = 1e-5 * fmax(fabs(ca), 1e-2);
-        int central = ca - h >= lower_of(w, ia);
         w->c[ia] = ca + h;
         double lp = loglik(w, w->c, w->gp);
         w->c[ia] = ca;
         if (!isfinite(lp)) return 0;
-        if (central) {
-            w->c[ia] = ca - h;
-            double lm = loglik(w, w->c, w->gt);
-            w->c[ia] = ca;
-            central = isfinite(lm);
-        }
-        for (size_t b = 0; b < m; b++) {
-            size_t ib = w->idx[b];
-            h2[b * m + a] = central ? -(w->gp[ib] - w->gt[ib]) / (2 * h) : -(w->gp[ib] - w->g[ib]) / h;
-        }
+        for (size_t b = 0; b < m; b++) h2[b * m + a] = -(w->gp[w->idx[b]] - w->g[w->idx[b]]) / h;
     }
     double dmax = 0;
     for (size_t a = 0; a < m; a++) {
@@ -142,15 +133,16 @@ static double newton_step(profile_ws *w)
 
 /* Newton steps over the others from w->c (log-likelihood ll, gradient w->g) until the squared decrement
  * is below PROFILE_DECREMENT2, each step projected onto the lower bounds and shortened until the
- * likelihood rises. The curvature in use is refreshed at the point when `fresh` is set, after
- * PROFILE_REFRESH_AFTER steps, or when a step fails. Returns the final log-likelihood. */
+ * likelihood rises. The curvature in use is refreshed at the point when `fresh` is set, every
+ * PROFILE_REFRESH_AFTER steps, and when a step fails. Returns the final log-likelihood. */
 static double maximise_others(profile_ws *w, double ll, int fresh)
 {
     size_t k = w->p->k, m = w->m;
-    int refreshed = 0;
-    for (int it = 0; it < PROFILE_MAX_NEWTON; it++) {
-        if (!refreshed && (fresh || it == PROFILE_REFRESH_AFTER)) {
+    int refreshed = 0, since = 0; /* steps since the curvature was last refreshed */
+    for (int it = 0; it < PROFILE_MAX_NEWTON; it++, since++) {
+        if ((fresh && it == 0) || since == PROFILE_REFRESH_AFTER) {
             refreshed = 1;
+            since = 0;
             refresh_curvature(w);
         }
         double dec2 = newton_step(w);
@@ -171,8 +163,9 @@ static double maximise_others(profile_ws *w, double ll, int fresh)
             }
         }
         if (accepted) continue;
-        if (refreshed) break; /* no rise even along the point's own curvature */
+        if (refreshed && since == 0) break; /* no rise even along the point's own curvature */
         refreshed = 1;
+        since = -1;
         if (!refresh_curvature(w)) break;
     }
     return ll;

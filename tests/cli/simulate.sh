@@ -56,6 +56,12 @@ sed 's/"truth_model": "theta-and-beta"/"truth_model": "baseline"/' "$scen" >"$tm
 "$BANDLINK" simulate "$tmp/tm.json" --out "$tmp/t" 2>"$tmp/e"; rc=$?
 [ $rc -eq 2 ] && grep -q "truth.threshold: its intercepts/slopes do not have the structure of model 'baseline'" "$tmp/e" \
     && pass "truth structure checked against the truth model" || fail "truth model: rc $rc $(cat "$tmp/e")"
+# A truth model that estimates contamination: simulate draws none, so it says so (not "give its true value",
+# which the truth keys would then refuse).
+sed 's/{"name": "theta-and-beta", /{"name": "theta-and-beta", "contamination": {}, /' "$scen" >"$tmp/tc.json"
+"$BANDLINK" simulate "$tmp/tc.json" --out "$tmp/tc" 2>"$tmp/e"; rc=$?
+[ $rc -eq 2 ] && grep -q "estimates contamination, which simulate does not draw" "$tmp/e" && [ ! -e "$tmp/tc" ] \
+    && pass "a truth model estimating contamination: exit 2 saying why" || fail "contamination truth: rc $rc $(cat "$tmp/e")"
 "$BANDLINK" simulate "$scen" 2>"$tmp/e"; rc=$?
 [ $rc -eq 2 ] && grep -q "missing --out" "$tmp/e" && pass "missing --out: usage error" || fail "missing --out: rc $rc"
 "$BANDLINK" simulate "$scen" --out "$tmp/x" --bogus 2>"$tmp/e"; rc=$?
