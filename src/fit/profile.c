@@ -29,6 +29,7 @@ typedef struct {
     size_t j, m;             /* the profiled coefficient; m = k - 1 others */
     size_t *idx;             /* the others' indices */
     double *base, *cur;      /* m x m: I_RR at the estimate, and the curvature in use (positive definite) */
+    double *base_f;          /* m x m: the Cholesky factor of base */
     double *sub;             /* m x m: the free block of cur, factored */
     double *slope;           /* m: the others' linear prediction per unit of b */
     double *c, *g, *ct, *gt; /* k: point, gradient, trial point, its gradient */
@@ -66,20 +67,26 @@ static void solve(const double *f, size_t m, double *rhs)
 }
 
 /* Minus the Hessian of the others at w->c (gradient w->g there) by forward differences of the analytic
- * gradient (m evaluations; Newton needs the curvature only roughly) into w->cur, its diagonal raised
- * (Levenberg) until it is positive definite: away from the estimate the profile may curve the other way
- * in some direction. A step is taken upward from a lower bound. 0 (w->cur unchanged) when no difference
- * can be taken. */
+ * gradient (m evaluations; Newton needs the curvature only roughly; backward beside a feasibility edge)
+ * into w->cur, its diagonal raised (Levenberg) until it is positive definite: away from the estimate the
+ * profile may curve the other way in some direction. 0 (w->cur unchanged) when no difference can be
+ * taken. */
 static int refresh_curvature(profile_ws *w)
 {
     size_t m = w->m;
     double *h2 = w->sub; /* scratch until the step factors into it */
     for (size_t a = 0; a < m; a++) {
         size_t ia = w->idx[a];
-        double ca = w->c[ia], h = 1e-5 * fmax(fabs(ca), 1e-2);
-        w->c[ia] = ca + h;
-        double lp = loglik(w, w->c, w->gp);
-        w->c[ia] = ca;
+        double ca = w->c[ia], h = 1e-5 * fmax(fabs(ca), 1e-2), lp = -INFINITY;
+        /* forward, or backward beside a feasibility edge (not below a lower bound) */
+        for (int side = 0; side < 2 && !isfinite(lp); side++) {
+            if (side) h = -h;
+            if (ca + h < lower_of(w, ia)) continue;
+            w->c[ia] = ca + h;
+            h = w->c[ia] - ca; /* the step actually represented */
+            lp = loglik(w, w->c, w->gp);
+            w->c[ia] = ca;
+        }
         if (!isfinite(lp)) return 0;
         for (size_t b = 0; b < m; b++) h2[b * m + a] = -(w->gp[w->idx[b]] - w->g[w->idx[b]]) / h;
     }
@@ -131,6 +138,18 @@ static double newton_step(profile_ws *w)
     return dec2;
 }
 
+/* The squared decrement of the gradient of the free others in the estimate's information (its
+ * Cholesky factor w->base_f; the held others' gradient left out). */
+static double base_decrement2(profile_ws *w)
+{
+    size_t m = w->m;
+    for (size_t a = 0; a < m; a++) w->gp[a] = w->active[a] ? 0 : w->g[w->idx[a]];
+    solve(w->base_f, m, w->gp);
+    double d2 = 0;
+    for (size_t a = 0; a < m; a++) d2 += (w->active[a] ? 0 : w->g[w->idx[a]]) * w->gp[a];
+    return d2;
+}
+
 /* Newton steps over the others from w->c (log-likelihood ll, gradient w->g) until the squared decrement
  * is below PROFILE_DECREMENT2, each step projected onto the lower bounds and shortened until the
  * likelihood rises. The curvature in use is refreshed at the point when `fresh` is set, every
@@ -146,7 +165,18 @@ static double maximise_others(profile_ws *w, double ll, int fresh)
             refresh_curvature(w);
         }
         double dec2 = newton_step(w);
-        if (dec2 >= 0 && dec2 < PROFILE_DECREMENT2) break;
+        if (dec2 >= 0 && dec2 < PROFILE_DECREMENT2) {
+            /* small in the curvature in use; a stale or heavily shifted one can say so far from the
+             * maximum, so the gradient must be small in the estimate's standard-error units too */
+            if (base_decrement2(w) < PROFILE_DECREMENT2) break;
+            if (since == 0 && refreshed) memcpy(w->cur, w->base, m * m * sizeof *w->cur);
+            else {
+                refreshed = 1;
+                since = -1;
+                if (!refresh_curvature(w)) memcpy(w->cur, w->base, m * m * sizeof *w->cur);
+            }
+            dec2 = newton_step(w);
+        }
         int accepted = 0;
         for (double t = 1.0; dec2 >= 0 && t > 1e-3 && !accepted; t *= 0.5) {
             memcpy(w->ct, w->c, k * sizeof *w->ct);
@@ -334,6 +364,7 @@ static void ws_free(profile_ws *w)
     free(w->sub);
     free(w->active);
     free(w->free_idx);
+    free(w->base_f);
     free(w->trial);
     free(w->slope);
     free(w->c);
@@ -361,10 +392,11 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
     w.active = malloc(mm);
     w.free_idx = malloc(mm * sizeof *w.free_idx);
     w.trial = malloc(mm * mm * sizeof *w.trial);
+    w.base_f = malloc(mm * mm * sizeof *w.base_f);
     w.slope = malloc(mm * sizeof *w.slope);
     w.rhs = malloc(mm * sizeof *w.rhs);
     double **kv[] = {&w.c, &w.g, &w.ct, &w.gt, &w.gp, &w.last, &w.near_in, &w.near_out};
-    int ok = w.idx && w.base && w.cur && w.sub && w.active && w.free_idx && w.trial && w.slope && w.rhs;
+    int ok = w.idx && w.base && w.cur && w.sub && w.active && w.free_idx && w.trial && w.base_f && w.slope && w.rhs;
     for (size_t i = 0; i < sizeof kv / sizeof *kv; i++) ok &= (*kv[i] = malloc(k * sizeof **kv[i])) != NULL;
     if (!ok) {
         ws_free(&w);
@@ -375,11 +407,11 @@ bl_status bl_profile_interval(bl_profile_problem *p, size_t j, double lower_limi
     const double *inf = p->info;
     for (size_t a = 0; a < m; a++)
         for (size_t b = 0; b < m; b++) w.base[a * m + b] = inf[w.idx[a] * k + w.idx[b]];
-    memcpy(w.sub, w.base, m * m * sizeof *w.sub);
-    if (factor(w.sub, m)) {
+    memcpy(w.base_f, w.base, m * m * sizeof *w.base_f);
+    if (factor(w.base_f, m)) {
         /* slope = -I_RR^-1 I_Rj; the SE of b_j is 1 / sqrt(I_jj - I_jR I_RR^-1 I_Rj) */
         for (size_t a = 0; a < m; a++) w.slope[a] = -inf[w.idx[a] * k + j];
-        solve(w.sub, m, w.slope);
+        solve(w.base_f, m, w.slope);
         double schur = inf[j * k + j];
         for (size_t a = 0; a < m; a++) schur += inf[j * k + w.idx[a]] * w.slope[a];
         if (schur > 0 && isfinite(schur)) {
