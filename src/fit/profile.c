@@ -291,7 +291,7 @@ static double find_end(profile_ws *w, int side, double limit)
     memcpy(w->cur, w->base, w->m * w->m * sizeof *w->cur);
     double in_b = b0, in_r = 0, out_b = NAN, out_r = INFINITY;
     double b = b0 + side * z * w->se, prev_b = b0, prev_r = 0;
-    int inside_run = 0;
+    int inside_run = 0, bisect_next = 0;
     for (int step = 0; step < PROFILE_MAX_ROOT_STEPS; step++) {
         int at_limit = side < 0 && b <= limit;
         if (at_limit) b = limit;
@@ -324,7 +324,8 @@ static double find_end(profile_ws *w, int side, double limit)
                     in_r = out_r;
                     out_b = NAN;
                     out_r = INFINITY;
-                }
+                } else
+                    bisect_next = 1; /* still outside: halve the bracket rather than creep along it */
                 this_b = in_b;
                 this_r = in_r;
             }
@@ -335,11 +336,14 @@ static double find_end(profile_ws *w, int side, double limit)
         }
         double width = fabs(out_b - in_b);
         if (!isnan(out_b)) {
-            if (width < 1e-10 * (fabs(b0) + w->se)) return 0.5 * (in_b + out_b);
+            /* located to 1e-6 SE: a cliff (the profile jumps past z at a feasibility edge) ends here too */
+            if (width < 1e-6 * w->se) return in_b;
             /* secant through the last two points when it lands inside the bracket (r is smooth and
              * nearly linear), else the secant of the bracket's ends; bisection beside an infeasible end */
             double next = NAN;
             if (isfinite(prev_r) && isfinite(r) && r != prev_r) next = b + (z - r) * (b - prev_b) / (r - prev_r);
+            if (bisect_next) next = 0.5 * (in_b + out_b);
+            bisect_next = 0;
             if (!(next > fmin(in_b, out_b) && next < fmax(in_b, out_b)))
                 next = isfinite(out_r) ? in_b + (z - in_r) / (out_r - in_r) * (out_b - in_b) : 0.5 * (in_b + out_b);
             b = next;
