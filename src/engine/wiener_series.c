@@ -186,8 +186,9 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
 /* ---- tensor Gauss sums in the large-time range ------------------------------------------------- */
 
 /* Sum over t nodes (tt[i], weights twt[i]) and start nodes (w + sz dz[j], weights wwt[j]) of the
- * density at one boundary, all at u = t/a^2 >= 0.25, where the five-term large-time series of
- * large_time() is exact to 1e-15 relative. The series factorises: exp(-(k^2-1)q) depends on t only and
+ * density at one boundary by the large-time series: five terms at u = t/a^2 >= 0.25 (large_time()'s
+ * bound, exact to 1e-15 relative), more below (down to u = BLW_TENSOR_U_MIN; count from a tail bound,
+ * NAN when it needs more than BLW_GRID_NK terms or a sum is not 1e13 times its tail). The series factorises: exp(-(k^2-1)q) depends on t only and
  * sin(k pi w'), cos(k pi w') on the start only. The exponential prefactor
  * exp((sv^2 a^2 W^2 - 2 v a W - v^2 t) / (2D) - q), D = 1 + sv^2 t, splits into a row factor (t only),
  * a column factor (start only) and the cross factor exp(B'_j d_i), B'_j = B(W_j) - B(W_ref) with
@@ -198,28 +199,60 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
  * as f-weighted moments in W (1, W, W^2, and the series' derivative sums) and combined with the row's
  * t-dependent coefficients once. Returns log of the sum; g (optional) receives the f-weighted means
  * of d log f / d(a, v, w, sv, sz), of d log f / dt and of (d log f / dt) tx[i] (tx may be NULL). */
+/* The series sums at one point (inlined: with K = 5 the loop unrolls). */
+static inline void series_sums(int K, const double *ks1, const double *ks3, const double *kc2, const double *ek,
+                               int grad, double *ser, double *s3, double *sc)
+{
+    double a = 0, b = 0, c = 0;
+    for (int k = 0; k < K; k++) a += ks1[k] * ek[k];
+    if (grad)
+        for (int k = 0; k < K; k++) {
+            b += ks3[k] * ek[k];
+            c += kc2[k] * ek[k];
+        }
+    *ser = a;
+    *s3 = b;
+    *sc = c;
+}
+
 double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
                       const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
                       double g[BLW_GRID_NG])
 {
-    enum { NT = 64 + 2, NW = 40, NTAYLOR = 12 };
+    enum { NT = 64 + 2, NW = 40, NTAYLOR = 12, NK = BLW_GRID_NK };
     if (nt > NT || nw > NW) return NAN;
     const double HALF_PI2 = 4.934802200544679309; /* pi^2 / 2 */
     double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
-    double ek[NT][5], row[NT], di[NT], iDi[NT];
-    double Wj[NW], ks1[NW][5], ks3[NW][5], kc2[NW][5], col[NW], Bp[NW];
+    double ek[NT][NK], row[NT], di[NT], iDi[NT];
+    double Wj[NW], ks1[NW][NK], ks3[NW][NK], kc2[NW][NK], col[NW], Bp[NW];
+    /* terms: five at u >= 1/4 (the bound in large_time()); below, the smallest K whose tail bound
+     * sum_{k > K} k^p e^{-(k^2-1) q} <= X^p e^{-(X^2-1) q} / (1 - rho), X = K + 1,
+     * rho = ((X+1)/X)^p e^{-(2X+1) q} (ratios of successive terms decrease), is below 1e-16 at the
+     * earliest node (p = 3 with the gradient: the k^3 sums); checked against the computed sums below */
+    double tmin = tt[0];
+    for (int i = 1; i < nt; i++) tmin = fmin(tmin, tt[i]);
+    double qmin = HALF_PI2 * tmin / a2, tail = 0;
+    int K = 5, pw = g ? 3 : 1;
+    if (tmin < BLW_U_SWITCH * a2) {
+        for (K = 5;; K++) {
+            double X = K + 1, rho = pow((X + 1) / X, pw) * exp(-(2 * X + 1) * qmin);
+            tail = rho < 1 ? pow(X, pw) * exp(-(X * X - 1) * qmin) / (1 - rho) : INFINITY;
+            if (tail <= 1e-16) break;
+            if (K == NK) return NAN;
+        }
+    }
     /* reference: the exponent at the window centre and the user's start, so every factor stays O(e^(|v| a sz)) */
     double tref = tt[nt / 2], Wref = upper ? 1 - w : w;
     double iDref = 1 / (1 + s2 * tref), Bref = 0.5 * (s2 * a2 * Wref * Wref - 2 * vv * a * Wref);
     double Tref = -0.5 * vv * vv * tref * iDref - HALF_PI2 * tref / a2;
     double dmax = 0, bmax = 0;
     for (int i = 0; i < nt; i++) {
-        double q = HALF_PI2 * tt[i] / a2, E = exp(-q), E2 = E * E, E4 = E2 * E2, E8 = E4 * E4;
+        double q = HALF_PI2 * tt[i] / a2, E = exp(-q), E2 = E * E, Ek = E * E2; /* E^(2k+1) */
         ek[i][0] = 1;
-        ek[i][1] = E2 * E;
-        ek[i][2] = E8;
-        ek[i][3] = E8 * E4 * E2 * E;
-        ek[i][4] = E8 * E8 * E8;
+        for (int k = 1; k < K; k++) {
+            ek[i][k] = ek[i][k - 1] * Ek; /* e^{-((k+1)^2 - 1) q} = e^{-(k^2-1) q} E^{2k+1} */
+            Ek *= E2;
+        }
         double iD = 1 / (1 + s2 * tt[i]);
         iDi[i] = iD;
         di[i] = iD - iDref;
@@ -234,16 +267,16 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
         double s1, c1;
         blw_sincospi(W < 0.5 ? W : Wc, &s1, &c1);
         if (W > 0.5) c1 = -c1;
-        double tc = 2 * c1, sk[5], ck[5];
+        double tc = 2 * c1, sk[NK], ck[NK];
         sk[0] = s1;
         ck[0] = c1;
         sk[1] = tc * s1;
         ck[1] = tc * c1 - 1;
-        for (int k = 2; k < 5; k++) {
+        for (int k = 2; k < K; k++) {
             sk[k] = tc * sk[k - 1] - sk[k - 2];
             ck[k] = tc * ck[k - 1] - ck[k - 2];
         }
-        for (int k = 0; k < 5; k++) {
+        for (int k = 0; k < K; k++) {
             double kk = k + 1;
             ks1[j][k] = kk * sk[k];
             ks3[j][k] = kk * kk * kk * sk[k];
@@ -263,18 +296,14 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
         while (deg < NTAYLOR && (term *= X / (deg + 1)) * 1.3 > 1e-17) deg++;
         for (int r = 1; r <= deg; r++) inv[r] = 1.0 / r;
     }
-    double S = 0, G[BLW_GRID_NG] = {0};
+    double S = 0, G[BLW_GRID_NG] = {0}, sermin = INFINITY;
     for (int i = 0; i < nt; i++) {
         double A0 = 0, A1 = 0, A2 = 0, AL = 0, AC = 0, Ad = 0, A1d = 0, ACd = 0;
         for (int j = 0; j < nw; j++) {
             double ser = 0, s3 = 0, sc = 0;
-            for (int k = 0; k < 5; k++) {
-                ser += ks1[j][k] * ek[i][k];
-                if (g) {
-                    s3 += ks3[j][k] * ek[i][k];
-                    sc += kc2[j][k] * ek[i][k];
-                }
-            }
+            if (K == 5) series_sums(5, ks1[j], ks3[j], kc2[j], ek[i], g != NULL, &ser, &s3, &sc);
+            else series_sums(K, ks1[j], ks3[j], kc2[j], ek[i], g != NULL, &ser, &s3, &sc);
+            if (ser < sermin) sermin = ser;
             double cross = 1, x = Bp[j] * di[i];
             if (deg < 0) cross = exp(x);
             else
@@ -306,6 +335,8 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
         G[6] += gt * (tx ? tx[i] : 0);
     }
     if (!(S > 0)) return -INFINITY;
+    /* below u = 1/4 the series may cancel (the density rises from 0): every point's sum must dwarf the tail */
+    if (tail > 1e-13 * sermin) return NAN;
     if (g)
         for (int k = 0; k < BLW_GRID_NG; k++) g[k] = G[k] / S;
     /* undo the reference: the exponent at (tref, Wref) and D_ref^(-1/2) */
