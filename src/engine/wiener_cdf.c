@@ -755,60 +755,73 @@ static int tensor_panel(const gctx *C, double bot, double top, blw_acc *acc)
 }
 
 /* Integral over decision times [t1, t2] (0 <= t1 < t2 <= a^2/4) of the start-averaged density as the
- * start average of CDF differences F(t2) - F(t1), F the small-time series with drift_sd in closed form
- * (cdf_small_sv): Gauss-Legendre over the start with the density's rule at max(t1, t2/2) (the CDF is
- * smoother in the start than the density; docs/methods.md). Merged into acc (gradient sums for a, v, w,
- * sv, sz; the t-sums are not used by the caller). Returns 0 with nothing merged when a difference would
- * lose more than three digits (F(t2) > 1e3 (F(t2) - F(t1))), a start end lies within 1e-3 of a
- * boundary, a rule asks for more than 40 nodes or a series fails: the caller integrates over t instead. */
+ * difference of start averages of the CDF, avg F(t2) - avg F(t1), F the small-time series with drift_sd
+ * in closed form (cdf_small_sv). Each average is a Gauss-Legendre sum over the start with the density's
+ * rule at its own time (F(t, w') is smoother in w' than the density at t; docs/methods.md). Merged into
+ * acc (gradient sums for a, v, w, sv, sz; the t-sums are not used by the caller). Returns 0 with nothing
+ * merged when the difference would lose more than one digit (avg F(t2) > 10 times the difference: the
+ * two averages use different start rules, so their quadrature errors do not cancel),
+ * a start end lies within 1e-3 of a boundary, a rule asks for more than 40 nodes or a series fails:
+ * the caller integrates over t instead. */
 #define BLW_CDF_WINDOW_RATIO 0.25
+static int cdf_start_avg(const gctx *C, double t, double *lF, double G[5])
+{
+    int nz = nodes_z(C, t), grad = G != NULL;
+    if (nz > 40) return 0;
+    static const double one = 1, zero = 0;
+    const double *zx = &zero, *zw = &one;
+    if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
+    double mx = -INFINITY, S = 0, sg = C->upper ? -1 : 1;
+    if (grad)
+        for (int k = 0; k < 5; k++) G[k] = 0;
+    for (int j = 0; j < nz; j++) {
+        double wp = C->w + 0.5 * C->sz * zx[j];
+        double W = C->upper ? 1 - wp : wp, Wcp = C->upper ? wp : 1 - wp;
+        double l, d[4];
+        if (!cdf_small_sv(t, C->vv, C->a, W, Wcp, C->sv, &l, grad ? d : NULL)) return 0;
+        l += log(zw[j]);
+        if (l > mx) {
+            double r = mx == -INFINITY ? 0 : exp(mx - l);
+            S *= r;
+            if (grad)
+                for (int k = 0; k < 5; k++) G[k] *= r;
+            mx = l;
+        }
+        double e = exp(l - mx);
+        S += e;
+        if (!grad) continue;
+        G[0] += e * d[0];
+        G[1] += e * sg * d[1];
+        G[2] += e * sg * d[2];
+        G[3] += e * d[3];
+        G[4] += e * sg * d[2] * 0.5 * zx[j];
+    }
+    if (!(S > 0)) return 0;
+    *lF = mx + log(S);
+    if (grad)
+        for (int k = 0; k < 5; k++) G[k] /= S; /* d log(avg F) */
+    return 1;
+}
+
 static int window_cdf_small(const gctx *C, double t1, double t2, blw_acc *acc)
 {
-    enum { NZ = 40 };
     double Wc = C->upper ? 1 - C->w : C->w;
     if (!(Wc - 0.5 * C->sz > 1e-3) || !(Wc + 0.5 * C->sz < 1 - 1e-3) || !(t2 > t1)) return 0;
     /* two series per start node: cheaper than the Gauss rule over t only for windows reaching far
      * towards the onset (the t rule's node count grows like log(t2/t1) and the density's slope there) */
     if (t1 > BLW_CDF_WINDOW_RATIO * t2) return 0;
-    int nz = nodes_z(C, fmax(t1, 0.5 * t2));
-    if (nz > NZ) return 0;
-    static const double one = 1, zero = 0;
-    const double *zx = &zero, *zw = &one;
-    if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
-    double ld[NZ], gj[NZ][4];
-    for (int j = 0; j < nz; j++) {
-        double wp = C->w + 0.5 * C->sz * zx[j];
-        double W = C->upper ? 1 - wp : wp, Wcp = C->upper ? wp : 1 - wp;
-        double lh, ll = -INFINITY, dh[4], dlo[4] = {0, 0, 0, 0};
-        double *gh = acc->grad ? dh : NULL, *gl = acc->grad ? dlo : NULL;
-        if (!cdf_small_sv(t2, C->vv, C->a, W, Wcp, C->sv, &lh, gh)) return 0;
-        if (t1 > 0 && !cdf_small_sv(t1, C->vv, C->a, W, Wcp, C->sv, &ll, gl)) return 0;
-        double d = blw_logsubexp(lh, ll);
-        if (!(d > -INFINITY) || lh - d > 6.9) return 0;
-        ld[j] = d + log(zw[j]);
-        if (acc->grad) {
-            double rh = exp(lh - d), rl = t1 > 0 ? exp(ll - d) : 0;
-            for (int i = 0; i < 4; i++) gj[j][i] = rh * dh[i] - rl * dlo[i];
-        }
+    int grad = acc->grad;
+    double lh, ll = -INFINITY, gh[5], gl[5] = {0, 0, 0, 0, 0};
+    if (!cdf_start_avg(C, t2, &lh, grad ? gh : NULL)) return 0;
+    if (t1 > 0 && !cdf_start_avg(C, t1, &ll, grad ? gl : NULL)) return 0;
+    double d = blw_logsubexp(lh, ll);
+    if (!(d > -INFINITY) || lh - d > 2.3) return 0;
+    double g[BLW_GRID_NG] = {0};
+    if (grad) {
+        double rh = exp(lh - d), rl = t1 > 0 ? exp(ll - d) : 0;
+        for (int k = 0; k < 5; k++) g[k] = rh * gh[k] - rl * gl[k];
     }
-    double sg = C->upper ? -1 : 1;
-    for (int j = 0; j < nz; j++) {
-        if (ld[j] > acc->mx) {
-            double r = acc->mx == -INFINITY ? 0 : exp(acc->mx - ld[j]);
-            acc->S *= r;
-            if (acc->grad)
-                for (int k = 0; k < BLW_GRID_NG; k++) acc->G[k] *= r;
-            acc->mx = ld[j];
-        }
-        double e = exp(ld[j] - acc->mx);
-        acc->S += e;
-        if (!acc->grad) continue;
-        acc->G[0] += e * gj[j][0];
-        acc->G[1] += e * sg * gj[j][1];
-        acc->G[2] += e * sg * gj[j][2];
-        acc->G[3] += e * gj[j][3];
-        acc->G[4] += e * sg * gj[j][2] * 0.5 * zx[j];
-    }
+    acc_add_log(acc, d, g);
     return 1;
 }
 
