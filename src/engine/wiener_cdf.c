@@ -764,9 +764,10 @@ static int tensor_panel(const gctx *C, double bot, double top, blw_acc *acc)
  * a start end lies within 1e-3 of a boundary, a rule asks for more than 40 nodes or a series fails:
  * the caller integrates over t instead. */
 #define BLW_CDF_WINDOW_RATIO 0.25
+#define BLW_CDF_EXTRA_NODES 2
 static int cdf_start_avg(const gctx *C, double t, double *lF, double G[5])
 {
-    int nz = nodes_z(C, t), grad = G != NULL;
+    int nz = C->sz > 0 ? nodes_z(C, t) + BLW_CDF_EXTRA_NODES : 1, grad = G != NULL;
     if (nz > 40) return 0;
     static const double one = 1, zero = 0;
     const double *zx = &zero, *zw = &one;
