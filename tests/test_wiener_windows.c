@@ -100,7 +100,7 @@ static void check_case(const char *name, bl_wiener_params p, double rt)
         /* GSL qags over the definition of the variability (see the header) */
         check_rel(exp(l), ref, 1e-9, "%s (%s): density vs GSL quadrature over start and nondecision", name,
                   up ? "upper" : "lower");
-        check_rel(lg, l, 1e-12, "%s (%s): gradient call returns the same log-density", name, up ? "upper" : "lower");
+        check_rel(lg, l, 1e-10, "%s (%s): gradient call returns the same log-density (to the series tolerance)", name, up ? "upper" : "lower");
         static const int idx[] = {BL_THRESHOLD, BL_DRIFT, BL_NONDECISION, BL_START,
                                   BL_DRIFT_SD,  BL_START_RANGE, BL_NONDECISION_RANGE};
         for (int k = 0; k < 7; k++) {
