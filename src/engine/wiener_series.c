@@ -259,7 +259,8 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
         dmax = fmax(dmax, fabs(di[i]));
         /* t-part of the prefactor relative to the reference, with D^(-1/2) relative to the reference */
         double T = -0.5 * vv * vv * tt[i] * iD - q;
-        row[i] = twt[i] * sqrt(iD / iDref) * exp(T - Tref + Bref * di[i]);
+        if (i == nt / 2) row[i] = twt[i]; /* the reference node itself: exactly 1 */
+        else row[i] = twt[i] * (s2 > 0 ? sqrt(iD / iDref) : 1) * exp(T - Tref + Bref * di[i]);
     }
     for (int j = 0; j < nw; j++) {
         double wp = w + sz * dz[j];
@@ -276,12 +277,13 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
             sk[k] = tc * sk[k - 1] - sk[k - 2];
             ck[k] = tc * ck[k - 1] - ck[k - 2];
         }
-        for (int k = 0; k < K; k++) {
-            double kk = k + 1;
-            ks1[j][k] = kk * sk[k];
-            ks3[j][k] = kk * kk * kk * sk[k];
-            kc2[j][k] = kk * kk * ck[k];
-        }
+        for (int k = 0; k < K; k++) ks1[j][k] = (k + 1) * sk[k];
+        if (g)
+            for (int k = 0; k < K; k++) {
+                double kk = k + 1;
+                ks3[j][k] = kk * kk * kk * sk[k];
+                kc2[j][k] = kk * kk * ck[k];
+            }
         Wj[j] = W;
         Bp[j] = 0.5 * (W - Wref) * (s2 * a2 * (W + Wref) - 2 * vv * a);
         bmax = fmax(bmax, fabs(Bp[j]));
