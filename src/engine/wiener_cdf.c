@@ -3,7 +3,9 @@
  * Sources: CDF series of Blurton, Kesselmeier & Gondan (2012, J. Math. Psych. 56:470-475) (small
  * time, here written with log Phi terms) and the term-by-term integral of the Navarro & Fuss (2009)
  * large-time series for the survival; nondecision_range by the exact CDF difference
- * [F(rt - t0 + st/2) - F(rt - t0 - st/2)] / st; contaminants as a uniform mixture
+ * [F(rt - t0 + st/2) - F(rt - t0 - st/2)] / st, with drift_sd by the normal expectation of
+ * e^{b nu} Phi(c nu + d) in closed form (Owen 1980, Commun. Stat. Simul. Comput. 9:389-419, 10,010.8);
+ * contaminants as a uniform mixture
  * (Ratcliff & Tuerlinckx 2002, Psychon. Bull. Rev. 9:438-481). See docs/methods.md.
  */
 #include "engine/wiener_internal.h"
