@@ -858,10 +858,13 @@ static int small_panel(const gctx *C, double t1, double t2, blw_acc *acc)
     return 1;
 }
 
-/* Integral over the window [max(lo, 0), hi] of the start-averaged density: Gauss-Legendre panels from
- * hi downwards with ratio 2 (window_panel's rules, the start rule at each panel's lower end) and, when
- * the window reaches the onset, Gauss-Laguerre below m = min(hi, z_min^2/20) per start node (see
- * window_integral). Returns 0 when a panel would need more than 40 nodes (caller: general path). */
+/* Integral over the window [max(lo, 0), hi] of the start-averaged density. The part above u = 1/4:
+ * factorised tensor panels. The part below: CDF averages when it reaches below a quarter of its top
+ * (window_cdf_small), else tensor panels down to u = BLW_TENSOR_U_MIN and one closed-form panel
+ * (small_panel). Where those do not apply: Gauss-Legendre panels from the top downwards with ratio 2
+ * (window_panel's rules, the start rule at each panel's lower end) and, when the window reaches the
+ * onset, Gauss-Laguerre below m = min(hi, z_min^2/20) per start node (see window_integral).
+ * Returns 0 when a panel would need more than 40 nodes (caller: general path). */
 static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
 {
     double a = C->a, m = fmin(hi, 0.05 * C->zmin * C->zmin);
