@@ -3,7 +3,9 @@
  * Sources: CDF series of Blurton, Kesselmeier & Gondan (2012, J. Math. Psych. 56:470-475) (small
  * time, here written with log Phi terms) and the term-by-term integral of the Navarro & Fuss (2009)
  * large-time series for the survival; nondecision_range by the exact CDF difference
- * [F(rt - t0 + st/2) - F(rt - t0 - st/2)] / st; contaminants as a uniform mixture
+ * [F(rt - t0 + st/2) - F(rt - t0 - st/2)] / st, with drift_sd by the normal expectation of
+ * e^{b nu} Phi(c nu + d) in closed form (Owen 1980, Commun. Stat. Simul. Comput. 9:389-419, 10,010.8);
+ * contaminants as a uniform mixture
  * (Ratcliff & Tuerlinckx 2002, Psychon. Bull. Rev. 9:438-481). See docs/methods.md.
  */
 #include "engine/wiener_internal.h"
@@ -100,6 +102,71 @@ static bl_status cdf_small(double t, double v, double a, double w, double wc, do
         }
     }
     return BL_ERR_NUMERIC;
+}
+
+/* Small-time CDF series averaged over drift_sd in closed form, lower boundary. With the drift normal,
+ * nu ~ N(v, sv^2), every term of the series above is e^{b nu} Phi(c nu + d), and
+ * E[e^{b nu} Phi(c nu + d)] = e^{b v + b^2 sv^2/2} Phi((c (v + b sv^2) + d) / sqrt(1 + c^2 sv^2))
+ * (complete the square, then Owen 1980, Commun. Stat. Simul. Comput. 9:389-419, formula 10,010.8:
+ * int Phi(p + q x) phi(x) dx = Phi(p / sqrt(1 + q^2))). With A = a w + r_k, B = r_k - a w,
+ * D = 1 + sv^2 t, rho = sqrt(t D):
+ *   F = sum_k (-1)^k [e^{-A v + A^2 sv^2/2} Phi(((v - A sv^2) t - r_k)/rho)
+ *                    + e^{B v + B^2 sv^2/2} Phi(-((v + B sv^2) t + r_k)/rho)],
+ * which is cdf_small at sv = 0. Each term's exponent is -r_k^2/(2t) + O(r_k) as k grows, so the series
+ * converges like the density's images. Returns 0 (caller uses another method) when it cannot be summed
+ * here (a sum that is not positive, more than 200 terms). dl (optional): d log F / d(a, v, w, sv). */
+static int cdf_small_sv(double t, double v, double a, double w, double wc, double sv, double *lF, double dl[4])
+{
+    double s2 = sv * sv, D = 1 + s2 * t, rho = sqrt(t * D), irho = 1 / rho;
+    double m = 0, S = 0, dS[4] = {0, 0, 0, 0};
+    for (int k = 0; k < 200; k++) {
+        double r, ra, rw;
+        if (k % 2 == 0) {
+            r = k * a + a * w;
+            ra = k + w;
+            rw = a;
+        } else {
+            r = k * a + a * wc;
+            ra = k + wc;
+            rw = -a;
+        }
+        double A = a * w + r, B = r - a * w;
+        double E1 = A * (0.5 * A * s2 - v), E2 = B * (0.5 * B * s2 + v);
+        double x1 = ((v - A * s2) * t - r) * irho, x2 = -((v + B * s2) * t + r) * irho;
+        /* reference exponent from the k = 0 term (log Phi only where Phi is below 1e-197) */
+        if (k == 0) m = fmax(E1 + (x1 < -30 ? ln_Phi(x1) : 0), E2 + (x2 < -30 ? ln_Phi(x2) : 0));
+        /* e^{E - m} Phi(x): erfc directly unless Phi could underflow or the exponent overflow */
+        double t1 = (x1 > -30 && E1 - m < 700) ? exp(E1 - m) * 0.5 * erfc(-x1 * BLW_SQRT1_2) : exp(E1 - m + ln_Phi(x1));
+        double t2 = (x2 > -30 && E2 - m < 700) ? exp(E2 - m) * 0.5 * erfc(-x2 * BLW_SQRT1_2) : exp(E2 - m + ln_Phi(x2));
+        double sg = (k % 2) ? -1 : 1, term = t1 + t2;
+        S += sg * term;
+        int small = term <= CDF_EPS * fabs(S);
+        if (dl) {
+            /* e^{E - m} phi(x): the derivative of Phi(x) carried by the same exponent */
+            double p1 = exp(E1 - m - 0.5 * x1 * x1 - LOG_SQRT_2PI), p2 = exp(E2 - m - 0.5 * x2 * x2 - LOG_SQRT_2PI);
+            double Aa = w + ra, Aw = a + rw, Ba = ra - w, Bw = rw - a;
+            double e1A = A * s2 - v, e2B = B * s2 + v, st2 = s2 * t;
+            double d[4];
+            d[0] = t1 * e1A * Aa + p1 * (-st2 * Aa - ra) * irho + t2 * e2B * Ba + p2 * (-st2 * Ba - ra) * irho;
+            d[1] = -t1 * A + p1 * t * irho + t2 * B - p2 * t * irho;
+            d[2] = t1 * e1A * Aw + p1 * (-st2 * Aw - rw) * irho + t2 * e2B * Bw + p2 * (-st2 * Bw - rw) * irho;
+            double xs = sv * t * t * irho * irho; /* d rho / d sv divided by rho */
+            d[3] = t1 * A * A * sv + p1 * (-2 * A * sv * t * irho - x1 * xs) + t2 * B * B * sv +
+                   p2 * (-2 * B * sv * t * irho - x2 * xs);
+            for (int i = 0; i < 4; i++) {
+                dS[i] += sg * d[i];
+                if (fabs(d[i]) > CDF_EPS * (fabs(dS[i]) + fabs(S) * (1 + fabs(A) + fabs(B)))) small = 0;
+            }
+        }
+        if (k >= 1 && small) {
+            if (!(S > 0) || !isfinite(S)) return 0;
+            *lF = m + log(S);
+            if (dl)
+                for (int i = 0; i < 4; i++) dl[i] = dS[i] / S;
+            return 1;
+        }
+    }
+    return 0;
 }
 
 /* Large-time series for the lower-boundary survival P(T > t, lower)
@@ -661,7 +728,7 @@ static void acc_add_log(blw_acc *acc, double L, const double *g)
         for (int k = 0; k < BLW_GRID_NG; k++) acc->G[k] += e * g[k];
 }
 
-/* Integral of the start-averaged density over [bot, top] (all t >= a^2/4, top <= 2 bot) as one factorised
+/* Integral of the start-averaged density over [bot, top] (t >= BLW_TENSOR_U_MIN a^2, top <= 2 bot) as one factorised
  * tensor sum (blw_grid_large): the rules of window_panel for the times and nodes_z at bot for the starts.
  * Returns 0 when a rule asks for more than 40 nodes. */
 static int tensor_panel(const gctx *C, double bot, double top, blw_acc *acc)
@@ -689,21 +756,140 @@ static int tensor_panel(const gctx *C, double bot, double top, blw_acc *acc)
     return 1;
 }
 
-/* Integral over the window [max(lo, 0), hi] of the start-averaged density: Gauss-Legendre panels from
- * hi downwards with ratio 2 (window_panel's rules, the start rule at each panel's lower end) and, when
- * the window reaches the onset, Gauss-Laguerre below m = min(hi, z_min^2/20) per start node (see
- * window_integral). Returns 0 when a panel would need more than 40 nodes (caller: general path). */
+/* Integral over decision times [t1, t2] (0 <= t1 < t2 <= a^2/4) of the start-averaged density as the
+ * difference of start averages of the CDF, avg F(t2) - avg F(t1), F the small-time series with drift_sd
+ * in closed form (cdf_small_sv). Each average is a Gauss-Legendre sum over the start with the density's
+ * rule at its own time (F(t, w') is smoother in w' than the density at t; docs/methods.md). Merged into
+ * acc (gradient sums for a, v, w, sv, sz; the t-sums are not used by the caller). Returns 0 with nothing
+ * merged when the difference would lose more than one digit (avg F(t2) > 10 times the difference: the
+ * two averages use different start rules, so their quadrature errors do not cancel),
+ * a start end lies within 1e-3 of a boundary, a rule asks for more than 40 nodes or a series fails:
+ * the caller integrates over t instead. */
+#define BLW_CDF_WINDOW_RATIO 0.25
+#define BLW_CDF_EXTRA_NODES 2
+static int cdf_start_avg(const gctx *C, double t, double *lF, double G[5])
+{
+    int nz = C->sz > 0 ? nodes_z(C, t) + BLW_CDF_EXTRA_NODES : 1, grad = G != NULL;
+    if (nz > 40) return 0;
+    static const double one = 1, zero = 0;
+    const double *zx = &zero, *zw = &one;
+    if (nz > 1) blw_gauss_legendre(nz, &zx, &zw);
+    double mx = -INFINITY, S = 0, sg = C->upper ? -1 : 1;
+    if (grad)
+        for (int k = 0; k < 5; k++) G[k] = 0;
+    for (int j = 0; j < nz; j++) {
+        double wp = C->w + 0.5 * C->sz * zx[j];
+        double W = C->upper ? 1 - wp : wp, Wcp = C->upper ? wp : 1 - wp;
+        double l, d[4];
+        if (!cdf_small_sv(t, C->vv, C->a, W, Wcp, C->sv, &l, grad ? d : NULL)) return 0;
+        l += log(zw[j]);
+        if (l > mx) {
+            double r = mx == -INFINITY ? 0 : exp(mx - l);
+            S *= r;
+            if (grad)
+                for (int k = 0; k < 5; k++) G[k] *= r;
+            mx = l;
+        }
+        double e = exp(l - mx);
+        S += e;
+        if (!grad) continue;
+        G[0] += e * d[0];
+        G[1] += e * sg * d[1];
+        G[2] += e * sg * d[2];
+        G[3] += e * d[3];
+        G[4] += e * sg * d[2] * 0.5 * zx[j];
+    }
+    if (!(S > 0)) return 0;
+    *lF = mx + log(S);
+    if (grad)
+        for (int k = 0; k < 5; k++) G[k] /= S; /* d log(avg F) */
+    return 1;
+}
+
+static int window_cdf_small(const gctx *C, double t1, double t2, blw_acc *acc)
+{
+    double Wc = C->upper ? 1 - C->w : C->w;
+    if (!(Wc - 0.5 * C->sz > 1e-3) || !(Wc + 0.5 * C->sz < 1 - 1e-3) || !(t2 > t1)) return 0;
+    /* two series per start node: cheaper than the Gauss rule over t only for windows reaching far
+     * towards the onset (the t rule's node count grows like log(t2/t1) and the density's slope there) */
+    if (t1 > BLW_CDF_WINDOW_RATIO * t2) return 0;
+    int grad = acc->grad;
+    double lh, ll = -INFINITY, gh[5], gl[5] = {0, 0, 0, 0, 0};
+    if (!cdf_start_avg(C, t2, &lh, grad ? gh : NULL)) return 0;
+    if (t1 > 0 && !cdf_start_avg(C, t1, &ll, grad ? gl : NULL)) return 0;
+    double d = blw_logsubexp(lh, ll);
+    if (!(d > -INFINITY) || lh - d > 2.3) return 0;
+    double g[BLW_GRID_NG] = {0};
+    if (grad) {
+        double rh = exp(lh - d), rl = t1 > 0 ? exp(ll - d) : 0;
+        for (int k = 0; k < 5; k++) g[k] = rh * gh[k] - rl * gl[k];
+    }
+    acc_add_log(acc, d, g);
+    return 1;
+}
+
+/* Integral over [t1, t2] (0 < t1, t2 <= 4 t1, all in small time) of the start-averaged density as one
+ * Gauss-Legendre panel over t with the start average in closed form at every node
+ * (blw_start_window_small; one point without start_range). The node count is window_panel's rule applied
+ * to the whole window: the start average is smoother in t than the density at the nearest start, for
+ * which the rule was fitted (docs/methods.md checks it on windows up to t2 = 4 t1). Returns 0 with
+ * nothing merged when the rule asks for more than BLW_SMALL_PANEL_MAX nodes or the closed form does
+ * not apply (a start end within 1e-3 of a boundary): the caller takes the panels of ratio 2. */
+#define BLW_SMALL_PANEL_MAX 16
+static int small_panel(const gctx *C, double t1, double t2, blw_acc *acc)
+{
+    double Wc = C->upper ? 1 - C->w : C->w;
+    if (C->sz > 0 && (!(Wc - 0.5 * C->sz > 1e-3) || !(Wc + 0.5 * C->sz < 1 - 1e-3))) return 0;
+    double h = 0.5 * (t2 - t1), c = 0.5 * (t2 + t1);
+    double E = h * fmax(fabs(slope_proxy(t1, C->vv, C->a, C->zmin, C->sv)),
+                        fabs(slope_proxy(t2, C->vv, C->a, C->zmin, C->sv)));
+    double nf = 2.5 + 2.5 * sqrt(E) + 0.1 * E + 9 * h / c;
+    if (nf > BLW_SMALL_PANEL_MAX) return 0;
+    int nt = nf < 2 ? 2 : (int)ceil(nf);
+    const double *gx, *gw;
+    blw_gauss_legendre(nt, &gx, &gw);
+    blw_acc pan = {-INFINITY, 0, {0}, acc->grad};
+    for (int i = 0; i < nt; i++) {
+        double t = c + h * gx[i], wt = 2 * h * gw[i], dz = 0;
+        if (C->sz == 0) blw_point_sum(C->v, C->a, C->w, C->sv, 0, C->upper, 1, &t, &dz, &wt, NULL, &pan);
+        else if (!blw_start_window_small(t, C->v, C->a, C->w, C->sv, C->sz, C->upper, wt, 0, &pan)) return 0;
+    }
+    acc_merge(acc, &pan);
+    return 1;
+}
+
+/* Integral over the window [max(lo, 0), hi] of the start-averaged density. The part above u = 1/4:
+ * factorised tensor panels. The part below: CDF averages when it reaches below a quarter of its top
+ * (window_cdf_small), else tensor panels down to u = BLW_TENSOR_U_MIN and one closed-form panel
+ * (small_panel). Where those do not apply: Gauss-Legendre panels from the top downwards with ratio 2
+ * (window_panel's rules, the start rule at each panel's lower end) and, when the window reaches the
+ * onset, Gauss-Laguerre below m = min(hi, z_min^2/20) per start node (see window_integral).
+ * Returns 0 when a panel would need more than 40 nodes (caller: general path). */
 static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
 {
     double a = C->a, m = fmin(hi, 0.05 * C->zmin * C->zmin);
     double floor_ = lo > 0 ? lo : m, top = hi;
     int onset = lo <= 0;
     /* the part in the large-time range (t >= a^2/4): factorised tensor panels */
-    double ts = BLW_U_SWITCH * a * a;
+    double ts = BLW_U_SWITCH * a * a, tl = BLW_TENSOR_U_MIN * a * a, t1 = lo > 0 ? lo : 0;
     for (int k = 0; top > ts && top > floor_; k++) {
         double bot = fmax(fmax(floor_, ts), 0.5 * top);
         if (k > 60 || !tensor_panel(C, bot, top, acc)) return 0;
         top = bot;
+    }
+    if (top > floor_) {
+        /* the part in the small-time range, reaching below top/4: CDF differences averaged over the start */
+        if (t1 <= 0.25 * top && window_cdf_small(C, t1, top, acc)) return 1;
+        /* else tensor panels continue down to u = BLW_TENSOR_U_MIN (more series terms) while the series
+         * keeps its digits, and the rest is one panel with the start average in closed form */
+        if (t1 > 0.25 * top) {
+            for (int k = 0; top > fmax(t1, tl) && k < 60; k++) {
+                double bot = fmax(fmax(t1, tl), 0.5 * top);
+                if (!tensor_panel(C, bot, top, acc)) break;
+                top = bot;
+            }
+            if (!(top > t1) || small_panel(C, t1, top, acc)) return 1;
+        }
     }
     /* Node counts scale with log(1/tolerance): a part that carries a share s of the integral needs
      * only 1e-9/s relative accuracy, i.e. the fraction log(1e-9/s)/log(1e-9) of the nodes (at least

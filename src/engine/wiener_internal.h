@@ -46,9 +46,12 @@ double blw_log_dens_lo(double t, double v, double a, double w, double sv, double
 /* Same for a boundary (upper != 0: upper), derivatives mirrored back. */
 double blw_log_dens(double t, double v, double a, double w, double sv, int upper, double *g);
 
-/* Tensor Gauss sums of the density over decision times and starts, all in the large-time range
- * (t/a^2 >= 0.25); see wiener.c. Node counts at most 66 (times) and 40 (starts); NAN beyond. */
-enum { BLW_GRID_NG = 7 };
+/* Tensor Gauss sums of the density over decision times and starts by the large-time series (t/a^2 >= 0.25,
+ * or down to BLW_TENSOR_U_MIN with more terms); see wiener_series.c. Node counts at most 66 (times) and
+ * 40 (starts); NAN beyond, or when the series cannot be trusted at the earliest node. */
+enum { BLW_GRID_NG = 7, BLW_GRID_NK = 16 };
+/* Lowest u = t/a^2 at which window integrals use the tensor sums (more series terms below u = 1/4). */
+#define BLW_TENSOR_U_MIN 0.1
 double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
                       const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
                       double g[BLW_GRID_NG]);

@@ -186,35 +186,81 @@ double blw_log_dens(double t, double v, double a, double w, double sv, int upper
 /* ---- tensor Gauss sums in the large-time range ------------------------------------------------- */
 
 /* Sum over t nodes (tt[i], weights twt[i]) and start nodes (w + sz dz[j], weights wwt[j]) of the
- * density at one boundary, all at u = t/a^2 >= 0.25, where the five-term large-time series of
- * large_time() is exact to 1e-15 relative. The series factorises: exp(-(k^2-1)q) depends on t only and
- * sin(k pi w'), cos(k pi w') on the start only, and without drift_sd the exponential prefactor splits
- * into exp(-v a w') exp(-v^2 t/2); so a point costs a few multiply-adds (plus one exp with drift_sd)
- * instead of a full log-density. Returns log of the sum; g (optional) receives the f-weighted means
+ * density at one boundary by the large-time series: five terms at u = t/a^2 >= 0.25 (large_time()'s
+ * bound, exact to 1e-15 relative), more below (down to u = BLW_TENSOR_U_MIN; count from a tail bound,
+ * NAN when it needs more than BLW_GRID_NK terms or a sum is not 1e13 times its tail). The series factorises: exp(-(k^2-1)q) depends on t only and
+ * sin(k pi w'), cos(k pi w') on the start only. The exponential prefactor
+ * exp((sv^2 a^2 W^2 - 2 v a W - v^2 t) / (2D) - q), D = 1 + sv^2 t, splits into a row factor (t only),
+ * a column factor (start only) and the cross factor exp(B'_j d_i), B'_j = B(W_j) - B(W_ref) with
+ * B(W) = (sv^2 a^2 W^2 - 2 v a W)/2 and d_i = 1/D_i - 1/D_ref; the cross factor is 1 without drift_sd
+ * and otherwise close to 1 (|B' d| is about sv^2 a sz st/2), so it is a Taylor polynomial whose degree
+ * is chosen from the bound |x|^(m+1)/(m+1)! e^|x| <= 1e-17 (per-point exp only when |x| > 0.25).
+ * A point then costs a few multiply-adds instead of a full log-density. The gradient is summed per row
+ * as f-weighted moments in W (1, W, W^2, and the series' derivative sums) and combined with the row's
+ * t-dependent coefficients once. Returns log of the sum; g (optional) receives the f-weighted means
  * of d log f / d(a, v, w, sv, sz), of d log f / dt and of (d log f / dt) tx[i] (tx may be NULL). */
+/* The series sums at one point (inlined: with K = 5 the loop unrolls). */
+static inline void series_sums(int K, const double *ks1, const double *ks3, const double *kc2, const double *ek,
+                               int grad, double *ser, double *s3, double *sc)
+{
+    double a = 0, b = 0, c = 0;
+    for (int k = 0; k < K; k++) a += ks1[k] * ek[k];
+    if (grad)
+        for (int k = 0; k < K; k++) {
+            b += ks3[k] * ek[k];
+            c += kc2[k] * ek[k];
+        }
+    *ser = a;
+    *s3 = b;
+    *sc = c;
+}
+
 double blw_grid_large(double v, double a, double w, double sv, double sz, int upper, int nt, const double *tt,
                       const double *twt, const double *tx, int nw, const double *dz, const double *wwt,
                       double g[BLW_GRID_NG])
 {
-    enum { NT = 64 + 2, NW = 40 };
+    enum { NT = 64 + 2, NW = 40, NTAYLOR = 12, NK = BLW_GRID_NK };
     if (nt > NT || nw > NW) return NAN;
+    const double HALF_PI2 = 4.934802200544679309; /* pi^2 / 2 */
     double vv = upper ? -v : v, sg = upper ? -1 : 1, a2 = a * a, s2 = sv * sv;
-    double ek[NT][5], qt[NT], et[NT], rs[NT];
-    double Wj[NW], sk[NW][5], ck[NW][5], ew[NW];
+    double ek[NT][NK], row[NT], di[NT], iDi[NT];
+    double Wj[NW], ks1[NW][NK], ks3[NW][NK], kc2[NW][NK], col[NW], Bp[NW];
+    /* terms: five at u >= 1/4 (the bound in large_time()); below, the smallest K whose tail bound
+     * sum_{k > K} k^p e^{-(k^2-1) q} <= X^p e^{-(X^2-1) q} / (1 - rho), X = K + 1,
+     * rho = ((X+1)/X)^p e^{-(2X+1) q} (ratios of successive terms decrease), is below 1e-16 at the
+     * earliest node (p = 3 with the gradient: the k^3 sums); checked against the computed sums below */
+    double tmin = tt[0];
+    for (int i = 1; i < nt; i++) tmin = fmin(tmin, tt[i]);
+    double qmin = HALF_PI2 * tmin / a2, tail = 0;
+    int K = 5, pw = g ? 3 : 1;
+    if (tmin < BLW_U_SWITCH * a2) {
+        for (K = 5;; K++) {
+            double X = K + 1, rho = pow((X + 1) / X, pw) * exp(-(2 * X + 1) * qmin);
+            tail = rho < 1 ? pow(X, pw) * exp(-(X * X - 1) * qmin) / (1 - rho) : INFINITY;
+            if (tail <= 1e-16) break;
+            if (K == NK) return NAN;
+        }
+    }
     /* reference: the exponent at the window centre and the user's start, so every factor stays O(e^(|v| a sz)) */
     double tref = tt[nt / 2], Wref = upper ? 1 - w : w;
+    double iDref = 1 / (1 + s2 * tref), Bref = 0.5 * (s2 * a2 * Wref * Wref - 2 * vv * a * Wref);
+    double Tref = -0.5 * vv * vv * tref * iDref - HALF_PI2 * tref / a2;
+    double dmax = 0, bmax = 0;
     for (int i = 0; i < nt; i++) {
-        double q = 4.934802200544679309 * tt[i] / a2, E = exp(-q), E2 = E * E, E4 = E2 * E2, E8 = E4 * E4;
+        double q = HALF_PI2 * tt[i] / a2, E = exp(-q), E2 = E * E, Ek = E * E2; /* E^(2k+1) */
         ek[i][0] = 1;
-        ek[i][1] = E2 * E;
-        ek[i][2] = E8;
-        ek[i][3] = E8 * E4 * E2 * E;
-        ek[i][4] = E8 * E8 * E8;
-        qt[i] = q;
-        rs[i] = sqrt((1 + s2 * tref) / (1 + s2 * tt[i])); /* D^(-1/2) relative to the reference */
-        /* sv = 0: the t-part of the prefactor, relative to the reference time */
-        et[i] = sv == 0 ? twt[i] * exp(-(q - 4.934802200544679309 * tref / a2) - 0.5 * vv * vv * (tt[i] - tref))
-                        : twt[i];
+        for (int k = 1; k < K; k++) {
+            ek[i][k] = ek[i][k - 1] * Ek; /* e^{-((k+1)^2 - 1) q} = e^{-(k^2-1) q} E^{2k+1} */
+            Ek *= E2;
+        }
+        double iD = 1 / (1 + s2 * tt[i]);
+        iDi[i] = iD;
+        di[i] = iD - iDref;
+        dmax = fmax(dmax, fabs(di[i]));
+        /* t-part of the prefactor relative to the reference, with D^(-1/2) relative to the reference */
+        double T = -0.5 * vv * vv * tt[i] * iD - q;
+        if (i == nt / 2) row[i] = twt[i]; /* the reference node itself: exactly 1 */
+        else row[i] = twt[i] * (s2 > 0 ? sqrt(iD / iDref) : 1) * exp(T - Tref + Bref * di[i]);
     }
     for (int j = 0; j < nw; j++) {
         double wp = w + sz * dz[j];
@@ -222,67 +268,81 @@ double blw_grid_large(double v, double a, double w, double sv, double sz, int up
         double s1, c1;
         blw_sincospi(W < 0.5 ? W : Wc, &s1, &c1);
         if (W > 0.5) c1 = -c1;
-        double tc = 2 * c1;
-        sk[j][0] = s1;
-        ck[j][0] = c1;
-        sk[j][1] = tc * s1;
-        ck[j][1] = tc * c1 - 1;
-        for (int k = 2; k < 5; k++) {
-            sk[j][k] = tc * sk[j][k - 1] - sk[j][k - 2];
-            ck[j][k] = tc * ck[j][k - 1] - ck[j][k - 2];
+        double tc = 2 * c1, sk[NK], ck[NK];
+        sk[0] = s1;
+        ck[0] = c1;
+        sk[1] = tc * s1;
+        ck[1] = tc * c1 - 1;
+        for (int k = 2; k < K; k++) {
+            sk[k] = tc * sk[k - 1] - sk[k - 2];
+            ck[k] = tc * ck[k - 1] - ck[k - 2];
         }
+        for (int k = 0; k < K; k++) ks1[j][k] = (k + 1) * sk[k];
+        if (g)
+            for (int k = 0; k < K; k++) {
+                double kk = k + 1;
+                ks3[j][k] = kk * kk * kk * sk[k];
+                kc2[j][k] = kk * kk * ck[k];
+            }
         Wj[j] = W;
-        ew[j] = sv == 0 ? wwt[j] * exp(-vv * a * (W - Wref)) : wwt[j];
+        Bp[j] = 0.5 * (W - Wref) * (s2 * a2 * (W + Wref) - 2 * vv * a);
+        bmax = fmax(bmax, fabs(Bp[j]));
+        col[j] = wwt[j] * exp(Bp[j] * iDref);
     }
-    double S = 0, G[BLW_GRID_NG] = {0};
-    double Dref = 1 + s2 * tref;
-    double bexp = (s2 * a2 * Wref * Wref - 2 * vv * a * Wref - vv * vv * tref) / (2 * Dref) -
-                  4.934802200544679309 * tref / a2;
+    /* degree of the cross factor's Taylor polynomial (0: the factor is 1; -1: exp per point) */
+    double X = bmax * dmax, inv[NTAYLOR + 1];
+    int deg = 0;
+    if (X > 0.25) deg = -1;
+    else if (X > 0) {
+        double term = 1;
+        while (deg < NTAYLOR && (term *= X / (deg + 1)) * 1.3 > 1e-17) deg++;
+        for (int r = 1; r <= deg; r++) inv[r] = 1.0 / r;
+    }
+    double S = 0, G[BLW_GRID_NG] = {0}, sermin = INFINITY;
     for (int i = 0; i < nt; i++) {
-        double t = tt[i], D = 1 + s2 * t, iD = 1 / D;
-        /* t-only parts of the gradient terms */
-        double gt0 = -vv * vv * 0.5 * iD - s2 * 0.5 * iD, ta = 2 * t / (a2 * a), txi = tx ? tx[i] : 0;
+        double A0 = 0, A1 = 0, A2 = 0, AL = 0, AC = 0, Ad = 0, A1d = 0, ACd = 0;
         for (int j = 0; j < nw; j++) {
-            double W = Wj[j];
             double ser = 0, s3 = 0, sc = 0;
-            for (int k = 0; k < 5; k++) {
-                double kk = k + 1, e = ek[i][k];
-                ser += kk * sk[j][k] * e;
-                if (g) {
-                    s3 += kk * kk * kk * sk[j][k] * e;
-                    sc += kk * kk * ck[j][k] * e;
-                }
-            }
-            double pre;
-            if (sv == 0) pre = et[i] * ew[j];
+            if (K == 5) series_sums(5, ks1[j], ks3[j], kc2[j], ek[i], g != NULL, &ser, &s3, &sc);
+            else series_sums(K, ks1[j], ks3[j], kc2[j], ek[i], g != NULL, &ser, &s3, &sc);
+            if (ser < sermin) sermin = ser;
+            double cross = 1, x = Bp[j] * di[i];
+            if (deg < 0) cross = exp(x);
             else
-                pre = twt[i] * wwt[j] * rs[i] *
-                      exp((s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t) * 0.5 * iD - qt[i] - bexp);
-            double e = pre * ser;
-            S += e;
+                for (int r = deg; r >= 1; r--) cross = 1 + x * cross * inv[r];
+            double pre = row[i] * col[j] * cross, e = pre * ser;
+            A0 += e;
             if (g) {
-                /* e * L_u = -(pi^2/2) pre s3 and e * L_w = pi pre sc: no division per point */
-                double eLu = -4.934802200544679309 * pre * s3, eLw = BLW_PI * pre * sc;
-                double m = a * W + vv * t, N = s2 * a2 * W * W - 2 * vv * a * W - vv * vv * t;
-                double egw = sg * ((s2 * a2 * W - vv * a) * iD * e + eLw); /* d/dw' in the user's orientation */
-                double egt = (gt0 - s2 * N * 0.5 * iD * iD) * e + eLu / a2;
-                G[0] += ((s2 * a * W * W - vv * W) * iD - 2 / a) * e - ta * eLu;
-                G[1] -= sg * m * iD * e;
-                G[2] += egw;
-                G[3] += sv * (m * m * iD * iD - t * iD) * e;
-                G[4] += egw * dz[j];
-                G[5] += egt;
-                G[6] += egt * txi;
+                double W = Wj[j], eW = e * W, pc = pre * sc;
+                A1 += eW;
+                A2 += eW * W;
+                AL += pre * s3;
+                AC += pc;
+                Ad += e * dz[j];
+                A1d += eW * dz[j];
+                ACd += pc * dz[j];
             }
         }
+        S += A0;
+        if (!g) continue;
+        double t = tt[i], iD = iDi[i], vt = vv * t;
+        double NA = s2 * a2 * A2 - 2 * vv * a * A1 - vv * vt * A0; /* sum of e N */
+        double gt = -0.5 * (vv * vv + s2) * iD * A0 - 0.5 * s2 * iD * iD * NA - HALF_PI2 / a2 * AL;
+        G[0] += (s2 * a * A2 - vv * A1) * iD - 2 / a * A0 + 2 * t / (a2 * a) * HALF_PI2 * AL;
+        G[1] -= sg * iD * (a * A1 + vt * A0);
+        G[2] += sg * ((s2 * a2 * A1 - vv * a * A0) * iD + BLW_PI * AC);
+        G[3] += sv * (iD * iD * (a2 * A2 + 2 * a * vt * A1 + vt * vt * A0) - t * iD * A0);
+        G[4] += sg * ((s2 * a2 * A1d - vv * a * Ad) * iD + BLW_PI * ACd);
+        G[5] += gt;
+        G[6] += gt * (tx ? tx[i] : 0);
     }
     if (!(S > 0)) return -INFINITY;
+    /* below u = 1/4 the series may cancel (the density rises from 0): every point's sum must dwarf the tail */
+    if (tail > 1e-13 * sermin) return NAN;
     if (g)
         for (int k = 0; k < BLW_GRID_NG; k++) g[k] = G[k] / S;
-    /* undo the reference: sv = 0 used exp(-q - v^2 t/2 - v a W) relative to the reference point */
-    double lref = sv == 0 ? -vv * a * Wref - 0.5 * vv * vv * tref - 4.934802200544679309 * tref / a2
-                          : bexp - 0.5 * log(Dref);
-    return lref + log(BLW_PI * S / a2);
+    /* undo the reference: the exponent at (tref, Wref) and D_ref^(-1/2) */
+    return Bref * iDref + Tref + 0.5 * log(iDref) + log(BLW_PI * S / a2);
 }
 
 /* Weighted sum of the density at one boundary over a list of points (t[i], start w + sz dz[i],
