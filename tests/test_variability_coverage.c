@@ -31,7 +31,8 @@ typedef struct {
     int wald_cover[N_WATCHED], profile_cover[N_WATCHED], profile_found[N_WATCHED];
     double profile_low[N_WATCHED], profile_high[N_WATCHED];
     size_t evaluations;
-    double seconds;
+    double seconds, decrement, gradient;
+    int pd;
     char error[1100];
 } dataset_result;
 
@@ -87,6 +88,9 @@ static void fit_one(unsigned d, dataset_result *out)
         out->converged = res.converged;
         out->evaluations = res.diag.evaluations;
         out->seconds = res.diag.seconds;
+        out->decrement = res.diag.newton_decrement;
+        out->gradient = res.diag.gradient_norm;
+        out->pd = res.diag.hessian_positive_definite;
         for (size_t j = 0; j < res.n_coef; j++)
             for (int w = 0; w < N_WATCHED; w++) {
                 const bl_coefficient *c = &res.coef[j];
@@ -125,7 +129,10 @@ HARNESS_CASE(every_dataset_fits_and_converges)
         evals += results[d].evaluations;
         secs += results[d].seconds;
         if (!results[d].fitted) check_true(0, "dataset %u: %s", d, results[d].error);
-        else if (!results[d].converged) printf("# data set %u did not converge\n", first_set + d);
+        else if (!results[d].converged)
+            printf("# data set %u did not converge (Newton decrement %.3g SE, gradient %.3g, information %s)\n",
+                   first_set + d, results[d].decrement, results[d].gradient,
+                   results[d].pd ? "positive definite" : "not positive definite");
     }
     printf("# %u data sets x %u trials: %u fitted, %u converged; mean %.0f evaluations, %.2f s per fit "
            "(profile intervals included)\n",

@@ -148,6 +148,49 @@ HARNESS_CASE(extended_tensor_and_panel)
     check_case("start_range + nondecision_range, threshold 0.5", mk(0.5, 3, 0.2, 0.4, 0, 0.4, 0.08), 0.26);
 }
 
+/* Narrow windows: the derivatives in nondecision_range and nondecision as the window shrinks to 0. The
+ * window average of f over [c - st/2, c + st/2] is f(c) + st^2 f''(c)/24 + O(st^4) (the midpoint rule's
+ * error term, e.g. Davis & Rabinowitz, Methods of Numerical Integration, 1984 -- from memory), so
+ * ln avg(st) = ln f(c) + st^2 k/24 + O(st^4), k = f''/f, and d ln avg / d st = st k / 12. k is measured
+ * here from the log-density VALUES alone at st = 0.02 c and 0.04 c (the value path is the one checked
+ * against quadrature above); the analytic derivative must follow st k / 12 for tiny st -- before the
+ * fix it carried a 1e-10 / st rounding error (1.4e-3 at st = 6.3e-8, enough to stall a fit at st = 0) --
+ * and the nondecision derivative must equal the st = 0 one. */
+HARNESS_CASE(narrow_window_derivatives)
+{
+    const double rts[] = {0.35, 0.45, 0.7, 1.2, 2.5};
+    for (int up = 0; up < 2; up++)
+        for (size_t r = 0; r < sizeof rts / sizeof *rts; r++) {
+            bl_wiener_params p;
+            bl_wiener_params_default(&p);
+            p.value[BL_THRESHOLD] = 1.7726;
+            p.value[BL_DRIFT] = 1.186;
+            p.value[BL_NONDECISION] = 0.28321;
+            p.value[BL_DRIFT_SD] = 0.637;
+            p.value[BL_START_RANGE] = 0.527;
+            double c = rts[r] - 0.28321, l1, l2, l0, g0[BL_NPARAM];
+            p.value[BL_NONDECISION_RANGE] = 0;
+            bl_wiener_log_density_grad(&p, rts[r], up, &l0, g0, NULL);
+            p.value[BL_NONDECISION_RANGE] = 0.02 * c;
+            bl_wiener_log_density(&p, rts[r], up, &l1, NULL);
+            p.value[BL_NONDECISION_RANGE] = 0.04 * c;
+            bl_wiener_log_density(&p, rts[r], up, &l2, NULL);
+            /* ln avg = ln f + st^2 k/24 + e st^4: two widths give k (the st^4 term is 1/16 of it at 0.02 c) */
+            double k = 24 * (16 * (l1 - l0) - (l2 - l0)) / (12 * (0.02 * c) * (0.02 * c));
+            const double sts[] = {6.3e-8, 1e-6, 1e-5 * c, 0.999e-3 * c, 1.001e-3 * c};
+            for (size_t s = 0; s < sizeof sts / sizeof *sts; s++) {
+                double ld, g[BL_NPARAM];
+                p.value[BL_NONDECISION_RANGE] = sts[s];
+                bl_wiener_log_density_grad(&p, rts[r], up, &ld, g, NULL);
+                double want = sts[s] * k / 12;
+                check_abs(g[BL_NONDECISION_RANGE], want, 2e-3 * fabs(want) + 1e-9,
+                          "up %d rt %.2f st %.3g: d/d nondecision_range = st k / 12", up, rts[r], sts[s]);
+                check_rel(g[BL_NONDECISION], g0[BL_NONDECISION], 1e-4,
+                          "up %d rt %.2f st %.3g: d/d nondecision = its st = 0 value", up, rts[r], sts[s]);
+            }
+        }
+}
+
 int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
@@ -155,6 +198,7 @@ int main(int argc, char **argv)
         HARNESS_ENTRY(onset_cdf_path),
         HARNESS_ENTRY(near_onset_cdf_path),
         HARNESS_ENTRY(extended_tensor_and_panel),
+        HARNESS_ENTRY(narrow_window_derivatives),
     };
     return harness_main(argc, argv, cases, HARNESS_COUNT(cases));
 }

@@ -971,6 +971,31 @@ static int grid_window(const gctx *C, double lo, double hi, blw_acc *acc)
  * otherwise grid_window's panels. Gradients: under the sums; t0 and st through the ends of the window
  * (Leibniz rule, the start-averaged density at lo and hi). Returns 0 (caller takes the general path)
  * when a rule asks for more than 40 nodes. */
+static int dens_grid(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd);
+
+/* The nondecision and nondecision_range derivatives of a narrow window (st < 1e-3 of the decision time
+ * c = rt - t0, away from the onset). The window formulas f(lo) - f(hi) and (f(hi) + f(lo)) / 2 - 1/st
+ * (densities over the window's integral) difference two numbers of size 1/st that agree to O(st): a
+ * 1e-10 error in each becomes 1e-10 / st in the result (1.6e-3 at st = 6e-8, enough to stop a fit near
+ * st = 0). Here instead, from the Taylor expansion of the window average about c,
+ * avg = f(c) + st^2 f''(c) / 24 + O(st^4): d ln avg / d st = st f''(c) / (12 f(c)) and
+ * d ln avg / d t0 = -f'(c) / f(c) (to O(st^2) relative), with f' from the analytic gradient at st = 0 and
+ * f''/f by central differences of the st = 0 density at c +- 0.01 c (truncation ~1e-4 relative,
+ * rounding ~1e-6 / c^2 against f''/f ~ 1/c^2). Returns 0 when a point cannot be evaluated. */
+static int narrow_window_grad(const bl_wiener_params *p, double rt, int upper, double c, double st, double *gd)
+{
+    bl_wiener_params q = *p;
+    q.value[BL_NONDECISION_RANGE] = 0;
+    double g0[BL_NPARAM], l0, lp, lm, d = 0.01 * c;
+    if (!dens_grid(&q, rt, upper, &l0, g0) || !dens_grid(&q, rt + d, upper, &lp, NULL) ||
+        !dens_grid(&q, rt - d, upper, &lm, NULL) || !isfinite(l0) || !isfinite(lp) || !isfinite(lm))
+        return 0;
+    double curv = (exp(lp - l0) - 2 + exp(lm - l0)) / (d * d);
+    gd[BL_NONDECISION] = g0[BL_NONDECISION];
+    gd[BL_NONDECISION_RANGE] = st * curv / 12;
+    return 1;
+}
+
 static int dens_grid(const bl_wiener_params *p, double rt, int upper, double *lfd, double *gd)
 {
     const double *x = p->value;
@@ -1057,6 +1082,7 @@ static int dens_grid(const bl_wiener_params *p, double rt, int upper, double *lf
     gd[BL_START] = acc.G[2] / acc.S;
     gd[BL_DRIFT_SD] = acc.G[3] / acc.S;
     gd[BL_START_RANGE] = acc.G[4] / acc.S;
+    if (lo > 0 && st < 1e-3 * c && narrow_window_grad(p, rt, upper, c, st, gd)) return 1;
     double fh = exp(start_avg(&C, hi) - lI), fl = lo > 0 ? exp(start_avg(&C, lo) - lI) : 0;
     gd[BL_NONDECISION] = fl - fh;
     gd[BL_NONDECISION_RANGE] = 0.5 * (fh + fl) - 1 / st;

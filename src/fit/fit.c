@@ -1017,6 +1017,25 @@ static size_t hold_edges(objective *o, double *coef, double *grad, double *ll, u
     return n_held;
 }
 
+/* drift_sd, start_range or nondecision_range (TR_EVEN) estimated within 1e-4 of 0 when the observed
+ * information is not positive definite: the likelihood is even in them, so at 0 their slope vanishes and
+ * here their curvature does too (a maximum flat to second order); Wald has nothing to say. Held at
+ * exactly 0 for inference (no SE; the others' information with it fixed -- by symmetry their cross
+ * terms with it are 0 there anyway), their uncertainty is the profile interval [0, upper]. Updates coef,
+ * grad and *ll; returns the number newly held. */
+static size_t hold_flat_even(objective *o, double *coef, double *grad, double *ll, unsigned char *held)
+{
+    size_t n_held = 0;
+    for (size_t j = 0; j < o->k; j++)
+        if (o->tr[j].type == TR_EVEN && !held[j] && fabs(coef[j]) < 1e-4) {
+            held[j] = 1;
+            coef[j] = 0;
+            n_held++;
+        }
+    if (n_held) *ll = bl_likelihood_eval(o->lik, coef, grad);
+    return n_held;
+}
+
 /* The coefficient table of res: names and estimates, with Wald standard errors, z, p and 95%
  * intervals from cov when `wald`. Returns 0 when out of memory. */
 static int fill_coefficients(const bl_model *m, const double *coef, const double *cov, const unsigned char *held,
@@ -1084,8 +1103,21 @@ static bl_status fill_profiles(const bl_model *m, bl_likelihood *lik, const doub
     int any_held = 0;
     for (size_t j = 0; j < k; j++) any_held |= held[j];
     if (any_held) bl_likelihood_eval(lik, coef, grad);
-    for (size_t j = 0; j < k; j++)
-        if (held[j]) info[j * k + j] = fmax(4 * grad[j] * grad[j] / (Z975 * Z975), 1e-12);
+    for (size_t j = 0; j < k; j++) {
+        if (!held[j]) continue;
+        if (even_coef(m, j)) {
+            /* flat to second order at 0: the scale from the drop over a tenth of a typical value */
+            static const double typical[BL_NPARAM] = {[BL_DRIFT_SD] = 1.0, [BL_START_RANGE] = 0.3,
+                                                      [BL_NONDECISION_RANGE] = 0.1};
+            double h = 0.1 * typical[m->coef[j].param], *c = grad; /* grad is scratch here */
+            memcpy(c, coef, k * sizeof *c);
+            c[j] = h;
+            double drop = ll - bl_likelihood_eval(lik, c, NULL);
+            info[j * k + j] = drop > 0 && isfinite(drop) ? 2 * drop / (h * h) : 1 / (h * h);
+            bl_likelihood_eval(lik, coef, grad);
+        } else
+            info[j * k + j] = fmax(4 * grad[j] * grad[j] / (Z975 * Z975), 1e-12);
+    }
     /* contamination cannot go below 0 while the others are maximised (the even variability
      * parameters need no bound: eval_even reads them as |value|) */
     double *lower = malloc(k * sizeof *lower);
@@ -1172,6 +1204,11 @@ again:
         if (!info || !cov) goto nomem;
         newton_state s = {coef, grad, info, cov, ll, NAN, 0, n_held ? held : NULL};
         if ((st = polish_and_infer(&o, &s, res, err))) goto fail;
+        if (!s.pd && hold_flat_even(&o, coef, grad, &s.ll, held)) {
+            /* an even parameter at 0 whose curvature there vanishes: held at 0 like contamination */
+            s.held = held;
+            if ((st = polish_and_infer(&o, &s, res, err))) goto fail;
+        }
         ll = s.ll;
     }
     double gmax = 0; /* a held coefficient's derivative is the slope at the edge, not a distance to go */
