@@ -11,6 +11,9 @@
  * docs/models.md section 5). Profile intervals are asymptotically exact for an interior truth (Wilks 1938:
  * the likelihood ratio of one fixed coefficient is chi-square(1)).
  *
+ * Measured (100 x 500, 2 threads, about 3 minutes): all 100 converged; profile coverage nondecision 93,
+ * drift_sd 95, start_range 94, nondecision_range 92 of 100 (range 87-100); Wald 83, 96, 84, 84.
+ *
  * Usage: test_variability_coverage [DATASETS [TRIALS [THREADS [FIRST]]]] [--list] [--case NAME]...
  * (FIRST: the index of the first data set, to rerun one alone) */
 #include "fit/fit.h"
