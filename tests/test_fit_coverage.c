@@ -6,20 +6,12 @@
  * of true-zero slopes: rejection rates at 5% within the 99.9% range of Binomial(300, 0.05). */
 #include "fit/fit.h"
 #include "fit_testutil.h"
+#include "binomial_range.h"
 #include "harness.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <math.h>
-
-/* Central (1 - alpha) range of Binomial(n, p): smallest lo with P(X < lo) <= alpha/2 ... */
-static void binom_range(unsigned n, double p, double alpha, unsigned *lo, unsigned *hi)
-{
-    *lo = 0;
-    while (*lo < n && gsl_cdf_binomial_P(*lo, p, n) < alpha / 2) (*lo)++;
-    *hi = n;
-    while (*hi > 0 && gsl_cdf_binomial_Q(*hi - 1, p, n) < alpha / 2) (*hi)--;
-}
 
 /* The Monte-Carlo run every case reads: reps data sets, each fitted with and without a null slope; done once. */
 static unsigned reps = 300;

@@ -20,6 +20,7 @@
  * usage: test_hier_coverage [STUDIES [TRIAL_SCALE [THREADS]]] [--list] [--case NAME]...
  *        (defaults 200 studies, scale 1, 2 threads; the suite runs 200 0.3 2) */
 #include "fit/fit.h"
+#include "binomial_range.h"
 #include "harness.h"
 #include "hier_testutil.h"
 
@@ -48,16 +49,6 @@ static double trial_scale = 1.0;
 static int n_threads = 2;
 static study_outcome *outcome;
 static double wall_seconds;
-
-/* Central (1 - alpha) range of Binomial(n, p): lo the smallest count with P(X < lo) >= alpha/2,
- * hi the largest with P(X > hi) >= alpha/2 (GSL gsl_cdf_binomial_P / _Q). */
-static void binom_range(unsigned n, double p, double alpha, unsigned *lo, unsigned *hi)
-{
-    *lo = 0;
-    while (*lo < n && gsl_cdf_binomial_P(*lo, p, n) < alpha / 2) (*lo)++;
-    *hi = n;
-    while (*hi > 0 && gsl_cdf_binomial_Q(*hi - 1, p, n) < alpha / 2) (*hi)--;
-}
 
 /* Index 0-3 of a coefficient or variance component (threshold intercept/theta, drift, nondecision). */
 static int term_index(bl_param param, const char *term)

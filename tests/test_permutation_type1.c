@@ -26,22 +26,13 @@
  * per-permutation seeds, so the thread count does not change the counts: thread_count_invariance). */
 #include "fit/fit.h"
 #include "fit_testutil.h"
+#include "binomial_range.h"
 #include "harness.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <math.h>
 #include <time.h>
-
-/* Central (1 - alpha) range [lo, hi] of Binomial(n, p): lo is the smallest count with P(X <= lo) >= alpha/2,
- * hi the largest with P(X >= hi) >= alpha/2 (as in test_fit_coverage.c). */
-static void binom_range(unsigned n, double p, double alpha, unsigned *lo, unsigned *hi)
-{
-    *lo = 0;
-    while (*lo < n && gsl_cdf_binomial_P(*lo, p, n) < alpha / 2) (*lo)++;
-    *hi = n;
-    while (*hi > 0 && gsl_cdf_binomial_Q(*hi - 1, p, n) < alpha / 2) (*hi)--;
-}
 
 static unsigned reps = 300;
 static size_t trials_per_study = 600;

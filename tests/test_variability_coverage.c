@@ -18,6 +18,7 @@
  * (FIRST: the index of the first data set, to rerun one alone) */
 #include "fit/fit.h"
 #include "fit_testutil.h"
+#include "binomial_range.h"
 #include "harness.h"
 
 #include <gsl/gsl_cdf.h>
@@ -43,14 +44,6 @@ static unsigned n_sets = 120, n_trials = 600;
 static int n_threads = 2;
 static unsigned first_set; /* data sets first_set .. first_set + n_sets - 1 (to rerun one) */
 static dataset_result *results;
-
-static void binom_range(unsigned n, double p, double alpha, unsigned *lo, unsigned *hi)
-{
-    *lo = 0;
-    while (*lo < n && gsl_cdf_binomial_P(*lo, p, n) < alpha / 2) (*lo)++;
-    *hi = n;
-    while (*hi > 0 && gsl_cdf_binomial_Q(*hi - 1, p, n) < alpha / 2) (*hi)--;
-}
 
 static double uniform(gsl_rng *r, double lo, double hi) { return lo + (hi - lo) * gsl_rng_uniform(r); }
 

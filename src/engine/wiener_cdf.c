@@ -29,6 +29,22 @@ static double ln_Phi(double x)
  * F = sum_k (-1)^k [exp(-v(aw + r_k)) Phi((vt - r_k)/sqrt t) + exp(v(r_k - aw)) Phi(-(r_k + vt)/sqrt t)],
  * r_k = k a + a w (k even), (k + 1) a - a w (k odd). Terms decrease in k, so the alternating sum stops
  * at the first term below CDF_EPS times the sum. With dl != NULL also d log F / d(a, v, w). */
+/* Image k of the small-time CDF series (Blurton et al. 2012): its distance r from the absorbing boundary
+ * and the derivatives of r in a (ra) and in w (rw); even images come from the start, odd ones from its mirror
+ * (wc = 1 - w, passed exactly). */
+static inline void cdf_image(int k, double a, double w, double wc, double *r, double *ra, double *rw)
+{
+    if (k % 2 == 0) {
+        *r = k * a + a * w;
+        *ra = k + w;
+        *rw = a;
+    } else {
+        *r = k * a + a * wc;
+        *ra = k + wc;
+        *rw = -a;
+    }
+}
+
 /* The same series without logs of Phi: Phi from erfc directly, scaled by the exponential prefactors.
  * Returns 0 (caller falls back to the log form) when a Phi value could underflow. */
 static int cdf_small_fast(double t, double v, double a, double w, double wc, double *lF)
@@ -60,15 +76,7 @@ static bl_status cdf_small(double t, double v, double a, double w, double wc, do
     double m = 0, S = 0, dS[3] = {0, 0, 0};
     for (int k = 0; k < 2000; k++) {
         double r, ra, rw;
-        if (k % 2 == 0) {
-            r = k * a + a * w;
-            ra = k + w;
-            rw = a;
-        } else {
-            r = k * a + a * wc;
-            ra = k + wc;
-            rw = -a;
-        }
+        cdf_image(k, a, w, wc, &r, &ra, &rw);
         double y1 = (v * t - r) / st, y2 = -(r + v * t) / st;
         double l1 = ln_Phi(y1), l2 = ln_Phi(y2);
         double A = -v * (a * w + r) + l1, B = v * (r - a * w) + l2;
@@ -121,15 +129,7 @@ static int cdf_small_sv(double t, double v, double a, double w, double wc, doubl
     double m = 0, S = 0, dS[4] = {0, 0, 0, 0};
     for (int k = 0; k < 200; k++) {
         double r, ra, rw;
-        if (k % 2 == 0) {
-            r = k * a + a * w;
-            ra = k + w;
-            rw = a;
-        } else {
-            r = k * a + a * wc;
-            ra = k + wc;
-            rw = -a;
-        }
+        cdf_image(k, a, w, wc, &r, &ra, &rw);
         double A = a * w + r, B = r - a * w;
         double E1 = A * (0.5 * A * s2 - v), E2 = B * (0.5 * B * s2 + v);
         double x1 = ((v - A * s2) * t - r) * irho, x2 = -((v + B * s2) * t + r) * irho;
