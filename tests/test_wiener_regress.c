@@ -8,22 +8,9 @@
 #include "bandlink/wiener.h"
 #include "engine/wiener_internal.h" /* the Gauss-Laguerre onset rule */
 #include "harness.h"
+#include "wiener_testutil.h"
 
 #include <math.h>
-
-static bl_wiener_params mk(double a, double v, double t0, double w, double sv, double sz, double st)
-{
-    bl_wiener_params p;
-    bl_wiener_params_default(&p);
-    p.value[BL_THRESHOLD] = a;
-    p.value[BL_DRIFT] = v;
-    p.value[BL_NONDECISION] = t0;
-    p.value[BL_START] = w;
-    p.value[BL_DRIFT_SD] = sv;
-    p.value[BL_START_RANGE] = sz;
-    p.value[BL_NONDECISION_RANGE] = st;
-    return p;
-}
 
 static double dens(const bl_wiener_params *p, double rt, int up)
 {

@@ -5,26 +5,13 @@
 #include "bandlink/wiener.h"
 #include "engine/wiener_internal.h" /* the node-count rule, to check it against 2n */
 #include "harness.h"
+#include "wiener_testutil.h"
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_integration.h>
 #include <math.h>
 #include <pthread.h>
 #include <string.h>
-
-static bl_wiener_params mk(double a, double v, double t0, double w, double sv, double sz, double st)
-{
-    bl_wiener_params p;
-    bl_wiener_params_default(&p);
-    p.value[BL_THRESHOLD] = a;
-    p.value[BL_DRIFT] = v;
-    p.value[BL_NONDECISION] = t0;
-    p.value[BL_START] = w;
-    p.value[BL_DRIFT_SD] = sv;
-    p.value[BL_START_RANGE] = sz;
-    p.value[BL_NONDECISION_RANGE] = st;
-    return p;
-}
 
 static double ld(const bl_wiener_params *p, double rt, int up)
 {

@@ -12,6 +12,7 @@
  * parameter's scale; agreement 1e-5 relative to max(1, |derivative|)). */
 #include "bandlink/wiener.h"
 #include "harness.h"
+#include "wiener_testutil.h"
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_integration.h>
@@ -73,20 +74,6 @@ static double reference(const bl_wiener_params *p, double rt, int up)
     total += r;
     gsl_integration_workspace_free(ws);
     return total / st;
-}
-
-static bl_wiener_params mk(double a, double v, double t0, double w, double sv, double sz, double st)
-{
-    bl_wiener_params p;
-    bl_wiener_params_default(&p);
-    p.value[BL_THRESHOLD] = a;
-    p.value[BL_DRIFT] = v;
-    p.value[BL_NONDECISION] = t0;
-    p.value[BL_START] = w;
-    p.value[BL_DRIFT_SD] = sv;
-    p.value[BL_START_RANGE] = sz;
-    p.value[BL_NONDECISION_RANGE] = st;
-    return p;
 }
 
 /* value against the GSL reference, the gradient against finite differences, value = gradient's value */
@@ -161,13 +148,7 @@ HARNESS_CASE(narrow_window_derivatives)
     const double rts[] = {0.35, 0.45, 0.7, 1.2, 2.5};
     for (int up = 0; up < 2; up++)
         for (size_t r = 0; r < sizeof rts / sizeof *rts; r++) {
-            bl_wiener_params p;
-            bl_wiener_params_default(&p);
-            p.value[BL_THRESHOLD] = 1.7726;
-            p.value[BL_DRIFT] = 1.186;
-            p.value[BL_NONDECISION] = 0.28321;
-            p.value[BL_DRIFT_SD] = 0.637;
-            p.value[BL_START_RANGE] = 0.527;
+            bl_wiener_params p = mk(1.7726, 1.186, 0.28321, 0.5, 0.637, 0.527, 0);
             double c = rts[r] - 0.28321, l1, l2, l0, g0[BL_NPARAM];
             p.value[BL_NONDECISION_RANGE] = 0;
             bl_wiener_log_density_grad(&p, rts[r], up, &l0, g0, NULL);

@@ -1182,8 +1182,9 @@ again:
         optimise(&o, rng, 1, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
         agreed = 0;
         memset(held, 0, k);
-        if (info) free(info), info = NULL;
-        if (cov) free(cov), cov = NULL;
+        free(info);
+        free(cov);
+        info = cov = NULL;
     } else
         optimise(&o, rng, n_starts, opt ? opt->simplex_only : 0, start, &best, &agreed, lls);
     if (o.out_of_memory) {

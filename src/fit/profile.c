@@ -15,7 +15,6 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <stdio.h>
 
 #define PROFILE_Z 1.959963984540054 /* sqrt of the chi-square(1) 95% point 3.841459 */
 #define PROFILE_R_TOL 1e-3          /* |r - z|: the statistic within 0.004 of its critical value */
@@ -295,10 +294,8 @@ static double find_end(profile_ws *w, int side, double limit)
     for (int step = 0; step < PROFILE_MAX_ROOT_STEPS; step++) {
         int at_limit = side < 0 && b <= limit;
         if (at_limit) b = limit;
-        size_t e0 = w->p->evaluations;
         double ll = profile_point(w, b), r = signed_root(w, ll);
         if (w->p->found_better) return NAN;
-        if (getenv("BL_PROFILE_DEBUG")) fprintf(stderr, "DBG j %zu side %d b %.6g r %.5f gain %.3g evals %zu in %g out %g\n", w->j, side, b, r, ll - w->p->ll_max, w->p->evaluations - e0, in_b, out_b);
         if (at_limit && r <= z) return limit; /* more steps could only lower r */
         if (fabs(r - z) < PROFILE_R_TOL) {
             r = signed_root(w, confirm_point(w, ll));
